@@ -1,0 +1,220 @@
+"""The normalised transport problem every solver works on.
+
+All values are SI: positions and thicknesses in m, diffusivities in m^2/s, concentrations in
+mol/m^3 (molar basis) or kg/m^3 (mass basis), flux densities in amount/(m^2*s), reaction rates in
+amount/(m^3*s), rate constants in 1/s, mass-transfer coefficients in m/s, times in s.
+
+Conventions (the contract of ``DESIGN.md``):
+
+* Position ``r`` is x for a slab and the radius for a cylinder or sphere; the geometric exponent
+  ``n`` is 0, 1, 2 so that the shell balance reads ``(1/r^n) d/dr(r^n D dC/dr) = R(C)``.
+* ``C`` is always the material-side concentration in the layer. A layer's ``partition`` K is its
+  equilibrium coefficient against the reference fluid (``C_layer = K * C_fluid``); at an interface
+  ``C_a/K_a = C_b/K_b`` and the flux is continuous.
+* Flux ``J = -D dC/dr`` is positive outward (direction of increasing r).
+* Boundary ``flux`` values and ``mass_transfer`` fluxes are flux densities *into* the body.
+* Reactions are consumption: ``R(C) >= 0`` removes solute.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Callable, Mapping
+from dataclasses import dataclass, field
+from types import MappingProxyType
+
+import numpy as np
+
+GEOMETRY_EXPONENT: Mapping[str, int] = MappingProxyType({"slab": 0, "cylinder": 1, "sphere": 2})
+REACTION_KINDS = ("none", "zero_order", "first_order", "michaelis_menten")
+BOUNDARY_KINDS = ("concentration", "flux", "mass_transfer", "symmetry")
+
+
+@dataclass(frozen=True)
+class Reaction:
+    """Volumetric consumption ``R(C)`` in amount/(m^3*s).
+
+    kind ``none``: R = 0; ``zero_order``: R = rate while C > 0, else 0;
+    ``first_order``: R = rate_constant * C; ``michaelis_menten``: R = vmax * C / (km + C).
+    """
+
+    kind: str = "none"
+    rate: float = 0.0
+    rate_constant: float = 0.0
+    vmax: float = 0.0
+    km: float = 0.0
+
+    @property
+    def is_linear(self) -> bool:
+        """True when R(C) = k*C + const everywhere (none, first order)."""
+        return self.kind in ("none", "first_order")
+
+    @property
+    def reacts(self) -> bool:
+        return self.kind != "none"
+
+    def rate_at(self, c: np.ndarray) -> np.ndarray:
+        """Consumption rate R(C) in amount/(m^3*s); C <= 0 consumes nothing for zero order."""
+        c = np.asarray(c, dtype=float)
+        if self.kind == "none":
+            return np.zeros_like(c)
+        if self.kind == "zero_order":
+            return np.where(c > 0.0, self.rate, 0.0)
+        if self.kind == "first_order":
+            return self.rate_constant * c
+        if self.kind == "michaelis_menten":
+            return self.vmax * c / (self.km + c)
+        raise ValueError(f"unknown reaction kind {self.kind!r}")
+
+    def derivative_at(self, c: np.ndarray) -> np.ndarray:
+        """dR/dC in 1/s (zero for zero order away from C = 0)."""
+        c = np.asarray(c, dtype=float)
+        if self.kind in ("none", "zero_order"):
+            return np.zeros_like(c)
+        if self.kind == "first_order":
+            return np.full_like(c, self.rate_constant)
+        if self.kind == "michaelis_menten":
+            return self.vmax * self.km / (self.km + c) ** 2
+        raise ValueError(f"unknown reaction kind {self.kind!r}")
+
+    @property
+    def linear_rate_constant(self) -> float | None:
+        """k in R = k*C for the kinds where that holds (none: 0), else None."""
+        if self.kind == "none":
+            return 0.0
+        if self.kind == "first_order":
+            return self.rate_constant
+        return None
+
+
+@dataclass(frozen=True)
+class Layer:
+    """One homogeneous layer, listed inner to outer."""
+
+    name: str
+    thickness: float
+    diffusivity: float
+    partition: float = 1.0
+    reaction: Reaction = field(default_factory=Reaction)
+    initial: float = 0.0
+
+
+@dataclass(frozen=True)
+class Boundary:
+    """A face condition.
+
+    kind ``concentration``: surface C = K_face * value (value = fluid concentration);
+    ``flux``: flux density *into* the body = value; ``mass_transfer``: flux into the body =
+    coefficient * (bulk - C_surface / K_face); ``symmetry``: zero flux.
+    ``partition`` overrides K_face (default: the partition of the layer at that face).
+    """
+
+    kind: str
+    value: float = 0.0
+    coefficient: float = 0.0
+    bulk: float = 0.0
+    partition: float | None = None
+
+
+@dataclass(frozen=True)
+class Regime:
+    kind: str = "steady"
+    duration: float | None = None
+    times: tuple[float, ...] = ()
+
+
+@dataclass(frozen=True)
+class Problem:
+    """A transport case in SI, as the solvers see it."""
+
+    geometry: str
+    inner: float
+    layers: tuple[Layer, ...]
+    inner_boundary: Boundary
+    outer_boundary: Boundary
+    regime: Regime = field(default_factory=Regime)
+    probes: tuple[float, ...] = ()
+    length: float | None = None
+    area: float | None = None
+    tolerances: Mapping[str, float] = field(default_factory=dict)
+    basis: str = "molar"
+
+    @property
+    def exponent(self) -> int:
+        """Geometric exponent n: 0 slab, 1 cylinder, 2 sphere."""
+        return GEOMETRY_EXPONENT[self.geometry]
+
+    @property
+    def edges(self) -> np.ndarray:
+        """Positions of the inner face, every interface and the outer face, in m."""
+        return self.inner + np.concatenate(([0.0], np.cumsum([ly.thickness for ly in self.layers])))
+
+    @property
+    def outer(self) -> float:
+        return float(self.edges[-1])
+
+    @property
+    def total_thickness(self) -> float:
+        return float(sum(ly.thickness for ly in self.layers))
+
+    @property
+    def solid_centre(self) -> bool:
+        """True for a solid cylinder or sphere (inner = 0), whose centre is a symmetry point."""
+        return self.geometry != "slab" and self.inner == 0.0
+
+    @property
+    def is_linear(self) -> bool:
+        return all(ly.reaction.is_linear for ly in self.layers)
+
+    def face_partition(self, side: str) -> float:
+        """Layer/fluid partition coefficient at the ``inner`` or ``outer`` face."""
+        boundary = self.inner_boundary if side == "inner" else self.outer_boundary
+        layer = self.layers[0] if side == "inner" else self.layers[-1]
+        return layer.partition if boundary.partition is None else boundary.partition
+
+    def tolerance(self, name: str, default: float) -> float:
+        return float(self.tolerances.get(name, default))
+
+    @property
+    def concentration_unit(self) -> str:
+        return "mol/m^3" if self.basis == "molar" else "kg/m^3"
+
+    @property
+    def amount_unit(self) -> str:
+        return "mol" if self.basis == "molar" else "kg"
+
+    def geometric_weight(self, r: np.ndarray) -> np.ndarray:
+        """r^n: the shell-balance weight without the 2*pi or 4*pi factor."""
+        return np.asarray(r, dtype=float) ** self.exponent
+
+    @property
+    def measure_factor(self) -> float:
+        """Factor turning r^n-weighted amounts into per-area (slab), per-length (cylinder) or
+        total (sphere) amounts: 1, 2*pi, 4*pi."""
+        return (1.0, 2.0 * np.pi, 4.0 * np.pi)[self.exponent]
+
+
+@dataclass
+class SteadySolution:
+    """What a steady solver returns.
+
+    ``flux_inner``/``flux_outer`` are flux densities (outward positive) at the faces;
+    ``consumption`` is the r^n-weighted integral of R(C) over the body, amount/(m^(2-n)*s)
+    before the measure factor, i.e. ``r_in^n J_in - r_out^n J_out = consumption`` at steady state.
+    ``concentration_at(r, layer=None)`` and ``flux_at(r, layer=None)`` evaluate the solution at
+    positions r (m, array): with ``layer`` (index) given, that layer's solution is evaluated (r in
+    its closed interval, so both sides of a partition jump can be read); without it, each r is
+    placed in its layer and an r exactly on an interface takes the inner layer's value.
+    ``diagnostics`` holds solver facts (iterations, residuals, cells) for the record.
+    """
+
+    method: str
+    reference: str
+    success: bool
+    message: str
+    concentration_at: Callable[..., np.ndarray]
+    flux_at: Callable[..., np.ndarray]
+    flux_inner: float
+    flux_outer: float
+    consumption: float
+    depletion_front: float | None = None
+    diagnostics: dict = field(default_factory=dict)
