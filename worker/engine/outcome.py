@@ -1,0 +1,61 @@
+"""The parts of a check record that a regime-specific check produces."""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+
+
+@dataclass
+class Check:
+    """One verification check: ``passed`` is decided by the check, ``limit`` is what it used.
+
+    ``value`` and ``limit`` are dimensionless (relative) unless the detail says otherwise.
+    """
+
+    name: str
+    value: float | None
+    limit: float | None
+    passed: bool
+    detail: str
+
+    def as_dict(self) -> dict:
+        return {
+            "name": self.name,
+            "value": _finite_or_none(self.value),
+            "limit": _finite_or_none(self.limit),
+            "passed": bool(self.passed),
+            "detail": self.detail,
+        }
+
+
+def _finite_or_none(value: float | None) -> float | None:
+    if value is None:
+        return None
+    value = float(value)
+    return value if value == value and abs(value) != float("inf") else None
+
+
+@dataclass
+class Outcome:
+    """Quantities, series, methods, checks and warnings of one solved case."""
+
+    quantities: dict = field(default_factory=dict)
+    series: dict = field(default_factory=dict)
+    methods: list = field(default_factory=list)
+    checks: list[Check] = field(default_factory=list)
+    warnings: list[str] = field(default_factory=list)
+
+    def add_quantity(self, name: str, value, unit: str) -> None:
+        self.quantities[name] = {"value": value, "unit": unit}
+
+    def add_check(
+        self, name: str, value: float | None, limit: float | None, passed: bool, detail: str
+    ) -> Check:
+        check = Check(name, value, limit, passed, detail)
+        self.checks.append(check)
+        return check
+
+    def check_at_most(self, name: str, value: float, limit: float, detail: str) -> Check:
+        """A check passing when ``value <= limit`` (NaN fails)."""
+        passed = bool(value <= limit)
+        return self.add_check(name, value, limit, passed, detail)

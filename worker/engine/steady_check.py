@@ -1,0 +1,469 @@
+"""The steady part of a check record: solve two ways, compare, verify, report.
+
+Methods
+-------
+* primary: the exact basis-superposition solution where a closed form exists
+  (:mod:`worker.engine.exact_steady`), else the finest finite-volume solution;
+* independent: the finite-volume shell balance on three grids (:mod:`worker.engine.fv_steady`),
+  with a grid-convergence study (Celik et al. 2008) of the face fluxes; for nonlinear kinetics
+  without a closed form also ``scipy.integrate.solve_bvp`` (:mod:`worker.engine.bvp_steady`);
+* bracket: for Michaelis-Menten kinetics the two comparison solutions of the maximum principle.
+
+Every check compares dimensionless numbers: fluxes relative to the throughput scale (the largest
+of the r^n-weighted face rates and the consumption), concentrations relative to the largest
+material-side concentration of the problem.
+"""
+
+from __future__ import annotations
+
+import dataclasses
+import math
+
+import numpy as np
+
+from worker.engine import bvp_steady, convergence, exact_steady, fv_steady
+from worker.engine.model import Problem, SteadySolution
+from worker.engine.outcome import Outcome
+
+#: Default limits of the checks (dimensionless), overridable through the case's ``tolerances``.
+DEFAULT_LIMITS = {
+    "cross_check": 1e-4,  # flux and profile agreement between independent methods
+    "cross_check.depletion_front": 2e-3,  # front position difference / total thickness
+    "mass_balance": 1e-6,  # (in - out - consumed) / throughput
+    "boundary_residual": 1e-6,  # face condition residual / its scale
+    "interface_residual": 1e-6,  # C/K jump and flux jump at interfaces / their scale
+    "gci": 1e-3,  # GCI_fine of each face flux (fraction)
+    "non_negativity": 1e-8,  # most negative concentration / concentration scale
+    "bracket": 1e-4,  # Michaelis-Menten solution outside its comparison bracket / scale
+}
+#: Points per layer in the reported profile (both layer ends included, so jumps are visible).
+PROFILE_POINTS_PER_LAYER = 41
+#: Thresholds for regime notes (warnings): common practice (TRADE_RANGES.md §6).
+THIELE_LARGE = 3.0
+BIOT_LARGE = 10.0
+BIOT_SMALL = 0.1
+THIN_WALL_NOTE = 0.01
+
+
+def _limit(problem: Problem, name: str) -> float:
+    """The limit for check ``name``: the case's override, else the family's, else the default."""
+    if name in problem.tolerances:
+        return float(problem.tolerances[name])
+    family = name.split(".")[0]
+    if name in DEFAULT_LIMITS:
+        default = DEFAULT_LIMITS[name]
+        return float(problem.tolerances.get(family, default)) if family != name else default
+    return float(problem.tolerances.get(family, DEFAULT_LIMITS[family]))
+
+
+def _faces(problem: Problem) -> list[str]:
+    """Faces whose flux is a real face (the centre of a solid body is not)."""
+    return ["outer"] if problem.solid_centre else ["inner", "outer"]
+
+
+def _weight(problem: Problem, side: str) -> float:
+    r = problem.inner if side == "inner" else problem.outer
+    return float(r**problem.exponent)
+
+
+def _face_flux(solution: SteadySolution, side: str) -> float:
+    return float(solution.flux_inner if side == "inner" else solution.flux_outer)
+
+
+def _concentration_scale(problem: Problem, *solutions: SteadySolution) -> float:
+    scale = 0.0
+    for side in ("inner", "outer"):
+        b = problem.inner_boundary if side == "inner" else problem.outer_boundary
+        k = problem.face_partition(side)
+        if b.kind == "concentration":
+            scale = max(scale, abs(k * b.value))
+        elif b.kind == "mass_transfer":
+            scale = max(scale, abs(k * b.bulk))
+    for solution in solutions:
+        for i, (a, b) in enumerate(zip(problem.edges[:-1], problem.edges[1:], strict=True)):
+            c = solution.concentration_at(np.linspace(a, b, 9), layer=i)
+            scale = max(scale, float(np.nanmax(np.abs(c))))
+    return scale if scale > 0 else 1.0
+
+
+def _throughput_scale(problem: Problem, solution: SteadySolution, c_scale: float) -> float:
+    """Largest r^n-weighted rate through the body, floored by a diffusive rate scale."""
+    rates = [abs(_weight(problem, s) * _face_flux(solution, s)) for s in ("inner", "outer")]
+    rates.append(abs(solution.consumption))
+    conductance = min(ly.diffusivity * ly.partition / ly.thickness for ly in problem.layers)
+    floor = 1e-9 * c_scale * conductance * max(problem.outer**problem.exponent, 1e-300)
+    return max(max(rates), floor)
+
+
+def _profile_positions(problem: Problem) -> list[tuple[int, np.ndarray]]:
+    edges = problem.edges
+    return [
+        (i, np.linspace(edges[i], edges[i + 1], PROFILE_POINTS_PER_LAYER))
+        for i in range(len(problem.layers))
+    ]
+
+
+def _sample(solution: SteadySolution, problem: Problem) -> tuple[list, list, list]:
+    positions, values, layers = [], [], []
+    for i, r in _profile_positions(problem):
+        positions.extend(r.tolist())
+        values.extend(np.asarray(solution.concentration_at(r, layer=i), dtype=float).tolist())
+        layers.extend([i] * len(r))
+    return positions, values, layers
+
+
+def _boundary_residuals(problem: Problem, solution: SteadySolution, c_scale: float,
+                        t_scale: float) -> list[tuple[str, float]]:
+    """Residual of each face condition, evaluated on the solution's own fields."""
+    out = []
+    for side in ("inner", "outer"):
+        b = problem.inner_boundary if side == "inner" else problem.outer_boundary
+        layer = 0 if side == "inner" else len(problem.layers) - 1
+        r = np.array([problem.inner if side == "inner" else problem.outer])
+        if side == "inner" and problem.solid_centre:
+            continue
+        c_s = float(solution.concentration_at(r, layer=layer)[0])
+        j = float(solution.flux_at(r, layer=layer)[0])
+        into = j if side == "inner" else -j
+        k = problem.face_partition(side)
+        w = _weight(problem, side)
+        if b.kind == "concentration":
+            out.append((f"{side} concentration", abs(c_s - k * b.value) / c_scale))
+        elif b.kind == "flux":
+            out.append((f"{side} flux", abs(w * (into - b.value)) / t_scale))
+        elif b.kind == "mass_transfer":
+            out.append(
+                (f"{side} film", abs(w * (into - b.coefficient * (b.bulk - c_s / k))) / t_scale)
+            )
+        else:
+            out.append((f"{side} symmetry", abs(w * j) / t_scale))
+    return out
+
+
+def _interface_residuals(problem: Problem, solution: SteadySolution, c_scale: float,
+                         t_scale: float) -> list[tuple[str, float]]:
+    out = []
+    for i in range(len(problem.layers) - 1):
+        r = np.array([problem.edges[i + 1]])
+        a, b = problem.layers[i], problem.layers[i + 1]
+        ca = float(solution.concentration_at(r, layer=i)[0])
+        cb = float(solution.concentration_at(r, layer=i + 1)[0])
+        ja = float(solution.flux_at(r, layer=i)[0])
+        jb = float(solution.flux_at(r, layer=i + 1)[0])
+        k_ref = min(a.partition, b.partition)
+        out.append((f"interface {i + 1} C/K", abs(ca / a.partition - cb / b.partition) * k_ref
+                    / c_scale))
+        out.append((f"interface {i + 1} flux", abs(float(r[0]) ** problem.exponent * (ja - jb))
+                    / t_scale))
+    return out
+
+
+def _mass_imbalance(problem: Problem, solution: SteadySolution, t_scale: float) -> float:
+    inflow = _weight(problem, "inner") * solution.flux_inner
+    outflow = _weight(problem, "outer") * solution.flux_outer
+    return abs(inflow - outflow - solution.consumption) / t_scale
+
+
+def _worst(items: list[tuple[str, float]]) -> tuple[str, float]:
+    if not items:
+        return ("none", 0.0)
+    name, value = max(items, key=lambda kv: (math.isnan(kv[1]), kv[1]))
+    return name, value
+
+
+def _method(role: str, solution: SteadySolution) -> dict:
+    return {"role": role, "name": solution.method, "reference": solution.reference}
+
+
+def _add_quantities(outcome: Outcome, problem: Problem, primary: SteadySolution,
+                    profile_values: list) -> None:
+    c_unit = problem.concentration_unit
+    amount = problem.amount_unit
+    flux_unit = f"{amount}/(m^2*s)"
+    q = outcome.add_quantity
+    q("flux_inner", float(primary.flux_inner), flux_unit)
+    q("flux_outer", float(primary.flux_outer), flux_unit)
+    for side in ("inner", "outer"):
+        layer = 0 if side == "inner" else len(problem.layers) - 1
+        r = np.array([problem.inner if side == "inner" else problem.outer])
+        q(f"surface_{side}", float(primary.concentration_at(r, layer=layer)[0]), c_unit)
+    q("concentration_min", float(np.min(profile_values)), c_unit)
+    q("concentration_max", float(np.max(profile_values)), c_unit)
+    if primary.depletion_front is not None:
+        q("depletion_front", float(primary.depletion_front), "m")
+    q("thiele_modulus", [exact_steady.thiele_modulus(ly, problem) for ly in problem.layers],
+      "1")
+    for side in ("inner", "outer"):
+        b = problem.inner_boundary if side == "inner" else problem.outer_boundary
+        if b.kind == "mass_transfer":
+            layer = problem.layers[0] if side == "inner" else problem.layers[-1]
+            biot = b.coefficient * problem.total_thickness / (
+                problem.face_partition(side) * layer.diffusivity)
+            q(f"biot_{side}", float(biot), "1")
+    two_pi_r_in = 2 * math.pi * problem.inner
+    two_pi_r_out = 2 * math.pi * problem.outer
+    if problem.geometry == "cylinder":
+        q("rate_per_length_inner", two_pi_r_in * primary.flux_inner, f"{amount}/(m*s)")
+        q("rate_per_length_outer", two_pi_r_out * primary.flux_outer, f"{amount}/(m*s)")
+        q("consumption_per_length", 2 * math.pi * primary.consumption, f"{amount}/(m*s)")
+        size = problem.length
+    elif problem.geometry == "slab":
+        q("consumption_per_area", primary.consumption, f"{amount}/(m^2*s)")
+        size = problem.area
+    else:
+        size = 1.0
+    if size is not None:
+        measure = {"slab": (1.0, 1.0), "cylinder": (two_pi_r_in, two_pi_r_out),
+                   "sphere": (4 * math.pi * problem.inner**2, 4 * math.pi * problem.outer**2)}
+        a_in, a_out = measure[problem.geometry]
+        q("rate_inner", size * a_in * primary.flux_inner, f"{amount}/s")
+        q("rate_outer", size * a_out * primary.flux_outer, f"{amount}/s")
+        q("consumption", size * problem.measure_factor * primary.consumption, f"{amount}/s")
+
+
+def _regime_notes(problem: Problem, primary: SteadySolution, outcome: Outcome) -> None:
+    for index, layer in enumerate(problem.layers):
+        phi = exact_steady.thiele_modulus(layer, problem)
+        if phi is not None and phi > THIELE_LARGE:
+            outcome.warnings.append(
+                f"layers[{index}] ({layer.name}): Thiele modulus {phi:.3g} > {THIELE_LARGE:g}: "
+                "reaction-limited, the solute is consumed within about thickness/phi of the fed "
+                "face and the interior sees little of it (common practice)"
+            )
+    for side in ("inner", "outer"):
+        biot = outcome.quantities.get(f"biot_{side}", {}).get("value")
+        if biot is None:
+            continue
+        if biot > BIOT_LARGE:
+            outcome.warnings.append(
+                f"biot_{side} = {biot:.3g} > {BIOT_LARGE:g}: the fluid film is a minor resistance; "
+                "the face is close to a fixed-concentration face (common practice)")
+        elif biot < BIOT_SMALL:
+            outcome.warnings.append(
+                f"biot_{side} = {biot:.3g} < {BIOT_SMALL:g}: the fluid film controls; internal "
+                "gradients are small and the result is sensitive to the film coefficient "
+                "(common practice)")
+    if primary.depletion_front is not None:
+        edges = problem.edges
+        outcome.warnings.append(
+            f"depleted zone: the concentration falls to zero at r = {primary.depletion_front:.4g} m "
+            f"(body {edges[0]:.4g}–{edges[-1]:.4g} m); consuming cells beyond the front receive "
+            "no solute")
+    _thin_wall_note(problem, primary, outcome)
+
+
+def _thin_wall_note(problem: Problem, primary: SteadySolution, outcome: Outcome) -> None:
+    """How far a slab (thin-wall) hand calculation would be from this curved shell."""
+    if problem.geometry == "slab" or problem.inner == 0.0:
+        return
+    slab = dataclasses.replace(problem, geometry="slab")
+    flat = exact_steady.solve_exact(slab) if problem.is_linear else None
+    if flat is None:
+        flat = fv_steady.solve_fv(slab)
+        if not flat.success:
+            return
+    n = problem.exponent
+    true_rate = problem.inner**n * primary.flux_inner
+    if true_rate == 0.0:
+        true_rate = -(problem.outer**n) * primary.flux_outer
+        slab_rate = -(problem.inner**n) * flat.flux_outer
+        face = "outer-face rate with the inner-face area"
+    else:
+        slab_rate = problem.inner**n * flat.flux_inner
+        face = "inner-face rate with the inner-face area"
+    if true_rate == 0.0:
+        return
+    error = (slab_rate - true_rate) / true_rate
+    if abs(error) >= THIN_WALL_NOTE:
+        thickness = problem.total_thickness
+        outcome.warnings.append(
+            f"thin-wall note: a slab (thin-wall) hand calculation of this {problem.geometry} shell "
+            f"(thickness/inner radius = {thickness / problem.inner:.3g}) would be "
+            f"{100 * error:+.2f} % off the {face}; use the curved-shell result "
+            "(thin-wall convention t <= r/10, common practice)")
+
+
+def _cross_check_fluxes(outcome: Outcome, problem: Problem, reference: SteadySolution,
+                        reference_values: dict[str, float], t_scale: float, label: str) -> None:
+    limit = None
+    for side in _faces(problem):
+        name = f"cross_check.flux_{side}"
+        limit = _limit(problem, name)
+        w = _weight(problem, side)
+        ref = _face_flux(reference, side)
+        num = reference_values[side]
+        value = abs(w * (num - ref)) / t_scale
+        outcome.check_at_most(
+            name, value, limit,
+            f"{label}: {num:.9g} vs {ref:.9g} {problem.amount_unit}/(m^2*s), difference "
+            "relative to the throughput scale")
+
+
+def _cross_check_profile(outcome: Outcome, problem: Problem, a: SteadySolution,
+                         b: SteadySolution, c_scale: float, label: str) -> None:
+    worst = 0.0
+    where = problem.inner
+    for i, r in _profile_positions(problem):
+        diff = np.abs(a.concentration_at(r, layer=i) - b.concentration_at(r, layer=i))
+        j = int(np.argmax(diff))
+        if diff[j] / c_scale > worst:
+            worst, where = float(diff[j] / c_scale), float(r[j])
+    outcome.check_at_most(
+        "cross_check.profile", worst, _limit(problem, "cross_check.profile"),
+        f"{label}: largest concentration difference at r = {where:.5g} m, relative to "
+        f"{c_scale:.4g} {problem.concentration_unit}")
+
+
+def _grid_checks(outcome: Outcome, problem: Problem, study: dict, t_scale: float) -> dict:
+    """GCI checks of the face fluxes; returns the values to cross-check (extrapolated where the
+    study is in its asymptotic range, else the fine-grid value)."""
+    values = {}
+    for side in _faces(problem):
+        quantity = f"flux_{side}"
+        result = study[quantity]
+        w = _weight(problem, side)
+        # GCI relative to the throughput scale, so a face carrying no net flux is not judged
+        # by the relative change of a number that is zero to round-off.
+        gci = result.gci_fine * abs(w * result.fine) / t_scale if result.gci_fine is not None \
+            else None
+        values[side] = result.best_estimate
+        if gci is None:
+            outcome.add_check(f"gci.{quantity}", None, _limit(problem, "gci"), False,
+                              f"grid study failed: {result.note}")
+            continue
+        outcome.check_at_most(
+            f"gci.{quantity}", gci, _limit(problem, "gci"),
+            f"three grids {result.cells}: observed order {result.order_text}, extrapolated "
+            f"{result.extrapolated:.9g}, GCI_fine relative to throughput (Celik et al. 2008)"
+            + (f"; {result.note}" if result.note else ""))
+    return values
+
+
+def run_steady(problem: Problem) -> Outcome:
+    """Solve a steady case by every applicable method and check the results."""
+    outcome = Outcome()
+    exact = exact_steady.solve_exact(problem)
+    study = convergence.run_grid_study(problem)
+    fine = study.fine_solution
+    if not fine.success:
+        outcome.add_check("numerical.converged", None, None, False,
+                          f"finite-volume solution did not converge: {fine.message}")
+    independent = None
+    if exact is None:
+        independent = bvp_steady.solve_bvp_reference(problem)
+    primary = exact if exact is not None else fine
+
+    outcome.methods.append(_method("primary", primary))
+    outcome.methods.append(_method("independent", fine) | {
+        "name": f"{fine.method} (three-grid study, Richardson extrapolation)"})
+    if independent is not None:
+        outcome.methods.append(_method("independent", independent))
+
+    solutions = [s for s in (primary, fine, independent) if s is not None]
+    c_scale = _concentration_scale(problem, *solutions)
+    t_scale = _throughput_scale(problem, primary, c_scale)
+
+    positions, values, layers = _sample(primary, problem)
+    outcome.series["profile"] = {
+        "position": positions, "concentration": values, "layer": layers,
+        "units": {"position": "m", "concentration": problem.concentration_unit},
+    }
+    if problem.probes:
+        probe_r = np.asarray(problem.probes, dtype=float)
+        outcome.series["probes"] = {
+            "position": probe_r.tolist(),
+            "concentration": np.asarray(primary.concentration_at(probe_r), dtype=float).tolist(),
+            "units": {"position": "m", "concentration": problem.concentration_unit},
+        }
+    _add_quantities(outcome, problem, primary, values)
+
+    numerical_values = _grid_checks(outcome, problem, study.results, t_scale)
+    if exact is not None:
+        _cross_check_fluxes(outcome, problem, exact, numerical_values, t_scale,
+                            "finite volumes (extrapolated) vs exact")
+        _cross_check_profile(outcome, problem, fine, exact, c_scale,
+                             "finite volumes (fine grid) vs exact")
+    elif independent is not None:
+        if not independent.success:
+            outcome.add_check("cross_check.independent", None, None, False,
+                              f"independent method did not converge: {independent.message}")
+        else:
+            _cross_check_fluxes(outcome, problem, independent, numerical_values, t_scale,
+                                "finite volumes (extrapolated) vs solve_bvp")
+            _cross_check_profile(outcome, problem, fine, independent, c_scale,
+                                 "finite volumes (fine grid) vs solve_bvp")
+    if exact is not None and exact.depletion_front is not None:
+        front = fine.depletion_front
+        value = (abs(front - exact.depletion_front) / problem.total_thickness
+                 if front is not None else float("inf"))
+        outcome.check_at_most(
+            "cross_check.depletion_front", value,
+            _limit(problem, "cross_check.depletion_front"),
+            f"finite-volume front {front} m vs exact {exact.depletion_front:.6g} m, relative to "
+            "the total thickness")
+
+    imbalance = [(s.method, _mass_imbalance(problem, s, t_scale)) for s in solutions
+                 if s.success]
+    name, value = _worst(imbalance)
+    outcome.check_at_most(
+        "mass_balance", value, _limit(problem, "mass_balance"),
+        f"(in - out - consumed)/throughput, worst of {len(imbalance)} methods: {name}")
+
+    residuals = []
+    for s in solutions:
+        if s.success:
+            residuals += [(f"{s.method}: {k}", v) for k, v in
+                          _boundary_residuals(problem, s, c_scale, t_scale)]
+    name, value = _worst(residuals)
+    outcome.check_at_most("boundary_residual", value, _limit(problem, "boundary_residual"),
+                          f"worst face condition: {name}")
+    if len(problem.layers) > 1:
+        residuals = []
+        for s in solutions:
+            if s.success:
+                residuals += [(f"{s.method}: {k}", v) for k, v in
+                              _interface_residuals(problem, s, c_scale, t_scale)]
+        name, value = _worst(residuals)
+        outcome.check_at_most("interface_residual", value,
+                              _limit(problem, "interface_residual"),
+                              f"worst interface condition: {name}")
+
+    lowest = min(float(np.min(fine.concentration_at(np.asarray(r), layer=i)))
+                 for i, r in _profile_positions(problem))
+    lowest = min(lowest, float(np.min(values)))
+    outcome.check_at_most(
+        "non_negativity", max(0.0, -lowest) / c_scale, _limit(problem, "non_negativity"),
+        f"lowest concentration {lowest:.4g} {problem.concentration_unit} (primary and fine grid)")
+
+    if any(ly.reaction.kind == "michaelis_menten" for ly in problem.layers):
+        _bracket_check(outcome, problem, fine, c_scale)
+
+    outcome.warnings.extend(study.warnings)
+    _regime_notes(problem, primary, outcome)
+    return outcome
+
+
+def _bracket_check(outcome: Outcome, problem: Problem, fine: SteadySolution,
+                   c_scale: float) -> None:
+    bracket = exact_steady.michaelis_menten_bracket(problem)
+    if bracket is None:
+        outcome.warnings.append(
+            "Michaelis-Menten comparison bracket not applicable to these boundaries "
+            "(no bound on the surface concentration)")
+        return
+    lower, upper = bracket
+    outcome.methods.append({"role": "bracket", "name": f"{lower.method} / {upper.method}",
+                            "reference": lower.reference})
+    worst, where = 0.0, problem.inner
+    for i, r in _profile_positions(problem):
+        c = fine.concentration_at(r, layer=i)
+        below = np.asarray(lower.concentration_at(r, layer=i)) - c
+        above = c - np.asarray(upper.concentration_at(r, layer=i))
+        violation = np.maximum(below, above) / c_scale
+        j = int(np.argmax(violation))
+        if violation[j] > worst:
+            worst, where = float(violation[j]), float(r[j])
+    outcome.check_at_most(
+        "bracket", worst, _limit(problem, "bracket"),
+        f"finite-volume solution inside the maximum-principle bracket (Aris 1975; Protter & "
+        f"Weinberger 1967); largest excursion at r = {where:.5g} m")
