@@ -1,0 +1,363 @@
+"""Exact steady solutions of layered diffusion-reaction problems by basis superposition.
+
+Each layer obeys ``(1/r^n) d/dr(r^n D dC/dr) = R(C)``; for no reaction, first order
+(``R = k C``) and zero order without a depleted zone (``R = Q``) its solution is a combination of
+two closed-form basis functions plus a particular solution (see ``basis_functions``). Writing every
+layer as ``C = K (c1 g1 + c2 g2) + P`` with dimensionless ``g1``, ``g2`` that stay of order one,
+the unknowns are the coefficients (c1, c2) of each layer (concentration units, in the layer's
+``C/K`` scale) and ONE linear system holds: a boundary row at each face, and at each interface
+one row for continuity of ``C/K`` and one for continuity of the flux. The rows are equilibrated (each divided by its largest
+coefficient) before ``numpy.linalg.solve``; the condition number and the relative residual are
+recorded in ``diagnostics``.
+
+Zero-order layers are first solved as if they never ran out; if the concentration falls below
+zero anywhere in one of them a depleted zone exists and the problem is handed to
+``depletion_exact`` (single-layer bodies only; otherwise no closed form is offered here and
+``solve_exact`` returns None). Michaelis-Menten layers have no closed form: ``solve_exact``
+returns None (see ``mm_bracket`` for comparison bounds).
+
+The consumption ``∫ R(C) r^n dr`` is integrated from the closed-form concentration (graded
+Gauss-Legendre for first-order layers, exactly for zero order), NOT from the face fluxes, so that
+the mass balance ``r_in^n J_in - r_out^n J_out = consumption`` remains an independent check.
+
+References
+----------
+J. Crank, *The Mathematics of Diffusion*, 2nd ed., Oxford, 1975, ch. 4-6, 12, 14.
+R.B. Bird, W.E. Stewart, E.N. Lightfoot, *Transport Phenomena*, 2nd ed., Wiley, 2002, §10.6, §18.
+H.S. Carslaw, J.C. Jaeger, *Conduction of Heat in Solids*, 2nd ed., Oxford, 1959.
+
+Results support, and do not replace, design verification testing and qualified review.
+"""
+
+from __future__ import annotations
+
+import math
+
+import numpy as np
+
+from worker.engine.basis_functions import LayerBasis
+from worker.engine.graded_quadrature import graded_gauss_rule
+from worker.engine.layered_profile import LayeredProfile
+from worker.engine.model import BOUNDARY_KINDS, GEOMETRY_EXPONENT, REACTION_KINDS, Problem, \
+    SteadySolution
+from worker.engine.reaction_measures import (  # noqa: F401  (re-exported helpers)
+    effectiveness_factor,
+    thiele_modulus,
+)
+
+METHOD = "exact-basis-superposition"
+REFERENCE = (
+    "J. Crank, The Mathematics of Diffusion, 2nd ed., Oxford, 1975, ch. 4-6, 12, 14; "
+    "R.B. Bird, W.E. Stewart, E.N. Lightfoot, Transport Phenomena, 2nd ed., Wiley, 2002, "
+    "§10.6, §18; H.S. Carslaw, J.C. Jaeger, Conduction of Heat in Solids, 2nd ed., Oxford, 1959"
+)
+# Relative residual of the equilibrated system above which the solution is reported as failed.
+RESIDUAL_LIMIT = 1e-10
+
+
+def _require(condition: bool, path: str, expected: str, got) -> None:
+    if not condition:
+        raise ValueError(f"{path}: expected {expected}, got {got!r}")
+
+
+def _positive(value) -> bool:
+    return isinstance(value, (int, float)) and math.isfinite(value) and value > 0.0
+
+
+def _non_negative(value) -> bool:
+    return isinstance(value, (int, float)) and math.isfinite(value) and value >= 0.0
+
+
+def validate_problem(problem: Problem) -> None:
+    """Raise ``ValueError`` naming the first field that a steady closed form cannot accept."""
+    _require(problem.geometry in GEOMETRY_EXPONENT, "geometry", "slab, cylinder or sphere",
+             problem.geometry)
+    _require(math.isfinite(problem.inner), "inner", "a finite position in m", problem.inner)
+    if problem.geometry != "slab":
+        _require(problem.inner >= 0.0, "inner", "a radius >= 0 m", problem.inner)
+    _require(len(problem.layers) > 0, "layers", "at least one layer", problem.layers)
+    for i, layer in enumerate(problem.layers):
+        path = f"layers[{i}]"
+        _require(_positive(layer.thickness), f"{path}.thickness", "a positive length in m",
+                 layer.thickness)
+        _require(_positive(layer.diffusivity), f"{path}.diffusivity", "a positive value in m^2/s",
+                 layer.diffusivity)
+        _require(_positive(layer.partition), f"{path}.partition", "a positive number",
+                 layer.partition)
+        reaction = layer.reaction
+        _require(reaction.kind in REACTION_KINDS, f"{path}.reaction.kind",
+                 " | ".join(REACTION_KINDS), reaction.kind)
+        for name in ("rate", "rate_constant", "vmax", "km"):
+            _require(_non_negative(getattr(reaction, name)), f"{path}.reaction.{name}",
+                     "a finite value >= 0", getattr(reaction, name))
+        if reaction.kind == "michaelis_menten":
+            _require(_positive(reaction.km), f"{path}.reaction.km", "a positive value",
+                     reaction.km)
+    for side in ("inner", "outer"):
+        boundary = getattr(problem, f"{side}_boundary")
+        path = f"{side}_boundary"
+        _require(boundary.kind in BOUNDARY_KINDS, f"{path}.kind", " | ".join(BOUNDARY_KINDS),
+                 boundary.kind)
+        for name in ("value", "bulk"):
+            _require(math.isfinite(getattr(boundary, name)), f"{path}.{name}", "a finite number",
+                     getattr(boundary, name))
+        _require(_non_negative(boundary.coefficient), f"{path}.coefficient",
+                 "a finite value >= 0 in m/s", boundary.coefficient)
+        if boundary.partition is not None:
+            _require(_positive(boundary.partition), f"{path}.partition", "a positive number",
+                     boundary.partition)
+    if problem.solid_centre:
+        _require(problem.inner_boundary.kind == "symmetry", "inner_boundary.kind",
+                 "symmetry at the centre of a solid cylinder or sphere",
+                 problem.inner_boundary.kind)
+
+
+def layer_bases(problem: Problem) -> list[LayerBasis]:
+    """Closed-form basis of every layer (zero order taken as never depleted)."""
+    edges = problem.edges
+    bases = []
+    for i, layer in enumerate(problem.layers):
+        reaction = layer.reaction
+        bases.append(LayerBasis(
+            exponent=problem.exponent,
+            inner_edge=float(edges[i]),
+            outer_edge=float(edges[i + 1]),
+            diffusivity=layer.diffusivity,
+            rate_constant=reaction.rate_constant if reaction.kind == "first_order" else 0.0,
+            zero_order_rate=reaction.rate if reaction.kind == "zero_order" else 0.0,
+            solid=(i == 0 and problem.solid_centre),
+        ))
+    return bases
+
+
+def _is_well_posed(problem: Problem) -> bool:
+    """A steady level is fixed by a concentration face, a live film, or first-order uptake."""
+    for boundary in (problem.inner_boundary, problem.outer_boundary):
+        if boundary.kind == "concentration":
+            return True
+        if boundary.kind == "mass_transfer" and boundary.coefficient > 0.0:
+            return True
+    return any(ly.reaction.kind == "first_order" and ly.reaction.rate_constant > 0.0
+               for ly in problem.layers)
+
+
+class _EdgeForms:
+    """C/K and J at both edges of one layer as linear forms in the layer's unknowns.
+
+    With unknown columns (col1, col2) and C = K (c1 g1 + c2 g2) + P, each form is
+    ``(coefficients by column, constant)``; ``u`` is C/K, ``flux`` is J = -D dC/dr.
+    """
+
+    def __init__(self, basis: LayerBasis, partition: float, columns: tuple[int | None, int]):
+        g1, g2, part, dg1, dg2, dpart = basis.evaluate(
+            np.array([basis.inner_edge, basis.outer_edge]))
+        d = basis.diffusivity
+        self.u, self.flux = [], []
+        for e in (0, 1):
+            u_terms = {columns[1]: float(g2[e])}
+            flux_terms = {columns[1]: -d * partition * float(dg2[e])}
+            if columns[0] is not None:
+                u_terms[columns[0]] = float(g1[e])
+                flux_terms[columns[0]] = -d * partition * float(dg1[e])
+            self.u.append((u_terms, float(part[e]) / partition))
+            self.flux.append((flux_terms, -d * float(dpart[e])))
+
+
+def _combine(*forms: tuple[dict[int, float], float], signs: tuple[float, ...]):
+    coefficients: dict[int, float] = {}
+    constant = 0.0
+    for (terms, value), sign in zip(forms, signs, strict=True):
+        for col, c in terms.items():
+            coefficients[col] = coefficients.get(col, 0.0) + sign * c
+        constant += sign * value
+    return coefficients, constant
+
+
+def _face_row(problem: Problem, side: str, forms: _EdgeForms, partition: float):
+    """Row (coefficients by column, right-hand side) of one face condition."""
+    boundary = problem.inner_boundary if side == "inner" else problem.outer_boundary
+    face_partition = problem.face_partition(side)
+    e = 0 if side == "inner" else 1
+    u_form, flux_form = forms.u[e], forms.flux[e]
+    if boundary.kind == "concentration":
+        # K u = K_face * C_fluid
+        terms, constant = _combine(u_form, signs=(partition,))
+        return terms, face_partition * boundary.value - constant
+    # Flux into the body: +J at the inner face, -J at the outer face.
+    inward = 1.0 if side == "inner" else -1.0
+    if boundary.kind in ("flux", "symmetry"):
+        terms, constant = _combine(flux_form, signs=(inward,))
+        value = boundary.value if boundary.kind == "flux" else 0.0
+        return terms, value - constant
+    # mass_transfer: inflow + (h/K_face) K u = h * bulk
+    h = boundary.coefficient
+    terms, constant = _combine(flux_form, u_form, signs=(inward, h * partition / face_partition))
+    return terms, h * boundary.bulk - constant
+
+
+def _assemble(problem: Problem, bases: list[LayerBasis]):
+    """Equilibrated matrix, right-hand side and the unknown columns of each layer."""
+    columns: list[tuple[int | None, int]] = []
+    count = 0
+    for basis in bases:
+        if basis.solid:
+            columns.append((None, count))
+            count += 1
+        else:
+            columns.append((count, count + 1))
+            count += 2
+    partitions = [ly.partition for ly in problem.layers]
+    forms = [_EdgeForms(b, k, c) for b, k, c in zip(bases, partitions, columns, strict=True)]
+    rows: list[tuple[dict[int, float], float]] = []
+    if not bases[0].solid:
+        rows.append(_face_row(problem, "inner", forms[0], partitions[0]))
+    for left, right in zip(forms[:-1], forms[1:], strict=True):
+        for name in ("u", "flux"):
+            terms, constant = _combine(getattr(left, name)[1], getattr(right, name)[0],
+                                       signs=(1.0, -1.0))
+            rows.append((terms, -constant))
+    rows.append(_face_row(problem, "outer", forms[-1], partitions[-1]))
+    matrix = np.zeros((count, count))
+    rhs = np.zeros(count)
+    for j, (coefficients, value) in enumerate(rows):
+        scale = max(abs(c) for c in coefficients.values())
+        for col, c in coefficients.items():
+            matrix[j, col] = c / scale
+        rhs[j] = value / scale
+    return matrix, rhs, columns, forms
+
+
+def _apply(form: tuple[dict[int, float], float], unknowns: np.ndarray) -> float:
+    terms, constant = form
+    return float(sum(c * unknowns[col] for col, c in terms.items()) + constant)
+
+
+def _layer_piece(basis: LayerBasis, partition: float, c1: float, c2: float):
+    def piece(r: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+        g1, g2, part, dg1, dg2, dpart = basis.evaluate(r)
+        value = partition * (c1 * g1 + c2 * g2) + part
+        gradient = partition * (c1 * dg1 + c2 * dg2) + dpart
+        return value, gradient
+    return piece
+
+
+def _layer_consumption(problem: Problem, index: int, basis: LayerBasis, piece) -> float:
+    """∫ R(C) r^n dr over one layer from the closed-form C (never from the fluxes)."""
+    reaction = problem.layers[index].reaction
+    a, b, n = basis.inner_edge, basis.outer_edge, basis.exponent
+    if reaction.kind == "zero_order":
+        return reaction.rate * (b ** (n + 1) - a ** (n + 1)) / (n + 1)
+    if reaction.kind == "first_order" and reaction.rate_constant > 0.0:
+        m = basis.decay_constant
+        nodes, weights = graded_gauss_rule(a, b, 1.0 / m)
+        values, _ = piece(nodes)
+        return float(reaction.rate_constant * np.sum(weights * values * nodes**n))
+    return 0.0
+
+
+def _failed(message: str, diagnostics: dict | None = None) -> SteadySolution:
+    def nan_field(r, layer=None):
+        return np.full(np.shape(r), np.nan)
+    return SteadySolution(method=METHOD, reference=REFERENCE, success=False, message=message,
+                          concentration_at=nan_field, flux_at=nan_field, flux_inner=math.nan,
+                          flux_outer=math.nan, consumption=math.nan,
+                          diagnostics=diagnostics or {})
+
+
+def solve_linear(problem: Problem) -> tuple[SteadySolution, list[float]]:
+    """Solve with every zero-order layer taken as never depleted.
+
+    Returns the solution and, per layer, the minimum concentration of each zero-order layer
+    (``inf`` for the others), which tells whether that assumption holds.
+    """
+    bases = layer_bases(problem)
+    matrix, rhs, columns, forms = _assemble(problem, bases)
+    try:
+        unknowns = np.linalg.solve(matrix, rhs)
+    except np.linalg.LinAlgError as error:
+        return _failed(f"the closed-form system is singular: {error}"), []
+    residual = float(np.max(np.abs(matrix @ unknowns - rhs))
+                     / (np.max(np.abs(matrix)) * np.max(np.abs(unknowns)) + np.max(np.abs(rhs))
+                        + np.finfo(float).tiny))
+    diagnostics = {"condition_number": float(np.linalg.cond(matrix)),
+                   "relative_residual": residual, "unknowns": int(unknowns.size)}
+    pieces, consumption, minima = [], 0.0, []
+    for i, (basis, (col_a, col_b)) in enumerate(zip(bases, columns, strict=True)):
+        c1 = 0.0 if col_a is None else float(unknowns[col_a])
+        piece = _layer_piece(basis, problem.layers[i].partition, c1, float(unknowns[col_b]))
+        pieces.append(piece)
+        consumption += _layer_consumption(problem, i, basis, piece)
+        minima.append(_zero_order_minimum(problem, i, basis, piece))
+    profile = LayeredProfile(problem.edges, [ly.diffusivity for ly in problem.layers], pieces)
+    success = residual <= RESIDUAL_LIMIT and math.isfinite(consumption)
+    message = ("closed form by basis superposition" if success else
+               f"relative residual {residual:.3g} exceeds {RESIDUAL_LIMIT:g}")
+    solution = SteadySolution(
+        method=METHOD, reference=REFERENCE, success=success, message=message,
+        concentration_at=profile.concentration_at, flux_at=profile.flux_at,
+        flux_inner=_apply(forms[0].flux[0], unknowns),
+        flux_outer=_apply(forms[-1].flux[1], unknowns),
+        consumption=float(consumption), diagnostics=diagnostics)
+    return solution, minima
+
+
+def _zero_order_minimum(problem: Problem, index: int, basis: LayerBasis, piece) -> float:
+    """Smallest C in a zero-order layer: at an edge or where the flux vanishes inside it.
+
+    In a layer of constant consumption Q, r^n J(r) = a^n J(a) + Q (r^(n+1) - a^(n+1))/(n+1),
+    so J = 0 at most once, at r0^(n+1) = a^(n+1) - (n+1) a^n J(a)/Q; C is smallest there.
+    """
+    reaction = problem.layers[index].reaction
+    if reaction.kind != "zero_order" or reaction.rate == 0.0:
+        return math.inf
+    a, b, n = basis.inner_edge, basis.outer_edge, basis.exponent
+    values, gradients = piece(np.array([a, b]))
+    candidates = [float(values[0]), float(values[1])]
+    flux_a = -basis.diffusivity * float(gradients[0])
+    stationary = a ** (n + 1) - (n + 1) * a**n * flux_a / reaction.rate
+    if stationary > 0.0:
+        r0 = stationary ** (1.0 / (n + 1))
+        if a < r0 < b:
+            candidates.append(float(piece(np.array([r0]))[0][0]))
+    return min(candidates)
+
+
+def solve_exact(problem: Problem) -> SteadySolution | None:
+    """Closed-form steady solution of a layered problem, or None where none is offered.
+
+    Parameters
+    ----------
+    problem : Problem
+        The normalised case (SI units).
+
+    Returns
+    -------
+    SteadySolution or None
+        None for Michaelis-Menten layers and for zero-order depletion outside the
+        configurations of ``depletion_exact`` (a multi-layer body, for instance). A problem whose
+        level is not fixed (only flux or symmetry faces and no first-order uptake) is returned
+        with ``success = False``.
+
+    Raises
+    ------
+    ValueError
+        When a field is out of range; the message names the field.
+
+    Notes
+    -----
+    Covered: slab, cylinder, sphere (hollow or solid), any number of layers, each with no
+    reaction, first order, or zero order that does not run out; concentration, flux,
+    mass-transfer or symmetry conditions at either face; partition jumps at interfaces and faces.
+    Basis functions: Crank 1975 ch. 4-6, 12, 14; Bird, Stewart & Lightfoot 2002 §10.6, §18;
+    Carslaw & Jaeger 1959.
+    """
+    validate_problem(problem)
+    if any(ly.reaction.kind == "michaelis_menten" for ly in problem.layers):
+        return None
+    if not _is_well_posed(problem):
+        return _failed("the steady level is undetermined: no concentration face, no "
+                       "mass-transfer film and no first-order uptake")
+    solution, minima = solve_linear(problem)
+    if not solution.success or min(minima, default=math.inf) >= 0.0:
+        return solution
+    return None  # depleted zero-order zone: no closed form offered yet

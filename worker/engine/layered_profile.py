@@ -1,0 +1,75 @@
+"""A concentration profile made of one closed-form piece per layer.
+
+Evaluates ``C`` and the outward flux ``J = -D dC/dr`` (positive towards increasing r) at arrays
+of positions, placing each position in its layer; a position exactly on an interface takes the
+inner layer's value unless a layer index is given (see ``SteadySolution`` in ``model.py``).
+"""
+
+from __future__ import annotations
+
+from collections.abc import Callable, Sequence
+
+import numpy as np
+
+# Positions this far outside a layer (relative to the body size) are still accepted as its edge.
+EDGE_TOLERANCE = 1e-12
+
+PieceFunction = Callable[[np.ndarray], tuple[np.ndarray, np.ndarray]]
+
+
+class LayeredProfile:
+    """Piecewise closed-form profile.
+
+    Parameters
+    ----------
+    edges : sequence of float
+        Inner face, interfaces and outer face, m (length = number of layers + 1).
+    diffusivities : sequence of float
+        D of each layer, m^2/s.
+    pieces : sequence of callables
+        ``pieces[i](r) -> (C, dC/dr)`` for r inside layer i (C in amount/m^3, dC/dr per m).
+    """
+
+    def __init__(self, edges: Sequence[float], diffusivities: Sequence[float],
+                 pieces: Sequence[PieceFunction]):
+        self.edges = np.asarray(edges, dtype=float)
+        self.diffusivities = np.asarray(diffusivities, dtype=float)
+        self.pieces = list(pieces)
+        self._slack = EDGE_TOLERANCE * max(abs(self.edges[-1]), self.edges[-1] - self.edges[0])
+
+    def _layer_of(self, r: np.ndarray, layer: int | None) -> np.ndarray:
+        low, high = self.edges[0] - self._slack, self.edges[-1] + self._slack
+        if np.any(~np.isfinite(r)) or np.any(r < low) or np.any(r > high):
+            raise ValueError(
+                f"r: expected positions within the body [{self.edges[0]!r}, {self.edges[-1]!r}] m,"
+                f" got values from {np.min(r)!r} to {np.max(r)!r}")
+        if layer is None:
+            index = np.searchsorted(self.edges, r, side="left") - 1
+            return np.clip(index, 0, len(self.pieces) - 1)
+        if not 0 <= layer < len(self.pieces):
+            raise ValueError(f"layer: expected an index 0..{len(self.pieces) - 1}, got {layer!r}")
+        a, b = self.edges[layer] - self._slack, self.edges[layer + 1] + self._slack
+        if np.any(r < a) or np.any(r > b):
+            raise ValueError(f"r: expected positions within layer {layer} "
+                             f"[{self.edges[layer]!r}, {self.edges[layer + 1]!r}] m")
+        return np.full(r.shape, layer, dtype=int)
+
+    def _evaluate(self, r, layer: int | None, want_flux: bool) -> np.ndarray:
+        r = np.asarray(r, dtype=float)
+        flat = np.atleast_1d(r).ravel()
+        index = self._layer_of(flat, layer)
+        out = np.empty_like(flat)
+        for i in np.unique(index):
+            mask = index == i
+            position = np.clip(flat[mask], self.edges[i], self.edges[i + 1])
+            value, gradient = self.pieces[i](position)
+            out[mask] = -self.diffusivities[i] * gradient if want_flux else value
+        return out.reshape(r.shape)
+
+    def concentration_at(self, r, layer: int | None = None) -> np.ndarray:
+        """Material-side concentration at positions ``r`` (m), amount/m^3."""
+        return self._evaluate(r, layer, want_flux=False)
+
+    def flux_at(self, r, layer: int | None = None) -> np.ndarray:
+        """Outward flux density ``-D dC/dr`` at positions ``r`` (m), amount/(m^2*s)."""
+        return self._evaluate(r, layer, want_flux=True)

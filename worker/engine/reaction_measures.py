@@ -1,0 +1,124 @@
+"""Thiele modulus and the classical effectiveness factors.
+
+Thiele modulus (DESIGN.md): ``phi = thickness * sqrt(k / D)`` with k the first-order constant or
+``vmax / km``; for the innermost layer of a solid cylinder or sphere the thickness is its outer
+radius. Effectiveness factors of a single first-order body with a fixed surface concentration
+(E.W. Thiele, "Relation between catalytic activity and size of particle", Ind. Eng. Chem. 31
+(1939) 916-920; R. Aris, *The Mathematical Theory of Diffusion and Reaction in Permeable
+Catalysts*, Oxford, 1975): slab of half-thickness L sealed at the mid-plane ``tanh(phi)/phi``;
+solid cylinder ``2 I1(phi) / (phi I0(phi))``; sphere ``(3/phi^2) (phi coth(phi) - 1)``.
+"""
+
+from __future__ import annotations
+
+import math
+
+import numpy as np
+from scipy import special
+
+from worker.engine.model import Layer, Problem
+
+# Below this phi the sphere factor uses its Taylor series (phi coth phi - 1 cancels).
+_SPHERE_SERIES_LIMIT = 0.1
+
+
+def largest_surface_concentration(problem: Problem, layer_index: int) -> float | None:
+    """Largest concentration the faces can impose, expressed in layer ``layer_index``.
+
+    Each concentration or mass-transfer face imposes at most ``K_face * C_fluid`` on the layer at
+    that face (``K_face * bulk`` through a film); since ``C/K`` is continuous between layers, the
+    bound in layer i is ``K_i`` times the largest of ``K_face * C_fluid / K_face_layer``.
+    None when no face imposes a concentration.
+    """
+    candidates = []
+    faces = ((problem.inner_boundary, "inner", problem.layers[0]),
+             (problem.outer_boundary, "outer", problem.layers[-1]))
+    for boundary, side, face_layer in faces:
+        if boundary.kind == "concentration":
+            fluid = boundary.value
+        elif boundary.kind == "mass_transfer" and boundary.coefficient > 0.0:
+            fluid = boundary.bulk
+        else:
+            continue
+        candidates.append(problem.face_partition(side) * fluid / face_layer.partition)
+    if not candidates:
+        return None
+    return problem.layers[layer_index].partition * max(candidates)
+
+
+def thiele_modulus(layer: Layer, problem: Problem) -> float | None:
+    """Thiele modulus of one layer (dimensionless), None where it does not react.
+
+    Parameters
+    ----------
+    layer : Layer
+        One of ``problem.layers``.
+    problem : Problem
+        The case it belongs to (for the largest surface concentration of a zero-order layer).
+
+    Returns
+    -------
+    float or None
+        ``thickness * sqrt(k/D)``, k = rate_constant (first order) or vmax/km
+        (Michaelis-Menten). For a zero-order layer ``thickness * sqrt(Q / (D * Cs))`` with Cs
+        from ``largest_surface_concentration`` (None when no face imposes a positive one); its
+        square is the ratio of consumption to diffusive supply, and depletion sets in at
+        phi^2 = 2, 4, 6 for a sealed slab, solid cylinder, solid sphere (A.V. Hill, Proc. R. Soc.
+        B 104 (1928) 39). The thickness of the innermost layer of a solid body is its radius,
+        which is its thickness since ``inner = 0``.
+    """
+    index = problem.layers.index(layer)
+    reaction = layer.reaction
+    if reaction.kind == "first_order":
+        k = reaction.rate_constant
+    elif reaction.kind == "michaelis_menten":
+        k = reaction.vmax / reaction.km
+    elif reaction.kind == "zero_order":
+        surface = largest_surface_concentration(problem, index)
+        if surface is None or surface <= 0.0:
+            return None
+        k = reaction.rate / surface
+    else:
+        return None
+    return float(layer.thickness * math.sqrt(k / layer.diffusivity))
+
+
+def _sphere_series(phi: np.ndarray) -> np.ndarray:
+    """(3/phi^2)(phi coth phi - 1) from phi coth phi = sum B_2k (2 phi)^2k / (2k)!."""
+    total = np.zeros_like(phi)
+    bernoulli = special.bernoulli(14)
+    for k in range(1, 8):
+        total += bernoulli[2 * k] * 2.0 ** (2 * k) / special.factorial(2 * k) * phi ** (2 * k - 2)
+    return 3.0 * total
+
+
+def effectiveness_factor(geometry: str, phi) -> np.ndarray:
+    """Effectiveness factor of a first-order slab, solid cylinder or sphere.
+
+    Parameters
+    ----------
+    geometry : {"slab", "cylinder", "sphere"}
+        Slab: half-thickness L sealed at the mid-plane (or one face sealed); cylinder and sphere:
+        solid, radius R. The surface concentration is fixed.
+    phi : float or array
+        Thiele modulus ``L sqrt(k/D)`` or ``R sqrt(k/D)``, >= 0.
+
+    Returns
+    -------
+    ndarray
+        Actual consumption over the consumption at the surface concentration throughout.
+        Thiele 1939; Aris 1975. Scaled Bessel functions keep large phi finite.
+    """
+    phi = np.asarray(phi, dtype=float)
+    if np.any(~np.isfinite(phi)) or np.any(phi < 0.0):
+        raise ValueError(f"phi: expected finite values >= 0, got {phi!r}")
+    safe = np.where(phi > 0.0, phi, 1.0)
+    if geometry == "slab":
+        return np.where(phi > 0.0, np.tanh(safe) / safe, 1.0)
+    if geometry == "cylinder":
+        return np.where(phi > 0.0, 2.0 * special.i1e(safe) / (safe * special.i0e(safe)), 1.0)
+    if geometry == "sphere":
+        direct = 3.0 / safe**2 * (safe / np.tanh(safe) - 1.0)
+        small = np.minimum(phi, _SPHERE_SERIES_LIMIT)
+        return np.where(phi < _SPHERE_SERIES_LIMIT, _sphere_series(small), direct)
+    raise ValueError(f"geometry: expected slab, cylinder or sphere, got {geometry!r}")
