@@ -1,0 +1,253 @@
+"""Marshmallow schemas of the API's own request and response bodies.
+
+The case and the result document are the project's schemas (``schemas/``); these describe what
+the service wraps around them. They validate incoming bodies (unknown fields are refused) and
+feed the OpenAPI document.
+"""
+
+from __future__ import annotations
+
+from typing import Any
+
+from marshmallow import RAISE, Schema, ValidationError, fields, validate, validates_schema
+
+from service.errors import ValidationFailed
+from service.store.models import DECISIONS, RUN_STATES
+
+COMMENT_MAX = 4000
+TAG_MAX = 200
+
+
+class StrictSchema(Schema):
+    class Meta:
+        unknown = RAISE
+
+
+class RunRequestSchema(StrictSchema):
+    """Queue a run: exactly one of ``case_id`` (a stored case) or ``case`` (a new case)."""
+
+    case_id = fields.String(validate=validate.Length(min=1, max=36),
+                            metadata={"description": "id of a stored case"})
+    case = fields.Dict(metadata={"description": "a case document (schema_version 1)"})
+
+    @validates_schema
+    def _exactly_one(self, data: dict[str, Any], **_kwargs: Any) -> None:
+        if ("case_id" in data) == ("case" in data):
+            raise ValidationError("expected exactly one of 'case_id' or 'case'", "_schema")
+
+
+class SignoffRequestSchema(StrictSchema):
+    decision = fields.String(required=True, validate=validate.OneOf(DECISIONS))
+    comment = fields.String(required=True, validate=validate.Length(min=1, max=COMMENT_MAX),
+                            metadata={"description": "the reviewer's reasons"})
+
+
+class BatchRequestSchema(StrictSchema):
+    """Re-verify stored cases: ``{"tag": ...}`` or ``{"all": true}``."""
+
+    tag = fields.String(validate=validate.Length(min=1, max=TAG_MAX))
+    all = fields.Boolean()
+
+    @validates_schema
+    def _exactly_one(self, data: dict[str, Any], **_kwargs: Any) -> None:
+        has_tag = "tag" in data
+        has_all = data.get("all") is True
+        if "all" in data and data["all"] is not True:
+            raise ValidationError("only true is meaningful; omit it or send a tag", "all")
+        if has_tag == has_all:
+            raise ValidationError("expected {\"tag\": <tag>} or {\"all\": true}", "_schema")
+
+
+class PageQuerySchema(StrictSchema):
+    limit = fields.Integer(load_default=50, validate=validate.Range(min=1, max=500))
+    offset = fields.Integer(load_default=0, validate=validate.Range(min=0))
+
+
+class CaseListQuerySchema(PageQuerySchema):
+    tag = fields.String(validate=validate.Length(min=1, max=TAG_MAX))
+
+
+class AuditQuerySchema(PageQuerySchema):
+    kind = fields.String(validate=validate.Length(min=1, max=40))
+    subject = fields.String(validate=validate.Length(min=1, max=200))
+
+
+# --- responses (documentation) -------------------------------------------------------------
+
+class ErrorItemSchema(Schema):
+    path = fields.String(required=True, metadata={"description": "dotted path of the field"})
+    message = fields.String(required=True)
+
+
+class ProblemSchema(Schema):
+    """RFC 9457 problem details with an ``errors`` list."""
+
+    type = fields.String(required=True)
+    title = fields.String(required=True)
+    status = fields.Integer(required=True)
+    detail = fields.String(required=True)
+    instance = fields.String(required=True)
+    errors = fields.List(fields.Nested(ErrorItemSchema), required=True)
+
+
+class ComponentStateSchema(Schema):
+    state = fields.String(required=True)
+    mode = fields.String()
+    detail = fields.String()
+    pending = fields.Integer()
+
+
+class HealthSchema(Schema):
+    service = fields.String(required=True)
+    version = fields.String(required=True)
+    store = fields.Nested(ComponentStateSchema, required=True)
+    broker = fields.Nested(ComponentStateSchema, required=True)
+
+
+class CaseCreatedSchema(Schema):
+    case_id = fields.String(required=True)
+    sha256 = fields.String(required=True)
+
+
+class CaseSummarySchema(Schema):
+    case_id = fields.String(required=True)
+    sha256 = fields.String(required=True)
+    title = fields.String(required=True)
+    tags = fields.List(fields.String(), required=True)
+    created_at = fields.String(required=True)
+    created_by = fields.String(required=True)
+
+
+class StoredCaseSchema(CaseSummarySchema):
+    document = fields.Dict(required=True, metadata={"description": "the case as sent"})
+
+
+class CasePageSchema(Schema):
+    items = fields.List(fields.Nested(CaseSummarySchema), required=True)
+    total = fields.Integer(required=True)
+    limit = fields.Integer(required=True)
+    offset = fields.Integer(required=True)
+
+
+class SignoffSchema(Schema):
+    reviewer = fields.String(required=True)
+    decision = fields.String(required=True, validate=validate.OneOf(DECISIONS))
+    comment = fields.String(required=True)
+    at = fields.String(required=True)
+
+
+class RunSummarySchema(Schema):
+    run_id = fields.String(required=True)
+    case_id = fields.String(required=True)
+    status = fields.String(required=True, validate=validate.OneOf(RUN_STATES))
+    verdict = fields.String(allow_none=True)
+    error = fields.String(allow_none=True)
+    submitted_by = fields.String(required=True)
+    batch_id = fields.String(allow_none=True)
+    attempts = fields.Integer(required=True)
+    created_at = fields.String(required=True)
+    started_at = fields.String(allow_none=True)
+    finished_at = fields.String(allow_none=True)
+    signoffs = fields.List(fields.Nested(SignoffSchema), required=True)
+
+
+class CaseRunsSchema(Schema):
+    case_id = fields.String(required=True)
+    items = fields.List(fields.Nested(RunSummarySchema), required=True)
+
+
+class RunAcceptedSchema(Schema):
+    run_id = fields.String(required=True)
+    status = fields.String(required=True)
+    case_id = fields.String(required=True)
+
+
+class SignoffCreatedSchema(SignoffSchema):
+    run_id = fields.String(required=True)
+    record = fields.Dict(required=True)
+
+
+class BatchAcceptedSchema(Schema):
+    batch_id = fields.String(required=True)
+    status = fields.String(required=True)
+    runs = fields.Integer(required=True)
+
+
+class DriftQuantitySchema(Schema):
+    name = fields.String(required=True)
+    baseline = fields.Float(allow_none=True)
+    now = fields.Float(allow_none=True)
+    relative_change = fields.Float(allow_none=True)
+
+
+class DriftSchema(Schema):
+    case_id = fields.String(required=True)
+    run_id = fields.String(required=True)
+    baseline_run_id = fields.String(required=True)
+    quantities = fields.List(fields.Nested(DriftQuantitySchema), required=True)
+    baseline_versions = fields.Dict()
+    now_versions = fields.Dict()
+
+
+class BatchSchema(Schema):
+    batch_id = fields.String(required=True)
+    status = fields.String(required=True, validate=validate.OneOf(("queued", "running",
+                                                                   "finished")))
+    selector = fields.Dict(required=True)
+    created_by = fields.String(required=True)
+    created_at = fields.String(required=True)
+    finished_at = fields.String(allow_none=True)
+    counts = fields.Dict(keys=fields.String(), values=fields.Integer(), required=True)
+    run_ids = fields.List(fields.String(), required=True)
+    drifted = fields.List(fields.Nested(DriftSchema), required=True)
+
+
+class AuditEventSchema(Schema):
+    seq = fields.Integer(required=True)
+    at = fields.String(required=True)
+    actor = fields.String(required=True)
+    kind = fields.String(required=True)
+    subject = fields.String(required=True)
+    payload = fields.Dict(required=True)
+    prev_hash = fields.String(required=True)
+    hash = fields.String(required=True)
+
+
+class AuditPageSchema(Schema):
+    items = fields.List(fields.Nested(AuditEventSchema), required=True)
+    total = fields.Integer(required=True)
+    limit = fields.Integer(required=True)
+    offset = fields.Integer(required=True)
+
+
+class BrokenEventSchema(Schema):
+    seq = fields.Integer(required=True)
+    reason = fields.String(required=True)
+
+
+class AuditVerifySchema(Schema):
+    ok = fields.Boolean(required=True)
+    events = fields.Integer(required=True)
+    head_seq = fields.Integer(required=True)
+    first_broken = fields.Nested(BrokenEventSchema, allow_none=True, required=True)
+
+
+def flatten_errors(messages: Any) -> list[dict[str, str]]:
+    """Turn marshmallow's nested messages into ``[{path, message}]`` (the case schema's paths)."""
+    from schemas.errors import flatten_messages
+
+    found = []
+    for path, message in flatten_messages(messages):
+        if message == "Unknown field.":
+            message = "unknown field: not part of this request body"
+        found.append({"path": path, "message": message})
+    return found
+
+
+def load_or_422(schema: Schema, data: Any, what: str) -> dict[str, Any]:
+    """Validate ``data`` with ``schema``; 422 naming every field at fault."""
+    try:
+        return schema.load(data)
+    except ValidationError as exc:
+        raise ValidationFailed(f"The {what} is not valid.",
+                               errors=flatten_errors(exc.messages)) from exc

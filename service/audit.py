@@ -1,0 +1,166 @@
+"""The append-only, hash-chained audit trail.
+
+Each event's hash is ``sha256(prev_hash + canonical JSON of {seq, at, actor, kind, subject,
+payload})`` (hex), with ``prev_hash`` the previous event's hash (64 zeros before the first).
+Events are appended inside the transaction of the change they describe, so a change and its
+event are committed together or not at all. Appends lock the single chain-head row
+(``SELECT ... FOR UPDATE`` on PostgreSQL; SQLite transactions hold the database write lock from
+``BEGIN IMMEDIATE``), so concurrent writers queue and the chain stays linear.
+
+The canonical JSON here is frozen with the chain format (sorted keys, no spaces, UTF-8, no NaN)
+and deliberately independent of the case canonicalisation, so old chains stay verifiable.
+"""
+
+from __future__ import annotations
+
+import hashlib
+import json
+from dataclasses import dataclass
+from typing import Any
+
+from sqlalchemy import func, select
+from sqlalchemy.orm import Session
+
+from service.store import Store
+from service.store.models import AuditEvent, AuditHead, utc_now
+
+GENESIS_HASH = "0" * 64
+HEAD_ROW_ID = 1
+
+#: Every kind of event the service writes.
+EVENT_KINDS = (
+    "case.stored",
+    "run.queued",
+    "run.started",
+    "run.finished",
+    "signoff.recorded",
+    "token.created",
+    "token.revoked",
+    "batch.started",
+    "batch.finished",
+)
+
+
+def chain_json(value: Any) -> str:
+    """Canonical JSON of the audit chain (frozen: changing it breaks every stored chain)."""
+    return json.dumps(value, sort_keys=True, separators=(",", ":"), ensure_ascii=False,
+                      allow_nan=False)
+
+
+def event_hash(prev_hash: str, seq: int, at: str, actor: str, kind: str, subject: str,
+               payload: dict[str, Any]) -> str:
+    """The chain hash of one event (hex SHA-256)."""
+    body = chain_json(
+        {"seq": seq, "at": at, "actor": actor, "kind": kind, "subject": subject,
+         "payload": payload}
+    )
+    return hashlib.sha256((prev_hash + body).encode("utf-8")).hexdigest()
+
+
+def append_event(session: Session, *, actor: str, kind: str, subject: str,
+                 payload: dict[str, Any] | None = None) -> AuditEvent:
+    """Append one event in the caller's transaction, after locking the chain head."""
+    if kind not in EVENT_KINDS:
+        raise ValueError(f"unknown audit event kind {kind!r}; expected one of {EVENT_KINDS}")
+    payload = dict(payload or {})
+    head = session.execute(
+        select(AuditHead).where(AuditHead.id == HEAD_ROW_ID).with_for_update()
+    ).scalar_one()
+    seq = head.seq + 1
+    at = utc_now().isoformat(timespec="microseconds")
+    digest = event_hash(head.hash, seq, at, actor, kind, subject, payload)
+    event = AuditEvent(seq=seq, at=at, actor=actor, kind=kind, subject=subject,
+                       payload=payload, prev_hash=head.hash, hash=digest)
+    session.add(event)
+    head.seq = seq
+    head.hash = digest
+    session.flush()
+    return event
+
+
+def event_to_dict(event: AuditEvent) -> dict[str, Any]:
+    return {"seq": event.seq, "at": event.at, "actor": event.actor, "kind": event.kind,
+            "subject": event.subject, "payload": event.payload, "prev_hash": event.prev_hash,
+            "hash": event.hash}
+
+
+def list_events(store: Store, *, limit: int = 100, offset: int = 0, kind: str | None = None,
+                subject: str | None = None) -> dict[str, Any]:
+    """A page of events in chain order, optionally filtered by kind and subject."""
+    with store.transaction() as session:
+        query = select(AuditEvent)
+        count = select(func.count()).select_from(AuditEvent)
+        if kind:
+            query = query.where(AuditEvent.kind == kind)
+            count = count.where(AuditEvent.kind == kind)
+        if subject:
+            query = query.where(AuditEvent.subject == subject)
+            count = count.where(AuditEvent.subject == subject)
+        total = session.execute(count).scalar_one()
+        rows = session.execute(
+            query.order_by(AuditEvent.seq).limit(limit).offset(offset)
+        ).scalars()
+        items = [event_to_dict(e) for e in rows]
+    return {"items": items, "total": total, "limit": limit, "offset": offset}
+
+
+@dataclass(frozen=True)
+class ChainReport:
+    """Result of verifying the chain: ``ok``, events checked, and the first broken event."""
+
+    ok: bool
+    events: int
+    head_seq: int
+    first_broken_seq: int | None = None
+    reason: str | None = None
+
+    def to_dict(self) -> dict[str, Any]:
+        broken = None
+        if not self.ok:
+            broken = {"seq": self.first_broken_seq, "reason": self.reason}
+        return {"ok": self.ok, "events": self.events, "head_seq": self.head_seq,
+                "first_broken": broken}
+
+
+VERIFY_PAGE = 1000
+
+
+def verify_chain(store: Store) -> ChainReport:
+    """Recompute every hash in order; report the first event that does not fit."""
+    expected_seq = 1
+    prev_hash = GENESIS_HASH
+    checked = 0
+    with store.transaction() as session:
+        head = session.execute(select(AuditHead).where(AuditHead.id == HEAD_ROW_ID)).scalar_one()
+        head_seq, head_hash = head.seq, head.hash
+        last_seq = 0
+        while True:
+            page = session.execute(
+                select(AuditEvent).where(AuditEvent.seq > last_seq)
+                .order_by(AuditEvent.seq).limit(VERIFY_PAGE)
+            ).scalars().all()
+            if not page:
+                break
+            for event in page:
+                if event.seq != expected_seq:
+                    return ChainReport(False, checked, head_seq, expected_seq,
+                                       f"event seq {expected_seq} is missing (next stored seq is "
+                                       f"{event.seq})")
+                if event.prev_hash != prev_hash:
+                    return ChainReport(False, checked, head_seq, event.seq,
+                                       "prev_hash does not equal the hash of the event before it")
+                recomputed = event_hash(prev_hash, event.seq, event.at, event.actor, event.kind,
+                                        event.subject, event.payload)
+                if recomputed != event.hash:
+                    return ChainReport(False, checked, head_seq, event.seq,
+                                       "stored hash does not match the recomputed hash: the "
+                                       "event's content was changed after it was written")
+                prev_hash = event.hash
+                expected_seq += 1
+                checked += 1
+                last_seq = event.seq
+    if head_seq != checked or head_hash != prev_hash:
+        return ChainReport(False, checked, head_seq, checked + 1 if head_seq > checked else
+                           head_seq, f"chain head records seq {head_seq} but the stored events "
+                           f"end at seq {checked}: events were removed or the head was altered")
+    return ChainReport(True, checked, head_seq)

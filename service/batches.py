@@ -1,0 +1,205 @@
+"""Batches: re-verify stored cases (all, or those with a tag) and report drift.
+
+A batch makes one new run per selected case, linked to the batch. Its status is derived from
+its runs (queued: none started; running: some not finished; finished: all finished). When the
+last run finishes, drift is computed once and stored with the batch: for every case, the batch
+run's scalar quantities are compared with the baseline, the case's last *approved* record from
+before the batch (or its last succeeded record, where none is approved).
+
+A quantity has drifted when ``|now - baseline| / |baseline|`` exceeds the case's
+``tolerances.cross_check`` (default :data:`DEFAULT_DRIFT_TOLERANCE`); with a baseline of 0 any
+non-zero value has drifted (``relative_change`` is then null). A quantity present on one side
+only has drifted too.
+"""
+
+from __future__ import annotations
+
+import math
+import uuid
+from typing import Any
+
+from sqlalchemy import func, select
+from sqlalchemy.orm import Session
+
+from service import audit
+from service.errors import NotFound, ValidationFailed
+from service.runs import queue_run_in
+from service.store import Store
+from service.store.models import FINISHED_STATES, RUN_STATES, Batch, Case, CaseTag, Run, \
+    Signoff, utc_now
+
+#: Relative tolerance of drift when a case gives no ``tolerances.cross_check``.
+DEFAULT_DRIFT_TOLERANCE = 1e-6
+VERSION_KEYS = ("engine_version", "schema_version", "python", "numpy", "scipy", "pint")
+
+
+def _selector(tag: str | None, all_cases: bool) -> dict[str, Any]:
+    if bool(tag) == bool(all_cases):
+        raise ValidationFailed("Give exactly one of tag and all.",
+                               errors=[{"path": "", "message":
+                                        "expected {\"tag\": <tag>} or {\"all\": true}"}])
+    return {"tag": tag} if tag else {"all": True}
+
+
+def start_batch(store: Store, *, actor: str, tag: str | None = None,
+                all_cases: bool = False) -> dict[str, Any]:
+    """Create a batch and one queued run per selected case; return {batch_id, run_ids}.
+
+    The caller dispatches the run ids after this returns (after the commit).
+    """
+    selector = _selector(tag, all_cases)
+    with store.transaction() as session:
+        query = select(Case).order_by(Case.created_at, Case.id)
+        if tag:
+            query = query.where(Case.id.in_(select(CaseTag.case_id).where(CaseTag.tag == tag)))
+        cases = session.execute(query).scalars().all()
+        batch = Batch(id=str(uuid.uuid4()), selector=selector, status="queued",
+                      created_by=actor, created_at=utc_now())
+        session.add(batch)
+        session.flush()
+        audit.append_event(session, actor=actor, kind="batch.started", subject=batch.id,
+                           payload={"selector": selector, "cases": len(cases)})
+        run_ids = [queue_run_in(session, case, actor, batch_id=batch.id).id for case in cases]
+        if not cases:
+            _mark_finished(session, batch)
+        return {"batch_id": batch.id, "run_ids": run_ids, "status": batch.status}
+
+
+def _counts(session: Session, batch_id: str) -> dict[str, int]:
+    counts = dict.fromkeys(RUN_STATES, 0)
+    rows = session.execute(
+        select(Run.status, func.count()).where(Run.batch_id == batch_id).group_by(Run.status)
+    ).all()
+    for status, number in rows:
+        counts[status] = number
+    return counts
+
+
+def _derived_status(counts: dict[str, int]) -> str:
+    total = sum(counts.values())
+    finished = sum(counts[s] for s in FINISHED_STATES)
+    if finished == total:
+        return "finished"
+    if counts["queued"] == total:
+        return "queued"
+    return "running"
+
+
+def _mark_finished(session: Session, batch: Batch) -> None:
+    batch.status = "finished"
+    batch.finished_at = utc_now()
+    batch.drift = compute_drift(session, batch.id)
+    counts = _counts(session, batch.id)
+    audit.append_event(session, actor="service", kind="batch.finished", subject=batch.id,
+                       payload={"counts": counts, "drifted": len(batch.drift)})
+
+
+def finish_batch_if_done(session: Session, batch_id: str) -> None:
+    """Called in the transaction that finishes a batch run: close the batch when all are done."""
+    batch = session.execute(select(Batch).where(Batch.id == batch_id).with_for_update()
+                            ).scalar_one()
+    if batch.status == "finished":
+        return
+    status = _derived_status(_counts(session, batch_id))
+    if status == "finished":
+        _mark_finished(session, batch)
+    else:
+        batch.status = status
+
+
+def _scalar_quantities(record: dict[str, Any] | None) -> dict[str, float | None]:
+    result: dict[str, float | None] = {}
+    for name, quantity in ((record or {}).get("quantities") or {}).items():
+        value = quantity.get("value") if isinstance(quantity, dict) else quantity
+        if value is None or (isinstance(value, (int, float)) and not isinstance(value, bool)):
+            result[name] = None if value is None else float(value)
+    return result
+
+
+def _versions(record: dict[str, Any] | None) -> dict[str, Any]:
+    provenance = (record or {}).get("provenance") or {}
+    return {key: provenance.get(key) for key in VERSION_KEYS if key in provenance}
+
+
+def _tolerance(document: dict[str, Any]) -> float:
+    value = (document.get("tolerances") or {}).get("cross_check")
+    if isinstance(value, (int, float)) and not isinstance(value, bool) and math.isfinite(value) \
+            and value > 0:
+        return float(value)
+    return DEFAULT_DRIFT_TOLERANCE
+
+
+def compare_quantities(baseline: dict[str, Any] | None, now: dict[str, Any] | None,
+                       tolerance: float) -> list[dict[str, Any]]:
+    """The scalar quantities of two records that differ beyond ``tolerance`` (relative)."""
+    before, after = _scalar_quantities(baseline), _scalar_quantities(now)
+    moved = []
+    for name in sorted(set(before) | set(after)):
+        old, new = before.get(name), after.get(name)
+        if old is None and new is None:
+            continue
+        if old is None or new is None:
+            moved.append({"name": name, "baseline": old, "now": new, "relative_change": None})
+            continue
+        if old == 0.0:
+            if new != 0.0:
+                moved.append({"name": name, "baseline": old, "now": new,
+                              "relative_change": None})
+            continue
+        change = abs(new - old) / abs(old)
+        if change > tolerance:
+            moved.append({"name": name, "baseline": old, "now": new, "relative_change": change})
+    return moved
+
+
+def _baseline_run(session: Session, run: Run) -> Run | None:
+    earlier = (select(Run).where(Run.case_id == run.case_id, Run.status == "succeeded",
+                                 Run.created_at < run.created_at)
+               .where((Run.batch_id.is_(None)) | (Run.batch_id != run.batch_id))
+               .order_by(Run.created_at.desc(), Run.id.desc()))
+    approved = session.execute(
+        earlier.join(Signoff, Signoff.run_id == Run.id).where(Signoff.decision == "approved")
+        .limit(1)
+    ).scalar_one_or_none()
+    if approved is not None:
+        return approved
+    return session.execute(earlier.limit(1)).scalar_one_or_none()
+
+
+def compute_drift(session: Session, batch_id: str) -> list[dict[str, Any]]:
+    """Drift of every succeeded run of the batch against its baseline (see module notes)."""
+    drifted = []
+    runs = session.execute(select(Run).where(Run.batch_id == batch_id,
+                                             Run.status == "succeeded")
+                           .order_by(Run.created_at, Run.id)).scalars().all()
+    for run in runs:
+        baseline = _baseline_run(session, run)
+        if baseline is None:
+            continue
+        case = session.get(Case, run.case_id)
+        assert case is not None
+        moved = compare_quantities(baseline.record, run.record, _tolerance(case.document))
+        if moved:
+            drifted.append({"case_id": run.case_id, "run_id": run.id,
+                            "baseline_run_id": baseline.id, "quantities": moved,
+                            "baseline_versions": _versions(baseline.record),
+                            "now_versions": _versions(run.record)})
+    return drifted
+
+
+def get_batch(store: Store, batch_id: str) -> dict[str, Any]:
+    with store.transaction() as session:
+        batch = session.get(Batch, batch_id)
+        if batch is None:
+            raise NotFound(f"There is no batch with id {batch_id!r}.")
+        counts = _counts(session, batch_id)
+        status = "finished" if batch.status == "finished" else _derived_status(counts)
+        if sum(counts.values()) == 0:
+            status = "finished"
+        run_ids = list(session.execute(select(Run.id).where(Run.batch_id == batch_id)
+                                       .order_by(Run.created_at, Run.id)).scalars())
+        return {"batch_id": batch.id, "status": status, "selector": batch.selector,
+                "created_by": batch.created_by, "created_at": batch.created_at.isoformat(),
+                "finished_at": batch.finished_at.isoformat() if batch.finished_at else None,
+                "counts": counts, "run_ids": run_ids,
+                "drifted": list(batch.drift or []) if status == "finished" else []}

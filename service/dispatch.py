@@ -1,0 +1,135 @@
+"""Choosing where runs execute: Celery workers (broker set) or the embedded thread pool.
+
+Every dispatcher takes run ids whose rows are already committed, and every executor calls the
+same :func:`service.runs.execute_run`. The API behaves the same either way (202, then poll).
+
+* ``CeleryDispatcher``: sends ``fluxproof.execute_run`` to the broker; workers run it.
+* ``EmbeddedDispatcher``: a ``ThreadPoolExecutor`` in the service process. There is no time
+  limit on a solve here (a thread cannot be stopped); use workers where that matters.
+* ``InlineDispatcher``: runs at once in the caller's thread (tests and command-line tools).
+"""
+
+from __future__ import annotations
+
+import logging
+from collections.abc import Iterable
+from concurrent.futures import Future, ThreadPoolExecutor
+from typing import Any, Protocol
+
+from service.errors import ServiceUnavailable
+from service.runs import execute_run
+from service.store import Store
+
+logger = logging.getLogger(__name__)
+
+EXECUTE_RUN_TASK = "fluxproof.execute_run"
+
+
+class Dispatcher(Protocol):
+    mode: str
+
+    def send(self, run_ids: Iterable[str]) -> None: ...
+
+    def state(self) -> dict[str, Any]: ...
+
+    def shutdown(self) -> None: ...
+
+
+class InlineDispatcher:
+    mode = "inline"
+
+    def __init__(self, store: Store, max_attempts: int) -> None:
+        self.store = store
+        self.max_attempts = max_attempts
+
+    def send(self, run_ids: Iterable[str]) -> None:
+        for run_id in run_ids:
+            execute_run(run_id, self.store, max_attempts=self.max_attempts)
+
+    def state(self) -> dict[str, Any]:
+        return {"state": "ok", "mode": self.mode}
+
+    def shutdown(self) -> None:
+        return None
+
+
+class EmbeddedDispatcher:
+    mode = "embedded"
+
+    def __init__(self, store: Store, max_attempts: int, workers: int = 2) -> None:
+        self.store = store
+        self.max_attempts = max_attempts
+        self._pool = ThreadPoolExecutor(max_workers=max(1, int(workers)),
+                                        thread_name_prefix="fluxproof-run")
+        self._futures: set[Future[str]] = set()
+
+    def _run(self, run_id: str) -> str:
+        try:
+            return execute_run(run_id, self.store, max_attempts=self.max_attempts)
+        except Exception:
+            logger.exception("embedded execution of run %s failed; it stays unfinished",
+                             run_id)
+            raise
+
+    def send(self, run_ids: Iterable[str]) -> None:
+        for run_id in run_ids:
+            future = self._pool.submit(self._run, run_id)
+            self._futures.add(future)
+            future.add_done_callback(self._futures.discard)
+
+    def wait_idle(self, timeout: float | None = None) -> None:
+        """Block until every run sent so far has been executed (tests, shutdown)."""
+        from concurrent.futures import wait
+
+        wait(list(self._futures), timeout=timeout)
+
+    def state(self) -> dict[str, Any]:
+        return {"state": "ok", "mode": self.mode, "pending": len(self._futures)}
+
+    def shutdown(self) -> None:
+        self._pool.shutdown(wait=True, cancel_futures=False)
+
+
+class CeleryDispatcher:
+    mode = "celery"
+
+    def __init__(self, settings: dict[str, Any]) -> None:
+        from worker.celery_app import make_celery
+
+        self.celery = make_celery(settings)
+
+    def send(self, run_ids: Iterable[str]) -> None:
+        pending = list(run_ids)
+        try:
+            for index, run_id in enumerate(pending):
+                self.celery.send_task(EXECUTE_RUN_TASK, args=[run_id], retry=True,
+                                      retry_policy={"max_retries": 2, "interval_start": 0.2,
+                                                    "interval_step": 0.5})
+        except Exception as exc:
+            unsent = pending[index:]
+            raise ServiceUnavailable(
+                "The broker could not be reached. The runs are stored as queued and will run "
+                "once they are sent again (fluxproof serve re-sends unfinished runs at start).",
+                extra={"unsent_run_ids": unsent, "broker_error": str(exc)}) from exc
+
+    def state(self) -> dict[str, Any]:
+        try:
+            with self.celery.connection_for_write() as connection:
+                connection.ensure_connection(max_retries=1, timeout=2)
+            return {"state": "ok", "mode": self.mode}
+        except Exception as exc:
+            return {"state": "unavailable", "mode": self.mode, "detail": str(exc)}
+
+    def shutdown(self) -> None:
+        self.celery.close()
+
+
+def make_dispatcher(mode: str, store: Store, settings: dict[str, Any]) -> Dispatcher:
+    attempts = int(settings.get("MAX_RUN_ATTEMPTS") or 3)
+    if mode == "celery":
+        if not settings.get("BROKER_URL"):
+            raise ValueError("DISPATCH=celery needs FLUXPROOF_BROKER_URL")
+        return CeleryDispatcher(settings)
+    if mode == "inline":
+        return InlineDispatcher(store, attempts)
+    return EmbeddedDispatcher(store, attempts, int(settings.get("EMBEDDED_WORKERS") or 2))

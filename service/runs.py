@@ -1,0 +1,230 @@
+"""Runs: queueing a check of a stored case, executing it, and reading its record.
+
+``execute_run`` is what every executor calls (a Celery worker, the embedded thread pool): it is
+idempotent by run id, so a second delivery of a finished run changes nothing, and it keeps the
+store consistent whatever the engine does (an engine exception is a ``failed`` run, recorded).
+Transient store errors propagate, so that the Celery task can retry them.
+"""
+
+from __future__ import annotations
+
+import logging
+import socket
+import uuid
+from typing import Any
+
+from sqlalchemy import select
+from sqlalchemy.orm import Session
+
+from service import audit
+from service.errors import NotFound, ValidationFailed
+from service.store import Store, default_store
+from service.store.models import FINISHED_STATES, Case, Run, utc_now
+
+logger = logging.getLogger(__name__)
+
+DEFAULT_MAX_ATTEMPTS = 3
+
+try:  # Celery's soft time limit, raised inside the solve; absent when Celery is not installed.
+    from celery.exceptions import SoftTimeLimitExceeded
+except ImportError:  # pragma: no cover - celery is a service dependency
+    class SoftTimeLimitExceeded(Exception):  # type: ignore[no-redef]
+        """Stand-in so that the except clause below stays valid without Celery."""
+
+
+def _iso(value: Any) -> str | None:
+    return None if value is None else value.isoformat()
+
+
+def signoff_to_dict(signoff: Any) -> dict[str, Any]:
+    return {"reviewer": signoff.reviewer, "decision": signoff.decision,
+            "comment": signoff.comment, "at": _iso(signoff.at)}
+
+
+def run_summary(run: Run) -> dict[str, Any]:
+    """The run's state without the record body (for lists and histories)."""
+    record = run.record or {}
+    return {
+        "run_id": run.id,
+        "case_id": run.case_id,
+        "status": run.status,
+        "verdict": record.get("verdict"),
+        "error": run.error,
+        "submitted_by": run.submitted_by,
+        "batch_id": run.batch_id,
+        "attempts": run.attempts,
+        "created_at": _iso(run.created_at),
+        "started_at": _iso(run.started_at),
+        "finished_at": _iso(run.finished_at),
+        "signoffs": [signoff_to_dict(s) for s in run.signoffs],
+    }
+
+
+def record_of(run: Run) -> dict[str, Any]:
+    """The full record: the engine's result document plus the run's own fields."""
+    record = dict(run.record or {})
+    record.update(run_summary(run))
+    return record
+
+
+def queue_run_in(session: Session, case: Case, actor: str, batch_id: str | None = None) -> Run:
+    """Add a queued run of ``case`` in the caller's transaction (dispatch after the commit)."""
+    run = Run(id=str(uuid.uuid4()), case_id=case.id, status="queued", record=None, error=None,
+              submitted_by=actor, batch_id=batch_id, created_at=utc_now(), attempts=0)
+    session.add(run)
+    session.flush()
+    audit.append_event(session, actor=actor, kind="run.queued", subject=run.id,
+                       payload={"case_id": case.id, "case_sha256": case.sha256,
+                                "batch_id": batch_id})
+    return run
+
+
+def create_run(store: Store, *, actor: str, case_id: str | None = None,
+               document: dict[str, Any] | None = None) -> dict[str, Any]:
+    """Queue a run of a stored case (``case_id``) or of a new case (``document``, stored first).
+
+    Returns ``{run_id, status, case_id}``; the caller dispatches ``run_id`` after this returns.
+    """
+    from service.cases import store_case_in, validate_document
+
+    if (case_id is None) == (document is None):
+        raise ValidationFailed("Give exactly one of case_id and case.",
+                               errors=[{"path": "", "message": "expected exactly one of "
+                                        "'case_id' or 'case'"}])
+    if document is not None:
+        validate_document(document)
+    with store.transaction() as session:
+        if document is not None:
+            case, _created = store_case_in(session, document, actor)
+        else:
+            case = session.get(Case, case_id)
+            if case is None:
+                raise ValidationFailed("The case_id names no stored case.",
+                                       errors=[{"path": "case_id", "message":
+                                                f"no stored case with id {case_id!r}"}])
+        run = queue_run_in(session, case, actor)
+        return {"run_id": run.id, "status": run.status, "case_id": case.id}
+
+
+def get_record(store: Store, run_id: str) -> dict[str, Any]:
+    with store.transaction() as session:
+        run = session.get(Run, run_id)
+        if run is None:
+            raise NotFound(f"There is no run with id {run_id!r}.")
+        return record_of(run)
+
+
+def get_run_and_case(store: Store, run_id: str) -> tuple[dict[str, Any], dict[str, Any]]:
+    """The record and the stored case document of one run (for the report)."""
+    with store.transaction() as session:
+        run = session.get(Run, run_id)
+        if run is None:
+            raise NotFound(f"There is no run with id {run_id!r}.")
+        case = session.get(Case, run.case_id)
+        assert case is not None
+        return record_of(run), dict(case.document)
+
+
+def _lock_run(session: Session, run_id: str) -> Run | None:
+    return session.execute(select(Run).where(Run.id == run_id).with_for_update()
+                           ).scalar_one_or_none()
+
+
+def _failure_reason(exc: BaseException) -> str:
+    import schemas
+
+    if isinstance(exc, SoftTimeLimitExceeded):
+        return "the solve ran past the worker's soft time limit and was stopped"
+    if isinstance(exc, schemas.CaseError):
+        details = "; ".join(f"{e.get('path')}: {e.get('message')}" for e in exc.errors)
+        return f"the stored case no longer passes validation: {details}"
+    return f"engine error: {type(exc).__name__}: {exc}"
+
+
+def _finish(session: Session, run: Run, *, status: str, record: dict[str, Any] | None,
+            error: str | None, actor: str) -> None:
+    if run.signoffs:
+        from service.store.guards import SealedRecordError
+
+        raise SealedRecordError(f"run {run.id} is signed off; its record never changes")
+    run.status = status
+    run.record = record
+    run.error = error
+    run.finished_at = utc_now()
+    verdict = (record or {}).get("verdict")
+    audit.append_event(session, actor=actor, kind="run.finished", subject=run.id,
+                       payload={"status": status, "verdict": verdict, "error": error,
+                                "attempts": run.attempts})
+    if run.batch_id is not None:
+        from service.batches import finish_batch_if_done
+
+        session.flush()
+        finish_batch_if_done(session, run.batch_id)
+
+
+def execute_run(run_id: str, store: Store | None = None, *,
+                max_attempts: int = DEFAULT_MAX_ATTEMPTS, actor: str | None = None) -> str:
+    """Execute one run: claim it, solve its case with the engine, store the record.
+
+    Idempotent by ``run_id``: a finished run is left exactly as it is. A run that was started
+    ``max_attempts`` times already (its worker lost or killed each time) is ended ``failed``.
+    Returns the run's status afterwards ("missing" when there is no such run).
+    """
+    import schemas
+    import worker.engine
+
+    store = store or default_store()
+    actor = actor or f"worker@{socket.gethostname()}"
+    with store.transaction() as session:
+        run = _lock_run(session, run_id)
+        if run is None:
+            logger.warning("execute_run: no run %s", run_id)
+            return "missing"
+        if run.status in FINISHED_STATES:
+            return run.status
+        if run.attempts >= max_attempts:
+            _finish(session, run, status="failed", record=None, actor=actor,
+                    error=f"gave up after {run.attempts} deliveries that did not finish "
+                          "(worker lost, killed or past its hard time limit)")
+            return "failed"
+        run.status = "running"
+        run.started_at = utc_now()
+        run.attempts += 1
+        audit.append_event(session, actor=actor, kind="run.started", subject=run.id,
+                           payload={"attempt": run.attempts})
+        case = session.get(Case, run.case_id)
+        assert case is not None
+        document = dict(case.document)
+        case_id = case.id
+
+    record: dict[str, Any] | None = None
+    error: str | None = None
+    try:
+        schemas.validate_case(document)
+        result = worker.engine.check_case(document)
+        record = dict(result)
+        record["run_id"] = run_id
+        record["case_id"] = case_id
+        status = "succeeded" if record.get("status") == "succeeded" else "failed"
+        if status == "failed":
+            error = str(record.get("error") or "the engine reported failure without a reason")
+        record["status"] = status
+    except Exception as exc:  # noqa: BLE001 - any engine failure is a recorded result
+        logger.warning("run %s failed: %s", run_id, exc)
+        status, error = "failed", _failure_reason(exc)
+
+    with store.transaction() as session:
+        run = _lock_run(session, run_id)
+        if run is None or run.status in FINISHED_STATES:
+            # Another delivery finished first; keep what it stored.
+            return "missing" if run is None else run.status
+        _finish(session, run, status=status, record=record, error=error, actor=actor)
+        return status
+
+
+def pending_run_ids(store: Store) -> list[str]:
+    """Runs not finished (queued or running), oldest first: for re-sending after a restart."""
+    with store.transaction() as session:
+        return list(session.execute(
+            select(Run.id).where(Run.status.in_(("queued", "running"))).order_by(Run.created_at)
+        ).scalars())

@@ -1,0 +1,37 @@
+"""The store: SQLAlchemy models, transactions and Alembic migrations.
+
+SQLite under ``FLUXPROOF_DATA_DIR`` by default; PostgreSQL via ``FLUXPROOF_DATABASE_URL``
+(``postgresql+psycopg://user@host:5432/db``).
+"""
+
+from __future__ import annotations
+
+import threading
+
+from service.settings import database_url, settings_from_env
+from service.store import guards as _guards  # noqa: F401  (registers the seal guard)
+from service.store.session import Store
+
+_default_store: Store | None = None
+_default_lock = threading.Lock()
+
+
+def default_store() -> Store:
+    """The process-wide store built from the environment (used by workers and the CLI)."""
+    global _default_store
+    with _default_lock:
+        if _default_store is None:
+            _default_store = Store(database_url(settings_from_env()))
+        return _default_store
+
+
+def reset_default_store() -> None:
+    """Dispose of the process-wide store so that the next call re-reads the environment."""
+    global _default_store
+    with _default_lock:
+        if _default_store is not None:
+            _default_store.dispose()
+        _default_store = None
+
+
+__all__ = ["Store", "default_store", "reset_default_store"]

@@ -1,0 +1,154 @@
+"""ORM models of the store (SQLAlchemy 2 declarative, typed).
+
+The schema itself is created and changed only by the Alembic migrations in ``migrations/``;
+these classes must match them (``tests/unit/test_service_store.py`` compares the two).
+"""
+
+from __future__ import annotations
+
+from datetime import UTC, datetime
+from typing import Any
+
+from sqlalchemy import (
+    JSON,
+    Boolean,
+    DateTime,
+    ForeignKey,
+    Integer,
+    String,
+    Text,
+    TypeDecorator,
+)
+from sqlalchemy.orm import DeclarativeBase, Mapped, mapped_column, relationship
+
+RUN_STATES = ("queued", "running", "succeeded", "failed")
+FINISHED_STATES = ("succeeded", "failed")
+ROLES = ("engineer", "reviewer", "auditor", "admin")
+DECISIONS = ("approved", "rejected")
+
+
+def utc_now() -> datetime:
+    """The current time, timezone-aware UTC."""
+    return datetime.now(UTC)
+
+
+class UtcDateTime(TypeDecorator):
+    """A timestamp stored as naive UTC and read back timezone-aware (SQLite keeps no zone)."""
+
+    impl = DateTime
+    cache_ok = True
+
+    def process_bind_param(self, value: datetime | None, dialect: Any) -> datetime | None:
+        if value is None:
+            return None
+        if value.tzinfo is None:
+            raise ValueError("naive datetime given to the store; use timezone-aware UTC")
+        return value.astimezone(UTC).replace(tzinfo=None)
+
+    def process_result_value(self, value: datetime | None, dialect: Any) -> datetime | None:
+        return None if value is None else value.replace(tzinfo=UTC)
+
+
+class Base(DeclarativeBase):
+    type_annotation_map = {dict[str, Any]: JSON, list[Any]: JSON}
+
+
+class Case(Base):
+    __tablename__ = "cases"
+
+    id: Mapped[str] = mapped_column(String(36), primary_key=True)
+    sha256: Mapped[str] = mapped_column(String(64), unique=True)
+    document: Mapped[dict[str, Any]] = mapped_column(JSON)
+    title: Mapped[str] = mapped_column(String(500))
+    tags: Mapped[list[Any]] = mapped_column(JSON)
+    created_at: Mapped[datetime] = mapped_column(UtcDateTime())
+    created_by: Mapped[str] = mapped_column(String(200))
+
+    tag_rows: Mapped[list[CaseTag]] = relationship(cascade="all, delete-orphan")
+
+
+class CaseTag(Base):
+    """One (case, tag) pair, so that listing and batches can filter by tag in SQL."""
+
+    __tablename__ = "case_tags"
+
+    case_id: Mapped[str] = mapped_column(ForeignKey("cases.id"), primary_key=True)
+    tag: Mapped[str] = mapped_column(String(200), primary_key=True, index=True)
+
+
+class Batch(Base):
+    __tablename__ = "batches"
+
+    id: Mapped[str] = mapped_column(String(36), primary_key=True)
+    selector: Mapped[dict[str, Any]] = mapped_column(JSON)
+    status: Mapped[str] = mapped_column(String(16))
+    created_by: Mapped[str] = mapped_column(String(200))
+    created_at: Mapped[datetime] = mapped_column(UtcDateTime())
+    finished_at: Mapped[datetime | None] = mapped_column(UtcDateTime(), nullable=True)
+    drift: Mapped[list[Any] | None] = mapped_column(JSON, nullable=True)
+
+
+class Run(Base):
+    __tablename__ = "runs"
+
+    id: Mapped[str] = mapped_column(String(36), primary_key=True)
+    case_id: Mapped[str] = mapped_column(ForeignKey("cases.id"), index=True)
+    status: Mapped[str] = mapped_column(String(16))
+    record: Mapped[dict[str, Any] | None] = mapped_column(JSON, nullable=True)
+    error: Mapped[str | None] = mapped_column(Text, nullable=True)
+    submitted_by: Mapped[str] = mapped_column(String(200))
+    batch_id: Mapped[str | None] = mapped_column(
+        ForeignKey("batches.id"), nullable=True, index=True
+    )
+    created_at: Mapped[datetime] = mapped_column(UtcDateTime())
+    started_at: Mapped[datetime | None] = mapped_column(UtcDateTime(), nullable=True)
+    finished_at: Mapped[datetime | None] = mapped_column(UtcDateTime(), nullable=True)
+    attempts: Mapped[int] = mapped_column(Integer, default=0)
+
+    signoffs: Mapped[list[Signoff]] = relationship(order_by="Signoff.id")
+
+
+class Signoff(Base):
+    __tablename__ = "signoffs"
+
+    id: Mapped[int] = mapped_column(Integer, primary_key=True, autoincrement=True)
+    run_id: Mapped[str] = mapped_column(ForeignKey("runs.id"), unique=True)
+    reviewer: Mapped[str] = mapped_column(String(200))
+    decision: Mapped[str] = mapped_column(String(16))
+    comment: Mapped[str] = mapped_column(Text)
+    at: Mapped[datetime] = mapped_column(UtcDateTime())
+
+
+class Token(Base):
+    __tablename__ = "tokens"
+
+    id: Mapped[str] = mapped_column(String(32), primary_key=True)
+    name: Mapped[str] = mapped_column(String(200))
+    role: Mapped[str] = mapped_column(String(16))
+    sha256: Mapped[str] = mapped_column(String(64))
+    created_at: Mapped[datetime] = mapped_column(UtcDateTime())
+    revoked: Mapped[bool] = mapped_column(Boolean, default=False)
+
+
+class AuditEvent(Base):
+    __tablename__ = "audit_events"
+
+    seq: Mapped[int] = mapped_column(Integer, primary_key=True, autoincrement=False)
+    # Kept as the exact ISO-8601 text that was hashed, so verification needs no round trip.
+    at: Mapped[str] = mapped_column(String(40))
+    actor: Mapped[str] = mapped_column(String(200))
+    kind: Mapped[str] = mapped_column(String(40), index=True)
+    subject: Mapped[str] = mapped_column(String(200), index=True)
+    payload: Mapped[dict[str, Any]] = mapped_column(JSON)
+    prev_hash: Mapped[str] = mapped_column(String(64))
+    hash: Mapped[str] = mapped_column(String(64))
+
+
+class AuditHead(Base):
+    """The single chain-head row; appends lock it, which keeps the chain linear."""
+
+    __tablename__ = "audit_head"
+
+    id: Mapped[int] = mapped_column(Integer, primary_key=True, autoincrement=False)
+    seq: Mapped[int] = mapped_column(Integer)
+    hash: Mapped[str] = mapped_column(String(64))

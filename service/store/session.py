@@ -1,0 +1,79 @@
+"""Engines and transactions of the store.
+
+Every write goes through :meth:`Store.transaction`: one transaction that commits when the block
+ends and rolls back entirely on any exception, so nothing is half-written.
+
+SQLite: each transaction starts with ``BEGIN IMMEDIATE``, taking the database write lock up
+front. That serialises writers (threads of the embedded executor, several processes) instead of
+letting two deferred transactions deadlock on lock upgrade, and it is what keeps the audit chain
+linear on SQLite. PostgreSQL: the audit append locks the chain-head row (``SELECT ... FOR
+UPDATE``).
+"""
+
+from __future__ import annotations
+
+from collections.abc import Iterator
+from contextlib import contextmanager
+from typing import Any
+
+from sqlalchemy import Engine, create_engine, event, text
+from sqlalchemy.orm import Session, sessionmaker
+
+SQLITE_BUSY_TIMEOUT_S = 30.0
+
+
+def make_engine(url: str, **kwargs: Any) -> Engine:
+    """Create an engine for ``url`` with the transaction handling described above."""
+    if url.startswith("sqlite"):
+        if ":memory:" in url or url.rstrip("/") in ("sqlite:", "sqlite:/"):
+            raise ValueError("in-memory SQLite is not supported: give a file path")
+        engine = create_engine(
+            url,
+            connect_args={"timeout": SQLITE_BUSY_TIMEOUT_S, "check_same_thread": False},
+            **kwargs,
+        )
+
+        @event.listens_for(engine, "connect")
+        def _sqlite_connect(dbapi_connection: Any, _record: Any) -> None:
+            # Let SQLAlchemy, not the sqlite3 module, decide where transactions begin.
+            dbapi_connection.isolation_level = None
+            cursor = dbapi_connection.cursor()
+            cursor.execute("PRAGMA foreign_keys=ON")
+            cursor.close()
+
+        @event.listens_for(engine, "begin")
+        def _sqlite_begin(connection: Any) -> None:
+            connection.exec_driver_sql("BEGIN IMMEDIATE")
+
+        return engine
+    return create_engine(url, pool_pre_ping=True, **kwargs)
+
+
+class Store:
+    """The store of one process: an engine and a session factory."""
+
+    def __init__(self, url: str, **engine_kwargs: Any) -> None:
+        self.url = url
+        self.engine = make_engine(url, **engine_kwargs)
+        self._sessions = sessionmaker(self.engine, expire_on_commit=False)
+
+    @property
+    def dialect(self) -> str:
+        return self.engine.dialect.name
+
+    @contextmanager
+    def transaction(self) -> Iterator[Session]:
+        """A session in one transaction: commit on success, roll back on any exception."""
+        with self._sessions.begin() as session:
+            yield session
+
+    def ping(self) -> None:
+        """Raise if the database cannot be reached."""
+        with self.engine.connect() as connection:
+            connection.execute(text("SELECT 1"))
+
+    def dispose(self) -> None:
+        self.engine.dispose()
+
+    def __repr__(self) -> str:
+        return f"Store({self.engine.url.render_as_string(hide_password=True)!r})"

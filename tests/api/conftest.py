@@ -1,0 +1,77 @@
+"""Fixtures of the API tests, after Flask's tutorial: ``app``, ``client``, ``runner``.
+
+Every test gets a fresh SQLite store, copied from one migrated template (migrations run once per
+session), and a token for each role. Runs execute inline after their commit unless a test asks
+for the embedded thread pool.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Iterator
+from pathlib import Path
+
+import pytest
+from click.testing import CliRunner
+from flask import Flask
+
+from service.app import create_app, shutdown_app
+from service.settings import SQLITE_FILE_NAME
+from service.store import Store, reset_default_store
+from service.store.migrate import upgrade
+from service.tokens import create_token
+from tests.api.support import ROLE_NAMES, clear_fluxproof_env, copy_template_db
+
+
+@pytest.fixture(scope="session")
+def migrated_template(tmp_path_factory: pytest.TempPathFactory) -> Path:
+    directory = tmp_path_factory.mktemp("template")
+    store = Store(f"sqlite:///{directory / SQLITE_FILE_NAME}")
+    upgrade(store)
+    store.dispose()
+    return directory / SQLITE_FILE_NAME
+
+
+@pytest.fixture
+def data_dir(tmp_path: Path, migrated_template: Path, monkeypatch: pytest.MonkeyPatch) -> Path:
+    clear_fluxproof_env(monkeypatch)
+    directory = tmp_path / "data"
+    copy_template_db(migrated_template, directory)
+    monkeypatch.setenv("FLUXPROOF_DATA_DIR", str(directory))
+    reset_default_store()
+    yield directory
+    reset_default_store()
+
+
+@pytest.fixture
+def dispatch_mode() -> str:
+    return "inline"
+
+
+@pytest.fixture
+def app(data_dir: Path, dispatch_mode: str) -> Iterator[Flask]:
+    application = create_app({"TESTING": True, "DATA_DIR": str(data_dir),
+                              "DISPATCH": dispatch_mode})
+    yield application
+    shutdown_app(application)
+
+
+@pytest.fixture
+def store(app: Flask) -> Store:
+    return app.extensions["fluxproof"].store
+
+
+@pytest.fixture
+def client(app: Flask):
+    return app.test_client()
+
+
+@pytest.fixture
+def runner(data_dir: Path) -> CliRunner:
+    return CliRunner()
+
+
+@pytest.fixture
+def tokens(store: Store) -> dict[str, str]:
+    """role -> bearer token; each role's token has its own person's name."""
+    return {role: create_token(store, role=role, name=name)[1]
+            for role, name in ROLE_NAMES.items()}

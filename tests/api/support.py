@@ -1,0 +1,105 @@
+"""Helpers shared by the service's API and unit tests (fixtures live in ``conftest.py``)."""
+
+from __future__ import annotations
+
+import copy
+import os
+import shutil
+import time
+from pathlib import Path
+from typing import Any
+
+from service.settings import ENV_PREFIX, SQLITE_FILE_NAME
+
+ROLE_NAMES = {
+    "engineer": "erin.engineer",
+    "reviewer": "rafael.reviewer",
+    "auditor": "ana.auditor",
+    "admin": "adi.admin",
+}
+
+# An invented test scenario (not a check value): a one-layer planar membrane between two
+# fixed concentrations. Only its validity and its identity matter to the service tests.
+BASE_CASE: dict[str, Any] = {
+    "schema_version": 1,
+    "title": "Service test: planar membrane between two reservoirs",
+    "reference": "service test fixture",
+    "tags": ["service-test", "membrane"],
+    "geometry": "slab",
+    "inner": "0 m",
+    "area": "2 cm^2",
+    "layers": [{"name": "membrane", "thickness": "50 um", "diffusivity": "1e-10 m^2/s",
+                "partition": 1.0}],
+    "inner_boundary": {"kind": "concentration", "value": "1 mol/m^3"},
+    "outer_boundary": {"kind": "concentration", "value": "0 mol/m^3"},
+    "regime": {"kind": "steady"},
+}
+
+
+def make_case(**changes: Any) -> dict[str, Any]:
+    """A copy of BASE_CASE with top-level fields replaced."""
+    case = copy.deepcopy(BASE_CASE)
+    case.update(changes)
+    return case
+
+
+def clear_fluxproof_env(monkeypatch: Any) -> None:
+    for key in list(os.environ):
+        if key.startswith(ENV_PREFIX):
+            monkeypatch.delenv(key)
+
+
+def copy_template_db(template: Path, data_dir: Path) -> None:
+    data_dir.mkdir(parents=True, exist_ok=True)
+    shutil.copyfile(template, data_dir / SQLITE_FILE_NAME)
+
+
+def bearer(token: str) -> dict[str, str]:
+    return {"Authorization": f"Bearer {token}"}
+
+
+def wait_for_run(client: Any, token: str, run_id: str, timeout: float = 30.0) -> dict[str, Any]:
+    """Poll GET /v1/runs/{id} until the run finishes (embedded executor)."""
+    deadline = time.monotonic() + timeout
+    while True:
+        response = client.get(f"/v1/runs/{run_id}", headers=bearer(token))
+        assert response.status_code == 200, response.get_json()
+        record = response.get_json()
+        if record["status"] in ("succeeded", "failed"):
+            return record
+        if time.monotonic() > deadline:
+            raise AssertionError(f"run {run_id} still {record['status']} after {timeout} s")
+        time.sleep(0.02)
+
+
+def count_rows(store: Any) -> dict[str, int]:
+    """Rows in every table (to show that a refused request stored nothing)."""
+    from sqlalchemy import func, select
+
+    from service.store.models import Base
+
+    with store.transaction() as session:
+        return {name: session.execute(select(func.count()).select_from(table)).scalar_one()
+                for name, table in Base.metadata.tables.items()}
+
+
+def controlled_result(case: dict[str, Any], quantities: dict[str, float],
+                      *, status: str = "succeeded", verdict: str = "pass") -> dict[str, Any]:
+    """A result document with chosen quantities, for tests of the service's own logic (drift,
+    sealing) that must not depend on what the engine computes."""
+    import schemas
+
+    return {
+        "case_sha256": schemas.case_sha256(case),
+        "status": status,
+        "verdict": verdict,
+        "error": None if status == "succeeded" else "controlled failure",
+        "quantities": {k: {"value": v, "unit": "mol/(m^2*s)"} for k, v in quantities.items()},
+        "series": {},
+        "methods": [{"role": "primary", "name": "controlled", "reference": "test"}],
+        "checks": [{"name": "controlled", "value": 0.0, "limit": 1.0, "passed": True,
+                    "detail": "test"}],
+        "warnings": [],
+        "provenance": {"engine_version": "test", "numpy": "x", "scipy": "y"},
+        "caution": "test caution",
+    }

@@ -1,0 +1,71 @@
+"""The Celery application of fluxproof workers.
+
+Broker: ``FLUXPROOF_BROKER_URL`` (Redis, e.g. ``redis://127.0.0.1:6379/0``). No result backend:
+results are rows in the store. Tasks are acknowledged late and are idempotent by run id.
+
+Redis re-delivers a message that is not acknowledged within its *visibility timeout*; with late
+acknowledgement a long solve would then run twice. The timeout
+(``FLUXPROOF_BROKER_VISIBILITY_TIMEOUT``, default 3600 s) must therefore exceed the hard task
+time limit (``FLUXPROOF_TASK_TIME_LIMIT``, default 360 s); :func:`make_celery` refuses settings
+that break this.
+
+The beat schedule runs ``fluxproof.reverify_all`` every night at ``FLUXPROOF_NIGHTLY_AT``
+(``HH:MM``, UTC, default 02:30): ``celery -A worker.celery_app beat``.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Mapping
+from typing import Any
+
+from celery import Celery
+from celery.schedules import crontab
+
+from service.settings import parse_nightly_at, settings_from_env
+
+
+def celery_config(settings: Mapping[str, Any]) -> dict[str, Any]:
+    """Celery configuration from fluxproof settings (see module notes)."""
+    hard = int(settings["TASK_TIME_LIMIT"])
+    soft = int(settings["TASK_SOFT_TIME_LIMIT"])
+    visibility = int(settings["BROKER_VISIBILITY_TIMEOUT"])
+    if not soft < hard:
+        raise ValueError(f"FLUXPROOF_TASK_SOFT_TIME_LIMIT ({soft} s) must be below "
+                         f"FLUXPROOF_TASK_TIME_LIMIT ({hard} s)")
+    if not visibility > hard:
+        raise ValueError(f"FLUXPROOF_BROKER_VISIBILITY_TIMEOUT ({visibility} s) must exceed "
+                         f"FLUXPROOF_TASK_TIME_LIMIT ({hard} s), or long solves run twice")
+    hour, minute = parse_nightly_at(settings["NIGHTLY_AT"])
+    return {
+        "broker_url": settings.get("BROKER_URL"),
+        "result_backend": None,
+        "task_ignore_result": True,
+        "task_acks_late": True,
+        "task_reject_on_worker_lost": True,
+        "task_soft_time_limit": soft,
+        "task_time_limit": hard,
+        "worker_prefetch_multiplier": 1,
+        "broker_transport_options": {"visibility_timeout": visibility},
+        "broker_connection_retry_on_startup": True,
+        "task_serializer": "json",
+        "accept_content": ["json"],
+        "timezone": "UTC",
+        "enable_utc": True,
+        "beat_schedule": {
+            "nightly-reverify": {
+                "task": "fluxproof.reverify_all",
+                "schedule": crontab(hour=hour, minute=minute),
+            },
+        },
+    }
+
+
+def make_celery(settings: Mapping[str, Any] | None = None) -> Celery:
+    """A Celery app configured from ``settings`` (default: the environment)."""
+    settings = settings_from_env() if settings is None else settings
+    app = Celery("fluxproof", include=["worker.tasks"])
+    app.conf.update(celery_config(settings))
+    return app
+
+
+celery_app = make_celery()

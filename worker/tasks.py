@@ -1,0 +1,57 @@
+"""Celery tasks: thin wrappers that call the service's domain functions.
+
+``execute_run`` re-reads its run, re-validates the case, calls the engine and stores the record
+(:func:`service.runs.execute_run`, idempotent by run id). Only named transient errors of the
+store or the broker are retried; invalid input and solver failures are results, recorded.
+"""
+
+from __future__ import annotations
+
+import kombu.exceptions
+import redis.exceptions
+import sqlalchemy.exc
+from celery import shared_task
+
+from service.settings import settings_from_env
+
+_SETTINGS = settings_from_env()
+
+#: Errors worth another try: the store or the broker was briefly unreachable or locked.
+TRANSIENT_ERRORS = (
+    sqlalchemy.exc.OperationalError,
+    sqlalchemy.exc.InterfaceError,
+    redis.exceptions.ConnectionError,
+    redis.exceptions.TimeoutError,
+    kombu.exceptions.OperationalError,
+)
+
+RETRY_OPTIONS = {
+    "autoretry_for": TRANSIENT_ERRORS,
+    "retry_backoff": True,
+    "retry_backoff_max": 120,
+    "retry_jitter": True,
+    "max_retries": 5,
+}
+
+
+@shared_task(name="fluxproof.execute_run", acks_late=True, task_reject_on_worker_lost=True,
+             ignore_result=True, soft_time_limit=int(_SETTINGS["TASK_SOFT_TIME_LIMIT"]),
+             time_limit=int(_SETTINGS["TASK_TIME_LIMIT"]), **RETRY_OPTIONS)
+def execute_run(run_id: str) -> str:
+    """Execute run ``run_id`` (see :func:`service.runs.execute_run`); returns its status."""
+    from service.runs import execute_run as execute
+
+    return execute(run_id, max_attempts=int(_SETTINGS["MAX_RUN_ATTEMPTS"]))
+
+
+@shared_task(name="fluxproof.reverify_all", acks_late=True, ignore_result=True,
+             **RETRY_OPTIONS)
+def reverify_all() -> str:
+    """Nightly: start a batch re-verifying every stored case; returns the batch id."""
+    from service.batches import start_batch
+    from service.dispatch import CeleryDispatcher
+    from service.store import default_store
+
+    batch = start_batch(default_store(), actor="nightly", all_cases=True)
+    CeleryDispatcher(settings_from_env()).send(batch["run_ids"])
+    return batch["batch_id"]
