@@ -1,0 +1,12 @@
+"""Schemas of the case and result documents, their validation and their JSON Schema export.
+
+Public API: :class:`CaseError`, :func:`validate_case` (→ :class:`ValidatedCase`),
+:func:`canonical_json`, :func:`case_sha256`; the JSON Schema documents come from
+:func:`schemas.export.case_json_schema` and :func:`schemas.export.result_json_schema`.
+"""
+
+from schemas.build import ValidatedCase, validate_case
+from schemas.canonical import canonical_json, case_sha256
+from schemas.errors import CaseError
+
+__all__ = ["CaseError", "ValidatedCase", "canonical_json", "case_sha256", "validate_case"]

@@ -1,0 +1,18 @@
+"""Canonical JSON text of a document, and its SHA-256: the identity of a case's content."""
+
+from __future__ import annotations
+
+import hashlib
+import json
+from typing import Any
+
+
+def canonical_json(doc: Any) -> str:
+    """Keys sorted, no whitespace, non-ASCII kept as is; NaN and infinity refused (ValueError)."""
+    return json.dumps(doc, sort_keys=True, separators=(",", ":"), ensure_ascii=False,
+                      allow_nan=False)
+
+
+def case_sha256(doc: Any) -> str:
+    """Hex SHA-256 of the UTF-8 bytes of :func:`canonical_json`."""
+    return hashlib.sha256(canonical_json(doc).encode("utf-8")).hexdigest()

@@ -1,0 +1,616 @@
+"""The case document, schema version 1: marshmallow schemas and the cross-field rules.
+
+Field-level rules (types, required fields, units and dimensions, signs, lengths, unknown keys)
+live on the fields below; rules that tie several fields together are in :func:`case_rule_errors`.
+Both sets are reported together, every error with its path (``layers[1].reaction.vmax``).
+
+Dimensional values load into :class:`SIValue` (SI magnitude, kind, basis); building the solver's
+``Problem`` and the normalised document from the loaded data is :mod:`schemas.build`'s job.
+
+A bare number is accepted for one dimensional field only: ``inner`` may be given as ``0`` (the
+centre of a solid cylinder or sphere, or a slab starting at x = 0), because a zero length needs
+no unit. Every other dimensional value needs its unit.
+"""
+
+from __future__ import annotations
+
+import math
+import re
+from collections.abc import Iterator, Mapping
+from dataclasses import dataclass
+from typing import Any
+
+from marshmallow import RAISE, Schema, ValidationError, fields, validate
+
+from worker.units import (
+    KINDS,
+    MAX_QUANTITY_STRING_LENGTH,
+    MAX_UNIT_LENGTH,
+    QUANTITY_STRING_PATTERN,
+    UnitError,
+    parse_with_basis,
+    si_unit,
+)
+
+SCHEMA_VERSION = 1
+GEOMETRIES = ("slab", "cylinder", "sphere")
+RADIAL_GEOMETRIES = ("cylinder", "sphere")
+
+#: Limits of a case document.
+MAX_TITLE_LENGTH = 200
+MAX_REFERENCE_LENGTH = 500
+MAX_TAGS = 20
+MAX_TAG_LENGTH = 64
+TAG_PATTERN = r"^[A-Za-z0-9._-]+$"
+MAX_LAYERS = 20
+MAX_LAYER_NAME_LENGTH = 100
+MAX_PROBES = 200
+MAX_TIMES = 500
+
+#: Checks whose limits a case may override in ``tolerances``; a key is a check name, optionally
+#: followed by ``.<quantity>`` (``cross_check.flux_outer``).
+CHECK_NAMES = (
+    "cross_check",
+    "mass_balance",
+    "boundary_residual",
+    "interface_residual",
+    "gci",
+    "non_negativity",
+    "bracket",
+)
+#: Quantity names include digits (``t50``), so the part after the dot may hold them.
+TOLERANCE_KEY_PATTERN = r"^[a-z_]+(\.[a-z0-9_]+)?$"
+_TOLERANCE_KEY_RE = re.compile(TOLERANCE_KEY_PATTERN)
+
+
+@dataclass(frozen=True)
+class SIValue:
+    """A loaded dimensional value: ``value`` in the SI unit of ``kind`` on ``basis``."""
+
+    value: float
+    kind: str
+    basis: str | None = None
+
+
+def _describe(value: Any) -> str:
+    text = repr(value)
+    return text if len(text) <= 60 else text[:57] + "..."
+
+
+# --------------------------------------------------------------------------------------- fields
+
+
+class Quantity(fields.Field):
+    """A dimensional value, ``"<number> <unit>"`` or ``{"value": number, "unit": str}``.
+
+    Parameters
+    ----------
+    kind : str
+        A key of ``worker.units.KINDS``: the dimension expected.
+    minimum : float, optional
+        Smallest SI value allowed; ``exclusive`` makes it a strict bound.
+    bare_zero : bool
+        Accept the plain number 0 (used for ``inner`` only).
+    """
+
+    def __init__(
+        self,
+        kind: str,
+        *,
+        minimum: float | None = None,
+        exclusive: bool = False,
+        bare_zero: bool = False,
+        **kwargs: Any,
+    ) -> None:
+        super().__init__(**kwargs)
+        if kind not in KINDS:
+            raise ValueError(f"unknown quantity kind {kind!r}")
+        self.kind = kind
+        self.minimum = minimum
+        self.exclusive = exclusive
+        self.bare_zero = bare_zero
+
+    def _deserialize(self, value: Any, attr: str | None, data: Any, **kwargs: Any) -> SIValue:
+        if (
+            self.bare_zero
+            and type(value) in (int, float)
+            and value == 0
+        ):
+            return SIValue(0.0, self.kind, None)
+        try:
+            magnitude, basis = parse_with_basis(value, self.kind)
+        except UnitError as exc:
+            raise ValidationError(exc.message) from None
+        if self.minimum is not None:
+            too_small = magnitude <= self.minimum if self.exclusive else magnitude < self.minimum
+            if too_small:
+                relation = "greater than" if self.exclusive else "at least"
+                unit = si_unit(self.kind, basis)
+                raise ValidationError(
+                    f"must be {relation} {self.minimum:g} {unit}, got {magnitude!r} {unit}"
+                )
+        return SIValue(magnitude, self.kind, basis)
+
+    def _serialize(self, value: Any, attr: str | None, obj: Any, **kwargs: Any) -> Any:
+        return value
+
+    def json_schema(self) -> dict:
+        spec = KINDS[self.kind]
+        examples = list(spec.examples)
+        bound = ""
+        if self.minimum is not None:
+            bound = f"; {'>' if self.exclusive else '≥'} {self.minimum:g} in SI units"
+        forms: list[dict] = [
+            {
+                "type": "string",
+                "pattern": QUANTITY_STRING_PATTERN,
+                "maxLength": MAX_QUANTITY_STRING_LENGTH,
+                "description": '"<number> <unit>"',
+            },
+            {
+                "type": "object",
+                "properties": {
+                    "value": {"type": "number"},
+                    "unit": {"type": "string", "minLength": 1, "maxLength": MAX_UNIT_LENGTH},
+                },
+                "required": ["value", "unit"],
+                "additionalProperties": False,
+            },
+        ]
+        if self.bare_zero:
+            forms.append({"const": 0, "description": "zero needs no unit"})
+        return {
+            "description": f"{spec.expected[len('expected '):]}{bound}",
+            "examples": examples,
+            "oneOf": forms,
+        }
+
+
+class PlainNumber(fields.Float):
+    """A JSON number: not a boolean, not a string, finite."""
+
+    default_error_messages = {
+        "invalid": "must be a plain number",
+        "special": "must be a finite number",
+    }
+
+    def _validated(self, value: Any) -> float:
+        if isinstance(value, bool) or not isinstance(value, int | float):
+            raise self.make_error("invalid")
+        return super()._validated(value)
+
+    def json_schema(self) -> dict:
+        return {"type": "number"}
+
+
+class PlainInteger(fields.Integer):
+    """A JSON integer: not a boolean, not a string, not 1.5."""
+
+    default_error_messages = {"invalid": "must be an integer"}
+
+    def _validated(self, value: Any) -> int:
+        if isinstance(value, bool) or not isinstance(value, int):
+            raise self.make_error("invalid")
+        return super()._validated(value)
+
+    def json_schema(self) -> dict:
+        return {"type": "integer"}
+
+
+class ByKind(fields.Field):
+    """An object whose ``kind`` picks the schema that loads it (reactions, boundaries, regimes)."""
+
+    def __init__(self, choices: Mapping[str, type[Schema]], noun: str, **kwargs: Any) -> None:
+        super().__init__(**kwargs)
+        self.choices = dict(choices)
+        self.noun = noun
+        self._schemas = {kind: cls() for kind, cls in self.choices.items()}
+
+    def _deserialize(self, value: Any, attr: str | None, data: Any, **kwargs: Any) -> dict:
+        kinds = ", ".join(self.choices)
+        if not isinstance(value, Mapping):
+            raise ValidationError(
+                f"expected {self.noun} object with a 'kind' ({kinds}), got {_describe(value)}"
+            )
+        kind = value.get("kind")
+        if not isinstance(kind, str) or kind not in self.choices:
+            message = (
+                f"missing: {self.noun} needs a 'kind' ({kinds})"
+                if "kind" not in value
+                else f"must be one of {kinds}; got {_describe(kind)}"
+            )
+            raise ValidationError({"kind": [message]})
+        return self._schemas[kind].load(value)
+
+    def _serialize(self, value: Any, attr: str | None, obj: Any, **kwargs: Any) -> Any:
+        return value
+
+
+class Tolerances(fields.Field):
+    """``{"<check>[.<quantity>]": positive finite number}``."""
+
+    def _deserialize(self, value: Any, attr: str | None, data: Any, **kwargs: Any) -> dict:
+        if not isinstance(value, Mapping):
+            raise ValidationError(
+                f"expected an object of check names to limits, got {_describe(value)}"
+            )
+        loaded: dict[str, float] = {}
+        errors: dict[str, list[str]] = {}
+        for key, limit in value.items():
+            if not isinstance(key, str) or not _TOLERANCE_KEY_RE.match(key):
+                errors[str(key)] = [
+                    "not a check name: expected '<check>' or '<check>.<quantity>' "
+                    "(lower case letters, digits after the dot, underscores)"
+                ]
+                continue
+            if key.split(".", 1)[0] not in CHECK_NAMES:
+                errors[key] = [f"unknown check {key.split('.', 1)[0]!r}; known: "
+                               + ", ".join(CHECK_NAMES)]
+                continue
+            if (
+                isinstance(limit, bool)
+                or not isinstance(limit, int | float)
+                or not math.isfinite(limit)
+                or limit <= 0
+            ):
+                errors[key] = [f"must be a positive finite number, got {_describe(limit)}"]
+                continue
+            loaded[key] = float(limit)
+        if errors:
+            raise ValidationError(errors)
+        return loaded
+
+    def _serialize(self, value: Any, attr: str | None, obj: Any, **kwargs: Any) -> Any:
+        return value
+
+    def json_schema(self) -> dict:
+        names = "|".join(CHECK_NAMES)
+        return {
+            "type": "object",
+            "description": "overrides of the default limits of the checks, by check name",
+            "propertyNames": {"pattern": rf"^({names})(\.[a-z0-9_]+)?$"},
+            "additionalProperties": {"type": "number", "exclusiveMinimum": 0},
+        }
+
+
+# -------------------------------------------------------------------------------------- schemas
+
+
+class StrictSchema(Schema):
+    """Refuses unknown keys, naming the ones it takes."""
+
+    #: What the object is, for messages ("a flux boundary").
+    noun = "this object"
+
+    class Meta:
+        unknown = RAISE
+
+    def __init__(self, *args: Any, **kwargs: Any) -> None:
+        super().__init__(*args, **kwargs)
+        taken = ", ".join(self.fields)
+        self.error_messages = {
+            **self.error_messages,
+            "unknown": f"unknown field: {self.noun} takes {taken}",
+        }
+
+
+def _kind_field(kind: str) -> fields.String:
+    return fields.String(required=True, validate=validate.OneOf([kind], error="must be {choices}"))
+
+
+def _non_negative(kind: str, **kwargs: Any) -> Quantity:
+    return Quantity(kind, minimum=0.0, **kwargs)
+
+
+def _positive(kind: str, **kwargs: Any) -> Quantity:
+    return Quantity(kind, minimum=0.0, exclusive=True, **kwargs)
+
+
+class NoReactionSchema(StrictSchema):
+    noun = "reaction 'none'"
+    kind = _kind_field("none")
+
+
+class ZeroOrderSchema(StrictSchema):
+    noun = "a zero-order reaction"
+    kind = _kind_field("zero_order")
+    rate = _non_negative("volumetric_rate", required=True)
+
+
+class FirstOrderSchema(StrictSchema):
+    noun = "a first-order reaction"
+    kind = _kind_field("first_order")
+    rate_constant = _non_negative("rate_constant", required=True)
+
+
+class MichaelisMentenSchema(StrictSchema):
+    noun = "a Michaelis-Menten reaction"
+    kind = _kind_field("michaelis_menten")
+    vmax = _non_negative("volumetric_rate", required=True)
+    km = _positive("concentration", required=True)
+
+
+REACTION_SCHEMAS: Mapping[str, type[Schema]] = {
+    "none": NoReactionSchema,
+    "zero_order": ZeroOrderSchema,
+    "first_order": FirstOrderSchema,
+    "michaelis_menten": MichaelisMentenSchema,
+}
+
+
+class LayerSchema(StrictSchema):
+    noun = "a layer"
+    name = fields.String(
+        validate=validate.Length(
+            min=1, max=MAX_LAYER_NAME_LENGTH, error="1 to {max} characters"
+        )
+    )
+    thickness = _positive("length", required=True)
+    diffusivity = _positive("diffusivity", required=True)
+    partition = PlainNumber(validate=validate.Range(min=0.0, min_inclusive=False))
+    reaction = ByKind(REACTION_SCHEMAS, "a reaction")
+    initial = _non_negative("concentration")
+
+
+class ConcentrationBoundarySchema(StrictSchema):
+    noun = "a concentration boundary"
+    kind = _kind_field("concentration")
+    value = _non_negative("concentration", required=True)
+    partition = PlainNumber(validate=validate.Range(min=0.0, min_inclusive=False))
+
+
+class FluxBoundarySchema(StrictSchema):
+    noun = "a flux boundary"
+    kind = _kind_field("flux")
+    value = Quantity("flux", required=True)
+
+
+class MassTransferBoundarySchema(StrictSchema):
+    noun = "a mass_transfer boundary"
+    kind = _kind_field("mass_transfer")
+    coefficient = _positive("velocity", required=True)
+    bulk = _non_negative("concentration", required=True)
+    partition = PlainNumber(validate=validate.Range(min=0.0, min_inclusive=False))
+
+
+class SymmetryBoundarySchema(StrictSchema):
+    noun = "a symmetry boundary"
+    kind = _kind_field("symmetry")
+
+
+BOUNDARY_SCHEMAS: Mapping[str, type[Schema]] = {
+    "concentration": ConcentrationBoundarySchema,
+    "flux": FluxBoundarySchema,
+    "mass_transfer": MassTransferBoundarySchema,
+    "symmetry": SymmetryBoundarySchema,
+}
+
+
+class SteadyRegimeSchema(StrictSchema):
+    noun = "a steady regime"
+    kind = _kind_field("steady")
+
+
+class TransientRegimeSchema(StrictSchema):
+    noun = "a transient regime"
+    kind = _kind_field("transient")
+    duration = _positive("time", required=True)
+    times = fields.List(
+        _positive("time"),
+        required=True,
+        validate=validate.Length(min=1, max=MAX_TIMES, error="1 to {max} output times"),
+    )
+
+
+REGIME_SCHEMAS: Mapping[str, type[Schema]] = {
+    "steady": SteadyRegimeSchema,
+    "transient": TransientRegimeSchema,
+}
+
+
+def _at_most(limit: int, what: str) -> validate.Length:
+    return validate.Length(max=limit, error=f"at most {{max}} {what}; got {{input!r:.40}}")
+
+
+def _not_blank(text: str) -> None:
+    if not text.strip():
+        raise ValidationError("must not be blank")
+
+
+_not_blank.json_schema = {"pattern": r"\S"}  # type: ignore[attr-defined]
+
+
+class CaseSchema(StrictSchema):
+    """A transport case, schema version 1."""
+
+    noun = "a case document"
+    schema_version = PlainInteger(
+        required=True,
+        validate=validate.OneOf(
+            [SCHEMA_VERSION], error=f"this service reads schema_version {SCHEMA_VERSION}"
+        ),
+    )
+    title = fields.String(
+        required=True, validate=[_at_most(MAX_TITLE_LENGTH, "characters"), _not_blank]
+    )
+    reference = fields.String(validate=_at_most(MAX_REFERENCE_LENGTH, "characters"))
+    tags = fields.List(
+        fields.String(
+            validate=[
+                _at_most(MAX_TAG_LENGTH, "characters"),
+                validate.Regexp(
+                    TAG_PATTERN, error="a tag is one or more letters, digits, '.', '_' or '-'"
+                ),
+            ]
+        ),
+        validate=_at_most(MAX_TAGS, "tags"),
+    )
+    geometry = fields.String(
+        required=True,
+        validate=validate.OneOf(GEOMETRIES, error="must be one of {choices}; got {input!r}"),
+    )
+    inner = _non_negative("length", required=True, bare_zero=True)
+    length = _positive("length")
+    area = _positive("area")
+    layers = fields.List(
+        fields.Nested(LayerSchema),
+        required=True,
+        validate=validate.Length(min=1, max=MAX_LAYERS, error="1 to {max} layers, inner to outer"),
+    )
+    inner_boundary = ByKind(BOUNDARY_SCHEMAS, "a boundary", required=True)
+    outer_boundary = ByKind(BOUNDARY_SCHEMAS, "a boundary", required=True)
+    regime = ByKind(REGIME_SCHEMAS, "a regime", required=True)
+    probes = fields.List(_non_negative("length"), validate=_at_most(MAX_PROBES, "probes"))
+    tolerances = Tolerances()
+
+
+# --------------------------------------------------------------------------- cross-field rules
+
+
+def _value(data: Mapping, key: str) -> float | None:
+    item = data.get(key) if isinstance(data, Mapping) else None
+    return item.value if isinstance(item, SIValue) else None
+
+
+def iter_si_values(data: Any, path: str = "") -> Iterator[tuple[str, SIValue]]:
+    """Every loaded dimensional value with its path, in document order."""
+    if isinstance(data, Mapping):
+        for key, item in data.items():
+            if isinstance(item, SIValue):
+                yield (f"{path}.{key}" if path else key), item
+            elif isinstance(item, Mapping | list):
+                yield from iter_si_values(item, f"{path}.{key}" if path else key)
+    elif isinstance(data, list):
+        for index, item in enumerate(data):
+            if isinstance(item, SIValue):
+                yield f"{path}[{index}]", item
+            elif isinstance(item, Mapping | list):
+                yield from iter_si_values(item, f"{path}[{index}]")
+
+
+def _consumes(reaction: Any) -> bool:
+    """True when the layer's reaction removes solute at some concentration."""
+    if not isinstance(reaction, Mapping):
+        return False
+    parameter = {"zero_order": "rate", "first_order": "rate_constant", "michaelis_menten": "vmax"}
+    key = parameter.get(reaction.get("kind"))
+    return key is not None and (_value(reaction, key) or 0.0) > 0.0
+
+
+def _size_rules(data: Mapping) -> Iterator[tuple[str, str]]:
+    geometry = data.get("geometry")
+    if geometry not in GEOMETRIES:
+        return
+    if "length" in data and geometry != "cylinder":
+        yield "length", f"only a cylinder takes a length; this case is a {geometry}"
+    if "area" in data and geometry != "slab":
+        yield "area", f"only a slab takes an area; this case is a {geometry}"
+
+
+def _symmetry_rules(data: Mapping) -> Iterator[tuple[str, str]]:
+    geometry, inner = data.get("geometry"), _value(data, "inner")
+    boundary = data.get("inner_boundary")
+    if geometry in RADIAL_GEOMETRIES and inner == 0.0 and isinstance(boundary, Mapping):
+        if boundary.get("kind") != "symmetry":
+            yield (
+                "inner_boundary.kind",
+                f"the centre of a solid {geometry} (inner = 0) is a symmetry point: the inner "
+                f"boundary must be {{\"kind\": \"symmetry\"}}, got {boundary.get('kind')!r}",
+            )
+
+
+def _steady_level_rules(data: Mapping) -> Iterator[tuple[str, str]]:
+    regime = data.get("regime")
+    faces = [data.get("inner_boundary"), data.get("outer_boundary")]
+    layers = data.get("layers")
+    if not (isinstance(regime, Mapping) and regime.get("kind") == "steady"):
+        return
+    if not all(isinstance(f, Mapping) for f in faces) or not isinstance(layers, list):
+        return
+    if any(f.get("kind") in ("concentration", "mass_transfer") for f in faces):
+        return
+    if any(isinstance(ly, Mapping) and _consumes(ly.get("reaction")) for ly in layers):
+        return
+    yield (
+        "",
+        "a steady case with flux or symmetry conditions at both faces and no consumption has no "
+        "unique solution (the level is not fixed, and any net inflow has nowhere to go): give one "
+        "face a concentration or mass_transfer condition, add a consuming reaction, or make the "
+        "regime transient",
+    )
+
+
+def _basis_rules(data: Mapping) -> Iterator[tuple[str, str]]:
+    first_path, first = None, None
+    for path, item in iter_si_values(data):
+        if item.basis is None:
+            continue
+        if first is None:
+            first_path, first = path, item
+        elif item.basis != first.basis:
+            yield (
+                path,
+                f"uses the {item.basis} basis ({si_unit(item.kind, item.basis)}) but "
+                f"{first_path} set the {first.basis} basis ({si_unit(first.kind, first.basis)}): "
+                "one concentration basis (molar or mass) per case",
+            )
+
+
+def _time_rules(data: Mapping) -> Iterator[tuple[str, str]]:
+    regime = data.get("regime")
+    if not (isinstance(regime, Mapping) and regime.get("kind") == "transient"):
+        return
+    duration = _value(regime, "duration")
+    previous = None
+    for index, item in enumerate(regime.get("times") or []):
+        if not isinstance(item, SIValue):
+            continue
+        path = f"regime.times[{index}]"
+        if duration is not None and item.value > duration:
+            yield path, f"{item.value!r} s is after the end of the run (duration {duration!r} s)"
+        if previous is not None and item.value <= previous:
+            yield path, f"times must increase strictly: {item.value!r} s follows {previous!r} s"
+        previous = item.value
+
+
+def _probe_rules(data: Mapping) -> Iterator[tuple[str, str]]:
+    inner, layers = _value(data, "inner"), data.get("layers")
+    if inner is None or not isinstance(layers, list) or not layers:
+        return
+    thicknesses = [_value(ly, "thickness") for ly in layers]
+    if any(t is None for t in thicknesses):
+        return
+    outer = inner + sum(thicknesses)
+    for index, item in enumerate(data.get("probes") or []):
+        if isinstance(item, SIValue) and not (inner <= item.value <= outer):
+            yield (
+                f"probes[{index}]",
+                f"{item.value!r} m lies outside the body, which spans [{inner!r}, {outer!r}] m",
+            )
+
+
+CASE_RULES = (
+    _size_rules,
+    _symmetry_rules,
+    _steady_level_rules,
+    _basis_rules,
+    _time_rules,
+    _probe_rules,
+)
+
+
+def case_rule_errors(data: Mapping) -> list[tuple[str, str]]:
+    """Cross-field errors of a (possibly partly) loaded case, as ``(path, message)`` pairs.
+
+    Each rule reads only what loaded cleanly, so these errors add to the field errors rather
+    than repeating them.
+    """
+    return [error for rule in CASE_RULES for error in rule(data)]
+
+
+def case_basis(data: Mapping) -> str:
+    """The concentration basis of a loaded case: that of its first basis-bearing value."""
+    for _, item in iter_si_values(data):
+        if item.basis is not None:
+            return item.basis
+    return "molar"

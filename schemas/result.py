@@ -1,0 +1,227 @@
+"""The result document (check record): marshmallow schemas.
+
+The top level is closed: an unknown key is an error. Quantity entries, series and provenance
+are open, since solvers and the check module may add keys (``diagnostics``, extra series).
+Every number is a JSON number or ``null`` (where a figure does not exist, e.g. the Thiele modulus
+of a layer without reaction): NaN and infinity are not JSON and are refused.
+"""
+
+from __future__ import annotations
+
+import math
+from typing import Any
+
+from marshmallow import INCLUDE, Schema, ValidationError, fields, validate, validates_schema
+
+from schemas.case import PlainInteger, PlainNumber, StrictSchema
+
+STATUSES = ("queued", "running", "succeeded", "failed")
+VERDICTS = ("pass", "fail")
+METHOD_ROLES = ("primary", "independent", "bracket", "reference")
+SHA256_PATTERN = r"^[0-9a-f]{64}$"
+
+
+def _is_number(value: Any) -> bool:
+    return isinstance(value, int | float) and not isinstance(value, bool) and math.isfinite(value)
+
+
+class NumberOrList(fields.Field):
+    """A finite number, ``null``, or a list of finite numbers and nulls."""
+
+    def _deserialize(self, value: Any, attr: str | None, data: Any, **kwargs: Any) -> Any:
+        if value is None or _is_number(value):
+            return value
+        if isinstance(value, list) and all(v is None or _is_number(v) for v in value):
+            return list(value)
+        raise ValidationError("must be a finite number, null, or a list of those")
+
+    def _serialize(self, value: Any, attr: str | None, obj: Any, **kwargs: Any) -> Any:
+        return value
+
+    def json_schema(self) -> dict:
+        scalar = {"type": ["number", "null"]}
+        return {"anyOf": [scalar, {"type": "array", "items": scalar}]}
+
+
+class NumbersOrRows(fields.Field):
+    """A list of finite numbers (or nulls), or a list of such lists (one row per time)."""
+
+    def _deserialize(self, value: Any, attr: str | None, data: Any, **kwargs: Any) -> Any:
+        def row_ok(row: Any) -> bool:
+            return isinstance(row, list) and all(v is None or _is_number(v) for v in row)
+
+        if row_ok(value) or (isinstance(value, list) and all(row_ok(r) for r in value)):
+            return value
+        raise ValidationError("must be a list of finite numbers, or a list of such rows")
+
+    def _serialize(self, value: Any, attr: str | None, obj: Any, **kwargs: Any) -> Any:
+        return value
+
+    def json_schema(self) -> dict:
+        row = {"type": "array", "items": {"type": ["number", "null"]}}
+        return {"anyOf": [row, {"type": "array", "items": row}]}
+
+
+class StrictBoolean(fields.Boolean):
+    """``true`` or ``false`` only."""
+
+    def _deserialize(self, value: Any, attr: str | None, data: Any, **kwargs: Any) -> bool:
+        if value is True or value is False:
+            return value
+        raise self.make_error("invalid", input=value)
+
+    def json_schema(self) -> dict:
+        return {"type": "boolean"}
+
+
+def _numbers(**kwargs: Any) -> fields.List:
+    return fields.List(PlainNumber(allow_none=True), **kwargs)
+
+
+class OpenSchema(Schema):
+    """Takes keys it does not know (solvers may add their own)."""
+
+    class Meta:
+        unknown = INCLUDE
+
+
+class QuantitySchema(OpenSchema):
+    """One reported figure in SI."""
+
+    value = NumberOrList(required=True, allow_none=True)
+    unit = fields.String(required=True)
+
+
+class AxisUnitsSchema(OpenSchema):
+    """Units of a profile's axes."""
+
+    position = fields.String(required=True)
+    concentration = fields.String(required=True)
+
+
+class ProfileSchema(OpenSchema):
+    """Concentration against position (material side), with the layer of each point."""
+
+    position = _numbers(required=True)
+    concentration = NumbersOrRows(required=True)
+    layer = fields.List(PlainInteger())
+    units = fields.Nested(AxisUnitsSchema, required=True)
+
+
+class ValuesSchema(OpenSchema):
+    """A series of values aligned with ``series.time``."""
+
+    values = _numbers(required=True)
+    unit = fields.String(required=True)
+
+
+class SeriesSchema(OpenSchema):
+    """Profiles and, for transient cases, time series."""
+
+    profile = fields.Nested(ProfileSchema)
+    probes = fields.Nested(ProfileSchema)
+    time = fields.Nested(ValuesSchema)
+    released_inner = fields.Nested(ValuesSchema)
+    released_outer = fields.Nested(ValuesSchema)
+    release_fraction = fields.Nested(ValuesSchema)
+    remaining = fields.Nested(ValuesSchema)
+
+
+class MethodSchema(StrictSchema):
+    """A solution method used for the record and its published source."""
+
+    noun = "a method"
+    role = fields.String(required=True, validate=validate.OneOf(METHOD_ROLES))
+    name = fields.String(required=True)
+    reference = fields.String(required=True)
+
+
+class CheckSchema(StrictSchema):
+    """One check: its value, its limit and whether it passed."""
+
+    noun = "a check"
+    name = fields.String(required=True)
+    value = PlainNumber(required=True, allow_none=True)
+    limit = PlainNumber(required=True, allow_none=True)
+    passed = StrictBoolean(required=True)
+    detail = fields.String(required=True)
+
+
+class ProvenanceSchema(OpenSchema):
+    """What produced the record, where and when."""
+
+    engine_version = fields.String()
+    schema_version = PlainInteger()
+    python = fields.String()
+    numpy = fields.String()
+    scipy = fields.String()
+    pint = fields.String()
+    platform = fields.String()
+    worker = fields.String(allow_none=True)
+    started_at = fields.String(allow_none=True)
+    finished_at = fields.String(allow_none=True)
+    case_sha256 = fields.String(validate=validate.Regexp(SHA256_PATTERN))
+
+
+class ResultSchema(StrictSchema):
+    """A check record: figures, checks, warnings and provenance of one run of one case."""
+
+    noun = "a result document"
+    run_id = fields.String(allow_none=True)
+    case_id = fields.String(allow_none=True)
+    case_sha256 = fields.String(required=True, validate=validate.Regexp(SHA256_PATTERN))
+    status = fields.String(required=True, validate=validate.OneOf(STATUSES))
+    verdict = fields.String(allow_none=True, validate=validate.OneOf(VERDICTS))
+    error = fields.String(allow_none=True)
+    quantities = fields.Dict(keys=fields.String(), values=fields.Nested(QuantitySchema))
+    series = fields.Nested(SeriesSchema)
+    methods = fields.List(fields.Nested(MethodSchema))
+    checks = fields.List(fields.Nested(CheckSchema))
+    warnings = fields.List(fields.String())
+    provenance = fields.Nested(ProvenanceSchema)
+    inputs = fields.Dict()
+    caution = fields.String()
+
+    #: The status rules below, for the JSON Schema export.
+    json_schema_extra = {
+        "allOf": [
+            {
+                "if": {"properties": {"status": {"const": "succeeded"}}, "required": ["status"]},
+                "then": {
+                    "required": ["verdict", "quantities", "checks"],
+                    "properties": {"verdict": {"enum": list(VERDICTS)}},
+                },
+            },
+            {
+                "if": {"properties": {"status": {"const": "failed"}}, "required": ["status"]},
+                "then": {"required": ["error"], "properties": {"error": {"type": "string"}}},
+            },
+        ]
+    }
+
+    @validates_schema
+    def _status_rules(self, data: dict, **kwargs: Any) -> None:
+        errors: dict[str, list[str]] = {}
+        if data.get("status") == "succeeded":
+            if data.get("verdict") is None:
+                errors["verdict"] = ["a succeeded run has a verdict, pass or fail"]
+            for key in ("quantities", "checks"):
+                if key not in data:
+                    errors[key] = [f"a succeeded run reports its {key}"]
+        if data.get("status") == "failed" and not isinstance(data.get("error"), str):
+            errors["error"] = ["a failed run says why in 'error'"]
+        if errors:
+            raise ValidationError(errors)
+
+
+_RESULT_SCHEMA = ResultSchema()
+
+
+def validate_result(doc: Any) -> dict:
+    """Check a result document; raises ``marshmallow.ValidationError`` listing every problem."""
+    if not isinstance(doc, dict):
+        raise ValidationError({"_schema": ["a result document is a JSON object"]})
+    return _RESULT_SCHEMA.load(doc)
+
+
+__all__ = ["ResultSchema", "validate_result"]
