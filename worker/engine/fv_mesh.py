@@ -1,0 +1,564 @@
+"""Cell-centred finite-volume mesh and diffusion operator for layered slab, cylinder and sphere.
+
+This module holds the space discretisation only, so that the steady solver (``fv_steady``) and
+a transient solver share one mesh, one operator and one set of reaction terms.
+
+Discretised balance
+-------------------
+Cells are uniform within each layer and layer interfaces lie on faces. With the geometric
+exponent ``n`` (0 slab, 1 cylinder, 2 sphere), the r^n-weighted balance of cell ``i`` between
+faces ``i`` (west, inner) and ``i+1`` (east, outer) is
+
+    Q[i+1] - Q[i] + V[i] * R(C[i]) = V[i] * S[i],
+
+with ``V[i] = (r_e^(n+1) - r_w^(n+1)) / (n+1)`` the r^n-weighted cell volume (no 2*pi or 4*pi),
+``Q[f] = r_f^n * J_f`` the r^n-weighted outward flux through face ``f``, ``R`` the consumption and
+``S`` an optional production source (used by manufactured-solution verification). Every face
+flux is affine in the two adjacent cell values,
+
+    Q[f] = west_coefficient[f] * C[f-1] - east_coefficient[f] * C[f] + face_constant[f],
+
+so the operator is tridiagonal (returned in ``scipy.linalg.solve_banded`` (1, 1) form).
+
+Face conductances (derivation)
+------------------------------
+Between cell P (layer a, centre-to-face distance ``d_P``) and cell E (layer b, ``d_E``) the
+flux density J is continuous through the face, and each half cell is represented by a linear
+profile: ``J = D_a (C_P - C_a,f) / d_P = D_b (C_b,f - C_E) / d_E``. With the equilibrium jump
+``C_a,f / K_a = C_b,f / K_b = u_f``, divide each relation by ``D K`` of its side and add:
+
+    J = (C_P / K_a - C_E / K_b) / (d_P / (D_a K_a) + d_E / (D_b K_b)),
+
+the series (harmonic) conductance of the two half cells in the continuous potential ``u = C/K``
+with the exact partition jump (S.V. Patankar, *Numerical Heat Transfer and Fluid Flow*,
+Hemisphere, 1980, sec. 4.2-4.3, harmonic interface conductivity; the partition form follows by
+writing the balance in u). Inside one layer (K_a = K_b, D_a = D_b) it reduces to D/Delta.
+The r^n-weighted face flux multiplies by the face area ``r_f^n`` (face-area-weighted form;
+second order in r for cylinder and sphere, verified by manufactured solutions in
+``tests/reference/test_fv_manufactured.py``).
+
+Boundary faces use the half cell between the outermost centre and the face:
+
+* ``concentration``: surface value ``C_s = K_face * value``; ``J = D (C_s - C_P) / d`` into the
+  body, conductance ``r^n D / d``.
+* ``mass_transfer``: film and half cell in series. Flux into the body
+  ``J = h (C_bulk - C_s / K_face)`` and ``J = D (C_s - C_P) / d``; eliminating ``C_s``,
+  ``J = (K_face C_bulk - C_P) / (K_face / h + d / D)``.
+* ``flux``: ``J`` into the body fixed; ``symmetry``: ``J = 0``. The centre face of a solid
+  cylinder or sphere has zero area, so it carries no flux whatever its kind.
+
+Surface values are reconstructed from the same half-cell relations (``C_s = C_P + J d / D`` at
+the inner face, ``C_s = C_P - J d / D`` at the outer face), which keeps them second-order
+accurate because the boundary flux itself is.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Callable, Sequence
+from dataclasses import dataclass
+
+import numpy as np
+from scipy.linalg import LinAlgError
+from scipy.linalg.lapack import dgtsv
+
+from worker.engine.model import Problem
+
+#: Default mesh rule (``default_cells_per_layer``): every layer gets at least
+#: ``MIN_CELLS_PER_LAYER`` cells; ``RESISTANCE_CELLS`` cells are shared among layers in proportion
+#: to each layer's share of the total diffusion resistance; a reacting layer gets enough cells
+#: that ``Delta * m <= THIELE_CELL_LIMIT`` per cell, where m = sqrt(k/D) (k the first-order
+#: constant, or vmax/km for Michaelis-Menten) or, for zero order, m = 1/l with the penetration
+#: length l = sqrt(2 D C_scale / Q) (C_scale the largest face concentration set by the
+#: boundaries); no layer gets more than ``MAX_CELLS_PER_LAYER``.
+MIN_CELLS_PER_LAYER = 40
+MAX_CELLS_PER_LAYER = 4000
+RESISTANCE_CELLS = 200
+THIELE_CELL_LIMIT = 0.1
+
+__all__ = [
+    "MAX_CELLS_PER_LAYER",
+    "MIN_CELLS_PER_LAYER",
+    "RESISTANCE_CELLS",
+    "THIELE_CELL_LIMIT",
+    "DiffusionOperator",
+    "Mesh",
+    "ReactionTerms",
+    "assemble_diffusion",
+    "boundary_concentration_scale",
+    "build_mesh",
+    "default_cells_per_layer",
+    "face_flux_densities",
+    "layer_profiles",
+    "make_profile_functions",
+    "reaction_terms",
+    "solve_tridiagonal",
+    "surface_values",
+]
+
+
+@dataclass(frozen=True)
+class Mesh:
+    """A cell-centred mesh of the layered body.
+
+    Attributes
+    ----------
+    exponent : int
+        Geometric exponent n (0 slab, 1 cylinder, 2 sphere).
+    edges : ndarray, shape (L+1,)
+        Inner face, interfaces and outer face, m.
+    faces : ndarray, shape (N+1,)
+        Face positions, m; ``faces[layer_starts[j]]`` is the inner edge of layer j.
+    centres : ndarray, shape (N,)
+        Cell centres (midpoints of their faces), m.
+    face_areas : ndarray, shape (N+1,)
+        r_f^n, m^n (without 2*pi or 4*pi).
+    volumes : ndarray, shape (N,)
+        r^n-weighted cell volumes (r_e^(n+1) - r_w^(n+1))/(n+1), m^(n+1).
+    west_gaps, east_gaps : ndarray, shape (N,)
+        Distance from each centre to its west and east face, m.
+    layer_index : ndarray of int, shape (N,)
+        Layer of each cell.
+    layer_starts : ndarray of int, shape (L+1,)
+        First cell of each layer; the last entry is N.
+    diffusivity, partition : ndarray, shape (N,)
+        D (m^2/s) and K of each cell's layer.
+    """
+
+    exponent: int
+    edges: np.ndarray
+    faces: np.ndarray
+    centres: np.ndarray
+    face_areas: np.ndarray
+    volumes: np.ndarray
+    west_gaps: np.ndarray
+    east_gaps: np.ndarray
+    layer_index: np.ndarray
+    layer_starts: np.ndarray
+    diffusivity: np.ndarray
+    partition: np.ndarray
+
+    @property
+    def n_cells(self) -> int:
+        return int(self.centres.size)
+
+    @property
+    def n_layers(self) -> int:
+        return int(self.layer_starts.size - 1)
+
+    @property
+    def cells_per_layer(self) -> tuple[int, ...]:
+        return tuple(int(n) for n in np.diff(self.layer_starts))
+
+    def layer_cells(self, layer: int) -> slice:
+        """Slice of the cells of one layer."""
+        return slice(int(self.layer_starts[layer]), int(self.layer_starts[layer + 1]))
+
+
+@dataclass(frozen=True)
+class DiffusionOperator:
+    """The assembled diffusion operator: ``ab @ C = rhs`` is the reaction-free balance.
+
+    Attributes
+    ----------
+    ab : ndarray, shape (3, N)
+        Tridiagonal matrix in ``scipy.linalg.solve_banded((1, 1), ...)`` layout: ``ab[0, 1:]``
+        the upper, ``ab[1]`` the main and ``ab[2, :-1]`` the lower diagonal. Units m^n * m/s.
+    rhs : ndarray, shape (N,)
+        Boundary contributions plus ``V * S`` of any source, amount/(m^(2-n) s).
+    west_coefficient, east_coefficient, face_constant : ndarray, shape (N+1,)
+        ``Q[f] = west_coefficient[f] * C[f-1] - east_coefficient[f] * C[f] + face_constant[f]``
+        (r^n-weighted outward flux; terms referring to cells outside the mesh are zero).
+    """
+
+    ab: np.ndarray
+    rhs: np.ndarray
+    west_coefficient: np.ndarray
+    east_coefficient: np.ndarray
+    face_constant: np.ndarray
+
+    def face_fluxes(self, c: np.ndarray) -> np.ndarray:
+        """r^n-weighted outward flux Q at every face, amount/(m^(2-n) s), shape (N+1,)."""
+        q = self.face_constant.copy()
+        q[1:] += self.west_coefficient[1:] * c
+        q[:-1] -= self.east_coefficient[:-1] * c
+        return q
+
+    def apply(self, c: np.ndarray) -> np.ndarray:
+        """The diffusion part of the cell balance, ``ab @ c``, shape (N,)."""
+        out = self.ab[1] * c
+        out[:-1] += self.ab[0, 1:] * c[1:]
+        out[1:] += self.ab[2, :-1] * c[:-1]
+        return out
+
+
+@dataclass(frozen=True)
+class ReactionTerms:
+    """Per-cell reaction data, fixed for a mesh and problem.
+
+    Attributes
+    ----------
+    first_order : ndarray, shape (N,)
+        Linear rate constant k (1/s) of each cell (0 where not first order).
+    vmax, km : ndarray, shape (N,)
+        Michaelis-Menten constants (0 where not Michaelis-Menten).
+    zero_order : ndarray, shape (N,)
+        Zero-order rate Q (amount/(m^3 s)) of each cell (0 where not zero order).
+    """
+
+    first_order: np.ndarray
+    vmax: np.ndarray
+    km: np.ndarray
+    zero_order: np.ndarray
+
+    @property
+    def has_michaelis_menten(self) -> bool:
+        return bool(np.any(self.vmax > 0.0))
+
+    @property
+    def has_zero_order(self) -> bool:
+        return bool(np.any(self.zero_order > 0.0))
+
+    def smooth_rate(self, c: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+        """First-order plus Michaelis-Menten consumption and its derivative at cell values c.
+
+        Returns (R, dR/dC) in amount/(m^3 s) and 1/s. Zero order is left out: it is handled
+        as a complementarity condition by the solvers.
+        """
+        rate = self.first_order * c
+        slope = self.first_order.copy()
+        if self.has_michaelis_menten:
+            mm = self.vmax > 0.0
+            denominator = self.km[mm] + c[mm]
+            rate[mm] += self.vmax[mm] * c[mm] / denominator
+            slope[mm] += self.vmax[mm] * self.km[mm] / denominator**2
+        return rate, slope
+
+
+def _check_cells(cells_per_layer: Sequence[int] | int, n_layers: int) -> tuple[int, ...]:
+    if isinstance(cells_per_layer, int | np.integer):
+        counts = (int(cells_per_layer),) * n_layers
+    else:
+        counts = tuple(int(n) for n in cells_per_layer)
+    if len(counts) != n_layers:
+        raise ValueError(
+            f"cells_per_layer: expected {n_layers} counts (one per layer), got {len(counts)}"
+        )
+    if min(counts) < 2:
+        raise ValueError(f"cells_per_layer: every layer needs at least 2 cells, got {counts}")
+    return counts
+
+
+def build_mesh(problem: Problem, cells_per_layer: Sequence[int] | int | None = None) -> Mesh:
+    """Build the cell-centred mesh, uniform within each layer.
+
+    Parameters
+    ----------
+    problem : Problem
+        The normalised case (SI).
+    cells_per_layer : int or sequence of int, optional
+        Cells in each layer (one int for all layers); default ``default_cells_per_layer``.
+
+    Returns
+    -------
+    Mesh
+    """
+    if cells_per_layer is None:
+        cells_per_layer = default_cells_per_layer(problem)
+    counts = _check_cells(cells_per_layer, len(problem.layers))
+    n = problem.exponent
+    edges = problem.edges
+    pieces = [np.linspace(edges[j], edges[j + 1], counts[j] + 1) for j in range(len(counts))]
+    faces = np.concatenate([pieces[0]] + [p[1:] for p in pieces[1:]])
+    # the interface positions are the exact layer edges (no round-off drift across layers)
+    layer_starts = np.concatenate(([0], np.cumsum(counts)))
+    faces[layer_starts] = edges
+    centres = 0.5 * (faces[:-1] + faces[1:])
+    face_areas = faces**n if n else np.ones_like(faces)
+    powered = faces ** (n + 1)
+    volumes = (powered[1:] - powered[:-1]) / (n + 1)
+    layer_index = np.repeat(np.arange(len(counts)), counts)
+    diffusivity = np.array([ly.diffusivity for ly in problem.layers])[layer_index]
+    partition = np.array([ly.partition for ly in problem.layers])[layer_index]
+    return Mesh(
+        exponent=n,
+        edges=edges,
+        faces=faces,
+        centres=centres,
+        face_areas=face_areas,
+        volumes=volumes,
+        west_gaps=centres - faces[:-1],
+        east_gaps=faces[1:] - centres,
+        layer_index=layer_index,
+        layer_starts=layer_starts,
+        diffusivity=diffusivity,
+        partition=partition,
+    )
+
+
+def _boundary_face(problem: Problem, side: str, area: float, gap: float, diffusivity: float):
+    """(conductance g, far value C_far, fixed flux into the body) of one boundary face.
+
+    For ``concentration`` and ``mass_transfer`` faces the r^n-weighted flux into the body is
+    ``g * (C_far - C_P)``; for ``flux``/``symmetry`` faces it is ``area * value``.
+    """
+    boundary = problem.inner_boundary if side == "inner" else problem.outer_boundary
+    k_face = problem.face_partition(side)
+    if area == 0.0 or boundary.kind == "symmetry":
+        return 0.0, 0.0, 0.0
+    if boundary.kind == "concentration":
+        return area * diffusivity / gap, k_face * boundary.value, 0.0
+    if boundary.kind == "mass_transfer":
+        if boundary.coefficient <= 0.0:
+            raise ValueError(
+                f"{side}_boundary.coefficient: expected a positive mass-transfer coefficient "
+                f"(m/s), got {boundary.coefficient!r}"
+            )
+        return area / (k_face / boundary.coefficient + gap / diffusivity), k_face * boundary.bulk, 0.0
+    if boundary.kind == "flux":
+        return 0.0, 0.0, area * boundary.value
+    raise ValueError(f"{side}_boundary.kind: unknown boundary kind {boundary.kind!r}")
+
+
+def assemble_diffusion(
+    mesh: Mesh,
+    problem: Problem,
+    source: Callable[[np.ndarray], np.ndarray] | None = None,
+) -> DiffusionOperator:
+    """Assemble the tridiagonal diffusion operator and its right-hand side.
+
+    Parameters
+    ----------
+    mesh : Mesh
+    problem : Problem
+    source : callable, optional
+        Production source S(r) in amount/(m^3 s), evaluated at the cell centres (midpoint
+        rule); for verification by manufactured solutions.
+
+    Returns
+    -------
+    DiffusionOperator
+        ``ab @ C + V * R(C) = rhs`` is the discrete steady balance.
+    """
+    n_cells = mesh.n_cells
+    d = mesh.diffusivity
+    k = mesh.partition
+    west = np.zeros(n_cells + 1)
+    east = np.zeros(n_cells + 1)
+    constant = np.zeros(n_cells + 1)
+
+    # interior faces: Q = (C_P/K_P - C_E/K_E) * A / (d_P/(D_P K_P) + d_E/(D_E K_E))
+    resistance = mesh.east_gaps[:-1] / (d[:-1] * k[:-1]) + mesh.west_gaps[1:] / (d[1:] * k[1:])
+    conductance = mesh.face_areas[1:-1] / resistance
+    west[1:-1] = conductance / k[:-1]
+    east[1:-1] = conductance / k[1:]
+
+    g_in, far_in, fixed_in = _boundary_face(
+        problem, "inner", float(mesh.face_areas[0]), float(mesh.west_gaps[0]), float(d[0])
+    )
+    east[0] = g_in
+    constant[0] = g_in * far_in + fixed_in
+    g_out, far_out, fixed_out = _boundary_face(
+        problem, "outer", float(mesh.face_areas[-1]), float(mesh.east_gaps[-1]), float(d[-1])
+    )
+    west[-1] = g_out
+    constant[-1] = -g_out * far_out - fixed_out
+
+    ab = np.zeros((3, n_cells))
+    ab[0, 1:] = -east[1:-1]
+    ab[1] = west[1:] + east[:-1]
+    ab[2, :-1] = -west[1:-1]
+    rhs = constant[:-1] - constant[1:]
+    if source is not None:
+        rhs = rhs + mesh.volumes * np.asarray(source(mesh.centres), dtype=float)
+    return DiffusionOperator(
+        ab=ab, rhs=rhs, west_coefficient=west, east_coefficient=east, face_constant=constant
+    )
+
+
+def reaction_terms(mesh: Mesh, problem: Problem) -> ReactionTerms:
+    """Per-cell reaction constants of the problem on this mesh."""
+    n_layers = len(problem.layers)
+    first = np.zeros(n_layers)
+    vmax = np.zeros(n_layers)
+    km = np.zeros(n_layers)
+    zero = np.zeros(n_layers)
+    for j, layer in enumerate(problem.layers):
+        reaction = layer.reaction
+        if reaction.kind == "first_order":
+            first[j] = reaction.rate_constant
+        elif reaction.kind == "michaelis_menten":
+            if reaction.km <= 0.0:
+                raise ValueError(
+                    f"layers[{j}].reaction.km: expected a positive Michaelis constant, "
+                    f"got {reaction.km!r}"
+                )
+            vmax[j] = reaction.vmax
+            km[j] = reaction.km
+        elif reaction.kind == "zero_order":
+            zero[j] = reaction.rate
+        elif reaction.kind != "none":
+            raise ValueError(f"layers[{j}].reaction.kind: unknown kind {reaction.kind!r}")
+    index = mesh.layer_index
+    return ReactionTerms(
+        first_order=first[index], vmax=vmax[index], km=km[index], zero_order=zero[index]
+    )
+
+
+def face_flux_densities(mesh: Mesh, face_fluxes: np.ndarray) -> np.ndarray:
+    """Outward flux density J = Q / r_f^n at every face (0 at a solid centre), amount/(m^2 s)."""
+    areas = mesh.face_areas
+    return np.divide(face_fluxes, areas, out=np.zeros_like(face_fluxes), where=areas > 0.0)
+
+
+def surface_values(mesh: Mesh, c: np.ndarray, flux_density: np.ndarray):
+    """Material-side concentrations on both sides of every face from the half-cell relations.
+
+    Parameters
+    ----------
+    mesh : Mesh
+    c : ndarray, shape (N,)
+        Cell concentrations.
+    flux_density : ndarray, shape (N+1,)
+        Outward flux density at the faces (``face_flux_densities``).
+
+    Returns
+    -------
+    (west_side, east_side) : tuple of ndarray, shape (N+1,)
+        ``west_side[f]`` is the value at face f seen from cell f-1 (``C - J d / D``),
+        ``east_side[f]`` seen from cell f (``C + J d / D``); entries with no such cell are NaN.
+    """
+    d = mesh.diffusivity
+    west_side = np.full(mesh.n_cells + 1, np.nan)
+    east_side = np.full(mesh.n_cells + 1, np.nan)
+    west_side[1:] = c - flux_density[1:] * mesh.east_gaps / d
+    east_side[:-1] = c + flux_density[:-1] * mesh.west_gaps / d
+    return west_side, east_side
+
+
+def layer_profiles(mesh: Mesh, c: np.ndarray, flux_density: np.ndarray):
+    """Nodes of the piecewise-linear profile of each layer.
+
+    Returns a list, one entry per layer, of ``(positions, concentrations, face_positions,
+    face_flux_densities)``: the layer's inner edge, its cell centres and its outer edge with the
+    reconstructed edge values (so partition jumps are kept), and its faces with their outward
+    flux densities.
+    """
+    west_side, east_side = surface_values(mesh, c, flux_density)
+    profiles = []
+    for j in range(mesh.n_layers):
+        first, last = int(mesh.layer_starts[j]), int(mesh.layer_starts[j + 1])
+        positions = np.concatenate(([mesh.faces[first]], mesh.centres[first:last], [mesh.faces[last]]))
+        values = np.concatenate(([east_side[first]], c[first:last], [west_side[last]]))
+        profiles.append(
+            (positions, values, mesh.faces[first : last + 1], flux_density[first : last + 1])
+        )
+    return profiles
+
+
+def _locate(edges: np.ndarray, r: np.ndarray, layer: int | None) -> np.ndarray:
+    tolerance = 1e-12 * max(abs(edges[-1]), abs(edges[0]), edges[-1] - edges[0])
+    if layer is not None:
+        if not 0 <= layer < edges.size - 1:
+            raise ValueError(f"layer: expected an index in 0..{edges.size - 2}, got {layer}")
+        low, high = edges[layer] - tolerance, edges[layer + 1] + tolerance
+        if np.any((r < low) | (r > high)):
+            raise ValueError(
+                f"r: expected positions within layer {layer} [{edges[layer]}, {edges[layer + 1]}] m"
+            )
+        return np.full(r.shape, layer, dtype=int)
+    if np.any((r < edges[0] - tolerance) | (r > edges[-1] + tolerance)):
+        raise ValueError(f"r: expected positions within the body [{edges[0]}, {edges[-1]}] m")
+    # side="left": a position exactly on an interface belongs to the inner layer
+    return np.clip(np.searchsorted(edges, r, side="left") - 1, 0, edges.size - 2)
+
+
+def make_profile_functions(mesh: Mesh, c: np.ndarray, flux_density: np.ndarray):
+    """``(concentration_at, flux_at)`` callables as ``SteadySolution`` describes them.
+
+    Both take positions r (m, scalar or array) and an optional ``layer`` index, and interpolate
+    linearly between the nodes of ``layer_profiles`` (flux: between faces).
+    """
+    profiles = layer_profiles(mesh, c, flux_density)
+    edges = mesh.edges
+
+    def _evaluate(r, layer, which):
+        r_array = np.atleast_1d(np.asarray(r, dtype=float))
+        owners = _locate(edges, r_array, layer)
+        out = np.empty_like(r_array)
+        for j in np.unique(owners):
+            chosen = owners == j
+            positions, values = profiles[j][0 + 2 * which], profiles[j][1 + 2 * which]
+            out[chosen] = np.interp(r_array[chosen], positions, values)
+        return out if np.ndim(r) else out[0]
+
+    def concentration_at(r, layer: int | None = None):
+        return _evaluate(r, layer, 0)
+
+    def flux_at(r, layer: int | None = None):
+        return _evaluate(r, layer, 1)
+
+    return concentration_at, flux_at
+
+
+def boundary_concentration_scale(problem: Problem) -> float:
+    """Largest material-side concentration fixed by a concentration or mass-transfer face.
+
+    Returns 0.0 when no face fixes a concentration (flux or symmetry faces only).
+    """
+    scale = 0.0
+    for side, boundary in (("inner", problem.inner_boundary), ("outer", problem.outer_boundary)):
+        k_face = problem.face_partition(side)
+        if boundary.kind == "concentration":
+            scale = max(scale, abs(k_face * boundary.value))
+        elif boundary.kind == "mass_transfer":
+            scale = max(scale, abs(k_face * boundary.bulk))
+    return scale
+
+
+def default_cells_per_layer(problem: Problem) -> tuple[int, ...]:
+    """Cells per layer by the rule documented at ``MIN_CELLS_PER_LAYER`` (module constants)."""
+    n = problem.exponent
+    edges = problem.edges
+    resistances = []
+    for j, layer in enumerate(problem.layers):
+        middle = 0.5 * (edges[j] + edges[j + 1])
+        resistances.append(layer.thickness / (layer.diffusivity * layer.partition * middle**n))
+    resistances = np.array(resistances)
+    shares = resistances / resistances.sum()
+    c_scale = boundary_concentration_scale(problem)
+    counts = []
+    for j, layer in enumerate(problem.layers):
+        cells = max(MIN_CELLS_PER_LAYER, int(np.ceil(RESISTANCE_CELLS * shares[j])))
+        reaction = layer.reaction
+        inverse_length = 0.0
+        if reaction.kind == "first_order":
+            inverse_length = np.sqrt(reaction.rate_constant / layer.diffusivity)
+        elif reaction.kind == "michaelis_menten" and reaction.km > 0.0:
+            inverse_length = np.sqrt(reaction.vmax / reaction.km / layer.diffusivity)
+        elif reaction.kind == "zero_order" and reaction.rate > 0.0 and c_scale > 0.0:
+            inverse_length = np.sqrt(reaction.rate / (2.0 * layer.diffusivity * c_scale))
+        if inverse_length > 0.0:
+            cells = max(cells, int(np.ceil(layer.thickness * inverse_length / THIELE_CELL_LIMIT)))
+        counts.append(min(cells, MAX_CELLS_PER_LAYER))
+    return tuple(counts)
+
+
+def solve_tridiagonal(ab: np.ndarray, rhs: np.ndarray) -> np.ndarray:
+    """Solve ``ab @ x = rhs`` for a tridiagonal matrix in ``solve_banded((1, 1))`` layout.
+
+    Calls LAPACK ``dgtsv`` (Gaussian elimination with partial pivoting), the routine that
+    ``scipy.linalg.solve_banded`` itself uses for one sub- and one super-diagonal, directly,
+    without the input checks that dominate its cost on small systems. ``ab`` is not modified.
+
+    Raises
+    ------
+    scipy.linalg.LinAlgError
+        When the matrix is singular (e.g. a body with flux or symmetry faces only and no
+        reaction, which has no unique steady state).
+    """
+    _, _, _, solution, info = dgtsv(ab[2, :-1], ab[1], ab[0, 1:], rhs)
+    if info > 0:
+        raise LinAlgError(f"singular tridiagonal matrix (zero pivot at row {info})")
+    if info < 0:
+        raise ValueError(f"illegal value in argument {-info} of dgtsv")
+    return solution
