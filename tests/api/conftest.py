@@ -75,3 +75,28 @@ def tokens(store: Store) -> dict[str, str]:
     """role -> bearer token; each role's token has its own person's name."""
     return {role: create_token(store, role=role, name=name)[1]
             for role, name in ROLE_NAMES.items()}
+
+
+@pytest.fixture
+def controlled_engine(monkeypatch: pytest.MonkeyPatch):
+    """Replace the engine with one whose figures the test chooses, for tests of the service's
+    own logic (sign-off, sealing, drift) that must not depend on the engine's numbers.
+
+    Set ``controlled_engine.quantities`` (name -> value) before a run executes.
+    """
+    import worker.engine
+    from tests.api.support import controlled_result
+
+    class Controlled:
+        quantities: dict = {"flux_outer": 2.0e-6, "flux_inner": 2.0e-6}
+        status = "succeeded"
+        calls = 0
+
+        def __call__(self, case: dict) -> dict:
+            self.calls += 1
+            return controlled_result(case, dict(self.quantities), status=self.status,
+                                     verdict="pass" if self.status == "succeeded" else "fail")
+
+    engine = Controlled()
+    monkeypatch.setattr(worker.engine, "check_case", engine)
+    return engine
