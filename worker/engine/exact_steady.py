@@ -36,10 +36,16 @@ import math
 import numpy as np
 
 from worker.engine.basis_functions import LayerBasis
+from worker.engine.depletion_exact import solve_depleted
 from worker.engine.graded_quadrature import graded_gauss_rule
 from worker.engine.layered_profile import LayeredProfile
-from worker.engine.model import BOUNDARY_KINDS, GEOMETRY_EXPONENT, REACTION_KINDS, Problem, \
-    SteadySolution
+from worker.engine.model import (
+    BOUNDARY_KINDS,
+    GEOMETRY_EXPONENT,
+    REACTION_KINDS,
+    Problem,
+    SteadySolution,
+)
 from worker.engine.reaction_measures import (  # noqa: F401  (re-exported helpers)
     effectiveness_factor,
     thiele_modulus,
@@ -304,8 +310,8 @@ def solve_linear(problem: Problem) -> tuple[SteadySolution, list[float]]:
 def _zero_order_minimum(problem: Problem, index: int, basis: LayerBasis, piece) -> float:
     """Smallest C in a zero-order layer: at an edge or where the flux vanishes inside it.
 
-    In a layer of constant consumption Q, r^n J(r) = a^n J(a) + Q (r^(n+1) - a^(n+1))/(n+1),
-    so J = 0 at most once, at r0^(n+1) = a^(n+1) - (n+1) a^n J(a)/Q; C is smallest there.
+    In a layer of constant consumption Q, r^n J(r) = a^n J(a) - Q (r^(n+1) - a^(n+1))/(n+1),
+    so J = 0 at most once, at r0^(n+1) = a^(n+1) + (n+1) a^n J(a)/Q; C is smallest there.
     """
     reaction = problem.layers[index].reaction
     if reaction.kind != "zero_order" or reaction.rate == 0.0:
@@ -314,7 +320,7 @@ def _zero_order_minimum(problem: Problem, index: int, basis: LayerBasis, piece) 
     values, gradients = piece(np.array([a, b]))
     candidates = [float(values[0]), float(values[1])]
     flux_a = -basis.diffusivity * float(gradients[0])
-    stationary = a ** (n + 1) - (n + 1) * a**n * flux_a / reaction.rate
+    stationary = a ** (n + 1) + (n + 1) * a**n * flux_a / reaction.rate
     if stationary > 0.0:
         r0 = stationary ** (1.0 / (n + 1))
         if a < r0 < b:
@@ -360,4 +366,4 @@ def solve_exact(problem: Problem) -> SteadySolution | None:
     solution, minima = solve_linear(problem)
     if not solution.success or min(minima, default=math.inf) >= 0.0:
         return solution
-    return None  # depleted zero-order zone: no closed form offered yet
+    return solve_depleted(problem)
