@@ -134,6 +134,13 @@ class Quantity(fields.Field):
     def _serialize(self, value: Any, attr: str | None, obj: Any, **kwargs: Any) -> Any:
         return value
 
+    def _value_bound(self) -> dict:
+        # Every accepted unit has a positive factor to SI, so the sign bound carries over.
+        if self.minimum is None:
+            return {"type": "number"}
+        key = "exclusiveMinimum" if self.exclusive else "minimum"
+        return {"type": "number", key: self.minimum}
+
     def json_schema(self) -> dict:
         spec = KINDS[self.kind]
         examples = list(spec.examples)
@@ -150,7 +157,7 @@ class Quantity(fields.Field):
             {
                 "type": "object",
                 "properties": {
-                    "value": {"type": "number"},
+                    "value": self._value_bound(),
                     "unit": {"type": "string", "minLength": 1, "maxLength": MAX_UNIT_LENGTH},
                 },
                 "required": ["value", "unit"],
@@ -294,6 +301,11 @@ class StrictSchema(Schema):
         }
 
 
+def _about(description: str, **extra: Any) -> dict:
+    """Field metadata carried into the JSON Schema export (``description``, ``default``)."""
+    return {"description": description, **extra}
+
+
 def _kind_field(kind: str) -> fields.String:
     return fields.String(required=True, validate=validate.OneOf([kind], error="must be {choices}"))
 
@@ -347,9 +359,20 @@ class LayerSchema(StrictSchema):
     )
     thickness = _positive("length", required=True)
     diffusivity = _positive("diffusivity", required=True)
-    partition = PlainNumber(validate=validate.Range(min=0.0, min_inclusive=False))
-    reaction = ByKind(REACTION_SCHEMAS, "a reaction")
-    initial = _non_negative("concentration")
+    partition = PlainNumber(
+        validate=validate.Range(min=0.0, min_inclusive=False),
+        metadata=_about("equilibrium partition coefficient against the reference fluid "
+                        "(C_layer = partition x C_fluid)", default=1.0),
+    )
+    reaction = ByKind(
+        REACTION_SCHEMAS,
+        "a reaction",
+        metadata=_about("consumption in the layer", default={"kind": "none"}),
+    )
+    initial = _non_negative(
+        "concentration",
+        metadata=_about("concentration in the layer at t = 0 (transient cases)", default=0),
+    )
 
 
 class ConcentrationBoundarySchema(StrictSchema):
@@ -449,9 +472,19 @@ class CaseSchema(StrictSchema):
         required=True,
         validate=validate.OneOf(GEOMETRIES, error="must be one of {choices}; got {input!r}"),
     )
-    inner = _non_negative("length", required=True, bare_zero=True)
-    length = _positive("length")
-    area = _positive("area")
+    inner = _non_negative(
+        "length",
+        required=True,
+        bare_zero=True,
+        metadata=_about("position of the inner face: x for a slab, the radius otherwise; 0 for "
+                        "a solid cylinder or sphere"),
+    )
+    length = _positive(
+        "length", metadata=_about("cylinder length; with it, totals in amount/s are reported")
+    )
+    area = _positive(
+        "area", metadata=_about("slab area; with it, totals in amount/s are reported")
+    )
     layers = fields.List(
         fields.Nested(LayerSchema),
         required=True,
@@ -460,7 +493,11 @@ class CaseSchema(StrictSchema):
     inner_boundary = ByKind(BOUNDARY_SCHEMAS, "a boundary", required=True)
     outer_boundary = ByKind(BOUNDARY_SCHEMAS, "a boundary", required=True)
     regime = ByKind(REGIME_SCHEMAS, "a regime", required=True)
-    probes = fields.List(_non_negative("length"), validate=_at_most(MAX_PROBES, "probes"))
+    probes = fields.List(
+        _non_negative("length"),
+        validate=_at_most(MAX_PROBES, "probes"),
+        metadata=_about("positions at which the concentration is reported"),
+    )
     tolerances = Tolerances()
 
 

@@ -101,8 +101,11 @@ class _Converter:
             out = {}
         for validator in field.validators:
             out.update(self.validator(validator, out))
-        if field.metadata.get("description"):
-            out["description"] = field.metadata["description"]
+        about = field.metadata.get("description")
+        if about:
+            out["description"] = f"{about}: {out['description']}" if "description" in out else about
+        if "default" in field.metadata:
+            out["default"] = field.metadata["default"]
         if field.allow_none:
             out = self.nullable(out)
         return out

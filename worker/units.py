@@ -289,7 +289,8 @@ def unit_to_si(unit: str) -> tuple[decimal.Decimal, frozenset[tuple[str, float]]
     ureg = registry()
     try:
         parsed = ureg.parse_units(unit)
-        factor = decimal.Decimal(ureg.Quantity(decimal.Decimal(1), parsed).to_base_units().magnitude)
+        in_base_units = ureg.Quantity(decimal.Decimal(1), parsed).to_base_units()
+        factor = decimal.Decimal(in_base_units.magnitude)
     except (
         pint.errors.PintError,
         ValueError,
@@ -325,6 +326,13 @@ def format_dimensionality(dims) -> str:
     return text
 
 
+def _kind_named(name: str) -> Kind:
+    try:
+        return KINDS[name]
+    except KeyError:
+        raise ValueError(f"unknown kind {name!r}; known: {', '.join(KINDS)}") from None
+
+
 def _expected_text(kind: Kind) -> str:
     dims = " or ".join(format_dimensionality(d) for d in kind.dimensions.values())
     examples = " or ".join(f'"{e}"' for e in kind.examples)
@@ -336,7 +344,8 @@ def _split(raw: Any, kind: Kind, path: str) -> tuple[decimal.Decimal, str, str]:
     if isinstance(raw, str):
         if len(raw) > MAX_QUANTITY_STRING_LENGTH:
             raise UnitError(
-                path, f"{kind.expected}, got a string longer than {MAX_QUANTITY_STRING_LENGTH} characters"
+                path,
+                f"{kind.expected}, got a string longer than {MAX_QUANTITY_STRING_LENGTH} characters",
             )
         match = _QUANTITY_STRING_RE.match(raw)
         if match is None:
@@ -347,7 +356,8 @@ def _split(raw: Any, kind: Kind, path: str) -> tuple[decimal.Decimal, str, str]:
             if number_text.lower().lstrip("+-") in ("nan", "inf", "infinity"):
                 raise UnitError(path, f"{kind.expected}, got {shown}: the number is not finite")
             raise UnitError(
-                path, f'{kind.expected}, got {shown}: "{number_text}" is not a number followed by a space'
+                path,
+                f'{kind.expected}, got {shown}: "{number_text}" is not a number followed by a space',
             )
         if not math.isfinite(float(number_text)):
             raise UnitError(path, f"{kind.expected}, got {shown}: the number is out of range")
@@ -408,7 +418,7 @@ def parse_with_basis(raw: Any, kind: str, path: str = "") -> tuple[float, str | 
     UnitError
         Missing or unknown unit, wrong dimension, NaN or infinity, malformed input.
     """
-    spec = KINDS[kind]
+    spec = _kind_named(kind)
     number, unit, shown = _split(raw, spec, path)
     try:
         factor, dims = unit_to_si(unit)
@@ -421,7 +431,7 @@ def parse_with_basis(raw: Any, kind: str, path: str = "") -> tuple[float, str | 
             except decimal.DecimalException:
                 value = math.inf
             if not math.isfinite(value):
-                raise UnitError(path, f"{shown} overflows in SI units")
+                raise UnitError(path, f"{spec.expected}, got {shown}: out of range in SI units")
             return value, basis
     raise UnitError(path, f"{spec.expected}, got {shown} ({format_dimensionality(dims)})")
 
@@ -454,7 +464,7 @@ def si_unit(kind: str, basis: str | None = None) -> str:
 
     Kinds without a basis ignore ``basis``; kinds with one require ``"molar"`` or ``"mass"``.
     """
-    spec = KINDS[kind]
+    spec = _kind_named(kind)
     if not spec.has_basis:
         return spec.si_units[None]
     if basis not in BASES:

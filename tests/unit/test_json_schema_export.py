@@ -138,6 +138,10 @@ BAD_DOCUMENTS = {
     "quantity object without unit": lambda d: d["layers"][0].update(thickness={"value": 1}),
     "quantity object extra key": lambda d: d["layers"][0].update(
         thickness={"value": 1, "unit": "mm", "note": "x"}),
+    "negative thickness, object form": lambda d: d["layers"][0].update(
+        thickness={"value": -1, "unit": "mm"}),
+    "zero diffusivity, object form": lambda d: d["layers"][0].update(
+        diffusivity={"value": 0, "unit": "m^2/s"}),
     "partition true": lambda d: d["layers"][0].update(partition=True),
     "partition zero": lambda d: d["layers"][0].update(partition=0),
     "unknown reaction": lambda d: d["layers"][0].update(reaction={"kind": "second_order"}),

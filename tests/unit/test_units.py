@@ -141,6 +141,15 @@ def test_non_finite_object_values(number):
 
 def test_number_out_of_float_range():
     assert "out of range" in _error("1e400 m", "length").message
+    # in range as written, out of range once converted (1e300 km = 1e303 m is fine; 1e306 km
+    # is 1e309 m, beyond the largest double, about 1.8e308)
+    assert parse_quantity("1e300 km", "length") == pytest.approx(1e303)
+    assert "out of range in SI units" in _error("1e306 km", "length").message
+
+
+def test_unknown_kind_is_a_programming_error():
+    with pytest.raises(ValueError, match="unknown kind 'speed'"):
+        parse_quantity("1 m/s", "speed")
 
 
 def test_unknown_unit():
