@@ -1,0 +1,41 @@
+"""Celery configuration: limits, visibility timeout, nightly schedule."""
+
+from __future__ import annotations
+
+import pytest
+
+from service.settings import DEFAULTS, parse_nightly_at
+from worker.celery_app import celery_config, make_celery
+
+
+def test_visibility_timeout_exceeds_the_hard_limit_by_default():
+    config = celery_config(DEFAULTS)
+    assert config["broker_transport_options"]["visibility_timeout"] > config["task_time_limit"]
+    assert config["task_soft_time_limit"] < config["task_time_limit"]
+    assert config["task_acks_late"] and config["worker_prefetch_multiplier"] == 1
+    assert config["result_backend"] is None
+
+
+def test_settings_that_would_run_long_solves_twice_are_refused():
+    with pytest.raises(ValueError, match="VISIBILITY_TIMEOUT"):
+        celery_config({**DEFAULTS, "BROKER_VISIBILITY_TIMEOUT": 100, "TASK_TIME_LIMIT": 360})
+    with pytest.raises(ValueError, match="SOFT_TIME_LIMIT"):
+        celery_config({**DEFAULTS, "TASK_SOFT_TIME_LIMIT": 400})
+
+
+def test_nightly_schedule_follows_the_setting():
+    app = make_celery({**DEFAULTS, "NIGHTLY_AT": "04:05", "BROKER_URL": "redis://x:1/0"})
+    entry = app.conf.beat_schedule["nightly-reverify"]
+    assert entry["task"] == "fluxproof.reverify_all"
+    assert entry["schedule"].hour == {4} and entry["schedule"].minute == {5}
+    assert app.conf.broker_url == "redis://x:1/0"
+
+
+@pytest.mark.parametrize("text", ["2:3:0", "25:00", "02:60", "late", ""])
+def test_bad_nightly_time_is_named(text):
+    with pytest.raises(ValueError, match="FLUXPROOF_NIGHTLY_AT"):
+        parse_nightly_at(text)
+
+
+def test_good_nightly_time():
+    assert parse_nightly_at("23:59") == (23, 59)
