@@ -12,13 +12,16 @@ from __future__ import annotations
 from collections.abc import Mapping
 from dataclasses import dataclass
 from types import MappingProxyType
-from typing import Any
+from typing import TYPE_CHECKING, Any
 
 from marshmallow import ValidationError
 
 from schemas.case import CaseSchema, SIValue, case_basis, case_rule_errors
 from schemas.errors import CaseError, flatten_messages
 from worker.units import si_unit
+
+if TYPE_CHECKING:
+    from worker.engine.model import Problem
 
 _CASE_SCHEMA = CaseSchema()
 
@@ -54,7 +57,7 @@ class ValidatedCase:
         ``"molar"`` or ``"mass"``.
     """
 
-    problem: Any
+    problem: Problem
     normalised: dict
     original: dict
     basis: str
@@ -134,7 +137,7 @@ def _number(obj: Mapping, key: str, default: float = 0.0) -> float:
     return item.value if isinstance(item, SIValue) else default
 
 
-def _problem(data: Mapping, basis: str):
+def _problem(data: Mapping, basis: str) -> Problem:
     # Imported here: worker.engine's package may import this package in turn.
     from worker.engine import model
 

@@ -63,6 +63,28 @@ TOLERANCE_KEY_PATTERN = r"^[a-z_]+(\.[a-z0-9_]+)?$"
 _TOLERANCE_KEY_RE = re.compile(TOLERANCE_KEY_PATTERN)
 
 
+def portable_end(pattern: str) -> str:
+    """Make a final ``$`` mean end of string under both Python's and ECMA-262's rules.
+
+    Python's ``$`` (and so the ``jsonschema`` library's) also matches before a final newline;
+    the negative look-ahead ``(?![\\s\\S])`` after it rules that out in both dialects.
+    """
+    return pattern + r"(?![\s\S])" if pattern.endswith("$") else pattern
+
+
+class WholeMatch(validate.Regexp):
+    """``validate.Regexp`` that must match the whole string.
+
+    Python's ``$`` also matches before a final newline, JSON Schema's (ECMA-262) does not; a full
+    match makes both read ``^...$`` the same way.
+    """
+
+    def __call__(self, value: str) -> str:
+        if not isinstance(value, str) or self.regex.fullmatch(value) is None:
+            raise ValidationError(self._format_error(value))
+        return value
+
+
 @dataclass(frozen=True)
 class SIValue:
     """A loaded dimensional value: ``value`` in the SI unit of ``kind`` on ``basis``."""
@@ -244,7 +266,7 @@ class Tolerances(fields.Field):
         loaded: dict[str, float] = {}
         errors: dict[str, list[str]] = {}
         for key, limit in value.items():
-            if not isinstance(key, str) or not _TOLERANCE_KEY_RE.match(key):
+            if not isinstance(key, str) or not _TOLERANCE_KEY_RE.fullmatch(key):
                 errors[str(key)] = [
                     "not a check name: expected '<check>' or '<check>.<quantity>' "
                     "(lower case letters, digits after the dot, underscores)"
@@ -275,7 +297,7 @@ class Tolerances(fields.Field):
         return {
             "type": "object",
             "description": "overrides of the default limits of the checks, by check name",
-            "propertyNames": {"pattern": rf"^({names})(\.[a-z0-9_]+)?$"},
+            "propertyNames": {"pattern": portable_end(rf"^({names})(\.[a-z0-9_]+)?$")},
             "additionalProperties": {"type": "number", "exclusiveMinimum": 0},
         }
 
@@ -461,7 +483,7 @@ class CaseSchema(StrictSchema):
         fields.String(
             validate=[
                 _at_most(MAX_TAG_LENGTH, "characters"),
-                validate.Regexp(
+                WholeMatch(
                     TAG_PATTERN, error="a tag is one or more letters, digits, '.', '_' or '-'"
                 ),
             ]

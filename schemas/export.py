@@ -24,7 +24,7 @@ from typing import Any
 
 from marshmallow import INCLUDE, RAISE, Schema, fields, validate
 
-from schemas.case import ByKind, CaseSchema
+from schemas.case import ByKind, CaseSchema, WholeMatch, portable_end
 from schemas.result import ResultSchema
 
 DIALECT = "https://json-schema.org/draft/2020-12/schema"
@@ -142,6 +142,8 @@ class _Converter:
         if isinstance(validator, validate.OneOf):
             choices = list(validator.choices)
             return {"const": choices[0]} if len(choices) == 1 else {"enum": choices}
+        if isinstance(validator, WholeMatch):
+            return {"pattern": portable_end(validator.regex.pattern)}
         if isinstance(validator, validate.Regexp):
             return {"pattern": validator.regex.pattern}
         return dict(getattr(validator, "json_schema", {}))

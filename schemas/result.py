@@ -13,7 +13,7 @@ from typing import Any
 
 from marshmallow import INCLUDE, Schema, ValidationError, fields, validate, validates_schema
 
-from schemas.case import PlainInteger, PlainNumber, StrictSchema
+from schemas.case import PlainInteger, PlainNumber, StrictSchema, WholeMatch
 
 STATUSES = ("queued", "running", "succeeded", "failed")
 VERDICTS = ("pass", "fail")
@@ -160,7 +160,7 @@ class ProvenanceSchema(OpenSchema):
     worker = fields.String(allow_none=True)
     started_at = fields.String(allow_none=True)
     finished_at = fields.String(allow_none=True)
-    case_sha256 = fields.String(validate=validate.Regexp(SHA256_PATTERN))
+    case_sha256 = fields.String(validate=WholeMatch(SHA256_PATTERN))
 
 
 class ResultSchema(StrictSchema):
@@ -169,7 +169,7 @@ class ResultSchema(StrictSchema):
     noun = "a result document"
     run_id = fields.String(allow_none=True)
     case_id = fields.String(allow_none=True)
-    case_sha256 = fields.String(required=True, validate=validate.Regexp(SHA256_PATTERN))
+    case_sha256 = fields.String(required=True, validate=WholeMatch(SHA256_PATTERN))
     status = fields.String(required=True, validate=validate.OneOf(STATUSES))
     verdict = fields.String(allow_none=True, validate=validate.OneOf(VERDICTS))
     error = fields.String(allow_none=True)

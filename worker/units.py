@@ -45,7 +45,7 @@ NUMBER_PATTERN = r"[+-]?(?:[0-9]+(?:\.[0-9]*)?|\.[0-9]+)(?:[eE][+-]?[0-9]+)?"
 _NUMBER_RE = re.compile(rf"^{NUMBER_PATTERN}$")
 _QUANTITY_STRING_RE = re.compile(r"^\s*(\S+)(?:\s+(.*?))?\s*$", re.DOTALL)
 #: What the JSON Schema export uses for the string form: a number, whitespace, a unit.
-QUANTITY_STRING_PATTERN = rf"^\s*{NUMBER_PATTERN}\s+\S.*$"
+QUANTITY_STRING_PATTERN = rf"^\s*{NUMBER_PATTERN}\s+\S[\s\S]*$"
 
 # Tokens of the unit grammar. A unit name is letters (with either micro sign) and underscores;
 # an exponent is a small integer, optionally negative, optionally parenthesised.

@@ -247,3 +247,33 @@ def test_bad_result_documents_are_refused_both_ways(change, result_validator):
     assert list(result_validator.iter_errors(doc)), "JSON Schema accepted it"
     with pytest.raises(ValidationError):
         validate_result(doc)
+
+
+@pytest.mark.parametrize(
+    "change",
+    [
+        lambda d: d.update(tags=["ok\n"]),
+        lambda d: d.update(tolerances={"gci\n": 0.1}),
+    ],
+    ids=["tag with final newline", "tolerance key with final newline"],
+)
+def test_final_newline_is_refused_both_ways(change, case_validator):
+    # Python's "$" matches before a final newline, JSON Schema's does not: both must refuse.
+    doc = _bad(change)
+    assert list(case_validator.iter_errors(doc))
+    with pytest.raises(CaseError):
+        validate_case(doc)
+
+
+def test_trailing_whitespace_after_a_unit_is_accepted_both_ways(case_validator):
+    doc = _bad(lambda d: d["layers"][0].update(thickness="1 mm\n"))
+    assert list(case_validator.iter_errors(doc)) == []
+    assert validate_case(doc).problem.layers[0].thickness == pytest.approx(1e-3)
+
+
+def test_sha256_with_final_newline_is_refused(result_validator):
+    doc = copy.deepcopy(RESULT)
+    doc["case_sha256"] = _SHA + "\n"
+    assert list(result_validator.iter_errors(doc))
+    with pytest.raises(ValidationError):
+        validate_result(doc)
