@@ -142,7 +142,10 @@ class Quantity(fields.Field):
         try:
             magnitude, basis = parse_with_basis(value, self.kind)
         except UnitError as exc:
-            raise ValidationError(exc.message) from None
+            hint = ""
+            if self.bare_zero and type(value) in (int, float):
+                hint = " (only 0 may be given without a unit)"
+            raise ValidationError(exc.message + hint) from None
         if self.minimum is not None:
             too_small = magnitude <= self.minimum if self.exclusive else magnitude < self.minimum
             if too_small:

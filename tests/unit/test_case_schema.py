@@ -309,6 +309,10 @@ def test_inner_bare_number_only_when_zero(inner):
     _only_error(_doc(inner=inner), "inner")
 
 
+def test_inner_bare_number_message_says_only_zero_goes_without_unit():
+    _only_error(_doc(inner=5), "inner", "only 0 may be given without a unit")
+
+
 def test_length_only_for_cylinder():
     _only_error(_doc(SLAB_TRANSIENT, length="1 cm"), "length", "only a cylinder")
 
