@@ -1,0 +1,151 @@
+"""``fluxproof demo``: the embedded service end to end, over HTTP, on the demo cases.
+
+Starts the service in-process (SQLite in a fresh data directory, runs in the embedded thread
+pool, a Werkzeug server on a free port), creates an engineer and a reviewer token, submits every
+``demo/cases/*.json`` with :class:`service.client.Client`, waits for the records, has the
+reviewer sign off the runs that passed (four-eyes: a different identity from the submitter),
+verifies the audit chain, prints a verdict table and writes each HTML report to
+``demo/reports/``. Exit 1 only if a run ends ``failed`` or the HTTP path breaks.
+"""
+
+from __future__ import annotations
+
+import json
+import logging
+import re
+import tempfile
+from pathlib import Path
+from typing import Any
+
+import click
+
+CAUTION_LINE = ("Caution: these results support, but do not replace, design verification "
+                "testing and qualified independent review; local regulations and licensed "
+                "practice govern.")
+ENGINEER, REVIEWER = "demo.engineer", "demo.reviewer"
+REPO_ROOT = Path(__file__).resolve().parents[1]
+
+
+def _default_dir(name: str) -> Path:
+    local = Path("demo") / name
+    return local if Path("demo/cases").is_dir() else REPO_ROOT / "demo" / name
+
+
+def _slug(path: Path) -> str:
+    return re.sub(r"[^A-Za-z0-9_.-]+", "-", path.stem)
+
+
+def _figure(record: dict[str, Any]) -> str:
+    quantities = record.get("quantities") or {}
+    for name in ("flux_outer", "t50", "rate_outer"):
+        quantity = quantities.get(name)
+        if isinstance(quantity, dict) and isinstance(quantity.get("value"), (int, float)):
+            return f"{name} = {quantity['value']:.4g} {quantity.get('unit', '')}".strip()
+    return "-"
+
+
+def _table(rows: list[list[str]], headers: list[str]) -> str:
+    widths = [max(len(str(r[i])) for r in [headers, *rows]) for i in range(len(headers))]
+    line = "  ".join("{:<" + str(w) + "}" for w in widths)
+    out = [line.format(*headers), line.format(*("-" * w for w in widths))]
+    out.extend(line.format(*row) for row in rows)
+    return "\n".join(out)
+
+
+def run_demo(cases_dir: Path, reports_dir: Path, data_dir: Path, echo=click.echo) -> int:
+    """Run the demonstration; return the exit status (0, or 1 when a run failed)."""
+    from service.app import create_app, shutdown_app
+    from service.client import ApiError, Client
+    from service.server import BackgroundServer
+    from service.tokens import create_token
+
+    case_files = sorted(cases_dir.glob("*.json"))
+    if not case_files:
+        echo(f"no demo cases found in {cases_dir}", err=True)
+        return 1
+    app = create_app({"DATA_DIR": str(data_dir), "DATABASE_URL": None, "BROKER_URL": None,
+                      "DISPATCH": "embedded"})
+    store = app.extensions["fluxproof"].store
+    _, engineer_token = create_token(store, role="engineer", name=ENGINEER, actor="demo")
+    _, reviewer_token = create_token(store, role="reviewer", name=REVIEWER, actor="demo")
+    reports_dir.mkdir(parents=True, exist_ok=True)
+    rows: list[list[str]] = []
+    failures: list[str] = []
+    failed = 0
+    logging.getLogger("werkzeug").setLevel(logging.WARNING)  # no per-request lines
+    try:
+        with BackgroundServer(app) as server:
+            echo(f"fluxproof demo: embedded service at {server.url} (data in {data_dir})")
+            engineer = Client(server.url, engineer_token)
+            reviewer = Client(server.url, reviewer_token)
+            submitted = []
+            for path in case_files:
+                with path.open(encoding="utf-8") as handle:
+                    case = json.load(handle)
+                submitted.append((path, case, engineer.submit(case)))
+            for path, case, run_id in submitted:
+                record = engineer.wait(run_id, timeout=300)
+                checks = record.get("checks") or []
+                passed = sum(1 for c in checks if c.get("passed"))
+                if record["status"] != "succeeded":
+                    failed += 1
+                    failures.append(f"{path.name}: {record.get('error')}")
+                elif record.get("verdict") == "pass":
+                    reviewer.signoff(run_id, "approved",
+                                     "demo: every check passed; approved for the demonstration")
+                report_path = reports_dir / f"{_slug(path)}.html"
+                report_path.write_text(engineer.report(run_id), encoding="utf-8")
+                rows.append([str(case.get("title", path.stem))[:60], case.get("geometry", "?"),
+                             record.get("verdict") if record["status"] == "succeeded"
+                             else "RUN FAILED", _figure(record),
+                             f"{passed}/{len(checks)}", str(len(record.get("warnings") or []))])
+            engineer.close()
+            reviewer.close()
+    except (ApiError, TimeoutError, OSError) as exc:
+        echo(f"demo: the HTTP path broke: {exc}", err=True)
+        return 1
+    finally:
+        shutdown_app(app)
+    from service.audit import verify_chain
+    from service.settings import database_url
+    from service.store import Store
+
+    echo("")
+    echo(_table(rows, ["case", "geometry", "verdict", "key figure", "checks passed",
+                       "warnings"]))
+    echo("")
+    for line in failures:
+        echo(f"failed run: {line}", err=True)
+    audit_store = Store(database_url({"DATA_DIR": str(data_dir)}))
+    try:
+        report = verify_chain(audit_store)
+    finally:
+        audit_store.dispose()
+    echo(f"audit chain: {'intact' if report.ok else 'BROKEN'} ({report.events} events); "
+         f"runs that passed were signed off by {REVIEWER}, a different identity from the "
+         f"submitter {ENGINEER}")
+    echo(f"HTML reports written to {reports_dir}/")
+    echo(CAUTION_LINE)
+    if failed:
+        echo(f"{failed} run(s) ended failed", err=True)
+        return 1
+    return 0 if report.ok else 1
+
+
+@click.command("demo")
+@click.option("--cases", "cases_dir", type=click.Path(file_okay=False, path_type=Path),
+              default=None, help="Directory of case files (default: demo/cases).")
+@click.option("--reports", "reports_dir", type=click.Path(file_okay=False, path_type=Path),
+              default=None, help="Where to write the HTML reports (default: demo/reports).")
+@click.option("--data-dir", type=click.Path(file_okay=False, path_type=Path), default=None,
+              help="Keep the demo's store here (default: a temporary directory).")
+def demo(cases_dir: Path | None, reports_dir: Path | None, data_dir: Path | None) -> None:
+    """Start the embedded service, submit the demo cases over HTTP, print the verdicts."""
+    cases_dir = cases_dir or _default_dir("cases")
+    reports_dir = reports_dir or _default_dir("reports")
+    if data_dir is not None:
+        status = run_demo(cases_dir, reports_dir, data_dir)
+    else:
+        with tempfile.TemporaryDirectory(prefix="fluxproof-demo-") as temporary:
+            status = run_demo(cases_dir, reports_dir, Path(temporary))
+    raise SystemExit(status)

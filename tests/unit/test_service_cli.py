@@ -1,0 +1,130 @@
+"""The command line: token, audit verify, db upgrade, reverify, worker's broker check, demo."""
+
+from __future__ import annotations
+
+import json
+
+from click.testing import CliRunner
+from sqlalchemy import select, text
+
+from service.cli import main
+from service.store import default_store
+from service.store.models import Token
+from service.tokens import identify, token_digest
+from tests.api.conftest import controlled_engine, data_dir, migrated_template  # noqa: F401
+from tests.api.support import make_case
+
+
+def test_token_create_prints_the_token_once_and_stores_its_digest(data_dir):  # noqa: F811
+    result = CliRunner().invoke(main, ["token", "create", "--role", "reviewer",
+                                       "--name", "rosa"])
+    assert result.exit_code == 0, result.output
+    token = result.stdout.strip().splitlines()[-1]
+    identity = identify(default_store(), token)
+    assert identity is not None and (identity.name, identity.role) == ("rosa", "reviewer")
+    with default_store().transaction() as session:
+        row = session.execute(select(Token)).scalar_one()
+        assert row.sha256 == token_digest(token) and token not in (row.sha256, row.id)
+
+
+def test_token_create_refuses_a_bad_role_or_name(data_dir):  # noqa: F811
+    runner = CliRunner()
+    bad_role = runner.invoke(main, ["token", "create", "--role", "boss", "--name", "x"])
+    assert bad_role.exit_code == 2 and "boss" in bad_role.output
+    blank = runner.invoke(main, ["token", "create", "--role", "admin", "--name", "  "])
+    assert blank.exit_code == 2 and "1 to 200 characters" in blank.output
+
+
+def test_token_revoke(data_dir):  # noqa: F811
+    from service.tokens import create_token
+
+    token_id, token = create_token(default_store(), role="auditor", name="temp")
+    assert CliRunner().invoke(main, ["token", "revoke", token_id]).exit_code == 0
+    assert identify(default_store(), token) is None
+    assert CliRunner().invoke(main, ["token", "revoke", "nope"]).exit_code == 1
+
+
+def test_audit_verify_exits_1_naming_the_broken_event(data_dir):  # noqa: F811
+    runner = CliRunner()
+    for name in ("a", "b", "c"):
+        runner.invoke(main, ["token", "create", "--role", "admin", "--name", name])
+    intact = runner.invoke(main, ["audit", "verify"])
+    assert intact.exit_code == 0 and "intact: 3 events" in intact.output
+    with default_store().engine.begin() as connection:
+        connection.execute(text("UPDATE audit_events SET actor = 'mallory' WHERE seq = 2"))
+    broken = runner.invoke(main, ["audit", "verify"])
+    assert broken.exit_code == 1 and "seq 2" in broken.output
+
+
+def test_db_upgrade_on_a_fresh_sqlite_dir(tmp_path, monkeypatch):
+    from tests.api.support import clear_fluxproof_env
+
+    clear_fluxproof_env(monkeypatch)
+    monkeypatch.setenv("FLUXPROOF_DATA_DIR", str(tmp_path / "new"))
+    result = CliRunner().invoke(main, ["db", "upgrade"])
+    assert result.exit_code == 0 and "revision 0001_initial" in result.output
+    assert (tmp_path / "new" / "fluxproof.sqlite3").is_file()
+
+
+def test_reverify_runs_here_without_a_broker(data_dir, controlled_engine):  # noqa: F811
+    from service.runs import create_run, execute_run
+
+    store = default_store()
+    first = create_run(store, actor="eng", document=make_case(tags=["nightly"]))
+    execute_run(first["run_id"], store)
+    create_run(store, actor="eng", document=make_case(title="untagged", tags=[]))
+    result = CliRunner().invoke(main, ["reverify", "--tag", "nightly"])
+    assert result.exit_code == 0, result.output
+    assert "1 runs (inline)" in result.output and "succeeded 1" in result.output
+    controlled_engine.quantities = {"flux_outer": 9e-6, "flux_inner": 2e-6}
+    drifted = CliRunner().invoke(main, ["reverify", "--all"])
+    assert drifted.exit_code == 1 and "DRIFT" in drifted.output and "flux_outer" in drifted.output
+
+
+def test_reverify_needs_exactly_one_selector(data_dir):  # noqa: F811
+    assert CliRunner().invoke(main, ["reverify"]).exit_code == 2
+    assert CliRunner().invoke(main, ["reverify", "--all", "--tag", "x"]).exit_code == 2
+
+
+def test_worker_needs_a_broker(data_dir):  # noqa: F811
+    result = CliRunner().invoke(main, ["worker"])
+    assert result.exit_code == 2 and "FLUXPROOF_BROKER_URL" in result.output
+
+
+def test_check_command_is_still_registered():
+    assert "check" in main.commands
+
+
+def _demo_cases(tmp_path):
+    cases = tmp_path / "cases"
+    cases.mkdir()
+    for i, geometry in enumerate(["slab", "slab"]):
+        case = make_case(title=f"demo test case {i}", geometry=geometry)
+        (cases / f"{i:02d}-case.json").write_text(json.dumps(case), encoding="utf-8")
+    return cases
+
+
+def test_demo_prints_verdicts_writes_reports_and_the_caution(tmp_path, data_dir,  # noqa: F811
+                                                             controlled_engine):
+    cases = _demo_cases(tmp_path)
+    reports = tmp_path / "reports"
+    result = CliRunner().invoke(main, ["demo", "--cases", str(cases), "--reports", str(reports)])
+    assert result.exit_code == 0, result.output
+    assert "demo test case 0" in result.output and "demo test case 1" in result.output
+    assert "flux_outer = 2e-06" in result.output and "1/1" in result.output
+    assert f"HTML reports written to {reports}" in result.output
+    assert ("support, but do not replace, design verification testing and qualified "
+            "independent review; local regulations and licensed practice govern") in result.output
+    assert "audit chain: intact" in result.output
+    written = sorted(p.name for p in reports.iterdir())
+    assert written == ["00-case.html", "01-case.html"]
+    html = (reports / "00-case.html").read_text(encoding="utf-8")
+    assert "demo.reviewer" in html and "approved" in html
+
+
+def test_demo_exits_1_when_a_run_fails(tmp_path, data_dir, controlled_engine):  # noqa: F811
+    controlled_engine.status = "failed"
+    result = CliRunner().invoke(main, ["demo", "--cases", str(_demo_cases(tmp_path)),
+                                       "--reports", str(tmp_path / "r")])
+    assert result.exit_code == 1
+    assert "RUN FAILED" in result.output and "controlled failure" in result.output
