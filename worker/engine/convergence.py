@@ -34,8 +34,10 @@ from worker.engine.model import Problem, SteadySolution
 
 #: Roache's safety factor for three-grid studies (Celik et al. 2008, eq. 5c).
 SAFETY_FACTOR = 1.25
-#: Differences below this fraction of |phi1| count as round-off: the grids agree exactly.
-ROUNDOFF_RTOL = 1e-11
+#: Differences below this fraction of |phi1| count as round-off: the grids agree to within the
+#: arithmetic. Face fluxes of a case the scheme reproduces exactly (a reaction-free slab) scatter
+#: by up to about 5e-10 relative on meshes of 4000-16000 cells (measured), so the band is 1e-8.
+ROUNDOFF_RTOL = 1e-8
 #: Fixed-point iteration for p (non-constant ratios): tolerance on p and iteration cap.
 ORDER_TOLERANCE = 1e-10
 ORDER_MAX_ITERATIONS = 200
