@@ -18,7 +18,13 @@ from numpy.testing import assert_allclose
 from worker.engine.exact_steady import solve_exact
 from worker.engine.model import Boundary, Layer, Problem, Reaction
 
-mpmath.mp.dps = 40
+
+
+@pytest.fixture(autouse=True)
+def _mpmath_precision():
+    """Reference values at 40 significant digits, without touching other modules' setting."""
+    with mpmath.workdps(40):
+        yield
 PHIS = [1e-3, 1.0, 30.0, 300.0, 3000.0]
 
 
@@ -70,7 +76,7 @@ def test_large_thiele_asymptote(geometry, factor, phi):
     """For phi >> 1 the reaction is confined to a surface layer and eta -> 1/phi, 2/phi, 3/phi
     (Aris 1975; Thiele 1939). The next term of the expansion is O(1/phi^2) relative: slab 0,
     sphere -3/phi^2 (exactly, coth -> 1), cylinder -1/(2 phi) from I1/I0 ~ 1 - 1/(2 phi)
-    (Abramowitz & Stegun 1964, 9.7.1)."""
+    (Abramowitz & Stegun 1964, 9.7.1, number from memory)."""
     radius, d = 2e-3, 1e-9
     k = phi**2 * d / radius**2
     sol = solve_exact(solid_body(geometry, radius, d, k, 1.0))

@@ -36,7 +36,8 @@ in Solids*, 2nd ed., Oxford, 1959). Exponentials are written as decaying exponen
 to a layer edge, and the modified Bessel functions through their exponentially scaled forms
 (``i0e``, ``i1e``, ``k0e``, ``k1e``), so that no evaluation overflows and no digits are lost for
 m*(b - a) up to 1e4 and beyond. The cylinder's initial-value function uses the Wronskian
-``I0(x) K1(x) + I1(x) K0(x) = 1/x`` (Abramowitz & Stegun 1964, 9.6.15).
+``I0(x) K1(x) + I1(x) K0(x) = 1/x`` (M. Abramowitz, I.A. Stegun, *Handbook of Mathematical
+Functions*, 1964, 9.6.15, number from memory; tests check g1(a) = 1, g1'(a) = 0 directly).
 
 For the innermost layer of a solid cylinder or sphere (``a = 0``) the functions that are singular
 at the centre (ln r, K0, 1/r, cosh(m r)/r) are dropped: the layer has the single regular function

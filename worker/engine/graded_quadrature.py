@@ -5,7 +5,8 @@ independent of the fluxes. A profile such as ``exp(-m (r - a))`` varies on the l
 near an edge; the panels are therefore graded geometrically from each edge in steps of that
 width, and, for a hollow layer much thicker than its inner radius, geometrically from the inner
 radius too (where ln r varies fastest). Gauss-Legendre rules: M. Abramowitz, I.A. Stegun,
-*Handbook of Mathematical Functions*, 1964, §25.4.29.
+*Handbook of Mathematical Functions*, 1964, 25.4.29 (number from memory; the rule is numpy's
+``leggauss``).
 """
 
 from __future__ import annotations

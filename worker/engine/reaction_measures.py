@@ -18,8 +18,10 @@ from scipy import special
 
 from worker.engine.model import Layer, Problem
 
-# Below this phi the sphere factor uses its Taylor series (phi coth phi - 1 cancels).
-_SPHERE_SERIES_LIMIT = 0.1
+# Below this phi the sphere factor uses its Taylor series (phi coth phi - 1 cancels); the
+# series terms fall like 2 (phi/pi)^(2k), so _SPHERE_SERIES_TERMS terms reach double precision.
+_SPHERE_SERIES_LIMIT = 1.0
+_SPHERE_SERIES_TERMS = 17
 
 
 def largest_surface_concentration(problem: Problem, layer_index: int) -> float | None:
@@ -84,11 +86,17 @@ def thiele_modulus(layer: Layer, problem: Problem) -> float | None:
 
 
 def _sphere_series(phi: np.ndarray) -> np.ndarray:
-    """(3/phi^2)(phi coth phi - 1) from phi coth phi = sum B_2k (2 phi)^2k / (2k)!."""
+    """(3/phi^2)(phi coth phi - 1) from phi coth phi = 1 + sum_k (-1)^(k+1) 2 zeta(2k) (phi/pi)^2k.
+
+    (The Laurent series of coth, Abramowitz & Stegun 1964, 4.5.67, with 2^2k |B_2k| / (2k)! =
+    2 zeta(2k) / pi^2k, 23.2.16; equation numbers from memory, the series is checked against
+    mpmath in tests/unit/test_basis_functions.py.)
+    """
     total = np.zeros_like(phi)
-    bernoulli = special.bernoulli(14)
-    for k in range(1, 8):
-        total += bernoulli[2 * k] * 2.0 ** (2 * k) / special.factorial(2 * k) * phi ** (2 * k - 2)
+    ratio_squared = (phi / np.pi) ** 2
+    for k in range(_SPHERE_SERIES_TERMS, 0, -1):
+        coefficient = (-1) ** (k + 1) * 2.0 * special.zeta(2 * k) / np.pi**2
+        total += coefficient * ratio_squared ** (k - 1)
     return 3.0 * total
 
 
