@@ -43,6 +43,13 @@ THIELE_LARGE = 3.0
 BIOT_LARGE = 10.0
 BIOT_SMALL = 0.1
 THIN_WALL_NOTE = 0.01
+#: Throughput scale floor, as a fraction of the characteristic diffusive rate.
+THROUGHPUT_FLOOR = 1e-3
+#: Formal order of the finite-volume scheme, the band of observed orders taken as asymptotic,
+#: and Roache's (1994) safety factor for a GCI that cannot use an observed order.
+FORMAL_ORDER = 2
+ORDER_BAND = (1.5, 2.5)
+FALLBACK_SAFETY_FACTOR = 3.0
 
 
 def _limit(problem: Problem, name: str) -> float:
@@ -87,11 +94,13 @@ def _concentration_scale(problem: Problem, *solutions: SteadySolution) -> float:
 
 
 def _throughput_scale(problem: Problem, solution: SteadySolution, c_scale: float) -> float:
-    """Largest r^n-weighted rate through the body, floored by a diffusive rate scale."""
+    """Largest r^n-weighted rate through the body (face rates, consumption), but at least
+    ``THROUGHPUT_FLOOR`` of the characteristic diffusive rate c*D*K/L, so that a body at
+    equilibrium is not judged by the round-off of fluxes that are zero."""
     rates = [abs(_weight(problem, s) * _face_flux(solution, s)) for s in ("inner", "outer")]
     rates.append(abs(solution.consumption))
-    conductance = min(ly.diffusivity * ly.partition / ly.thickness for ly in problem.layers)
-    floor = 1e-9 * c_scale * conductance * max(problem.outer**problem.exponent, 1e-300)
+    conductance = max(ly.diffusivity * ly.partition / ly.thickness for ly in problem.layers)
+    floor = THROUGHPUT_FLOOR * c_scale * conductance * problem.outer**problem.exponent
     return max(max(rates), floor)
 
 
@@ -247,8 +256,8 @@ def _regime_notes(problem: Problem, primary: SteadySolution, outcome: Outcome) -
         edges = problem.edges
         outcome.warnings.append(
             f"depleted zone: the concentration falls to zero at r = {primary.depletion_front:.4g} m "
-            f"(body {edges[0]:.4g}–{edges[-1]:.4g} m); consuming cells beyond the front receive "
-            "no solute")
+            f"(body {edges[0]:.4g}–{edges[-1]:.4g} m); on the side of the front away from the "
+            "supply the consuming material receives no solute")
     _thin_wall_note(problem, primary, outcome)
 
 
@@ -314,28 +323,44 @@ def _cross_check_profile(outcome: Outcome, problem: Problem, a: SteadySolution,
         f"{c_scale:.4g} {problem.concentration_unit}")
 
 
-def _grid_checks(outcome: Outcome, problem: Problem, study: dict, t_scale: float) -> dict:
-    """GCI checks of the face fluxes; returns the values to cross-check (extrapolated where the
-    study is in its asymptotic range, else the fine-grid value)."""
+def _gci_relative(result: convergence.GridStudy) -> tuple[float, str]:
+    """GCI_fine as a fraction of the fine value, with a fallback where no order can be formed:
+    the formal order 2 with Roache's two-grid safety factor 3 (Roache 1994)."""
+    if result.reliable or result.convergence == "oscillatory":
+        return float(result.gci_fine), result.message
+    fallback = FALLBACK_SAFETY_FACTOR * result.approximate_relative_error / (
+        result.ratio_21**FORMAL_ORDER - 1.0)
+    return float(fallback), (f"{result.message}; GCI from the formal order {FORMAL_ORDER} with "
+                             f"safety factor {FALLBACK_SAFETY_FACTOR:g} (Roache 1994)")
+
+
+def _grid_checks(outcome: Outcome, problem: Problem, studies: dict, cells: list,
+                 t_scale: float) -> dict:
+    """GCI checks of the face fluxes; returns the numerical values to cross-check: the
+    Richardson-extrapolated value where the convergence is monotonic, else the fine-grid value."""
     values = {}
     for side in _faces(problem):
         quantity = f"flux_{side}"
-        result = study[quantity]
+        result = studies[quantity]
         w = _weight(problem, side)
-        # GCI relative to the throughput scale, so a face carrying no net flux is not judged
-        # by the relative change of a number that is zero to round-off.
-        gci = result.gci_fine * abs(w * result.fine) / t_scale if result.gci_fine is not None \
-            else None
-        values[side] = result.best_estimate
-        if gci is None:
-            outcome.add_check(f"gci.{quantity}", None, _limit(problem, "gci"), False,
-                              f"grid study failed: {result.note}")
-            continue
+        values[side] = result.extrapolated if result.convergence == "monotonic" else result.fine
+        gci_fraction, note = _gci_relative(result)
+        # GCI relative to the throughput scale, so a face carrying no net flux is not judged by
+        # the relative change of a number that is zero to round-off.
+        gci = gci_fraction * abs(w * result.fine) / t_scale if result.fine != 0.0 else 0.0
+        order = (f"{result.apparent_order:.3g}" if math.isfinite(result.apparent_order)
+                 else "not formed")
         outcome.check_at_most(
             f"gci.{quantity}", gci, _limit(problem, "gci"),
-            f"three grids {result.cells}: observed order {result.order_text}, extrapolated "
-            f"{result.extrapolated:.9g}, GCI_fine relative to throughput (Celik et al. 2008)"
-            + (f"; {result.note}" if result.note else ""))
+            f"grids of {cells[2]}, {cells[1]}, {cells[0]} cells: observed order {order}, "
+            f"fine {result.fine:.9g}, extrapolated {result.extrapolated:.9g}; GCI_fine relative "
+            f"to the throughput (Celik et al. 2008); {note}")
+        if result.convergence == "monotonic" and not (
+                ORDER_BAND[0] <= result.apparent_order <= ORDER_BAND[1]):
+            outcome.warnings.append(
+                f"grid study of {quantity}: observed order {result.apparent_order:.3g} is outside "
+                f"{ORDER_BAND[0]:g}–{ORDER_BAND[1]:g} around the formal order {FORMAL_ORDER}: the "
+                "grids may not be in the asymptotic range")
     return values
 
 
@@ -343,8 +368,11 @@ def run_steady(problem: Problem) -> Outcome:
     """Solve a steady case by every applicable method and check the results."""
     outcome = Outcome()
     exact = exact_steady.solve_exact(problem)
-    study = convergence.run_grid_study(problem)
-    fine = study.fine_solution
+    grids = convergence.refined_solutions(problem)
+    fine = grids[0]
+    studies = convergence.run_grid_study(problem, solutions=grids)
+    cells = [sum(g.diagnostics["cells"]) if isinstance(g.diagnostics["cells"], list | tuple)
+             else g.diagnostics["cells"] for g in grids]
     if not fine.success:
         outcome.add_check("numerical.converged", None, None, False,
                           f"finite-volume solution did not converge: {fine.message}")
@@ -359,7 +387,7 @@ def run_steady(problem: Problem) -> Outcome:
     if independent is not None:
         outcome.methods.append(_method("independent", independent))
 
-    solutions = [s for s in (primary, fine, independent) if s is not None]
+    solutions = [s for s in (primary, fine, independent) if s is not None and s.success]
     c_scale = _concentration_scale(problem, *solutions)
     t_scale = _throughput_scale(problem, primary, c_scale)
 
@@ -377,7 +405,7 @@ def run_steady(problem: Problem) -> Outcome:
         }
     _add_quantities(outcome, problem, primary, values)
 
-    numerical_values = _grid_checks(outcome, problem, study.results, t_scale)
+    numerical_values = _grid_checks(outcome, problem, studies, cells, t_scale)
     if exact is not None:
         _cross_check_fluxes(outcome, problem, exact, numerical_values, t_scale,
                             "finite volumes (extrapolated) vs exact")
@@ -438,7 +466,6 @@ def run_steady(problem: Problem) -> Outcome:
     if any(ly.reaction.kind == "michaelis_menten" for ly in problem.layers):
         _bracket_check(outcome, problem, fine, c_scale)
 
-    outcome.warnings.extend(study.warnings)
     _regime_notes(problem, primary, outcome)
     return outcome
 

@@ -1,0 +1,135 @@
+"""Benchmark: a full fluxproof check against a single FiPy solve at the same accuracy.
+
+Target (issue "Engine: steady diffusion-reaction checks"): the full check (exact + three-grid
+numerical + every check) at least 20x faster than one FiPy solve of the same case on the coarsest
+mesh whose outer rate is within 1e-6 (relative) of the exact value. Measured side by side in one
+run; figures printed, nothing asserted about time (shared, noisy machines).
+
+Run with ``make bench``.
+"""
+
+from __future__ import annotations
+
+import statistics
+import time
+
+import fipy
+import numpy as np
+import pytest
+
+from worker.engine import check_case
+
+ACCURACY = 1e-6
+REPEATS = 7
+MESHES = [10 * 2**k for k in range(12)]  # 10 .. 20480 cells
+
+
+def _median_seconds(fn, repeats=REPEATS) -> float:
+    times = []
+    for _ in range(repeats):
+        start = time.perf_counter()
+        fn()
+        times.append(time.perf_counter() - start)
+    return statistics.median(times)
+
+
+def _fipy_outer_rate(geometry, r0, layers, c_in, c_out, cells_total):
+    """One FiPy solve (built from scratch, as a user would) of a layered shell with fixed
+    fluid concentrations at both faces; returns the r^n-weighted outer rate r^n * J_outer.
+
+    The unknown is u = C/K (continuous across partition jumps) with conductivity D*K; the
+    outer rate is read from the last interior face, corrected by the last cell's consumption
+    (both second-order accurate)."""
+    thickness = sum(t for t, *_ in layers)
+    cells = [max(2, round(cells_total * t / thickness)) for t, *_ in layers]
+    dr = np.concatenate([np.full(n, t / n) for n, (t, *_) in zip(cells, layers, strict=True)])
+    grid = {"slab": fipy.Grid1D, "cylinder": fipy.CylindricalGrid1D,
+            "sphere": fipy.SphericalGrid1D}[geometry]
+    mesh = grid(dx=dr, origin=(r0,)) if geometry == "slab" else grid(dr=dr, origin=(r0,))
+    u = fipy.CellVariable(mesh=mesh, value=0.0)
+    (r_cells,) = mesh.cellCenters.value
+    (r_faces,) = mesh.faceCenters.value
+    bounds = np.cumsum([0.0] + [t for t, *_ in layers]) + r0
+
+    def per_position(r, index):
+        out = np.empty_like(r)
+        for i, layer in enumerate(layers):
+            inside = (r >= bounds[i] - 1e-15) & (r <= bounds[i + 1] + 1e-15)
+            out[inside] = layer[index]
+        return out
+
+    d_cells = per_position(r_cells, 1)
+    k_cells = per_position(r_cells, 2)
+    rate_cells = per_position(r_cells, 3)
+    dk = fipy.CellVariable(mesh=mesh, value=d_cells * k_cells)
+    coeff = dk.harmonicFaceValue
+    u.constrain(c_in, mesh.facesLeft)
+    u.constrain(c_out, mesh.facesRight)
+    sink = fipy.CellVariable(mesh=mesh, value=rate_cells * k_cells)
+    (fipy.DiffusionTerm(coeff=coeff) == fipy.ImplicitSourceTerm(coeff=sink)).solve(var=u)
+    values = np.asarray(u.value)
+    n = {"slab": 0, "cylinder": 1, "sphere": 2}[geometry]
+    # flux through the last interior face, then add the last cell's consumption
+    d_face = 2.0 / (1.0 / (d_cells[-2] * k_cells[-2]) + 1.0 / (d_cells[-1] * k_cells[-1]))
+    j_face = -d_face * (values[-1] - values[-2]) / (r_cells[-1] - r_cells[-2])
+    rf = r_faces[-2]
+    rb = r_faces[-1]
+    consumption_last = rate_cells[-1] * k_cells[-1] * values[-1] * (rb ** (n + 1) - rf ** (n + 1)) / (n + 1)
+    return rf**n * j_face - consumption_last
+
+
+SCENARIOS = {
+    "single-layer cylindrical shell": dict(
+        geometry="cylinder", r0=1.0e-3,
+        layers=[(5.0e-4, 2.0e-9, 1.0, 0.0)], c_in=1.0, c_out=0.0),
+    "two-layer wall with partition jump": dict(
+        geometry="slab", r0=0.0,
+        layers=[(5.0e-5, 1.0e-10, 3.0, 0.0), (2.0e-4, 1.0e-9, 0.7, 0.0)], c_in=1.0, c_out=0.0),
+    "first-order spherical shell": dict(
+        geometry="sphere", r0=2.0e-4,
+        layers=[(3.0e-4, 1.0e-9, 1.0, 2.0e-2)], c_in=1.0, c_out=0.5),
+}
+
+
+def _case_document(s) -> dict:
+    layers = []
+    for i, (t, d, k, rate) in enumerate(s["layers"]):
+        layer = {"name": f"layer {i}", "thickness": f"{t!r} m", "diffusivity": f"{d!r} m^2/s",
+                 "partition": k}
+        if rate:
+            layer["reaction"] = {"kind": "first_order", "rate_constant": f"{rate!r} 1/s"}
+        layers.append(layer)
+    return {"schema_version": 1, "title": "benchmark scenario", "geometry": s["geometry"],
+            "inner": f"{s['r0']!r} m", "layers": layers,
+            "inner_boundary": {"kind": "concentration", "value": f"{s['c_in']!r} mol/m^3"},
+            "outer_boundary": {"kind": "concentration", "value": f"{s['c_out']!r} mol/m^3"},
+            "regime": {"kind": "steady"}}
+
+
+@pytest.mark.parametrize("name", list(SCENARIOS))
+def test_full_check_vs_fipy(name):
+    s = SCENARIOS[name]
+    case = _case_document(s)
+    record = check_case(case)
+    assert record["verdict"] == "pass"
+    n = {"slab": 0, "cylinder": 1, "sphere": 2}[s["geometry"]]
+    outer = s["r0"] + sum(t for t, *_ in s["layers"])
+    exact_rate = outer**n * record["quantities"]["flux_outer"]["value"]
+
+    chosen = None
+    for cells in MESHES:
+        rate = _fipy_outer_rate(cells_total=cells, **s)
+        if abs(rate - exact_rate) <= ACCURACY * abs(exact_rate):
+            chosen = cells
+            break
+    t_check = _median_seconds(lambda: check_case(case))
+    if chosen is None:
+        t_fipy = _median_seconds(lambda: _fipy_outer_rate(cells_total=MESHES[-1], **s), 3)
+        print(f"\n[{name}] FiPy never reached {ACCURACY:g} up to {MESHES[-1]} cells; "
+              f"FiPy at {MESHES[-1]} cells {t_fipy * 1e3:.2f} ms, full check {t_check * 1e3:.2f} ms"
+              f", ratio >= {t_fipy / t_check:.1f}x")
+        return
+    t_fipy = _median_seconds(lambda: _fipy_outer_rate(cells_total=chosen, **s))
+    print(f"\n[{name}] FiPy needs {chosen} cells for {ACCURACY:g}: one solve {t_fipy * 1e3:.2f} ms;"
+          f" full fluxproof check {t_check * 1e3:.2f} ms; ratio {t_fipy / t_check:.1f}x "
+          "(target >= 20x)")
