@@ -78,7 +78,9 @@ class TransientSeriesSolution:
     fluxes are flux densities (amount/(m^2*s)), positive outward. ``released_*`` is the
     cumulative amount that left the body through that face (negative: uptake).
 
-    ``concentration_at(r, t)`` returns an array (len(t), len(r)) in amount/m^3.
+    ``concentration_at(r, t)`` returns an array (len(t), len(r)) in amount/m^3;
+    ``amounts_at(t)`` returns (remaining, released_inner, released_outer, consumed) at any
+    times t no smaller than the smallest positive requested time (the terms were chosen for it).
     ``tail_bound`` is, per time, the bound on the truncated flux tail relative to the largest
     flux term; ``converged`` marks the times where it is within ``SERIES_TOLERANCE`` (t = 0 is
     exact by definition). ``time_lag`` is the late-time intercept of ``released_outer`` for a
@@ -103,6 +105,7 @@ class TransientSeriesSolution:
     steady_flux_outer: float
     time_lag: float | None
     concentration_at: Callable[[np.ndarray, np.ndarray], np.ndarray]
+    amounts_at: Callable[[np.ndarray], tuple]
     notes: list[str] = field(default_factory=list)
 
 
@@ -384,25 +387,32 @@ def solve_transient_exact(problem: Problem, times=None) -> TransientSeriesSoluti
     )
     excess_a, excess_b = -diffusivity * slope_w_a, -diffusivity * slope_w_b
 
-    decay = np.exp(-np.outer(decay_rate, times))  # (modes, times)
-    pending = decay / decay_rate[:, None]
-    remaining = measure * (steady_amount + (amplitude * mode_integral) @ decay)
-    released_outer = measure * w_b * (steady_flux_b * times + excess_b - flux_term_b @ pending)
-    released_inner = -measure * w_a * (steady_flux_a * times + excess_a - flux_term_a @ pending)
-    consumed = measure * rate_constant * (
-        steady_amount * times + integral_w - (amplitude * mode_integral) @ pending
-    )
+    initial_load = measure * initial * body.volume()
+
+    def amounts_at(t):
+        """(remaining, released_inner, released_outer, consumed) at times t (s), per measure."""
+        t = np.atleast_1d(np.asarray(t, dtype=float))
+        decay = np.exp(-np.outer(decay_rate, t))  # (modes, times)
+        pending = decay / decay_rate[:, None]
+        held = measure * (steady_amount + (amplitude * mode_integral) @ decay)
+        out_b = measure * w_b * (steady_flux_b * t + excess_b - flux_term_b @ pending)
+        out_a = -measure * w_a * (steady_flux_a * t + excess_a - flux_term_a @ pending)
+        used = measure * rate_constant * (
+            steady_amount * t + integral_w - (amplitude * mode_integral) @ pending
+        )
+        start = t == 0.0
+        held[start] = initial_load
+        out_a[start] = out_b[start] = used[start] = 0.0
+        return held, out_a, out_b, used
+
+    remaining, released_inner, released_outer, consumed = amounts_at(times)
+    decay = np.exp(-np.outer(decay_rate, times))
     flux_outer = steady_flux_b + flux_term_b @ decay
     flux_inner = steady_flux_a + flux_term_a @ decay
-
-    initial_load = measure * initial * body.volume()
     at_start = times == 0.0
-    remaining[at_start] = initial_load
-    released_inner[at_start] = released_outer[at_start] = consumed[at_start] = 0.0
     flux_outer[at_start] = np.nan
     flux_inner[at_start] = np.nan
 
-    largest = max(np.max(np.abs(flux_term_a)), np.max(np.abs(flux_term_b)), 1e-300)
     lam_last = lam[-1] if lam.size else spacing
     safe_t = np.where(times > 0.0, times, 1.0)
     tail = np.exp(-diffusivity * lam_last**2 * safe_t) / (
@@ -459,6 +469,7 @@ def solve_transient_exact(problem: Problem, times=None) -> TransientSeriesSoluti
         steady_flux_outer=float(steady_flux_b),
         time_lag=time_lag,
         concentration_at=concentration_at,
+        amounts_at=amounts_at,
         notes=notes,
     )
 
