@@ -237,3 +237,38 @@ def test_three_layer_body_conserves_mass(geometry, phi):
     assert_allclose(balance, sol.consumption, rtol=1e-10, atol=1e-12 * scale)
     assert sol.consumption > 0.0
     assert sol.diagnostics["relative_residual"] < 1e-13
+
+
+@pytest.mark.parametrize("geometry", ["slab", "sphere"])
+@pytest.mark.parametrize("phi", PHIS)
+def test_sheet_and_shell_first_order_against_mpmath(geometry, phi):
+    """Fixed C at both faces of a sheet or a spherical shell with first-order uptake:
+    r^n/2 C = [c2 r2^(n/2) sinh(m (r - r1)) + c1 r1^(n/2) sinh(m (r2 - r))] / sinh(m L), n = 0, 2
+    (Carslaw & Jaeger 1959; Crank 1975 ch. 6 and 14: u = r C obeys u'' = m^2 u in a sphere),
+    evaluated with mpmath at 40 digits."""
+    r1, r2, d, c1, c2 = 0.6e-3, 1.4e-3, 9e-10, 0.25, 1.1
+    k = (phi / (r2 - r1)) ** 2 * d
+    sol = solve_exact(Problem(
+        geometry=geometry, inner=r1,
+        layers=(Layer("shell", r2 - r1, d, reaction=first_order(k)),),
+        inner_boundary=Boundary("concentration", value=c1),
+        outer_boundary=Boundary("concentration", value=c2)))
+    m = mpmath.sqrt(mpmath.mpf(k) / d)
+    a, b = mpmath.mpf(r1), mpmath.mpf(r2)
+    weight = (lambda r: 1) if geometry == "slab" else (lambda r: r)
+
+    def u(r):
+        return (c2 * weight(b) * mpmath.sinh(m * (r - a))
+                + c1 * weight(a) * mpmath.sinh(m * (b - r))) / mpmath.sinh(m * (b - a))
+
+    def conc(r):
+        return u(r) / weight(r)
+
+    def flux(r):
+        return -d * mpmath.diff(conc, r)
+
+    radii = [r1, r1 + 0.01 * (r2 - r1), 0.5 * (r1 + r2), r2 - 0.01 * (r2 - r1), r2]
+    expected = [float(conc(mpmath.mpf(r))) for r in radii]
+    assert_allclose(sol.concentration_at(np.array(radii)), expected, rtol=1e-10, atol=1e-14)
+    assert_allclose([sol.flux_inner, sol.flux_outer],
+                    [float(flux(a)), float(flux(b))], rtol=1e-10)

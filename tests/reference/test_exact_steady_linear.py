@@ -244,3 +244,21 @@ def test_bad_input_names_the_field(field, problem_change, message):
     base.update(problem_change)
     with pytest.raises(ValueError, match=message.replace("[", r"\[").replace("]", r"\]")):
         solve_exact(Problem(**base))
+
+
+def test_face_partitions_differing_from_the_layers():
+    """Resistances in series (Bird, Stewart & Lightfoot 2002 §10.6) written in u = C/K, which is
+    continuous between layers: a concentration face gives u_0 = K_face,in c_in / K_1; a film with
+    its own K_face,out gives J = h (bulk - K_N u_N / K_face,out). Eliminating the layer drops
+    L_i/(D_i K_i): J = (K_in c_in/K_1 - K_out bulk/K_N) / (sum L_i/(D_i K_i) + K_out/(h K_N))."""
+    layers = [Layer("a", 80e-6, 3e-10, partition=1.5), Layer("b", 120e-6, 7e-10, partition=0.2)]
+    k_in, k_out, c_in, bulk, h = 0.9, 0.35, 2.0, 0.4, 3e-6
+    sol = solve_exact(make("slab", 0.0, layers, conc(c_in, partition=k_in),
+                           film(h, bulk, partition=k_out)))
+    series = sum(ly.thickness / (ly.diffusivity * ly.partition) for ly in layers)
+    expected = ((k_in * c_in / layers[0].partition - k_out * bulk / layers[-1].partition)
+                / (series + k_out / (h * layers[-1].partition)))
+    assert_allclose([sol.flux_inner, sol.flux_outer], expected, rtol=1e-12)
+    assert_allclose(sol.concentration_at(0.0), k_in * c_in, rtol=1e-13)
+    surface = sol.concentration_at(200e-6)
+    assert_allclose(-sol.flux_outer, h * (bulk - surface / k_out), rtol=1e-12)

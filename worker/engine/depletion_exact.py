@@ -85,16 +85,30 @@ def _face_kind(boundary: Boundary) -> str:
     return "fed" if boundary.value >= 0.0 else "other"
 
 
-def _front_residual(problem: Problem, side: str, front: float) -> float:
+def _shape_at(exponent: int, r: float, s: float) -> tuple[float, float]:
+    """Scalar F(r; s) and dF/dr (same formulas as ``front_shape``), for the front search."""
+    n = exponent
+    slope = (r ** (n + 1) - s ** (n + 1)) / ((n + 1) * r**n) if r > 0.0 else 0.0
+    if n == 0:
+        return 0.5 * (r - s) ** 2, r - s
+    if s == 0.0:
+        return r**2 / (2.0 * (n + 1)), slope
+    if n == 1:
+        t = (r - s) / s
+        t_minus_log = float(_t_minus_log1p(t)) if abs(t) < 0.1 else t - math.log1p(t)
+        return 0.25 * s**2 * (t**2 + 2.0 * t_minus_log), slope
+    return (r - s) ** 2 * (r + 2.0 * s) / (6.0 * r), slope
+
+
+def _front_residual(problem: Problem, side: str, front: float, face: float) -> float:
     """Face condition residual, increasing with the live zone's extent (amount/m^3 or flux)."""
     layer = problem.layers[0]
     boundary = problem.inner_boundary if side == "inner" else problem.outer_boundary
-    face = problem.inner if side == "inner" else problem.outer
-    n, q, d = problem.exponent, layer.reaction.rate, layer.diffusivity
+    q, d = layer.reaction.rate, layer.diffusivity
     k_face = problem.face_partition(side)
-    shape, slope = front_shape(n, np.array(face), front)
-    concentration = q / d * float(shape)
-    inflow = abs(q * float(slope))  # |J| at the face; it points into the body
+    shape, slope = _shape_at(problem.exponent, face, front)
+    concentration = q / d * shape
+    inflow = abs(q * slope)  # |J| at the face; it points into the body
     if boundary.kind == "concentration":
         return concentration - k_face * boundary.value
     if boundary.kind == "flux":
@@ -118,20 +132,19 @@ def _slab_distance(problem: Problem, side: str) -> float:
                                                                * boundary.bulk / d))
 
 
-def _front_from(problem: Problem, side: str) -> float | None:
+def _front_from(problem: Problem, side: str, a: float, b: float) -> float | None:
     """Front position for the live zone fed through ``side``; None if it reaches the far face."""
-    a, b = problem.inner, problem.outer
     face, far = (a, b) if side == "inner" else (b, a)
     if problem.geometry == "slab":
         depth = _slab_distance(problem, side)
         if depth >= b - a:
             return None
         return face + depth if side == "inner" else face - depth
-    if _front_residual(problem, side, face) >= 0.0:
+    if _front_residual(problem, side, face, face) >= 0.0:
         return face  # nothing delivered through this face: the dead zone reaches it
-    if _front_residual(problem, side, far) <= 0.0:
+    if _front_residual(problem, side, far, face) <= 0.0:
         return None
-    return float(optimize.brentq(lambda s: _front_residual(problem, side, s),
+    return float(optimize.brentq(lambda s: _front_residual(problem, side, s, face),
                                  min(face, far), max(face, far),
                                  xtol=4 * _EPS * b, rtol=4 * _EPS))
 
@@ -158,9 +171,10 @@ def solve_depleted(problem: Problem) -> SteadySolution | None:
     outer_kind = _face_kind(problem.outer_boundary)
     if "other" in (inner_kind, outer_kind) or (inner_kind, outer_kind) == ("sealed", "sealed"):
         return None
-    a, b, n = problem.inner, problem.outer, problem.exponent
-    front_in = _front_from(problem, "inner") if inner_kind == "fed" else a
-    front_out = _front_from(problem, "outer") if outer_kind == "fed" else b
+    edges = problem.edges
+    a, b, n = float(edges[0]), float(edges[-1]), problem.exponent
+    front_in = _front_from(problem, "inner", a, b) if inner_kind == "fed" else a
+    front_out = _front_from(problem, "outer", a, b) if outer_kind == "fed" else b
     if front_in is None or front_out is None or not front_in < front_out:
         return None
     layer = problem.layers[0]
@@ -178,7 +192,7 @@ def solve_depleted(problem: Problem) -> SteadySolution | None:
                 gradient[live] = q / d * slope
         return value, gradient
 
-    profile = LayeredProfile(problem.edges, [d], [piece])
+    profile = LayeredProfile(edges, [d], [piece])
     consumption = q * ((front_in ** (n + 1) - a ** (n + 1))
                        + (b ** (n + 1) - front_out ** (n + 1))) / (n + 1)
     flux_inner = float(profile.flux_at(a)) if inner_kind == "fed" else 0.0

@@ -285,7 +285,8 @@ def solve_linear(problem: Problem) -> tuple[SteadySolution, list[float]]:
     residual = float(np.max(np.abs(matrix @ unknowns - rhs))
                      / (np.max(np.abs(matrix)) * np.max(np.abs(unknowns)) + np.max(np.abs(rhs))
                         + np.finfo(float).tiny))
-    diagnostics = {"condition_number": float(np.linalg.cond(matrix)),
+    singular_values = np.linalg.svd(matrix, compute_uv=False)
+    diagnostics = {"condition_number": float(singular_values[0] / singular_values[-1]),
                    "relative_residual": residual, "unknowns": int(unknowns.size)}
     pieces, consumption, minima = [], 0.0, []
     for i, (basis, (col_a, col_b)) in enumerate(zip(bases, columns, strict=True)):
@@ -367,3 +368,14 @@ def solve_exact(problem: Problem) -> SteadySolution | None:
     if not solution.success or min(minima, default=math.inf) >= 0.0:
         return solution
     return solve_depleted(problem)
+
+
+def michaelis_menten_bracket(problem: Problem) -> tuple[SteadySolution, SteadySolution] | None:
+    """(lower, upper) comparison solutions of a Michaelis-Menten case, or None.
+
+    See ``worker.engine.mm_bracket.michaelis_menten_bracket`` (Protter & Weinberger 1967;
+    Aris 1975); imported on call because that module builds on ``solve_exact``.
+    """
+    from worker.engine.mm_bracket import michaelis_menten_bracket as bracket
+
+    return bracket(problem)

@@ -40,19 +40,17 @@ def graded_gauss_rule(
     """
     a, b = float(inner_edge), float(outer_edge)
     length = b - a
-    breaks = [a, b, a + 0.5 * length]
+    pieces = [np.array([a, 0.5 * (a + b), b])]
     if boundary_width is not None and boundary_width < length:
         steps = boundary_width * _EDGE_STEPS
         steps = steps[steps < 0.5 * length]
-        breaks.extend(a + steps)
-        breaks.extend(b - steps)
+        pieces += [a + steps, b - steps]
     if a > 0.0 and b > 4.0 * a:
         ratios = a * 2.0 ** np.arange(1, int(np.log2(b / a)) + 1)
-        breaks.extend(ratios[ratios < b])
-    edges = np.unique(np.asarray(breaks))
-    left, right = edges[:-1], edges[1:]
-    half = 0.5 * (right - left)
-    middle = 0.5 * (right + left)
-    nodes = (middle[:, None] + half[:, None] * _LEGENDRE_NODES[None, :]).ravel()
-    weights = (half[:, None] * _LEGENDRE_WEIGHTS[None, :]).ravel()
+        pieces.append(ratios[ratios < b])
+    edges = np.unique(np.concatenate(pieces))
+    half = 0.5 * np.diff(edges)
+    middle = edges[:-1] + half
+    nodes = (middle[:, None] + half[:, None] * _LEGENDRE_NODES).ravel()
+    weights = (half[:, None] * _LEGENDRE_WEIGHTS).ravel()
     return nodes, weights
