@@ -37,9 +37,11 @@ def _slug(path: Path) -> str:
 
 def _figure(record: dict[str, Any]) -> str:
     quantities = record.get("quantities") or {}
-    for name in ("flux_outer", "t50", "rate_outer"):
+    # The outer-face flux, unless that face is sealed (then the inner one), else the release.
+    for name in ("flux_outer", "flux_inner", "t50", "t90"):
         quantity = quantities.get(name)
-        if isinstance(quantity, dict) and isinstance(quantity.get("value"), (int, float)):
+        if isinstance(quantity, dict) and isinstance(quantity.get("value"), (int, float)) \
+                and quantity["value"] != 0:
             return f"{name} = {quantity['value']:.4g} {quantity.get('unit', '')}".strip()
     return "-"
 

@@ -168,6 +168,28 @@ def _content(component: Any, media: str) -> dict[str, Any]:
     return {media: {"schema": schema}}
 
 
+RECORD_RUN_FIELDS = tuple(bodies.RunSummarySchema().fields)
+
+
+def _record_component(result_schema: dict[str, Any]) -> dict[str, Any]:
+    """The record: the result document's fields plus the run's own (``RunSummary``) fields.
+
+    Defined by reference to both components rather than ``allOf``, because the result schema
+    forbids properties it does not list.
+    """
+    properties = {name: _ref_pointer("Result", name) for name in result_schema["properties"]}
+    properties.update({name: _ref_pointer("RunSummary", name) for name in RECORD_RUN_FIELDS})
+    return {"type": "object", "properties": properties,
+            "required": ["run_id", "case_id", "status", "submitted_by", "signoffs"],
+            "additionalProperties": False,
+            "description": "The result document with the run's own fields; while the run is "
+                           "queued or running only the run fields are present."}
+
+
+def _ref_pointer(component: str, prop: str) -> dict[str, str]:
+    return {"$ref": f"#/components/schemas/{component}/properties/{prop}"}
+
+
 def build_spec() -> APISpec:
     import schemas.export
 
@@ -182,10 +204,8 @@ def build_spec() -> APISpec:
         spec.components.schema(name, schema=schema)
     embed_json_schema(spec, "Case", schemas.export.case_json_schema())
     embed_json_schema(spec, "Result", schemas.export.result_json_schema())
-    spec.components.schema("Record", component={
-        "allOf": [_ref("Result"), _ref("RunSummary")],
-        "description": "The result document with the run's own fields; while the run is "
-                       "queued or running only the run fields are present."})
+    spec.components.schema("Record", component=_record_component(
+        schemas.export.result_json_schema()))
 
     paths: dict[str, dict[str, Any]] = {}
     for endpoint, op in OPERATIONS.items():

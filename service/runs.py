@@ -9,6 +9,7 @@ Transient store errors propagate, so that the Celery task can retry them.
 from __future__ import annotations
 
 import logging
+import math
 import socket
 import uuid
 from typing import Any
@@ -125,6 +126,19 @@ def get_run_and_case(store: Store, run_id: str) -> tuple[dict[str, Any], dict[st
         return record_of(run), dict(case.document)
 
 
+def non_finite_paths(value: Any, path: str = "") -> list[str]:
+    """Paths of every NaN or infinite float in a JSON-like document."""
+    if isinstance(value, float):
+        return [] if math.isfinite(value) else [path or "(document)"]
+    if isinstance(value, dict):
+        return [p for key, item in value.items()
+                for p in non_finite_paths(item, f"{path}.{key}" if path else str(key))]
+    if isinstance(value, (list, tuple)):
+        return [p for index, item in enumerate(value)
+                for p in non_finite_paths(item, f"{path}[{index}]")]
+    return []
+
+
 def _lock_run(session: Session, run_id: str) -> Run | None:
     return session.execute(select(Run).where(Run.id == run_id).with_for_update()
                            ).scalar_one_or_none()
@@ -209,6 +223,11 @@ def execute_run(run_id: str, store: Store | None = None, *,
         if status == "failed":
             error = str(record.get("error") or "the engine reported failure without a reason")
         record["status"] = status
+        bad = non_finite_paths(record)
+        if bad:
+            record, status = None, "failed"
+            error = ("the engine returned non-finite numbers (NaN or infinity), which a check "
+                     f"record cannot hold, at: {', '.join(bad[:10])}")
     except Exception as exc:  # noqa: BLE001 - any engine failure is a recorded result
         logger.warning("run %s failed: %s", run_id, exc)
         status, error = "failed", _failure_reason(exc)

@@ -34,7 +34,7 @@ RETRY_OPTIONS = {
 }
 
 
-@shared_task(name="fluxproof.execute_run", acks_late=True, task_reject_on_worker_lost=True,
+@shared_task(name="fluxproof.execute_run", acks_late=True, reject_on_worker_lost=True,
              ignore_result=True, soft_time_limit=int(_SETTINGS["TASK_SOFT_TIME_LIMIT"]),
              time_limit=int(_SETTINGS["TASK_TIME_LIMIT"]), **RETRY_OPTIONS)
 def execute_run(run_id: str) -> str:

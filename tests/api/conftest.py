@@ -1,7 +1,9 @@
 """Fixtures of the API tests, after Flask's tutorial: ``app``, ``client``, ``runner``.
 
 Every test gets a fresh SQLite store, copied from one migrated template (migrations run once per
-session), and a token for each role. Runs execute inline after their commit unless a test asks
+session), and a token for each role. With ``FLUXPROOF_TEST_DATABASE_URL`` set (e.g.
+``postgresql+psycopg://postgres@127.0.0.1:5432/test``) the same tests run on that database
+instead: migrated once, every table emptied before each test. Runs execute inline after their commit unless a test asks
 for the embedded thread pool.
 """
 
@@ -9,6 +11,8 @@ from __future__ import annotations
 
 from collections.abc import Iterator
 from pathlib import Path
+
+import os
 
 import pytest
 from click.testing import CliRunner
@@ -31,11 +35,37 @@ def migrated_template(tmp_path_factory: pytest.TempPathFactory) -> Path:
     return directory / SQLITE_FILE_NAME
 
 
+TEST_DATABASE_URL = os.environ.get("FLUXPROOF_TEST_DATABASE_URL")
+
+
+def _empty_database(url: str) -> None:
+    from sqlalchemy import text
+
+    from service.audit import GENESIS_HASH
+    from service.store.models import Base
+
+    store = Store(url)
+    try:
+        upgrade(store)
+        with store.engine.begin() as connection:
+            for table in reversed(Base.metadata.sorted_tables):
+                if table.name != "audit_head":
+                    connection.execute(table.delete())
+            connection.execute(text("UPDATE audit_head SET seq = 0, hash = :h"),
+                               {"h": GENESIS_HASH})
+    finally:
+        store.dispose()
+
+
 @pytest.fixture
 def data_dir(tmp_path: Path, migrated_template: Path, monkeypatch: pytest.MonkeyPatch) -> Path:
     clear_fluxproof_env(monkeypatch)
     directory = tmp_path / "data"
-    copy_template_db(migrated_template, directory)
+    if TEST_DATABASE_URL:
+        _empty_database(TEST_DATABASE_URL)
+        monkeypatch.setenv("FLUXPROOF_DATABASE_URL", TEST_DATABASE_URL)
+    else:
+        copy_template_db(migrated_template, directory)
     monkeypatch.setenv("FLUXPROOF_DATA_DIR", str(directory))
     reset_default_store()
     yield directory
@@ -50,7 +80,7 @@ def dispatch_mode() -> str:
 @pytest.fixture
 def app(data_dir: Path, dispatch_mode: str) -> Iterator[Flask]:
     application = create_app({"TESTING": True, "DATA_DIR": str(data_dir),
-                              "DISPATCH": dispatch_mode})
+                              "DATABASE_URL": TEST_DATABASE_URL, "DISPATCH": dispatch_mode})
     yield application
     shutdown_app(application)
 

@@ -5,12 +5,12 @@ from __future__ import annotations
 import pytest
 
 
-def test_health_needs_no_token(client):
+def test_health_needs_no_token(client, store):
     response = client.get("/v1/health")
     assert response.status_code == 200
     body = response.get_json()
     assert body["service"] == "ok"
-    assert body["store"] == {"state": "ok", "mode": "sqlite"}
+    assert body["store"] == {"state": "ok", "mode": store.dialect}
     assert body["broker"]["mode"] == "inline"
 
 

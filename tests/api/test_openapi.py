@@ -57,3 +57,29 @@ def test_case_and_result_schemas_are_embedded(client):
     assert schemas["Case"]["type"] == "object" and "layers" in schemas["Case"]["properties"]
     text = str(document)
     assert "#/$defs/" not in text  # every reference resolves inside the OpenAPI document
+
+
+def _validator_for(document, component):
+    from jsonschema import Draft202012Validator
+    from referencing import Registry, Resource
+    from referencing.jsonschema import DRAFT202012
+
+    resource = Resource.from_contents(document, default_specification=DRAFT202012)
+    registry = Registry().with_resource("urn:fluxproof:openapi", resource)
+    return Draft202012Validator({"$ref": f"urn:fluxproof:openapi#/components/schemas/"
+                                         f"{component}"}, registry=registry)
+
+
+def test_served_records_and_problems_match_their_documented_schemas(client, tokens):
+    from tests.api.support import bearer, make_case
+
+    document = client.get("/v1/openapi.json").get_json()
+    run = client.post("/v1/runs", json={"case": make_case()},
+                      headers=bearer(tokens["engineer"])).get_json()
+    record = client.get(f"/v1/runs/{run['run_id']}", headers=bearer(tokens["auditor"]))
+    errors = list(_validator_for(document, "Record").iter_errors(record.get_json()))
+    assert errors == [], [e.message for e in errors]
+    problem = client.post("/v1/runs", json={"nope": 1}, headers=bearer(tokens["engineer"]))
+    assert list(_validator_for(document, "Problem").iter_errors(problem.get_json())) == []
+    bad_record = {**record.get_json(), "unexpected": 1}
+    assert list(_validator_for(document, "Record").iter_errors(bad_record))  # can fail

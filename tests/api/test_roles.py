@@ -60,7 +60,8 @@ def _body(endpoint: str, ids: dict[str, str]) -> dict | None:
 
 
 @pytest.fixture
-def ids(client, tokens):
+def ids(client, tokens, controlled_engine):
+    """A stored case, a finished run and a batch (the engine's figures do not matter here)."""
     response = client.post("/v1/runs", json={"case": make_case()},
                            headers=bearer(tokens["engineer"]))
     assert response.status_code == 202

@@ -156,3 +156,12 @@ def test_nightly_task_starts_a_batch_of_every_case(store, monkeypatch, controlle
     batch = get_batch(store, batch_id)
     assert batch["selector"] == {"all": True} and batch["created_by"] == "nightly"
     assert sorted(sent) == sorted(batch["run_ids"]) and len(sent) == 2
+
+
+def test_non_finite_engine_output_is_a_failed_run_not_a_broken_row(store, controlled_engine):  # noqa: F811
+    controlled_engine.quantities = {"flux_outer": float("nan"), "flux_inner": float("inf")}
+    run_id = create_run(store, actor="eng", document=make_case())["run_id"]
+    assert execute_run(run_id, store) == "failed"
+    status, record, _, _, error = _run(store, run_id)
+    assert record is None
+    assert "quantities.flux_outer.value" in error and "quantities.flux_inner.value" in error
