@@ -128,3 +128,31 @@ def test_demo_exits_1_when_a_run_fails(tmp_path, data_dir, controlled_engine):  
                                        "--reports", str(tmp_path / "r")])
     assert result.exit_code == 1
     assert "RUN FAILED" in result.output and "controlled failure" in result.output
+
+
+def test_serve_answers_http_until_stopped(tmp_path):
+    """`fluxproof serve --port 0` in a real process: it prints its URL and answers /v1/health."""
+    import os
+    import signal
+    import subprocess
+    import sys
+
+    import requests
+
+    env = {k: v for k, v in os.environ.items() if not k.startswith("FLUXPROOF_")}
+    env["FLUXPROOF_DATA_DIR"] = str(tmp_path / "served")
+    process = subprocess.Popen([sys.executable, "-m", "service.cli", "serve", "--port", "0"],
+                               stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True,
+                               env=env, cwd=os.getcwd())
+    try:
+        line = process.stdout.readline()
+        assert line.startswith("fluxproof serving on http://127.0.0.1:"), (
+            line, process.stderr.read() if process.poll() is not None else "")
+        url = line.split()[3]
+        body = requests.get(f"{url}/v1/health", timeout=10).json()
+        assert body["service"] == "ok" and body["broker"]["mode"] == "embedded"
+        assert requests.get(f"{url}/v1/cases", timeout=10).status_code == 401
+    finally:
+        process.send_signal(signal.SIGINT)
+        process.communicate(timeout=20)
+    assert (tmp_path / "served" / "fluxproof.sqlite3").is_file()
