@@ -56,6 +56,7 @@ from __future__ import annotations
 
 from collections.abc import Callable, Sequence
 from dataclasses import dataclass
+from itertools import accumulate
 
 import numpy as np
 from scipy.linalg import LinAlgError
@@ -122,6 +123,8 @@ class Mesh:
         First cell of each layer; the last entry is N.
     diffusivity, partition : ndarray, shape (N,)
         D (m^2/s) and K of each cell's layer.
+    cells_per_layer : tuple of int
+        Cells in each layer.
     """
 
     exponent: int
@@ -136,6 +139,7 @@ class Mesh:
     layer_starts: np.ndarray
     diffusivity: np.ndarray
     partition: np.ndarray
+    cells_per_layer: tuple[int, ...] = ()
 
     @property
     def n_cells(self) -> int:
@@ -144,10 +148,6 @@ class Mesh:
     @property
     def n_layers(self) -> int:
         return int(self.layer_starts.size - 1)
-
-    @property
-    def cells_per_layer(self) -> tuple[int, ...]:
-        return tuple(int(n) for n in np.diff(self.layer_starts))
 
     def layer_cells(self, layer: int) -> slice:
         """Slice of the cells of one layer."""
@@ -209,14 +209,8 @@ class ReactionTerms:
     vmax: np.ndarray
     km: np.ndarray
     zero_order: np.ndarray
-
-    @property
-    def has_michaelis_menten(self) -> bool:
-        return bool(np.any(self.vmax > 0.0))
-
-    @property
-    def has_zero_order(self) -> bool:
-        return bool(np.any(self.zero_order > 0.0))
+    has_michaelis_menten: bool = False
+    has_zero_order: bool = False
 
     def smooth_rate(self, c: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
         """First-order plus Michaelis-Menten consumption and its derivative at cell values c.
@@ -266,19 +260,29 @@ def build_mesh(problem: Problem, cells_per_layer: Sequence[int] | int | None = N
         cells_per_layer = default_cells_per_layer(problem)
     counts = _check_cells(cells_per_layer, len(problem.layers))
     n = problem.exponent
-    edges = problem.edges
-    pieces = [np.linspace(edges[j], edges[j + 1], counts[j] + 1) for j in range(len(counts))]
-    faces = np.concatenate([pieces[0]] + [p[1:] for p in pieces[1:]])
-    # the interface positions are the exact layer edges (no round-off drift across layers)
-    layer_starts = np.concatenate(([0], np.cumsum(counts)))
-    faces[layer_starts] = edges
-    centres = 0.5 * (faces[:-1] + faces[1:])
-    face_areas = faces**n if n else np.ones_like(faces)
-    powered = faces ** (n + 1)
-    volumes = (powered[1:] - powered[:-1]) / (n + 1)
+    layers = problem.layers
+    thickness = np.array([ly.thickness for ly in layers])
+    edges = np.array(list(accumulate((ly.thickness for ly in layers), initial=problem.inner)))
+    count_array = np.array(counts)
+    layer_starts = np.array(list(accumulate(counts, initial=0)))
+    n_cells = int(layer_starts[-1])
     layer_index = np.repeat(np.arange(len(counts)), counts)
-    diffusivity = np.array([ly.diffusivity for ly in problem.layers])[layer_index]
-    partition = np.array([ly.partition for ly in problem.layers])[layer_index]
+    # west face of every cell: its layer's inner edge plus whole cell widths; the layer edges
+    # themselves are exact (local index 0), so interfaces carry no round-off drift
+    local = np.arange(n_cells) - layer_starts[:-1][layer_index]
+    faces = np.empty(n_cells + 1)
+    faces[:-1] = edges[:-1][layer_index] + (thickness / count_array)[layer_index] * local
+    faces[-1] = edges[-1]
+    centres = 0.5 * (faces[:-1] + faces[1:])
+    if n == 0:
+        face_areas = np.ones_like(faces)
+        volumes = faces[1:] - faces[:-1]
+    else:
+        face_areas = faces if n == 1 else faces * faces
+        powered = face_areas * faces
+        volumes = (powered[1:] - powered[:-1]) / (n + 1)
+    diffusivity = np.array([ly.diffusivity for ly in layers])[layer_index]
+    partition = np.array([ly.partition for ly in layers])[layer_index]
     return Mesh(
         exponent=n,
         edges=edges,
@@ -292,6 +296,7 @@ def build_mesh(problem: Problem, cells_per_layer: Sequence[int] | int | None = N
         layer_starts=layer_starts,
         diffusivity=diffusivity,
         partition=partition,
+        cells_per_layer=counts,
     )
 
 
@@ -378,6 +383,10 @@ def assemble_diffusion(
 def reaction_terms(mesh: Mesh, problem: Problem) -> ReactionTerms:
     """Per-cell reaction constants of the problem on this mesh."""
     n_layers = len(problem.layers)
+    kinds = [layer.reaction.kind for layer in problem.layers]
+    if all(kind == "none" for kind in kinds):
+        nothing = np.zeros(mesh.n_cells)
+        return ReactionTerms(first_order=nothing, vmax=nothing, km=nothing, zero_order=nothing)
     first = np.zeros(n_layers)
     vmax = np.zeros(n_layers)
     km = np.zeros(n_layers)
@@ -400,14 +409,25 @@ def reaction_terms(mesh: Mesh, problem: Problem) -> ReactionTerms:
             raise ValueError(f"layers[{j}].reaction.kind: unknown kind {reaction.kind!r}")
     index = mesh.layer_index
     return ReactionTerms(
-        first_order=first[index], vmax=vmax[index], km=km[index], zero_order=zero[index]
+        first_order=first[index],
+        vmax=vmax[index],
+        km=km[index],
+        zero_order=zero[index],
+        has_michaelis_menten=any(v > 0.0 for v in vmax),
+        has_zero_order=any(q > 0.0 for q in zero),
     )
 
 
 def face_flux_densities(mesh: Mesh, face_fluxes: np.ndarray) -> np.ndarray:
     """Outward flux density J = Q / r_f^n at every face (0 at a solid centre), amount/(m^2 s)."""
+    if mesh.exponent == 0:
+        return face_fluxes.copy()
     areas = mesh.face_areas
-    return np.divide(face_fluxes, areas, out=np.zeros_like(face_fluxes), where=areas > 0.0)
+    if areas[0] > 0.0:
+        return face_fluxes / areas
+    out = np.zeros_like(face_fluxes)
+    out[1:] = face_fluxes[1:] / areas[1:]
+    return out
 
 
 def surface_values(mesh: Mesh, c: np.ndarray, flux_density: np.ndarray):
@@ -478,10 +498,13 @@ def make_profile_functions(mesh: Mesh, c: np.ndarray, flux_density: np.ndarray):
     Both take positions r (m, scalar or array) and an optional ``layer`` index, and interpolate
     linearly between the nodes of ``layer_profiles`` (flux: between faces).
     """
-    profiles = layer_profiles(mesh, c, flux_density)
     edges = mesh.edges
+    cache: list = []
 
     def _evaluate(r, layer, which):
+        if not cache:  # built on first use: many callers only read the face figures
+            cache.append(layer_profiles(mesh, c, flux_density))
+        profiles = cache[0]
         r_array = np.atleast_1d(np.asarray(r, dtype=float))
         owners = _locate(edges, r_array, layer)
         out = np.empty_like(r_array)

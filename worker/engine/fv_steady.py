@@ -21,6 +21,7 @@ Jacobian ``A + diag(V dR/dC)`` and a backtracking line search on the residual no
 
 from __future__ import annotations
 
+import math
 from collections.abc import Callable, Sequence
 
 import numpy as np
@@ -370,6 +371,17 @@ def _solve_cells(mesh: Mesh, operator: DiffusionOperator, terms: ReactionTerms, 
     return c, achieved, active, record
 
 
+def _fixes_a_level(mesh: Mesh, operator: DiffusionOperator, terms: ReactionTerms) -> bool:
+    """True when the steady problem has a unique solution: some face conductance to a fixed
+    concentration, or some consumption that grows with C."""
+    return bool(
+        operator.east_coefficient[0] > 0.0
+        or operator.west_coefficient[-1] > 0.0
+        or terms.has_michaelis_menten
+        or np.any(terms.first_order > 0.0)
+    )
+
+
 def _failed(problem: Problem, mesh: Mesh, message: str) -> SteadySolution:
     def not_available(r, layer=None):
         return np.full(np.shape(r), np.nan) if np.ndim(r) else np.nan
@@ -420,13 +432,21 @@ def solve_fv(
     mesh = build_mesh(problem, cells_per_layer)
     operator = assemble_diffusion(mesh, problem, source)
     terms = reaction_terms(mesh, problem)
+    if not _fixes_a_level(mesh, operator, terms):
+        return _failed(
+            problem,
+            mesh,
+            "no unique steady state: no face fixes a concentration (concentration or "
+            "mass_transfer) and no layer has a reaction that grows with C (first order or "
+            "Michaelis-Menten); the concentration is then fixed only up to a constant",
+        )
     try:
         c, achieved, active, record = _solve_cells(mesh, operator, terms, problem)
     except LinAlgError as error:
         return _failed(
             problem, mesh, f"no unique steady state: {error} (check the boundary kinds)"
         )
-    finite = bool(np.all(np.isfinite(c)))
+    finite = math.isfinite(float(c.sum()))  # NaN or inf anywhere propagates into the sum
     flux_density = face_flux_densities(mesh, operator.face_fluxes(c))
     concentration_at, flux_at = make_profile_functions(mesh, c, flux_density)
 
