@@ -13,7 +13,7 @@ DEFAULT_CAUTION = ("These results support, but do not replace, design verificati
 
 
 def flatten(value: Any, prefix: str = "") -> dict[str, Any]:
-    """``{"layers.0.thickness": "40 um", ...}``: leaves of a nested document by dotted path."""
+    """``{"layers[0].thickness": "40 um", ...}``: leaves of a nested document by path."""
     leaves: dict[str, Any] = {}
     if isinstance(value, dict) and not ({"value", "unit"} >= set(value) and "value" in value):
         for key, item in value.items():
@@ -21,7 +21,7 @@ def flatten(value: Any, prefix: str = "") -> dict[str, Any]:
     elif isinstance(value, (list, tuple)) and value and all(isinstance(v, (dict, list))
                                                             for v in value):
         for index, item in enumerate(value):
-            leaves.update(flatten(item, f"{prefix}.{index}" if prefix else str(index)))
+            leaves.update(flatten(item, f"{prefix}[{index}]"))
     else:
         if isinstance(value, dict):
             value = f"{value.get('value')} {value.get('unit', '')}".strip()
