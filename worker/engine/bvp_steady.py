@@ -52,7 +52,7 @@ REFERENCE = (
 #: cases face fluxes then agree with the extrapolated finite-volume figures to about 1e-10.
 BVP_TOLERANCE = 1e-7
 #: Looser tolerance of the smoothed zero-order search, which only locates a depleted zone.
-BVP_SEARCH_TOLERANCE = 1e-6
+BVP_SEARCH_TOLERANCE = 1e-4
 #: ``solve_bvp`` boundary-condition tolerance (dimensionless variables).
 BVP_BC_TOLERANCE = 1e-12
 #: Initial collocation nodes on the unit interval, and the most ``solve_bvp`` may use.
@@ -61,7 +61,7 @@ BVP_MAX_NODES = 100_000
 #: Reaction-strength continuation used when the direct solve fails (fractions of the rates).
 REACTION_CONTINUATION = (0.01, 0.1, 0.3, 1.0)
 #: Zero-order smoothing widths eps / C_ref of the search for a depleted zone (last = finest).
-ZERO_ORDER_CONTINUATION = (1e-1, 1e-2, 1e-3)
+ZERO_ORDER_CONTINUATION = (1e-1, 1e-2)
 ZERO_ORDER_SMOOTHING_SEARCH = ZERO_ORDER_CONTINUATION[-1]
 #: The smoothed search flags a depleted zone where C < DEPLETION_FLAG x eps.
 DEPLETION_FLAG = 3.0
@@ -376,14 +376,41 @@ def _solve_case(system: _LayeredSystem):
     if smoothed.status != 0:
         return smoothed, f"smoothed zero-order search failed ({route})"
     zone = _depleted_zone(system, smoothed)
+    reason = "the solute runs out, but no depleted zone ending on a sealed face was found"
     if isinstance(zone, str):
         return None, zone
-    if zone is None:
-        system.zero_order = "exact"
-        return _solve(system, smoothed.x, smoothed.y), "exact zero-order rate, no depletion"
-    layer, side, guess = zone
-    result, route = _free_boundary(system, smoothed, layer, side, guess)
-    return result, route
+    if zone is not None:
+        layer, side, guess = zone
+        result, route = _free_boundary(system, smoothed, layer, side, guess)
+        if result is not None and result.status == 0 and _front_inside(system, result):
+            return result, route
+        if result is None:
+            reason = route
+        system.front = None
+    # no front found (or the flagged zone held only low concentrations): the exact rate,
+    # accepted only if the solute never runs out
+    system.zero_order = "exact"
+    result = _solve(system, smoothed.x, smoothed.y)
+    if result.status != 0:
+        return None, f"{reason}; the exact-rate solve reports: {result.message}"
+    if _lowest_zero_order_concentration(system, result) < 0.0:
+        return None, reason
+    return result, "exact zero-order rate, no depletion"
+
+
+def _front_inside(system: _LayeredSystem, result) -> bool:
+    layer = system.front[0]
+    front = float(result.p[0]) * system.length
+    return bool(system.edges[layer] < front < system.edges[layer + 1])
+
+
+def _lowest_zero_order_concentration(system: _LayeredSystem, result) -> float:
+    values = result.sol(np.linspace(0.0, 1.0, 2001))
+    lowest = np.inf
+    for j, layer in enumerate(system.problem.layers):
+        if layer.reaction.kind == "zero_order":
+            lowest = min(lowest, float(values[2 * j].min()))
+    return lowest
 
 
 def solve_bvp_reference(problem: Problem) -> SteadySolution:
