@@ -31,8 +31,8 @@ profile: ``J = D_a (C_P - C_a,f) / d_P = D_b (C_b,f - C_E) / d_E``. With the equ
 
 the series (harmonic) conductance of the two half cells in the continuous potential ``u = C/K``
 with the exact partition jump (S.V. Patankar, *Numerical Heat Transfer and Fluid Flow*,
-Hemisphere, 1980, sec. 4.2-4.3, harmonic interface conductivity; the partition form follows by
-writing the balance in u). Inside one layer (K_a = K_b, D_a = D_b) it reduces to D/Delta.
+Hemisphere, 1980, ch. 4, the harmonic-mean interface conductivity; the partition form follows
+by writing the balance in u). Inside one layer (K_a = K_b, D_a = D_b) it reduces to D/Delta.
 The r^n-weighted face flux multiplies by the face area ``r_f^n`` (face-area-weighted form;
 second order in r for cylinder and sphere, verified by manufactured solutions in
 ``tests/reference/test_fv_manufactured.py``).
