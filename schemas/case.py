@@ -396,7 +396,8 @@ class LayerSchema(StrictSchema):
     )
     initial = _non_negative(
         "concentration",
-        metadata=_about("concentration in the layer at t = 0 (transient cases)", default=0),
+        # No JSON Schema "default": a bare 0 has no unit, which the field itself refuses.
+        metadata=_about("concentration in the layer at t = 0 (transient cases); absent: zero"),
     )
 
 
