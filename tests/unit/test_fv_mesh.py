@@ -148,8 +148,10 @@ def test_flux_faces_with_first_order_reaction_are_well_posed():
     assert solution.consumption == pytest.approx(1e-6, rel=1e-10)
 
 
-@pytest.mark.parametrize(("cells", "fragment"), [([10], "expected 3 counts"),
-                                                 ([10, 1, 10], "every layer needs at least 2 cells")])
+@pytest.mark.parametrize(("cells", "fragment"), [
+    ([10], "expected 3 counts"),
+    ([10, 1, 10], "every layer needs at least 2 cells"),
+])
 def test_bad_cell_counts_name_the_argument(cells, fragment):
     with pytest.raises(ValueError, match=f"cells_per_layer: {fragment}"):
         solve_fv(_wall(), cells)

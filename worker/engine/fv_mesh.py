@@ -318,7 +318,8 @@ def _boundary_face(problem: Problem, side: str, area: float, gap: float, diffusi
                 f"{side}_boundary.coefficient: expected a positive mass-transfer coefficient "
                 f"(m/s), got {boundary.coefficient!r}"
             )
-        return area / (k_face / boundary.coefficient + gap / diffusivity), k_face * boundary.bulk, 0.0
+        conductance = area / (k_face / boundary.coefficient + gap / diffusivity)
+        return conductance, k_face * boundary.bulk, 0.0
     if boundary.kind == "flux":
         return 0.0, 0.0, area * boundary.value
     raise ValueError(f"{side}_boundary.kind: unknown boundary kind {boundary.kind!r}")
@@ -467,7 +468,9 @@ def layer_profiles(mesh: Mesh, c: np.ndarray, flux_density: np.ndarray):
     profiles = []
     for j in range(mesh.n_layers):
         first, last = int(mesh.layer_starts[j]), int(mesh.layer_starts[j + 1])
-        positions = np.concatenate(([mesh.faces[first]], mesh.centres[first:last], [mesh.faces[last]]))
+        positions = np.concatenate(
+            ([mesh.faces[first]], mesh.centres[first:last], [mesh.faces[last]])
+        )
         values = np.concatenate(([east_side[first]], c[first:last], [west_side[last]]))
         profiles.append(
             (positions, values, mesh.faces[first : last + 1], flux_density[first : last + 1])
