@@ -1,0 +1,76 @@
+"""The audit chain stays linear and verifiable while two worker processes and the API write."""
+
+from __future__ import annotations
+
+import uuid
+from concurrent.futures import ThreadPoolExecutor
+
+from sqlalchemy import select
+
+from tests.integration.conftest import bearer, wait_finished
+from tests.integration.invented_cases import distinct_steady_cases
+from tests.integration.worker_processes import parent_of
+
+RUNS = 16
+
+
+def test_chain_verifies_after_concurrent_appends_from_two_workers(app, store, tokens,
+                                                                   live_workers):
+    from service.store.models import AuditEvent
+
+    tag = f"it-audit-{uuid.uuid4().hex[:8]}"
+    cases = distinct_steady_cases(RUNS, tags=[tag])
+    engineer = tokens["engineer"]
+
+    def submit(case: dict) -> str:
+        # Each thread its own test client: the API appends run.queued / case.stored events
+        # while the workers append run.started / run.finished ones.
+        response = app.test_client().post("/v1/runs", json={"case": case},
+                                          headers=bearer(engineer))
+        assert response.status_code == 202, response.get_json()
+        return response.get_json()["run_id"]
+
+    with ThreadPoolExecutor(max_workers=4) as pool:
+        run_ids = list(pool.map(submit, cases))
+    client = app.test_client()
+    records = [wait_finished(client, engineer, run_id, timeout=90) for run_id in run_ids]
+    assert {r["status"] for r in records} == {"succeeded"}
+
+    # Both worker processes took part (each ran at least one of the runs).
+    parents = {parent_of(int(r["provenance"]["worker"].rsplit(":", 1)[1])) for r in records}
+    assert parents == {w.pid for w in live_workers}
+
+    response = client.get("/v1/audit/verify", headers=bearer(tokens["auditor"]))
+    assert response.status_code == 200, response.get_json()
+    report = response.get_json()
+    assert report["ok"] is True, report
+    assert report["first_broken"] is None
+
+    with store.transaction() as session:
+        seqs = list(session.execute(select(AuditEvent.seq).order_by(AuditEvent.seq)).scalars())
+        ours = session.execute(
+            select(AuditEvent.kind).where(AuditEvent.subject.in_(run_ids))).scalars().all()
+    assert seqs == list(range(1, len(seqs) + 1))  # no gap, no duplicate
+    assert report["events"] == len(seqs)
+    assert sorted(ours) == sorted(["run.queued", "run.started", "run.finished"] * RUNS)
+
+
+def test_verify_detects_an_event_changed_behind_the_service(app, store, tokens, live_workers):
+    """The same check on the same PostgreSQL chain fails once an event is altered (and passes
+    again when it is put back), so the check above is one that can fail."""
+    from service.audit import verify_chain
+    from service.store.models import AuditEvent
+
+    with store.transaction() as session:
+        event = session.execute(select(AuditEvent).order_by(AuditEvent.seq.desc())
+                                .limit(1)).scalar_one()
+        seq, original = event.seq, event.actor
+        event.actor = original + " (edited)"
+    try:
+        report = verify_chain(store)
+        assert report.ok is False
+        assert report.first_broken_seq == seq
+    finally:
+        with store.transaction() as session:
+            session.get(AuditEvent, seq).actor = original
+    assert verify_chain(store).ok is True

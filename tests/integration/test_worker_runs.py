@@ -1,0 +1,63 @@
+"""A case submitted over the API is solved by a real worker process and stored on PostgreSQL."""
+
+from __future__ import annotations
+
+import socket
+import uuid
+
+from sqlalchemy import select
+
+from tests.integration.conftest import bearer, wait_finished
+from tests.integration.invented_cases import single_layer_case
+from tests.integration.worker_processes import parent_of
+
+
+def test_submitted_case_is_solved_by_a_worker_process_and_stored(app, client, store, tokens,
+                                                                  live_workers):
+    from service.store.models import AuditEvent, Run
+
+    tag = f"it-{uuid.uuid4().hex[:8]}"
+    case = single_layer_case(35.0, 1.2e-10, tags=[tag])
+    response = client.post("/v1/runs", json={"case": case}, headers=bearer(tokens["engineer"]))
+    assert response.status_code == 202, response.get_json()
+    run_id = response.get_json()["run_id"]
+    assert response.headers["Location"] == f"/v1/runs/{run_id}"
+
+    record = wait_finished(client, tokens["engineer"], run_id)
+
+    assert record["status"] == "succeeded", record.get("error")
+    assert record["verdict"] in ("pass", "fail")
+    assert record["run_id"] == run_id
+    assert record["quantities"]["flux_outer"]["value"] > 0  # solute leaves through the outer face
+    # provenance.worker is "<host>:<pid>" of the pool process that ran the task; that process is
+    # a child of one of the worker processes this test session started.
+    host, pid = record["provenance"]["worker"].rsplit(":", 1)
+    assert host == socket.gethostname()
+    assert parent_of(int(pid)) in {w.pid for w in live_workers}, (
+        f"pid {pid} is not a pool process of the workers {[w.pid for w in live_workers]}")
+
+    # The row on PostgreSQL holds the same record, and the audit trail names the worker.
+    assert store.dialect == "postgresql"
+    with store.transaction() as session:
+        run = session.get(Run, run_id)
+        assert run.status == "succeeded" and run.attempts == 1
+        assert run.record["provenance"]["worker"] == record["provenance"]["worker"]
+        kinds = [e.kind for e in session.execute(
+            select(AuditEvent).where(AuditEvent.subject == run_id).order_by(AuditEvent.seq)
+        ).scalars()]
+        actors = {e.actor for e in session.execute(
+            select(AuditEvent).where(AuditEvent.subject == run_id,
+                                     AuditEvent.kind == "run.finished")).scalars()}
+    assert kinds == ["run.queued", "run.started", "run.finished"]
+    assert actors == {f"worker@{socket.gethostname()}"}
+
+
+def test_invalid_case_is_refused_before_anything_is_queued(app, client, tokens, live_broker):
+    case = single_layer_case(35.0, 1.2e-10, tags=["it-invalid"])
+    case["layers"][0]["diffusivity"] = "1.2e-10 m/s"  # wrong dimension
+    before = live_broker.client().llen("celery")
+    response = client.post("/v1/runs", json={"case": case}, headers=bearer(tokens["engineer"]))
+    assert response.status_code == 422
+    paths = [e["path"] for e in response.get_json()["errors"]]
+    assert any("diffusivity" in p for p in paths), paths
+    assert live_broker.client().llen("celery") <= before
