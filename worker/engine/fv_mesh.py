@@ -509,6 +509,12 @@ def make_profile_functions(mesh: Mesh, c: np.ndarray, flux_density: np.ndarray):
             cache.append(layer_profiles(mesh, c, flux_density))
         profiles = cache[0]
         r_array = np.atleast_1d(np.asarray(r, dtype=float))
+        if layer is not None and 0 <= layer < edges.size - 1 and r_array.size:
+            slack = 1e-12 * max(abs(edges[-1]), abs(edges[0]), edges[-1] - edges[0])
+            if edges[layer] - slack <= r_array.min() and r_array.max() <= edges[layer + 1] + slack:
+                positions, values = profiles[layer][2 * which], profiles[layer][1 + 2 * which]
+                out = np.interp(r_array, positions, values)
+                return out if np.ndim(r) else out[0]
         owners = _locate(edges, r_array, layer)
         out = np.empty_like(r_array)
         for j in np.unique(owners):

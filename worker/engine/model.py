@@ -20,6 +20,7 @@ from __future__ import annotations
 
 from collections.abc import Callable, Mapping
 from dataclasses import dataclass, field
+from functools import cached_property
 from types import MappingProxyType
 
 import numpy as np
@@ -143,12 +144,14 @@ class Problem:
         """Geometric exponent n: 0 slab, 1 cylinder, 2 sphere."""
         return GEOMETRY_EXPONENT[self.geometry]
 
-    @property
+    @cached_property
     def edges(self) -> np.ndarray:
-        """Positions of the inner face, every interface and the outer face, in m."""
-        return self.inner + np.concatenate(([0.0], np.cumsum([ly.thickness for ly in self.layers])))
+        """Positions of the inner face, every interface and the outer face, in m (read-only)."""
+        edges = self.inner + np.concatenate(([0.0], np.cumsum([ly.thickness for ly in self.layers])))
+        edges.flags.writeable = False
+        return edges
 
-    @property
+    @cached_property
     def outer(self) -> float:
         return float(self.edges[-1])
 

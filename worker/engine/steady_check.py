@@ -18,6 +18,7 @@ from __future__ import annotations
 
 import dataclasses
 import math
+from dataclasses import dataclass
 
 import numpy as np
 
@@ -77,7 +78,36 @@ def _face_flux(solution: SteadySolution, side: str) -> float:
     return float(solution.flux_inner if side == "inner" else solution.flux_outer)
 
 
-def _concentration_scale(problem: Problem, *solutions: SteadySolution) -> float:
+@dataclass
+class _Sampled:
+    """One solution evaluated once on the profile points of every layer (both layer ends
+    included) and its flux at each layer's two ends; every check reads these samples."""
+
+    solution: SteadySolution
+    positions: list[np.ndarray]
+    concentration: list[np.ndarray]
+    end_flux: list[np.ndarray]
+
+    @classmethod
+    def of(cls, solution: SteadySolution, positions: list[np.ndarray]) -> _Sampled:
+        conc, flux = [], []
+        for i, r in enumerate(positions):
+            conc.append(np.asarray(solution.concentration_at(r, layer=i), dtype=float))
+            flux.append(np.asarray(solution.flux_at(r[[0, -1]], layer=i), dtype=float))
+        return cls(solution, positions, conc, flux)
+
+    def face_concentration(self, side: str) -> float:
+        return float(self.concentration[0][0] if side == "inner" else self.concentration[-1][-1])
+
+    def face_flux(self, side: str) -> float:
+        return float(self.end_flux[0][0] if side == "inner" else self.end_flux[-1][-1])
+
+    @property
+    def lowest(self) -> float:
+        return float(min(np.min(c) for c in self.concentration))
+
+
+def _concentration_scale(problem: Problem, samples: list[_Sampled]) -> float:
     scale = 0.0
     for side in ("inner", "outer"):
         b = problem.inner_boundary if side == "inner" else problem.outer_boundary
@@ -86,10 +116,9 @@ def _concentration_scale(problem: Problem, *solutions: SteadySolution) -> float:
             scale = max(scale, abs(k * b.value))
         elif b.kind == "mass_transfer":
             scale = max(scale, abs(k * b.bulk))
-    for solution in solutions:
-        for i, (a, b) in enumerate(zip(problem.edges[:-1], problem.edges[1:], strict=True)):
-            c = solution.concentration_at(np.linspace(a, b, 9), layer=i)
-            scale = max(scale, float(np.nanmax(np.abs(c))))
+    for sample in samples:
+        for c in sample.concentration:
+            scale = max(scale, float(np.max(np.abs(c))))
     return scale if scale > 0 else 1.0
 
 
@@ -104,35 +133,20 @@ def _throughput_scale(problem: Problem, solution: SteadySolution, c_scale: float
     return max(max(rates), floor)
 
 
-def _profile_positions(problem: Problem) -> list[tuple[int, np.ndarray]]:
+def _profile_positions(problem: Problem) -> list[np.ndarray]:
     edges = problem.edges
-    return [
-        (i, np.linspace(edges[i], edges[i + 1], PROFILE_POINTS_PER_LAYER))
-        for i in range(len(problem.layers))
-    ]
+    return [np.linspace(edges[i], edges[i + 1], PROFILE_POINTS_PER_LAYER)
+            for i in range(len(problem.layers))]
 
 
-def _sample(solution: SteadySolution, problem: Problem) -> tuple[list, list, list]:
-    positions, values, layers = [], [], []
-    for i, r in _profile_positions(problem):
-        positions.extend(r.tolist())
-        values.extend(np.asarray(solution.concentration_at(r, layer=i), dtype=float).tolist())
-        layers.extend([i] * len(r))
-    return positions, values, layers
-
-
-def _boundary_residuals(problem: Problem, solution: SteadySolution, c_scale: float,
+def _boundary_residuals(problem: Problem, sample: _Sampled, c_scale: float,
                         t_scale: float) -> list[tuple[str, float]]:
     """Residual of each face condition, evaluated on the solution's own fields."""
     out = []
-    for side in ("inner", "outer"):
+    for side in _faces(problem):
         b = problem.inner_boundary if side == "inner" else problem.outer_boundary
-        layer = 0 if side == "inner" else len(problem.layers) - 1
-        r = np.array([problem.inner if side == "inner" else problem.outer])
-        if side == "inner" and problem.solid_centre:
-            continue
-        c_s = float(solution.concentration_at(r, layer=layer)[0])
-        j = float(solution.flux_at(r, layer=layer)[0])
+        c_s = sample.face_concentration(side)
+        j = sample.face_flux(side)
         into = j if side == "inner" else -j
         k = problem.face_partition(side)
         w = _weight(problem, side)
@@ -149,21 +163,18 @@ def _boundary_residuals(problem: Problem, solution: SteadySolution, c_scale: flo
     return out
 
 
-def _interface_residuals(problem: Problem, solution: SteadySolution, c_scale: float,
+def _interface_residuals(problem: Problem, sample: _Sampled, c_scale: float,
                          t_scale: float) -> list[tuple[str, float]]:
     out = []
     for i in range(len(problem.layers) - 1):
-        r = np.array([problem.edges[i + 1]])
+        r = float(problem.edges[i + 1])
         a, b = problem.layers[i], problem.layers[i + 1]
-        ca = float(solution.concentration_at(r, layer=i)[0])
-        cb = float(solution.concentration_at(r, layer=i + 1)[0])
-        ja = float(solution.flux_at(r, layer=i)[0])
-        jb = float(solution.flux_at(r, layer=i + 1)[0])
+        ca, cb = sample.concentration[i][-1], sample.concentration[i + 1][0]
+        ja, jb = sample.end_flux[i][-1], sample.end_flux[i + 1][0]
         k_ref = min(a.partition, b.partition)
         out.append((f"interface {i + 1} C/K", abs(ca / a.partition - cb / b.partition) * k_ref
                     / c_scale))
-        out.append((f"interface {i + 1} flux", abs(float(r[0]) ** problem.exponent * (ja - jb))
-                    / t_scale))
+        out.append((f"interface {i + 1} flux", abs(r**problem.exponent * (ja - jb)) / t_scale))
     return out
 
 
@@ -184,20 +195,18 @@ def _method(role: str, solution: SteadySolution) -> dict:
     return {"role": role, "name": solution.method, "reference": solution.reference}
 
 
-def _add_quantities(outcome: Outcome, problem: Problem, primary: SteadySolution,
-                    profile_values: list) -> None:
+def _add_quantities(outcome: Outcome, problem: Problem, primary: _Sampled) -> None:
     c_unit = problem.concentration_unit
     amount = problem.amount_unit
     flux_unit = f"{amount}/(m^2*s)"
     q = outcome.add_quantity
-    q("flux_inner", float(primary.flux_inner), flux_unit)
-    q("flux_outer", float(primary.flux_outer), flux_unit)
+    q("flux_inner", float(primary.solution.flux_inner), flux_unit)
+    q("flux_outer", float(primary.solution.flux_outer), flux_unit)
     for side in ("inner", "outer"):
-        layer = 0 if side == "inner" else len(problem.layers) - 1
-        r = np.array([problem.inner if side == "inner" else problem.outer])
-        q(f"surface_{side}", float(primary.concentration_at(r, layer=layer)[0]), c_unit)
-    q("concentration_min", float(np.min(profile_values)), c_unit)
-    q("concentration_max", float(np.max(profile_values)), c_unit)
+        q(f"surface_{side}", primary.face_concentration(side), c_unit)
+    q("concentration_min", primary.lowest, c_unit)
+    q("concentration_max", float(max(np.max(c) for c in primary.concentration)), c_unit)
+    primary = primary.solution
     if primary.depletion_front is not None:
         q("depletion_front", float(primary.depletion_front), "m")
     q("thiele_modulus", [exact_steady.thiele_modulus(ly, problem) for ly in problem.layers],
@@ -308,12 +317,12 @@ def _cross_check_fluxes(outcome: Outcome, problem: Problem, reference: SteadySol
             "relative to the throughput scale")
 
 
-def _cross_check_profile(outcome: Outcome, problem: Problem, a: SteadySolution,
-                         b: SteadySolution, c_scale: float, label: str) -> None:
+def _cross_check_profile(outcome: Outcome, problem: Problem, a: _Sampled,
+                         b: _Sampled, c_scale: float, label: str) -> None:
     worst = 0.0
     where = problem.inner
-    for i, r in _profile_positions(problem):
-        diff = np.abs(a.concentration_at(r, layer=i) - b.concentration_at(r, layer=i))
+    for r, ca, cb in zip(a.positions, a.concentration, b.concentration, strict=True):
+        diff = np.abs(ca - cb)
         j = int(np.argmax(diff))
         if diff[j] / c_scale > worst:
             worst, where = float(diff[j] / c_scale), float(r[j])
@@ -388,12 +397,16 @@ def run_steady(problem: Problem) -> Outcome:
         outcome.methods.append(_method("independent", independent))
 
     solutions = [s for s in (primary, fine, independent) if s is not None and s.success]
-    c_scale = _concentration_scale(problem, *solutions)
+    positions = _profile_positions(problem)
+    samples = {id(s): _Sampled.of(s, positions) for s in solutions}
+    c_scale = _concentration_scale(problem, list(samples.values()))
     t_scale = _throughput_scale(problem, primary, c_scale)
 
-    positions, values, layers = _sample(primary, problem)
+    primary_samples = samples.get(id(primary)) or _Sampled.of(primary, positions)
     outcome.series["profile"] = {
-        "position": positions, "concentration": values, "layer": layers,
+        "position": np.concatenate(positions).tolist(),
+        "concentration": np.concatenate(primary_samples.concentration).tolist(),
+        "layer": [i for i, r in enumerate(positions) for _ in range(len(r))],
         "units": {"position": "m", "concentration": problem.concentration_unit},
     }
     if problem.probes:
@@ -403,13 +416,13 @@ def run_steady(problem: Problem) -> Outcome:
             "concentration": np.asarray(primary.concentration_at(probe_r), dtype=float).tolist(),
             "units": {"position": "m", "concentration": problem.concentration_unit},
         }
-    _add_quantities(outcome, problem, primary, values)
+    _add_quantities(outcome, problem, primary_samples)
 
     numerical_values = _grid_checks(outcome, problem, studies, cells, t_scale)
     if exact is not None:
         _cross_check_fluxes(outcome, problem, exact, numerical_values, t_scale,
                             "finite volumes (extrapolated) vs exact")
-        _cross_check_profile(outcome, problem, fine, exact, c_scale,
+        _cross_check_profile(outcome, problem, samples[id(fine)], samples[id(exact)], c_scale,
                              "finite volumes (fine grid) vs exact")
     elif independent is not None:
         if not independent.success:
@@ -418,7 +431,8 @@ def run_steady(problem: Problem) -> Outcome:
         else:
             _cross_check_fluxes(outcome, problem, independent, numerical_values, t_scale,
                                 "finite volumes (extrapolated) vs solve_bvp")
-            _cross_check_profile(outcome, problem, fine, independent, c_scale,
+            _cross_check_profile(outcome, problem, samples[id(fine)], samples[id(independent)],
+                                 c_scale,
                                  "finite volumes (fine grid) vs solve_bvp")
     if exact is not None and exact.depletion_front is not None:
         front = fine.depletion_front
@@ -430,8 +444,7 @@ def run_steady(problem: Problem) -> Outcome:
             f"finite-volume front {front} m vs exact {exact.depletion_front:.6g} m, relative to "
             "the total thickness")
 
-    imbalance = [(s.method, _mass_imbalance(problem, s, t_scale)) for s in solutions
-                 if s.success]
+    imbalance = [(s.method, _mass_imbalance(problem, s, t_scale)) for s in solutions]
     name, value = _worst(imbalance)
     outcome.check_at_most(
         "mass_balance", value, _limit(problem, "mass_balance"),
@@ -439,38 +452,34 @@ def run_steady(problem: Problem) -> Outcome:
 
     residuals = []
     for s in solutions:
-        if s.success:
-            residuals += [(f"{s.method}: {k}", v) for k, v in
-                          _boundary_residuals(problem, s, c_scale, t_scale)]
+        residuals += [(f"{s.method}: {k}", v) for k, v in
+                      _boundary_residuals(problem, samples[id(s)], c_scale, t_scale)]
     name, value = _worst(residuals)
     outcome.check_at_most("boundary_residual", value, _limit(problem, "boundary_residual"),
                           f"worst face condition: {name}")
     if len(problem.layers) > 1:
         residuals = []
         for s in solutions:
-            if s.success:
-                residuals += [(f"{s.method}: {k}", v) for k, v in
-                              _interface_residuals(problem, s, c_scale, t_scale)]
+            residuals += [(f"{s.method}: {k}", v) for k, v in
+                          _interface_residuals(problem, samples[id(s)], c_scale, t_scale)]
         name, value = _worst(residuals)
         outcome.check_at_most("interface_residual", value,
                               _limit(problem, "interface_residual"),
                               f"worst interface condition: {name}")
 
-    lowest = min(float(np.min(fine.concentration_at(np.asarray(r), layer=i)))
-                 for i, r in _profile_positions(problem))
-    lowest = min(lowest, float(np.min(values)))
+    lowest = min(sample.lowest for sample in samples.values())
     outcome.check_at_most(
         "non_negativity", max(0.0, -lowest) / c_scale, _limit(problem, "non_negativity"),
-        f"lowest concentration {lowest:.4g} {problem.concentration_unit} (primary and fine grid)")
+        f"lowest concentration {lowest:.4g} {problem.concentration_unit} (every method)")
 
-    if any(ly.reaction.kind == "michaelis_menten" for ly in problem.layers):
-        _bracket_check(outcome, problem, fine, c_scale)
+    if any(ly.reaction.kind == "michaelis_menten" for ly in problem.layers) and fine.success:
+        _bracket_check(outcome, problem, samples[id(fine)], c_scale)
 
     _regime_notes(problem, primary, outcome)
     return outcome
 
 
-def _bracket_check(outcome: Outcome, problem: Problem, fine: SteadySolution,
+def _bracket_check(outcome: Outcome, problem: Problem, fine: _Sampled,
                    c_scale: float) -> None:
     bracket = exact_steady.michaelis_menten_bracket(problem)
     if bracket is None:
@@ -482,8 +491,7 @@ def _bracket_check(outcome: Outcome, problem: Problem, fine: SteadySolution,
     outcome.methods.append({"role": "bracket", "name": f"{lower.method} / {upper.method}",
                             "reference": lower.reference})
     worst, where = 0.0, problem.inner
-    for i, r in _profile_positions(problem):
-        c = fine.concentration_at(r, layer=i)
+    for i, (r, c) in enumerate(zip(fine.positions, fine.concentration, strict=True)):
         below = np.asarray(lower.concentration_at(r, layer=i)) - c
         above = c - np.asarray(upper.concentration_at(r, layer=i))
         violation = np.maximum(below, above) / c_scale
