@@ -1,44 +1,121 @@
-"""The HTML report of one run (Jinja2, autoescaped)."""
+"""The HTML report of one run (Jinja2, autoescaped): what a reviewer reads before signing.
+
+:func:`report_context` gathers everything the report shows (inputs as given beside SI, the
+layer-stack drawing, the profile and release plots as inline SVG, quantities, checks, methods,
+warnings, provenance, sign-off); ``report_body.html`` lays it out, both in the standalone report
+(:func:`render_report`: ``GET /v1/runs/{id}/report`` and the files ``fluxproof demo`` writes) and
+in the run page under ``/ui/``.
+"""
 
 from __future__ import annotations
 
+import re
+from pathlib import Path
 from typing import Any
 
 from flask import render_template
+from markupsafe import Markup
+
+from service.ui.numbers import length_markup, number_markup, quantity_markup, unit_text
 
 #: Shown on every report when the record carries no caution text of its own.
 DEFAULT_CAUTION = ("These results support, but do not replace, design verification testing and "
                    "qualified independent review; local regulations and licensed practice "
                    "govern.")
 
+STYLESHEET = Path(__file__).resolve().parent / "static" / "fluxproof.css"
+
+#: What each quantity means, in a few words (sign convention: positive outward).
+QUANTITY_WORDS = {
+    "flux_inner": "flux density at the inner face (positive outward)",
+    "flux_outer": "flux density at the outer face (positive outward)",
+    "surface_inner": "material-side concentration at the inner face",
+    "surface_outer": "material-side concentration at the outer face",
+    "concentration_min": "lowest concentration in the body",
+    "concentration_max": "highest concentration in the body",
+    "depletion_front": "where a zero-order layer runs out of solute",
+    "thiele_modulus": "reaction against diffusion, per layer (— where it does not react)",
+    "biot_inner": "film against body resistance at the inner face",
+    "biot_outer": "film against body resistance at the outer face",
+    "rate_per_length_inner": "amount per unit length through the inner face",
+    "rate_per_length_outer": "amount per unit length through the outer face",
+    "consumption_per_length": "amount consumed per unit length",
+    "consumption_per_area": "amount consumed per unit face area",
+    "rate_inner": "amount per time through the inner face",
+    "rate_outer": "amount per time through the outer face",
+    "consumption": "amount consumed per time",
+    "t50": "time to release half the initial load",
+    "t90": "time to release 90 % of the initial load",
+    "time_lag": "intercept of the late-time release line (membrane lag)",
+    "release_fraction_final": "fraction of the initial load released by the last time",
+}
+
+#: Quantities tried in order for the one figure shown at the top of the report.
+KEY_FIGURES = ("flux_outer", "flux_inner", "t50", "t90", "consumption")
+
 
 def flatten(value: Any, prefix: str = "") -> dict[str, Any]:
-    """``{"layers[0].thickness": "40 um", ...}``: leaves of a nested document by path."""
+    """``{"layers[0].thickness": "40 um", ...}``: leaves of a nested document by path.
+
+    Every list is indexed (``regime.times[0]``); ``{value, unit}`` objects are leaves.
+    """
     leaves: dict[str, Any] = {}
     if isinstance(value, dict) and not ({"value", "unit"} >= set(value) and "value" in value):
         for key, item in value.items():
             leaves.update(flatten(item, f"{prefix}.{key}" if prefix else str(key)))
-    elif isinstance(value, (list, tuple)) and value and all(isinstance(v, (dict, list))
-                                                            for v in value):
+    elif isinstance(value, (list, tuple)) and value:
         for index, item in enumerate(value):
             leaves.update(flatten(item, f"{prefix}[{index}]"))
     else:
-        if isinstance(value, dict):
-            value = f"{value.get('value')} {value.get('unit', '')}".strip()
         leaves[prefix] = value
     return leaves
 
 
+_INDEXED = re.compile(r"^(.*)\[(\d+)\]$")
+
+
+def _collapse_word_lists(rows: list[tuple[str, Any, Any]]) -> list[tuple[str, Any, Any]]:
+    """Join lists of plain words that read the same on both sides (tags) into one row."""
+    groups: dict[str, list[tuple[str, Any, Any]]] = {}
+    for row in rows:
+        match = _INDEXED.match(row[0])
+        if match:
+            groups.setdefault(match.group(1), []).append(row)
+    joinable = {base for base, items in groups.items()
+                if all(isinstance(g, str) and g == s for _, g, s in items)}
+    out: list[tuple[str, Any, Any]] = []
+    for row in rows:
+        match = _INDEXED.match(row[0])
+        if match and match.group(1) in joinable:
+            base = match.group(1)
+            if match.group(2) == "0":
+                words = ", ".join(g for _, g, _s in groups[base])
+                out.append((base, words, words))
+            continue
+        out.append(row)
+    return out
+
+
+def _as_given(value: Any) -> Any:
+    if isinstance(value, dict):
+        return f"{value.get('value')} {value.get('unit', '')}".strip()
+    return value
+
+
 def input_rows(document: dict[str, Any], normalised: dict[str, Any] | None
                ) -> list[tuple[str, Any, Any]]:
-    """(path, as given, in SI) for every input leaf."""
+    """(path, as given, in SI) for every input leaf; SI values stay ``{value, unit}``."""
     given = flatten(document)
     si = flatten(normalised or {})
     paths = list(given) + [p for p in si if p not in given]
-    return [(path, given.get(path, ""), si.get(path, "")) for path in paths]
+    rows = [(path, _as_given(given.get(path, "")), si.get(path, "")) for path in paths]
+    rows = [(path, "none" if g == [] else g, "none" if s == [] else s) for path, g, s in rows]
+    return _collapse_word_lists(rows)
 
 
-def _normalised(document: dict[str, Any]) -> dict[str, Any] | None:
+def _normalised(record: dict[str, Any], document: dict[str, Any]) -> dict[str, Any] | None:
+    if isinstance(record.get("inputs"), dict):
+        return record["inputs"]
     import schemas
 
     try:
@@ -47,24 +124,80 @@ def _normalised(document: dict[str, Any]) -> dict[str, Any] | None:
         return None
 
 
-def render_report(record: dict[str, Any], document: dict[str, Any]) -> str:
-    """The report page of ``record`` (a run record) computed from case ``document``."""
+def key_figure(record: dict[str, Any]) -> tuple[str, Any] | None:
+    """(name, quantity) of the figure a reader looks for first, or None."""
+    quantities = record.get("quantities") or {}
+    for name in KEY_FIGURES:
+        quantity = quantities.get(name)
+        if isinstance(quantity, dict) and isinstance(quantity.get("value"), (int, float)) \
+                and quantity["value"] != 0:
+            return name, quantity
+    return None
+
+
+def _figures(record: dict[str, Any], normalised: dict[str, Any] | None) -> dict[str, Markup]:
+    from service.ui.layer_stack import layer_stack_svg
+    from service.ui.plot_profile import profile_svg
+    from service.ui.plot_release import release_svg
+
+    figures: dict[str, Markup] = {}
+    if normalised and normalised.get("layers"):
+        figures["stack"] = Markup(layer_stack_svg(normalised))
+    names = [str(layer.get("name") or f"layer {i + 1}")
+             for i, layer in enumerate((normalised or {}).get("layers") or [])]
+    with_inputs = dict(record)
+    with_inputs.setdefault("inputs", normalised or {})
+    profile = profile_svg(with_inputs, names)
+    if profile:
+        figures["profile"] = Markup(profile)
+    release = release_svg(record)
+    if release:
+        figures["release"] = Markup(release)
+    return figures
+
+
+def report_context(record: dict[str, Any], document: dict[str, Any]) -> dict[str, Any]:
+    """Everything ``report_body.html`` shows for ``record`` of case ``document``."""
+    normalised = _normalised(record, document)
     quantities = []
     for name, quantity in (record.get("quantities") or {}).items():
-        if isinstance(quantity, dict):
-            quantities.append((name, quantity.get("value"), quantity.get("unit", "")))
-        else:
-            quantities.append((name, quantity, ""))
-    return render_template(
-        "report.html",
-        record=record,
-        document=document,
-        inputs=input_rows(document, _normalised(document)),
-        quantities=quantities,
-        checks=record.get("checks") or [],
-        methods=record.get("methods") or [],
-        warnings=record.get("warnings") or [],
-        provenance=record.get("provenance") or {},
-        signoffs=record.get("signoffs") or [],
-        caution=record.get("caution") or DEFAULT_CAUTION,
-    )
+        quantities.append((name, quantity, QUANTITY_WORDS.get(name, "")))
+    checks = record.get("checks") or []
+    front = (record.get("quantities") or {}).get("depletion_front")
+    return {
+        "record": record,
+        "document": document,
+        "inputs": input_rows(document, normalised),
+        "quantities": quantities,
+        "checks": checks,
+        "checks_passed": sum(1 for c in checks if c.get("passed")),
+        "methods": record.get("methods") or [],
+        "warnings": record.get("warnings") or [],
+        "provenance": record.get("provenance") or {},
+        "signoffs": record.get("signoffs") or [],
+        "caution": record.get("caution") or DEFAULT_CAUTION,
+        "figures": _figures(record, normalised),
+        "key_figure": key_figure(record),
+        "depletion_front": front if isinstance(front, dict) else None,
+        "transient": ((normalised or {}).get("regime") or {}).get("kind") == "transient",
+        "num": number_markup,
+        "qty": quantity_markup,
+        "unit": unit_text,
+        "length": length_markup,
+        "layer_names": [str(layer.get("name") or f"layer {i + 1}")
+                        for i, layer in enumerate((normalised or {}).get("layers") or [])],
+    }
+
+
+def stylesheet_text() -> str:
+    """The one stylesheet (screen and print), for reports that must stand alone."""
+    return STYLESHEET.read_text(encoding="utf-8")
+
+
+def render_report(record: dict[str, Any], document: dict[str, Any]) -> str:
+    """The standalone report page of ``record`` (a run record) computed from case ``document``.
+
+    The stylesheet is inlined so that a saved file reads the same anywhere.
+    """
+    return render_template("report.html", stylesheet=Markup(stylesheet_text()),
+                           **report_context(record, document))
