@@ -69,6 +69,11 @@ CROSS_CHECK_FLOOR = 1e-2
 COARSE_DIVISOR = 4
 #: Fewest cells per layer of the coarse mesh.
 MIN_COARSE_CELLS = 10
+#: Early-time resolution: a coarse cell is at most this fraction of the diffusion length
+#: sqrt(D t) of its layer at the first positive requested time ...
+EARLY_RESOLUTION = 0.35
+#: ... up to this many coarse cells per layer (fine mesh: four times as many).
+MAX_COARSE_CELLS = 250
 #: Factor by which the integrator tolerance is tightened for ``convergence.time``.
 TIME_TIGHTENING = 10.0
 #: Capacity-resistance times integrated past the duration for ``steady_limit``.
@@ -212,17 +217,28 @@ def _first_crossing(function, grid: np.ndarray, level: float) -> float | None:
 # ---------------------------------------------------------------------------------------------
 
 
-def _mesh_sequence(problem: Problem) -> list[tuple[int, ...]]:
-    """Coarse, medium and fine cells per layer (ratio 2); the fine mesh is the steady mesh rule
-    rounded to a multiple of four."""
+def _mesh_sequence(problem: Problem, first_time: float | None) -> list[tuple[int, ...]]:
+    """Coarse, medium and fine cells per layer (ratio 2). The coarse mesh is the steady mesh
+    rule divided by ``COARSE_DIVISOR``, refined where needed so that the diffusion length at the
+    first requested time spans several coarse cells (``EARLY_RESOLUTION``)."""
     base = default_cells_per_layer(problem)
-    coarse = tuple(max(MIN_COARSE_CELLS, math.ceil(n / COARSE_DIVISOR)) for n in base)
+    coarse = []
+    for n, layer in zip(base, problem.layers, strict=True):
+        cells = max(MIN_COARSE_CELLS, math.ceil(n / COARSE_DIVISOR))
+        if first_time is not None and first_time > 0.0:
+            length = math.sqrt(layer.diffusivity * first_time)
+            early = math.ceil(layer.thickness / (EARLY_RESOLUTION * length))
+            cells = max(cells, min(early, MAX_COARSE_CELLS))
+        coarse.append(cells)
+    coarse = tuple(coarse)
     return [coarse, tuple(2 * n for n in coarse), tuple(4 * n for n in coarse)]
 
 
 def _fv_on_meshes(problem: Problem, times: np.ndarray, end: float):
     """Coarse, medium and fine solutions, integrated together (shared BDF steps)."""
-    return transient_fv.solve_transient_fv_meshes(problem, _mesh_sequence(problem), times,
+    positive = times[times > 0.0]
+    first = float(positive.min()) if positive.size else None
+    return transient_fv.solve_transient_fv_meshes(problem, _mesh_sequence(problem, first), times,
                                                   end=end)
 
 
