@@ -8,8 +8,8 @@ continuation, steady reference, every check). FiPy's side: one transient solve (
 largest time step whose 30-day release fraction is within the check tolerance of the release
 fraction (``cross_check.release_fraction``, 1e-4) of the converged value (the grid-extrapolated
 release of ``run_transient``, confirmed by a Richardson-extrapolated FiPy pair); the cheapest
-FiPy configuration within the looser pointwise tolerance (1e-3) is printed too. Measured side by side in one run; figures printed, nothing
-asserted about time (shared, noisy machines).
+FiPy configuration within the looser pointwise tolerance (1e-3) is printed too. Measured side
+by side in one run; figures printed, nothing asserted about time (shared, noisy machines).
 
 Run with ``make bench``.
 """
