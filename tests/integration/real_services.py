@@ -32,7 +32,7 @@ POSTGRES_USERS = ("postgres", "root")
 #: Redis database numbers the integration tests and benchmarks may lease (0 and 15 are left
 #: to others).
 REDIS_DATABASES = (11, 12, 13, 14, 10, 9, 8)
-LEASE_KEY = "fluxproof:integration:lease"
+LEASE_KEY = "fluxproof:lease"  # the same key as deploy/stack_services.py
 LEASE_SECONDS = 1800
 #: Keys a Celery queue on the Redis transport creates; a database holding only these (and the
 #: lease key) is one we may take and clean.
