@@ -49,22 +49,6 @@ def _input_rows(original, normalised, path: str = "") -> Iterator[tuple[str, str
         yield path, given, si if si != given else ""
 
 
-def _release_table(series: dict) -> list[str]:
-    """Release table of a transient record: one row per requested time."""
-    columns = [("time", "time")] + [
-        (key, key.replace("_", " ")) for key in
-        ("released_inner", "released_outer", "release_fraction", "remaining") if key in series
-    ]
-    out = ["Release (cumulative amounts out through each face)"]
-    out.append("  " + " ".join(f"{label:>16}" for _, label in columns))
-    out.append("  " + " ".join(f"{'[' + series[key].get('unit', '') + ']':>16}"
-                               for key, _ in columns))
-    for row in range(len(series["time"]["values"])):
-        out.append("  " + " ".join(f"{_fmt(series[key]['values'][row]):>16}"
-                                   for key, _ in columns))
-    return out
-
-
 def render_text(record: dict, case: dict) -> str:
     """The readable report: inputs (as given and SI), quantities, checks, verdict, caution."""
     lines: list[str] = []
@@ -89,10 +73,11 @@ def render_text(record: dict, case: dict) -> str:
         unit = probes["units"]["concentration"]
         for r, c in zip(probes["position"], probes["concentration"], strict=True):
             add(f"  r = {r:<12.6g} m   C = {c:.6g} {unit}")
-    series = record.get("series", {})
-    if "time" in series:
+    if "time" in record.get("series", {}):
+        from worker.engine.transient_check import format_release_table
+
         add(RULE)
-        lines.extend(_release_table(series))
+        add(format_release_table(record))
     add(RULE)
     add("Methods")
     for m in record.get("methods", []):

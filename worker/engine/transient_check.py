@@ -426,6 +426,9 @@ def _add_series(outcome, problem, primary, requested, index, initial_load, facto
         outcome.quantities["release_fraction_final"] = {"value": float(fraction[-1]),
                                                         "unit": "1"}
     else:
+        # No initial load: a fraction of it is undefined (null, kept so the series has the
+        # documented shape); the amount taken up is reported instead.
+        series["release_fraction"] = {"values": [None] * len(index), "unit": "1"}
         uptake = remaining - factor * initial_load
         series["uptake"] = {"values": uptake.tolist(), "unit": unit}
 
@@ -780,7 +783,7 @@ def format_release_table(outcome) -> str:
         return ""
     times = series["time"]["values"]
     unit = series["released_outer"]["unit"]
-    fraction_key = "release_fraction" if "release_fraction" in series else "uptake"
+    fraction_key = "uptake" if "uptake" in series else "release_fraction"
     fraction_unit = "-" if fraction_key == "release_fraction" else unit
     header = (f"{'time [s]':>14} {'out inner [' + unit + ']':>20} "
               f"{'out outer [' + unit + ']':>20} {fraction_key + ' [' + fraction_unit + ']':>22} "
