@@ -6,6 +6,7 @@ import json
 from pathlib import Path
 
 import pytest
+import jsonschema
 from click.testing import CliRunner
 
 from schemas import CaseError
@@ -13,6 +14,8 @@ from service.cli import main
 from worker.engine import check_case
 
 DEMO = Path(__file__).parents[2] / "demo" / "cases"
+RESULT_SCHEMA = json.loads(
+    (Path(__file__).parents[2] / "schemas" / "json" / "result-v1.schema.json").read_text())
 
 
 def _case(**overrides) -> dict:
@@ -65,6 +68,7 @@ def test_demo_cases_check_and_pass(case_file):
     record = check_case(json.loads(case_file.read_text()))
     assert record["status"] == "succeeded", record["error"]
     assert record["verdict"] == "pass", [c for c in record["checks"] if not c["passed"]]
+    jsonschema.Draft202012Validator(RESULT_SCHEMA).validate(record)
 
 
 def test_cli_exit_codes_and_formats(tmp_path):
