@@ -52,6 +52,9 @@ def create_app(test_config: dict[str, Any] | None = None) -> Flask:
 
     errors.init_app(app)
     app.register_blueprint(api)
+    from service.ui import init_app as init_ui
+
+    init_ui(app)
 
     if mode == "embedded" and settings["AUTO_MIGRATE"]:
         pending = pending_run_ids(store)

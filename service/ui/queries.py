@@ -1,0 +1,160 @@
+"""Reading the store for the pages: runs with filters, a case's runs with their figures,
+batches, and which runs have drifted. Read-only; every write goes through ``service/``."""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+from typing import Any
+
+from sqlalchemy import false, func, select
+
+from service.store import Store
+from service.store.models import RUN_STATES, Batch, Case, CaseTag, Run, Signoff
+
+PAGE_SIZE = 50
+VERDICTS = ("pass", "fail")
+
+
+@dataclass(frozen=True)
+class RunFilters:
+    """The runs list's filters; None means "any"."""
+
+    verdict: str | None = None   # pass | fail
+    status: str | None = None    # queued | running | succeeded | failed
+    tag: str | None = None
+    signed: bool | None = None
+    drifted: bool | None = None
+
+    def as_query(self) -> dict[str, str]:
+        query = {}
+        for name in ("verdict", "status", "tag"):
+            if getattr(self, name):
+                query[name] = getattr(self, name)
+        for name in ("signed", "drifted"):
+            if getattr(self, name) is not None:
+                query[name] = "yes" if getattr(self, name) else "no"
+        return query
+
+
+def parse_filters(args: Any) -> tuple[RunFilters, list[dict[str, str]]]:
+    """Filters from a query string; unknown values are reported (field, what was expected)."""
+    errors: list[dict[str, str]] = []
+
+    def choice(name: str, allowed: tuple[str, ...]) -> str | None:
+        value = (args.get(name) or "").strip()
+        if not value:
+            return None
+        if value not in allowed:
+            errors.append({"path": name, "message": f"expected one of {', '.join(allowed)}, "
+                                                    f"got {value!r}"})
+            return None
+        return value
+
+    def yes_no(name: str) -> bool | None:
+        value = choice(name, ("yes", "no"))
+        return None if value is None else value == "yes"
+
+    tag = (args.get("tag") or "").strip() or None
+    filters = RunFilters(verdict=choice("verdict", VERDICTS), status=choice("status", RUN_STATES),
+                         tag=tag, signed=yes_no("signed"), drifted=yes_no("drifted"))
+    return filters, errors
+
+
+def drifted_run_ids(store: Store) -> set[str]:
+    """Runs named in the drift list of any finished batch."""
+    with store.transaction() as session:
+        lists = session.execute(select(Batch.drift).where(Batch.drift.is_not(None))).scalars()
+        return {entry.get("run_id") for drift in lists for entry in (drift or [])
+                if isinstance(entry, dict)}
+
+
+def list_runs(store: Store, filters: RunFilters, *, offset: int = 0,
+              limit: int = PAGE_SIZE) -> dict[str, Any]:
+    """A page of runs, newest first, with case title, verdict, sign-off and drift."""
+    drifted = drifted_run_ids(store)
+    verdict = Run.record["verdict"].as_string()
+    with store.transaction() as session:
+        query = (select(Run.id, Run.case_id, Run.status, verdict, Run.submitted_by, Run.batch_id,
+                        Run.created_at, Run.finished_at, Case.title, Case.tags,
+                        Signoff.decision, Signoff.reviewer)
+                 .join(Case, Case.id == Run.case_id)
+                 .outerjoin(Signoff, Signoff.run_id == Run.id))
+        if filters.verdict:
+            query = query.where(Run.status == "succeeded", verdict == filters.verdict)
+        if filters.status:
+            query = query.where(Run.status == filters.status)
+        if filters.tag:
+            query = query.where(Run.case_id.in_(select(CaseTag.case_id)
+                                                .where(CaseTag.tag == filters.tag)))
+        if filters.signed is True:
+            query = query.where(Signoff.id.is_not(None))
+        elif filters.signed is False:
+            query = query.where(Signoff.id.is_(None))
+        if filters.drifted is not None:
+            inside = Run.id.in_(sorted(drifted)) if drifted else false()
+            query = query.where(inside if filters.drifted else ~inside)
+        total = session.execute(select(func.count()).select_from(query.subquery())).scalar_one()
+        rows = session.execute(query.order_by(Run.created_at.desc(), Run.id)
+                               .limit(limit).offset(offset)).all()
+    items = [{"run_id": r[0], "case_id": r[1], "status": r[2], "verdict": r[3],
+              "submitted_by": r[4], "batch_id": r[5], "created_at": r[6], "finished_at": r[7],
+              "title": r[8], "tags": list(r[9] or []), "decision": r[10], "reviewer": r[11],
+              "drifted": r[0] in drifted} for r in rows]
+    return {"items": items, "total": total, "offset": offset, "limit": limit}
+
+
+def all_tags(store: Store) -> list[str]:
+    with store.transaction() as session:
+        return list(session.execute(select(CaseTag.tag).distinct().order_by(CaseTag.tag))
+                    .scalars())
+
+
+def case_runs_with_figures(store: Store, case_id: str) -> list[dict[str, Any]]:
+    """Every run of a case, oldest first, with its scalar quantities and sign-off."""
+    with store.transaction() as session:
+        runs = session.execute(select(Run).where(Run.case_id == case_id)
+                               .order_by(Run.created_at, Run.id)).scalars().all()
+        result = []
+        for run in runs:
+            record = run.record or {}
+            signoff = run.signoffs[0] if run.signoffs else None
+            result.append({
+                "run_id": run.id, "status": run.status, "verdict": record.get("verdict"),
+                "created_at": run.created_at, "batch_id": run.batch_id,
+                "submitted_by": run.submitted_by, "error": run.error,
+                "quantities": record.get("quantities") or {},
+                "engine_version": (record.get("provenance") or {}).get("engine_version"),
+                "decision": signoff.decision if signoff else None,
+                "reviewer": signoff.reviewer if signoff else None,
+            })
+        return result
+
+
+def list_batches(store: Store, *, limit: int = PAGE_SIZE) -> list[dict[str, Any]]:
+    """The newest batches with their run counts by state."""
+    with store.transaction() as session:
+        batches = session.execute(select(Batch).order_by(Batch.created_at.desc(), Batch.id)
+                                  .limit(limit)).scalars().all()
+        counts: dict[str, dict[str, int]] = {b.id: dict.fromkeys(RUN_STATES, 0) for b in batches}
+        if batches:
+            rows = session.execute(select(Run.batch_id, Run.status, func.count())
+                                   .where(Run.batch_id.in_(list(counts)))
+                                   .group_by(Run.batch_id, Run.status)).all()
+            for batch_id, status, number in rows:
+                counts[batch_id][status] = number
+        return [{"batch_id": b.id, "selector": b.selector, "status": b.status,
+                 "created_by": b.created_by, "created_at": b.created_at,
+                 "finished_at": b.finished_at, "counts": counts[b.id],
+                 "drifted": len(b.drift or [])} for b in batches]
+
+
+def batch_runs(store: Store, batch_id: str) -> list[dict[str, Any]]:
+    """The runs of one batch with their case titles, in the order they were queued."""
+    with store.transaction() as session:
+        rows = session.execute(select(Run.id, Run.case_id, Run.status,
+                                      Run.record["verdict"].as_string(), Case.title)
+                               .join(Case, Case.id == Run.case_id)
+                               .where(Run.batch_id == batch_id)
+                               .order_by(Run.created_at, Run.id)).all()
+    return [{"run_id": r[0], "case_id": r[1], "status": r[2], "verdict": r[3], "title": r[4]}
+            for r in rows]

@@ -1,0 +1,31 @@
+"""Re-verification batches: the list, and one batch's progress and drift."""
+
+from __future__ import annotations
+
+from flask import render_template
+
+from service.api.context import services
+from service.batches import get_batch
+from service.store.models import FINISHED_STATES
+from service.ui import queries
+from service.ui.blueprint import ui
+from service.ui.numbers import number_markup
+
+#: Seconds between reloads of a batch page while the batch runs (a meta refresh: no script).
+REFRESH_SECONDS = 3
+
+
+@ui.get("/batches")
+def batches():
+    return render_template("ui_batches.html", batches=queries.list_batches(services().store))
+
+
+@ui.get("/batches/<batch_id>")
+def batch(batch_id: str):
+    store = services().store
+    found = get_batch(store, batch_id)
+    total = sum(found["counts"].values())
+    done = sum(found["counts"][s] for s in FINISHED_STATES)
+    return render_template("ui_batch.html", batch=found, runs=queries.batch_runs(store, batch_id),
+                           total=total, done=done, num=number_markup,
+                           refresh=REFRESH_SECONDS if found["status"] != "finished" else None)

@@ -1,0 +1,108 @@
+"""The runs list, the run page (the report, with sign-off for reviewers) and its sign-off form."""
+
+from __future__ import annotations
+
+from typing import Any
+
+from flask import flash, g, jsonify, redirect, render_template, request, url_for
+
+from service import runs as run_service
+from service import signoffs
+from service.api.bodies import COMMENT_MAX
+from service.api.context import services
+from service.errors import Conflict, FourEyesViolation
+from service.report import render_report, report_context
+from service.store.models import DECISIONS, RUN_STATES
+from service.tokens import Identity
+from service.ui import queries
+from service.ui.blueprint import ui
+
+
+def _offset() -> int:
+    try:
+        return max(0, int(request.args.get("offset", "0")))
+    except ValueError:
+        return 0
+
+
+@ui.get("/runs")
+def runs():
+    filters, errors = queries.parse_filters(request.args)
+    store = services().store
+    offset = _offset()
+    page = queries.list_runs(store, filters, offset=offset)
+    return render_template("ui_runs.html", page=page, filters=filters, errors=errors,
+                           tags=queries.all_tags(store), states=RUN_STATES,
+                           verdicts=queries.VERDICTS, query=filters.as_query(),
+                           page_size=queries.PAGE_SIZE), 422 if errors else 200
+
+
+def signoff_state(record: dict[str, Any], person: Identity) -> dict[str, Any]:
+    """Whether ``person`` may sign this record off, and if not, the reason in words."""
+    submitter = record.get("submitted_by")
+    reasons = []
+    if person.role != "reviewer":
+        reasons.append(f"Sign-off is for reviewers; you are signed in as {person.name} "
+                       f"({person.role}).")
+    if person.name == submitter:
+        reasons.append(f"You submitted this run ({submitter}), so you cannot sign it off: a "
+                       "check record is signed off by a second person (four-eyes). Ask "
+                       "another reviewer.")
+    if record.get("signoffs"):
+        first = record["signoffs"][0]
+        reasons.append(f"Already signed off ({first['decision']} by {first['reviewer']}); a "
+                       "signed record never changes. Re-verify the case for a new run.")
+    elif record.get("status") != "succeeded":
+        reasons.append(f"Only a succeeded run can be signed off; this one is "
+                       f"{record.get('status')}.")
+    return {"allowed": not reasons, "reasons": reasons, "submitter": submitter}
+
+
+def _run_page(run_id: str, *, status: int = 200, form_errors: list[dict[str, str]] | None = None,
+              comment: str = "", refusal: str | None = None):
+    record, document = run_service.get_run_and_case(services().store, run_id)
+    context = report_context(record, document)
+    return render_template("ui_run.html", signoff=signoff_state(record, g.person),
+                           decisions=DECISIONS, form_errors=form_errors or [], comment=comment,
+                           refusal=refusal, comment_max=COMMENT_MAX, **context), status
+
+
+@ui.get("/runs/<run_id>")
+def run(run_id: str):
+    return _run_page(run_id)
+
+
+@ui.get("/runs/<run_id>/report")
+def run_report(run_id: str):
+    record, document = run_service.get_run_and_case(services().store, run_id)
+    return render_report(record, document)
+
+
+@ui.get("/runs/<run_id>/record.json")
+def run_record(run_id: str):
+    response = jsonify(run_service.get_record(services().store, run_id))
+    response.headers["Content-Disposition"] = f'attachment; filename="record-{run_id}.json"'
+    return response
+
+
+@ui.post("/runs/<run_id>/signoff")
+def signoff(run_id: str):
+    decision = request.form.get("decision", "")
+    comment = request.form.get("comment", "").strip()
+    errors = []
+    if decision not in DECISIONS:
+        errors.append({"path": "decision", "message": f"expected one of {', '.join(DECISIONS)}"})
+    if not 1 <= len(comment) <= COMMENT_MAX:
+        errors.append({"path": "comment", "message": "write the reasons for your decision "
+                                                     f"(1 to {COMMENT_MAX} characters)"})
+    if errors:
+        return _run_page(run_id, status=422, form_errors=errors, comment=comment)
+    try:
+        signoffs.sign_off(services().store, run_id, g.person, decision=decision,
+                          comment=comment)
+    except FourEyesViolation as exc:
+        return _run_page(run_id, status=403, refusal=exc.detail, comment=comment)
+    except Conflict as exc:
+        return _run_page(run_id, status=409, refusal=exc.detail, comment=comment)
+    flash(f"Signed off: {decision}. The record is now sealed.", "ok")
+    return redirect(url_for("ui.run", run_id=run_id), code=303)
