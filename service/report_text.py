@@ -44,7 +44,8 @@ def _input_rows(original, normalised, path: str = "") -> Iterator[tuple[str, str
             sub = normalised[i] if isinstance(normalised, list) and i < len(normalised) else None
             yield from _input_rows(value, sub, f"{path}[{i}]")
     else:
-        si = _si_text(normalised) if normalised is not None else ""
+        dimensional = isinstance(normalised, dict) and "unit" in normalised
+        si = _si_text(normalised) if dimensional else ""
         given = _quantity_text(original)
         yield path, given, si if si != given else ""
 
