@@ -176,6 +176,7 @@ def report_context(record: dict[str, Any], document: dict[str, Any]) -> dict[str
         "provenance": record.get("provenance") or {},
         "signoffs": record.get("signoffs") or [],
         "caution": record.get("caution") or DEFAULT_CAUTION,
+        "standard_caution": DEFAULT_CAUTION,
         "figures": _figures(record, normalised),
         "key_figure": key_figure(record),
         "depletion_front": front if isinstance(front, dict) else None,

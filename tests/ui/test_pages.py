@@ -1,0 +1,399 @@
+"""The pages under /ui/: sign-in and session, CSRF, roles per page, sign-off and four-eyes,
+filters, history, batches, audit, headers and accessibility basics.
+
+These test the service's own behaviour, so the engine is replaced by one whose figures the
+test chooses (``controlled_engine``); no figure here is a check of the engine.
+"""
+
+from __future__ import annotations
+
+import re
+from html.parser import HTMLParser
+
+import pytest
+from sqlalchemy import select, text
+
+from service.store.models import Signoff
+from service.tokens import create_token, revoke_token
+from service.ui import signin
+from tests.api.support import ROLE_NAMES, bearer, make_case
+from tests.ui.support import csrf_of, page_csrf, queue_and_run, sign_in
+
+ROLES = ("engineer", "reviewer", "auditor", "admin")
+
+
+@pytest.fixture
+def run_id(store, controlled_engine) -> str:
+    return queue_and_run(store, make_case(tags=["nightly", "membrane"]))
+
+
+def _signed(client, tokens, role: str):
+    response = sign_in(client, tokens[role])
+    assert response.status_code == 303, response.get_data(as_text=True)
+    return client
+
+
+# --- sign-in, session, CSRF --------------------------------------------------------------
+
+def test_a_stranger_is_sent_to_the_sign_in_form(client, run_id):
+    response = client.get(f"/ui/runs/{run_id}")
+    assert response.status_code == 303
+    assert response.headers["Location"] == f"/ui/login?next=/ui/runs/{run_id}"
+    assert client.post(f"/ui/runs/{run_id}/signoff", data={}).status_code == 400  # no CSRF
+
+
+def test_sign_in_sets_a_signed_http_only_lax_cookie_without_the_token(client, tokens):
+    response = sign_in(client, tokens["reviewer"], next_path="/ui/batches")
+    assert response.status_code == 303 and response.headers["Location"] == "/ui/batches"
+    cookie = response.headers["Set-Cookie"]
+    assert cookie.startswith("fluxproof_session=")
+    assert "HttpOnly" in cookie and "SameSite=Lax" in cookie and "Path=/ui" in cookie
+    secret_part = tokens["reviewer"].rsplit("_", 1)[1]
+    assert secret_part not in cookie and tokens["reviewer"] not in cookie
+    page = client.get("/ui/runs").get_data(as_text=True)
+    assert "Signed in as <strong>rafael.reviewer</strong> (reviewer)" in page
+
+
+def test_sign_in_refuses_a_bad_token_and_a_missing_csrf_field(client, tokens):
+    form = client.get("/ui/login").get_data(as_text=True)
+    bad = client.post("/ui/login", data={"token": "fpt_nope_nope", "csrf_token": csrf_of(form)})
+    assert bad.status_code == 401
+    assert "token: this token is unknown, malformed or revoked" in bad.get_data(as_text=True)
+    empty = client.post("/ui/login", data={"token": " ", "csrf_token": csrf_of(form)})
+    assert empty.status_code == 422 and "token: paste" in empty.get_data(as_text=True)
+    forged = client.post("/ui/login", data={"token": tokens["reviewer"]})
+    assert forged.status_code == 400 and "csrf_token" in forged.get_data(as_text=True)
+    assert client.get("/ui/runs").status_code == 303  # still not signed in
+
+
+def test_sign_in_never_redirects_off_the_site(client, tokens):
+    for target in ("//evil.example/x", "https://evil.example/", "/v1/audit", "/ui\\..\\x"):
+        response = sign_in(client, tokens["auditor"], next_path=target)
+        assert response.headers["Location"] == "/ui/runs", target
+
+
+def test_a_post_from_another_origin_is_refused(client, tokens, run_id):
+    _signed(client, tokens, "reviewer")
+    csrf = page_csrf(client, f"/ui/runs/{run_id}")
+    response = client.post(f"/ui/runs/{run_id}/signoff",
+                           data={"csrf_token": csrf, "decision": "approved", "comment": "x"},
+                           headers={"Origin": "https://evil.example"})
+    assert response.status_code == 400 and "another site" in response.get_data(as_text=True)
+
+
+def test_signoff_without_or_with_a_foreign_csrf_token_is_refused(app, client, store, tokens,
+                                                                 run_id):
+    _signed(client, tokens, "reviewer")
+    other = app.test_client()
+    _signed(other, tokens, "reviewer")
+    foreign = page_csrf(other, f"/ui/runs/{run_id}")
+    for data in ({"decision": "approved", "comment": "x"},
+                 {"decision": "approved", "comment": "x", "csrf_token": foreign}):
+        response = client.post(f"/ui/runs/{run_id}/signoff", data=data)
+        assert response.status_code == 400
+    with store.transaction() as session:
+        assert session.execute(select(Signoff)).first() is None
+
+
+def test_sign_out_needs_the_csrf_token_and_ends_the_session(client, tokens):
+    _signed(client, tokens, "auditor")
+    assert client.post("/ui/logout", data={}).status_code == 400
+    response = client.post("/ui/logout", data={"csrf_token": page_csrf(client, "/ui/runs")})
+    assert response.status_code == 303
+    assert client.get("/ui/runs").status_code == 303
+
+
+def test_a_revoked_token_ends_its_sessions_at_once(client, store):
+    token_id, token = create_token(store, role="auditor", name="temporary.auditor")
+    sign_in(client, token)
+    assert client.get("/ui/runs").status_code == 200
+    revoke_token(store, token_id)
+    assert client.get("/ui/runs").status_code == 303
+
+
+def test_an_old_session_must_sign_in_again(client, tokens, monkeypatch):
+    _signed(client, tokens, "auditor")
+    assert client.get("/ui/runs").status_code == 200
+    monkeypatch.setattr(signin, "SESSION_SECONDS", -1)
+    assert client.get("/ui/runs").status_code == 303
+
+
+# --- roles per page ----------------------------------------------------------------------
+
+def _pages(run_id: str, case_id: str, batch_id: str) -> dict[str, str]:
+    return {"runs": "/ui/runs", "run": f"/ui/runs/{run_id}",
+            "report": f"/ui/runs/{run_id}/report", "record": f"/ui/runs/{run_id}/record.json",
+            "case": f"/ui/cases/{case_id}", "batches": "/ui/batches",
+            "batch": f"/ui/batches/{batch_id}", "audit": "/ui/audit"}
+
+
+@pytest.mark.parametrize("role", ROLES)
+def test_each_page_for_each_role(app, store, tokens, run_id, role):
+    from service.batches import start_batch
+    from service.runs import get_record
+
+    case_id = get_record(store, run_id)["case_id"]
+    batch_id = start_batch(store, actor="adi.admin", all_cases=True)["batch_id"]
+    client = _signed(app.test_client(), tokens, role)
+    for name, path in _pages(run_id, case_id, batch_id).items():
+        response = client.get(path)
+        expected = 403 if name == "audit" and role in ("engineer", "reviewer") else 200
+        assert response.status_code == expected, (role, name)
+        body = response.get_data(as_text=True)
+        if expected == 403:
+            assert f"you are signed in as {ROLE_NAMES[role]} ({role})" in body
+            assert response.mimetype == "text/html"
+        if response.mimetype == "text/html":
+            assert "<script" not in body  # readable without JavaScript: there is none
+            assert "do not replace, design verification testing" in body
+    nav = client.get("/ui/runs").get_data(as_text=True)
+    assert ('href="/ui/audit"' in nav) == (role in ("auditor", "admin"))
+
+
+def test_missing_things_are_html_404_pages(client, tokens):
+    _signed(client, tokens, "auditor")
+    for path in ("/ui/runs/none", "/ui/cases/none", "/ui/batches/none"):
+        response = client.get(path)
+        assert response.status_code == 404 and response.mimetype == "text/html"
+
+
+def test_security_headers_on_pages_and_the_report(client, tokens, run_id):
+    _signed(client, tokens, "auditor")
+    responses = [client.get("/ui/runs"), client.get(f"/ui/runs/{run_id}"), client.get("/ui/login"),
+                 client.get(f"/v1/runs/{run_id}/report", headers=bearer(tokens["auditor"]))]
+    for response in responses:
+        policy = response.headers["Content-Security-Policy"]
+        assert "default-src 'none'" in policy and "script-src" not in policy
+        assert "frame-ancestors 'none'" in policy and "form-action 'self'" in policy
+        assert response.headers["X-Content-Type-Options"] == "nosniff"
+        assert response.headers["X-Frame-Options"] == "DENY"
+        assert response.headers["Referrer-Policy"] == "same-origin"
+    assert responses[1].headers["Cache-Control"] == "no-store"
+    css = client.get("/ui/static/fluxproof.css")
+    try:
+        assert css.status_code == 200 and "@media print" in css.get_data(as_text=True)
+    finally:
+        css.close()
+
+
+# --- sign-off and four-eyes --------------------------------------------------------------
+
+def test_a_reviewer_approves_and_the_record_is_signed(client, store, tokens, run_id):
+    _signed(client, tokens, "reviewer")
+    page = client.get(f"/ui/runs/{run_id}").get_data(as_text=True)
+    assert "Approve this record" in page and "Reject this record" in page
+    response = client.post(f"/ui/runs/{run_id}/signoff",
+                           data={"csrf_token": csrf_of(page), "decision": "approved",
+                                 "comment": "flux and mass balance checked"})
+    assert response.status_code == 303 and response.headers["Location"] == f"/ui/runs/{run_id}"
+    signed = client.get(f"/ui/runs/{run_id}").get_data(as_text=True)
+    assert "Signed off: approved" in signed
+    assert "flux and mass balance checked" in signed and "Approve this record" not in signed
+    assert "Already signed off (approved by rafael.reviewer)" in signed
+    record = client.get(f"/v1/runs/{run_id}", headers=bearer(tokens["auditor"])).get_json()
+    assert record["signoffs"][0]["reviewer"] == "rafael.reviewer"
+    events = client.get("/v1/audit?kind=signoff.recorded",
+                        headers=bearer(tokens["auditor"])).get_json()["items"]
+    assert [e["subject"] for e in events] == [run_id]
+
+
+def test_a_reviewer_rejects_with_reasons(client, tokens, run_id):
+    _signed(client, tokens, "reviewer")
+    csrf = page_csrf(client, f"/ui/runs/{run_id}")
+    client.post(f"/ui/runs/{run_id}/signoff", data={"csrf_token": csrf, "decision": "rejected",
+                                                    "comment": "wrong diffusivity basis"})
+    page = client.get(f"/ui/runs/{run_id}").get_data(as_text=True)
+    assert "decision-rejected" in page and "wrong diffusivity basis" in page
+
+
+def test_the_signoff_form_names_what_is_missing(client, store, tokens, run_id):
+    _signed(client, tokens, "reviewer")
+    csrf = page_csrf(client, f"/ui/runs/{run_id}")
+    response = client.post(f"/ui/runs/{run_id}/signoff",
+                           data={"csrf_token": csrf, "decision": "maybe", "comment": "  "})
+    assert response.status_code == 422
+    body = response.get_data(as_text=True)
+    assert "<code>decision</code>: expected one of approved, rejected" in body
+    assert "<code>comment</code>: write the reasons" in body
+    with store.transaction() as session:
+        assert session.execute(select(Signoff)).first() is None
+
+
+def test_the_submitter_sees_why_they_cannot_approve_their_own_run(app, store, run_id):
+    # The same person (erin.engineer) also holds a reviewer token.
+    _, same_person = create_token(store, role="reviewer", name="erin.engineer")
+    client = app.test_client()
+    sign_in(client, same_person)
+    page = client.get(f"/ui/runs/{run_id}").get_data(as_text=True)
+    assert "You submitted this run (erin.engineer), so you cannot sign it off" in page
+    assert "four-eyes" in page and "Approve this record" not in page
+    forced = client.post(f"/ui/runs/{run_id}/signoff",
+                         data={"csrf_token": csrf_of(page), "decision": "approved",
+                               "comment": "my own work looks fine"})
+    assert forced.status_code == 403
+    assert "submitted this run and so cannot sign it off" in forced.get_data(as_text=True)
+    with store.transaction() as session:
+        assert session.execute(select(Signoff)).first() is None
+
+
+def test_an_engineer_has_no_signoff_form_and_is_refused(client, store, tokens, run_id):
+    _signed(client, tokens, "engineer")
+    page = client.get(f"/ui/runs/{run_id}").get_data(as_text=True)
+    assert "Sign-off is for reviewers; you are signed in as erin.engineer (engineer)" in page
+    assert "You submitted this run (erin.engineer)" in page
+    assert "Approve this record" not in page
+    forced = client.post(f"/ui/runs/{run_id}/signoff",
+                         data={"csrf_token": csrf_of(page), "decision": "approved",
+                               "comment": "x"})
+    assert forced.status_code == 403
+    with store.transaction() as session:
+        assert session.execute(select(Signoff)).first() is None
+
+
+def test_a_failed_run_cannot_be_signed(client, store, tokens, controlled_engine):
+    controlled_engine.status = "failed"
+    failed = queue_and_run(store, make_case(title="a run that fails"))
+    _signed(client, tokens, "reviewer")
+    page = client.get(f"/ui/runs/{failed}").get_data(as_text=True)
+    assert "Only a succeeded run can be signed off; this one is failed" in page
+    assert "controlled failure" in page
+
+
+# --- lists, filters, history, batches, audit ---------------------------------------------
+
+@pytest.fixture
+def mixed_runs(store, tokens, monkeypatch):
+    """Runs with every filter's cases: pass/fail, tags, signed, drifted."""
+    import worker.engine
+    from service.batches import start_batch
+    from service.runs import execute_run
+    from service.signoffs import sign_off
+    from service.tokens import identify
+    from tests.api.support import controlled_result
+
+    figures = {"flux_outer": 2.0e-6}
+
+    def engine(case):
+        verdict = "fail" if "failing" in case["title"] else "pass"
+        return controlled_result(case, dict(figures), verdict=verdict)
+
+    monkeypatch.setattr(worker.engine, "check_case", engine)
+    passing = queue_and_run(store, make_case(title="passing case", tags=["nightly"]))
+    failing = queue_and_run(store, make_case(title="failing case", tags=["other"]))
+    reviewer = identify(store, tokens["reviewer"])
+    sign_off(store, passing, reviewer, decision="approved", comment="ok")
+    figures["flux_outer"] = 2.5e-6  # the re-verification moves this figure
+    batch = start_batch(store, actor="adi.admin", tag="nightly")
+    for batch_run in batch["run_ids"]:
+        execute_run(batch_run, store)
+    return {"passing": passing, "failing": failing, "drifted": batch["run_ids"][0],
+            "batch_id": batch["batch_id"]}
+
+
+def _listed(client, query: str) -> set[str]:
+    response = client.get(f"/ui/runs?{query}")
+    assert response.status_code == 200, response.get_data(as_text=True)
+    return set(re.findall(r'href="/ui/runs/([0-9a-f-]{36})"', response.get_data(as_text=True)))
+
+
+def test_runs_list_filters(client, tokens, mixed_runs):
+    _signed(client, tokens, "auditor")
+    runs = mixed_runs
+    assert _listed(client, "") == {runs["passing"], runs["failing"], runs["drifted"]}
+    assert _listed(client, "verdict=fail") == {runs["failing"]}
+    assert _listed(client, "verdict=pass") == {runs["passing"], runs["drifted"]}
+    assert _listed(client, "tag=nightly") == {runs["passing"], runs["drifted"]}
+    assert _listed(client, "signed=yes") == {runs["passing"]}
+    assert _listed(client, "signed=no") == {runs["failing"], runs["drifted"]}
+    assert _listed(client, "drifted=yes") == {runs["drifted"]}
+    assert _listed(client, "drifted=no&tag=nightly") == {runs["passing"]}
+    bad = client.get("/ui/runs?verdict=maybe&signed=perhaps")
+    assert bad.status_code == 422
+    body = bad.get_data(as_text=True)
+    assert "<code>verdict</code>: expected one of pass, fail" in body
+    assert "<code>signed</code>: expected one of yes, no" in body
+
+
+def test_case_history_puts_runs_side_by_side_with_a_trend(client, store, tokens, mixed_runs):
+    from service.runs import get_record
+
+    _signed(client, tokens, "auditor")
+    case_id = get_record(store, mixed_runs["passing"])["case_id"]
+    page = client.get(f"/ui/cases/{case_id}").get_data(as_text=True)
+    for run in (mixed_runs["passing"], mixed_runs["drifted"]):
+        assert f'href="/ui/runs/{run}"' in page
+    assert 'data value="2e-06"' in page and 'data value="2.5e-06"' in page
+    svg = re.search(r"<svg\b.*?</svg>", page, re.DOTALL).group(0)
+    assert 'id="trend-flux_outer"' in svg and 'id="tolerance-band"' in svg
+    assert "approved" in page and "batch" in page
+
+
+def test_trend_needs_two_succeeded_runs(client, store, tokens, run_id):
+    from service.runs import get_record
+
+    _signed(client, tokens, "auditor")
+    case_id = get_record(store, run_id)["case_id"]
+    page = client.get(f"/ui/cases/{case_id}").get_data(as_text=True)
+    assert "A trend needs at least two succeeded runs" in page and "<svg" not in page
+
+
+def test_batch_page_shows_progress_then_drift(client, store, tokens, mixed_runs):
+    from service.batches import start_batch
+
+    _signed(client, tokens, "auditor")
+    finished = client.get(f"/ui/batches/{mixed_runs['batch_id']}").get_data(as_text=True)
+    assert "1 of 1 runs finished (finished)" in finished
+    assert 'http-equiv="refresh"' not in finished
+    assert "<code>flux_outer</code>" in finished and ">0.25</data>" in finished
+    pending = start_batch(store, actor="adi.admin", all_cases=True)  # queued, not executed
+    waiting = client.get(f"/ui/batches/{pending['batch_id']}").get_data(as_text=True)
+    assert 'http-equiv="refresh" content="3"' in waiting
+    assert '<progress id="batch-progress" max="2" value="0">' in waiting
+    assert "Drift is computed when every run of the batch has finished" in waiting
+    listing = client.get("/ui/batches").get_data(as_text=True)
+    assert mixed_runs["batch_id"][:8] in listing and pending["batch_id"][:8] in listing
+
+
+def test_audit_page_shows_the_chain_check_and_a_broken_chain(client, store, tokens, run_id):
+    _signed(client, tokens, "auditor")
+    page = client.get("/ui/audit").get_data(as_text=True)
+    assert "Chain intact" in page and "run.finished" in page
+    only = client.get(f"/ui/audit?kind=run.queued&subject={run_id}").get_data(as_text=True)
+    assert only.count("<td>run.queued</td>") == 1 and "<td>run.finished</td>" not in only
+    assert client.get("/ui/audit?kind=nonsense").status_code == 422
+    with store.engine.begin() as connection:
+        connection.execute(text("UPDATE audit_events SET actor = 'mallory' WHERE seq = 2"))
+    broken = client.get("/ui/audit").get_data(as_text=True)
+    assert "Chain BROKEN at event 2" in broken
+
+
+# --- accessibility basics ----------------------------------------------------------------
+
+class _FormControls(HTMLParser):
+    def __init__(self) -> None:
+        super().__init__()
+        self.controls: list[str | None] = []
+        self.labels: set[str] = set()
+
+    def handle_starttag(self, tag, attrs):
+        attributes = dict(attrs)
+        if tag in ("input", "select", "textarea") and attributes.get("type") != "hidden":
+            self.controls.append(attributes.get("id"))
+        if tag == "label" and attributes.get("for"):
+            self.labels.add(attributes["for"])
+
+
+def test_every_form_control_has_a_label(client, tokens, run_id):
+    pages = {"/ui/login": client.get("/ui/login").get_data(as_text=True)}
+    _signed(client, tokens, "reviewer")
+    pages.update({path: client.get(path).get_data(as_text=True)
+                  for path in ("/ui/runs", f"/ui/runs/{run_id}")})
+    admin = _signed(client.application.test_client(), tokens, "admin")
+    pages["/ui/audit"] = admin.get("/ui/audit").get_data(as_text=True)
+    for path, html in pages.items():
+        parser = _FormControls()
+        parser.feed(html)
+        assert parser.controls, path
+        for control in parser.controls:
+            assert control and control in parser.labels, (path, control)
+        assert '<html lang="en">' in html
