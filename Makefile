@@ -4,7 +4,7 @@ VENV   := .venv
 PY     := $(VENV)/bin/python
 STAMP  := $(VENV)/.installed
 
-.PHONY: demo test bench schemas clean
+.PHONY: demo test bench schemas clean browser
 
 $(STAMP): pyproject.toml
 	$(PYTHON) -m venv $(VENV)
@@ -15,7 +15,13 @@ $(STAMP): pyproject.toml
 demo: $(STAMP)
 	$(VENV)/bin/fluxproof demo
 
-test: $(STAMP)
+# The browser tests drive Debian's chromium (never a downloaded build); install it if missing.
+SUDO := $(shell [ "$$(id -u)" = 0 ] || echo sudo)
+browser:
+	@command -v chromium >/dev/null 2>&1 || { $(SUDO) apt-get update && \
+		$(SUDO) apt-get install -y chromium; }
+
+test: $(STAMP) browser
 	$(PY) -m pytest
 
 bench: $(STAMP)

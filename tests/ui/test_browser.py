@@ -1,0 +1,126 @@
+"""The pages in a real browser: Debian's chromium driven by Playwright, JavaScript switched off.
+
+A reviewer signs in, opens the runs list, opens a run, approves it and sees it signed; the
+engineer who submitted a run, and a reviewer token held by that same person, see why they
+cannot approve it and get no approve button. The run page is kept as a screenshot under
+``test-artifacts/ui/``.
+
+The browser is the system's ``chromium`` (``make test`` installs it with apt-get); Playwright
+never downloads one. Without a browser the test is skipped, except with ``CI`` set, where it
+fails.
+"""
+
+from __future__ import annotations
+
+import os
+import shutil
+from pathlib import Path
+
+import pytest
+
+from service.server import BackgroundServer
+from service.tokens import create_token
+from tests.api.support import make_case
+
+CHROMIUM = shutil.which("chromium") or "/usr/bin/chromium"
+BROWSER_ARGS = ["--headless", "--no-sandbox", "--disable-gpu", "--disable-quic",
+                "--no-first-run", "--disable-background-networking",
+                "--disable-component-update", "--disable-sync"]
+ARTIFACTS = Path(__file__).resolve().parents[2] / "test-artifacts" / "ui"
+
+
+def _browser_or_stop():
+    reasons = []
+    if not os.access(CHROMIUM, os.X_OK):
+        reasons.append(f"no chromium at {CHROMIUM} (apt-get install -y chromium)")
+    try:
+        from playwright.sync_api import sync_playwright
+    except ImportError:
+        sync_playwright = None
+        reasons.append("Playwright for Python is not installed (pip install playwright)")
+    if reasons:
+        message = "; ".join(reasons)
+        if os.environ.get("CI"):
+            pytest.fail(f"browser test cannot run with CI set: {message}")
+        pytest.skip(message)
+    return sync_playwright
+
+
+@pytest.fixture
+def served(app):
+    with BackgroundServer(app) as server:
+        yield server.url
+
+
+def _person(playwright, profile: Path):
+    """A fresh browser profile for one person, with JavaScript off (the pages need none)."""
+    return playwright.chromium.launch_persistent_context(
+        str(profile), executable_path=CHROMIUM, args=BROWSER_ARGS, headless=True,
+        java_script_enabled=False, viewport={"width": 1280, "height": 900})
+
+
+def _sign_in(page, url: str, token: str) -> None:
+    page.goto(f"{url}/ui/runs")
+    assert "/ui/login" in page.url
+    page.get_by_label("Access token").fill(token)
+    page.get_by_role("button", name="Sign in").click()
+    assert page.url.endswith("/ui/runs"), page.url
+
+
+def test_review_in_a_real_browser(served, store, tokens, tmp_path):
+    sync_playwright = _browser_or_stop()
+    from service.client import Client
+
+    with Client(served, tokens["engineer"]) as engineer:
+        # Invented test scenario, solved by the real engine.
+        to_approve = engineer.submit(make_case(title="Browser test membrane A"))
+        own_run = engineer.submit(make_case(title="Browser test membrane B",
+                                            tags=["browser-test"]))
+        for run_id in (to_approve, own_run):
+            assert engineer.wait(run_id, timeout=60)["status"] == "succeeded"
+    _, same_person_reviewer = create_token(store, role="reviewer", name="erin.engineer")
+    ARTIFACTS.mkdir(parents=True, exist_ok=True)
+
+    with sync_playwright() as playwright:
+        reviewer = _person(playwright, tmp_path / "reviewer-profile")
+        try:
+            page = reviewer.new_page()
+            _sign_in(page, served, tokens["reviewer"])
+            assert page.get_by_role("heading", name="Runs").is_visible()
+            page.get_by_role("link", name="Browser test membrane A").first.wait_for()
+            page.get_by_role("link", name=f"Open run {to_approve[:8]}").click()
+            assert page.url.endswith(f"/ui/runs/{to_approve}")
+            assert page.get_by_role("heading", name="Browser test membrane A").is_visible()
+            assert page.locator("svg.plot").count() >= 1  # the profile plot is drawn
+            page.get_by_label("Your reasons").fill("Browser test: figures and checks read.")
+            page.get_by_role("button", name="Approve this record").click()
+            assert page.url.endswith(f"/ui/runs/{to_approve}")
+            assert page.get_by_text("Signed off: approved. The record is now sealed.").is_visible()
+            signature = page.locator("#signoff")
+            assert "approved" in signature.inner_text()
+            assert "rafael.reviewer" in signature.inner_text()
+            assert page.get_by_role("button", name="Approve this record").count() == 0
+            page.screenshot(path=str(ARTIFACTS / "run-page.png"), full_page=True)
+            page.goto(f"{served}/ui/runs?signed=yes")
+            assert page.get_by_text("approved by rafael.reviewer").is_visible()
+        finally:
+            reviewer.close()
+
+        for name, token in (("engineer", tokens["engineer"]),
+                            ("same-person-reviewer", same_person_reviewer)):
+            context = _person(playwright, tmp_path / f"{name}-profile")
+            try:
+                page = context.new_page()
+                _sign_in(page, served, token)
+                page.goto(f"{served}/ui/runs/{own_run}")
+                refusal = page.locator("#cannot-sign").inner_text()
+                assert "You submitted this run (erin.engineer), so you cannot sign it off" \
+                    in refusal, name
+                assert page.get_by_role("button", name="Approve this record").count() == 0
+                assert page.get_by_text("Not signed off.").is_visible()
+                if name == "engineer":
+                    page.screenshot(path=str(ARTIFACTS / "run-page-submitter.png"),
+                                    full_page=True)
+            finally:
+                context.close()
+    assert (ARTIFACTS / "run-page.png").stat().st_size > 10_000
