@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+import sys
+
 import click
 
 from service.store.models import ROLES
@@ -70,12 +72,18 @@ def audit_verify() -> None:
 @click.command("reverify")
 @click.option("--all", "all_cases", is_flag=True, help="Re-verify every stored case.")
 @click.option("--tag", default=None, help="Re-verify the stored cases carrying this tag.")
-def reverify(all_cases: bool, tag: str | None) -> None:
+@click.option("--wait/--no-wait", default=False, show_default=True,
+              help="With a broker: follow the batch with a progress bar until it finishes.")
+def reverify(all_cases: bool, tag: str | None, wait: bool) -> None:
     """Re-verify stored cases as a batch; report drift.
 
-    With FLUXPROOF_BROKER_URL set the runs are queued to workers and the batch id is printed.
-    Without it they run here, and the exit status is 1 when a run failed or a figure drifted.
+    With FLUXPROOF_BROKER_URL set the runs are queued to workers and the batch id is printed
+    (``--wait`` follows it). Without it they run here behind a progress bar. Either way a
+    finished batch ends with a summary, and the exit status is 1 when a run failed or a figure
+    drifted.
     """
+    import time
+
     from service.batches import get_batch, start_batch
     from service.dispatch import make_dispatcher
     from service.settings import dispatch_mode, settings_from_env
@@ -86,12 +94,46 @@ def reverify(all_cases: bool, tag: str | None) -> None:
     store = _store()
     mode = "celery" if dispatch_mode(settings) == "celery" else "inline"
     dispatcher = make_dispatcher(mode, store, settings)
+    started = time.monotonic()
     batch = start_batch(store, actor="cli", tag=tag, all_cases=all_cases)
-    dispatcher.send(batch["run_ids"])
-    click.echo(f"batch {batch['batch_id']}: {len(batch['run_ids'])} runs ({mode})")
+    batch_id, run_ids = batch["batch_id"], batch["run_ids"]
+    click.echo(f"batch {batch_id}: {len(run_ids)} runs ({mode})")
     if mode == "celery":
-        return
-    result = get_batch(store, batch["batch_id"])
+        dispatcher.send(run_ids)
+        if not wait:
+            click.echo(f"follow it at /ui/batches/{batch_id} or with --wait")
+            return
+        _follow_batch(store, batch_id, len(run_ids))
+    else:
+        with click.progressbar(run_ids, label="re-verifying", file=sys.stderr,
+                               show_pos=True, show_eta=True) as bar:
+            for run_id in bar:
+                dispatcher.send([run_id])
+    _print_batch_summary(get_batch(store, batch_id), time.monotonic() - started)
+
+
+def _follow_batch(store, batch_id: str, total: int, poll_s: float = 1.0) -> None:
+    """A progress bar of finished runs, redrawn until the batch finishes."""
+    import time
+
+    from service.batches import get_batch
+    from service.store.models import FINISHED_STATES
+
+    shown = 0
+    with click.progressbar(length=total, label="re-verifying", show_pos=True,
+                           file=sys.stderr) as bar:
+        while True:
+            state = get_batch(store, batch_id)
+            done = sum(state["counts"][s] for s in FINISHED_STATES)
+            bar.update(done - shown)
+            shown = done
+            if state["status"] == "finished":
+                return
+            time.sleep(poll_s)
+
+
+def _print_batch_summary(result: dict, seconds: float) -> None:
+    """The closing summary: counts by state, failed runs, drift, time taken; exit 1 on either."""
     counts = ", ".join(f"{k} {v}" for k, v in result["counts"].items())
     click.echo(f"status {result['status']}: {counts}")
     for drift in result["drifted"]:
@@ -99,5 +141,11 @@ def reverify(all_cases: bool, tag: str | None) -> None:
             f"{q['name']} {q['baseline']} -> {q['now']}" for q in drift["quantities"])
         click.echo(f"DRIFT case {drift['case_id']} (run {drift['run_id']} vs "
                    f"{drift['baseline_run_id']}): {names}")
-    if result["counts"]["failed"] or result["drifted"]:
+    failed, drifted = result["counts"]["failed"], len(result["drifted"])
+    total = sum(result["counts"].values())
+    verdict = "all re-verified figures within tolerance" if not (failed or drifted) else \
+        f"{failed} run(s) failed, {drifted} case(s) drifted"
+    click.echo(f"summary: {total} run(s) in {seconds:.1f} s; {verdict}; "
+               f"details at /ui/batches/{result['batch_id']}")
+    if failed or drifted:
         raise SystemExit(1)
