@@ -1,0 +1,200 @@
+"""Finding runs whose task messages were lost, and sending them again.
+
+A run row is committed before its message is published, so the store always knows every run;
+the broker does not. A message can be lost when the broker restarts without its data (Redis
+with no persistence), when the API cannot reach the broker at submission (the run stays
+``queued``, see :class:`service.dispatch.CeleryDispatcher`), or when a whole worker node is
+killed while it holds unacknowledged messages (Redis gives them back only after the visibility
+timeout, an hour by default).
+
+:func:`recover_lost_runs` takes the unfinished rows (``queued`` or ``running``) older than a
+threshold, subtracts every run the broker or a live worker still knows about (the queue, the
+transport's unacknowledged set, and each worker's active and reserved tasks), and sends the rest
+again. A second delivery of a run that is in fact still alive is harmless: ``execute_run`` is
+idempotent by run id, so a run ends with one record and one ``run.finished`` event whatever
+number of messages name it.
+
+The snapshot is taken in the order queue, unacknowledged set, workers: a message moves from the
+queue to a worker, never back, so reading the queue first can only make a run look alive twice,
+not lost. The Celery task ``fluxproof.recover_lost_runs`` (scheduled by beat every
+``FLUXPROOF_RECOVERY_INTERVAL`` seconds) calls it with rows older than
+``FLUXPROOF_RECOVERY_AFTER`` seconds.
+"""
+
+from __future__ import annotations
+
+import base64
+import json
+import logging
+from collections.abc import Iterable, Mapping
+from dataclasses import dataclass, field
+from datetime import datetime, timedelta
+from typing import Any
+
+from sqlalchemy import and_, or_, select
+
+from service.store import Store
+from service.store.models import Run, utc_now
+
+logger = logging.getLogger(__name__)
+
+#: Seconds between two sweeps (beat schedule).
+DEFAULT_INTERVAL_S = 30.0
+#: Age in seconds (since queued, or since started for a running row) before a run the broker
+#: does not know about counts as lost. Covers the moment between the commit and the publish.
+DEFAULT_AFTER_S = 60.0
+#: Seconds to wait for workers to answer the active/reserved inspection.
+INSPECT_TIMEOUT_S = 2.0
+#: Largest number of runs sent again in one sweep (the next sweep takes the rest).
+MAX_PER_SWEEP = 5000
+
+EXECUTE_RUN_TASK = "fluxproof.execute_run"
+
+
+class BrokerUnreadable(RuntimeError):
+    """The broker's queues could not be read, so lost runs cannot be told from live ones."""
+
+
+@dataclass
+class RecoveryReport:
+    """What one sweep saw and did."""
+
+    unfinished: int = 0
+    known_to_broker: int = 0
+    redispatched: list[str] = field(default_factory=list)
+    unsent: list[str] = field(default_factory=list)
+
+    def to_dict(self) -> dict[str, Any]:
+        return {"unfinished": self.unfinished, "known_to_broker": self.known_to_broker,
+                "redispatched": len(self.redispatched), "unsent": len(self.unsent)}
+
+
+def recovery_settings(settings: Mapping[str, Any]) -> tuple[float, float]:
+    """(interval, after) in seconds from ``RECOVERY_INTERVAL`` and ``RECOVERY_AFTER``."""
+    values = []
+    for key, default in (("RECOVERY_INTERVAL", DEFAULT_INTERVAL_S),
+                         ("RECOVERY_AFTER", DEFAULT_AFTER_S)):
+        raw = settings.get(key)
+        try:
+            value = float(default if raw in (None, "") else raw)
+        except (TypeError, ValueError) as exc:
+            raise ValueError(f"FLUXPROOF_{key}: expected a number of seconds, got {raw!r}"
+                             ) from exc
+        if not value > 0:
+            raise ValueError(f"FLUXPROOF_{key}: expected a positive number of seconds, "
+                             f"got {raw!r}")
+        values.append(value)
+    return values[0], values[1]
+
+
+def stale_unfinished_runs(store: Store, older_than_s: float,
+                          now: datetime | None = None) -> list[str]:
+    """Ids of ``queued`` runs created, and ``running`` runs started, more than
+    ``older_than_s`` seconds before ``now``, oldest first."""
+    cutoff = (now or utc_now()) - timedelta(seconds=older_than_s)
+    with store.transaction() as session:
+        return list(session.execute(
+            select(Run.id).where(or_(
+                and_(Run.status == "queued", Run.created_at < cutoff),
+                and_(Run.status == "running",
+                     or_(Run.started_at < cutoff,
+                         and_(Run.started_at.is_(None), Run.created_at < cutoff))),
+            )).order_by(Run.created_at).limit(MAX_PER_SWEEP)
+        ).scalars())
+
+
+def _run_id_of_body(body: Any) -> str | None:
+    """The run id argument of an ``execute_run`` message body (protocol 2: [args, kwargs,
+    embed])."""
+    if isinstance(body, list) and body and isinstance(body[0], list) and body[0]:
+        first = body[0][0]
+        return first if isinstance(first, str) else None
+    return None
+
+
+def run_id_of_message(raw: bytes | str) -> str | None:
+    """The run id named by one raw message of the Redis transport, None for other tasks."""
+    try:
+        envelope = json.loads(raw)
+        if isinstance(envelope, list):  # an entry of the unacknowledged hash
+            envelope = envelope[0]
+        if envelope.get("headers", {}).get("task") != EXECUTE_RUN_TASK:
+            return None
+        body = envelope.get("body")
+        if envelope.get("properties", {}).get("body_encoding") == "base64":
+            body = base64.b64decode(body).decode("utf-8")
+        return _run_id_of_body(json.loads(body))
+    except (ValueError, TypeError, KeyError, AttributeError, IndexError):
+        logger.warning("recovery: a broker message could not be read; ignored")
+        return None
+
+
+def queued_run_ids(celery_app: Any, queues: Iterable[str] = ("celery",)) -> set[str]:
+    """Run ids in the broker's queues and in its unacknowledged set (Redis transport)."""
+    found: set[str] = set()
+    try:
+        with celery_app.connection_for_read() as connection:
+            channel = connection.default_channel
+            client = channel.client
+            keys = [channel._q_for_pri(queue, priority) for queue in queues
+                    for priority in channel.priority_steps]
+            for key in dict.fromkeys(keys):
+                for raw in client.lrange(key, 0, -1):
+                    run_id = run_id_of_message(raw)
+                    if run_id:
+                        found.add(run_id)
+            for raw in client.hvals(channel.unacked_key):
+                run_id = run_id_of_message(raw)
+                if run_id:
+                    found.add(run_id)
+    except Exception as exc:  # noqa: BLE001 - any failure means we cannot tell lost from live
+        raise BrokerUnreadable(f"the broker's queues could not be read: {exc}") from exc
+    return found
+
+
+def worker_run_ids(celery_app: Any, timeout: float = INSPECT_TIMEOUT_S) -> set[str]:
+    """Run ids that live workers are executing or hold reserved (prefetched)."""
+    found: set[str] = set()
+    inspector = celery_app.control.inspect(timeout=timeout)
+    for reply in (inspector.active() or {}, inspector.reserved() or {}):
+        for tasks in reply.values():
+            for task in tasks or []:
+                if task.get("name") != EXECUTE_RUN_TASK:
+                    continue
+                args = task.get("args")
+                if isinstance(args, (list, tuple)) and args and isinstance(args[0], str):
+                    found.add(args[0])
+    return found
+
+
+def recover_lost_runs(store: Store, celery_app: Any, *, older_than_s: float = DEFAULT_AFTER_S,
+                      queues: Iterable[str] = ("celery",),
+                      now: datetime | None = None) -> RecoveryReport:
+    """Send again every unfinished run older than ``older_than_s`` that neither the broker nor
+    a live worker knows about. Raises :class:`BrokerUnreadable` when the broker cannot be read
+    (nothing is sent then)."""
+    report = RecoveryReport()
+    candidates = stale_unfinished_runs(store, older_than_s, now)
+    report.unfinished = len(candidates)
+    if not candidates:
+        return report
+    known = queued_run_ids(celery_app, queues)
+    known |= worker_run_ids(celery_app)
+    lost = [run_id for run_id in candidates if run_id not in known]
+    report.known_to_broker = len(candidates) - len(lost)
+    for index, run_id in enumerate(lost):
+        try:
+            celery_app.send_task(EXECUTE_RUN_TASK, args=[run_id], retry=True,
+                                 retry_policy={"max_retries": 2, "interval_start": 0.2,
+                                               "interval_step": 0.5})
+        except Exception as exc:  # noqa: BLE001 - the rest waits for the next sweep
+            report.unsent = lost[index:]
+            logger.warning("recovery: the broker refused a send (%s); %d runs wait for the "
+                           "next sweep", exc, len(report.unsent))
+            break
+        report.redispatched.append(run_id)
+    if report.redispatched or report.unsent:
+        logger.warning("recovery: %d unfinished runs older than %g s, %d known to the broker, "
+                       "%d sent again, %d unsent", report.unfinished, older_than_s,
+                       report.known_to_broker, len(report.redispatched), len(report.unsent))
+    return report
