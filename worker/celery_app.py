@@ -10,7 +10,10 @@ time limit (``FLUXPROOF_TASK_TIME_LIMIT``, default 360 s); :func:`make_celery` r
 that break this.
 
 The beat schedule runs ``fluxproof.reverify_all`` every night at ``FLUXPROOF_NIGHTLY_AT``
-(``HH:MM``, UTC, default 02:30): ``celery -A worker.celery_app beat``.
+(``HH:MM``, UTC, default 02:30): ``celery -A worker.celery_app beat``. It also runs
+``fluxproof.recover_lost_runs`` every ``FLUXPROOF_RECOVERY_INTERVAL`` seconds (default 30; see
+:mod:`service.recovery`) on a queue of its own (``fluxproof.upkeep``), which every worker also
+consumes, so that a sweep never waits behind a long queue of runs.
 """
 
 from __future__ import annotations
@@ -20,8 +23,12 @@ from typing import Any
 
 from celery import Celery
 from celery.schedules import crontab
+from kombu import Queue
 
+from service.recovery import recovery_settings
 from service.settings import parse_nightly_at, settings_from_env
+
+UPKEEP_QUEUE = "fluxproof.upkeep"
 
 
 def celery_config(settings: Mapping[str, Any]) -> dict[str, Any]:
@@ -36,6 +43,7 @@ def celery_config(settings: Mapping[str, Any]) -> dict[str, Any]:
         raise ValueError(f"FLUXPROOF_BROKER_VISIBILITY_TIMEOUT ({visibility} s) must exceed "
                          f"FLUXPROOF_TASK_TIME_LIMIT ({hard} s), or long solves run twice")
     hour, minute = parse_nightly_at(settings["NIGHTLY_AT"])
+    recovery_interval, _recovery_after = recovery_settings(settings)
     return {
         "broker_url": settings.get("BROKER_URL"),
         "result_backend": None,
@@ -51,10 +59,18 @@ def celery_config(settings: Mapping[str, Any]) -> dict[str, Any]:
         "accept_content": ["json"],
         "timezone": "UTC",
         "enable_utc": True,
+        "task_default_queue": "celery",
+        "task_queues": (Queue("celery"), Queue(UPKEEP_QUEUE)),
+        "task_routes": {"fluxproof.recover_lost_runs": {"queue": UPKEEP_QUEUE}},
         "beat_schedule": {
             "nightly-reverify": {
                 "task": "fluxproof.reverify_all",
                 "schedule": crontab(hour=hour, minute=minute),
+            },
+            "recover-lost-runs": {
+                "task": "fluxproof.recover_lost_runs",
+                "schedule": recovery_interval,
+                "options": {"expires": recovery_interval},
             },
         },
     }

@@ -55,3 +55,17 @@ def reverify_all() -> str:
     batch = start_batch(default_store(), actor="nightly", all_cases=True)
     CeleryDispatcher(settings_from_env()).send(batch["run_ids"])
     return batch["batch_id"]
+
+
+@shared_task(name="fluxproof.recover_lost_runs", ignore_result=True)
+def recover_lost_runs() -> dict:
+    """Every few seconds (beat): send again the runs whose messages were lost
+    (:func:`service.recovery.recover_lost_runs`); returns what the sweep saw and did."""
+    from celery import current_app
+
+    from service.recovery import recover_lost_runs as recover
+    from service.recovery import recovery_settings
+    from service.store import default_store
+
+    _interval, after = recovery_settings(_SETTINGS)
+    return recover(default_store(), current_app, older_than_s=after).to_dict()
