@@ -9,6 +9,7 @@ in the run page under ``/ui/``.
 
 from __future__ import annotations
 
+import logging
 import re
 from pathlib import Path
 from typing import Any
@@ -17,6 +18,8 @@ from flask import render_template
 from markupsafe import Markup
 
 from service.ui.numbers import length_markup, number_markup, quantity_markup, unit_text
+
+logger = logging.getLogger(__name__)
 
 #: Shown on every report when the record carries no caution text of its own.
 DEFAULT_CAUTION = ("These results support, but do not replace, design verification testing and "
@@ -136,23 +139,33 @@ def key_figure(record: dict[str, Any]) -> tuple[str, Any] | None:
 
 
 def _figures(record: dict[str, Any], normalised: dict[str, Any] | None) -> dict[str, Markup]:
+    """The inline SVG figures; one that cannot be drawn is left out (and logged), so that the
+    report itself always renders."""
     from service.ui.layer_stack import layer_stack_svg
     from service.ui.plot_profile import profile_svg
     from service.ui.plot_release import release_svg
 
-    figures: dict[str, Markup] = {}
-    if normalised and normalised.get("layers"):
-        figures["stack"] = Markup(layer_stack_svg(normalised))
     names = [str(layer.get("name") or f"layer {i + 1}")
              for i, layer in enumerate((normalised or {}).get("layers") or [])]
     with_inputs = dict(record)
     with_inputs.setdefault("inputs", normalised or {})
-    profile = profile_svg(with_inputs, names)
-    if profile:
-        figures["profile"] = Markup(profile)
-    release = release_svg(record)
-    if release:
-        figures["release"] = Markup(release)
+    makers = {
+        "stack": lambda: layer_stack_svg(normalised) if normalised and normalised.get("layers")
+        else None,
+        "profile": lambda: profile_svg(with_inputs, names),
+        "release": lambda: release_svg(record),
+    }
+    figures: dict[str, Markup] = {}
+    for name, make in makers.items():
+        try:
+            svg = make()
+        except Exception:  # noqa: BLE001 - a figure must never take the record down with it
+            logger.exception("report figure %r of run %s could not be drawn", name,
+                             record.get("run_id"))
+            figures[f"{name}_missing"] = Markup("")
+            continue
+        if svg:
+            figures[name] = Markup(svg)
     return figures
 
 

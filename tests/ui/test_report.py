@@ -5,6 +5,8 @@ Scenario values are invented for these tests. Check values come from published c
 - zero-order consumption in a slab fed at one face, sealed at the other: the solute reaches a
   depth sqrt(2 D C0 / k) from the fed face, beyond which the material is depleted (A.V. Hill,
   Proc. R. Soc. B 104 (1928) 39; J. Crank, The Mathematics of Diffusion, 2nd ed., 1975, §14);
+- the time lag of an initially empty membrane, L^2/(6 D) (H.A. Daynes, Proc. R. Soc. A 97
+  (1920) 286; R.M. Barrer, Trans. Faraday Soc. 35 (1939) 628);
 - release from a plane sheet of half-thickness l into a perfect sink, M_t/M_inf = 1 - sum
   8/((2n+1)^2 pi^2) exp(-D (2n+1)^2 pi^2 t / (4 l^2)) (Crank 1975, eq. 4.18), solved for the
   times of 50 % and 90 % release with mpmath.
@@ -155,11 +157,37 @@ def test_release_curve_marks_t50_and_t90_at_the_closed_form_times(flask_app, she
     assert "t50" in html and "t90" in html
 
 
+EMPTY_MEMBRANE = {
+    "schema_version": 1,
+    "title": "Test membrane that starts empty",
+    "geometry": "slab",
+    "inner": "0 m",
+    "area": "1 cm^2",
+    "layers": [{"name": "film", "thickness": "20 um", "diffusivity": "1e-13 m^2/s",
+                "partition": 1.0}],
+    "inner_boundary": {"kind": "concentration", "value": "5 mol/m^3"},
+    "outer_boundary": {"kind": "concentration", "value": "0 mol/m^3"},
+    "regime": {"kind": "transient", "duration": "8 h",
+               "times": ["10 min", "30 min", "1 h", "2 h", "3 h", "4 h", "6 h", "8 h"]},
+}
+
+
+def test_time_lag_line_meets_the_time_axis_at_the_closed_form_lag(flask_app):
+    record = _run(EMPTY_MEMBRANE)
+    html = _render(flask_app, record, EMPTY_MEMBRANE)
+    curves = [svg for svg in _plots(html) if _by_id(svg, "release-curve") is not None]
+    assert len(curves) == 1
+    lag_expected = (20e-6) ** 2 / (6 * 1e-13)  # Daynes 1920, Barrer 1939
+    lo, _hi = _data_fraction(curves[0], "time-lag-marker")
+    assert lo == pytest.approx(lag_expected / (8 * 3600.0), abs=2e-3)
+    assert "time lag" in html
+
+
 def test_every_section_units_and_the_caution(flask_app, slab_record):
     html = _render(flask_app, slab_record, DEPLETING_SLAB)
-    for heading in ("Inputs", "Profile", "Quantities", "Checks", "Methods", "Warnings",
+    for heading in ("Layers, profile", "Inputs", "Quantities", "Checks", "Methods", "Warnings",
                     "Provenance", "Sign-off"):
-        assert f"<h2>{heading}</h2>" in html, heading
+        assert f"<h2>{heading}" in html, heading
     assert "Test slab &lt;with&gt; a depleted core" in html and "<with>" not in html
     # As given beside SI: "1 mm" next to the exact 0.001 m.
     row = re.search(r"<code>layers\[0\]\.thickness</code></td><td>(.*?)</td><td>(.*?)</td>",
