@@ -1,0 +1,416 @@
+"""Benchmarks of the service on the real stack: Redis, PostgreSQL, worker processes, gunicorn.
+
+(a) Batch re-verification of 2,000 stored, distinct, steady cases through Redis and two worker
+    processes (one pool process each; this machine has 2 cores). Two passes side by side: the
+    first has no earlier records (no drift to compare), the second compares every case with the
+    first pass's record, as the nightly batch does. Printed: cases/s end to end (target >= 100)
+    and runs lost (target 0), with where the time goes (engine time per case, the rest of each
+    run in the worker, dispatch).
+(b) ``POST /v1/runs`` latency under a bounded loopback load against gunicorn on 127.0.0.1
+    (2,000 requests from 8 client threads, at most 60 s per phase): p50 / p99 (target p99 <= 50
+    ms), measured with no worker running and with two workers solving the submitted runs on the
+    same cores; then a profile of the request in-process, to show where its time goes.
+
+Figures are printed, never asserted (shared, noisy machine). Only what the benchmark creates is
+touched: a leased Redis database and a PostgreSQL schema of its own, dropped at the end.
+Run with ``make bench``.
+"""
+
+from __future__ import annotations
+
+import cProfile
+import io
+import os
+import pstats
+import signal
+import socket
+import statistics
+import subprocess
+import sys
+import threading
+import time
+from collections.abc import Iterator
+from datetime import datetime
+from pathlib import Path
+
+import pytest
+import requests
+
+from tests.integration.invented_cases import distinct_steady_cases
+from tests.integration.real_services import (
+    PostgresSchema,
+    RedisLease,
+    ServiceMissing,
+    postgres_user,
+    require_redis,
+)
+from tests.integration.worker_processes import (
+    REPO_ROOT,
+    WorkerProcess,
+    clean_environment,
+    group_members,
+    stop_all,
+)
+
+BATCH_CASES = 2000
+BATCH_TIMEOUT_S = 300.0
+LOAD_REQUESTS = 2000
+LOAD_THREADS = 8
+LOAD_WALL_LIMIT_S = 60.0
+SEQUENTIAL_REQUESTS = 200
+PROFILE_REQUESTS = 200
+BENCH_ACTOR = "bench.service"
+
+
+@pytest.fixture(scope="module")
+def services_present() -> None:
+    try:
+        require_redis()
+        postgres_user()
+    except ServiceMissing as exc:
+        if os.environ.get("CI"):
+            pytest.fail(f"CI is set and a required service is missing: {exc}", pytrace=False)
+        pytest.skip(f"service benchmark needs real Redis and PostgreSQL: {exc}")
+
+
+@pytest.fixture
+def schema(services_present) -> Iterator[PostgresSchema]:
+    from service.store import Store
+    from service.store.migrate import upgrade
+
+    created = PostgresSchema.create(prefix="fluxproof_bench")
+    store = Store(created.url)
+    try:
+        upgrade(store)
+    finally:
+        store.dispose()
+    yield created
+    created.drop()
+
+
+@pytest.fixture
+def lease(services_present) -> Iterator[RedisLease]:
+    taken = RedisLease.take()
+    yield taken
+    taken.release()
+
+
+def _settings(schema: PostgresSchema, lease: RedisLease) -> dict[str, str]:
+    return {"FLUXPROOF_DATABASE_URL": schema.url, "FLUXPROOF_BROKER_URL": lease.url,
+            "FLUXPROOF_AUTO_MIGRATE": "false"}
+
+
+def _start_workers(schema, lease, log_dir: Path, count: int = 2) -> list[WorkerProcess]:
+    workers = [WorkerProcess(_settings(schema, lease), log_dir / f"worker-{n}.log").start()
+               for n in range(1, count + 1)]
+    for worker in workers:
+        worker.wait_ready()
+    return workers
+
+
+def _percentile(values: list[float], fraction: float) -> float:
+    ordered = sorted(values)
+    if not ordered:
+        return float("nan")
+    index = min(len(ordered) - 1, max(0, round(fraction * (len(ordered) - 1))))
+    return ordered[index]
+
+
+def _ms(seconds: float) -> str:
+    return f"{seconds * 1e3:.1f} ms"
+
+
+# --- (a) batch re-verification ----------------------------------------------------------------
+
+
+def _store_cases(store, documents: list[dict]) -> None:
+    from service.cases import store_case_in, validate_document
+
+    for start in range(0, len(documents), 200):
+        with store.transaction() as session:
+            for document in documents[start:start + 200]:
+                validate_document(document)
+                store_case_in(session, document, BENCH_ACTOR)
+
+
+def _run_and_wait(store, dispatcher, *, tag: str, timeout: float) -> dict:
+    """Start a batch of the cases tagged ``tag``, send it, wait for it; return figures."""
+    from service.batches import get_batch, start_batch
+
+    started = time.perf_counter()
+    batch = start_batch(store, actor=BENCH_ACTOR, tag=tag)
+    queued = time.perf_counter()
+    dispatcher.send(batch["run_ids"])
+    sent = time.perf_counter()
+    deadline = sent + timeout
+    while True:
+        state = get_batch(store, batch["batch_id"])
+        if state["status"] == "finished" or time.perf_counter() > deadline:
+            break
+        time.sleep(0.1)
+    finished = time.perf_counter()
+    return {"batch": batch, "state": state, "create_s": queued - started,
+            "send_s": sent - queued, "total_s": finished - started}
+
+
+def _run_breakdown(store, batch_id: str) -> dict:
+    from sqlalchemy import func, select
+
+    from service.store.models import AuditEvent, Run
+
+    with store.transaction() as session:
+        runs = session.execute(select(Run).where(Run.batch_id == batch_id)).scalars().all()
+        run_ids = [r.id for r in runs]
+        finished_events = session.execute(
+            select(func.count()).select_from(AuditEvent)
+            .where(AuditEvent.kind == "run.finished", AuditEvent.subject.in_(run_ids))
+        ).scalar_one()
+        engine, in_worker, workers = [], [], set()
+        for run in runs:
+            if run.record and run.started_at and run.finished_at:
+                provenance = run.record.get("provenance") or {}
+                engine.append((datetime.fromisoformat(provenance["finished_at"])
+                               - datetime.fromisoformat(provenance["started_at"])
+                               ).total_seconds())
+                in_worker.append((run.finished_at - run.started_at).total_seconds())
+                workers.add(provenance.get("worker"))
+        statuses = [r.status for r in runs]
+    return {"runs": len(runs), "finished_events": finished_events, "engine": engine,
+            "in_worker": in_worker, "workers": workers,
+            "succeeded": statuses.count("succeeded"), "failed": statuses.count("failed"),
+            "unfinished": sum(s not in ("succeeded", "failed") for s in statuses)}
+
+
+def test_batch_reverification_throughput(schema, lease, tmp_path):
+    from service.dispatch import CeleryDispatcher
+    from service.settings import settings_from_env
+    from service.store import Store
+
+    store = Store(schema.url)
+    settings = settings_from_env(clean_environment(_settings(schema, lease)))
+    dispatcher = CeleryDispatcher(settings)
+    workers: list[WorkerProcess] = []
+    try:
+        tag = "bench-reverify"
+        documents = distinct_steady_cases(BATCH_CASES, tags=[tag])
+        stored_at = time.perf_counter()
+        _store_cases(store, documents)
+        store_s = time.perf_counter() - stored_at
+        # A few other cases to warm every pool process up (imports, unit registry) first.
+        _store_cases(store, distinct_steady_cases(8, tags=["bench-warmup"])[::-1])
+
+        workers = _start_workers(schema, lease, tmp_path)
+        warm = _run_and_wait(store, dispatcher, tag="bench-warmup", timeout=120)
+        assert warm["state"]["status"] == "finished", warm["state"]["counts"]
+
+        passes = []
+        for label in ("first pass (no baseline)", "second pass (drift vs first)"):
+            figures = _run_and_wait(store, dispatcher, tag=tag, timeout=BATCH_TIMEOUT_S)
+            figures["label"] = label
+            figures["breakdown"] = _run_breakdown(store, figures["batch"]["batch_id"])
+            passes.append(figures)
+        queue_left = lease.client().llen("celery")
+    finally:
+        stop_all(workers)
+        dispatcher.shutdown()
+        store.dispose()
+
+    print(f"\n[bench service] batch re-verification: {BATCH_CASES} stored distinct steady cases"
+          f" (single- and two-layer slabs), Redis + 2 worker processes x 1 pool process, "
+          f"PostgreSQL; {os.cpu_count()} cores")
+    print(f"  storing the {BATCH_CASES} cases (validation + insert + audit): {store_s:.1f} s")
+    for figures in passes:
+        b = figures["breakdown"]
+        n = figures["batch"]["run_ids"]
+        rate = len(n) / figures["total_s"]
+        lost = len(n) - b["succeeded"] - b["failed"]
+        print(f"  {figures['label']}: {len(n)} runs in {figures['total_s']:.1f} s end to end = "
+              f"{rate:.0f} cases/s (target >= 100); lost {lost} (target 0); succeeded "
+              f"{b['succeeded']}, failed {b['failed']}, run.finished events "
+              f"{b['finished_events']}, drifted {len(figures['state']['drifted'])}, batch "
+              f"{figures['state']['status']}")
+        if b["engine"]:
+            print(f"    create batch {figures['create_s']:.2f} s, send {figures['send_s']:.2f} s; "
+                  f"per run: engine median {_ms(statistics.median(b['engine']))}, in worker "
+                  f"(claim..store) median {_ms(statistics.median(b['in_worker']))} p99 "
+                  f"{_ms(_percentile(b['in_worker'], 0.99))}; wall per run per pool process "
+                  f"{_ms(figures['total_s'] * 2 / len(n))}; pool processes used "
+                  f"{len(b['workers'])}")
+    print(f"  messages left in the queue afterwards: {queue_left}")
+
+
+# --- (b) POST /v1/runs latency ----------------------------------------------------------------
+
+
+def _free_port() -> int:
+    with socket.socket() as probe:
+        probe.bind(("127.0.0.1", 0))
+        return probe.getsockname()[1]
+
+
+def _start_gunicorn(schema, lease, log_dir: Path, port: int) -> subprocess.Popen:
+    env = clean_environment({**_settings(schema, lease), "FLUXPROOF_BIND": f"127.0.0.1:{port}",
+                             "FLUXPROOF_ACCESS_LOG": str(log_dir / "access.log"),
+                             "FLUXPROOF_ERROR_LOG": str(log_dir / "api.log")})
+    process = subprocess.Popen(
+        [sys.executable, "-m", "gunicorn", "-c", str(REPO_ROOT / "deploy" / "gunicorn.conf.py"),
+         "service.wsgi:app"], cwd=REPO_ROOT, env=env, start_new_session=True,
+        stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL)
+    deadline = time.monotonic() + 60
+    while time.monotonic() < deadline:
+        try:
+            if requests.get(f"http://127.0.0.1:{port}/v1/health", timeout=10).status_code == 200:
+                return process
+        except requests.RequestException:
+            pass
+        if process.poll() is not None:
+            break
+        time.sleep(0.2)
+    _stop_process(process)
+    raise RuntimeError(f"gunicorn did not become healthy; see {log_dir / 'api.log'}")
+
+
+def _stop_process(process: subprocess.Popen) -> None:
+    if process.poll() is None:
+        process.send_signal(signal.SIGTERM)
+        try:
+            process.wait(timeout=30)
+        except subprocess.TimeoutExpired:
+            os.killpg(process.pid, signal.SIGKILL)
+            process.wait(timeout=10)
+    if group_members(process.pid):
+        os.killpg(process.pid, signal.SIGKILL)
+
+
+def _load(url: str, token: str, documents: list[dict], threads: int = LOAD_THREADS) -> dict:
+    """POST each document once from ``threads`` threads; latencies of the 202 answers."""
+    latencies: list[float] = []
+    errors: list[str] = []
+    lock = threading.Lock()
+    cursor = iter(range(len(documents)))
+    deadline = time.perf_counter() + LOAD_WALL_LIMIT_S
+
+    def client() -> None:
+        with requests.Session() as session:
+            session.headers["Authorization"] = f"Bearer {token}"
+            while time.perf_counter() < deadline:
+                with lock:
+                    index = next(cursor, None)
+                if index is None:
+                    return
+                start = time.perf_counter()
+                response = session.post(f"{url}/v1/runs", json={"case": documents[index]},
+                                        timeout=30)
+                took = time.perf_counter() - start
+                with lock:
+                    if response.status_code == 202:
+                        latencies.append(took)
+                    else:
+                        errors.append(f"{response.status_code}: {response.text[:200]}")
+
+    started = time.perf_counter()
+    pool = [threading.Thread(target=client) for _ in range(threads)]
+    for thread in pool:
+        thread.start()
+    for thread in pool:
+        thread.join()
+    return {"latencies": latencies, "errors": errors, "wall_s": time.perf_counter() - started}
+
+
+def _server_times(access_log: Path, skip_lines: int) -> tuple[list[float], int]:
+    lines = access_log.read_text().splitlines()
+    times = [int(line.rsplit(" ", 1)[1].removesuffix("us")) / 1e6
+             for line in lines[skip_lines:] if '"POST /v1/runs ' in line]
+    return times, len(lines)
+
+
+def _profile_in_process(schema, lease) -> str:
+    from service.app import create_app, shutdown_app
+    from service.tokens import create_token
+
+    app = create_app({"TESTING": True, "DATABASE_URL": schema.url, "BROKER_URL": lease.url,
+                      "DISPATCH": "celery", "AUTO_MIGRATE": False})
+    try:
+        store = app.extensions["fluxproof"].store
+        token = create_token(store, role="engineer", name="bench.profile")[1]
+        client = app.test_client()
+        headers = {"Authorization": f"Bearer {token}"}
+        documents = distinct_steady_cases(PROFILE_REQUESTS + 20, tags=["bench-profile"])
+        for document in documents[:20]:
+            client.post("/v1/runs", json={"case": document}, headers=headers)
+        profiler = cProfile.Profile()
+        started = time.perf_counter()
+        profiler.enable()
+        for document in documents[20:]:
+            client.post("/v1/runs", json={"case": document}, headers=headers)
+        profiler.disable()
+        per_request = (time.perf_counter() - started) / PROFILE_REQUESTS
+    finally:
+        shutdown_app(app)
+    out = io.StringIO()
+    stats = pstats.Stats(profiler, stream=out)
+    stats.sort_stats("cumulative").print_stats(
+        r"(service|schemas|sqlalchemy/orm/session|kombu/messaging|celery/app/base|"
+        r"psycopg/cursor|redis/client|werkzeug/test|marshmallow/schema|pint)", 22)
+    lines = [line for line in out.getvalue().splitlines() if line.strip()]
+    table = [line for line in lines if "/" in line or "ncalls" in line]
+    return (f"  in-process profile ({PROFILE_REQUESTS} POST /v1/runs, Flask test client, same "
+            f"PostgreSQL and Redis, profiler on): {_ms(per_request)} per request; top by "
+            "cumulative time:\n    " + "\n    ".join(table[:24]))
+
+
+def test_post_runs_latency_under_loopback_load(schema, lease, tmp_path):
+    from service.store import Store
+    from service.tokens import create_token
+
+    store = Store(schema.url)
+    try:
+        token = create_token(store, role="engineer", name="bench.load")[1]
+    finally:
+        store.dispose()
+    port = _free_port()
+    url = f"http://127.0.0.1:{port}"
+    gunicorn = _start_gunicorn(schema, lease, tmp_path, port)
+    phases = []
+    workers: list[WorkerProcess] = []
+    access_log = tmp_path / "access.log"
+    try:
+        warm = distinct_steady_cases(40, tags=["bench-load-warmup"])
+        _load(url, token, warm)
+        _times, seen = _server_times(access_log, 0)
+        for label, clients, with_workers in (
+                ("1 client thread, no worker (service time)", 1, False),
+                (f"{LOAD_THREADS} client threads, no worker running", LOAD_THREADS, False),
+                (f"{LOAD_THREADS} client threads, 2 workers solving the runs", LOAD_THREADS, True)):
+            if with_workers:
+                lease.clean()  # the earlier phases' messages: not this phase's work
+                workers = _start_workers(schema, lease, tmp_path)
+            count = SEQUENTIAL_REQUESTS if clients == 1 else LOAD_REQUESTS
+            documents = distinct_steady_cases(count, tags=[f"bench-load-{len(phases)}"])
+            result = _load(url, token, documents, threads=clients)
+            time.sleep(0.5)  # the access log is written after the response
+            result["server"], seen = _server_times(access_log, seen)
+            result["label"] = label
+            phases.append(result)
+    finally:
+        stop_all(workers)
+        _stop_process(gunicorn)
+
+    web_workers = os.environ.get("WEB_CONCURRENCY") or f"{2 * (os.cpu_count() or 1) + 1}"
+    print(f"\n[bench service] POST /v1/runs (a new distinct case each, stored + queued to Redis)"
+          f" against gunicorn on 127.0.0.1 ({web_workers} sync workers, {os.cpu_count()} cores),"
+          f" PostgreSQL store; {LOAD_REQUESTS} requests from {LOAD_THREADS} client threads, at "
+          f"most {LOAD_WALL_LIMIT_S:.0f} s per phase")
+    for result in phases:
+        lat = result["latencies"]
+        server = result["server"]
+        print(f"  {result['label']}: {len(lat)} answered 202 in {result['wall_s']:.1f} s "
+              f"({len(lat) / result['wall_s']:.0f} req/s), errors {len(result['errors'])}; "
+              f"client p50 {_ms(_percentile(lat, 0.5))}, p90 {_ms(_percentile(lat, 0.9))}, "
+              f"p99 {_ms(_percentile(lat, 0.99))} (target p99 <= 50 ms), max {_ms(max(lat))}; "
+              f"inside gunicorn p50 {_ms(_percentile(server, 0.5))}, p99 "
+              f"{_ms(_percentile(server, 0.99))}")
+        for error in result["errors"][:3]:
+            print(f"    error: {error}")
+    lease.clean()
+    print(_profile_in_process(schema, lease))
