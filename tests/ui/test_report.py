@@ -185,7 +185,7 @@ def test_time_lag_line_meets_the_time_axis_at_the_closed_form_lag(flask_app):
 
 def test_every_section_units_and_the_caution(flask_app, slab_record):
     html = _render(flask_app, slab_record, DEPLETING_SLAB)
-    for heading in ("Layers, profile", "Inputs", "Quantities", "Checks", "Methods", "Warnings",
+    for heading in ("Layers and profile", "Inputs", "Quantities", "Checks", "Methods", "Warnings",
                     "Provenance", "Sign-off"):
         assert f"<h2>{heading}" in html, heading
     assert "Test slab &lt;with&gt; a depleted core" in html and "<with>" not in html
