@@ -3,7 +3,9 @@
 Every error response is ``application/problem+json`` with ``type``, ``title``, ``status``,
 ``detail``, ``instance`` and ``errors: [{path, message}]`` (empty when no field is to blame).
 Domain code raises :class:`ProblemError` subclasses; Werkzeug's HTTP exceptions (404, 405, 413,
-...) and unexpected exceptions (500) go through the same handler.
+...) and unexpected exceptions (500) go through the same handler. A lost or refused database
+connection is a 503 (``store-unavailable``, with ``Retry-After``): the transaction was rolled
+back, so nothing was half-written.
 """
 
 from __future__ import annotations
@@ -124,6 +126,21 @@ def problem_response(document: dict[str, Any], headers: dict[str, str] | None = 
     return response
 
 
+#: Seconds a client is asked to wait (``Retry-After``) when the store cannot be reached.
+STORE_RETRY_AFTER_S = 5
+
+
+def _is_store_unreachable(error: Exception) -> bool:
+    """True for a lost or refused database connection (the transaction was rolled back)."""
+    try:
+        from sqlalchemy import exc as sa_exc
+    except ImportError:  # pragma: no cover - sqlalchemy is a service dependency
+        return False
+    if isinstance(error, (sa_exc.OperationalError, sa_exc.InterfaceError)):
+        return True
+    return isinstance(error, sa_exc.DBAPIError) and bool(error.connection_invalidated)
+
+
 def handle_any_error(error: Exception) -> Response:
     """The one error handler: ProblemError, HTTPException, or anything else (500)."""
     if isinstance(error, ProblemError):
@@ -142,6 +159,12 @@ def handle_any_error(error: Exception) -> Response:
         document = problem_document(status, error.name, detail,
                                     _HTTP_SLUGS.get(status, "http-error"))
         return problem_response(document, headers)
+    if _is_store_unreachable(error):
+        logger.warning("store unreachable on %s %s: %s", request.method, request.path, error)
+        document = problem_document(503, "Service unavailable",
+                                    "The store cannot be reached; the request was not "
+                                    "completed. Try again shortly.", "store-unavailable")
+        return problem_response(document, {"Retry-After": str(STORE_RETRY_AFTER_S)})
     logger.exception("unhandled error on %s %s", request.method, request.path)
     document = problem_document(500, "Internal server error",
                                 "The server met an unexpected error; it has been logged.",
