@@ -26,7 +26,9 @@ from __future__ import annotations
 import base64
 import json
 import logging
-from collections.abc import Iterable, Mapping
+import uuid
+from collections.abc import Iterable, Iterator, Mapping
+from contextlib import contextmanager
 from dataclasses import dataclass, field
 from datetime import datetime, timedelta
 from typing import Any
@@ -44,7 +46,11 @@ DEFAULT_INTERVAL_S = 30.0
 #: does not know about counts as lost. Covers the moment between the commit and the publish.
 DEFAULT_AFTER_S = 60.0
 #: Seconds to wait for workers to answer the active/reserved inspection.
-INSPECT_TIMEOUT_S = 2.0
+INSPECT_TIMEOUT_S = 1.0
+#: Broker key that makes sweeps take turns (two overlapping sweeps would each send what the
+#: other is sending). It expires by itself should a sweep die holding it.
+LOCK_KEY = "fluxproof:recovery-lock"
+LOCK_SECONDS = 120
 #: Largest number of runs sent again in one sweep (the next sweep takes the rest).
 MAX_PER_SWEEP = 5000
 
@@ -61,11 +67,13 @@ class RecoveryReport:
 
     unfinished: int = 0
     known_to_broker: int = 0
+    skipped: bool = False
     redispatched: list[str] = field(default_factory=list)
     unsent: list[str] = field(default_factory=list)
 
     def to_dict(self) -> dict[str, Any]:
-        return {"unfinished": self.unfinished, "known_to_broker": self.known_to_broker,
+        return {"skipped": self.skipped, "unfinished": self.unfinished,
+                "known_to_broker": self.known_to_broker,
                 "redispatched": len(self.redispatched), "unsent": len(self.unsent)}
 
 
@@ -101,6 +109,20 @@ def stale_unfinished_runs(store: Store, older_than_s: float,
                          and_(Run.started_at.is_(None), Run.created_at < cutoff))),
             )).order_by(Run.created_at).limit(MAX_PER_SWEEP)
         ).scalars())
+
+
+def still_unfinished(store: Store, run_ids: list[str]) -> list[str]:
+    """The ids of ``run_ids`` (order kept) whose rows are still queued or running."""
+    if not run_ids:
+        return []
+    unfinished: set[str] = set()
+    with store.transaction() as session:
+        for start in range(0, len(run_ids), 500):
+            chunk = run_ids[start:start + 500]
+            unfinished.update(session.execute(
+                select(Run.id).where(Run.id.in_(chunk),
+                                     Run.status.in_(("queued", "running")))).scalars())
+    return [run_id for run_id in run_ids if run_id in unfinished]
 
 
 def _run_id_of_body(body: Any) -> str | None:
@@ -167,12 +189,44 @@ def worker_run_ids(celery_app: Any, timeout: float = INSPECT_TIMEOUT_S) -> set[s
     return found
 
 
+@contextmanager
+def sweep_lock(celery_app: Any, seconds: int = LOCK_SECONDS) -> Iterator[bool]:
+    """Hold the broker's sweep lock while the block runs; yields False when another sweep
+    holds it. Raises :class:`BrokerUnreadable` when the broker cannot be reached."""
+    token = uuid.uuid4().hex
+    try:
+        connection = celery_app.connection_for_write()
+        client = connection.default_channel.client
+        taken = bool(client.set(LOCK_KEY, token, nx=True, ex=seconds))
+    except Exception as exc:  # noqa: BLE001
+        raise BrokerUnreadable(f"the broker could not be reached: {exc}") from exc
+    try:
+        yield taken
+    finally:
+        try:
+            if taken and client.get(LOCK_KEY) == token.encode():
+                client.delete(LOCK_KEY)
+        except Exception:  # noqa: BLE001 - the lock expires by itself
+            logger.warning("recovery: the sweep lock could not be released; it expires in "
+                           "%d s", seconds)
+        connection.release()
+
+
 def recover_lost_runs(store: Store, celery_app: Any, *, older_than_s: float = DEFAULT_AFTER_S,
                       queues: Iterable[str] = ("celery",),
                       now: datetime | None = None) -> RecoveryReport:
     """Send again every unfinished run older than ``older_than_s`` that neither the broker nor
     a live worker knows about. Raises :class:`BrokerUnreadable` when the broker cannot be read
-    (nothing is sent then)."""
+    (nothing is sent then). Returns a report with ``skipped`` set when another sweep is under
+    way."""
+    with sweep_lock(celery_app) as taken:
+        if not taken:
+            return RecoveryReport(skipped=True)
+        return _sweep(store, celery_app, older_than_s=older_than_s, queues=queues, now=now)
+
+
+def _sweep(store: Store, celery_app: Any, *, older_than_s: float, queues: Iterable[str],
+           now: datetime | None) -> RecoveryReport:
     report = RecoveryReport()
     candidates = stale_unfinished_runs(store, older_than_s, now)
     report.unfinished = len(candidates)
@@ -182,6 +236,8 @@ def recover_lost_runs(store: Store, celery_app: Any, *, older_than_s: float = DE
     known |= worker_run_ids(celery_app)
     lost = [run_id for run_id in candidates if run_id not in known]
     report.known_to_broker = len(candidates) - len(lost)
+    # A run that finished while the broker was read is no longer lost.
+    lost = still_unfinished(store, lost)
     for index, run_id in enumerate(lost):
         try:
             celery_app.send_task(EXECUTE_RUN_TASK, args=[run_id], retry=True,
