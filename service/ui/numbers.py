@@ -48,7 +48,7 @@ def number_markup(value: Any, significant: int = SIGNIFICANT) -> Markup:
 
 
 def unit_text(unit: Any) -> str:
-    """A pint-style unit string with symbols: ``mol/(m^2*s)`` -> ``mol/(m²·s)``, ``um`` -> ``µm``."""
+    """A pint-style unit string with symbols: ``mol/(m^2*s)`` -> ``mol/(m²·s)``, ``um`` -> µm."""
     if unit in (None, "", "1", "dimensionless"):
         return ""
     text = str(unit)

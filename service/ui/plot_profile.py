@@ -130,8 +130,9 @@ def profile_svg(record: dict[str, Any], layer_names: list[str] | None = None) ->
             name = layer_names[layer] if layer < len(layer_names) else f"layer {layer + 1}"
             if (end - start) / ((high - low) or 1.0) < LABEL_FRACTION_PER_CHAR * len(name):
                 name = str(layer + 1)  # too narrow for the name; the caption lists them
-            axes.text((start + end) / 2 / unit_size, 1.0, name, transform=axes.get_xaxis_transform(),
-                      ha="center", va="bottom", fontsize=8.5, color=MUTED, clip_on=False)
+            axes.text((start + end) / 2 / unit_size, 1.0, name,
+                      transform=axes.get_xaxis_transform(), ha="center", va="bottom",
+                      fontsize=8.5, color=MUTED, clip_on=False)
         for _layer, start, _end in spans[1:]:
             axes.axvline(start / unit_size, color=MUTED, linewidth=0.6, linestyle=(0, (2, 2)),
                          zorder=1)

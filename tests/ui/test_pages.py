@@ -397,3 +397,13 @@ def test_every_form_control_has_a_label(client, tokens, run_id):
         for control in parser.controls:
             assert control and control in parser.labels, (path, control)
         assert '<html lang="en">' in html
+
+
+def test_every_page_has_an_access_rule(app):
+    """Fail closed: a /ui/ route without an entry in PAGE_ROLES or OPEN_PAGES is refused to
+    everyone, so every route must be listed on purpose."""
+    pages = {rule.endpoint for rule in app.url_map.iter_rules()
+             if rule.endpoint.startswith("ui.")}
+    assert pages == set(signin.PAGE_ROLES) | set(signin.OPEN_PAGES)
+    for endpoint, roles in signin.PAGE_ROLES.items():
+        assert roles and roles <= set(ROLES), endpoint
