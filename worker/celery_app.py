@@ -23,7 +23,7 @@ from typing import Any
 
 from celery import Celery
 from celery.schedules import crontab
-from kombu import Queue
+from kombu import Exchange, Queue
 
 from service.recovery import recovery_settings
 from service.settings import parse_nightly_at, settings_from_env
@@ -60,7 +60,11 @@ def celery_config(settings: Mapping[str, Any]) -> dict[str, Any]:
         "timezone": "UTC",
         "enable_utc": True,
         "task_default_queue": "celery",
-        "task_queues": (Queue("celery"), Queue(UPKEEP_QUEUE)),
+        # Each queue with its own exchange and routing key: a queue declared without them
+        # would be bound to the default key too and receive a copy of every run's message.
+        "task_queues": (Queue("celery", Exchange("celery", type="direct"), routing_key="celery"),
+                        Queue(UPKEEP_QUEUE, Exchange(UPKEEP_QUEUE, type="direct"),
+                              routing_key=UPKEEP_QUEUE)),
         "task_routes": {"fluxproof.recover_lost_runs": {"queue": UPKEEP_QUEUE}},
         "beat_schedule": {
             "nightly-reverify": {
