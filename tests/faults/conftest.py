@@ -72,10 +72,20 @@ def migrated_store(pg_schema: PostgresSchema):
     store.dispose()
 
 
+def clean_upkeep_keys(client: Any) -> None:
+    """Delete the recovery sweep's queue and lock, which the lease's clean-up does not know."""
+    from service.recovery import LOCK_KEY
+
+    for key in client.keys("fluxproof.upkeep*"):
+        client.delete(key)
+    client.delete(LOCK_KEY)
+
+
 @pytest.fixture
 def redis_lease(real_services: str) -> Iterator[RedisLease]:
     lease = RedisLease.take()
     yield lease
+    clean_upkeep_keys(lease.client())
     lease.release()
 
 
