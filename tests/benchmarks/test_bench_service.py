@@ -120,6 +120,60 @@ def _ms(seconds: float) -> str:
     return f"{seconds * 1e3:.1f} ms"
 
 
+class StatementCounter:
+    """Counts the SQL statements an engine sends (each one a round trip to PostgreSQL), plus
+    the pool's connection checkouts (each one a ``SELECT 1`` when ``pool_pre_ping`` is on)."""
+
+    def __init__(self, engine) -> None:
+        from sqlalchemy import event
+
+        self.statements = 0
+        self.checkouts = 0
+        self._engine = engine
+        event.listen(engine, "before_cursor_execute", self._statement)
+        event.listen(engine.pool, "checkout", self._checkout)
+
+    def _statement(self, *_args) -> None:
+        self.statements += 1
+
+    def _checkout(self, *_args) -> None:
+        self.checkouts += 1
+
+    def close(self) -> None:
+        from sqlalchemy import event
+
+        event.remove(self._engine, "before_cursor_execute", self._statement)
+        event.remove(self._engine.pool, "checkout", self._checkout)
+
+
+def _per_run_statements(store) -> str:
+    """SQL statements per execute_run, measured in-process: a lone run and a batch run."""
+    from service.batches import start_batch
+    from service.runs import create_run, execute_run
+
+    documents = distinct_steady_cases(40, tags=["bench-count"])
+    lone = [create_run(store, actor=BENCH_ACTOR, document=d)["run_id"] for d in documents[:10]]
+    execute_run(lone[0], store)
+    counter = StatementCounter(store.engine)
+    try:
+        for run_id in lone[1:]:
+            execute_run(run_id, store)
+        lone_figures = (counter.statements / 9, counter.checkouts / 9)
+        for document in documents[10:]:
+            create_run(store, actor=BENCH_ACTOR, document=document)
+        batch = start_batch(store, actor=BENCH_ACTOR, tag="bench-count")
+        counter.statements = counter.checkouts = 0
+        for run_id in batch["run_ids"]:
+            execute_run(run_id, store)
+        runs = len(batch["run_ids"])
+        batch_figures = (counter.statements / runs, counter.checkouts / runs)
+    finally:
+        counter.close()
+    return (f"  SQL per execute_run (in-process count): lone run {lone_figures[0]:.1f} statements"
+            f" + {lone_figures[1]:.1f} pool checkouts; run of a batch of {runs} "
+            f"{batch_figures[0]:.1f} statements + {batch_figures[1]:.1f} checkouts")
+
+
 # --- (a) batch re-verification ----------------------------------------------------------------
 
 
@@ -210,6 +264,8 @@ def test_batch_reverification_throughput(schema, lease, tmp_path):
             figures["breakdown"] = _run_breakdown(store, figures["batch"]["batch_id"])
             passes.append(figures)
         queue_left = lease.client().llen("celery")
+        stop_all(workers)
+        statements = _per_run_statements(store)
     finally:
         stop_all(workers)
         dispatcher.shutdown()
@@ -237,6 +293,8 @@ def test_batch_reverification_throughput(schema, lease, tmp_path):
                   f"{_ms(figures['total_s'] * 2 / len(n))}; pool processes used "
                   f"{len(b['workers'])}")
     print(f"  messages left in the queue afterwards: {queue_left}")
+    print(statements)
+    print(f"  load average during the run (1, 5, 15 min): {os.getloadavg()}")
 
 
 # --- (b) POST /v1/runs latency ----------------------------------------------------------------
@@ -338,13 +396,21 @@ def _profile_in_process(schema, lease) -> str:
         documents = distinct_steady_cases(PROFILE_REQUESTS + 20, tags=["bench-profile"])
         for document in documents[:20]:
             client.post("/v1/runs", json={"case": document}, headers=headers)
+        counter = StatementCounter(store.engine)
+        started = time.perf_counter()
+        for document in documents[20:20 + PROFILE_REQUESTS // 2]:
+            client.post("/v1/runs", json={"case": document}, headers=headers)
+        unprofiled = (time.perf_counter() - started) / (PROFILE_REQUESTS // 2)
+        counter.close()
+        statements = counter.statements / (PROFILE_REQUESTS // 2)
+        checkouts = counter.checkouts / (PROFILE_REQUESTS // 2)
         profiler = cProfile.Profile()
         started = time.perf_counter()
         profiler.enable()
-        for document in documents[20:]:
+        for document in documents[20 + PROFILE_REQUESTS // 2:]:
             client.post("/v1/runs", json={"case": document}, headers=headers)
         profiler.disable()
-        per_request = (time.perf_counter() - started) / PROFILE_REQUESTS
+        per_request = (time.perf_counter() - started) / (PROFILE_REQUESTS // 2)
     finally:
         shutdown_app(app)
     out = io.StringIO()
@@ -354,9 +420,11 @@ def _profile_in_process(schema, lease) -> str:
         r"psycopg/cursor|redis/client|werkzeug/test|marshmallow/schema|pint)", 22)
     lines = [line for line in out.getvalue().splitlines() if line.strip()]
     table = [line for line in lines if "/" in line or "ncalls" in line]
-    return (f"  in-process profile ({PROFILE_REQUESTS} POST /v1/runs, Flask test client, same "
-            f"PostgreSQL and Redis, profiler on): {_ms(per_request)} per request; top by "
-            "cumulative time:\n    " + "\n    ".join(table[:24]))
+    return (f"  in-process, Flask test client, same PostgreSQL and Redis, one thread: "
+            f"{_ms(unprofiled)} per POST /v1/runs, {statements:.1f} SQL statements + "
+            f"{checkouts:.1f} pool checkouts each; then {PROFILE_REQUESTS // 2} more under "
+            f"cProfile ({_ms(per_request)} each), top by cumulative time:\n    "
+            + "\n    ".join(table[:24]))
 
 
 def test_post_runs_latency_under_loopback_load(schema, lease, tmp_path):
@@ -414,3 +482,4 @@ def test_post_runs_latency_under_loopback_load(schema, lease, tmp_path):
             print(f"    error: {error}")
     lease.clean()
     print(_profile_in_process(schema, lease))
+    print(f"  load average during the run (1, 5, 15 min): {os.getloadavg()}")
