@@ -361,7 +361,11 @@ def _split(raw: Any, kind: Kind, path: str) -> tuple[decimal.Decimal, str, str]:
             )
         if not math.isfinite(float(number_text)):
             raise UnitError(path, f"{kind.expected}, got {shown}: the number is out of range")
-        number = decimal.Decimal(number_text)
+        try:
+            number = decimal.Decimal(number_text)
+        except decimal.InvalidOperation:  # an exponent too large for any decimal
+            raise UnitError(path, f"{kind.expected}, got {shown}: the number is out of range"
+                            ) from None
     elif isinstance(raw, Mapping):
         extra = sorted(set(raw) - {"value", "unit"})
         if extra:
