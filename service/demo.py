@@ -38,7 +38,7 @@ def _slug(path: Path) -> str:
 def _figure(record: dict[str, Any]) -> str:
     quantities = record.get("quantities") or {}
     # The outer-face flux, unless that face is sealed (then the inner one), else the release.
-    for name in ("flux_outer", "flux_inner", "t50", "t90"):
+    for name in ("flux_outer", "flux_inner", "t50", "t90", "time_lag"):
         quantity = quantities.get(name)
         if isinstance(quantity, dict) and isinstance(quantity.get("value"), (int, float)) \
                 and quantity["value"] != 0:
