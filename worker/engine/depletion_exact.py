@@ -202,6 +202,7 @@ def solve_depleted(problem: Problem) -> SteadySolution | None:
         method=METHOD, reference=REFERENCE, success=True,
         message="zero-order layer with a depleted zone; front from the fed face's condition",
         concentration_at=profile.concentration_at, flux_at=profile.flux_at,
+        profile_at=profile.profile_at,
         flux_inner=flux_inner, flux_outer=flux_outer, consumption=float(consumption),
         depletion_front=float(front),
         diagnostics={"depleted_zone": (float(front_in), float(front_out))})

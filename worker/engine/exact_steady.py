@@ -302,6 +302,7 @@ def solve_linear(problem: Problem) -> tuple[SteadySolution, list[float]]:
     solution = SteadySolution(
         method=METHOD, reference=REFERENCE, success=success, message=message,
         concentration_at=profile.concentration_at, flux_at=profile.flux_at,
+        profile_at=profile.profile_at,
         flux_inner=_apply(forms[0].flux[0], unknowns),
         flux_outer=_apply(forms[-1].flux[1], unknowns),
         consumption=float(consumption), diagnostics=diagnostics)

@@ -54,16 +54,34 @@ class LayeredProfile:
                              f"[{self.edges[layer]!r}, {self.edges[layer + 1]!r}] m")
         return np.full(r.shape, layer, dtype=int)
 
+    def _in_one_layer(self, flat: np.ndarray, layer: int | None):
+        """(C, dC/dr) when every position lies in the given layer, else None."""
+        if layer is None or not 0 <= layer < len(self.pieces) or not flat.size:
+            return None
+        a, b = self.edges[layer], self.edges[layer + 1]
+        if a - self._slack <= float(flat.min()) and float(flat.max()) <= b + self._slack:
+            return self.pieces[layer](np.clip(flat, a, b))  # NaN fails both tests above
+        return None
+
+    def profile_at(self, r, layer: int | None = None) -> tuple[np.ndarray, np.ndarray]:
+        """(concentration, outward flux) at positions ``r`` from one evaluation."""
+        r = np.asarray(r, dtype=float)
+        flat = np.atleast_1d(r).ravel()
+        both = self._in_one_layer(flat, layer)
+        if both is None:
+            return self.concentration_at(r, layer), self.flux_at(r, layer)
+        value, gradient = both
+        flux = -self.diffusivities[layer] * np.asarray(gradient, dtype=float)
+        return (np.asarray(value, dtype=float).reshape(r.shape), flux.reshape(r.shape))
+
     def _evaluate(self, r, layer: int | None, want_flux: bool) -> np.ndarray:
         r = np.asarray(r, dtype=float)
         flat = np.atleast_1d(r).ravel()
-        if layer is not None and 0 <= layer < len(self.pieces) and flat.size:
-            a, b = self.edges[layer], self.edges[layer + 1]
-            low, high = float(flat.min()), float(flat.max())
-            if a - self._slack <= low and high <= b + self._slack:  # NaN fails both tests
-                value, gradient = self.pieces[layer](np.clip(flat, a, b))
-                out = -self.diffusivities[layer] * gradient if want_flux else value
-                return np.asarray(out, dtype=float).reshape(r.shape)
+        both = self._in_one_layer(flat, layer)
+        if both is not None:
+            value, gradient = both
+            out = -self.diffusivities[layer] * gradient if want_flux else value
+            return np.asarray(out, dtype=float).reshape(r.shape)
         index = self._layer_of(flat, layer)
         out = np.empty_like(flat)
         for i in np.unique(index):

@@ -221,3 +221,6 @@ class SteadySolution:
     consumption: float
     depletion_front: float | None = None
     diagnostics: dict = field(default_factory=dict)
+    #: Optional ``(r, layer) -> (C, J)``: both fields from one evaluation, for solvers where
+    #: that is cheaper than two calls (same conventions as ``concentration_at``/``flux_at``).
+    profile_at: Callable[..., tuple[np.ndarray, np.ndarray]] | None = None

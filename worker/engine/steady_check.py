@@ -92,6 +92,11 @@ class _Sampled:
     def of(cls, solution: SteadySolution, positions: list[np.ndarray]) -> _Sampled:
         conc, flux = [], []
         for i, r in enumerate(positions):
+            if solution.profile_at is not None:
+                c, j = solution.profile_at(r, layer=i)
+                conc.append(np.asarray(c, dtype=float))
+                flux.append(np.asarray(j, dtype=float)[[0, -1]])
+                continue
             conc.append(np.asarray(solution.concentration_at(r, layer=i), dtype=float))
             flux.append(np.asarray(solution.flux_at(r[[0, -1]], layer=i), dtype=float))
         return cls(solution, positions, conc, flux)
