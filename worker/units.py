@@ -25,6 +25,7 @@ from __future__ import annotations
 import decimal
 import math
 import re
+import tokenize
 from collections.abc import Mapping
 from dataclasses import dataclass
 from functools import cached_property, lru_cache
@@ -298,8 +299,13 @@ def unit_to_si(unit: str) -> tuple[decimal.Decimal, frozenset[tuple[str, float]]
         AttributeError,
         SyntaxError,
         decimal.DecimalException,
+        # pint's tokenizer and parser on malformed input ("(", "m**"), found by fuzzing
+        tokenize.TokenError,
+        AssertionError,
+        IndexError,
+        KeyError,
     ) as exc:
-        raise ValueError(f"unknown unit {unit!r} ({exc})") from None
+        raise ValueError(f"unknown unit {unit!r} ({str(exc) or type(exc).__name__})") from None
     if not factor.is_finite() or factor == 0:
         raise ValueError(f"unit {unit!r} has no usable factor to SI")
     return factor, _dimensionality_key(parsed.dimensionality.items())
