@@ -9,7 +9,7 @@ from __future__ import annotations
 
 from typing import Any
 
-from marshmallow import RAISE, Schema, ValidationError, fields, validate, validates_schema
+from marshmallow import INCLUDE, RAISE, Schema, ValidationError, fields, validate, validates_schema
 
 from service.errors import ValidationFailed
 from service.store.models import DECISIONS, RUN_STATES
@@ -81,6 +81,10 @@ class ErrorItemSchema(Schema):
 
 class ProblemSchema(Schema):
     """RFC 9457 problem details with an ``errors`` list."""
+
+    class Meta:
+        # RFC 9457 extension members (e.g. role and allowed_roles on a 403) are allowed.
+        unknown = INCLUDE
 
     type = fields.String(required=True)
     title = fields.String(required=True)
