@@ -186,7 +186,7 @@ def _outcome(document) -> str:
 def test_any_document_gives_a_record_or_a_case_error():
     seen: dict[str, int] = {}
 
-    @settings(max_examples=600, derandomize=True, deadline=None, database=None,
+    @settings(max_examples=400, derandomize=True, deadline=None, database=None,
               suppress_health_check=[HealthCheck.too_slow, HealthCheck.data_too_large,
                                      HealthCheck.filter_too_much])
     @given(document=ALL_CASES)
