@@ -270,11 +270,14 @@ def _failed(message: str, diagnostics: dict | None = None) -> SteadySolution:
                           diagnostics=diagnostics or {})
 
 
-def solve_linear(problem: Problem) -> tuple[SteadySolution, list[float]]:
+def solve_linear(problem: Problem, *, consumption: bool = True
+                 ) -> tuple[SteadySolution, list[float]]:
     """Solve with every zero-order layer taken as never depleted.
 
     Returns the solution and, per layer, the minimum concentration of each zero-order layer
-    (``inf`` for the others), which tells whether that assumption holds.
+    (``inf`` for the others), which tells whether that assumption holds. With
+    ``consumption=False`` the consumption integral is skipped (NaN), for callers that need only
+    the profile and the face fluxes.
     """
     bases = layer_bases(problem)
     matrix, rhs, columns, forms = _assemble(problem, bases)
@@ -288,15 +291,17 @@ def solve_linear(problem: Problem) -> tuple[SteadySolution, list[float]]:
     singular_values = np.linalg.svd(matrix, compute_uv=False)
     diagnostics = {"condition_number": float(singular_values[0] / singular_values[-1]),
                    "relative_residual": residual, "unknowns": int(unknowns.size)}
-    pieces, consumption, minima = [], 0.0, []
+    want_consumption = consumption
+    pieces, consumption, minima = [], 0.0 if want_consumption else math.nan, []
     for i, (basis, (col_a, col_b)) in enumerate(zip(bases, columns, strict=True)):
         c1 = 0.0 if col_a is None else float(unknowns[col_a])
         piece = _layer_piece(basis, problem.layers[i].partition, c1, float(unknowns[col_b]))
         pieces.append(piece)
-        consumption += _layer_consumption(problem, i, basis, piece)
+        if want_consumption:
+            consumption += _layer_consumption(problem, i, basis, piece)
         minima.append(_zero_order_minimum(problem, i, basis, piece))
     profile = LayeredProfile(problem.edges, [ly.diffusivity for ly in problem.layers], pieces)
-    success = residual <= RESIDUAL_LIMIT and math.isfinite(consumption)
+    success = residual <= RESIDUAL_LIMIT and (math.isfinite(consumption) or not want_consumption)
     message = ("closed form by basis superposition" if success else
                f"relative residual {residual:.3g} exceeds {RESIDUAL_LIMIT:g}")
     solution = SteadySolution(

@@ -147,7 +147,10 @@ class Problem:
     @cached_property
     def edges(self) -> np.ndarray:
         """Positions of the inner face, every interface and the outer face, in m (read-only)."""
-        edges = self.inner + np.concatenate(([0.0], np.cumsum([ly.thickness for ly in self.layers])))
+        positions = [self.inner]
+        for layer in self.layers:
+            positions.append(positions[-1] + layer.thickness)
+        edges = np.array(positions)
         edges.flags.writeable = False
         return edges
 

@@ -275,16 +275,55 @@ def _regime_notes(problem: Problem, primary: SteadySolution, outcome: Outcome) -
     _thin_wall_note(problem, primary, outcome)
 
 
+@dataclass
+class _SlabRate:
+    success: bool
+    flux_inner: float
+    flux_outer: float
+
+
+def _reaction_free_slab(slab: Problem) -> _SlabRate | None:
+    """Uniform flux through a reaction-free layered slab by its resistance network.
+
+    With u = C/K continuous across interfaces, J = (u_in - u_out) / sum(L_i/(D_i K_i)); a film
+    adds K_face/(h K) to the resistance and a concentration face fixes u (Bird, Stewart &
+    Lightfoot 2002, §10.6, composite walls in series). Flux and symmetry faces fix J itself.
+    """
+    resistance = sum(ly.thickness / (ly.diffusivity * ly.partition) for ly in slab.layers)
+    terms = []
+    for side, layer in (("inner", slab.layers[0]), ("outer", slab.layers[-1])):
+        b = slab.inner_boundary if side == "inner" else slab.outer_boundary
+        k_face = slab.face_partition(side)
+        if b.kind in ("flux", "symmetry"):
+            value = b.value if b.kind == "flux" else 0.0
+            j = value if side == "inner" else -value
+            return _SlabRate(True, j, j)
+        if b.kind == "concentration":
+            terms.append((k_face * b.value / layer.partition, 0.0))
+        else:
+            terms.append((k_face * b.bulk / layer.partition,
+                          k_face / (b.coefficient * layer.partition)))
+    (a_in, r_in), (a_out, r_out) = terms
+    j = (a_in - a_out) / (resistance + r_in + r_out)
+    return _SlabRate(True, j, j)
+
+
 def _thin_wall_note(problem: Problem, primary: SteadySolution, outcome: Outcome) -> None:
     """How far a slab (thin-wall) hand calculation would be from this curved shell."""
     if problem.geometry == "slab" or problem.inner == 0.0:
         return
     slab = dataclasses.replace(problem, geometry="slab")
-    flat = exact_steady.solve_exact(slab) if problem.is_linear else None
-    if flat is None:
-        flat = fv_steady.solve_fv(slab)
-        if not flat.success:
-            return
+    if all(not ly.reaction.reacts for ly in problem.layers):
+        flat = _reaction_free_slab(slab)
+    elif problem.is_linear:  # the slab's fluxes only: its consumption integral is not needed
+        flat, _ = exact_steady.solve_linear(slab, consumption=False)
+    else:
+        flat = exact_steady.solve_exact(slab) if all(
+            ly.reaction.kind != "michaelis_menten" for ly in problem.layers) else None
+        if flat is None:
+            flat = fv_steady.solve_fv(slab)
+    if flat is None or not flat.success:
+        return
     n = problem.exponent
     true_rate = problem.inner**n * primary.flux_inner
     if true_rate == 0.0:
