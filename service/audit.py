@@ -3,9 +3,14 @@
 Each event's hash is ``sha256(prev_hash + canonical JSON of {seq, at, actor, kind, subject,
 payload})`` (hex), with ``prev_hash`` the previous event's hash (64 zeros before the first).
 Events are appended inside the transaction of the change they describe, so a change and its
-event are committed together or not at all. Appends lock the single chain-head row
-(``SELECT ... FOR UPDATE`` on PostgreSQL; SQLite transactions hold the database write lock from
-``BEGIN IMMEDIATE``), so concurrent writers queue and the chain stays linear.
+event are committed together or not at all. :func:`append_event` only queues the event on the
+session; when the transaction commits, the session's other changes are flushed first and then
+every queued event is written in one append, as the last statements before the commit: the
+single chain-head row is locked (``SELECT ... FOR UPDATE`` on PostgreSQL; SQLite transactions
+hold the database write lock from ``BEGIN IMMEDIATE``), the events are inserted in one
+statement, the head is moved on, and the commit releases the lock. Concurrent writers therefore
+queue only for those three statements, and the chain stays linear. A rolled-back transaction
+writes none of its queued events.
 
 The canonical JSON here is frozen with the chain format (sorted keys, no spaces, UTF-8, no NaN)
 and deliberately independent of the case canonicalisation, so old chains stay verifiable.
@@ -18,7 +23,7 @@ import json
 from dataclasses import dataclass
 from typing import Any
 
-from sqlalchemy import func, select
+from sqlalchemy import event, func, insert, select, update
 from sqlalchemy.orm import Session
 
 from service.store import Store
@@ -57,25 +62,73 @@ def event_hash(prev_hash: str, seq: int, at: str, actor: str, kind: str, subject
     return hashlib.sha256((prev_hash + body).encode("utf-8")).hexdigest()
 
 
+PENDING_KEY = "fluxproof.audit.pending"
+
+
+@dataclass(frozen=True)
+class PendingEvent:
+    """An event queued on a session, written when its transaction commits."""
+
+    actor: str
+    kind: str
+    subject: str
+    payload: dict[str, Any]
+
+
 def append_event(session: Session, *, actor: str, kind: str, subject: str,
-                 payload: dict[str, Any] | None = None) -> AuditEvent:
-    """Append one event in the caller's transaction, after locking the chain head."""
+                 payload: dict[str, Any] | None = None) -> PendingEvent:
+    """Queue one event in the caller's transaction; it is written as the transaction commits.
+
+    The kind and the payload are checked now (``ValueError`` for an unknown kind or a payload
+    that the chain's JSON cannot hold), so that a bad event fails the change it describes.
+    """
     if kind not in EVENT_KINDS:
         raise ValueError(f"unknown audit event kind {kind!r}; expected one of {EVENT_KINDS}")
-    payload = dict(payload or {})
-    head = session.execute(
-        select(AuditHead).where(AuditHead.id == HEAD_ROW_ID).with_for_update()
-    ).scalar_one()
-    seq = head.seq + 1
-    at = utc_now().isoformat(timespec="microseconds")
-    digest = event_hash(head.hash, seq, at, actor, kind, subject, payload)
-    event = AuditEvent(seq=seq, at=at, actor=actor, kind=kind, subject=subject,
-                       payload=payload, prev_hash=head.hash, hash=digest)
-    session.add(event)
-    head.seq = seq
-    head.hash = digest
-    session.flush()
-    return event
+    pending = PendingEvent(actor=actor, kind=kind, subject=subject, payload=dict(payload or {}))
+    chain_json(pending.payload)
+    session.info.setdefault(PENDING_KEY, []).append(pending)
+    return pending
+
+
+def write_pending_events(session: Session) -> int:
+    """Write every event queued on ``session`` in one append; return how many were written.
+
+    Called by the ``before_commit`` hook below after the session's other changes are flushed,
+    so that the chain-head lock is taken by the last statements of the transaction.
+    """
+    pending: list[PendingEvent] = session.info.pop(PENDING_KEY, [])
+    if not pending:
+        return 0
+    seq, prev_hash = session.execute(
+        select(AuditHead.seq, AuditHead.hash).where(AuditHead.id == HEAD_ROW_ID)
+        .with_for_update()
+    ).one()
+    rows = []
+    for item in pending:
+        seq += 1
+        at = utc_now().isoformat(timespec="microseconds")
+        digest = event_hash(prev_hash, seq, at, item.actor, item.kind, item.subject,
+                            item.payload)
+        rows.append({"seq": seq, "at": at, "actor": item.actor, "kind": item.kind,
+                     "subject": item.subject, "payload": item.payload,
+                     "prev_hash": prev_hash, "hash": digest})
+        prev_hash = digest
+    session.execute(insert(AuditEvent), rows)
+    session.execute(update(AuditHead).where(AuditHead.id == HEAD_ROW_ID)
+                    .values(seq=seq, hash=prev_hash))
+    return len(rows)
+
+
+@event.listens_for(Session, "before_commit")
+def _append_pending_at_commit(session: Session) -> None:
+    if session.info.get(PENDING_KEY):
+        session.flush()
+        write_pending_events(session)
+
+
+@event.listens_for(Session, "after_soft_rollback")
+def _drop_pending_on_rollback(session: Session, _previous_transaction: Any) -> None:
+    session.info.pop(PENDING_KEY, None)
 
 
 def event_to_dict(event: AuditEvent) -> dict[str, Any]:

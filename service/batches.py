@@ -23,7 +23,7 @@ from sqlalchemy.orm import Session
 
 from service import audit
 from service.errors import NotFound, ValidationFailed
-from service.runs import queue_run_in
+from service.runs import queue_runs_in
 from service.store import Store
 from service.store.models import FINISHED_STATES, RUN_STATES, Batch, Case, CaseTag, Run, \
     Signoff, utc_now
@@ -49,17 +49,17 @@ def start_batch(store: Store, *, actor: str, tag: str | None = None,
     """
     selector = _selector(tag, all_cases)
     with store.transaction() as session:
-        query = select(Case).order_by(Case.created_at, Case.id)
+        query = select(Case.id, Case.sha256).order_by(Case.created_at, Case.id)
         if tag:
             query = query.where(Case.id.in_(select(CaseTag.case_id).where(CaseTag.tag == tag)))
-        cases = session.execute(query).scalars().all()
+        cases = session.execute(query).all()
         batch = Batch(id=str(uuid.uuid4()), selector=selector, status="queued",
                       created_by=actor, created_at=utc_now())
         session.add(batch)
         session.flush()
         audit.append_event(session, actor=actor, kind="batch.started", subject=batch.id,
                            payload={"selector": selector, "cases": len(cases)})
-        run_ids = [queue_run_in(session, case, actor, batch_id=batch.id).id for case in cases]
+        run_ids = queue_runs_in(session, cases, actor, batch_id=batch.id)
         if not cases:
             _mark_finished(session, batch)
         return {"batch_id": batch.id, "run_ids": run_ids, "status": batch.status}

@@ -99,12 +99,18 @@ class CeleryDispatcher:
         self.celery = make_celery(settings)
 
     def send(self, run_ids: Iterable[str]) -> None:
+        """Publish one message per run, all through one producer (one broker connection
+        acquired once, not once per message)."""
         pending = list(run_ids)
+        index = 0
         try:
-            for index, run_id in enumerate(pending):
-                self.celery.send_task(EXECUTE_RUN_TASK, args=[run_id], retry=True,
-                                      retry_policy={"max_retries": 2, "interval_start": 0.2,
-                                                    "interval_step": 0.5})
+            with self.celery.producer_or_acquire() as producer:
+                for index, run_id in enumerate(pending):
+                    self.celery.send_task(EXECUTE_RUN_TASK, args=[run_id], retry=True,
+                                          retry_policy={"max_retries": 2,
+                                                        "interval_start": 0.2,
+                                                        "interval_step": 0.5},
+                                          producer=producer)
         except Exception as exc:
             unsent = pending[index:]
             raise ServiceUnavailable(

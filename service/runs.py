@@ -14,8 +14,8 @@ import socket
 import uuid
 from typing import Any
 
-from sqlalchemy import select
-from sqlalchemy.orm import Session
+from sqlalchemy import insert, select
+from sqlalchemy.orm import Session, joinedload
 
 from service import audit
 from service.errors import NotFound, ValidationFailed
@@ -80,6 +80,28 @@ def queue_run_in(session: Session, case: Case, actor: str, batch_id: str | None 
     return run
 
 
+def queue_runs_in(session: Session, cases: Any, actor: str, batch_id: str | None = None
+                  ) -> list[str]:
+    """Add one queued run per ``(case_id, case_sha256)`` pair in the caller's transaction.
+
+    The runs go in as one multi-row insert and their ``run.queued`` events as one audit append
+    (at the commit), one event per run, in the order of ``cases``. Returns the run ids in that
+    order; the caller dispatches them after the commit.
+    """
+    rows = []
+    for case_id, case_sha256 in cases:
+        run_id = str(uuid.uuid4())
+        rows.append({"id": run_id, "case_id": case_id, "status": "queued",
+                     "submitted_by": actor, "batch_id": batch_id, "created_at": utc_now(),
+                     "attempts": 0})
+        audit.append_event(session, actor=actor, kind="run.queued", subject=run_id,
+                           payload={"case_id": case_id, "case_sha256": case_sha256,
+                                    "batch_id": batch_id})
+    if rows:
+        session.execute(insert(Run), rows)
+    return [row["id"] for row in rows]
+
+
 def create_run(store: Store, *, actor: str, case_id: str | None = None,
                document: dict[str, Any] | None = None) -> dict[str, Any]:
     """Queue a run of a stored case (``case_id``) or of a new case (``document``, stored first).
@@ -140,8 +162,21 @@ def non_finite_paths(value: Any, path: str = "") -> list[str]:
 
 
 def _lock_run(session: Session, run_id: str) -> Run | None:
-    return session.execute(select(Run).where(Run.id == run_id).with_for_update()
-                           ).scalar_one_or_none()
+    """The run, row-locked, with its sign-offs loaded in the same statement (the seal checks
+    read them; a separate lazy load would be one more round trip)."""
+    return session.execute(
+        select(Run).where(Run.id == run_id).options(joinedload(Run.signoffs))
+        .with_for_update(of=Run)
+    ).unique().scalar_one_or_none()
+
+
+def _lock_run_with_case(session: Session, run_id: str) -> tuple[Run, dict[str, Any]] | None:
+    """The run (row-locked, sign-offs loaded) and its case document, in one statement."""
+    row = session.execute(
+        select(Run, Case).join(Case, Case.id == Run.case_id)
+        .where(Run.id == run_id).options(joinedload(Run.signoffs)).with_for_update(of=Run)
+    ).unique().one_or_none()
+    return None if row is None else (row[0], row[1].document)
 
 
 def _failure_reason(exc: BaseException) -> str:
@@ -190,10 +225,11 @@ def execute_run(run_id: str, store: Store | None = None, *,
     store = store or default_store()
     actor = actor or f"worker@{socket.gethostname()}"
     with store.transaction() as session:
-        run = _lock_run(session, run_id)
-        if run is None:
+        claimed = _lock_run_with_case(session, run_id)
+        if claimed is None:
             logger.warning("execute_run: no run %s", run_id)
             return "missing"
+        run, stored_document = claimed
         if run.status in FINISHED_STATES:
             return run.status
         if run.attempts >= max_attempts:
@@ -206,10 +242,8 @@ def execute_run(run_id: str, store: Store | None = None, *,
         run.attempts += 1
         audit.append_event(session, actor=actor, kind="run.started", subject=run.id,
                            payload={"attempt": run.attempts})
-        case = session.get(Case, run.case_id)
-        assert case is not None
-        document = dict(case.document)
-        case_id = case.id
+        document = dict(stored_document)
+        case_id = run.case_id
 
     record: dict[str, Any] | None = None
     error: str | None = None

@@ -35,6 +35,10 @@ DEFAULTS: Mapping[str, Any] = {
     # Redis visibility timeout in seconds: must exceed TASK_TIME_LIMIT, or a long solve is
     # delivered a second time while it is still running.
     "BROKER_VISIBILITY_TIMEOUT": 3600,
+    # Task messages each worker pool process reserves ahead of the one it is running (Celery's
+    # worker_prefetch_multiplier). Safe with late acknowledgement: reserved messages stay
+    # unacknowledged, so a lost worker's reserved runs are delivered again.
+    "WORKER_PREFETCH_MULTIPLIER": 8,
     # Threads of the embedded executor (no broker).
     "EMBEDDED_WORKERS": 2,
     # Deliveries of one run before it is ended ``failed`` (a worker lost or killed each time).

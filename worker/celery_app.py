@@ -42,6 +42,10 @@ def celery_config(settings: Mapping[str, Any]) -> dict[str, Any]:
     if not visibility > hard:
         raise ValueError(f"FLUXPROOF_BROKER_VISIBILITY_TIMEOUT ({visibility} s) must exceed "
                          f"FLUXPROOF_TASK_TIME_LIMIT ({hard} s), or long solves run twice")
+    prefetch = settings["WORKER_PREFETCH_MULTIPLIER"]
+    if isinstance(prefetch, bool) or not isinstance(prefetch, int) or prefetch < 1:
+        raise ValueError("FLUXPROOF_WORKER_PREFETCH_MULTIPLIER: expected a whole number of at "
+                         f"least 1, got {prefetch!r}")
     hour, minute = parse_nightly_at(settings["NIGHTLY_AT"])
     recovery_interval, _recovery_after = recovery_settings(settings)
     return {
@@ -52,7 +56,10 @@ def celery_config(settings: Mapping[str, Any]) -> dict[str, Any]:
         "task_reject_on_worker_lost": True,
         "task_soft_time_limit": soft,
         "task_time_limit": hard,
-        "worker_prefetch_multiplier": 1,
+        # Messages each pool process reserves ahead. With late acknowledgement a reserved
+        # message stays unacknowledged until its run is done, so a lost worker loses nothing
+        # (Redis delivers it again); reserving ahead hides the broker round trip per run.
+        "worker_prefetch_multiplier": prefetch,
         "broker_transport_options": {"visibility_timeout": visibility},
         "broker_connection_retry_on_startup": True,
         "task_serializer": "json",

@@ -7,7 +7,7 @@ SQLite: each transaction starts with ``BEGIN IMMEDIATE``, taking the database wr
 front. That serialises writers (threads of the embedded executor, several processes) instead of
 letting two deferred transactions deadlock on lock upgrade, and it is what keeps the audit chain
 linear on SQLite. PostgreSQL: the audit append locks the chain-head row (``SELECT ... FOR
-UPDATE``).
+UPDATE``), as the last statements before the commit (see :mod:`service.audit`).
 """
 
 from __future__ import annotations
@@ -20,6 +20,8 @@ from sqlalchemy import Engine, create_engine, event, text
 from sqlalchemy.orm import Session, sessionmaker
 
 SQLITE_BUSY_TIMEOUT_S = 30.0
+#: Seconds after which a pooled PostgreSQL connection is replaced by a fresh one.
+POOL_RECYCLE_S = 1800
 
 
 def make_engine(url: str, **kwargs: Any) -> Engine:
@@ -46,7 +48,15 @@ def make_engine(url: str, **kwargs: Any) -> Engine:
             connection.exec_driver_sql("BEGIN IMMEDIATE")
 
         return engine
-    return create_engine(url, pool_pre_ping=True, **kwargs)
+    # No ping before each checkout (it was one more round trip per transaction). A connection
+    # that went stale (database restarted, connection dropped) fails its first statement; the
+    # dialect reports that as a disconnect and the pool then drops every connection older
+    # than that moment, so the error costs one transaction per process (a 503 in the API, a
+    # retried task in a worker), not one per pooled connection. Connections are also renewed
+    # after POOL_RECYCLE_S, before a server or firewall idle timeout can cut them.
+    kwargs.setdefault("pool_pre_ping", False)
+    kwargs.setdefault("pool_recycle", POOL_RECYCLE_S)
+    return create_engine(url, **kwargs)
 
 
 class Store:

@@ -12,7 +12,9 @@ def test_visibility_timeout_exceeds_the_hard_limit_by_default():
     config = celery_config(DEFAULTS)
     assert config["broker_transport_options"]["visibility_timeout"] > config["task_time_limit"]
     assert config["task_soft_time_limit"] < config["task_time_limit"]
-    assert config["task_acks_late"] and config["worker_prefetch_multiplier"] == 1
+    # Reserving messages ahead is safe only because they are acknowledged late.
+    assert config["task_acks_late"] and config["task_reject_on_worker_lost"]
+    assert config["worker_prefetch_multiplier"] == DEFAULTS["WORKER_PREFETCH_MULTIPLIER"] >= 1
     assert config["result_backend"] is None
 
 
@@ -21,6 +23,17 @@ def test_settings_that_would_run_long_solves_twice_are_refused():
         celery_config({**DEFAULTS, "BROKER_VISIBILITY_TIMEOUT": 100, "TASK_TIME_LIMIT": 360})
     with pytest.raises(ValueError, match="SOFT_TIME_LIMIT"):
         celery_config({**DEFAULTS, "TASK_SOFT_TIME_LIMIT": 400})
+
+
+@pytest.mark.parametrize("value", [0, -2, "many", 2.5, True])
+def test_a_prefetch_multiplier_that_is_not_a_whole_number_of_at_least_one_is_refused(value):
+    with pytest.raises(ValueError, match="FLUXPROOF_WORKER_PREFETCH_MULTIPLIER"):
+        celery_config({**DEFAULTS, "WORKER_PREFETCH_MULTIPLIER": value})
+
+
+def test_the_prefetch_multiplier_follows_the_setting():
+    assert celery_config({**DEFAULTS, "WORKER_PREFETCH_MULTIPLIER": 3}
+                         )["worker_prefetch_multiplier"] == 3
 
 
 def test_nightly_schedule_follows_the_setting():
