@@ -6,6 +6,8 @@ process each, beat) on a PostgreSQL schema and a Redis database of this test's o
 process that is executing a run is killed with SIGKILL, twice (once on each node); Celery
 gives the unacknowledged message back (acks late, reject on worker lost) and the run is
 executed again, idempotently.
+
+The waits are generous bounds against a hang on a busy machine, not speed targets.
 """
 
 from __future__ import annotations
@@ -72,15 +74,15 @@ def test_sigkilled_worker_mid_batch_every_run_succeeds_exactly_once(
         run_ids = batch_run_ids(store, batch_id)
         assert len(run_ids) == BATCH_SIZE
 
-        wait_until(lambda: finished_count(store, batch_id) >= BATCH_SIZE // 5, 120,
+        wait_until(lambda: finished_count(store, batch_id) >= BATCH_SIZE // 5, 300,
                    message="a fifth of the batch finished")
         lost_before = sum(len(WORKER_LOST.findall(stack.log(n))) for n in stack.worker_names())
         first_kills = _kill_a_busy_pool_process(stack, "worker-1", store, batch_id)
-        wait_until(lambda: finished_count(store, batch_id) >= BATCH_SIZE // 2, 120,
+        wait_until(lambda: finished_count(store, batch_id) >= BATCH_SIZE // 2, 300,
                    message="half of the batch finished")
         second_kills = _kill_a_busy_pool_process(stack, "worker-2", store, batch_id)
 
-        wait_until(lambda: unfinished_count(store, batch_id) == 0, 300, interval=0.5,
+        wait_until(lambda: unfinished_count(store, batch_id) == 0, 600, interval=0.5,
                    message="every run of the batch finished")
         elapsed = time.monotonic() - started
 
@@ -105,7 +107,7 @@ def test_sigkilled_worker_mid_batch_every_run_succeeds_exactly_once(
                              headers=bearer(tokens["auditor"]), timeout=60).json()
         assert chain["ok"] is True, chain
         print(f"\nFAULT worker SIGKILL: {BATCH_SIZE} runs, {first_kills + second_kills} "
-              f"SIGKILLs, {len(retried)} runs delivered twice, all succeeded once, "
+              f"SIGKILLs, {len(retried)} runs started twice, all succeeded once, "
               f"batch wall time {elapsed:.1f} s")
     finally:
         stopped = stack.stop()
