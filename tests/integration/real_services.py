@@ -37,7 +37,8 @@ LEASE_SECONDS = 1800
 #: Keys a Celery queue on the Redis transport creates; a database holding only these (and the
 #: lease key) is one we may take and clean.
 CELERY_KEY_PATTERNS = ("celery", "celery\x06*", "_kombu.*", "unacked", "unacked_index",
-                       "unacked_mutex", "*.reply.celery.pidbox")
+                       "unacked_mutex", "*.reply.celery.pidbox", "fluxproof.upkeep*",
+                       "fluxproof:recovery-lock")
 
 
 class ServiceMissing(RuntimeError):
