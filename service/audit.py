@@ -7,8 +7,8 @@ event are committed together or not at all. :func:`append_event` only queues the
 session; when the transaction commits, the session's other changes are flushed first and then
 every queued event is written in one append, as the last statements before the commit: the
 single chain-head row is locked (``SELECT ... FOR UPDATE`` on PostgreSQL; SQLite transactions
-hold the database write lock from ``BEGIN IMMEDIATE``), the events are inserted in one
-statement, the head is moved on, and the commit releases the lock. Concurrent writers therefore
+hold the database write lock from ``BEGIN IMMEDIATE``), the events are inserted and the head
+moved on (one statement on PostgreSQL, two on SQLite), and the commit releases the lock. Concurrent writers therefore
 queue only for those three statements, and the chain stays linear. A rolled-back transaction
 writes none of its queued events.
 
@@ -113,9 +113,15 @@ def write_pending_events(session: Session) -> int:
                      "subject": item.subject, "payload": item.payload,
                      "prev_hash": prev_hash, "hash": digest})
         prev_hash = digest
-    session.execute(insert(AuditEvent), rows)
-    session.execute(update(AuditHead).where(AuditHead.id == HEAD_ROW_ID)
-                    .values(seq=seq, hash=prev_hash))
+    move_head = (update(AuditHead).where(AuditHead.id == HEAD_ROW_ID)
+                 .values(seq=seq, hash=prev_hash)
+                 .execution_options(synchronize_session=False))
+    if session.get_bind().dialect.name == "postgresql":
+        # One round trip: the insert rides along as a data-modifying WITH clause.
+        session.execute(move_head.add_cte(insert(AuditEvent).values(rows).cte("appended")))
+    else:
+        session.execute(insert(AuditEvent), rows)
+        session.execute(move_head)
     return len(rows)
 
 

@@ -18,8 +18,8 @@ import math
 import uuid
 from typing import Any
 
-from sqlalchemy import func, select
-from sqlalchemy.orm import Session
+from sqlalchemy import and_, case, func, or_, select, update
+from sqlalchemy.orm import Session, aliased
 
 from service import audit
 from service.errors import NotFound, ValidationFailed
@@ -95,16 +95,30 @@ def _mark_finished(session: Session, batch: Batch) -> None:
 
 
 def finish_batch_if_done(session: Session, batch_id: str) -> None:
-    """Called in the transaction that finishes a batch run: close the batch when all are done."""
-    batch = session.execute(select(Batch).where(Batch.id == batch_id).with_for_update()
-                            ).scalar_one()
-    if batch.status == "finished":
-        return
-    status = _derived_status(_counts(session, batch_id))
+    """Called in the transaction that finishes a batch run: close the batch when all are done.
+
+    The batch row is locked first, so the runs of one batch that finish at the same moment take
+    turns; the unfinished runs are counted by a *second* statement, after the lock is held.
+    (On PostgreSQL one statement that both waits for the lock and counts would count from the
+    snapshot taken before its wait, miss the run that finished meanwhile, and so no run would
+    close the batch.)
+    """
+    status = session.execute(
+        select(Batch.status).where(Batch.id == batch_id).with_for_update()
+    ).scalar_one()
     if status == "finished":
+        return
+    left = session.execute(
+        select(func.count()).select_from(Run)
+        .where(Run.batch_id == batch_id, Run.status.in_(("queued", "running")))
+    ).scalar_one()
+    if left == 0:
+        batch = session.get(Batch, batch_id)
+        assert batch is not None
         _mark_finished(session, batch)
-    else:
-        batch.status = status
+    elif status != "running":
+        session.execute(update(Batch).where(Batch.id == batch_id).values(status="running")
+                        .execution_options(synchronize_session=False))
 
 
 def _scalar_quantities(record: dict[str, Any] | None) -> dict[str, float | None]:
@@ -152,38 +166,50 @@ def compare_quantities(baseline: dict[str, Any] | None, now: dict[str, Any] | No
     return moved
 
 
-def _baseline_run(session: Session, run: Run) -> Run | None:
-    earlier = (select(Run).where(Run.case_id == run.case_id, Run.status == "succeeded",
-                                 Run.created_at < run.created_at)
-               .where((Run.batch_id.is_(None)) | (Run.batch_id != run.batch_id))
-               .order_by(Run.created_at.desc(), Run.id.desc()))
-    approved = session.execute(
-        earlier.join(Signoff, Signoff.run_id == Run.id).where(Signoff.decision == "approved")
-        .limit(1)
-    ).scalar_one_or_none()
-    if approved is not None:
-        return approved
-    return session.execute(earlier.limit(1)).scalar_one_or_none()
+def _runs_with_baselines(session: Session, batch_id: str) -> list[Any]:
+    """Every succeeded run of the batch with its baseline (see module notes), in one query.
+
+    Rows of (run_id, case_id, record, case document, baseline_run_id, baseline record),
+    oldest run first; runs with no baseline are left out. The baseline of a run is, among the
+    case's succeeded runs created before it and outside the batch, the newest approved one,
+    else the newest one: the rank below orders approved runs first, then newest first.
+    """
+    now = aliased(Run, name="now_run")
+    earlier = aliased(Run, name="earlier_run")
+    approved = case((Signoff.id.is_not(None), 1), else_=0)
+    ranked = (
+        select(now.id.label("run_id"), earlier.id.label("baseline_id"),
+               func.row_number().over(partition_by=now.id,
+                                      order_by=(approved.desc(), earlier.created_at.desc(),
+                                                earlier.id.desc())).label("rank"))
+        .join(earlier, and_(earlier.case_id == now.case_id, earlier.status == "succeeded",
+                            earlier.created_at < now.created_at,
+                            or_(earlier.batch_id.is_(None), earlier.batch_id != now.batch_id)))
+        .outerjoin(Signoff, and_(Signoff.run_id == earlier.id, Signoff.decision == "approved"))
+        .where(now.batch_id == batch_id, now.status == "succeeded")
+        .subquery()
+    )
+    baseline = aliased(Run, name="baseline_run")
+    return list(session.execute(
+        select(now.id, now.case_id, now.record, Case.document, baseline.id, baseline.record)
+        .join(ranked, and_(ranked.c.run_id == now.id, ranked.c.rank == 1))
+        .join(baseline, baseline.id == ranked.c.baseline_id)
+        .join(Case, Case.id == now.case_id)
+        .order_by(now.created_at, now.id)
+    ).all())
 
 
 def compute_drift(session: Session, batch_id: str) -> list[dict[str, Any]]:
     """Drift of every succeeded run of the batch against its baseline (see module notes)."""
     drifted = []
-    runs = session.execute(select(Run).where(Run.batch_id == batch_id,
-                                             Run.status == "succeeded")
-                           .order_by(Run.created_at, Run.id)).scalars().all()
-    for run in runs:
-        baseline = _baseline_run(session, run)
-        if baseline is None:
-            continue
-        case = session.get(Case, run.case_id)
-        assert case is not None
-        moved = compare_quantities(baseline.record, run.record, _tolerance(case.document))
+    for run_id, case_id, record, document, baseline_id, baseline_record in \
+            _runs_with_baselines(session, batch_id):
+        moved = compare_quantities(baseline_record, record, _tolerance(document))
         if moved:
-            drifted.append({"case_id": run.case_id, "run_id": run.id,
-                            "baseline_run_id": baseline.id, "quantities": moved,
-                            "baseline_versions": _versions(baseline.record),
-                            "now_versions": _versions(run.record)})
+            drifted.append({"case_id": case_id, "run_id": run_id,
+                            "baseline_run_id": baseline_id, "quantities": moved,
+                            "baseline_versions": _versions(baseline_record),
+                            "now_versions": _versions(record)})
     return drifted
 
 

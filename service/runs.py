@@ -14,7 +14,7 @@ import socket
 import uuid
 from typing import Any
 
-from sqlalchemy import insert, select
+from sqlalchemy import insert, select, update
 from sqlalchemy.orm import Session, joinedload
 
 from service import audit
@@ -170,15 +170,6 @@ def _lock_run(session: Session, run_id: str) -> Run | None:
     ).unique().scalar_one_or_none()
 
 
-def _lock_run_with_case(session: Session, run_id: str) -> tuple[Run, dict[str, Any]] | None:
-    """The run (row-locked, sign-offs loaded) and its case document, in one statement."""
-    row = session.execute(
-        select(Run, Case).join(Case, Case.id == Run.case_id)
-        .where(Run.id == run_id).options(joinedload(Run.signoffs)).with_for_update(of=Run)
-    ).unique().one_or_none()
-    return None if row is None else (row[0], row[1].document)
-
-
 def _failure_reason(exc: BaseException) -> str:
     import schemas
 
@@ -211,6 +202,55 @@ def _finish(session: Session, run: Run, *, status: str, record: dict[str, Any] |
         finish_batch_if_done(session, run.batch_id)
 
 
+UNFINISHED_STATES = ("queued", "running")
+
+
+def _claim(session: Session, run_id: str, max_attempts: int) -> tuple[int, str, Any] | None:
+    """Mark a claimable run ``running`` in one statement; return (attempt, case_id, document).
+
+    Claimable: not finished and started fewer than ``max_attempts`` times. The ``UPDATE``
+    locks the row (PostgreSQL) and returns the case document (a subquery), so the claim is
+    one round trip. None when the run is missing, finished or out of attempts (the caller then
+    reads it to tell which). A signed-off run is always finished, so this never touches one.
+    """
+    document = select(Case.document).where(Case.id == Run.case_id).scalar_subquery()
+    row = session.execute(
+        update(Run)
+        .where(Run.id == run_id, Run.status.in_(UNFINISHED_STATES),
+               Run.attempts < max_attempts)
+        .values(status="running", started_at=utc_now(), attempts=Run.attempts + 1)
+        .returning(Run.attempts, Run.case_id, document)
+        .execution_options(synchronize_session=False)
+    ).one_or_none()
+    return None if row is None else (row[0], row[1], row[2])
+
+
+def _store_finish(session: Session, run_id: str, *, status: str, record: dict[str, Any] | None,
+                  error: str | None, actor: str) -> bool:
+    """Store the outcome of an unfinished run in one statement; False when it is finished
+    already (another delivery stored its outcome first) or missing. A signed-off run is
+    always finished, so this never touches one."""
+    row = session.execute(
+        update(Run)
+        .where(Run.id == run_id, Run.status.in_(UNFINISHED_STATES))
+        .values(status=status, record=record, error=error, finished_at=utc_now())
+        .returning(Run.attempts, Run.batch_id)
+        .execution_options(synchronize_session=False)
+    ).one_or_none()
+    if row is None:
+        return False
+    attempts, batch_id = row
+    verdict = (record or {}).get("verdict")
+    audit.append_event(session, actor=actor, kind="run.finished", subject=run_id,
+                       payload={"status": status, "verdict": verdict, "error": error,
+                                "attempts": attempts})
+    if batch_id is not None:
+        from service.batches import finish_batch_if_done
+
+        finish_batch_if_done(session, batch_id)
+    return True
+
+
 def execute_run(run_id: str, store: Store | None = None, *,
                 max_attempts: int = DEFAULT_MAX_ATTEMPTS, actor: str | None = None) -> str:
     """Execute one run: claim it, solve its case with the engine, store the record.
@@ -218,6 +258,10 @@ def execute_run(run_id: str, store: Store | None = None, *,
     Idempotent by ``run_id``: a finished run is left exactly as it is. A run that was started
     ``max_attempts`` times already (its worker lost or killed each time) is ended ``failed``.
     Returns the run's status afterwards ("missing" when there is no such run).
+
+    Two short transactions, each ending with its audit event: the claim (``running``, one more
+    attempt, ``run.started``) before the solve, so that a lost worker's attempt counts; and the
+    outcome (``run.finished``, and the batch closed when this was its last run).
     """
     import schemas
     import worker.engine
@@ -225,25 +269,22 @@ def execute_run(run_id: str, store: Store | None = None, *,
     store = store or default_store()
     actor = actor or f"worker@{socket.gethostname()}"
     with store.transaction() as session:
-        claimed = _lock_run_with_case(session, run_id)
+        claimed = _claim(session, run_id, max_attempts)
         if claimed is None:
-            logger.warning("execute_run: no run %s", run_id)
-            return "missing"
-        run, stored_document = claimed
-        if run.status in FINISHED_STATES:
-            return run.status
-        if run.attempts >= max_attempts:
-            _finish(session, run, status="failed", record=None, actor=actor,
-                    error=f"gave up after {run.attempts} deliveries that did not finish "
+            found = _lock_run(session, run_id)
+            if found is None:
+                logger.warning("execute_run: no run %s", run_id)
+                return "missing"
+            if found.status in FINISHED_STATES:
+                return found.status
+            _finish(session, found, status="failed", record=None, actor=actor,
+                    error=f"gave up after {found.attempts} deliveries that did not finish "
                           "(worker lost, killed or past its hard time limit)")
             return "failed"
-        run.status = "running"
-        run.started_at = utc_now()
-        run.attempts += 1
-        audit.append_event(session, actor=actor, kind="run.started", subject=run.id,
-                           payload={"attempt": run.attempts})
+        attempt, case_id, stored_document = claimed
+        audit.append_event(session, actor=actor, kind="run.started", subject=run_id,
+                           payload={"attempt": attempt})
         document = dict(stored_document)
-        case_id = run.case_id
 
     record: dict[str, Any] | None = None
     error: str | None = None
@@ -267,12 +308,12 @@ def execute_run(run_id: str, store: Store | None = None, *,
         status, error = "failed", _failure_reason(exc)
 
     with store.transaction() as session:
-        run = _lock_run(session, run_id)
-        if run is None or run.status in FINISHED_STATES:
-            # Another delivery finished first; keep what it stored.
-            return "missing" if run is None else run.status
-        _finish(session, run, status=status, record=record, error=error, actor=actor)
-        return status
+        if _store_finish(session, run_id, status=status, record=record, error=error,
+                         actor=actor):
+            return status
+        # Another delivery finished first (or the run is gone); keep what it stored.
+        found = session.execute(select(Run.status).where(Run.id == run_id)).scalar_one_or_none()
+        return "missing" if found is None else found
 
 
 def pending_run_ids(store: Store) -> list[str]:

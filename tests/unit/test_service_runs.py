@@ -113,7 +113,7 @@ def test_transient_store_errors_propagate_for_retry(store, monkeypatch, controll
     def locked(*_args, **_kwargs):
         raise sqlalchemy.exc.OperationalError("UPDATE", {}, Exception("database is locked"))
 
-    monkeypatch.setattr(service.runs, "_lock_run", locked)
+    monkeypatch.setattr(service.runs, "_claim", locked)  # the first store access of a run
     with pytest.raises(sqlalchemy.exc.OperationalError):
         execute_run(run_id, store)
 
