@@ -87,6 +87,12 @@ class _Sampled:
     positions: list[np.ndarray]
     concentration: list[np.ndarray]
     end_flux: list[np.ndarray]
+    lowest: float = float("nan")
+    highest: float = float("nan")
+
+    def __post_init__(self) -> None:
+        self.lowest = float(min(np.min(c) for c in self.concentration))
+        self.highest = float(max(np.max(c) for c in self.concentration))
 
     @classmethod
     def of(cls, solution: SteadySolution, positions: list[np.ndarray]) -> _Sampled:
@@ -107,9 +113,6 @@ class _Sampled:
     def face_flux(self, side: str) -> float:
         return float(self.end_flux[0][0] if side == "inner" else self.end_flux[-1][-1])
 
-    @property
-    def lowest(self) -> float:
-        return float(min(np.min(c) for c in self.concentration))
 
 
 def _concentration_scale(problem: Problem, samples: list[_Sampled]) -> float:
@@ -122,8 +125,7 @@ def _concentration_scale(problem: Problem, samples: list[_Sampled]) -> float:
         elif b.kind == "mass_transfer":
             scale = max(scale, abs(k * b.bulk))
     for sample in samples:
-        for c in sample.concentration:
-            scale = max(scale, float(np.max(np.abs(c))))
+        scale = max(scale, abs(sample.lowest), abs(sample.highest))
     return scale if scale > 0 else 1.0
 
 
@@ -210,7 +212,7 @@ def _add_quantities(outcome: Outcome, problem: Problem, primary: _Sampled) -> No
     for side in ("inner", "outer"):
         q(f"surface_{side}", primary.face_concentration(side), c_unit)
     q("concentration_min", primary.lowest, c_unit)
-    q("concentration_max", float(max(np.max(c) for c in primary.concentration)), c_unit)
+    q("concentration_max", primary.highest, c_unit)
     primary = primary.solution
     if primary.depletion_front is not None:
         q("depletion_front", float(primary.depletion_front), "m")
