@@ -8,9 +8,9 @@ session; when the transaction commits, the session's other changes are flushed f
 every queued event is written in one append, as the last statements before the commit: the
 single chain-head row is locked (``SELECT ... FOR UPDATE`` on PostgreSQL; SQLite transactions
 hold the database write lock from ``BEGIN IMMEDIATE``), the events are inserted and the head
-moved on (one statement on PostgreSQL, two on SQLite), and the commit releases the lock. Concurrent writers therefore
-queue only for those three statements, and the chain stays linear. A rolled-back transaction
-writes none of its queued events.
+moved on (one statement on PostgreSQL, two on SQLite), and the commit releases the lock.
+Concurrent writers therefore queue only for those last statements and the commit, and the
+chain stays linear. A rolled-back transaction writes none of its queued events.
 
 The canonical JSON here is frozen with the chain format (sorted keys, no spaces, UTF-8, no NaN)
 and deliberately independent of the case canonicalisation, so old chains stay verifiable.

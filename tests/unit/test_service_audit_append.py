@@ -81,8 +81,8 @@ def test_an_empty_batch_still_writes_its_started_and_finished_events(store):
     assert audit.verify_chain(store).ok
 
 
-def test_the_audit_append_is_the_last_thing_each_run_transaction_does(store,
-                                                                      controlled_engine):  # noqa: F811
+def test_the_audit_append_is_the_last_thing_each_run_transaction_does(
+        store, controlled_engine):  # noqa: F811
     run_id = create_run(store, actor="eng", document=make_case())["run_id"]
     log = StatementLog(store.engine)
     try:
