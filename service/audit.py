@@ -10,7 +10,8 @@ single chain-head row is locked (``SELECT ... FOR UPDATE`` on PostgreSQL; SQLite
 hold the database write lock from ``BEGIN IMMEDIATE``), the events are inserted and the head
 moved on (one statement on PostgreSQL, two on SQLite), and the commit releases the lock.
 Concurrent writers therefore queue only for those last statements and the commit, and the
-chain stays linear. A rolled-back transaction writes none of its queued events.
+chain stays linear. A rolled-back transaction writes none of its queued events. An event's
+``at`` is the moment it is written, under the lock, so times follow the chain's order.
 
 The canonical JSON here is frozen with the chain format (sorted keys, no spaces, UTF-8, no NaN)
 and deliberately independent of the case canonicalisation, so old chains stay verifiable.
