@@ -103,3 +103,21 @@ def controlled_result(case: dict[str, Any], quantities: dict[str, float],
         "provenance": {"engine_version": "test", "numpy": "x", "scipy": "y"},
         "caution": "test caution",
     }
+
+
+def fresh_app(tmp_path: Path, monkeypatch, **overrides: Any):
+    """Yield the app on a fresh SQLite store under ``tmp_path`` with no ``FLUXPROOF_*`` setting
+    from the environment, runs executed inline; shut down afterwards (a fixture body)."""
+    from service.app import create_app, shutdown_app
+    from service.store import reset_default_store
+
+    for key in list(os.environ):
+        if key.startswith(ENV_PREFIX):
+            monkeypatch.delenv(key)
+    monkeypatch.setenv(f"{ENV_PREFIX}DATA_DIR", str(tmp_path / "data"))
+    reset_default_store()
+    app = create_app({"TESTING": True, "DATA_DIR": str(tmp_path / "data"), "DISPATCH": "inline",
+                      **overrides})
+    yield app
+    shutdown_app(app)
+    reset_default_store()

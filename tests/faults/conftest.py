@@ -7,7 +7,6 @@ otherwise. Each test gets a PostgreSQL schema of its own, dropped afterwards.
 
 from __future__ import annotations
 
-import os
 import shutil
 from collections.abc import Iterator
 from pathlib import Path
@@ -19,10 +18,8 @@ from tests.faults.processes import LocalStack, OwnRedis
 from tests.integration.real_services import (
     PostgresSchema,
     RedisLease,
-    ServiceMissing,
-    postgres_user,
-    require_redis,
 )
+from tests.integration.service_gate import require_real_services, unavailable
 
 ROLE_NAMES = {"engineer": "fenna.fault-engineer", "reviewer": "rune.fault-reviewer",
               "auditor": "alma.fault-auditor", "admin": "aksel.fault-admin"}
@@ -36,22 +33,10 @@ def pytest_collection_modifyitems(config: pytest.Config, items: list[pytest.Item
             item.add_marker(pytest.mark.slow)
 
 
-def unavailable(reason: str) -> None:
-    if os.environ.get("CI"):
-        pytest.fail(f"CI is set and a required service is missing: {reason}", pytrace=False)
-    pytest.skip(f"fault test needs real services: {reason} (set CI=1 to make this a failure)")
-
-
 @pytest.fixture(scope="session")
 def real_services() -> str:
-    try:
-        require_redis()
-        return postgres_user()
-    except ServiceMissing as exc:
-        unavailable(str(exc))
-    except ImportError as exc:
-        unavailable(f"a client library is missing: {exc}")
-    raise AssertionError("unreachable")
+    """Check Redis and PostgreSQL once; return the PostgreSQL user that works."""
+    return require_real_services("fault")
 
 
 @pytest.fixture
@@ -92,7 +77,7 @@ def redis_lease(real_services: str) -> Iterator[RedisLease]:
 @pytest.fixture
 def own_redis(tmp_path: Path) -> Iterator[OwnRedis]:
     if shutil.which("redis-server") is None:
-        unavailable("the redis-server program is not on PATH")
+        unavailable("the redis-server program is not on PATH", "fault")
     server = OwnRedis(tmp_path / "own-redis").start()
     yield server
     server.stop()

@@ -26,10 +26,8 @@ import pytest
 from tests.integration.real_services import (
     PostgresSchema,
     RedisLease,
-    ServiceMissing,
-    postgres_user,
-    require_redis,
 )
+from tests.integration.service_gate import require_real_services
 from tests.integration.worker_processes import WorkerProcess, stop_all
 
 ROLE_NAMES = {"engineer": "ivo.integration-engineer", "reviewer": "rhea.integration-reviewer",
@@ -43,24 +41,10 @@ def pytest_collection_modifyitems(config: pytest.Config, items: list[pytest.Item
             item.add_marker(pytest.mark.integration)
 
 
-def _unavailable(reason: str) -> None:
-    if os.environ.get("CI"):
-        pytest.fail(f"CI is set and a required service is missing: {reason}", pytrace=False)
-    pytest.skip(f"integration test needs real services: {reason} (set CI=1 to make this a "
-                "failure)")
-
-
 @pytest.fixture(scope="session")
 def real_services() -> str:
     """Check Redis and PostgreSQL once; return the PostgreSQL user that works."""
-    try:
-        require_redis()
-        return postgres_user()
-    except ServiceMissing as exc:
-        _unavailable(str(exc))
-    except ImportError as exc:  # the service extra is not installed
-        _unavailable(f"a client library is missing: {exc}")
-    raise AssertionError("unreachable")
+    return require_real_services("integration")
 
 
 @pytest.fixture(scope="session")

@@ -3,11 +3,9 @@ and one stored case, run (signed off) and batch, so that ids in paths are real."
 
 from __future__ import annotations
 
-import os
-
 import pytest
 
-from tests.api.support import BASE_CASE
+from tests.api.support import BASE_CASE, fresh_app
 
 ROLE_NAMES = {"engineer": "sela.sec-engineer", "reviewer": "remi.sec-reviewer",
               "auditor": "aya.sec-auditor", "admin": "arvo.sec-admin"}
@@ -15,19 +13,7 @@ ROLE_NAMES = {"engineer": "sela.sec-engineer", "reviewer": "remi.sec-reviewer",
 
 @pytest.fixture
 def sec_app(tmp_path, monkeypatch):
-    from service.app import create_app, shutdown_app
-    from service.store import reset_default_store
-
-    for key in list(os.environ):
-        if key.startswith("FLUXPROOF_"):
-            monkeypatch.delenv(key)
-    monkeypatch.setenv("FLUXPROOF_DATA_DIR", str(tmp_path / "data"))
-    reset_default_store()
-    app = create_app({"TESTING": True, "DATA_DIR": str(tmp_path / "data"),
-                      "DISPATCH": "inline", "SECRET_KEY": "security-test-secret-0123456789"})
-    yield app
-    shutdown_app(app)
-    reset_default_store()
+    yield from fresh_app(tmp_path, monkeypatch, SECRET_KEY="security-test-secret-0123456789")
 
 
 @pytest.fixture
