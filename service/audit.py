@@ -8,7 +8,7 @@ session; when the transaction commits, the session's other changes are flushed f
 every queued event is written in one append, as the last statements before the commit: the
 single chain-head row is locked (``SELECT ... FOR UPDATE`` on PostgreSQL; SQLite transactions
 hold the database write lock from ``BEGIN IMMEDIATE``), the events are inserted and the head
-moved on (one statement on PostgreSQL, two on SQLite), and the commit releases the lock.
+moved on (one fixed statement on PostgreSQL, two on SQLite), and the commit releases the lock.
 Concurrent writers therefore queue only for those last statements and the commit, and the
 chain stays linear. A rolled-back transaction writes none of its queued events. An event's
 ``at`` is the moment it is written, under the lock, so times follow the chain's order.
@@ -24,7 +24,7 @@ import json
 from dataclasses import dataclass
 from typing import Any
 
-from sqlalchemy import event, func, insert, select, update
+from sqlalchemy import bindparam, event, func, insert, select, text, update
 from sqlalchemy.orm import Session
 
 from service.store import Store
@@ -91,6 +91,26 @@ def append_event(session: Session, *, actor: str, kind: str, subject: str,
     return pending
 
 
+#: Statements of the append, built once: a statement object rebuilt (and so compiled again) on
+#: every append cost more CPU than the rest of a run's bookkeeping together.
+_LOCK_HEAD = (select(AuditHead.seq, AuditHead.hash).where(AuditHead.id == HEAD_ROW_ID)
+              .with_for_update())
+_INSERT_EVENTS = insert(AuditEvent.__table__)
+_MOVE_HEAD = (update(AuditHead.__table__).where(AuditHead.__table__.c.id == HEAD_ROW_ID)
+              .values(seq=bindparam("head_seq"), hash=bindparam("head_hash")))
+#: PostgreSQL: the events and the head move in one round trip and one fixed statement, whatever
+#: the number of events (the rows travel as arrays; the table names follow the search path).
+_APPEND_POSTGRESQL = text(
+    "WITH appended AS (INSERT INTO audit_events "
+    "(seq, at, actor, kind, subject, payload, prev_hash, hash) "
+    "SELECT * FROM unnest(CAST(:seqs AS integer[]), CAST(:ats AS varchar[]), "
+    "CAST(:actors AS varchar[]), CAST(:kinds AS varchar[]), CAST(:subjects AS varchar[]), "
+    "CAST(CAST(:payloads AS text[]) AS json[]), CAST(:prev_hashes AS varchar[]), "
+    "CAST(:hashes AS varchar[]))) "
+    "UPDATE audit_head SET seq = :head_seq, hash = :head_hash WHERE id = :head_id"
+)
+
+
 def write_pending_events(session: Session) -> int:
     """Write every event queued on ``session`` in one append; return how many were written.
 
@@ -100,10 +120,7 @@ def write_pending_events(session: Session) -> int:
     pending: list[PendingEvent] = session.info.pop(PENDING_KEY, [])
     if not pending:
         return 0
-    seq, prev_hash = session.execute(
-        select(AuditHead.seq, AuditHead.hash).where(AuditHead.id == HEAD_ROW_ID)
-        .with_for_update()
-    ).one()
+    seq, prev_hash = session.execute(_LOCK_HEAD).one()
     rows = []
     for item in pending:
         seq += 1
@@ -114,15 +131,17 @@ def write_pending_events(session: Session) -> int:
                      "subject": item.subject, "payload": item.payload,
                      "prev_hash": prev_hash, "hash": digest})
         prev_hash = digest
-    move_head = (update(AuditHead).where(AuditHead.id == HEAD_ROW_ID)
-                 .values(seq=seq, hash=prev_hash)
-                 .execution_options(synchronize_session=False))
     if session.get_bind().dialect.name == "postgresql":
-        # One round trip: the insert rides along as a data-modifying WITH clause.
-        session.execute(move_head.add_cte(insert(AuditEvent).values(rows).cte("appended")))
+        session.execute(_APPEND_POSTGRESQL, {
+            "seqs": [r["seq"] for r in rows], "ats": [r["at"] for r in rows],
+            "actors": [r["actor"] for r in rows], "kinds": [r["kind"] for r in rows],
+            "subjects": [r["subject"] for r in rows],
+            "payloads": [chain_json(r["payload"]) for r in rows],
+            "prev_hashes": [r["prev_hash"] for r in rows], "hashes": [r["hash"] for r in rows],
+            "head_seq": seq, "head_hash": prev_hash, "head_id": HEAD_ROW_ID})
     else:
-        session.execute(insert(AuditEvent), rows)
-        session.execute(move_head)
+        session.execute(_INSERT_EVENTS, rows)
+        session.execute(_MOVE_HEAD, {"head_seq": seq, "head_hash": prev_hash})
     return len(rows)
 
 

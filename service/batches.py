@@ -1,10 +1,11 @@
 """Batches: re-verify stored cases (all, or those with a tag) and report drift.
 
 A batch makes one new run per selected case, linked to the batch. Its status is derived from
-its runs (queued: none started; running: some not finished; finished: all finished). When the
-last run finishes, drift is computed once and stored with the batch: for every case, the batch
-run's scalar quantities are compared with the baseline, the case's last *approved* record from
-before the batch (or its last succeeded record, where none is approved).
+its runs (queued: none started; running: some not finished; finished: all finished); the stored
+row says only ``queued`` or ``finished``. When the last run finishes, the batch is closed (see
+:func:`close_batch_if_done`): drift is computed once and stored with the batch. For every case,
+the batch run's scalar quantities are compared with the baseline, the case's last *approved*
+record from before the batch (or its last succeeded record, where none is approved).
 
 A quantity has drifted when ``|now - baseline| / |baseline|`` exceeds the case's
 ``tolerances.cross_check`` (default :data:`DEFAULT_DRIFT_TOLERANCE`); with a baseline of 0 any
@@ -18,15 +19,23 @@ import math
 import uuid
 from typing import Any
 
-from sqlalchemy import and_, case, func, or_, select, update
+from sqlalchemy import and_, bindparam, case, exists, func, or_, select
 from sqlalchemy.orm import Session, aliased
 
 from service import audit
 from service.errors import NotFound, ValidationFailed
 from service.runs import queue_runs_in
 from service.store import Store
-from service.store.models import FINISHED_STATES, RUN_STATES, Batch, Case, CaseTag, Run, \
-    Signoff, utc_now
+from service.store.models import (
+    FINISHED_STATES,
+    RUN_STATES,
+    Batch,
+    Case,
+    CaseTag,
+    Run,
+    Signoff,
+    utc_now,
+)
 
 #: Relative tolerance of drift when a case gives no ``tolerances.cross_check``.
 DEFAULT_DRIFT_TOLERANCE = 1e-6
@@ -94,31 +103,45 @@ def _mark_finished(session: Session, batch: Batch) -> None:
                        payload={"counts": counts, "drifted": len(batch.drift)})
 
 
-def finish_batch_if_done(session: Session, batch_id: str) -> None:
-    """Called in the transaction that finishes a batch run: close the batch when all are done.
+_RUNS = Run.__table__
+#: Is any run of the batch still unfinished? (Answered from the (batch_id, status) index.)
+_ANY_UNFINISHED = select(exists().where(_RUNS.c.batch_id == bindparam("batch_id"),
+                                        _RUNS.c.status.in_(("queued", "running"))))
+_BATCHES = Batch.__table__
+_LOCK_BATCH = (select(_BATCHES.c.status).where(_BATCHES.c.id == bindparam("batch_id"))
+               .with_for_update())
 
-    The batch row is locked first, so the runs of one batch that finish at the same moment take
-    turns; the unfinished runs are counted by a *second* statement, after the lock is held.
-    (On PostgreSQL one statement that both waits for the lock and counts would count from the
-    snapshot taken before its wait, miss the run that finished meanwhile, and so no run would
-    close the batch.)
+
+def close_batch_if_done(store: Store, batch_id: str) -> bool:
+    """Close the batch when none of its runs is left unfinished; True when this call closed it.
+
+    Called *after* the transaction that stored a batch run's outcome has committed, never
+    inside it, so runs of one batch finishing at the same moment do not queue for the batch
+    row. The last run to commit is sure to close the batch: its question comes after every
+    other run's commit, so it sees them all finished. Two callers that both see that are made
+    to take turns by the batch-row lock, and the second finds the batch finished and does
+    nothing. Should a worker die between its commit and this call, :func:`get_batch` and the
+    upkeep sweep (:func:`close_finished_batches`) close the batch instead.
     """
-    status = session.execute(
-        select(Batch.status).where(Batch.id == batch_id).with_for_update()
-    ).scalar_one()
-    if status == "finished":
-        return
-    left = session.execute(
-        select(func.count()).select_from(Run)
-        .where(Run.batch_id == batch_id, Run.status.in_(("queued", "running")))
-    ).scalar_one()
-    if left == 0:
+    if store.read_scalar(_ANY_UNFINISHED, {"batch_id": batch_id}):
+        return False
+    with store.transaction() as session:
+        status = session.execute(_LOCK_BATCH, {"batch_id": batch_id}).scalar_one_or_none()
+        if status is None or status == "finished":
+            return False
         batch = session.get(Batch, batch_id)
         assert batch is not None
         _mark_finished(session, batch)
-    elif status != "running":
-        session.execute(update(Batch).where(Batch.id == batch_id).values(status="running")
-                        .execution_options(synchronize_session=False))
+        return True
+
+
+def close_finished_batches(store: Store) -> list[str]:
+    """Close every batch that is still open although all its runs are finished (upkeep)."""
+    with store.transaction() as session:
+        open_ids = list(session.execute(
+            select(Batch.id).where(Batch.status != "finished").order_by(Batch.created_at)
+        ).scalars())
+    return [batch_id for batch_id in open_ids if close_batch_if_done(store, batch_id)]
 
 
 def _scalar_quantities(record: dict[str, Any] | None) -> dict[str, float | None]:
@@ -218,6 +241,13 @@ def get_batch(store: Store, batch_id: str) -> dict[str, Any]:
         batch = session.get(Batch, batch_id)
         if batch is None:
             raise NotFound(f"There is no batch with id {batch_id!r}.")
+        counts = _counts(session, batch_id)
+        due = batch.status != "finished" and _derived_status(counts) == "finished"
+    if due:  # its last worker died between its commit and closing the batch
+        close_batch_if_done(store, batch_id)
+    with store.transaction() as session:
+        batch = session.get(Batch, batch_id)
+        assert batch is not None
         counts = _counts(session, batch_id)
         status = "finished" if batch.status == "finished" else _derived_status(counts)
         if sum(counts.values()) == 0:

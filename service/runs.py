@@ -8,13 +8,14 @@ Transient store errors propagate, so that the Celery task can retry them.
 
 from __future__ import annotations
 
+import json
 import logging
 import math
 import socket
 import uuid
 from typing import Any
 
-from sqlalchemy import insert, select, update
+from sqlalchemy import bindparam, insert, select, update
 from sqlalchemy.orm import Session, joinedload
 
 from service import audit
@@ -161,6 +162,19 @@ def non_finite_paths(value: Any, path: str = "") -> list[str]:
     return []
 
 
+def _non_finite_paths_of_record(record: dict[str, Any]) -> list[str]:
+    """:func:`non_finite_paths` of a record, asked of the C JSON encoder first (a record holds
+    hundreds of numbers; walking them in Python was a tenth of a run's bookkeeping)."""
+    try:
+        json.dumps(record, allow_nan=False)
+    except ValueError:
+        bad = non_finite_paths(record)
+        if bad:
+            return bad
+        raise
+    return []
+
+
 def _lock_run(session: Session, run_id: str) -> Run | None:
     """The run, row-locked, with its sign-offs loaded in the same statement (the seal checks
     read them; a separate lazy load would be one more round trip)."""
@@ -195,14 +209,30 @@ def _finish(session: Session, run: Run, *, status: str, record: dict[str, Any] |
     audit.append_event(session, actor=actor, kind="run.finished", subject=run.id,
                        payload={"status": status, "verdict": verdict, "error": error,
                                 "attempts": run.attempts})
-    if run.batch_id is not None:
-        from service.batches import finish_batch_if_done
-
-        session.flush()
-        finish_batch_if_done(session, run.batch_id)
 
 
 UNFINISHED_STATES = ("queued", "running")
+
+
+_RUNS = Run.__table__
+_CASES = Case.__table__
+#: The claim and the outcome as statements built once (see :func:`_claim`, :func:`_store_finish`).
+_CLAIM = (
+    update(_RUNS)
+    .where(_RUNS.c.id == bindparam("run_id"), _RUNS.c.status.in_(UNFINISHED_STATES),
+           _RUNS.c.attempts < bindparam("max_attempts"))
+    .values(status="running", started_at=bindparam("now"), attempts=_RUNS.c.attempts + 1)
+    .returning(_RUNS.c.attempts, _RUNS.c.case_id,
+               select(_CASES.c.document).where(_CASES.c.id == _RUNS.c.case_id)
+               .scalar_subquery())
+)
+_STORE_OUTCOME = (
+    update(_RUNS)
+    .where(_RUNS.c.id == bindparam("run_id"), _RUNS.c.status.in_(UNFINISHED_STATES))
+    .values(status=bindparam("status"), record=bindparam("record"), error=bindparam("error"),
+            finished_at=bindparam("now"))
+    .returning(_RUNS.c.attempts, _RUNS.c.batch_id)
+)
 
 
 def _claim(session: Session, run_id: str, max_attempts: int) -> tuple[int, str, Any] | None:
@@ -213,42 +243,28 @@ def _claim(session: Session, run_id: str, max_attempts: int) -> tuple[int, str, 
     one round trip. None when the run is missing, finished or out of attempts (the caller then
     reads it to tell which). A signed-off run is always finished, so this never touches one.
     """
-    document = select(Case.document).where(Case.id == Run.case_id).scalar_subquery()
-    row = session.execute(
-        update(Run)
-        .where(Run.id == run_id, Run.status.in_(UNFINISHED_STATES),
-               Run.attempts < max_attempts)
-        .values(status="running", started_at=utc_now(), attempts=Run.attempts + 1)
-        .returning(Run.attempts, Run.case_id, document)
-        .execution_options(synchronize_session=False)
-    ).one_or_none()
+    row = session.execute(_CLAIM, {"run_id": run_id, "max_attempts": max_attempts,
+                                   "now": utc_now()}).one_or_none()
     return None if row is None else (row[0], row[1], row[2])
 
 
 def _store_finish(session: Session, run_id: str, *, status: str, record: dict[str, Any] | None,
-                  error: str | None, actor: str) -> bool:
-    """Store the outcome of an unfinished run in one statement; False when it is finished
-    already (another delivery stored its outcome first) or missing. A signed-off run is
-    always finished, so this never touches one."""
-    row = session.execute(
-        update(Run)
-        .where(Run.id == run_id, Run.status.in_(UNFINISHED_STATES))
-        .values(status=status, record=record, error=error, finished_at=utc_now())
-        .returning(Run.attempts, Run.batch_id)
-        .execution_options(synchronize_session=False)
-    ).one_or_none()
+                  error: str | None, actor: str) -> tuple[bool, str | None]:
+    """Store the outcome of an unfinished run in one statement; return (stored, batch_id).
+
+    ``stored`` is False when the run is finished already (another delivery stored its outcome
+    first) or missing. A signed-off run is always finished, so this never touches one.
+    """
+    row = session.execute(_STORE_OUTCOME, {"run_id": run_id, "status": status, "record": record,
+                                           "error": error, "now": utc_now()}).one_or_none()
     if row is None:
-        return False
+        return False, None
     attempts, batch_id = row
     verdict = (record or {}).get("verdict")
     audit.append_event(session, actor=actor, kind="run.finished", subject=run_id,
                        payload={"status": status, "verdict": verdict, "error": error,
                                 "attempts": attempts})
-    if batch_id is not None:
-        from service.batches import finish_batch_if_done
-
-        finish_batch_if_done(session, batch_id)
-    return True
+    return True, batch_id
 
 
 def execute_run(run_id: str, store: Store | None = None, *,
@@ -261,9 +277,9 @@ def execute_run(run_id: str, store: Store | None = None, *,
 
     Two short transactions, each ending with its audit event: the claim (``running``, one more
     attempt, ``run.started``) before the solve, so that a lost worker's attempt counts; and the
-    outcome (``run.finished``, and the batch closed when this was its last run).
+    outcome (``run.finished``). Then, for a batch run, a third that closes the batch when this
+    was its last unfinished run.
     """
-    import schemas
     import worker.engine
 
     store = store or default_store()
@@ -280,16 +296,21 @@ def execute_run(run_id: str, store: Store | None = None, *,
             _finish(session, found, status="failed", record=None, actor=actor,
                     error=f"gave up after {found.attempts} deliveries that did not finish "
                           "(worker lost, killed or past its hard time limit)")
-            return "failed"
-        attempt, case_id, stored_document = claimed
-        audit.append_event(session, actor=actor, kind="run.started", subject=run_id,
-                           payload={"attempt": attempt})
-        document = dict(stored_document)
+            gave_up_batch = found.batch_id
+        else:
+            gave_up_batch = None
+            attempt, case_id, stored_document = claimed
+            audit.append_event(session, actor=actor, kind="run.started", subject=run_id,
+                               payload={"attempt": attempt})
+            document = dict(stored_document)
+    if claimed is None:
+        _close_batch_after_commit(store, gave_up_batch)
+        return "failed"
 
     record: dict[str, Any] | None = None
     error: str | None = None
     try:
-        schemas.validate_case(document)
+        # check_case validates the stored case again (CaseError when it no longer passes).
         result = worker.engine.check_case(document)
         record = dict(result)
         record["run_id"] = run_id
@@ -298,7 +319,7 @@ def execute_run(run_id: str, store: Store | None = None, *,
         if status == "failed":
             error = str(record.get("error") or "the engine reported failure without a reason")
         record["status"] = status
-        bad = non_finite_paths(record)
+        bad = _non_finite_paths_of_record(record)
         if bad:
             record, status = None, "failed"
             error = ("the engine returned non-finite numbers (NaN or infinity), which a check "
@@ -308,12 +329,29 @@ def execute_run(run_id: str, store: Store | None = None, *,
         status, error = "failed", _failure_reason(exc)
 
     with store.transaction() as session:
-        if _store_finish(session, run_id, status=status, record=record, error=error,
-                         actor=actor):
-            return status
-        # Another delivery finished first (or the run is gone); keep what it stored.
-        found = session.execute(select(Run.status).where(Run.id == run_id)).scalar_one_or_none()
-        return "missing" if found is None else found
+        stored, batch_id = _store_finish(session, run_id, status=status, record=record,
+                                         error=error, actor=actor)
+        if not stored:
+            # Another delivery finished first (or the run is gone); keep what it stored.
+            found = session.execute(select(Run.status).where(Run.id == run_id)
+                                    ).scalar_one_or_none()
+            return "missing" if found is None else found
+    _close_batch_after_commit(store, batch_id)
+    return status
+
+
+def _close_batch_after_commit(store: Store, batch_id: str | None) -> None:
+    """Close the run's batch if this was its last unfinished run (after the outcome's commit,
+    see :func:`service.batches.close_batch_if_done`). A failure here loses nothing: the
+    outcome is stored, and the batch is closed by the next reader or the upkeep sweep."""
+    if batch_id is None:
+        return
+    from service.batches import close_batch_if_done
+
+    try:
+        close_batch_if_done(store, batch_id)
+    except Exception:  # noqa: BLE001 - see the docstring
+        logger.exception("run's batch %s could not be closed now; it is closed later", batch_id)
 
 
 def pending_run_ids(store: Store) -> list[str]:

@@ -60,12 +60,18 @@ def reverify_all() -> str:
 @shared_task(name="fluxproof.recover_lost_runs", ignore_result=True)
 def recover_lost_runs() -> dict:
     """Every few seconds (beat): send again the runs whose messages were lost
-    (:func:`service.recovery.recover_lost_runs`); returns what the sweep saw and did."""
+    (:func:`service.recovery.recover_lost_runs`) and close any batch whose runs are all
+    finished but whose last worker died before closing it
+    (:func:`service.batches.close_finished_batches`); returns what the sweep saw and did."""
     from celery import current_app
 
+    from service.batches import close_finished_batches
     from service.recovery import recover_lost_runs as recover
     from service.recovery import recovery_settings
     from service.store import default_store
 
     _interval, after = recovery_settings(_SETTINGS)
-    return recover(default_store(), current_app, older_than_s=after).to_dict()
+    store = default_store()
+    report = recover(store, current_app, older_than_s=after).to_dict()
+    report["batches_closed"] = len(close_finished_batches(store))
+    return report

@@ -14,6 +14,7 @@ from sqlalchemy import (
     Boolean,
     DateTime,
     ForeignKey,
+    Index,
     Integer,
     String,
     Text,
@@ -90,6 +91,8 @@ class Batch(Base):
 
 class Run(Base):
     __tablename__ = "runs"
+    # Serves lookups by batch and the "any run of this batch unfinished?" question.
+    __table_args__ = (Index("ix_runs_batch_id_status", "batch_id", "status"),)
 
     id: Mapped[str] = mapped_column(String(36), primary_key=True)
     case_id: Mapped[str] = mapped_column(ForeignKey("cases.id"), index=True)
@@ -97,9 +100,7 @@ class Run(Base):
     record: Mapped[dict[str, Any] | None] = mapped_column(JSON, nullable=True)
     error: Mapped[str | None] = mapped_column(Text, nullable=True)
     submitted_by: Mapped[str] = mapped_column(String(200))
-    batch_id: Mapped[str | None] = mapped_column(
-        ForeignKey("batches.id"), nullable=True, index=True
-    )
+    batch_id: Mapped[str | None] = mapped_column(ForeignKey("batches.id"), nullable=True)
     created_at: Mapped[datetime] = mapped_column(UtcDateTime())
     started_at: Mapped[datetime | None] = mapped_column(UtcDateTime(), nullable=True)
     finished_at: Mapped[datetime | None] = mapped_column(UtcDateTime(), nullable=True)

@@ -77,6 +77,18 @@ class Store:
         with self._sessions.begin() as session:
             yield session
 
+    def read_scalar(self, statement: Any, params: dict[str, Any] | None = None) -> Any:
+        """The scalar result of one read-only statement, asked outside any transaction.
+
+        PostgreSQL: on an autocommit connection, one round trip (no ``BEGIN``/``COMMIT``).
+        SQLite: in a short transaction of its own (its connections always begin one).
+        """
+        if self.dialect == "postgresql":
+            with self.engine.connect().execution_options(isolation_level="AUTOCOMMIT") as conn:
+                return conn.execute(statement, params or {}).scalar()
+        with self.engine.begin() as connection:
+            return connection.execute(statement, params or {}).scalar()
+
     def ping(self) -> None:
         """Raise if the database cannot be reached."""
         with self.engine.connect() as connection:

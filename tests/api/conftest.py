@@ -123,6 +123,9 @@ def controlled_engine(monkeypatch: pytest.MonkeyPatch):
         calls = 0
 
         def __call__(self, case: dict) -> dict:
+            import schemas
+
+            schemas.validate_case(case)  # as the real check_case does first (CaseError)
             self.calls += 1
             return controlled_result(case, dict(self.quantities), status=self.status,
                                      verdict="pass" if self.status == "succeeded" else "fail")

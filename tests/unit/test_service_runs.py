@@ -165,3 +165,67 @@ def test_non_finite_engine_output_is_a_failed_run_not_a_broken_row(store, contro
     status, record, _, _, error = _run(store, run_id)
     assert record is None
     assert "quantities.flux_outer.value" in error and "quantities.flux_inner.value" in error
+
+
+def _batch_of_two(store):
+    from service.batches import start_batch
+
+    for n in range(2):
+        create_run(store, actor="eng", document=make_case(title=f"batch member {n}",
+                                                          tags=["closing"]))
+    return start_batch(store, actor="eng", tag="closing")
+
+
+def _batch_events(store, batch_id):
+    with store.transaction() as session:
+        return session.execute(select(AuditEvent.kind).where(AuditEvent.subject == batch_id)
+                               .order_by(AuditEvent.seq)).scalars().all()
+
+
+def test_the_last_run_of_a_batch_closes_it_once(store, controlled_engine):  # noqa: F811
+    from service.store.models import Batch
+
+    batch = _batch_of_two(store)
+    first, last = batch["run_ids"]
+    execute_run(first, store)
+    with store.transaction() as session:
+        assert session.get(Batch, batch["batch_id"]).status == "queued"
+    execute_run(last, store)
+    execute_run(last, store)  # a second delivery closes nothing again
+    with store.transaction() as session:
+        closed = session.get(Batch, batch["batch_id"])
+        assert closed.status == "finished" and closed.drift == []
+    assert _batch_events(store, batch["batch_id"]) == ["batch.started", "batch.finished"]
+
+
+def test_a_batch_left_open_by_a_dead_worker_is_closed_by_its_reader(store, controlled_engine,  # noqa: F811
+                                                                    monkeypatch):
+    import service.batches
+    from service.batches import get_batch
+
+    batch = _batch_of_two(store)
+    with monkeypatch.context() as patch:  # the worker dies between its commit and the close
+        patch.setattr(service.batches, "close_batch_if_done",
+                      lambda *_args: (_ for _ in ()).throw(ConnectionError("worker lost")))
+        for run_id in batch["run_ids"]:
+            assert execute_run(run_id, store) == "succeeded"
+    assert _batch_events(store, batch["batch_id"]) == ["batch.started"]
+    state = get_batch(store, batch["batch_id"])
+    assert state["status"] == "finished" and state["finished_at"] is not None
+    assert _batch_events(store, batch["batch_id"]) == ["batch.started", "batch.finished"]
+
+
+def test_the_upkeep_sweep_closes_stranded_batches_only(store, controlled_engine,  # noqa: F811
+                                                      monkeypatch):
+    import service.batches
+    from service.batches import close_finished_batches, start_batch
+
+    stranded = _batch_of_two(store)
+    with monkeypatch.context() as patch:
+        patch.setattr(service.batches, "close_batch_if_done", lambda *_args: False)
+        for run_id in stranded["run_ids"]:
+            execute_run(run_id, store)
+    unfinished = start_batch(store, actor="eng", tag="closing")  # its runs not executed
+    assert close_finished_batches(store) == [stranded["batch_id"]]
+    assert close_finished_batches(store) == []
+    assert _batch_events(store, unfinished["batch_id"]) == ["batch.started"]
