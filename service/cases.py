@@ -7,9 +7,10 @@ sent (canonical JSON), and storing the same content again returns the stored cas
 from __future__ import annotations
 
 import uuid
+from dataclasses import dataclass
 from typing import Any
 
-from sqlalchemy import func, select
+from sqlalchemy import bindparam, func, insert, select
 from sqlalchemy.exc import IntegrityError
 from sqlalchemy.orm import Session
 
@@ -43,11 +44,28 @@ def case_to_dict(case: Case, *, with_document: bool = True) -> dict[str, Any]:
     return result
 
 
-def _find_by_sha(session: Session, sha256: str) -> Case | None:
-    return session.execute(select(Case).where(Case.sha256 == sha256)).scalar_one_or_none()
+@dataclass(frozen=True)
+class StoredCase:
+    """The address of a stored case: its id and the SHA-256 of its canonical JSON."""
+
+    id: str
+    sha256: str
 
 
-def store_case_in(session: Session, document: dict[str, Any], actor: str) -> tuple[Case, bool]:
+_CASES = Case.__table__
+#: Statements of storing a case, built once (they run on every POST /v1/runs).
+_CASE_BY_SHA = select(_CASES.c.id, _CASES.c.sha256).where(_CASES.c.sha256 == bindparam("sha256"))
+_INSERT_CASE = insert(_CASES)
+_INSERT_TAGS = insert(CaseTag.__table__)
+
+
+def _find_by_sha(session: Session, sha256: str) -> StoredCase | None:
+    row = session.execute(_CASE_BY_SHA, {"sha256": sha256}).first()
+    return None if row is None else StoredCase(id=row.id, sha256=row.sha256)
+
+
+def store_case_in(session: Session, document: dict[str, Any], actor: str
+                  ) -> tuple[StoredCase, bool]:
     """Store a validated case in the caller's transaction; return (case, created)."""
     import schemas
 
@@ -56,15 +74,16 @@ def store_case_in(session: Session, document: dict[str, Any], actor: str) -> tup
     if existing is not None:
         return existing, False
     tags = sorted({str(t) for t in document.get("tags") or []})
-    case = Case(id=str(uuid.uuid4()), sha256=sha256, document=document,
-                title=str(document.get("title") or "")[:500], tags=tags,
-                created_at=utc_now(), created_by=actor)
-    case.tag_rows = [CaseTag(tag=t) for t in tags]
-    session.add(case)
-    session.flush()
-    audit.append_event(session, actor=actor, kind="case.stored", subject=case.id,
-                       payload={"sha256": sha256, "title": case.title, "tags": tags})
-    return case, True
+    title = str(document.get("title") or "")[:500]
+    case_id = str(uuid.uuid4())
+    session.execute(_INSERT_CASE, {"id": case_id, "sha256": sha256, "document": document,
+                                   "title": title, "tags": tags, "created_at": utc_now(),
+                                   "created_by": actor})
+    if tags:
+        session.execute(_INSERT_TAGS, [{"case_id": case_id, "tag": tag} for tag in tags])
+    audit.append_event(session, actor=actor, kind="case.stored", subject=case_id,
+                       payload={"sha256": sha256, "title": title, "tags": tags})
+    return StoredCase(id=case_id, sha256=sha256), True
 
 
 def store_case(store: Store, document: dict[str, Any], actor: str) -> tuple[dict[str, Any], bool]:

@@ -69,16 +69,20 @@ def record_of(run: Run) -> dict[str, Any]:
     return record
 
 
-def queue_run_in(session: Session, case: Case, actor: str, batch_id: str | None = None) -> Run:
-    """Add a queued run of ``case`` in the caller's transaction (dispatch after the commit)."""
-    run = Run(id=str(uuid.uuid4()), case_id=case.id, status="queued", record=None, error=None,
-              submitted_by=actor, batch_id=batch_id, created_at=utc_now(), attempts=0)
-    session.add(run)
-    session.flush()
-    audit.append_event(session, actor=actor, kind="run.queued", subject=run.id,
+_INSERT_RUN = insert(Run.__table__)
+
+
+def queue_run_in(session: Session, case: Any, actor: str, batch_id: str | None = None) -> str:
+    """Add a queued run of ``case`` (anything with ``id`` and ``sha256``: a stored case) in the
+    caller's transaction and return its id (dispatch it after the commit)."""
+    run_id = str(uuid.uuid4())
+    session.execute(_INSERT_RUN, {"id": run_id, "case_id": case.id, "status": "queued",
+                                  "submitted_by": actor, "batch_id": batch_id,
+                                  "created_at": utc_now(), "attempts": 0})
+    audit.append_event(session, actor=actor, kind="run.queued", subject=run_id,
                        payload={"case_id": case.id, "case_sha256": case.sha256,
                                 "batch_id": batch_id})
-    return run
+    return run_id
 
 
 def queue_runs_in(session: Session, cases: Any, actor: str, batch_id: str | None = None
@@ -126,8 +130,8 @@ def create_run(store: Store, *, actor: str, case_id: str | None = None,
                 raise ValidationFailed("The case_id names no stored case.",
                                        errors=[{"path": "case_id", "message":
                                                 f"no stored case with id {case_id!r}"}])
-        run = queue_run_in(session, case, actor)
-        return {"run_id": run.id, "status": run.status, "case_id": case.id}
+        run_id = queue_run_in(session, case, actor)
+        return {"run_id": run_id, "status": "queued", "case_id": case.id}
 
 
 def get_record(store: Store, run_id: str) -> dict[str, Any]:

@@ -12,7 +12,7 @@ import hmac
 import secrets
 from dataclasses import dataclass
 
-from sqlalchemy import select
+from sqlalchemy import bindparam, select
 
 from service import audit
 from service.errors import ValidationFailed
@@ -70,6 +70,12 @@ def revoke_token(store: Store, token_id: str, *, actor: str = "cli") -> bool:
     return True
 
 
+_TOKENS = Token.__table__
+#: Asked on every authenticated request: built once.
+_TOKEN_BY_ID = (select(_TOKENS.c.id, _TOKENS.c.name, _TOKENS.c.role, _TOKENS.c.sha256,
+                       _TOKENS.c.revoked).where(_TOKENS.c.id == bindparam("token_id")))
+
+
 def identify(store: Store, token: str) -> Identity | None:
     """The identity a presented token stands for, or None (unknown, malformed or revoked)."""
     if not token.startswith(TOKEN_PREFIX):
@@ -77,12 +83,12 @@ def identify(store: Store, token: str) -> Identity | None:
     token_id, sep, _secret = token[len(TOKEN_PREFIX):].partition("_")
     if not sep or not token_id:
         return None
-    with store.transaction() as session:
-        row = session.execute(select(Token).where(Token.id == token_id)).scalar_one_or_none()
-        if row is None:
-            # Spend the same digest work as for a known id.
-            hmac.compare_digest(token_digest(token), "0" * 64)
-            return None
-        if not hmac.compare_digest(token_digest(token), row.sha256) or row.revoked:
-            return None
-        return Identity(name=row.name, role=row.role, token_id=row.id)
+    rows = store.read(_TOKEN_BY_ID, {"token_id": token_id})
+    if not rows:
+        # Spend the same digest work as for a known id.
+        hmac.compare_digest(token_digest(token), "0" * 64)
+        return None
+    row = rows[0]
+    if not hmac.compare_digest(token_digest(token), row.sha256) or row.revoked:
+        return None
+    return Identity(name=row.name, role=row.role, token_id=row.id)

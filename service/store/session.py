@@ -77,17 +77,22 @@ class Store:
         with self._sessions.begin() as session:
             yield session
 
-    def read_scalar(self, statement: Any, params: dict[str, Any] | None = None) -> Any:
-        """The scalar result of one read-only statement, asked outside any transaction.
+    def read(self, statement: Any, params: dict[str, Any] | None = None) -> list[Any]:
+        """The rows of one read-only statement, asked outside any transaction.
 
         PostgreSQL: on an autocommit connection, one round trip (no ``BEGIN``/``COMMIT``).
         SQLite: in a short transaction of its own (its connections always begin one).
         """
         if self.dialect == "postgresql":
             with self.engine.connect().execution_options(isolation_level="AUTOCOMMIT") as conn:
-                return conn.execute(statement, params or {}).scalar()
+                return list(conn.execute(statement, params or {}))
         with self.engine.begin() as connection:
-            return connection.execute(statement, params or {}).scalar()
+            return list(connection.execute(statement, params or {}))
+
+    def read_scalar(self, statement: Any, params: dict[str, Any] | None = None) -> Any:
+        """The first column of the first row of :meth:`read` (None when there is no row)."""
+        rows = self.read(statement, params)
+        return rows[0][0] if rows else None
 
     def ping(self) -> None:
         """Raise if the database cannot be reached."""
