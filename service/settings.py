@@ -39,6 +39,10 @@ DEFAULTS: Mapping[str, Any] = {
     # worker_prefetch_multiplier). Safe with late acknowledgement: reserved messages stay
     # unacknowledged, so a lost worker's reserved runs are delivered again.
     "WORKER_PREFETCH_MULTIPLIER": 8,
+    # Niceness added to each worker pool process (0-19; 0 leaves it as started). Solving is
+    # background work: on a host that also serves the API, the API then keeps the CPU when
+    # both want it, and the workers still use every cycle the API leaves.
+    "WORKER_NICE": 10,
     # Threads of the embedded executor (no broker).
     "EMBEDDED_WORKERS": 2,
     # Deliveries of one run before it is ended ``failed`` (a worker lost or killed each time).
@@ -91,6 +95,15 @@ def parse_nightly_at(value: str) -> tuple[int, int]:
     if not (0 <= hour <= 23 and 0 <= minute <= 59):
         raise ValueError(f"FLUXPROOF_NIGHTLY_AT: hour 0-23 and minute 0-59 expected, got {value!r}")
     return hour, minute
+
+
+def worker_nice(settings: Mapping[str, Any]) -> int:
+    """The niceness increment of worker pool processes (``WORKER_NICE``, 0-19)."""
+    value = settings.get("WORKER_NICE", DEFAULTS["WORKER_NICE"])
+    if isinstance(value, bool) or not isinstance(value, int) or not 0 <= value <= 19:
+        raise ValueError(f"FLUXPROOF_WORKER_NICE: expected a whole number from 0 to 19, "
+                         f"got {value!r}")
+    return value
 
 
 def dispatch_mode(settings: Mapping[str, Any]) -> str:

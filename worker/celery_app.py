@@ -14,19 +14,24 @@ The beat schedule runs ``fluxproof.reverify_all`` every night at ``FLUXPROOF_NIG
 ``fluxproof.recover_lost_runs`` every ``FLUXPROOF_RECOVERY_INTERVAL`` seconds (default 30; see
 :mod:`service.recovery`) on a queue of its own (``fluxproof.upkeep``), which every worker also
 consumes, so that a sweep never waits behind a long queue of runs.
+
+Each pool process lowers its own CPU priority by ``FLUXPROOF_WORKER_NICE`` (default 10) as it
+starts: solving is background work and yields to the API where both share a host.
 """
 
 from __future__ import annotations
 
+import os
 from collections.abc import Mapping
 from typing import Any
 
 from celery import Celery
 from celery.schedules import crontab
+from celery.signals import worker_process_init
 from kombu import Exchange, Queue
 
 from service.recovery import recovery_settings
-from service.settings import parse_nightly_at, settings_from_env
+from service.settings import parse_nightly_at, settings_from_env, worker_nice
 
 UPKEEP_QUEUE = "fluxproof.upkeep"
 
@@ -46,6 +51,7 @@ def celery_config(settings: Mapping[str, Any]) -> dict[str, Any]:
     if isinstance(prefetch, bool) or not isinstance(prefetch, int) or prefetch < 1:
         raise ValueError("FLUXPROOF_WORKER_PREFETCH_MULTIPLIER: expected a whole number of at "
                          f"least 1, got {prefetch!r}")
+    worker_nice(settings)  # refuse a bad value before any worker starts
     hour, minute = parse_nightly_at(settings["NIGHTLY_AT"])
     recovery_interval, _recovery_after = recovery_settings(settings)
     return {
@@ -93,6 +99,15 @@ def make_celery(settings: Mapping[str, Any] | None = None) -> Celery:
     app = Celery("fluxproof", include=["worker.tasks"])
     app.conf.update(celery_config(settings))
     return app
+
+
+@worker_process_init.connect
+def lower_pool_process_priority(**_signal: Any) -> None:
+    """In each new pool process: add ``FLUXPROOF_WORKER_NICE`` to its niceness (see
+    :mod:`service.settings`), so that solving yields the CPU to the API on a shared host."""
+    increment = worker_nice(settings_from_env())
+    if increment:
+        os.nice(increment)
 
 
 celery_app = make_celery()

@@ -7,9 +7,16 @@ import uuid
 
 from sqlalchemy import select
 
+from service.settings import DEFAULTS
 from tests.integration.conftest import bearer, wait_finished
 from tests.integration.invented_cases import single_layer_case
 from tests.integration.worker_processes import parent_of
+
+
+def _niceness(pid: int) -> int:
+    """The nice value of a process (field 19 of /proc/<pid>/stat)."""
+    with open(f"/proc/{pid}/stat") as stat:
+        return int(stat.read().rsplit(")", 1)[1].split()[16])
 
 
 def test_submitted_case_is_solved_by_a_worker_process_and_stored(app, client, store, tokens,
@@ -35,6 +42,8 @@ def test_submitted_case_is_solved_by_a_worker_process_and_stored(app, client, st
     assert host == socket.gethostname()
     assert parent_of(int(pid)) in {w.pid for w in live_workers}, (
         f"pid {pid} is not a pool process of the workers {[w.pid for w in live_workers]}")
+    # Solving yields the CPU to the API: the pool process is FLUXPROOF_WORKER_NICE nicer.
+    assert _niceness(int(pid)) - _niceness(parent_of(int(pid))) == DEFAULTS["WORKER_NICE"] > 0
 
     # The row on PostgreSQL holds the same record, and the audit trail names the worker.
     assert store.dialect == "postgresql"

@@ -31,6 +31,25 @@ def test_a_prefetch_multiplier_that_is_not_a_whole_number_of_at_least_one_is_ref
         celery_config({**DEFAULTS, "WORKER_PREFETCH_MULTIPLIER": value})
 
 
+@pytest.mark.parametrize("value", [-1, 20, "low", 2.5, True])
+def test_a_worker_nice_outside_0_to_19_is_refused(value):
+    with pytest.raises(ValueError, match="FLUXPROOF_WORKER_NICE"):
+        celery_config({**DEFAULTS, "WORKER_NICE": value})
+
+
+@pytest.mark.parametrize(("setting", "calls"), [(None, [10]), ("4", [4]), ("0", [])])
+def test_each_pool_process_lowers_its_priority_by_the_setting(monkeypatch, setting, calls):
+    import worker.celery_app
+
+    monkeypatch.delenv("FLUXPROOF_WORKER_NICE", raising=False)
+    if setting is not None:
+        monkeypatch.setenv("FLUXPROOF_WORKER_NICE", setting)
+    seen = []
+    monkeypatch.setattr(worker.celery_app.os, "nice", seen.append)
+    worker.celery_app.lower_pool_process_priority()
+    assert seen == calls
+
+
 def test_the_prefetch_multiplier_follows_the_setting():
     assert celery_config({**DEFAULTS, "WORKER_PREFETCH_MULTIPLIER": 3}
                          )["worker_prefetch_multiplier"] == 3
