@@ -5,13 +5,20 @@ payload})`` (hex), with ``prev_hash`` the previous event's hash (64 zeros before
 Events are appended inside the transaction of the change they describe, so a change and its
 event are committed together or not at all. :func:`append_event` only queues the event on the
 session; when the transaction commits, the session's other changes are flushed first and then
-every queued event is written in one append, as the last statements before the commit: the
-single chain-head row is locked (``SELECT ... FOR UPDATE`` on PostgreSQL; SQLite transactions
-hold the database write lock from ``BEGIN IMMEDIATE``), the events are inserted and the head
-moved on (one fixed statement on PostgreSQL, two on SQLite), and the commit releases the lock.
-Concurrent writers therefore queue only for those last statements and the commit, and the
-chain stays linear. A rolled-back transaction writes none of its queued events. An event's
-``at`` is the moment it is written, under the lock, so times follow the chain's order.
+every queued event is written in one append, as the last statement(s) before the commit.
+
+* PostgreSQL: one call of the server-side function ``fluxproof_append_events`` (migration
+  0003), which locks the single chain-head row (``SELECT ... FOR UPDATE``), numbers, times and
+  hashes each event, inserts them and moves the head: one round trip under the lock. The client
+  sends each event's canonical JSON in pieces around the time and the number
+  (:func:`body_pieces`); the server only joins them and hashes.
+* SQLite: the transaction holds the database write lock from ``BEGIN IMMEDIATE``; the client
+  reads the head, hashes, inserts the events and moves the head (three statements).
+
+The commit releases the lock. Concurrent writers therefore queue only for that last step and the
+commit, and the chain stays linear. A rolled-back transaction writes none of its queued events.
+An event's ``at`` is the moment it is written, under the lock, so times follow the chain's
+order. Whoever wrote them, every chain is verified by :func:`verify_chain` here, in Python.
 
 The canonical JSON here is frozen with the chain format (sorted keys, no spaces, UTF-8, no NaN)
 and deliberately independent of the case canonicalisation, so old chains stay verifiable.
@@ -98,17 +105,25 @@ _LOCK_HEAD = (select(AuditHead.seq, AuditHead.hash).where(AuditHead.id == HEAD_R
 _INSERT_EVENTS = insert(AuditEvent.__table__)
 _MOVE_HEAD = (update(AuditHead.__table__).where(AuditHead.__table__.c.id == HEAD_ROW_ID)
               .values(seq=bindparam("head_seq"), hash=bindparam("head_hash")))
-#: PostgreSQL: the events and the head move in one round trip and one fixed statement, whatever
-#: the number of events (the rows travel as arrays; the table names follow the search path).
+#: PostgreSQL: the server-side append of migration 0003 (lock, number, time, hash, insert, move
+#: the head) in one round trip; the table and function names follow the search path.
 _APPEND_POSTGRESQL = text(
-    "WITH appended AS (INSERT INTO audit_events "
-    "(seq, at, actor, kind, subject, payload, prev_hash, hash) "
-    "SELECT * FROM unnest(CAST(:seqs AS integer[]), CAST(:ats AS varchar[]), "
-    "CAST(:actors AS varchar[]), CAST(:kinds AS varchar[]), CAST(:subjects AS varchar[]), "
-    "CAST(CAST(:payloads AS text[]) AS json[]), CAST(:prev_hashes AS varchar[]), "
-    "CAST(:hashes AS varchar[]))) "
-    "UPDATE audit_head SET seq = :head_seq, hash = :head_hash WHERE id = :head_id"
+    "SELECT fluxproof_append_events(CAST(:actors AS text[]), CAST(:kinds AS text[]), "
+    "CAST(:subjects AS text[]), CAST(:payloads AS text[]), CAST(:before_at AS text[]), "
+    "CAST(:before_seq AS text[]), CAST(:after_seq AS text[]))"
 )
+
+
+def body_pieces(actor: str, kind: str, subject: str, payload: dict[str, Any]
+                ) -> tuple[str, str, str]:
+    """The canonical JSON of an event's hashed body in three pieces around its time and its
+    sequence number: ``before_at + at + before_seq + str(seq) + after_seq`` equals
+    ``chain_json({seq, at, actor, kind, subject, payload})`` (keys sorted: actor, at, kind,
+    payload, seq, subject; an ISO time needs no JSON escaping). PostgreSQL's append function
+    fills in the two values it assigns under the chain-head lock."""
+    return (f'{{"actor":{chain_json(actor)},"at":"',
+            f'","kind":{chain_json(kind)},"payload":{chain_json(payload)},"seq":',
+            f',"subject":{chain_json(subject)}}}')
 
 
 def write_pending_events(session: Session) -> int:
@@ -120,6 +135,16 @@ def write_pending_events(session: Session) -> int:
     pending: list[PendingEvent] = session.info.pop(PENDING_KEY, [])
     if not pending:
         return 0
+    if session.get_bind().dialect.name == "postgresql":
+        pieces = [body_pieces(p.actor, p.kind, p.subject, p.payload) for p in pending]
+        session.execute(_APPEND_POSTGRESQL, {
+            "actors": [p.actor for p in pending], "kinds": [p.kind for p in pending],
+            "subjects": [p.subject for p in pending],
+            "payloads": [chain_json(p.payload) for p in pending],
+            "before_at": [piece[0] for piece in pieces],
+            "before_seq": [piece[1] for piece in pieces],
+            "after_seq": [piece[2] for piece in pieces]})
+        return len(pending)
     seq, prev_hash = session.execute(_LOCK_HEAD).one()
     rows = []
     for item in pending:
@@ -131,17 +156,8 @@ def write_pending_events(session: Session) -> int:
                      "subject": item.subject, "payload": item.payload,
                      "prev_hash": prev_hash, "hash": digest})
         prev_hash = digest
-    if session.get_bind().dialect.name == "postgresql":
-        session.execute(_APPEND_POSTGRESQL, {
-            "seqs": [r["seq"] for r in rows], "ats": [r["at"] for r in rows],
-            "actors": [r["actor"] for r in rows], "kinds": [r["kind"] for r in rows],
-            "subjects": [r["subject"] for r in rows],
-            "payloads": [chain_json(r["payload"]) for r in rows],
-            "prev_hashes": [r["prev_hash"] for r in rows], "hashes": [r["hash"] for r in rows],
-            "head_seq": seq, "head_hash": prev_hash, "head_id": HEAD_ROW_ID})
-    else:
-        session.execute(_INSERT_EVENTS, rows)
-        session.execute(_MOVE_HEAD, {"head_seq": seq, "head_hash": prev_hash})
+    session.execute(_INSERT_EVENTS, rows)
+    session.execute(_MOVE_HEAD, {"head_seq": seq, "head_hash": prev_hash})
     return len(rows)
 
 

@@ -74,3 +74,38 @@ def test_verify_detects_an_event_changed_behind_the_service(app, store, tokens, 
         with store.transaction() as session:
             session.get(AuditEvent, seq).actor = original
     assert verify_chain(store).ok is True
+
+
+AWKWARD_TEXT = ['quote " and backslash \\ and slash /', "tab\tnewline\nreturn\r", "ü ß é ñ 中文",
+                "emoji 🧪 and U+2028 \u2028 and NUL-free control \u0001", ""]
+
+
+def test_the_server_side_append_hashes_what_python_verifies(store):
+    """On PostgreSQL the chain is extended by the store's function (migration 0003); the
+    Python verifier must accept what it wrote for text and payloads that JSON escapes, and the
+    time it stamps must be the text Python's isoformat gives."""
+    import re
+
+    from service import audit
+    from service.store.models import AuditEvent
+
+    assert store.dialect == "postgresql"
+    with store.transaction() as session:
+        for text_value in AWKWARD_TEXT:
+            audit.append_event(session, actor=text_value or "nobody", kind="token.created",
+                               subject=text_value, payload={
+                                   "text": text_value, "nested": {"list": [1, 2.5, -0.0, None,
+                                                                           True, 1e300]},
+                                   text_value: "as a key"})
+    report = audit.verify_chain(store)
+    assert report.ok, report
+    with store.transaction() as session:
+        written = session.execute(select(AuditEvent).order_by(AuditEvent.seq.desc())
+                                  .limit(len(AWKWARD_TEXT))).scalars().all()
+    assert sorted(e.subject for e in written) == sorted(AWKWARD_TEXT)
+    for event in written:
+        assert re.fullmatch(r"\d{4}-\d\d-\d\dT\d\d:\d\d:\d\d\.\d{6}\+00:00", event.at), event.at
+        assert event.hash == audit.event_hash(event.prev_hash, event.seq, event.at, event.actor,
+                                              event.kind, event.subject, event.payload)
+    times = [e.at for e in sorted(written, key=lambda e: e.seq)]
+    assert times == sorted(times)

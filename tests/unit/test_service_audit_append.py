@@ -4,7 +4,11 @@ chain."""
 
 from __future__ import annotations
 
+import hashlib
+
 import pytest
+from hypothesis import given, settings
+from hypothesis import strategies as st
 from sqlalchemy import event, func, select
 
 from service import audit
@@ -137,3 +141,27 @@ def test_a_payload_the_chain_cannot_hold_is_refused_at_once(store):
             audit.append_event(session, actor="x", kind="case.stored", subject="nan",
                                payload={"value": float("nan")})
     assert _chain(store) == []
+
+
+_JSON_LEAF = (st.none() | st.booleans() | st.integers(-2**53, 2**53)
+              | st.floats(allow_nan=False, allow_infinity=False) | st.text(max_size=12))
+_PAYLOAD = st.dictionaries(st.text(max_size=8), st.recursive(
+    _JSON_LEAF, lambda inner: st.lists(inner, max_size=3)
+    | st.dictionaries(st.text(max_size=5), inner, max_size=3), max_leaves=8), max_size=4)
+
+
+@settings(max_examples=200, deadline=None)
+@given(actor=st.text(max_size=20), kind=st.sampled_from(audit.EVENT_KINDS),
+       subject=st.text(max_size=20), payload=_PAYLOAD, seq=st.integers(1, 10**9))
+def test_the_body_pieces_join_to_the_canonical_body_that_is_hashed(actor, kind, subject,
+                                                                    payload, seq):
+    """PostgreSQL's append function joins these pieces around the time and the number; the
+    result must be the very text that event_hash (and so verify_chain) hashes."""
+    at = "2026-12-02T03:26:15.123456+00:00"
+    before_at, before_seq, after_seq = audit.body_pieces(actor, kind, subject, payload)
+    joined = before_at + at + before_seq + str(seq) + after_seq
+    assert joined == audit.chain_json({"seq": seq, "at": at, "actor": actor, "kind": kind,
+                                       "subject": subject, "payload": payload})
+    prev = "ab" * 32
+    assert hashlib.sha256((prev + joined).encode("utf-8")).hexdigest() == audit.event_hash(
+        prev, seq, at, actor, kind, subject, payload)
