@@ -15,25 +15,29 @@ The beat schedule runs ``fluxproof.reverify_all`` every night at ``FLUXPROOF_NIG
 :mod:`service.recovery`) on a queue of its own (``fluxproof.upkeep``), which every worker also
 consumes, so that a sweep never waits behind a long queue of runs.
 
-Each pool process lowers its own CPU priority by ``FLUXPROOF_WORKER_NICE`` (default 10) as it
+The main process loads the engine before it forks the pool (:mod:`worker.warmup`), so that no
+pool process pays the first check's imports in the middle of a batch. Each pool process lowers
+its own CPU priority by ``FLUXPROOF_WORKER_NICE`` (default 10) as it
 starts: solving is background work and yields to the API where both share a host.
 """
 
 from __future__ import annotations
 
+import logging
 import os
 from collections.abc import Mapping
 from typing import Any
 
 from celery import Celery
 from celery.schedules import crontab
-from celery.signals import worker_process_init
+from celery.signals import worker_init, worker_process_init
 from kombu import Exchange, Queue
 
 from service.recovery import recovery_settings
 from service.settings import parse_nightly_at, settings_from_env, worker_nice
 
 UPKEEP_QUEUE = "fluxproof.upkeep"
+logger = logging.getLogger(__name__)
 
 
 def celery_config(settings: Mapping[str, Any]) -> dict[str, Any]:
@@ -99,6 +103,15 @@ def make_celery(settings: Mapping[str, Any] | None = None) -> Celery:
     app = Celery("fluxproof", include=["worker.tasks"])
     app.conf.update(celery_config(settings))
     return app
+
+
+@worker_init.connect
+def warm_up_before_forking(**_signal: Any) -> None:
+    """In the worker's main process, before it forks the pool: load the engine
+    (:mod:`worker.warmup`), so that every pool process starts warm."""
+    from worker.warmup import warm_up_engine
+
+    logger.info("engine warmed up in %.2f s", warm_up_engine())
 
 
 @worker_process_init.connect

@@ -42,6 +42,8 @@ def test_submitted_case_is_solved_by_a_worker_process_and_stored(app, client, st
     assert host == socket.gethostname()
     assert parent_of(int(pid)) in {w.pid for w in live_workers}, (
         f"pid {pid} is not a pool process of the workers {[w.pid for w in live_workers]}")
+    # Each worker loaded the engine before forking its pool (no cold first run mid-batch).
+    assert all("engine warmed up in" in w.log_text() for w in live_workers)
     # Solving yields the CPU to the API: the pool process is FLUXPROOF_WORKER_NICE nicer.
     assert _niceness(int(pid)) - _niceness(parent_of(int(pid))) == DEFAULTS["WORKER_NICE"] > 0
 

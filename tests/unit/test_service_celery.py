@@ -71,3 +71,17 @@ def test_bad_nightly_time_is_named(text):
 
 def test_good_nightly_time():
     assert parse_nightly_at("23:59") == (23, 59)
+
+
+def test_the_warm_up_case_is_a_case_the_engine_checks_and_it_runs_before_the_pool_forks():
+    from celery.signals import worker_init
+
+    import worker.celery_app
+    from worker.engine import check_case
+    from worker.warmup import WARM_UP_CASE, warm_up_engine
+
+    record = check_case(dict(WARM_UP_CASE))
+    assert record["status"] == "succeeded" and record["verdict"] == "pass", record["checks"]
+    assert warm_up_engine() >= 0.0
+    receivers = [ref() for _key, ref in worker_init.receivers]
+    assert worker.celery_app.warm_up_before_forking in receivers
