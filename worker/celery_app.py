@@ -30,7 +30,7 @@ from typing import Any
 
 from celery import Celery
 from celery.schedules import crontab
-from celery.signals import worker_init, worker_process_init
+from celery.signals import celeryd_after_setup, worker_process_init
 from kombu import Exchange, Queue
 
 from service.recovery import recovery_settings
@@ -105,7 +105,7 @@ def make_celery(settings: Mapping[str, Any] | None = None) -> Celery:
     return app
 
 
-@worker_init.connect
+@celeryd_after_setup.connect
 def warm_up_before_forking(**_signal: Any) -> None:
     """In the worker's main process, before it forks the pool: load the engine
     (:mod:`worker.warmup`), so that every pool process starts warm."""

@@ -74,7 +74,7 @@ def test_good_nightly_time():
 
 
 def test_the_warm_up_case_is_a_case_the_engine_checks_and_it_runs_before_the_pool_forks():
-    from celery.signals import worker_init
+    from celery.signals import celeryd_after_setup
 
     import worker.celery_app
     from worker.engine import check_case
@@ -83,5 +83,5 @@ def test_the_warm_up_case_is_a_case_the_engine_checks_and_it_runs_before_the_poo
     record = check_case(dict(WARM_UP_CASE))
     assert record["status"] == "succeeded" and record["verdict"] == "pass", record["checks"]
     assert warm_up_engine() >= 0.0
-    receivers = [ref() for _key, ref in worker_init.receivers]
+    receivers = [ref() for _key, ref in celeryd_after_setup.receivers]
     assert worker.celery_app.warm_up_before_forking in receivers
