@@ -7,11 +7,13 @@ event are committed together or not at all. :func:`append_event` only queues the
 session; when the transaction commits, the session's other changes are flushed first and then
 every queued event is written in one append, as the last statement(s) before the commit.
 
-* PostgreSQL: one call of the server-side function ``fluxproof_append_events`` (migration
-  0003), which locks the single chain-head row (``SELECT ... FOR UPDATE``), numbers, times and
-  hashes each event, inserts them and moves the head: one round trip under the lock. The client
-  sends each event's canonical JSON in pieces around the time and the number
-  (:func:`body_pieces`); the server only joins them and hashes.
+* PostgreSQL: one statement puts the events into ``audit_pending``, which takes no lock; a
+  deferred trigger (migration 0003) chains them inside the server as the transaction commits:
+  it locks the single chain-head row (``SELECT ... FOR UPDATE``), numbers, times and hashes
+  each event, inserts it and moves the head. The lock is held from that trigger to the end of
+  the commit, with no round trip to the client in between. The client sends each event's
+  canonical JSON in pieces around the time and the number (:func:`body_pieces`); the server
+  only joins them and hashes.
 * SQLite: the transaction holds the database write lock from ``BEGIN IMMEDIATE``; the client
   reads the head, hashes, inserts the events and moves the head (three statements).
 
@@ -105,12 +107,15 @@ _LOCK_HEAD = (select(AuditHead.seq, AuditHead.hash).where(AuditHead.id == HEAD_R
 _INSERT_EVENTS = insert(AuditEvent.__table__)
 _MOVE_HEAD = (update(AuditHead.__table__).where(AuditHead.__table__.c.id == HEAD_ROW_ID)
               .values(seq=bindparam("head_seq"), hash=bindparam("head_hash")))
-#: PostgreSQL: the server-side append of migration 0003 (lock, number, time, hash, insert, move
-#: the head) in one round trip; the table and function names follow the search path.
-_APPEND_POSTGRESQL = text(
-    "SELECT fluxproof_append_events(CAST(:actors AS text[]), CAST(:kinds AS text[]), "
+#: PostgreSQL: the events go to ``audit_pending`` (no lock), one fixed statement whatever their
+#: number; the server chains them as the transaction commits (migration 0003).
+_PEND_POSTGRESQL = text(
+    "INSERT INTO audit_pending (actor, kind, subject, payload, before_at, before_seq, "
+    "after_seq) SELECT actor, kind, subject, payload, before_at, before_seq, after_seq "
+    "FROM unnest(CAST(:actors AS text[]), CAST(:kinds AS text[]), "
     "CAST(:subjects AS text[]), CAST(:payloads AS text[]), CAST(:before_at AS text[]), "
-    "CAST(:before_seq AS text[]), CAST(:after_seq AS text[]))"
+    "CAST(:before_seq AS text[]), CAST(:after_seq AS text[])) WITH ORDINALITY AS e("
+    "actor, kind, subject, payload, before_at, before_seq, after_seq, n) ORDER BY n"
 )
 
 
@@ -119,8 +124,8 @@ def body_pieces(actor: str, kind: str, subject: str, payload: dict[str, Any]
     """The canonical JSON of an event's hashed body in three pieces around its time and its
     sequence number: ``before_at + at + before_seq + str(seq) + after_seq`` equals
     ``chain_json({seq, at, actor, kind, subject, payload})`` (keys sorted: actor, at, kind,
-    payload, seq, subject; an ISO time needs no JSON escaping). PostgreSQL's append function
-    fills in the two values it assigns under the chain-head lock."""
+    payload, seq, subject; an ISO time needs no JSON escaping). PostgreSQL's commit-time
+    trigger fills in the two values it assigns under the chain-head lock."""
     return (f'{{"actor":{chain_json(actor)},"at":"',
             f'","kind":{chain_json(kind)},"payload":{chain_json(payload)},"seq":',
             f',"subject":{chain_json(subject)}}}')
@@ -129,15 +134,16 @@ def body_pieces(actor: str, kind: str, subject: str, payload: dict[str, Any]
 def write_pending_events(session: Session) -> int:
     """Write every event queued on ``session`` in one append; return how many were written.
 
-    Called by the ``before_commit`` hook below after the session's other changes are flushed,
-    so that the chain-head lock is taken by the last statements of the transaction.
+    Called by the ``before_commit`` hook below after the session's other changes are flushed.
+    On SQLite the events are chained here, as the last statements of the transaction; on
+    PostgreSQL they are handed to the server, which chains them at the commit itself.
     """
     pending: list[PendingEvent] = session.info.pop(PENDING_KEY, [])
     if not pending:
         return 0
     if session.get_bind().dialect.name == "postgresql":
         pieces = [body_pieces(p.actor, p.kind, p.subject, p.payload) for p in pending]
-        session.execute(_APPEND_POSTGRESQL, {
+        session.execute(_PEND_POSTGRESQL, {
             "actors": [p.actor for p in pending], "kinds": [p.kind for p in pending],
             "subjects": [p.subject for p in pending],
             "payloads": [chain_json(p.payload) for p in pending],

@@ -5,7 +5,8 @@ from __future__ import annotations
 import uuid
 from concurrent.futures import ThreadPoolExecutor
 
-from sqlalchemy import select
+import pytest
+from sqlalchemy import select, text
 
 from tests.integration.conftest import bearer, wait_finished
 from tests.integration.invented_cases import distinct_steady_cases
@@ -81,9 +82,9 @@ AWKWARD_TEXT = ['quote " and backslash \\ and slash /', "tab\tnewline\nreturn\r"
 
 
 def test_the_server_side_append_hashes_what_python_verifies(store):
-    """On PostgreSQL the chain is extended by the store's function (migration 0003); the
-    Python verifier must accept what it wrote for text and payloads that JSON escapes, and the
-    time it stamps must be the text Python's isoformat gives."""
+    """On PostgreSQL the server chains the events as the transaction commits (migration 0003);
+    the Python verifier must accept what it wrote for text and payloads that JSON escapes, the
+    time it stamps must be the text Python's isoformat gives, and nothing stays pending."""
     import re
 
     from service import audit
@@ -109,3 +110,20 @@ def test_the_server_side_append_hashes_what_python_verifies(store):
                                               event.kind, event.subject, event.payload)
     times = [e.at for e in sorted(written, key=lambda e: e.seq)]
     assert times == sorted(times)
+    assert store.read_scalar(text("SELECT count(*) FROM audit_pending")) == 0
+
+
+def test_a_rolled_back_transaction_leaves_no_event_pending_or_chained(store):
+    from service import audit
+
+    assert store.dialect == "postgresql"
+    head_before = audit.verify_chain(store).head_seq
+    with pytest.raises(RuntimeError, match="change refused"):
+        with store.transaction() as session:
+            audit.append_event(session, actor="nobody", kind="token.created", subject="x")
+            session.flush()
+            audit.write_pending_events(session)  # handed to the server, then rolled back
+            raise RuntimeError("change refused")
+    assert store.read_scalar(text("SELECT count(*) FROM audit_pending")) == 0
+    report = audit.verify_chain(store)
+    assert report.ok and report.head_seq == head_before
