@@ -119,16 +119,24 @@ _PEND_POSTGRESQL = text(
 )
 
 
+def payload_pieces(actor: str, kind: str, subject: str) -> tuple[str, str, str, str]:
+    """The canonical JSON of an event's hashed body in four pieces around its time, its
+    payload and its sequence number: ``before_at + at + before_payload + <payload JSON> +
+    after_payload + str(seq) + after_seq`` equals ``chain_json({seq, at, actor, kind, subject,
+    payload})`` (keys sorted: actor, at, kind, payload, seq, subject; an ISO time needs no JSON
+    escaping)."""
+    return (f'{{"actor":{chain_json(actor)},"at":"', f'","kind":{chain_json(kind)},"payload":',
+            ',"seq":', f',"subject":{chain_json(subject)}}}')
+
+
 def body_pieces(actor: str, kind: str, subject: str, payload: dict[str, Any]
                 ) -> tuple[str, str, str]:
-    """The canonical JSON of an event's hashed body in three pieces around its time and its
-    sequence number: ``before_at + at + before_seq + str(seq) + after_seq`` equals
-    ``chain_json({seq, at, actor, kind, subject, payload})`` (keys sorted: actor, at, kind,
-    payload, seq, subject; an ISO time needs no JSON escaping). PostgreSQL's commit-time
-    trigger fills in the two values it assigns under the chain-head lock."""
-    return (f'{{"actor":{chain_json(actor)},"at":"',
-            f'","kind":{chain_json(kind)},"payload":{chain_json(payload)},"seq":',
-            f',"subject":{chain_json(subject)}}}')
+    """The body in three pieces around its time and its sequence number (see
+    :func:`payload_pieces`): ``before_at + at + before_seq + str(seq) + after_seq``.
+    PostgreSQL's commit-time trigger fills in the two values it assigns under the chain-head
+    lock."""
+    before_at, before_payload, after_payload, after_seq = payload_pieces(actor, kind, subject)
+    return before_at, before_payload + chain_json(payload) + after_payload, after_seq
 
 
 def write_pending_events(session: Session) -> int:

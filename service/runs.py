@@ -18,7 +18,7 @@ from typing import Any
 from sqlalchemy import bindparam, insert, select, update
 from sqlalchemy.orm import Session, joinedload
 
-from service import audit
+from service import audit, runs_postgresql
 from service.errors import NotFound, ValidationFailed
 from service.store import Store, default_store
 from service.store.models import FINISHED_STATES, Case, Run, utc_now
@@ -282,14 +282,33 @@ def execute_run(run_id: str, store: Store | None = None, *,
     Two short transactions, each ending with its audit event: the claim (``running``, one more
     attempt, ``run.started``) before the solve, so that a lost worker's attempt counts; and the
     outcome (``run.finished``). Then, for a batch run, a third that closes the batch when this
-    was its last unfinished run.
+    was its last unfinished run. On PostgreSQL the claim and the outcome are each one
+    statement that commits by itself (:mod:`service.runs_postgresql`).
     """
-    import worker.engine
-
     store = store or default_store()
     actor = actor or f"worker@{socket.gethostname()}"
+    on_postgresql = store.dialect == "postgresql"
+    claimed = (runs_postgresql.claim(store, run_id, max_attempts, actor, utc_now())
+               if on_postgresql else None)
+    if claimed is not None:
+        attempt, case_id, stored_document = claimed
+        document = dict(stored_document)
+    else:
+        outcome = _claim_or_settle(store, run_id, max_attempts, actor,
+                                   try_claim=not on_postgresql)
+        if isinstance(outcome, str):
+            return outcome
+        attempt, case_id, document = outcome
+    return _solve_and_store(store, run_id, case_id, document, actor, on_postgresql)
+
+
+def _claim_or_settle(store: Store, run_id: str, max_attempts: int, actor: str, *,
+                     try_claim: bool) -> tuple[int, str, dict[str, Any]] | str:
+    """In a session transaction: claim the run (unless ``try_claim`` is False: the caller
+    tried already), or, when it is not claimable, settle it: "missing", its finished status,
+    or "failed" when it is out of attempts (then ended so, and its batch closed if due)."""
     with store.transaction() as session:
-        claimed = _claim(session, run_id, max_attempts)
+        claimed = _claim(session, run_id, max_attempts) if try_claim else None
         if claimed is None:
             found = _lock_run(session, run_id)
             if found is None:
@@ -310,6 +329,13 @@ def execute_run(run_id: str, store: Store | None = None, *,
     if claimed is None:
         _close_batch_after_commit(store, gave_up_batch)
         return "failed"
+    return attempt, case_id, document
+
+
+def _solve_and_store(store: Store, run_id: str, case_id: str, document: dict[str, Any],
+                     actor: str, on_postgresql: bool) -> str:
+    """Check the claimed run's case with the engine and store the outcome; its status."""
+    import worker.engine
 
     record: dict[str, Any] | None = None
     error: str | None = None
@@ -332,9 +358,16 @@ def execute_run(run_id: str, store: Store | None = None, *,
         logger.warning("run %s failed: %s", run_id, exc)
         status, error = "failed", _failure_reason(exc)
 
+    if on_postgresql:
+        stored, batch_id = runs_postgresql.store_outcome(
+            store, run_id, status=status, record=record, error=error, actor=actor,
+            now=utc_now())
+        if stored:
+            _close_batch_after_commit(store, batch_id)
+            return status
     with store.transaction() as session:
-        stored, batch_id = _store_finish(session, run_id, status=status, record=record,
-                                         error=error, actor=actor)
+        stored, batch_id = (False, None) if on_postgresql else _store_finish(
+            session, run_id, status=status, record=record, error=error, actor=actor)
         if not stored:
             # Another delivery finished first (or the run is gone); keep what it stored.
             found = session.execute(select(Run.status).where(Run.id == run_id)

@@ -1,0 +1,70 @@
+"""execute_run on PostgreSQL, where the claim and the outcome are single self-committing
+statements whose audit events are joined in SQL (service.runs_postgresql): the events carry
+the same payloads as on SQLite, and the chain verifies."""
+
+from __future__ import annotations
+
+import uuid
+
+from sqlalchemy import select
+
+from service import audit
+from service.runs import create_run, execute_run
+from tests.api.conftest import controlled_engine  # noqa: F401
+from tests.integration.invented_cases import single_layer_case
+
+
+def _events(store, run_id):
+    from service.store.models import AuditEvent
+
+    with store.transaction() as session:
+        return [(e.kind, e.actor, e.payload) for e in session.execute(
+            select(AuditEvent).where(AuditEvent.subject == run_id).order_by(AuditEvent.seq)
+        ).scalars()]
+
+
+def _document():
+    return single_layer_case(20.0 + uuid.uuid4().int % 1000 / 100.0, 1.0e-10,
+                             tags=[f"it-pg-{uuid.uuid4().hex[:8]}"])
+
+
+def test_a_run_on_postgresql_writes_its_events_with_their_payloads_and_the_chain_verifies(
+        store, controlled_engine):  # noqa: F811
+    from service.store.models import Run
+
+    assert store.dialect == "postgresql"
+    run_id = create_run(store, actor="pia.engineer", document=_document())["run_id"]
+    assert execute_run(run_id, store, actor='worker "quoted" ü') == "succeeded"
+    assert execute_run(run_id, store, actor="second delivery") == "succeeded"
+    assert controlled_engine.calls == 1
+    assert _events(store, run_id) == [
+        ("run.queued", "pia.engineer", _events(store, run_id)[0][2]),
+        ("run.started", 'worker "quoted" ü', {"attempt": 1}),
+        ("run.finished", 'worker "quoted" ü',
+         {"status": "succeeded", "verdict": "pass", "error": None, "attempts": 1}),
+    ]
+    with store.transaction() as session:
+        run = session.get(Run, run_id)
+        assert (run.status, run.attempts, run.record["run_id"]) == ("succeeded", 1, run_id)
+        assert run.started_at is not None and run.finished_at >= run.started_at
+    assert audit.verify_chain(store).ok
+
+
+def test_a_failed_run_with_an_awkward_reason_verifies_and_out_of_attempts_ends_failed(
+        store, controlled_engine):  # noqa: F811
+    from service.store.models import Run
+
+    controlled_engine.status = "failed"
+    run_id = create_run(store, actor="pia.engineer", document=_document())["run_id"]
+    assert execute_run(run_id, store, actor="w") == "failed"
+    finished = _events(store, run_id)[-1]
+    assert finished[0] == "run.finished" and finished[2]["status"] == "failed"
+    assert finished[2]["error"] == "controlled failure" and finished[2]["attempts"] == 1
+
+    stuck = create_run(store, actor="pia.engineer", document=_document())["run_id"]
+    with store.transaction() as session:  # as if three deliveries were lost mid-solve
+        run = session.get(Run, stuck)
+        run.status, run.attempts = "running", 3
+    assert execute_run(stuck, store, max_attempts=3, actor="w") == "failed"
+    assert "gave up after 3 deliveries" in _events(store, stuck)[-1][2]["error"]
+    assert audit.verify_chain(store).ok
