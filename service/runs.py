@@ -121,6 +121,10 @@ def create_run(store: Store, *, actor: str, case_id: str | None = None,
                                         "'case_id' or 'case'"}])
     if document is not None:
         validate_document(document)
+        if store.dialect == "postgresql":
+            queued = runs_postgresql.queue_new_case_run(store, document, actor, utc_now())
+            if queued is not None:
+                return {"run_id": queued[0], "status": "queued", "case_id": queued[1]}
     with store.transaction() as session:
         if document is not None:
             case, _created = store_case_in(session, document, actor)

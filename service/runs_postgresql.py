@@ -99,3 +99,79 @@ def store_outcome(store: Store, run_id: str, *, status: str, record: dict[str, A
             "payload_rest": payload_rest,
             **_pieces(actor, "run.finished", run_id)}).one_or_none()
     return (False, None) if row is None else (True, row.batch_id)
+
+
+#: POST /v1/runs with a case document: store the case unless its content is stored already,
+#: queue a run of it, and write ``case.stored`` (only for a new case) then ``run.queued``.
+#: ``the_case`` is the new row or the stored one (the snapshot of the statement's start); when
+#: another transaction stored the same content after that snapshot there is no row, and the
+#: caller takes the session path instead. The two events go in one INSERT, ordered, so the
+#: chain lists the case before its run. (A backslash keeps the JSON colon before null from
+#: reading as a bound parameter.)
+_QUEUE_NEW_CASE_RUN = text("""
+WITH new_case AS (
+    INSERT INTO cases (id, sha256, document, title, tags, created_at, created_by)
+    VALUES (:case_id, :sha256, CAST(:document AS json), :title, CAST(:tags_json AS json), :now,
+            :actor)
+    ON CONFLICT (sha256) DO NOTHING
+    RETURNING id
+), the_case AS (
+    SELECT id FROM new_case
+    UNION ALL
+    SELECT id FROM cases WHERE sha256 = :sha256
+), new_tags AS (
+    INSERT INTO case_tags (case_id, tag)
+    SELECT new_case.id, tag FROM new_case, unnest(CAST(:tags AS text[])) AS tag
+), new_run AS (
+    INSERT INTO runs (id, case_id, status, submitted_by, created_at, attempts)
+    SELECT :run_id, id, 'queued', :actor, :now, 0 FROM the_case LIMIT 1
+    RETURNING case_id
+), events AS (
+    INSERT INTO audit_pending (actor, kind, subject, payload, before_at, before_seq, after_seq)
+    SELECT actor, kind, subject, payload, before_at, before_seq, after_seq FROM (
+        SELECT 1 AS ord, CAST(:actor AS text) AS actor, CAST('case.stored' AS text) AS kind,
+               CAST(:case_id AS text) AS subject, CAST(:case_payload AS text) AS payload,
+               CAST(:case_before_at AS text) AS before_at,
+               CAST(:case_before_seq AS text) AS before_seq,
+               CAST(:case_after_seq AS text) AS after_seq
+        FROM new_case
+        UNION ALL
+        SELECT 2, :actor, 'run.queued', :run_id, run_payload, :run_before_at,
+               :run_before_payload || run_payload || :run_after_payload, :run_after_seq
+        FROM (SELECT '{"batch_id"\\:null,"case_id":' || to_json(case_id)::text
+                     || ',"case_sha256":' || :sha256_json || '}' AS run_payload
+              FROM new_run) AS queued
+    ) AS pending ORDER BY ord
+)
+SELECT new_run.case_id, EXISTS (SELECT 1 FROM new_case) AS created FROM new_run
+""").bindparams(bindparam("now", type_=UtcDateTime())).columns(case_id=String)
+
+
+def queue_new_case_run(store: Store, document: dict[str, Any], actor: str, now: Any
+                       ) -> tuple[str, str] | None:
+    """Store a validated case (unless stored already) and queue a run of it, in one statement;
+    (run_id, case_id), or None when a concurrent writer stored the same content meanwhile."""
+    import uuid
+
+    import schemas
+
+    sha256 = schemas.case_sha256(document)
+    tags = sorted({str(t) for t in document.get("tags") or []})
+    title = str(document.get("title") or "")[:500]
+    case_id, run_id = str(uuid.uuid4()), str(uuid.uuid4())
+    case_pieces = audit.body_pieces(actor, "case.stored", case_id,
+                                    {"sha256": sha256, "title": title, "tags": tags})
+    run_at, run_before_payload, run_after_payload, run_after_seq = audit.payload_pieces(
+        actor, "run.queued", run_id)
+    with _autocommit(store) as connection:
+        row = connection.execute(_QUEUE_NEW_CASE_RUN, {
+            "case_id": case_id, "run_id": run_id, "sha256": sha256,
+            "sha256_json": audit.chain_json(sha256), "document": json.dumps(document),
+            "title": title, "tags": tags, "tags_json": json.dumps(tags), "now": now,
+            "actor": actor,
+            "case_payload": audit.chain_json({"sha256": sha256, "title": title, "tags": tags}),
+            "case_before_at": case_pieces[0], "case_before_seq": case_pieces[1],
+            "case_after_seq": case_pieces[2], "run_before_at": run_at,
+            "run_before_payload": run_before_payload, "run_after_payload": run_after_payload,
+            "run_after_seq": run_after_seq}).one_or_none()
+    return None if row is None else (run_id, row.case_id)

@@ -68,3 +68,38 @@ def test_a_failed_run_with_an_awkward_reason_verifies_and_out_of_attempts_ends_f
     assert execute_run(stuck, store, max_attempts=3, actor="w") == "failed"
     assert "gave up after 3 deliveries" in _events(store, stuck)[-1][2]["error"]
     assert audit.verify_chain(store).ok
+
+
+def test_posting_a_new_case_and_the_same_case_again_stores_it_once_with_its_events(store):
+    from service.store.models import Case, CaseTag, Run
+
+    document = _document()
+    document["tags"] = ["zeta", "alpha", "zeta"]
+    first = create_run(store, actor="pia.engineer", document=document)
+    again = create_run(store, actor="olli.engineer", document=dict(document))
+    assert again["case_id"] == first["case_id"] and again["run_id"] != first["run_id"]
+    case_id = first["case_id"]
+    with store.transaction() as session:
+        case = session.get(Case, case_id)
+        assert case.document == document and case.tags == ["alpha", "zeta"]
+        assert case.created_by == "pia.engineer"
+        tags = session.execute(select(CaseTag.tag).where(CaseTag.case_id == case_id)
+                               .order_by(CaseTag.tag)).scalars().all()
+        assert tags == ["alpha", "zeta"]
+        runs = {r.id: r for r in session.execute(
+            select(Run).where(Run.case_id == case_id)).scalars()}
+        assert {r.status for r in runs.values()} == {"queued"}
+        assert runs[again["run_id"]].submitted_by == "olli.engineer"
+    assert _events(store, case_id) == [("case.stored", "pia.engineer", {
+        "sha256": case.sha256, "title": document["title"], "tags": ["alpha", "zeta"]})]
+    for run_id, actor in ((first["run_id"], "pia.engineer"), (again["run_id"], "olli.engineer")):
+        assert _events(store, run_id) == [("run.queued", actor, {
+            "case_id": case_id, "case_sha256": case.sha256, "batch_id": None})]
+    from service.store.models import AuditEvent
+
+    with store.transaction() as session:
+        order = session.execute(select(AuditEvent.kind).where(
+            AuditEvent.subject.in_([case_id, first["run_id"]])).order_by(AuditEvent.seq)
+        ).scalars().all()
+    assert order == ["case.stored", "run.queued"]  # the chain lists the case before its run
+    assert audit.verify_chain(store).ok
