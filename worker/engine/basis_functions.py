@@ -48,6 +48,7 @@ from __future__ import annotations
 
 import math
 from dataclasses import dataclass
+from functools import cached_property
 
 import numpy as np
 from scipy import special
@@ -96,10 +97,10 @@ class LayerBasis:
     def thickness(self) -> float:
         return self.outer_edge - self.inner_edge
 
-    @property
+    @cached_property
     def decay_constant(self) -> float:
         """m = sqrt(k/D), 1/m (0 without first-order reaction)."""
-        return float(np.sqrt(self.rate_constant / self.diffusivity))
+        return math.sqrt(self.rate_constant / self.diffusivity)
 
     def evaluate(self, r: np.ndarray) -> tuple[np.ndarray, ...]:
         """Nodal functions, particular solution and their r-derivatives at positions ``r``.
@@ -154,12 +155,14 @@ class LayerBasis:
         a, b, m = self.inner_edge, self.outer_edge, self.decay_constant
         g2, dg2 = self._sinh_ratio(r - a)
         if n == 2:
-            g2, dg2 = (b / r) * g2, (b / r) * dg2 - (b / r) * g2 / r
+            weight = b / r
+            g2, dg2 = weight * g2, weight * dg2 - weight * g2 / r
         if self.nodal:
             g1, dg1 = self._sinh_ratio(b - r)
             dg1 = -dg1
             if n == 2:
-                g1, dg1 = (a / r) * g1, (a / r) * dg1 - (a / r) * g1 / r
+                weight = a / r
+                g1, dg1 = weight * g1, weight * dg1 - weight * g1 / r
             return g1, g2, dg1, dg2
         x = m * (r - a)  # at most 1 here
         if n == 0:
@@ -171,11 +174,12 @@ class LayerBasis:
 
     def _sinh_ratio(self, t: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
         """sinh(m t)/sinh(m L) and its t-derivative, 0 <= t <= L, in decaying-exponential form."""
-        m, length = self.decay_constant, self.thickness
-        denominator = -np.expm1(-2.0 * m * length)
+        m, length = self.decay_constant, self.outer_edge - self.inner_edge
+        denominator = -math.expm1(-2.0 * m * length)
         decay = np.exp(-m * (length - t))
-        value = decay * (-np.expm1(-2.0 * m * t)) / denominator
-        slope = m * decay * (1.0 + np.exp(-2.0 * m * t)) / denominator
+        twice = -2.0 * m * t
+        value = decay * (-np.expm1(twice)) / denominator
+        slope = m * decay * (1.0 + np.exp(twice)) / denominator
         return value, slope
 
     def _solid_sphere(self, r: np.ndarray) -> tuple[np.ndarray, ...]:

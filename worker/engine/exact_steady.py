@@ -6,9 +6,10 @@ two closed-form basis functions plus a particular solution (see ``basis_function
 layer as ``C = K (c1 g1 + c2 g2) + P`` with dimensionless ``g1``, ``g2`` that stay of order one,
 the unknowns are the coefficients (c1, c2) of each layer (concentration units, in the layer's
 ``C/K`` scale) and ONE linear system holds: a boundary row at each face, and at each interface
-one row for continuity of ``C/K`` and one for continuity of the flux. The rows are equilibrated (each divided by its largest
-coefficient) before ``numpy.linalg.solve``; the relative residual (checked against
-``RESIDUAL_LIMIT``) is recorded in ``diagnostics``.
+one row for continuity of ``C/K`` and one for continuity of the flux. The rows are equilibrated
+(each divided by its largest coefficient) before LAPACK ``dgesv`` (LU with partial pivoting, as
+``numpy.linalg.solve``) solves them; the relative residual (checked against ``RESIDUAL_LIMIT``)
+is recorded in ``diagnostics``.
 
 Zero-order layers are first solved as if they never ran out; if the concentration falls below
 zero anywhere in one of them a depleted zone exists and the problem is handed to
@@ -34,6 +35,7 @@ from __future__ import annotations
 import math
 
 import numpy as np
+from scipy.linalg.lapack import dgesv
 
 from worker.engine.basis_functions import LayerBasis
 from worker.engine.depletion_exact import solve_depleted
@@ -59,6 +61,7 @@ REFERENCE = (
 )
 # Relative residual of the equilibrated system above which the solution is reported as failed.
 RESIDUAL_LIMIT = 1e-10
+_TINY = np.finfo(float).tiny
 
 
 def _require(condition: bool, path: str, expected: str, got) -> None:
@@ -152,11 +155,15 @@ class _EdgeForms:
 
     With unknown columns (col1, col2) and C = K (c1 g1 + c2 g2) + P, each form is
     ``(coefficients by column, constant)``; ``u`` is C/K, ``flux`` is J = -D dC/dr.
+    ``evaluated``, if given, is ``basis.evaluate(r)`` at positions r that start with the two
+    edges (so one evaluation serves the edges and, say, quadrature nodes).
     """
 
-    def __init__(self, basis: LayerBasis, partition: float, columns: tuple[int | None, int]):
-        g1, g2, part, dg1, dg2, dpart = basis.evaluate(
-            np.array([basis.inner_edge, basis.outer_edge]))
+    def __init__(self, basis: LayerBasis, partition: float, columns: tuple[int | None, int],
+                 evaluated: tuple[np.ndarray, ...] | None = None):
+        if evaluated is None:
+            evaluated = basis.evaluate(np.array([basis.inner_edge, basis.outer_edge]))
+        g1, g2, part, dg1, dg2, dpart = evaluated
         d = basis.diffusivity
         self.u, self.flux = [], []
         for e in (0, 1):
@@ -201,8 +208,12 @@ def _face_row(problem: Problem, side: str, forms: _EdgeForms, partition: float):
     return terms, h * boundary.bulk - constant
 
 
-def _assemble(problem: Problem, bases: list[LayerBasis]):
-    """Equilibrated matrix, right-hand side and the unknown columns of each layer."""
+def _assemble(problem: Problem, bases: list[LayerBasis],
+              evaluated: list[tuple[np.ndarray, ...] | None] | None = None):
+    """Equilibrated matrix, right-hand side and the unknown columns of each layer.
+
+    ``evaluated``: per layer, its basis evaluated at positions starting with its two edges
+    (see ``_EdgeForms``), or None to evaluate at the edges here."""
     columns: list[tuple[int | None, int]] = []
     count = 0
     for basis in bases:
@@ -213,7 +224,10 @@ def _assemble(problem: Problem, bases: list[LayerBasis]):
             columns.append((count, count + 1))
             count += 2
     partitions = [ly.partition for ly in problem.layers]
-    forms = [_EdgeForms(b, k, c) for b, k, c in zip(bases, partitions, columns, strict=True)]
+    if evaluated is None:
+        evaluated = [None] * len(bases)
+    forms = [_EdgeForms(b, k, c, e)
+             for b, k, c, e in zip(bases, partitions, columns, evaluated, strict=True)]
     rows: list[tuple[dict[int, float], float]] = []
     if not bases[0].solid:
         rows.append(_face_row(problem, "inner", forms[0], partitions[0]))
@@ -233,7 +247,7 @@ def _assemble(problem: Problem, bases: list[LayerBasis]):
     return matrix, rhs, columns, forms
 
 
-def _apply(form: tuple[dict[int, float], float], unknowns: np.ndarray) -> float:
+def _apply(form: tuple[dict[int, float], float], unknowns) -> float:
     terms, constant = form
     return float(sum(c * unknowns[col] for col, c in terms.items()) + constant)
 
@@ -247,17 +261,28 @@ def _layer_piece(basis: LayerBasis, partition: float, c1: float, c2: float):
     return piece
 
 
-def _layer_consumption(problem: Problem, index: int, basis: LayerBasis, piece) -> float:
-    """∫ R(C) r^n dr over one layer from the closed-form C (never from the fluxes)."""
+def _consumption_rule(problem: Problem, index: int, basis: LayerBasis):
+    """Quadrature (nodes, weights) of the consumption integral of one layer, or None where that
+    integral is closed-form or zero (see ``_layer_consumption``)."""
+    reaction = problem.layers[index].reaction
+    if reaction.kind == "first_order" and reaction.rate_constant > 0.0:
+        return graded_gauss_rule(basis.inner_edge, basis.outer_edge, 1.0 / basis.decay_constant)
+    return None
+
+
+def _layer_consumption(problem: Problem, index: int, basis: LayerBasis, rule,
+                       values_at_nodes: np.ndarray | None) -> float:
+    """∫ R(C) r^n dr over one layer from the closed-form C (never from the fluxes).
+
+    ``rule`` is ``_consumption_rule`` of the layer and ``values_at_nodes`` the closed-form C at
+    its nodes (zero order is integrated exactly, first order by the graded rule)."""
     reaction = problem.layers[index].reaction
     a, b, n = basis.inner_edge, basis.outer_edge, basis.exponent
     if reaction.kind == "zero_order":
         return reaction.rate * (b ** (n + 1) - a ** (n + 1)) / (n + 1)
-    if reaction.kind == "first_order" and reaction.rate_constant > 0.0:
-        m = basis.decay_constant
-        nodes, weights = graded_gauss_rule(a, b, 1.0 / m)
-        values, _ = piece(nodes)
-        return float(reaction.rate_constant * np.sum(weights * values * nodes**n))
+    if rule is not None:
+        nodes, weights = rule
+        return float(reaction.rate_constant * np.sum(weights * values_at_nodes * nodes**n))
     return 0.0
 
 
@@ -280,23 +305,38 @@ def solve_linear(problem: Problem, *, consumption: bool = True
     the profile and the face fluxes.
     """
     bases = layer_bases(problem)
-    matrix, rhs, columns, forms = _assemble(problem, bases)
-    try:
-        unknowns = np.linalg.solve(matrix, rhs)
-    except np.linalg.LinAlgError as error:
-        return _failed(f"the closed-form system is singular: {error}"), []
-    residual = float(np.max(np.abs(matrix @ unknowns - rhs))
-                     / (np.max(np.abs(matrix)) * np.max(np.abs(unknowns)) + np.max(np.abs(rhs))
-                        + np.finfo(float).tiny))
-    diagnostics = {"relative_residual": residual, "unknowns": int(unknowns.size)}
     want_consumption = consumption
+    # One evaluation of each basis serves its edge forms and its consumption quadrature.
+    rules = [_consumption_rule(problem, i, basis) if want_consumption else None
+             for i, basis in enumerate(bases)]
+    evaluated = [
+        basis.evaluate(np.array([basis.inner_edge, basis.outer_edge]) if rule is None else
+                       np.concatenate(((basis.inner_edge, basis.outer_edge), rule[0])))
+        for basis, rule in zip(bases, rules, strict=True)]
+    matrix, rhs, columns, forms = _assemble(problem, bases, evaluated)
+    # LAPACK dgesv (LU with partial pivoting), the routine numpy.linalg.solve calls, without
+    # the wrapper checks that dominate its cost on these few unknowns
+    _, _, unknowns, info = dgesv(matrix, rhs)
+    if info > 0:
+        return _failed(f"the closed-form system is singular (zero pivot in row {info})"), []
+    residual = float(np.abs(matrix @ unknowns - rhs).max()
+                     / (np.abs(matrix).max() * np.abs(unknowns).max() + np.abs(rhs).max()
+                        + _TINY))
+    diagnostics = {"relative_residual": residual, "unknowns": int(unknowns.size)}
     pieces, consumption, minima = [], 0.0 if want_consumption else math.nan, []
+    values = unknowns.tolist()
     for i, (basis, (col_a, col_b)) in enumerate(zip(bases, columns, strict=True)):
-        c1 = 0.0 if col_a is None else float(unknowns[col_a])
-        piece = _layer_piece(basis, problem.layers[i].partition, c1, float(unknowns[col_b]))
+        partition = problem.layers[i].partition
+        c1 = 0.0 if col_a is None else values[col_a]
+        c2 = values[col_b]
+        piece = _layer_piece(basis, partition, c1, c2)
         pieces.append(piece)
         if want_consumption:
-            consumption += _layer_consumption(problem, i, basis, piece)
+            at_nodes = None
+            if rules[i] is not None:  # C at the quadrature nodes, as ``piece`` would give it
+                g1, g2, part = (v[2:] for v in evaluated[i][:3])
+                at_nodes = partition * (c1 * g1 + c2 * g2) + part
+            consumption += _layer_consumption(problem, i, basis, rules[i], at_nodes)
         minima.append(_zero_order_minimum(problem, i, basis, piece))
     profile = LayeredProfile(problem.edges, [ly.diffusivity for ly in problem.layers], pieces)
     success = residual <= RESIDUAL_LIMIT and (math.isfinite(consumption) or not want_consumption)
@@ -306,8 +346,8 @@ def solve_linear(problem: Problem, *, consumption: bool = True
         method=METHOD, reference=REFERENCE, success=success, message=message,
         concentration_at=profile.concentration_at, flux_at=profile.flux_at,
         profile_at=profile.profile_at,
-        flux_inner=_apply(forms[0].flux[0], unknowns),
-        flux_outer=_apply(forms[-1].flux[1], unknowns),
+        flux_inner=_apply(forms[0].flux[0], values),
+        flux_outer=_apply(forms[-1].flux[1], values),
         consumption=float(consumption), diagnostics=diagnostics)
     return solution, minima
 

@@ -261,28 +261,32 @@ def build_mesh(problem: Problem, cells_per_layer: Sequence[int] | int | None = N
     counts = _check_cells(cells_per_layer, len(problem.layers))
     n = problem.exponent
     layers = problem.layers
-    thickness = np.array([ly.thickness for ly in layers])
     edges = np.array(list(accumulate((ly.thickness for ly in layers), initial=problem.inner)))
-    count_array = np.array(counts)
-    layer_starts = np.array(list(accumulate(counts, initial=0)))
-    n_cells = int(layer_starts[-1])
-    layer_index = np.repeat(np.arange(len(counts)), counts)
+    starts = list(accumulate(counts, initial=0))
+    n_cells = starts[-1]
     # west face of every cell: its layer's inner edge plus whole cell widths; the layer edges
     # themselves are exact (local index 0), so interfaces carry no round-off drift
-    local = np.arange(n_cells) - layer_starts[:-1][layer_index]
     faces = np.empty(n_cells + 1)
-    faces[:-1] = edges[:-1][layer_index] + (thickness / count_array)[layer_index] * local
+    for j, (layer, count) in enumerate(zip(layers, counts, strict=True)):
+        faces[starts[j] : starts[j + 1]] = edges[j] + (layer.thickness / count) * np.arange(count)
     faces[-1] = edges[-1]
-    centres = 0.5 * (faces[:-1] + faces[1:])
+    west_faces, east_faces = faces[:-1], faces[1:]
+    centres = 0.5 * (west_faces + east_faces)
     if n == 0:
-        face_areas = np.ones_like(faces)
-        volumes = faces[1:] - faces[:-1]
+        face_areas = np.ones(n_cells + 1)
+        volumes = east_faces - west_faces
     else:
         face_areas = faces if n == 1 else faces * faces
         powered = face_areas * faces
         volumes = (powered[1:] - powered[:-1]) / (n + 1)
-    diffusivity = np.array([ly.diffusivity for ly in layers])[layer_index]
-    partition = np.array([ly.partition for ly in layers])[layer_index]
+    if len(layers) == 1:
+        layer_index = np.zeros(n_cells, dtype=np.intp)
+        diffusivity = np.full(n_cells, float(layers[0].diffusivity))
+        partition = np.full(n_cells, float(layers[0].partition))
+    else:
+        layer_index = np.repeat(np.arange(len(counts)), counts)
+        diffusivity = np.repeat(np.array([ly.diffusivity for ly in layers], dtype=float), counts)
+        partition = np.repeat(np.array([ly.partition for ly in layers], dtype=float), counts)
     return Mesh(
         exponent=n,
         edges=edges,
@@ -290,10 +294,10 @@ def build_mesh(problem: Problem, cells_per_layer: Sequence[int] | int | None = N
         centres=centres,
         face_areas=face_areas,
         volumes=volumes,
-        west_gaps=centres - faces[:-1],
-        east_gaps=faces[1:] - centres,
+        west_gaps=centres - west_faces,
+        east_gaps=east_faces - centres,
         layer_index=layer_index,
-        layer_starts=layer_starts,
+        layer_starts=np.array(starts),
         diffusivity=diffusivity,
         partition=partition,
         cells_per_layer=counts,
@@ -348,15 +352,19 @@ def assemble_diffusion(
     n_cells = mesh.n_cells
     d = mesh.diffusivity
     k = mesh.partition
-    west = np.zeros(n_cells + 1)
-    east = np.zeros(n_cells + 1)
+    dk = d * k
+    west = np.empty(n_cells + 1)
+    east = np.empty(n_cells + 1)
     constant = np.zeros(n_cells + 1)
 
     # interior faces: Q = (C_P/K_P - C_E/K_E) * A / (d_P/(D_P K_P) + d_E/(D_E K_E))
-    resistance = mesh.east_gaps[:-1] / (d[:-1] * k[:-1]) + mesh.west_gaps[1:] / (d[1:] * k[1:])
-    conductance = mesh.face_areas[1:-1] / resistance
-    west[1:-1] = conductance / k[:-1]
-    east[1:-1] = conductance / k[1:]
+    resistance = mesh.east_gaps[:-1] / dk[:-1]
+    resistance += mesh.west_gaps[1:] / dk[1:]
+    conductance = np.divide(mesh.face_areas[1:-1], resistance, out=resistance)
+    np.divide(conductance, k[:-1], out=west[1:-1])
+    np.divide(conductance, k[1:], out=east[1:-1])
+    west[0] = 0.0
+    east[-1] = 0.0
 
     g_in, far_in, fixed_in = _boundary_face(
         problem, "inner", float(mesh.face_areas[0]), float(mesh.west_gaps[0]), float(d[0])
@@ -369,10 +377,12 @@ def assemble_diffusion(
     west[-1] = g_out
     constant[-1] = -g_out * far_out - fixed_out
 
-    ab = np.zeros((3, n_cells))
-    ab[0, 1:] = -east[1:-1]
-    ab[1] = west[1:] + east[:-1]
-    ab[2, :-1] = -west[1:-1]
+    ab = np.empty((3, n_cells))
+    ab[0, 0] = 0.0
+    np.negative(east[1:-1], out=ab[0, 1:])
+    np.add(west[1:], east[:-1], out=ab[1])
+    np.negative(west[1:-1], out=ab[2, :-1])
+    ab[2, -1] = 0.0
     rhs = constant[:-1] - constant[1:]
     if source is not None:
         rhs = rhs + mesh.volumes * np.asarray(source(mesh.centres), dtype=float)
@@ -383,37 +393,44 @@ def assemble_diffusion(
 
 def reaction_terms(mesh: Mesh, problem: Problem) -> ReactionTerms:
     """Per-cell reaction constants of the problem on this mesh."""
-    n_layers = len(problem.layers)
     kinds = [layer.reaction.kind for layer in problem.layers]
     if all(kind == "none" for kind in kinds):
         nothing = np.zeros(mesh.n_cells)
         return ReactionTerms(first_order=nothing, vmax=nothing, km=nothing, zero_order=nothing)
-    first = np.zeros(n_layers)
-    vmax = np.zeros(n_layers)
-    km = np.zeros(n_layers)
-    zero = np.zeros(n_layers)
+    first, vmax, km, zero = [], [], [], []
     for j, layer in enumerate(problem.layers):
         reaction = layer.reaction
+        values = (0.0, 0.0, 0.0, 0.0)
         if reaction.kind == "first_order":
-            first[j] = reaction.rate_constant
+            values = (reaction.rate_constant, 0.0, 0.0, 0.0)
         elif reaction.kind == "michaelis_menten":
             if reaction.km <= 0.0:
                 raise ValueError(
                     f"layers[{j}].reaction.km: expected a positive Michaelis constant, "
                     f"got {reaction.km!r}"
                 )
-            vmax[j] = reaction.vmax
-            km[j] = reaction.km
+            values = (0.0, reaction.vmax, reaction.km, 0.0)
         elif reaction.kind == "zero_order":
-            zero[j] = reaction.rate
+            values = (0.0, 0.0, 0.0, reaction.rate)
         elif reaction.kind != "none":
             raise ValueError(f"layers[{j}].reaction.kind: unknown kind {reaction.kind!r}")
-    index = mesh.layer_index
+        for per_layer, value in zip((first, vmax, km, zero), values, strict=True):
+            per_layer.append(float(value))
+    counts = mesh.cells_per_layer or np.diff(mesh.layer_starts)
+    zeros = np.zeros(mesh.n_cells)  # shared by the kinds absent from every layer
+
+    def per_cell(per_layer: list[float]) -> np.ndarray:
+        if not any(per_layer):
+            return zeros
+        if len(per_layer) == 1:
+            return np.full(mesh.n_cells, per_layer[0])
+        return np.repeat(np.array(per_layer), counts)
+
     return ReactionTerms(
-        first_order=first[index],
-        vmax=vmax[index],
-        km=km[index],
-        zero_order=zero[index],
+        first_order=per_cell(first),
+        vmax=per_cell(vmax),
+        km=per_cell(km),
+        zero_order=per_cell(zero),
         has_michaelis_menten=any(v > 0.0 for v in vmax),
         has_zero_order=any(q > 0.0 for q in zero),
     )
@@ -426,8 +443,9 @@ def face_flux_densities(mesh: Mesh, face_fluxes: np.ndarray) -> np.ndarray:
     areas = mesh.face_areas
     if areas[0] > 0.0:
         return face_fluxes / areas
-    out = np.zeros_like(face_fluxes)
-    out[1:] = face_fluxes[1:] / areas[1:]
+    out = np.empty_like(face_fluxes)
+    out[0] = 0.0
+    np.divide(face_fluxes[1:], areas[1:], out=out[1:])
     return out
 
 

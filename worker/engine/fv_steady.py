@@ -329,9 +329,9 @@ def _solve_cells(mesh: Mesh, operator: DiffusionOperator, terms: ReactionTerms, 
         "message": "linear system solved directly",
     }
     if not (terms.has_michaelis_menten or terms.has_zero_order):
-        ab = _with_diagonal(operator.ab, volumes * terms.first_order)
-        c = solve_tridiagonal(ab, operator.rhs)
-        return c, volumes * terms.first_order * c, np.zeros(mesh.n_cells, dtype=bool), record
+        uptake = volumes * terms.first_order
+        c = solve_tridiagonal(_with_diagonal(operator.ab, uptake), operator.rhs)
+        return c, uptake * c, np.zeros(mesh.n_cells, dtype=bool), record
 
     history = record["residual_history"]
     balance = _Balance(mesh, operator, terms)
@@ -459,7 +459,8 @@ def solve_fv(
     concentration_at, flux_at = make_profile_functions(mesh, c, flux_density)
 
     fronts: list[float] = []
-    if active.any():
+    depleted_cells = int(np.count_nonzero(active))
+    if depleted_cells:
         load = mesh.volumes * terms.zero_order
         live_fraction = np.divide(achieved, load, out=np.ones_like(load), where=load > 0.0)
         fronts = _depletion_fronts(mesh, active, np.clip(live_fraction, 0.0, 1.0))
@@ -470,7 +471,7 @@ def solve_fv(
         "newton_iterations": record["newton_iterations"],
         "active_set_iterations": record["active_set_iterations"],
         "residual_history": record["residual_history"],
-        "depleted_cells": int(active.sum()),
+        "depleted_cells": depleted_cells,
         "depletion_fronts": fronts,
         "cell_centres": mesh.centres,
         "cell_concentrations": c,
