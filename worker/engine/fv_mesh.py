@@ -54,6 +54,7 @@ accurate because the boundary flux itself is.
 
 from __future__ import annotations
 
+import math
 from collections.abc import Callable, Sequence
 from dataclasses import dataclass
 from itertools import accumulate
@@ -83,13 +84,18 @@ __all__ = [
     "THIELE_CELL_LIMIT",
     "DiffusionOperator",
     "Mesh",
+    "MeshStack",
+    "NodalProfile",
     "ReactionTerms",
     "assemble_diffusion",
+    "assemble_stack",
     "boundary_concentration_scale",
     "build_mesh",
+    "build_mesh_stack",
     "default_cells_per_layer",
     "face_flux_densities",
     "layer_profiles",
+    "layer_reaction_constants",
     "make_profile_functions",
     "reaction_terms",
     "solve_tridiagonal",
@@ -258,49 +264,145 @@ def build_mesh(problem: Problem, cells_per_layer: Sequence[int] | int | None = N
     """
     if cells_per_layer is None:
         cells_per_layer = default_cells_per_layer(problem)
-    counts = _check_cells(cells_per_layer, len(problem.layers))
-    n = problem.exponent
-    layers = problem.layers
-    edges = np.array(list(accumulate((ly.thickness for ly in layers), initial=problem.inner)))
-    starts = list(accumulate(counts, initial=0))
-    n_cells = starts[-1]
-    # west face of every cell: its layer's inner edge plus whole cell widths; the layer edges
-    # themselves are exact (local index 0), so interfaces carry no round-off drift
-    faces = np.empty(n_cells + 1)
-    for j, (layer, count) in enumerate(zip(layers, counts, strict=True)):
-        faces[starts[j] : starts[j + 1]] = edges[j] + (layer.thickness / count) * np.arange(count)
-    faces[-1] = edges[-1]
+    return build_mesh_stack(problem, [cells_per_layer]).meshes[0]
+
+
+@dataclass(frozen=True)
+class MeshStack:
+    """Several meshes of one problem laid end to end in shared arrays.
+
+    Array work (geometry, conductances, the banded solve) then runs once for all of them, with
+    the same arithmetic, element by element, as for each mesh alone. Mesh g owns faces
+    ``offsets[g] .. offsets[g] + N_g`` and cells ``offsets[g] .. offsets[g] + N_g - 1`` of the
+    stacked arrays; between the outer face of one mesh and the inner face of the next lies one
+    spacer cell (index in ``spacers``), which the stacked operator decouples (identity row).
+    ``meshes`` are views into the stacked arrays. The spacer cells carry D = inf and K = 1, so
+    that the conductance formula stays finite on the faces next to them (those faces are
+    boundary faces of their meshes and are overwritten).
+
+    Attributes
+    ----------
+    meshes : tuple of Mesh
+    offsets, spacers : tuple of int
+    exponent : int
+        Geometric exponent n of every mesh.
+    faces, face_areas : ndarray, shape (F,)
+        Stacked faces (F = sum of N_g + 1) and their areas r^n.
+    centres, volumes, west_gaps, east_gaps, diffusivity, partition : ndarray, shape (F - 1,)
+        Stacked cell data, spacer cells included.
+    """
+
+    meshes: tuple[Mesh, ...]
+    offsets: tuple[int, ...]
+    spacers: tuple[int, ...]
+    exponent: int
+    faces: np.ndarray
+    face_areas: np.ndarray
+    centres: np.ndarray
+    volumes: np.ndarray
+    west_gaps: np.ndarray
+    east_gaps: np.ndarray
+    diffusivity: np.ndarray
+    partition: np.ndarray
+
+    @property
+    def blocks(self) -> list[tuple[int, int]]:
+        """(first cell, cells) of each mesh in the stacked arrays."""
+        return [(first, mesh.n_cells) for first, mesh in zip(self.offsets, self.meshes,
+                                                              strict=True)]
+
+    def per_cell(self, per_layer: Sequence[float], spacer_value: float = 0.0) -> np.ndarray:
+        """A per-layer property spread over the stacked cells (spacers get ``spacer_value``)."""
+        return _spread(per_layer, [m.cells_per_layer for m in self.meshes], spacer_value)
+
+
+def _spread(per_layer: Sequence[float], counts_list: Sequence[Sequence[int]],
+            spacer_value: float) -> np.ndarray:
+    """Per-layer values repeated over the cells of each stacked mesh, one spacer value between
+    consecutive meshes."""
+    if len(counts_list) == 1 and len(per_layer) == 1:
+        return np.full(counts_list[0][0], float(per_layer[0]))
+    values: list[float] = []
+    repeats: list[int] = []
+    for g, counts in enumerate(counts_list):
+        if g:
+            values.append(spacer_value)
+            repeats.append(1)
+        values.extend(float(v) for v in per_layer)
+        repeats.extend(counts)
+    return np.repeat(np.array(values), repeats)
+
+
+def _cell_geometry(faces: np.ndarray, n: int):
+    """Centres, face areas r^n, r^n-weighted volumes and west/east gaps of the cells between
+    consecutive faces."""
     west_faces, east_faces = faces[:-1], faces[1:]
     centres = 0.5 * (west_faces + east_faces)
     if n == 0:
-        face_areas = np.ones(n_cells + 1)
+        face_areas = np.ones(faces.size)
         volumes = east_faces - west_faces
     else:
         face_areas = faces if n == 1 else faces * faces
         powered = face_areas * faces
         volumes = (powered[1:] - powered[:-1]) / (n + 1)
-    if len(layers) == 1:
-        layer_index = np.zeros(n_cells, dtype=np.intp)
-        diffusivity = np.full(n_cells, float(layers[0].diffusivity))
-        partition = np.full(n_cells, float(layers[0].partition))
-    else:
-        layer_index = np.repeat(np.arange(len(counts)), counts)
-        diffusivity = np.repeat(np.array([ly.diffusivity for ly in layers], dtype=float), counts)
-        partition = np.repeat(np.array([ly.partition for ly in layers], dtype=float), counts)
-    return Mesh(
-        exponent=n,
-        edges=edges,
-        faces=faces,
-        centres=centres,
-        face_areas=face_areas,
-        volumes=volumes,
-        west_gaps=centres - west_faces,
-        east_gaps=east_faces - centres,
-        layer_index=layer_index,
-        layer_starts=np.array(starts),
-        diffusivity=diffusivity,
-        partition=partition,
-        cells_per_layer=counts,
+    return centres, face_areas, volumes, centres - west_faces, east_faces - centres
+
+
+def build_mesh_stack(problem: Problem, cells: Sequence[Sequence[int] | int]) -> MeshStack:
+    """Build the meshes with the given cells per layer (one entry per mesh), stacked.
+
+    Each mesh is exactly what ``build_mesh`` gives for its cells (see ``MeshStack``).
+    """
+    n = problem.exponent
+    layers = problem.layers
+    counts_list = [_check_cells(c, len(layers)) for c in cells]
+    edges = np.array(list(accumulate((ly.thickness for ly in layers), initial=problem.inner)))
+    faces = np.empty(sum(sum(counts) + 1 for counts in counts_list))
+    offsets: list[int] = []
+    starts_list: list[list[int]] = []
+    position = 0
+    for counts in counts_list:
+        starts = list(accumulate(counts, initial=0))
+        # west face of every cell: its layer's inner edge plus whole cell widths; the layer
+        # edges themselves are exact (local index 0), so interfaces carry no round-off drift
+        for j, (layer, count) in enumerate(zip(layers, counts, strict=True)):
+            first = position + starts[j]
+            faces[first : first + count] = edges[j] + (layer.thickness / count) * np.arange(count)
+        faces[position + starts[-1]] = edges[-1]
+        offsets.append(position)
+        starts_list.append(starts)
+        position += starts[-1] + 1
+    spacers = tuple(first - 1 for first in offsets[1:])
+    centres, face_areas, volumes, west_gaps, east_gaps = _cell_geometry(faces, n)
+
+    diffusivity = _spread([ly.diffusivity for ly in layers], counts_list, math.inf)
+    partition = _spread([ly.partition for ly in layers], counts_list, 1.0)
+    meshes = []
+    for first, counts, starts in zip(offsets, counts_list, starts_list, strict=True):
+        cells_here = slice(first, first + starts[-1])
+        if len(layers) == 1:
+            layer_index = np.zeros(starts[-1], dtype=np.intp)
+        else:
+            layer_index = np.repeat(np.arange(len(counts)), counts)
+        meshes.append(Mesh(
+            exponent=n,
+            edges=edges,
+            faces=faces[first : first + starts[-1] + 1],
+            centres=centres[cells_here],
+            face_areas=face_areas[first : first + starts[-1] + 1],
+            volumes=volumes[cells_here],
+            west_gaps=west_gaps[cells_here],
+            east_gaps=east_gaps[cells_here],
+            layer_index=layer_index,
+            layer_starts=np.array(starts),
+            diffusivity=diffusivity[cells_here],
+            partition=partition[cells_here],
+            cells_per_layer=counts,
+        ))
+    return MeshStack(
+        meshes=tuple(meshes), offsets=tuple(offsets), spacers=spacers, exponent=n, faces=faces,
+        face_areas=face_areas, centres=centres, volumes=volumes, west_gaps=west_gaps,
+        east_gaps=east_gaps, diffusivity=diffusivity, partition=partition,
     )
 
 
@@ -349,33 +451,72 @@ def assemble_diffusion(
     DiffusionOperator
         ``ab @ C + V * R(C) = rhs`` is the discrete steady balance.
     """
-    n_cells = mesh.n_cells
-    d = mesh.diffusivity
-    k = mesh.partition
+    return _assemble(problem, mesh.face_areas, mesh.volumes, mesh.centres, mesh.west_gaps,
+                     mesh.east_gaps, mesh.diffusivity, mesh.partition, [(0, mesh.n_cells)], (),
+                     source)
+
+
+def assemble_stack(
+    stack: MeshStack,
+    problem: Problem,
+    source: Callable[[np.ndarray], np.ndarray] | None = None,
+) -> tuple[DiffusionOperator, tuple[DiffusionOperator, ...]]:
+    """The diffusion operator of every mesh of a stack, assembled at once.
+
+    Returns the stacked operator (block diagonal: each mesh's rows, and an identity row with a
+    zero right-hand side for each spacer cell) and, as views into it, the operator of each mesh,
+    equal to what ``assemble_diffusion`` gives for that mesh.
+    """
+    whole = _assemble(problem, stack.face_areas, stack.volumes, stack.centres, stack.west_gaps,
+                      stack.east_gaps, stack.diffusivity, stack.partition, stack.blocks,
+                      stack.spacers, source)
+    operators = []
+    for first, cells in stack.blocks:
+        faces = slice(first, first + cells + 1)
+        operators.append(DiffusionOperator(
+            ab=whole.ab[:, first : first + cells],
+            rhs=whole.rhs[first : first + cells],
+            west_coefficient=whole.west_coefficient[faces],
+            east_coefficient=whole.east_coefficient[faces],
+            face_constant=whole.face_constant[faces],
+        ))
+    return whole, tuple(operators)
+
+
+def _assemble(problem: Problem, face_areas, volumes, centres, west_gaps, east_gaps, d, k,
+              blocks: Sequence[tuple[int, int]], spacers: Sequence[int],
+              source: Callable[[np.ndarray], np.ndarray] | None) -> DiffusionOperator:
+    """Operator of the cells between consecutive faces; ``blocks`` are the (first cell, cells)
+    of each mesh, whose first and last faces are boundary faces; ``spacers`` the cells between
+    meshes (see ``MeshStack``)."""
+    n_cells = centres.size
     dk = d * k
     west = np.empty(n_cells + 1)
     east = np.empty(n_cells + 1)
     constant = np.zeros(n_cells + 1)
 
     # interior faces: Q = (C_P/K_P - C_E/K_E) * A / (d_P/(D_P K_P) + d_E/(D_E K_E))
-    resistance = mesh.east_gaps[:-1] / dk[:-1]
-    resistance += mesh.west_gaps[1:] / dk[1:]
-    conductance = np.divide(mesh.face_areas[1:-1], resistance, out=resistance)
+    resistance = east_gaps[:-1] / dk[:-1]
+    resistance += west_gaps[1:] / dk[1:]
+    conductance = np.divide(face_areas[1:-1], resistance, out=resistance)
     np.divide(conductance, k[:-1], out=west[1:-1])
     np.divide(conductance, k[1:], out=east[1:-1])
-    west[0] = 0.0
-    east[-1] = 0.0
 
-    g_in, far_in, fixed_in = _boundary_face(
-        problem, "inner", float(mesh.face_areas[0]), float(mesh.west_gaps[0]), float(d[0])
-    )
-    east[0] = g_in
-    constant[0] = g_in * far_in + fixed_in
-    g_out, far_out, fixed_out = _boundary_face(
-        problem, "outer", float(mesh.face_areas[-1]), float(mesh.east_gaps[-1]), float(d[-1])
-    )
-    west[-1] = g_out
-    constant[-1] = -g_out * far_out - fixed_out
+    for first, cells in blocks:
+        last = first + cells  # the outer face
+        g_in, far_in, fixed_in = _boundary_face(
+            problem, "inner", float(face_areas[first]), float(west_gaps[first]), float(d[first])
+        )
+        west[first] = 0.0
+        east[first] = g_in
+        constant[first] = g_in * far_in + fixed_in
+        g_out, far_out, fixed_out = _boundary_face(
+            problem, "outer", float(face_areas[last]), float(east_gaps[last - 1]),
+            float(d[last - 1])
+        )
+        west[last] = g_out
+        east[last] = 0.0
+        constant[last] = -g_out * far_out - fixed_out
 
     ab = np.empty((3, n_cells))
     ab[0, 0] = 0.0
@@ -385,18 +526,25 @@ def assemble_diffusion(
     ab[2, -1] = 0.0
     rhs = constant[:-1] - constant[1:]
     if source is not None:
-        rhs = rhs + mesh.volumes * np.asarray(source(mesh.centres), dtype=float)
+        rhs = rhs + volumes * np.asarray(source(centres), dtype=float)
+    for j in spacers:  # decoupled identity rows
+        ab[1, j] = 1.0
+        ab[0, j + 1] = 0.0
+        ab[2, j - 1] = 0.0
+        rhs[j] = 0.0
     return DiffusionOperator(
         ab=ab, rhs=rhs, west_coefficient=west, east_coefficient=east, face_constant=constant
     )
 
 
-def reaction_terms(mesh: Mesh, problem: Problem) -> ReactionTerms:
-    """Per-cell reaction constants of the problem on this mesh."""
-    kinds = [layer.reaction.kind for layer in problem.layers]
-    if all(kind == "none" for kind in kinds):
-        nothing = np.zeros(mesh.n_cells)
-        return ReactionTerms(first_order=nothing, vmax=nothing, km=nothing, zero_order=nothing)
+def layer_reaction_constants(problem: Problem) -> tuple[list[float], ...]:
+    """Per-layer (first-order k, vmax, km, zero-order Q), 0 where a layer lacks that kind.
+
+    Raises
+    ------
+    ValueError
+        For a Michaelis-Menten layer with km <= 0 or an unknown reaction kind.
+    """
     first, vmax, km, zero = [], [], [], []
     for j, layer in enumerate(problem.layers):
         reaction = layer.reaction
@@ -416,15 +564,20 @@ def reaction_terms(mesh: Mesh, problem: Problem) -> ReactionTerms:
             raise ValueError(f"layers[{j}].reaction.kind: unknown kind {reaction.kind!r}")
         for per_layer, value in zip((first, vmax, km, zero), values, strict=True):
             per_layer.append(float(value))
-    counts = mesh.cells_per_layer or np.diff(mesh.layer_starts)
+    return first, vmax, km, zero
+
+
+def reaction_terms(mesh: Mesh, problem: Problem) -> ReactionTerms:
+    """Per-cell reaction constants of the problem on this mesh."""
+    if all(layer.reaction.kind == "none" for layer in problem.layers):
+        nothing = np.zeros(mesh.n_cells)
+        return ReactionTerms(first_order=nothing, vmax=nothing, km=nothing, zero_order=nothing)
+    first, vmax, km, zero = layer_reaction_constants(problem)
+    counts = [mesh.cells_per_layer or tuple(np.diff(mesh.layer_starts))]
     zeros = np.zeros(mesh.n_cells)  # shared by the kinds absent from every layer
 
     def per_cell(per_layer: list[float]) -> np.ndarray:
-        if not any(per_layer):
-            return zeros
-        if len(per_layer) == 1:
-            return np.full(mesh.n_cells, per_layer[0])
-        return np.repeat(np.array(per_layer), counts)
+        return _spread(per_layer, counts, 0.0) if any(per_layer) else zeros
 
     return ReactionTerms(
         first_order=per_cell(first),
@@ -436,17 +589,14 @@ def reaction_terms(mesh: Mesh, problem: Problem) -> ReactionTerms:
     )
 
 
-def face_flux_densities(mesh: Mesh, face_fluxes: np.ndarray) -> np.ndarray:
+def face_flux_densities(mesh: Mesh | MeshStack, face_fluxes: np.ndarray) -> np.ndarray:
     """Outward flux density J = Q / r_f^n at every face (0 at a solid centre), amount/(m^2 s)."""
     if mesh.exponent == 0:
         return face_fluxes.copy()
     areas = mesh.face_areas
     if areas[0] > 0.0:
         return face_fluxes / areas
-    out = np.empty_like(face_fluxes)
-    out[0] = 0.0
-    np.divide(face_fluxes[1:], areas[1:], out=out[1:])
-    return out
+    return np.divide(face_fluxes, areas, out=np.zeros_like(face_fluxes), where=areas > 0.0)
 
 
 def surface_values(mesh: Mesh, c: np.ndarray, flux_density: np.ndarray):
@@ -482,14 +632,20 @@ def layer_profiles(mesh: Mesh, c: np.ndarray, flux_density: np.ndarray):
     reconstructed edge values (so partition jumps are kept), and its faces with their outward
     flux densities.
     """
-    west_side, east_side = surface_values(mesh, c, flux_density)
+    d = mesh.diffusivity
     profiles = []
     for j in range(mesh.n_layers):
         first, last = int(mesh.layer_starts[j]), int(mesh.layer_starts[j + 1])
-        positions = np.concatenate(
-            ([mesh.faces[first]], mesh.centres[first:last], [mesh.faces[last]])
-        )
-        values = np.concatenate(([east_side[first]], c[first:last], [west_side[last]]))
+        positions = np.empty(last - first + 2)
+        positions[0] = mesh.faces[first]
+        positions[1:-1] = mesh.centres[first:last]
+        positions[-1] = mesh.faces[last]
+        values = np.empty(last - first + 2)
+        # the edge values of ``surface_values``: east side of the inner face, west side of the
+        # outer face (the same half-cell relations, for these two faces only)
+        values[0] = c[first] + flux_density[first] * mesh.west_gaps[first] / d[first]
+        values[1:-1] = c[first:last]
+        values[-1] = c[last - 1] - flux_density[last] * mesh.east_gaps[last - 1] / d[last - 1]
         profiles.append(
             (positions, values, mesh.faces[first : last + 1], flux_density[first : last + 1])
         )
@@ -513,27 +669,47 @@ def _locate(edges: np.ndarray, r: np.ndarray, layer: int | None) -> np.ndarray:
     return np.clip(np.searchsorted(edges, r, side="left") - 1, 0, edges.size - 2)
 
 
-def make_profile_functions(mesh: Mesh, c: np.ndarray, flux_density: np.ndarray):
-    """``(concentration_at, flux_at)`` callables as ``SteadySolution`` describes them.
+class NodalProfile:
+    """The piecewise-linear profile of a finite-volume solution, as ``SteadySolution``'s
+    ``concentration_at``, ``flux_at`` and ``profile_at`` describe it.
 
-    Both take positions r (m, scalar or array) and an optional ``layer`` index, and interpolate
-    linearly between the nodes of ``layer_profiles`` (flux: between faces).
+    Each takes positions r (m, scalar or array) and an optional ``layer`` index, and
+    interpolates linearly between the nodes of ``layer_profiles`` (flux: between faces).
     """
-    edges = mesh.edges
-    cache: list = []
 
-    def _evaluate(r, layer, which):
-        if not cache:  # built on first use: many callers only read the face figures
-            cache.append(layer_profiles(mesh, c, flux_density))
-        profiles = cache[0]
+    def __init__(self, mesh: Mesh, c: np.ndarray, flux_density: np.ndarray):
+        self.mesh = mesh
+        self.c = c
+        self.flux_density = flux_density
+        self.edges = mesh.edges
+        bounds = self.edges.tolist()
+        slack = 1e-12 * max(abs(bounds[-1]), abs(bounds[0]), bounds[-1] - bounds[0])
+        # closed interval of each layer, widened by the round-off slack
+        self._intervals = [(a - slack, b + slack) for a, b in zip(bounds[:-1], bounds[1:],
+                                                                    strict=True)]
+        self._profiles = None
+
+    @property
+    def profiles(self):
+        if self._profiles is None:  # built on first use: many callers only read face figures
+            self._profiles = layer_profiles(self.mesh, self.c, self.flux_density)
+        return self._profiles
+
+    def _within(self, r_array: np.ndarray, layer: int | None) -> bool:
+        """True when ``layer`` is a valid index and every r lies in its closed interval."""
+        if layer is None or not 0 <= layer < len(self._intervals) or not r_array.size:
+            return False
+        low, high = self._intervals[layer]
+        return bool(low <= r_array.min() and r_array.max() <= high)
+
+    def _evaluate(self, r, layer, which):
+        profiles = self.profiles
         r_array = np.atleast_1d(np.asarray(r, dtype=float))
-        if layer is not None and 0 <= layer < edges.size - 1 and r_array.size:
-            slack = 1e-12 * max(abs(edges[-1]), abs(edges[0]), edges[-1] - edges[0])
-            if edges[layer] - slack <= r_array.min() and r_array.max() <= edges[layer + 1] + slack:
-                positions, values = profiles[layer][2 * which], profiles[layer][1 + 2 * which]
-                out = np.interp(r_array, positions, values)
-                return out if np.ndim(r) else out[0]
-        owners = _locate(edges, r_array, layer)
+        if self._within(r_array, layer):
+            positions, values = profiles[layer][2 * which], profiles[layer][1 + 2 * which]
+            out = np.interp(r_array, positions, values)
+            return out if np.ndim(r) else out[0]
+        owners = _locate(self.edges, r_array, layer)
         out = np.empty_like(r_array)
         for j in np.unique(owners):
             chosen = owners == j
@@ -541,13 +717,26 @@ def make_profile_functions(mesh: Mesh, c: np.ndarray, flux_density: np.ndarray):
             out[chosen] = np.interp(r_array[chosen], positions, values)
         return out if np.ndim(r) else out[0]
 
-    def concentration_at(r, layer: int | None = None):
-        return _evaluate(r, layer, 0)
+    def concentration_at(self, r, layer: int | None = None):
+        return self._evaluate(r, layer, 0)
 
-    def flux_at(r, layer: int | None = None):
-        return _evaluate(r, layer, 1)
+    def flux_at(self, r, layer: int | None = None):
+        return self._evaluate(r, layer, 1)
 
-    return concentration_at, flux_at
+    def profile_at(self, r, layer: int | None = None):
+        """(concentration, outward flux) at positions r."""
+        r_array = np.atleast_1d(np.asarray(r, dtype=float))
+        if np.ndim(r) == 1 and self._within(r_array, layer):
+            positions, values, faces, fluxes = self.profiles[layer]
+            return np.interp(r_array, positions, values), np.interp(r_array, faces, fluxes)
+        return self.concentration_at(r, layer), self.flux_at(r, layer)
+
+
+def make_profile_functions(mesh: Mesh, c: np.ndarray, flux_density: np.ndarray):
+    """``(concentration_at, flux_at)`` callables as ``SteadySolution`` describes them (see
+    ``NodalProfile``)."""
+    profile = NodalProfile(mesh, c, flux_density)
+    return profile.concentration_at, profile.flux_at
 
 
 def boundary_concentration_scale(problem: Problem) -> float:

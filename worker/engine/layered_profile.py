@@ -36,6 +36,7 @@ class LayeredProfile:
         self.diffusivities = np.asarray(diffusivities, dtype=float)
         self.pieces = list(pieces)
         self._slack = EDGE_TOLERANCE * max(abs(self.edges[-1]), self.edges[-1] - self.edges[0])
+        self._bounds = self.edges.tolist()
 
     def _layer_of(self, r: np.ndarray, layer: int | None) -> np.ndarray:
         low, high = self.edges[0] - self._slack, self.edges[-1] + self._slack
@@ -58,9 +59,10 @@ class LayeredProfile:
         """(C, dC/dr) when every position lies in the given layer, else None."""
         if layer is None or not 0 <= layer < len(self.pieces) or not flat.size:
             return None
-        a, b = self.edges[layer], self.edges[layer + 1]
-        if a - self._slack <= float(flat.min()) and float(flat.max()) <= b + self._slack:
-            return self.pieces[layer](np.clip(flat, a, b))  # NaN fails both tests above
+        a, b = self._bounds[layer], self._bounds[layer + 1]
+        low, high = float(flat.min()), float(flat.max())
+        if a - self._slack <= low and high <= b + self._slack:  # NaN fails both tests
+            return self.pieces[layer](flat if a <= low and high <= b else np.clip(flat, a, b))
         return None
 
     def profile_at(self, r, layer: int | None = None) -> tuple[np.ndarray, np.ndarray]:
@@ -72,6 +74,8 @@ class LayeredProfile:
             return self.concentration_at(r, layer), self.flux_at(r, layer)
         value, gradient = both
         flux = -self.diffusivities[layer] * np.asarray(gradient, dtype=float)
+        if r.ndim == 1:
+            return np.asarray(value, dtype=float), flux
         return (np.asarray(value, dtype=float).reshape(r.shape), flux.reshape(r.shape))
 
     def _evaluate(self, r, layer: int | None, want_flux: bool) -> np.ndarray:
