@@ -102,7 +102,16 @@ def _describe(value: Any) -> str:
 # --------------------------------------------------------------------------------------- fields
 
 
-class Quantity(fields.Field):
+class _CheckedInDeserialize(fields.Field):
+    """A field whose rules all run in ``_deserialize``: validation adds nothing unless
+    validators were given (marshmallow builds a combined validator on every call)."""
+
+    def _validate(self, value: Any) -> None:
+        if self.validators:
+            super()._validate(value)
+
+
+class Quantity(_CheckedInDeserialize):
     """A dimensional value, ``"<number> <unit>"`` or ``{"value": number, "unit": str}``.
 
     Parameters
@@ -229,7 +238,7 @@ class PlainInteger(fields.Integer):
         return {"type": "integer"}
 
 
-class ByKind(fields.Field):
+class ByKind(_CheckedInDeserialize):
     """An object whose ``kind`` picks the schema that loads it (reactions, boundaries, regimes)."""
 
     def __init__(self, choices: Mapping[str, type[Schema]], noun: str, **kwargs: Any) -> None:
@@ -258,7 +267,7 @@ class ByKind(fields.Field):
         return value
 
 
-class Tolerances(fields.Field):
+class Tolerances(_CheckedInDeserialize):
     """``{"<check>[.<quantity>]": positive finite number}``."""
 
     def _deserialize(self, value: Any, attr: str | None, data: Any, **kwargs: Any) -> dict:
@@ -535,20 +544,37 @@ def _value(data: Mapping, key: str) -> float | None:
     return item.value if isinstance(item, SIValue) else None
 
 
+#: Leaf types of a loaded document, told apart without the slower abstract Mapping check.
+_LEAF_TYPES = frozenset({SIValue, str, float, int, bool, type(None)})
+
+
+def _is_container(item: Any) -> bool:
+    kind = type(item)
+    if kind is dict or kind is list:  # what a loaded document is made of
+        return True
+    return kind not in _LEAF_TYPES and isinstance(item, Mapping | list)
+
+
 def iter_si_values(data: Any, path: str = "") -> Iterator[tuple[str, SIValue]]:
     """Every loaded dimensional value with its path, in document order."""
-    if isinstance(data, Mapping):
+    found: list[tuple[str, SIValue]] = []
+    _collect_si_values(data, path, found)
+    return iter(found)
+
+
+def _collect_si_values(data: Any, path: str, found: list[tuple[str, SIValue]]) -> None:
+    if type(data) is dict or isinstance(data, Mapping):
         for key, item in data.items():
             if isinstance(item, SIValue):
-                yield (f"{path}.{key}" if path else key), item
-            elif isinstance(item, Mapping | list):
-                yield from iter_si_values(item, f"{path}.{key}" if path else key)
+                found.append((f"{path}.{key}" if path else key, item))
+            elif _is_container(item):
+                _collect_si_values(item, f"{path}.{key}" if path else key, found)
     elif isinstance(data, list):
         for index, item in enumerate(data):
             if isinstance(item, SIValue):
-                yield f"{path}[{index}]", item
-            elif isinstance(item, Mapping | list):
-                yield from iter_si_values(item, f"{path}[{index}]")
+                found.append((f"{path}[{index}]", item))
+            elif _is_container(item):
+                _collect_si_values(item, f"{path}[{index}]", found)
 
 
 def _consumes(reaction: Any) -> bool:
