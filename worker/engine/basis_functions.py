@@ -48,7 +48,6 @@ from __future__ import annotations
 
 import math
 from dataclasses import dataclass
-from functools import cached_property
 
 import numpy as np
 from scipy import special
@@ -63,6 +62,15 @@ def _x_cosh_minus_sinh(x: np.ndarray) -> np.ndarray:
     small = np.minimum(x, _SERIES_LIMIT)
     series = sum(2 * k * small ** (2 * k + 1) / math.factorial(2 * k + 1) for k in range(1, 7))
     return np.where(x < _SERIES_LIMIT, series, x * np.cosh(x) - np.sinh(x))
+
+
+def _full(r, value: float):
+    """``value`` with the shape of r (an array), or as a scalar for a scalar r."""
+    return np.full(r.shape, value) if isinstance(r, np.ndarray) else np.float64(value)
+
+
+def _zeros(r):
+    return np.zeros(r.shape) if isinstance(r, np.ndarray) else np.float64(0.0)
 
 
 @dataclass(frozen=True)
@@ -97,7 +105,7 @@ class LayerBasis:
     def thickness(self) -> float:
         return self.outer_edge - self.inner_edge
 
-    @cached_property
+    @property
     def decay_constant(self) -> float:
         """m = sqrt(k/D), 1/m (0 without first-order reaction)."""
         return math.sqrt(self.rate_constant / self.diffusivity)
@@ -110,9 +118,11 @@ class LayerBasis:
         g1, g2, particular, dg1, dg2, dparticular : ndarray
             The two dimensionless homogeneous solutions (see the module docstring), the
             particular solution in concentration units and the derivatives per metre, each with
-            the shape of ``r``.
+            the shape of ``r`` (a single float position gives scalars: numpy's scalar
+            arithmetic, the same values as for that position in an array, without the array
+            overhead).
         """
-        r = np.asarray(r, dtype=float)
+        r = np.float64(r) if isinstance(r, float) else np.asarray(r, dtype=float)
         if self.decay_constant > 0.0:
             values = self._reacting(r)
         else:
@@ -123,7 +133,7 @@ class LayerBasis:
     # -- no reaction ------------------------------------------------------------------------
     def _plain(self, r: np.ndarray) -> tuple[np.ndarray, ...]:
         """g1 = 1 and the nodal g2, with derivatives."""
-        zeros, ones = np.zeros_like(r), np.ones_like(r)
+        zeros, ones = _zeros(r), _full(r, 1.0)
         if self.solid:
             return zeros, ones, zeros, zeros
         g2, dg2 = self._plain_nodal(r)
@@ -134,11 +144,11 @@ class LayerBasis:
         a, b, n = self.inner_edge, self.outer_edge, self.exponent
         length = b - a
         if n == 0:
-            return (r - a) / length, np.full_like(r, 1.0 / length)
+            return (r - a) / length, _full(r, 1.0 / length)
         if n == 1:
             log_ratio = np.log1p(length / a)
             return np.log1p((r - a) / a) / log_ratio, 1.0 / (r * log_ratio)
-        return b * (r - a) / (r * length), a * b / (length * r**2)
+        return b * (r - a) / (r * length), a * b / (length * (r * r))
 
     # -- first order ------------------------------------------------------------------------
     @property
@@ -169,7 +179,7 @@ class LayerBasis:
             return np.cosh(x), g2, m * np.sinh(x), dg2
         # r C = a cosh(x) + sinh(x)/m: C(a) = 1, C'(a) = 0.
         g1 = (a * np.cosh(x) + np.sinh(x) / m) / r
-        dg1 = (_x_cosh_minus_sinh(x) / m + a * r * m * np.sinh(x)) / r**2
+        dg1 = (_x_cosh_minus_sinh(x) / m + a * r * m * np.sinh(x)) / (r * r)
         return g1, g2, dg1, dg2
 
     def _sinh_ratio(self, t: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
@@ -194,8 +204,8 @@ class LayerBasis:
         small = np.minimum(x, 1.0)
         scaled_numerator = np.where(x < 1.0, 2.0 * np.exp(-small) * _x_cosh_minus_sinh(small),
                                     x * (1.0 + np.exp(-2.0 * x)) + np.expm1(-2.0 * x))
-        scaled_slope = scaled_numerator / safe_r**2
-        zeros = np.zeros_like(r)
+        scaled_slope = scaled_numerator / (safe_r * safe_r)
+        zeros = _zeros(r)
         return zeros, prefactor * scaled_sinh_over_r, zeros, prefactor * scaled_slope
 
     def _cylinder_bessel(self, r: np.ndarray) -> tuple[np.ndarray, ...]:
@@ -206,7 +216,7 @@ class LayerBasis:
         i0b = special.i0e(m * b)
         grow_from_outer = np.exp(-m * (b - r))  # exp(m r) / exp(m b)
         if self.solid:
-            zeros = np.zeros_like(r)
+            zeros = _zeros(r)
             return zeros, i0r / i0b * grow_from_outer, zeros, m * i1r / i0b * grow_from_outer
         k0r, k1r = special.k0e(x), special.k1e(x)
         i0a, k0a, k0b = special.i0e(m * a), special.k0e(m * a), special.k0e(m * b)
@@ -235,12 +245,12 @@ class LayerBasis:
         """Zero-order particular solution vanishing at both edges, and its derivative."""
         q = self.zero_order_rate / self.diffusivity
         if q == 0.0:
-            zeros = np.zeros_like(r)
+            zeros = _zeros(r)
             return zeros, zeros
         a, b, n = self.inner_edge, self.outer_edge, self.exponent
         factor = q / (2.0 * (n + 1))
         if self.solid:
-            return factor * (r**2 - b**2), 2.0 * factor * r
+            return factor * (r * r - b**2), 2.0 * factor * r
         phi_out, dphi_out = self._plain_nodal(r)
         if n == 0:
             return factor * (r - a) * (r - b), factor * (2.0 * r - a - b)

@@ -64,9 +64,8 @@ RESIDUAL_LIMIT = 1e-10
 _TINY = np.finfo(float).tiny
 
 
-def _require(condition: bool, path: str, expected: str, got) -> None:
-    if not condition:
-        raise ValueError(f"{path}: expected {expected}, got {got!r}")
+def _fail(path: str, expected: str, got) -> None:
+    raise ValueError(f"{path}: expected {expected}, got {got!r}")
 
 
 def _positive(value) -> bool:
@@ -79,46 +78,46 @@ def _non_negative(value) -> bool:
 
 def validate_problem(problem: Problem) -> None:
     """Raise ``ValueError`` naming the first field that a steady closed form cannot accept."""
-    _require(problem.geometry in GEOMETRY_EXPONENT, "geometry", "slab, cylinder or sphere",
-             problem.geometry)
-    _require(math.isfinite(problem.inner), "inner", "a finite position in m", problem.inner)
-    if problem.geometry != "slab":
-        _require(problem.inner >= 0.0, "inner", "a radius >= 0 m", problem.inner)
-    _require(len(problem.layers) > 0, "layers", "at least one layer", problem.layers)
+    # (each message is formatted only when its check fails)
+    if problem.geometry not in GEOMETRY_EXPONENT:
+        _fail("geometry", "slab, cylinder or sphere", problem.geometry)
+    if not math.isfinite(problem.inner):
+        _fail("inner", "a finite position in m", problem.inner)
+    if problem.geometry != "slab" and not problem.inner >= 0.0:
+        _fail("inner", "a radius >= 0 m", problem.inner)
+    if not len(problem.layers) > 0:
+        _fail("layers", "at least one layer", problem.layers)
     for i, layer in enumerate(problem.layers):
-        path = f"layers[{i}]"
-        _require(_positive(layer.thickness), f"{path}.thickness", "a positive length in m",
-                 layer.thickness)
-        _require(_positive(layer.diffusivity), f"{path}.diffusivity", "a positive value in m^2/s",
-                 layer.diffusivity)
-        _require(_positive(layer.partition), f"{path}.partition", "a positive number",
-                 layer.partition)
+        if not _positive(layer.thickness):
+            _fail(f"layers[{i}].thickness", "a positive length in m", layer.thickness)
+        if not _positive(layer.diffusivity):
+            _fail(f"layers[{i}].diffusivity", "a positive value in m^2/s", layer.diffusivity)
+        if not _positive(layer.partition):
+            _fail(f"layers[{i}].partition", "a positive number", layer.partition)
         reaction = layer.reaction
-        _require(reaction.kind in REACTION_KINDS, f"{path}.reaction.kind",
-                 " | ".join(REACTION_KINDS), reaction.kind)
+        if reaction.kind not in REACTION_KINDS:
+            _fail(f"layers[{i}].reaction.kind", " | ".join(REACTION_KINDS), reaction.kind)
         for name in ("rate", "rate_constant", "vmax", "km"):
-            _require(_non_negative(getattr(reaction, name)), f"{path}.reaction.{name}",
-                     "a finite value >= 0", getattr(reaction, name))
-        if reaction.kind == "michaelis_menten":
-            _require(_positive(reaction.km), f"{path}.reaction.km", "a positive value",
-                     reaction.km)
-    for side in ("inner", "outer"):
-        boundary = getattr(problem, f"{side}_boundary")
-        path = f"{side}_boundary"
-        _require(boundary.kind in BOUNDARY_KINDS, f"{path}.kind", " | ".join(BOUNDARY_KINDS),
-                 boundary.kind)
+            value = getattr(reaction, name)
+            if not _non_negative(value):
+                _fail(f"layers[{i}].reaction.{name}", "a finite value >= 0", value)
+        if reaction.kind == "michaelis_menten" and not _positive(reaction.km):
+            _fail(f"layers[{i}].reaction.km", "a positive value", reaction.km)
+    for side, boundary in (("inner", problem.inner_boundary), ("outer", problem.outer_boundary)):
+        if boundary.kind not in BOUNDARY_KINDS:
+            _fail(f"{side}_boundary.kind", " | ".join(BOUNDARY_KINDS), boundary.kind)
         for name in ("value", "bulk"):
-            _require(math.isfinite(getattr(boundary, name)), f"{path}.{name}", "a finite number",
-                     getattr(boundary, name))
-        _require(_non_negative(boundary.coefficient), f"{path}.coefficient",
-                 "a finite value >= 0 in m/s", boundary.coefficient)
-        if boundary.partition is not None:
-            _require(_positive(boundary.partition), f"{path}.partition", "a positive number",
-                     boundary.partition)
-    if problem.solid_centre:
-        _require(problem.inner_boundary.kind == "symmetry", "inner_boundary.kind",
-                 "symmetry at the centre of a solid cylinder or sphere",
-                 problem.inner_boundary.kind)
+            value = getattr(boundary, name)
+            if not math.isfinite(value):
+                _fail(f"{side}_boundary.{name}", "a finite number", value)
+        if not _non_negative(boundary.coefficient):
+            _fail(f"{side}_boundary.coefficient", "a finite value >= 0 in m/s",
+                  boundary.coefficient)
+        if boundary.partition is not None and not _positive(boundary.partition):
+            _fail(f"{side}_boundary.partition", "a positive number", boundary.partition)
+    if problem.solid_centre and problem.inner_boundary.kind != "symmetry":
+        _fail("inner_boundary.kind", "symmetry at the centre of a solid cylinder or sphere",
+              problem.inner_boundary.kind)
 
 
 def layer_bases(problem: Problem) -> list[LayerBasis]:
@@ -156,24 +155,26 @@ class _EdgeForms:
     With unknown columns (col1, col2) and C = K (c1 g1 + c2 g2) + P, each form is
     ``(coefficients by column, constant)``; ``u`` is C/K, ``flux`` is J = -D dC/dr.
     ``evaluated``, if given, is ``basis.evaluate(r)`` at positions r that start with the two
-    edges (so one evaluation serves the edges and, say, quadrature nodes).
+    edges (so one evaluation serves the edges and, say, quadrature nodes); else each edge is
+    evaluated alone (scalar arithmetic, the same values).
     """
 
     def __init__(self, basis: LayerBasis, partition: float, columns: tuple[int | None, int],
                  evaluated: tuple[np.ndarray, ...] | None = None):
         if evaluated is None:
-            evaluated = basis.evaluate(np.array([basis.inner_edge, basis.outer_edge]))
-        g1, g2, part, dg1, dg2, dpart = evaluated
+            at_edges = (basis.evaluate(basis.inner_edge), basis.evaluate(basis.outer_edge))
+        else:
+            at_edges = tuple(tuple(field[e] for field in evaluated) for e in (0, 1))
         d = basis.diffusivity
         self.u, self.flux = [], []
-        for e in (0, 1):
-            u_terms = {columns[1]: float(g2[e])}
-            flux_terms = {columns[1]: -d * partition * float(dg2[e])}
+        for g1, g2, part, dg1, dg2, dpart in at_edges:
+            u_terms = {columns[1]: float(g2)}
+            flux_terms = {columns[1]: -d * partition * float(dg2)}
             if columns[0] is not None:
-                u_terms[columns[0]] = float(g1[e])
-                flux_terms[columns[0]] = -d * partition * float(dg1[e])
-            self.u.append((u_terms, float(part[e]) / partition))
-            self.flux.append((flux_terms, -d * float(dpart[e])))
+                u_terms[columns[0]] = float(g1)
+                flux_terms[columns[0]] = -d * partition * float(dg1)
+            self.u.append((u_terms, float(part) / partition))
+            self.flux.append((flux_terms, -d * float(dpart)))
 
 
 def _combine(*forms: tuple[dict[int, float], float], signs: tuple[float, ...]):
@@ -282,7 +283,7 @@ def _layer_consumption(problem: Problem, index: int, basis: LayerBasis, rule,
         return reaction.rate * (b ** (n + 1) - a ** (n + 1)) / (n + 1)
     if rule is not None:
         nodes, weights = rule
-        return float(reaction.rate_constant * np.sum(weights * values_at_nodes * nodes**n))
+        return float(reaction.rate_constant * (weights * values_at_nodes * nodes**n).sum())
     return 0.0
 
 
@@ -310,21 +311,15 @@ def solve_linear(problem: Problem, *, consumption: bool = True
     rules = [_consumption_rule(problem, i, basis) if want_consumption else None
              for i, basis in enumerate(bases)]
     evaluated = [
-        basis.evaluate(np.array([basis.inner_edge, basis.outer_edge]) if rule is None else
-                       np.concatenate(((basis.inner_edge, basis.outer_edge), rule[0])))
+        None if rule is None else
+        basis.evaluate(np.concatenate(((basis.inner_edge, basis.outer_edge), rule[0])))
         for basis, rule in zip(bases, rules, strict=True)]
-    matrix, rhs, columns, forms = _assemble(problem, bases, evaluated)
-    # LAPACK dgesv (LU with partial pivoting), the routine numpy.linalg.solve calls, without
-    # the wrapper checks that dominate its cost on these few unknowns
-    _, _, unknowns, info = dgesv(matrix, rhs)
-    if info > 0:
-        return _failed(f"the closed-form system is singular (zero pivot in row {info})"), []
-    residual = float(np.abs(matrix @ unknowns - rhs).max()
-                     / (np.abs(matrix).max() * np.abs(unknowns).max() + np.abs(rhs).max()
-                        + _TINY))
-    diagnostics = {"relative_residual": residual, "unknowns": int(unknowns.size)}
+    solved = _solve_system(problem, bases, evaluated)
+    if isinstance(solved, str):
+        return _failed(solved), []
+    values, columns, forms, residual = solved
+    diagnostics = {"relative_residual": residual, "unknowns": len(values)}
     pieces, consumption, minima = [], 0.0 if want_consumption else math.nan, []
-    values = unknowns.tolist()
     for i, (basis, (col_a, col_b)) in enumerate(zip(bases, columns, strict=True)):
         partition = problem.layers[i].partition
         c1 = 0.0 if col_a is None else values[col_a]
@@ -350,6 +345,36 @@ def solve_linear(problem: Problem, *, consumption: bool = True
         flux_outer=_apply(forms[-1].flux[1], values),
         consumption=float(consumption), diagnostics=diagnostics)
     return solution, minima
+
+
+def _solve_system(problem: Problem, bases: list[LayerBasis], evaluated):
+    """Assemble and solve the closed-form system (``evaluated``: see ``_assemble``).
+
+    Returns (unknowns as floats, columns, edge forms, relative residual), or the failure
+    message of a singular system.
+    """
+    matrix, rhs, columns, forms = _assemble(problem, bases, evaluated)
+    # LAPACK dgesv (LU with partial pivoting), the routine numpy.linalg.solve calls, without
+    # the wrapper checks that dominate its cost on these few unknowns
+    _, _, unknowns, info = dgesv(matrix, rhs)
+    if info > 0:
+        return f"the closed-form system is singular (zero pivot in row {info})"
+    residual = float(np.abs(matrix @ unknowns - rhs).max()
+                     / (np.abs(matrix).max() * np.abs(unknowns).max() + np.abs(rhs).max()
+                        + _TINY))
+    return unknowns.tolist(), columns, forms, residual
+
+
+def linear_face_fluxes(problem: Problem) -> tuple[bool, float, float]:
+    """(success, flux_inner, flux_outer) of ``solve_linear`` without its profile and
+    consumption, for callers that need only the face fluxes (amount/(m^2 s), outward)."""
+    bases = layer_bases(problem)
+    solved = _solve_system(problem, bases, [None] * len(bases))
+    if isinstance(solved, str):
+        return False, math.nan, math.nan
+    values, _, forms, residual = solved
+    return (residual <= RESIDUAL_LIMIT, _apply(forms[0].flux[0], values),
+            _apply(forms[-1].flux[1], values))
 
 
 def _zero_order_minimum(problem: Problem, index: int, basis: LayerBasis, piece) -> float:

@@ -704,18 +704,21 @@ class NodalProfile:
 
     def _evaluate(self, r, layer, which):
         profiles = self.profiles
-        r_array = np.atleast_1d(np.asarray(r, dtype=float))
+        r_array = np.asarray(r, dtype=float)
+        scalar = r_array.ndim == 0
+        if scalar:
+            r_array = r_array.reshape(1)
         if self._within(r_array, layer):
             positions, values = profiles[layer][2 * which], profiles[layer][1 + 2 * which]
             out = np.interp(r_array, positions, values)
-            return out if np.ndim(r) else out[0]
+            return out[0] if scalar else out
         owners = _locate(self.edges, r_array, layer)
         out = np.empty_like(r_array)
         for j in np.unique(owners):
             chosen = owners == j
             positions, values = profiles[j][0 + 2 * which], profiles[j][1 + 2 * which]
             out[chosen] = np.interp(r_array[chosen], positions, values)
-        return out if np.ndim(r) else out[0]
+        return out[0] if scalar else out
 
     def concentration_at(self, r, layer: int | None = None):
         return self._evaluate(r, layer, 0)
@@ -725,8 +728,8 @@ class NodalProfile:
 
     def profile_at(self, r, layer: int | None = None):
         """(concentration, outward flux) at positions r."""
-        r_array = np.atleast_1d(np.asarray(r, dtype=float))
-        if np.ndim(r) == 1 and self._within(r_array, layer):
+        r_array = np.asarray(r, dtype=float)
+        if r_array.ndim == 1 and self._within(r_array, layer):
             positions, values, faces, fluxes = self.profiles[layer]
             return np.interp(r_array, positions, values), np.interp(r_array, faces, fluxes)
         return self.concentration_at(r, layer), self.flux_at(r, layer)

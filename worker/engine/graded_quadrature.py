@@ -53,7 +53,7 @@ def graded_gauss_rule(
         ratios = (a * 2.0**k for k in range(1, int(math.log2(b / a)) + 1))
         ends.update(r for r in ratios if r < b)
     edges = np.array(sorted(ends))
-    half = 0.5 * np.diff(edges)
+    half = 0.5 * (edges[1:] - edges[:-1])
     middle = edges[:-1] + half
     nodes = (middle[:, None] + half[:, None] * _LEGENDRE_NODES).ravel()
     weights = (half[:, None] * _LEGENDRE_WEIGHTS).ravel()

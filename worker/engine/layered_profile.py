@@ -68,7 +68,7 @@ class LayeredProfile:
     def profile_at(self, r, layer: int | None = None) -> tuple[np.ndarray, np.ndarray]:
         """(concentration, outward flux) at positions ``r`` from one evaluation."""
         r = np.asarray(r, dtype=float)
-        flat = np.atleast_1d(r).ravel()
+        flat = r if r.ndim == 1 else np.atleast_1d(r).ravel()
         both = self._in_one_layer(flat, layer)
         if both is None:
             return self.concentration_at(r, layer), self.flux_at(r, layer)

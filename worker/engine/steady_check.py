@@ -91,8 +91,8 @@ class _Sampled:
     highest: float = float("nan")
 
     def __post_init__(self) -> None:
-        self.lowest = float(min(np.min(c) for c in self.concentration))
-        self.highest = float(max(np.max(c) for c in self.concentration))
+        self.lowest = float(min(c.min() for c in self.concentration))
+        self.highest = float(max(c.max() for c in self.concentration))
 
     @classmethod
     def of(cls, solution: SteadySolution, positions: list[np.ndarray]) -> _Sampled:
@@ -140,10 +140,25 @@ def _throughput_scale(problem: Problem, solution: SteadySolution, c_scale: float
     return max(max(rates), floor)
 
 
+_PROFILE_STEPS = np.arange(PROFILE_POINTS_PER_LAYER, dtype=float)
+
+
 def _profile_positions(problem: Problem) -> list[np.ndarray]:
-    edges = problem.edges
-    return [np.linspace(edges[i], edges[i + 1], PROFILE_POINTS_PER_LAYER)
-            for i in range(len(problem.layers))]
+    """``PROFILE_POINTS_PER_LAYER`` evenly spaced points on each layer, both ends exact: the
+    arithmetic of ``numpy.linspace`` (start + k * step, the last point set to the end), without
+    its generality."""
+    edges = problem.edges.tolist()
+    positions = []
+    for start, stop in zip(edges[:-1], edges[1:], strict=True):
+        step = (stop - start) / (PROFILE_POINTS_PER_LAYER - 1)
+        if step == 0.0:  # (linspace's own branch for such spans)
+            positions.append(np.linspace(start, stop, PROFILE_POINTS_PER_LAYER))
+            continue
+        points = _PROFILE_STEPS * step
+        points += start
+        points[-1] = stop
+        positions.append(points)
+    return positions
 
 
 def _boundary_residuals(problem: Problem, sample: _Sampled, c_scale: float,
@@ -318,7 +333,7 @@ def _thin_wall_note(problem: Problem, primary: SteadySolution, outcome: Outcome)
     if all(not ly.reaction.reacts for ly in problem.layers):
         flat = _reaction_free_slab(slab)
     elif problem.is_linear:  # the slab's fluxes only: its consumption integral is not needed
-        flat, _ = exact_steady.solve_linear(slab, consumption=False)
+        flat = _SlabRate(*exact_steady.linear_face_fluxes(slab))
     else:
         flat = exact_steady.solve_exact(slab) if all(
             ly.reaction.kind != "michaelis_menten" for ly in problem.layers) else None
@@ -369,7 +384,7 @@ def _cross_check_profile(outcome: Outcome, problem: Problem, a: _Sampled,
     where = problem.inner
     for r, ca, cb in zip(a.positions, a.concentration, b.concentration, strict=True):
         diff = np.abs(ca - cb)
-        j = int(np.argmax(diff))
+        j = int(diff.argmax())
         if diff[j] / c_scale > worst:
             worst, where = float(diff[j] / c_scale), float(r[j])
     outcome.check_at_most(
