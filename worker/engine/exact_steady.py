@@ -33,6 +33,7 @@ Results support, and do not replace, design verification testing and qualified r
 from __future__ import annotations
 
 import math
+from collections.abc import Sequence
 
 import numpy as np
 from scipy.linalg.lapack import dgesv
@@ -296,44 +297,57 @@ def _failed(message: str, diagnostics: dict | None = None) -> SteadySolution:
                           diagnostics=diagnostics or {})
 
 
-def solve_linear(problem: Problem, *, consumption: bool = True
+def solve_linear(problem: Problem, *, consumption: bool = True,
+                 sample_at: Sequence[np.ndarray] | None = None
                  ) -> tuple[SteadySolution, list[float]]:
     """Solve with every zero-order layer taken as never depleted.
 
     Returns the solution and, per layer, the minimum concentration of each zero-order layer
     (``inf`` for the others), which tells whether that assumption holds. With
     ``consumption=False`` the consumption integral is skipped (NaN), for callers that need only
-    the profile and the face fluxes.
+    the profile and the face fluxes. ``sample_at``: see ``solve_exact``.
     """
     bases = layer_bases(problem)
     want_consumption = consumption
-    # One evaluation of each basis serves its edge forms and its consumption quadrature.
+    # One evaluation of each basis serves its edge forms, its consumption quadrature and (for
+    # layers evaluated on arrays anyway: the reacting ones) the positions the caller will sample.
     rules = [_consumption_rule(problem, i, basis) if want_consumption else None
              for i, basis in enumerate(bases)]
-    evaluated = [
-        None if rule is None else
-        basis.evaluate(np.concatenate(((basis.inner_edge, basis.outer_edge), rule[0])))
-        for basis, rule in zip(bases, rules, strict=True)]
+    samples = [None if sample_at is None or rule is None else _inside(basis, sample_at[i])
+               for i, (basis, rule) in enumerate(zip(bases, rules, strict=True))]
+    evaluated = []
+    for basis, rule, sample in zip(bases, rules, samples, strict=True):
+        parts = [(basis.inner_edge, basis.outer_edge)]
+        parts += [] if rule is None else [rule[0]]
+        parts += [] if sample is None else [sample]
+        evaluated.append(None if len(parts) == 1 else basis.evaluate(np.concatenate(parts)))
     solved = _solve_system(problem, bases, evaluated)
     if isinstance(solved, str):
         return _failed(solved), []
     values, columns, forms, residual = solved
     diagnostics = {"relative_residual": residual, "unknowns": len(values)}
     pieces, consumption, minima = [], 0.0 if want_consumption else math.nan, []
+    presampled = {}
     for i, (basis, (col_a, col_b)) in enumerate(zip(bases, columns, strict=True)):
         partition = problem.layers[i].partition
         c1 = 0.0 if col_a is None else values[col_a]
         c2 = values[col_b]
         piece = _layer_piece(basis, partition, c1, c2)
         pieces.append(piece)
+        nodes = 0 if rules[i] is None else rules[i][0].size
         if want_consumption:
             at_nodes = None
             if rules[i] is not None:  # C at the quadrature nodes, as ``piece`` would give it
-                g1, g2, part = (v[2:] for v in evaluated[i][:3])
+                g1, g2, part = (v[2 : 2 + nodes] for v in evaluated[i][:3])
                 at_nodes = partition * (c1 * g1 + c2 * g2) + part
             consumption += _layer_consumption(problem, i, basis, rules[i], at_nodes)
+        if samples[i] is not None:  # C and dC/dr at the sample positions, as ``piece`` gives
+            g1, g2, part, dg1, dg2, dpart = (v[2 + nodes :] for v in evaluated[i])
+            presampled[i] = (samples[i], partition * (c1 * g1 + c2 * g2) + part,
+                             partition * (c1 * dg1 + c2 * dg2) + dpart)
         minima.append(_zero_order_minimum(problem, i, basis, piece))
-    profile = LayeredProfile(problem.edges, [ly.diffusivity for ly in problem.layers], pieces)
+    profile = LayeredProfile(problem.edges, [ly.diffusivity for ly in problem.layers], pieces,
+                             presampled)
     success = residual <= RESIDUAL_LIMIT and (math.isfinite(consumption) or not want_consumption)
     message = ("closed form by basis superposition" if success else
                f"relative residual {residual:.3g} exceeds {RESIDUAL_LIMIT:g}")
@@ -359,10 +373,20 @@ def _solve_system(problem: Problem, bases: list[LayerBasis], evaluated):
     _, _, unknowns, info = dgesv(matrix, rhs)
     if info > 0:
         return f"the closed-form system is singular (zero pivot in row {info})"
-    residual = float(np.abs(matrix @ unknowns - rhs).max()
-                     / (np.abs(matrix).max() * np.abs(unknowns).max() + np.abs(rhs).max()
-                        + _TINY))
-    return unknowns.tolist(), columns, forms, residual
+    return unknowns.tolist(), columns, forms, _relative_residual(matrix, rhs, unknowns)
+
+
+def _relative_residual(matrix: np.ndarray, rhs: np.ndarray, unknowns: np.ndarray) -> float:
+    """max|A x - b| / (max|A| max|x| + max|b|), in plain floats (a few unknowns); NaN when
+    anything is not finite."""
+    rows, b, x = matrix.tolist(), rhs.tolist(), unknowns.tolist()
+    errors = [abs(sum(a * v for a, v in zip(row, x, strict=True)) - bi)
+              for row, bi in zip(rows, b, strict=True)]
+    scale = (max(abs(a) for row in rows for a in row) * max(map(abs, x)) + max(map(abs, b))
+             + _TINY)
+    if not (all(map(math.isfinite, errors)) and math.isfinite(scale)):
+        return math.nan
+    return max(errors) / scale
 
 
 def linear_face_fluxes(problem: Problem) -> tuple[bool, float, float]:
@@ -375,6 +399,18 @@ def linear_face_fluxes(problem: Problem) -> tuple[bool, float, float]:
     values, _, forms, residual = solved
     return (residual <= RESIDUAL_LIMIT, _apply(forms[0].flux[0], values),
             _apply(forms[-1].flux[1], values))
+
+
+def _inside(basis: LayerBasis, positions: np.ndarray | None) -> np.ndarray | None:
+    """A private copy of the positions when they are finite and lie within the layer's closed
+    interval (there the profile evaluates them unclipped), else None."""
+    if positions is None:
+        return None
+    positions = np.array(positions, dtype=float)
+    if positions.ndim != 1 or not positions.size:
+        return None
+    low, high = float(positions.min()), float(positions.max())
+    return positions if basis.inner_edge <= low and high <= basis.outer_edge else None
 
 
 def _zero_order_minimum(problem: Problem, index: int, basis: LayerBasis, piece) -> float:
@@ -398,13 +434,18 @@ def _zero_order_minimum(problem: Problem, index: int, basis: LayerBasis, piece) 
     return min(candidates)
 
 
-def solve_exact(problem: Problem) -> SteadySolution | None:
+def solve_exact(problem: Problem, *, sample_at: Sequence[np.ndarray] | None = None
+                ) -> SteadySolution | None:
     """Closed-form steady solution of a layered problem, or None where none is offered.
 
     Parameters
     ----------
     problem : Problem
         The normalised case (SI units).
+    sample_at : sequence of ndarray, optional
+        Positions (m), one array per layer, at which the caller will read the profile with
+        ``profile_at(sample_at[i], layer=i)``: the closed form is then evaluated there in the
+        same call as the layer's edges, with the same values as a later evaluation.
 
     Returns
     -------
@@ -433,7 +474,7 @@ def solve_exact(problem: Problem) -> SteadySolution | None:
     if not _is_well_posed(problem):
         return _failed("the steady level is undetermined: no concentration face, no "
                        "mass-transfer film and no first-order uptake")
-    solution, minima = solve_linear(problem)
+    solution, minima = solve_linear(problem, sample_at=sample_at)
     if not solution.success or min(minima, default=math.inf) >= 0.0:
         return solution
     return solve_depleted(problem)

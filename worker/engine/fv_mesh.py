@@ -358,6 +358,7 @@ def build_mesh_stack(problem: Problem, cells: Sequence[Sequence[int] | int]) -> 
     counts_list = [_check_cells(c, len(layers)) for c in cells]
     edges = np.array(list(accumulate((ly.thickness for ly in layers), initial=problem.inner)))
     faces = np.empty(sum(sum(counts) + 1 for counts in counts_list))
+    local = np.arange(max(max(counts) for counts in counts_list), dtype=float)
     offsets: list[int] = []
     starts_list: list[list[int]] = []
     position = 0
@@ -367,7 +368,9 @@ def build_mesh_stack(problem: Problem, cells: Sequence[Sequence[int] | int]) -> 
         # edges themselves are exact (local index 0), so interfaces carry no round-off drift
         for j, (layer, count) in enumerate(zip(layers, counts, strict=True)):
             first = position + starts[j]
-            faces[first : first + count] = edges[j] + (layer.thickness / count) * np.arange(count)
+            span = faces[first : first + count]
+            np.multiply(local[:count], layer.thickness / count, out=span)
+            span += edges[j]
         faces[position + starts[-1]] = edges[-1]
         offsets.append(position)
         starts_list.append(starts)
@@ -682,24 +685,26 @@ class NodalProfile:
         self.c = c
         self.flux_density = flux_density
         self.edges = mesh.edges
-        bounds = self.edges.tolist()
-        slack = 1e-12 * max(abs(bounds[-1]), abs(bounds[0]), bounds[-1] - bounds[0])
-        # closed interval of each layer, widened by the round-off slack
-        self._intervals = [(a - slack, b + slack) for a, b in zip(bounds[:-1], bounds[1:],
-                                                                    strict=True)]
         self._profiles = None
+        self._intervals = None
 
     @property
     def profiles(self):
         if self._profiles is None:  # built on first use: many callers only read face figures
             self._profiles = layer_profiles(self.mesh, self.c, self.flux_density)
+            bounds = self.edges.tolist()
+            slack = 1e-12 * max(abs(bounds[-1]), abs(bounds[0]), bounds[-1] - bounds[0])
+            # closed interval of each layer, widened by the round-off slack
+            self._intervals = [(a - slack, b + slack)
+                               for a, b in zip(bounds[:-1], bounds[1:], strict=True)]
         return self._profiles
 
     def _within(self, r_array: np.ndarray, layer: int | None) -> bool:
         """True when ``layer`` is a valid index and every r lies in its closed interval."""
-        if layer is None or not 0 <= layer < len(self._intervals) or not r_array.size:
+        intervals = self._intervals
+        if layer is None or not 0 <= layer < len(intervals) or not r_array.size:
             return False
-        low, high = self._intervals[layer]
+        low, high = intervals[layer]
         return bool(low <= r_array.min() and r_array.max() <= high)
 
     def _evaluate(self, r, layer, which):
@@ -728,9 +733,10 @@ class NodalProfile:
 
     def profile_at(self, r, layer: int | None = None):
         """(concentration, outward flux) at positions r."""
+        profiles = self.profiles
         r_array = np.asarray(r, dtype=float)
         if r_array.ndim == 1 and self._within(r_array, layer):
-            positions, values, faces, fluxes = self.profiles[layer]
+            positions, values, faces, fluxes = profiles[layer]
             return np.interp(r_array, positions, values), np.interp(r_array, faces, fluxes)
         return self.concentration_at(r, layer), self.flux_at(r, layer)
 
@@ -785,12 +791,14 @@ def default_cells_per_layer(problem: Problem) -> tuple[int, ...]:
     return tuple(counts)
 
 
-def solve_tridiagonal(ab: np.ndarray, rhs: np.ndarray) -> np.ndarray:
+def solve_tridiagonal(ab: np.ndarray, rhs: np.ndarray, *, overwrite_ab: bool = False
+                      ) -> np.ndarray:
     """Solve ``ab @ x = rhs`` for a tridiagonal matrix in ``solve_banded((1, 1))`` layout.
 
     Calls LAPACK ``dgtsv`` (Gaussian elimination with partial pivoting), the routine that
     ``scipy.linalg.solve_banded`` itself uses for one sub- and one super-diagonal, directly,
-    without the input checks that dominate its cost on small systems. ``ab`` is not modified.
+    without the input checks that dominate its cost on small systems. ``ab`` is not modified
+    unless ``overwrite_ab`` (a scratch matrix the caller no longer needs); ``rhs`` never is.
 
     Raises
     ------
@@ -798,7 +806,8 @@ def solve_tridiagonal(ab: np.ndarray, rhs: np.ndarray) -> np.ndarray:
         When the matrix is singular (e.g. a body with flux or symmetry faces only and no
         reaction, which has no unique steady state).
     """
-    _, _, _, solution, info = dgtsv(ab[2, :-1], ab[1], ab[0, 1:], rhs)
+    _, _, _, solution, info = dgtsv(ab[2, :-1], ab[1], ab[0, 1:], rhs, overwrite_ab,
+                                    overwrite_ab, overwrite_ab)
     if info > 0:
         raise LinAlgError(f"singular tridiagonal matrix (zero pivot at row {info})")
     if info < 0:

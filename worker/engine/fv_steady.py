@@ -481,16 +481,19 @@ def solve_fv_grids(
         if len(stack.meshes) > 1 and any(fixed):
             return [solve_fv_grids(problem, [c], source=source)[0] for c in cells]
         return [_failed(problem, mesh, _NO_LEVEL) for mesh in stack.meshes]
-    uptake = stack.volumes * stack.per_cell(first_order)
+    uptake = stack.volumes * stack.per_cell(first_order) if reacts else None
     try:
-        c = solve_tridiagonal(_with_diagonal(whole.ab, uptake), whole.rhs)
+        if reacts:
+            c = solve_tridiagonal(_with_diagonal(whole.ab, uptake), whole.rhs, overwrite_ab=True)
+        else:
+            c = solve_tridiagonal(whole.ab, whole.rhs)
     except LinAlgError as error:
         if len(stack.meshes) > 1:  # each mesh alone, so that the failure names its own row
             return [solve_fv_grids(problem, [c], source=source)[0] for c in cells]
         return [_failed(
             problem, stack.meshes[0], f"no unique steady state: {error} (check the boundary kinds)"
         )]
-    achieved = uptake * c
+    achieved = uptake * c if reacts else np.zeros(c.size)
     flux_density = face_flux_densities(stack, whole.face_fluxes(c))
     solutions = []
     for (first, n), mesh in zip(stack.blocks, stack.meshes, strict=True):

@@ -437,7 +437,8 @@ def _grid_checks(outcome: Outcome, problem: Problem, studies: dict, cells: list,
 def run_steady(problem: Problem) -> Outcome:
     """Solve a steady case by every applicable method and check the results."""
     outcome = Outcome()
-    exact = exact_steady.solve_exact(problem)
+    positions = _profile_positions(problem)
+    exact = exact_steady.solve_exact(problem, sample_at=positions)
     grids = convergence.refined_solutions(problem)
     fine = grids[0]
     studies = convergence.run_grid_study(problem, solutions=grids)
@@ -458,7 +459,6 @@ def run_steady(problem: Problem) -> Outcome:
         outcome.methods.append(_method("independent", independent))
 
     solutions = [s for s in (primary, fine, independent) if s is not None and s.success]
-    positions = _profile_positions(problem)
     samples = {id(s): _Sampled.of(s, positions) for s in solutions}
     c_scale = _concentration_scale(problem, list(samples.values()))
     t_scale = _throughput_scale(problem, primary, c_scale)
