@@ -89,6 +89,7 @@ __all__ = [
     "ReactionTerms",
     "assemble_diffusion",
     "assemble_stack",
+    "assemble_stack_operator",
     "boundary_concentration_scale",
     "build_mesh",
     "build_mesh_stack",
@@ -264,7 +265,7 @@ def build_mesh(problem: Problem, cells_per_layer: Sequence[int] | int | None = N
     """
     if cells_per_layer is None:
         cells_per_layer = default_cells_per_layer(problem)
-    return build_mesh_stack(problem, [cells_per_layer]).meshes[0]
+    return build_mesh_stack(problem, [cells_per_layer]).mesh(0)
 
 
 @dataclass(frozen=True)
@@ -276,23 +277,27 @@ class MeshStack:
     ``offsets[g] .. offsets[g] + N_g`` and cells ``offsets[g] .. offsets[g] + N_g - 1`` of the
     stacked arrays; between the outer face of one mesh and the inner face of the next lies one
     spacer cell (index in ``spacers``), which the stacked operator decouples (identity row).
-    ``meshes`` are views into the stacked arrays. The spacer cells carry D = inf and K = 1, so
-    that the conductance formula stays finite on the faces next to them (those faces are
-    boundary faces of their meshes and are overwritten).
+    ``mesh(g)`` is mesh g as a ``Mesh`` of views into the stacked arrays. The spacer cells carry
+    D = inf and K = 1, so that the conductance formula stays finite on the faces next to them
+    (those faces are boundary faces of their meshes and are overwritten).
 
     Attributes
     ----------
-    meshes : tuple of Mesh
+    edges : ndarray
+        Inner face, interfaces and outer face, m (shared by every mesh).
+    counts : tuple of tuple of int
+        Cells per layer of each mesh.
     offsets, spacers : tuple of int
     exponent : int
         Geometric exponent n of every mesh.
     faces, face_areas : ndarray, shape (F,)
         Stacked faces (F = sum of N_g + 1) and their areas r^n.
-    centres, volumes, west_gaps, east_gaps, diffusivity, partition : ndarray, shape (F - 1,)
-        Stacked cell data, spacer cells included.
+    centres, volumes, west_gaps, east_gaps, diffusivity, partition, layer_index : ndarray
+        Stacked cell data, shape (F - 1,), spacer cells included.
     """
 
-    meshes: tuple[Mesh, ...]
+    edges: np.ndarray
+    counts: tuple[tuple[int, ...], ...]
     offsets: tuple[int, ...]
     spacers: tuple[int, ...]
     exponent: int
@@ -304,16 +309,42 @@ class MeshStack:
     east_gaps: np.ndarray
     diffusivity: np.ndarray
     partition: np.ndarray
+    layer_index: np.ndarray
 
     @property
     def blocks(self) -> list[tuple[int, int]]:
         """(first cell, cells) of each mesh in the stacked arrays."""
-        return [(first, mesh.n_cells) for first, mesh in zip(self.offsets, self.meshes,
-                                                              strict=True)]
+        return [(first, sum(counts)) for first, counts in zip(self.offsets, self.counts,
+                                                               strict=True)]
+
+    def mesh(self, g: int) -> Mesh:
+        """Mesh g, its arrays views into the stacked ones."""
+        first, counts = self.offsets[g], self.counts[g]
+        n = sum(counts)
+        cells, faces = slice(first, first + n), slice(first, first + n + 1)
+        return Mesh(
+            exponent=self.exponent,
+            edges=self.edges,
+            faces=self.faces[faces],
+            centres=self.centres[cells],
+            face_areas=self.face_areas[faces],
+            volumes=self.volumes[cells],
+            west_gaps=self.west_gaps[cells],
+            east_gaps=self.east_gaps[cells],
+            layer_index=self.layer_index[cells],
+            layer_starts=np.array(list(accumulate(counts, initial=0))),
+            diffusivity=self.diffusivity[cells],
+            partition=self.partition[cells],
+            cells_per_layer=counts,
+        )
+
+    @property
+    def meshes(self) -> tuple[Mesh, ...]:
+        return tuple(self.mesh(g) for g in range(len(self.counts)))
 
     def per_cell(self, per_layer: Sequence[float], spacer_value: float = 0.0) -> np.ndarray:
         """A per-layer property spread over the stacked cells (spacers get ``spacer_value``)."""
-        return _spread(per_layer, [m.cells_per_layer for m in self.meshes], spacer_value)
+        return _spread(per_layer, self.counts, spacer_value)
 
 
 def _spread(per_layer: Sequence[float], counts_list: Sequence[Sequence[int]],
@@ -360,7 +391,6 @@ def build_mesh_stack(problem: Problem, cells: Sequence[Sequence[int] | int]) -> 
     faces = np.empty(sum(sum(counts) + 1 for counts in counts_list))
     local = np.arange(max(max(counts) for counts in counts_list), dtype=float)
     offsets: list[int] = []
-    starts_list: list[list[int]] = []
     position = 0
     for counts in counts_list:
         starts = list(accumulate(counts, initial=0))
@@ -373,39 +403,21 @@ def build_mesh_stack(problem: Problem, cells: Sequence[Sequence[int] | int]) -> 
             span += edges[j]
         faces[position + starts[-1]] = edges[-1]
         offsets.append(position)
-        starts_list.append(starts)
         position += starts[-1] + 1
     spacers = tuple(first - 1 for first in offsets[1:])
     centres, face_areas, volumes, west_gaps, east_gaps = _cell_geometry(faces, n)
 
     diffusivity = _spread([ly.diffusivity for ly in layers], counts_list, math.inf)
     partition = _spread([ly.partition for ly in layers], counts_list, 1.0)
-    meshes = []
-    for first, counts, starts in zip(offsets, counts_list, starts_list, strict=True):
-        cells_here = slice(first, first + starts[-1])
-        if len(layers) == 1:
-            layer_index = np.zeros(starts[-1], dtype=np.intp)
-        else:
-            layer_index = np.repeat(np.arange(len(counts)), counts)
-        meshes.append(Mesh(
-            exponent=n,
-            edges=edges,
-            faces=faces[first : first + starts[-1] + 1],
-            centres=centres[cells_here],
-            face_areas=face_areas[first : first + starts[-1] + 1],
-            volumes=volumes[cells_here],
-            west_gaps=west_gaps[cells_here],
-            east_gaps=east_gaps[cells_here],
-            layer_index=layer_index,
-            layer_starts=np.array(starts),
-            diffusivity=diffusivity[cells_here],
-            partition=partition[cells_here],
-            cells_per_layer=counts,
-        ))
+    if len(layers) == 1:
+        layer_index = np.zeros(centres.size, dtype=np.intp)
+    else:
+        layer_index = _spread(range(len(layers)), counts_list, 0).astype(np.intp)
     return MeshStack(
-        meshes=tuple(meshes), offsets=tuple(offsets), spacers=spacers, exponent=n, faces=faces,
-        face_areas=face_areas, centres=centres, volumes=volumes, west_gaps=west_gaps,
-        east_gaps=east_gaps, diffusivity=diffusivity, partition=partition,
+        edges=edges, counts=tuple(counts_list), offsets=tuple(offsets), spacers=spacers,
+        exponent=n, faces=faces, face_areas=face_areas, centres=centres, volumes=volumes,
+        west_gaps=west_gaps, east_gaps=east_gaps, diffusivity=diffusivity, partition=partition,
+        layer_index=layer_index,
     )
 
 
@@ -470,9 +482,7 @@ def assemble_stack(
     zero right-hand side for each spacer cell) and, as views into it, the operator of each mesh,
     equal to what ``assemble_diffusion`` gives for that mesh.
     """
-    whole = _assemble(problem, stack.face_areas, stack.volumes, stack.centres, stack.west_gaps,
-                      stack.east_gaps, stack.diffusivity, stack.partition, stack.blocks,
-                      stack.spacers, source)
+    whole = assemble_stack_operator(stack, problem, source)
     operators = []
     for first, cells in stack.blocks:
         faces = slice(first, first + cells + 1)
@@ -484,6 +494,17 @@ def assemble_stack(
             face_constant=whole.face_constant[faces],
         ))
     return whole, tuple(operators)
+
+
+def assemble_stack_operator(
+    stack: MeshStack,
+    problem: Problem,
+    source: Callable[[np.ndarray], np.ndarray] | None = None,
+) -> DiffusionOperator:
+    """The stacked operator of ``assemble_stack`` alone (no per-mesh views)."""
+    return _assemble(problem, stack.face_areas, stack.volumes, stack.centres, stack.west_gaps,
+                     stack.east_gaps, stack.diffusivity, stack.partition, stack.blocks,
+                     stack.spacers, source)
 
 
 def _assemble(problem: Problem, face_areas, volumes, centres, west_gaps, east_gaps, d, k,
@@ -678,15 +699,26 @@ class NodalProfile:
 
     Each takes positions r (m, scalar or array) and an optional ``layer`` index, and
     interpolates linearly between the nodes of ``layer_profiles`` (flux: between faces).
+    ``mesh`` may be given as a callable returning it, called on first use.
     """
 
-    def __init__(self, mesh: Mesh, c: np.ndarray, flux_density: np.ndarray):
-        self.mesh = mesh
+    def __init__(self, mesh: Mesh | Callable[[], Mesh], c: np.ndarray,
+                 flux_density: np.ndarray):
+        self._mesh = mesh
         self.c = c
         self.flux_density = flux_density
-        self.edges = mesh.edges
         self._profiles = None
         self._intervals = None
+
+    @property
+    def mesh(self) -> Mesh:
+        if not isinstance(self._mesh, Mesh):
+            self._mesh = self._mesh()
+        return self._mesh
+
+    @property
+    def edges(self) -> np.ndarray:
+        return self.mesh.edges
 
     @property
     def profiles(self):

@@ -25,6 +25,7 @@ from __future__ import annotations
 
 import math
 from collections.abc import Callable, Sequence
+from functools import partial
 
 import numpy as np
 from scipy.linalg import LinAlgError
@@ -35,7 +36,7 @@ from worker.engine.fv_mesh import (
     NodalProfile,
     ReactionTerms,
     assemble_diffusion,
-    assemble_stack,
+    assemble_stack_operator,
     boundary_concentration_scale,
     build_mesh,
     build_mesh_stack,
@@ -473,12 +474,13 @@ def solve_fv_grids(
     if any(v > 0.0 for v in vmax) or any(q > 0.0 for q in zero_order):
         return [_solve_nonlinear(problem, c, source) for c in cells]
     stack = build_mesh_stack(problem, cells)
-    whole, operators = assemble_stack(stack, problem, source)
+    blocks = stack.blocks
+    whole = assemble_stack_operator(stack, problem, source)
     reacts = any(k > 0.0 for k in first_order)
-    fixed = [bool(op.east_coefficient[0] > 0.0 or op.west_coefficient[-1] > 0.0 or reacts)
-             for op in operators]
+    fixed = [bool(whole.east_coefficient[first] > 0.0
+                  or whole.west_coefficient[first + n] > 0.0 or reacts) for first, n in blocks]
     if not all(fixed):
-        if len(stack.meshes) > 1 and any(fixed):
+        if len(blocks) > 1 and any(fixed):
             return [solve_fv_grids(problem, [c], source=source)[0] for c in cells]
         return [_failed(problem, mesh, _NO_LEVEL) for mesh in stack.meshes]
     uptake = stack.volumes * stack.per_cell(first_order) if reacts else None
@@ -488,18 +490,20 @@ def solve_fv_grids(
         else:
             c = solve_tridiagonal(whole.ab, whole.rhs)
     except LinAlgError as error:
-        if len(stack.meshes) > 1:  # each mesh alone, so that the failure names its own row
+        if len(blocks) > 1:  # each mesh alone, so that the failure names its own row
             return [solve_fv_grids(problem, [c], source=source)[0] for c in cells]
         return [_failed(
-            problem, stack.meshes[0], f"no unique steady state: {error} (check the boundary kinds)"
+            problem, stack.mesh(0), f"no unique steady state: {error} (check the boundary kinds)"
         )]
     achieved = uptake * c if reacts else np.zeros(c.size)
     flux_density = face_flux_densities(stack, whole.face_fluxes(c))
     solutions = []
-    for (first, n), mesh in zip(stack.blocks, stack.meshes, strict=True):
+    for g, (first, n) in enumerate(blocks):
         solutions.append(_solution(
-            mesh, c[first : first + n], flux_density[first : first + n + 1],
-            achieved[first : first + n], _linear_record()))
+            partial(stack.mesh, g), c[first : first + n], flux_density[first : first + n + 1],
+            achieved[first : first + n], _linear_record(), cells_per_layer=stack.counts[g],
+            centres=stack.centres[first : first + n],
+            faces=stack.faces[first : first + n + 1]))
     return solutions
 
 
@@ -524,17 +528,27 @@ def _solve_nonlinear(
 
 
 def _solution(
-    mesh: Mesh,
+    mesh: Mesh | Callable[[], Mesh],
     c: np.ndarray,
     flux_density: np.ndarray,
     achieved: np.ndarray,
     record: dict,
     active: np.ndarray | None = None,
     zero_order: np.ndarray | None = None,
+    *,
+    cells_per_layer: tuple[int, ...] | None = None,
+    centres: np.ndarray | None = None,
+    faces: np.ndarray | None = None,
 ) -> SteadySolution:
-    """The SteadySolution of solved cell values (``active``: depleted zero-order cells)."""
+    """The SteadySolution of solved cell values (``active``: depleted zero-order cells).
+
+    ``mesh`` may be a callable returning it (built only if the profile is read; the
+    mesh facts of the diagnostics are then given as ``cells_per_layer``, ``centres`` and
+    ``faces``)."""
     finite = math.isfinite(float(c.sum()))  # NaN or inf anywhere propagates into the sum
     profile = NodalProfile(mesh, c, flux_density)
+    if isinstance(mesh, Mesh):
+        cells_per_layer, centres, faces = mesh.cells_per_layer, mesh.centres, mesh.faces
 
     fronts: list[float] = []
     depleted_cells = 0 if active is None else int(np.count_nonzero(active))
@@ -544,16 +558,16 @@ def _solution(
         fronts = _depletion_fronts(mesh, active, np.clip(live_fraction, 0.0, 1.0))
 
     diagnostics = {
-        "cells_per_layer": mesh.cells_per_layer,
-        "cells": mesh.n_cells,
+        "cells_per_layer": cells_per_layer,
+        "cells": int(c.size),
         "newton_iterations": record["newton_iterations"],
         "active_set_iterations": record["active_set_iterations"],
         "residual_history": record["residual_history"],
         "depleted_cells": depleted_cells,
         "depletion_fronts": fronts,
-        "cell_centres": mesh.centres,
+        "cell_centres": centres,
         "cell_concentrations": c,
-        "face_positions": mesh.faces,
+        "face_positions": faces,
         "face_flux_densities": flux_density,
     }
     return SteadySolution(
