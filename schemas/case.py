@@ -246,21 +246,29 @@ class ByKind(_CheckedInDeserialize):
         self.choices = dict(choices)
         self.noun = noun
         self._schemas = {kind: cls() for kind, cls in self.choices.items()}
+        self._kinds = ", ".join(self.choices)
+        # Kinds whose schema holds nothing but the kind itself ({"kind": "steady"}): a document
+        # with that one key loads to itself, without a nested schema load.
+        self._kind_only = frozenset(
+            kind for kind, schema in self._schemas.items() if set(schema.load_fields) == {"kind"}
+        )
 
     def _deserialize(self, value: Any, attr: str | None, data: Any, **kwargs: Any) -> dict:
-        kinds = ", ".join(self.choices)
-        if not isinstance(value, Mapping):
+        if not (type(value) is dict or isinstance(value, Mapping)):
             raise ValidationError(
-                f"expected {self.noun} object with a 'kind' ({kinds}), got {_describe(value)}"
+                f"expected {self.noun} object with a 'kind' ({self._kinds}), "
+                f"got {_describe(value)}"
             )
         kind = value.get("kind")
         if not isinstance(kind, str) or kind not in self.choices:
             message = (
-                f"missing: {self.noun} needs a 'kind' ({kinds})"
+                f"missing: {self.noun} needs a 'kind' ({self._kinds})"
                 if "kind" not in value
-                else f"must be one of {kinds}; got {_describe(kind)}"
+                else f"must be one of {self._kinds}; got {_describe(kind)}"
             )
             raise ValidationError({"kind": [message]})
+        if kind in self._kind_only and len(value) == 1:
+            return {"kind": kind}
         return self._schemas[kind].load(value)
 
     def _serialize(self, value: Any, attr: str | None, obj: Any, **kwargs: Any) -> Any:
