@@ -66,7 +66,11 @@ def _x_cosh_minus_sinh(x: np.ndarray) -> np.ndarray:
 
 def _full(r, value: float):
     """``value`` with the shape of r (an array), or as a scalar for a scalar r."""
-    return np.full(r.shape, value) if isinstance(r, np.ndarray) else np.float64(value)
+    if not isinstance(r, np.ndarray):
+        return np.float64(value)
+    out = np.empty(r.shape)
+    out.fill(value)
+    return out
 
 
 def _zeros(r):

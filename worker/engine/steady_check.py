@@ -86,7 +86,7 @@ class _Sampled:
     solution: SteadySolution
     positions: list[np.ndarray]
     concentration: list[np.ndarray]
-    end_flux: list[np.ndarray]
+    end_flux: list[tuple[float, float]]
     lowest: float = float("nan")
     highest: float = float("nan")
 
@@ -101,7 +101,8 @@ class _Sampled:
             if solution.profile_at is not None:
                 c, j = solution.profile_at(r, layer=i)
                 conc.append(np.asarray(c, dtype=float))
-                flux.append(np.asarray(j, dtype=float)[[0, -1]])
+                j = np.asarray(j, dtype=float)
+                flux.append((j[0], j[-1]))
                 continue
             conc.append(np.asarray(solution.concentration_at(r, layer=i), dtype=float))
             flux.append(np.asarray(solution.flux_at(r[[0, -1]], layer=i), dtype=float))
@@ -464,10 +465,13 @@ def run_steady(problem: Problem) -> Outcome:
     t_scale = _throughput_scale(problem, primary, c_scale)
 
     primary_samples = samples.get(id(primary)) or _Sampled.of(primary, positions)
+    layer_of_point: list[int] = []
+    for i, r in enumerate(positions):
+        layer_of_point += [i] * len(r)
     outcome.series["profile"] = {
         "position": np.concatenate(positions).tolist(),
         "concentration": np.concatenate(primary_samples.concentration).tolist(),
-        "layer": [i for i, r in enumerate(positions) for _ in range(len(r))],
+        "layer": layer_of_point,
         "units": {"position": "m", "concentration": problem.concentration_unit},
     }
     if problem.probes:
