@@ -276,7 +276,7 @@ def refined_solutions(
         base = (int(base_cells),) * len(problem.layers)
     else:
         base = tuple(int(n) for n in base_cells)
-    return solve_fv_grids(problem, [[n * ratio**k for n in base] for k in (2, 1, 0)])
+    return solve_fv_grids(problem, [tuple(n * ratio**k for n in base) for k in (2, 1, 0)])
 
 
 def run_grid_study(

@@ -236,7 +236,9 @@ class ReactionTerms:
 
 
 def _check_cells(cells_per_layer: Sequence[int] | int, n_layers: int) -> tuple[int, ...]:
-    if isinstance(cells_per_layer, int | np.integer):
+    if type(cells_per_layer) is tuple and all(type(n) is int for n in cells_per_layer):
+        counts = cells_per_layer  # already what the conversion below makes
+    elif isinstance(cells_per_layer, int | np.integer):
         counts = (int(cells_per_layer),) * n_layers
     else:
         counts = tuple(int(n) for n in cells_per_layer)
@@ -292,7 +294,7 @@ class MeshStack:
         Geometric exponent n of every mesh.
     faces, face_areas : ndarray, shape (F,)
         Stacked faces (F = sum of N_g + 1) and their areas r^n.
-    centres, volumes, west_gaps, east_gaps, diffusivity, partition, layer_index : ndarray
+    centres, volumes, west_gaps, east_gaps, diffusivity, partition : ndarray
         Stacked cell data, shape (F - 1,), spacer cells included.
     """
 
@@ -309,7 +311,6 @@ class MeshStack:
     east_gaps: np.ndarray
     diffusivity: np.ndarray
     partition: np.ndarray
-    layer_index: np.ndarray
 
     @property
     def blocks(self) -> list[tuple[int, int]]:
@@ -331,7 +332,8 @@ class MeshStack:
             volumes=self.volumes[cells],
             west_gaps=self.west_gaps[cells],
             east_gaps=self.east_gaps[cells],
-            layer_index=self.layer_index[cells],
+            layer_index=(np.zeros(n, dtype=np.intp) if len(counts) == 1 else
+                         np.repeat(np.arange(len(counts)), counts)),
             layer_starts=np.array(list(accumulate(counts, initial=0))),
             diffusivity=self.diffusivity[cells],
             partition=self.partition[cells],
@@ -388,36 +390,38 @@ def build_mesh_stack(problem: Problem, cells: Sequence[Sequence[int] | int]) -> 
     layers = problem.layers
     counts_list = [_check_cells(c, len(layers)) for c in cells]
     edges = np.array(list(accumulate((ly.thickness for ly in layers), initial=problem.inner)))
-    faces = np.empty(sum(sum(counts) + 1 for counts in counts_list))
-    local = np.arange(max(max(counts) for counts in counts_list), dtype=float)
+    # West face of every cell: its layer's inner edge plus whole cell widths (the layer edges
+    # themselves are exact, local index 0, so interfaces carry no round-off drift), then the
+    # outer face of the mesh; all meshes at once, segment by segment (a layer of a mesh, or the
+    # outer face as a segment of one face and zero width).
+    bounds = edges.tolist()
+    segment_edges: list[float] = []
+    segment_widths: list[float] = []
+    segment_counts: list[int] = []
     offsets: list[int] = []
     position = 0
     for counts in counts_list:
-        starts = list(accumulate(counts, initial=0))
-        # west face of every cell: its layer's inner edge plus whole cell widths; the layer
-        # edges themselves are exact (local index 0), so interfaces carry no round-off drift
-        for j, (layer, count) in enumerate(zip(layers, counts, strict=True)):
-            first = position + starts[j]
-            span = faces[first : first + count]
-            np.multiply(local[:count], layer.thickness / count, out=span)
-            span += edges[j]
-        faces[position + starts[-1]] = edges[-1]
         offsets.append(position)
-        position += starts[-1] + 1
+        segment_edges += bounds
+        segment_widths += [layer.thickness / count for layer, count in zip(layers, counts,
+                                                                          strict=True)]
+        segment_widths.append(0.0)
+        segment_counts += counts
+        segment_counts.append(1)
+        position += sum(counts) + 1
+    segment_starts = list(accumulate(segment_counts[:-1], initial=0))
+    local = np.arange(position) - np.repeat(segment_starts, segment_counts)
+    faces = np.repeat(segment_edges, segment_counts) + np.repeat(segment_widths,
+                                                                 segment_counts) * local
     spacers = tuple(first - 1 for first in offsets[1:])
     centres, face_areas, volumes, west_gaps, east_gaps = _cell_geometry(faces, n)
 
     diffusivity = _spread([ly.diffusivity for ly in layers], counts_list, math.inf)
     partition = _spread([ly.partition for ly in layers], counts_list, 1.0)
-    if len(layers) == 1:
-        layer_index = np.zeros(centres.size, dtype=np.intp)
-    else:
-        layer_index = _spread(range(len(layers)), counts_list, 0).astype(np.intp)
     return MeshStack(
         edges=edges, counts=tuple(counts_list), offsets=tuple(offsets), spacers=spacers,
         exponent=n, faces=faces, face_areas=face_areas, centres=centres, volumes=volumes,
         west_gaps=west_gaps, east_gaps=east_gaps, diffusivity=diffusivity, partition=partition,
-        layer_index=layer_index,
     )
 
 

@@ -495,13 +495,14 @@ def solve_fv_grids(
         return [_failed(
             problem, stack.mesh(0), f"no unique steady state: {error} (check the boundary kinds)"
         )]
-    achieved = uptake * c if reacts else np.zeros(c.size)
+    achieved = uptake * c if reacts else None
     flux_density = face_flux_densities(stack, whole.face_fluxes(c))
     solutions = []
     for g, (first, n) in enumerate(blocks):
         solutions.append(_solution(
             partial(stack.mesh, g), c[first : first + n], flux_density[first : first + n + 1],
-            achieved[first : first + n], _linear_record(), cells_per_layer=stack.counts[g],
+            achieved[first : first + n] if reacts else None, _linear_record(),
+            cells_per_layer=stack.counts[g],
             centres=stack.centres[first : first + n],
             faces=stack.faces[first : first + n + 1]))
     return solutions
@@ -531,7 +532,7 @@ def _solution(
     mesh: Mesh | Callable[[], Mesh],
     c: np.ndarray,
     flux_density: np.ndarray,
-    achieved: np.ndarray,
+    achieved: np.ndarray | None,
     record: dict,
     active: np.ndarray | None = None,
     zero_order: np.ndarray | None = None,
@@ -540,7 +541,8 @@ def _solution(
     centres: np.ndarray | None = None,
     faces: np.ndarray | None = None,
 ) -> SteadySolution:
-    """The SteadySolution of solved cell values (``active``: depleted zero-order cells).
+    """The SteadySolution of solved cell values (``achieved``: consumption V R per cell, None
+    for none at all; ``active``: depleted zero-order cells).
 
     ``mesh`` may be a callable returning it (built only if the profile is read; the
     mesh facts of the diagnostics are then given as ``cells_per_layer``, ``centres`` and
@@ -580,7 +582,7 @@ def _solution(
         profile_at=profile.profile_at,
         flux_inner=float(flux_density[0]),
         flux_outer=float(flux_density[-1]),
-        consumption=float(achieved.sum()),
+        consumption=0.0 if achieved is None else float(achieved.sum()),
         depletion_front=fronts[0] if fronts else None,
         diagnostics=diagnostics,
     )
