@@ -637,7 +637,22 @@ def _steady_level_rules(data: Mapping) -> Iterator[tuple[str, str]]:
     )
 
 
+def _bases(data: Any, found: set[str]) -> None:
+    """Add to ``found`` every basis the loaded values of ``data`` carry."""
+    for item in data.values() if type(data) is dict or isinstance(data, Mapping) else data:
+        if isinstance(item, SIValue):
+            if item.basis is not None:
+                found.add(item.basis)
+        elif _is_container(item):
+            _bases(item, found)
+
+
 def _basis_rules(data: Mapping) -> Iterator[tuple[str, str]]:
+    bases: set[str] = set()
+    if isinstance(data, Mapping | list):
+        _bases(data, bases)
+    if len(bases) < 2:  # one basis, or none: nothing to report (paths are built only if needed)
+        return
     first_path, first = None, None
     for path, item in iter_si_values(data):
         if item.basis is None:
@@ -707,7 +722,25 @@ def case_rule_errors(data: Mapping) -> list[tuple[str, str]]:
 
 def case_basis(data: Mapping) -> str:
     """The concentration basis of a loaded case: that of its first basis-bearing value."""
-    for _, item in iter_si_values(data):
-        if item.basis is not None:
-            return item.basis
-    return "molar"
+    basis = _first_basis(data)
+    return "molar" if basis is None else basis
+
+
+def _first_basis(data: Any) -> str | None:
+    """The basis of the first basis-bearing value in document order (the order of
+    ``iter_si_values``), searched no further than that value."""
+    if type(data) is dict or isinstance(data, Mapping):
+        items = data.values()
+    elif isinstance(data, list):
+        items = data
+    else:
+        return None
+    for item in items:
+        if isinstance(item, SIValue):
+            if item.basis is not None:
+                return item.basis
+        elif _is_container(item):
+            basis = _first_basis(item)
+            if basis is not None:
+                return basis
+    return None

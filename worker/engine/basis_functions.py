@@ -134,6 +134,21 @@ class LayerBasis:
         particular, dparticular = self._particular(r)
         return (*values[:2], particular, *values[2:], dparticular)
 
+    def combination(self, r, c1: float, c2: float, partition: float
+                    ) -> tuple[np.ndarray, np.ndarray]:
+        """C = K (c1 g1 + c2 g2) + P and dC/dr at positions ``r`` (see ``evaluate``).
+
+        In a hollow layer without reaction g1 = 1, g1' = 0 and P = P' = 0 identically: those
+        terms enter as scalars, the same arithmetic value for value, without their arrays.
+        """
+        if self.decay_constant == 0.0 and self.zero_order_rate == 0.0 and not self.solid:
+            r = np.float64(r) if isinstance(r, float) else np.asarray(r, dtype=float)
+            g2, dg2 = self._plain_nodal(r)
+            return (partition * (c1 * 1.0 + c2 * g2) + 0.0,
+                    partition * (c1 * 0.0 + c2 * dg2) + 0.0)
+        g1, g2, part, dg1, dg2, dpart = self.evaluate(r)
+        return partition * (c1 * g1 + c2 * g2) + part, partition * (c1 * dg1 + c2 * dg2) + dpart
+
     # -- no reaction ------------------------------------------------------------------------
     def _plain(self, r: np.ndarray) -> tuple[np.ndarray, ...]:
         """g1 = 1 and the nodal g2, with derivatives."""

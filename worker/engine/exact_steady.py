@@ -256,10 +256,7 @@ def _apply(form: tuple[dict[int, float], float], unknowns) -> float:
 
 def _layer_piece(basis: LayerBasis, partition: float, c1: float, c2: float):
     def piece(r: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
-        g1, g2, part, dg1, dg2, dpart = basis.evaluate(r)
-        value = partition * (c1 * g1 + c2 * g2) + part
-        gradient = partition * (c1 * dg1 + c2 * dg2) + dpart
-        return value, gradient
+        return basis.combination(r, c1, c2, partition)
     return piece
 
 
