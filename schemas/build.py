@@ -63,8 +63,14 @@ class ValidatedCase:
     basis: str
 
 
+#: JSON leaves, shared by a copy (immutable); told apart before the abstract Mapping check.
+_JSON_LEAVES = frozenset({str, float, int, bool, type(None)})
+
+
 def _copy_json(value: Any) -> Any:
     """Copy of a JSON-like value (dicts and lists rebuilt, leaves shared: they are immutable)."""
+    if type(value) in _JSON_LEAVES:
+        return value
     if isinstance(value, Mapping):
         return {key: _copy_json(item) for key, item in value.items()}
     if isinstance(value, list | tuple):

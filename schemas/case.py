@@ -102,7 +102,16 @@ def _describe(value: Any) -> str:
 # --------------------------------------------------------------------------------------- fields
 
 
-class Quantity(fields.Field):
+class _CheckedInDeserialize(fields.Field):
+    """A field whose rules all run in ``_deserialize``: validation adds nothing unless
+    validators were given (marshmallow builds a combined validator on every call)."""
+
+    def _validate(self, value: Any) -> None:
+        if self.validators:
+            super()._validate(value)
+
+
+class Quantity(_CheckedInDeserialize):
     """A dimensional value, ``"<number> <unit>"`` or ``{"value": number, "unit": str}``.
 
     Parameters
@@ -229,7 +238,7 @@ class PlainInteger(fields.Integer):
         return {"type": "integer"}
 
 
-class ByKind(fields.Field):
+class ByKind(_CheckedInDeserialize):
     """An object whose ``kind`` picks the schema that loads it (reactions, boundaries, regimes)."""
 
     def __init__(self, choices: Mapping[str, type[Schema]], noun: str, **kwargs: Any) -> None:
@@ -237,28 +246,36 @@ class ByKind(fields.Field):
         self.choices = dict(choices)
         self.noun = noun
         self._schemas = {kind: cls() for kind, cls in self.choices.items()}
+        self._kinds = ", ".join(self.choices)
+        # Kinds whose schema holds nothing but the kind itself ({"kind": "steady"}): a document
+        # with that one key loads to itself, without a nested schema load.
+        self._kind_only = frozenset(
+            kind for kind, schema in self._schemas.items() if set(schema.load_fields) == {"kind"}
+        )
 
     def _deserialize(self, value: Any, attr: str | None, data: Any, **kwargs: Any) -> dict:
-        kinds = ", ".join(self.choices)
-        if not isinstance(value, Mapping):
+        if not (type(value) is dict or isinstance(value, Mapping)):
             raise ValidationError(
-                f"expected {self.noun} object with a 'kind' ({kinds}), got {_describe(value)}"
+                f"expected {self.noun} object with a 'kind' ({self._kinds}), "
+                f"got {_describe(value)}"
             )
         kind = value.get("kind")
         if not isinstance(kind, str) or kind not in self.choices:
             message = (
-                f"missing: {self.noun} needs a 'kind' ({kinds})"
+                f"missing: {self.noun} needs a 'kind' ({self._kinds})"
                 if "kind" not in value
-                else f"must be one of {kinds}; got {_describe(kind)}"
+                else f"must be one of {self._kinds}; got {_describe(kind)}"
             )
             raise ValidationError({"kind": [message]})
+        if kind in self._kind_only and len(value) == 1:
+            return {"kind": kind}
         return self._schemas[kind].load(value)
 
     def _serialize(self, value: Any, attr: str | None, obj: Any, **kwargs: Any) -> Any:
         return value
 
 
-class Tolerances(fields.Field):
+class Tolerances(_CheckedInDeserialize):
     """``{"<check>[.<quantity>]": positive finite number}``."""
 
     def _deserialize(self, value: Any, attr: str | None, data: Any, **kwargs: Any) -> dict:
@@ -535,20 +552,37 @@ def _value(data: Mapping, key: str) -> float | None:
     return item.value if isinstance(item, SIValue) else None
 
 
+#: Leaf types of a loaded document, told apart without the slower abstract Mapping check.
+_LEAF_TYPES = frozenset({SIValue, str, float, int, bool, type(None)})
+
+
+def _is_container(item: Any) -> bool:
+    kind = type(item)
+    if kind is dict or kind is list:  # what a loaded document is made of
+        return True
+    return kind not in _LEAF_TYPES and isinstance(item, Mapping | list)
+
+
 def iter_si_values(data: Any, path: str = "") -> Iterator[tuple[str, SIValue]]:
     """Every loaded dimensional value with its path, in document order."""
-    if isinstance(data, Mapping):
+    found: list[tuple[str, SIValue]] = []
+    _collect_si_values(data, path, found)
+    return iter(found)
+
+
+def _collect_si_values(data: Any, path: str, found: list[tuple[str, SIValue]]) -> None:
+    if type(data) is dict or isinstance(data, Mapping):
         for key, item in data.items():
             if isinstance(item, SIValue):
-                yield (f"{path}.{key}" if path else key), item
-            elif isinstance(item, Mapping | list):
-                yield from iter_si_values(item, f"{path}.{key}" if path else key)
+                found.append((f"{path}.{key}" if path else key, item))
+            elif _is_container(item):
+                _collect_si_values(item, f"{path}.{key}" if path else key, found)
     elif isinstance(data, list):
         for index, item in enumerate(data):
             if isinstance(item, SIValue):
-                yield f"{path}[{index}]", item
-            elif isinstance(item, Mapping | list):
-                yield from iter_si_values(item, f"{path}[{index}]")
+                found.append((f"{path}[{index}]", item))
+            elif _is_container(item):
+                _collect_si_values(item, f"{path}[{index}]", found)
 
 
 def _consumes(reaction: Any) -> bool:
@@ -603,7 +637,22 @@ def _steady_level_rules(data: Mapping) -> Iterator[tuple[str, str]]:
     )
 
 
+def _bases(data: Any, found: set[str]) -> None:
+    """Add to ``found`` every basis the loaded values of ``data`` carry."""
+    for item in data.values() if type(data) is dict or isinstance(data, Mapping) else data:
+        if isinstance(item, SIValue):
+            if item.basis is not None:
+                found.add(item.basis)
+        elif _is_container(item):
+            _bases(item, found)
+
+
 def _basis_rules(data: Mapping) -> Iterator[tuple[str, str]]:
+    bases: set[str] = set()
+    if isinstance(data, Mapping | list):
+        _bases(data, bases)
+    if len(bases) < 2:  # one basis, or none: nothing to report (paths are built only if needed)
+        return
     first_path, first = None, None
     for path, item in iter_si_values(data):
         if item.basis is None:
@@ -673,7 +722,25 @@ def case_rule_errors(data: Mapping) -> list[tuple[str, str]]:
 
 def case_basis(data: Mapping) -> str:
     """The concentration basis of a loaded case: that of its first basis-bearing value."""
-    for _, item in iter_si_values(data):
-        if item.basis is not None:
-            return item.basis
-    return "molar"
+    basis = _first_basis(data)
+    return "molar" if basis is None else basis
+
+
+def _first_basis(data: Any) -> str | None:
+    """The basis of the first basis-bearing value in document order (the order of
+    ``iter_si_values``), searched no further than that value."""
+    if type(data) is dict or isinstance(data, Mapping):
+        items = data.values()
+    elif isinstance(data, list):
+        items = data
+    else:
+        return None
+    for item in items:
+        if isinstance(item, SIValue):
+            if item.basis is not None:
+                return item.basis
+        elif _is_container(item):
+            basis = _first_basis(item)
+            if basis is not None:
+                return basis
+    return None

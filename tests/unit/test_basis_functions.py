@@ -43,6 +43,45 @@ def test_basis_solves_the_layer_equation(exponent, a, b, solid, thiele, zero_ord
 
 
 @pytest.mark.parametrize("exponent, a, b, solid", LAYOUTS)
+@pytest.mark.parametrize("thiele", [0.0, 0.4, 1.0, 3.0, 40.0, 3000.0])
+@pytest.mark.parametrize("zero_order", [0.0, 0.7])
+def test_a_single_position_gives_the_values_it_has_in_an_array(exponent, a, b, solid, thiele,
+                                                               zero_order):
+    """The closed-form system evaluates each edge alone (scalar arithmetic): the values must be
+    those of the same position evaluated in an array, bit for bit."""
+    d = 1.3e-9
+    k = (thiele / (b - a)) ** 2 * d
+    basis = LayerBasis(exponent, a, b, d, rate_constant=k, zero_order_rate=zero_order, solid=solid)
+    r = np.concatenate(([a, b], np.linspace(a, b, 9)[1:-1]))
+    together = basis.evaluate(r)
+    for j, position in enumerate(r.tolist()):
+        alone = basis.evaluate(position)
+        for field, value in zip(together, alone, strict=True):
+            assert np.shape(value) == ()
+            assert np.array_equal(field[j], value, equal_nan=True)
+
+
+@pytest.mark.parametrize("exponent, a, b, solid", LAYOUTS)
+@pytest.mark.parametrize("thiele", [0.0, 1.0, 40.0])
+@pytest.mark.parametrize("zero_order", [0.0, 0.7])
+@pytest.mark.parametrize("c1, c2", [(0.3, -1.7), (-0.25, 0.25), (2.0, 0.0)])
+def test_combination_is_the_combination_of_the_evaluated_functions(exponent, a, b, solid, thiele,
+                                                                   zero_order, c1, c2):
+    """``combination`` (with its shortcut for layers without reaction) gives K (c1 g1 + c2 g2) + P
+    and its derivative exactly as formed from ``evaluate``, signs of zeros included."""
+    d = 1.3e-9
+    k = (thiele / (b - a)) ** 2 * d
+    basis = LayerBasis(exponent, a, b, d, rate_constant=k, zero_order_rate=zero_order, solid=solid)
+    r = np.linspace(a, b, 11)
+    g1, g2, part, dg1, dg2, dpart = basis.evaluate(r)
+    partition = 1.7
+    expected = (partition * (c1 * g1 + c2 * g2) + part, partition * (c1 * dg1 + c2 * dg2) + dpart)
+    for got, want in zip(basis.combination(r, c1, c2, partition), expected, strict=True):
+        assert np.array_equal(got, want)
+        assert np.array_equal(np.signbit(got), np.signbit(want))
+
+
+@pytest.mark.parametrize("exponent, a, b, solid", LAYOUTS)
 @pytest.mark.parametrize("thiele", [0.0, 0.5, 2.0, 3000.0])
 def test_basis_edge_values(exponent, a, b, solid, thiele):
     """g2(a) = 0, g2(b) = 1; g1(a) = 1 with g1'(a) = 0 (m L <= 1) or g1(b) = 0 (m L > 1);

@@ -642,3 +642,19 @@ def test_case_sha256_is_sha256_of_canonical_text():
 def test_canonical_json_refuses_nan():
     with pytest.raises(ValueError):
         canonical_json({"x": math.nan})
+
+
+@pytest.mark.parametrize("choices", [case_module.REACTION_SCHEMAS, case_module.BOUNDARY_SCHEMAS,
+                                     case_module.REGIME_SCHEMAS])
+def test_a_kind_only_object_loads_as_its_schema_loads_it(choices):
+    """``ByKind`` returns ``{"kind": k}`` itself for schemas that hold only the kind; that must be
+    what the schema's own load gives, and any other key still goes through the schema (and is
+    refused as unknown)."""
+    field = case_module.ByKind(choices, "a test object")
+    kind_only = [k for k, cls in choices.items() if set(cls().load_fields) == {"kind"}]
+    assert kind_only  # none, symmetry, steady
+    for kind in kind_only:
+        assert field.deserialize({"kind": kind}) == choices[kind]().load({"kind": kind})
+        with pytest.raises(case_module.ValidationError) as refused:
+            field.deserialize({"kind": kind, "value": 1})
+        assert "value" in refused.value.messages

@@ -64,6 +64,19 @@ def _x_cosh_minus_sinh(x: np.ndarray) -> np.ndarray:
     return np.where(x < _SERIES_LIMIT, series, x * np.cosh(x) - np.sinh(x))
 
 
+def _full(r, value: float):
+    """``value`` with the shape of r (an array), or as a scalar for a scalar r."""
+    if not isinstance(r, np.ndarray):
+        return np.float64(value)
+    out = np.empty(r.shape)
+    out.fill(value)
+    return out
+
+
+def _zeros(r):
+    return np.zeros(r.shape) if isinstance(r, np.ndarray) else np.float64(0.0)
+
+
 @dataclass(frozen=True)
 class LayerBasis:
     """Nodal closed-form solution of one layer.
@@ -99,7 +112,7 @@ class LayerBasis:
     @property
     def decay_constant(self) -> float:
         """m = sqrt(k/D), 1/m (0 without first-order reaction)."""
-        return float(np.sqrt(self.rate_constant / self.diffusivity))
+        return math.sqrt(self.rate_constant / self.diffusivity)
 
     def evaluate(self, r: np.ndarray) -> tuple[np.ndarray, ...]:
         """Nodal functions, particular solution and their r-derivatives at positions ``r``.
@@ -109,9 +122,11 @@ class LayerBasis:
         g1, g2, particular, dg1, dg2, dparticular : ndarray
             The two dimensionless homogeneous solutions (see the module docstring), the
             particular solution in concentration units and the derivatives per metre, each with
-            the shape of ``r``.
+            the shape of ``r`` (a single float position gives scalars: numpy's scalar
+            arithmetic, the same values as for that position in an array, without the array
+            overhead).
         """
-        r = np.asarray(r, dtype=float)
+        r = np.float64(r) if isinstance(r, float) else np.asarray(r, dtype=float)
         if self.decay_constant > 0.0:
             values = self._reacting(r)
         else:
@@ -119,10 +134,25 @@ class LayerBasis:
         particular, dparticular = self._particular(r)
         return (*values[:2], particular, *values[2:], dparticular)
 
+    def combination(self, r, c1: float, c2: float, partition: float
+                    ) -> tuple[np.ndarray, np.ndarray]:
+        """C = K (c1 g1 + c2 g2) + P and dC/dr at positions ``r`` (see ``evaluate``).
+
+        In a hollow layer without reaction g1 = 1, g1' = 0 and P = P' = 0 identically: those
+        terms enter as scalars, the same arithmetic value for value, without their arrays.
+        """
+        if self.decay_constant == 0.0 and self.zero_order_rate == 0.0 and not self.solid:
+            r = np.float64(r) if isinstance(r, float) else np.asarray(r, dtype=float)
+            g2, dg2 = self._plain_nodal(r)
+            return (partition * (c1 * 1.0 + c2 * g2) + 0.0,
+                    partition * (c1 * 0.0 + c2 * dg2) + 0.0)
+        g1, g2, part, dg1, dg2, dpart = self.evaluate(r)
+        return partition * (c1 * g1 + c2 * g2) + part, partition * (c1 * dg1 + c2 * dg2) + dpart
+
     # -- no reaction ------------------------------------------------------------------------
     def _plain(self, r: np.ndarray) -> tuple[np.ndarray, ...]:
         """g1 = 1 and the nodal g2, with derivatives."""
-        zeros, ones = np.zeros_like(r), np.ones_like(r)
+        zeros, ones = _zeros(r), _full(r, 1.0)
         if self.solid:
             return zeros, ones, zeros, zeros
         g2, dg2 = self._plain_nodal(r)
@@ -133,11 +163,11 @@ class LayerBasis:
         a, b, n = self.inner_edge, self.outer_edge, self.exponent
         length = b - a
         if n == 0:
-            return (r - a) / length, np.full_like(r, 1.0 / length)
+            return (r - a) / length, _full(r, 1.0 / length)
         if n == 1:
             log_ratio = np.log1p(length / a)
             return np.log1p((r - a) / a) / log_ratio, 1.0 / (r * log_ratio)
-        return b * (r - a) / (r * length), a * b / (length * r**2)
+        return b * (r - a) / (r * length), a * b / (length * (r * r))
 
     # -- first order ------------------------------------------------------------------------
     @property
@@ -154,28 +184,31 @@ class LayerBasis:
         a, b, m = self.inner_edge, self.outer_edge, self.decay_constant
         g2, dg2 = self._sinh_ratio(r - a)
         if n == 2:
-            g2, dg2 = (b / r) * g2, (b / r) * dg2 - (b / r) * g2 / r
+            weight = b / r
+            g2, dg2 = weight * g2, weight * dg2 - weight * g2 / r
         if self.nodal:
             g1, dg1 = self._sinh_ratio(b - r)
             dg1 = -dg1
             if n == 2:
-                g1, dg1 = (a / r) * g1, (a / r) * dg1 - (a / r) * g1 / r
+                weight = a / r
+                g1, dg1 = weight * g1, weight * dg1 - weight * g1 / r
             return g1, g2, dg1, dg2
         x = m * (r - a)  # at most 1 here
         if n == 0:
             return np.cosh(x), g2, m * np.sinh(x), dg2
         # r C = a cosh(x) + sinh(x)/m: C(a) = 1, C'(a) = 0.
         g1 = (a * np.cosh(x) + np.sinh(x) / m) / r
-        dg1 = (_x_cosh_minus_sinh(x) / m + a * r * m * np.sinh(x)) / r**2
+        dg1 = (_x_cosh_minus_sinh(x) / m + a * r * m * np.sinh(x)) / (r * r)
         return g1, g2, dg1, dg2
 
     def _sinh_ratio(self, t: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
         """sinh(m t)/sinh(m L) and its t-derivative, 0 <= t <= L, in decaying-exponential form."""
-        m, length = self.decay_constant, self.thickness
-        denominator = -np.expm1(-2.0 * m * length)
+        m, length = self.decay_constant, self.outer_edge - self.inner_edge
+        denominator = -math.expm1(-2.0 * m * length)
         decay = np.exp(-m * (length - t))
-        value = decay * (-np.expm1(-2.0 * m * t)) / denominator
-        slope = m * decay * (1.0 + np.exp(-2.0 * m * t)) / denominator
+        twice = -2.0 * m * t
+        value = decay * (-np.expm1(twice)) / denominator
+        slope = m * decay * (1.0 + np.exp(twice)) / denominator
         return value, slope
 
     def _solid_sphere(self, r: np.ndarray) -> tuple[np.ndarray, ...]:
@@ -190,8 +223,8 @@ class LayerBasis:
         small = np.minimum(x, 1.0)
         scaled_numerator = np.where(x < 1.0, 2.0 * np.exp(-small) * _x_cosh_minus_sinh(small),
                                     x * (1.0 + np.exp(-2.0 * x)) + np.expm1(-2.0 * x))
-        scaled_slope = scaled_numerator / safe_r**2
-        zeros = np.zeros_like(r)
+        scaled_slope = scaled_numerator / (safe_r * safe_r)
+        zeros = _zeros(r)
         return zeros, prefactor * scaled_sinh_over_r, zeros, prefactor * scaled_slope
 
     def _cylinder_bessel(self, r: np.ndarray) -> tuple[np.ndarray, ...]:
@@ -202,7 +235,7 @@ class LayerBasis:
         i0b = special.i0e(m * b)
         grow_from_outer = np.exp(-m * (b - r))  # exp(m r) / exp(m b)
         if self.solid:
-            zeros = np.zeros_like(r)
+            zeros = _zeros(r)
             return zeros, i0r / i0b * grow_from_outer, zeros, m * i1r / i0b * grow_from_outer
         k0r, k1r = special.k0e(x), special.k1e(x)
         i0a, k0a, k0b = special.i0e(m * a), special.k0e(m * a), special.k0e(m * b)
@@ -231,12 +264,12 @@ class LayerBasis:
         """Zero-order particular solution vanishing at both edges, and its derivative."""
         q = self.zero_order_rate / self.diffusivity
         if q == 0.0:
-            zeros = np.zeros_like(r)
+            zeros = _zeros(r)
             return zeros, zeros
         a, b, n = self.inner_edge, self.outer_edge, self.exponent
         factor = q / (2.0 * (n + 1))
         if self.solid:
-            return factor * (r**2 - b**2), 2.0 * factor * r
+            return factor * (r * r - b**2), 2.0 * factor * r
         phi_out, dphi_out = self._plain_nodal(r)
         if n == 0:
             return factor * (r - a) * (r - b), factor * (2.0 * r - a - b)

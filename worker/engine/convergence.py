@@ -261,13 +261,14 @@ def refined_solutions(
     base_cells: Sequence[int] | int | None = None,
     ratio: int = REFINEMENT_RATIO,
 ) -> list[SteadySolution]:
-    """``solve_fv`` on three meshes, returned fine, medium, coarse.
+    """``solve_fv`` on three meshes (``solve_fv_grids``: linear cases in one stacked solve),
+    returned fine, medium, coarse.
 
     ``base_cells`` is the coarse mesh (cells per layer; default the mesh rule of ``fv_mesh``);
     the medium and fine meshes have ``ratio`` and ``ratio**2`` times as many cells per layer.
     """
     from worker.engine.fv_mesh import default_cells_per_layer
-    from worker.engine.fv_steady import solve_fv
+    from worker.engine.fv_steady import solve_fv_grids
 
     if base_cells is None:
         base_cells = default_cells_per_layer(problem)
@@ -275,7 +276,7 @@ def refined_solutions(
         base = (int(base_cells),) * len(problem.layers)
     else:
         base = tuple(int(n) for n in base_cells)
-    return [solve_fv(problem, [n * ratio**k for n in base]) for k in (2, 1, 0)]
+    return solve_fv_grids(problem, [tuple(n * ratio**k for n in base) for k in (2, 1, 0)])
 
 
 def run_grid_study(

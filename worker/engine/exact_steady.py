@@ -6,9 +6,10 @@ two closed-form basis functions plus a particular solution (see ``basis_function
 layer as ``C = K (c1 g1 + c2 g2) + P`` with dimensionless ``g1``, ``g2`` that stay of order one,
 the unknowns are the coefficients (c1, c2) of each layer (concentration units, in the layer's
 ``C/K`` scale) and ONE linear system holds: a boundary row at each face, and at each interface
-one row for continuity of ``C/K`` and one for continuity of the flux. The rows are equilibrated (each divided by its largest
-coefficient) before ``numpy.linalg.solve``; the relative residual (checked against
-``RESIDUAL_LIMIT``) is recorded in ``diagnostics``.
+one row for continuity of ``C/K`` and one for continuity of the flux. The rows are equilibrated
+(each divided by its largest coefficient) before LAPACK ``dgesv`` (LU with partial pivoting, as
+``numpy.linalg.solve``) solves them; the relative residual (checked against ``RESIDUAL_LIMIT``)
+is recorded in ``diagnostics``.
 
 Zero-order layers are first solved as if they never ran out; if the concentration falls below
 zero anywhere in one of them a depleted zone exists and the problem is handed to
@@ -32,8 +33,10 @@ Results support, and do not replace, design verification testing and qualified r
 from __future__ import annotations
 
 import math
+from collections.abc import Sequence
 
 import numpy as np
+from scipy.linalg.lapack import dgesv
 
 from worker.engine.basis_functions import LayerBasis
 from worker.engine.depletion_exact import solve_depleted
@@ -59,11 +62,11 @@ REFERENCE = (
 )
 # Relative residual of the equilibrated system above which the solution is reported as failed.
 RESIDUAL_LIMIT = 1e-10
+_TINY = np.finfo(float).tiny
 
 
-def _require(condition: bool, path: str, expected: str, got) -> None:
-    if not condition:
-        raise ValueError(f"{path}: expected {expected}, got {got!r}")
+def _fail(path: str, expected: str, got) -> None:
+    raise ValueError(f"{path}: expected {expected}, got {got!r}")
 
 
 def _positive(value) -> bool:
@@ -76,46 +79,46 @@ def _non_negative(value) -> bool:
 
 def validate_problem(problem: Problem) -> None:
     """Raise ``ValueError`` naming the first field that a steady closed form cannot accept."""
-    _require(problem.geometry in GEOMETRY_EXPONENT, "geometry", "slab, cylinder or sphere",
-             problem.geometry)
-    _require(math.isfinite(problem.inner), "inner", "a finite position in m", problem.inner)
-    if problem.geometry != "slab":
-        _require(problem.inner >= 0.0, "inner", "a radius >= 0 m", problem.inner)
-    _require(len(problem.layers) > 0, "layers", "at least one layer", problem.layers)
+    # (each message is formatted only when its check fails)
+    if problem.geometry not in GEOMETRY_EXPONENT:
+        _fail("geometry", "slab, cylinder or sphere", problem.geometry)
+    if not math.isfinite(problem.inner):
+        _fail("inner", "a finite position in m", problem.inner)
+    if problem.geometry != "slab" and not problem.inner >= 0.0:
+        _fail("inner", "a radius >= 0 m", problem.inner)
+    if not len(problem.layers) > 0:
+        _fail("layers", "at least one layer", problem.layers)
     for i, layer in enumerate(problem.layers):
-        path = f"layers[{i}]"
-        _require(_positive(layer.thickness), f"{path}.thickness", "a positive length in m",
-                 layer.thickness)
-        _require(_positive(layer.diffusivity), f"{path}.diffusivity", "a positive value in m^2/s",
-                 layer.diffusivity)
-        _require(_positive(layer.partition), f"{path}.partition", "a positive number",
-                 layer.partition)
+        if not _positive(layer.thickness):
+            _fail(f"layers[{i}].thickness", "a positive length in m", layer.thickness)
+        if not _positive(layer.diffusivity):
+            _fail(f"layers[{i}].diffusivity", "a positive value in m^2/s", layer.diffusivity)
+        if not _positive(layer.partition):
+            _fail(f"layers[{i}].partition", "a positive number", layer.partition)
         reaction = layer.reaction
-        _require(reaction.kind in REACTION_KINDS, f"{path}.reaction.kind",
-                 " | ".join(REACTION_KINDS), reaction.kind)
+        if reaction.kind not in REACTION_KINDS:
+            _fail(f"layers[{i}].reaction.kind", " | ".join(REACTION_KINDS), reaction.kind)
         for name in ("rate", "rate_constant", "vmax", "km"):
-            _require(_non_negative(getattr(reaction, name)), f"{path}.reaction.{name}",
-                     "a finite value >= 0", getattr(reaction, name))
-        if reaction.kind == "michaelis_menten":
-            _require(_positive(reaction.km), f"{path}.reaction.km", "a positive value",
-                     reaction.km)
-    for side in ("inner", "outer"):
-        boundary = getattr(problem, f"{side}_boundary")
-        path = f"{side}_boundary"
-        _require(boundary.kind in BOUNDARY_KINDS, f"{path}.kind", " | ".join(BOUNDARY_KINDS),
-                 boundary.kind)
+            value = getattr(reaction, name)
+            if not _non_negative(value):
+                _fail(f"layers[{i}].reaction.{name}", "a finite value >= 0", value)
+        if reaction.kind == "michaelis_menten" and not _positive(reaction.km):
+            _fail(f"layers[{i}].reaction.km", "a positive value", reaction.km)
+    for side, boundary in (("inner", problem.inner_boundary), ("outer", problem.outer_boundary)):
+        if boundary.kind not in BOUNDARY_KINDS:
+            _fail(f"{side}_boundary.kind", " | ".join(BOUNDARY_KINDS), boundary.kind)
         for name in ("value", "bulk"):
-            _require(math.isfinite(getattr(boundary, name)), f"{path}.{name}", "a finite number",
-                     getattr(boundary, name))
-        _require(_non_negative(boundary.coefficient), f"{path}.coefficient",
-                 "a finite value >= 0 in m/s", boundary.coefficient)
-        if boundary.partition is not None:
-            _require(_positive(boundary.partition), f"{path}.partition", "a positive number",
-                     boundary.partition)
-    if problem.solid_centre:
-        _require(problem.inner_boundary.kind == "symmetry", "inner_boundary.kind",
-                 "symmetry at the centre of a solid cylinder or sphere",
-                 problem.inner_boundary.kind)
+            value = getattr(boundary, name)
+            if not math.isfinite(value):
+                _fail(f"{side}_boundary.{name}", "a finite number", value)
+        if not _non_negative(boundary.coefficient):
+            _fail(f"{side}_boundary.coefficient", "a finite value >= 0 in m/s",
+                  boundary.coefficient)
+        if boundary.partition is not None and not _positive(boundary.partition):
+            _fail(f"{side}_boundary.partition", "a positive number", boundary.partition)
+    if problem.solid_centre and problem.inner_boundary.kind != "symmetry":
+        _fail("inner_boundary.kind", "symmetry at the centre of a solid cylinder or sphere",
+              problem.inner_boundary.kind)
 
 
 def layer_bases(problem: Problem) -> list[LayerBasis]:
@@ -152,21 +155,27 @@ class _EdgeForms:
 
     With unknown columns (col1, col2) and C = K (c1 g1 + c2 g2) + P, each form is
     ``(coefficients by column, constant)``; ``u`` is C/K, ``flux`` is J = -D dC/dr.
+    ``evaluated``, if given, is ``basis.evaluate(r)`` at positions r that start with the two
+    edges (so one evaluation serves the edges and, say, quadrature nodes); else each edge is
+    evaluated alone (scalar arithmetic, the same values).
     """
 
-    def __init__(self, basis: LayerBasis, partition: float, columns: tuple[int | None, int]):
-        g1, g2, part, dg1, dg2, dpart = basis.evaluate(
-            np.array([basis.inner_edge, basis.outer_edge]))
+    def __init__(self, basis: LayerBasis, partition: float, columns: tuple[int | None, int],
+                 evaluated: tuple[np.ndarray, ...] | None = None):
+        if evaluated is None:
+            at_edges = (basis.evaluate(basis.inner_edge), basis.evaluate(basis.outer_edge))
+        else:
+            at_edges = tuple(tuple(field[e] for field in evaluated) for e in (0, 1))
         d = basis.diffusivity
         self.u, self.flux = [], []
-        for e in (0, 1):
-            u_terms = {columns[1]: float(g2[e])}
-            flux_terms = {columns[1]: -d * partition * float(dg2[e])}
+        for g1, g2, part, dg1, dg2, dpart in at_edges:
+            u_terms = {columns[1]: float(g2)}
+            flux_terms = {columns[1]: -d * partition * float(dg2)}
             if columns[0] is not None:
-                u_terms[columns[0]] = float(g1[e])
-                flux_terms[columns[0]] = -d * partition * float(dg1[e])
-            self.u.append((u_terms, float(part[e]) / partition))
-            self.flux.append((flux_terms, -d * float(dpart[e])))
+                u_terms[columns[0]] = float(g1)
+                flux_terms[columns[0]] = -d * partition * float(dg1)
+            self.u.append((u_terms, float(part) / partition))
+            self.flux.append((flux_terms, -d * float(dpart)))
 
 
 def _combine(*forms: tuple[dict[int, float], float], signs: tuple[float, ...]):
@@ -201,8 +210,12 @@ def _face_row(problem: Problem, side: str, forms: _EdgeForms, partition: float):
     return terms, h * boundary.bulk - constant
 
 
-def _assemble(problem: Problem, bases: list[LayerBasis]):
-    """Equilibrated matrix, right-hand side and the unknown columns of each layer."""
+def _assemble(problem: Problem, bases: list[LayerBasis],
+              evaluated: list[tuple[np.ndarray, ...] | None] | None = None):
+    """Equilibrated matrix, right-hand side and the unknown columns of each layer.
+
+    ``evaluated``: per layer, its basis evaluated at positions starting with its two edges
+    (see ``_EdgeForms``), or None to evaluate at the edges here."""
     columns: list[tuple[int | None, int]] = []
     count = 0
     for basis in bases:
@@ -213,7 +226,10 @@ def _assemble(problem: Problem, bases: list[LayerBasis]):
             columns.append((count, count + 1))
             count += 2
     partitions = [ly.partition for ly in problem.layers]
-    forms = [_EdgeForms(b, k, c) for b, k, c in zip(bases, partitions, columns, strict=True)]
+    if evaluated is None:
+        evaluated = [None] * len(bases)
+    forms = [_EdgeForms(b, k, c, e)
+             for b, k, c, e in zip(bases, partitions, columns, evaluated, strict=True)]
     rows: list[tuple[dict[int, float], float]] = []
     if not bases[0].solid:
         rows.append(_face_row(problem, "inner", forms[0], partitions[0]))
@@ -233,31 +249,39 @@ def _assemble(problem: Problem, bases: list[LayerBasis]):
     return matrix, rhs, columns, forms
 
 
-def _apply(form: tuple[dict[int, float], float], unknowns: np.ndarray) -> float:
+def _apply(form: tuple[dict[int, float], float], unknowns) -> float:
     terms, constant = form
     return float(sum(c * unknowns[col] for col, c in terms.items()) + constant)
 
 
 def _layer_piece(basis: LayerBasis, partition: float, c1: float, c2: float):
     def piece(r: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
-        g1, g2, part, dg1, dg2, dpart = basis.evaluate(r)
-        value = partition * (c1 * g1 + c2 * g2) + part
-        gradient = partition * (c1 * dg1 + c2 * dg2) + dpart
-        return value, gradient
+        return basis.combination(r, c1, c2, partition)
     return piece
 
 
-def _layer_consumption(problem: Problem, index: int, basis: LayerBasis, piece) -> float:
-    """∫ R(C) r^n dr over one layer from the closed-form C (never from the fluxes)."""
+def _consumption_rule(problem: Problem, index: int, basis: LayerBasis):
+    """Quadrature (nodes, weights) of the consumption integral of one layer, or None where that
+    integral is closed-form or zero (see ``_layer_consumption``)."""
+    reaction = problem.layers[index].reaction
+    if reaction.kind == "first_order" and reaction.rate_constant > 0.0:
+        return graded_gauss_rule(basis.inner_edge, basis.outer_edge, 1.0 / basis.decay_constant)
+    return None
+
+
+def _layer_consumption(problem: Problem, index: int, basis: LayerBasis, rule,
+                       values_at_nodes: np.ndarray | None) -> float:
+    """∫ R(C) r^n dr over one layer from the closed-form C (never from the fluxes).
+
+    ``rule`` is ``_consumption_rule`` of the layer and ``values_at_nodes`` the closed-form C at
+    its nodes (zero order is integrated exactly, first order by the graded rule)."""
     reaction = problem.layers[index].reaction
     a, b, n = basis.inner_edge, basis.outer_edge, basis.exponent
     if reaction.kind == "zero_order":
         return reaction.rate * (b ** (n + 1) - a ** (n + 1)) / (n + 1)
-    if reaction.kind == "first_order" and reaction.rate_constant > 0.0:
-        m = basis.decay_constant
-        nodes, weights = graded_gauss_rule(a, b, 1.0 / m)
-        values, _ = piece(nodes)
-        return float(reaction.rate_constant * np.sum(weights * values * nodes**n))
+    if rule is not None:
+        nodes, weights = rule
+        return float(reaction.rate_constant * (weights * values_at_nodes * nodes**n).sum())
     return 0.0
 
 
@@ -270,35 +294,57 @@ def _failed(message: str, diagnostics: dict | None = None) -> SteadySolution:
                           diagnostics=diagnostics or {})
 
 
-def solve_linear(problem: Problem, *, consumption: bool = True
+def solve_linear(problem: Problem, *, consumption: bool = True,
+                 sample_at: Sequence[np.ndarray] | None = None
                  ) -> tuple[SteadySolution, list[float]]:
     """Solve with every zero-order layer taken as never depleted.
 
     Returns the solution and, per layer, the minimum concentration of each zero-order layer
     (``inf`` for the others), which tells whether that assumption holds. With
     ``consumption=False`` the consumption integral is skipped (NaN), for callers that need only
-    the profile and the face fluxes.
+    the profile and the face fluxes. ``sample_at``: see ``solve_exact``.
     """
     bases = layer_bases(problem)
-    matrix, rhs, columns, forms = _assemble(problem, bases)
-    try:
-        unknowns = np.linalg.solve(matrix, rhs)
-    except np.linalg.LinAlgError as error:
-        return _failed(f"the closed-form system is singular: {error}"), []
-    residual = float(np.max(np.abs(matrix @ unknowns - rhs))
-                     / (np.max(np.abs(matrix)) * np.max(np.abs(unknowns)) + np.max(np.abs(rhs))
-                        + np.finfo(float).tiny))
-    diagnostics = {"relative_residual": residual, "unknowns": int(unknowns.size)}
     want_consumption = consumption
+    # One evaluation of each basis serves its edge forms, its consumption quadrature and (for
+    # layers evaluated on arrays anyway: the reacting ones) the positions the caller will sample.
+    rules = [_consumption_rule(problem, i, basis) if want_consumption else None
+             for i, basis in enumerate(bases)]
+    samples = [None if sample_at is None or rule is None else _inside(basis, sample_at[i])
+               for i, (basis, rule) in enumerate(zip(bases, rules, strict=True))]
+    evaluated = []
+    for basis, rule, sample in zip(bases, rules, samples, strict=True):
+        parts = [(basis.inner_edge, basis.outer_edge)]
+        parts += [] if rule is None else [rule[0]]
+        parts += [] if sample is None else [sample]
+        evaluated.append(None if len(parts) == 1 else basis.evaluate(np.concatenate(parts)))
+    solved = _solve_system(problem, bases, evaluated)
+    if isinstance(solved, str):
+        return _failed(solved), []
+    values, columns, forms, residual = solved
+    diagnostics = {"relative_residual": residual, "unknowns": len(values)}
     pieces, consumption, minima = [], 0.0 if want_consumption else math.nan, []
+    presampled = {}
     for i, (basis, (col_a, col_b)) in enumerate(zip(bases, columns, strict=True)):
-        c1 = 0.0 if col_a is None else float(unknowns[col_a])
-        piece = _layer_piece(basis, problem.layers[i].partition, c1, float(unknowns[col_b]))
+        partition = problem.layers[i].partition
+        c1 = 0.0 if col_a is None else values[col_a]
+        c2 = values[col_b]
+        piece = _layer_piece(basis, partition, c1, c2)
         pieces.append(piece)
+        nodes = 0 if rules[i] is None else rules[i][0].size
         if want_consumption:
-            consumption += _layer_consumption(problem, i, basis, piece)
+            at_nodes = None
+            if rules[i] is not None:  # C at the quadrature nodes, as ``piece`` would give it
+                g1, g2, part = (v[2 : 2 + nodes] for v in evaluated[i][:3])
+                at_nodes = partition * (c1 * g1 + c2 * g2) + part
+            consumption += _layer_consumption(problem, i, basis, rules[i], at_nodes)
+        if samples[i] is not None:  # C and dC/dr at the sample positions, as ``piece`` gives
+            g1, g2, part, dg1, dg2, dpart = (v[2 + nodes :] for v in evaluated[i])
+            presampled[i] = (samples[i], partition * (c1 * g1 + c2 * g2) + part,
+                             partition * (c1 * dg1 + c2 * dg2) + dpart)
         minima.append(_zero_order_minimum(problem, i, basis, piece))
-    profile = LayeredProfile(problem.edges, [ly.diffusivity for ly in problem.layers], pieces)
+    profile = LayeredProfile(problem.edges, [ly.diffusivity for ly in problem.layers], pieces,
+                             presampled)
     success = residual <= RESIDUAL_LIMIT and (math.isfinite(consumption) or not want_consumption)
     message = ("closed form by basis superposition" if success else
                f"relative residual {residual:.3g} exceeds {RESIDUAL_LIMIT:g}")
@@ -306,10 +352,62 @@ def solve_linear(problem: Problem, *, consumption: bool = True
         method=METHOD, reference=REFERENCE, success=success, message=message,
         concentration_at=profile.concentration_at, flux_at=profile.flux_at,
         profile_at=profile.profile_at,
-        flux_inner=_apply(forms[0].flux[0], unknowns),
-        flux_outer=_apply(forms[-1].flux[1], unknowns),
+        flux_inner=_apply(forms[0].flux[0], values),
+        flux_outer=_apply(forms[-1].flux[1], values),
         consumption=float(consumption), diagnostics=diagnostics)
     return solution, minima
+
+
+def _solve_system(problem: Problem, bases: list[LayerBasis], evaluated):
+    """Assemble and solve the closed-form system (``evaluated``: see ``_assemble``).
+
+    Returns (unknowns as floats, columns, edge forms, relative residual), or the failure
+    message of a singular system.
+    """
+    matrix, rhs, columns, forms = _assemble(problem, bases, evaluated)
+    # LAPACK dgesv (LU with partial pivoting), the routine numpy.linalg.solve calls, without
+    # the wrapper checks that dominate its cost on these few unknowns
+    _, _, unknowns, info = dgesv(matrix, rhs)
+    if info > 0:
+        return f"the closed-form system is singular (zero pivot in row {info})"
+    return unknowns.tolist(), columns, forms, _relative_residual(matrix, rhs, unknowns)
+
+
+def _relative_residual(matrix: np.ndarray, rhs: np.ndarray, unknowns: np.ndarray) -> float:
+    """max|A x - b| / (max|A| max|x| + max|b|), in plain floats (a few unknowns); NaN when
+    anything is not finite."""
+    rows, b, x = matrix.tolist(), rhs.tolist(), unknowns.tolist()
+    errors = [abs(sum(a * v for a, v in zip(row, x, strict=True)) - bi)
+              for row, bi in zip(rows, b, strict=True)]
+    scale = (max(abs(a) for row in rows for a in row) * max(map(abs, x)) + max(map(abs, b))
+             + _TINY)
+    if not (all(map(math.isfinite, errors)) and math.isfinite(scale)):
+        return math.nan
+    return max(errors) / scale
+
+
+def linear_face_fluxes(problem: Problem) -> tuple[bool, float, float]:
+    """(success, flux_inner, flux_outer) of ``solve_linear`` without its profile and
+    consumption, for callers that need only the face fluxes (amount/(m^2 s), outward)."""
+    bases = layer_bases(problem)
+    solved = _solve_system(problem, bases, [None] * len(bases))
+    if isinstance(solved, str):
+        return False, math.nan, math.nan
+    values, _, forms, residual = solved
+    return (residual <= RESIDUAL_LIMIT, _apply(forms[0].flux[0], values),
+            _apply(forms[-1].flux[1], values))
+
+
+def _inside(basis: LayerBasis, positions: np.ndarray | None) -> np.ndarray | None:
+    """A private copy of the positions when they are finite and lie within the layer's closed
+    interval (there the profile evaluates them unclipped), else None."""
+    if positions is None:
+        return None
+    positions = np.array(positions, dtype=float)
+    if positions.ndim != 1 or not positions.size:
+        return None
+    low, high = float(positions.min()), float(positions.max())
+    return positions if basis.inner_edge <= low and high <= basis.outer_edge else None
 
 
 def _zero_order_minimum(problem: Problem, index: int, basis: LayerBasis, piece) -> float:
@@ -333,13 +431,18 @@ def _zero_order_minimum(problem: Problem, index: int, basis: LayerBasis, piece) 
     return min(candidates)
 
 
-def solve_exact(problem: Problem) -> SteadySolution | None:
+def solve_exact(problem: Problem, *, sample_at: Sequence[np.ndarray] | None = None
+                ) -> SteadySolution | None:
     """Closed-form steady solution of a layered problem, or None where none is offered.
 
     Parameters
     ----------
     problem : Problem
         The normalised case (SI units).
+    sample_at : sequence of ndarray, optional
+        Positions (m), one array per layer, at which the caller will read the profile with
+        ``profile_at(sample_at[i], layer=i)``: the closed form is then evaluated there in the
+        same call as the layer's edges, with the same values as a later evaluation.
 
     Returns
     -------
@@ -368,7 +471,7 @@ def solve_exact(problem: Problem) -> SteadySolution | None:
     if not _is_well_posed(problem):
         return _failed("the steady level is undetermined: no concentration face, no "
                        "mass-transfer film and no first-order uptake")
-    solution, minima = solve_linear(problem)
+    solution, minima = solve_linear(problem, sample_at=sample_at)
     if not solution.success or min(minima, default=math.inf) >= 0.0:
         return solution
     return solve_depleted(problem)

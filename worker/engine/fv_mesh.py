@@ -54,6 +54,7 @@ accurate because the boundary flux itself is.
 
 from __future__ import annotations
 
+import math
 from collections.abc import Callable, Sequence
 from dataclasses import dataclass
 from itertools import accumulate
@@ -83,13 +84,19 @@ __all__ = [
     "THIELE_CELL_LIMIT",
     "DiffusionOperator",
     "Mesh",
+    "MeshStack",
+    "NodalProfile",
     "ReactionTerms",
     "assemble_diffusion",
+    "assemble_stack",
+    "assemble_stack_operator",
     "boundary_concentration_scale",
     "build_mesh",
+    "build_mesh_stack",
     "default_cells_per_layer",
     "face_flux_densities",
     "layer_profiles",
+    "layer_reaction_constants",
     "make_profile_functions",
     "reaction_terms",
     "solve_tridiagonal",
@@ -229,7 +236,9 @@ class ReactionTerms:
 
 
 def _check_cells(cells_per_layer: Sequence[int] | int, n_layers: int) -> tuple[int, ...]:
-    if isinstance(cells_per_layer, int | np.integer):
+    if type(cells_per_layer) is tuple and all(type(n) is int for n in cells_per_layer):
+        counts = cells_per_layer  # already what the conversion below makes
+    elif isinstance(cells_per_layer, int | np.integer):
         counts = (int(cells_per_layer),) * n_layers
     else:
         counts = tuple(int(n) for n in cells_per_layer)
@@ -258,45 +267,161 @@ def build_mesh(problem: Problem, cells_per_layer: Sequence[int] | int | None = N
     """
     if cells_per_layer is None:
         cells_per_layer = default_cells_per_layer(problem)
-    counts = _check_cells(cells_per_layer, len(problem.layers))
-    n = problem.exponent
-    layers = problem.layers
-    thickness = np.array([ly.thickness for ly in layers])
-    edges = np.array(list(accumulate((ly.thickness for ly in layers), initial=problem.inner)))
-    count_array = np.array(counts)
-    layer_starts = np.array(list(accumulate(counts, initial=0)))
-    n_cells = int(layer_starts[-1])
-    layer_index = np.repeat(np.arange(len(counts)), counts)
-    # west face of every cell: its layer's inner edge plus whole cell widths; the layer edges
-    # themselves are exact (local index 0), so interfaces carry no round-off drift
-    local = np.arange(n_cells) - layer_starts[:-1][layer_index]
-    faces = np.empty(n_cells + 1)
-    faces[:-1] = edges[:-1][layer_index] + (thickness / count_array)[layer_index] * local
-    faces[-1] = edges[-1]
-    centres = 0.5 * (faces[:-1] + faces[1:])
+    return build_mesh_stack(problem, [cells_per_layer]).mesh(0)
+
+
+@dataclass(frozen=True)
+class MeshStack:
+    """Several meshes of one problem laid end to end in shared arrays.
+
+    Array work (geometry, conductances, the banded solve) then runs once for all of them, with
+    the same arithmetic, element by element, as for each mesh alone. Mesh g owns faces
+    ``offsets[g] .. offsets[g] + N_g`` and cells ``offsets[g] .. offsets[g] + N_g - 1`` of the
+    stacked arrays; between the outer face of one mesh and the inner face of the next lies one
+    spacer cell (index in ``spacers``), which the stacked operator decouples (identity row).
+    ``mesh(g)`` is mesh g as a ``Mesh`` of views into the stacked arrays. The spacer cells carry
+    D = inf and K = 1, so that the conductance formula stays finite on the faces next to them
+    (those faces are boundary faces of their meshes and are overwritten).
+
+    Attributes
+    ----------
+    edges : ndarray
+        Inner face, interfaces and outer face, m (shared by every mesh).
+    counts : tuple of tuple of int
+        Cells per layer of each mesh.
+    offsets, spacers : tuple of int
+    exponent : int
+        Geometric exponent n of every mesh.
+    faces, face_areas : ndarray, shape (F,)
+        Stacked faces (F = sum of N_g + 1) and their areas r^n.
+    centres, volumes, west_gaps, east_gaps, diffusivity, partition : ndarray
+        Stacked cell data, shape (F - 1,), spacer cells included.
+    """
+
+    edges: np.ndarray
+    counts: tuple[tuple[int, ...], ...]
+    offsets: tuple[int, ...]
+    spacers: tuple[int, ...]
+    exponent: int
+    faces: np.ndarray
+    face_areas: np.ndarray
+    centres: np.ndarray
+    volumes: np.ndarray
+    west_gaps: np.ndarray
+    east_gaps: np.ndarray
+    diffusivity: np.ndarray
+    partition: np.ndarray
+
+    @property
+    def blocks(self) -> list[tuple[int, int]]:
+        """(first cell, cells) of each mesh in the stacked arrays."""
+        return [(first, sum(counts)) for first, counts in zip(self.offsets, self.counts,
+                                                               strict=True)]
+
+    def mesh(self, g: int) -> Mesh:
+        """Mesh g, its arrays views into the stacked ones."""
+        first, counts = self.offsets[g], self.counts[g]
+        n = sum(counts)
+        cells, faces = slice(first, first + n), slice(first, first + n + 1)
+        return Mesh(
+            exponent=self.exponent,
+            edges=self.edges,
+            faces=self.faces[faces],
+            centres=self.centres[cells],
+            face_areas=self.face_areas[faces],
+            volumes=self.volumes[cells],
+            west_gaps=self.west_gaps[cells],
+            east_gaps=self.east_gaps[cells],
+            layer_index=(np.zeros(n, dtype=np.intp) if len(counts) == 1 else
+                         np.repeat(np.arange(len(counts)), counts)),
+            layer_starts=np.array(list(accumulate(counts, initial=0))),
+            diffusivity=self.diffusivity[cells],
+            partition=self.partition[cells],
+            cells_per_layer=counts,
+        )
+
+    @property
+    def meshes(self) -> tuple[Mesh, ...]:
+        return tuple(self.mesh(g) for g in range(len(self.counts)))
+
+    def per_cell(self, per_layer: Sequence[float], spacer_value: float = 0.0) -> np.ndarray:
+        """A per-layer property spread over the stacked cells (spacers get ``spacer_value``)."""
+        return _spread(per_layer, self.counts, spacer_value)
+
+
+def _spread(per_layer: Sequence[float], counts_list: Sequence[Sequence[int]],
+            spacer_value: float) -> np.ndarray:
+    """Per-layer values repeated over the cells of each stacked mesh, one spacer value between
+    consecutive meshes."""
+    if len(counts_list) == 1 and len(per_layer) == 1:
+        return np.full(counts_list[0][0], float(per_layer[0]))
+    values: list[float] = []
+    repeats: list[int] = []
+    for g, counts in enumerate(counts_list):
+        if g:
+            values.append(spacer_value)
+            repeats.append(1)
+        values.extend(float(v) for v in per_layer)
+        repeats.extend(counts)
+    return np.repeat(np.array(values), repeats)
+
+
+def _cell_geometry(faces: np.ndarray, n: int):
+    """Centres, face areas r^n, r^n-weighted volumes and west/east gaps of the cells between
+    consecutive faces."""
+    west_faces, east_faces = faces[:-1], faces[1:]
+    centres = 0.5 * (west_faces + east_faces)
     if n == 0:
-        face_areas = np.ones_like(faces)
-        volumes = faces[1:] - faces[:-1]
+        face_areas = np.ones(faces.size)
+        volumes = east_faces - west_faces
     else:
         face_areas = faces if n == 1 else faces * faces
         powered = face_areas * faces
         volumes = (powered[1:] - powered[:-1]) / (n + 1)
-    diffusivity = np.array([ly.diffusivity for ly in layers])[layer_index]
-    partition = np.array([ly.partition for ly in layers])[layer_index]
-    return Mesh(
-        exponent=n,
-        edges=edges,
-        faces=faces,
-        centres=centres,
-        face_areas=face_areas,
-        volumes=volumes,
-        west_gaps=centres - faces[:-1],
-        east_gaps=faces[1:] - centres,
-        layer_index=layer_index,
-        layer_starts=layer_starts,
-        diffusivity=diffusivity,
-        partition=partition,
-        cells_per_layer=counts,
+    return centres, face_areas, volumes, centres - west_faces, east_faces - centres
+
+
+def build_mesh_stack(problem: Problem, cells: Sequence[Sequence[int] | int]) -> MeshStack:
+    """Build the meshes with the given cells per layer (one entry per mesh), stacked.
+
+    Each mesh is exactly what ``build_mesh`` gives for its cells (see ``MeshStack``).
+    """
+    n = problem.exponent
+    layers = problem.layers
+    counts_list = [_check_cells(c, len(layers)) for c in cells]
+    edges = np.array(list(accumulate((ly.thickness for ly in layers), initial=problem.inner)))
+    # West face of every cell: its layer's inner edge plus whole cell widths (the layer edges
+    # themselves are exact, local index 0, so interfaces carry no round-off drift), then the
+    # outer face of the mesh; all meshes at once, segment by segment (a layer of a mesh, or the
+    # outer face as a segment of one face and zero width).
+    bounds = edges.tolist()
+    segment_edges: list[float] = []
+    segment_widths: list[float] = []
+    segment_counts: list[int] = []
+    offsets: list[int] = []
+    position = 0
+    for counts in counts_list:
+        offsets.append(position)
+        segment_edges += bounds
+        segment_widths += [layer.thickness / count for layer, count in zip(layers, counts,
+                                                                          strict=True)]
+        segment_widths.append(0.0)
+        segment_counts += counts
+        segment_counts.append(1)
+        position += sum(counts) + 1
+    segment_starts = list(accumulate(segment_counts[:-1], initial=0))
+    local = np.arange(position) - np.repeat(segment_starts, segment_counts)
+    faces = np.repeat(segment_edges, segment_counts) + np.repeat(segment_widths,
+                                                                 segment_counts) * local
+    spacers = tuple(first - 1 for first in offsets[1:])
+    centres, face_areas, volumes, west_gaps, east_gaps = _cell_geometry(faces, n)
+
+    diffusivity = _spread([ly.diffusivity for ly in layers], counts_list, math.inf)
+    partition = _spread([ly.partition for ly in layers], counts_list, 1.0)
+    return MeshStack(
+        edges=edges, counts=tuple(counts_list), offsets=tuple(offsets), spacers=spacers,
+        exponent=n, faces=faces, face_areas=face_areas, centres=centres, volumes=volumes,
+        west_gaps=west_gaps, east_gaps=east_gaps, diffusivity=diffusivity, partition=partition,
     )
 
 
@@ -345,90 +470,161 @@ def assemble_diffusion(
     DiffusionOperator
         ``ab @ C + V * R(C) = rhs`` is the discrete steady balance.
     """
-    n_cells = mesh.n_cells
-    d = mesh.diffusivity
-    k = mesh.partition
-    west = np.zeros(n_cells + 1)
-    east = np.zeros(n_cells + 1)
+    return _assemble(problem, mesh.face_areas, mesh.volumes, mesh.centres, mesh.west_gaps,
+                     mesh.east_gaps, mesh.diffusivity, mesh.partition, [(0, mesh.n_cells)], (),
+                     source)
+
+
+def assemble_stack(
+    stack: MeshStack,
+    problem: Problem,
+    source: Callable[[np.ndarray], np.ndarray] | None = None,
+) -> tuple[DiffusionOperator, tuple[DiffusionOperator, ...]]:
+    """The diffusion operator of every mesh of a stack, assembled at once.
+
+    Returns the stacked operator (block diagonal: each mesh's rows, and an identity row with a
+    zero right-hand side for each spacer cell) and, as views into it, the operator of each mesh,
+    equal to what ``assemble_diffusion`` gives for that mesh.
+    """
+    whole = assemble_stack_operator(stack, problem, source)
+    operators = []
+    for first, cells in stack.blocks:
+        faces = slice(first, first + cells + 1)
+        operators.append(DiffusionOperator(
+            ab=whole.ab[:, first : first + cells],
+            rhs=whole.rhs[first : first + cells],
+            west_coefficient=whole.west_coefficient[faces],
+            east_coefficient=whole.east_coefficient[faces],
+            face_constant=whole.face_constant[faces],
+        ))
+    return whole, tuple(operators)
+
+
+def assemble_stack_operator(
+    stack: MeshStack,
+    problem: Problem,
+    source: Callable[[np.ndarray], np.ndarray] | None = None,
+) -> DiffusionOperator:
+    """The stacked operator of ``assemble_stack`` alone (no per-mesh views)."""
+    return _assemble(problem, stack.face_areas, stack.volumes, stack.centres, stack.west_gaps,
+                     stack.east_gaps, stack.diffusivity, stack.partition, stack.blocks,
+                     stack.spacers, source)
+
+
+def _assemble(problem: Problem, face_areas, volumes, centres, west_gaps, east_gaps, d, k,
+              blocks: Sequence[tuple[int, int]], spacers: Sequence[int],
+              source: Callable[[np.ndarray], np.ndarray] | None) -> DiffusionOperator:
+    """Operator of the cells between consecutive faces; ``blocks`` are the (first cell, cells)
+    of each mesh, whose first and last faces are boundary faces; ``spacers`` the cells between
+    meshes (see ``MeshStack``)."""
+    n_cells = centres.size
+    dk = d * k
+    west = np.empty(n_cells + 1)
+    east = np.empty(n_cells + 1)
     constant = np.zeros(n_cells + 1)
 
     # interior faces: Q = (C_P/K_P - C_E/K_E) * A / (d_P/(D_P K_P) + d_E/(D_E K_E))
-    resistance = mesh.east_gaps[:-1] / (d[:-1] * k[:-1]) + mesh.west_gaps[1:] / (d[1:] * k[1:])
-    conductance = mesh.face_areas[1:-1] / resistance
-    west[1:-1] = conductance / k[:-1]
-    east[1:-1] = conductance / k[1:]
+    resistance = east_gaps[:-1] / dk[:-1]
+    resistance += west_gaps[1:] / dk[1:]
+    conductance = np.divide(face_areas[1:-1], resistance, out=resistance)
+    np.divide(conductance, k[:-1], out=west[1:-1])
+    np.divide(conductance, k[1:], out=east[1:-1])
 
-    g_in, far_in, fixed_in = _boundary_face(
-        problem, "inner", float(mesh.face_areas[0]), float(mesh.west_gaps[0]), float(d[0])
-    )
-    east[0] = g_in
-    constant[0] = g_in * far_in + fixed_in
-    g_out, far_out, fixed_out = _boundary_face(
-        problem, "outer", float(mesh.face_areas[-1]), float(mesh.east_gaps[-1]), float(d[-1])
-    )
-    west[-1] = g_out
-    constant[-1] = -g_out * far_out - fixed_out
+    for first, cells in blocks:
+        last = first + cells  # the outer face
+        g_in, far_in, fixed_in = _boundary_face(
+            problem, "inner", float(face_areas[first]), float(west_gaps[first]), float(d[first])
+        )
+        west[first] = 0.0
+        east[first] = g_in
+        constant[first] = g_in * far_in + fixed_in
+        g_out, far_out, fixed_out = _boundary_face(
+            problem, "outer", float(face_areas[last]), float(east_gaps[last - 1]),
+            float(d[last - 1])
+        )
+        west[last] = g_out
+        east[last] = 0.0
+        constant[last] = -g_out * far_out - fixed_out
 
-    ab = np.zeros((3, n_cells))
-    ab[0, 1:] = -east[1:-1]
-    ab[1] = west[1:] + east[:-1]
-    ab[2, :-1] = -west[1:-1]
+    ab = np.empty((3, n_cells))
+    ab[0, 0] = 0.0
+    np.negative(east[1:-1], out=ab[0, 1:])
+    np.add(west[1:], east[:-1], out=ab[1])
+    np.negative(west[1:-1], out=ab[2, :-1])
+    ab[2, -1] = 0.0
     rhs = constant[:-1] - constant[1:]
     if source is not None:
-        rhs = rhs + mesh.volumes * np.asarray(source(mesh.centres), dtype=float)
+        rhs = rhs + volumes * np.asarray(source(centres), dtype=float)
+    for j in spacers:  # decoupled identity rows
+        ab[1, j] = 1.0
+        ab[0, j + 1] = 0.0
+        ab[2, j - 1] = 0.0
+        rhs[j] = 0.0
     return DiffusionOperator(
         ab=ab, rhs=rhs, west_coefficient=west, east_coefficient=east, face_constant=constant
     )
 
 
-def reaction_terms(mesh: Mesh, problem: Problem) -> ReactionTerms:
-    """Per-cell reaction constants of the problem on this mesh."""
-    n_layers = len(problem.layers)
-    kinds = [layer.reaction.kind for layer in problem.layers]
-    if all(kind == "none" for kind in kinds):
-        nothing = np.zeros(mesh.n_cells)
-        return ReactionTerms(first_order=nothing, vmax=nothing, km=nothing, zero_order=nothing)
-    first = np.zeros(n_layers)
-    vmax = np.zeros(n_layers)
-    km = np.zeros(n_layers)
-    zero = np.zeros(n_layers)
+def layer_reaction_constants(problem: Problem) -> tuple[list[float], ...]:
+    """Per-layer (first-order k, vmax, km, zero-order Q), 0 where a layer lacks that kind.
+
+    Raises
+    ------
+    ValueError
+        For a Michaelis-Menten layer with km <= 0 or an unknown reaction kind.
+    """
+    first, vmax, km, zero = [], [], [], []
     for j, layer in enumerate(problem.layers):
         reaction = layer.reaction
+        values = (0.0, 0.0, 0.0, 0.0)
         if reaction.kind == "first_order":
-            first[j] = reaction.rate_constant
+            values = (reaction.rate_constant, 0.0, 0.0, 0.0)
         elif reaction.kind == "michaelis_menten":
             if reaction.km <= 0.0:
                 raise ValueError(
                     f"layers[{j}].reaction.km: expected a positive Michaelis constant, "
                     f"got {reaction.km!r}"
                 )
-            vmax[j] = reaction.vmax
-            km[j] = reaction.km
+            values = (0.0, reaction.vmax, reaction.km, 0.0)
         elif reaction.kind == "zero_order":
-            zero[j] = reaction.rate
+            values = (0.0, 0.0, 0.0, reaction.rate)
         elif reaction.kind != "none":
             raise ValueError(f"layers[{j}].reaction.kind: unknown kind {reaction.kind!r}")
-    index = mesh.layer_index
+        for per_layer, value in zip((first, vmax, km, zero), values, strict=True):
+            per_layer.append(float(value))
+    return first, vmax, km, zero
+
+
+def reaction_terms(mesh: Mesh, problem: Problem) -> ReactionTerms:
+    """Per-cell reaction constants of the problem on this mesh."""
+    if all(layer.reaction.kind == "none" for layer in problem.layers):
+        nothing = np.zeros(mesh.n_cells)
+        return ReactionTerms(first_order=nothing, vmax=nothing, km=nothing, zero_order=nothing)
+    first, vmax, km, zero = layer_reaction_constants(problem)
+    counts = [mesh.cells_per_layer or tuple(np.diff(mesh.layer_starts))]
+    zeros = np.zeros(mesh.n_cells)  # shared by the kinds absent from every layer
+
+    def per_cell(per_layer: list[float]) -> np.ndarray:
+        return _spread(per_layer, counts, 0.0) if any(per_layer) else zeros
+
     return ReactionTerms(
-        first_order=first[index],
-        vmax=vmax[index],
-        km=km[index],
-        zero_order=zero[index],
+        first_order=per_cell(first),
+        vmax=per_cell(vmax),
+        km=per_cell(km),
+        zero_order=per_cell(zero),
         has_michaelis_menten=any(v > 0.0 for v in vmax),
         has_zero_order=any(q > 0.0 for q in zero),
     )
 
 
-def face_flux_densities(mesh: Mesh, face_fluxes: np.ndarray) -> np.ndarray:
+def face_flux_densities(mesh: Mesh | MeshStack, face_fluxes: np.ndarray) -> np.ndarray:
     """Outward flux density J = Q / r_f^n at every face (0 at a solid centre), amount/(m^2 s)."""
     if mesh.exponent == 0:
         return face_fluxes.copy()
     areas = mesh.face_areas
     if areas[0] > 0.0:
         return face_fluxes / areas
-    out = np.zeros_like(face_fluxes)
-    out[1:] = face_fluxes[1:] / areas[1:]
-    return out
+    return np.divide(face_fluxes, areas, out=np.zeros_like(face_fluxes), where=areas > 0.0)
 
 
 def surface_values(mesh: Mesh, c: np.ndarray, flux_density: np.ndarray):
@@ -464,14 +660,20 @@ def layer_profiles(mesh: Mesh, c: np.ndarray, flux_density: np.ndarray):
     reconstructed edge values (so partition jumps are kept), and its faces with their outward
     flux densities.
     """
-    west_side, east_side = surface_values(mesh, c, flux_density)
+    d = mesh.diffusivity
     profiles = []
     for j in range(mesh.n_layers):
         first, last = int(mesh.layer_starts[j]), int(mesh.layer_starts[j + 1])
-        positions = np.concatenate(
-            ([mesh.faces[first]], mesh.centres[first:last], [mesh.faces[last]])
-        )
-        values = np.concatenate(([east_side[first]], c[first:last], [west_side[last]]))
+        positions = np.empty(last - first + 2)
+        positions[0] = mesh.faces[first]
+        positions[1:-1] = mesh.centres[first:last]
+        positions[-1] = mesh.faces[last]
+        values = np.empty(last - first + 2)
+        # the edge values of ``surface_values``: east side of the inner face, west side of the
+        # outer face (the same half-cell relations, for these two faces only)
+        values[0] = c[first] + flux_density[first] * mesh.west_gaps[first] / d[first]
+        values[1:-1] = c[first:last]
+        values[-1] = c[last - 1] - flux_density[last] * mesh.east_gaps[last - 1] / d[last - 1]
         profiles.append(
             (positions, values, mesh.faces[first : last + 1], flux_density[first : last + 1])
         )
@@ -495,41 +697,91 @@ def _locate(edges: np.ndarray, r: np.ndarray, layer: int | None) -> np.ndarray:
     return np.clip(np.searchsorted(edges, r, side="left") - 1, 0, edges.size - 2)
 
 
-def make_profile_functions(mesh: Mesh, c: np.ndarray, flux_density: np.ndarray):
-    """``(concentration_at, flux_at)`` callables as ``SteadySolution`` describes them.
+class NodalProfile:
+    """The piecewise-linear profile of a finite-volume solution, as ``SteadySolution``'s
+    ``concentration_at``, ``flux_at`` and ``profile_at`` describe it.
 
-    Both take positions r (m, scalar or array) and an optional ``layer`` index, and interpolate
-    linearly between the nodes of ``layer_profiles`` (flux: between faces).
+    Each takes positions r (m, scalar or array) and an optional ``layer`` index, and
+    interpolates linearly between the nodes of ``layer_profiles`` (flux: between faces).
+    ``mesh`` may be given as a callable returning it, called on first use.
     """
-    edges = mesh.edges
-    cache: list = []
 
-    def _evaluate(r, layer, which):
-        if not cache:  # built on first use: many callers only read the face figures
-            cache.append(layer_profiles(mesh, c, flux_density))
-        profiles = cache[0]
-        r_array = np.atleast_1d(np.asarray(r, dtype=float))
-        if layer is not None and 0 <= layer < edges.size - 1 and r_array.size:
-            slack = 1e-12 * max(abs(edges[-1]), abs(edges[0]), edges[-1] - edges[0])
-            if edges[layer] - slack <= r_array.min() and r_array.max() <= edges[layer + 1] + slack:
-                positions, values = profiles[layer][2 * which], profiles[layer][1 + 2 * which]
-                out = np.interp(r_array, positions, values)
-                return out if np.ndim(r) else out[0]
-        owners = _locate(edges, r_array, layer)
+    def __init__(self, mesh: Mesh | Callable[[], Mesh], c: np.ndarray,
+                 flux_density: np.ndarray):
+        self._mesh = mesh
+        self.c = c
+        self.flux_density = flux_density
+        self._profiles = None
+        self._intervals = None
+
+    @property
+    def mesh(self) -> Mesh:
+        if not isinstance(self._mesh, Mesh):
+            self._mesh = self._mesh()
+        return self._mesh
+
+    @property
+    def edges(self) -> np.ndarray:
+        return self.mesh.edges
+
+    @property
+    def profiles(self):
+        if self._profiles is None:  # built on first use: many callers only read face figures
+            self._profiles = layer_profiles(self.mesh, self.c, self.flux_density)
+            bounds = self.edges.tolist()
+            slack = 1e-12 * max(abs(bounds[-1]), abs(bounds[0]), bounds[-1] - bounds[0])
+            # closed interval of each layer, widened by the round-off slack
+            self._intervals = [(a - slack, b + slack)
+                               for a, b in zip(bounds[:-1], bounds[1:], strict=True)]
+        return self._profiles
+
+    def _within(self, r_array: np.ndarray, layer: int | None) -> bool:
+        """True when ``layer`` is a valid index and every r lies in its closed interval."""
+        intervals = self._intervals
+        if layer is None or not 0 <= layer < len(intervals) or not r_array.size:
+            return False
+        low, high = intervals[layer]
+        return bool(low <= r_array.min() and r_array.max() <= high)
+
+    def _evaluate(self, r, layer, which):
+        profiles = self.profiles
+        r_array = np.asarray(r, dtype=float)
+        scalar = r_array.ndim == 0
+        if scalar:
+            r_array = r_array.reshape(1)
+        if self._within(r_array, layer):
+            positions, values = profiles[layer][2 * which], profiles[layer][1 + 2 * which]
+            out = np.interp(r_array, positions, values)
+            return out[0] if scalar else out
+        owners = _locate(self.edges, r_array, layer)
         out = np.empty_like(r_array)
         for j in np.unique(owners):
             chosen = owners == j
             positions, values = profiles[j][0 + 2 * which], profiles[j][1 + 2 * which]
             out[chosen] = np.interp(r_array[chosen], positions, values)
-        return out if np.ndim(r) else out[0]
+        return out[0] if scalar else out
 
-    def concentration_at(r, layer: int | None = None):
-        return _evaluate(r, layer, 0)
+    def concentration_at(self, r, layer: int | None = None):
+        return self._evaluate(r, layer, 0)
 
-    def flux_at(r, layer: int | None = None):
-        return _evaluate(r, layer, 1)
+    def flux_at(self, r, layer: int | None = None):
+        return self._evaluate(r, layer, 1)
 
-    return concentration_at, flux_at
+    def profile_at(self, r, layer: int | None = None):
+        """(concentration, outward flux) at positions r."""
+        profiles = self.profiles
+        r_array = np.asarray(r, dtype=float)
+        if r_array.ndim == 1 and self._within(r_array, layer):
+            positions, values, faces, fluxes = profiles[layer]
+            return np.interp(r_array, positions, values), np.interp(r_array, faces, fluxes)
+        return self.concentration_at(r, layer), self.flux_at(r, layer)
+
+
+def make_profile_functions(mesh: Mesh, c: np.ndarray, flux_density: np.ndarray):
+    """``(concentration_at, flux_at)`` callables as ``SteadySolution`` describes them (see
+    ``NodalProfile``)."""
+    profile = NodalProfile(mesh, c, flux_density)
+    return profile.concentration_at, profile.flux_at
 
 
 def boundary_concentration_scale(problem: Problem) -> float:
@@ -575,12 +827,14 @@ def default_cells_per_layer(problem: Problem) -> tuple[int, ...]:
     return tuple(counts)
 
 
-def solve_tridiagonal(ab: np.ndarray, rhs: np.ndarray) -> np.ndarray:
+def solve_tridiagonal(ab: np.ndarray, rhs: np.ndarray, *, overwrite_ab: bool = False
+                      ) -> np.ndarray:
     """Solve ``ab @ x = rhs`` for a tridiagonal matrix in ``solve_banded((1, 1))`` layout.
 
     Calls LAPACK ``dgtsv`` (Gaussian elimination with partial pivoting), the routine that
     ``scipy.linalg.solve_banded`` itself uses for one sub- and one super-diagonal, directly,
-    without the input checks that dominate its cost on small systems. ``ab`` is not modified.
+    without the input checks that dominate its cost on small systems. ``ab`` is not modified
+    unless ``overwrite_ab`` (a scratch matrix the caller no longer needs); ``rhs`` never is.
 
     Raises
     ------
@@ -588,7 +842,8 @@ def solve_tridiagonal(ab: np.ndarray, rhs: np.ndarray) -> np.ndarray:
         When the matrix is singular (e.g. a body with flux or symmetry faces only and no
         reaction, which has no unique steady state).
     """
-    _, _, _, solution, info = dgtsv(ab[2, :-1], ab[1], ab[0, 1:], rhs)
+    _, _, _, solution, info = dgtsv(ab[2, :-1], ab[1], ab[0, 1:], rhs, overwrite_ab,
+                                    overwrite_ab, overwrite_ab)
     if info > 0:
         raise LinAlgError(f"singular tridiagonal matrix (zero pivot at row {info})")
     if info < 0:

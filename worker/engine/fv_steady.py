@@ -12,7 +12,9 @@ the steady problem is then an obstacle problem, ``C >= 0``, ``lambda >= 0``, ``l
 consumption the cell actually achieves; in the cell that holds the depletion front it is the
 live fraction of the cell.
 
-Linear cases (no reaction, first order) are one banded solve. Otherwise the solver runs a
+Linear cases (no reaction, first order) are one banded solve, for several meshes at once
+(``solve_fv_grids``: the meshes of a grid study stacked into one block-diagonal system,
+each mesh's arithmetic unchanged). Otherwise the solver runs a
 primal-dual active-set iteration on the zero-order complementarity (M. Hintermueller, K. Ito,
 K. Kunisch, "The primal-dual active set strategy as a semismooth Newton method", SIAM J. Optim.
 13 (2002) 865-888), and, for each active set, a damped Newton iteration with the banded
@@ -23,6 +25,7 @@ from __future__ import annotations
 
 import math
 from collections.abc import Callable, Sequence
+from functools import partial
 
 import numpy as np
 from scipy.linalg import LinAlgError
@@ -30,12 +33,16 @@ from scipy.linalg import LinAlgError
 from worker.engine.fv_mesh import (
     DiffusionOperator,
     Mesh,
+    NodalProfile,
     ReactionTerms,
     assemble_diffusion,
+    assemble_stack_operator,
     boundary_concentration_scale,
     build_mesh,
+    build_mesh_stack,
+    default_cells_per_layer,
     face_flux_densities,
-    make_profile_functions,
+    layer_reaction_constants,
     reaction_terms,
     solve_tridiagonal,
 )
@@ -79,6 +86,7 @@ __all__ = [
     "NEWTON_UPDATE_RTOL",
     "REFERENCE",
     "solve_fv",
+    "solve_fv_grids",
 ]
 
 
@@ -318,21 +326,20 @@ def _depletion_fronts(mesh: Mesh, active: np.ndarray, live_fraction: np.ndarray)
     return fronts
 
 
-def _solve_cells(mesh: Mesh, operator: DiffusionOperator, terms: ReactionTerms, problem):
-    """Cell values, achieved consumption V R per cell, final active set and solver record."""
-    volumes = mesh.volumes
-    record = {
+def _linear_record() -> dict:
+    return {
         "newton_iterations": 0,
         "active_set_iterations": 0,
         "residual_history": [],
         "success": True,
         "message": "linear system solved directly",
     }
-    if not (terms.has_michaelis_menten or terms.has_zero_order):
-        ab = _with_diagonal(operator.ab, volumes * terms.first_order)
-        c = solve_tridiagonal(ab, operator.rhs)
-        return c, volumes * terms.first_order * c, np.zeros(mesh.n_cells, dtype=bool), record
 
+
+def _solve_cells(mesh: Mesh, operator: DiffusionOperator, terms: ReactionTerms, problem):
+    """Cell values, achieved consumption V R per cell, final active set and solver record of a
+    Michaelis-Menten or zero-order case (linear cases: ``solve_fv_grids``)."""
+    record = _linear_record()
     history = record["residual_history"]
     balance = _Balance(mesh, operator, terms)
     c = _initial_guess(mesh, operator, terms, problem)
@@ -437,44 +444,132 @@ def solve_fv(
     successive refinements do not shrink it by a constant factor: a three-grid study of such a
     case may show an irregular apparent order.
     """
+    if cells_per_layer is None:
+        cells_per_layer = default_cells_per_layer(problem)
+    return solve_fv_grids(problem, [cells_per_layer], source=source)[0]
+
+
+_NO_LEVEL = (
+    "no unique steady state: no face fixes a concentration (concentration or "
+    "mass_transfer) and no layer has a reaction that grows with C (first order or "
+    "Michaelis-Menten); the concentration is then fixed only up to a constant"
+)
+
+
+def solve_fv_grids(
+    problem: Problem,
+    cells: Sequence[Sequence[int] | int],
+    *,
+    source: Callable[[np.ndarray], np.ndarray] | None = None,
+) -> list[SteadySolution]:
+    """``solve_fv`` on several meshes of one problem, one entry of ``cells`` per mesh.
+
+    Linear cases (no reaction, first order) are solved on every mesh at once: the meshes are
+    stacked (``fv_mesh.MeshStack``) into one block-diagonal tridiagonal system, so that the
+    array work and the LAPACK call run once, with each mesh's arithmetic unchanged (each result
+    equals that of the mesh solved alone). Michaelis-Menten and zero-order cases are solved
+    mesh by mesh (``_solve_cells``).
+    """
+    first_order, vmax, _, zero_order = layer_reaction_constants(problem)
+    if any(v > 0.0 for v in vmax) or any(q > 0.0 for q in zero_order):
+        return [_solve_nonlinear(problem, c, source) for c in cells]
+    stack = build_mesh_stack(problem, cells)
+    blocks = stack.blocks
+    whole = assemble_stack_operator(stack, problem, source)
+    reacts = any(k > 0.0 for k in first_order)
+    fixed = [bool(whole.east_coefficient[first] > 0.0
+                  or whole.west_coefficient[first + n] > 0.0 or reacts) for first, n in blocks]
+    if not all(fixed):
+        if len(blocks) > 1 and any(fixed):
+            return [solve_fv_grids(problem, [c], source=source)[0] for c in cells]
+        return [_failed(problem, mesh, _NO_LEVEL) for mesh in stack.meshes]
+    uptake = stack.volumes * stack.per_cell(first_order) if reacts else None
+    try:
+        if reacts:
+            c = solve_tridiagonal(_with_diagonal(whole.ab, uptake), whole.rhs, overwrite_ab=True)
+        else:
+            c = solve_tridiagonal(whole.ab, whole.rhs)
+    except LinAlgError as error:
+        if len(blocks) > 1:  # each mesh alone, so that the failure names its own row
+            return [solve_fv_grids(problem, [c], source=source)[0] for c in cells]
+        return [_failed(
+            problem, stack.mesh(0), f"no unique steady state: {error} (check the boundary kinds)"
+        )]
+    achieved = uptake * c if reacts else None
+    flux_density = face_flux_densities(stack, whole.face_fluxes(c))
+    solutions = []
+    for g, (first, n) in enumerate(blocks):
+        solutions.append(_solution(
+            partial(stack.mesh, g), c[first : first + n], flux_density[first : first + n + 1],
+            achieved[first : first + n] if reacts else None, _linear_record(),
+            cells_per_layer=stack.counts[g],
+            centres=stack.centres[first : first + n],
+            faces=stack.faces[first : first + n + 1]))
+    return solutions
+
+
+def _solve_nonlinear(
+    problem: Problem,
+    cells_per_layer: Sequence[int] | int,
+    source: Callable[[np.ndarray], np.ndarray] | None,
+) -> SteadySolution:
     mesh = build_mesh(problem, cells_per_layer)
     operator = assemble_diffusion(mesh, problem, source)
     terms = reaction_terms(mesh, problem)
     if not _fixes_a_level(mesh, operator, terms):
-        return _failed(
-            problem,
-            mesh,
-            "no unique steady state: no face fixes a concentration (concentration or "
-            "mass_transfer) and no layer has a reaction that grows with C (first order or "
-            "Michaelis-Menten); the concentration is then fixed only up to a constant",
-        )
+        return _failed(problem, mesh, _NO_LEVEL)
     try:
         c, achieved, active, record = _solve_cells(mesh, operator, terms, problem)
     except LinAlgError as error:
         return _failed(
             problem, mesh, f"no unique steady state: {error} (check the boundary kinds)"
         )
-    finite = math.isfinite(float(c.sum()))  # NaN or inf anywhere propagates into the sum
     flux_density = face_flux_densities(mesh, operator.face_fluxes(c))
-    concentration_at, flux_at = make_profile_functions(mesh, c, flux_density)
+    return _solution(mesh, c, flux_density, achieved, record, active, terms.zero_order)
+
+
+def _solution(
+    mesh: Mesh | Callable[[], Mesh],
+    c: np.ndarray,
+    flux_density: np.ndarray,
+    achieved: np.ndarray | None,
+    record: dict,
+    active: np.ndarray | None = None,
+    zero_order: np.ndarray | None = None,
+    *,
+    cells_per_layer: tuple[int, ...] | None = None,
+    centres: np.ndarray | None = None,
+    faces: np.ndarray | None = None,
+) -> SteadySolution:
+    """The SteadySolution of solved cell values (``achieved``: consumption V R per cell, None
+    for none at all; ``active``: depleted zero-order cells).
+
+    ``mesh`` may be a callable returning it (built only if the profile is read; the
+    mesh facts of the diagnostics are then given as ``cells_per_layer``, ``centres`` and
+    ``faces``)."""
+    finite = math.isfinite(float(c.sum()))  # NaN or inf anywhere propagates into the sum
+    profile = NodalProfile(mesh, c, flux_density)
+    if isinstance(mesh, Mesh):
+        cells_per_layer, centres, faces = mesh.cells_per_layer, mesh.centres, mesh.faces
 
     fronts: list[float] = []
-    if active.any():
-        load = mesh.volumes * terms.zero_order
+    depleted_cells = 0 if active is None else int(np.count_nonzero(active))
+    if depleted_cells:
+        load = mesh.volumes * zero_order
         live_fraction = np.divide(achieved, load, out=np.ones_like(load), where=load > 0.0)
         fronts = _depletion_fronts(mesh, active, np.clip(live_fraction, 0.0, 1.0))
 
     diagnostics = {
-        "cells_per_layer": mesh.cells_per_layer,
-        "cells": mesh.n_cells,
+        "cells_per_layer": cells_per_layer,
+        "cells": int(c.size),
         "newton_iterations": record["newton_iterations"],
         "active_set_iterations": record["active_set_iterations"],
         "residual_history": record["residual_history"],
-        "depleted_cells": int(active.sum()),
+        "depleted_cells": depleted_cells,
         "depletion_fronts": fronts,
-        "cell_centres": mesh.centres,
+        "cell_centres": centres,
         "cell_concentrations": c,
-        "face_positions": mesh.faces,
+        "face_positions": faces,
         "face_flux_densities": flux_density,
     }
     return SteadySolution(
@@ -482,11 +577,12 @@ def solve_fv(
         reference=REFERENCE,
         success=record["success"] and finite,
         message=record["message"] if finite else "non-finite values in the solution",
-        concentration_at=concentration_at,
-        flux_at=flux_at,
+        concentration_at=profile.concentration_at,
+        flux_at=profile.flux_at,
+        profile_at=profile.profile_at,
         flux_inner=float(flux_density[0]),
         flux_outer=float(flux_density[-1]),
-        consumption=float(achieved.sum()),
+        consumption=0.0 if achieved is None else float(achieved.sum()),
         depletion_front=fronts[0] if fronts else None,
         diagnostics=diagnostics,
     )

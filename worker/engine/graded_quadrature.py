@@ -11,11 +11,13 @@ radius too (where ln r varies fastest). Gauss-Legendre rules: M. Abramowitz, I.A
 
 from __future__ import annotations
 
+import math
+
 import numpy as np
 
 POINTS_PER_PANEL = 16
 # Edge grading, in boundary-layer widths: exp(-64) is far below double precision.
-_EDGE_STEPS = 2.0 ** np.arange(-3, 7)
+_EDGE_STEPS = tuple(2.0**k for k in range(-3, 7))
 
 _LEGENDRE_NODES, _LEGENDRE_WEIGHTS = np.polynomial.legendre.leggauss(POINTS_PER_PANEL)
 
@@ -40,16 +42,18 @@ def graded_gauss_rule(
     """
     a, b = float(inner_edge), float(outer_edge)
     length = b - a
-    pieces = [np.array([a, 0.5 * (a + b), b])]
+    # panel ends as plain floats: a handful of them, sorted once
+    ends = {a, 0.5 * (a + b), b}
     if boundary_width is not None and boundary_width < length:
-        steps = boundary_width * _EDGE_STEPS
-        steps = steps[steps < 0.5 * length]
-        pieces += [a + steps, b - steps]
+        steps = [boundary_width * s for s in _EDGE_STEPS]
+        steps = [s for s in steps if s < 0.5 * length]
+        ends.update(a + s for s in steps)
+        ends.update(b - s for s in steps)
     if a > 0.0 and b > 4.0 * a:
-        ratios = a * 2.0 ** np.arange(1, int(np.log2(b / a)) + 1)
-        pieces.append(ratios[ratios < b])
-    edges = np.unique(np.concatenate(pieces))
-    half = 0.5 * np.diff(edges)
+        ratios = (a * 2.0**k for k in range(1, int(math.log2(b / a)) + 1))
+        ends.update(r for r in ratios if r < b)
+    edges = np.array(sorted(ends))
+    half = 0.5 * (edges[1:] - edges[:-1])
     middle = edges[:-1] + half
     nodes = (middle[:, None] + half[:, None] * _LEGENDRE_NODES).ravel()
     weights = (half[:, None] * _LEGENDRE_WEIGHTS).ravel()

@@ -86,13 +86,13 @@ class _Sampled:
     solution: SteadySolution
     positions: list[np.ndarray]
     concentration: list[np.ndarray]
-    end_flux: list[np.ndarray]
+    end_flux: list[tuple[float, float]]
     lowest: float = float("nan")
     highest: float = float("nan")
 
     def __post_init__(self) -> None:
-        self.lowest = float(min(np.min(c) for c in self.concentration))
-        self.highest = float(max(np.max(c) for c in self.concentration))
+        self.lowest = float(min(c.min() for c in self.concentration))
+        self.highest = float(max(c.max() for c in self.concentration))
 
     @classmethod
     def of(cls, solution: SteadySolution, positions: list[np.ndarray]) -> _Sampled:
@@ -101,7 +101,8 @@ class _Sampled:
             if solution.profile_at is not None:
                 c, j = solution.profile_at(r, layer=i)
                 conc.append(np.asarray(c, dtype=float))
-                flux.append(np.asarray(j, dtype=float)[[0, -1]])
+                j = np.asarray(j, dtype=float)
+                flux.append((j[0], j[-1]))
                 continue
             conc.append(np.asarray(solution.concentration_at(r, layer=i), dtype=float))
             flux.append(np.asarray(solution.flux_at(r[[0, -1]], layer=i), dtype=float))
@@ -140,10 +141,25 @@ def _throughput_scale(problem: Problem, solution: SteadySolution, c_scale: float
     return max(max(rates), floor)
 
 
+_PROFILE_STEPS = np.arange(PROFILE_POINTS_PER_LAYER, dtype=float)
+
+
 def _profile_positions(problem: Problem) -> list[np.ndarray]:
-    edges = problem.edges
-    return [np.linspace(edges[i], edges[i + 1], PROFILE_POINTS_PER_LAYER)
-            for i in range(len(problem.layers))]
+    """``PROFILE_POINTS_PER_LAYER`` evenly spaced points on each layer, both ends exact: the
+    arithmetic of ``numpy.linspace`` (start + k * step, the last point set to the end), without
+    its generality."""
+    edges = problem.edges.tolist()
+    positions = []
+    for start, stop in zip(edges[:-1], edges[1:], strict=True):
+        step = (stop - start) / (PROFILE_POINTS_PER_LAYER - 1)
+        if step == 0.0:  # (linspace's own branch for such spans)
+            positions.append(np.linspace(start, stop, PROFILE_POINTS_PER_LAYER))
+            continue
+        points = _PROFILE_STEPS * step
+        points += start
+        points[-1] = stop
+        positions.append(points)
+    return positions
 
 
 def _boundary_residuals(problem: Problem, sample: _Sampled, c_scale: float,
@@ -318,7 +334,7 @@ def _thin_wall_note(problem: Problem, primary: SteadySolution, outcome: Outcome)
     if all(not ly.reaction.reacts for ly in problem.layers):
         flat = _reaction_free_slab(slab)
     elif problem.is_linear:  # the slab's fluxes only: its consumption integral is not needed
-        flat, _ = exact_steady.solve_linear(slab, consumption=False)
+        flat = _SlabRate(*exact_steady.linear_face_fluxes(slab))
     else:
         flat = exact_steady.solve_exact(slab) if all(
             ly.reaction.kind != "michaelis_menten" for ly in problem.layers) else None
@@ -369,7 +385,7 @@ def _cross_check_profile(outcome: Outcome, problem: Problem, a: _Sampled,
     where = problem.inner
     for r, ca, cb in zip(a.positions, a.concentration, b.concentration, strict=True):
         diff = np.abs(ca - cb)
-        j = int(np.argmax(diff))
+        j = int(diff.argmax())
         if diff[j] / c_scale > worst:
             worst, where = float(diff[j] / c_scale), float(r[j])
     outcome.check_at_most(
@@ -422,10 +438,13 @@ def _grid_checks(outcome: Outcome, problem: Problem, studies: dict, cells: list,
 def run_steady(problem: Problem) -> Outcome:
     """Solve a steady case by every applicable method and check the results."""
     outcome = Outcome()
-    exact = exact_steady.solve_exact(problem)
+    positions = _profile_positions(problem)
+    exact = exact_steady.solve_exact(problem, sample_at=positions)
     grids = convergence.refined_solutions(problem)
     fine = grids[0]
-    studies = convergence.run_grid_study(problem, solutions=grids)
+    # the face fluxes are what the grid checks study (the consumption is not reported)
+    studies = convergence.run_grid_study(
+        problem, solutions=grids, quantities=[f"flux_{side}" for side in _faces(problem)])
     cells = [sum(g.diagnostics["cells"]) if isinstance(g.diagnostics["cells"], list | tuple)
              else g.diagnostics["cells"] for g in grids]
     if not fine.success:
@@ -443,16 +462,18 @@ def run_steady(problem: Problem) -> Outcome:
         outcome.methods.append(_method("independent", independent))
 
     solutions = [s for s in (primary, fine, independent) if s is not None and s.success]
-    positions = _profile_positions(problem)
     samples = {id(s): _Sampled.of(s, positions) for s in solutions}
     c_scale = _concentration_scale(problem, list(samples.values()))
     t_scale = _throughput_scale(problem, primary, c_scale)
 
     primary_samples = samples.get(id(primary)) or _Sampled.of(primary, positions)
+    layer_of_point: list[int] = []
+    for i, r in enumerate(positions):
+        layer_of_point += [i] * len(r)
     outcome.series["profile"] = {
         "position": np.concatenate(positions).tolist(),
         "concentration": np.concatenate(primary_samples.concentration).tolist(),
-        "layer": [i for i, r in enumerate(positions) for _ in range(len(r))],
+        "layer": layer_of_point,
         "units": {"position": "m", "concentration": problem.concentration_unit},
     }
     if problem.probes:
