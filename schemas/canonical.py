@@ -6,11 +6,15 @@ import hashlib
 import json
 from typing import Any
 
+#: What ``json.dumps`` would build on every call with these options (it keeps no state
+#: between calls).
+_CANONICAL = json.JSONEncoder(sort_keys=True, separators=(",", ":"), ensure_ascii=False,
+                              allow_nan=False)
+
 
 def canonical_json(doc: Any) -> str:
     """Keys sorted, no whitespace, non-ASCII kept as is; NaN and infinity refused (ValueError)."""
-    return json.dumps(doc, sort_keys=True, separators=(",", ":"), ensure_ascii=False,
-                      allow_nan=False)
+    return _CANONICAL.encode(doc)
 
 
 def case_sha256(doc: Any) -> str:

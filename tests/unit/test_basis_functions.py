@@ -47,8 +47,8 @@ def test_basis_solves_the_layer_equation(exponent, a, b, solid, thiele, zero_ord
 @pytest.mark.parametrize("zero_order", [0.0, 0.7])
 def test_a_single_position_gives_the_values_it_has_in_an_array(exponent, a, b, solid, thiele,
                                                                zero_order):
-    """The closed-form system evaluates each edge alone (scalar arithmetic): the values must be
-    those of the same position evaluated in an array, bit for bit."""
+    """The closed-form system evaluates each edge alone (scalar arithmetic, ``edge_values``): the
+    values must be those of the same position evaluated in an array, bit for bit."""
     d = 1.3e-9
     k = (thiele / (b - a)) ** 2 * d
     basis = LayerBasis(exponent, a, b, d, rate_constant=k, zero_order_rate=zero_order, solid=solid)
@@ -58,6 +58,10 @@ def test_a_single_position_gives_the_values_it_has_in_an_array(exponent, a, b, s
         alone = basis.evaluate(position)
         for field, value in zip(together, alone, strict=True):
             assert np.shape(value) == ()
+            assert np.array_equal(field[j], value, equal_nan=True)
+        # edge_values (what the closed-form system reads at the edges) gives the same floats
+        for field, value in zip(together, basis.edge_values(position), strict=True):
+            assert type(value) is float
             assert np.array_equal(field[j], value, equal_nan=True)
 
 

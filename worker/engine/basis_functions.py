@@ -134,6 +134,14 @@ class LayerBasis:
         particular, dparticular = self._particular(r)
         return (*values[:2], particular, *values[2:], dparticular)
 
+    def edge_values(self, r: float) -> tuple[float, ...]:
+        """``evaluate`` at one position, as floats; for a hollow layer without reaction the
+        constant functions (g1 = 1, g1' = P = P' = 0) are not evaluated."""
+        if self.decay_constant == 0.0 and self.zero_order_rate == 0.0 and not self.solid:
+            g2, dg2 = self._plain_nodal(np.float64(r))
+            return 1.0, float(g2), 0.0, 0.0, float(dg2), 0.0
+        return tuple(float(v) for v in self.evaluate(float(r)))
+
     def combination(self, r, c1: float, c2: float, partition: float
                     ) -> tuple[np.ndarray, np.ndarray]:
         """C = K (c1 g1 + c2 g2) + P and dC/dr at positions ``r`` (see ``evaluate``).

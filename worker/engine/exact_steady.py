@@ -163,7 +163,7 @@ class _EdgeForms:
     def __init__(self, basis: LayerBasis, partition: float, columns: tuple[int | None, int],
                  evaluated: tuple[np.ndarray, ...] | None = None):
         if evaluated is None:
-            at_edges = (basis.evaluate(basis.inner_edge), basis.evaluate(basis.outer_edge))
+            at_edges = (basis.edge_values(basis.inner_edge), basis.edge_values(basis.outer_edge))
         else:
             at_edges = tuple(tuple(field[e] for field in evaluated) for e in (0, 1))
         d = basis.diffusivity

@@ -497,6 +497,8 @@ def solve_fv_grids(
         )]
     achieved = uptake * c if reacts else None
     flux_density = face_flux_densities(stack, whole.face_fluxes(c))
+    # a finite sum over every mesh means every mesh is finite (NaN and inf propagate)
+    finite = True if math.isfinite(float(c.sum())) else None
     solutions = []
     for g, (first, n) in enumerate(blocks):
         solutions.append(_solution(
@@ -504,7 +506,7 @@ def solve_fv_grids(
             achieved[first : first + n] if reacts else None, _linear_record(),
             cells_per_layer=stack.counts[g],
             centres=stack.centres[first : first + n],
-            faces=stack.faces[first : first + n + 1]))
+            faces=stack.faces[first : first + n + 1], finite=finite))
     return solutions
 
 
@@ -540,14 +542,16 @@ def _solution(
     cells_per_layer: tuple[int, ...] | None = None,
     centres: np.ndarray | None = None,
     faces: np.ndarray | None = None,
+    finite: bool | None = None,
 ) -> SteadySolution:
     """The SteadySolution of solved cell values (``achieved``: consumption V R per cell, None
     for none at all; ``active``: depleted zero-order cells).
 
     ``mesh`` may be a callable returning it (built only if the profile is read; the
     mesh facts of the diagnostics are then given as ``cells_per_layer``, ``centres`` and
-    ``faces``)."""
-    finite = math.isfinite(float(c.sum()))  # NaN or inf anywhere propagates into the sum
+    ``faces``); ``finite``, if known, saves looking at the values again."""
+    if finite is None:
+        finite = math.isfinite(float(c.sum()))  # NaN or inf anywhere propagates into the sum
     profile = NodalProfile(mesh, c, flux_density)
     if isinstance(mesh, Mesh):
         cells_per_layer, centres, faces = mesh.cells_per_layer, mesh.centres, mesh.faces
