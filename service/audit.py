@@ -14,6 +14,8 @@ every queued event is written in one append, as the last statement(s) before the
   the commit, with no round trip to the client in between. The client sends each event's
   canonical JSON in pieces around the time and the number (:func:`body_pieces`); the server
   only joins them and hashes.
+  The single self-committing statements of :mod:`service.runs_postgresql` put their events
+  into ``audit_pending`` themselves, in the same statement as the change.
 * SQLite: the transaction holds the database write lock from ``BEGIN IMMEDIATE``; the client
   reads the head, hashes, inserts the events and moves the head (three statements).
 
