@@ -237,25 +237,29 @@ def compute_drift(session: Session, batch_id: str) -> list[dict[str, Any]]:
 
 
 def get_batch(store: Store, batch_id: str) -> dict[str, Any]:
+    document, due = _read_batch(store, batch_id)
+    if due:  # its last worker died between its commit and closing the batch
+        close_batch_if_done(store, batch_id)
+        document, _due = _read_batch(store, batch_id)
+    return document
+
+
+def _read_batch(store: Store, batch_id: str) -> tuple[dict[str, Any], bool]:
+    """The batch document, and whether the batch is due to be closed (every run finished, the
+    row not yet)."""
     with store.transaction() as session:
         batch = session.get(Batch, batch_id)
         if batch is None:
             raise NotFound(f"There is no batch with id {batch_id!r}.")
         counts = _counts(session, batch_id)
-        due = batch.status != "finished" and _derived_status(counts) == "finished"
-    if due:  # its last worker died between its commit and closing the batch
-        close_batch_if_done(store, batch_id)
-    with store.transaction() as session:
-        batch = session.get(Batch, batch_id)
-        assert batch is not None
-        counts = _counts(session, batch_id)
-        status = "finished" if batch.status == "finished" else _derived_status(counts)
-        if sum(counts.values()) == 0:
-            status = "finished"
+        derived = _derived_status(counts)  # "finished" for a batch of no runs, too
+        status = "finished" if batch.status == "finished" else derived
         run_ids = list(session.execute(select(Run.id).where(Run.batch_id == batch_id)
                                        .order_by(Run.created_at, Run.id)).scalars())
-        return {"batch_id": batch.id, "status": status, "selector": batch.selector,
-                "created_by": batch.created_by, "created_at": batch.created_at.isoformat(),
-                "finished_at": batch.finished_at.isoformat() if batch.finished_at else None,
-                "counts": counts, "run_ids": run_ids,
-                "drifted": list(batch.drift or []) if status == "finished" else []}
+        document = {
+            "batch_id": batch.id, "status": status, "selector": batch.selector,
+            "created_by": batch.created_by, "created_at": batch.created_at.isoformat(),
+            "finished_at": batch.finished_at.isoformat() if batch.finished_at else None,
+            "counts": counts, "run_ids": run_ids,
+            "drifted": list(batch.drift or []) if status == "finished" else []}
+        return document, batch.status != "finished" and derived == "finished"

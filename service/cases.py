@@ -64,17 +64,25 @@ def _find_by_sha(session: Session, sha256: str) -> StoredCase | None:
     return None if row is None else StoredCase(id=row.id, sha256=row.sha256)
 
 
+def stored_case_fields(document: dict[str, Any]) -> dict[str, Any]:
+    """What a case is stored under, which is also its ``case.stored`` event's payload: the
+    content address ``sha256``, the ``title`` (at most 500 characters) and the sorted,
+    distinct ``tags``."""
+    import schemas
+
+    return {"sha256": schemas.case_sha256(document),
+            "title": str(document.get("title") or "")[:500],
+            "tags": sorted({str(t) for t in document.get("tags") or []})}
+
+
 def store_case_in(session: Session, document: dict[str, Any], actor: str
                   ) -> tuple[StoredCase, bool]:
     """Store a validated case in the caller's transaction; return (case, created)."""
-    import schemas
-
-    sha256 = schemas.case_sha256(document)
+    fields = stored_case_fields(document)
+    sha256, title, tags = fields["sha256"], fields["title"], fields["tags"]
     existing = _find_by_sha(session, sha256)
     if existing is not None:
         return existing, False
-    tags = sorted({str(t) for t in document.get("tags") or []})
-    title = str(document.get("title") or "")[:500]
     case_id = str(uuid.uuid4())
     session.execute(_INSERT_CASE, {"id": case_id, "sha256": sha256, "document": document,
                                    "title": title, "tags": tags, "created_at": utc_now(),
@@ -82,7 +90,7 @@ def store_case_in(session: Session, document: dict[str, Any], actor: str
     if tags:
         session.execute(_INSERT_TAGS, [{"case_id": case_id, "tag": tag} for tag in tags])
     audit.append_event(session, actor=actor, kind="case.stored", subject=case_id,
-                       payload={"sha256": sha256, "title": title, "tags": tags})
+                       payload=fields)
     return StoredCase(id=case_id, sha256=sha256), True
 
 

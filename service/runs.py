@@ -234,6 +234,7 @@ _CLAIM = (
                select(_CASES.c.document).where(_CASES.c.id == _RUNS.c.case_id)
                .scalar_subquery())
 )
+_STATUS_OF = select(_RUNS.c.status).where(_RUNS.c.id == bindparam("run_id"))
 _STORE_OUTCOME = (
     update(_RUNS)
     .where(_RUNS.c.id == bindparam("run_id"), _RUNS.c.status.in_(UNFINISHED_STATES))
@@ -247,9 +248,9 @@ def _claim(session: Session, run_id: str, max_attempts: int) -> tuple[int, str, 
     """Mark a claimable run ``running`` in one statement; return (attempt, case_id, document).
 
     Claimable: not finished and started fewer than ``max_attempts`` times. The ``UPDATE``
-    locks the row (PostgreSQL) and returns the case document (a subquery), so the claim is
-    one round trip. None when the run is missing, finished or out of attempts (the caller then
-    reads it to tell which). A signed-off run is always finished, so this never touches one.
+    returns the case document (a subquery), so the claim is one statement. None when the run
+    is missing, finished or out of attempts (the caller then reads it to tell which). A
+    signed-off run is always finished, so this never touches one.
     """
     row = session.execute(_CLAIM, {"run_id": run_id, "max_attempts": max_attempts,
                                    "now": utc_now()}).one_or_none()
@@ -293,47 +294,41 @@ def execute_run(run_id: str, store: Store | None = None, *,
     actor = actor or f"worker@{socket.gethostname()}"
     on_postgresql = store.dialect == "postgresql"
     claimed = (runs_postgresql.claim(store, run_id, max_attempts, actor, utc_now())
-               if on_postgresql else None)
-    if claimed is not None:
-        attempt, case_id, stored_document = claimed
-        document = dict(stored_document)
-    else:
-        outcome = _claim_or_settle(store, run_id, max_attempts, actor,
-                                   try_claim=not on_postgresql)
-        if isinstance(outcome, str):
-            return outcome
-        attempt, case_id, document = outcome
-    return _solve_and_store(store, run_id, case_id, document, actor, on_postgresql)
-
-
-def _claim_or_settle(store: Store, run_id: str, max_attempts: int, actor: str, *,
-                     try_claim: bool) -> tuple[int, str, dict[str, Any]] | str:
-    """In a session transaction: claim the run (unless ``try_claim`` is False: the caller
-    tried already), or, when it is not claimable, settle it: "missing", its finished status,
-    or "failed" when it is out of attempts (then ended so, and its batch closed if due)."""
-    with store.transaction() as session:
-        claimed = _claim(session, run_id, max_attempts) if try_claim else None
-        if claimed is None:
-            found = _lock_run(session, run_id)
-            if found is None:
-                logger.warning("execute_run: no run %s", run_id)
-                return "missing"
-            if found.status in FINISHED_STATES:
-                return found.status
-            _finish(session, found, status="failed", record=None, actor=actor,
-                    error=f"gave up after {found.attempts} deliveries that did not finish "
-                          "(worker lost, killed or past its hard time limit)")
-            gave_up_batch = found.batch_id
-        else:
-            gave_up_batch = None
-            attempt, case_id, stored_document = claimed
-            audit.append_event(session, actor=actor, kind="run.started", subject=run_id,
-                               payload={"attempt": attempt})
-            document = dict(stored_document)
+               if on_postgresql else _claim_with_event(store, run_id, max_attempts, actor))
     if claimed is None:
-        _close_batch_after_commit(store, gave_up_batch)
-        return "failed"
-    return attempt, case_id, document
+        return _settle_unclaimable(store, run_id, actor)
+    _attempt, case_id, document = claimed
+    return _solve_and_store(store, run_id, case_id, dict(document), actor, on_postgresql)
+
+
+def _claim_with_event(store: Store, run_id: str, max_attempts: int, actor: str
+                      ) -> tuple[int, str, Any] | None:
+    """The session path of the claim: :func:`_claim` and its ``run.started`` event in one
+    transaction; (attempt, case_id, document), or None when the run is not claimable."""
+    with store.transaction() as session:
+        claimed = _claim(session, run_id, max_attempts)
+        if claimed is not None:
+            audit.append_event(session, actor=actor, kind="run.started", subject=run_id,
+                               payload={"attempt": claimed[0]})
+    return claimed
+
+
+def _settle_unclaimable(store: Store, run_id: str, actor: str) -> str:
+    """A run that could not be claimed: "missing", its finished status, or, when it is out of
+    attempts, ended "failed" (and its batch closed if that was its last run)."""
+    with store.transaction() as session:
+        found = _lock_run(session, run_id)
+        if found is None:
+            logger.warning("execute_run: no run %s", run_id)
+            return "missing"
+        if found.status in FINISHED_STATES:
+            return found.status
+        _finish(session, found, status="failed", record=None, actor=actor,
+                error=f"gave up after {found.attempts} deliveries that did not finish "
+                      "(worker lost, killed or past its hard time limit)")
+        batch_id = found.batch_id
+    _close_batch_after_commit(store, batch_id)
+    return "failed"
 
 
 def _solve_and_store(store: Store, run_id: str, case_id: str, document: dict[str, Any],
@@ -366,17 +361,14 @@ def _solve_and_store(store: Store, run_id: str, case_id: str, document: dict[str
         stored, batch_id = runs_postgresql.store_outcome(
             store, run_id, status=status, record=record, error=error, actor=actor,
             now=utc_now())
-        if stored:
-            _close_batch_after_commit(store, batch_id)
-            return status
-    with store.transaction() as session:
-        stored, batch_id = (False, None) if on_postgresql else _store_finish(
-            session, run_id, status=status, record=record, error=error, actor=actor)
-        if not stored:
-            # Another delivery finished first (or the run is gone); keep what it stored.
-            found = session.execute(select(Run.status).where(Run.id == run_id)
-                                    ).scalar_one_or_none()
-            return "missing" if found is None else found
+    else:
+        with store.transaction() as session:
+            stored, batch_id = _store_finish(session, run_id, status=status, record=record,
+                                             error=error, actor=actor)
+    if not stored:
+        # Another delivery finished first (or the run is gone); keep what it stored.
+        found = store.read_scalar(_STATUS_OF, {"run_id": run_id})
+        return "missing" if found is None else found
     _close_batch_after_commit(store, batch_id)
     return status
 

@@ -15,11 +15,13 @@ attempts) goes through the session code in :mod:`service.runs`.
 from __future__ import annotations
 
 import json
+import uuid
 from typing import Any
 
 from sqlalchemy import JSON, Integer, String, bindparam, text
 
 from service import audit
+from service.cases import stored_case_fields
 from service.store import Store
 from service.store.models import UtcDateTime
 
@@ -151,16 +153,10 @@ def queue_new_case_run(store: Store, document: dict[str, Any], actor: str, now: 
                        ) -> tuple[str, str] | None:
     """Store a validated case (unless stored already) and queue a run of it, in one statement;
     (run_id, case_id), or None when a concurrent writer stored the same content meanwhile."""
-    import uuid
-
-    import schemas
-
-    sha256 = schemas.case_sha256(document)
-    tags = sorted({str(t) for t in document.get("tags") or []})
-    title = str(document.get("title") or "")[:500]
+    fields = stored_case_fields(document)
+    sha256, title, tags = fields["sha256"], fields["title"], fields["tags"]
     case_id, run_id = str(uuid.uuid4()), str(uuid.uuid4())
-    case_pieces = audit.body_pieces(actor, "case.stored", case_id,
-                                    {"sha256": sha256, "title": title, "tags": tags})
+    case_pieces = audit.body_pieces(actor, "case.stored", case_id, fields)
     run_at, run_before_payload, run_after_payload, run_after_seq = audit.payload_pieces(
         actor, "run.queued", run_id)
     with _autocommit(store) as connection:
@@ -169,7 +165,7 @@ def queue_new_case_run(store: Store, document: dict[str, Any], actor: str, now: 
             "sha256_json": audit.chain_json(sha256), "document": json.dumps(document),
             "title": title, "tags": tags, "tags_json": json.dumps(tags), "now": now,
             "actor": actor,
-            "case_payload": audit.chain_json({"sha256": sha256, "title": title, "tags": tags}),
+            "case_payload": audit.chain_json(fields),
             "case_before_at": case_pieces[0], "case_before_seq": case_pieces[1],
             "case_after_seq": case_pieces[2], "run_before_at": run_at,
             "run_before_payload": run_before_payload, "run_after_payload": run_after_payload,

@@ -30,15 +30,19 @@ def _document():
 
 def test_a_run_on_postgresql_writes_its_events_with_their_payloads_and_the_chain_verifies(
         store, controlled_engine):  # noqa: F811
-    from service.store.models import Run
+    from service.store.models import Case, Run
 
     assert store.dialect == "postgresql"
-    run_id = create_run(store, actor="pia.engineer", document=_document())["run_id"]
+    queued = create_run(store, actor="pia.engineer", document=_document())
+    run_id = queued["run_id"]
     assert execute_run(run_id, store, actor='worker "quoted" ü') == "succeeded"
     assert execute_run(run_id, store, actor="second delivery") == "succeeded"
     assert controlled_engine.calls == 1
+    with store.transaction() as session:
+        case_sha256 = session.get(Case, queued["case_id"]).sha256
     assert _events(store, run_id) == [
-        ("run.queued", "pia.engineer", _events(store, run_id)[0][2]),
+        ("run.queued", "pia.engineer",
+         {"case_id": queued["case_id"], "case_sha256": case_sha256, "batch_id": None}),
         ("run.started", 'worker "quoted" ü', {"attempt": 1}),
         ("run.finished", 'worker "quoted" ü',
          {"status": "succeeded", "verdict": "pass", "error": None, "attempts": 1}),
