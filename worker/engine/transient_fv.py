@@ -40,7 +40,7 @@ from dataclasses import dataclass, field
 
 import numpy as np
 from scipy import sparse
-from scipy.integrate import solve_ivp
+from scipy.integrate import BDF, solve_ivp
 
 from worker.engine.fv_mesh import (
     Mesh,
@@ -232,6 +232,21 @@ class _Stack:
         return sparse.block_diag(blocks, format="csc")
 
 
+class _ClearedHistoryBDF(BDF):
+    """``scipy.integrate.BDF`` with the unused rows of its difference array set to zero.
+
+    scipy allocates the array with ``np.empty`` and its first step subtracts a row it has not
+    written yet. The values never reach the solution (the row is overwritten before it is
+    used), but whatever bits the fresh memory holds decide whether numpy raises an "invalid
+    value" flag, so a run could warn, or fail where warnings are errors, by chance. Zeroed rows
+    make every integration read the same numbers. Steps and results are otherwise scipy's.
+    """
+
+    def __init__(self, *args, **kwargs):
+        super().__init__(*args, **kwargs)
+        self.D[2:] = 0.0
+
+
 def _check_times(problem: Problem, times, end, start):
     times = np.asarray(problem.regime.times if times is None else times, dtype=float)
     if times.ndim != 1 or times.size == 0 or not np.all(np.isfinite(times)):
@@ -328,7 +343,7 @@ def solve_transient_fv_meshes(
         )))
     span_end = max(end, start + 1e-300)
     result = solve_ivp(
-        stack, (start, span_end), np.concatenate(y0_parts), method="BDF",
+        stack, (start, span_end), np.concatenate(y0_parts), method=_ClearedHistoryBDF,
         t_eval=np.clip(times, start, span_end), dense_output=True, rtol=rtol,
         atol=np.concatenate(atol_parts), jac=stack.jacobian,
     )
