@@ -105,6 +105,13 @@ def test_similarity_under_length_rescaling(problem, s):
         np.testing.assert_allclose(big.flux_outer, s * base.flux_outer, rtol=1e-8,
                                    atol=1e-10 * s * diffusive)
         r = np.linspace(problem.edges[0], problem.edges[-1], 17)[1:-1]
+        # At a layer interface the concentration is two-valued (the partition jump), and r * s
+        # can round to either side of the scaled interface: compare away from interfaces only.
+        interfaces = np.asarray(problem.edges[1:-1])
+        if interfaces.size:
+            span = problem.edges[-1] - problem.edges[0]
+            gap = np.min(np.abs(r[:, None] - interfaces[None, :]), axis=1)
+            r = r[gap > 1e-9 * span]
         np.testing.assert_allclose(big.concentration_at(r * s), base.concentration_at(r),
                                    rtol=1e-8, atol=1e-12)
 
