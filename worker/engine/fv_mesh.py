@@ -361,9 +361,9 @@ def _spread(per_layer: Sequence[float], counts_list: Sequence[Sequence[int]],
         if g:
             values.append(spacer_value)
             repeats.append(1)
-        values.extend(float(v) for v in per_layer)
-        repeats.extend(counts)
-    return np.repeat(np.array(values), repeats)
+        values += per_layer
+        repeats += counts
+    return np.array(values, dtype=float).repeat(np.array(repeats))
 
 
 def _cell_geometry(faces: np.ndarray, n: int):
@@ -386,15 +386,24 @@ def build_mesh_stack(problem: Problem, cells: Sequence[Sequence[int] | int]) -> 
 
     Each mesh is exactly what ``build_mesh`` gives for its cells (see ``MeshStack``).
     """
-    n = problem.exponent
     layers = problem.layers
     counts_list = [_check_cells(c, len(layers)) for c in cells]
-    edges = np.array(list(accumulate((ly.thickness for ly in layers), initial=problem.inner)))
+    edges = problem.edges
     # West face of every cell: its layer's inner edge plus whole cell widths (the layer edges
     # themselves are exact, local index 0, so interfaces carry no round-off drift), then the
     # outer face of the mesh; all meshes at once, segment by segment (a layer of a mesh, or the
     # outer face as a segment of one face and zero width).
     bounds = edges.tolist()
+    if len(counts_list) == 1:  # one mesh: the same arithmetic, layer by layer, fewer arrays
+        faces = np.empty(sum(counts_list[0]) + 1)
+        start = 0
+        for layer, count, edge in zip(layers, counts_list[0], bounds, strict=False):
+            segment = faces[start : start + count]
+            np.multiply(np.arange(count), layer.thickness / count, out=segment)
+            segment += edge
+            start += count
+        faces[start] = bounds[-1]
+        return _stack(problem, edges, counts_list, [0], faces)
     segment_edges: list[float] = []
     segment_widths: list[float] = []
     segment_counts: list[int] = []
@@ -409,19 +418,27 @@ def build_mesh_stack(problem: Problem, cells: Sequence[Sequence[int] | int]) -> 
         segment_counts += counts
         segment_counts.append(1)
         position += sum(counts) + 1
-    segment_starts = list(accumulate(segment_counts[:-1], initial=0))
-    local = np.arange(position) - np.repeat(segment_starts, segment_counts)
-    faces = np.repeat(segment_edges, segment_counts) + np.repeat(segment_widths,
-                                                                 segment_counts) * local
-    spacers = tuple(first - 1 for first in offsets[1:])
-    centres, face_areas, volumes, west_gaps, east_gaps = _cell_geometry(faces, n)
+    repeats = np.array(segment_counts)
+    local = np.arange(position)
+    local -= np.array(list(accumulate(segment_counts[:-1], initial=0))).repeat(repeats)
+    faces = np.array(segment_widths).repeat(repeats) * local
+    faces += np.array(segment_edges).repeat(repeats)
+    return _stack(problem, edges, counts_list, offsets, faces)
 
+
+def _stack(problem: Problem, edges: np.ndarray, counts_list: list[tuple[int, ...]],
+           offsets: list[int], faces: np.ndarray) -> MeshStack:
+    """The MeshStack of the stacked faces: cell geometry and per-cell properties."""
+    n = problem.exponent
+    layers = problem.layers
+    centres, face_areas, volumes, west_gaps, east_gaps = _cell_geometry(faces, n)
     diffusivity = _spread([ly.diffusivity for ly in layers], counts_list, math.inf)
     partition = _spread([ly.partition for ly in layers], counts_list, 1.0)
     return MeshStack(
-        edges=edges, counts=tuple(counts_list), offsets=tuple(offsets), spacers=spacers,
-        exponent=n, faces=faces, face_areas=face_areas, centres=centres, volumes=volumes,
-        west_gaps=west_gaps, east_gaps=east_gaps, diffusivity=diffusivity, partition=partition,
+        edges=edges, counts=tuple(counts_list), offsets=tuple(offsets),
+        spacers=tuple(first - 1 for first in offsets[1:]), exponent=n, faces=faces,
+        face_areas=face_areas, centres=centres, volumes=volumes, west_gaps=west_gaps,
+        east_gaps=east_gaps, diffusivity=diffusivity, partition=partition,
     )
 
 
