@@ -99,7 +99,8 @@ def _fipy_outer_rate(geometry, r0, layers, c_in, c_out, cells_total):
     j_face = -d_face * (values[-1] - values[-2]) / (r_cells[-1] - r_cells[-2])
     rf = r_faces[-2]
     rb = r_faces[-1]
-    consumption_last = rate_cells[-1] * k_cells[-1] * values[-1] * (rb ** (n + 1) - rf ** (n + 1)) / (n + 1)
+    consumption_last = (rate_cells[-1] * k_cells[-1] * values[-1]
+                        * (rb ** (n + 1) - rf ** (n + 1)) / (n + 1))
     return rf**n * j_face - consumption_last
 
 

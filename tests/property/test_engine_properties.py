@@ -132,7 +132,8 @@ def case_documents(draw):
         if kind == "first_order":
             layer["reaction"] = {"kind": kind, "rate_constant": f"{draw(log_uniform) / tau!r} 1/s"}
         elif kind == "zero_order":
-            layer["reaction"] = {"kind": kind, "rate": f"{0.2 * draw(log_uniform) / tau!r} mol/m^3/s"}
+            rate = 0.2 * draw(log_uniform) / tau
+            layer["reaction"] = {"kind": kind, "rate": f"{rate!r} mol/m^3/s"}
         elif kind == "michaelis_menten":
             layer["reaction"] = {"kind": kind, "vmax": f"{draw(log_uniform) / tau!r} mol/m^3/s",
                                  "km": f"{0.1 * draw(log_uniform)!r} mol/m^3"}
