@@ -397,7 +397,7 @@ def build_mesh_stack(problem: Problem, cells: Sequence[Sequence[int] | int]) -> 
     if len(counts_list) == 1:  # one mesh: the same arithmetic, layer by layer, fewer arrays
         faces = np.empty(sum(counts_list[0]) + 1)
         start = 0
-        for layer, count, edge in zip(layers, counts_list[0], bounds, strict=False):
+        for layer, count, edge in zip(layers, counts_list[0], bounds[:-1], strict=True):
             segment = faces[start : start + count]
             np.multiply(np.arange(count), layer.thickness / count, out=segment)
             segment += edge
