@@ -31,17 +31,17 @@ BLOCK = 10
 MESHES = [10 * 2**k for k in range(12)]  # 10 .. 20480 cells
 
 
-def _interleaved_medians(first, second, repeats=REPEATS, block=1):
-    """Median wall and CPU seconds of two callables timed alternately, ``block`` calls of one
-    then ``block`` of the other, so that load on a shared machine falls on both alike.
-    Returns ((wall1, cpu1), (wall2, cpu2)).
+def _interleaved_medians(first, second, rounds=REPEATS, block=1):
+    """Median wall and CPU seconds of two callables timed alternately, ``rounds`` times
+    ``block`` calls of one then ``block`` of the other, so that load on a shared machine falls
+    on both alike. Returns ((wall1, cpu1), (wall2, cpu2)).
 
     With ``block=1`` every call starts right after the other program has run, with the
     processor's caches holding the other's code and data; a short call suffers more from that
     than a long one. With larger blocks each runs as it does in use (a batch of checks, a
     sequence of solves), its first call in a block still cold."""
     samples = ([], []), ([], [])
-    for _ in range(max(1, repeats // block)):
+    for _ in range(rounds):
         for fn, (wall, cpu) in zip((first, second), samples, strict=True):
             for _ in range(block):
                 w0, c0 = time.perf_counter(), time.process_time()
@@ -156,7 +156,7 @@ def test_full_check_vs_fipy(name):
                          (1, "alternating call by call (each call after the other has run)")):
         (fipy_wall, fipy_cpu), (check_wall, check_cpu) = _interleaved_medians(
             lambda: _fipy_outer_rate(cells_total=cells, **s), lambda: check_case(case),
-            repeats=REPEATS * block, block=block)
+            block=block)
         print(f"  {label}: one FiPy solve {fipy_wall * 1e3:.2f} ms wall / "
               f"{fipy_cpu * 1e3:.2f} ms CPU; full fluxproof check {check_wall * 1e3:.2f} ms wall "
               f"/ {check_cpu * 1e3:.2f} ms CPU; ratio {fipy_wall / check_wall:.1f}x wall, "

@@ -389,48 +389,23 @@ def build_mesh_stack(problem: Problem, cells: Sequence[Sequence[int] | int]) -> 
     layers = problem.layers
     counts_list = [_check_cells(c, len(layers)) for c in cells]
     edges = problem.edges
-    # West face of every cell: its layer's inner edge plus whole cell widths (the layer edges
-    # themselves are exact, local index 0, so interfaces carry no round-off drift), then the
-    # outer face of the mesh; all meshes at once, segment by segment (a layer of a mesh, or the
-    # outer face as a segment of one face and zero width).
     bounds = edges.tolist()
-    if len(counts_list) == 1:  # one mesh: the same arithmetic, layer by layer, fewer arrays
-        faces = np.empty(sum(counts_list[0]) + 1)
-        start = 0
-        for layer, count, edge in zip(layers, counts_list[0], bounds[:-1], strict=True):
+    # West face of every cell: its layer's inner edge plus whole cell widths (the layer edges
+    # themselves are exact, local index 0, so interfaces carry no round-off drift); then the
+    # outer face of the mesh, exact; then the next mesh.
+    faces = np.empty(sum(sum(counts) + 1 for counts in counts_list))
+    offsets: list[int] = []
+    start = 0
+    for counts in counts_list:
+        offsets.append(start)
+        for layer, count, edge in zip(layers, counts, bounds[:-1], strict=True):
             segment = faces[start : start + count]
             np.multiply(np.arange(count), layer.thickness / count, out=segment)
             segment += edge
             start += count
         faces[start] = bounds[-1]
-        return _stack(problem, edges, counts_list, [0], faces)
-    segment_edges: list[float] = []
-    segment_widths: list[float] = []
-    segment_counts: list[int] = []
-    offsets: list[int] = []
-    position = 0
-    for counts in counts_list:
-        offsets.append(position)
-        segment_edges += bounds
-        segment_widths += [layer.thickness / count for layer, count in zip(layers, counts,
-                                                                          strict=True)]
-        segment_widths.append(0.0)
-        segment_counts += counts
-        segment_counts.append(1)
-        position += sum(counts) + 1
-    repeats = np.array(segment_counts)
-    local = np.arange(position)
-    local -= np.array(list(accumulate(segment_counts[:-1], initial=0))).repeat(repeats)
-    faces = np.array(segment_widths).repeat(repeats) * local
-    faces += np.array(segment_edges).repeat(repeats)
-    return _stack(problem, edges, counts_list, offsets, faces)
-
-
-def _stack(problem: Problem, edges: np.ndarray, counts_list: list[tuple[int, ...]],
-           offsets: list[int], faces: np.ndarray) -> MeshStack:
-    """The MeshStack of the stacked faces: cell geometry and per-cell properties."""
+        start += 1
     n = problem.exponent
-    layers = problem.layers
     centres, face_areas, volumes, west_gaps, east_gaps = _cell_geometry(faces, n)
     diffusivity = _spread([ly.diffusivity for ly in layers], counts_list, math.inf)
     partition = _spread([ly.partition for ly in layers], counts_list, 1.0)
