@@ -23,7 +23,7 @@ checks, each aggregated over the requested times with the worst time named in it
   ``fv_steady.solve_fv``);
 * ``non_negativity``: the most negative cell concentration over the requested times.
 
-Default limits are ``DEFAULT_LIMITS``; ``problem.tolerances`` overrides them by the check's
+Default limits are ``limits.TRANSIENT_LIMITS``; ``problem.tolerances`` overrides them by the check's
 full name or by its family (``cross_check``, ``mass_balance``, ``gci`` for
 ``convergence.space``, ``convergence`` for ``convergence.time``, ``steady_limit``,
 ``non_negativity``).
@@ -43,26 +43,10 @@ from scipy.optimize import brentq
 
 from worker.engine import convergence, transient_exact, transient_fv
 from worker.engine.fv_mesh import default_cells_per_layer
+from worker.engine.limits import check_limit
 from worker.engine.model import Problem, Regime
 from worker.engine.outcome import Check, Outcome
 
-#: Default limits of the transient checks (dimensionless). Integral quantities (release,
-#: event times, time lag) are held to the steady engine's 1e-4; pointwise ones (face fluxes,
-#: probe concentrations) to 1e-3, since right after a discontinuous start at a fixed face the
-#: flux of any finite mesh converges more slowly than the released amount.
-DEFAULT_LIMITS = {
-    "cross_check": 1e-3,  # face fluxes, probes: relative, with an absolute floor (module doc)
-    "cross_check.release_fraction": 1e-4,
-    "cross_check.released": 1e-4,
-    "cross_check.t50": 1e-4,
-    "cross_check.t90": 1e-4,
-    "cross_check.time_lag": 1e-4,
-    "mass_balance": 1e-8,  # |initial - remaining - released - consumed| / amount scale
-    "gci": 1e-3,  # GCI_fine of the release (worst requested time) / amount scale
-    "convergence": 1e-5,  # change under a tighter time tolerance / amount scale
-    "steady_limit": 1e-4,  # long-time state vs steady engine, flux / throughput and C / scale
-    "non_negativity": 1e-8,  # most negative concentration / concentration scale
-}
 #: Values below this fraction of their scale are compared absolutely (see module doc).
 CROSS_CHECK_FLOOR = 1e-2
 #: Cells per layer of the coarse mesh: the steady mesh rule divided by this (fine = steady mesh).
@@ -89,7 +73,6 @@ EVENT_SCAN_POINTS = 400
 __all__ = [
     "COARSE_DIVISOR",
     "CROSS_CHECK_FLOOR",
-    "DEFAULT_LIMITS",
     "STEADY_HORIZON",
     "TIME_TIGHTENING",
     "TransientOutcome",
@@ -130,20 +113,6 @@ class TransientOutcome:
 # ---------------------------------------------------------------------------------------------
 # limits, scales and small helpers
 # ---------------------------------------------------------------------------------------------
-
-_FAMILY = {"convergence.space": "gci", "convergence.time": "convergence"}
-
-
-def check_limit(problem: Problem, name: str) -> float:
-    """Limit of check ``name``: the case's override by full name, else by family, else the
-    default for the name, else the family's default."""
-    if name in problem.tolerances:
-        return float(problem.tolerances[name])
-    family = _FAMILY.get(name, name.split(".")[0])
-    if family in problem.tolerances:
-        return float(problem.tolerances[family])
-    return float(DEFAULT_LIMITS.get(name, DEFAULT_LIMITS[family]))
-
 
 def _size_factor(problem: Problem) -> tuple[float, str]:
     """Factor turning per-measure amounts into reported amounts, and the amount unit."""
