@@ -12,16 +12,15 @@ from __future__ import annotations
 from collections.abc import Mapping
 from dataclasses import dataclass
 from types import MappingProxyType
-from typing import TYPE_CHECKING, Any
+from typing import Any
 
 from marshmallow import ValidationError
 
 from schemas.case import CaseSchema, SIValue, case_basis, case_rule_errors
 from schemas.errors import CaseError, flatten_messages
+from worker.engine import model
+from worker.engine.model import Problem
 from worker.units import si_unit
-
-if TYPE_CHECKING:
-    from worker.engine.model import Problem
 
 _CASE_SCHEMA = CaseSchema()
 
@@ -144,9 +143,6 @@ def _number(obj: Mapping, key: str, default: float = 0.0) -> float:
 
 
 def _problem(data: Mapping, basis: str) -> Problem:
-    # Imported here: worker.engine's package may import this package in turn.
-    from worker.engine import model
-
     layers = []
     for index, layer in enumerate(data["layers"]):
         reaction = layer.get("reaction", {"kind": "none"})

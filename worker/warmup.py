@@ -17,9 +17,9 @@ logger = logging.getLogger(__name__)
 
 #: Engine modules a check may need (the transient and nonlinear paths included).
 ENGINE_MODULES = (
-    "worker.engine.check",
+    "schemas.checking",
     "worker.engine.steady_check",
-    "worker.engine.transient_check",
+    "worker.engine.transient",
     "worker.engine.bvp_steady",
     "worker.engine.depletion_exact",
     "worker.engine.mm_bracket",
@@ -51,7 +51,7 @@ def warm_up_engine() -> float:
         for name in ENGINE_MODULES:
             importlib.import_module(name)
         # The implementation itself, not the package-level entry point (which tests replace).
-        from worker.engine.check import check_case
+        from schemas.checking import check_case
 
         record = check_case(dict(WARM_UP_CASE))
         if record.get("status") != "succeeded":

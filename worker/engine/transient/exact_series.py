@@ -52,8 +52,8 @@ from dataclasses import dataclass, field
 import numpy as np
 from scipy import special
 
-from worker.engine.eigen_roots import scanned_roots
 from worker.engine.model import Boundary, Problem
+from worker.engine.transient.eigen_roots import scanned_roots
 
 #: Target bound on the truncated tail of the face-flux series, relative to its largest term.
 SERIES_TOLERANCE = 1e-12
