@@ -118,16 +118,20 @@ def add_events(outcome: Outcome, problem: Problem, series: TransientSeriesSoluti
         for name, level in (("t50", 0.5), ("t90", 0.9)):
             per_mesh = []
             for sol in reversed(fvs):  # fine, medium, coarse
+                assert sol.step_times is not None, "a successful integration has its steps"
                 grid = np.union1d(sol.step_times, [duration])
                 per_mesh.append(first_crossing(_fv_fraction(sol, sol.initial_load, problem),
                                                grid[grid <= duration], level))
             t_fv = per_mesh[0]
-            if all(t is not None for t in per_mesh):
-                study = convergence.grid_study(per_mesh, cells)
+            reached = [t for t in per_mesh if t is not None]
+            if len(reached) == len(per_mesh):
+                study = convergence.grid_study(reached, cells)
                 if study.convergence == "monotonic" and math.isfinite(study.extrapolated):
                     t_fv = float(study.extrapolated)
             t_series = None
             if series is not None:
+                assert scan is not None, "series_on_scan gives a scan with every series"
+
                 def fraction_series(t, series=series):
                     _, out_a, out_b, _ = series.amounts_at(t)
                     return (out_a + out_b) / initial_load

@@ -83,9 +83,7 @@ def run_transient(problem: Problem) -> Outcome:
 
     numerical = extrapolated(fvs, internal)
     if series is not None and use_series:
-        primary = {"remaining": series.remaining[at], "released_inner": series.released_inner[at],
-                   "released_outer": series.released_outer[at], "consumed": series.consumed[at],
-                   "flux_inner": series.flux_inner[at], "flux_outer": series.flux_outer[at]}
+        primary = series.amounts(at)
         initial_load = series.initial_load
         outcome.methods.append({"role": "primary", "name": series.method,
                                 "reference": series.reference})
@@ -93,9 +91,7 @@ def run_transient(problem: Problem) -> Outcome:
                                 "reference": fine.reference + "; three meshes, Richardson "
                                 "extrapolation (Celik et al., J. Fluids Eng. 130 (2008) 078001)"})
     else:
-        primary = {"remaining": fine.remaining, "released_inner": fine.released_inner,
-                   "released_outer": fine.released_outer, "consumed": fine.consumed,
-                   "flux_inner": fine.flux_inner, "flux_outer": fine.flux_outer}
+        primary = fine.amounts()
         initial_load = fine.initial_load
         outcome.methods.append({"role": "primary", "name": fine.method,
                                 "reference": fine.reference})

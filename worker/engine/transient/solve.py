@@ -18,6 +18,7 @@ from worker.engine.transient import exact_series, method_of_lines
 from worker.engine.transient.exact_series import TransientSeriesSolution
 from worker.engine.transient.method_of_lines import TransientFVSolution
 from worker.engine.transient.scales import capacity_resistance_time
+from worker.engine.transient.solution import AMOUNTS
 
 #: Cells per layer of the coarse mesh: the steady mesh rule divided by this (fine = steady mesh).
 COARSE_DIVISOR = 4
@@ -35,12 +36,8 @@ STEADY_HORIZON = 40.0
 CONTINUATION_RTOL = 1e-4
 #: Scan points (log-spaced over the duration) used to bracket t50/t90 in the series.
 EVENT_SCAN_POINTS = 400
-#: The amounts and face fluxes every solution of a transient case reports, per measure.
-AMOUNTS = ("remaining", "released_inner", "released_outer", "consumed", "flux_inner",
-           "flux_outer")
 
 __all__ = [
-    "AMOUNTS",
     "COARSE_DIVISOR",
     "STEADY_HORIZON",
     "extrapolated",
