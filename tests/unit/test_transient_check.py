@@ -11,7 +11,6 @@ import dataclasses
 import numpy as np
 import pytest
 
-from service.report_text import format_release_table
 from worker.engine.model import Boundary, Layer, Problem, Reaction, Regime
 from worker.engine.outcome import Outcome
 from worker.engine.transient import checks, exact_series, run_transient, solve
@@ -189,12 +188,3 @@ def test_bad_regimes_are_refused_with_the_field():
     with pytest.raises(ValueError, match="regime.kind"):
         run_transient(_sheet(regime=Regime("steady")))
 
-
-def test_release_table_text(sheet_outcome):
-    text = format_release_table(sheet_outcome)
-    lines = text.splitlines()
-    assert lines[0] == "Release"
-    assert "release_fraction" in lines[1] and "out outer [mol]" in lines[1]
-    assert len([line for line in lines if line.strip()[:1].isdigit()]) == len(TIMES)
-    assert any(line.startswith("t50 (50 % released): ") for line in lines)
-    assert format_release_table({"series": {}, "quantities": {}}) == ""
