@@ -6,7 +6,7 @@ import re
 
 from openapi_spec_validator import validate
 
-from service.auth import PUBLIC, ROLE_MATRIX
+from service.api import PUBLIC, ROLE_MATRIX
 
 
 def test_document_is_valid_openapi_31(client):
