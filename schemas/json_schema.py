@@ -7,9 +7,11 @@ schemas go is the only difference, given as ``ref_template``.
 Custom fields describe themselves with a ``json_schema()`` method; validators map as Length →
 min/max length or items, Range → minimum, OneOf → enum (const for one choice), Regexp →
 pattern; a plain validator function may carry a ``json_schema`` dict attribute. A schema class
-may add keywords in a ``json_schema_extra`` dict. A ``default`` in a field's metadata is given
-as JSON Schema ``default`` when it is a scalar; an object or list default is said in the
-description instead, since client generators cannot hold an object-valued default.
+may add keywords in a ``json_schema_extra`` dict. A field whose value another part of the code
+validates may name the schema that documents it in ``metadata["documented_as"]``. A
+``default`` in a field's metadata is given as JSON Schema ``default`` when it is a scalar; an
+object or list default is said in the description instead, since client generators cannot
+hold an object-valued default.
 """
 
 from __future__ import annotations
@@ -88,7 +90,9 @@ class JsonSchemaConverter:
         return out
 
     def field(self, field: fields.Field) -> dict:
-        if hasattr(field, "json_schema"):
+        if "documented_as" in field.metadata:
+            out = self.ref(field.metadata["documented_as"])
+        elif hasattr(field, "json_schema"):
             out = dict(field.json_schema())
         elif isinstance(field, ByKind):
             out = {"oneOf": [self.ref(cls) for cls in field.choices.values()]}

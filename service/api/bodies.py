@@ -12,7 +12,7 @@ from typing import Any
 
 from marshmallow import INCLUDE, RAISE, Schema, ValidationError, fields, validate, validates_schema
 
-from schemas.case import WholeMatch
+from schemas.case import CaseSchema, WholeMatch
 from schemas.errors import flatten_messages
 from schemas.result import SHA256_PATTERN, ResultSchema
 from service.errors import ValidationFailed
@@ -32,7 +32,9 @@ class RunRequestSchema(StrictSchema):
 
     case_id = fields.String(validate=validate.Length(min=1, max=36),
                             metadata={"description": "id of a stored case"})
-    case = fields.Dict(metadata={"description": "a case document (schema_version 1)"})
+    # Loaded as a plain object here; runs.create_run validates it as a case (422 naming paths).
+    case = fields.Dict(metadata={"description": "a case document (schema_version 1)",
+                                 "documented_as": CaseSchema})
 
     @validates_schema
     def _exactly_one(self, data: dict[str, Any], **_kwargs: Any) -> None:

@@ -104,6 +104,11 @@ def test_generated_client_submits_polls_and_reads_a_case(live_server, tokens, tm
                        headers={"Authorization": f"Bearer {tokens['engineer']}"}).json()
     assert record.to_dict() == served  # the model holds every field that was sent
 
+    inline = create_run.sync(client=client, body=models.RunRequest(case=models.Case.from_dict(
+        make_case(title="Generated client: a case sent with its run"))))
+    assert isinstance(inline, models.RunAccepted), inline
+    assert _wait_for_finished_record(get_run, client, inline.run_id).status.value == "succeeded"
+
     refused = create_run.sync_detailed(client=client, body=models.RunRequest(case_id="nope"))
     assert refused.status_code == 422
     assert isinstance(refused.parsed, models.Problem)
