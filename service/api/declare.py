@@ -2,12 +2,13 @@
 
 ``@declare(...)`` registers the Flask route on the blueprint and keeps the declaration in
 :data:`ENDPOINTS`; the role matrix (``service.api.ROLE_MATRIX``), the browser pages' roles and
-the OpenAPI document (``service.api.openapi``) are read from there. A view receives the request
-body (``body``: loaded through the request schema, or only parsed when ``request_loaded`` is
-false because the domain function validates it, as for case documents) and the loaded query
-(``query``) as keyword arguments and returns the response
-body, or a :class:`Reply` when the status or the headers vary; the body is dumped through the
-schema declared for that status, so what the schema says is what is sent.
+the OpenAPI document (``service.api.openapi``) are read from there.
+
+A view receives the request body as ``body`` (loaded through the request schema, or only
+parsed when ``request_loaded`` is false because the domain function validates it, as for case
+documents) and the loaded query string as ``query``. It returns the response body, or a
+:class:`Reply` when the status or the headers vary; the body is dumped through the schema
+declared for that status, so what the schema says is what is sent.
 
 The bearer-token check (``service.auth.authenticate_request``) reads ``roles`` from the
 declaration attached to the view function: ``roles=None`` is a public endpoint, and a view
@@ -33,7 +34,7 @@ JSON = "application/json"
 @dataclass(frozen=True)
 class Raw:
     """A response body that does not pass through a marshmallow schema: its media type and
-    the JSON Schema that describes it (the view returns a ready response or a plain dict)."""
+    the JSON Schema that describes it (the view returns the text, or a plain JSON object)."""
 
     media_type: str
     json_schema: Mapping[str, Any]
