@@ -199,7 +199,8 @@ class Quantity(_CheckedInDeserialize):
             },
         ]
         if self.bare_zero:
-            forms.append({"const": 0, "description": "zero needs no unit"})
+            forms.append({"type": "number", "minimum": 0, "maximum": 0,
+                          "description": "zero needs no unit"})
         return {
             "description": f"{spec.expected[len('expected '):]}{bound}",
             "examples": examples,
