@@ -18,7 +18,7 @@ import uuid
 
 import requests
 
-from tests.faults.conftest import bearer, create_tokens, make_stack
+from tests.api.support import bearer
 from tests.faults.ledger import (
     batch_run_ids,
     finished_count,
@@ -27,6 +27,7 @@ from tests.faults.ledger import (
     unfinished_count,
 )
 from tests.faults.processes import kill_pid, wait_until
+from tests.faults.support import create_tokens, make_stack
 from tests.integration.worker_processes import pid_alive
 
 BATCH_SIZE = 1000

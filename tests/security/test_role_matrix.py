@@ -11,7 +11,7 @@ from __future__ import annotations
 
 import pytest
 
-from tests.security.conftest import bearer
+from tests.api.support import bearer
 
 ROLES = ("engineer", "reviewer", "auditor", "admin")
 EVERYONE = frozenset(ROLES)

@@ -14,7 +14,7 @@ import re
 from sqlalchemy import inspect as sa_inspect
 from sqlalchemy import text
 
-from tests.security.conftest import bearer
+from tests.api.support import bearer
 
 
 def _all_stored_text(store) -> str:

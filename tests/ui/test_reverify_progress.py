@@ -7,7 +7,6 @@ from click.testing import CliRunner
 from service.cli import main
 from service.runs import create_run, execute_run
 from service.store import default_store
-from tests.api.conftest import controlled_engine, data_dir, migrated_template  # noqa: F401
 from tests.api.support import make_case
 
 

@@ -90,7 +90,7 @@ def _sphere_series(phi: np.ndarray) -> np.ndarray:
 
     (The Laurent series of coth, Abramowitz & Stegun 1964, 4.5.67, with 2^2k |B_2k| / (2k)! =
     2 zeta(2k) / pi^2k, 23.2.16; equation numbers from memory, the series is checked against
-    mpmath in tests/unit/test_basis_functions.py.)
+    mpmath in tests/unit/worker/engine/test_basis_functions.py.)
     """
     total = np.zeros_like(phi)
     ratio_squared = (phi / np.pi) ** 2

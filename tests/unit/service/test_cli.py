@@ -11,7 +11,6 @@ from service.cli import main
 from service.store import default_store
 from service.store.models import Token
 from service.tokens import identify, token_digest
-from tests.api.conftest import controlled_engine, data_dir, migrated_template  # noqa: F401
 from tests.api.support import make_case
 
 

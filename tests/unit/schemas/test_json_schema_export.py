@@ -15,11 +15,10 @@ import pytest
 from jsonschema import Draft202012Validator
 from marshmallow import ValidationError
 
-from schemas import CaseError, validate_case
-from schemas import export
+from schemas import CaseError, export, validate_case
 from schemas.result import validate_result
 
-DEMO_CASES = sorted((Path(__file__).parents[2] / "demo" / "cases").glob("*.json"))
+DEMO_CASES = sorted((Path(__file__).parents[3] / "demo" / "cases").glob("*.json"))
 
 #: Invented: a solid sphere with first-order uptake, values in object form.
 SPHERE_STEADY = {
