@@ -18,7 +18,7 @@ from marshmallow import ValidationError
 
 from schemas.case import CaseSchema, SIValue, case_basis, case_rule_errors
 from schemas.errors import CaseError, flatten_messages
-from worker.units import si_unit
+from worker.engine.units import si_unit
 
 if TYPE_CHECKING:
     from worker.engine.model import Problem

@@ -22,7 +22,7 @@ from typing import Any
 
 from marshmallow import RAISE, Schema, ValidationError, fields, validate
 
-from worker.units import (
+from worker.engine.units import (
     KINDS,
     MAX_QUANTITY_STRING_LENGTH,
     MAX_UNIT_LENGTH,
@@ -117,7 +117,7 @@ class Quantity(_CheckedInDeserialize):
     Parameters
     ----------
     kind : str
-        A key of ``worker.units.KINDS``: the dimension expected.
+        A key of ``worker.engine.units.KINDS``: the dimension expected.
     minimum : float, optional
         Smallest SI value allowed; ``exclusive`` makes it a strict bound.
     bare_zero : bool

@@ -351,7 +351,8 @@ def _split(raw: Any, kind: Kind, path: str) -> tuple[decimal.Decimal, str, str]:
         if len(raw) > MAX_QUANTITY_STRING_LENGTH:
             raise UnitError(
                 path,
-                f"{kind.expected}, got a string longer than {MAX_QUANTITY_STRING_LENGTH} characters",
+                f"{kind.expected}, got a string longer than "
+                f"{MAX_QUANTITY_STRING_LENGTH} characters",
             )
         match = _QUANTITY_STRING_RE.match(raw)
         if match is None:
@@ -363,7 +364,8 @@ def _split(raw: Any, kind: Kind, path: str) -> tuple[decimal.Decimal, str, str]:
                 raise UnitError(path, f"{kind.expected}, got {shown}: the number is not finite")
             raise UnitError(
                 path,
-                f'{kind.expected}, got {shown}: "{number_text}" is not a number followed by a space',
+                f'{kind.expected}, got {shown}: "{number_text}" is not a number followed '
+                "by a space",
             )
         if not math.isfinite(float(number_text)):
             raise UnitError(path, f"{kind.expected}, got {shown}: the number is out of range")
