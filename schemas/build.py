@@ -12,31 +12,26 @@ from __future__ import annotations
 from collections.abc import Mapping
 from dataclasses import dataclass
 from types import MappingProxyType
-from typing import TYPE_CHECKING, Any
+from typing import Any
 
 from marshmallow import ValidationError
 
 from schemas.case import CaseSchema, SIValue, case_basis, case_rule_errors
 from schemas.errors import CaseError, flatten_messages
+from worker.engine import model
+from worker.engine.boundaries import BOUNDARIES
+from worker.engine.model import Problem
+from worker.engine.reactions import REACTIONS
 from worker.engine.units import si_unit
-
-if TYPE_CHECKING:
-    from worker.engine.model import Problem
 
 _CASE_SCHEMA = CaseSchema()
 
-#: Parameters of each reaction kind, in the order the normalised document lists them.
+#: Parameters of each reaction and boundary kind, in the order the normalised document lists them.
 _REACTION_PARAMETERS = {
-    "none": (),
-    "zero_order": ("rate",),
-    "first_order": ("rate_constant",),
-    "michaelis_menten": ("vmax", "km"),
+    name: tuple(p.name for p in kind.parameters) for name, kind in REACTIONS.items()
 }
 _BOUNDARY_PARAMETERS = {
-    "concentration": ("value", "partition"),
-    "flux": ("value",),
-    "mass_transfer": ("coefficient", "bulk", "partition"),
-    "symmetry": (),
+    name: tuple(p.name for p in kind.parameters) for name, kind in BOUNDARIES.items()
 }
 
 
@@ -144,12 +139,10 @@ def _number(obj: Mapping, key: str, default: float = 0.0) -> float:
 
 
 def _problem(data: Mapping, basis: str) -> Problem:
-    # Imported here: worker.engine's package may import this package in turn.
-    from worker.engine import model
-
     layers = []
     for index, layer in enumerate(data["layers"]):
         reaction = layer.get("reaction", {"kind": "none"})
+        parameters = _REACTION_PARAMETERS[reaction["kind"]]
         layers.append(
             model.Layer(
                 name=layer.get("name", f"layer {index + 1}"),
@@ -158,16 +151,13 @@ def _problem(data: Mapping, basis: str) -> Problem:
                 partition=float(layer.get("partition", 1.0)),
                 reaction=model.Reaction(
                     kind=reaction["kind"],
-                    rate=_number(reaction, "rate"),
-                    rate_constant=_number(reaction, "rate_constant"),
-                    vmax=_number(reaction, "vmax"),
-                    km=_number(reaction, "km"),
+                    **{key: _number(reaction, key) for key in parameters},
                 ),
                 initial=_number(layer, "initial"),
             )
         )
 
-    def boundary(face: Mapping):
+    def boundary(face: Mapping) -> model.Boundary:
         partition = face.get("partition")
         return model.Boundary(
             kind=face["kind"],
