@@ -138,6 +138,11 @@ def _number(obj: Mapping, key: str, default: float = 0.0) -> float:
     return item.value if isinstance(item, SIValue) else default
 
 
+def _optional_number(obj: Mapping, key: str) -> float | None:
+    item = obj.get(key)
+    return item.value if isinstance(item, SIValue) else None
+
+
 def _problem(data: Mapping, basis: str) -> Problem:
     layers = []
     for index, layer in enumerate(data["layers"]):
@@ -184,8 +189,8 @@ def _problem(data: Mapping, basis: str) -> Problem:
         outer_boundary=boundary(data["outer_boundary"]),
         regime=regime_model,
         probes=tuple(p.value for p in data.get("probes", [])),
-        length=_number(data, "length", None),
-        area=_number(data, "area", None),
+        length=_optional_number(data, "length"),
+        area=_optional_number(data, "area"),
         tolerances=MappingProxyType(dict(data.get("tolerances", {}))),
         basis=basis,
     )
@@ -211,8 +216,7 @@ def load_case(doc: Any) -> dict:
         errors = list(flatten_messages(exc.messages))
     errors.extend(case_rule_errors(data))
     if errors:
-        seen: set[tuple[str, str]] = set()
-        unique = [e for e in errors if not (e in seen or seen.add(e))]
+        unique = list(dict.fromkeys(errors))  # first occurrence of each, in order
         raise CaseError({"path": p, "message": m} for p, m in unique)
     return data
 

@@ -16,9 +16,9 @@ from __future__ import annotations
 
 import math
 import re
-from collections.abc import Iterator, Mapping
+from collections.abc import Iterable, Iterator, Mapping
 from dataclasses import dataclass
-from typing import Any
+from typing import Any, cast
 
 from marshmallow import RAISE, Schema, ValidationError, fields, validate
 
@@ -82,8 +82,9 @@ class WholeMatch(validate.Regexp):
     match makes both read ``^...$`` the same way.
     """
 
-    def __call__(self, value: str) -> str:
-        if not isinstance(value, str) or self.regex.fullmatch(value) is None:
+    def __call__(self, value: Any) -> Any:
+        pattern = cast("re.Pattern[str]", self.regex)  # built from a str
+        if not isinstance(value, str) or pattern.fullmatch(value) is None:
             raise ValidationError(self._format_error(value))
         return value
 
@@ -608,7 +609,7 @@ def _steady_level_rules(data: Mapping) -> Iterator[tuple[str, str]]:
         return
     if not all(isinstance(f, Mapping) for f in faces) or not isinstance(layers, list):
         return
-    if any(f.get("kind") in _LEVEL_SETTING_BOUNDARIES for f in faces):
+    if any(f.get("kind") in _LEVEL_SETTING_BOUNDARIES for f in faces if f is not None):
         return
     if any(isinstance(ly, Mapping) and _consumes(ly.get("reaction")) for ly in layers):
         return
@@ -676,7 +677,7 @@ def _probe_rules(data: Mapping) -> Iterator[tuple[str, str]]:
     thicknesses = [_value(ly, "thickness") for ly in layers]
     if any(t is None for t in thicknesses):
         return
-    outer = inner + sum(thicknesses)
+    outer = inner + sum(cast(list[float], thicknesses))
     for index, item in enumerate(data.get("probes") or []):
         if isinstance(item, SIValue) and not (inner <= item.value <= outer):
             yield (
@@ -713,6 +714,7 @@ def case_basis(data: Mapping) -> str:
 def _first_basis(data: Any) -> str | None:
     """The basis of the first basis-bearing value in document order (the order of
     ``iter_si_values``), searched no further than that value."""
+    items: Iterable[Any]
     if type(data) is dict or isinstance(data, Mapping):
         items = data.values()
     elif isinstance(data, list):

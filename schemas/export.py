@@ -20,7 +20,7 @@ import json
 import sys
 from collections.abc import Callable
 from pathlib import Path
-from typing import Any
+from typing import Any, cast
 
 from marshmallow import INCLUDE, RAISE, Schema, fields, validate
 
@@ -82,7 +82,7 @@ class _Converter:
         elif isinstance(field, ByKind):
             out = {"oneOf": [self.ref(cls) for cls in field.choices.values()]}
         elif isinstance(field, fields.Nested):
-            out = self.ref(field.nested)
+            out = self.ref(cast(type[Schema], field.nested))  # the case nests schema classes
         elif isinstance(field, fields.List):
             out = {"type": "array", "items": self.field(field.inner)}
         elif isinstance(field, fields.Dict):
@@ -143,7 +143,7 @@ class _Converter:
             choices = list(validator.choices)
             return {"const": choices[0]} if len(choices) == 1 else {"enum": choices}
         if isinstance(validator, WholeMatch):
-            return {"pattern": portable_end(validator.regex.pattern)}
+            return {"pattern": portable_end(cast(str, validator.regex.pattern))}
         if isinstance(validator, validate.Regexp):
             return {"pattern": validator.regex.pattern}
         return dict(getattr(validator, "json_schema", {}))

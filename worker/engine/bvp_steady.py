@@ -35,6 +35,8 @@ C(r_c) = 0 and J(r_c) = 0 (A.V. Hill, Proc. R. Soc. B 104 (1928) 39). Other depl
 
 from __future__ import annotations
 
+from typing import Any, cast
+
 import numpy as np
 from scipy.integrate import solve_bvp
 
@@ -234,7 +236,7 @@ def _continued(system: _LayeredSystem):
     smoothed = any(ly.reaction.law.depletes for ly in system.problem.layers)
     widths = ZERO_ORDER_CONTINUATION if smoothed else (None,)
     tol = BVP_SEARCH_TOLERANCE if smoothed else BVP_TOLERANCE
-    result = None
+    result: Any = None  # widths is never empty
     for eps in widths:
         if eps is not None:
             system.smoothing = eps * system.c_ref
@@ -375,7 +377,7 @@ def _solve_case(system: _LayeredSystem):
 
 
 def _front_inside(system: _LayeredSystem, result) -> bool:
-    layer = system.front[0]
+    layer = cast(tuple[int, str], system.front)[0]
     front = float(result.p[0]) * system.length
     return bool(system.edges[layer] < front < system.edges[layer + 1])
 
@@ -455,7 +457,8 @@ def solve_bvp_reference(problem: Problem) -> SteadySolution:
     success = result.status == 0
     message = f"{result.message} ({route})"
     if success and front is not None:
-        start, end = edges[system.front[0]], edges[system.front[0] + 1]
+        layer = cast(tuple[int, str], system.front)[0]  # a front was solved for
+        start, end = edges[layer], edges[layer + 1]
         if not start < front < end:
             success = False
             message = f"front {front:.6g} m outside its layer [{start:.6g}, {end:.6g}] m ({route})"

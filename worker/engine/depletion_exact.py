@@ -44,7 +44,7 @@ REFERENCE = ("A.V. Hill, Proc. R. Soc. B 104 (1928) 39; J. Crank, The Mathematic
 _EPS = np.finfo(float).eps
 
 
-def _t_minus_log1p(t: np.ndarray) -> np.ndarray:
+def _t_minus_log1p(t: np.ndarray | float) -> np.ndarray:
     """t - ln(1 + t) for t > -1, from its series sum_{k>=2} (-t)^k / k where |t| < 0.1."""
     t = np.asarray(t, dtype=float)
     small = np.clip(t, -0.1, 0.1)

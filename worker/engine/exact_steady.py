@@ -34,6 +34,7 @@ from __future__ import annotations
 
 import math
 from collections.abc import Sequence
+from typing import Any
 
 import numpy as np
 from scipy.linalg.lapack import dgesv
@@ -163,6 +164,7 @@ class _EdgeForms:
 
     def __init__(self, basis: LayerBasis, partition: float, columns: tuple[int | None, int],
                  evaluated: tuple[np.ndarray, ...] | None = None):
+        at_edges: tuple[tuple[Any, ...], ...]
         if evaluated is None:
             at_edges = (basis.edge_values(basis.inner_edge), basis.edge_values(basis.outer_edge))
         else:
@@ -306,9 +308,11 @@ def solve_linear(problem: Problem, *, consumption: bool = True,
              for i, basis in enumerate(bases)]
     samples = [None if sample_at is None or rule is None else _inside(basis, sample_at[i])
                for i, (basis, rule) in enumerate(zip(bases, rules, strict=True))]
-    evaluated = []
+    # Per layer: its evaluation at (edges, quadrature nodes, samples), or None when only the
+    # edges are wanted; then present exactly when the layer has a rule or samples.
+    evaluated: list[Any] = []
     for basis, rule, sample in zip(bases, rules, samples, strict=True):
-        parts = [(basis.inner_edge, basis.outer_edge)]
+        parts: list[Any] = [(basis.inner_edge, basis.outer_edge)]
         parts += [] if rule is None else [rule[0]]
         parts += [] if sample is None else [sample]
         evaluated.append(None if len(parts) == 1 else basis.evaluate(np.concatenate(parts)))
@@ -317,7 +321,8 @@ def solve_linear(problem: Problem, *, consumption: bool = True,
         return _failed(solved), []
     values, columns, forms, residual = solved
     diagnostics = {"relative_residual": residual, "unknowns": len(values)}
-    pieces, consumption, minima = [], 0.0 if want_consumption else math.nan, []
+    pieces, minima = [], []
+    total_consumption = 0.0 if want_consumption else math.nan
     presampled = {}
     for i, (basis, (col_a, col_b)) in enumerate(zip(bases, columns, strict=True)):
         partition = problem.layers[i].partition
@@ -325,13 +330,14 @@ def solve_linear(problem: Problem, *, consumption: bool = True,
         c2 = values[col_b]
         piece = _layer_piece(basis, partition, c1, c2)
         pieces.append(piece)
-        nodes = 0 if rules[i] is None else rules[i][0].size
+        rule = rules[i]
+        nodes = 0 if rule is None else rule[0].size
         if want_consumption:
             at_nodes = None
-            if rules[i] is not None:  # C at the quadrature nodes, as ``piece`` would give it
+            if rule is not None:  # C at the quadrature nodes, as ``piece`` would give it
                 g1, g2, part = (v[2 : 2 + nodes] for v in evaluated[i][:3])
                 at_nodes = partition * (c1 * g1 + c2 * g2) + part
-            consumption += _layer_consumption(problem, i, basis, rules[i], at_nodes)
+            total_consumption += _layer_consumption(problem, i, basis, rules[i], at_nodes)
         if samples[i] is not None:  # C and dC/dr at the sample positions, as ``piece`` gives
             g1, g2, part, dg1, dg2, dpart = (v[2 + nodes :] for v in evaluated[i])
             presampled[i] = (samples[i], partition * (c1 * g1 + c2 * g2) + part,
@@ -339,7 +345,9 @@ def solve_linear(problem: Problem, *, consumption: bool = True,
         minima.append(_zero_order_minimum(problem, i, basis, piece))
     profile = LayeredProfile(problem.edges, [ly.diffusivity for ly in problem.layers], pieces,
                              presampled)
-    success = residual <= RESIDUAL_LIMIT and (math.isfinite(consumption) or not want_consumption)
+    success = residual <= RESIDUAL_LIMIT and (
+        math.isfinite(total_consumption) or not want_consumption
+    )
     message = ("closed form by basis superposition" if success else
                f"relative residual {residual:.3g} exceeds {RESIDUAL_LIMIT:g}")
     solution = SteadySolution(
@@ -348,7 +356,7 @@ def solve_linear(problem: Problem, *, consumption: bool = True,
         profile_at=profile.profile_at,
         flux_inner=_apply(forms[0].flux[0], values),
         flux_outer=_apply(forms[-1].flux[1], values),
-        consumption=float(consumption), diagnostics=diagnostics)
+        consumption=float(total_consumption), diagnostics=diagnostics)
     return solution, minima
 
 

@@ -565,7 +565,10 @@ def layer_reaction_constants(problem: Problem) -> tuple[list[float], ...]:
     ValueError
         For a Michaelis-Menten layer with km <= 0 or an unknown reaction kind.
     """
-    first, vmax, km, zero = [], [], [], []
+    first: list[float] = []
+    vmax: list[float] = []
+    km: list[float] = []
+    zero: list[float] = []
     for j, layer in enumerate(problem.layers):
         values = _reaction_law(problem, j).fv_constants(layer.reaction, j)
         for per_layer, value in zip((first, vmax, km, zero), values, strict=True):
@@ -690,7 +693,7 @@ class NodalProfile:
         self.c = c
         self.flux_density = flux_density
         self._profiles = None
-        self._intervals = None
+        self._intervals: list[tuple[float, float]] = []
 
     @property
     def mesh(self) -> Mesh:
@@ -780,11 +783,11 @@ def default_cells_per_layer(problem: Problem) -> tuple[int, ...]:
     """Cells per layer by the rule documented at ``MIN_CELLS_PER_LAYER`` (module constants)."""
     n = problem.exponent
     edges = problem.edges
-    resistances = []
-    for j, layer in enumerate(problem.layers):
-        middle = 0.5 * (edges[j] + edges[j + 1])
-        resistances.append(layer.thickness / (layer.diffusivity * layer.partition * middle**n))
-    resistances = np.array(resistances)
+    resistances = np.array([
+        layer.thickness
+        / (layer.diffusivity * layer.partition * (0.5 * (edges[j] + edges[j + 1])) ** n)
+        for j, layer in enumerate(problem.layers)
+    ])
     shares = resistances / resistances.sum()
     c_scale = boundary_concentration_scale(problem)
     counts = []

@@ -29,6 +29,7 @@ from __future__ import annotations
 
 import dataclasses
 import math
+from typing import cast
 
 import numpy as np
 
@@ -101,7 +102,9 @@ def michaelis_menten_bracket(problem: Problem) -> tuple[SteadySolution, SteadySo
     validate_problem(problem)
     if not _applies(problem):
         return None
-    surface = {i: largest_surface_concentration(problem, i) for i in range(len(problem.layers))}
+    # a fed face exists (``_applies``), so every layer has a surface bound
+    surface = cast(dict[int, float], {i: largest_surface_concentration(problem, i)
+                                      for i in range(len(problem.layers))})
 
     def slow(i, layer):
         r = layer.reaction
@@ -127,6 +130,7 @@ def michaelis_menten_bracket(problem: Problem) -> tuple[SteadySolution, SteadySo
         upper, method=UPPER_METHOD, reference=f"{REFERENCE}; {upper.reference}",
         message="upper comparison solution of the Michaelis-Menten problem",
         diagnostics={**upper.diagnostics, "surface_bound": bounds})
+    parts: tuple[SteadySolution, ...]
     if lower_zero is None:
         method, parts = LOWER_METHOD_FIRST_ORDER_ONLY, (lower_linear,)
     else:
