@@ -2,12 +2,11 @@
 
 ``fluxproof check`` needs only the base install (numpy, scipy, pint, marshmallow, click); the
 other subcommands need the ``service`` extra (Flask, SQLAlchemy, Celery, ...). The group below
-follows click's documented lazy-loading pattern ("Lazily Loading Subcommands" in click's
-"Advanced Groups and Context" guide): it maps each command name to ``"module:attribute"`` and
-imports that module only when the command is run. This is the command line's plugin boundary;
-no command module is imported by this one. ``fluxproof --help`` lists the commands from the
-short help declared here, so it imports none of them; a unit test keeps each declared line
-equal to the command's own.
+follows the lazy-loading pattern click documents ("Lazily Loading Subcommands"): it maps each
+command name to ``"module:attribute"`` and imports that module only when the command is run.
+This is the command line's plugin boundary: no command module is imported by this one.
+``fluxproof --help`` lists the commands from the short help declared here, so it imports none
+of them; a unit test keeps each declared line equal to the command's own.
 """
 
 from __future__ import annotations
