@@ -13,7 +13,7 @@ from schemas import CaseError
 from service.cli import main
 from worker.engine import check_case
 
-DEMO = Path(__file__).parents[3] / "demo" / "cases"
+DEMO = Path(__file__).parents[3] / "service" / "demo_cases"
 RESULT_SCHEMA = json.loads(
     (Path(__file__).parents[3] / "schemas" / "json" / "result-v1.schema.json").read_text())
 
