@@ -42,9 +42,9 @@ def _kill_a_busy_pool_process(stack, node: str, store, batch_id: str) -> int:
         pool = stack.pool_pids(node)
         assert len(pool) == 1, f"{node} should have one pool process, has {pool}"
         kill_pid(pool[0])
-        wait_until(lambda: not pid_alive(pool[0]), 10, message=f"{node} pool process gone")
+        wait_until(lambda pid=pool[0]: not pid_alive(pid), 10, message=f"{node} pool process gone")
         try:
-            wait_until(lambda: len(WORKER_LOST.findall(stack.log(node))) > before, 10,
+            wait_until(lambda seen=before: len(WORKER_LOST.findall(stack.log(node))) > seen, 10,
                        message=f"{node} reporting the lost task")
             wait_until(lambda: len(stack.pool_pids(node)) == 1, 30,
                        message=f"{node} replacing its pool process")
