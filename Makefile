@@ -1,10 +1,10 @@
-# fluxproof — the README's two commands (demo, test) and the benchmarks.
+# fluxproof — the README's two commands (demo, test), the fast tests, the linters, the benchmarks.
 PYTHON ?= python3
 VENV   := .venv
 PY     := $(VENV)/bin/python
 STAMP  := $(VENV)/.installed
 
-.PHONY: demo test bench schemas clean browser
+.PHONY: demo test check lint lint-imports bench schemas clean browser
 
 $(STAMP): pyproject.toml
 	$(PYTHON) -m venv $(VENV)
@@ -21,7 +21,24 @@ browser:
 	@command -v chromium >/dev/null 2>&1 || { $(SUDO) apt-get update && \
 		$(SUDO) apt-get install -y chromium; }
 
-test: $(STAMP) browser
+# ruff (every file), mypy (the engine and the documents: [tool.mypy] in pyproject.toml) and, with
+# LINT_IMPORTS=1, the import-linter layer contracts ([tool.importlinter]). LINT_IMPORTS becomes 1
+# by default once the packages no longer import each other in a loop.
+LINT_IMPORTS ?= 0
+lint: $(STAMP)
+	$(VENV)/bin/ruff check .
+	$(VENV)/bin/mypy worker/engine schemas
+	@if [ "$(LINT_IMPORTS)" = 1 ]; then $(MAKE) --no-print-directory lint-imports; \
+	else echo "lint-imports skipped (LINT_IMPORTS=0; run make lint-imports)"; fi
+
+lint-imports: $(STAMP)
+	$(VENV)/bin/lint-imports
+
+# The fast tests: unit, reference, property and API (no integration, faults, UI, load, fuzz).
+check: $(STAMP)
+	$(PY) -m pytest tests/unit tests/reference tests/property tests/api -q
+
+test: $(STAMP) browser lint
 	$(PY) -m pytest
 
 bench: $(STAMP)

@@ -19,23 +19,19 @@ from marshmallow import ValidationError
 from schemas.case import CaseSchema, SIValue, case_basis, case_rule_errors
 from schemas.errors import CaseError, flatten_messages
 from worker.engine import model
+from worker.engine.boundaries import BOUNDARIES
 from worker.engine.model import Problem
-from worker.units import si_unit
+from worker.engine.reactions import REACTIONS
+from worker.engine.units import si_unit
 
 _CASE_SCHEMA = CaseSchema()
 
-#: Parameters of each reaction kind, in the order the normalised document lists them.
+#: Parameters of each reaction and boundary kind, in the order the normalised document lists them.
 _REACTION_PARAMETERS = {
-    "none": (),
-    "zero_order": ("rate",),
-    "first_order": ("rate_constant",),
-    "michaelis_menten": ("vmax", "km"),
+    name: tuple(p.name for p in kind.parameters) for name, kind in REACTIONS.items()
 }
 _BOUNDARY_PARAMETERS = {
-    "concentration": ("value", "partition"),
-    "flux": ("value",),
-    "mass_transfer": ("coefficient", "bulk", "partition"),
-    "symmetry": (),
+    name: tuple(p.name for p in kind.parameters) for name, kind in BOUNDARIES.items()
 }
 
 
@@ -142,10 +138,16 @@ def _number(obj: Mapping, key: str, default: float = 0.0) -> float:
     return item.value if isinstance(item, SIValue) else default
 
 
+def _optional_number(obj: Mapping, key: str) -> float | None:
+    item = obj.get(key)
+    return item.value if isinstance(item, SIValue) else None
+
+
 def _problem(data: Mapping, basis: str) -> Problem:
     layers = []
     for index, layer in enumerate(data["layers"]):
         reaction = layer.get("reaction", {"kind": "none"})
+        parameters = _REACTION_PARAMETERS[reaction["kind"]]
         layers.append(
             model.Layer(
                 name=layer.get("name", f"layer {index + 1}"),
@@ -154,16 +156,13 @@ def _problem(data: Mapping, basis: str) -> Problem:
                 partition=float(layer.get("partition", 1.0)),
                 reaction=model.Reaction(
                     kind=reaction["kind"],
-                    rate=_number(reaction, "rate"),
-                    rate_constant=_number(reaction, "rate_constant"),
-                    vmax=_number(reaction, "vmax"),
-                    km=_number(reaction, "km"),
+                    **{key: _number(reaction, key) for key in parameters},
                 ),
                 initial=_number(layer, "initial"),
             )
         )
 
-    def boundary(face: Mapping):
+    def boundary(face: Mapping) -> model.Boundary:
         partition = face.get("partition")
         return model.Boundary(
             kind=face["kind"],
@@ -190,8 +189,8 @@ def _problem(data: Mapping, basis: str) -> Problem:
         outer_boundary=boundary(data["outer_boundary"]),
         regime=regime_model,
         probes=tuple(p.value for p in data.get("probes", [])),
-        length=_number(data, "length", None),
-        area=_number(data, "area", None),
+        length=_optional_number(data, "length"),
+        area=_optional_number(data, "area"),
         tolerances=MappingProxyType(dict(data.get("tolerances", {}))),
         basis=basis,
     )
@@ -217,8 +216,7 @@ def load_case(doc: Any) -> dict:
         errors = list(flatten_messages(exc.messages))
     errors.extend(case_rule_errors(data))
     if errors:
-        seen: set[tuple[str, str]] = set()
-        unique = [e for e in errors if not (e in seen or seen.add(e))]
+        unique = list(dict.fromkeys(errors))  # first occurrence of each, in order
         raise CaseError({"path": p, "message": m} for p, m in unique)
     return data
 

@@ -16,13 +16,16 @@ from __future__ import annotations
 
 import math
 import re
-from collections.abc import Iterator, Mapping
+from collections.abc import Iterable, Iterator, Mapping
 from dataclasses import dataclass
-from typing import Any
+from typing import Any, cast
 
 from marshmallow import RAISE, Schema, ValidationError, fields, validate
 
-from worker.units import (
+from worker.engine.boundaries import BOUNDARIES, SYMMETRY, BoundaryKind
+from worker.engine.parameters import Parameter
+from worker.engine.reactions import REACTIONS, ReactionKind
+from worker.engine.units import (
     KINDS,
     MAX_QUANTITY_STRING_LENGTH,
     MAX_UNIT_LENGTH,
@@ -79,8 +82,9 @@ class WholeMatch(validate.Regexp):
     match makes both read ``^...$`` the same way.
     """
 
-    def __call__(self, value: str) -> str:
-        if not isinstance(value, str) or self.regex.fullmatch(value) is None:
+    def __call__(self, value: Any) -> Any:
+        pattern = cast("re.Pattern[str]", self.regex)  # built from a str
+        if not isinstance(value, str) or pattern.fullmatch(value) is None:
             raise ValidationError(self._format_error(value))
         return value
 
@@ -117,7 +121,7 @@ class Quantity(_CheckedInDeserialize):
     Parameters
     ----------
     kind : str
-        A key of ``worker.units.KINDS``: the dimension expected.
+        A key of ``worker.engine.units.KINDS``: the dimension expected.
     minimum : float, optional
         Smallest SI value allowed; ``exclusive`` makes it a strict bound.
     bare_zero : bool
@@ -199,7 +203,8 @@ class Quantity(_CheckedInDeserialize):
             },
         ]
         if self.bare_zero:
-            forms.append({"const": 0, "description": "zero needs no unit"})
+            forms.append({"type": "number", "minimum": 0, "maximum": 0,
+                          "description": "zero needs no unit"})
         return {
             "description": f"{spec.expected[len('expected '):]}{bound}",
             "examples": examples,
@@ -360,35 +365,39 @@ def _positive(kind: str, **kwargs: Any) -> Quantity:
     return Quantity(kind, minimum=0.0, exclusive=True, **kwargs)
 
 
-class NoReactionSchema(StrictSchema):
-    noun = "reaction 'none'"
-    kind = _kind_field("none")
+def _parameter_field(parameter: Parameter) -> fields.Field:
+    """The marshmallow field of one parameter a reaction or boundary kind declares."""
+    extra: dict[str, Any] = {"required": True} if parameter.required else {}
+    if parameter.dimension is None:
+        bounds = {
+            "any": None,
+            "non_negative": validate.Range(min=0.0),
+            "positive": validate.Range(min=0.0, min_inclusive=False),
+        }[parameter.sign]
+        return PlainNumber(validate=bounds, **extra) if bounds else PlainNumber(**extra)
+    if parameter.sign == "positive":
+        return _positive(parameter.dimension, **extra)
+    if parameter.sign == "non_negative":
+        return _non_negative(parameter.dimension, **extra)
+    return Quantity(parameter.dimension, **extra)
 
 
-class ZeroOrderSchema(StrictSchema):
-    noun = "a zero-order reaction"
-    kind = _kind_field("zero_order")
-    rate = _non_negative("volumetric_rate", required=True)
+def _kind_schema(kind: ReactionKind | BoundaryKind) -> type[Schema]:
+    """The strict schema of one kind: its ``kind`` string, then its parameters in order."""
+    name = f"{kind.schema_name}Schema"
+    attributes: dict[str, Any] = {
+        "__module__": __name__,
+        "__qualname__": name,
+        "noun": kind.noun,
+        "kind": _kind_field(kind.name),
+    }
+    attributes.update((p.name, _parameter_field(p)) for p in kind.parameters)
+    return type(name, (StrictSchema,), attributes)
 
 
-class FirstOrderSchema(StrictSchema):
-    noun = "a first-order reaction"
-    kind = _kind_field("first_order")
-    rate_constant = _non_negative("rate_constant", required=True)
-
-
-class MichaelisMentenSchema(StrictSchema):
-    noun = "a Michaelis-Menten reaction"
-    kind = _kind_field("michaelis_menten")
-    vmax = _non_negative("volumetric_rate", required=True)
-    km = _positive("concentration", required=True)
-
-
+#: One schema per reaction kind of ``worker.engine.reactions`` (``NoReactionSchema``...).
 REACTION_SCHEMAS: Mapping[str, type[Schema]] = {
-    "none": NoReactionSchema,
-    "zero_order": ZeroOrderSchema,
-    "first_order": FirstOrderSchema,
-    "michaelis_menten": MichaelisMentenSchema,
+    name: _kind_schema(kind) for name, kind in REACTIONS.items()
 }
 
 
@@ -418,37 +427,9 @@ class LayerSchema(StrictSchema):
     )
 
 
-class ConcentrationBoundarySchema(StrictSchema):
-    noun = "a concentration boundary"
-    kind = _kind_field("concentration")
-    value = _non_negative("concentration", required=True)
-    partition = PlainNumber(validate=validate.Range(min=0.0, min_inclusive=False))
-
-
-class FluxBoundarySchema(StrictSchema):
-    noun = "a flux boundary"
-    kind = _kind_field("flux")
-    value = Quantity("flux", required=True)
-
-
-class MassTransferBoundarySchema(StrictSchema):
-    noun = "a mass_transfer boundary"
-    kind = _kind_field("mass_transfer")
-    coefficient = _positive("velocity", required=True)
-    bulk = _non_negative("concentration", required=True)
-    partition = PlainNumber(validate=validate.Range(min=0.0, min_inclusive=False))
-
-
-class SymmetryBoundarySchema(StrictSchema):
-    noun = "a symmetry boundary"
-    kind = _kind_field("symmetry")
-
-
+#: One schema per boundary kind of ``worker.engine.boundaries`` (``FluxBoundarySchema``...).
 BOUNDARY_SCHEMAS: Mapping[str, type[Schema]] = {
-    "concentration": ConcentrationBoundarySchema,
-    "flux": FluxBoundarySchema,
-    "mass_transfer": MassTransferBoundarySchema,
-    "symmetry": SymmetryBoundarySchema,
+    name: _kind_schema(kind) for name, kind in BOUNDARIES.items()
 }
 
 
@@ -589,9 +570,14 @@ def _consumes(reaction: Any) -> bool:
     """True when the layer's reaction removes solute at some concentration."""
     if not isinstance(reaction, Mapping):
         return False
-    parameter = {"zero_order": "rate", "first_order": "rate_constant", "michaelis_menten": "vmax"}
-    key = parameter.get(reaction.get("kind"))
+    name = reaction.get("kind")
+    key = REACTIONS[name].consumption_parameter if name in _REACTION_NAMES else None
     return key is not None and (_value(reaction, key) or 0.0) > 0.0
+
+
+#: Kind names as tuples: a membership test that also takes an unhashable ``kind``.
+_REACTION_NAMES = tuple(REACTIONS)
+_LEVEL_SETTING_BOUNDARIES = tuple(name for name, kind in BOUNDARIES.items() if kind.sets_level)
 
 
 def _size_rules(data: Mapping) -> Iterator[tuple[str, str]]:
@@ -608,7 +594,7 @@ def _symmetry_rules(data: Mapping) -> Iterator[tuple[str, str]]:
     geometry, inner = data.get("geometry"), _value(data, "inner")
     boundary = data.get("inner_boundary")
     if geometry in RADIAL_GEOMETRIES and inner == 0.0 and isinstance(boundary, Mapping):
-        if boundary.get("kind") != "symmetry":
+        if boundary.get("kind") != SYMMETRY.name:
             yield (
                 "inner_boundary.kind",
                 f"the centre of a solid {geometry} (inner = 0) is a symmetry point: the inner "
@@ -624,7 +610,7 @@ def _steady_level_rules(data: Mapping) -> Iterator[tuple[str, str]]:
         return
     if not all(isinstance(f, Mapping) for f in faces) or not isinstance(layers, list):
         return
-    if any(f.get("kind") in ("concentration", "mass_transfer") for f in faces):
+    if any(f.get("kind") in _LEVEL_SETTING_BOUNDARIES for f in faces if f is not None):
         return
     if any(isinstance(ly, Mapping) and _consumes(ly.get("reaction")) for ly in layers):
         return
@@ -692,7 +678,7 @@ def _probe_rules(data: Mapping) -> Iterator[tuple[str, str]]:
     thicknesses = [_value(ly, "thickness") for ly in layers]
     if any(t is None for t in thicknesses):
         return
-    outer = inner + sum(thicknesses)
+    outer = inner + sum(cast(list[float], thicknesses))
     for index, item in enumerate(data.get("probes") or []):
         if isinstance(item, SIValue) and not (inner <= item.value <= outer):
             yield (
@@ -729,6 +715,7 @@ def case_basis(data: Mapping) -> str:
 def _first_basis(data: Any) -> str | None:
     """The basis of the first basis-bearing value in document order (the order of
     ``iter_si_values``), searched no further than that value."""
+    items: Iterable[Any]
     if type(data) is dict or isinstance(data, Mapping):
         items = data.values()
     elif isinstance(data, list):

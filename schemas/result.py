@@ -11,7 +11,15 @@ from __future__ import annotations
 import math
 from typing import Any
 
-from marshmallow import INCLUDE, Schema, ValidationError, fields, validate, validates_schema
+from marshmallow import (
+    INCLUDE,
+    Schema,
+    ValidationError,
+    fields,
+    post_dump,
+    validate,
+    validates_schema,
+)
 
 from schemas.case import PlainInteger, PlainNumber, StrictSchema, WholeMatch
 
@@ -79,10 +87,18 @@ def _numbers(**kwargs: Any) -> fields.List:
 
 
 class OpenSchema(Schema):
-    """Takes keys it does not know (solvers may add their own)."""
+    """Takes keys it does not know (solvers may add their own), and gives them back on dump."""
 
     class Meta:
         unknown = INCLUDE
+
+    @post_dump(pass_original=True)
+    def _keep_unknown(self, data: dict, original: Any, **kwargs: Any) -> dict:
+        if isinstance(original, dict):
+            for key, value in original.items():
+                if key not in self.fields:
+                    data[key] = value
+        return data
 
 
 class QuantitySchema(OpenSchema):

@@ -1,42 +1,25 @@
-"""Who may call what: the role matrix, and the bearer-token check before every API view.
+"""The roles, and the bearer-token check before every API view.
 
-``ROLE_MATRIX`` maps each API endpoint to the roles allowed to call it; ``PUBLIC`` is the set
-that needs no token. An endpoint missing from both is refused to everyone (fail closed).
+Each endpoint names its roles where it is declared (``service.api.declare``); the check reads
+them from the declaration attached to the view function, and ``service.api.ROLE_MATRIX`` is
+derived from the same declarations. A declaration with ``roles=None`` is public; a view
+without a declaration is refused to everyone (fail closed).
 Four-eyes (no sign-off by the identity that submitted the run) is enforced in
 ``service.signoffs``, because it depends on the run, not on the role.
 """
 
 from __future__ import annotations
 
-from collections.abc import Mapping
-from types import MappingProxyType
-
 from flask import current_app, g, request
 
 from service.errors import Forbidden, Unauthorized
 from service.tokens import Identity, identify
 
+ENGINEER = frozenset({"engineer"})
+REVIEWER = frozenset({"reviewer"})
+ADMIN = frozenset({"admin"})
+AUDITORS = frozenset({"auditor", "admin"})
 READERS = frozenset({"engineer", "reviewer", "auditor", "admin"})
-
-#: Endpoints that need no token.
-PUBLIC = frozenset({"api.health", "api.openapi"})
-
-#: Endpoint -> roles allowed. The single place where access is decided.
-ROLE_MATRIX: Mapping[str, frozenset[str]] = MappingProxyType({
-    "api.validate": frozenset({"engineer"}),
-    "api.create_case": frozenset({"engineer"}),
-    "api.list_cases": READERS,
-    "api.get_case": READERS,
-    "api.list_case_runs": READERS,
-    "api.create_run": frozenset({"engineer"}),
-    "api.get_run": READERS,
-    "api.get_run_report": READERS,
-    "api.create_signoff": frozenset({"reviewer"}),
-    "api.create_batch": frozenset({"admin"}),
-    "api.get_batch": READERS,
-    "api.list_audit": frozenset({"auditor", "admin"}),
-    "api.verify_audit": frozenset({"auditor", "admin"}),
-})
 
 BEARER_CHALLENGE = 'Bearer realm="fluxproof"'
 
@@ -52,7 +35,10 @@ def _bearer_token() -> str | None:
 def authenticate_request() -> None:
     """``before_request`` of the API blueprint: 401 without a valid token, 403 wrong role."""
     endpoint = request.endpoint
-    if endpoint is None or endpoint in PUBLIC:
+    if endpoint is None:
+        return  # no route matched: the 404 or 405 follows
+    declaration = getattr(current_app.view_functions.get(endpoint), "declaration", None)
+    if declaration is not None and declaration.roles is None:
         return
     token = _bearer_token()
     if token is None:
@@ -66,7 +52,7 @@ def authenticate_request() -> None:
                            errors=[{"path": "Authorization", "message": "invalid token"}],
                            headers={"WWW-Authenticate":
                                     BEARER_CHALLENGE + ', error="invalid_token"'})
-    allowed = ROLE_MATRIX.get(endpoint, frozenset())
+    allowed = frozenset() if declaration is None else declaration.roles
     if identity.role not in allowed:
         roles = ", ".join(sorted(allowed)) or "no role"
         raise Forbidden(f"The role {identity.role!r} may not do this; allowed: {roles}.",

@@ -3,16 +3,22 @@
 from __future__ import annotations
 
 import sys
+import time
 
 import click
 
-from service.store.models import ROLES
+from service.audit import verify_chain
+from service.batches import get_batch, start_batch
+from service.dispatch import make_dispatcher
+from service.errors import ValidationFailed
+from service.settings import dispatch_mode, settings_from_env
+from service.store import default_store
+from service.store.migrate import upgrade
+from service.store.models import FINISHED_STATES, ROLES
+from service.tokens import create_token, revoke_token
 
 
 def _store():
-    from service.store import default_store
-    from service.store.migrate import upgrade
-
     store = default_store()
     upgrade(store)
     return store
@@ -28,9 +34,6 @@ def token() -> None:
 @click.option("--name", required=True, help="The person's identity (used for four-eyes).")
 def token_create(role: str, name: str) -> None:
     """Create a token and print it once; only its SHA-256 is stored."""
-    from service.errors import ValidationFailed
-    from service.tokens import create_token
-
     try:
         token_id, secret = create_token(_store(), role=role, name=name)
     except ValidationFailed as exc:
@@ -43,8 +46,6 @@ def token_create(role: str, name: str) -> None:
 @click.argument("token_id")
 def token_revoke(token_id: str) -> None:
     """Revoke a token by its id."""
-    from service.tokens import revoke_token
-
     if not revoke_token(_store(), token_id):
         raise click.ClickException(f"no token with id {token_id!r}")
     click.echo(f"token {token_id} revoked")
@@ -58,8 +59,6 @@ def audit_group() -> None:
 @audit_group.command("verify")
 def audit_verify() -> None:
     """Recompute the hash chain; exit 1 naming the first broken event."""
-    from service.audit import verify_chain
-
     report = verify_chain(_store())
     if report.ok:
         click.echo(f"audit chain intact: {report.events} events")
@@ -82,12 +81,6 @@ def reverify(all_cases: bool, tag: str | None, wait: bool) -> None:
     finished batch ends with a summary, and the exit status is 1 when a run failed or a figure
     drifted.
     """
-    import time
-
-    from service.batches import get_batch, start_batch
-    from service.dispatch import make_dispatcher
-    from service.settings import dispatch_mode, settings_from_env
-
     if all_cases == bool(tag):
         raise click.UsageError("give exactly one of --all and --tag T")
     settings = settings_from_env()
@@ -114,11 +107,6 @@ def reverify(all_cases: bool, tag: str | None, wait: bool) -> None:
 
 def _follow_batch(store, batch_id: str, total: int, poll_s: float = 1.0) -> None:
     """A progress bar of finished runs, redrawn until the batch finishes."""
-    import time
-
-    from service.batches import get_batch
-    from service.store.models import FINISHED_STATES
-
     shown = 0
     with click.progressbar(length=total, label="re-verifying", show_pos=True,
                            file=sys.stderr) as bar:

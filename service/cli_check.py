@@ -7,6 +7,10 @@ import sys
 
 import click
 
+from schemas import CaseError
+from service.report_text import render_text
+from worker.engine import check_case
+
 EXIT_PASS, EXIT_FAIL, EXIT_INVALID = 0, 1, 2
 
 
@@ -27,9 +31,6 @@ def check(case_file: str, output_format: str) -> None:
     Results support, but do not replace, design verification testing and qualified,
     independent review; local regulations and licensed practice govern.
     """
-    from schemas import CaseError
-    from worker.engine import check_case
-
     try:
         with click.open_file(case_file, encoding="utf-8") as handle:
             text = handle.read()
@@ -54,7 +55,5 @@ def check(case_file: str, output_format: str) -> None:
     if output_format == "json":
         click.echo(json.dumps(record, indent=2, allow_nan=False))
     else:
-        from service.report_text import render_text
-
         click.echo(render_text(record, case))
     sys.exit(EXIT_PASS if record["verdict"] == "pass" else EXIT_FAIL)

@@ -2,10 +2,14 @@
 
 Starts the service in-process (SQLite in a fresh data directory, runs in the embedded thread
 pool, a Werkzeug server on a free port), creates an engineer and a reviewer token, submits every
-``demo/cases/*.json`` with :class:`service.client.Client`, waits for the records, has the
-reviewer sign off the runs that passed (four-eyes: a different identity from the submitter),
-verifies the audit chain, prints a verdict table and writes each HTML report to
-``demo/reports/``. Exit 1 only if a run ends ``failed`` or the HTTP path breaks.
+demo case with :class:`service.client.Client`, waits for the records, has the reviewer sign off
+the runs that passed (four-eyes: a different identity from the submitter), verifies the audit
+chain, prints a verdict table and writes each HTML report to ``var/demo-reports/`` under the
+working directory. Exit 1 only if a run ends ``failed`` or the HTTP path breaks.
+
+The demo cases are package data (``service/demo_cases/*.json``, read with
+:mod:`importlib.resources`), so an installed package has its demo. They are invented
+demonstrations, never test check values.
 """
 
 from __future__ import annotations
@@ -14,25 +18,43 @@ import json
 import logging
 import re
 import tempfile
+from importlib import resources
+from importlib.resources.abc import Traversable
 from pathlib import Path
 from typing import Any
 
 import click
 
+from service.app import create_app, shutdown_app
+from service.audit import verify_chain
+from service.client import ApiError, Client
+from service.server import BackgroundServer
+from service.settings import database_url
+from service.store import Store
+from service.tokens import create_token
+
 CAUTION_LINE = ("Caution: these results support, but do not replace, design verification "
                 "testing and qualified independent review; local regulations and licensed "
                 "practice govern.")
 ENGINEER, REVIEWER = "demo.engineer", "demo.reviewer"
-REPO_ROOT = Path(__file__).resolve().parents[1]
+DEFAULT_REPORTS_DIR = Path("var") / "demo-reports"
 
 
-def _default_dir(name: str) -> Path:
-    local = Path("demo") / name
-    return local if Path("demo/cases").is_dir() else REPO_ROOT / "demo" / name
+def packaged_cases() -> Traversable:
+    """The demo cases shipped in the package (``service/demo_cases/``)."""
+    return resources.files("service") / "demo_cases"
 
 
-def _slug(path: Path) -> str:
-    return re.sub(r"[^A-Za-z0-9_.-]+", "-", path.stem)
+def case_files(cases_dir: Traversable) -> list[Traversable]:
+    """The ``*.json`` files of a case directory, by name; none when it is not a directory."""
+    if not cases_dir.is_dir():
+        return []
+    return sorted((entry for entry in cases_dir.iterdir() if entry.name.endswith(".json")),
+                  key=lambda entry: entry.name)
+
+
+def _slug(path: Traversable) -> str:
+    return re.sub(r"[^A-Za-z0-9_.-]+", "-", path.name.removesuffix(".json"))
 
 
 def _figure(record: dict[str, Any]) -> str:
@@ -54,15 +76,11 @@ def _table(rows: list[list[str]], headers: list[str]) -> str:
     return "\n".join(out)
 
 
-def run_demo(cases_dir: Path, reports_dir: Path, data_dir: Path, echo=click.echo) -> int:
+def run_demo(cases_dir: Traversable, reports_dir: Path, data_dir: Path,
+             echo=click.echo) -> int:
     """Run the demonstration; return the exit status (0, or 1 when a run failed)."""
-    from service.app import create_app, shutdown_app
-    from service.client import ApiError, Client
-    from service.server import BackgroundServer
-    from service.tokens import create_token
-
-    case_files = sorted(cases_dir.glob("*.json"))
-    if not case_files:
+    paths = case_files(cases_dir)
+    if not paths:
         echo(f"no demo cases found in {cases_dir}", err=True)
         return 1
     app = create_app({"DATA_DIR": str(data_dir), "DATABASE_URL": None, "BROKER_URL": None,
@@ -81,9 +99,8 @@ def run_demo(cases_dir: Path, reports_dir: Path, data_dir: Path, echo=click.echo
             engineer = Client(server.url, engineer_token)
             reviewer = Client(server.url, reviewer_token)
             submitted = []
-            for path in case_files:
-                with path.open(encoding="utf-8") as handle:
-                    case = json.load(handle)
+            for path in paths:
+                case = json.loads(path.read_text(encoding="utf-8"))
                 submitted.append((path, case, engineer.submit(case)))
             for path, case, run_id in submitted:
                 record = engineer.wait(run_id, timeout=300)
@@ -97,7 +114,7 @@ def run_demo(cases_dir: Path, reports_dir: Path, data_dir: Path, echo=click.echo
                                      "demo: every check passed; approved for the demonstration")
                 report_path = reports_dir / f"{_slug(path)}.html"
                 report_path.write_text(engineer.report(run_id), encoding="utf-8")
-                rows.append([str(case.get("title", path.stem))[:60], case.get("geometry", "?"),
+                rows.append([str(case.get("title", _slug(path)))[:60], case.get("geometry", "?"),
                              record.get("verdict") if record["status"] == "succeeded"
                              else "RUN FAILED", _figure(record),
                              f"{passed}/{len(checks)}", str(len(record.get("warnings") or []))])
@@ -108,10 +125,6 @@ def run_demo(cases_dir: Path, reports_dir: Path, data_dir: Path, echo=click.echo
         return 1
     finally:
         shutdown_app(app)
-    from service.audit import verify_chain
-    from service.settings import database_url
-    from service.store import Store
-
     echo("")
     echo(_table(rows, ["case", "geometry", "verdict", "key figure", "checks passed",
                        "warnings"]))
@@ -136,18 +149,18 @@ def run_demo(cases_dir: Path, reports_dir: Path, data_dir: Path, echo=click.echo
 
 @click.command("demo")
 @click.option("--cases", "cases_dir", type=click.Path(file_okay=False, path_type=Path),
-              default=None, help="Directory of case files (default: demo/cases).")
+              default=None, help="Directory of case files (default: the packaged demo cases).")
 @click.option("--reports", "reports_dir", type=click.Path(file_okay=False, path_type=Path),
-              default=None, help="Where to write the HTML reports (default: demo/reports).")
+              default=None, help="Where to write the HTML reports (default: var/demo-reports).")
 @click.option("--data-dir", type=click.Path(file_okay=False, path_type=Path), default=None,
               help="Keep the demo's store here (default: a temporary directory).")
 def demo(cases_dir: Path | None, reports_dir: Path | None, data_dir: Path | None) -> None:
     """Start the embedded service, submit the demo cases over HTTP, print the verdicts."""
-    cases_dir = cases_dir or _default_dir("cases")
-    reports_dir = reports_dir or _default_dir("reports")
+    cases: Traversable = cases_dir if cases_dir is not None else packaged_cases()
+    reports_dir = reports_dir or DEFAULT_REPORTS_DIR
     if data_dir is not None:
-        status = run_demo(cases_dir, reports_dir, data_dir)
+        status = run_demo(cases, reports_dir, data_dir)
     else:
         with tempfile.TemporaryDirectory(prefix="fluxproof-demo-") as temporary:
-            status = run_demo(cases_dir, reports_dir, Path(temporary))
+            status = run_demo(cases, reports_dir, Path(temporary))
     raise SystemExit(status)

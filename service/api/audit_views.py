@@ -2,22 +2,26 @@
 
 from __future__ import annotations
 
-from flask import jsonify
+from typing import Any
 
 from service import audit
 from service.api import api
-from service.api.bodies import AuditQuerySchema
-from service.api.context import query_args, services
+from service.api.bodies import AuditPageSchema, AuditQuerySchema, AuditVerifySchema
+from service.api.context import services
+from service.api.declare import Returns, declare
+from service.auth import AUDITORS
 
 
-@api.get("/audit")
-def list_audit():
-    args = query_args(AuditQuerySchema())
-    return jsonify(audit.list_events(services().store, limit=args["limit"],
-                                     offset=args["offset"], kind=args.get("kind"),
-                                     subject=args.get("subject")))
+@declare(api, "get", "/audit", summary="The hash-chained audit trail, in order",
+         roles=AUDITORS, query=AuditQuerySchema,
+         responses={200: Returns("A page of events", AuditPageSchema)})
+def list_audit(query: dict[str, Any]):
+    return audit.list_events(services().store, limit=query["limit"], offset=query["offset"],
+                             kind=query.get("kind"), subject=query.get("subject"))
 
 
-@api.get("/audit/verify")
+@declare(api, "get", "/audit/verify",
+         summary="Recompute the chain; name the first broken event", roles=AUDITORS,
+         responses={200: Returns("Verification result", AuditVerifySchema)})
 def verify_audit():
-    return jsonify(audit.verify_chain(services().store).to_dict())
+    return audit.verify_chain(services().store).to_dict()

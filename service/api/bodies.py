@@ -1,7 +1,8 @@
 """Marshmallow schemas of the API's own request and response bodies.
 
 The case and the result document are the project's schemas (``schemas/``); these describe what
-the service wraps around them. They validate incoming bodies (unknown fields are refused) and
+the service wraps around them. Request schemas load incoming bodies (unknown fields are
+refused); response schemas dump what the views return (``service.api.declare``), and both
 feed the OpenAPI document.
 """
 
@@ -11,6 +12,9 @@ from typing import Any
 
 from marshmallow import INCLUDE, RAISE, Schema, ValidationError, fields, validate, validates_schema
 
+from schemas.case import CaseSchema, WholeMatch
+from schemas.errors import flatten_messages
+from schemas.result import SHA256_PATTERN, ResultSchema
 from service.errors import ValidationFailed
 from service.store.models import DECISIONS, RUN_STATES
 
@@ -28,7 +32,9 @@ class RunRequestSchema(StrictSchema):
 
     case_id = fields.String(validate=validate.Length(min=1, max=36),
                             metadata={"description": "id of a stored case"})
-    case = fields.Dict(metadata={"description": "a case document (schema_version 1)"})
+    # Loaded as a plain object here; runs.create_run validates it as a case (422 naming paths).
+    case = fields.Dict(metadata={"description": "a case document (schema_version 1)",
+                                 "documented_as": CaseSchema})
 
     @validates_schema
     def _exactly_one(self, data: dict[str, Any], **_kwargs: Any) -> None:
@@ -72,7 +78,7 @@ class AuditQuerySchema(PageQuerySchema):
     subject = fields.String(validate=validate.Length(min=1, max=200))
 
 
-# --- responses (documentation) -------------------------------------------------------------
+# --- responses -------------------------------------------------------------
 
 class ErrorItemSchema(Schema):
     path = fields.String(required=True, metadata={"description": "dotted path of the field"})
@@ -153,6 +159,18 @@ class RunSummarySchema(Schema):
     started_at = fields.String(allow_none=True)
     finished_at = fields.String(allow_none=True)
     signoffs = fields.List(fields.Nested(SignoffSchema), required=True)
+
+
+class RecordSchema(ResultSchema, RunSummarySchema):
+    """The check record: the result document with the run's own fields; while the run is
+    queued or running only the run fields are present."""
+
+    class Meta:
+        unknown = RAISE
+
+    run_id = fields.String(required=True)
+    case_id = fields.String(required=True)
+    case_sha256 = fields.String(validate=WholeMatch(SHA256_PATTERN))
 
 
 class CaseRunsSchema(Schema):
@@ -238,8 +256,6 @@ class AuditVerifySchema(Schema):
 
 def flatten_errors(messages: Any) -> list[dict[str, str]]:
     """Turn marshmallow's nested messages into ``[{path, message}]`` (the case schema's paths)."""
-    from schemas.errors import flatten_messages
-
     found = []
     for path, message in flatten_messages(messages):
         if message == "Unknown field.":

@@ -2,38 +2,49 @@
 
 from __future__ import annotations
 
-from flask import jsonify
+from typing import Any
 
+from schemas.case import CaseSchema
 from service import cases
 from service.api import api
-from service.api.bodies import CaseListQuerySchema
-from service.api.context import query_args, services
-from service.auth import current_identity
-from service.jsonbody import json_object_body
+from service.api.bodies import (
+    CaseCreatedSchema,
+    CaseListQuerySchema,
+    CasePageSchema,
+    CaseRunsSchema,
+    StoredCaseSchema,
+)
+from service.api.context import services
+from service.api.declare import Reply, Returns, declare
+from service.auth import ENGINEER, READERS, current_identity
 
 
-@api.post("/cases")
-def create_case():
-    stored, created = cases.store_case(services().store, json_object_body(),
-                                       current_identity().name)
-    response = jsonify(stored)
-    response.status_code = 201 if created else 200
-    response.headers["Location"] = f"/v1/cases/{stored['case_id']}"
-    return response
+@declare(api, "post", "/cases", summary="Store a case (content-addressed)", roles=ENGINEER,
+         request=CaseSchema, request_loaded=False,
+         responses={201: Returns("Stored", CaseCreatedSchema,
+                                 headers={"Location": "URL of the case"}),
+                    200: Returns("The same content was stored already", CaseCreatedSchema,
+                                 headers={"Location": "URL of the case"})})
+def create_case(body: dict[str, Any]):
+    stored, created = cases.store_case(services().store, body, current_identity().name)
+    return Reply(stored, 201 if created else 200,
+                 {"Location": f"/v1/cases/{stored['case_id']}"})
 
 
-@api.get("/cases")
-def list_cases():
-    args = query_args(CaseListQuerySchema())
-    return jsonify(cases.list_cases(services().store, limit=args["limit"],
-                                    offset=args["offset"], tag=args.get("tag")))
+@declare(api, "get", "/cases", summary="List stored cases, newest first", roles=READERS,
+         query=CaseListQuerySchema, responses={200: Returns("A page of cases", CasePageSchema)})
+def list_cases(query: dict[str, Any]):
+    return cases.list_cases(services().store, limit=query["limit"], offset=query["offset"],
+                            tag=query.get("tag"))
 
 
-@api.get("/cases/<case_id>")
+@declare(api, "get", "/cases/<case_id>", summary="Read one stored case", roles=READERS,
+         responses={200: Returns("The case", StoredCaseSchema)})
 def get_case(case_id: str):
-    return jsonify(cases.get_case(services().store, case_id))
+    return cases.get_case(services().store, case_id)
 
 
-@api.get("/cases/<case_id>/runs")
+@declare(api, "get", "/cases/<case_id>/runs", summary="Every run of one case, newest first",
+         roles=READERS, responses={200: Returns("The case's runs", CaseRunsSchema)})
 def list_case_runs(case_id: str):
-    return jsonify(cases.case_history(services().store, case_id))
+    return cases.case_history(services().store, case_id)

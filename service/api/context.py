@@ -5,9 +5,8 @@ from __future__ import annotations
 from dataclasses import dataclass
 from typing import Any
 
-from flask import current_app, request
+from flask import current_app
 
-from service.api.bodies import load_or_422
 from service.dispatch import Dispatcher
 from service.store import Store
 
@@ -21,8 +20,3 @@ class Services:
 
 def services() -> Services:
     return current_app.extensions["fluxproof"]
-
-
-def query_args(schema: Any) -> dict[str, Any]:
-    """Validate the query string with ``schema`` (unknown parameters are refused: 422)."""
-    return load_or_422(schema, request.args.to_dict(), "query string")

@@ -2,17 +2,23 @@
 
 from __future__ import annotations
 
-from flask import jsonify
+from typing import Any
 
+from schemas.case import CaseSchema
 from service import __version__
 from service.api import api
+from service.api.bodies import HealthSchema
 from service.api.context import services
+from service.api.declare import Raw, Returns, declare
+from service.api.openapi import openapi_document
+from service.auth import ENGINEER
 from service.cases import validate_document
 from service.errors import ServiceUnavailable
-from service.jsonbody import json_object_body
 
 
-@api.get("/health")
+@declare(api, "get", "/health", summary="Service, store and broker state", roles=None,
+         responses={200: Returns("All parts reachable", HealthSchema)},
+         problems={503: "The store or the broker is unreachable"})
 def health():
     svc = services()
     try:
@@ -26,17 +32,19 @@ def health():
     if store_state["state"] != "ok" or broker_state["state"] != "ok":
         body["service"] = "degraded"
         raise ServiceUnavailable("The store or the broker cannot be reached.", extra=body)
-    return jsonify(body)
+    return body
 
 
-@api.get("/openapi.json")
+@declare(api, "get", "/openapi.json", summary="This OpenAPI document", roles=None,
+         responses={200: Returns("OpenAPI 3.1 document",
+                                 Raw("application/json", {"type": "object"}))})
 def openapi():
-    from service.openapi import openapi_document
-
-    return jsonify(openapi_document())
+    return openapi_document()
 
 
-@api.post("/validate")
-def validate():
-    validated = validate_document(json_object_body())
-    return jsonify(validated.normalised)
+@declare(api, "post", "/validate", summary="Validate a case and return it normalised to SI",
+         roles=ENGINEER, request=CaseSchema, request_loaded=False,
+         responses={200: Returns("The normalised case (SI)",
+                                 Raw("application/json", {"type": "object"}))})
+def validate(body: dict[str, Any]):
+    return validate_document(body).normalised

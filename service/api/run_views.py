@@ -2,46 +2,57 @@
 
 from __future__ import annotations
 
-from flask import jsonify
+from typing import Any
 
 from service import runs, signoffs
 from service.api import api
-from service.api.bodies import RunRequestSchema, SignoffRequestSchema, load_or_422
+from service.api.bodies import (
+    RecordSchema,
+    RunAcceptedSchema,
+    RunRequestSchema,
+    SignoffCreatedSchema,
+    SignoffRequestSchema,
+)
 from service.api.context import services
-from service.auth import current_identity
-from service.jsonbody import json_object_body
+from service.api.declare import Raw, Reply, Returns, declare
+from service.auth import ENGINEER, READERS, REVIEWER, current_identity
 from service.report import render_report
 
 
-@api.post("/runs")
-def create_run():
-    body = load_or_422(RunRequestSchema(), json_object_body(), "run request")
+@declare(api, "post", "/runs", summary="Queue a check of a stored or a new case",
+         roles=ENGINEER, request=RunRequestSchema, request_name="run request",
+         responses={202: Returns("Queued; poll the Location", RunAcceptedSchema,
+                                 headers={"Location": "URL to poll"})},
+         problems={503: "The broker is unreachable (the runs stay queued)"})
+def create_run(body: dict[str, Any]):
     svc = services()
     accepted = runs.create_run(svc.store, actor=current_identity().name,
                                case_id=body.get("case_id"), document=body.get("case"))
     svc.dispatcher.send([accepted["run_id"]])  # after the commit in create_run
-    response = jsonify(accepted)
-    response.status_code = 202
-    response.headers["Location"] = f"/v1/runs/{accepted['run_id']}"
-    return response
+    return Reply(accepted, 202, {"Location": f"/v1/runs/{accepted['run_id']}"})
 
 
-@api.get("/runs/<run_id>")
+@declare(api, "get", "/runs/<run_id>", summary="The check record of one run", roles=READERS,
+         responses={200: Returns("The record: result document and run fields", RecordSchema)})
 def get_run(run_id: str):
-    return jsonify(runs.get_record(services().store, run_id))
+    return runs.get_record(services().store, run_id)
 
 
-@api.get("/runs/<run_id>/report")
+@declare(api, "get", "/runs/<run_id>/report", summary="The check record as an HTML report",
+         roles=READERS,
+         responses={200: Returns("HTML report", Raw("text/html", {"type": "string"}))})
 def get_run_report(run_id: str):
     record, document = runs.get_run_and_case(services().store, run_id)
-    return render_report(record, document), 200, {"Content-Type": "text/html; charset=utf-8"}
+    return render_report(record, document)
 
 
-@api.post("/runs/<run_id>/signoffs")
-def create_signoff(run_id: str):
-    body = load_or_422(SignoffRequestSchema(), json_object_body(), "sign-off")
-    result = signoffs.sign_off(services().store, run_id, current_identity(),
-                               decision=body["decision"], comment=body["comment"])
-    response = jsonify(result)
-    response.status_code = 201
-    return response
+@declare(api, "post", "/runs/<run_id>/signoffs",
+         summary="Sign off a succeeded run (four-eyes: never its submitter)", roles=REVIEWER,
+         request=SignoffRequestSchema, request_name="sign-off",
+         responses={201: Returns("Recorded; the record is now sealed", SignoffCreatedSchema)},
+         problems={403: "The token's role may not do this, or four-eyes: the reviewer "
+                        "submitted the run",
+                   409: "The run is not succeeded, or is already signed off"})
+def create_signoff(run_id: str, body: dict[str, Any]):
+    return Reply(signoffs.sign_off(services().store, run_id, current_identity(),
+                                   decision=body["decision"], comment=body["comment"]), 201)

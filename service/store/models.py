@@ -1,7 +1,7 @@
 """ORM models of the store (SQLAlchemy 2 declarative, typed).
 
 The schema itself is created and changed only by the Alembic migrations in ``migrations/``;
-these classes must match them (``tests/unit/test_service_store.py`` compares the two).
+these classes must match them (``tests/unit/service/store/test_store.py`` compares the two).
 """
 
 from __future__ import annotations

@@ -3,7 +3,7 @@
 The session (Flask's signed cookie) holds the token's id and the time of sign-in, never the
 token itself. Every request re-reads the token's row, so a revoked token ends its sessions at
 once, and a session older than :data:`SESSION_SECONDS` must sign in again. Which role may open
-which page comes from the API's :data:`service.auth.ROLE_MATRIX`, so the two never disagree.
+which page comes from the API's :data:`service.api.ROLE_MATRIX`, so the two never disagree.
 """
 
 from __future__ import annotations
@@ -16,7 +16,7 @@ from urllib.parse import quote
 
 from flask import current_app, g, redirect, request, session, url_for
 
-from service.auth import ROLE_MATRIX
+from service.api import ROLE_MATRIX
 from service.errors import Forbidden
 from service.store.models import Token
 from service.tokens import Identity, identify

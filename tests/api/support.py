@@ -1,4 +1,4 @@
-"""Helpers shared by the service's API and unit tests (fixtures live in ``conftest.py``)."""
+"""Helpers shared by the service tests of every folder (fixtures live in ``tests/conftest.py``)."""
 
 from __future__ import annotations
 
@@ -121,3 +121,30 @@ def fresh_app(tmp_path: Path, monkeypatch, **overrides: Any):
     yield app
     shutdown_app(app)
     reset_default_store()
+
+
+# With this set (e.g. ``postgresql+psycopg://postgres@127.0.0.1:5432/test``) the API tests run on
+# that database instead of a SQLite copy: migrated once, every table emptied before each test.
+TEST_DATABASE_URL = os.environ.get("FLUXPROOF_TEST_DATABASE_URL")
+
+
+def empty_database(url: str) -> None:
+    """Migrate the database at ``url`` and empty every table, the audit head back at genesis."""
+    from sqlalchemy import text
+
+    from service.audit import GENESIS_HASH
+    from service.store import Store
+    from service.store.migrate import upgrade
+    from service.store.models import Base
+
+    store = Store(url)
+    try:
+        upgrade(store)
+        with store.engine.begin() as connection:
+            for table in reversed(Base.metadata.sorted_tables):
+                if table.name != "audit_head":
+                    connection.execute(table.delete())
+            connection.execute(text("UPDATE audit_head SET seq = 0, hash = :h"),
+                               {"h": GENESIS_HASH})
+    finally:
+        store.dispose()

@@ -6,7 +6,7 @@ import re
 
 from openapi_spec_validator import validate
 
-from service.auth import PUBLIC, ROLE_MATRIX
+from service.api import PUBLIC, ROLE_MATRIX
 
 
 def test_document_is_valid_openapi_31(client):
@@ -85,3 +85,31 @@ def test_served_records_and_problems_match_their_documented_schemas(client, toke
     assert list(_validator_for(document, "Problem").iter_errors(problem.get_json())) == []
     bad_record = {**record.get_json(), "unexpected": 1}
     assert list(_validator_for(document, "Record").iter_errors(bad_record))  # can fail
+
+
+def _as_components(node):
+    """The exported file's ``#/$defs/XSchema`` references as OpenAPI component references."""
+    if isinstance(node, dict):
+        return {key: (value.replace("#/$defs/", "#/components/schemas/").removesuffix("Schema")
+                      if key == "$ref" else _as_components(value)) for key, value in node.items()}
+    if isinstance(node, list):
+        return [_as_components(item) for item in node]
+    return node
+
+
+def test_the_case_component_is_the_exported_case_schema(client):
+    """One converter: the document's Case and its parts are the exported JSON Schema file's."""
+    import json
+
+    from schemas import export
+
+    exported = json.loads((export.JSON_DIR / "case-v1.schema.json").read_text(encoding="utf-8"))
+    components = client.get("/v1/openapi.json").get_json()["components"]["schemas"]
+    case = components["Case"]
+    for key in ("properties", "required", "additionalProperties"):
+        assert case[key] == _as_components(exported[key]), key
+    for name, definition in exported["$defs"].items():
+        assert components[name.removesuffix("Schema")] == _as_components(definition), name
+    changed = _as_components(exported["properties"])
+    changed["geometry"] = {"type": "string"}
+    assert case["properties"] != changed  # the comparison can fail

@@ -8,7 +8,7 @@ from __future__ import annotations
 
 import pytest
 
-from service.auth import PUBLIC, ROLE_MATRIX
+from service.api import PUBLIC, ROLE_MATRIX
 from tests.api.support import bearer, make_case
 
 ROLES = ("engineer", "reviewer", "auditor", "admin")

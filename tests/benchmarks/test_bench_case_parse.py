@@ -15,7 +15,7 @@ import time
 
 from schemas import validate_case
 from schemas.build import load_case
-from worker import units
+from worker.engine import units
 
 #: The example case of the design document (an invented scenario).
 EXAMPLE_CASE = {

@@ -3,7 +3,8 @@
 (a) Batch re-verification of 2,000 stored, distinct, steady cases through Redis and two worker
     processes (one pool process each; this machine has 2 cores), measured from the batch's
     start to the batch closed (its row finished, drift stored), polled every 0.1 s with one
-    cheap status read so that the polling does not take CPU from the workers. Three passes in one run, side by side: the default
+    cheap status read so that the polling does not take CPU from the workers. Three passes in
+    one run, side by side: the default
     ``FLUXPROOF_WORKER_PREFETCH_MULTIPLIER`` with no earlier records (no drift to compare), then
     the earlier setting (prefetch 1) and the default again, both comparing every case with
     the records before them, as the nightly batch does. Printed: cases/s end to end (target

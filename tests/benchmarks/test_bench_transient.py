@@ -117,7 +117,7 @@ def test_bench_transient_release_against_fipy():
     cheapest = {TOLERANCE: None, LOOSE_TOLERANCE: None}
     for cells in MESHES:
         for steps in STEPS_PER_OUTPUT:
-            release, seconds = _timed(lambda cells=cells, steps=steps: _fipy_release(cells, steps))
+            release, seconds = _timed(lambda c=cells, s=steps: _fipy_release(c, s))
             error = abs(release[-1] - converged)
             print(f"  FiPy mesh {cells}, {steps * len(TIMES)} steps: error {error:.2e}, "
                   f"{seconds:.3f} s")
@@ -131,7 +131,7 @@ def test_bench_transient_release_against_fipy():
             print(f"tolerance {tolerance:g}: no FiPy configuration tried reached it")
             continue
         cells, steps, _, error = best
-        _, fipy_seconds = _timed(lambda cells=cells, steps=steps: _fipy_release(cells, steps))
+        _, fipy_seconds = _timed(lambda c=cells, s=steps: _fipy_release(c, s))
         print(f"tolerance {tolerance:g}: FiPy cheapest within it: mesh {cells}, "
               f"{steps * len(TIMES)} steps, error {error:.2e}, {fipy_seconds:.3f} s; "
               f"ratio FiPy / run_transient {fipy_seconds / our_seconds:.2f}")

@@ -20,11 +20,12 @@ import time
 # Imported here, in the main process, so that the pool processes forked from it do not spend
 # the short test time limits on first imports.
 import psycopg  # noqa: F401
+import sqlalchemy.dialects.postgresql.psycopg  # noqa: F401
+from celery.exceptions import SoftTimeLimitExceeded
+
 import schemas  # noqa: F401
 import service.runs  # noqa: F401
-import sqlalchemy.dialects.postgresql.psycopg  # noqa: F401
 import worker.engine
-from celery.exceptions import SoftTimeLimitExceeded
 from worker.celery_app import celery_app
 
 MODE = os.environ.get("FAULT_TEST_HANG", "")

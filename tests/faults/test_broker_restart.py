@@ -22,7 +22,7 @@ from datetime import datetime
 
 import requests
 
-from tests.faults.conftest import bearer, create_tokens, make_stack
+from tests.api.support import bearer
 from tests.faults.ledger import (
     batch_run_ids,
     finished_count,
@@ -31,6 +31,7 @@ from tests.faults.ledger import (
     unfinished_count,
 )
 from tests.faults.processes import wait_until
+from tests.faults.support import create_tokens, make_stack
 
 BATCH_SIZE = 1000
 REDISPATCH_BOUND_S = 120.0

@@ -18,7 +18,8 @@ import pytest
 import requests
 from sqlalchemy import func, select
 
-from tests.faults.conftest import bearer, create_tokens
+from tests.api.support import bearer
+from tests.faults.support import create_tokens
 from tests.faults.tcp_proxy import TcpProxy
 from tests.integration.invented_cases import distinct_steady_cases
 from tests.integration.real_services import POSTGRES_HOST, POSTGRES_PORT

@@ -18,7 +18,7 @@ import uuid
 
 import requests
 
-from tests.faults.conftest import bearer, create_tokens, make_stack
+from tests.api.support import bearer
 from tests.faults.ledger import (
     batch_run_ids,
     finished_count,
@@ -27,6 +27,7 @@ from tests.faults.ledger import (
     unfinished_count,
 )
 from tests.faults.processes import kill_pid, wait_until
+from tests.faults.support import create_tokens, make_stack
 from tests.integration.worker_processes import pid_alive
 
 BATCH_SIZE = 1000
@@ -41,9 +42,9 @@ def _kill_a_busy_pool_process(stack, node: str, store, batch_id: str) -> int:
         pool = stack.pool_pids(node)
         assert len(pool) == 1, f"{node} should have one pool process, has {pool}"
         kill_pid(pool[0])
-        wait_until(lambda: not pid_alive(pool[0]), 10, message=f"{node} pool process gone")
+        wait_until(lambda pid=pool[0]: not pid_alive(pid), 10, message=f"{node} pool process gone")
         try:
-            wait_until(lambda: len(WORKER_LOST.findall(stack.log(node))) > before, 10,
+            wait_until(lambda seen=before: len(WORKER_LOST.findall(stack.log(node))) > seen, 10,
                        message=f"{node} reporting the lost task")
             wait_until(lambda: len(stack.pool_pids(node)) == 1, 30,
                        message=f"{node} replacing its pool process")

@@ -8,8 +8,9 @@ import uuid
 
 import pytest
 
-from tests.integration.conftest import bearer, wait_finished
+from tests.api.support import bearer
 from tests.integration.invented_cases import single_layer_case, two_layer_case
+from tests.integration.support import wait_finished
 from tests.integration.worker_processes import parent_of
 
 #: The factor by which the test shifts one stored baseline figure (as if an earlier engine had
@@ -31,7 +32,8 @@ def _wait_batch(client, token: str, batch_id: str, timeout: float = 90.0) -> dic
         time.sleep(0.1)
 
 
-def test_batch_reruns_tagged_cases_on_the_workers_and_reports_drift(app, client, store, tokens,
+def test_batch_reruns_tagged_cases_on_the_workers_and_reports_drift(live_app, live_client,
+                                                                    live_store, live_tokens,
                                                                     live_workers):
     from service.store.models import Run
 
@@ -40,27 +42,28 @@ def test_batch_reruns_tagged_cases_on_the_workers_and_reports_drift(app, client,
              two_layer_case(30.0, 1.0e-10, tags=[tag]),
              single_layer_case(60.0, 2.0e-10, tags=[tag]),
              two_layer_case(45.0, 0.7e-10, tags=[tag, "it-other"])]
-    engineer = tokens["engineer"]
+    engineer = live_tokens["engineer"]
     baselines = []
     for case in cases:
-        response = client.post("/v1/runs", json={"case": case}, headers=bearer(engineer))
+        response = live_client.post("/v1/runs", json={"case": case}, headers=bearer(engineer))
         assert response.status_code == 202, response.get_json()
         baselines.append(response.get_json())
-    records = [wait_finished(client, engineer, b["run_id"]) for b in baselines]
+    records = [wait_finished(live_client, engineer, b["run_id"]) for b in baselines]
     assert [r["status"] for r in records] == ["succeeded"] * len(cases)
 
     shifted = records[1]
     original_flux = shifted["quantities"]["flux_outer"]["value"]
-    with store.transaction() as session:
+    with live_store.transaction() as session:
         run = session.get(Run, shifted["run_id"])
         changed = copy.deepcopy(run.record)
         changed["quantities"]["flux_outer"]["value"] = original_flux * BASELINE_SHIFT
         run.record = changed
 
-    response = client.post("/v1/batches", json={"tag": tag}, headers=bearer(tokens["admin"]))
+    response = live_client.post("/v1/batches", json={"tag": tag},
+                                headers=bearer(live_tokens["admin"]))
     assert response.status_code == 202, response.get_json()
     assert response.get_json()["runs"] == len(cases)
-    batch = _wait_batch(client, tokens["admin"], response.get_json()["batch_id"])
+    batch = _wait_batch(live_client, live_tokens["admin"], response.get_json()["batch_id"])
 
     assert batch["counts"] == {"queued": 0, "running": 0, "succeeded": len(cases), "failed": 0}
     assert len(batch["run_ids"]) == len(cases)
@@ -78,7 +81,7 @@ def test_batch_reruns_tagged_cases_on_the_workers_and_reports_drift(app, client,
     # Every batch run was executed by a pool process of the session's worker processes.
     worker_pids = {w.pid for w in live_workers}
     for run_id in batch["run_ids"]:
-        record = client.get(f"/v1/runs/{run_id}", headers=bearer(engineer)).get_json()
+        record = live_client.get(f"/v1/runs/{run_id}", headers=bearer(engineer)).get_json()
         assert record["batch_id"] == batch["batch_id"]
         pid = int(record["provenance"]["worker"].rsplit(":", 1)[1])
         assert parent_of(pid) in worker_pids

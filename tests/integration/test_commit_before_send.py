@@ -13,16 +13,17 @@ import uuid
 from celery.signals import before_task_publish
 
 from service.dispatch import EXECUTE_RUN_TASK
-from tests.integration.conftest import bearer, create_tokens
+from tests.api.support import bearer
 from tests.integration.invented_cases import single_layer_case
+from tests.integration.support import create_tokens
 
 
 def test_run_row_is_visible_to_other_connections_when_its_message_is_published(
-        idle_app, idle_broker, pg_schema):
+        idle_app, idle_broker, shared_pg_schema):
     from service.store import Store
     from service.store.models import Run
 
-    observer = Store(pg_schema.url)  # its own engine and connections
+    observer = Store(shared_pg_schema.url)  # its own engine and connections
     seen_at_publish: list[tuple[str, str | None]] = []
 
     def look_up_run(sender=None, body=None, headers=None, **_kwargs):

@@ -10,7 +10,6 @@ from sqlalchemy import select
 
 from service import audit
 from service.runs import create_run, execute_run
-from tests.api.conftest import controlled_engine  # noqa: F401
 from tests.integration.invented_cases import single_layer_case
 
 
@@ -29,61 +28,61 @@ def _document():
 
 
 def test_a_run_on_postgresql_writes_its_events_with_their_payloads_and_the_chain_verifies(
-        store, controlled_engine):  # noqa: F811
+        live_store, controlled_engine):  # noqa: F811
     from service.store.models import Case, Run
 
-    assert store.dialect == "postgresql"
-    queued = create_run(store, actor="pia.engineer", document=_document())
+    assert live_store.dialect == "postgresql"
+    queued = create_run(live_store, actor="pia.engineer", document=_document())
     run_id = queued["run_id"]
-    assert execute_run(run_id, store, actor='worker "quoted" ü') == "succeeded"
-    assert execute_run(run_id, store, actor="second delivery") == "succeeded"
+    assert execute_run(run_id, live_store, actor='worker "quoted" ü') == "succeeded"
+    assert execute_run(run_id, live_store, actor="second delivery") == "succeeded"
     assert controlled_engine.calls == 1
-    with store.transaction() as session:
+    with live_store.transaction() as session:
         case_sha256 = session.get(Case, queued["case_id"]).sha256
-    assert _events(store, run_id) == [
+    assert _events(live_store, run_id) == [
         ("run.queued", "pia.engineer",
          {"case_id": queued["case_id"], "case_sha256": case_sha256, "batch_id": None}),
         ("run.started", 'worker "quoted" ü', {"attempt": 1}),
         ("run.finished", 'worker "quoted" ü',
          {"status": "succeeded", "verdict": "pass", "error": None, "attempts": 1}),
     ]
-    with store.transaction() as session:
+    with live_store.transaction() as session:
         run = session.get(Run, run_id)
         assert (run.status, run.attempts, run.record["run_id"]) == ("succeeded", 1, run_id)
         assert run.started_at is not None and run.finished_at >= run.started_at
-    assert audit.verify_chain(store).ok
+    assert audit.verify_chain(live_store).ok
 
 
 def test_a_failed_run_with_an_awkward_reason_verifies_and_out_of_attempts_ends_failed(
-        store, controlled_engine):  # noqa: F811
+        live_store, controlled_engine):  # noqa: F811
     from service.store.models import Run
 
     controlled_engine.status = "failed"
-    run_id = create_run(store, actor="pia.engineer", document=_document())["run_id"]
-    assert execute_run(run_id, store, actor="w") == "failed"
-    finished = _events(store, run_id)[-1]
+    run_id = create_run(live_store, actor="pia.engineer", document=_document())["run_id"]
+    assert execute_run(run_id, live_store, actor="w") == "failed"
+    finished = _events(live_store, run_id)[-1]
     assert finished[0] == "run.finished" and finished[2]["status"] == "failed"
     assert finished[2]["error"] == "controlled failure" and finished[2]["attempts"] == 1
 
-    stuck = create_run(store, actor="pia.engineer", document=_document())["run_id"]
-    with store.transaction() as session:  # as if three deliveries were lost mid-solve
+    stuck = create_run(live_store, actor="pia.engineer", document=_document())["run_id"]
+    with live_store.transaction() as session:  # as if three deliveries were lost mid-solve
         run = session.get(Run, stuck)
         run.status, run.attempts = "running", 3
-    assert execute_run(stuck, store, max_attempts=3, actor="w") == "failed"
-    assert "gave up after 3 deliveries" in _events(store, stuck)[-1][2]["error"]
-    assert audit.verify_chain(store).ok
+    assert execute_run(stuck, live_store, max_attempts=3, actor="w") == "failed"
+    assert "gave up after 3 deliveries" in _events(live_store, stuck)[-1][2]["error"]
+    assert audit.verify_chain(live_store).ok
 
 
-def test_posting_a_new_case_and_the_same_case_again_stores_it_once_with_its_events(store):
+def test_posting_a_new_case_and_the_same_case_again_stores_it_once_with_its_events(live_store):
     from service.store.models import Case, CaseTag, Run
 
     document = _document()
     document["tags"] = ["zeta", "alpha", "zeta"]
-    first = create_run(store, actor="pia.engineer", document=document)
-    again = create_run(store, actor="olli.engineer", document=dict(document))
+    first = create_run(live_store, actor="pia.engineer", document=document)
+    again = create_run(live_store, actor="olli.engineer", document=dict(document))
     assert again["case_id"] == first["case_id"] and again["run_id"] != first["run_id"]
     case_id = first["case_id"]
-    with store.transaction() as session:
+    with live_store.transaction() as session:
         case = session.get(Case, case_id)
         assert case.document == document and case.tags == ["alpha", "zeta"]
         assert case.created_by == "pia.engineer"
@@ -94,16 +93,16 @@ def test_posting_a_new_case_and_the_same_case_again_stores_it_once_with_its_even
             select(Run).where(Run.case_id == case_id)).scalars()}
         assert {r.status for r in runs.values()} == {"queued"}
         assert runs[again["run_id"]].submitted_by == "olli.engineer"
-    assert _events(store, case_id) == [("case.stored", "pia.engineer", {
+    assert _events(live_store, case_id) == [("case.stored", "pia.engineer", {
         "sha256": case.sha256, "title": document["title"], "tags": ["alpha", "zeta"]})]
     for run_id, actor in ((first["run_id"], "pia.engineer"), (again["run_id"], "olli.engineer")):
-        assert _events(store, run_id) == [("run.queued", actor, {
+        assert _events(live_store, run_id) == [("run.queued", actor, {
             "case_id": case_id, "case_sha256": case.sha256, "batch_id": None})]
     from service.store.models import AuditEvent
 
-    with store.transaction() as session:
+    with live_store.transaction() as session:
         order = session.execute(select(AuditEvent.kind).where(
             AuditEvent.subject.in_([case_id, first["run_id"]])).order_by(AuditEvent.seq)
         ).scalars().all()
     assert order == ["case.stored", "run.queued"]  # the chain lists the case before its run
-    assert audit.verify_chain(store).ok
+    assert audit.verify_chain(live_store).ok

@@ -8,8 +8,9 @@ import uuid
 from sqlalchemy import select
 
 from service.settings import DEFAULTS
-from tests.integration.conftest import bearer, wait_finished
+from tests.api.support import bearer
 from tests.integration.invented_cases import single_layer_case
+from tests.integration.support import wait_finished
 from tests.integration.worker_processes import parent_of
 
 
@@ -19,18 +20,20 @@ def _niceness(pid: int) -> int:
         return int(stat.read().rsplit(")", 1)[1].split()[16])
 
 
-def test_submitted_case_is_solved_by_a_worker_process_and_stored(app, client, store, tokens,
+def test_submitted_case_is_solved_by_a_worker_process_and_stored(live_app, live_client,
+                                                                  live_store, live_tokens,
                                                                   live_workers):
     from service.store.models import AuditEvent, Run
 
     tag = f"it-{uuid.uuid4().hex[:8]}"
     case = single_layer_case(35.0, 1.2e-10, tags=[tag])
-    response = client.post("/v1/runs", json={"case": case}, headers=bearer(tokens["engineer"]))
+    response = live_client.post("/v1/runs", json={"case": case},
+                                headers=bearer(live_tokens["engineer"]))
     assert response.status_code == 202, response.get_json()
     run_id = response.get_json()["run_id"]
     assert response.headers["Location"] == f"/v1/runs/{run_id}"
 
-    record = wait_finished(client, tokens["engineer"], run_id)
+    record = wait_finished(live_client, live_tokens["engineer"], run_id)
 
     assert record["status"] == "succeeded", record.get("error")
     assert record["verdict"] in ("pass", "fail")
@@ -48,8 +51,8 @@ def test_submitted_case_is_solved_by_a_worker_process_and_stored(app, client, st
     assert _niceness(int(pid)) - _niceness(parent_of(int(pid))) == DEFAULTS["WORKER_NICE"] > 0
 
     # The row on PostgreSQL holds the same record, and the audit trail names the worker.
-    assert store.dialect == "postgresql"
-    with store.transaction() as session:
+    assert live_store.dialect == "postgresql"
+    with live_store.transaction() as session:
         run = session.get(Run, run_id)
         assert run.status == "succeeded" and run.attempts == 1
         assert run.record["provenance"]["worker"] == record["provenance"]["worker"]
@@ -63,20 +66,22 @@ def test_submitted_case_is_solved_by_a_worker_process_and_stored(app, client, st
     assert actors == {f"worker@{socket.gethostname()}"}
 
 
-def test_invalid_case_is_refused_and_nothing_is_stored(app, client, store, tokens):
+def test_invalid_case_is_refused_and_nothing_is_stored(live_app, live_client, live_store,
+                                                       live_tokens):
     from sqlalchemy import func
 
     from service.store.models import Case, Run
 
     def rows() -> tuple[int, int]:
-        with store.transaction() as session:
+        with live_store.transaction() as session:
             return (session.execute(select(func.count()).select_from(Case)).scalar_one(),
                     session.execute(select(func.count()).select_from(Run)).scalar_one())
 
     case = single_layer_case(35.0, 1.2e-10, tags=["it-invalid"])
     case["layers"][0]["diffusivity"] = "1.2e-10 m/s"  # wrong dimension
     before = rows()
-    response = client.post("/v1/runs", json={"case": case}, headers=bearer(tokens["engineer"]))
+    response = live_client.post("/v1/runs", json={"case": case},
+                                headers=bearer(live_tokens["engineer"]))
     assert response.status_code == 422
     assert response.headers["Content-Type"].startswith("application/problem+json")
     paths = [e["path"] for e in response.get_json()["errors"]]

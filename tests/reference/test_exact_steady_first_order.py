@@ -19,7 +19,6 @@ from worker.engine.exact_steady import solve_exact
 from worker.engine.model import Boundary, Layer, Problem, Reaction
 
 
-
 @pytest.fixture(autouse=True)
 def _mpmath_precision():
     """Reference values at 40 significant digits, without touching other modules' setting."""

@@ -74,7 +74,7 @@ def test_hollow_sphere_fixed_concentrations():
 
 
 def test_face_partition_multiplies_fluid_concentration():
-    """Partition at a face (REFERENCES.md, partition coefficients; Crank 1975 ch. 4): the surface
+    """Partition at a face (J. Crank, The Mathematics of Diffusion, 1975, ch. 4): the surface
     concentration is K x C_fluid, so the sheet flux is D (K1 C1 - K2 C2)/l."""
     d, thickness = 2e-10, 1e-4
     sol = solve_exact(make("slab", 0.0, [Layer("m", thickness, d, partition=0.3)],
@@ -100,7 +100,7 @@ def test_composite_slab_with_partitions_and_films():
                                              for ly in layers)
     flux = (c_in - c_out) / resistance
     assert_allclose([sol.flux_inner, sol.flux_outer], flux, rtol=1e-12)
-    # Interfaces: C_a/K_a = C_b/K_b while C itself jumps (REFERENCES.md, partition coefficients).
+    # Interfaces: C_a/K_a = C_b/K_b while C itself jumps (Crank 1975 ch. 4).
     edges = -1e-4 + np.cumsum([0.0] + [ly.thickness for ly in layers])
     for i in (1, 2):
         left = sol.concentration_at(edges[i], layer=i - 1)
@@ -116,7 +116,7 @@ def test_composite_slab_with_partitions_and_films():
 
 def test_composite_cylinder_matches_ht_resistances():
     """Heat-mass analogy with the ht library (ht.conduction.cylindrical_heat_transfer, its rate Q
-    per metre only, as REFERENCES.md advises): conductivity k_i = D_i K_i, film coefficients h,
+    per metre, the only figure of it compared): conductivity k_i = D_i K_i, film coefficients h,
     temperatures = fluid concentrations (Bird, Stewart & Lightfoot 2002 §10.6)."""
     r_in = 0.15e-3
     layers = [Layer("fibre", 40e-6, 1.5e-9, partition=0.8),

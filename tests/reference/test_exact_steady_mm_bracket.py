@@ -2,7 +2,7 @@
 
 Check values: for a sheet sealed at its mid-plane x = 0 and held at Cs on the face x = L, the
 first integral of D C'' = R(C) is (D/2) C'^2 = G(C) = integral from C0 to C of R(c) dc
-(REFERENCES.md, Michaelis-Menten; R. Aris, The Mathematical Theory of Diffusion and Reaction in
+(R. Aris, The Mathematical Theory of Diffusion and Reaction in
 Permeable Catalysts, Oxford, 1975), with R = Vmax c/(Km + c) giving
 G(C) = Vmax [(C - C0) - Km ln((Km + C)/(Km + C0))]. Positions follow from
 x(C) = integral from C0 to C of sqrt(D / (2 G(c))) dc, the centre value C0 from x(Cs) = L, and
@@ -26,7 +26,6 @@ from worker.engine.mm_bracket import (
     michaelis_menten_bracket,
 )
 from worker.engine.model import Boundary, Layer, Problem, Reaction
-
 
 
 @pytest.fixture(autouse=True)
@@ -166,8 +165,8 @@ def test_strong_case_uses_depleted_zero_order_bound():
 def test_multilayer_depletion_falls_back_to_first_order_lower_bound():
     """Coated sheet whose zero-order (Vmax) comparison problem depletes across two layers: no
     exact zero-order solution here, so the lower bound is the first-order (Vmax/Km) solution
-    alone, still valid since min(Vmax, Vmax C/Km) <= Vmax C/Km (REFERENCES.md, Michaelis-Menten
-    bounds); the method name says so and lower <= upper holds."""
+    alone, still valid since min(Vmax, Vmax C/Km) <= Vmax C/Km (comparison principle, Protter &
+    Weinberger 1967); the method name says so and lower <= upper holds."""
     problem = Problem(
         geometry="slab", inner=0.0,
         layers=(Layer("tissue", 2e-3, 1e-9, reaction=Reaction("michaelis_menten", vmax=5e-2,

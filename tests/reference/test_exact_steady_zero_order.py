@@ -19,13 +19,12 @@ from worker.engine.exact_steady import solve_exact
 from worker.engine.model import Boundary, Layer, Problem, Reaction
 
 
-
 @pytest.fixture(autouse=True)
 def _mpmath_precision():
     """Reference values at 30 significant digits, without touching other modules' setting."""
     with mpmath.workdps(30):
         yield
-N_OF = {"slab": 1, "cylinder": 2, "sphere": 3}  # the 'n' of REFERENCES.md: exponent + 1
+N_OF = {"slab": 1, "cylinder": 2, "sphere": 3}  # space dimensions: the geometry exponent + 1
 
 
 def zero(q):

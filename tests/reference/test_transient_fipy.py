@@ -4,7 +4,8 @@ FiPy solves the same case independently: cell-centred finite volumes in the cont
 potential u = C/K, ``TransientTerm(coeff=K) == DiffusionTerm(coeff=D K)``, implicit (backward
 Euler) steps, the interface face given the series (harmonic) coefficient of its two half cells.
 Its answers are Richardson-extrapolated in time (order 1) and in space (order 2), as
-REFERENCES.md advises (moderate meshes; FiPy's round-off floor above ~1e4 cells).
+is common practice with a first- and a second-order method (moderate meshes: from memory,
+FiPy's round-off floor shows above ~1e4 cells).
 
 FiPy: J.E. Guyer, D. Wheeler, J.A. Warren, "FiPy: Partial Differential Equations with Python",
 Computing in Science & Engineering 11 (2009) 6-15. Scenario values are invented.

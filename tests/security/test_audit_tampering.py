@@ -9,7 +9,7 @@ from __future__ import annotations
 import pytest
 from sqlalchemy import func, select, update
 
-from tests.security.conftest import bearer
+from tests.api.support import bearer
 
 
 def _verify(app, tokens):

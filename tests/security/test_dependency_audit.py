@@ -4,9 +4,9 @@ pip-audit asks PyPI's JSON API, a package registry, for the advisories of every 
 distribution. When that service cannot be reached (no network), the test is SKIPPED and says
 so: nothing was audited then, and a pass would be a lie. The same holds when the registry
 answers but serves no vulnerability data (a mirror without PyPI's JSON API answers "not found"
-for every distribution): pip-audit then skips each one, and so does this test. Known advisories without a fixed
-version still fail the test: they need a decision, written down, not silence. The local
-project itself (fluxproof, not on PyPI) is left out.
+for every distribution): pip-audit then skips each one, and so does this test. Known advisories
+without a fixed version still fail the test: they need a decision, written down, not silence.
+The local project itself (fluxproof, not on PyPI) is left out.
 """
 
 from __future__ import annotations

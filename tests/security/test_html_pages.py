@@ -9,7 +9,7 @@ from __future__ import annotations
 
 import re
 
-from tests.security.conftest import bearer
+from tests.api.support import bearer
 
 CSRF_FIELD = re.compile(r'name="csrf_token"\s+value="([^"]+)"')
 

@@ -11,8 +11,7 @@ import json
 import pytest
 
 from schemas import case as case_schema
-from tests.api.support import make_case
-from tests.security.conftest import bearer
+from tests.api.support import bearer, make_case
 
 
 def _layer(n: int) -> dict:

@@ -1,6 +1,6 @@
 """The role matrix over every API endpoint and every method, through HTTP.
 
-The expected table below is written from the contract (DESIGN.md, "HTTP API"): engineers
+The expected table below is written from the role table of README.md ("API (v1)"): engineers
 submit, reviewers sign off, auditors read everything and the audit, admins start batches;
 reading records is open to every role; health and the OpenAPI document need no token. It is
 compared with what the running app does, not with the app's own table; every route the app
@@ -11,7 +11,7 @@ from __future__ import annotations
 
 import pytest
 
-from tests.security.conftest import bearer
+from tests.api.support import bearer
 
 ROLES = ("engineer", "reviewer", "auditor", "admin")
 EVERYONE = frozenset(ROLES)

@@ -4,10 +4,10 @@ from __future__ import annotations
 
 from click.testing import CliRunner
 
+import service.cli_admin
 from service.cli import main
 from service.runs import create_run, execute_run
 from service.store import default_store
-from tests.api.conftest import controlled_engine, data_dir, migrated_template  # noqa: F401
 from tests.api.support import make_case
 
 
@@ -45,8 +45,6 @@ def test_queued_batches_are_followed_with_wait(data_dir, controlled_engine,  # n
     """With a broker the CLI only queues; ``--wait`` polls the batch until it finishes.
 
     The workers are stood in for by a dispatcher that executes each run as it is sent."""
-    import service.dispatch
-    import service.settings
 
     class WorkerStandIn:
         mode = "celery"
@@ -59,8 +57,9 @@ def test_queued_batches_are_followed_with_wait(data_dir, controlled_engine,  # n
                 execute_run(run_id, self.store)
 
     _stored_runs(2)
-    monkeypatch.setattr(service.settings, "dispatch_mode", lambda settings: "celery")
-    monkeypatch.setattr(service.dispatch, "make_dispatcher",
+    # The command module binds these names when it is imported: patch them where it uses them.
+    monkeypatch.setattr(service.cli_admin, "dispatch_mode", lambda settings: "celery")
+    monkeypatch.setattr(service.cli_admin, "make_dispatcher",
                         lambda mode, store, settings: WorkerStandIn(store))
     queued = CliRunner().invoke(main, ["reverify", "--all"])
     assert queued.exit_code == 0 and "with --wait" in queued.stdout

@@ -35,6 +35,8 @@ C(r_c) = 0 and J(r_c) = 0 (A.V. Hill, Proc. R. Soc. B 104 (1928) 39). Other depl
 
 from __future__ import annotations
 
+from typing import Any, cast
+
 import numpy as np
 from scipy.integrate import solve_bvp
 
@@ -102,11 +104,9 @@ class _LayeredSystem:
         self.length = problem.total_thickness
         c_ref = boundary_concentration_scale(problem)
         if c_ref == 0.0:
-            fluxes = [
-                abs(b.value)
-                for b in (problem.inner_boundary, problem.outer_boundary)
-                if b.kind == "flux"
-            ]
+            imposed = (b.condition.imposed_flux(b)
+                       for b in (problem.inner_boundary, problem.outer_boundary))
+            fluxes = [abs(flux) for flux in imposed if flux is not None]
             c_ref = max(fluxes, default=0.0) * self.length / self.diffusivity[0]
         self.c_ref = c_ref if c_ref > 0.0 else 1.0
         self.j_ref = self.diffusivity[0] * self.c_ref / self.length
@@ -136,30 +136,13 @@ class _LayeredSystem:
     def rate(self, j: int, c: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
         """R and dR/dC (SI) of layer j at concentrations c; no consumption where C <= 0."""
         reaction = self.problem.layers[j].reaction
-        s = self.reaction_scale
-        positive = np.maximum(c, 0.0)
-        live = c > 0.0
-        if reaction.kind == "none":
-            return np.zeros_like(c), np.zeros_like(c)
-        if reaction.kind == "first_order":
-            k = s * reaction.rate_constant
-            return k * c, np.full_like(c, k)
-        if reaction.kind == "michaelis_menten":
-            denominator = reaction.km + positive
-            rate = s * reaction.vmax * positive / denominator
-            slope = np.where(live, s * reaction.vmax * reaction.km / denominator**2, 0.0)
-            return rate, slope
-        if reaction.kind == "zero_order":
-            q = s * reaction.rate
-            if self.zero_order == "live":
-                return np.full_like(c, q), np.zeros_like(c)
-            if self.zero_order == "exact":
-                return np.where(live, q, 0.0), np.zeros_like(c)
-            # Q C/(C + eps), continued as Q C/eps for C < 0 (C^1 across C = 0)
-            eps = self.smoothing
-            denominator = positive + eps
-            return q * c / denominator, q * eps / denominator**2
-        raise ValueError(f"layers[{j}].reaction.kind: unknown kind {reaction.kind!r}")
+        try:
+            law = reaction.law
+        except ValueError as exc:
+            raise ValueError(f"layers[{j}].reaction.kind: {exc}") from None
+        return law.regularised_rate(
+            reaction, c, self.reaction_scale, self.zero_order, self.smoothing
+        )
 
     # system -----------------------------------------------------------------------------
     def singular_term(self) -> np.ndarray | None:
@@ -202,16 +185,11 @@ class _LayeredSystem:
         k_face = problem.face_partition(side)
         # flux into the body, scaled: +J at the inner face, -J at the outer face
         into = flux if side == "inner" else -flux
-        if boundary.kind == "symmetry":
-            return flux
-        if boundary.kind == "concentration":
-            return c - k_face * boundary.value / self.c_ref
-        if boundary.kind == "flux":
-            return into - boundary.value / self.j_ref
-        if boundary.kind == "mass_transfer":
-            film = boundary.coefficient * self.c_ref / self.j_ref
-            return into - film * (boundary.bulk / self.c_ref - c / k_face)
-        raise ValueError(f"{side}_boundary.kind: unknown boundary kind {boundary.kind!r}")
+        try:
+            condition = boundary.condition
+        except ValueError as exc:
+            raise ValueError(f"{side}_boundary.kind: {exc}") from None
+        return condition.bvp_residual(boundary, c, flux, into, k_face, self.c_ref, self.j_ref)
 
     def bc(self, ya: np.ndarray, yb: np.ndarray, p=None) -> np.ndarray:
         last = self.count - 1
@@ -256,10 +234,10 @@ def _continued(system: _LayeredSystem):
     """Solve at full strength from the constant guess; else continue in reaction strength."""
     t = np.linspace(0.0, 1.0, BVP_INITIAL_NODES)
     y = system.initial_guess(t)
-    smoothed = any(ly.reaction.kind == "zero_order" for ly in system.problem.layers)
+    smoothed = any(ly.reaction.law.depletes for ly in system.problem.layers)
     widths = ZERO_ORDER_CONTINUATION if smoothed else (None,)
     tol = BVP_SEARCH_TOLERANCE if smoothed else BVP_TOLERANCE
-    result = None
+    result: Any = None  # widths is never empty
     for eps in widths:
         if eps is not None:
             system.smoothing = eps * system.c_ref
@@ -291,7 +269,7 @@ def _depleted_zone(system: _LayeredSystem, result):
     y = result.sol(t)
     threshold = DEPLETION_FLAG * system.smoothing
     for j, layer in enumerate(system.problem.layers):
-        if layer.reaction.kind != "zero_order":
+        if not layer.reaction.law.depletes:
             continue
         dead = system.c_ref * y[2 * j] < threshold
         if not dead.any():
@@ -357,7 +335,7 @@ def _not_covered(reason: str, diagnostics: dict) -> SteadySolution:
 
 def _solve_case(system: _LayeredSystem):
     """(result, route) or (None, reason) for a pattern the reference does not cover."""
-    has_zero_order = any(ly.reaction.kind == "zero_order" for ly in system.problem.layers)
+    has_zero_order = any(ly.reaction.law.depletes for ly in system.problem.layers)
     if not has_zero_order:
         return _continued(system)
     smoothed, route = _continued(system)
@@ -387,7 +365,7 @@ def _solve_case(system: _LayeredSystem):
 
 
 def _front_inside(system: _LayeredSystem, result) -> bool:
-    layer = system.front[0]
+    layer = cast(tuple[int, str], system.front)[0]
     front = float(result.p[0]) * system.length
     return bool(system.edges[layer] < front < system.edges[layer + 1])
 
@@ -396,7 +374,7 @@ def _lowest_zero_order_concentration(system: _LayeredSystem, result) -> float:
     values = result.sol(np.linspace(0.0, 1.0, 2001))
     lowest = np.inf
     for j, layer in enumerate(system.problem.layers):
-        if layer.reaction.kind == "zero_order":
+        if layer.reaction.law.depletes:
             lowest = min(lowest, float(values[2 * j].min()))
     return lowest
 
@@ -467,7 +445,8 @@ def solve_bvp_reference(problem: Problem) -> SteadySolution:
     success = result.status == 0
     message = f"{result.message} ({route})"
     if success and front is not None:
-        start, end = edges[system.front[0]], edges[system.front[0] + 1]
+        layer = cast(tuple[int, str], system.front)[0]  # a front was solved for
+        start, end = edges[layer], edges[layer + 1]
         if not start < front < end:
             success = False
             message = f"front {front:.6g} m outside its layer [{start:.6g}, {end:.6g}] m ({route})"

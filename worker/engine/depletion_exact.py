@@ -44,7 +44,7 @@ REFERENCE = ("A.V. Hill, Proc. R. Soc. B 104 (1928) 39; J. Crank, The Mathematic
 _EPS = np.finfo(float).eps
 
 
-def _t_minus_log1p(t: np.ndarray) -> np.ndarray:
+def _t_minus_log1p(t: np.ndarray | float) -> np.ndarray:
     """t - ln(1 + t) for t > -1, from its series sum_{k>=2} (-t)^k / k where |t| < 0.1."""
     t = np.asarray(t, dtype=float)
     small = np.clip(t, -0.1, 0.1)
@@ -74,15 +74,7 @@ def front_shape(exponent: int, r, front: float) -> tuple[np.ndarray, np.ndarray]
 
 def _face_kind(boundary: Boundary) -> str:
     """'fed', 'sealed' or 'other' for the depletion configurations."""
-    if boundary.kind == "symmetry":
-        return "sealed"
-    if boundary.kind == "flux":
-        return "sealed" if boundary.value == 0.0 else ("fed" if boundary.value > 0.0 else "other")
-    if boundary.kind == "mass_transfer":
-        if boundary.coefficient == 0.0:
-            return "sealed"
-        return "fed" if boundary.bulk >= 0.0 else "other"
-    return "fed" if boundary.value >= 0.0 else "other"
+    return boundary.condition.depletion_role(boundary)
 
 
 def _shape_at(exponent: int, r: float, s: float) -> tuple[float, float]:
@@ -109,11 +101,7 @@ def _front_residual(problem: Problem, side: str, front: float, face: float) -> f
     shape, slope = _shape_at(problem.exponent, face, front)
     concentration = q / d * shape
     inflow = abs(q * slope)  # |J| at the face; it points into the body
-    if boundary.kind == "concentration":
-        return concentration - k_face * boundary.value
-    if boundary.kind == "flux":
-        return inflow - boundary.value
-    return inflow - boundary.coefficient * (boundary.bulk - concentration / k_face)
+    return boundary.condition.depletion_residual(boundary, concentration, inflow, k_face)
 
 
 def _slab_distance(problem: Problem, side: str) -> float:
@@ -121,15 +109,7 @@ def _slab_distance(problem: Problem, side: str) -> float:
     layer = problem.layers[0]
     boundary = problem.inner_boundary if side == "inner" else problem.outer_boundary
     q, d, k_face = layer.reaction.rate, layer.diffusivity, problem.face_partition(side)
-    if boundary.kind == "concentration":
-        return math.sqrt(2.0 * d * k_face * boundary.value / q)
-    if boundary.kind == "flux":
-        return boundary.value / q
-    # Q L^2/(2D) = K (bulk - Q L/h): positive root in cancellation-free form.
-    linear = k_face * q / boundary.coefficient
-    return 2.0 * k_face * boundary.bulk / (linear + math.sqrt(linear**2
-                                                               + 2.0 * q * k_face
-                                                               * boundary.bulk / d))
+    return boundary.condition.slab_live_depth(boundary, q, d, k_face)
 
 
 def _front_from(problem: Problem, side: str, a: float, b: float) -> float | None:
@@ -165,7 +145,7 @@ def solve_depleted(problem: Problem) -> SteadySolution | None:
         zone and ``diagnostics["depleted_zone"]`` holds both edges. None outside the
         configurations listed in the module docstring.
     """
-    if len(problem.layers) != 1 or problem.layers[0].reaction.kind != "zero_order":
+    if len(problem.layers) != 1 or not problem.layers[0].reaction.law.depletes:
         return None
     inner_kind = "sealed" if problem.solid_centre else _face_kind(problem.inner_boundary)
     outer_kind = _face_kind(problem.outer_boundary)

@@ -34,19 +34,19 @@ from __future__ import annotations
 
 import math
 from collections.abc import Sequence
+from typing import Any
 
 import numpy as np
 from scipy.linalg.lapack import dgesv
 
 from worker.engine.basis_functions import LayerBasis
+from worker.engine.boundaries import BOUNDARIES, SYMMETRY
 from worker.engine.depletion_exact import solve_depleted
 from worker.engine.failed_solution import failed_steady_solution
 from worker.engine.graded_quadrature import graded_gauss_rule
 from worker.engine.layered_profile import LayeredProfile
 from worker.engine.model import (
-    BOUNDARY_KINDS,
     GEOMETRY_EXPONENT,
-    REACTION_KINDS,
     Problem,
     SteadySolution,
 )
@@ -54,6 +54,7 @@ from worker.engine.reaction_measures import (  # noqa: F401  (re-exported helper
     effectiveness_factor,
     thiele_modulus,
 )
+from worker.engine.reactions import REACTIONS
 
 METHOD = "exact-basis-superposition"
 REFERENCE = (
@@ -97,17 +98,19 @@ def validate_problem(problem: Problem) -> None:
         if not _positive(layer.partition):
             _fail(f"layers[{i}].partition", "a positive number", layer.partition)
         reaction = layer.reaction
-        if reaction.kind not in REACTION_KINDS:
-            _fail(f"layers[{i}].reaction.kind", " | ".join(REACTION_KINDS), reaction.kind)
+        if reaction.kind not in REACTIONS:
+            _fail(f"layers[{i}].reaction.kind", " | ".join(REACTIONS), reaction.kind)
         for name in ("rate", "rate_constant", "vmax", "km"):
             value = getattr(reaction, name)
             if not _non_negative(value):
                 _fail(f"layers[{i}].reaction.{name}", "a finite value >= 0", value)
-        if reaction.kind == "michaelis_menten" and not _positive(reaction.km):
-            _fail(f"layers[{i}].reaction.km", "a positive value", reaction.km)
+        for parameter in reaction.law.parameters:
+            value = getattr(reaction, parameter.name)
+            if parameter.sign == "positive" and not _positive(value):
+                _fail(f"layers[{i}].reaction.{parameter.name}", "a positive value", value)
     for side, boundary in (("inner", problem.inner_boundary), ("outer", problem.outer_boundary)):
-        if boundary.kind not in BOUNDARY_KINDS:
-            _fail(f"{side}_boundary.kind", " | ".join(BOUNDARY_KINDS), boundary.kind)
+        if boundary.kind not in BOUNDARIES:
+            _fail(f"{side}_boundary.kind", " | ".join(BOUNDARIES), boundary.kind)
         for name in ("value", "bulk"):
             value = getattr(boundary, name)
             if not math.isfinite(value):
@@ -117,7 +120,7 @@ def validate_problem(problem: Problem) -> None:
                   boundary.coefficient)
         if boundary.partition is not None and not _positive(boundary.partition):
             _fail(f"{side}_boundary.partition", "a positive number", boundary.partition)
-    if problem.solid_centre and problem.inner_boundary.kind != "symmetry":
+    if problem.solid_centre and problem.inner_boundary.kind != SYMMETRY.name:
         _fail("inner_boundary.kind", "symmetry at the centre of a solid cylinder or sphere",
               problem.inner_boundary.kind)
 
@@ -127,14 +130,16 @@ def layer_bases(problem: Problem) -> list[LayerBasis]:
     edges = problem.edges
     bases = []
     for i, layer in enumerate(problem.layers):
-        reaction = layer.reaction
+        # A kind without a closed form (Michaelis-Menten) never reaches the linear solve.
+        rate_constant, zero_order_rate = layer.reaction.law.exact_coefficients(
+            layer.reaction) or (0.0, 0.0)
         bases.append(LayerBasis(
             exponent=problem.exponent,
             inner_edge=float(edges[i]),
             outer_edge=float(edges[i + 1]),
             diffusivity=layer.diffusivity,
-            rate_constant=reaction.rate_constant if reaction.kind == "first_order" else 0.0,
-            zero_order_rate=reaction.rate if reaction.kind == "zero_order" else 0.0,
+            rate_constant=rate_constant,
+            zero_order_rate=zero_order_rate,
             solid=(i == 0 and problem.solid_centre),
         ))
     return bases
@@ -143,12 +148,9 @@ def layer_bases(problem: Problem) -> list[LayerBasis]:
 def _is_well_posed(problem: Problem) -> bool:
     """A steady level is fixed by a concentration face, a live film, or first-order uptake."""
     for boundary in (problem.inner_boundary, problem.outer_boundary):
-        if boundary.kind == "concentration":
+        if boundary.condition.fixes_level(boundary):
             return True
-        if boundary.kind == "mass_transfer" and boundary.coefficient > 0.0:
-            return True
-    return any(ly.reaction.kind == "first_order" and ly.reaction.rate_constant > 0.0
-               for ly in problem.layers)
+    return any(ly.reaction.law.fixes_level(ly.reaction) for ly in problem.layers)
 
 
 class _EdgeForms:
@@ -163,6 +165,7 @@ class _EdgeForms:
 
     def __init__(self, basis: LayerBasis, partition: float, columns: tuple[int | None, int],
                  evaluated: tuple[np.ndarray, ...] | None = None):
+        at_edges: tuple[tuple[Any, ...], ...]
         if evaluated is None:
             at_edges = (basis.edge_values(basis.inner_edge), basis.edge_values(basis.outer_edge))
         else:
@@ -195,20 +198,11 @@ def _face_row(problem: Problem, side: str, forms: _EdgeForms, partition: float):
     face_partition = problem.face_partition(side)
     e = 0 if side == "inner" else 1
     u_form, flux_form = forms.u[e], forms.flux[e]
-    if boundary.kind == "concentration":
-        # K u = K_face * C_fluid
-        terms, constant = _combine(u_form, signs=(partition,))
-        return terms, face_partition * boundary.value - constant
     # Flux into the body: +J at the inner face, -J at the outer face.
     inward = 1.0 if side == "inner" else -1.0
-    if boundary.kind in ("flux", "symmetry"):
-        terms, constant = _combine(flux_form, signs=(inward,))
-        value = boundary.value if boundary.kind == "flux" else 0.0
-        return terms, value - constant
-    # mass_transfer: inflow + (h/K_face) K u = h * bulk
-    h = boundary.coefficient
-    terms, constant = _combine(flux_form, u_form, signs=(inward, h * partition / face_partition))
-    return terms, h * boundary.bulk - constant
+    return boundary.condition.exact_row(
+        boundary, u_form, flux_form, inward, partition, face_partition, _combine
+    )
 
 
 def _assemble(problem: Problem, bases: list[LayerBasis],
@@ -265,7 +259,8 @@ def _consumption_rule(problem: Problem, index: int, basis: LayerBasis):
     """Quadrature (nodes, weights) of the consumption integral of one layer, or None where that
     integral is closed-form or zero (see ``_layer_consumption``)."""
     reaction = problem.layers[index].reaction
-    if reaction.kind == "first_order" and reaction.rate_constant > 0.0:
+    rate_constant, _ = reaction.law.exact_coefficients(reaction) or (0.0, 0.0)
+    if rate_constant > 0.0:
         return graded_gauss_rule(basis.inner_edge, basis.outer_edge, 1.0 / basis.decay_constant)
     return None
 
@@ -277,12 +272,13 @@ def _layer_consumption(problem: Problem, index: int, basis: LayerBasis, rule,
     ``rule`` is ``_consumption_rule`` of the layer and ``values_at_nodes`` the closed-form C at
     its nodes (zero order is integrated exactly, first order by the graded rule)."""
     reaction = problem.layers[index].reaction
+    rate_constant, zero_order_rate = reaction.law.exact_coefficients(reaction) or (0.0, 0.0)
     a, b, n = basis.inner_edge, basis.outer_edge, basis.exponent
-    if reaction.kind == "zero_order":
-        return reaction.rate * (b ** (n + 1) - a ** (n + 1)) / (n + 1)
+    if zero_order_rate != 0.0:
+        return zero_order_rate * (b ** (n + 1) - a ** (n + 1)) / (n + 1)
     if rule is not None:
         nodes, weights = rule
-        return float(reaction.rate_constant * (weights * values_at_nodes * nodes**n).sum())
+        return float(rate_constant * (weights * values_at_nodes * nodes**n).sum())
     return 0.0
 
 
@@ -308,9 +304,11 @@ def solve_linear(problem: Problem, *, consumption: bool = True,
              for i, basis in enumerate(bases)]
     samples = [None if sample_at is None or rule is None else _inside(basis, sample_at[i])
                for i, (basis, rule) in enumerate(zip(bases, rules, strict=True))]
-    evaluated = []
+    # Per layer: its evaluation at (edges, quadrature nodes, samples), or None when only the
+    # edges are wanted; then present exactly when the layer has a rule or samples.
+    evaluated: list[Any] = []
     for basis, rule, sample in zip(bases, rules, samples, strict=True):
-        parts = [(basis.inner_edge, basis.outer_edge)]
+        parts: list[Any] = [(basis.inner_edge, basis.outer_edge)]
         parts += [] if rule is None else [rule[0]]
         parts += [] if sample is None else [sample]
         evaluated.append(None if len(parts) == 1 else basis.evaluate(np.concatenate(parts)))
@@ -319,7 +317,8 @@ def solve_linear(problem: Problem, *, consumption: bool = True,
         return _failed(solved), []
     values, columns, forms, residual = solved
     diagnostics = {"relative_residual": residual, "unknowns": len(values)}
-    pieces, consumption, minima = [], 0.0 if want_consumption else math.nan, []
+    pieces, minima = [], []
+    total_consumption = 0.0 if want_consumption else math.nan
     presampled = {}
     for i, (basis, (col_a, col_b)) in enumerate(zip(bases, columns, strict=True)):
         partition = problem.layers[i].partition
@@ -327,13 +326,14 @@ def solve_linear(problem: Problem, *, consumption: bool = True,
         c2 = values[col_b]
         piece = _layer_piece(basis, partition, c1, c2)
         pieces.append(piece)
-        nodes = 0 if rules[i] is None else rules[i][0].size
+        rule = rules[i]
+        nodes = 0 if rule is None else rule[0].size
         if want_consumption:
             at_nodes = None
-            if rules[i] is not None:  # C at the quadrature nodes, as ``piece`` would give it
+            if rule is not None:  # C at the quadrature nodes, as ``piece`` would give it
                 g1, g2, part = (v[2 : 2 + nodes] for v in evaluated[i][:3])
                 at_nodes = partition * (c1 * g1 + c2 * g2) + part
-            consumption += _layer_consumption(problem, i, basis, rules[i], at_nodes)
+            total_consumption += _layer_consumption(problem, i, basis, rules[i], at_nodes)
         if samples[i] is not None:  # C and dC/dr at the sample positions, as ``piece`` gives
             g1, g2, part, dg1, dg2, dpart = (v[2 + nodes :] for v in evaluated[i])
             presampled[i] = (samples[i], partition * (c1 * g1 + c2 * g2) + part,
@@ -341,7 +341,9 @@ def solve_linear(problem: Problem, *, consumption: bool = True,
         minima.append(_zero_order_minimum(problem, i, basis, piece))
     profile = LayeredProfile(problem.edges, [ly.diffusivity for ly in problem.layers], pieces,
                              presampled)
-    success = residual <= RESIDUAL_LIMIT and (math.isfinite(consumption) or not want_consumption)
+    success = residual <= RESIDUAL_LIMIT and (
+        math.isfinite(total_consumption) or not want_consumption
+    )
     message = ("closed form by basis superposition" if success else
                f"relative residual {residual:.3g} exceeds {RESIDUAL_LIMIT:g}")
     solution = SteadySolution(
@@ -350,7 +352,7 @@ def solve_linear(problem: Problem, *, consumption: bool = True,
         profile_at=profile.profile_at,
         flux_inner=_apply(forms[0].flux[0], values),
         flux_outer=_apply(forms[-1].flux[1], values),
-        consumption=float(consumption), diagnostics=diagnostics)
+        consumption=float(total_consumption), diagnostics=diagnostics)
     return solution, minima
 
 
@@ -413,13 +415,14 @@ def _zero_order_minimum(problem: Problem, index: int, basis: LayerBasis, piece) 
     so J = 0 at most once, at r0^(n+1) = a^(n+1) + (n+1) a^n J(a)/Q; C is smallest there.
     """
     reaction = problem.layers[index].reaction
-    if reaction.kind != "zero_order" or reaction.rate == 0.0:
+    _, zero_order_rate = reaction.law.exact_coefficients(reaction) or (0.0, 0.0)
+    if zero_order_rate == 0.0:
         return math.inf
     a, b, n = basis.inner_edge, basis.outer_edge, basis.exponent
     values, gradients = piece(np.array([a, b]))
     candidates = [float(values[0]), float(values[1])]
     flux_a = -basis.diffusivity * float(gradients[0])
-    stationary = a ** (n + 1) + (n + 1) * a**n * flux_a / reaction.rate
+    stationary = a ** (n + 1) + (n + 1) * a**n * flux_a / zero_order_rate
     if stationary > 0.0:
         r0 = stationary ** (1.0 / (n + 1))
         if a < r0 < b:
@@ -462,7 +465,7 @@ def solve_exact(problem: Problem, *, sample_at: Sequence[np.ndarray] | None = No
     Carslaw & Jaeger 1959.
     """
     validate_problem(problem)
-    if any(ly.reaction.kind == "michaelis_menten" for ly in problem.layers):
+    if any(ly.reaction.law.exact_coefficients(ly.reaction) is None for ly in problem.layers):
         return None
     if not _is_well_posed(problem):
         return _failed("the steady level is undetermined: no concentration face, no "

@@ -64,6 +64,7 @@ from scipy.linalg import LinAlgError
 from scipy.linalg.lapack import dgtsv
 
 from worker.engine.model import Problem
+from worker.engine.reactions import ReactionKind
 
 #: Default mesh rule (``default_cells_per_layer``): every layer gets at least
 #: ``MIN_CELLS_PER_LAYER`` cells; ``RESISTANCE_CELLS`` cells are shared among layers in proportion
@@ -424,22 +425,13 @@ def _boundary_face(problem: Problem, side: str, area: float, gap: float, diffusi
     ``g * (C_far - C_P)``; for ``flux``/``symmetry`` faces it is ``area * value``.
     """
     boundary = problem.inner_boundary if side == "inner" else problem.outer_boundary
-    k_face = problem.face_partition(side)
-    if area == 0.0 or boundary.kind == "symmetry":
+    if area == 0.0:
         return 0.0, 0.0, 0.0
-    if boundary.kind == "concentration":
-        return area * diffusivity / gap, k_face * boundary.value, 0.0
-    if boundary.kind == "mass_transfer":
-        if boundary.coefficient <= 0.0:
-            raise ValueError(
-                f"{side}_boundary.coefficient: expected a positive mass-transfer coefficient "
-                f"(m/s), got {boundary.coefficient!r}"
-            )
-        conductance = area / (k_face / boundary.coefficient + gap / diffusivity)
-        return conductance, k_face * boundary.bulk, 0.0
-    if boundary.kind == "flux":
-        return 0.0, 0.0, area * boundary.value
-    raise ValueError(f"{side}_boundary.kind: unknown boundary kind {boundary.kind!r}")
+    try:
+        condition = boundary.condition
+    except ValueError as exc:
+        raise ValueError(f"{side}_boundary.kind: {exc}") from None
+    return condition.fv_face(boundary, side, problem.face_partition(side), area, gap, diffusivity)
 
 
 def assemble_diffusion(
@@ -557,6 +549,14 @@ def _assemble(problem: Problem, face_areas, volumes, centres, west_gaps, east_ga
     )
 
 
+def _reaction_law(problem: Problem, j: int) -> ReactionKind:
+    """The reaction kind of layer j; ValueError naming the field for an unknown kind."""
+    try:
+        return problem.layers[j].reaction.law
+    except ValueError as exc:
+        raise ValueError(f"layers[{j}].reaction.kind: {exc}") from None
+
+
 def layer_reaction_constants(problem: Problem) -> tuple[list[float], ...]:
     """Per-layer (first-order k, vmax, km, zero-order Q), 0 where a layer lacks that kind.
 
@@ -565,23 +565,12 @@ def layer_reaction_constants(problem: Problem) -> tuple[list[float], ...]:
     ValueError
         For a Michaelis-Menten layer with km <= 0 or an unknown reaction kind.
     """
-    first, vmax, km, zero = [], [], [], []
+    first: list[float] = []
+    vmax: list[float] = []
+    km: list[float] = []
+    zero: list[float] = []
     for j, layer in enumerate(problem.layers):
-        reaction = layer.reaction
-        values = (0.0, 0.0, 0.0, 0.0)
-        if reaction.kind == "first_order":
-            values = (reaction.rate_constant, 0.0, 0.0, 0.0)
-        elif reaction.kind == "michaelis_menten":
-            if reaction.km <= 0.0:
-                raise ValueError(
-                    f"layers[{j}].reaction.km: expected a positive Michaelis constant, "
-                    f"got {reaction.km!r}"
-                )
-            values = (0.0, reaction.vmax, reaction.km, 0.0)
-        elif reaction.kind == "zero_order":
-            values = (0.0, 0.0, 0.0, reaction.rate)
-        elif reaction.kind != "none":
-            raise ValueError(f"layers[{j}].reaction.kind: unknown kind {reaction.kind!r}")
+        values = _reaction_law(problem, j).fv_constants(layer.reaction, j)
         for per_layer, value in zip((first, vmax, km, zero), values, strict=True):
             per_layer.append(float(value))
     return first, vmax, km, zero
@@ -589,7 +578,7 @@ def layer_reaction_constants(problem: Problem) -> tuple[list[float], ...]:
 
 def reaction_terms(mesh: Mesh, problem: Problem) -> ReactionTerms:
     """Per-cell reaction constants of the problem on this mesh."""
-    if all(layer.reaction.kind == "none" for layer in problem.layers):
+    if not any(_reaction_law(problem, j).reacts for j in range(len(problem.layers))):
         nothing = np.zeros(mesh.n_cells)
         return ReactionTerms(first_order=nothing, vmax=nothing, km=nothing, zero_order=nothing)
     first, vmax, km, zero = layer_reaction_constants(problem)
@@ -704,7 +693,7 @@ class NodalProfile:
         self.c = c
         self.flux_density = flux_density
         self._profiles = None
-        self._intervals = None
+        self._intervals: list[tuple[float, float]] = []
 
     @property
     def mesh(self) -> Mesh:
@@ -784,10 +773,9 @@ def boundary_concentration_scale(problem: Problem) -> float:
     scale = 0.0
     for side, boundary in (("inner", problem.inner_boundary), ("outer", problem.outer_boundary)):
         k_face = problem.face_partition(side)
-        if boundary.kind == "concentration":
-            scale = max(scale, abs(k_face * boundary.value))
-        elif boundary.kind == "mass_transfer":
-            scale = max(scale, abs(k_face * boundary.bulk))
+        fluid = boundary.condition.fluid_concentration(boundary)
+        if fluid is not None:
+            scale = max(scale, abs(k_face * fluid))
     return scale
 
 
@@ -795,24 +783,18 @@ def default_cells_per_layer(problem: Problem) -> tuple[int, ...]:
     """Cells per layer by the rule documented at ``MIN_CELLS_PER_LAYER`` (module constants)."""
     n = problem.exponent
     edges = problem.edges
-    resistances = []
-    for j, layer in enumerate(problem.layers):
-        middle = 0.5 * (edges[j] + edges[j + 1])
-        resistances.append(layer.thickness / (layer.diffusivity * layer.partition * middle**n))
-    resistances = np.array(resistances)
+    resistances = np.array([
+        layer.thickness
+        / (layer.diffusivity * layer.partition * (0.5 * (edges[j] + edges[j + 1])) ** n)
+        for j, layer in enumerate(problem.layers)
+    ])
     shares = resistances / resistances.sum()
     c_scale = boundary_concentration_scale(problem)
     counts = []
     for j, layer in enumerate(problem.layers):
         cells = max(MIN_CELLS_PER_LAYER, int(np.ceil(RESISTANCE_CELLS * shares[j])))
         reaction = layer.reaction
-        inverse_length = 0.0
-        if reaction.kind == "first_order":
-            inverse_length = np.sqrt(reaction.rate_constant / layer.diffusivity)
-        elif reaction.kind == "michaelis_menten" and reaction.km > 0.0:
-            inverse_length = np.sqrt(reaction.vmax / reaction.km / layer.diffusivity)
-        elif reaction.kind == "zero_order" and reaction.rate > 0.0 and c_scale > 0.0:
-            inverse_length = np.sqrt(reaction.rate / (2.0 * layer.diffusivity * c_scale))
+        inverse_length = reaction.law.inverse_length(reaction, layer.diffusivity, c_scale)
         if inverse_length > 0.0:
             cells = max(cells, int(np.ceil(layer.thickness * inverse_length / THIELE_CELL_LIMIT)))
         counts.append(min(cells, MAX_CELLS_PER_LAYER))

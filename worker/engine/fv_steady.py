@@ -26,6 +26,7 @@ from __future__ import annotations
 import math
 from collections.abc import Callable, Sequence
 from functools import partial
+from typing import cast
 
 import numpy as np
 from scipy.linalg import LinAlgError
@@ -474,7 +475,7 @@ def solve_fv_grids(
         return [_failed(problem, mesh, _NO_LEVEL) for mesh in stack.meshes]
     uptake = stack.volumes * stack.per_cell(first_order) if reacts else None
     try:
-        if reacts:
+        if uptake is not None:
             c = solve_tridiagonal(_with_diagonal(whole.ab, uptake), whole.rhs, overwrite_ab=True)
         else:
             c = solve_tridiagonal(whole.ab, whole.rhs)
@@ -484,7 +485,7 @@ def solve_fv_grids(
         return [_failed(
             problem, stack.mesh(0), f"no unique steady state: {error} (check the boundary kinds)"
         )]
-    achieved = uptake * c if reacts else None
+    achieved = uptake * c if uptake is not None else None
     flux_density = face_flux_densities(stack, whole.face_fluxes(c))
     # a finite sum over every mesh means every mesh is finite (NaN and inf propagate)
     finite = True if math.isfinite(float(c.sum())) else None
@@ -492,7 +493,7 @@ def solve_fv_grids(
     for g, (first, n) in enumerate(blocks):
         solutions.append(_solution(
             partial(stack.mesh, g), c[first : first + n], flux_density[first : first + n + 1],
-            achieved[first : first + n] if reacts else None, _linear_record(),
+            achieved[first : first + n] if achieved is not None else None, _linear_record(),
             cells_per_layer=stack.counts[g],
             centres=stack.centres[first : first + n],
             faces=stack.faces[first : first + n + 1], finite=finite))
@@ -548,9 +549,14 @@ def _solution(
     fronts: list[float] = []
     depleted_cells = 0 if active is None else int(np.count_nonzero(active))
     if depleted_cells:
+        # only a solved mesh has depleted cells; it comes with its zero-order rates
+        mesh = cast(Mesh, mesh)
+        achieved, zero_order = cast(np.ndarray, achieved), cast(np.ndarray, zero_order)
         load = mesh.volumes * zero_order
         live_fraction = np.divide(achieved, load, out=np.ones_like(load), where=load > 0.0)
-        fronts = _depletion_fronts(mesh, active, np.clip(live_fraction, 0.0, 1.0))
+        fronts = _depletion_fronts(
+            mesh, cast(np.ndarray, active), np.clip(live_fraction, 0.0, 1.0)
+        )
 
     diagnostics = {
         "cells_per_layer": cells_per_layer,

@@ -33,7 +33,7 @@ class LayeredProfile:
         with equal positions and that layer returns them instead of evaluating again.
     """
 
-    def __init__(self, edges: Sequence[float], diffusivities: Sequence[float],
+    def __init__(self, edges: Sequence[float] | np.ndarray, diffusivities: Sequence[float],
                  pieces: Sequence[PieceFunction], presampled: dict | None = None):
         self.edges = np.asarray(edges, dtype=float)
         self.diffusivities = np.asarray(diffusivities, dtype=float)

@@ -29,12 +29,14 @@ from __future__ import annotations
 
 import dataclasses
 import math
+from typing import cast
 
 import numpy as np
 
 from worker.engine.exact_steady import solve_exact, validate_problem
 from worker.engine.model import Problem, Reaction, SteadySolution
 from worker.engine.reaction_measures import largest_surface_concentration
+from worker.engine.reactions.michaelis_menten import KIND as MICHAELIS_MENTEN
 
 REFERENCE = ("M.H. Protter, H.F. Weinberger, Maximum Principles in Differential Equations, 1967; "
              "R. Aris, The Mathematical Theory of Diffusion and Reaction in Permeable Catalysts, "
@@ -45,18 +47,17 @@ LOWER_METHOD_FIRST_ORDER_ONLY = "mm-lower-bound-first-order-vmax-over-km-only"
 
 
 def _applies(problem: Problem) -> bool:
-    if not any(ly.reaction.kind == "michaelis_menten" for ly in problem.layers):
+    if not any(ly.reaction.law is MICHAELIS_MENTEN for ly in problem.layers):
         return False
     fed = False
     for boundary in (problem.inner_boundary, problem.outer_boundary):
-        if boundary.kind == "flux" and boundary.value != 0.0:
+        condition = boundary.condition
+        flux = condition.imposed_flux(boundary)
+        if flux is not None and flux != 0.0:
             return False
-        if boundary.kind == "concentration":
-            if boundary.value < 0.0:
-                return False
-            fed = True
-        if boundary.kind == "mass_transfer" and boundary.coefficient > 0.0:
-            if boundary.bulk < 0.0:
+        if condition.fixes_level(boundary):
+            fluid = condition.fluid_concentration(boundary)
+            if fluid is None or fluid < 0.0:
                 return False
             fed = True
     return fed
@@ -66,7 +67,7 @@ def _substitute(problem: Problem, rate_for) -> Problem:
     """The problem with each Michaelis-Menten layer's reaction replaced by rate_for(i, layer)."""
     layers = tuple(
         dataclasses.replace(layer, reaction=rate_for(i, layer))
-        if layer.reaction.kind == "michaelis_menten" else layer
+        if layer.reaction.law is MICHAELIS_MENTEN else layer
         for i, layer in enumerate(problem.layers))
     return dataclasses.replace(problem, layers=layers)
 
@@ -101,7 +102,9 @@ def michaelis_menten_bracket(problem: Problem) -> tuple[SteadySolution, SteadySo
     validate_problem(problem)
     if not _applies(problem):
         return None
-    surface = {i: largest_surface_concentration(problem, i) for i in range(len(problem.layers))}
+    # a fed face exists (``_applies``), so every layer has a surface bound
+    surface = cast(dict[int, float], {i: largest_surface_concentration(problem, i)
+                                      for i in range(len(problem.layers))})
 
     def slow(i, layer):
         r = layer.reaction
@@ -122,11 +125,12 @@ def michaelis_menten_bracket(problem: Problem) -> tuple[SteadySolution, SteadySo
     if lower_zero is not None and not lower_zero.success:
         lower_zero = None
     bounds = [float(surface[i]) for i, ly in enumerate(problem.layers)
-              if ly.reaction.kind == "michaelis_menten"]
+              if ly.reaction.law is MICHAELIS_MENTEN]
     upper = dataclasses.replace(
         upper, method=UPPER_METHOD, reference=f"{REFERENCE}; {upper.reference}",
         message="upper comparison solution of the Michaelis-Menten problem",
         diagnostics={**upper.diagnostics, "surface_bound": bounds})
+    parts: tuple[SteadySolution, ...]
     if lower_zero is None:
         method, parts = LOWER_METHOD_FIRST_ORDER_ONLY, (lower_linear,)
     else:

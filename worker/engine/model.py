@@ -25,17 +25,19 @@ from types import MappingProxyType
 
 import numpy as np
 
+from worker.engine.boundaries import BoundaryKind, boundary_kind
+from worker.engine.reactions import ReactionKind, reaction_kind
+
 GEOMETRY_EXPONENT: Mapping[str, int] = MappingProxyType({"slab": 0, "cylinder": 1, "sphere": 2})
-REACTION_KINDS = ("none", "zero_order", "first_order", "michaelis_menten")
-BOUNDARY_KINDS = ("concentration", "flux", "mass_transfer", "symmetry")
 
 
 @dataclass(frozen=True)
 class Reaction:
-    """Volumetric consumption ``R(C)`` in amount/(m^3*s).
+    """Volumetric consumption ``R(C)`` in amount/(m^3*s): the kind's parameters by name.
 
     kind ``none``: R = 0; ``zero_order``: R = rate while C > 0, else 0;
     ``first_order``: R = rate_constant * C; ``michaelis_menten``: R = vmax * C / (km + C).
+    The rate law itself is the kind object ``law`` (``worker.engine.reactions``).
     """
 
     kind: str = "none"
@@ -45,46 +47,31 @@ class Reaction:
     km: float = 0.0
 
     @property
+    def law(self) -> ReactionKind:
+        """The kind object of ``worker.engine.reactions`` (ValueError for an unknown kind)."""
+        return reaction_kind(self.kind)
+
+    @property
     def is_linear(self) -> bool:
-        """True when R(C) = k*C + const everywhere (none, first order)."""
-        return self.kind in ("none", "first_order")
+        """True when R(C) = k*C everywhere (none, first order)."""
+        return self.law.is_linear
 
     @property
     def reacts(self) -> bool:
-        return self.kind != "none"
+        return self.law.reacts
 
     def rate_at(self, c: np.ndarray) -> np.ndarray:
         """Consumption rate R(C) in amount/(m^3*s); C <= 0 consumes nothing for zero order."""
-        c = np.asarray(c, dtype=float)
-        if self.kind == "none":
-            return np.zeros_like(c)
-        if self.kind == "zero_order":
-            return np.where(c > 0.0, self.rate, 0.0)
-        if self.kind == "first_order":
-            return self.rate_constant * c
-        if self.kind == "michaelis_menten":
-            return self.vmax * c / (self.km + c)
-        raise ValueError(f"unknown reaction kind {self.kind!r}")
+        return self.law.rate_at(self, np.asarray(c, dtype=float))
 
     def derivative_at(self, c: np.ndarray) -> np.ndarray:
         """dR/dC in 1/s (zero for zero order away from C = 0)."""
-        c = np.asarray(c, dtype=float)
-        if self.kind in ("none", "zero_order"):
-            return np.zeros_like(c)
-        if self.kind == "first_order":
-            return np.full_like(c, self.rate_constant)
-        if self.kind == "michaelis_menten":
-            return self.vmax * self.km / (self.km + c) ** 2
-        raise ValueError(f"unknown reaction kind {self.kind!r}")
+        return self.law.derivative_at(self, np.asarray(c, dtype=float))
 
     @property
     def linear_rate_constant(self) -> float | None:
         """k in R = k*C for the kinds where that holds (none: 0), else None."""
-        if self.kind == "none":
-            return 0.0
-        if self.kind == "first_order":
-            return self.rate_constant
-        return None
+        return self.law.linear_rate_constant(self)
 
 
 @dataclass(frozen=True)
@@ -107,6 +94,7 @@ class Boundary:
     ``flux``: flux density *into* the body = value; ``mass_transfer``: flux into the body =
     coefficient * (bulk - C_surface / K_face); ``symmetry``: zero flux.
     ``partition`` overrides K_face (default: the partition of the layer at that face).
+    The condition itself is the kind object ``condition`` (``worker.engine.boundaries``).
     """
 
     kind: str
@@ -114,6 +102,11 @@ class Boundary:
     coefficient: float = 0.0
     bulk: float = 0.0
     partition: float | None = None
+
+    @property
+    def condition(self) -> BoundaryKind:
+        """The kind object of ``worker.engine.boundaries`` (ValueError for an unknown kind)."""
+        return boundary_kind(self.kind)
 
 
 @dataclass(frozen=True)

@@ -8,9 +8,12 @@ biological and material data legitimately scatter by factors of 2-10.
 
 from __future__ import annotations
 
-from worker.engine.model import Problem
+from typing import TYPE_CHECKING
 
-TRADE_TABLE = "TRADE_RANGES.md §7 (screening bounds)"
+from worker.engine.screening import TRADE_TABLE
+
+if TYPE_CHECKING:
+    from worker.engine.model import Problem
 
 #: D above this is high for any solute in water at 37 °C (O2, about 3e-9 m^2/s, is near the top).
 DIFFUSIVITY_HIGH = 5e-9
@@ -19,19 +22,15 @@ DIFFUSIVITY_CM2_SUSPECT = 1e-6
 #: Below this no polymer of the table diffuses anything (glassy PLGA/PLA go down to ~1e-19).
 DIFFUSIVITY_LOW = 1e-20
 PARTITION_HIGH = 1e5
-FIRST_ORDER_RANGE = (1e-7, 1e-2)  # 1/s, drug elimination or degradation
-MASS_TRANSFER_RANGE = (1e-7, 1e-3)  # m/s, liquid-side coefficients
-VOLUMETRIC_RATE_HIGH_MOLAR = 0.3  # mol/(m^3 s), tissue or construct O2 consumption
-KM_HIGH_MOLAR = 0.05  # mol/m^3, respiration Km(O2)
 O2_CONCENTRATION_HIGH = 1.0  # mol/m^3, pure O2 at 1 atm in water
 
 
-def _outside(value: float, low: float | None, high: float | None) -> bool:
-    return (low is not None and value < low) or (high is not None and value > high)
-
-
 def input_warnings(problem: Problem) -> list[str]:
-    """Warnings for inputs outside the screening ranges, each naming its source row."""
+    """Warnings for inputs outside the screening ranges, each naming its source row.
+
+    The ranges of each kind's own parameters are the kind's (``plausibility_warnings`` of
+    ``worker.engine.reactions`` and ``worker.engine.boundaries``); the layer-wide ones are here.
+    """
     warnings: list[str] = []
     for index, layer in enumerate(problem.layers):
         where = f"layers[{index}] ({layer.name})"
@@ -49,8 +48,9 @@ def input_warnings(problem: Problem) -> list[str]:
             )
         elif d < DIFFUSIVITY_LOW:
             warnings.append(
-                f"{where}: diffusivity {d:.3g} m^2/s is below {DIFFUSIVITY_LOW:g} m^2/s, lower than "
-                f"glassy polymers ({TRADE_TABLE}, 'D in glassy/semicrystalline polymers')"
+                f"{where}: diffusivity {d:.3g} m^2/s is below {DIFFUSIVITY_LOW:g} m^2/s, "
+                f"lower than glassy polymers ({TRADE_TABLE}, 'D in glassy/semicrystalline "
+                "polymers')"
             )
         if layer.partition > PARTITION_HIGH:
             warnings.append(
@@ -58,43 +58,16 @@ def input_warnings(problem: Problem) -> list[str]:
                 f"({TRADE_TABLE}, 'partition coefficients')"
             )
         reaction = layer.reaction
-        if reaction.kind == "first_order" and _outside(reaction.rate_constant, *FIRST_ORDER_RANGE):
-            warnings.append(
-                f"{where}: first-order rate constant {reaction.rate_constant:.3g} 1/s is outside "
-                f"{FIRST_ORDER_RANGE[0]:g}–{FIRST_ORDER_RANGE[1]:g} 1/s "
-                f"({TRADE_TABLE}, 'first-order rate constant')"
-            )
-        if problem.basis == "molar":
-            volumetric = reaction.rate if reaction.kind == "zero_order" else reaction.vmax
-            if reaction.kind in ("zero_order", "michaelis_menten") and (
-                volumetric > VOLUMETRIC_RATE_HIGH_MOLAR
-            ):
-                warnings.append(
-                    f"{where}: volumetric consumption {volumetric:.3g} mol/(m^3 s) exceeds "
-                    f"{VOLUMETRIC_RATE_HIGH_MOLAR:g}, the upper screening limit for oxygen "
-                    f"consumption of tissue or constructs ({TRADE_TABLE}, 'O2 consumption per "
-                    "volume'); check the units if the solute is oxygen"
-                )
-            if reaction.kind == "michaelis_menten" and reaction.km > KM_HIGH_MOLAR:
-                warnings.append(
-                    f"{where}: km {reaction.km:.3g} mol/m^3 exceeds {KM_HIGH_MOLAR:g} mol/m^3, the "
-                    f"screening limit for Km(O2) of respiration ({TRADE_TABLE}, 'Km(O2)'); "
-                    "applies if the solute is oxygen"
-                )
+        warnings.extend(reaction.law.plausibility_warnings(reaction, where, problem.basis))
     for side in ("inner", "outer"):
         boundary = problem.inner_boundary if side == "inner" else problem.outer_boundary
-        if boundary.kind == "mass_transfer" and _outside(boundary.coefficient, *MASS_TRANSFER_RANGE):
-            warnings.append(
-                f"{side}_boundary: mass-transfer coefficient {boundary.coefficient:.3g} m/s is "
-                f"outside {MASS_TRANSFER_RANGE[0]:g}–{MASS_TRANSFER_RANGE[1]:g} m/s "
-                f"({TRADE_TABLE}, 'fluid-side mass-transfer coefficient')"
-            )
-        fluid = boundary.value if boundary.kind == "concentration" else boundary.bulk
+        warnings.extend(boundary.condition.plausibility_warnings(boundary, side))
+        fluid = boundary.condition.fluid_concentration(boundary)
         if (
             problem.basis == "molar"
-            and boundary.kind in ("concentration", "mass_transfer")
+            and fluid is not None
             and fluid > O2_CONCENTRATION_HIGH
-            and any(ly.reaction.kind == "michaelis_menten" for ly in problem.layers)
+            and any(ly.reaction.law.saturable for ly in problem.layers)
         ):
             warnings.append(
                 f"{side}_boundary: fluid concentration {fluid:.3g} mol/m^3 exceeds "

@@ -36,11 +36,8 @@ def largest_surface_concentration(problem: Problem, layer_index: int) -> float |
     faces = ((problem.inner_boundary, "inner", problem.layers[0]),
              (problem.outer_boundary, "outer", problem.layers[-1]))
     for boundary, side, face_layer in faces:
-        if boundary.kind == "concentration":
-            fluid = boundary.value
-        elif boundary.kind == "mass_transfer" and boundary.coefficient > 0.0:
-            fluid = boundary.bulk
-        else:
+        fluid = boundary.condition.fluid_concentration(boundary)
+        if fluid is None or not boundary.condition.fixes_level(boundary):
             continue
         candidates.append(problem.face_partition(side) * fluid / face_layer.partition)
     if not candidates:
@@ -71,16 +68,10 @@ def thiele_modulus(layer: Layer, problem: Problem) -> float | None:
     """
     index = problem.layers.index(layer)
     reaction = layer.reaction
-    if reaction.kind == "first_order":
-        k = reaction.rate_constant
-    elif reaction.kind == "michaelis_menten":
-        k = reaction.vmax / reaction.km
-    elif reaction.kind == "zero_order":
-        surface = largest_surface_concentration(problem, index)
-        if surface is None or surface <= 0.0:
-            return None
-        k = reaction.rate / surface
-    else:
+    k = reaction.law.thiele_rate_constant(
+        reaction, lambda: largest_surface_concentration(problem, index)
+    )
+    if k is None:
         return None
     return float(layer.thickness * math.sqrt(k / layer.diffusivity))
 
@@ -90,7 +81,7 @@ def _sphere_series(phi: np.ndarray) -> np.ndarray:
 
     (The Laurent series of coth, Abramowitz & Stegun 1964, 4.5.67, with 2^2k |B_2k| / (2k)! =
     2 zeta(2k) / pi^2k, 23.2.16; equation numbers from memory, the series is checked against
-    mpmath in tests/unit/test_basis_functions.py.)
+    mpmath in tests/unit/worker/engine/test_basis_functions.py.)
     """
     total = np.zeros_like(phi)
     ratio_squared = (phi / np.pi) ** 2

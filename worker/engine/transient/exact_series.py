@@ -106,17 +106,7 @@ class TransientSeriesSolution(TransientSolution):
 def _face_row(boundary: Boundary, side: str, diffusivity: float, face_partition: float):
     """Boundary condition at one face as (alpha, beta, gamma), flux rows divided by D."""
     outward = 1.0 if side == "outer" else -1.0
-    if boundary.kind == "concentration":
-        return 1.0, 0.0, face_partition * boundary.value
-    if boundary.kind == "symmetry":
-        return 0.0, outward, 0.0
-    if boundary.kind == "flux":
-        # flux into the body = -J at the outer face, +J at the inner face, J = -D f'
-        return 0.0, outward, boundary.value / diffusivity
-    if boundary.kind == "mass_transfer":
-        h = boundary.coefficient
-        return h / (face_partition * diffusivity), outward, h * boundary.bulk / diffusivity
-    raise ValueError(f"unknown boundary kind {boundary.kind!r}")
+    return boundary.condition.eigen_row(boundary, outward, diffusivity, face_partition)
 
 
 def _row_value(row, value, derivative):
@@ -289,11 +279,10 @@ def series_unsupported_reason(problem: Problem) -> str | None:
     if len(problem.layers) != 1:
         return "more than one layer"
     layer = problem.layers[0]
-    if layer.reaction.kind not in ("none", "first_order"):
+    if not layer.reaction.law.is_linear:
         return f"{layer.reaction.kind} kinetics are nonlinear"
     anchored = [
-        b.kind == "concentration" or (b.kind == "mass_transfer" and b.coefficient > 0.0)
-        for b in (problem.inner_boundary, problem.outer_boundary)
+        b.condition.fixes_level(b) for b in (problem.inner_boundary, problem.outer_boundary)
     ]
     if not any(anchored):
         return "no concentration or mass-transfer face (no decaying steady approach in this form)"
@@ -569,15 +558,15 @@ def _ierfc(x):
 
 def _sink_geometry(problem: Problem) -> tuple[str, float] | None:
     """('sheet', l) / ('cylinder', a) / ('sphere', a) for uniform release into a perfect sink."""
-    if len(problem.layers) != 1 or problem.layers[0].reaction.kind != "none":
+    if len(problem.layers) != 1 or problem.layers[0].reaction.law.reacts:
         return None
     kinds = [problem.inner_boundary, problem.outer_boundary]
 
-    def sink(b):
-        return b.kind == "concentration" and b.value == 0.0
+    def sink(b: Boundary) -> bool:
+        return b.condition.is_perfect_sink(b)
 
-    def sealed(b):
-        return b.kind == "symmetry" or (b.kind == "flux" and b.value == 0.0)
+    def sealed(b: Boundary) -> bool:
+        return b.condition.is_sealed(b)
 
     if problem.geometry == "slab":
         if sink(kinds[0]) and sink(kinds[1]):
@@ -595,9 +584,11 @@ def _outer_share(problem: Problem) -> float:
     inner, outer = problem.inner_boundary, problem.outer_boundary
     if problem.geometry != "slab":
         return 1.0
-    if inner.kind == "concentration" and outer.kind == "concentration":
+    inner_sink = inner.condition.is_perfect_sink(inner)
+    outer_sink = outer.condition.is_perfect_sink(outer)
+    if inner_sink and outer_sink:
         return 0.5
-    return 1.0 if outer.kind == "concentration" else 0.0
+    return 1.0 if outer_sink else 0.0
 
 
 def short_time_release_fraction(problem: Problem, times) -> np.ndarray | None:

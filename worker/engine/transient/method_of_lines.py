@@ -107,10 +107,9 @@ def concentration_scale(problem: Problem) -> float:
                 max(abs(layer.initial) for layer in problem.layers))
     if scale == 0.0:
         # flux-driven with an empty body: use the flux over the conductance of the body
-        flux = max(abs(problem.inner_boundary.value) if problem.inner_boundary.kind == "flux"
-                   else 0.0,
-                   abs(problem.outer_boundary.value) if problem.outer_boundary.kind == "flux"
-                   else 0.0)
+        imposed = (b.condition.imposed_flux(b)
+                   for b in (problem.inner_boundary, problem.outer_boundary))
+        flux = max(abs(value) if value is not None else 0.0 for value in imposed)
         d_min = min(layer.diffusivity for layer in problem.layers)
         scale = flux * problem.total_thickness / d_min
     return scale if scale > 0.0 else 1.0

@@ -5,17 +5,17 @@ from __future__ import annotations
 import json
 from pathlib import Path
 
-import pytest
 import jsonschema
+import pytest
 from click.testing import CliRunner
 
 from schemas import CaseError
 from service.cli import main
 from worker.engine import check_case
 
-DEMO = Path(__file__).parents[2] / "demo" / "cases"
+DEMO = Path(__file__).parents[3] / "service" / "demo_cases"
 RESULT_SCHEMA = json.loads(
-    (Path(__file__).parents[2] / "schemas" / "json" / "result-v1.schema.json").read_text())
+    (Path(__file__).parents[3] / "schemas" / "json" / "result-v1.schema.json").read_text())
 
 
 def _case(**overrides) -> dict:

@@ -7,7 +7,6 @@ from sqlalchemy import func, select
 
 from service.runs import create_run, execute_run
 from service.store.models import AuditEvent, Run
-from tests.api.conftest import controlled_engine, data_dir, migrated_template  # noqa: F401
 from tests.api.support import make_case
 
 

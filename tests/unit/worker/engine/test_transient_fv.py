@@ -55,7 +55,8 @@ def test_first_order_decay_of_a_sealed_uniform_body():
 
 def test_zero_order_stops_at_zero_and_balances():
     # Sealed body with zero-order consumption: it empties at t = C0/Q and no further (the
-    # depletion rule of DESIGN.md); the consumed amount equals the initial load.
+    # zero-order uptake finds a depleted zone, never a negative concentration: README, "The case
+    # document"); the consumed amount equals the initial load.
     rate, c0 = 1e-3, 0.5  # empties at 500 s
     problem = _slab([Layer("a", 1e-3, 1e-10, reaction=Reaction("zero_order", rate=rate),
                            initial=c0)], SEALED, Boundary("flux", 0.0),

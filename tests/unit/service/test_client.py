@@ -8,7 +8,6 @@ from service.app import create_app, shutdown_app
 from service.client import ApiError, Client
 from service.server import BackgroundServer
 from service.tokens import create_token
-from tests.api.conftest import controlled_engine, data_dir, migrated_template  # noqa: F401
 from tests.api.support import make_case
 
 

@@ -4,14 +4,15 @@ from __future__ import annotations
 
 import json
 
+import click
 from click.testing import CliRunner
 from sqlalchemy import select, text
 
-from service.cli import main
+from service.cli import SUBCOMMANDS, main
+from service.demo import case_files, packaged_cases
 from service.store import default_store
 from service.store.models import Token
 from service.tokens import identify, token_digest
-from tests.api.conftest import controlled_engine, data_dir, migrated_template  # noqa: F401
 from tests.api.support import make_case
 
 
@@ -93,8 +94,33 @@ def test_worker_needs_a_broker(data_dir):  # noqa: F811
     assert result.exit_code == 2 and "FLUXPROOF_BROKER_URL" in result.output
 
 
-def test_check_command_is_still_registered():
-    assert "check" in main.commands
+def test_every_command_is_listed_and_loads_with_the_help_declared_for_it():
+    context = click.Context(main)
+    assert main.list_commands(context) == sorted(SUBCOMMANDS)
+    assert "check" in SUBCOMMANDS
+    for name, declared in SUBCOMMANDS.items():
+        command = main.get_command(context, name)
+        assert command.name == name
+        # `fluxproof --help` prints the declared line without importing the command.
+        assert command.get_short_help_str(limit=500) == declared.short_help, name
+
+
+def test_demo_defaults_to_the_packaged_cases_and_var_demo_reports(tmp_path, monkeypatch,
+                                                                   data_dir,  # noqa: F811
+                                                                   controlled_engine):  # noqa: F811
+    packaged = [entry.name for entry in case_files(packaged_cases())]
+    assert len(packaged) >= 7 and all(name.endswith(".json") for name in packaged)
+    monkeypatch.chdir(tmp_path)  # no source tree here: the cases come from the package
+    result = CliRunner().invoke(main, ["demo"])
+    assert result.exit_code == 0, result.output
+    written = sorted(p.name for p in (tmp_path / "var" / "demo-reports").iterdir())
+    assert written == [name.removesuffix(".json") + ".html" for name in packaged]
+
+
+def test_demo_without_cases_says_so(tmp_path, data_dir):  # noqa: F811
+    result = CliRunner().invoke(main, ["demo", "--cases", str(tmp_path / "none"),
+                                       "--reports", str(tmp_path / "r")])
+    assert result.exit_code == 1 and "no demo cases found" in result.output
 
 
 def _demo_cases(tmp_path):
@@ -107,7 +133,7 @@ def _demo_cases(tmp_path):
 
 
 def test_demo_prints_verdicts_writes_reports_and_the_caution(tmp_path, data_dir,  # noqa: F811
-                                                             controlled_engine):
+                                                             controlled_engine):  # noqa: F811
     cases = _demo_cases(tmp_path)
     reports = tmp_path / "reports"
     result = CliRunner().invoke(main, ["demo", "--cases", str(cases), "--reports", str(reports)])

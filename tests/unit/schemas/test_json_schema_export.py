@@ -15,11 +15,10 @@ import pytest
 from jsonschema import Draft202012Validator
 from marshmallow import ValidationError
 
-from schemas import CaseError, validate_case
-from schemas import export
+from schemas import CaseError, export, validate_case
 from schemas.result import validate_result
 
-DEMO_CASES = sorted((Path(__file__).parents[2] / "demo" / "cases").glob("*.json"))
+DEMO_CASES = sorted((Path(__file__).parents[3] / "service" / "demo_cases").glob("*.json"))
 
 #: Invented: a solid sphere with first-order uptake, values in object form.
 SPHERE_STEADY = {
@@ -109,7 +108,7 @@ def _case_documents():
 
 
 def test_there_are_demo_cases():
-    assert DEMO_CASES, "demo/cases/*.json is empty"
+    assert DEMO_CASES, "service/demo_cases/*.json is empty"
 
 
 @pytest.mark.parametrize("document", _case_documents())

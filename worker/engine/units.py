@@ -30,7 +30,7 @@ from collections.abc import Mapping
 from dataclasses import dataclass
 from functools import cached_property, lru_cache
 from types import MappingProxyType
-from typing import Any
+from typing import Any, cast
 
 #: Longest unit expression accepted, in characters.
 MAX_UNIT_LENGTH = 64
@@ -250,7 +250,8 @@ def _check_unit_grammar(unit: str) -> None:
                 "holds unit names, '*', '/', '^' with a small integer exponent, and parentheses"
             )
         if match.lastgroup == "power":
-            exponent = int(_EXPONENT_DIGITS_RE.search(match.group()).group())
+            digits = cast(re.Match[str], _EXPONENT_DIGITS_RE.search(match.group()))
+            exponent = int(digits.group())
             if abs(exponent) > MAX_UNIT_EXPONENT:
                 raise ValueError(f"exponent {exponent} is larger than {MAX_UNIT_EXPONENT}")
         position = match.end()
@@ -351,7 +352,8 @@ def _split(raw: Any, kind: Kind, path: str) -> tuple[decimal.Decimal, str, str]:
         if len(raw) > MAX_QUANTITY_STRING_LENGTH:
             raise UnitError(
                 path,
-                f"{kind.expected}, got a string longer than {MAX_QUANTITY_STRING_LENGTH} characters",
+                f"{kind.expected}, got a string longer than "
+                f"{MAX_QUANTITY_STRING_LENGTH} characters",
             )
         match = _QUANTITY_STRING_RE.match(raw)
         if match is None:
@@ -363,7 +365,8 @@ def _split(raw: Any, kind: Kind, path: str) -> tuple[decimal.Decimal, str, str]:
                 raise UnitError(path, f"{kind.expected}, got {shown}: the number is not finite")
             raise UnitError(
                 path,
-                f'{kind.expected}, got {shown}: "{number_text}" is not a number followed by a space',
+                f'{kind.expected}, got {shown}: "{number_text}" is not a number followed '
+                "by a space",
             )
         if not math.isfinite(float(number_text)):
             raise UnitError(path, f"{kind.expected}, got {shown}: the number is out of range")
@@ -380,21 +383,21 @@ def _split(raw: Any, kind: Kind, path: str) -> tuple[decimal.Decimal, str, str]:
             )
         if "value" not in raw:
             raise UnitError(path, f"{kind.expected}; the object form needs a 'value'")
-        number, unit = raw["value"], raw.get("unit")
-        if isinstance(number, bool) or not isinstance(number, int | float):
-            raise UnitError(path, f"{kind.expected}; 'value' must be a number, got {number!r}")
+        given, unit = raw["value"], raw.get("unit")
+        if isinstance(given, bool) or not isinstance(given, int | float):
+            raise UnitError(path, f"{kind.expected}; 'value' must be a number, got {given!r}")
         if unit is None:
             unit = ""
         if not isinstance(unit, str):
             raise UnitError(path, f"{kind.expected}; 'unit' must be a string, got {unit!r}")
         try:
-            number = float(number)
+            given = float(given)
         except OverflowError:
-            number = math.inf
-        shown = f'"{number!r} {unit}"' if unit else f"{number!r}"
-        if not math.isfinite(number):
+            given = math.inf
+        shown = f'"{given!r} {unit}"' if unit else f"{given!r}"
+        if not math.isfinite(given):
             raise UnitError(path, f"{kind.expected}, got {shown}: the number is not finite")
-        number = decimal.Decimal(repr(number))
+        number = decimal.Decimal(repr(given))
     elif isinstance(raw, bool) or raw is None or not isinstance(raw, int | float):
         raise UnitError(path, f"{kind.expected}, got {raw!r}")
     else:
@@ -456,17 +459,17 @@ def parse_quantity(raw: Any, dimension: str, path: str = "") -> float:
 
 def parse_concentration(raw: Any, path: str = "") -> tuple[float, str]:
     """A concentration in mol/m^3 (basis ``"molar"``) or kg/m^3 (basis ``"mass"``)."""
-    return parse_with_basis(raw, "concentration", path)
+    return cast(tuple[float, str], parse_with_basis(raw, "concentration", path))
 
 
 def parse_volumetric_rate(raw: Any, path: str = "") -> tuple[float, str]:
     """A reaction rate in mol/(m^3*s) (``"molar"``) or kg/(m^3*s) (``"mass"``)."""
-    return parse_with_basis(raw, "volumetric_rate", path)
+    return cast(tuple[float, str], parse_with_basis(raw, "volumetric_rate", path))
 
 
 def parse_flux(raw: Any, path: str = "") -> tuple[float, str]:
     """A flux density in mol/(m^2*s) (``"molar"``) or kg/(m^2*s) (``"mass"``)."""
-    return parse_with_basis(raw, "flux", path)
+    return cast(tuple[float, str], parse_with_basis(raw, "flux", path))
 
 
 def si_unit(kind: str, basis: str | None = None) -> str:

@@ -1,4 +1,5 @@
-"""Tests of worker.units: parsing dimensional values into SI, and the SI unit names of results.
+"""Tests of worker.engine.units: parsing dimensional values into SI, and the SI unit names of
+results.
 
 Conversion factors checked here are facts of the SI and of unit definitions (common practice):
 1 um = 1e-6 m, 1 mL = 1e-6 m^3, 1 mg = 1e-6 kg, 1 d = 86400 s, 1 M = 1 mol/L = 1000 mol/m^3,
@@ -12,8 +13,8 @@ import math
 
 import pytest
 
-from worker import units
-from worker.units import (
+from worker.engine import units
+from worker.engine.units import (
     UnitError,
     format_dimensionality,
     format_si,
@@ -25,7 +26,6 @@ from worker.units import (
     si_unit,
     unit_to_si,
 )
-
 
 # --- conversions (common practice: SI prefixes and unit definitions) --------------------------
 

@@ -15,7 +15,6 @@ from service import audit
 from service.batches import start_batch
 from service.runs import create_run, execute_run
 from service.store.models import AuditEvent, Run
-from tests.api.conftest import controlled_engine, data_dir, migrated_template  # noqa: F401
 from tests.api.support import make_case
 
 

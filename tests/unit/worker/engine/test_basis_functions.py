@@ -135,7 +135,9 @@ def test_effectiveness_factor_rejects_bad_input():
 
 
 def test_thiele_modulus_definitions():
-    """DESIGN.md: thickness * sqrt(k/D), k = rate_constant or vmax/km; zero order
+    """Thiele modulus (E.W. Thiele, Ind. Eng. Chem. 31 (1939) 916-920; R. Aris, The Mathematical
+    Theory of Diffusion and Reaction in Permeable Catalysts, 1975): thickness * sqrt(k/D),
+    k = rate_constant or vmax/km; zero order
     thickness * sqrt(Q/(D Cs)) with Cs the largest surface concentration; None without
     reaction."""
     layers = (Layer("core", 2e-3, 1e-9, reaction=Reaction("first_order", rate_constant=4e-3)),

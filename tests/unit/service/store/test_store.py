@@ -95,10 +95,10 @@ def test_concurrent_appends_keep_the_chain_linear(tmp_path):
     """Eight threads appending at once (SQLite, or FLUXPROOF_TEST_DATABASE_URL): one chain, no
     gaps, verifies."""
     from service import audit
-    from tests.api.conftest import TEST_DATABASE_URL, _empty_database
+    from tests.api.support import TEST_DATABASE_URL, empty_database
 
     if TEST_DATABASE_URL:
-        _empty_database(TEST_DATABASE_URL)
+        empty_database(TEST_DATABASE_URL)
         store = Store(TEST_DATABASE_URL, pool_size=8)
     else:
         store = Store(f"sqlite:///{tmp_path / 'c.sqlite3'}", pool_size=8)

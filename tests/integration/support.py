@@ -1,0 +1,46 @@
+"""Helpers of the integration tests (their fixtures live in ``tests/conftest.py``)."""
+
+from __future__ import annotations
+
+import time
+from typing import Any
+
+from tests.api.support import bearer
+from tests.integration.real_services import PostgresSchema, RedisLease
+
+ROLE_NAMES = {"engineer": "ivo.integration-engineer", "reviewer": "rhea.integration-reviewer",
+              "auditor": "aurel.integration-auditor", "admin": "ada.integration-admin"}
+
+
+def worker_settings(schema: PostgresSchema, broker: RedisLease) -> dict[str, str]:
+    return {"FLUXPROOF_DATABASE_URL": schema.url, "FLUXPROOF_BROKER_URL": broker.url,
+            "FLUXPROOF_AUTO_MIGRATE": "false"}
+
+
+def make_app(schema: PostgresSchema, broker: RedisLease):
+    from service.app import create_app
+
+    return create_app({"TESTING": True, "DATABASE_URL": schema.url, "BROKER_URL": broker.url,
+                       "DISPATCH": "celery"})
+
+
+def create_tokens(store: Any) -> dict[str, str]:
+    """role -> a fresh bearer token (each role's own person)."""
+    from service.tokens import create_token
+
+    return {role: create_token(store, role=role, name=name)[1]
+            for role, name in ROLE_NAMES.items()}
+
+
+def wait_finished(client: Any, token: str, run_id: str, timeout: float = 60.0) -> dict:
+    """Poll ``GET /v1/runs/{run_id}`` until the run is succeeded or failed."""
+    deadline = time.monotonic() + timeout
+    while True:
+        response = client.get(f"/v1/runs/{run_id}", headers=bearer(token))
+        assert response.status_code == 200, response.get_json()
+        record = response.get_json()
+        if record["status"] in ("succeeded", "failed"):
+            return record
+        if time.monotonic() > deadline:
+            raise AssertionError(f"run {run_id} still {record['status']} after {timeout} s")
+        time.sleep(0.05)
