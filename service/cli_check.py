@@ -54,7 +54,7 @@ def check(case_file: str, output_format: str) -> None:
     if output_format == "json":
         click.echo(json.dumps(record, indent=2, allow_nan=False))
     else:
-        from service.report_text import render_text
+        from service.report.text import render_text
 
         click.echo(render_text(record, case))
     sys.exit(EXIT_PASS if record["verdict"] == "pass" else EXIT_FAIL)

@@ -18,6 +18,7 @@ from flask import current_app, g, redirect, request, session, url_for
 
 from service.auth import ROLE_MATRIX
 from service.errors import Forbidden
+from service.report.html import DEFAULT_CAUTION
 from service.store.models import Token
 from service.tokens import Identity, identify
 from service.ui import csrf
@@ -118,8 +119,6 @@ def safe_next(target: str | None) -> str:
 
 def template_globals() -> dict[str, Any]:
     person = g.get("person")
-    from service.report import DEFAULT_CAUTION
-
     return {"person": person, "csrf_token": csrf.csrf_token, "caution_text": DEFAULT_CAUTION,
             "may_open": (lambda endpoint: person is not None and may_open(person.role,
                                                                            endpoint))}

@@ -6,10 +6,10 @@ from flask import render_template
 
 from service.api.context import services
 from service.batches import get_batch
+from service.report.numbers import number_markup
 from service.store.models import FINISHED_STATES
 from service.ui import queries
 from service.ui.blueprint import ui
-from service.ui.numbers import number_markup
 
 #: Seconds between reloads of a batch page while the batch runs (a meta refresh: no script).
 REFRESH_SECONDS = 3

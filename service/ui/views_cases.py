@@ -8,11 +8,11 @@ from markupsafe import Markup
 from service import cases
 from service.api.context import services
 from service.batches import _tolerance as drift_tolerance
-from service.report import QUANTITY_WORDS
+from service.report.html import QUANTITY_WORDS
+from service.report.numbers import quantity_markup
+from service.report.plot_trend import scalar, trend_names, trend_svg
 from service.ui import queries
 from service.ui.blueprint import ui
-from service.ui.numbers import quantity_markup
-from service.ui.plot_trend import scalar, trend_names, trend_svg
 
 #: The history table shows at most this many runs (the newest), side by side.
 HISTORY_COLUMNS = 12

@@ -11,7 +11,7 @@ from service import signoffs
 from service.api.bodies import COMMENT_MAX
 from service.api.context import services
 from service.errors import Conflict, FourEyesViolation
-from service.report import render_report, report_context
+from service.report.html import render_report, report_context
 from service.store.models import DECISIONS, RUN_STATES
 from service.tokens import Identity
 from service.ui import queries
