@@ -46,14 +46,14 @@ def worker(concurrency: int | None, loglevel: str, beat: bool) -> None:
         raise click.UsageError("FLUXPROOF_BROKER_URL is not set: a worker needs a broker "
                                "(e.g. redis://127.0.0.1:6379/0). Without one, `fluxproof "
                                "serve` runs checks in-process.")
-    from worker.celery_app import celery_app
+    from service.celery_client import run_worker
 
-    argv = ["worker", f"--loglevel={loglevel}"]
+    argv = [f"--loglevel={loglevel}"]
     if concurrency:
         argv.append(f"--concurrency={concurrency}")
     if beat:
         argv.append("--beat")
-    celery_app.worker_main(argv)
+    run_worker(argv)
 
 
 @click.group("db")

@@ -12,7 +12,7 @@ import uuid
 
 from celery.signals import before_task_publish
 
-from service.dispatch import EXECUTE_RUN_TASK
+from service.task_names import EXECUTE_RUN_TASK
 from tests.integration.conftest import bearer, create_tokens
 from tests.integration.invented_cases import single_layer_case
 
