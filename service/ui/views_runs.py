@@ -2,16 +2,17 @@
 
 from __future__ import annotations
 
+from typing import Any
+
 from flask import flash, g, jsonify, redirect, render_template, request, url_for
 
+from service import listing, signoffs
 from service import runs as run_service
-from service import signoffs
 from service.api.bodies import COMMENT_MAX
 from service.api.context import services
 from service.errors import Conflict, Forbidden
 from service.report.html import render_report, report_context
 from service.store.models import DECISIONS, RUN_STATES
-from service.ui import queries
 from service.ui.blueprint import ui
 
 
@@ -22,16 +23,43 @@ def _offset() -> int:
         return 0
 
 
+def parse_filters(args: Any) -> tuple[listing.RunFilters, list[dict[str, str]]]:
+    """The runs list's filters from its query string; unknown values are reported (field, what
+    was expected)."""
+    errors: list[dict[str, str]] = []
+
+    def choice(name: str, allowed: tuple[str, ...]) -> str | None:
+        value = (args.get(name) or "").strip()
+        if not value:
+            return None
+        if value not in allowed:
+            errors.append({"path": name, "message": f"expected one of {', '.join(allowed)}, "
+                                                    f"got {value!r}"})
+            return None
+        return value
+
+    def yes_no(name: str) -> bool | None:
+        value = choice(name, ("yes", "no"))
+        return None if value is None else value == "yes"
+
+    tag = (args.get("tag") or "").strip() or None
+    filters = listing.RunFilters(verdict=choice("verdict", listing.VERDICTS),
+                                 status=choice("status", RUN_STATES), tag=tag,
+                                 signed=yes_no("signed"), drifted=yes_no("drifted"))
+    return filters, errors
+
+
+
 @ui.get("/runs")
 def runs():
-    filters, errors = queries.parse_filters(request.args)
+    filters, errors = parse_filters(request.args)
     store = services().store
     offset = _offset()
-    page = queries.list_runs(store, filters, offset=offset)
+    page = listing.list_runs(store, filters, offset=offset)
     return render_template("ui_runs.html", page=page, filters=filters, errors=errors,
-                           tags=queries.all_tags(store), states=RUN_STATES,
-                           verdicts=queries.VERDICTS, query=filters.as_query(),
-                           page_size=queries.PAGE_SIZE), 422 if errors else 200
+                           tags=listing.all_tags(store), states=RUN_STATES,
+                           verdicts=listing.VERDICTS, query=filters.as_query(),
+                           page_size=listing.PAGE_SIZE), 422 if errors else 200
 
 
 def _run_page(run_id: str, *, status: int = 200, form_errors: list[dict[str, str]] | None = None,
