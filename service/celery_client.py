@@ -28,7 +28,6 @@ from collections.abc import Iterable, Mapping, Sequence
 from typing import Any
 
 from celery import Celery
-from celery.bin.celery import celery as celery_command
 from celery.schedules import crontab
 from click.exceptions import Exit
 from kombu import Exchange, Queue
@@ -107,12 +106,17 @@ def celery_config(settings: Mapping[str, Any]) -> dict[str, Any]:
 def make_celery_app(settings: Mapping[str, Any], include: Iterable[str] = ()) -> Celery:
     """A Celery app configured from ``settings``. Without ``include`` it only sends tasks by
     name (the service's client); the workers' app includes the task modules."""
-    return Celery("fluxproof", include=list(include), config_source=celery_config(settings))
+    app = Celery("fluxproof", include=list(include))
+    app.conf.update(celery_config(settings))
+    return app
 
 
 def run_worker(arguments: Sequence[str]) -> None:
     """Run a Celery worker of the workers' app, loaded by name as ``celery --app`` loads it;
     ``arguments`` follow the ``worker`` sub-command (e.g. ``["--loglevel=INFO"]``)."""
+    # Celery's command line is loaded only here: it costs the API process most of a second.
+    from celery.bin.celery import celery as celery_command
+
     try:
         celery_command.main(args=["--app", WORKER_APP, "worker", *arguments],
                             prog_name="celery", standalone_mode=False)

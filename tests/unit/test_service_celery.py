@@ -175,12 +175,13 @@ def test_the_service_client_sends_a_run_by_name_without_the_task_code():
 
 def test_fluxproof_worker_starts_the_workers_app_loaded_by_name(monkeypatch):
     from celery.app.utils import find_app
+    from celery.bin.celery import celery as celery_command
 
     import service.celery_client
     import worker.celery_app
 
     seen = []
-    monkeypatch.setattr(service.celery_client.celery_command, "main",
+    monkeypatch.setattr(celery_command, "main",
                         lambda **kwargs: seen.append(kwargs))
     service.celery_client.run_worker(["--loglevel=INFO", "--beat"])
     assert seen[0]["args"] == ["--app", "worker.celery_app", "worker", "--loglevel=INFO",
