@@ -4,6 +4,8 @@ from __future__ import annotations
 
 from collections.abc import Iterator
 
+from worker.engine.transient_check import format_release_table
+
 RULE = "-" * 78
 
 
@@ -75,8 +77,6 @@ def render_text(record: dict, case: dict) -> str:
         for r, c in zip(probes["position"], probes["concentration"], strict=True):
             add(f"  r = {r:<12.6g} m   C = {c:.6g} {unit}")
     if "time" in record.get("series", {}):
-        from worker.engine.transient_check import format_release_table
-
         add(RULE)
         add(format_release_table(record))
     add(RULE)
