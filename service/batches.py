@@ -166,6 +166,9 @@ def _tolerance(document: dict[str, Any]) -> float:
     return DEFAULT_DRIFT_TOLERANCE
 
 
+drift_tolerance = _tolerance  # the public name: the relative drift tolerance of a case document
+
+
 def compare_quantities(baseline: dict[str, Any] | None, now: dict[str, Any] | None,
                        tolerance: float) -> list[dict[str, Any]]:
     """The scalar quantities of two records that differ beyond ``tolerance`` (relative)."""

@@ -8,7 +8,7 @@ import sys
 import click
 
 from schemas import CaseError
-from service.report_text import render_text
+from service.report.text import render_text
 from worker.engine import check_case
 
 EXIT_PASS, EXIT_FAIL, EXIT_INVALID = 0, 1, 2

@@ -1,15 +1,16 @@
 """``fluxproof worker``: a Celery worker node for queued runs.
 
-The one command module that imports the Celery app (:mod:`worker.celery_app`, the layer above
-``service``); the lazy group in :mod:`service.cli` loads it only when ``fluxproof worker`` runs.
+It starts Celery's worker on :mod:`worker.celery_app` by name
+(:func:`service.celery_client.run_worker`), so the service never imports the layer above it;
+the lazy group in :mod:`service.cli` loads this module only when ``fluxproof worker`` runs.
 """
 
 from __future__ import annotations
 
 import click
 
+from service.celery_client import run_worker
 from service.settings import settings_from_env
-from worker.celery_app import celery_app
 
 
 @click.command("worker")
@@ -25,9 +26,9 @@ def worker(concurrency: int | None, loglevel: str, beat: bool) -> None:
         raise click.UsageError("FLUXPROOF_BROKER_URL is not set: a worker needs a broker "
                                "(e.g. redis://127.0.0.1:6379/0). Without one, `fluxproof "
                                "serve` runs checks in-process.")
-    argv = ["worker", f"--loglevel={loglevel}"]
+    argv = [f"--loglevel={loglevel}"]
     if concurrency:
         argv.append(f"--concurrency={concurrency}")
     if beat:
         argv.append("--beat")
-    celery_app.worker_main(argv)
+    run_worker(argv)

@@ -3,7 +3,9 @@
 Every dispatcher takes run ids whose rows are already committed, and every executor calls the
 same :func:`service.runs.execute_run`. The API behaves the same either way (202, then poll).
 
-* ``CeleryDispatcher``: sends ``fluxproof.execute_run`` to the broker; workers run it.
+* ``CeleryDispatcher``: publishes :data:`~service.task_names.EXECUTE_RUN_TASK` by name through
+  the service's Celery client (:mod:`service.celery_client`, no task code in this process);
+  workers run it (:mod:`worker.tasks`, a thin task around :func:`service.runs.execute_run`).
 * ``EmbeddedDispatcher``: a ``ThreadPoolExecutor`` in the service process. There is no time
   limit on a solve here (a thread cannot be stopped); use workers where that matters.
 * ``InlineDispatcher``: runs at once in the caller's thread (tests and command-line tools).
@@ -13,16 +15,16 @@ from __future__ import annotations
 
 import logging
 from collections.abc import Iterable
-from concurrent.futures import Future, ThreadPoolExecutor
+from concurrent.futures import Future, ThreadPoolExecutor, wait
 from typing import Any, Protocol
 
+from service.celery_client import make_celery_app
 from service.errors import ServiceUnavailable
 from service.runs import execute_run
 from service.store import Store
+from service.task_names import EXECUTE_RUN_TASK
 
 logger = logging.getLogger(__name__)
-
-EXECUTE_RUN_TASK = "fluxproof.execute_run"
 
 
 class Dispatcher(Protocol):
@@ -79,8 +81,6 @@ class EmbeddedDispatcher:
 
     def wait_idle(self, timeout: float | None = None) -> None:
         """Block until every run sent so far has been executed (tests, shutdown)."""
-        from concurrent.futures import wait
-
         wait(list(self._futures), timeout=timeout)
 
     def state(self) -> dict[str, Any]:
@@ -94,25 +94,24 @@ class CeleryDispatcher:
     mode = "celery"
 
     def __init__(self, settings: dict[str, Any]) -> None:
-        from worker.celery_app import make_celery
-
-        self.celery = make_celery(settings)
+        self.celery = make_celery_app(settings)  # a client: it sends tasks by name only
 
     def send(self, run_ids: Iterable[str]) -> None:
         """Publish one message per run, all through one producer (one broker connection
         acquired once, not once per message)."""
         pending = list(run_ids)
-        index = 0
+        sent = 0
         try:
             with self.celery.producer_or_acquire() as producer:
-                for index, run_id in enumerate(pending):
+                for run_id in pending:
                     self.celery.send_task(EXECUTE_RUN_TASK, args=[run_id], retry=True,
                                           retry_policy={"max_retries": 2,
                                                         "interval_start": 0.2,
                                                         "interval_step": 0.5},
                                           producer=producer)
+                    sent += 1
         except Exception as exc:
-            unsent = pending[index:]
+            unsent = pending[sent:]
             raise ServiceUnavailable(
                 "The broker could not be reached. The runs are stored as queued and will run "
                 "once they are sent again (fluxproof serve re-sends unfinished runs at start).",

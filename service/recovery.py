@@ -37,6 +37,7 @@ from sqlalchemy import and_, or_, select
 
 from service.store import Store
 from service.store.models import Run, utc_now
+from service.task_names import EXECUTE_RUN_TASK
 
 logger = logging.getLogger(__name__)
 
@@ -53,8 +54,6 @@ LOCK_KEY = "fluxproof:recovery-lock"
 LOCK_SECONDS = 120
 #: Largest number of runs sent again in one sweep (the next sweep takes the rest).
 MAX_PER_SWEEP = 5000
-
-EXECUTE_RUN_TASK = "fluxproof.execute_run"
 
 
 class BrokerUnreadable(RuntimeError):

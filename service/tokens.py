@@ -92,3 +92,12 @@ def identify(store: Store, token: str) -> Identity | None:
     if not hmac.compare_digest(token_digest(token), row.sha256) or row.revoked:
         return None
     return Identity(name=row.name, role=row.role, token_id=row.id)
+
+
+def identity_of_token_id(store: Store, token_id: str) -> Identity | None:
+    """The identity of a token already proven by its holder (a signed-in browser session keeps
+    the token's id), or None when that token is unknown or revoked since."""
+    rows = store.read(_TOKEN_BY_ID, {"token_id": token_id})
+    if not rows or rows[0].revoked:
+        return None
+    return Identity(name=rows[0].name, role=rows[0].role, token_id=rows[0].id)

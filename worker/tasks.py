@@ -1,8 +1,10 @@
-"""Celery tasks: thin wrappers that call the service's domain functions.
+"""Celery tasks: thin wrappers that call the service's domain functions, each registered under
+its name from :mod:`service.task_names` (the service sends them by that name).
 
 ``execute_run`` re-reads its run, re-validates the case, calls the engine and stores the record
-(:func:`service.runs.execute_run`, idempotent by run id). Only named transient errors of the
-store or the broker are retried; invalid input and solver failures are results, recorded.
+(:func:`service.runs.execute_run`, idempotent by run id; the embedded dispatcher calls the same
+function in a thread). Only named transient errors of the store or the broker are retried;
+invalid input and solver failures are results, recorded.
 """
 
 from __future__ import annotations
@@ -10,9 +12,16 @@ from __future__ import annotations
 import kombu.exceptions
 import redis.exceptions
 import sqlalchemy.exc
-from celery import shared_task
+from celery import current_app, shared_task
 
+from service import runs
+from service.batches import close_finished_batches, start_batch
+from service.dispatch import CeleryDispatcher
+from service.recovery import recover_lost_runs as recover
+from service.recovery import recovery_settings
 from service.settings import settings_from_env
+from service.store import default_store
+from service.task_names import EXECUTE_RUN_TASK, RECOVER_LOST_RUNS_TASK, REVERIFY_ALL_TASK
 
 _SETTINGS = settings_from_env()
 
@@ -34,42 +43,28 @@ RETRY_OPTIONS = {
 }
 
 
-@shared_task(name="fluxproof.execute_run", acks_late=True, reject_on_worker_lost=True,
+@shared_task(name=EXECUTE_RUN_TASK, acks_late=True, reject_on_worker_lost=True,
              ignore_result=True, soft_time_limit=int(_SETTINGS["TASK_SOFT_TIME_LIMIT"]),
              time_limit=int(_SETTINGS["TASK_TIME_LIMIT"]), **RETRY_OPTIONS)
 def execute_run(run_id: str) -> str:
     """Execute run ``run_id`` (see :func:`service.runs.execute_run`); returns its status."""
-    from service.runs import execute_run as execute
-
-    return execute(run_id, max_attempts=int(_SETTINGS["MAX_RUN_ATTEMPTS"]))
+    return runs.execute_run(run_id, max_attempts=int(_SETTINGS["MAX_RUN_ATTEMPTS"]))
 
 
-@shared_task(name="fluxproof.reverify_all", acks_late=True, ignore_result=True,
-             **RETRY_OPTIONS)
+@shared_task(name=REVERIFY_ALL_TASK, acks_late=True, ignore_result=True, **RETRY_OPTIONS)
 def reverify_all() -> str:
     """Nightly: start a batch re-verifying every stored case; returns the batch id."""
-    from service.batches import start_batch
-    from service.dispatch import CeleryDispatcher
-    from service.store import default_store
-
     batch = start_batch(default_store(), actor="nightly", all_cases=True)
     CeleryDispatcher(settings_from_env()).send(batch["run_ids"])
     return batch["batch_id"]
 
 
-@shared_task(name="fluxproof.recover_lost_runs", ignore_result=True)
+@shared_task(name=RECOVER_LOST_RUNS_TASK, ignore_result=True)
 def recover_lost_runs() -> dict:
     """Every few seconds (beat): send again the runs whose messages were lost
     (:func:`service.recovery.recover_lost_runs`) and close any batch whose runs are all
     finished but whose last worker died before closing it
     (:func:`service.batches.close_finished_batches`); returns what the sweep saw and did."""
-    from celery import current_app
-
-    from service.batches import close_finished_batches
-    from service.recovery import recover_lost_runs as recover
-    from service.recovery import recovery_settings
-    from service.store import default_store
-
     _interval, after = recovery_settings(_SETTINGS)
     store = default_store()
     report = recover(store, current_app, older_than_s=after).to_dict()

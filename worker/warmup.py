@@ -13,6 +13,9 @@ import importlib
 import logging
 import time
 
+# The implementation's module, not the package-level entry point (which tests replace).
+import schemas.checking as checking
+
 logger = logging.getLogger(__name__)
 
 #: Engine modules a check may need (the transient and nonlinear paths included).
@@ -42,7 +45,8 @@ WARM_UP_CASE = {
 
 
 def warm_up_engine() -> float:
-    """Import the engine and check :data:`WARM_UP_CASE` once; return the seconds it took.
+    """Import the engine's modules and check :data:`WARM_UP_CASE` once; return the seconds it
+    took (:mod:`schemas.checking` itself is loaded with this module).
 
     A failure is logged, not raised: the runs themselves record any engine error.
     """
@@ -50,10 +54,7 @@ def warm_up_engine() -> float:
     try:
         for name in ENGINE_MODULES:
             importlib.import_module(name)
-        # The implementation itself, not the package-level entry point (which tests replace).
-        from schemas.checking import check_case
-
-        record = check_case(dict(WARM_UP_CASE))
+        record = checking.check_case(dict(WARM_UP_CASE))
         if record.get("status") != "succeeded":
             logger.warning("engine warm-up: the warm-up case did not succeed: %s",
                            record.get("error"))

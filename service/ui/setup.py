@@ -6,6 +6,8 @@ import logging
 
 from flask import Flask, Response
 
+from service.ui.blueprint import ui
+
 logger = logging.getLogger(__name__)
 
 DEV_SECRET = "dev-only-change-me"
@@ -35,8 +37,6 @@ def add_security_headers(response: Response) -> Response:
 
 def init_app(app: Flask) -> None:
     """Register ``/ui/``; the session cookie is HttpOnly, SameSite=Lax, signed with SECRET_KEY."""
-    from service.ui.blueprint import ui
-
     app.secret_key = app.config.get("SECRET_KEY")
     if not app.secret_key:
         raise ValueError("FLUXPROOF_SECRET_KEY: expected a secret for the session cookie, got "

@@ -17,9 +17,9 @@ from urllib.parse import quote
 from flask import current_app, g, redirect, request, session, url_for
 
 from service.api import ROLE_MATRIX
-from service.errors import Forbidden
-from service.store.models import Token
-from service.tokens import Identity, identify
+from service.errors import Forbidden, Unauthorized
+from service.report.html import DEFAULT_CAUTION
+from service.tokens import Identity, identify, identity_of_token_id
 from service.ui import csrf
 
 #: A session lasts this long after sign-in (8 hours: one working day).
@@ -72,11 +72,7 @@ def _session_identity() -> Identity | None:
         return None
     if time.time() - signed_in_at > SESSION_SECONDS:
         return None
-    with _store().transaction() as db:
-        row = db.get(Token, token_id)
-        if row is None or row.revoked:
-            return None
-        return Identity(name=row.name, role=row.role, token_id=row.id)
+    return identity_of_token_id(_store(), token_id)
 
 
 def may_open(role: str, endpoint: str) -> bool:
@@ -96,8 +92,6 @@ def require_person() -> Any:
         if request.method == "GET":
             target = request.full_path.rstrip("?")
             return redirect(url_for("ui.login") + "?next=" + quote(target, safe="/"), code=303)
-        from service.errors import Unauthorized
-
         raise Unauthorized("Sign in first: your session has ended or was never started.")
     g.person = person
     allowed = PAGE_ROLES.get(endpoint, frozenset())
@@ -118,8 +112,6 @@ def safe_next(target: str | None) -> str:
 
 def template_globals() -> dict[str, Any]:
     person = g.get("person")
-    from service.report import DEFAULT_CAUTION
-
     return {"person": person, "csrf_token": csrf.csrf_token, "caution_text": DEFAULT_CAUTION,
             "may_open": (lambda endpoint: person is not None and may_open(person.role,
                                                                            endpoint))}

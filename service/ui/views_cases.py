@@ -5,14 +5,13 @@ from __future__ import annotations
 from flask import render_template
 from markupsafe import Markup
 
-from service import cases
+from service import cases, listing
 from service.api.context import services
-from service.batches import _tolerance as drift_tolerance
-from service.report import QUANTITY_WORDS
-from service.ui import queries
+from service.batches import drift_tolerance
+from service.report.html import QUANTITY_WORDS
+from service.report.numbers import quantity_markup
+from service.report.plot_trend import scalar, trend_names, trend_svg
 from service.ui.blueprint import ui
-from service.ui.numbers import quantity_markup
-from service.ui.plot_trend import scalar, trend_names, trend_svg
 
 #: The history table shows at most this many runs (the newest), side by side.
 HISTORY_COLUMNS = 12
@@ -22,7 +21,7 @@ HISTORY_COLUMNS = 12
 def case(case_id: str):
     store = services().store
     stored = cases.get_case(store, case_id)
-    runs = queries.case_runs_with_figures(store, case_id)
+    runs = listing.case_runs_with_figures(store, case_id)
     tolerance = drift_tolerance(stored["document"])
     names = sorted({name for run in runs for name, q in run["quantities"].items()
                     if scalar(q) is not None or q is None})

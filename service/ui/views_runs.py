@@ -6,15 +6,13 @@ from typing import Any
 
 from flask import flash, g, jsonify, redirect, render_template, request, url_for
 
+from service import listing, signoffs
 from service import runs as run_service
-from service import signoffs
 from service.api.bodies import COMMENT_MAX
 from service.api.context import services
-from service.errors import Conflict, FourEyesViolation
-from service.report import render_report, report_context
+from service.errors import Conflict, Forbidden
+from service.report.html import render_report, report_context
 from service.store.models import DECISIONS, RUN_STATES
-from service.tokens import Identity
-from service.ui import queries
 from service.ui.blueprint import ui
 
 
@@ -25,44 +23,50 @@ def _offset() -> int:
         return 0
 
 
+def parse_filters(args: Any) -> tuple[listing.RunFilters, list[dict[str, str]]]:
+    """The runs list's filters from its query string; unknown values are reported (field, what
+    was expected)."""
+    errors: list[dict[str, str]] = []
+
+    def choice(name: str, allowed: tuple[str, ...]) -> str | None:
+        value = (args.get(name) or "").strip()
+        if not value:
+            return None
+        if value not in allowed:
+            errors.append({"path": name, "message": f"expected one of {', '.join(allowed)}, "
+                                                    f"got {value!r}"})
+            return None
+        return value
+
+    def yes_no(name: str) -> bool | None:
+        value = choice(name, ("yes", "no"))
+        return None if value is None else value == "yes"
+
+    tag = (args.get("tag") or "").strip() or None
+    filters = listing.RunFilters(verdict=choice("verdict", listing.VERDICTS),
+                                 status=choice("status", RUN_STATES), tag=tag,
+                                 signed=yes_no("signed"), drifted=yes_no("drifted"))
+    return filters, errors
+
+
+
 @ui.get("/runs")
 def runs():
-    filters, errors = queries.parse_filters(request.args)
+    filters, errors = parse_filters(request.args)
     store = services().store
     offset = _offset()
-    page = queries.list_runs(store, filters, offset=offset)
+    page = listing.list_runs(store, filters, offset=offset)
     return render_template("ui_runs.html", page=page, filters=filters, errors=errors,
-                           tags=queries.all_tags(store), states=RUN_STATES,
-                           verdicts=queries.VERDICTS, query=filters.as_query(),
-                           page_size=queries.PAGE_SIZE), 422 if errors else 200
-
-
-def signoff_state(record: dict[str, Any], person: Identity) -> dict[str, Any]:
-    """Whether ``person`` may sign this record off, and if not, the reason in words."""
-    submitter = record.get("submitted_by")
-    reasons = []
-    if person.role != "reviewer":
-        reasons.append(f"Sign-off is for reviewers; you are signed in as {person.name} "
-                       f"({person.role}).")
-    if person.name == submitter:
-        reasons.append(f"You submitted this run ({submitter}), so you cannot sign it off: a "
-                       "check record is signed off by a second person (four-eyes). Ask "
-                       "another reviewer.")
-    if record.get("signoffs"):
-        first = record["signoffs"][0]
-        reasons.append(f"Already signed off ({first['decision']} by {first['reviewer']}); a "
-                       "signed record never changes. Re-verify the case for a new run.")
-    elif record.get("status") != "succeeded":
-        reasons.append(f"Only a succeeded run can be signed off; this one is "
-                       f"{record.get('status')}.")
-    return {"allowed": not reasons, "reasons": reasons, "submitter": submitter}
+                           tags=listing.all_tags(store), states=RUN_STATES,
+                           verdicts=listing.VERDICTS, query=filters.as_query(),
+                           page_size=listing.PAGE_SIZE), 422 if errors else 200
 
 
 def _run_page(run_id: str, *, status: int = 200, form_errors: list[dict[str, str]] | None = None,
               comment: str = "", refusal: str | None = None):
     record, document = run_service.get_run_and_case(services().store, run_id)
     context = report_context(record, document)
-    return render_template("ui_run.html", signoff=signoff_state(record, g.person),
+    return render_template("ui_run.html", signoff=signoffs.signoff_permission(record, g.person),
                            decisions=DECISIONS, form_errors=form_errors or [], comment=comment,
                            refusal=refusal, comment_max=COMMENT_MAX, **context), status
 
@@ -100,7 +104,7 @@ def signoff(run_id: str):
     try:
         signoffs.sign_off(services().store, run_id, g.person, decision=decision,
                           comment=comment)
-    except FourEyesViolation as exc:
+    except Forbidden as exc:  # four-eyes, or not a reviewer
         return _run_page(run_id, status=403, refusal=exc.detail, comment=comment)
     except Conflict as exc:
         return _run_page(run_id, status=409, refusal=exc.detail, comment=comment)

@@ -12,7 +12,7 @@ import uuid
 
 from celery.signals import before_task_publish
 
-from service.dispatch import EXECUTE_RUN_TASK
+from service.task_names import EXECUTE_RUN_TASK
 from tests.api.support import bearer
 from tests.integration.invented_cases import single_layer_case
 from tests.integration.support import create_tokens

@@ -6,7 +6,7 @@ import uuid
 
 from sqlalchemy import func, select
 
-from service.dispatch import EXECUTE_RUN_TASK
+from service.task_names import EXECUTE_RUN_TASK
 from tests.api.support import bearer
 from tests.integration.invented_cases import single_layer_case, two_layer_case
 from tests.integration.support import wait_finished

@@ -232,8 +232,9 @@ def test_the_submitter_sees_why_they_cannot_approve_their_own_run(app, store, ru
     forced = client.post(f"/ui/runs/{run_id}/signoff",
                          data={"csrf_token": csrf_of(page), "decision": "approved",
                                "comment": "my own work looks fine"})
-    assert forced.status_code == 403
-    assert "submitted this run and so cannot sign it off" in forced.get_data(as_text=True)
+    assert forced.status_code == 403  # refused by sign_off with the reason the page gave
+    assert "You submitted this run (erin.engineer), so you cannot sign it off" \
+        in forced.get_data(as_text=True)
     with store.transaction() as session:
         assert session.execute(select(Signoff)).first() is None
 

@@ -24,7 +24,7 @@ from flask import Flask
 
 import worker.engine
 from service.report import render_report, report_context
-from service.ui.layer_stack import layer_stack_svg
+from service.report.layer_stack import layer_stack_svg
 
 SVG_NS = "{http://www.w3.org/2000/svg}"
 
@@ -252,3 +252,29 @@ def test_layer_stack_is_drawn_to_scale():
     assert "sealed (no flux)" in texts and "fluid at 0.2 mol/m³" in texts
     assert "r / mm" in texts  # radial axis, real positions 0.1 to 0.292 mm
     assert "drawn to scale" in svg.find(f"{SVG_NS}title").text
+
+
+def _modules_loaded_by(statement: str) -> set[str]:
+    """Top-level project and library modules a fresh interpreter holds after ``statement``."""
+    import json
+    import subprocess
+    import sys
+
+    probe = f"{statement}\nimport json, sys\nprint(json.dumps(sorted(sys.modules)))"
+    out = subprocess.run([sys.executable, "-c", probe], check=True, capture_output=True,
+                         text=True).stdout
+    return set(json.loads(out.splitlines()[-1]))
+
+
+def test_the_report_package_never_imports_the_browser_pages():
+    loaded = _modules_loaded_by("import service.report.html, service.report.plot_trend")
+    assert "service.report.html" in loaded
+    assert not {name for name in loaded if name.startswith("service.ui")}
+
+
+def test_the_text_report_loads_neither_flask_nor_matplotlib():
+    """``fluxproof check`` prints it on the base install, which has neither."""
+    loaded = _modules_loaded_by("import service.report.text")
+    assert "service.report.text" in loaded
+    assert not {"flask", "matplotlib", "sqlalchemy"} & loaded
+    assert "flask" in _modules_loaded_by("from service.report import render_report")

@@ -22,8 +22,6 @@ ALLOWED = {
     # The engine's plugin boundary: ``worker.engine.check_case`` resolves (module ``__getattr__``)
     # to ``schemas.checking.check_case`` when first used; the engine itself never loads schemas.
     ("worker/engine/__init__.py", "__getattr__"),
-    # Warming a worker up is loading the engine and the documents on purpose, and timing it.
-    ("worker/warmup.py", "warm_up_engine"),
 }
 
 

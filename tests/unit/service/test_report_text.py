@@ -1,4 +1,4 @@
-"""The text report's release table (``service.report_text.format_release_table``).
+"""The text report's release table (``service.report.text.format_release_table``).
 
 The outcome is the engine's for an invented sheet; only the table's shape is checked here (the
 values are checked against published forms in test_transient_check and the reference tests).
@@ -6,7 +6,7 @@ values are checked against published forms in test_transient_check and the refer
 
 from __future__ import annotations
 
-from service.report_text import format_release_table
+from service.report.text import format_release_table
 from worker.engine.model import Boundary, Layer, Problem, Regime
 from worker.engine.transient import run_transient
 

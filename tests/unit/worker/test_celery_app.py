@@ -1,11 +1,18 @@
-"""Celery configuration: limits, visibility timeout, nightly schedule."""
+"""Celery configuration (limits, visibility timeout, nightly schedule), tasks sent by name, and
+the one direction of the layers: the service never imports the workers' app or tasks."""
 
 from __future__ import annotations
 
+import ast
+from pathlib import Path
+
 import pytest
 
+from service.celery_client import celery_config
 from service.settings import DEFAULTS, parse_nightly_at
-from worker.celery_app import celery_config, make_celery
+from worker.celery_app import make_celery
+
+SERVICE_DIR = Path(__file__).resolve().parents[2] / "service"
 
 
 def test_visibility_timeout_exceeds_the_hard_limit_by_default():
@@ -93,3 +100,90 @@ def test_the_warm_up_case_is_a_case_the_engine_checks_and_it_runs_before_the_poo
     assert imported == list(ENGINE_MODULES) and checked == [WARM_UP_CASE]
     receivers = [ref() for _key, ref in celeryd_after_setup.receivers]
     assert worker.celery_app.warm_up_before_forking in receivers
+
+
+def _imported_modules(path: Path) -> set[str]:
+    """Every module an ``import`` or ``from ... import`` names in ``path``, at any depth
+    (function-local imports included)."""
+    names: set[str] = set()
+    for node in ast.walk(ast.parse(path.read_text(encoding="utf-8"))):
+        if isinstance(node, ast.Import):
+            names.update(alias.name for alias in node.names)
+        elif isinstance(node, ast.ImportFrom) and node.module:
+            names.add(node.module)
+            names.update(f"{node.module}.{alias.name}" for alias in node.names)
+    return names
+
+
+WORKER_GLUE = ("worker.tasks", "worker.celery_app")
+
+
+def _imports_of_the_worker_glue(path: Path) -> set[str]:
+    return {name for name in _imported_modules(path)
+            if any(name == glue or name.startswith(glue + ".") for glue in WORKER_GLUE)}
+
+
+def test_no_service_module_imports_the_workers_app_or_tasks():
+    offenders = {str(path.relative_to(SERVICE_DIR)): found
+                 for path in sorted(SERVICE_DIR.rglob("*.py"))
+                 if (found := _imports_of_the_worker_glue(path))}
+    assert offenders == {}
+
+
+def test_the_import_scan_sees_a_function_local_import_of_the_tasks(tmp_path):
+    sample = tmp_path / "sample.py"
+    sample.write_text("def f():\n    from worker.tasks import execute_run\n")
+    assert _imports_of_the_worker_glue(sample) == {"worker.tasks", "worker.tasks.execute_run"}
+    sample.write_text("import worker.celery_app\nfrom worker import units\n")
+    assert _imports_of_the_worker_glue(sample) == {"worker.celery_app"}
+
+
+def test_every_task_name_the_service_sends_is_a_task_the_workers_register():
+    import worker.tasks
+    from service import task_names
+
+    registered = make_celery({**DEFAULTS, "BROKER_URL": "memory://"})
+    registered.loader.import_default_modules()
+    names = {task_names.EXECUTE_RUN_TASK, task_names.REVERIFY_ALL_TASK,
+             task_names.RECOVER_LOST_RUNS_TASK}
+    assert names <= set(registered.tasks)
+    assert worker.tasks.execute_run.name == task_names.EXECUTE_RUN_TASK
+    config = celery_config(DEFAULTS)
+    assert {entry["task"] for entry in config["beat_schedule"].values()} <= names
+    assert set(config["task_routes"]) <= names
+
+
+def test_the_service_client_sends_a_run_by_name_without_the_task_code():
+    """Through Celery's in-memory transport: each message names the task and carries its run id
+    (the service imports no task code: see the import scan above)."""
+    from service.dispatch import CeleryDispatcher
+    from service.task_names import EXECUTE_RUN_TASK, RUN_QUEUE
+
+    dispatcher = CeleryDispatcher({**DEFAULTS, "BROKER_URL": "memory://"})
+    dispatcher.send(["run-a", "run-b"])
+    received = []
+    with dispatcher.celery.connection_for_read() as connection:
+        queue = connection.SimpleQueue(RUN_QUEUE)
+        while len(received) < 2:
+            message = queue.get(timeout=5)
+            received.append((message.headers["task"], message.headers["argsrepr"]))
+            message.ack()
+        queue.close()
+    assert received == [(EXECUTE_RUN_TASK, "['run-a']"), (EXECUTE_RUN_TASK, "['run-b']")]
+    dispatcher.shutdown()
+
+
+def test_fluxproof_worker_starts_the_workers_app_loaded_by_name(monkeypatch):
+    from celery.app.utils import find_app
+    from celery.bin.celery import celery as celery_command
+
+    import service.celery_client
+    import worker.celery_app
+
+    seen = []
+    monkeypatch.setattr(celery_command, "main",
+                        lambda **kwargs: seen.append(kwargs))
+    service.celery_client.run_worker(["--loglevel=INFO", "--beat"])
+    assert seen[0]["args"] == ["--app", "worker.celery_app", "worker", "--loglevel=INFO",
+                               "--beat"]
+    assert find_app(service.celery_client.WORKER_APP) is worker.celery_app.celery_app

@@ -17,7 +17,11 @@ from typing import Any
 from flask import render_template
 from markupsafe import Markup
 
-from service.ui.numbers import length_markup, number_markup, quantity_markup, unit_text
+import schemas
+from service.report.layer_stack import layer_stack_svg
+from service.report.numbers import length_markup, number_markup, quantity_markup, unit_text
+from service.report.plot_profile import profile_svg
+from service.report.plot_release import release_svg
 
 logger = logging.getLogger(__name__)
 
@@ -26,7 +30,7 @@ DEFAULT_CAUTION = ("These results support, but do not replace, design verificati
                    "qualified independent review; local regulations and licensed practice "
                    "govern.")
 
-STYLESHEET = Path(__file__).resolve().parent / "static" / "fluxproof.css"
+STYLESHEET = Path(__file__).resolve().parent.parent / "static" / "fluxproof.css"
 
 #: What each quantity means, in a few words (sign convention: positive outward).
 QUANTITY_WORDS = {
@@ -119,8 +123,6 @@ def input_rows(document: dict[str, Any], normalised: dict[str, Any] | None
 def _normalised(record: dict[str, Any], document: dict[str, Any]) -> dict[str, Any] | None:
     if isinstance(record.get("inputs"), dict):
         return record["inputs"]
-    import schemas
-
     try:
         return dict(schemas.validate_case(document).normalised)
     except schemas.CaseError:
@@ -141,10 +143,6 @@ def key_figure(record: dict[str, Any]) -> tuple[str, Any] | None:
 def _figures(record: dict[str, Any], normalised: dict[str, Any] | None) -> dict[str, Markup]:
     """The inline SVG figures; one that cannot be drawn is left out (and logged), so that the
     report itself always renders."""
-    from service.ui.layer_stack import layer_stack_svg
-    from service.ui.plot_profile import profile_svg
-    from service.ui.plot_release import release_svg
-
     names = [str(layer.get("name") or f"layer {i + 1}")
              for i, layer in enumerate((normalised or {}).get("layers") or [])]
     with_inputs = dict(record)

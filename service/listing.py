@@ -1,5 +1,6 @@
-"""Reading the store for the pages: runs with filters, a case's runs with their figures,
-batches, and which runs have drifted. Read-only; every write goes through ``service/``."""
+"""Read-only listings for the browser pages: runs with filters, a case's runs with their
+figures, batches and their runs, and which runs have drifted. Every write goes through the other
+domain modules (``cases``, ``runs``, ``signoffs``, ``batches``)."""
 
 from __future__ import annotations
 
@@ -8,11 +9,15 @@ from typing import Any
 
 from sqlalchemy import false, func, select
 
+from schemas.result import VERDICTS
 from service.store import Store
 from service.store.models import RUN_STATES, Batch, Case, CaseTag, Run, Signoff
 
+#: Rows in one page of a listing.
 PAGE_SIZE = 50
-VERDICTS = ("pass", "fail")
+
+__all__ = ["PAGE_SIZE", "VERDICTS", "RunFilters", "all_tags", "batch_runs",
+           "case_runs_with_figures", "drifted_run_ids", "list_batches", "list_runs"]
 
 
 @dataclass(frozen=True)
@@ -34,30 +39,6 @@ class RunFilters:
             if getattr(self, name) is not None:
                 query[name] = "yes" if getattr(self, name) else "no"
         return query
-
-
-def parse_filters(args: Any) -> tuple[RunFilters, list[dict[str, str]]]:
-    """Filters from a query string; unknown values are reported (field, what was expected)."""
-    errors: list[dict[str, str]] = []
-
-    def choice(name: str, allowed: tuple[str, ...]) -> str | None:
-        value = (args.get(name) or "").strip()
-        if not value:
-            return None
-        if value not in allowed:
-            errors.append({"path": name, "message": f"expected one of {', '.join(allowed)}, "
-                                                    f"got {value!r}"})
-            return None
-        return value
-
-    def yes_no(name: str) -> bool | None:
-        value = choice(name, ("yes", "no"))
-        return None if value is None else value == "yes"
-
-    tag = (args.get("tag") or "").strip() or None
-    filters = RunFilters(verdict=choice("verdict", VERDICTS), status=choice("status", RUN_STATES),
-                         tag=tag, signed=yes_no("signed"), drifted=yes_no("drifted"))
-    return filters, errors
 
 
 def drifted_run_ids(store: Store) -> set[str]:

@@ -10,8 +10,8 @@ from __future__ import annotations
 
 from typing import Any
 
-from service.ui.numbers import length_scale, plain_number, unit_text
-from service.ui.plot_common import (
+from service.report.numbers import length_scale, plain_number, unit_text
+from service.report.plot_common import (
     DEPLETED,
     INK,
     LAYER_SHADES,

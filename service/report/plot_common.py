@@ -8,6 +8,7 @@ import re
 import threading
 
 import matplotlib
+from markupsafe import escape
 
 matplotlib.use("Agg")
 
@@ -47,8 +48,6 @@ def figure_svg(figure: Figure, *, title: str) -> str:
     buffer = io.StringIO()
     figure.savefig(buffer, format="svg", metadata={"Date": None})
     svg = _PROLOGUE.sub("", buffer.getvalue(), count=1)
-    from markupsafe import escape
-
     return svg.replace("<svg ", '<svg role="img" class="plot" ', 1).replace(
         ">", f"><title>{escape(title)}</title>", 1)
 

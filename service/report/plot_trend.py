@@ -9,8 +9,8 @@ from __future__ import annotations
 
 from typing import Any
 
-from service.ui.numbers import plain_number
-from service.ui.plot_common import LINE_COLOURS, MUTED, drawing, figure_svg, new_figure
+from service.report.numbers import plain_number
+from service.report.plot_common import LINE_COLOURS, MUTED, drawing, figure_svg, new_figure
 
 #: Quantities tried first for the trend, in order; up to MAX_LINES are drawn.
 KEY_QUANTITIES = ("flux_outer", "flux_inner", "consumption", "depletion_front", "t50", "t90",

@@ -8,8 +8,8 @@ from __future__ import annotations
 
 from typing import Any
 
-from service.ui.numbers import plain_number, time_scale, unit_text
-from service.ui.plot_common import INK, LINE_COLOURS, MUTED, drawing, figure_svg, new_figure
+from service.report.numbers import plain_number, time_scale, unit_text
+from service.report.plot_common import INK, LINE_COLOURS, MUTED, drawing, figure_svg, new_figure
 
 
 def _values(series: dict[str, Any], name: str) -> list[float | None] | None:

@@ -12,7 +12,7 @@ from typing import Any
 
 from matplotlib.ticker import MaxNLocator
 
-from service.ui.numbers import length_scale, plain_number, unit_text
+from service.report.numbers import length_scale, plain_number, unit_text
 
 WIDTH, LEFT, RIGHT = 760, 70, 70
 BAR_TOP, BAR_HEIGHT = 58, 46
