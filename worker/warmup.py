@@ -14,15 +14,15 @@ import logging
 import time
 
 # The implementation's module, not the package-level entry point (which tests replace).
-import worker.engine.check as engine_check
+import schemas.checking as checking
 
 logger = logging.getLogger(__name__)
 
 #: Engine modules a check may need (the transient and nonlinear paths included).
 ENGINE_MODULES = (
-    "worker.engine.check",
+    "schemas.checking",
     "worker.engine.steady_check",
-    "worker.engine.transient_check",
+    "worker.engine.transient",
     "worker.engine.bvp_steady",
     "worker.engine.depletion_exact",
     "worker.engine.mm_bracket",
@@ -46,7 +46,7 @@ WARM_UP_CASE = {
 
 def warm_up_engine() -> float:
     """Import the engine's modules and check :data:`WARM_UP_CASE` once; return the seconds it
-    took (:mod:`worker.engine.check` itself is loaded with this module).
+    took (:mod:`schemas.checking` itself is loaded with this module).
 
     A failure is logged, not raised: the runs themselves record any engine error.
     """
@@ -54,7 +54,7 @@ def warm_up_engine() -> float:
     try:
         for name in ENGINE_MODULES:
             importlib.import_module(name)
-        record = engine_check.check_case(dict(WARM_UP_CASE))
+        record = checking.check_case(dict(WARM_UP_CASE))
         if record.get("status") != "succeeded":
             logger.warning("engine warm-up: the warm-up case did not succeed: %s",
                            record.get("error"))

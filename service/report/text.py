@@ -4,8 +4,6 @@ from __future__ import annotations
 
 from collections.abc import Iterator
 
-from worker.engine.transient_check import format_release_table
-
 RULE = "-" * 78
 
 
@@ -106,4 +104,38 @@ def render_text(record: dict, case: dict) -> str:
     add(f"VERDICT: {str(record.get('verdict')).upper()}  ({passed}/{len(record.get('checks', []))}"
         " checks passed)")
     add(f"CAUTION: {record.get('caution', '')}")
+    return "\n".join(lines)
+
+
+def format_release_table(outcome) -> str:
+    """Plain-text release table for the CLI report.
+
+    Columns: time, released out of the inner face, out of the outer face, release fraction
+    (or uptake for an initially empty body), remaining; then the t50, t90 and time-lag lines.
+    Accepts a record or an engine ``Outcome`` (same ``series`` and ``quantities``).
+    """
+    series = outcome["series"] if isinstance(outcome, dict) else outcome.series
+    quantities = outcome["quantities"] if isinstance(outcome, dict) else outcome.quantities
+    if "time" not in series:
+        return ""
+    times = series["time"]["values"]
+    unit = series["released_outer"]["unit"]
+    fraction_key = "uptake" if "uptake" in series else "release_fraction"
+    fraction_unit = "-" if fraction_key == "release_fraction" else unit
+    header = (f"{'time [s]':>14} {'out inner [' + unit + ']':>20} "
+              f"{'out outer [' + unit + ']':>20} {fraction_key + ' [' + fraction_unit + ']':>22} "
+              f"{'remaining [' + unit + ']':>20}")
+    lines = ["Release", header, "-" * len(header)]
+    for k, t in enumerate(times):
+        lines.append(
+            f"{t:>14.6g} {series['released_inner']['values'][k]:>20.6g} "
+            f"{series['released_outer']['values'][k]:>20.6g} "
+            f"{series[fraction_key]['values'][k]:>22.6g} "
+            f"{series['remaining']['values'][k]:>20.6g}")
+    for name, label in (("t50", "t50 (50 % released)"), ("t90", "t90 (90 % released)"),
+                        ("time_lag", "time lag")):
+        if name in quantities:
+            value = quantities[name]["value"]
+            text = "not reached within the duration" if value is None else f"{value:.6g} s"
+            lines.append(f"{label}: {text}")
     return "\n".join(lines)

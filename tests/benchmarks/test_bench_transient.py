@@ -21,8 +21,9 @@ import time
 
 import numpy as np
 
+from worker.engine.limits import TRANSIENT_LIMITS as DEFAULT_LIMITS
 from worker.engine.model import Boundary, Layer, Problem, Regime
-from worker.engine.transient_check import DEFAULT_LIMITS, run_transient
+from worker.engine.transient import run_transient
 
 DAY = 86400.0
 DURATION = 30 * DAY

@@ -17,8 +17,8 @@ import numpy as np
 import pytest
 
 from worker.engine.model import Boundary, Layer, Problem, Regime
-from worker.engine.transient_check import run_transient
-from worker.engine.transient_fv import solve_transient_fv
+from worker.engine.transient import run_transient
+from worker.engine.transient.method_of_lines import solve_transient_fv
 
 RESERVOIR = {"thickness": 100e-6, "diffusivity": 2e-12, "partition": 1.0, "initial": 10.0}
 TOPCOAT = {"thickness": 20e-6, "diffusivity": 5e-14, "partition": 0.3, "initial": 0.0}

@@ -14,9 +14,9 @@ from numpy.testing import assert_allclose
 from scipy import special
 from scipy.optimize import brentq
 
-from worker.engine.eigen_roots import sheet_surface_film_roots
 from worker.engine.model import Boundary, Layer, Problem, Reaction, Regime
-from worker.engine.transient_exact import (
+from worker.engine.transient.eigen_roots import sheet_surface_film_roots
+from worker.engine.transient.exact_series import (
     membrane_time_lag,
     short_time_release_fraction,
     solve_transient_exact,

@@ -40,6 +40,7 @@ from typing import Any, cast
 import numpy as np
 from scipy.integrate import solve_bvp
 
+from worker.engine.failed_solution import failed_steady_solution
 from worker.engine.fv_mesh import boundary_concentration_scale
 from worker.engine.model import Problem, SteadySolution
 
@@ -328,21 +329,8 @@ def _consumption(system: _LayeredSystem, result) -> float:
 
 
 def _not_covered(reason: str, diagnostics: dict) -> SteadySolution:
-    def not_available(r, layer=None):
-        return np.full(np.shape(r), np.nan) if np.ndim(r) else np.nan
-
-    return SteadySolution(
-        method=METHOD_NAME,
-        reference=REFERENCE,
-        success=False,
-        message=f"not solved by the collocation reference: {reason}",
-        concentration_at=not_available,
-        flux_at=not_available,
-        flux_inner=float("nan"),
-        flux_outer=float("nan"),
-        consumption=float("nan"),
-        diagnostics=diagnostics,
-    )
+    return failed_steady_solution(
+        METHOD_NAME, REFERENCE, f"not solved by the collocation reference: {reason}", diagnostics)
 
 
 def _solve_case(system: _LayeredSystem):

@@ -30,6 +30,8 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from worker.engine.fv_mesh import default_cells_per_layer
+from worker.engine.fv_steady import solve_fv_grids
 from worker.engine.model import Problem, SteadySolution
 
 #: Roache's safety factor for three-grid studies (Celik et al. 2008, eq. 5c).
@@ -267,9 +269,6 @@ def refined_solutions(
     ``base_cells`` is the coarse mesh (cells per layer; default the mesh rule of ``fv_mesh``);
     the medium and fine meshes have ``ratio`` and ``ratio**2`` times as many cells per layer.
     """
-    from worker.engine.fv_mesh import default_cells_per_layer
-    from worker.engine.fv_steady import solve_fv_grids
-
     if base_cells is None:
         base_cells = default_cells_per_layer(problem)
     if isinstance(base_cells, int | np.integer):

@@ -42,6 +42,7 @@ from scipy.linalg.lapack import dgesv
 from worker.engine.basis_functions import LayerBasis
 from worker.engine.boundaries import BOUNDARIES, SYMMETRY
 from worker.engine.depletion_exact import solve_depleted
+from worker.engine.failed_solution import failed_steady_solution
 from worker.engine.graded_quadrature import graded_gauss_rule
 from worker.engine.layered_profile import LayeredProfile
 from worker.engine.model import (
@@ -282,12 +283,7 @@ def _layer_consumption(problem: Problem, index: int, basis: LayerBasis, rule,
 
 
 def _failed(message: str, diagnostics: dict | None = None) -> SteadySolution:
-    def nan_field(r, layer=None):
-        return np.full(np.shape(r), np.nan)
-    return SteadySolution(method=METHOD, reference=REFERENCE, success=False, message=message,
-                          concentration_at=nan_field, flux_at=nan_field, flux_inner=math.nan,
-                          flux_outer=math.nan, consumption=math.nan,
-                          diagnostics=diagnostics or {})
+    return failed_steady_solution(METHOD, REFERENCE, message, diagnostics)
 
 
 def solve_linear(problem: Problem, *, consumption: bool = True,

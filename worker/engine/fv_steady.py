@@ -31,6 +31,7 @@ from typing import cast
 import numpy as np
 from scipy.linalg import LinAlgError
 
+from worker.engine.failed_solution import failed_steady_solution
 from worker.engine.fv_mesh import (
     DiffusionOperator,
     Mesh,
@@ -391,21 +392,9 @@ def _fixes_a_level(mesh: Mesh, operator: DiffusionOperator, terms: ReactionTerms
 
 
 def _failed(problem: Problem, mesh: Mesh, message: str) -> SteadySolution:
-    def not_available(r, layer=None):
-        return np.full(np.shape(r), np.nan) if np.ndim(r) else np.nan
-
-    return SteadySolution(
-        method=METHOD_NAME,
-        reference=REFERENCE,
-        success=False,
-        message=message,
-        concentration_at=not_available,
-        flux_at=not_available,
-        flux_inner=float("nan"),
-        flux_outer=float("nan"),
-        consumption=float("nan"),
-        diagnostics={"cells_per_layer": mesh.cells_per_layer, "cells": mesh.n_cells},
-    )
+    return failed_steady_solution(
+        METHOD_NAME, REFERENCE, message,
+        {"cells_per_layer": mesh.cells_per_layer, "cells": mesh.n_cells})
 
 
 def solve_fv(

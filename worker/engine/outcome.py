@@ -1,4 +1,4 @@
-"""The parts of a check record that a regime-specific check produces."""
+"""What the engine produces for one case: its checks and the other parts of the record."""
 
 from __future__ import annotations
 
@@ -37,13 +37,25 @@ def _finite_or_none(value: float | None) -> float | None:
 
 @dataclass
 class Outcome:
-    """Quantities, series, methods, checks and warnings of one solved case."""
+    """What the engine found for one solved case, steady or transient.
+
+    ``quantities``: name -> {"value", "unit"}; ``series``: name -> series (profile, probes, and
+    for a transient case the release series); ``methods``: list of {role, name, reference};
+    ``checks``: list of :class:`Check`; ``warnings``: list of str. These make the record.
+    ``diagnostics``: solver facts (meshes, steps, series terms, event times per method) that
+    the record does not carry.
+    """
 
     quantities: dict = field(default_factory=dict)
     series: dict = field(default_factory=dict)
     methods: list = field(default_factory=list)
     checks: list[Check] = field(default_factory=list)
     warnings: list[str] = field(default_factory=list)
+    diagnostics: dict = field(default_factory=dict)
+
+    def check(self, name: str) -> Check | None:
+        """The check called ``name``, or None."""
+        return next((c for c in self.checks if c.name == name), None)
 
     def add_quantity(self, name: str, value, unit: str) -> None:
         self.quantities[name] = {"value": value, "unit": unit}

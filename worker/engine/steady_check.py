@@ -23,20 +23,10 @@ from dataclasses import dataclass
 import numpy as np
 
 from worker.engine import bvp_steady, convergence, exact_steady, fv_steady
+from worker.engine.limits import check_limit
 from worker.engine.model import Problem, SteadySolution
 from worker.engine.outcome import Outcome
 
-#: Default limits of the checks (dimensionless), overridable through the case's ``tolerances``.
-DEFAULT_LIMITS = {
-    "cross_check": 1e-4,  # flux and profile agreement between independent methods
-    "cross_check.depletion_front": 2e-3,  # front position difference / total thickness
-    "mass_balance": 1e-6,  # (in - out - consumed) / throughput
-    "boundary_residual": 1e-6,  # face condition residual / its scale
-    "interface_residual": 1e-6,  # C/K jump and flux jump at interfaces / their scale
-    "gci": 1e-3,  # GCI_fine of each face flux (fraction)
-    "non_negativity": 1e-8,  # most negative concentration / concentration scale
-    "bracket": 1e-4,  # Michaelis-Menten solution outside its comparison bracket / scale
-}
 #: Points per layer in the reported profile (both layer ends included, so jumps are visible).
 PROFILE_POINTS_PER_LAYER = 41
 #: Thresholds for regime notes (warnings): common practice (TRADE_RANGES.md §6).
@@ -51,17 +41,6 @@ THROUGHPUT_FLOOR = 1e-3
 FORMAL_ORDER = 2
 ORDER_BAND = (1.5, 2.5)
 FALLBACK_SAFETY_FACTOR = 3.0
-
-
-def _limit(problem: Problem, name: str) -> float:
-    """The limit for check ``name``: the case's override, else the family's, else the default."""
-    if name in problem.tolerances:
-        return float(problem.tolerances[name])
-    family = name.split(".")[0]
-    if name in DEFAULT_LIMITS:
-        default = DEFAULT_LIMITS[name]
-        return float(problem.tolerances.get(family, default)) if family != name else default
-    return float(problem.tolerances.get(family, DEFAULT_LIMITS[family]))
 
 
 def _faces(problem: Problem) -> list[str]:
@@ -287,7 +266,8 @@ def _regime_notes(problem: Problem, primary: SteadySolution, outcome: Outcome) -
     if primary.depletion_front is not None:
         edges = problem.edges
         outcome.warnings.append(
-            f"depleted zone: the concentration falls to zero at r = {primary.depletion_front:.4g} m "
+            "depleted zone: the concentration falls to zero at "
+            f"r = {primary.depletion_front:.4g} m "
             f"(body {edges[0]:.4g}–{edges[-1]:.4g} m); on the side of the front away from the "
             "supply the consuming material receives no solute")
     _thin_wall_note(problem, primary, outcome)
@@ -368,7 +348,7 @@ def _cross_check_fluxes(outcome: Outcome, problem: Problem, reference: SteadySol
     limit = None
     for side in _faces(problem):
         name = f"cross_check.flux_{side}"
-        limit = _limit(problem, name)
+        limit = check_limit(problem, name)
         w = _weight(problem, side)
         ref = _face_flux(reference, side)
         num = reference_values[side]
@@ -389,7 +369,7 @@ def _cross_check_profile(outcome: Outcome, problem: Problem, a: _Sampled,
         if diff[j] / c_scale > worst:
             worst, where = float(diff[j] / c_scale), float(r[j])
     outcome.check_at_most(
-        "cross_check.profile", worst, _limit(problem, "cross_check.profile"),
+        "cross_check.profile", worst, check_limit(problem, "cross_check.profile"),
         f"{label}: largest concentration difference at r = {where:.5g} m, relative to "
         f"{c_scale:.4g} {problem.concentration_unit}")
 
@@ -422,7 +402,8 @@ def _grid_checks(outcome: Outcome, problem: Problem, studies: dict, cells: list,
         order = (f"{result.apparent_order:.3g}" if math.isfinite(result.apparent_order)
                  else "not formed")
         outcome.check_at_most(
-            f"gci.{quantity}", gci, _limit(problem, "gci"),
+            # by family only: an override named gci.flux_* has never applied here
+            f"gci.{quantity}", gci, check_limit(problem, "gci"),
             f"grids of {cells[2]}, {cells[1]}, {cells[0]} cells: observed order {order}, "
             f"fine {result.fine:.9g}, extrapolated {result.extrapolated:.9g}; GCI_fine relative "
             f"to the throughput (Celik et al. 2008); {note}")
@@ -507,14 +488,14 @@ def run_steady(problem: Problem) -> Outcome:
                  if front is not None else float("inf"))
         outcome.check_at_most(
             "cross_check.depletion_front", value,
-            _limit(problem, "cross_check.depletion_front"),
+            check_limit(problem, "cross_check.depletion_front"),
             f"finite-volume front {front} m vs exact {exact.depletion_front:.6g} m, relative to "
             "the total thickness")
 
     imbalance = [(s.method, _mass_imbalance(problem, s, t_scale)) for s in solutions]
     name, value = _worst(imbalance)
     outcome.check_at_most(
-        "mass_balance", value, _limit(problem, "mass_balance"),
+        "mass_balance", value, check_limit(problem, "mass_balance"),
         f"(in - out - consumed)/throughput, worst of {len(imbalance)} methods: {name}")
 
     residuals = []
@@ -522,7 +503,7 @@ def run_steady(problem: Problem) -> Outcome:
         residuals += [(f"{s.method}: {k}", v) for k, v in
                       _boundary_residuals(problem, samples[id(s)], c_scale, t_scale)]
     name, value = _worst(residuals)
-    outcome.check_at_most("boundary_residual", value, _limit(problem, "boundary_residual"),
+    outcome.check_at_most("boundary_residual", value, check_limit(problem, "boundary_residual"),
                           f"worst face condition: {name}")
     if len(problem.layers) > 1:
         residuals = []
@@ -531,12 +512,12 @@ def run_steady(problem: Problem) -> Outcome:
                           _interface_residuals(problem, samples[id(s)], c_scale, t_scale)]
         name, value = _worst(residuals)
         outcome.check_at_most("interface_residual", value,
-                              _limit(problem, "interface_residual"),
+                              check_limit(problem, "interface_residual"),
                               f"worst interface condition: {name}")
 
     lowest = min(sample.lowest for sample in samples.values())
     outcome.check_at_most(
-        "non_negativity", max(0.0, -lowest) / c_scale, _limit(problem, "non_negativity"),
+        "non_negativity", max(0.0, -lowest) / c_scale, check_limit(problem, "non_negativity"),
         f"lowest concentration {lowest:.4g} {problem.concentration_unit} (every method)")
 
     if any(ly.reaction.kind == "michaelis_menten" for ly in problem.layers) and fine.success:
@@ -566,6 +547,6 @@ def _bracket_check(outcome: Outcome, problem: Problem, fine: _Sampled,
         if violation[j] > worst:
             worst, where = float(violation[j]), float(r[j])
     outcome.check_at_most(
-        "bracket", worst, _limit(problem, "bracket"),
+        "bracket", worst, check_limit(problem, "bracket"),
         f"finite-volume solution inside the maximum-principle bracket (Aris 1975; Protter & "
         f"Weinberger 1967); largest excursion at r = {where:.5g} m")

@@ -83,8 +83,8 @@ def test_good_nightly_time():
 def test_the_warm_up_case_is_a_case_the_engine_checks_and_it_runs_before_the_pool_forks():
     from celery.signals import celeryd_after_setup
 
+    import schemas.checking
     import worker.celery_app
-    import worker.engine.check
     import worker.warmup
     from worker.engine import check_case
     from worker.warmup import ENGINE_MODULES, WARM_UP_CASE, warm_up_engine
@@ -94,7 +94,7 @@ def test_the_warm_up_case_is_a_case_the_engine_checks_and_it_runs_before_the_poo
     imported, checked = [], []
     with pytest.MonkeyPatch.context() as patch:
         patch.setattr(worker.warmup.importlib, "import_module", imported.append)
-        patch.setattr(worker.engine.check, "check_case",
+        patch.setattr(schemas.checking, "check_case",
                       lambda case: checked.append(case) or {"status": "succeeded"})
         warm_up_engine()
     assert imported == list(ENGINE_MODULES) and checked == [WARM_UP_CASE]

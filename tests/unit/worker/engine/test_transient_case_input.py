@@ -8,7 +8,7 @@ import copy
 import pytest
 
 from schemas import CaseError, validate_case
-from worker.engine.transient_check import run_transient
+from worker.engine.transient import run_transient
 
 CASE = {
     "schema_version": 1,

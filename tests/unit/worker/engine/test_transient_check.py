@@ -11,9 +11,9 @@ import dataclasses
 import numpy as np
 import pytest
 
-from worker.engine import transient_check, transient_exact
 from worker.engine.model import Boundary, Layer, Problem, Reaction, Regime
-from worker.engine.transient_check import format_release_table, run_transient
+from worker.engine.outcome import Outcome
+from worker.engine.transient import checks, exact_series, run_transient, solve
 
 D = 1.0e-11  # m^2/s
 THICKNESS = 0.3e-3  # m
@@ -84,14 +84,14 @@ def test_unreached_t90_is_none_with_a_warning():
 
 def test_perturbed_series_fails_the_cross_check(monkeypatch):
     # A deliberately wrong reference (the series of a 3 % larger diffusivity) must fail.
-    real = transient_exact.solve_transient_exact
+    real = exact_series.solve_transient_exact
 
     def wrong(problem, times=None):
         layer = dataclasses.replace(problem.layers[0], diffusivity=problem.layers[0].diffusivity
                                     * 1.03)
         return real(dataclasses.replace(problem, layers=(layer,)), times)
 
-    monkeypatch.setattr(transient_exact, "solve_transient_exact", wrong)
+    monkeypatch.setattr(exact_series, "solve_transient_exact", wrong)
     outcome = run_transient(_sheet(probes=()))
     assert not _check(outcome, "cross_check.release_fraction").passed
     assert not _check(outcome, "cross_check.flux_outer").passed
@@ -118,21 +118,21 @@ def test_mass_balance_and_non_negativity_checks_can_fail():
         consumed = np.array([0.0, 0.0])
         cells = np.array([[1.0, 1.0], [0.2, -0.05]])
 
-    outcome = transient_check.TransientOutcome()
-    transient_check._mass_balance_check(outcome, _sheet(), Broken(), np.array([0.0, 1.0]))
-    transient_check._non_negativity_check(outcome, _sheet(), Broken(), np.array([0.0, 1.0]), 1.0)
+    outcome = Outcome()
+    checks.mass_balance_check(outcome, _sheet(), Broken(), np.array([0.0, 1.0]))
+    checks.non_negativity_check(outcome, _sheet(), Broken(), np.array([0.0, 1.0]), 1.0)
     assert not _check(outcome, "mass_balance").passed
     assert _check(outcome, "mass_balance").value == pytest.approx(0.1)
     assert not _check(outcome, "non_negativity").passed
 
 
 def test_steady_limit_fails_against_a_wrong_steady_reference(monkeypatch):
-    real = transient_check._steady_reference
+    real = solve.steady_reference
 
     def wrong(problem):
         return real(dataclasses.replace(problem, outer_boundary=Boundary("concentration", 0.1)))
 
-    monkeypatch.setattr(transient_check, "_steady_reference", wrong)
+    monkeypatch.setattr(solve, "steady_reference", wrong)
     outcome = run_transient(_sheet(probes=()))
     assert not _check(outcome, "steady_limit").passed
 
@@ -188,12 +188,3 @@ def test_bad_regimes_are_refused_with_the_field():
     with pytest.raises(ValueError, match="regime.kind"):
         run_transient(_sheet(regime=Regime("steady")))
 
-
-def test_release_table_text(sheet_outcome):
-    text = format_release_table(sheet_outcome)
-    lines = text.splitlines()
-    assert lines[0] == "Release"
-    assert "release_fraction" in lines[1] and "out outer [mol]" in lines[1]
-    assert len([line for line in lines if line.strip()[:1].isdigit()]) == len(TIMES)
-    assert any(line.startswith("t50 (50 % released): ") for line in lines)
-    assert format_release_table({"series": {}, "quantities": {}}) == ""

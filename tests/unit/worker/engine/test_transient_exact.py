@@ -6,9 +6,9 @@ import numpy as np
 import pytest
 from numpy.testing import assert_allclose
 
-from worker.engine.eigen_roots import scanned_roots, sheet_surface_film_roots
 from worker.engine.model import Boundary, Layer, Problem, Reaction, Regime
-from worker.engine.transient_exact import series_unsupported_reason, solve_transient_exact
+from worker.engine.transient.eigen_roots import scanned_roots, sheet_surface_film_roots
+from worker.engine.transient.exact_series import series_unsupported_reason, solve_transient_exact
 
 SINK = Boundary("concentration", 0.0)
 

@@ -7,7 +7,7 @@ import pytest
 from numpy.testing import assert_allclose
 
 from worker.engine.model import Boundary, Layer, Problem, Reaction, Regime
-from worker.engine.transient_fv import solve_transient_fv, solve_transient_fv_meshes
+from worker.engine.transient.method_of_lines import solve_transient_fv, solve_transient_fv_meshes
 
 SINK = Boundary("concentration", 0.0)
 SEALED = Boundary("symmetry")

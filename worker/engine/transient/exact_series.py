@@ -50,10 +50,12 @@ from collections.abc import Callable
 from dataclasses import dataclass, field
 
 import numpy as np
+from numpy.typing import ArrayLike
 from scipy import special
 
-from worker.engine.eigen_roots import scanned_roots
 from worker.engine.model import Boundary, Problem
+from worker.engine.transient.eigen_roots import scanned_roots
+from worker.engine.transient.solution import TransientSolution
 
 #: Target bound on the truncated tail of the face-flux series, relative to its largest term.
 SERIES_TOLERANCE = 1e-12
@@ -71,12 +73,9 @@ METHOD_REFERENCE = (
 
 
 @dataclass
-class TransientSeriesSolution:
-    """Series solution evaluated at the requested times.
-
-    Amounts are per measure (per m^2 slab, per m cylinder, total sphere) in amount units;
-    fluxes are flux densities (amount/(m^2*s)), positive outward. ``released_*`` is the
-    cumulative amount that left the body through that face (negative: uptake).
+class TransientSeriesSolution(TransientSolution):
+    """Series solution evaluated at the requested times (amounts and fluxes: see
+    :class:`~worker.engine.transient.solution.TransientSolution`).
 
     ``concentration_at(r, t)`` returns an array (len(t), len(r)) in amount/m^3;
     ``amounts_at(t)`` returns (remaining, released_inner, released_outer, consumed) at any
@@ -87,16 +86,6 @@ class TransientSeriesSolution:
     body without reaction whose outer face reaches a steady outward flux, else None.
     """
 
-    method: str
-    reference: str
-    times: np.ndarray
-    remaining: np.ndarray
-    released_inner: np.ndarray
-    released_outer: np.ndarray
-    consumed: np.ndarray
-    flux_inner: np.ndarray
-    flux_outer: np.ndarray
-    initial_load: float
     terms: int
     tail_bound: np.ndarray
     converged: np.ndarray
@@ -104,7 +93,7 @@ class TransientSeriesSolution:
     steady_flux_inner: float
     steady_flux_outer: float
     time_lag: float | None
-    concentration_at: Callable[[np.ndarray, np.ndarray], np.ndarray]
+    concentration_at: Callable[[ArrayLike, ArrayLike], np.ndarray]
     amounts_at: Callable[[np.ndarray], tuple]
     notes: list[str] = field(default_factory=list)
 

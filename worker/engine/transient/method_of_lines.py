@@ -36,9 +36,12 @@ L.F. Shampine, M.W. Reichelt, "The MATLAB ODE suite", SIAM J. Sci. Comput. 18 (1
 
 from __future__ import annotations
 
+from collections.abc import Callable
 from dataclasses import dataclass, field
+from typing import Any
 
 import numpy as np
+from numpy.typing import ArrayLike
 from scipy import sparse
 from scipy.integrate import BDF, solve_ivp
 
@@ -52,6 +55,7 @@ from worker.engine.fv_mesh import (
     reaction_terms,
 )
 from worker.engine.model import Problem
+from worker.engine.transient.solution import TransientSolution
 
 #: Relative tolerance of the BDF integration: its time error (about 1e-6 of the amounts) stays
 #: far below the space error of the meshes used and the cross-check limit (1e-3).
@@ -73,14 +77,11 @@ METHOD_REFERENCE = (
 
 
 @dataclass
-class TransientFVSolution:
-    """Method-of-lines solution at the requested times.
+class TransientFVSolution(TransientSolution):
+    """Method-of-lines solution at the requested times (amounts and fluxes: see
+    :class:`~worker.engine.transient.solution.TransientSolution`).
 
-    Amounts (``remaining``, ``released_inner``, ``released_outer``, ``consumed``,
-    ``initial_load``) are per measure in amount units (per m^2 slab, per m cylinder, total
-    sphere); ``released_*`` is the cumulative amount out through that face (negative: uptake).
-    ``flux_inner``/``flux_outer`` are outward flux densities, amount/(m^2*s) (0 at a solid
-    centre). ``cells`` holds the cell concentrations, shape (len(times), N).
+    ``cells`` holds the cell concentrations, shape (len(times), N).
     ``profile_at(index)`` gives ``(concentration_at, flux_at)`` callables (see
     ``fv_mesh.make_profile_functions``) of the state at ``times[index]``;
     ``state_at(t)`` evaluates the dense output (cells, then out_inner, out_outer, consumed,
@@ -88,24 +89,14 @@ class TransientFVSolution:
     integrator's step times.
     """
 
-    method: str
-    reference: str
     success: bool
     message: str
     mesh: Mesh
-    times: np.ndarray
-    remaining: np.ndarray
-    released_inner: np.ndarray
-    released_outer: np.ndarray
-    consumed: np.ndarray
-    flux_inner: np.ndarray
-    flux_outer: np.ndarray
     cells: np.ndarray
-    initial_load: float
     end: float
     rtol: float
-    state_at: object = None
-    profile_at: object = None
+    state_at: Callable[[ArrayLike], np.ndarray]
+    profile_at: Callable[[int], tuple[Callable[..., Any], Callable[..., Any]]]
     step_times: np.ndarray | None = None
     diagnostics: dict = field(default_factory=dict)
 

@@ -1,0 +1,53 @@
+"""``check_case``: validate a case document, solve it, and return its check record."""
+
+from __future__ import annotations
+
+import logging
+
+from schemas.build import validate_case
+from schemas.canonical import case_sha256
+from schemas.errors import CaseError
+from schemas.record import failed_record, succeeded_record
+from worker.engine.plausibility import input_warnings
+from worker.engine.provenance import provenance_block, utc_now
+from worker.engine.run import run_problem
+
+logger = logging.getLogger(__name__)
+
+__all__ = ["CaseError", "check_case"]
+
+
+def check_case(case: dict) -> dict:
+    """Check one case document and return its record.
+
+    Parameters
+    ----------
+    case : dict
+        A case document, schema_version 1.
+
+    Returns
+    -------
+    dict
+        The result document: ``status``, ``verdict``, ``quantities`` (SI), ``series``,
+        ``methods``, ``checks``, ``warnings``, ``provenance``, ``inputs`` (the normalised case)
+        and ``caution`` (see :mod:`schemas.record`).
+
+    Raises
+    ------
+    schemas.CaseError
+        When the case is invalid; ``.errors`` lists every ``{path, message}``. An engine
+        failure is not raised: it is recorded (status ``failed``).
+    """
+    started_at = utc_now()
+    validated = validate_case(case)
+    digest = case_sha256(case)
+    try:
+        outcome = run_problem(validated.problem)
+    except Exception as exc:  # the engine could not produce a result: recorded, not raised
+        logger.exception("engine failure for case %s", digest)
+        return failed_record(digest, exc, provenance_block(digest, started_at, utc_now()),
+                             validated.normalised)
+    warnings = input_warnings(validated.problem)
+    return succeeded_record(digest, outcome, warnings,
+                            provenance_block(digest, started_at, utc_now()),
+                            validated.normalised)

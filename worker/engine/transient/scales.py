@@ -1,0 +1,96 @@
+"""Scales and small measures of a transient case: the reported amount's unit and size factor,
+the relaxation time, and the error measures the checks share."""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Callable
+
+import numpy as np
+from scipy.optimize import brentq
+
+from worker.engine.model import Problem
+
+#: Values below this fraction of their scale are compared absolutely (see ``relative_errors``).
+CROSS_CHECK_FLOOR = 1e-2
+
+__all__ = [
+    "CROSS_CHECK_FLOOR",
+    "capacity_resistance_time",
+    "first_crossing",
+    "is_membrane",
+    "relative_errors",
+    "size_factor",
+    "worst",
+]
+
+
+def size_factor(problem: Problem) -> tuple[float, str]:
+    """Factor turning per-measure amounts into reported amounts, and the amount unit."""
+    amount = problem.amount_unit
+    if problem.geometry == "slab":
+        return (problem.area, amount) if problem.area else (1.0, f"{amount}/m^2")
+    if problem.geometry == "cylinder":
+        return (problem.length, amount) if problem.length else (1.0, f"{amount}/m")
+    return 1.0, amount
+
+
+def is_membrane(problem: Problem) -> bool:
+    """Initially empty body, fixed source at the inner face, sink at the outer face."""
+    inner, outer = problem.inner_boundary, problem.outer_boundary
+    return (
+        all(layer.initial == 0.0 for layer in problem.layers)
+        and all(layer.reaction.kind == "none" for layer in problem.layers)
+        and inner.kind == "concentration" and inner.value > 0.0
+        and outer.kind == "concentration" and outer.value == 0.0
+    )
+
+
+def capacity_resistance_time(problem: Problem) -> float:
+    """Slowest relaxation time estimate, s: capacity sum(K L) times resistance sum(L/(K D)),
+    plus film resistances K_face/h; for one layer it is L^2/D (above the slowest mode's
+    4 L^2/(pi^2 D) of a sink-sealed layer)."""
+    capacity = sum(ly.partition * ly.thickness for ly in problem.layers)
+    resistance = sum(ly.thickness / (ly.partition * ly.diffusivity) for ly in problem.layers)
+    for boundary in (problem.inner_boundary, problem.outer_boundary):
+        if boundary.kind == "mass_transfer" and boundary.coefficient > 0.0:
+            resistance += 1.0 / boundary.coefficient
+    if all(b.kind in ("flux", "symmetry") or (b.kind == "mass_transfer" and b.coefficient <= 0)
+           for b in (problem.inner_boundary, problem.outer_boundary)):
+        resistance = math.inf
+        rates = [ly.reaction.linear_rate_constant or 0.0 for ly in problem.layers]
+        if any(rates):
+            return 1.0 / min(r for r in rates if r > 0)
+    return capacity * resistance
+
+
+def relative_errors(values, reference, scale: float) -> np.ndarray:
+    """``|a - b| / max(|b|, CROSS_CHECK_FLOOR * scale)``: relative where the reference is
+    large, absolute (a fraction of ``scale``) where it is small."""
+    values = np.asarray(values, dtype=float)
+    reference = np.asarray(reference, dtype=float)
+    floor = CROSS_CHECK_FLOOR * scale if scale > 0 else 1e-300
+    return np.abs(values - reference) / np.maximum(np.abs(reference), floor)
+
+
+def worst(errors: np.ndarray, times: np.ndarray) -> tuple[float, float | None]:
+    """The largest finite error and its time; (NaN, None) when none is finite."""
+    finite = np.isfinite(errors)
+    if not np.any(finite):
+        return math.nan, None
+    index = int(np.nanargmax(np.where(finite, errors, -np.inf)))
+    return float(errors[index]), float(times[index])
+
+
+def first_crossing(function: Callable[[np.ndarray], np.ndarray], grid: np.ndarray,
+                   level: float) -> float | None:
+    """First t on the grid interval where function(t) reaches level (refined by brentq)."""
+    values = np.asarray(function(grid), dtype=float) - level
+    above = np.nonzero(values >= 0.0)[0]
+    if above.size == 0:
+        return None
+    k = int(above[0])
+    if k == 0:
+        return float(grid[0])
+    return float(brentq(lambda t: float(np.asarray(function(np.array([t])))[0]) - level,
+                        grid[k - 1], grid[k], xtol=1e-12 * grid[k], rtol=1e-12))

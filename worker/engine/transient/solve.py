@@ -1,0 +1,168 @@
+"""The solves of a transient case: the method of lines on three meshes, the exact series on a
+scan of times, their grid-extrapolated values, the continuation towards the steady state and
+the steady reference it is compared with."""
+
+from __future__ import annotations
+
+import dataclasses
+import math
+
+import numpy as np
+
+from worker.engine import convergence
+from worker.engine.exact_steady import solve_exact
+from worker.engine.fv_mesh import default_cells_per_layer
+from worker.engine.fv_steady import solve_fv
+from worker.engine.model import Problem, Regime, SteadySolution
+from worker.engine.transient import exact_series, method_of_lines
+from worker.engine.transient.exact_series import TransientSeriesSolution
+from worker.engine.transient.method_of_lines import TransientFVSolution
+from worker.engine.transient.scales import capacity_resistance_time
+from worker.engine.transient.solution import AMOUNTS
+
+#: Cells per layer of the coarse mesh: the steady mesh rule divided by this (fine = steady mesh).
+COARSE_DIVISOR = 4
+#: Fewest cells per layer of the coarse mesh.
+MIN_COARSE_CELLS = 10
+#: Early-time resolution: a coarse cell is at most this fraction of the diffusion length
+#: sqrt(D t) of its layer at the first positive requested time ...
+EARLY_RESOLUTION = 0.35
+#: ... up to this many coarse cells per layer (fine mesh: four times as many).
+MAX_COARSE_CELLS = 250
+#: Capacity-resistance times integrated past the duration for ``steady_limit``.
+STEADY_HORIZON = 40.0
+#: Integrator tolerance of that continuation: only its end state is used, and the decaying
+#: error of the path does not reach it.
+CONTINUATION_RTOL = 1e-4
+#: Scan points (log-spaced over the duration) used to bracket t50/t90 in the series.
+EVENT_SCAN_POINTS = 400
+
+__all__ = [
+    "COARSE_DIVISOR",
+    "STEADY_HORIZON",
+    "extrapolated",
+    "fv_on_meshes",
+    "late_state",
+    "mesh_sequence",
+    "numerical_time_lag",
+    "requested_times",
+    "series_on_scan",
+    "steady_reference",
+]
+
+
+def requested_times(problem: Problem) -> tuple[np.ndarray, float]:
+    """The requested times (sorted, unique) and the duration, s; ValueError naming the field
+    when the regime is not a transient one with times within a positive finite duration."""
+    regime = problem.regime
+    if regime.kind != "transient":
+        raise ValueError(f"regime.kind: expected 'transient', got {regime.kind!r}")
+    times = np.asarray(regime.times, dtype=float)
+    duration = regime.duration
+    if times.size == 0:
+        raise ValueError("regime.times: expected at least one time")
+    if duration is None or not (duration > 0.0 and math.isfinite(duration)):
+        raise ValueError(f"regime.duration: expected a positive finite time, got {duration!r}")
+    if np.any(times < 0.0) or np.any(times > duration * (1 + 1e-12)):
+        raise ValueError(f"regime.times: expected times within [0, duration = {duration} s]")
+    return np.unique(times), float(duration)
+
+
+def mesh_sequence(problem: Problem, first_time: float | None) -> list[tuple[int, ...]]:
+    """Coarse, medium and fine cells per layer (ratio 2). The coarse mesh is the steady mesh
+    rule divided by ``COARSE_DIVISOR``, refined where needed so that the diffusion length at the
+    first requested time spans several coarse cells (``EARLY_RESOLUTION``)."""
+    base = default_cells_per_layer(problem)
+    cells_per_layer = []
+    for n, layer in zip(base, problem.layers, strict=True):
+        cells = max(MIN_COARSE_CELLS, math.ceil(n / COARSE_DIVISOR))
+        if first_time is not None and first_time > 0.0:
+            length = math.sqrt(layer.diffusivity * first_time)
+            early = math.ceil(layer.thickness / (EARLY_RESOLUTION * length))
+            cells = max(cells, min(early, MAX_COARSE_CELLS))
+        cells_per_layer.append(cells)
+    coarse = tuple(cells_per_layer)
+    return [coarse, tuple(2 * n for n in coarse), tuple(4 * n for n in coarse)]
+
+
+def fv_on_meshes(problem: Problem, times: np.ndarray, end: float) -> list[TransientFVSolution]:
+    """Coarse, medium and fine solutions, integrated together (shared BDF steps)."""
+    positive = times[times > 0.0]
+    first = float(positive.min()) if positive.size else None
+    return method_of_lines.solve_transient_fv_meshes(
+        problem, mesh_sequence(problem, first), times, end=end)
+
+
+def series_on_scan(problem: Problem, times: np.ndarray, end: float
+                   ) -> tuple[TransientSeriesSolution | None, np.ndarray | None]:
+    """Series at the requested times plus a log-spaced scan (for t50/t90), or (None, None)."""
+    if exact_series.series_unsupported_reason(problem) is not None:
+        return None, None
+    positive = times[times > 0.0]
+    low = min(positive.min() if positive.size else end, end) * 0.5
+    scan = np.geomspace(max(low, end * 1e-7), end, EVENT_SCAN_POINTS)
+    solution = exact_series.solve_transient_exact(problem, np.union1d(times, scan))
+    return solution, scan
+
+
+def extrapolated(fvs: list[TransientFVSolution], times: np.ndarray) -> dict[str, np.ndarray]:
+    """Per time, the Richardson-extrapolated value of each of :data:`AMOUNTS` (the fine value
+    where the three meshes do not converge monotonically); ``fvs`` is coarse, medium, fine."""
+    cells = [sum(f.diagnostics["cells_per_layer"]) for f in reversed(fvs)]  # fine first
+    out = {}
+    for name in AMOUNTS:
+        series = [getattr(f, name) for f in reversed(fvs)]  # fine, medium, coarse
+        values = np.array(series[0], dtype=float)
+        for k in range(times.size):
+            triple = [float(s[k]) for s in series]
+            if not all(math.isfinite(v) for v in triple):
+                continue
+            study = convergence.grid_study(triple, cells)
+            if study.convergence == "monotonic" and math.isfinite(study.extrapolated):
+                values[k] = study.extrapolated
+        out[name] = values
+    return out
+
+
+def late_state(problem: Problem, fine: TransientFVSolution,
+               duration: float) -> TransientFVSolution:
+    """FV state integrated ``STEADY_HORIZON`` relaxation times past the duration (cached on
+    ``fine``: the time lag and the steady limit both read it)."""
+    cached = getattr(fine, "_late", None)
+    if cached is not None:
+        return cached
+    horizon = STEADY_HORIZON * capacity_resistance_time(problem)
+    end = duration + horizon
+    y_end = fine.diagnostics["end_state"]
+    late = method_of_lines.solve_transient_fv(
+        problem, [duration + 0.5 * horizon, end], fine.diagnostics["cells_per_layer"], end=end,
+        initial_state=y_end, start=duration, rtol=CONTINUATION_RTOL)
+    setattr(fine, "_late", late)  # noqa: B010 - a cache the solution type does not declare
+    return late
+
+
+def numerical_time_lag(problem: Problem, fine: TransientFVSolution,
+                       duration: float) -> float | None:
+    """Intercept t - Q(t)/J_ss of the late-time cumulative outer release (method of lines)."""
+    late = late_state(problem, fine, duration)
+    if not late.success:
+        return None
+    measure = problem.measure_factor
+    weight = problem.outer ** problem.exponent
+    rate = measure * weight * late.flux_outer[-1]
+    if rate <= 0.0:
+        return None
+    return float(late.times[-1] - late.released_outer[-1] / rate)
+
+
+def steady_reference(problem: Problem) -> SteadySolution:
+    """The steady engine's solution of ``problem``: exact where it exists, else finite volumes."""
+    steady_problem = dataclasses.replace(problem, regime=Regime("steady"))
+    reference: SteadySolution | None
+    try:
+        reference = solve_exact(steady_problem)
+    except (ValueError, ArithmeticError):
+        reference = None
+    if reference is None or not reference.success:
+        reference = solve_fv(steady_problem)
+    return reference
