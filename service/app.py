@@ -8,7 +8,14 @@ from typing import Any
 from flask import Flask
 
 from service import errors
+from service.api import api
+from service.api.context import Services
+from service.dispatch import make_dispatcher
+from service.runs import pending_run_ids
 from service.settings import DEFAULTS, database_url, dispatch_mode
+from service.store import Store
+from service.store.migrate import upgrade
+from service.ui import init_app as init_ui
 
 logger = logging.getLogger(__name__)
 
@@ -20,13 +27,6 @@ def create_app(test_config: dict[str, Any] | None = None) -> Flask:
     (Celery when ``BROKER_URL`` is set, else the embedded thread pool) and registers the API.
     In embedded mode, runs left unfinished by an earlier process are sent again at start.
     """
-    from service.api import api
-    from service.api.context import Services
-    from service.dispatch import make_dispatcher
-    from service.store import Store
-    from service.store.migrate import upgrade
-    from service.runs import pending_run_ids
-
     app = Flask(__name__, static_folder=None)
     app.config.from_mapping(DEFAULTS)
     app.config.from_prefixed_env("FLUXPROOF")
@@ -52,8 +52,6 @@ def create_app(test_config: dict[str, Any] | None = None) -> Flask:
 
     errors.init_app(app)
     app.register_blueprint(api)
-    from service.ui import init_app as init_ui
-
     init_ui(app)
 
     if mode == "embedded" and settings["AUTO_MIGRATE"]:
