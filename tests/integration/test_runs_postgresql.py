@@ -1,6 +1,7 @@
-"""execute_run on PostgreSQL, where the claim and the outcome are single self-committing
-statements whose audit events are joined in SQL (service.runs_postgresql): the events carry
-the same payloads as on SQLite, and the chain verifies."""
+"""Runs on PostgreSQL, written by its run writer (service.store.run_writer.PostgresqlRunWriter:
+the claim, the outcome and POST /v1/runs each one self-committing statement, events chained
+after it): the events carry the payloads the interface promises, the same as the SQLite
+writer's for the same operations, and the chain verifies."""
 
 from __future__ import annotations
 
@@ -106,4 +107,57 @@ def test_posting_a_new_case_and_the_same_case_again_stores_it_once_with_its_even
             AuditEvent.subject.in_([case_id, first["run_id"]])).order_by(AuditEvent.seq)
         ).scalars().all()
     assert order == ["case.stored", "run.queued"]  # the chain lists the case before its run
+    assert audit.verify_chain(store).ok
+
+
+def _operations(store, engine, documents) -> list[tuple]:
+    """The same operations through the run writer interface; their events, ids replaced by
+    their order of appearance (ids are random)."""
+    from service.store.models import Run
+
+    names: dict[str, str] = {}
+
+    def name(value):
+        return names.setdefault(value, f"id{len(names)}") if isinstance(value, str) else value
+
+    document, other = documents
+    queued = create_run(store, actor="eng", document=document)
+    again = create_run(store, actor="eng2", document=dict(document))
+    assert execute_run(queued["run_id"], store, actor="w") == "succeeded"
+    assert execute_run(queued["run_id"], store, actor="w2") == "succeeded"
+    engine.status = "failed"
+    assert execute_run(again["run_id"], store, actor="w") == "failed"
+    stuck = create_run(store, actor="eng", document=other)["run_id"]
+    with store.transaction() as session:
+        session.get(Run, stuck).attempts = 3
+    assert execute_run(stuck, store, max_attempts=3, actor="w") == "failed"
+    events = []
+    for run_id in (queued["case_id"], queued["run_id"], again["run_id"], stuck):
+        for kind, actor, payload in _events(store, run_id):
+            payload = {k: (name(v) if k in ("case_id", "case_sha256", "sha256") else v)
+                       for k, v in payload.items()}
+            events.append((name(run_id), kind, actor, payload))
+    return events
+
+
+def test_both_run_writers_write_the_same_events_for_the_same_operations(
+        store, controlled_engine, tmp_path):  # noqa: F811
+    from service.store import Store
+    from service.store.migrate import upgrade
+    from service.store.run_writer import PostgresqlRunWriter, SessionRunWriter
+
+    sqlite = Store(f"sqlite:///{tmp_path / 'same.sqlite3'}")
+    try:
+        upgrade(sqlite)
+        assert type(store.runs) is PostgresqlRunWriter
+        assert type(sqlite.runs) is SessionRunWriter
+        documents = (_document(), _document())
+        on_postgresql = _operations(store, controlled_engine, documents)
+        controlled_engine.status = "succeeded"
+        on_sqlite = _operations(sqlite, controlled_engine, documents)
+        assert on_postgresql == on_sqlite
+        assert len(on_postgresql) == 9
+        assert audit.verify_chain(sqlite).ok
+    finally:
+        sqlite.dispose()
     assert audit.verify_chain(store).ok
