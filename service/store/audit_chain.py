@@ -11,25 +11,30 @@ Two steps, on both databases:
    events are queued with :func:`append_event` and written by a ``before_commit`` hook after
    the session's other changes; the run writers of :mod:`service.store.run_writer` put theirs
    into ``audit_pending`` in the same statement as the change.
-2. **Chain.** :func:`chain_pending` locks the single chain-head row, reads every pending event
-   in ``id`` order, numbers, times and hashes each in Python, inserts them into
-   ``audit_events``, moves the head and deletes them from the outbox, in one transaction.
+2. **Chain.** The head and every pending event are read in ``id`` order, numbered, timed and
+   hashed in Python (:func:`event_hash`), inserted into ``audit_events``, the head moved on
+   and the chained events deleted from the outbox.
 
-When the second step runs is the store's choice (:class:`service.store.session.Store`):
+When and how the second step runs is the store's choice (:meth:`Store.chain_audit
+<service.store.session.Store.chain_audit>`):
 
-* SQLite: in the writing transaction itself, just before its commit. That transaction holds
-  the database write lock from ``BEGIN IMMEDIATE``, so nothing is ever left pending.
-* PostgreSQL: in a short transaction of its own right after the writer's commit. Writers
-  therefore never hold the chain lock while they change data, and concurrent writers produce
-  one linear chain: whoever holds the head lock chains everything committed so far, in outbox
-  order; a writer waits for the lock, so its own events are on the chain when it returns.
-  An event whose writer died between the two steps stays pending until the next chaining:
-  any later writer's, :func:`service.audit.list_events` and :func:`service.audit.verify_chain`
-  (which chain first), or the upkeep sweep (:func:`service.recovery.recover_lost_runs`).
+* SQLite (:func:`chain_pending`): in the writing transaction itself, just before its commit.
+  That transaction holds the database write lock from ``BEGIN IMMEDIATE``, so the head cannot
+  move and nothing is ever left pending.
+* PostgreSQL (:func:`chain_pending_concurrently`): right after the writer's commit, in two
+  self-committing statements: one read of the head and the outbox, then one write that applies
+  only if the head has not moved meanwhile (else read again). No lock is held across a round
+  trip to the client, writers never hold the chain while they change data, and concurrent
+  writers produce one linear chain; a writer returns once its events are on the chain (it
+  chained them, or the chainer that moved the head before it did).
+  An event whose writer died between its commit and the chaining stays pending until the next
+  chaining: any later writer's, :func:`service.audit.list_events` and
+  :func:`service.audit.verify_chain` (which chain first), or the upkeep sweep
+  (:func:`service.recovery.recover_lost_runs`).
 
 Events of one transaction keep their order (outbox ids grow within it); an event's ``at`` is
-the moment it is chained, under the lock, so times follow the chain's order. A rolled-back
-transaction leaves nothing in the outbox.
+the moment it is chained, after the head it follows was read, so times follow the chain's
+order. A rolled-back transaction leaves nothing in the outbox.
 
 The canonical JSON is frozen with the chain format (sorted keys, no spaces, UTF-8, no NaN) and
 deliberately independent of the case canonicalisation, so old chains stay verifiable.
@@ -42,7 +47,25 @@ import json
 from dataclasses import dataclass
 from typing import Any
 
-from sqlalchemy import Connection, bindparam, delete, event, insert, select, update
+from sqlalchemy import (
+    JSON,
+    BigInteger,
+    Connection,
+    Integer,
+    Text,
+    any_,
+    bindparam,
+    cast,
+    delete,
+    event,
+    exists,
+    func,
+    insert,
+    select,
+    true,
+    update,
+)
+from sqlalchemy.dialects.postgresql import ARRAY
 from sqlalchemy.orm import Session
 
 from service.store.models import AuditEvent, AuditHead, AuditPending, utc_now
@@ -129,12 +152,16 @@ def pend_events(connection: Connection | Session, events: list[PendingEvent]) ->
 
 
 #: Statements of the chaining, built once (compiling them per call cost more than running).
-_LOCK_HEAD = (select(AuditHead.seq, AuditHead.hash).where(AuditHead.id == HEAD_ROW_ID)
-              .with_for_update())
-_READ_PENDING = select(_PENDING.c.id, _PENDING.c.actor, _PENDING.c.kind, _PENDING.c.subject,
-                       _PENDING.c.payload).order_by(_PENDING.c.id)
-_INSERT_EVENTS = insert(AuditEvent.__table__)
-_MOVE_HEAD = (update(AuditHead.__table__).where(AuditHead.__table__.c.id == HEAD_ROW_ID)
+_HEAD = AuditHead.__table__
+_EVENTS = AuditEvent.__table__
+_EVENT_COLUMNS = ["seq", "at", "actor", "kind", "subject", "payload", "prev_hash", "hash"]
+_READ_HEAD_AND_PENDING = (
+    select(_HEAD.c.seq, _HEAD.c.hash, _PENDING.c.id, _PENDING.c.actor, _PENDING.c.kind,
+           _PENDING.c.subject, _PENDING.c.payload)
+    .select_from(_HEAD.outerjoin(_PENDING, true())).where(_HEAD.c.id == HEAD_ROW_ID)
+    .order_by(_PENDING.c.id))
+_INSERT_EVENTS = insert(_EVENTS)
+_MOVE_HEAD = (update(_HEAD).where(_HEAD.c.id == HEAD_ROW_ID)
               .values(seq=bindparam("head_seq"), hash=bindparam("head_hash")))
 #: By id, not by "up to the last id": an outbox id is drawn at insert, so a transaction that
 #: commits after this chaining read the outbox can hold a smaller id than the ones it read.
@@ -142,27 +169,87 @@ _DELETE_CHAINED = delete(_PENDING).where(_PENDING.c.id.in_(bindparam("ids", expa
 ANY_PENDING = select(_PENDING.c.id).limit(1)
 
 
-def chain_pending(connection: Connection | Session) -> int:
-    """Chain every event in the outbox, in outbox order, on ``connection``'s transaction;
-    return how many were chained. Takes the chain-head lock first, so chainers take turns and
-    each sees everything the one before it left."""
-    seq, prev_hash = connection.execute(_LOCK_HEAD).one()
-    pending = connection.execute(_READ_PENDING).all()
-    if not pending:
-        return 0
-    rows = []
+def _pg_chain_if_head_unmoved() -> Any:
+    """PostgreSQL: move the head from ``old_seq`` on, insert the chained events and delete
+    them from the outbox, in one self-committing statement that does nothing unless the head
+    is still at ``old_seq`` (another chainer came first: read again and retry)."""
+    moved = (update(_HEAD)
+             .where(_HEAD.c.id == HEAD_ROW_ID, _HEAD.c.seq == bindparam("old_seq"))
+             .values(seq=bindparam("head_seq"), hash=bindparam("head_hash"))
+             .returning(_HEAD.c.id).cte("moved"))
+    head_moved = exists(select(moved.c.id))
+    rows = func.unnest(*[bindparam(f"{name}s", type_=ARRAY(Integer if name == "seq" else Text))
+                         for name in _EVENT_COLUMNS]
+                       ).table_valued(*_EVENT_COLUMNS).render_derived()
+    inserted = insert(_EVENTS).from_select(_EVENT_COLUMNS, select(
+        *[cast(rows.c[name], JSON) if name == "payload" else rows.c[name]
+          for name in _EVENT_COLUMNS]).where(head_moved)).cte("inserted")
+    deleted = delete(_PENDING).where(
+        _PENDING.c.id == any_(bindparam("ids", type_=ARRAY(BigInteger))), head_moved
+    ).cte("deleted")
+    return select(func.count()).select_from(moved).add_cte(inserted, deleted)
+
+
+_PG_CHAIN_IF_HEAD_UNMOVED = _pg_chain_if_head_unmoved()
+
+
+def _chained(head_seq: int, head_hash: str, pending: list[Any]) -> list[dict[str, Any]]:
+    """The outbox rows ``pending`` as chain events after the head (``head_seq``,
+    ``head_hash``): numbered, timed now and hashed (:func:`event_hash`), in order."""
+    events, seq, prev_hash = [], head_seq, head_hash
     for row in pending:
         seq += 1
         at = utc_now().isoformat(timespec="microseconds")
         digest = event_hash(prev_hash, seq, at, row.actor, row.kind, row.subject, row.payload)
-        rows.append({"seq": seq, "at": at, "actor": row.actor, "kind": row.kind,
-                     "subject": row.subject, "payload": row.payload, "prev_hash": prev_hash,
-                     "hash": digest})
+        events.append({"seq": seq, "at": at, "actor": row.actor, "kind": row.kind,
+                       "subject": row.subject, "payload": row.payload,
+                       "prev_hash": prev_hash, "hash": digest})
         prev_hash = digest
-    connection.execute(_INSERT_EVENTS, rows)
-    connection.execute(_MOVE_HEAD, {"head_seq": seq, "head_hash": prev_hash})
+    return events
+
+
+def _read_outbox(connection: Connection | Session) -> tuple[int, str, list[Any]]:
+    """The chain head and the outbox in order, in one statement."""
+    rows = connection.execute(_READ_HEAD_AND_PENDING).all()
+    return rows[0].seq, rows[0].hash, [row for row in rows if row.id is not None]
+
+
+def chain_pending(connection: Connection | Session) -> int:
+    """Chain every event in the outbox on ``connection``'s transaction, which must hold the
+    database's write lock (SQLite's ``BEGIN IMMEDIATE``); how many were chained."""
+    head_seq, head_hash, pending = _read_outbox(connection)
+    if not pending:
+        return 0
+    events = _chained(head_seq, head_hash, pending)
+    connection.execute(_INSERT_EVENTS, events)
+    connection.execute(_MOVE_HEAD, {"head_seq": events[-1]["seq"],
+                                    "head_hash": events[-1]["hash"]})
     connection.execute(_DELETE_CHAINED, {"ids": [row.id for row in pending]})
-    return len(rows)
+    return len(events)
+
+
+def chain_pending_concurrently(connection: Connection) -> int:
+    """PostgreSQL: chain every event in the outbox, on an autocommit connection, while other
+    processes may be doing the same; how many this call chained.
+
+    Optimistic, so that no lock is held across a round trip to the client: read the head and
+    the outbox (one statement), hash in Python, then write everything in one statement that
+    applies only if the head has not moved meanwhile (the head row's update waits for a
+    concurrent one and then sees its result). A chainer that finds the head moved reads again:
+    whoever moved it chained every event committed before its read, so what is left is newer.
+    """
+    while True:
+        head_seq, head_hash, pending = _read_outbox(connection)
+        if not pending:
+            return 0
+        events = _chained(head_seq, head_hash, pending)
+        params: dict[str, Any] = {f"{name}s": [e[name] for e in events]
+                                  for name in _EVENT_COLUMNS if name != "payload"}
+        params["payloads"] = [chain_json(e["payload"]) for e in events]
+        params.update(old_seq=head_seq, head_seq=events[-1]["seq"],
+                      head_hash=events[-1]["hash"], ids=[row.id for row in pending])
+        if connection.execute(_PG_CHAIN_IF_HEAD_UNMOVED, params).scalar_one():
+            return len(events)
 
 
 def write_pending_events(session: Session) -> int:

@@ -22,7 +22,7 @@ from __future__ import annotations
 
 import uuid
 from dataclasses import dataclass
-from typing import TYPE_CHECKING, Any
+from typing import TYPE_CHECKING, Any, Protocol
 
 from sqlalchemy import (
     JSON,
@@ -163,6 +163,23 @@ def insert_queued_runs(session: Session, cases: Any, actor: str, batch_id: str |
     if rows:
         session.execute(_INSERT_RUN, rows)
     return [row["id"] for row in rows]
+
+
+class RunWriter(Protocol):
+    """The run-persistence interface (``Store.runs``). Each operation writes its audit events
+    in the same transaction as its change (see the methods of :class:`SessionRunWriter`)."""
+
+    def queue_new_case_run(self, document: dict[str, Any], fields: dict[str, Any], actor: str
+                           ) -> tuple[str, str]: ...
+
+    def claim(self, run_id: str, max_attempts: int, actor: str) -> Claim | None: ...
+
+    def store_outcome(self, run_id: str, *, status: str, record: dict[str, Any] | None,
+                      error: str | None, actor: str) -> tuple[bool, str | None]: ...
+
+    def give_up(self, run_id: str, actor: str) -> tuple[str, str | None]: ...
+
+    def status_of(self, run_id: str) -> str | None: ...
 
 
 class SessionRunWriter:
@@ -330,7 +347,7 @@ class PostgresqlRunWriter(SessionRunWriter):
         with self._store.autocommit() as connection:
             row = connection.execute(statement, params).one_or_none()
         if row is not None:
-            self._store.chain_audit()
+            self._store.chain_audit_after_commit()
         return row
 
     def queue_new_case_run(self, document: dict[str, Any], fields: dict[str, Any], actor: str
@@ -359,7 +376,7 @@ class PostgresqlRunWriter(SessionRunWriter):
         return (False, None) if row is None else (True, row.batch_id)
 
 
-def run_writer_for(store: Store) -> SessionRunWriter:
+def run_writer_for(store: Store) -> RunWriter:
     """The run writer of ``store``'s database (chosen once, when the store is built)."""
     if store.dialect == "postgresql":
         return PostgresqlRunWriter(store)

@@ -17,17 +17,25 @@ record (triggers of migration 0004) into :class:`~service.store.guards.SealedRec
 
 from __future__ import annotations
 
+import logging
 from collections.abc import Iterator
 from contextlib import contextmanager
 from typing import Any
 
 from sqlalchemy import Engine, create_engine, event, text
-from sqlalchemy.exc import DBAPIError
+from sqlalchemy.exc import DBAPIError, SQLAlchemyError
 from sqlalchemy.orm import Session, sessionmaker
 
-from service.store.audit_chain import ANY_PENDING, PENDED_KEY, chain_pending
+from service.store.audit_chain import (
+    ANY_PENDING,
+    PENDED_KEY,
+    chain_pending,
+    chain_pending_concurrently,
+)
 from service.store.guards import sealed_record_error
-from service.store.run_writer import SessionRunWriter, run_writer_for
+from service.store.run_writer import RunWriter, run_writer_for
+
+logger = logging.getLogger(__name__)
 
 SQLITE_BUSY_TIMEOUT_S = 30.0
 #: Seconds after which a pooled PostgreSQL connection is replaced by a fresh one.
@@ -77,7 +85,7 @@ class Store:
         self.engine = make_engine(url, **engine_kwargs)
         self._sessions = sessionmaker(self.engine, expire_on_commit=False)
         #: How runs are written on this database (:mod:`service.store.run_writer`).
-        self.runs: SessionRunWriter = run_writer_for(self)
+        self.runs: RunWriter = run_writer_for(self)
 
     @property
     def dialect(self) -> str:
@@ -98,11 +106,21 @@ class Store:
                 raise sealed from exc
             raise
         if session.info.pop(PENDED_KEY, False):
-            self.chain_audit()
+            self.chain_audit_after_commit()
 
     def autocommit(self) -> Any:
         """A connection on which every statement commits by itself (one round trip each)."""
         return self.engine.connect().execution_options(isolation_level="AUTOCOMMIT")
+
+    def chain_audit_after_commit(self) -> None:
+        """Chain a committed writer's events. Its change is stored whatever happens here, so a
+        database error is logged, not raised: the events wait in the outbox for the next
+        chaining (any writer's, a listing's, a verification's or the upkeep sweep's)."""
+        try:
+            self.chain_audit()
+        except SQLAlchemyError:
+            logger.warning("audit events committed but not chained yet; they stay in the "
+                           "outbox until the next chaining", exc_info=True)
 
     def chain_audit(self, *, only_if_pending: bool = False) -> int:
         """Chain what waits in the audit outbox (its own transaction); how many events.
@@ -112,6 +130,9 @@ class Store:
         """
         if only_if_pending and not self.read(ANY_PENDING):
             return 0
+        if self.dialect == "postgresql":
+            with self.autocommit() as connection:
+                return chain_pending_concurrently(connection)
         with self.engine.begin() as connection:
             return chain_pending(connection)
 
