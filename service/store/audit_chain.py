@@ -26,7 +26,9 @@ When and how the second step runs is the store's choice (:meth:`Store.chain_audi
   only if the head has not moved meanwhile (else read again). No lock is held across a round
   trip to the client, writers never hold the chain while they change data, and concurrent
   writers produce one linear chain; a writer returns once its events are on the chain (it
-  chained them, or the chainer that moved the head before it did).
+  chained them, or the chainer that moved the head before it did). One exception: a run's
+  claim leaves its ``run.started`` for the chaining after the run's outcome
+  (:class:`service.store.run_writer.PostgresqlRunWriter`).
   An event whose writer died between its commit and the chaining stays pending until the next
   chaining: any later writer's, :func:`service.audit.list_events` and
   :func:`service.audit.verify_chain` (which chain first), or the upkeep sweep

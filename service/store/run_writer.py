@@ -15,7 +15,9 @@ Both are SQLAlchemy; the PostgreSQL statements are Core ``WITH`` statements buil
 import (data-modifying CTEs: the change and its events in one self-committing statement, one
 round trip), their event payloads built by the server's ``json_build_object`` from the values
 only the ``UPDATE`` knows (the attempt count). Events go into the audit outbox; the store
-chains them (:mod:`service.store.audit_chain`), on PostgreSQL right after the statement.
+chains them (:mod:`service.store.audit_chain`), on PostgreSQL right after the statement, except
+after a claim: its ``run.started`` waits during the solve and is chained with the outcome's
+``run.finished`` (or by any chaining before that), one chaining per run.
 """
 
 from __future__ import annotations
@@ -343,10 +345,11 @@ class PostgresqlRunWriter(SessionRunWriter):
     _STORE_OUTCOME = _pg_store_outcome()
     _QUEUE_NEW_CASE_RUN = _pg_queue_new_case_run()
 
-    def _execute_then_chain(self, statement: Any, params: dict[str, Any]) -> Any:
+    def _execute_then_chain(self, statement: Any, params: dict[str, Any], *,
+                            chain: bool = True) -> Any:
         with self._store.autocommit() as connection:
             row = connection.execute(statement, params).one_or_none()
-        if row is not None:
+        if row is not None and chain:
             self._store.chain_audit_after_commit()
         return row
 
@@ -363,9 +366,11 @@ class PostgresqlRunWriter(SessionRunWriter):
         return run_id, row.case_id
 
     def claim(self, run_id: str, max_attempts: int, actor: str) -> Claim | None:
+        # The run.started event waits in the outbox during the solve: the outcome's chaining
+        # (or any other) puts it on the chain, one chaining per run instead of two.
         row = self._execute_then_chain(self._CLAIM, {
             "run_id": run_id, "max_attempts": max_attempts, "now": utc_now(),
-            "actor": actor})
+            "actor": actor}, chain=False)
         return None if row is None else Claim(row.attempts, row.case_id, dict(row.document))
 
     def store_outcome(self, run_id: str, *, status: str, record: dict[str, Any] | None,
