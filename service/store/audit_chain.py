@@ -30,9 +30,10 @@ When and how the second step runs is the store's choice (:meth:`Store.chain_audi
   claim leaves its ``run.started`` for the chaining after the run's outcome
   (:class:`service.store.run_writer.PostgresqlRunWriter`).
   An event whose writer died between its commit and the chaining stays pending until the next
-  chaining: any later writer's, :func:`service.audit.list_events` and
-  :func:`service.audit.verify_chain` (which chain first), or the upkeep sweep
-  (:func:`service.recovery.recover_lost_runs`).
+  chaining: any later writer's, any session's read of ``audit_events`` (a ``do_orm_execute``
+  hook below chains first, so that a change seen committed has its events on the chain),
+  :func:`service.audit.list_events` and :func:`service.audit.verify_chain`, or the upkeep
+  sweep (:func:`service.recovery.recover_lost_runs`).
 
 Events of one transaction keep their order (outbox ids grow within it); an event's ``at`` is
 the moment it is chained, after the head it follows was read, so times follow the chain's
@@ -68,7 +69,8 @@ from sqlalchemy import (
     update,
 )
 from sqlalchemy.dialects.postgresql import ARRAY
-from sqlalchemy.orm import Session
+from sqlalchemy.orm import ORMExecuteState, Session
+from sqlalchemy.sql.util import find_tables
 
 from service.store.models import AuditEvent, AuditHead, AuditPending, utc_now
 
@@ -282,3 +284,21 @@ def _write_pending_at_commit(session: Session) -> None:
 def _drop_pending_on_rollback(session: Session, _previous_transaction: Any) -> None:
     session.info.pop(PENDING_KEY, None)
     session.info.pop(PENDED_KEY, None)
+
+
+_AUDIT_EVENTS_TABLE = AuditEvent.__table__
+
+
+@event.listens_for(Session, "do_orm_execute")
+def _chain_before_reading_the_chain(state: ORMExecuteState) -> None:
+    """PostgreSQL: a session's read of ``audit_events`` chains what waits in the outbox first,
+    so that a change seen committed always has its events on the chain (a writer chains right
+    after its commit; a reader in between would otherwise miss them)."""
+    if not state.is_select:
+        return
+    bind = state.session.get_bind()
+    if bind.dialect.name != "postgresql" or \
+            _AUDIT_EVENTS_TABLE not in find_tables(state.statement, include_crud=False):
+        return
+    with bind.connect().execution_options(isolation_level="AUTOCOMMIT") as connection:
+        chain_pending_concurrently(connection)

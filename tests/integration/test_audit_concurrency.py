@@ -173,3 +173,20 @@ def test_many_writers_at_once_make_one_chain(store):
     assert all(kinds == ["run.queued", "token.created"] for kinds in by_run.values()), by_run
     assert sum(e["kind"] == "case.stored" for e in events) == len(cases)
     assert report.head_seq == head_before + 3 * len(cases)
+
+
+def test_a_session_reading_the_chain_chains_the_outbox_first(store):
+    """A change is visible as committed a moment before its writer chains its events; a
+    session's read of audit_events chains first, so it never misses them."""
+    from service.store.audit_chain import checked_event, pend_events
+    from service.store.models import AuditEvent
+
+    assert store.dialect == "postgresql"
+    subject = f"read-{uuid.uuid4().hex[:8]}"
+    with store.engine.begin() as connection:  # committed, not yet chained
+        pend_events(connection, [checked_event("w", "token.created", subject)])
+    with store.transaction() as session:
+        kinds = session.execute(select(AuditEvent.kind).where(AuditEvent.subject == subject)
+                                ).scalars().all()
+    assert kinds == ["token.created"]
+    assert store.read_scalar(text("SELECT count(*) FROM audit_pending")) == 0
