@@ -246,14 +246,23 @@ def chain_pending_concurrently(connection: Connection) -> int:
         head_seq, head_hash, pending = _read_outbox(connection)
         if not pending:
             return 0
-        events = _chained(head_seq, head_hash, pending)
-        params: dict[str, Any] = {f"{name}s": [e[name] for e in events]
-                                  for name in _EVENT_COLUMNS if name != "payload"}
-        params["payloads"] = [chain_json(e["payload"]) for e in events]
-        params.update(old_seq=head_seq, head_seq=events[-1]["seq"],
-                      head_hash=events[-1]["hash"], ids=[row.id for row in pending])
-        if connection.execute(_PG_CHAIN_IF_HEAD_UNMOVED, params).scalar_one():
-            return len(events)
+        if try_chaining(connection, head_seq, head_hash, pending):
+            return len(pending)
+
+
+def try_chaining(connection: Connection, head_seq: int, head_hash: str, pending: list[Any]
+                 ) -> bool:
+    """PostgreSQL: chain the outbox rows ``pending`` (rows with ``id``, ``actor``, ``kind``,
+    ``subject``, ``payload``, in outbox order) after the head (``head_seq``, ``head_hash``) as
+    read, in one self-committing statement; False, with nothing written, when the head has
+    moved since (see :func:`chain_pending_concurrently`)."""
+    events = _chained(head_seq, head_hash, pending)
+    params: dict[str, Any] = {f"{name}s": [e[name] for e in events]
+                              for name in _EVENT_COLUMNS if name != "payload"}
+    params["payloads"] = [chain_json(e["payload"]) for e in events]
+    params.update(old_seq=head_seq, head_seq=events[-1]["seq"],
+                  head_hash=events[-1]["hash"], ids=[row.id for row in pending])
+    return bool(connection.execute(_PG_CHAIN_IF_HEAD_UNMOVED, params).scalar_one())
 
 
 def write_pending_events(session: Session) -> int:

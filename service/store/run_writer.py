@@ -45,12 +45,14 @@ from sqlalchemy import (
 )
 from sqlalchemy.dialects.postgresql import ARRAY
 from sqlalchemy.dialects.postgresql import insert as pg_insert
+from sqlalchemy.exc import SQLAlchemyError
 from sqlalchemy.orm import Session
 
-from service.store.audit_chain import append_event
+from service.store.audit_chain import HEAD_ROW_ID, append_event, try_chaining
 from service.store.models import (
     FINISHED_STATES,
     UNFINISHED_STATES,
+    AuditHead,
     AuditPending,
     Case,
     CaseTag,
@@ -85,6 +87,7 @@ _RUNS = Run.__table__
 _CASES = Case.__table__
 _TAGS = CaseTag.__table__
 _PENDING = AuditPending.__table__
+_HEAD = AuditHead.__table__
 
 #: Statements of the session path, built once (they run on every run).
 _CASE_BY_SHA = select(_CASES.c.id, _CASES.c.sha256).where(_CASES.c.sha256 == bindparam("sha256"))
@@ -291,8 +294,23 @@ def _pg_store_outcome() -> Any:
         _P_ACTOR, literal("run.finished"), _P_RUN_ID,
         func.json_build_object(literal("attempts"), done.c.attempts, literal("error"),
                                _P_ERROR, literal("status"), _P_STATUS, literal("verdict"),
-                               bindparam("verdict", type_=Text)))).cte("pended")
-    return select(done.c.attempts, done.c.batch_id).add_cte(pended)
+                               bindparam("verdict", type_=Text)))
+    ).returning(*_outbox_columns(_PENDING)).cte("pended")
+    # What the chaining reads, in the same round trip: the head and the outbox as of the
+    # statement's start, and this statement's own event (a statement does not see its own
+    # inserts).
+    outbox = union_all(select(*_outbox_columns(_PENDING)),
+                       select(*_outbox_columns(pended))).subquery("outbox")
+    return (select(done.c.attempts, done.c.batch_id, _HEAD.c.seq.label("head_seq"),
+                   _HEAD.c.hash.label("head_hash"), *_outbox_columns(outbox))
+            .select_from(done.join(_HEAD, _HEAD.c.id == HEAD_ROW_ID)
+                         .outerjoin(outbox, true()))
+            .order_by(outbox.c.id))
+
+
+def _outbox_columns(source: Any) -> list[Any]:
+    """The outbox columns the chaining reads, of ``source``."""
+    return [source.c.id, source.c.actor, source.c.kind, source.c.subject, source.c.payload]
 
 
 def _pg_queue_new_case_run() -> Any:
@@ -375,10 +393,22 @@ class PostgresqlRunWriter(SessionRunWriter):
 
     def store_outcome(self, run_id: str, *, status: str, record: dict[str, Any] | None,
                       error: str | None, actor: str) -> tuple[bool, str | None]:
-        row = self._execute_then_chain(self._STORE_OUTCOME, {
-            "run_id": run_id, "status": status, "record": record, "error": error,
-            "verdict": (record or {}).get("verdict"), "now": utc_now(), "actor": actor})
-        return (False, None) if row is None else (True, row.batch_id)
+        with self._store.autocommit() as connection:
+            rows = connection.execute(self._STORE_OUTCOME, {
+                "run_id": run_id, "status": status, "record": record, "error": error,
+                "verdict": (record or {}).get("verdict"), "now": utc_now(),
+                "actor": actor}).all()
+        if not rows:
+            return False, None
+        # Chain with what the statement read; should the head have moved since, read again.
+        try:
+            with self._store.autocommit() as connection:
+                chained = try_chaining(connection, rows[0].head_seq, rows[0].head_hash, rows)
+        except SQLAlchemyError:
+            chained = False
+        if not chained:
+            self._store.chain_audit_after_commit()
+        return True, rows[0].batch_id
 
 
 def run_writer_for(store: Store) -> RunWriter:

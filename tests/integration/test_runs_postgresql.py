@@ -161,3 +161,33 @@ def test_both_run_writers_write_the_same_events_for_the_same_operations(
     finally:
         sqlite.dispose()
     assert audit.verify_chain(store).ok
+
+
+def test_the_outcome_chains_the_outbox_it_read_and_retries_when_the_head_moved(
+        store, controlled_engine, monkeypatch):  # noqa: F811
+    """The outcome statement returns the head and the outbox (a leftover and its own event)
+    for the chaining; when another chainer moved the head meanwhile, it reads again."""
+    from sqlalchemy import text
+
+    from service.store import run_writer
+    from service.store.audit_chain import checked_event, pend_events
+
+    run_id = create_run(store, actor="eng", document=_document())["run_id"]
+    with store.engine.begin() as connection:  # a leftover, committed and not chained
+        pend_events(connection, [checked_event("gone", "token.created", "leftover")])
+    attempts = []
+
+    def head_moved_once(connection, head_seq, head_hash, pending):
+        attempts.append([row.kind for row in pending])
+        if len(attempts) == 1:
+            store.chain_audit()  # another chainer comes first
+            return False
+        raise AssertionError("only the first try goes through here")
+
+    monkeypatch.setattr(run_writer, "try_chaining", head_moved_once)
+    assert execute_run(run_id, store, actor="w") == "succeeded"
+    assert attempts == [["token.created", "run.started", "run.finished"]]
+    assert store.read_scalar(text("SELECT count(*) FROM audit_pending")) == 0
+    assert [kind for kind, _actor, _payload in _events(store, run_id)] == [
+        "run.queued", "run.started", "run.finished"]
+    assert audit.verify_chain(store).ok
