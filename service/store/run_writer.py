@@ -17,7 +17,9 @@ round trip), their event payloads built by the server's ``json_build_object`` fr
 only the ``UPDATE`` knows (the attempt count). Events go into the audit outbox; the store
 chains them (:mod:`service.store.audit_chain`), on PostgreSQL right after the statement, except
 after a claim: its ``run.started`` waits during the solve and is chained with the outcome's
-``run.finished`` (or by any chaining before that), one chaining per run.
+``run.finished`` (or by any chaining before that), one chaining per run. The outcome
+statement also returns the chain head and the outbox it saw (with its own event), so that
+chaining costs one more statement (two when another chainer moved the head meanwhile).
 """
 
 from __future__ import annotations
