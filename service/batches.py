@@ -15,6 +15,7 @@ only has drifted too.
 
 from __future__ import annotations
 
+import logging
 import math
 import uuid
 from typing import Any
@@ -24,18 +25,23 @@ from sqlalchemy.orm import Session, aliased
 
 from service import audit
 from service.errors import NotFound, ValidationFailed
-from service.runs import queue_runs_in
 from service.store import Store
 from service.store.models import (
     FINISHED_STATES,
     RUN_STATES,
+    UNFINISHED_STATES,
     Batch,
     Case,
     CaseTag,
+    Decision,
     Run,
+    RunStatus,
     Signoff,
     utc_now,
 )
+from service.store.run_writer import insert_queued_runs
+
+logger = logging.getLogger(__name__)
 
 #: Relative tolerance of drift when a case gives no ``tolerances.cross_check``.
 DEFAULT_DRIFT_TOLERANCE = 1e-6
@@ -68,7 +74,7 @@ def start_batch(store: Store, *, actor: str, tag: str | None = None,
         session.flush()
         audit.append_event(session, actor=actor, kind="batch.started", subject=batch.id,
                            payload={"selector": selector, "cases": len(cases)})
-        run_ids = queue_runs_in(session, cases, actor, batch_id=batch.id)
+        run_ids = insert_queued_runs(session, cases, actor, batch_id=batch.id)
         if not cases:
             _mark_finished(session, batch)
         return {"batch_id": batch.id, "run_ids": run_ids, "status": batch.status}
@@ -89,7 +95,7 @@ def _derived_status(counts: dict[str, int]) -> str:
     finished = sum(counts[s] for s in FINISHED_STATES)
     if finished == total:
         return "finished"
-    if counts["queued"] == total:
+    if counts[RunStatus.QUEUED] == total:
         return "queued"
     return "running"
 
@@ -106,7 +112,7 @@ def _mark_finished(session: Session, batch: Batch) -> None:
 _RUNS = Run.__table__
 #: Is any run of the batch still unfinished? (Answered from the (batch_id, status) index.)
 _ANY_UNFINISHED = select(exists().where(_RUNS.c.batch_id == bindparam("batch_id"),
-                                        _RUNS.c.status.in_(("queued", "running"))))
+                                        _RUNS.c.status.in_(UNFINISHED_STATES)))
 _BATCHES = Batch.__table__
 _LOCK_BATCH = (select(_BATCHES.c.status).where(_BATCHES.c.id == bindparam("batch_id"))
                .with_for_update())
@@ -133,6 +139,18 @@ def close_batch_if_done(store: Store, batch_id: str) -> bool:
         assert batch is not None
         _mark_finished(session, batch)
         return True
+
+
+def close_batch_after_run(store: Store, batch_id: str | None) -> None:
+    """After a run's outcome is committed: close its batch if this was the batch's last
+    unfinished run (:func:`close_batch_if_done`). A failure here loses nothing: the outcome is
+    stored, and the batch is closed by the next reader or the upkeep sweep."""
+    if batch_id is None:
+        return
+    try:
+        close_batch_if_done(store, batch_id)
+    except Exception:  # noqa: BLE001 - see the docstring
+        logger.exception("run's batch %s could not be closed now; it is closed later", batch_id)
 
 
 def close_finished_batches(store: Store) -> list[str]:
@@ -208,11 +226,13 @@ def _runs_with_baselines(session: Session, batch_id: str) -> list[Any]:
                func.row_number().over(partition_by=now.id,
                                       order_by=(approved.desc(), earlier.created_at.desc(),
                                                 earlier.id.desc())).label("rank"))
-        .join(earlier, and_(earlier.case_id == now.case_id, earlier.status == "succeeded",
+        .join(earlier, and_(earlier.case_id == now.case_id,
+                            earlier.status == RunStatus.SUCCEEDED.value,
                             earlier.created_at < now.created_at,
                             or_(earlier.batch_id.is_(None), earlier.batch_id != now.batch_id)))
-        .outerjoin(Signoff, and_(Signoff.run_id == earlier.id, Signoff.decision == "approved"))
-        .where(now.batch_id == batch_id, now.status == "succeeded")
+        .outerjoin(Signoff, and_(Signoff.run_id == earlier.id,
+                                 Signoff.decision == Decision.APPROVED.value))
+        .where(now.batch_id == batch_id, now.status == RunStatus.SUCCEEDED.value)
         .subquery()
     )
     baseline = aliased(Run, name="baseline_run")

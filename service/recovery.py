@@ -36,7 +36,7 @@ from typing import Any
 from sqlalchemy import and_, or_, select
 
 from service.store import Store
-from service.store.models import Run, utc_now
+from service.store.models import UNFINISHED_STATES, Run, RunStatus, utc_now
 from service.task_names import EXECUTE_RUN_TASK
 
 logger = logging.getLogger(__name__)
@@ -102,8 +102,8 @@ def stale_unfinished_runs(store: Store, older_than_s: float,
     with store.transaction() as session:
         return list(session.execute(
             select(Run.id).where(or_(
-                and_(Run.status == "queued", Run.created_at < cutoff),
-                and_(Run.status == "running",
+                and_(Run.status == RunStatus.QUEUED.value, Run.created_at < cutoff),
+                and_(Run.status == RunStatus.RUNNING.value,
                      or_(Run.started_at < cutoff,
                          and_(Run.started_at.is_(None), Run.created_at < cutoff))),
             )).order_by(Run.created_at).limit(MAX_PER_SWEEP)
@@ -120,7 +120,7 @@ def still_unfinished(store: Store, run_ids: list[str]) -> list[str]:
             chunk = run_ids[start:start + 500]
             unfinished.update(session.execute(
                 select(Run.id).where(Run.id.in_(chunk),
-                                     Run.status.in_(("queued", "running")))).scalars())
+                                     Run.status.in_(UNFINISHED_STATES))).scalars())
     return [run_id for run_id in run_ids if run_id in unfinished]
 
 
@@ -218,6 +218,8 @@ def recover_lost_runs(store: Store, celery_app: Any, *, older_than_s: float = DE
     a live worker knows about. Raises :class:`BrokerUnreadable` when the broker cannot be read
     (nothing is sent then). Returns a report with ``skipped`` set when another sweep is under
     way."""
+    # Audit events whose writer died between its commit and their chaining (PostgreSQL).
+    store.chain_audit(only_if_pending=True)
     with sweep_lock(celery_app) as taken:
         if not taken:
             return RecoveryReport(skipped=True)

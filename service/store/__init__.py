@@ -9,7 +9,6 @@ from __future__ import annotations
 import threading
 
 from service.settings import database_url, settings_from_env
-from service.store import guards as _guards  # noqa: F401  (registers the seal guard)
 from service.store.session import Store
 
 _default_store: Store | None = None

@@ -1,44 +1,28 @@
-"""Store-level guard: a signed-off record never changes.
+"""A signed-off record never changes: the error the store raises when something tries.
 
-The domain layer refuses such changes first (``service.runs`` and ``service.signoffs``); this
-``before_flush`` hook is the second line, so that no code path through the ORM can alter or
-delete a signed-off run or its sign-off.
+The rule is enforced by the database itself, for every path that writes (ORM, Core statements,
+plain SQL): triggers on ``runs`` and ``signoffs`` (migration 0004, on PostgreSQL and SQLite)
+refuse any ``UPDATE`` or ``DELETE`` of a signed-off run and of a sign-off. Their message starts
+with :data:`SEAL_MARKER`; :class:`service.store.session.Store` turns the database error into
+:class:`SealedRecordError`, and the domain layer (``service.signoffs``) refuses such changes
+first with an explanation.
 """
 
 from __future__ import annotations
 
-from typing import Any
-
-from sqlalchemy import event, inspect
-from sqlalchemy.orm import Session
-
-from service.store.models import Run, Signoff
-
-SEALED_RUN_FIELDS = ("status", "record", "error", "case_id", "submitted_by", "started_at",
-                     "finished_at", "created_at", "batch_id", "attempts")
+#: The start of the triggers' message (migration 0004), by which their error is recognised.
+SEAL_MARKER = "sealed record:"
 
 
 class SealedRecordError(RuntimeError):
     """Raised when code tries to change or delete a signed-off record."""
 
 
-def _is_sealed(session: Session, run: Run) -> bool:
-    with session.no_autoflush:
-        return bool(run.signoffs)
-
-
-@event.listens_for(Session, "before_flush")
-def _refuse_changes_to_sealed_records(session: Session, _context: Any, _instances: Any) -> None:
-    for obj in list(session.dirty):
-        if isinstance(obj, Run) and session.is_modified(obj):
-            state = inspect(obj)
-            changed = [f for f in SEALED_RUN_FIELDS if state.attrs[f].history.has_changes()]
-            if changed and _is_sealed(session, obj):
-                raise SealedRecordError(
-                    f"run {obj.id} is signed off; its record never changes (tried: "
-                    f"{', '.join(changed)})")
-        if isinstance(obj, Signoff) and session.is_modified(obj):
-            raise SealedRecordError(f"the sign-off of run {obj.run_id} never changes")
-    for obj in list(session.deleted):
-        if isinstance(obj, Signoff) or (isinstance(obj, Run) and _is_sealed(session, obj)):
-            raise SealedRecordError("signed-off records and their sign-offs are never deleted")
+def sealed_record_error(exc: BaseException) -> SealedRecordError | None:
+    """The :class:`SealedRecordError` a database error stands for, or None when it is another
+    error."""
+    message = str(getattr(exc, "orig", None) or exc)
+    if SEAL_MARKER not in message:
+        return None
+    reason = message[message.index(SEAL_MARKER) + len(SEAL_MARKER):].strip().splitlines()[0]
+    return SealedRecordError(reason)

@@ -7,10 +7,12 @@ these classes must match them (``tests/unit/service/store/test_store.py`` compar
 from __future__ import annotations
 
 from datetime import UTC, datetime
+from enum import StrEnum
 from typing import Any
 
 from sqlalchemy import (
     JSON,
+    BigInteger,
     Boolean,
     DateTime,
     ForeignKey,
@@ -22,10 +24,28 @@ from sqlalchemy import (
 )
 from sqlalchemy.orm import DeclarativeBase, Mapped, mapped_column, relationship
 
-RUN_STATES = ("queued", "running", "succeeded", "failed")
-FINISHED_STATES = ("succeeded", "failed")
+
+class RunStatus(StrEnum):
+    """The one enumeration of a run's states (stored as these words)."""
+
+    QUEUED = "queued"
+    RUNNING = "running"
+    SUCCEEDED = "succeeded"
+    FAILED = "failed"
+
+
+class Decision(StrEnum):
+    """A reviewer's decision on a succeeded run."""
+
+    APPROVED = "approved"
+    REJECTED = "rejected"
+
+
+RUN_STATES = tuple(s.value for s in RunStatus)
+UNFINISHED_STATES = (RunStatus.QUEUED.value, RunStatus.RUNNING.value)
+FINISHED_STATES = (RunStatus.SUCCEEDED.value, RunStatus.FAILED.value)
 ROLES = ("engineer", "reviewer", "auditor", "admin")
-DECISIONS = ("approved", "rejected")
+DECISIONS = tuple(d.value for d in Decision)
 
 
 def utc_now() -> datetime:
@@ -153,3 +173,21 @@ class AuditHead(Base):
     id: Mapped[int] = mapped_column(Integer, primary_key=True, autoincrement=False)
     seq: Mapped[int] = mapped_column(Integer)
     hash: Mapped[str] = mapped_column(String(64))
+
+
+class AuditPending(Base):
+    """The audit outbox: events written with their change, not yet chained.
+
+    A writer adds its events here in the transaction of the change (no lock taken); the chainer
+    (:func:`service.store.audit_chain.chain_pending`) moves them onto the chain in ``id`` order
+    under the chain-head lock.
+    """
+
+    __tablename__ = "audit_pending"
+
+    id: Mapped[int] = mapped_column(BigInteger().with_variant(Integer, "sqlite"),
+                                    primary_key=True, autoincrement=True)
+    actor: Mapped[str] = mapped_column(String(200))
+    kind: Mapped[str] = mapped_column(String(40))
+    subject: Mapped[str] = mapped_column(String(200))
+    payload: Mapped[dict[str, Any]] = mapped_column(JSON)

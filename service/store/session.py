@@ -5,19 +5,37 @@ ends and rolls back entirely on any exception, so nothing is half-written.
 
 SQLite: each transaction starts with ``BEGIN IMMEDIATE``, taking the database write lock up
 front. That serialises writers (threads of the embedded executor, several processes) instead of
-letting two deferred transactions deadlock on lock upgrade, and it is what keeps the audit chain
-linear on SQLite. PostgreSQL: the audit append locks the chain-head row (``SELECT ... FOR
-UPDATE``), as the last statements before the commit (see :mod:`service.audit`).
+letting two deferred transactions deadlock on lock upgrade; a transaction's audit events are
+chained just before its commit. PostgreSQL: a transaction's audit events wait in the outbox
+and are chained right after its commit, in a short transaction of their own that locks the
+chain-head row (see :mod:`service.store.audit_chain`).
+
+The store also picks, once, how runs are written (:attr:`Store.runs`, see
+:mod:`service.store.run_writer`), and turns the database's refusal to change a signed-off
+record (triggers of migration 0004) into :class:`~service.store.guards.SealedRecordError`.
 """
 
 from __future__ import annotations
 
+import logging
 from collections.abc import Iterator
 from contextlib import contextmanager
 from typing import Any
 
 from sqlalchemy import Engine, create_engine, event, text
+from sqlalchemy.exc import DBAPIError, SQLAlchemyError
 from sqlalchemy.orm import Session, sessionmaker
+
+from service.store.audit_chain import (
+    ANY_PENDING,
+    PENDED_KEY,
+    chain_pending,
+    chain_pending_concurrently,
+)
+from service.store.guards import sealed_record_error
+from service.store.run_writer import RunWriter, run_writer_for
+
+logger = logging.getLogger(__name__)
 
 SQLITE_BUSY_TIMEOUT_S = 30.0
 #: Seconds after which a pooled PostgreSQL connection is replaced by a fresh one.
@@ -66,6 +84,8 @@ class Store:
         self.url = url
         self.engine = make_engine(url, **engine_kwargs)
         self._sessions = sessionmaker(self.engine, expire_on_commit=False)
+        #: How runs are written on this database (:mod:`service.store.run_writer`).
+        self.runs: RunWriter = run_writer_for(self)
 
     @property
     def dialect(self) -> str:
@@ -73,9 +93,48 @@ class Store:
 
     @contextmanager
     def transaction(self) -> Iterator[Session]:
-        """A session in one transaction: commit on success, roll back on any exception."""
-        with self._sessions.begin() as session:
-            yield session
+        """A session in one transaction: commit on success, roll back on any exception.
+
+        On PostgreSQL the transaction's audit events are chained after its commit.
+        """
+        try:
+            with self._sessions.begin() as session:
+                yield session
+        except DBAPIError as exc:
+            sealed = sealed_record_error(exc)
+            if sealed is not None:
+                raise sealed from exc
+            raise
+        if session.info.pop(PENDED_KEY, False):
+            self.chain_audit_after_commit()
+
+    def autocommit(self) -> Any:
+        """A connection on which every statement commits by itself (one round trip each)."""
+        return self.engine.connect().execution_options(isolation_level="AUTOCOMMIT")
+
+    def chain_audit_after_commit(self) -> None:
+        """Chain a committed writer's events. Its change is stored whatever happens here, so a
+        database error is logged, not raised: the events wait in the outbox for the next
+        chaining (any writer's, a listing's, a verification's or the upkeep sweep's)."""
+        try:
+            self.chain_audit()
+        except SQLAlchemyError:
+            logger.warning("audit events committed but not chained yet; they stay in the "
+                           "outbox until the next chaining", exc_info=True)
+
+    def chain_audit(self, *, only_if_pending: bool = False) -> int:
+        """Chain what waits in the audit outbox (its own transaction); how many events.
+
+        ``only_if_pending``: ask first, without a lock, and take none when it is empty (for
+        readers, who should not queue behind writers for nothing).
+        """
+        if only_if_pending and not self.read(ANY_PENDING):
+            return 0
+        if self.dialect == "postgresql":
+            with self.autocommit() as connection:
+                return chain_pending_concurrently(connection)
+        with self.engine.begin() as connection:
+            return chain_pending(connection)
 
     def read(self, statement: Any, params: dict[str, Any] | None = None) -> list[Any]:
         """The rows of one read-only statement, asked outside any transaction.

@@ -83,10 +83,10 @@ AWKWARD_TEXT = ['quote " and backslash \\ and slash /', "tab\tnewline\nreturn\r"
                 "emoji 🧪 and U+2028 \u2028 and NUL-free control \u0001", ""]
 
 
-def test_the_server_side_append_hashes_what_python_verifies(live_store):
-    """On PostgreSQL the server chains the events as the transaction commits (migration 0003);
-    the Python verifier must accept what it wrote for text and payloads that JSON escapes, the
-    time it stamps must be the text Python's isoformat gives, and nothing stays pending."""
+def test_events_with_awkward_text_chain_and_verify_and_nothing_stays_pending(live_store):
+    """On PostgreSQL a transaction's events wait in the outbox and are chained right after its
+    commit (service.store.audit_chain); the chain must verify for text and payloads that JSON
+    escapes, times must be the text Python's isoformat gives, and nothing stays pending."""
     import re
 
     from service import audit
@@ -100,6 +100,7 @@ def test_the_server_side_append_hashes_what_python_verifies(live_store):
                                    "text": text_value, "nested": {"list": [1, 2.5, -0.0, None,
                                                                            True, 1e300]},
                                    text_value: "as a key"})
+    assert live_store.read_scalar(text("SELECT count(*) FROM audit_pending")) == 0
     report = audit.verify_chain(live_store)
     assert report.ok, report
     with live_store.transaction() as session:
@@ -112,7 +113,6 @@ def test_the_server_side_append_hashes_what_python_verifies(live_store):
                                               event.kind, event.subject, event.payload)
     times = [e.at for e in sorted(written, key=lambda e: e.seq)]
     assert times == sorted(times)
-    assert live_store.read_scalar(text("SELECT count(*) FROM audit_pending")) == 0
 
 
 def test_a_rolled_back_transaction_leaves_no_event_pending_or_chained(live_store):
@@ -124,8 +124,71 @@ def test_a_rolled_back_transaction_leaves_no_event_pending_or_chained(live_store
         with live_store.transaction() as session:
             audit.append_event(session, actor="nobody", kind="token.created", subject="x")
             session.flush()
-            audit.write_pending_events(session)  # handed to the server, then rolled back
+            audit.write_pending_events(session)  # in the outbox, then rolled back
             raise RuntimeError("change refused")
     assert live_store.read_scalar(text("SELECT count(*) FROM audit_pending")) == 0
     report = audit.verify_chain(live_store)
     assert report.ok and report.head_seq == head_before
+
+
+def test_events_left_in_the_outbox_are_chained_by_the_next_reader(live_store):
+    """A writer that dies between its commit and the chaining leaves its events pending; the
+    listing (and verification, and the upkeep sweep) chain them first, in outbox order."""
+    from service import audit
+    from service.store.audit_chain import checked_event, pend_events
+
+    assert live_store.dialect == "postgresql"
+    subjects = [f"left-{uuid.uuid4().hex[:8]}-{n}" for n in range(3)]
+    with live_store.engine.begin() as connection:  # the writer's commit, and no chaining after it
+        pend_events(connection, [checked_event("gone", "token.created", s, {"n": n})
+                                 for n, s in enumerate(subjects)])
+    assert live_store.read_scalar(text("SELECT count(*) FROM audit_pending")) == 3
+    listed = audit.list_events(live_store, kind="token.created", limit=1000)["items"]
+    assert [e["subject"] for e in listed if e["subject"] in subjects] == subjects
+    assert live_store.read_scalar(text("SELECT count(*) FROM audit_pending")) == 0
+    assert audit.verify_chain(live_store).ok
+
+
+def test_many_writers_at_once_make_one_chain(live_store):
+    """Threads writing runs and plain events concurrently, each chaining after its commit:
+    one linear chain, every event on it once, nothing pending."""
+    from service import audit
+    from service.runs import create_run
+
+    cases = distinct_steady_cases(24, tags=[f"it-many-{uuid.uuid4().hex[:8]}"])
+    head_before = audit.verify_chain(live_store).head_seq
+
+    def write(case: dict) -> str:
+        run_id = create_run(live_store, actor="many", document=case)["run_id"]
+        with live_store.transaction() as session:
+            audit.append_event(session, actor="many", kind="token.created", subject=run_id)
+        return run_id
+
+    with ThreadPoolExecutor(max_workers=6) as pool:
+        run_ids = list(pool.map(write, cases))
+    assert live_store.read_scalar(text("SELECT count(*) FROM audit_pending")) == 0
+    report = audit.verify_chain(live_store)
+    assert report.ok, report
+    events = audit.list_events(live_store, limit=1000, offset=head_before)["items"]
+    by_run = {run_id: sorted(e["kind"] for e in events if e["subject"] == run_id)
+              for run_id in run_ids}
+    assert all(kinds == ["run.queued", "token.created"] for kinds in by_run.values()), by_run
+    assert sum(e["kind"] == "case.stored" for e in events) == len(cases)
+    assert report.head_seq == head_before + 3 * len(cases)
+
+
+def test_a_session_reading_the_chain_chains_the_outbox_first(live_store):
+    """A change is visible as committed a moment before its writer chains its events; a
+    session's read of audit_events chains first, so it never misses them."""
+    from service.store.audit_chain import checked_event, pend_events
+    from service.store.models import AuditEvent
+
+    assert live_store.dialect == "postgresql"
+    subject = f"read-{uuid.uuid4().hex[:8]}"
+    with live_store.engine.begin() as connection:  # committed, not yet chained
+        pend_events(connection, [checked_event("w", "token.created", subject)])
+    with live_store.transaction() as session:
+        kinds = session.execute(select(AuditEvent.kind).where(AuditEvent.subject == subject)
+                                ).scalars().all()
+    assert kinds == ["token.created"]
+    assert live_store.read_scalar(text("SELECT count(*) FROM audit_pending")) == 0

@@ -1,6 +1,7 @@
-"""execute_run on PostgreSQL, where the claim and the outcome are single self-committing
-statements whose audit events are joined in SQL (service.runs_postgresql): the events carry
-the same payloads as on SQLite, and the chain verifies."""
+"""Runs on PostgreSQL, written by its run writer (service.store.run_writer.PostgresqlRunWriter:
+the claim, the outcome and POST /v1/runs each one self-committing statement, events chained
+after it): the events carry the payloads the interface promises, the same as the SQLite
+writer's for the same operations, and the chain verifies."""
 
 from __future__ import annotations
 
@@ -13,10 +14,10 @@ from service.runs import create_run, execute_run
 from tests.integration.invented_cases import single_layer_case
 
 
-def _events(store, run_id):
+def _events(live_store, run_id):
     from service.store.models import AuditEvent
 
-    with store.transaction() as session:
+    with live_store.transaction() as session:
         return [(e.kind, e.actor, e.payload) for e in session.execute(
             select(AuditEvent).where(AuditEvent.subject == run_id).order_by(AuditEvent.seq)
         ).scalars()]
@@ -105,4 +106,87 @@ def test_posting_a_new_case_and_the_same_case_again_stores_it_once_with_its_even
             AuditEvent.subject.in_([case_id, first["run_id"]])).order_by(AuditEvent.seq)
         ).scalars().all()
     assert order == ["case.stored", "run.queued"]  # the chain lists the case before its run
+    assert audit.verify_chain(live_store).ok
+
+
+def _operations(live_store, engine, documents) -> list[tuple]:
+    """The same operations through the run writer interface; their events, ids replaced by
+    their order of appearance (ids are random)."""
+    from service.store.models import Run
+
+    names: dict[str, str] = {}
+
+    def name(value):
+        return names.setdefault(value, f"id{len(names)}") if isinstance(value, str) else value
+
+    document, other = documents
+    queued = create_run(live_store, actor="eng", document=document)
+    again = create_run(live_store, actor="eng2", document=dict(document))
+    assert execute_run(queued["run_id"], live_store, actor="w") == "succeeded"
+    assert execute_run(queued["run_id"], live_store, actor="w2") == "succeeded"
+    engine.status = "failed"
+    assert execute_run(again["run_id"], live_store, actor="w") == "failed"
+    stuck = create_run(live_store, actor="eng", document=other)["run_id"]
+    with live_store.transaction() as session:
+        session.get(Run, stuck).attempts = 3
+    assert execute_run(stuck, live_store, max_attempts=3, actor="w") == "failed"
+    events = []
+    for run_id in (queued["case_id"], queued["run_id"], again["run_id"], stuck):
+        for kind, actor, payload in _events(live_store, run_id):
+            payload = {k: (name(v) if k in ("case_id", "case_sha256", "sha256") else v)
+                       for k, v in payload.items()}
+            events.append((name(run_id), kind, actor, payload))
+    return events
+
+
+def test_both_run_writers_write_the_same_events_for_the_same_operations(
+        live_store, controlled_engine, tmp_path):  # noqa: F811
+    from service.store import Store
+    from service.store.migrate import upgrade
+    from service.store.run_writer import PostgresqlRunWriter, SessionRunWriter
+
+    sqlite = Store(f"sqlite:///{tmp_path / 'same.sqlite3'}")
+    try:
+        upgrade(sqlite)
+        assert type(live_store.runs) is PostgresqlRunWriter
+        assert type(sqlite.runs) is SessionRunWriter
+        documents = (_document(), _document())
+        on_postgresql = _operations(live_store, controlled_engine, documents)
+        controlled_engine.status = "succeeded"
+        on_sqlite = _operations(sqlite, controlled_engine, documents)
+        assert on_postgresql == on_sqlite
+        assert len(on_postgresql) == 9
+        assert audit.verify_chain(sqlite).ok
+    finally:
+        sqlite.dispose()
+    assert audit.verify_chain(live_store).ok
+
+
+def test_the_outcome_chains_the_outbox_it_read_and_retries_when_the_head_moved(
+        live_store, controlled_engine, monkeypatch):  # noqa: F811
+    """The outcome statement returns the head and the outbox (a leftover and its own event)
+    for the chaining; when another chainer moved the head meanwhile, it reads again."""
+    from sqlalchemy import text
+
+    from service.store import run_writer
+    from service.store.audit_chain import checked_event, pend_events
+
+    run_id = create_run(live_store, actor="eng", document=_document())["run_id"]
+    with live_store.engine.begin() as connection:  # a leftover, committed and not chained
+        pend_events(connection, [checked_event("gone", "token.created", "leftover")])
+    attempts = []
+
+    def head_moved_once(connection, head_seq, head_hash, pending):
+        attempts.append([row.kind for row in pending])
+        if len(attempts) == 1:
+            live_store.chain_audit()  # another chainer comes first
+            return False
+        raise AssertionError("only the first try goes through here")
+
+    monkeypatch.setattr(run_writer, "try_chaining", head_moved_once)
+    assert execute_run(run_id, live_store, actor="w") == "succeeded"
+    assert attempts == [["token.created", "run.started", "run.finished"]]
+    assert live_store.read_scalar(text("SELECT count(*) FROM audit_pending")) == 0
+    assert [kind for kind, _actor, _payload in _events(live_store, run_id)] == [
+        "run.queued", "run.started", "run.finished"]
     assert audit.verify_chain(live_store).ok

@@ -5,6 +5,7 @@ chain."""
 from __future__ import annotations
 
 import hashlib
+import json
 
 import pytest
 from hypothesis import given, settings
@@ -93,18 +94,22 @@ def test_the_audit_append_is_the_last_thing_each_run_transaction_does(
     finally:
         log.close()
     heads = [i for i, s in enumerate(log.statements) if "FROM AUDIT_HEAD" in s]
-    assert len(heads) == 2, log.statements  # one append for the claim, one for the finish
+    assert len(heads) == 2, log.statements  # one chaining for the claim, one for the finish
     for head in heads:
-        # The head is read (and locked, on PostgreSQL), the events inserted, the head moved
-        # on, and nothing else before the commit.
-        tail = log.statements[head:head + 3]
+        # SQLite: the events go to the outbox after the change, then the head and the outbox
+        # are read (one statement), the events chained, the head moved on and the outbox
+        # emptied, and nothing else before the commit.
+        assert log.statements[head - 1].startswith("INSERT INTO AUDIT_PENDING"), log.statements
+        tail = log.statements[head:head + 4]
+        assert "JOIN AUDIT_PENDING" in tail[0], tail
         assert tail[1].startswith("INSERT INTO AUDIT_EVENTS"), tail
         assert tail[2].startswith("UPDATE AUDIT_HEAD"), tail
-    # Between the two appends: the finish transaction's own statements, then its append.
-    between = log.statements[heads[0] + 3:heads[1]]
+        assert tail[3].startswith("DELETE FROM AUDIT_PENDING"), tail
+    # Between the two: the finish transaction's own statements, then its events.
+    between = log.statements[heads[0] + 4:heads[1] - 1]
     assert any(s.startswith("UPDATE RUNS") for s in between), between
     assert not any("AUDIT" in s for s in between), between
-    assert heads[1] + 3 == len(log.statements)
+    assert heads[1] + 4 == len(log.statements)
     kinds = [e.kind for e in _chain(store) if e.subject == run_id]
     assert kinds == ["run.queued", "run.started", "run.finished"]
 
@@ -152,15 +157,15 @@ _PAYLOAD = st.dictionaries(st.text(max_size=8), st.recursive(
 @settings(max_examples=200, deadline=None)
 @given(actor=st.text(max_size=20), kind=st.sampled_from(audit.EVENT_KINDS),
        subject=st.text(max_size=20), payload=_PAYLOAD, seq=st.integers(1, 10**9))
-def test_the_body_pieces_join_to_the_canonical_body_that_is_hashed(actor, kind, subject,
-                                                                    payload, seq):
-    """PostgreSQL's append function joins these pieces around the time and the number; the
-    result must be the very text that event_hash (and so verify_chain) hashes."""
+def test_a_payload_hashes_the_same_after_its_round_trip_through_the_store(actor, kind, subject,
+                                                                       payload, seq):
+    """The chainer hashes the payload it reads back from the outbox, and the verifier the one
+    it reads back from the events; the JSON columns store ``json.dumps`` text, so that round
+    trip must leave the canonical text, and so the hash, unchanged."""
     at = "2026-12-02T03:26:15.123456+00:00"
-    before_at, before_seq, after_seq = audit.body_pieces(actor, kind, subject, payload)
-    joined = before_at + at + before_seq + str(seq) + after_seq
-    assert joined == audit.chain_json({"seq": seq, "at": at, "actor": actor, "kind": kind,
-                                       "subject": subject, "payload": payload})
+    stored = json.loads(json.dumps(payload))
+    body = audit.chain_json({"seq": seq, "at": at, "actor": actor, "kind": kind,
+                             "subject": subject, "payload": payload})
     prev = "ab" * 32
-    assert hashlib.sha256((prev + joined).encode("utf-8")).hexdigest() == audit.event_hash(
-        prev, seq, at, actor, kind, subject, payload)
+    assert hashlib.sha256((prev + body).encode("utf-8")).hexdigest() == audit.event_hash(
+        prev, seq, at, actor, kind, subject, stored)

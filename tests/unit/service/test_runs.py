@@ -105,14 +105,12 @@ def test_transient_store_errors_propagate_for_retry(store, monkeypatch, controll
     """The task retries OperationalError, so execute_run must not swallow it."""
     import sqlalchemy.exc
 
-    import service.runs
-
     run_id = create_run(store, actor="eng", document=make_case())["run_id"]
 
     def locked(*_args, **_kwargs):
         raise sqlalchemy.exc.OperationalError("UPDATE", {}, Exception("database is locked"))
 
-    monkeypatch.setattr(service.runs, "_claim", locked)  # the first store access of a run
+    monkeypatch.setattr(store.runs, "claim", locked)  # the first store access of a run
     with pytest.raises(sqlalchemy.exc.OperationalError):
         execute_run(run_id, store)
 

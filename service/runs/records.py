@@ -1,0 +1,63 @@
+"""A run as a document: its summary, its full record, and reading them from the store."""
+
+from __future__ import annotations
+
+from typing import Any
+
+from service.errors import NotFound
+from service.store import Store
+from service.store.models import Case, Run
+
+
+def _iso(value: Any) -> str | None:
+    return None if value is None else value.isoformat()
+
+
+def signoff_to_dict(signoff: Any) -> dict[str, Any]:
+    return {"reviewer": signoff.reviewer, "decision": signoff.decision,
+            "comment": signoff.comment, "at": _iso(signoff.at)}
+
+
+def run_summary(run: Run) -> dict[str, Any]:
+    """The run's state without the record body (for lists and histories)."""
+    record = run.record or {}
+    return {
+        "run_id": run.id,
+        "case_id": run.case_id,
+        "status": run.status,
+        "verdict": record.get("verdict"),
+        "error": run.error,
+        "submitted_by": run.submitted_by,
+        "batch_id": run.batch_id,
+        "attempts": run.attempts,
+        "created_at": _iso(run.created_at),
+        "started_at": _iso(run.started_at),
+        "finished_at": _iso(run.finished_at),
+        "signoffs": [signoff_to_dict(s) for s in run.signoffs],
+    }
+
+
+def record_of(run: Run) -> dict[str, Any]:
+    """The full record: the engine's result document plus the run's own fields."""
+    record = dict(run.record or {})
+    record.update(run_summary(run))
+    return record
+
+
+def get_record(store: Store, run_id: str) -> dict[str, Any]:
+    with store.transaction() as session:
+        run = session.get(Run, run_id)
+        if run is None:
+            raise NotFound(f"There is no run with id {run_id!r}.")
+        return record_of(run)
+
+
+def get_run_and_case(store: Store, run_id: str) -> tuple[dict[str, Any], dict[str, Any]]:
+    """The record and the stored case document of one run (for the report)."""
+    with store.transaction() as session:
+        run = session.get(Run, run_id)
+        if run is None:
+            raise NotFound(f"There is no run with id {run_id!r}.")
+        case = session.get(Case, run.case_id)
+        assert case is not None
+        return record_of(run), dict(case.document)
