@@ -9,6 +9,7 @@ from __future__ import annotations
 import traceback
 from collections.abc import Mapping
 
+from schemas.result import RunStatus, Verdict
 from worker.engine.outcome import Check, Outcome
 
 #: The caution every record carries.
@@ -50,8 +51,9 @@ def succeeded_record(case_sha256: str, outcome: Outcome, input_warnings: list[st
     first, and the verdict ``pass`` exactly when there are checks and every one passed."""
     checks = [_check_dict(c) for c in outcome.checks]
     return _record(
-        case_sha256, "succeeded",
-        "pass" if checks and all(c["passed"] for c in checks) else "fail", None,
+        case_sha256, RunStatus.SUCCEEDED.value,
+        (Verdict.PASS if checks and all(c["passed"] for c in checks) else Verdict.FAIL).value,
+        None,
         provenance, inputs,
         quantities=outcome.quantities,
         series=outcome.series,
@@ -66,6 +68,7 @@ def failed_record(case_sha256: str, error: BaseException, provenance: dict,
     """The record of a case the engine could not solve: status ``failed``, verdict ``fail``,
     the exception named in ``error`` and its last line as the only warning."""
     return _record(
-        case_sha256, "failed", "fail", f"{type(error).__name__}: {error}", provenance, inputs,
+        case_sha256, RunStatus.FAILED.value, Verdict.FAIL.value,
+        f"{type(error).__name__}: {error}", provenance, inputs,
         warnings=[traceback.format_exception_only(error)[-1].strip()],
     )

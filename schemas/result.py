@@ -9,6 +9,7 @@ of a layer without reaction): NaN and infinity are not JSON and are refused.
 from __future__ import annotations
 
 import math
+from enum import StrEnum
 from typing import Any
 
 from marshmallow import (
@@ -23,8 +24,32 @@ from marshmallow import (
 
 from schemas.case import PlainInteger, PlainNumber, StrictSchema, WholeMatch
 
-STATUSES = ("queued", "running", "succeeded", "failed")
-VERDICTS = ("pass", "fail")
+
+class RunStatus(StrEnum):
+    """The one enumeration of a run's states, as the record and the store spell them."""
+
+    QUEUED = "queued"
+    RUNNING = "running"
+    SUCCEEDED = "succeeded"
+    FAILED = "failed"
+
+
+class Verdict(StrEnum):
+    """The calculation's verdict: every check passed, or one failed."""
+
+    PASS = "pass"
+    FAIL = "fail"
+
+
+class Decision(StrEnum):
+    """A reviewer's decision on a succeeded run (the record's sign-off)."""
+
+    APPROVED = "approved"
+    REJECTED = "rejected"
+
+
+STATUSES = tuple(s.value for s in RunStatus)
+VERDICTS = tuple(v.value for v in Verdict)
 METHOD_ROLES = ("primary", "independent", "bracket", "reference")
 SHA256_PATTERN = r"^[0-9a-f]{64}$"
 
@@ -202,14 +227,16 @@ class ResultSchema(StrictSchema):
     json_schema_extra = {
         "allOf": [
             {
-                "if": {"properties": {"status": {"const": "succeeded"}}, "required": ["status"]},
+                "if": {"properties": {"status": {"const": RunStatus.SUCCEEDED.value}},
+                       "required": ["status"]},
                 "then": {
                     "required": ["verdict", "quantities", "checks"],
                     "properties": {"verdict": {"enum": list(VERDICTS)}},
                 },
             },
             {
-                "if": {"properties": {"status": {"const": "failed"}}, "required": ["status"]},
+                "if": {"properties": {"status": {"const": RunStatus.FAILED.value}},
+                       "required": ["status"]},
                 "then": {"required": ["error"], "properties": {"error": {"type": "string"}}},
             },
         ]
@@ -218,13 +245,13 @@ class ResultSchema(StrictSchema):
     @validates_schema
     def _status_rules(self, data: dict, **kwargs: Any) -> None:
         errors: dict[str, list[str]] = {}
-        if data.get("status") == "succeeded":
+        if data.get("status") == RunStatus.SUCCEEDED:
             if data.get("verdict") is None:
                 errors["verdict"] = ["a succeeded run has a verdict, pass or fail"]
             for key in ("quantities", "checks"):
                 if key not in data:
                     errors[key] = [f"a succeeded run reports its {key}"]
-        if data.get("status") == "failed" and not isinstance(data.get("error"), str):
+        if data.get("status") == RunStatus.FAILED and not isinstance(data.get("error"), str):
             errors["error"] = ["a failed run says why in 'error'"]
         if errors:
             raise ValidationError(errors)

@@ -13,8 +13,10 @@ from typing import Any
 
 import requests
 
+from schemas.result import RunStatus
+
 DEFAULT_TIMEOUT_S = 30.0
-FINISHED = ("succeeded", "failed")
+FINISHED = (RunStatus.SUCCEEDED.value, RunStatus.FAILED.value)
 
 
 class ApiError(Exception):

@@ -25,6 +25,7 @@ from typing import Any
 
 import click
 
+from schemas.result import Decision, RunStatus
 from service.app import create_app, shutdown_app
 from service.audit import verify_chain
 from service.client import ApiError, Client
@@ -106,16 +107,16 @@ def run_demo(cases_dir: Traversable, reports_dir: Path, data_dir: Path,
                 record = engineer.wait(run_id, timeout=300)
                 checks = record.get("checks") or []
                 passed = sum(1 for c in checks if c.get("passed"))
-                if record["status"] != "succeeded":
+                if record["status"] != RunStatus.SUCCEEDED:
                     failed += 1
                     failures.append(f"{path.name}: {record.get('error')}")
                 elif record.get("verdict") == "pass":
-                    reviewer.signoff(run_id, "approved",
+                    reviewer.signoff(run_id, Decision.APPROVED.value,
                                      "demo: every check passed; approved for the demonstration")
                 report_path = reports_dir / f"{_slug(path)}.html"
                 report_path.write_text(engineer.report(run_id), encoding="utf-8")
                 rows.append([str(case.get("title", _slug(path)))[:60], case.get("geometry", "?"),
-                             record.get("verdict") if record["status"] == "succeeded"
+                             record.get("verdict") if record["status"] == RunStatus.SUCCEEDED
                              else "RUN FAILED", _figure(record),
                              f"{passed}/{len(checks)}", str(len(record.get("warnings") or []))])
             engineer.close()

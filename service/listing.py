@@ -9,7 +9,7 @@ from typing import Any
 
 from sqlalchemy import false, func, select
 
-from schemas.result import VERDICTS
+from schemas.result import VERDICTS, RunStatus
 from service.store import Store
 from service.store.models import RUN_STATES, Batch, Case, CaseTag, Run, Signoff
 
@@ -61,7 +61,7 @@ def list_runs(store: Store, filters: RunFilters, *, offset: int = 0,
                  .join(Case, Case.id == Run.case_id)
                  .outerjoin(Signoff, Signoff.run_id == Run.id))
         if filters.verdict:
-            query = query.where(Run.status == "succeeded", verdict == filters.verdict)
+            query = query.where(Run.status == RunStatus.SUCCEEDED.value, verdict == filters.verdict)
         if filters.status:
             query = query.where(Run.status == filters.status)
         if filters.tag:

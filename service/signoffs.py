@@ -18,6 +18,7 @@ from typing import Any
 
 from sqlalchemy import select
 
+from schemas.result import RunStatus
 from service import audit
 from service.errors import Conflict, Forbidden, FourEyesViolation, NotFound, ProblemError
 from service.runs import record_of, signoff_to_dict
@@ -73,7 +74,7 @@ def signoff_refusals(identity: Identity, *, submitted_by: str | None, status: st
             Conflict, f"Already signed off ({existing['decision']} by {existing['reviewer']}); "
                       "a signed record never changes. Re-verify the case for a new run.",
             {"signoff": dict(existing)}))
-    elif status != "succeeded":
+    elif status != RunStatus.SUCCEEDED:
         refusals.append(Refusal(
             Conflict, f"Only a succeeded run can be signed off; this one is {status}.",
             {"run_status": status}))

@@ -15,6 +15,7 @@ import time
 
 # The implementation's module, not the package-level entry point (which tests replace).
 import schemas.checking as checking
+from schemas.result import RunStatus
 
 logger = logging.getLogger(__name__)
 
@@ -55,7 +56,7 @@ def warm_up_engine() -> float:
         for name in ENGINE_MODULES:
             importlib.import_module(name)
         record = checking.check_case(dict(WARM_UP_CASE))
-        if record.get("status") != "succeeded":
+        if record.get("status") != RunStatus.SUCCEEDED:
             logger.warning("engine warm-up: the warm-up case did not succeed: %s",
                            record.get("error"))
     except Exception:  # noqa: BLE001 - see the docstring

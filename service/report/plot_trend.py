@@ -9,6 +9,7 @@ from __future__ import annotations
 
 from typing import Any
 
+from schemas.result import Decision, RunStatus
 from service.report.numbers import plain_number
 from service.report.plot_common import LINE_COLOURS, MUTED, drawing, figure_svg, new_figure
 
@@ -28,7 +29,7 @@ def scalar(quantity: Any) -> float | None:
 
 def trend_names(runs: list[dict[str, Any]]) -> list[str]:
     """The quantities worth a line: non-zero scalars in the first succeeded run."""
-    first = next((r for r in runs if r["status"] == "succeeded"), None)
+    first = next((r for r in runs if r["status"] == RunStatus.SUCCEEDED), None)
     if first is None:
         return []
     present = {name for name, q in first["quantities"].items() if scalar(q) not in (None, 0.0)}
@@ -39,7 +40,7 @@ def trend_names(runs: list[dict[str, Any]]) -> list[str]:
 
 def relative_changes(runs: list[dict[str, Any]], name: str) -> list[tuple[int, float]]:
     """(run number from 1, relative change from the first succeeded run) for one quantity."""
-    succeeded = [(i, r) for i, r in enumerate(runs, start=1) if r["status"] == "succeeded"]
+    succeeded = [(i, r) for i, r in enumerate(runs, start=1) if r["status"] == RunStatus.SUCCEEDED]
     if not succeeded:
         return []
     baseline = scalar(succeeded[0][1]["quantities"].get(name))
@@ -55,13 +56,13 @@ def relative_changes(runs: list[dict[str, Any]], name: str) -> list[tuple[int, f
 
 def trend_svg(runs: list[dict[str, Any]], tolerance: float) -> str | None:
     """SVG of the trend, or None with fewer than two succeeded runs."""
-    if sum(1 for r in runs if r["status"] == "succeeded") < 2:
+    if sum(1 for r in runs if r["status"] == RunStatus.SUCCEEDED) < 2:
         return None
     names = trend_names(runs)
     series = {name: relative_changes(runs, name) for name in names}
     largest = max([abs(c) for points in series.values() for _, c in points] + [tolerance])
     scale, label = (1e6, "ppm") if largest < 1e-3 else (1e2, "%")
-    approved = {i for i, r in enumerate(runs, start=1) if r.get("decision") == "approved"}
+    approved = {i for i, r in enumerate(runs, start=1) if r.get("decision") == Decision.APPROVED}
     with drawing():
         figure = new_figure(height_in=3.0)
         axes = figure.add_subplot()

@@ -4,6 +4,8 @@ from __future__ import annotations
 
 from collections.abc import Iterator
 
+from schemas.result import RunStatus
+
 RULE = "-" * 78
 
 
@@ -63,7 +65,7 @@ def render_text(record: dict, case: dict) -> str:
     for path, given, si in _input_rows(case, record.get("inputs") or {}):
         add(f"  {path:<42} {given:<20} {('→ ' + si) if si else ''}".rstrip())
     add(RULE)
-    if record.get("status") == "failed":
+    if record.get("status") == RunStatus.FAILED:
         add(f"ENGINE FAILURE: {record.get('error')}")
     add("Quantities (SI; fluxes positive outward)")
     for name, q in record.get("quantities", {}).items():

@@ -7,7 +7,6 @@ these classes must match them (``tests/unit/service/store/test_store.py`` compar
 from __future__ import annotations
 
 from datetime import UTC, datetime
-from enum import StrEnum
 from typing import Any
 
 from sqlalchemy import (
@@ -24,22 +23,7 @@ from sqlalchemy import (
 )
 from sqlalchemy.orm import DeclarativeBase, Mapped, mapped_column, relationship
 
-
-class RunStatus(StrEnum):
-    """The one enumeration of a run's states (stored as these words)."""
-
-    QUEUED = "queued"
-    RUNNING = "running"
-    SUCCEEDED = "succeeded"
-    FAILED = "failed"
-
-
-class Decision(StrEnum):
-    """A reviewer's decision on a succeeded run."""
-
-    APPROVED = "approved"
-    REJECTED = "rejected"
-
+from schemas.result import Decision, RunStatus
 
 RUN_STATES = tuple(s.value for s in RunStatus)
 UNFINISHED_STATES = (RunStatus.QUEUED.value, RunStatus.RUNNING.value)
