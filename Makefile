@@ -4,7 +4,7 @@ VENV   := .venv
 PY     := $(VENV)/bin/python
 STAMP  := $(VENV)/.installed
 
-.PHONY: demo test check lint lint-imports bench schemas clean browser
+.PHONY: demo test check lint bench schemas clean browser
 
 $(STAMP): pyproject.toml
 	$(PYTHON) -m venv $(VENV)
@@ -21,17 +21,11 @@ browser:
 	@command -v chromium >/dev/null 2>&1 || { $(SUDO) apt-get update && \
 		$(SUDO) apt-get install -y chromium; }
 
-# ruff (every file), mypy (the engine and the documents: [tool.mypy] in pyproject.toml) and, with
-# LINT_IMPORTS=1, the import-linter layer contracts ([tool.importlinter]). LINT_IMPORTS becomes 1
-# by default once the packages no longer import each other in a loop.
-LINT_IMPORTS ?= 0
+# ruff (every file), mypy (the engine and the documents: [tool.mypy] in pyproject.toml) and the
+# import-linter layer contracts ([tool.importlinter]: engine < schemas < service < Celery glue).
 lint: $(STAMP)
 	$(VENV)/bin/ruff check .
 	$(VENV)/bin/mypy worker/engine schemas
-	@if [ "$(LINT_IMPORTS)" = 1 ]; then $(MAKE) --no-print-directory lint-imports; \
-	else echo "lint-imports skipped (LINT_IMPORTS=0; run make lint-imports)"; fi
-
-lint-imports: $(STAMP)
 	$(VENV)/bin/lint-imports
 
 # The fast tests: unit, reference, property and API (no integration, faults, UI, load, fuzz).
