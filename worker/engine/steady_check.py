@@ -19,6 +19,7 @@ from __future__ import annotations
 import dataclasses
 import math
 from dataclasses import dataclass
+from typing import Protocol
 
 import numpy as np
 
@@ -75,7 +76,8 @@ class _Sampled:
 
     @classmethod
     def of(cls, solution: SteadySolution, positions: list[np.ndarray]) -> _Sampled:
-        conc, flux = [], []
+        conc: list[np.ndarray] = []
+        flux: list[tuple[float, float]] = []
         for i, r in enumerate(positions):
             if solution.profile_at is not None:
                 c, j = solution.profile_at(r, layer=i)
@@ -84,7 +86,8 @@ class _Sampled:
                 flux.append((j[0], j[-1]))
                 continue
             conc.append(np.asarray(solution.concentration_at(r, layer=i), dtype=float))
-            flux.append(np.asarray(solution.flux_at(r[[0, -1]], layer=i), dtype=float))
+            ends = np.asarray(solution.flux_at(r[[0, -1]], layer=i), dtype=float)
+            flux.append((ends[0], ends[-1]))
         return cls(solution, positions, conc, flux)
 
     def face_concentration(self, side: str) -> float:
@@ -208,9 +211,9 @@ def _add_quantities(outcome: Outcome, problem: Problem, primary: _Sampled) -> No
         q(f"surface_{side}", primary.face_concentration(side), c_unit)
     q("concentration_min", primary.lowest, c_unit)
     q("concentration_max", primary.highest, c_unit)
-    primary = primary.solution
-    if primary.depletion_front is not None:
-        q("depletion_front", float(primary.depletion_front), "m")
+    solution = primary.solution
+    if solution.depletion_front is not None:
+        q("depletion_front", float(solution.depletion_front), "m")
     q("thiele_modulus", [exact_steady.thiele_modulus(ly, problem) for ly in problem.layers],
       "1")
     for side in ("inner", "outer"):
@@ -223,12 +226,12 @@ def _add_quantities(outcome: Outcome, problem: Problem, primary: _Sampled) -> No
     two_pi_r_in = 2 * math.pi * problem.inner
     two_pi_r_out = 2 * math.pi * problem.outer
     if problem.geometry == "cylinder":
-        q("rate_per_length_inner", two_pi_r_in * primary.flux_inner, f"{amount}/(m*s)")
-        q("rate_per_length_outer", two_pi_r_out * primary.flux_outer, f"{amount}/(m*s)")
-        q("consumption_per_length", 2 * math.pi * primary.consumption, f"{amount}/(m*s)")
+        q("rate_per_length_inner", two_pi_r_in * solution.flux_inner, f"{amount}/(m*s)")
+        q("rate_per_length_outer", two_pi_r_out * solution.flux_outer, f"{amount}/(m*s)")
+        q("consumption_per_length", 2 * math.pi * solution.consumption, f"{amount}/(m*s)")
         size = problem.length
     elif problem.geometry == "slab":
-        q("consumption_per_area", primary.consumption, f"{amount}/(m^2*s)")
+        q("consumption_per_area", solution.consumption, f"{amount}/(m^2*s)")
         size = problem.area
     else:
         size = 1.0
@@ -236,9 +239,9 @@ def _add_quantities(outcome: Outcome, problem: Problem, primary: _Sampled) -> No
         measure = {"slab": (1.0, 1.0), "cylinder": (two_pi_r_in, two_pi_r_out),
                    "sphere": (4 * math.pi * problem.inner**2, 4 * math.pi * problem.outer**2)}
         a_in, a_out = measure[problem.geometry]
-        q("rate_inner", size * a_in * primary.flux_inner, f"{amount}/s")
-        q("rate_outer", size * a_out * primary.flux_outer, f"{amount}/s")
-        q("consumption", size * problem.measure_factor * primary.consumption, f"{amount}/s")
+        q("rate_inner", size * a_in * solution.flux_inner, f"{amount}/s")
+        q("rate_outer", size * a_out * solution.flux_outer, f"{amount}/s")
+        q("consumption", size * problem.measure_factor * solution.consumption, f"{amount}/s")
 
 
 def _regime_notes(problem: Problem, primary: SteadySolution, outcome: Outcome) -> None:
@@ -271,6 +274,18 @@ def _regime_notes(problem: Problem, primary: SteadySolution, outcome: Outcome) -
             f"(body {edges[0]:.4g}–{edges[-1]:.4g} m); on the side of the front away from the "
             "supply the consuming material receives no solute")
     _thin_wall_note(problem, primary, outcome)
+
+
+class _FaceRates(Protocol):
+    """The face fluxes the thin-wall note reads of a slab solution (a ``SteadySolution`` or a
+    ``_SlabRate``): flux densities in amount/(m^2*s), outward positive."""
+
+    @property
+    def success(self) -> bool: ...
+    @property
+    def flux_inner(self) -> float: ...
+    @property
+    def flux_outer(self) -> float: ...
 
 
 @dataclass
@@ -311,6 +326,7 @@ def _thin_wall_note(problem: Problem, primary: SteadySolution, outcome: Outcome)
     if problem.geometry == "slab" or problem.inner == 0.0:
         return
     slab = dataclasses.replace(problem, geometry="slab")
+    flat: _FaceRates | None
     if all(not ly.reaction.reacts for ly in problem.layers):
         flat = _reaction_free_slab(slab)
     elif problem.is_linear:  # the slab's fluxes only: its consumption integral is not needed
