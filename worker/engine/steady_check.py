@@ -103,10 +103,9 @@ def _concentration_scale(problem: Problem, samples: list[_Sampled]) -> float:
     for side in ("inner", "outer"):
         b = problem.inner_boundary if side == "inner" else problem.outer_boundary
         k = problem.face_partition(side)
-        if b.kind == "concentration":
-            scale = max(scale, abs(k * b.value))
-        elif b.kind == "mass_transfer":
-            scale = max(scale, abs(k * b.bulk))
+        fluid = b.condition.fluid_concentration(b)
+        if fluid is not None:
+            scale = max(scale, abs(k * fluid))
     for sample in samples:
         scale = max(scale, abs(sample.lowest), abs(sample.highest))
     return scale if scale > 0 else 1.0
@@ -155,16 +154,13 @@ def _boundary_residuals(problem: Problem, sample: _Sampled, c_scale: float,
         into = j if side == "inner" else -j
         k = problem.face_partition(side)
         w = _weight(problem, side)
-        if b.kind == "concentration":
-            out.append((f"{side} concentration", abs(c_s - k * b.value) / c_scale))
-        elif b.kind == "flux":
-            out.append((f"{side} flux", abs(w * (into - b.value)) / t_scale))
-        elif b.kind == "mass_transfer":
-            out.append(
-                (f"{side} film", abs(w * (into - b.coefficient * (b.bulk - c_s / k))) / t_scale)
-            )
+        condition = b.condition
+        residual = condition.face_residual(b, c_s, into, k)
+        name = f"{side} {condition.residual_label}"
+        if condition.holds_concentration:
+            out.append((name, abs(residual) / c_scale))
         else:
-            out.append((f"{side} symmetry", abs(w * j) / t_scale))
+            out.append((name, abs(w * residual) / t_scale))
     return out
 
 
@@ -218,9 +214,10 @@ def _add_quantities(outcome: Outcome, problem: Problem, primary: _Sampled) -> No
       "1")
     for side in ("inner", "outer"):
         b = problem.inner_boundary if side == "inner" else problem.outer_boundary
-        if b.kind == "mass_transfer":
+        h = b.condition.film_coefficient(b)
+        if h is not None:
             layer = problem.layers[0] if side == "inner" else problem.layers[-1]
-            biot = b.coefficient * problem.total_thickness / (
+            biot = h * problem.total_thickness / (
                 problem.face_partition(side) * layer.diffusivity)
             q(f"biot_{side}", float(biot), "1")
     two_pi_r_in = 2 * math.pi * problem.inner
@@ -307,15 +304,16 @@ def _reaction_free_slab(slab: Problem) -> _SlabRate | None:
     for side, layer in (("inner", slab.layers[0]), ("outer", slab.layers[-1])):
         b = slab.inner_boundary if side == "inner" else slab.outer_boundary
         k_face = slab.face_partition(side)
-        if b.kind in ("flux", "symmetry"):
-            value = b.value if b.kind == "flux" else 0.0
+        condition = b.condition
+        fluid = condition.fluid_concentration(b)
+        if fluid is None:  # a flux or symmetry face fixes J
+            imposed = condition.imposed_flux(b)
+            value = 0.0 if imposed is None else imposed
             j = value if side == "inner" else -value
             return _SlabRate(True, j, j)
-        if b.kind == "concentration":
-            terms.append((k_face * b.value / layer.partition, 0.0))
-        else:
-            terms.append((k_face * b.bulk / layer.partition,
-                          k_face / (b.coefficient * layer.partition)))
+        h = condition.film_coefficient(b)
+        terms.append((k_face * fluid / layer.partition,
+                      0.0 if h is None else k_face / (h * layer.partition)))
     (a_in, r_in), (a_out, r_out) = terms
     j = (a_in - a_out) / (resistance + r_in + r_out)
     return _SlabRate(True, j, j)
@@ -333,7 +331,8 @@ def _thin_wall_note(problem: Problem, primary: SteadySolution, outcome: Outcome)
         flat = _SlabRate(*exact_steady.linear_face_fluxes(slab))
     else:
         flat = exact_steady.solve_exact(slab) if all(
-            ly.reaction.kind != "michaelis_menten" for ly in problem.layers) else None
+            ly.reaction.law.exact_coefficients(ly.reaction) is not None
+            for ly in problem.layers) else None
         if flat is None:
             flat = fv_steady.solve_fv(slab)
     if flat is None or not flat.success:
@@ -536,7 +535,7 @@ def run_steady(problem: Problem) -> Outcome:
         "non_negativity", max(0.0, -lowest) / c_scale, check_limit(problem, "non_negativity"),
         f"lowest concentration {lowest:.4g} {problem.concentration_unit} (every method)")
 
-    if any(ly.reaction.kind == "michaelis_menten" for ly in problem.layers) and fine.success:
+    if any(ly.reaction.law.has_bracket for ly in problem.layers) and fine.success:
         _bracket_check(outcome, problem, samples[id(fine)], c_scale)
 
     _regime_notes(problem, primary, outcome)
