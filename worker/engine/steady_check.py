@@ -30,7 +30,7 @@ from worker.engine.outcome import Outcome
 
 #: Points per layer in the reported profile (both layer ends included, so jumps are visible).
 PROFILE_POINTS_PER_LAYER = 41
-#: Thresholds for regime notes (warnings): common practice (TRADE_RANGES.md §6).
+#: Thresholds for regime notes (warnings): common practice.
 THIELE_LARGE = 3.0
 BIOT_LARGE = 10.0
 BIOT_SMALL = 0.1
