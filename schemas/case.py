@@ -82,6 +82,14 @@ class WholeMatch(validate.Regexp):
     match makes both read ``^...$`` the same way.
     """
 
+    @property
+    def pattern_text(self) -> str:
+        """The regular expression's text (a ``WholeMatch`` is built from a str)."""
+        pattern = self.regex.pattern
+        if not isinstance(pattern, str):
+            raise TypeError(f"WholeMatch: expected a str pattern, got {pattern!r}")
+        return pattern
+
     def __call__(self, value: Any) -> Any:
         pattern = cast("re.Pattern[str]", self.regex)  # built from a str
         if not isinstance(value, str) or pattern.fullmatch(value) is None:

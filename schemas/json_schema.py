@@ -41,6 +41,16 @@ def class_name(cls: type[Schema]) -> str:
     return cls.__name__
 
 
+def _nested_schema(field: fields.Nested) -> type[Schema] | Schema:
+    """The schema a ``Nested`` field holds: a class or an instance (the project names no nested
+    schema by string or callable)."""
+    nested = field.nested
+    if isinstance(nested, Schema) or (isinstance(nested, type) and issubclass(nested, Schema)):
+        return nested
+    raise TypeError(f"{field.name}: expected a Nested field of a Schema class or instance, "
+                    f"got {nested!r}")
+
+
 class JsonSchemaConverter:
     """Converts marshmallow schemas; collects the nested ones into ``defs``.
 
@@ -97,7 +107,7 @@ class JsonSchemaConverter:
         elif isinstance(field, ByKind):
             out = {"oneOf": [self.ref(cls) for cls in field.choices.values()]}
         elif isinstance(field, fields.Nested):
-            out = self.ref(field.nested)
+            out = self.ref(_nested_schema(field))
         elif isinstance(field, fields.List):
             out = {"type": "array", "items": self.field(field.inner)}
         elif isinstance(field, fields.Dict):
@@ -164,7 +174,7 @@ class JsonSchemaConverter:
             choices = list(validator.choices)
             return {"const": choices[0]} if len(choices) == 1 else {"enum": choices}
         if isinstance(validator, WholeMatch):
-            return {"pattern": portable_end(validator.regex.pattern)}
+            return {"pattern": portable_end(validator.pattern_text)}
         if isinstance(validator, validate.Regexp):
             return {"pattern": validator.regex.pattern}
         return dict(getattr(validator, "json_schema", {}))

@@ -13,6 +13,8 @@ from typing import Any
 from matplotlib.ticker import MaxNLocator
 
 from service.report.numbers import length_scale, plain_number, unit_text
+from worker.engine.boundaries import BOUNDARIES
+from worker.engine.reactions import REACTIONS
 
 WIDTH, LEFT, RIGHT = 760, 70, 70
 BAR_TOP, BAR_HEIGHT = 58, 46
@@ -21,10 +23,6 @@ LAYER_FILLS = ("#dfe7ee", "#ece6d8", "#e2ebe0", "#e9e1ea", "#e6e6e6")
 INK, MUTED, EDGE = "#1f262d", "#4d5761", "#5d6a76"
 SVG_NS = "http://www.w3.org/2000/svg"
 
-REACTION_WORDS = {"zero_order": "zero-order uptake", "first_order": "first-order uptake",
-                  "michaelis_menten": "saturable uptake"}
-
-
 def _si(value: Any) -> float:
     if isinstance(value, dict):
         value = value.get("value")
@@ -32,32 +30,29 @@ def _si(value: Any) -> float:
 
 
 def boundary_words(boundary: dict[str, Any] | None) -> str:
-    """A face's condition in a few words, e.g. ``held at 0.2 mol/m³`` or ``sealed``."""
+    """A face's condition in a few words (its kind's ``wording``), e.g. ``fluid at 0.2 mol/m³``
+    or ``sealed (no flux)``."""
     boundary = boundary or {}
     kind = boundary.get("kind")
-    if kind == "symmetry":
-        return "symmetry (no flux)"
-    if kind == "concentration":
-        value = boundary.get("value") or {}
-        return f"fluid at {plain_number(_si(value))} {unit_text(value.get('unit'))}".strip()
-    if kind == "flux":
-        value = boundary.get("value") or {}
-        if _si(value) == 0:
-            return "sealed (no flux)"
-        return f"flux in {plain_number(_si(value))} {unit_text(value.get('unit'))}".strip()
-    if kind == "mass_transfer":
-        coefficient = boundary.get("coefficient") or {}
-        bulk = boundary.get("bulk") or {}
-        return (f"film k = {plain_number(_si(coefficient))} {unit_text(coefficient.get('unit'))}"
-                f", bulk {plain_number(_si(bulk))} {unit_text(bulk.get('unit'))}")
-    return str(kind or "not given")
+    condition = BOUNDARIES.get(kind) if isinstance(kind, str) else None
+    if condition is None:
+        return str(kind or "not given")
+    quantities = {p.name: boundary.get(p.name) or {} for p in condition.parameters
+                  if p.dimension is not None}
+    if condition.wording_at_zero is not None and all(
+            _si(quantity) == 0 for quantity in quantities.values()):
+        return condition.wording_at_zero
+    texts = {name: f"{plain_number(_si(quantity))} {unit_text(quantity.get('unit'))}"
+             for name, quantity in quantities.items()}
+    return condition.wording.format(**texts).strip()
 
 
 def _layer_caption(layer: dict[str, Any]) -> str:
     parts = [f"K = {plain_number(layer.get('partition', 1.0), 3)}"]
     reaction = (layer.get("reaction") or {}).get("kind")
-    if reaction in REACTION_WORDS:
-        parts.append(REACTION_WORDS[reaction])
+    law = REACTIONS.get(reaction) if isinstance(reaction, str) else None
+    if law is not None and law.label:
+        parts.append(law.label)
     return ", ".join(parts)
 
 

@@ -12,9 +12,9 @@ from tests.store_checks import (
 )
 
 
-def test_direct_changes_of_a_signed_run_or_its_signoff_are_refused_on_postgresql(store):
-    assert store.dialect == "postgresql"
-    check_direct_changes_of_a_signed_run_are_refused(store)
+def test_direct_changes_of_a_signed_run_or_its_signoff_are_refused_on_postgresql(live_store):
+    assert live_store.dialect == "postgresql"
+    check_direct_changes_of_a_signed_run_are_refused(live_store)
 
 
 @pytest.fixture

@@ -48,15 +48,20 @@ from __future__ import annotations
 
 import math
 from dataclasses import dataclass
+from typing import overload
 
 import numpy as np
 from scipy import special
+
+#: Positions r in metres: an array, or one position as a numpy scalar (``LayerBasis.evaluate``
+#: keeps a single position scalar, for numpy's scalar arithmetic); values follow its shape.
+Positions = np.ndarray | np.float64
 
 # Below this x, x cosh x - sinh x is summed from its Taylor series (the direct form cancels).
 _SERIES_LIMIT = 0.1
 
 
-def _x_cosh_minus_sinh(x: np.ndarray) -> np.ndarray:
+def _x_cosh_minus_sinh(x: Positions) -> np.ndarray:
     """x cosh x - sinh x = sum_{k>=1} 2k x^(2k+1)/(2k+1)!, accurate for small x, x <= 1."""
     x = np.asarray(x, dtype=float)
     small = np.minimum(x, _SERIES_LIMIT)
@@ -114,7 +119,12 @@ class LayerBasis:
         """m = sqrt(k/D), 1/m (0 without first-order reaction)."""
         return math.sqrt(self.rate_constant / self.diffusivity)
 
-    def evaluate(self, r: np.ndarray) -> tuple[np.ndarray, ...]:
+    @overload
+    def evaluate(self, r: np.ndarray) -> tuple[np.ndarray, ...]: ...
+    @overload
+    def evaluate(self, r: float) -> tuple[np.float64, ...]: ...
+
+    def evaluate(self, r: float | np.ndarray) -> tuple[Positions, ...]:
         """Nodal functions, particular solution and their r-derivatives at positions ``r``.
 
         Returns
@@ -142,8 +152,15 @@ class LayerBasis:
             return 1.0, float(g2), 0.0, 0.0, float(dg2), 0.0
         return tuple(float(v) for v in self.evaluate(float(r)))
 
-    def combination(self, r, c1: float, c2: float, partition: float
-                    ) -> tuple[np.ndarray, np.ndarray]:
+    @overload
+    def combination(self, r: np.ndarray, c1: float, c2: float, partition: float
+                    ) -> tuple[np.ndarray, np.ndarray]: ...
+    @overload
+    def combination(self, r: float, c1: float, c2: float, partition: float
+                    ) -> tuple[np.float64, np.float64]: ...
+
+    def combination(self, r: float | np.ndarray, c1: float, c2: float, partition: float
+                    ) -> tuple[Positions, Positions]:
         """C = K (c1 g1 + c2 g2) + P and dC/dr at positions ``r`` (see ``evaluate``).
 
         In a hollow layer without reaction g1 = 1, g1' = 0 and P = P' = 0 identically: those
@@ -158,7 +175,7 @@ class LayerBasis:
         return partition * (c1 * g1 + c2 * g2) + part, partition * (c1 * dg1 + c2 * dg2) + dpart
 
     # -- no reaction ------------------------------------------------------------------------
-    def _plain(self, r: np.ndarray) -> tuple[np.ndarray, ...]:
+    def _plain(self, r: Positions) -> tuple[Positions, ...]:
         """g1 = 1 and the nodal g2, with derivatives."""
         zeros, ones = _zeros(r), _full(r, 1.0)
         if self.solid:
@@ -166,7 +183,7 @@ class LayerBasis:
         g2, dg2 = self._plain_nodal(r)
         return ones, g2, zeros, dg2
 
-    def _plain_nodal(self, r: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    def _plain_nodal(self, r: Positions) -> tuple[Positions, Positions]:
         """(x - a)/L, ln(r/a)/ln(b/a) or (1/a - 1/r)/(1/a - 1/b), and the derivative."""
         a, b, n = self.inner_edge, self.outer_edge, self.exponent
         length = b - a
@@ -183,7 +200,7 @@ class LayerBasis:
         """True when g1 is the nodal function (g1(b) = 0), i.e. m (b - a) > 1."""
         return self.decay_constant * self.thickness > 1.0
 
-    def _reacting(self, r: np.ndarray) -> tuple[np.ndarray, ...]:
+    def _reacting(self, r: Positions) -> tuple[Positions, ...]:
         n = self.exponent
         if n == 1:
             return self._cylinder_bessel(r)
@@ -209,7 +226,7 @@ class LayerBasis:
         dg1 = (_x_cosh_minus_sinh(x) / m + a * r * m * np.sinh(x)) / (r * r)
         return g1, g2, dg1, dg2
 
-    def _sinh_ratio(self, t: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    def _sinh_ratio(self, t: Positions) -> tuple[Positions, Positions]:
         """sinh(m t)/sinh(m L) and its t-derivative, 0 <= t <= L, in decaying-exponential form."""
         m, length = self.decay_constant, self.outer_edge - self.inner_edge
         denominator = -math.expm1(-2.0 * m * length)
@@ -219,7 +236,7 @@ class LayerBasis:
         slope = m * decay * (1.0 + np.exp(twice)) / denominator
         return value, slope
 
-    def _solid_sphere(self, r: np.ndarray) -> tuple[np.ndarray, ...]:
+    def _solid_sphere(self, r: Positions) -> tuple[Positions, ...]:
         """(b/r) sinh(m r)/sinh(m b), regular at the centre, and its derivative."""
         m, b = self.decay_constant, self.outer_edge
         x = m * r
@@ -235,7 +252,7 @@ class LayerBasis:
         zeros = _zeros(r)
         return zeros, prefactor * scaled_sinh_over_r, zeros, prefactor * scaled_slope
 
-    def _cylinder_bessel(self, r: np.ndarray) -> tuple[np.ndarray, ...]:
+    def _cylinder_bessel(self, r: Positions) -> tuple[Positions, ...]:
         """Combinations of I0(m r) and K0(m r) in scaled form."""
         m, a, b = self.decay_constant, self.inner_edge, self.outer_edge
         x = m * r
@@ -268,7 +285,7 @@ class LayerBasis:
         return g1, g2, dg1, dg2
 
     # -- zero order -------------------------------------------------------------------------
-    def _particular(self, r: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    def _particular(self, r: Positions) -> tuple[Positions, Positions]:
         """Zero-order particular solution vanishing at both edges, and its derivative."""
         q = self.zero_order_rate / self.diffusivity
         if q == 0.0:

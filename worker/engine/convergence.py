@@ -141,7 +141,7 @@ def _ratios(
         raise ValueError("grid_study: give exactly one of cells (N1, N2, N3) or ratios (r21, r32)")
     if ratios is not None:
         r21, r32 = (float(x) for x in ratios)
-    else:
+    elif cells is not None:
         if len(cells) != 3:
             raise ValueError(f"cells: expected three cell counts (fine to coarse), got {cells!r}")
         n1, n2, n3 = (float(x) for x in cells)
@@ -322,8 +322,9 @@ def run_grid_study(
             )
             nan = float("nan")
             r21, r32 = _ratios(cells, None, 1)
+            fine, medium, coarse = (nan if v is None else float(v) for v in values)
             studies[name] = GridStudy(
-                tuple(nan if v is None else float(v) for v in values),
+                (fine, medium, coarse),
                 r21, r32, nan, nan, nan, nan, nan, "degenerate", reason,
             )
             continue

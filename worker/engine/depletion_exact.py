@@ -101,7 +101,7 @@ def _front_residual(problem: Problem, side: str, front: float, face: float) -> f
     shape, slope = _shape_at(problem.exponent, face, front)
     concentration = q / d * shape
     inflow = abs(q * slope)  # |J| at the face; it points into the body
-    return boundary.condition.depletion_residual(boundary, concentration, inflow, k_face)
+    return boundary.condition.face_residual(boundary, concentration, inflow, k_face)
 
 
 def _slab_distance(problem: Problem, side: str) -> float:

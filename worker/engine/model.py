@@ -4,7 +4,7 @@ All values are SI: positions and thicknesses in m, diffusivities in m^2/s, conce
 mol/m^3 (molar basis) or kg/m^3 (mass basis), flux densities in amount/(m^2*s), reaction rates in
 amount/(m^3*s), rate constants in 1/s, mass-transfer coefficients in m/s, times in s.
 
-Conventions (the contract of ``DESIGN.md``):
+Conventions (those the README states for the case document and the record):
 
 * Position ``r`` is x for a slab and the radius for a cylinder or sphere; the geometric exponent
   ``n`` is 0, 1, 2 so that the shell balance reads ``(1/r^n) d/dr(r^n D dC/dr) = R(C)``.

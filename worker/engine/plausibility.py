@@ -1,9 +1,10 @@
 """Plausibility warnings: inputs outside the screening ranges of the trade.
 
-The ranges come from the project's trade-range table (``shared/TRADE_RANGES.md``, section 7
-"Suggested plausibility bounds", itself distilled from cited sources; each warning names the row).
-They are screening limits: a value outside them gives a warning, never a failed check, because
-biological and material data legitimately scatter by factors of 2-10.
+The ranges are the project's own screening table, bounds of common practice held as constants
+here, in ``worker.engine.screening`` and in the kind modules (each kind's
+``plausibility_warnings``); each warning names its row. They are screening limits: a value
+outside them gives a warning, never a failed check, because biological and material data
+legitimately scatter by factors of 2-10.
 """
 
 from __future__ import annotations

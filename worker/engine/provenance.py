@@ -41,7 +41,8 @@ def utc_now() -> str:
 
 
 def provenance_block(case_sha256: str, started_at: str, finished_at: str) -> dict:
-    """The ``provenance`` object of DESIGN.md, plus the case digest."""
+    """The record's ``provenance`` object (README, "What the record means"), with the case
+    digest."""
     block: dict = dict(_static_provenance())
     block.update(
         worker=f"{socket.gethostname()}:{os.getpid()}",

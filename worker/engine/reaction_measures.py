@@ -1,12 +1,13 @@
 """Thiele modulus and the classical effectiveness factors.
 
-Thiele modulus (DESIGN.md): ``phi = thickness * sqrt(k / D)`` with k the first-order constant or
-``vmax / km``; for the innermost layer of a solid cylinder or sphere the thickness is its outer
-radius. Effectiveness factors of a single first-order body with a fixed surface concentration
-(E.W. Thiele, "Relation between catalytic activity and size of particle", Ind. Eng. Chem. 31
-(1939) 916-920; R. Aris, *The Mathematical Theory of Diffusion and Reaction in Permeable
-Catalysts*, Oxford, 1975): slab of half-thickness L sealed at the mid-plane ``tanh(phi)/phi``;
-solid cylinder ``2 I1(phi) / (phi I0(phi))``; sphere ``(3/phi^2) (phi coth(phi) - 1)``.
+Thiele modulus (Thiele 1939; Aris 1975; both below): ``phi = thickness * sqrt(k / D)`` with k
+the first-order constant or ``vmax / km``; for the innermost layer of a solid cylinder or sphere
+the thickness is its outer radius. Effectiveness factors of a single first-order body with a
+fixed surface concentration (E.W. Thiele, "Relation between catalytic activity and size of
+particle", Ind. Eng. Chem. 31 (1939) 916-920; R. Aris, *The Mathematical Theory of Diffusion
+and Reaction in Permeable Catalysts*, Oxford, 1975): slab of half-thickness L sealed at the
+mid-plane ``tanh(phi)/phi``; solid cylinder ``2 I1(phi) / (phi I0(phi))``; sphere
+``(3/phi^2) (phi coth(phi) - 1)``.
 """
 
 from __future__ import annotations

@@ -1,11 +1,14 @@
-"""Shared pieces of the plausibility screening: the source row cited and the range test.
+"""Shared pieces of the plausibility screening: the table its warnings name and the range test.
 
-The ranges are screening limits: a value outside gives a warning, never a failed check.
+The screening table is the project's own: bounds of common practice held as constants here, in
+``worker.engine.plausibility`` and in the kind modules. The ranges are screening limits: a value
+outside gives a warning, never a failed check.
 """
 
 from __future__ import annotations
 
-TRADE_TABLE = "TRADE_RANGES.md §7 (screening bounds)"
+#: The table each screening warning names, with the row it applies.
+TRADE_TABLE = "fluxproof screening table (worker/engine/screening.py)"
 
 #: mol/(m^3 s): upper screening limit of tissue or construct O2 consumption.
 VOLUMETRIC_RATE_HIGH_MOLAR = 0.3

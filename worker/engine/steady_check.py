@@ -19,6 +19,7 @@ from __future__ import annotations
 import dataclasses
 import math
 from dataclasses import dataclass
+from typing import Protocol
 
 import numpy as np
 
@@ -29,7 +30,7 @@ from worker.engine.outcome import Outcome
 
 #: Points per layer in the reported profile (both layer ends included, so jumps are visible).
 PROFILE_POINTS_PER_LAYER = 41
-#: Thresholds for regime notes (warnings): common practice (TRADE_RANGES.md §6).
+#: Thresholds for regime notes (warnings): common practice.
 THIELE_LARGE = 3.0
 BIOT_LARGE = 10.0
 BIOT_SMALL = 0.1
@@ -75,7 +76,8 @@ class _Sampled:
 
     @classmethod
     def of(cls, solution: SteadySolution, positions: list[np.ndarray]) -> _Sampled:
-        conc, flux = [], []
+        conc: list[np.ndarray] = []
+        flux: list[tuple[float, float]] = []
         for i, r in enumerate(positions):
             if solution.profile_at is not None:
                 c, j = solution.profile_at(r, layer=i)
@@ -84,7 +86,8 @@ class _Sampled:
                 flux.append((j[0], j[-1]))
                 continue
             conc.append(np.asarray(solution.concentration_at(r, layer=i), dtype=float))
-            flux.append(np.asarray(solution.flux_at(r[[0, -1]], layer=i), dtype=float))
+            ends = np.asarray(solution.flux_at(r[[0, -1]], layer=i), dtype=float)
+            flux.append((ends[0], ends[-1]))
         return cls(solution, positions, conc, flux)
 
     def face_concentration(self, side: str) -> float:
@@ -100,10 +103,9 @@ def _concentration_scale(problem: Problem, samples: list[_Sampled]) -> float:
     for side in ("inner", "outer"):
         b = problem.inner_boundary if side == "inner" else problem.outer_boundary
         k = problem.face_partition(side)
-        if b.kind == "concentration":
-            scale = max(scale, abs(k * b.value))
-        elif b.kind == "mass_transfer":
-            scale = max(scale, abs(k * b.bulk))
+        fluid = b.condition.fluid_concentration(b)
+        if fluid is not None:
+            scale = max(scale, abs(k * fluid))
     for sample in samples:
         scale = max(scale, abs(sample.lowest), abs(sample.highest))
     return scale if scale > 0 else 1.0
@@ -152,16 +154,13 @@ def _boundary_residuals(problem: Problem, sample: _Sampled, c_scale: float,
         into = j if side == "inner" else -j
         k = problem.face_partition(side)
         w = _weight(problem, side)
-        if b.kind == "concentration":
-            out.append((f"{side} concentration", abs(c_s - k * b.value) / c_scale))
-        elif b.kind == "flux":
-            out.append((f"{side} flux", abs(w * (into - b.value)) / t_scale))
-        elif b.kind == "mass_transfer":
-            out.append(
-                (f"{side} film", abs(w * (into - b.coefficient * (b.bulk - c_s / k))) / t_scale)
-            )
+        condition = b.condition
+        residual = condition.face_residual(b, c_s, into, k)
+        name = f"{side} {condition.residual_label}"
+        if condition.holds_concentration:
+            out.append((name, abs(residual) / c_scale))
         else:
-            out.append((f"{side} symmetry", abs(w * j) / t_scale))
+            out.append((name, abs(w * residual) / t_scale))
     return out
 
 
@@ -208,27 +207,28 @@ def _add_quantities(outcome: Outcome, problem: Problem, primary: _Sampled) -> No
         q(f"surface_{side}", primary.face_concentration(side), c_unit)
     q("concentration_min", primary.lowest, c_unit)
     q("concentration_max", primary.highest, c_unit)
-    primary = primary.solution
-    if primary.depletion_front is not None:
-        q("depletion_front", float(primary.depletion_front), "m")
+    solution = primary.solution
+    if solution.depletion_front is not None:
+        q("depletion_front", float(solution.depletion_front), "m")
     q("thiele_modulus", [exact_steady.thiele_modulus(ly, problem) for ly in problem.layers],
       "1")
     for side in ("inner", "outer"):
         b = problem.inner_boundary if side == "inner" else problem.outer_boundary
-        if b.kind == "mass_transfer":
+        h = b.condition.film_coefficient(b)
+        if h is not None:
             layer = problem.layers[0] if side == "inner" else problem.layers[-1]
-            biot = b.coefficient * problem.total_thickness / (
+            biot = h * problem.total_thickness / (
                 problem.face_partition(side) * layer.diffusivity)
             q(f"biot_{side}", float(biot), "1")
     two_pi_r_in = 2 * math.pi * problem.inner
     two_pi_r_out = 2 * math.pi * problem.outer
     if problem.geometry == "cylinder":
-        q("rate_per_length_inner", two_pi_r_in * primary.flux_inner, f"{amount}/(m*s)")
-        q("rate_per_length_outer", two_pi_r_out * primary.flux_outer, f"{amount}/(m*s)")
-        q("consumption_per_length", 2 * math.pi * primary.consumption, f"{amount}/(m*s)")
+        q("rate_per_length_inner", two_pi_r_in * solution.flux_inner, f"{amount}/(m*s)")
+        q("rate_per_length_outer", two_pi_r_out * solution.flux_outer, f"{amount}/(m*s)")
+        q("consumption_per_length", 2 * math.pi * solution.consumption, f"{amount}/(m*s)")
         size = problem.length
     elif problem.geometry == "slab":
-        q("consumption_per_area", primary.consumption, f"{amount}/(m^2*s)")
+        q("consumption_per_area", solution.consumption, f"{amount}/(m^2*s)")
         size = problem.area
     else:
         size = 1.0
@@ -236,9 +236,9 @@ def _add_quantities(outcome: Outcome, problem: Problem, primary: _Sampled) -> No
         measure = {"slab": (1.0, 1.0), "cylinder": (two_pi_r_in, two_pi_r_out),
                    "sphere": (4 * math.pi * problem.inner**2, 4 * math.pi * problem.outer**2)}
         a_in, a_out = measure[problem.geometry]
-        q("rate_inner", size * a_in * primary.flux_inner, f"{amount}/s")
-        q("rate_outer", size * a_out * primary.flux_outer, f"{amount}/s")
-        q("consumption", size * problem.measure_factor * primary.consumption, f"{amount}/s")
+        q("rate_inner", size * a_in * solution.flux_inner, f"{amount}/s")
+        q("rate_outer", size * a_out * solution.flux_outer, f"{amount}/s")
+        q("consumption", size * problem.measure_factor * solution.consumption, f"{amount}/s")
 
 
 def _regime_notes(problem: Problem, primary: SteadySolution, outcome: Outcome) -> None:
@@ -273,6 +273,18 @@ def _regime_notes(problem: Problem, primary: SteadySolution, outcome: Outcome) -
     _thin_wall_note(problem, primary, outcome)
 
 
+class _FaceRates(Protocol):
+    """The face fluxes the thin-wall note reads of a slab solution (a ``SteadySolution`` or a
+    ``_SlabRate``): flux densities in amount/(m^2*s), outward positive."""
+
+    @property
+    def success(self) -> bool: ...
+    @property
+    def flux_inner(self) -> float: ...
+    @property
+    def flux_outer(self) -> float: ...
+
+
 @dataclass
 class _SlabRate:
     success: bool
@@ -292,15 +304,16 @@ def _reaction_free_slab(slab: Problem) -> _SlabRate | None:
     for side, layer in (("inner", slab.layers[0]), ("outer", slab.layers[-1])):
         b = slab.inner_boundary if side == "inner" else slab.outer_boundary
         k_face = slab.face_partition(side)
-        if b.kind in ("flux", "symmetry"):
-            value = b.value if b.kind == "flux" else 0.0
+        condition = b.condition
+        fluid = condition.fluid_concentration(b)
+        if fluid is None:  # a flux or symmetry face fixes J
+            imposed = condition.imposed_flux(b)
+            value = 0.0 if imposed is None else imposed
             j = value if side == "inner" else -value
             return _SlabRate(True, j, j)
-        if b.kind == "concentration":
-            terms.append((k_face * b.value / layer.partition, 0.0))
-        else:
-            terms.append((k_face * b.bulk / layer.partition,
-                          k_face / (b.coefficient * layer.partition)))
+        h = condition.film_coefficient(b)
+        terms.append((k_face * fluid / layer.partition,
+                      0.0 if h is None else k_face / (h * layer.partition)))
     (a_in, r_in), (a_out, r_out) = terms
     j = (a_in - a_out) / (resistance + r_in + r_out)
     return _SlabRate(True, j, j)
@@ -311,13 +324,15 @@ def _thin_wall_note(problem: Problem, primary: SteadySolution, outcome: Outcome)
     if problem.geometry == "slab" or problem.inner == 0.0:
         return
     slab = dataclasses.replace(problem, geometry="slab")
+    flat: _FaceRates | None
     if all(not ly.reaction.reacts for ly in problem.layers):
         flat = _reaction_free_slab(slab)
     elif problem.is_linear:  # the slab's fluxes only: its consumption integral is not needed
         flat = _SlabRate(*exact_steady.linear_face_fluxes(slab))
     else:
         flat = exact_steady.solve_exact(slab) if all(
-            ly.reaction.kind != "michaelis_menten" for ly in problem.layers) else None
+            ly.reaction.law.exact_coefficients(ly.reaction) is not None
+            for ly in problem.layers) else None
         if flat is None:
             flat = fv_steady.solve_fv(slab)
     if flat is None or not flat.success:
@@ -520,7 +535,7 @@ def run_steady(problem: Problem) -> Outcome:
         "non_negativity", max(0.0, -lowest) / c_scale, check_limit(problem, "non_negativity"),
         f"lowest concentration {lowest:.4g} {problem.concentration_unit} (every method)")
 
-    if any(ly.reaction.kind == "michaelis_menten" for ly in problem.layers) and fine.success:
+    if any(ly.reaction.law.has_bracket for ly in problem.layers) and fine.success:
         _bracket_check(outcome, problem, samples[id(fine)], c_scale)
 
     _regime_notes(problem, primary, outcome)

@@ -13,9 +13,11 @@ from pathlib import Path
 
 import pytest
 from jsonschema import Draft202012Validator
-from marshmallow import ValidationError
+from marshmallow import Schema, ValidationError, fields
 
 from schemas import CaseError, export, validate_case
+from schemas.case import WholeMatch
+from schemas.json_schema import JsonSchemaConverter
 from schemas.result import validate_result
 
 DEMO_CASES = sorted((Path(__file__).parents[3] / "service" / "demo_cases").glob("*.json"))
@@ -276,3 +278,18 @@ def test_sha256_with_final_newline_is_refused(result_validator):
     assert list(result_validator.iter_errors(doc))
     with pytest.raises(ValidationError):
         validate_result(doc)
+
+
+def test_nested_fields_convert_from_schema_classes_and_instances_only():
+    class Inner(Schema):
+        x = fields.Integer()
+
+    converter = JsonSchemaConverter()
+    assert converter.field(fields.Nested(Inner)) == {"$ref": "#/$defs/Inner"}
+    assert converter.field(fields.Nested(Inner())) == {"$ref": "#/$defs/Inner"}
+    named = fields.Nested("Inner")
+    with pytest.raises(TypeError, match="expected a Nested field of a Schema class or instance"):
+        converter.field(named)
+    assert WholeMatch(r"^[a-z]+$").pattern_text == "^[a-z]+$"
+    with pytest.raises(TypeError, match="expected a str pattern"):
+        _ = WholeMatch(rb"^x$").pattern_text

@@ -36,6 +36,16 @@ class BoundaryKind:
     parameters: tuple[Parameter, ...] = ()
     #: Whether a face of this kind can fix the steady level (the case rule on unique solutions).
     sets_level: bool = False
+    #: The face holds the surface concentration itself: its condition's residual
+    #: (``face_residual``) is a concentration, else a flux density.
+    holds_concentration: bool = False
+    #: What the face condition is called where its residual is reported (``"film"``).
+    residual_label: str = ""
+    #: Its condition in a few words for drawings: a ``str.format`` template over its
+    #: dimensioned parameters, each given as ``"<number> <unit>"`` (``"flux in {value}"``).
+    wording: str = ""
+    #: The words for a face whose dimensioned parameters are all zero, where they differ.
+    wording_at_zero: str | None = None
 
     def fixes_level(self, boundary: Boundary) -> bool:
         """True when this face fixes the steady level (a concentration or a live film)."""
@@ -56,6 +66,19 @@ class BoundaryKind:
     def is_perfect_sink(self, boundary: Boundary) -> bool:
         """True when the face holds the surface at zero concentration."""
         return False
+
+    def film_coefficient(self, boundary: Boundary) -> float | None:
+        """The mass-transfer coefficient h (m/s) of the fluid film at the face, None without a
+        film."""
+        return None
+
+    def face_residual(
+        self, boundary: Boundary, concentration: float, inflow: float, k_face: float
+    ) -> float:
+        """Residual of the face condition at a solution's surface concentration (amount/m^3)
+        and flux density into the body (amount/(m^2*s)): a concentration where the kind
+        ``holds_concentration``, else a flux density."""
+        raise NotImplementedError
 
     # forms of the face condition, one per solver ------------------------------------------------
     def fv_face(
@@ -94,13 +117,6 @@ class BoundaryKind:
     def depletion_role(self, boundary: Boundary) -> DepletionRole:
         """``fed``: supplies solute; ``sealed``: none crosses; ``other``: draws solute out."""
         return "other"
-
-    def depletion_residual(
-        self, boundary: Boundary, concentration: float, inflow: float, k_face: float
-    ) -> float:
-        """Face residual of a fed face of the depletion solution, from the surface
-        concentration and the inflow the live zone draws there."""
-        raise NotImplementedError
 
     def slab_live_depth(self, boundary: Boundary, q: float, d: float, k_face: float) -> float:
         """Depth (m) of the live zone of a zero-order slab fed through this face, in closed

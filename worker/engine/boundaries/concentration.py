@@ -21,6 +21,9 @@ class ConcentrationFace(BoundaryKind):
         Parameter("partition", None, "positive", required=False),
     )
     sets_level = True
+    holds_concentration = True
+    residual_label = "concentration"
+    wording = "fluid at {value}"
 
     def fixes_level(self, boundary: Boundary) -> bool:
         return True
@@ -59,7 +62,7 @@ class ConcentrationFace(BoundaryKind):
     def depletion_role(self, boundary: Boundary) -> DepletionRole:
         return "fed" if boundary.value >= 0.0 else "other"
 
-    def depletion_residual(
+    def face_residual(
         self, boundary: Boundary, concentration: float, inflow: float, k_face: float
     ) -> float:
         return concentration - k_face * boundary.value

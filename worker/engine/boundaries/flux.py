@@ -16,6 +16,9 @@ class FluxFace(BoundaryKind):
     noun = "a flux boundary"
     schema_name = "FluxBoundary"
     parameters = (Parameter("value", "flux", "any"),)
+    residual_label = "flux"
+    wording = "flux in {value}"
+    wording_at_zero = "sealed (no flux)"
 
     def imposed_flux(self, boundary: Boundary) -> float | None:
         return boundary.value
@@ -53,7 +56,7 @@ class FluxFace(BoundaryKind):
             return "sealed"
         return "fed" if boundary.value > 0.0 else "other"
 
-    def depletion_residual(
+    def face_residual(
         self, boundary: Boundary, concentration: float, inflow: float, k_face: float
     ) -> float:
         return inflow - boundary.value

@@ -27,6 +27,8 @@ class MassTransferFace(BoundaryKind):
         Parameter("partition", None, "positive", required=False),
     )
     sets_level = True
+    residual_label = "film"
+    wording = "film k = {coefficient}, bulk {bulk}"
 
     def fixes_level(self, boundary: Boundary) -> bool:
         return boundary.coefficient > 0.0
@@ -36,6 +38,9 @@ class MassTransferFace(BoundaryKind):
 
     def is_sealed(self, boundary: Boundary) -> bool:
         return boundary.coefficient == 0.0
+
+    def film_coefficient(self, boundary: Boundary) -> float | None:
+        return boundary.coefficient
 
     def fv_face(
         self, boundary: Boundary, side: str, k_face: float, area: float, gap: float,
@@ -76,7 +81,7 @@ class MassTransferFace(BoundaryKind):
             return "sealed"
         return "fed" if boundary.bulk >= 0.0 else "other"
 
-    def depletion_residual(
+    def face_residual(
         self, boundary: Boundary, concentration: float, inflow: float, k_face: float
     ) -> float:
         return inflow - boundary.coefficient * (boundary.bulk - concentration / k_face)

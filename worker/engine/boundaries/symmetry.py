@@ -14,9 +14,16 @@ class SymmetryFace(BoundaryKind):
     name = "symmetry"
     noun = "a symmetry boundary"
     schema_name = "SymmetryBoundary"
+    residual_label = "symmetry"
+    wording = "symmetry (no flux)"
 
     def is_sealed(self, boundary: Boundary) -> bool:
         return True
+
+    def face_residual(
+        self, boundary: Boundary, concentration: float, inflow: float, k_face: float
+    ) -> float:
+        return inflow
 
     def fv_face(
         self, boundary: Boundary, side: str, k_face: float, area: float, gap: float,

@@ -42,6 +42,11 @@ class ReactionKind:
     depletes: bool = False
     #: R(C) saturates (the kinetics of cell respiration): the oxygen screening ranges apply.
     saturable: bool = False
+    #: The maximum principle gives two comparison solutions bracketing the solution
+    #: (``worker.engine.mm_bracket``): the steady check verifies the solution lies between them.
+    has_bracket: bool = False
+    #: A few words for drawings and reports (``"first-order uptake"``); empty: nothing to say.
+    label: str = ""
 
     @property
     def reacts(self) -> bool:

@@ -25,6 +25,7 @@ class FirstOrder(ReactionKind):
     parameters = (Parameter("rate_constant", "rate_constant", "non_negative"),)
     consumption_parameter = "rate_constant"
     is_linear = True
+    label = "first-order uptake"
 
     def rate_at(self, reaction: Reaction, c: np.ndarray) -> np.ndarray:
         return reaction.rate_constant * c

@@ -29,6 +29,8 @@ class MichaelisMenten(ReactionKind):
     )
     consumption_parameter = "vmax"
     saturable = True
+    has_bracket = True
+    label = "saturable uptake"
 
     def rate_at(self, reaction: Reaction, c: np.ndarray) -> np.ndarray:
         return reaction.vmax * c / (reaction.km + c)

@@ -26,6 +26,7 @@ class ZeroOrder(ReactionKind):
     parameters = (Parameter("rate", "volumetric_rate", "non_negative"),)
     consumption_parameter = "rate"
     depletes = True
+    label = "zero-order uptake"
 
     def rate_at(self, reaction: Reaction, c: np.ndarray) -> np.ndarray:
         return np.where(c > 0.0, reaction.rate, 0.0)

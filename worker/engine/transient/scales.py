@@ -40,9 +40,9 @@ def is_membrane(problem: Problem) -> bool:
     inner, outer = problem.inner_boundary, problem.outer_boundary
     return (
         all(layer.initial == 0.0 for layer in problem.layers)
-        and all(layer.reaction.kind == "none" for layer in problem.layers)
-        and inner.kind == "concentration" and inner.value > 0.0
-        and outer.kind == "concentration" and outer.value == 0.0
+        and all(not layer.reaction.reacts for layer in problem.layers)
+        and inner.condition.holds_concentration and inner.value > 0.0
+        and outer.condition.is_perfect_sink(outer)
     )
 
 
@@ -53,9 +53,10 @@ def capacity_resistance_time(problem: Problem) -> float:
     capacity = sum(ly.partition * ly.thickness for ly in problem.layers)
     resistance = sum(ly.thickness / (ly.partition * ly.diffusivity) for ly in problem.layers)
     for boundary in (problem.inner_boundary, problem.outer_boundary):
-        if boundary.kind == "mass_transfer" and boundary.coefficient > 0.0:
-            resistance += 1.0 / boundary.coefficient
-    if all(b.kind in ("flux", "symmetry") or (b.kind == "mass_transfer" and b.coefficient <= 0)
+        h = boundary.condition.film_coefficient(boundary)
+        if h is not None and h > 0.0:
+            resistance += 1.0 / h
+    if all(not b.condition.fixes_level(b)
            for b in (problem.inner_boundary, problem.outer_boundary)):
         resistance = math.inf
         rates = [ly.reaction.linear_rate_constant or 0.0 for ly in problem.layers]

@@ -194,3 +194,33 @@ def test_level_fixing_and_sealing_follow_the_definitions():
     assert not BOUNDARIES["flux"].is_sealed(FACES["flux"])
     assert BOUNDARIES["concentration"].is_perfect_sink(Boundary("concentration", value=0.0))
     assert not BOUNDARIES["concentration"].is_perfect_sink(FACES["concentration"])
+
+
+@pytest.mark.parametrize("name", list(FACES))
+def test_face_residual_vanishes_on_the_condition_and_sees_it_broken_both_ways(name):
+    """The residual the steady check reports: zero on the condition, of either sign off it, in
+    concentration for the kind that holds the surface concentration, else in flux."""
+    boundary = FACES[name]
+    law = boundary.condition
+    c_surface, inflow = _satisfying_state(boundary, 0.9)
+    assert law.face_residual(boundary, c_surface, inflow, K_FACE) == pytest.approx(
+        0.0, abs=1e-18)
+    if law.holds_concentration:
+        broken = [(c_surface + 0.1, inflow), (c_surface - 0.1, inflow)]
+    else:
+        broken = [(c_surface, inflow + 1e-7), (c_surface, inflow - 1e-7)]
+    above, below = (law.face_residual(boundary, c, j, K_FACE) for c, j in broken)
+    assert above > 0.0 > below
+    assert [BOUNDARIES[n].holds_concentration for n in FACES] == [True, False, False, False]
+    assert law.residual_label
+
+
+def test_film_coefficient_is_the_mass_transfer_coefficient_and_only_there():
+    assert [BOUNDARIES[n].film_coefficient(FACES[n]) for n in FACES] == [None, None, 4e-6, None]
+
+
+def test_reaction_labels_and_brackets():
+    assert {n: REACTIONS[n].label for n in REACTIONS} == {
+        "none": "", "zero_order": "zero-order uptake", "first_order": "first-order uptake",
+        "michaelis_menten": "saturable uptake"}
+    assert [n for n in REACTIONS if REACTIONS[n].has_bracket] == ["michaelis_menten"]
