@@ -10,8 +10,6 @@ from __future__ import annotations
 import ast
 from pathlib import Path
 
-import pytest
-
 REPO_ROOT = Path(__file__).resolve().parents[2]
 PROJECT_PACKAGES = ("service", "worker", "schemas")
 
@@ -98,7 +96,6 @@ def test_every_allowed_boundary_exists():
         assert set(qualname.split(".")) <= names, (path, qualname)
 
 
-@pytest.mark.xfail(strict=False, reason="turned on by the lead after the consolidation merge")
 def test_no_function_local_import_of_a_project_module():
     found = [hit for path in _project_files()
              for hit in local_imports(path.read_text(encoding="utf-8"),

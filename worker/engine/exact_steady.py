@@ -474,14 +474,3 @@ def solve_exact(problem: Problem, *, sample_at: Sequence[np.ndarray] | None = No
     if not solution.success or min(minima, default=math.inf) >= 0.0:
         return solution
     return solve_depleted(problem)
-
-
-def michaelis_menten_bracket(problem: Problem) -> tuple[SteadySolution, SteadySolution] | None:
-    """(lower, upper) comparison solutions of a Michaelis-Menten case, or None.
-
-    See ``worker.engine.mm_bracket.michaelis_menten_bracket`` (Protter & Weinberger 1967;
-    Aris 1975); imported on call because that module builds on ``solve_exact``.
-    """
-    from worker.engine.mm_bracket import michaelis_menten_bracket as bracket
-
-    return bracket(problem)

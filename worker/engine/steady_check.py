@@ -23,7 +23,7 @@ from typing import Protocol
 
 import numpy as np
 
-from worker.engine import bvp_steady, convergence, exact_steady, fv_steady
+from worker.engine import bvp_steady, convergence, exact_steady, fv_steady, mm_bracket
 from worker.engine.limits import check_limit
 from worker.engine.model import Problem, SteadySolution
 from worker.engine.outcome import Outcome
@@ -544,7 +544,7 @@ def run_steady(problem: Problem) -> Outcome:
 
 def _bracket_check(outcome: Outcome, problem: Problem, fine: _Sampled,
                    c_scale: float) -> None:
-    bracket = exact_steady.michaelis_menten_bracket(problem)
+    bracket = mm_bracket.michaelis_menten_bracket(problem)
     if bracket is None:
         outcome.warnings.append(
             "Michaelis-Menten comparison bracket not applicable to these boundaries "
