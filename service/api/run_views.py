@@ -16,7 +16,7 @@ from service.api.bodies import (
 from service.api.context import services
 from service.api.declare import Raw, Reply, Returns, declare
 from service.auth import ENGINEER, READERS, REVIEWER, current_identity
-from service.report import render_report
+from service.report.html import render_report
 
 
 @declare(api, "post", "/runs", summary="Queue a check of a stored or a new case",

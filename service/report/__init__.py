@@ -7,25 +7,7 @@
   ``plot_common``): the SVG figures; :mod:`service.report.numbers`: numbers and units as people
   read them.
 
-The browser pages (:mod:`service.ui`) import this package, never the reverse. The HTML names
-below are loaded on first use, so that the text report imports on the base install, which has
-neither Flask nor matplotlib.
+The browser pages (:mod:`service.ui`) import this package, never the reverse. The package
+itself imports nothing, so that the text report imports on the base install, which has neither
+Flask nor matplotlib: import the HTML names from :mod:`service.report.html`.
 """
-
-from __future__ import annotations
-
-import importlib
-from typing import Any
-
-#: Names of :mod:`service.report.html` offered here, loaded when first asked for.
-HTML_NAMES = frozenset({"DEFAULT_CAUTION", "QUANTITY_WORDS", "render_report", "report_context",
-                        "stylesheet_text"})
-
-
-def __getattr__(name: str) -> Any:
-    if name in HTML_NAMES:
-        return getattr(importlib.import_module("service.report.html"), name)
-    raise AttributeError(f"module 'service.report' has no attribute {name!r}")
-
-
-__all__ = sorted(HTML_NAMES)

@@ -23,7 +23,7 @@ import pytest
 from flask import Flask
 
 import worker.engine
-from service.report import render_report, report_context
+from service.report.html import render_report, report_context
 from service.report.layer_stack import layer_stack_svg
 
 SVG_NS = "{http://www.w3.org/2000/svg}"
@@ -277,4 +277,4 @@ def test_the_text_report_loads_neither_flask_nor_matplotlib():
     loaded = _modules_loaded_by("import service.report.text")
     assert "service.report.text" in loaded
     assert not {"flask", "matplotlib", "sqlalchemy"} & loaded
-    assert "flask" in _modules_loaded_by("from service.report import render_report")
+    assert "flask" in _modules_loaded_by("from service.report.html import render_report")
