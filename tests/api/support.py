@@ -58,8 +58,9 @@ def bearer(token: str) -> dict[str, str]:
     return {"Authorization": f"Bearer {token}"}
 
 
-def wait_for_run(client: Any, token: str, run_id: str, timeout: float = 30.0) -> dict[str, Any]:
-    """Poll GET /v1/runs/{id} until the run finishes (embedded executor)."""
+def wait_for_run(client: Any, token: str, run_id: str, timeout: float = 30.0,
+                 interval: float = 0.02) -> dict[str, Any]:
+    """Poll GET /v1/runs/{id} every ``interval`` s until the run is succeeded or failed."""
     deadline = time.monotonic() + timeout
     while True:
         response = client.get(f"/v1/runs/{run_id}", headers=bearer(token))
@@ -69,7 +70,7 @@ def wait_for_run(client: Any, token: str, run_id: str, timeout: float = 30.0) ->
             return record
         if time.monotonic() > deadline:
             raise AssertionError(f"run {run_id} still {record['status']} after {timeout} s")
-        time.sleep(0.02)
+        time.sleep(interval)
 
 
 def count_rows(store: Any) -> dict[str, int]:

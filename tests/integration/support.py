@@ -2,10 +2,9 @@
 
 from __future__ import annotations
 
-import time
 from typing import Any
 
-from tests.api.support import bearer
+from tests.api.support import wait_for_run
 from tests.integration.real_services import PostgresSchema, RedisLease
 
 ROLE_NAMES = {"engineer": "ivo.integration-engineer", "reviewer": "rhea.integration-reviewer",
@@ -33,14 +32,5 @@ def create_tokens(store: Any) -> dict[str, str]:
 
 
 def wait_finished(client: Any, token: str, run_id: str, timeout: float = 60.0) -> dict:
-    """Poll ``GET /v1/runs/{run_id}`` until the run is succeeded or failed."""
-    deadline = time.monotonic() + timeout
-    while True:
-        response = client.get(f"/v1/runs/{run_id}", headers=bearer(token))
-        assert response.status_code == 200, response.get_json()
-        record = response.get_json()
-        if record["status"] in ("succeeded", "failed"):
-            return record
-        if time.monotonic() > deadline:
-            raise AssertionError(f"run {run_id} still {record['status']} after {timeout} s")
-        time.sleep(0.05)
+    """Poll ``GET /v1/runs/{run_id}`` until the run is succeeded or failed (worker processes)."""
+    return wait_for_run(client, token, run_id, timeout=timeout, interval=0.05)
