@@ -15,9 +15,11 @@ Both are SQLAlchemy; the PostgreSQL statements are Core ``WITH`` statements buil
 import (data-modifying CTEs: the change and its events in one self-committing statement, one
 round trip), their event payloads built by the server's ``json_build_object`` from the values
 only the ``UPDATE`` knows (the attempt count). Events go into the audit outbox; the store
-chains them (:mod:`service.store.audit_chain`), on PostgreSQL right after the statement, except
-after a claim: its ``run.started`` waits during the solve and is chained with the outcome's
-``run.finished`` (or by any chaining before that), one chaining per run. The outcome
+chains them (:mod:`service.store.audit_chain`), on PostgreSQL with the run's outcome: the
+events of ``POST /v1/runs`` (``case.stored``, ``run.queued``) and of the claim
+(``run.started``) wait in the outbox and are chained with the outcome's ``run.finished`` (or by
+any chaining before that: a reader of the log, another writer, the upkeep sweep), one chaining
+per run. The outcome
 statement also returns the chain head and the outbox it saw (with its own event), so that
 chaining costs one more statement (two when another chainer moved the head meanwhile).
 """
@@ -376,11 +378,14 @@ class PostgresqlRunWriter(SessionRunWriter):
     def queue_new_case_run(self, document: dict[str, Any], fields: dict[str, Any], actor: str
                            ) -> tuple[str, str]:
         case_id, run_id = str(uuid.uuid4()), str(uuid.uuid4())
+        # Its case.stored and run.queued wait in the outbox, as a claim's run.started does:
+        # the run's outcome (or any chaining before it) puts them on the chain, so the request
+        # path makes one round trip and never waits on the chain head.
         row = self._execute_then_chain(self._QUEUE_NEW_CASE_RUN, {
             "case_id": case_id, "run_id": run_id, "sha256": fields["sha256"],
             "document": document, "title": fields["title"], "tags": fields["tags"],
             "tags_json": fields["tags"], "now": utc_now(), "actor": actor,
-            "case_payload": fields})
+            "case_payload": fields}, chain=False)
         if row is None:  # a concurrent writer stored the same content meanwhile
             return super().queue_new_case_run(document, fields, actor)
         return run_id, row.case_id

@@ -164,8 +164,9 @@ def test_both_run_writers_write_the_same_events_for_the_same_operations(
 
 def test_the_outcome_chains_the_outbox_it_read_and_retries_when_the_head_moved(
         live_store, controlled_engine, monkeypatch):  # noqa: F811
-    """The outcome statement returns the head and the outbox (a leftover and its own event)
-    for the chaining; when another chainer moved the head meanwhile, it reads again."""
+    """The outcome statement returns the head and the outbox (the run's queued events, a
+    leftover, the claim's event and its own) for the chaining; when another chainer moved the
+    head meanwhile, it reads again."""
     from sqlalchemy import text
 
     from service.store import run_writer
@@ -185,7 +186,8 @@ def test_the_outcome_chains_the_outbox_it_read_and_retries_when_the_head_moved(
 
     monkeypatch.setattr(run_writer, "try_chaining", head_moved_once)
     assert execute_run(run_id, live_store, actor="w") == "succeeded"
-    assert attempts == [["token.created", "run.started", "run.finished"]]
+    assert attempts == [["case.stored", "run.queued", "token.created", "run.started",
+                         "run.finished"]]
     assert live_store.read_scalar(text("SELECT count(*) FROM audit_pending")) == 0
     assert [kind for kind, _actor, _payload in _events(live_store, run_id)] == [
         "run.queued", "run.started", "run.finished"]
