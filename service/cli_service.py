@@ -2,6 +2,9 @@
 
 from __future__ import annotations
 
+import signal
+from typing import Any
+
 import click
 from werkzeug.serving import make_server
 
@@ -17,7 +20,9 @@ from service.store.migrate import upgrade
               help="Port to listen on.")
 def serve(host: str, port: int) -> None:
     """Run the HTTP service (embedded: SQLite, in-process runs; with a broker: queue to
-    workers)."""
+    workers). Ctrl-C (SIGINT) or SIGTERM (a service manager's stop) ends it cleanly: queued
+    embedded runs finish and the store is closed."""
+    signal.signal(signal.SIGTERM, _stop_on_signal)
     app = create_app()
     services = app.extensions["fluxproof"]
     server = make_server(host, port, app, threaded=True)
@@ -25,12 +30,17 @@ def serve(host: str, port: int) -> None:
     click.echo(f"fluxproof serving on http://{actual_host}:{actual_port}  "
                f"(store: {services.store.dialect}, runs: {services.dispatcher.mode})")
     try:
-        server.serve_forever()
+        server.serve_forever()  # returns on either signal: werkzeug catches the KeyboardInterrupt
     except KeyboardInterrupt:
-        click.echo("stopping")
+        pass
     finally:
+        click.echo("stopping")
         server.server_close()
         shutdown_app(app)
+
+
+def _stop_on_signal(signum: int, frame: Any) -> None:
+    raise KeyboardInterrupt(f"signal {signum}")
 
 
 @click.group("db")

@@ -159,7 +159,8 @@ def test_demo_exits_1_when_a_run_fails(tmp_path, data_dir, controlled_engine):  
 
 
 def test_serve_answers_http_until_stopped(tmp_path):
-    """`fluxproof serve --port 0` in a real process: it prints its URL and answers /v1/health."""
+    """`fluxproof serve --port 0` in a real process: it prints its URL, answers /v1/health and
+    stops cleanly on SIGTERM."""
     import os
     import signal
     import subprocess
@@ -181,6 +182,9 @@ def test_serve_answers_http_until_stopped(tmp_path):
         assert body["service"] == "ok" and body["broker"]["mode"] == "embedded"
         assert requests.get(f"{url}/v1/cases", timeout=10).status_code == 401
     finally:
-        process.send_signal(signal.SIGINT)
-        process.communicate(timeout=20)
+        # SIGTERM, as a service manager stops it (SIGINT may be ignored in a background job).
+        process.send_signal(signal.SIGTERM)
+        out, _ = process.communicate(timeout=20)
+    assert "stopping" in out, "SIGTERM should end serve through its clean shutdown"
+    assert process.returncode == 0
     assert (tmp_path / "served" / "fluxproof.sqlite3").is_file()
