@@ -374,6 +374,20 @@ def _cross_check_fluxes(outcome: Outcome, problem: Problem, reference: SteadySol
             "relative to the throughput scale")
 
 
+def _cross_check_profiles(outcome: Outcome, problem: Problem, samples: dict[int, _Sampled],
+                          a: SteadySolution, b: SteadySolution, c_scale: float,
+                          label: str) -> None:
+    """The profile cross-check of ``a`` against ``b``, failed with the reason when either
+    method produced no solution to compare."""
+    unsolved = [s for s in (a, b) if id(s) not in samples]
+    if unsolved:
+        outcome.add_check("cross_check.profile", None, None, False,
+                          f"{label}: nothing to compare, "
+                          + "; ".join(f"{s.method} failed: {s.message}" for s in unsolved))
+        return
+    _cross_check_profile(outcome, problem, samples[id(a)], samples[id(b)], c_scale, label)
+
+
 def _cross_check_profile(outcome: Outcome, problem: Problem, a: _Sampled,
                          b: _Sampled, c_scale: float, label: str) -> None:
     worst = 0.0
@@ -485,8 +499,8 @@ def run_steady(problem: Problem) -> Outcome:
     if exact is not None:
         _cross_check_fluxes(outcome, problem, exact, numerical_values, t_scale,
                             "finite volumes (extrapolated) vs exact")
-        _cross_check_profile(outcome, problem, samples[id(fine)], samples[id(exact)], c_scale,
-                             "finite volumes (fine grid) vs exact")
+        _cross_check_profiles(outcome, problem, samples, fine, exact, c_scale,
+                              "finite volumes (fine grid) vs exact")
     elif independent is not None:
         if not independent.success:
             outcome.add_check("cross_check.independent", None, None, False,
@@ -494,9 +508,8 @@ def run_steady(problem: Problem) -> Outcome:
         else:
             _cross_check_fluxes(outcome, problem, independent, numerical_values, t_scale,
                                 "finite volumes (extrapolated) vs solve_bvp")
-            _cross_check_profile(outcome, problem, samples[id(fine)], samples[id(independent)],
-                                 c_scale,
-                                 "finite volumes (fine grid) vs solve_bvp")
+            _cross_check_profiles(outcome, problem, samples, fine, independent, c_scale,
+                                  "finite volumes (fine grid) vs solve_bvp")
     if exact is not None and exact.depletion_front is not None:
         front = fine.depletion_front
         value = (abs(front - exact.depletion_front) / problem.total_thickness
