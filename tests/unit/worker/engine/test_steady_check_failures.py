@@ -1,11 +1,13 @@
-"""A steady check whose finite-volume solve fails ends with a record that says why.
+"""Steady checks that must fail when an error is injected into a solver's result.
 
-The case is a plain reaction-free slab (Fick's law, linear profile: Crank 1975, eq. 4.1); the
-failure is injected into the fine grid of the three-grid study, the way a solver that did not
-converge reports itself (``failed_steady_solution``).
+The case is a plain reaction-free slab (Fick's law, linear profile: Crank 1975, eq. 4.1). A
+failed fine grid is injected the way a solver that did not converge reports itself
+(``failed_steady_solution``); a wrong flux by scaling the exact solution's outer flux.
 """
 
 from __future__ import annotations
+
+import dataclasses
 
 import pytest
 
@@ -54,3 +56,20 @@ def test_the_same_case_passes_when_nothing_fails():
     assert "numerical.converged" not in checks
     assert checks["cross_check.profile"].passed
     assert all(c.passed for c in outcome.checks)
+
+
+@pytest.mark.parametrize("factor", [0.9, 1.1])
+def test_the_flux_cross_check_fails_whichever_way_a_flux_is_wrong(monkeypatch, factor):
+    """An error injected into the exact solution's outer flux, too small or too large by 10 %,
+    fails ``cross_check.flux_outer``: the check measures a distance, not a signed difference."""
+    solve_exact = steady_check.exact_steady.solve_exact
+
+    def with_wrong_outer_flux(problem, *args, **kwargs):
+        exact = solve_exact(problem, *args, **kwargs)
+        return dataclasses.replace(exact, flux_outer=factor * exact.flux_outer)
+
+    monkeypatch.setattr(steady_check.exact_steady, "solve_exact", with_wrong_outer_flux)
+    checks = {c.name: c for c in steady_check.run_steady(_slab()).checks}
+    assert not checks["cross_check.flux_outer"].passed
+    assert checks["cross_check.flux_outer"].value > checks["cross_check.flux_outer"].limit
+    assert checks["cross_check.flux_inner"].passed
