@@ -15,7 +15,7 @@ import sys
 from importlib import resources
 from pathlib import Path
 
-REPO_ROOT = Path(__file__).resolve().parents[2]
+REPO_ROOT = Path(__file__).resolve().parents[3]
 DEMO_CASE = resources.files("service") / "demo_cases" / "04-arterial-wall-uptake.json"
 
 #: Top-level modules that only the ``service`` extra brings (and what they pull in).
