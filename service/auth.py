@@ -16,7 +16,6 @@ from service.errors import Forbidden, Unauthorized
 from service.tokens import Identity, identify
 
 ENGINEER = frozenset({"engineer"})
-REVIEWER = frozenset({"reviewer"})
 ADMIN = frozenset({"admin"})
 AUDITORS = frozenset({"auditor", "admin"})
 READERS = frozenset({"engineer", "reviewer", "auditor", "admin"})

@@ -176,15 +176,14 @@ def _versions(record: dict[str, Any] | None) -> dict[str, Any]:
     return {key: provenance.get(key) for key in VERSION_KEYS if key in provenance}
 
 
-def _tolerance(document: dict[str, Any]) -> float:
+def drift_tolerance(document: dict[str, Any]) -> float:
+    """The relative change beyond which a figure counts as drifted: the case's own
+    ``tolerances.cross_check`` when it sets a positive one, else ``DEFAULT_DRIFT_TOLERANCE``."""
     value = (document.get("tolerances") or {}).get("cross_check")
     if isinstance(value, (int, float)) and not isinstance(value, bool) and math.isfinite(value) \
             and value > 0:
         return float(value)
     return DEFAULT_DRIFT_TOLERANCE
-
-
-drift_tolerance = _tolerance  # the public name: the relative drift tolerance of a case document
 
 
 def compare_quantities(baseline: dict[str, Any] | None, now: dict[str, Any] | None,
@@ -250,7 +249,7 @@ def compute_drift(session: Session, batch_id: str) -> list[dict[str, Any]]:
     drifted = []
     for run_id, case_id, record, document, baseline_id, baseline_record in \
             _runs_with_baselines(session, batch_id):
-        moved = compare_quantities(baseline_record, record, _tolerance(document))
+        moved = compare_quantities(baseline_record, record, drift_tolerance(document))
         if moved:
             drifted.append({"case_id": case_id, "run_id": run_id,
                             "baseline_run_id": baseline_id, "quantities": moved,

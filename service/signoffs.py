@@ -26,8 +26,8 @@ from service.store import Store
 from service.store.models import Run, Signoff, utc_now
 from service.tokens import Identity
 
-#: Roles whose holders may sign a record off (the role matrix grants the sign-off endpoint to
-#: the same roles).
+#: Roles whose holders may sign a record off; the sign-off endpoint is declared with these
+#: roles, so the role matrix grants it to exactly them.
 SIGNOFF_ROLES = frozenset({"reviewer"})
 
 

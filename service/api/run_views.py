@@ -15,8 +15,9 @@ from service.api.bodies import (
 )
 from service.api.context import services
 from service.api.declare import Raw, Reply, Returns, declare
-from service.auth import ENGINEER, READERS, REVIEWER, current_identity
+from service.auth import ENGINEER, READERS, current_identity
 from service.report.html import render_report
+from service.signoffs import SIGNOFF_ROLES
 
 
 @declare(api, "post", "/runs", summary="Queue a check of a stored or a new case",
@@ -47,7 +48,7 @@ def get_run_report(run_id: str):
 
 
 @declare(api, "post", "/runs/<run_id>/signoffs",
-         summary="Sign off a succeeded run (four-eyes: never its submitter)", roles=REVIEWER,
+         summary="Sign off a succeeded run (four-eyes: never its submitter)", roles=SIGNOFF_ROLES,
          request=SignoffRequestSchema, request_name="sign-off",
          responses={201: Returns("Recorded; the record is now sealed", SignoffCreatedSchema)},
          problems={403: "The token's role may not do this, or four-eyes: the reviewer "

@@ -5,8 +5,8 @@ store's (:mod:`service.store.run_writer`); closing a batch after its last run is
 :mod:`service.batches`'."""
 
 from service.runs.execution import DEFAULT_MAX_ATTEMPTS, execute_run, failure_reason
-from service.runs.finite import non_finite_paths, non_finite_paths_of_record
-from service.runs.queueing import create_run, pending_run_ids, queue_run_in, queue_runs_in
+from service.runs.finite import non_finite_paths_of_record
+from service.runs.queueing import create_run, pending_run_ids
 from service.runs.records import (
     get_record,
     get_run_and_case,
@@ -14,9 +14,7 @@ from service.runs.records import (
     run_summary,
     signoff_to_dict,
 )
-from service.store.models import FINISHED_STATES, UNFINISHED_STATES
 
-__all__ = ["DEFAULT_MAX_ATTEMPTS", "FINISHED_STATES", "UNFINISHED_STATES", "create_run",
-           "execute_run", "failure_reason", "get_record", "get_run_and_case",
-           "non_finite_paths", "non_finite_paths_of_record", "pending_run_ids", "queue_run_in",
-           "queue_runs_in", "record_of", "run_summary", "signoff_to_dict"]
+__all__ = ["DEFAULT_MAX_ATTEMPTS", "create_run", "execute_run", "failure_reason", "get_record",
+           "get_run_and_case", "non_finite_paths_of_record", "pending_run_ids", "record_of",
+           "run_summary", "signoff_to_dict"]

@@ -5,28 +5,12 @@ from __future__ import annotations
 from typing import Any
 
 from sqlalchemy import select
-from sqlalchemy.orm import Session
 
 from service.case_intake import stored_case_fields, validate_document
 from service.errors import ValidationFailed
 from service.store import Store
 from service.store.models import UNFINISHED_STATES, Case, Run, RunStatus
 from service.store.run_writer import insert_queued_runs
-
-
-def queue_run_in(session: Session, case: Any, actor: str, batch_id: str | None = None) -> str:
-    """Add a queued run of ``case`` (anything with ``id`` and ``sha256``: a stored case) in the
-    caller's transaction and return its id (dispatch it after the commit)."""
-    (run_id,) = insert_queued_runs(session, [(case.id, case.sha256)], actor, batch_id)
-    return run_id
-
-
-def queue_runs_in(session: Session, cases: Any, actor: str, batch_id: str | None = None
-                  ) -> list[str]:
-    """One queued run per ``(case_id, case_sha256)`` pair in the caller's transaction, with one
-    ``run.queued`` event each, in the order of ``cases``; their ids (dispatch them after the
-    commit)."""
-    return insert_queued_runs(session, cases, actor, batch_id)
 
 
 def create_run(store: Store, *, actor: str, case_id: str | None = None,
@@ -51,7 +35,7 @@ def create_run(store: Store, *, actor: str, case_id: str | None = None,
             raise ValidationFailed("The case_id names no stored case.",
                                    errors=[{"path": "case_id", "message":
                                             f"no stored case with id {case_id!r}"}])
-        run_id = queue_run_in(session, case, actor)
+        run_id = insert_queued_runs(session, [(case.id, case.sha256)], actor)[0]
         return {"run_id": run_id, "status": RunStatus.QUEUED.value, "case_id": case.id}
 
 

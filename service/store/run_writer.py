@@ -361,19 +361,15 @@ def _pg_queue_new_case_run() -> Any:
 
 class PostgresqlRunWriter(SessionRunWriter):
     """The hot paths as single self-committing ``WITH`` statements on an autocommit
-    connection, their events chained right after (see the module notes)."""
+    connection; their events are chained with the run's outcome (see the module notes)."""
 
     _CLAIM = _pg_claim()
     _STORE_OUTCOME = _pg_store_outcome()
     _QUEUE_NEW_CASE_RUN = _pg_queue_new_case_run()
 
-    def _execute_then_chain(self, statement: Any, params: dict[str, Any], *,
-                            chain: bool = True) -> Any:
+    def _execute_one(self, statement: Any, params: dict[str, Any]) -> Any:
         with self._store.autocommit() as connection:
-            row = connection.execute(statement, params).one_or_none()
-        if row is not None and chain:
-            self._store.chain_audit_after_commit()
-        return row
+            return connection.execute(statement, params).one_or_none()
 
     def queue_new_case_run(self, document: dict[str, Any], fields: dict[str, Any], actor: str
                            ) -> tuple[str, str]:
@@ -381,11 +377,11 @@ class PostgresqlRunWriter(SessionRunWriter):
         # Its case.stored and run.queued wait in the outbox, as a claim's run.started does:
         # the run's outcome (or any chaining before it) puts them on the chain, so the request
         # path makes one round trip and never waits on the chain head.
-        row = self._execute_then_chain(self._QUEUE_NEW_CASE_RUN, {
+        row = self._execute_one(self._QUEUE_NEW_CASE_RUN, {
             "case_id": case_id, "run_id": run_id, "sha256": fields["sha256"],
             "document": document, "title": fields["title"], "tags": fields["tags"],
             "tags_json": fields["tags"], "now": utc_now(), "actor": actor,
-            "case_payload": fields}, chain=False)
+            "case_payload": fields})
         if row is None:  # a concurrent writer stored the same content meanwhile
             return super().queue_new_case_run(document, fields, actor)
         return run_id, row.case_id
@@ -393,9 +389,9 @@ class PostgresqlRunWriter(SessionRunWriter):
     def claim(self, run_id: str, max_attempts: int, actor: str) -> Claim | None:
         # The run.started event waits in the outbox during the solve: the outcome's chaining
         # (or any other) puts it on the chain, one chaining per run instead of two.
-        row = self._execute_then_chain(self._CLAIM, {
+        row = self._execute_one(self._CLAIM, {
             "run_id": run_id, "max_attempts": max_attempts, "now": utc_now(),
-            "actor": actor}, chain=False)
+            "actor": actor})
         return None if row is None else Claim(row.attempts, row.case_id, dict(row.document))
 
     def store_outcome(self, run_id: str, *, status: str, record: dict[str, Any] | None,
