@@ -151,11 +151,15 @@ def test_boundary_value_residual_vanishes_exactly_on_the_condition(name, side):
     on = law.bvp_residual(boundary, c / c_ref, flux / j_ref, inflow / j_ref, K_FACE, c_ref,
                           j_ref)
     assert on == pytest.approx(0.0, abs=1e-12)
-    off = law.bvp_residual(boundary, c / c_ref, flux / j_ref + 0.3 * (1 if side == "inner" else -1),
-                           inflow / j_ref + 0.3, K_FACE, c_ref, j_ref)
-    shifted = law.bvp_residual(boundary, c / c_ref + 0.2, flux / j_ref, inflow / j_ref, K_FACE,
-                               c_ref, j_ref)
-    assert abs(off) > 1e-3 or abs(shifted) > 1e-3  # the residual sees a broken condition
+    outward = 1 if side == "inner" else -1
+    for sign in (1, -1):  # the residual sees the condition broken either way, in what it holds
+        if law.holds_concentration:
+            broken = law.bvp_residual(boundary, c / c_ref + sign * 0.2, flux / j_ref,
+                                      inflow / j_ref, K_FACE, c_ref, j_ref)
+        else:
+            broken = law.bvp_residual(boundary, c / c_ref, flux / j_ref + sign * 0.3 * outward,
+                                      inflow / j_ref + sign * 0.3, K_FACE, c_ref, j_ref)
+        assert abs(broken) > 1e-3
 
 
 @pytest.mark.parametrize("name", list(FACES))
@@ -182,6 +186,14 @@ def test_eigen_row_holds_on_the_condition(name):
     derivative = inflow / diffusivity  # inflow at the outer face = -J = D f'
     alpha, beta, gamma = boundary.condition.eigen_row(boundary, 1.0, diffusivity, K_FACE)
     assert alpha * c_surface + beta * derivative == pytest.approx(gamma, rel=1e-12, abs=1e-15)
+    assert (alpha, beta) != (0.0, 0.0)  # a row of zeros would hold for any state
+    for sign in (1, -1):  # and a state off the condition, either way, breaks it
+        if boundary.condition.holds_concentration:
+            broken = alpha * (c_surface + sign * 0.1) + beta * derivative
+        else:
+            step = sign * 0.1 * max(abs(derivative), 1.0)
+            broken = alpha * c_surface + beta * (derivative + step)
+        assert broken != pytest.approx(gamma, rel=1e-6, abs=1e-12)
 
 
 def test_level_fixing_and_sealing_follow_the_definitions():
