@@ -22,7 +22,7 @@ from service.celery_client import make_celery_app
 from service.errors import ServiceUnavailable
 from service.runs import execute_run
 from service.store import Store
-from service.task_names import EXECUTE_RUN_TASK
+from service.task_names import send_execute_run
 
 logger = logging.getLogger(__name__)
 
@@ -104,11 +104,7 @@ class CeleryDispatcher:
         try:
             with self.celery.producer_or_acquire() as producer:
                 for run_id in pending:
-                    self.celery.send_task(EXECUTE_RUN_TASK, args=[run_id], retry=True,
-                                          retry_policy={"max_retries": 2,
-                                                        "interval_start": 0.2,
-                                                        "interval_step": 0.5},
-                                          producer=producer)
+                    send_execute_run(self.celery, run_id, producer)
                     sent += 1
         except Exception as exc:
             unsent = pending[sent:]

@@ -37,7 +37,7 @@ from sqlalchemy import and_, or_, select
 
 from service.store import Store
 from service.store.models import UNFINISHED_STATES, Run, RunStatus, utc_now
-from service.task_names import EXECUTE_RUN_TASK
+from service.task_names import EXECUTE_RUN_TASK, RUN_QUEUE, send_execute_run
 
 logger = logging.getLogger(__name__)
 
@@ -150,7 +150,7 @@ def run_id_of_message(raw: bytes | str) -> str | None:
         return None
 
 
-def queued_run_ids(celery_app: Any, queues: Iterable[str] = ("celery",)) -> set[str]:
+def queued_run_ids(celery_app: Any, queues: Iterable[str] = (RUN_QUEUE,)) -> set[str]:
     """Run ids in the broker's queues and in its unacknowledged set (Redis transport)."""
     found: set[str] = set()
     try:
@@ -212,7 +212,7 @@ def sweep_lock(celery_app: Any, seconds: int = LOCK_SECONDS) -> Iterator[bool]:
 
 
 def recover_lost_runs(store: Store, celery_app: Any, *, older_than_s: float = DEFAULT_AFTER_S,
-                      queues: Iterable[str] = ("celery",),
+                      queues: Iterable[str] = (RUN_QUEUE,),
                       now: datetime | None = None) -> RecoveryReport:
     """Send again every unfinished run older than ``older_than_s`` that neither the broker nor
     a live worker knows about. Raises :class:`BrokerUnreadable` when the broker cannot be read
@@ -241,9 +241,7 @@ def _sweep(store: Store, celery_app: Any, *, older_than_s: float, queues: Iterab
     lost = still_unfinished(store, lost)
     for index, run_id in enumerate(lost):
         try:
-            celery_app.send_task(EXECUTE_RUN_TASK, args=[run_id], retry=True,
-                                 retry_policy={"max_retries": 2, "interval_start": 0.2,
-                                               "interval_step": 0.5})
+            send_execute_run(celery_app, run_id)
         except Exception as exc:  # noqa: BLE001 - the rest waits for the next sweep
             report.unsent = lost[index:]
             logger.warning("recovery: the broker refused a send (%s); %d runs wait for the "

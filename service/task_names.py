@@ -7,6 +7,8 @@ The service publishes messages naming these tasks (:mod:`service.celery_client`,
 
 from __future__ import annotations
 
+from typing import Any
+
 #: Execute one run (argument: the run id); see :func:`service.runs.execute_run`.
 EXECUTE_RUN_TASK = "fluxproof.execute_run"
 #: Start a batch re-verifying every stored case (nightly, from beat).
@@ -17,3 +19,13 @@ RECOVER_LOST_RUNS_TASK = "fluxproof.recover_lost_runs"
 #: The queue of runs, and the queue of the upkeep sweep (which every worker also consumes).
 RUN_QUEUE = "celery"
 UPKEEP_QUEUE = "fluxproof.upkeep"
+
+#: How hard a publisher retries one message before the broker counts as unavailable.
+SEND_RETRY_POLICY = {"max_retries": 2, "interval_start": 0.2, "interval_step": 0.5}
+
+
+def send_execute_run(celery_app: Any, run_id: str, producer: Any = None) -> None:
+    """Publish one :data:`EXECUTE_RUN_TASK` message for ``run_id`` (through ``producer`` when
+    the caller holds one for many messages)."""
+    celery_app.send_task(EXECUTE_RUN_TASK, args=[run_id], retry=True,
+                         retry_policy=SEND_RETRY_POLICY, producer=producer)

@@ -55,7 +55,11 @@ def execute_run(run_id: str) -> str:
 def reverify_all() -> str:
     """Nightly: start a batch re-verifying every stored case; returns the batch id."""
     batch = start_batch(default_store(), actor="nightly", all_cases=True)
-    CeleryDispatcher(settings_from_env()).send(batch["run_ids"])
+    dispatcher = CeleryDispatcher(_SETTINGS)
+    try:
+        dispatcher.send(batch["run_ids"])
+    finally:
+        dispatcher.shutdown()  # its client app and broker pool, made for this one batch
     return batch["batch_id"]
 
 

@@ -147,12 +147,16 @@ def test_nightly_task_starts_a_batch_of_every_case(store, monkeypatch, controlle
     monkeypatch.setattr(service.dispatch.CeleryDispatcher, "__init__", lambda self, s: None)
     monkeypatch.setattr(service.dispatch.CeleryDispatcher, "send",
                         lambda self, ids: sent.extend(ids))
+    closed = []
+    monkeypatch.setattr(service.dispatch.CeleryDispatcher, "shutdown",
+                        lambda self: closed.append(True))
     create_run(store, actor="eng", document=make_case())
     create_run(store, actor="eng", document=make_case(title="second"))
     batch_id = worker.tasks.reverify_all()
     batch = get_batch(store, batch_id)
     assert batch["selector"] == {"all": True} and batch["created_by"] == "nightly"
     assert sorted(sent) == sorted(batch["run_ids"]) and len(sent) == 2
+    assert closed == [True]  # the client app made for this batch is closed again
 
 
 def test_non_finite_engine_output_is_a_failed_run_not_a_broken_row(store, controlled_engine):  # noqa: F811

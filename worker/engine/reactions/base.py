@@ -18,10 +18,6 @@ from worker.engine.parameters import Parameter
 if TYPE_CHECKING:
     from worker.engine.model import Reaction
 
-#: Modes of the regularised rate of kinds that stop at C = 0 (see ``regularised_rate``).
-DEPLETION_MODES = ("smoothed", "live", "exact")
-
-
 class ReactionKind:
     """Base of the reaction kinds; one subclass (and one instance) per kind."""
 
