@@ -131,6 +131,14 @@ class QuantitySchema(OpenSchema):
 
     value = NumberOrList(required=True, allow_none=True)
     unit = fields.String(required=True)
+    uncertainty = NumberOrList(
+        allow_none=True,
+        metadata={"description": "numerical uncertainty of the value, same unit: the larger of "
+                  "the disagreement of the routes that produced it and the grid band where "
+                  "the value is numerical"})
+    routes = fields.List(fields.String(), metadata={
+        "description": "the independent routes (methods, or readings of the case) compared"})
+    verified_by = fields.String(metadata={"description": "the check that compared the routes"})
 
 
 class AxisUnitsSchema(OpenSchema):

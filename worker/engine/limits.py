@@ -20,6 +20,7 @@ from worker.engine.model import Problem
 STEADY_LIMITS: Mapping[str, float] = {
     "cross_check": 1e-4,  # flux and profile agreement between independent methods
     "cross_check.depletion_front": 2e-3,  # front position difference / total thickness
+    "cross_check.dimensionless": 1e-12,  # Thiele/Biot vs their definitions: arithmetic only
     "mass_balance": 1e-6,  # (in - out - consumed) / throughput
     "boundary_residual": 1e-6,  # face condition residual / its scale
     "interface_residual": 1e-6,  # C/K jump and flux jump at interfaces / their scale

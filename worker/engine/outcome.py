@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import math
 from dataclasses import dataclass, field
 
 
@@ -39,8 +40,10 @@ def _finite_or_none(value: float | None) -> float | None:
 class Outcome:
     """What the engine found for one solved case, steady or transient.
 
-    ``quantities``: name -> {"value", "unit"}; ``series``: name -> series (profile, probes, and
-    for a transient case the release series); ``methods``: list of {role, name, reference};
+    ``quantities``: name -> {"value", "unit"} and, where the run verified the figure by two
+    routes, ``uncertainty`` (same unit), ``routes`` and ``verified_by``; ``series``: name ->
+    series (profile, probes, and for a transient case the release series); ``methods``: list
+    of {role, name, reference};
     ``checks``: list of :class:`Check`; ``warnings``: list of str. These make the record.
     ``diagnostics``: solver facts (meshes, steps, series terms, event times per method) that
     the record does not carry.
@@ -57,8 +60,21 @@ class Outcome:
         """The check called ``name``, or None."""
         return next((c for c in self.checks if c.name == name), None)
 
-    def add_quantity(self, name: str, value, unit: str) -> None:
-        self.quantities[name] = {"value": value, "unit": unit}
+    def add_quantity(self, name: str, value, unit: str, *, uncertainty=None,
+                     routes: list[str] | None = None, verified_by: str | None = None) -> None:
+        """Record a figure. ``uncertainty`` is its numerical uncertainty in the same unit (a
+        number, or a list matching a list value); ``routes`` names the independent routes that
+        produced it and ``verified_by`` the check that compared them."""
+        entry: dict = {"value": value, "unit": unit}
+        if isinstance(uncertainty, float) and not math.isfinite(uncertainty):
+            uncertainty = None  # no usable band: said by the check that compared the routes
+        if uncertainty is not None:
+            entry["uncertainty"] = uncertainty
+        if routes:
+            entry["routes"] = list(routes)
+        if verified_by is not None:
+            entry["verified_by"] = verified_by
+        self.quantities[name] = entry
 
     def add_check(
         self, name: str, value: float | None, limit: float | None, passed: bool, detail: str
