@@ -18,7 +18,8 @@ from worker.engine.transient.solve import numerical_time_lag
 #: Points per layer of the reported profile (both layer ends included).
 PROFILE_POINTS_PER_LAYER = 41
 
-__all__ = ["PROFILE_POINTS_PER_LAYER", "add_events", "add_profile_and_probes", "add_series"]
+__all__ = ["PROFILE_POINTS_PER_LAYER", "add_events", "add_profile_and_probes", "add_series",
+           "profile_positions"]
 
 
 def add_series(outcome: Outcome, primary: dict[str, np.ndarray], requested: np.ndarray,
@@ -51,7 +52,8 @@ def add_series(outcome: Outcome, primary: dict[str, np.ndarray], requested: np.n
         series["uptake"] = {"values": uptake.tolist(), "unit": unit}
 
 
-def _profile_positions(problem: Problem) -> list[tuple[int, np.ndarray]]:
+def profile_positions(problem: Problem) -> list[tuple[int, np.ndarray]]:
+    """(layer, positions) of the reported profile: evenly spaced, both layer ends included."""
     edges = problem.edges
     return [(j, np.linspace(edges[j], edges[j + 1], PROFILE_POINTS_PER_LAYER))
             for j in range(len(problem.layers))]
@@ -65,14 +67,14 @@ def add_profile_and_probes(outcome: Outcome, problem: Problem,
     series where it is used, else from the fine method-of-lines solution."""
     positions, values, layers = [], [], []
     if series is not None:
-        for j, r in _profile_positions(problem):
+        for j, r in profile_positions(problem):
             c = series.concentration_at(r, [internal[final_index]])[0]
             positions += r.tolist()
             values += c.tolist()
             layers += [j] * r.size
     else:
         concentration_at, _ = fine.profile_at(final_index)
-        for j, r in _profile_positions(problem):
+        for j, r in profile_positions(problem):
             positions += r.tolist()
             values += np.asarray(concentration_at(r, layer=j)).tolist()
             layers += [j] * r.size
@@ -107,9 +109,11 @@ def _fv_fraction(fine: TransientFVSolution, initial_load: float, problem: Proble
 
 def add_events(outcome: Outcome, problem: Problem, series: TransientSeriesSolution | None,
                scan: np.ndarray | None, fvs: list[TransientFVSolution], initial_load: float,
-               duration: float) -> None:
-    """t50/t90 (series where it exists, else the method of lines; the numerical value is the
-    three-mesh extrapolation when the meshes converge monotonically) and the time lag."""
+               duration: float, use_series: bool) -> None:
+    """t50/t90 by each route (the series, with its own load, where it exists; the method of
+    lines, three-mesh extrapolated when the meshes converge monotonically) and the time lag.
+    The record takes the series' value where the series is the primary method, else the
+    extrapolated numerical one; ``diagnostics["events"]`` keeps both."""
     quantities = outcome.quantities
     fine = fvs[-1]
     if initial_load > 0.0:
@@ -129,14 +133,14 @@ def add_events(outcome: Outcome, problem: Problem, series: TransientSeriesSoluti
                 if study.convergence == "monotonic" and math.isfinite(study.extrapolated):
                     t_fv = float(study.extrapolated)
             t_series = None
-            if series is not None:
+            if series is not None and series.initial_load > 0.0:
                 assert scan is not None, "series_on_scan gives a scan with every series"
 
                 def fraction_series(t, series=series):
                     _, out_a, out_b, _ = series.amounts_at(t)
-                    return (out_a + out_b) / initial_load
+                    return (out_a + out_b) / series.initial_load
                 t_series = first_crossing(fraction_series, scan, level)
-            value = t_series if series is not None else per_mesh[0]
+            value = t_series if use_series else t_fv
             quantities[name] = {"value": value, "unit": "s"}
             outcome.diagnostics["events"][name] = {"series": t_series, "numerical": t_fv,
                                                    "per_mesh": per_mesh}

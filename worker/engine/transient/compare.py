@@ -1,0 +1,237 @@
+"""Every figure of a transient record by two routes: the primary solution against each
+independent one, figure by figure.
+
+A route is what one method says of the case (:class:`Route`): its amounts at the internal
+times, its own initial load (each route divides by its own load: a wrong load shows), the
+profile it gives at any requested time, and its t50/t90. The checks, each the worst over the
+independent routes and the usable times (the worst named in its detail):
+
+* ``cross_check.initial_load``: the loads, relative;
+* ``cross_check.release_fraction`` (initially loaded body) or ``cross_check.released`` (empty
+  body): released / own load, or the released amounts against the amount scale;
+* ``cross_check.remaining``, ``cross_check.consumed``: the amounts held and consumed;
+* ``cross_check.flux_inner``/``flux_outer``: face rates against the largest face rate;
+* ``cross_check.profile``: the reported profile (final time), every point, against the
+  concentration scale; ``cross_check.probes``: the probe rows at every requested time;
+* ``cross_check.t50``, ``cross_check.t90``: reached by one route and not by the other fails.
+
+Errors are ``|a - b| / max(|b|, CROSS_CHECK_FLOOR * scale)`` (:func:`scales.relative_errors`).
+"""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Callable
+from dataclasses import dataclass, field
+
+import numpy as np
+
+from worker.engine.limits import check_limit
+from worker.engine.model import Problem
+from worker.engine.outcome import Check, Outcome
+from worker.engine.transient.scales import CROSS_CHECK_FLOOR, relative_errors, worst
+
+__all__ = ["Route", "compare_routes", "reported_series_sign_check"]
+
+
+@dataclass
+class Route:
+    """One method's account of a transient case at the internal times.
+
+    ``amounts``: each of ``transient.solution.AMOUNTS`` (per measure) at the internal times;
+    ``usable``/``flux_usable``: where its amounts / fluxes are trustworthy (a series before its
+    terms converge is not); ``profile(r, k, layer)``: concentrations at positions r (m) of layer
+    ``layer`` at internal time index k; ``events``: t50/t90 in s (None: not reached), absent
+    when the route gives none.
+    """
+
+    name: str
+    amounts: dict[str, np.ndarray]
+    initial_load: float
+    usable: np.ndarray
+    flux_usable: np.ndarray
+    profile: Callable[[np.ndarray, int, int], np.ndarray]
+    events: dict[str, float | None] = field(default_factory=dict)
+
+
+def _add(outcome: Outcome, name: str, value: float | None, problem: Problem,
+         detail: str) -> None:
+    limit = check_limit(problem, name)
+    passed = value is not None and math.isfinite(value) and value <= limit
+    outcome.checks.append(Check(name, value, limit, bool(passed), detail))
+
+
+class _Worst:
+    """The worst error of one check over the independent routes."""
+
+    def __init__(self) -> None:
+        self.value = -math.inf
+        self.detail = ""
+        self.failed: str | None = None
+
+    def offer(self, value: float, detail: str) -> None:
+        if not math.isfinite(value):
+            if self.failed is None:
+                self.failed = detail
+            return
+        if value > self.value:
+            self.value, self.detail = value, detail
+
+    def report(self, outcome: Outcome, problem: Problem, name: str) -> None:
+        if self.failed is not None:
+            _add(outcome, name, None, problem, self.failed)
+        elif self.value > -math.inf:
+            _add(outcome, name, self.value, problem, self.detail)
+
+
+def compare_routes(outcome: Outcome, problem: Problem, primary: Route, others: list[Route],
+                   internal: np.ndarray, profile_positions: list[tuple[int, np.ndarray]],
+                   final_index: int, c_scale: float, amount_scale: float) -> None:
+    """Every cross-check of ``primary`` against each of ``others`` (see the module notes)."""
+    checks: dict[str, _Worst] = {}
+
+    def offer(name: str, value: float, detail: str) -> None:
+        checks.setdefault(name, _Worst()).offer(value, detail)
+
+    positive = internal > 0.0
+    loaded = primary.initial_load > 0.0 or any(o.initial_load > 0.0 for o in others)
+    for other in others:
+        label = f"{primary.name} vs {other.name}"
+        usable = positive & primary.usable & other.usable
+        load_error = abs(primary.initial_load - other.initial_load) / max(
+            abs(primary.initial_load), abs(other.initial_load), 1e-300)
+        if loaded:
+            offer("cross_check.initial_load", load_error,
+                  f"{label}: initial load {primary.initial_load:.9g} vs "
+                  f"{other.initial_load:.9g} (per measure), relative")
+            a = _released(primary) / primary.initial_load if primary.initial_load > 0 else None
+            b = _released(other) / other.initial_load if other.initial_load > 0 else None
+            if a is None or b is None:
+                offer("cross_check.release_fraction", math.inf,
+                      f"{label}: one route has no initial load to release")
+            else:
+                errors = np.where(usable, relative_errors(a, b, 1.0), np.nan)
+                value, at = worst(errors, internal)
+                offer("cross_check.release_fraction", value,
+                      f"{label}: released / own initial load at {int(np.sum(usable))} times; "
+                      f"worst at t = {at} s")
+        else:
+            errors_each = [relative_errors(primary.amounts[n], other.amounts[n], amount_scale)
+                           for n in ("released_outer", "released_inner")]
+            errors = np.where(usable, np.max(errors_each, axis=0), np.nan)
+            value, at = worst(errors, internal)
+            offer("cross_check.released", value,
+                  f"{label}: released amounts at {int(np.sum(usable))} times, worst at t = "
+                  f"{at} s, absolute below {CROSS_CHECK_FLOOR:g} of the amount scale")
+        for name in ("remaining", "consumed"):
+            a, b = primary.amounts[name], other.amounts[name]
+            if name == "consumed" and not (np.any(a != 0.0) or np.any(b != 0.0)):
+                continue
+            errors = np.where(usable, relative_errors(a, b, amount_scale), np.nan)
+            value, at = worst(errors, internal)
+            offer(f"cross_check.{name}", value,
+                  f"{label}: amount {name} at {int(np.sum(usable))} times, worst at t = {at} s, "
+                  f"absolute below {CROSS_CHECK_FLOOR:g} of the amount scale")
+        _flux_offers(offer, problem, primary, other, internal, label)
+        _profile_offer(offer, profile_positions, primary, other, final_index, c_scale, label,
+                       internal)
+        if problem.probes:
+            _probe_offer(offer, problem, primary, other, internal, c_scale, label)
+        for event in ("t50", "t90"):
+            if event not in primary.events or event not in other.events:
+                continue
+            a_t, b_t = primary.events[event], other.events[event]
+            if a_t is None and b_t is None:
+                continue
+            if a_t is None or b_t is None:
+                offer(f"cross_check.{event}", math.inf,
+                      f"{label}: {event} reached by one route only ({a_t} s vs {b_t} s)")
+                continue
+            offer(f"cross_check.{event}", abs(a_t - b_t) / b_t,
+                  f"{label}: {event} {a_t:.9g} s vs {b_t:.9g} s, relative")
+    for name, found in checks.items():
+        found.report(outcome, problem, name)
+
+
+def _released(route: Route) -> np.ndarray:
+    return route.amounts["released_inner"] + route.amounts["released_outer"]
+
+
+def _flux_offers(offer, problem: Problem, primary: Route, other: Route, internal: np.ndarray,
+                 label: str) -> None:
+    usable = (internal > 0.0) & primary.flux_usable & other.flux_usable
+    weight_inner = 0.0 if problem.solid_centre else problem.inner ** problem.exponent
+    weight_outer = problem.outer ** problem.exponent
+    rates = [np.abs(w * primary.amounts[f"flux_{s}"][usable])
+             for s, w in (("inner", weight_inner), ("outer", weight_outer))]
+    scale = max(float(np.nanmax(r, initial=0.0)) for r in rates) or 1e-300
+    for side, weight in (("inner", weight_inner), ("outer", weight_outer)):
+        if weight == 0.0:
+            continue
+        a = weight * primary.amounts[f"flux_{side}"]
+        b = weight * other.amounts[f"flux_{side}"]
+        errors = np.where(usable, relative_errors(a, b, scale), np.nan)
+        value, at = worst(errors, internal)
+        offer(f"cross_check.flux_{side}", value,
+              f"{label}: face flux at {int(np.sum(usable))} times, worst at t = {at} s; "
+              f"absolute below {CROSS_CHECK_FLOOR:g} of the largest face rate")
+
+
+def _profile_offer(offer, positions: list[tuple[int, np.ndarray]], primary: Route,
+                   other: Route, final_index: int, c_scale: float, label: str,
+                   internal: np.ndarray) -> None:
+    if not (primary.usable[final_index] and other.usable[final_index]):
+        return
+    worst_error, where = 0.0, math.nan
+    for layer, r in positions:
+        diff = np.abs(np.asarray(primary.profile(r, final_index, layer), dtype=float)
+                      - np.asarray(other.profile(r, final_index, layer), dtype=float)) / c_scale
+        j = int(np.argmax(diff))
+        if not diff[j] <= worst_error:
+            worst_error, where = float(diff[j]), float(r[j])
+    offer("cross_check.profile", worst_error,
+          f"{label}: the reported profile at t = {internal[final_index]:.6g} s, worst at "
+          f"r = {where:.6g} m, relative to the concentration scale {c_scale:.4g}")
+
+
+def _probe_offer(offer, problem: Problem, primary: Route, other: Route, internal: np.ndarray,
+                 c_scale: float, label: str) -> None:
+    probes = np.asarray(problem.probes, dtype=float)
+    layers = [int(np.clip(np.searchsorted(problem.edges, p, side="left") - 1, 0,
+                          len(problem.layers) - 1)) for p in probes]
+    errors = np.full(internal.size, np.nan)
+    for k in range(internal.size):
+        if not (primary.usable[k] and other.usable[k]):
+            continue
+        a = np.array([primary.profile(np.array([p]), k, j)[0] for p, j in zip(probes, layers,
+                                                                              strict=True)])
+        b = np.array([other.profile(np.array([p]), k, j)[0] for p, j in zip(probes, layers,
+                                                                            strict=True)])
+        errors[k] = float(np.max(relative_errors(a, b, c_scale)))
+    value, at = worst(errors, internal)
+    offer("cross_check.probes", value,
+          f"{label}: probe concentrations at every requested time, worst at t = {at} s")
+
+
+def reported_series_sign_check(outcome: Outcome, problem: Problem, extra_lowest: float,
+                               c_scale: float, amount_scale: float, size: float) -> None:
+    """``non_negativity`` over every reported series that cannot be negative: the profile, the
+    probe rows and the amount held (relative to their scales; ``size`` turns the per-measure
+    amount scale into the reported unit), and ``extra_lowest`` (the lowest cell concentration
+    of the numerical solution)."""
+    series = outcome.series
+    candidates = [("numerical cells", extra_lowest / c_scale)]
+    if "profile" in series:
+        candidates.append(("reported profile",
+                           float(np.min(series["profile"]["concentration"])) / c_scale))
+    if "probes" in series:
+        rows = np.asarray(series["probes"]["concentration"], dtype=float)
+        candidates.append(("reported probes", float(np.min(rows)) / c_scale))
+    if "remaining" in series:
+        values = np.asarray(series["remaining"]["values"], dtype=float)
+        candidates.append(("reported amount held",
+                           float(np.min(values)) / (size * amount_scale or 1.0)))
+    name, lowest = min(candidates, key=lambda item: item[1])
+    _add(outcome, "non_negativity", max(0.0, -lowest), problem,
+         f"most negative of the reported profile, probe rows, amount held and the numerical "
+         f"cells: {name} at {lowest:.3g} of its scale")
