@@ -182,6 +182,11 @@ def _boundary_rows(name: str, a: Boundary, b: Boundary) -> list[tuple[str, Any, 
 def interpretation_differences(primary: Problem, independent: Problem
                                ) -> list[tuple[str, float]]:
     """``(field, relative difference)`` of every field the two problems should agree on."""
+    return [(name, relative_difference(a, b)) for name, a, b in _field_pairs(primary, independent)]
+
+
+def _field_pairs(primary: Problem, independent: Problem) -> list[tuple[str, Any, Any]]:
+    """``(field, primary's value, independent value)`` of every field compared."""
     rows: list[tuple[str, Any, Any]] = [
         ("geometry", primary.geometry, independent.geometry),
         ("basis", primary.basis, independent.basis),
@@ -189,11 +194,6 @@ def interpretation_differences(primary: Problem, independent: Problem
         ("length", primary.length, independent.length),
         ("area", primary.area, independent.area),
         ("layers (count)", len(primary.layers), len(independent.layers)),
-        ("exponent", primary.exponent, independent.exponent),
-        ("solid_centre", primary.solid_centre, independent.solid_centre),
-        ("measure_factor", primary.measure_factor, independent.measure_factor),
-        ("outer", primary.outer, independent.outer),
-        ("total_thickness", primary.total_thickness, independent.total_thickness),
         ("regime.kind", primary.regime.kind, independent.regime.kind),
         ("regime.duration", primary.regime.duration, independent.regime.duration),
         ("regime.times (count)", len(primary.regime.times), len(independent.regime.times)),
@@ -217,6 +217,15 @@ def interpretation_differences(primary: Problem, independent: Problem
              enumerate(zip(primary.regime.times, independent.regime.times, strict=False))]
     rows += [(f"probes[{i}]", a, b) for i, (a, b) in
              enumerate(zip(primary.probes, independent.probes, strict=False))]
+    # what each problem derives from those fields by its own code (after them: on a tie the
+    # worst row named is the field itself)
+    rows += [
+        ("exponent", primary.exponent, independent.exponent),
+        ("solid_centre", primary.solid_centre, independent.solid_centre),
+        ("measure_factor", primary.measure_factor, independent.measure_factor),
+        ("outer", primary.outer, independent.outer),
+        ("total_thickness", primary.total_thickness, independent.total_thickness),
+    ]
     rows.append(("edges (count)", primary.edges.size, independent.edges.size))
     rows += [(f"edges[{i}]", float(a), float(b)) for i, (a, b) in
              enumerate(zip(primary.edges, independent.edges, strict=False))]
@@ -228,15 +237,17 @@ def interpretation_differences(primary: Problem, independent: Problem
             independent.layers):
         rows.append(("initial load per measure", primary_initial_load(primary),
                      initial_load(independent)))
-    return [(name, relative_difference(a, b)) for name, a, b in rows]
+    return rows
 
 
 def interpretation_check(primary: Problem, independent: Problem) -> Check:
     """``inputs.interpretation``: the worst relative difference between the two problems."""
-    rows = interpretation_differences(primary, independent)
+    pairs = _field_pairs(primary, independent)
+    rows = [(name, relative_difference(a, b)) for name, a, b in pairs]
     name, value = _worst(rows)
     limit = check_limit(primary, "inputs.interpretation")
-    worst = f"worst: {name}" if value != 0.0 else "every field identical"
+    shown = next((f"{a!r} vs {b!r}" for row, a, b in pairs if row == name), "")
+    worst = f"worst: {name}: {shown}" if value != 0.0 else "every field identical"
     return Check("inputs.interpretation", value, limit, bool(value <= limit),
                  f"{len(rows)} fields of the primary and the independent problem (each "
                  f"reading the case by its own code); {worst}")

@@ -29,9 +29,14 @@ def run_problem(problem: Problem, independent: Problem | None = None) -> Outcome
     except Exception as exc:
         if check.passed:
             raise
-        raise ValueError(f"inputs.interpretation: the two readings of the case differ "
-                         f"({check.detail}; relative difference {check.value:.3g}), and the "
-                         f"methods could not be compared: {exc}") from exc
+        # The two readings differ so much that the methods cannot even be compared (positions
+        # of one body outside the other): record the primary reading's solution, with the
+        # failed inputs check saying why the independent methods are missing.
+        outcome = _solve(problem, None)
+        outcome.warnings.insert(0, (
+            "the independent methods could not be run on the independent reading of the case "
+            f"({exc}); the methods shown all solved the primary reading, and the verdict rests "
+            "on the inputs checks"))
     outcome.checks.insert(0, check)
     return outcome
 

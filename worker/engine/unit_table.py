@@ -115,6 +115,7 @@ _YEAR = _DAY * TableUnit(Fraction(36525, 100), DIMENSIONLESS)
 _LITRE = _METRE**3 * TableUnit(Fraction(1, 1000), DIMENSIONLESS)  # SI Brochure Table 8 (1964)
 _INCH = _METRE * TableUnit(Fraction(254, 10000), DIMENSIONLESS)  # exact since 1959 (NIST SP 811)
 _FOOT = _INCH * TableUnit(Fraction(12), DIMENSIONLESS)
+_SURVEY_FOOT = _METRE * TableUnit(Fraction(1200, 3937), DIMENSIONLESS)
 _POUND = _KILOGRAM * TableUnit(Fraction(45359237, 10**8), DIMENSIONLESS)  # exact (1959)
 # US liquid gallon, 231 in^3 exactly (NIST SP 811 B.8: 3.785 411 784 L)
 _GALLON = _INCH**3 * TableUnit(Fraction(231), DIMENSIONLESS)
@@ -151,6 +152,16 @@ _DEFINITIONS: tuple[tuple[tuple[str, ...], TableUnit], ...] = (
     (("yd", "yard", "international_yard"), _scaled(_FOOT, 3)),
     (("mi", "mile", "international_mile"), _scaled(_FOOT, 5280)),
     (("nmi", "nautical_mile"), _scaled(_METRE, 1852)),
+    # US survey units: the survey foot is 1200/3937 m exactly (NIST SP 811 B.6)
+    (("sft", "survey_foot"), _SURVEY_FOOT),
+    (("li", "link", "survey_link"), _scaled(_SURVEY_FOOT, Fraction(66, 100))),
+    (("rd", "rod", "pole", "perch"), _scaled(_SURVEY_FOOT, Fraction(33, 2))),
+    (("fathom",), _scaled(_SURVEY_FOOT, 6)),
+    (("chain",), _scaled(_SURVEY_FOOT, 66)),
+    (("fur", "furlong"), _scaled(_SURVEY_FOOT, 660)),
+    (("smi", "survey_mile", "us_statute_mile"), _scaled(_SURVEY_FOOT, 5280)),
+    (("league",), _scaled(_SURVEY_FOOT, 3 * 5280)),
+    (("acre",), _scaled(_SURVEY_FOOT**2, 43560)),
     (("are",), _scaled(_METRE**2, 100)),
     (("b", "barn"), _scaled(_METRE**2, Fraction(1, 10**28))),
     (("cc", "cubic_centimeter"), _scaled(_METRE**3, Fraction(1, 10**6))),
