@@ -8,8 +8,8 @@ quantity is rounded to a float once, at the end.
 
 The table holds the SI base units of the four dimensions a case uses (m, kg, s, mol), the SI
 prefixes, and the non-SI units an engineer writes for lengths, times, masses, amounts, volumes,
-areas, concentrations and rates. Sources: the SI Brochure, 9th edition (BIPM 2019), Tables 1, 4,
-7 and 8; NIST Special Publication 811 (2008), Appendix B, for the non-SI units; IEC 80000-13 for
+areas, concentrations and rates. Sources: the SI Brochure, 9th edition (BIPM 2019), Tables 1, 2,
+4, 7 and 8; NIST Special Publication 811 (2008), Appendix B, for the non-SI units; IEC 80000-13 for
 the binary prefixes. Values are written from memory of those documents.
 
 The grammar is the one :mod:`worker.engine.units` admits: unit names (letters, either micro
