@@ -53,6 +53,7 @@ MAX_TIMES = 500
 #: Checks whose limits a case may override in ``tolerances``; a key is a check name, optionally
 #: followed by ``.<quantity>`` (``cross_check.flux_outer``).
 CHECK_NAMES = (
+    "inputs",
     "cross_check",
     "mass_balance",
     "boundary_residual",

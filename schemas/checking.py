@@ -8,6 +8,12 @@ from schemas.build import validate_case
 from schemas.canonical import case_sha256
 from schemas.errors import CaseError
 from schemas.record import failed_record, succeeded_record
+from worker.engine.independent_problem import (
+    IndependentInputError,
+    IndependentProblem,
+    build_independent_problem,
+)
+from worker.engine.input_checks import unit_routes_check, unread_inputs_checks
 from worker.engine.plausibility import input_warnings
 from worker.engine.provenance import provenance_block, utc_now
 from worker.engine.run import run_problem
@@ -29,7 +35,9 @@ def check_case(case: dict) -> dict:
     -------
     dict
         The result document: ``status``, ``verdict``, ``quantities`` (SI), ``series``,
-        ``methods``, ``checks``, ``warnings``, ``provenance``, ``inputs`` (the normalised case)
+        ``methods``, ``checks`` (first the two inputs checks: the units converted by pint and
+        by the unit table, and the case as the primary and the independent problem read it),
+        ``warnings``, ``provenance``, ``inputs`` (the normalised case)
         and ``caution`` (see :mod:`schemas.record`).
 
     Raises
@@ -41,8 +49,16 @@ def check_case(case: dict) -> dict:
     started_at = utc_now()
     validated = validate_case(case)
     digest = case_sha256(case)
+    independent: IndependentProblem | None = None
     try:
-        outcome = run_problem(validated.problem)
+        independent = build_independent_problem(validated.original)
+        input_checks = [unit_routes_check(validated.problem, independent, validated.normalised,
+                                          validated.original)]
+    except IndependentInputError as exc:
+        input_checks = unread_inputs_checks(validated.problem, exc)
+    try:
+        outcome = run_problem(validated.problem, independent)
+        outcome.checks[:0] = input_checks
     except Exception as exc:  # the engine could not produce a result: recorded, not raised
         logger.exception("engine failure for case %s", digest)
         return failed_record(digest, exc, provenance_block(digest, started_at, utc_now()),

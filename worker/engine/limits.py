@@ -16,6 +16,15 @@ from collections.abc import Mapping
 
 from worker.engine.model import Problem
 
+#: Default limits of the two checks of a case's inputs, the same in every regime: the unit
+#: routes differ only by the rounding of their exact factors (a few units in the last place);
+#: the two problems also by the cancellation of r_out^(n+1) - r_in^(n+1) in the primary's
+#: initial load of a thin curved shell, hence the wider limit of the interpretation.
+INPUT_LIMITS: Mapping[str, float] = {
+    "inputs": 1e-12,  # relative difference of a value read two ways
+    "inputs.interpretation": 1e-10,  # relative difference of a field of the two problems
+}
+
 #: Default limits of the steady checks.
 STEADY_LIMITS: Mapping[str, float] = {
     "cross_check": 1e-4,  # flux and profile agreement between independent methods
@@ -27,6 +36,7 @@ STEADY_LIMITS: Mapping[str, float] = {
     "gci": 1e-3,  # GCI_fine of each face flux (fraction)
     "non_negativity": 1e-8,  # most negative concentration / concentration scale
     "bracket": 1e-4,  # Michaelis-Menten solution outside its comparison bracket / scale
+    **INPUT_LIMITS,
 }
 
 #: Default limits of the transient checks. Integral quantities (release, event times, time lag)
@@ -45,12 +55,13 @@ TRANSIENT_LIMITS: Mapping[str, float] = {
     "convergence": 1e-5,  # change under a tighter time tolerance / amount scale
     "steady_limit": 1e-4,  # long-time state vs steady engine, flux / throughput and C / scale
     "non_negativity": 1e-8,  # most negative concentration / concentration scale
+    **INPUT_LIMITS,
 }
 
 #: Check names whose family is not the part before their first dot.
 FAMILY: Mapping[str, str] = {"convergence.space": "gci", "convergence.time": "convergence"}
 
-__all__ = ["FAMILY", "STEADY_LIMITS", "TRANSIENT_LIMITS", "check_limit", "family",
+__all__ = ["FAMILY", "INPUT_LIMITS", "STEADY_LIMITS", "TRANSIENT_LIMITS", "check_limit", "family",
            "resolve_limit"]
 
 

@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+from worker.engine.input_checks import interpretation_check
 from worker.engine.model import Problem
 from worker.engine.outcome import Outcome
 from worker.engine.steady_check import run_steady
@@ -10,9 +11,37 @@ from worker.engine.transient import run_transient
 __all__ = ["run_problem"]
 
 
-def run_problem(problem: Problem) -> Outcome:
+def run_problem(problem: Problem, independent: Problem | None = None) -> Outcome:
     """Quantities, series, methods, checks and warnings of ``problem``: :func:`run_steady` for a
-    steady regime, :func:`run_transient` for a transient one. Raises what the solvers raise."""
+    steady regime, :func:`run_transient` for a transient one. Raises what the solvers raise.
+
+    ``independent`` is the same case read a second way
+    (:func:`worker.engine.independent_problem.build_independent_problem`): the independent
+    methods solve it, and the check ``inputs.interpretation`` (first in the outcome) compares
+    it with ``problem`` field by field. Without it both roles take ``problem`` and no inputs
+    check is made.
+    """
+    if independent is None:
+        return _solve(problem, None)
+    check = interpretation_check(problem, independent)
+    try:
+        outcome = _solve(problem, independent)
+    except Exception as exc:
+        if check.passed:
+            raise
+        # The two readings differ so much that the methods cannot even be compared (positions
+        # of one body outside the other): record the primary reading's solution, with the
+        # failed inputs check saying why the independent methods are missing.
+        outcome = _solve(problem, None)
+        outcome.warnings.insert(0, (
+            "the independent methods could not be run on the independent reading of the case "
+            f"({exc}); the methods shown all solved the primary reading, and the verdict rests "
+            "on the inputs checks"))
+    outcome.checks.insert(0, check)
+    return outcome
+
+
+def _solve(problem: Problem, independent: Problem | None) -> Outcome:
     if problem.regime.kind == "steady":
-        return run_steady(problem)
-    return run_transient(problem)
+        return run_steady(problem, independent)
+    return run_transient(problem, independent)

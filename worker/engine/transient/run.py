@@ -36,13 +36,16 @@ _REFINEMENT_METHOD = {
 }
 
 
-def run_transient(problem: Problem) -> Outcome:
+def run_transient(problem: Problem, independent: Problem | None = None) -> Outcome:
     """Solve a transient case by every applicable method and check the results.
 
     Parameters
     ----------
     problem : Problem
         Normalised case with ``regime.kind == "transient"``, a duration and requested times.
+    independent : Problem, optional
+        The case as the independent methods read it (default ``problem``): the method of lines
+        solves it when the exact series is primary.
 
     Returns
     -------
@@ -61,7 +64,11 @@ def run_transient(problem: Problem) -> Outcome:
     c_unit = problem.concentration_unit
     internal = np.union1d(requested, [duration])
 
-    fvs = fv_on_meshes(problem, internal, duration)
+    series, scan = series_on_scan(problem, internal, duration)
+    series_primary = series is not None and bool(
+        np.all(series.release_converged[np.searchsorted(series.times, internal)]))
+    lines_problem = independent if series_primary and independent is not None else problem
+    fvs = fv_on_meshes(lines_problem, internal, duration)
     fine, coarse = fvs[2], fvs[0]
     outcome.diagnostics["meshes"] = [f.diagnostics["cells_per_layer"] for f in fvs]
     outcome.diagnostics["fv_steps"] = [f.diagnostics["steps"] for f in fvs]
@@ -72,7 +79,6 @@ def run_transient(problem: Problem) -> Outcome:
         outcome.warnings.append(f"numerical transient solve failed: {failed.message}")
         return outcome
 
-    series, scan = series_on_scan(problem, internal, duration)
     if series is not None:
         at = np.searchsorted(series.times, internal)
         if not np.all(series.release_converged[at]):

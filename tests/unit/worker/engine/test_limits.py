@@ -7,6 +7,7 @@ import dataclasses
 import pytest
 
 from worker.engine.limits import (
+    INPUT_LIMITS,
     STEADY_LIMITS,
     TRANSIENT_LIMITS,
     check_limit,
@@ -45,3 +46,16 @@ def test_the_regime_chooses_the_defaults():
     overridden = dataclasses.replace(transient, tolerances={"gci": 0.5, "convergence": 0.25})
     assert check_limit(overridden, "convergence.space") == 0.5
     assert check_limit(overridden, "convergence.time") == 0.25
+
+
+def test_the_inputs_checks_have_one_limit_in_every_regime():
+    steady = Problem("slab", 0.0, (Layer("wall", 1e-3, 1e-9, 1.0),),
+                     Boundary("concentration", 1.0), Boundary("concentration", 0.0))
+    transient = dataclasses.replace(steady, regime=Regime("transient", 10.0, (1.0,)))
+    for problem in (steady, transient):
+        assert check_limit(problem, "inputs.units") == INPUT_LIMITS["inputs"]
+        assert check_limit(problem, "inputs.interpretation") == INPUT_LIMITS[
+            "inputs.interpretation"]
+    overridden = dataclasses.replace(steady, tolerances={"inputs": 1e-9})
+    assert check_limit(overridden, "inputs.units") == 1e-9
+    assert check_limit(overridden, "inputs.interpretation") == 1e-9
