@@ -54,7 +54,10 @@ with ``M = TALBOT_NODES``. Accuracy limits: each time is inverted on its own con
 stepping, no error growth with t, but no shared work between times either); the rounding error
 is about ``eps exp(2M/5)`` times the largest |F| on the contour, so a value far below its own
 scale (the outflow of an initially empty membrane long before breakthrough, ~exp(-L^2/(4Dt)))
-is accurate in absolute terms (about 1e-10 of the scale), not relatively; t = 0 is never
+is accurate in absolute terms (about 1e-10 of the scale), not relatively. At times far beyond
+the body's relaxation time the rounding grows as sqrt(D t)/L relative to the load (measured:
+about 1e-12 at t ~ L^2/D, 7e-10 at t = 1e4 L^2/D), because the transforms are then sampled at
+|s| ~ 1/t where they are large and their fast modes cancel. t = 0 is never
 inverted (the initial state is returned exactly, and the face fluxes as NaN, where they are
 singular). Measured accuracy against known transform pairs and against the eigenfunction series
 is in the tests (``tests/unit/worker/engine/transient/test_laplace.py``).
@@ -180,73 +183,119 @@ def _decay(x: np.ndarray) -> np.ndarray:
     return np.exp(-x)
 
 
+#: Below this |x| the ratios x coth x - 1 and x csch x - 1 are summed from their series.
+_SERIES_LIMIT = 0.5
+_SERIES_ORDERS = np.arange(1, 10)
+_ODD_FACTORIALS = np.array([float(special.factorial(2 * k + 1)) for k in _SERIES_ORDERS])
+
+
+def _hyperbolic_ratios(x: np.ndarray):
+    """tanh(x/2), coth(x/2), x coth x - 1 and x csch x - 1 for complex x with Re x >= 0.
+
+    Decaying exponentials for large |x|; for |x| <= ``_SERIES_LIMIT`` the last two from
+    ``x cosh x - sinh x = sum 2k x^(2k+1)/(2k+1)!`` and ``x - sinh x = -sum x^(2k+1)/(2k+1)!``
+    (k >= 1) divided by sinh x, so the O(x^2) values keep their digits as x -> 0.
+    """
+    e = _decay(x)
+    half_denominator = -np.expm1(-x)
+    tanh_half = half_denominator / (1.0 + e)
+    coth_half = (1.0 + e) / half_denominator
+    small = np.abs(x) <= _SERIES_LIMIT
+    big = np.where(small, 1.0, x)
+    denominator = -np.expm1(-2.0 * big)
+    x_coth = big * (1.0 + np.exp(-2.0 * big)) / denominator - 1.0
+    x_csch = big * 2.0 * _decay(big) / denominator - 1.0
+    tiny = np.where(small, x, 0.1)
+    powers = tiny[..., None] ** (2 * _SERIES_ORDERS + 1) / _ODD_FACTORIALS
+    sinh = np.sinh(tiny)
+    series_coth = (powers * (2 * _SERIES_ORDERS)).sum(axis=-1) / sinh
+    series_csch = -powers.sum(axis=-1) / sinh
+    return (tanh_half, coth_half, np.where(small, series_coth, x_coth),
+            np.where(small, series_csch, x_csch))
+
+
 class _SlabBasis:
-    """sinh(q(r - a))/sinh(qL) and sinh(q(b - r))/sinh(qL) with slopes and integrals."""
+    """Even and odd solutions e = cosh(q(r - m))/cosh(qL/2), o = sinh(q(r - m))/(2 sinh(qL/2))
+    about the mid-plane m: e = 1 at both edges, o = -1/2 at a and +1/2 at b. Their slopes
+    q tanh(qL/2) and (q/2) coth(qL/2) carry a thin fast layer's capacity (O(q^2 L)) and its
+    conductance (1/L) in separate numbers, so neither is lost in the other's rounding."""
+
+    solid = False
 
     def __init__(self, a: float, b: float):
         self.a, self.b = a, b
         self.length = b - a
 
-    def _ratios(self, q):
-        """(1/sinh(qL), coth(qL)) in decaying form: 2e/(1 - e^2), (1 + e^2)/(1 - e^2)."""
-        e = _decay(q * self.length)
-        denominator = -np.expm1(-2.0 * q * self.length)
-        return 2.0 * e / denominator, (1.0 + e * e) / denominator
-
     def slopes(self, q):
-        """(g_a'(a), g_a'(b), g_b'(a), g_b'(b)), 1/m."""
-        csch, coth = self._ratios(q)
-        return -q * coth, -q * csch, q * csch, q * coth
+        """(e'(a), e'(b), o'(a), o'(b)), 1/m."""
+        tanh_half, coth_half, _, _ = _hyperbolic_ratios(q * self.length)
+        odd = 0.5 * q * coth_half
+        return -q * tanh_half, q * tanh_half, odd, odd
 
     def integrals(self, q):
-        """(int g_a dr, int g_b dr) = tanh(qL/2)/q each: (cosh(qL) - 1)/(q sinh(qL))."""
-        e = _decay(q * self.length)
-        value = -np.expm1(-q * self.length) / ((1.0 + e) * q)
-        return value, value
+        """(int e dr, int o dr) = (2 tanh(qL/2)/q, 0), from int cosh = sinh/q."""
+        tanh_half, _, _, _ = _hyperbolic_ratios(q * self.length)
+        return 2.0 * tanh_half / q, np.zeros_like(q)
 
-    def values(self, q, r):
-        """(g_a(r), g_b(r)) for q (S, 1) and r (R,): each (S, R)."""
+    def _nodal_values(self, q, r):
+        """sinh(q(b - r))/sinh(qL) and sinh(q(r - a))/sinh(qL), decaying form."""
         denominator = -np.expm1(-2.0 * q * self.length)
         g_b = _decay(q * (self.b - r)) * -np.expm1(-2.0 * q * (r - self.a)) / denominator
         g_a = _decay(q * (r - self.a)) * -np.expm1(-2.0 * q * (self.b - r)) / denominator
         return g_a, g_b
 
+    def values(self, q, r):
+        """(e(r), o(r)) for q (S, 1) and r (1, R): each (S, R)."""
+        g_a, g_b = self._nodal_values(q, r)
+        return g_a + g_b, 0.5 * (g_b - g_a)
+
 
 class _SphereBasis(_SlabBasis):
-    """(b/r) sinh(q(r - a))/sinh(qL) and (a/r) sinh(q(b - r))/sinh(qL); solid: only the first,
-    with a = 0."""
+    """From the nodal g_a = (a/r) sinh(q(b - r))/sinh(qL), g_b = (b/r) sinh(q(r - a))/sinh(qL):
+    e = g_a + g_b, o = (g_b - g_a)/2; solid (a = 0): e = (b/r) sinh(q r)/sinh(q b), o = 0.
+
+    With x = qL, T = tanh(x/2), A = x coth x - 1, B = x csch x - 1 (each computed without
+    cancellation): e'(b) = (A + a q T)/b, e'(a) = (B - a q T)/a, and, from
+    int (a + t) sinh(q t) dt = (a + t) cosh(q t)/q - sinh(q t)/q^2,
+    int r^2 e dr = (a^2 + b^2) T/q + L B/q^2, int r^2 o dr = (a + b) A/(2 q^2).
+    """
 
     def __init__(self, a: float, b: float, solid: bool):
         super().__init__(a, b)
         self.solid = solid
 
     def slopes(self, q):
-        csch, coth = self._ratios(q)
+        tanh_half, coth_half, x_coth, x_csch = _hyperbolic_ratios(q * self.length)
         a, b = self.a, self.b
-        gb_b = q * coth - 1.0 / b
         if self.solid:
             zero = np.zeros_like(q)
-            return zero, zero, zero, gb_b
-        return -q * coth - 1.0 / a, -(a / b) * q * csch, (b / a) * q * csch, gb_b
+            return zero, x_coth / b, zero, zero
+        # o' = (g_b' - g_a')/2 with g_b'(a) = (b/a) q csch, g_a'(a) = -q coth - 1/a,
+        # g_b'(b) = q coth - 1/b, g_a'(b) = -(a/b) q csch
+        q_coth = q * (x_coth + 1.0) / (q * self.length)
+        q_csch = q * (x_csch + 1.0) / (q * self.length)
+        odd_a = 0.5 * ((b / a) * q_csch + q_coth + 1.0 / a)
+        odd_b = 0.5 * (q_coth - 1.0 / b + (a / b) * q_csch)
+        return (x_csch - a * q * tanh_half) / a, (x_coth + a * q * tanh_half) / b, odd_a, odd_b
 
     def integrals(self, q):
-        """int r^2 g dr from int (a + x) sinh(q x) dx = (a + x) cosh(q x)/q - sinh(q x)/q^2."""
-        csch, coth = self._ratios(q)
+        tanh_half, _, x_coth, x_csch = _hyperbolic_ratios(q * self.length)
         a, b = self.a, self.b
-        i_b = b * ((b * coth - a * csch) / q - 1.0 / q**2)
         if self.solid:
-            return np.zeros_like(q), i_b
-        return a * ((a * coth - b * csch) / q + 1.0 / q**2), i_b
+            return b * x_coth / q**2, np.zeros_like(q)
+        return ((a * a + b * b) * tanh_half / q + self.length * x_csch / q**2,
+                (a + b) * x_coth / (2.0 * q**2))
 
     def values(self, q, r):
-        g_a, g_b = super().values(q, r)
+        g_a, g_b = self._nodal_values(q, r)
         safe_r = np.where(r > 0.0, r, 1.0)
         if self.solid:
-            csch, _ = self._ratios(q)
-            centre = self.b * q * csch  # limit of (b/r) sinh(q r)/sinh(q b) at r = 0
-            g_b = np.where(r > 0.0, (self.b / safe_r) * g_b, centre)
-            return np.zeros_like(g_b), g_b
-        return (self.a / safe_r) * g_a, (self.b / safe_r) * g_b
+            x = q * self.b
+            centre = self.b * q * 2.0 * _decay(x) / -np.expm1(-2.0 * x)  # b q csch(q b)
+            e = np.where(r > 0.0, (self.b / safe_r) * g_b, centre)
+            return e, np.zeros_like(e)
+        g_a, g_b = (self.a / safe_r) * g_a, (self.b / safe_r) * g_b
+        return g_a + g_b, 0.5 * (g_b - g_a)
 
 
 def _scaled_i(order: int, z):
@@ -260,7 +309,12 @@ def _scaled_k(order: int, z):
 
 
 class _CylinderBasis:
-    """Nodal combinations of I0(q r) and K0(q r); solid: I0(q r)/I0(q b) only."""
+    """Nodal combinations g_a, g_b of I0(q r) and K0(q r), returned as e = g_a + g_b and
+    o = (g_b - g_a)/2 (as the slab's); solid: e = I0(q r)/I0(q b), o = 0.
+
+    Unlike the slab and sphere, e' is formed as g_a' + g_b' here: a thin cylindrical shell with
+    |qL| << 1 loses about eps/|qL|^2 of its capacity term (see the module's accuracy notes).
+    """
 
     def __init__(self, a: float, b: float, solid: bool):
         self.a, self.b, self.solid = a, b, solid
@@ -279,7 +333,7 @@ class _CylinderBasis:
         ib0, ib1, hollow = self._edge_functions(q)
         if hollow is None:
             zero = np.zeros_like(q)
-            return zero, zero, zero, q * ib1 / ib0
+            return zero, q * ib1 / ib0, zero, zero
         ia0, ia1, ka0, ka1, kb0, kb1 = hollow
         e1 = _decay(q * self.length)
         e2 = e1 * e1
@@ -288,15 +342,15 @@ class _CylinderBasis:
         gb_b = q * (ib1 * ka0 + kb1 * ia0 * e2) / det
         ga_a = -q * (ka1 * ib0 + ia1 * kb0 * e2) / det
         ga_b = -q * e1 * (kb1 * ib0 + ib1 * kb0) / det
-        return ga_a, ga_b, gb_a, gb_b
+        return ga_a + gb_a, ga_b + gb_b, 0.5 * (gb_a - ga_a), 0.5 * (gb_b - ga_b)
 
     def integrals(self, q):
-        """int r g dr from the antiderivatives r I1(q r)/q of r I0(q r) and -r K1(q r)/q of
-        r K0(q r) (Abramowitz & Stegun 11.3.20, from memory)."""
+        """int r e dr and int r o dr from the antiderivatives r I1(q r)/q of r I0(q r) and
+        -r K1(q r)/q of r K0(q r) (Abramowitz & Stegun 11.3.20, from memory)."""
         ib0, ib1, hollow = self._edge_functions(q)
         a, b = self.a, self.b
         if hollow is None:
-            return np.zeros_like(q), b * ib1 / (q * ib0)
+            return b * ib1 / (q * ib0), np.zeros_like(q)
         ia0, ia1, ka0, ka1, kb0, kb1 = hollow
         e1 = _decay(q * self.length)
         e2 = e1 * e1
@@ -307,7 +361,9 @@ class _CylinderBasis:
         # g_a = [K~0(qr) I~0(qb) e^{-q(r-a)} - I~0(qr) K~0(qb) e^{-q(b-r)} e^{-qL}] / det
         upper_a = -b * e1 * (kb1 * ib0 + ib1 * kb0)
         lower_a = -a * (ka1 * ib0 + ia1 * kb0 * e2)
-        return (upper_a - lower_a) / (q * det), (upper_b - lower_b) / (q * det)
+        int_a = (upper_a - lower_a) / (q * det)
+        int_b = (upper_b - lower_b) / (q * det)
+        return int_a + int_b, 0.5 * (int_b - int_a)
 
     def values(self, q, r):
         zr = q * r
@@ -315,8 +371,8 @@ class _CylinderBasis:
         ib0, _, hollow = self._edge_functions(q)
         grow = _decay(q * (self.b - r))
         if hollow is None:
-            g_b = ir0 / ib0 * grow
-            return np.zeros_like(g_b), g_b
+            e = ir0 / ib0 * grow
+            return e, np.zeros_like(e)
         ia0, _, ka0, _, kb0, _ = hollow
         kr0 = _scaled_k(0, zr)
         e1 = _decay(q * self.length)
@@ -324,7 +380,7 @@ class _CylinderBasis:
         fall = _decay(q * (r - self.a))
         g_b = (ir0 * ka0 * grow - kr0 * ia0 * fall * e1) / det
         g_a = (kr0 * ib0 * fall - ir0 * kb0 * grow * e1) / det
-        return g_a, g_b
+        return g_a + g_b, 0.5 * (g_b - g_a)
 
 
 def _layer_basis(problem: Problem, index: int):
@@ -410,7 +466,12 @@ class _Transformed:
         return self.measure * total
 
     def solve(self, s: np.ndarray):
-        """Per layer (q, particular C0/(s+k), slopes (4), unknowns alpha, beta), s flattened."""
+        """Per layer: q, the particular C0/(s+k), the slopes (e'(a), e'(b), o'(a), o'(b)) and
+        the unknowns sigma, delta of ``C^ = C0/(s+k) + sigma e + delta o`` (s flattened).
+
+        In a hollow layer the edge values are C^(a) = p + sigma - delta/2 and
+        C^(b) = p + sigma + delta/2; in a solid one C^(b) = p + sigma and delta = 0.
+        """
         s = np.asarray(s, dtype=complex).ravel()
         size = 2 * self.count
         matrix = np.zeros((s.size, size, size), dtype=complex)
@@ -419,33 +480,35 @@ class _Transformed:
         q = np.sqrt(shifted / self.diffusivities[None, :])
         particular = self.initial[None, :] / shifted
         slopes = [basis.slopes(q[:, i]) for i, basis in enumerate(self.bases)]
-        # inner face (or alpha_0 = 0 at a solid centre, where g_a does not exist)
-        if self.solid:
-            matrix[:, 0, 0] = 1.0
+        odd_b = [0.0 if basis.solid else 0.5 for basis in self.bases]
+        if self.solid:  # delta_0 = 0: a solid centre has the one regular solution
+            matrix[:, 0, 1] = 1.0
         else:
             alpha, beta, gamma = self.face_rows[0]
-            ga_a, _, gb_a, _ = slopes[0]
-            matrix[:, 0, 0] = alpha + beta * ga_a
-            matrix[:, 0, 1] = beta * gb_a
+            e_a, _, o_a, _ = slopes[0]
+            matrix[:, 0, 0] = alpha + beta * e_a
+            matrix[:, 0, 1] = -0.5 * alpha + beta * o_a
             rhs[:, 0] = gamma / s - alpha * particular[:, 0]
         for i in range(self.count - 1):
             row = 2 * i + 1
             k_left, k_right = self.partitions[i], self.partitions[i + 1]
-            matrix[:, row, 2 * i + 1] = 1.0 / k_left
+            matrix[:, row, 2 * i] = 1.0 / k_left
+            matrix[:, row, 2 * i + 1] = odd_b[i] / k_left
             matrix[:, row, 2 * i + 2] = -1.0 / k_right
+            matrix[:, row, 2 * i + 3] = 0.5 / k_right
             rhs[:, row] = particular[:, i + 1] / k_right - particular[:, i] / k_left
-            _, ga_b, _, gb_b = slopes[i]
-            ga_a, _, gb_a, _ = slopes[i + 1]
+            _, e_b, _, o_b = slopes[i]
+            e_a, _, o_a, _ = slopes[i + 1]
             d_left, d_right = self.diffusivities[i], self.diffusivities[i + 1]
-            matrix[:, row + 1, 2 * i] = d_left * ga_b
-            matrix[:, row + 1, 2 * i + 1] = d_left * gb_b
-            matrix[:, row + 1, 2 * i + 2] = -d_right * ga_a
-            matrix[:, row + 1, 2 * i + 3] = -d_right * gb_a
+            matrix[:, row + 1, 2 * i] = d_left * e_b
+            matrix[:, row + 1, 2 * i + 1] = d_left * o_b
+            matrix[:, row + 1, 2 * i + 2] = -d_right * e_a
+            matrix[:, row + 1, 2 * i + 3] = -d_right * o_a
         alpha, beta, gamma = self.face_rows[1]
-        _, ga_b, _, gb_b = slopes[-1]
+        _, e_b, _, o_b = slopes[-1]
         last = self.count - 1
-        matrix[:, -1, 2 * last] = beta * ga_b
-        matrix[:, -1, 2 * last + 1] = alpha + beta * gb_b
+        matrix[:, -1, 2 * last] = alpha + beta * e_b
+        matrix[:, -1, 2 * last + 1] = odd_b[last] * alpha + beta * o_b
         rhs[:, -1] = gamma / s - alpha * particular[:, last]
         scale = np.max(np.abs(matrix), axis=2)
         unknowns = np.linalg.solve(matrix / scale[:, :, None], (rhs / scale)[:, :, None])[..., 0]
@@ -455,18 +518,18 @@ class _Transformed:
         """The transforms of :data:`QUANTITIES` at s, shape s.shape + (6,), per measure."""
         shape = np.shape(s)
         s_flat = np.asarray(s, dtype=complex).ravel()
-        q, particular, slopes, alpha, beta = self.solve(s_flat)
-        ga_a, _, gb_a, _ = slopes[0]
-        _, ga_b, _, gb_b = slopes[-1]
-        flux_inner = -self.diffusivities[0] * (alpha[:, 0] * ga_a + beta[:, 0] * gb_a)
+        q, particular, slopes, sigma, delta = self.solve(s_flat)
+        e_a, _, o_a, _ = slopes[0]
+        _, e_b, _, o_b = slopes[-1]
+        flux_inner = -self.diffusivities[0] * (sigma[:, 0] * e_a + delta[:, 0] * o_a)
         if self.solid:
             flux_inner = np.zeros_like(flux_inner)
-        flux_outer = -self.diffusivities[-1] * (alpha[:, -1] * ga_b + beta[:, -1] * gb_b)
+        flux_outer = -self.diffusivities[-1] * (sigma[:, -1] * e_b + delta[:, -1] * o_b)
         held = np.empty_like(particular)
         for i, basis in enumerate(self.bases):
-            int_a, int_b = basis.integrals(q[:, i])
-            held[:, i] = particular[:, i] * self.volumes[i] + alpha[:, i] * int_a \
-                + beta[:, i] * int_b
+            int_e, int_o = basis.integrals(q[:, i])
+            held[:, i] = particular[:, i] * self.volumes[i] + sigma[:, i] * int_e \
+                + delta[:, i] * int_o
         m = self.measure
         out = np.stack((
             m * held.sum(axis=1),
@@ -492,7 +555,7 @@ class _Transformed:
         """C^(r, s), shape s.shape + (len(r),)."""
         shape = np.shape(s)
         s_flat = np.asarray(s, dtype=complex).ravel()
-        q, particular, _, alpha, beta = self.solve(s_flat)
+        q, particular, _, sigma, delta = self.solve(s_flat)
         layer = self.layer_of(r)
         edges = self.problem.edges
         out = np.empty((s_flat.size, r.size), dtype=complex)
@@ -501,9 +564,9 @@ class _Transformed:
             if not np.any(chosen):
                 continue
             inside = np.clip(r[chosen], edges[i], edges[i + 1])
-            g_a, g_b = basis.values(q[:, i:i + 1], inside[None, :])
-            out[:, chosen] = (particular[:, i:i + 1] + alpha[:, i:i + 1] * g_a
-                              + beta[:, i:i + 1] * g_b)
+            even, odd = basis.values(q[:, i:i + 1], inside[None, :])
+            out[:, chosen] = (particular[:, i:i + 1] + sigma[:, i:i + 1] * even
+                              + delta[:, i:i + 1] * odd)
         return out.reshape(shape + (r.size,))
 
 
