@@ -237,5 +237,5 @@ def test_two_layer_partition_jump_matches_the_method_of_lines_extrapolated():
     solution = solve_transient_laplace(problem)
     for name in ("remaining", "released_outer", "flux_outer"):
         extrapolated = (4.0 * getattr(fine, name) - getattr(medium, name)) / 3.0
-        assert_allclose(getattr(solution, name), extrapolated, rtol=2e-6)
+        assert_allclose(getattr(solution, name), extrapolated, rtol=1e-7)
     assert_allclose(solution.released_inner, 0.0, atol=1e-12 * solution.initial_load)
