@@ -30,7 +30,10 @@ them by the check's full name or by its family (``cross_check``, ``mass_balance`
 
 Modules: ``solve`` (the solves), ``checks`` (the checks), ``record`` (series, profile, probes,
 events), ``scales`` (scales and error measures), ``run`` (``run_transient``), ``exact_series``
-and ``eigen_roots`` (the series), ``method_of_lines`` (the finite volumes in time).
+and ``eigen_roots`` (the series), ``method_of_lines`` (the finite volumes in time), ``laplace``
+(``solve_transient_laplace``: the exact Laplace-domain solution of every linear case, any number
+of layers and every boundary kind, inverted by the fixed Talbot method; not yet used by
+``run_transient``).
 """
 
 from worker.engine.transient.run import run_transient
