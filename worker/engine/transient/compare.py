@@ -21,37 +21,17 @@ Errors are ``|a - b| / max(|b|, CROSS_CHECK_FLOOR * scale)`` (:func:`scales.rela
 from __future__ import annotations
 
 import math
-from collections.abc import Callable
-from dataclasses import dataclass, field
 
 import numpy as np
 
 from worker.engine.limits import check_limit
 from worker.engine.model import Problem
 from worker.engine.outcome import Check, Outcome
+from worker.engine.transient.record import probe_row
 from worker.engine.transient.scales import CROSS_CHECK_FLOOR, relative_errors, worst
+from worker.engine.transient.solution import Route
 
-__all__ = ["Route", "compare_routes", "reported_series_sign_check"]
-
-
-@dataclass
-class Route:
-    """One method's account of a transient case at the internal times.
-
-    ``amounts``: each of ``transient.solution.AMOUNTS`` (per measure) at the internal times;
-    ``usable``/``flux_usable``: where its amounts / fluxes are trustworthy (a series before its
-    terms converge is not); ``profile(r, k, layer)``: concentrations at positions r (m) of layer
-    ``layer`` at internal time index k; ``events``: t50/t90 in s (None: not reached), absent
-    when the route gives none.
-    """
-
-    name: str
-    amounts: dict[str, np.ndarray]
-    initial_load: float
-    usable: np.ndarray
-    flux_usable: np.ndarray
-    profile: Callable[[np.ndarray, int, int], np.ndarray]
-    events: dict[str, float | None] = field(default_factory=dict)
+__all__ = ["compare_routes", "reported_series_sign_check"]
 
 
 def _add(outcome: Outcome, name: str, value: float | None, problem: Problem,
@@ -196,17 +176,12 @@ def _profile_offer(offer, positions: list[tuple[int, np.ndarray]], primary: Rout
 
 def _probe_offer(offer, problem: Problem, primary: Route, other: Route, internal: np.ndarray,
                  c_scale: float, label: str) -> None:
-    probes = np.asarray(problem.probes, dtype=float)
-    layers = [int(np.clip(np.searchsorted(problem.edges, p, side="left") - 1, 0,
-                          len(problem.layers) - 1)) for p in probes]
     errors = np.full(internal.size, np.nan)
     for k in range(internal.size):
         if not (primary.usable[k] and other.usable[k]):
             continue
-        a = np.array([primary.profile(np.array([p]), k, j)[0] for p, j in zip(probes, layers,
-                                                                              strict=True)])
-        b = np.array([other.profile(np.array([p]), k, j)[0] for p, j in zip(probes, layers,
-                                                                            strict=True)])
+        a = probe_row(primary.profile, problem, k)
+        b = probe_row(other.profile, problem, k)
         errors[k] = float(np.max(relative_errors(a, b, c_scale)))
     value, at = worst(errors, internal)
     offer("cross_check.probes", value,

@@ -142,7 +142,7 @@ class TransientLaplaceSolution(TransientSolution):
     """
 
     nodes: int
-    concentration_at: Callable[[ArrayLike, ArrayLike], np.ndarray]
+    concentration_at: Callable[..., np.ndarray]
     positions: np.ndarray | None = None
     profile: np.ndarray | None = None
     notes: list[str] = field(default_factory=list)
@@ -592,16 +592,20 @@ class _Transformed:
                              f"got {r!r}")
         return np.clip(np.searchsorted(edges, r, side="left") - 1, 0, self.count - 1)
 
-    def concentrations(self, s: np.ndarray, r: np.ndarray) -> np.ndarray:
-        """C^(r, s), shape s.shape + (len(r),)."""
+    def concentrations(self, s: np.ndarray, r: np.ndarray, layer: int | None = None
+                       ) -> np.ndarray:
+        """C^(r, s), shape s.shape + (len(r),); with ``layer`` every r is read in that layer
+        (its closed interval), so both sides of a partition jump can be read."""
         shape = np.shape(s)
         s_flat = np.asarray(s, dtype=complex).ravel()
         q, particular, _, _, sigma, delta = self.solve(s_flat)
-        layer = self.layer_of(r)
+        layers = self.layer_of(r)  # also the range check
+        if layer is not None:
+            layers = np.full(r.size, int(layer))
         edges = self.problem.edges
         out = np.empty((s_flat.size, r.size), dtype=complex)
         for i, basis in enumerate(self.bases):
-            chosen = layer == i
+            chosen = layers == i
             if not np.any(chosen):
                 continue
             inside = np.clip(r[chosen], edges[i], edges[i + 1])
@@ -669,18 +673,20 @@ def solve_transient_laplace(problem: Problem, times: ArrayLike | None = None,
     start = ~positive
     values[start] = (load, 0.0, 0.0, 0.0, np.nan, np.nan)
 
-    def concentration_at(r: ArrayLike, t: ArrayLike) -> np.ndarray:
+    def concentration_at(r: ArrayLike, t: ArrayLike, layer: int | None = None) -> np.ndarray:
+        """C at positions r (m) and times t (s), shape (len(t), len(r)); with ``layer`` every r
+        is read in that layer (an interface otherwise belongs to the inner layer)."""
         r = np.atleast_1d(np.asarray(r, dtype=float))
         t = np.atleast_1d(np.asarray(t, dtype=float))
         if np.any(t < 0.0) or not np.all(np.isfinite(t)):
             raise ValueError(f"times: expected finite times >= 0 s, got {t!r}")
-        layer = transformed.layer_of(r)
+        layers = transformed.layer_of(r) if layer is None else np.full(r.size, int(layer))
         out = np.empty((t.size, r.size))
         later = t > 0.0
         if np.any(later):
-            out[later] = invert_talbot(lambda s: transformed.concentrations(s, r), t[later],
-                                       nodes)
-        out[~later] = transformed.initial[layer][None, :]
+            out[later] = invert_talbot(lambda s: transformed.concentrations(s, r, layer),
+                                       t[later], nodes)
+        out[~later] = transformed.initial[layers][None, :]
         return out
 
     profile = None

@@ -4,6 +4,7 @@ final profile and the probe rows, and the event times t50, t90 and the time lag.
 from __future__ import annotations
 
 import math
+from collections.abc import Callable
 
 import numpy as np
 
@@ -13,13 +14,14 @@ from worker.engine.outcome import Outcome
 from worker.engine.transient.exact_series import TransientSeriesSolution
 from worker.engine.transient.method_of_lines import TransientFVSolution
 from worker.engine.transient.scales import first_crossing, is_membrane
+from worker.engine.transient.solution import Route
 from worker.engine.transient.solve import numerical_time_lag
 
 #: Points per layer of the reported profile (both layer ends included).
 PROFILE_POINTS_PER_LAYER = 41
 
 __all__ = ["PROFILE_POINTS_PER_LAYER", "add_events", "add_profile_and_probes", "add_series",
-           "profile_positions"]
+           "add_time_lag", "probe_layers", "probe_row", "profile_positions", "report_events"]
 
 
 def add_series(outcome: Outcome, primary: dict[str, np.ndarray], requested: np.ndarray,
@@ -59,38 +61,46 @@ def profile_positions(problem: Problem) -> list[tuple[int, np.ndarray]]:
             for j in range(len(problem.layers))]
 
 
+def probe_layers(problem: Problem) -> list[int]:
+    """The layer of each probe (a probe on an interface belongs to the inner layer)."""
+    edges = problem.edges
+    return [int(np.clip(np.searchsorted(edges, p, side="left") - 1, 0, len(problem.layers) - 1))
+            for p in problem.probes]
+
+
+def probe_row(profile: Callable[[np.ndarray, int, int], np.ndarray], problem: Problem,
+              k: int) -> np.ndarray:
+    """The probe concentrations of a route's ``profile(r, k, layer)`` at internal time k,
+    one evaluation per layer that holds probes."""
+    probes = np.asarray(problem.probes, dtype=float)
+    layers = np.asarray(probe_layers(problem))
+    row = np.empty(probes.size)
+    for j in np.unique(layers):
+        chosen = layers == j
+        row[chosen] = profile(probes[chosen], k, int(j))
+    return row
+
+
 def add_profile_and_probes(outcome: Outcome, problem: Problem,
-                           series: TransientSeriesSolution | None, fine: TransientFVSolution,
+                           profile: Callable[[np.ndarray, int, int], np.ndarray],
                            internal: np.ndarray, requested: np.ndarray, index: np.ndarray,
                            final_index: int, c_unit: str) -> None:
     """The profile at the final time and the probe rows at the requested times, from the
-    series where it is used, else from the fine method-of-lines solution."""
+    primary route's ``profile(r, k, layer)`` (k: index of the internal time)."""
     positions, values, layers = [], [], []
-    if series is not None:
-        for j, r in profile_positions(problem):
-            c = series.concentration_at(r, [internal[final_index]])[0]
-            positions += r.tolist()
-            values += c.tolist()
-            layers += [j] * r.size
-    else:
-        concentration_at, _ = fine.profile_at(final_index)
-        for j, r in profile_positions(problem):
-            positions += r.tolist()
-            values += np.asarray(concentration_at(r, layer=j)).tolist()
-            layers += [j] * r.size
+    for j, r in profile_positions(problem):
+        positions += r.tolist()
+        values += np.asarray(profile(r, final_index, j), dtype=float).tolist()
+        layers += [j] * r.size
     outcome.series["profile"] = {
         "position": positions, "concentration": values, "layer": layers,
         "time": float(internal[final_index]),
         "units": {"position": "m", "concentration": c_unit, "time": "s"},
     }
     if problem.probes:
-        probes = np.asarray(problem.probes, dtype=float)
-        if series is not None:
-            rows = series.concentration_at(probes, requested)
-        else:
-            rows = np.array([np.atleast_1d(fine.profile_at(int(k))[0](probes)) for k in index])
+        rows = np.array([probe_row(profile, problem, int(k)) for k in index])
         outcome.series["probes"] = {
-            "position": probes.tolist(), "concentration": np.asarray(rows).tolist(),
+            "position": list(problem.probes), "concentration": rows.tolist(),
             "time": [float(t) for t in requested],
             "units": {"position": "m", "concentration": c_unit, "time": "s"},
         }
@@ -108,48 +118,61 @@ def _fv_fraction(fine: TransientFVSolution, initial_load: float, problem: Proble
 
 
 def add_events(outcome: Outcome, problem: Problem, series: TransientSeriesSolution | None,
-               scan: np.ndarray | None, fvs: list[TransientFVSolution], initial_load: float,
-               duration: float, use_series: bool) -> None:
-    """t50/t90 by each route (the series, with its own load, where it exists; the method of
-    lines, three-mesh extrapolated when the meshes converge monotonically) and the time lag.
-    The record takes the series' value where the series is the primary method, else the
-    extrapolated numerical one; ``diagnostics["events"]`` keeps both."""
-    quantities = outcome.quantities
+               scan: np.ndarray | None, fvs: list[TransientFVSolution], duration: float) -> None:
+    """t50/t90 of the series (each its own load; on its scan) and of the method of lines
+    (three-mesh extrapolation where the meshes converge monotonically, else the fine mesh) into
+    ``diagnostics["events"]`` (name -> {"series", "numerical", "per_mesh"}); nothing for a body
+    the method of lines finds empty."""
     fine = fvs[-1]
-    if initial_load > 0.0:
-        outcome.diagnostics["events"] = {}
-        cells = [sum(f.diagnostics["cells_per_layer"]) for f in reversed(fvs)]
-        for name, level in (("t50", 0.5), ("t90", 0.9)):
-            per_mesh = []
-            for sol in reversed(fvs):  # fine, medium, coarse
-                assert sol.step_times is not None, "a successful integration has its steps"
-                grid = np.union1d(sol.step_times, [duration])
-                per_mesh.append(first_crossing(_fv_fraction(sol, sol.initial_load, problem),
-                                               grid[grid <= duration], level))
-            t_fv = per_mesh[0]
-            reached = [t for t in per_mesh if t is not None]
-            if len(reached) == len(per_mesh):
-                study = convergence.grid_study(reached, cells)
-                if study.convergence == "monotonic" and math.isfinite(study.extrapolated):
-                    t_fv = float(study.extrapolated)
-            t_series = None
-            if series is not None and series.initial_load > 0.0:
-                assert scan is not None, "series_on_scan gives a scan with every series"
+    if fine.initial_load <= 0.0:
+        return
+    outcome.diagnostics["events"] = {}
+    cells = [sum(f.diagnostics["cells_per_layer"]) for f in reversed(fvs)]
+    for name, level in (("t50", 0.5), ("t90", 0.9)):
+        per_mesh = []
+        for sol in reversed(fvs):  # fine, medium, coarse
+            assert sol.step_times is not None, "a successful integration has its steps"
+            grid = np.union1d(sol.step_times, [duration])
+            per_mesh.append(first_crossing(_fv_fraction(sol, sol.initial_load, problem),
+                                           grid[grid <= duration], level))
+        t_fv = per_mesh[0]
+        reached = [t for t in per_mesh if t is not None]
+        if len(reached) == len(per_mesh):
+            study = convergence.grid_study(reached, cells)
+            if study.convergence == "monotonic" and math.isfinite(study.extrapolated):
+                t_fv = float(study.extrapolated)
+        t_series = None
+        if series is not None and series.initial_load > 0.0:
+            assert scan is not None, "series_on_scan gives a scan with every series"
 
-                def fraction_series(t, series=series):
-                    _, out_a, out_b, _ = series.amounts_at(t)
-                    return (out_a + out_b) / series.initial_load
-                t_series = first_crossing(fraction_series, scan, level)
-            value = t_series if use_series else t_fv
-            quantities[name] = {"value": value, "unit": "s"}
-            outcome.diagnostics["events"][name] = {"series": t_series, "numerical": t_fv,
-                                                   "per_mesh": per_mesh}
-            if value is None:
-                outcome.warnings.append(
-                    f"{name}: {int(level * 100)} % release is not reached within the duration "
-                    f"({duration:.6g} s)")
-    if is_membrane(problem):
-        lag = numerical_time_lag(problem, fine, duration)
-        exact = series.time_lag if series is not None else None
-        quantities["time_lag"] = {"value": exact if exact is not None else lag, "unit": "s"}
-        outcome.diagnostics["time_lag"] = {"series": exact, "numerical": lag}
+            def fraction_series(t, series=series):
+                _, out_a, out_b, _ = series.amounts_at(t)
+                return (out_a + out_b) / series.initial_load
+            t_series = first_crossing(fraction_series, scan, level)
+        outcome.diagnostics["events"][name] = {"series": t_series, "numerical": t_fv,
+                                               "per_mesh": per_mesh}
+
+
+def report_events(outcome: Outcome, primary: Route, duration: float) -> None:
+    """The record's t50/t90: the primary route's, for an initially loaded body."""
+    if primary.initial_load <= 0.0:
+        return
+    for name, level in (("t50", 0.5), ("t90", 0.9)):
+        value = primary.events.get(name)
+        outcome.quantities[name] = {"value": value, "unit": "s"}
+        if value is None:
+            outcome.warnings.append(
+                f"{name}: {int(level * 100)} % release is not reached within the duration "
+                f"({duration:.6g} s)")
+
+
+def add_time_lag(outcome: Outcome, problem: Problem, series: TransientSeriesSolution | None,
+                 fine: TransientFVSolution, duration: float) -> None:
+    """The membrane time lag: the series' exact value where it exists, else the method of
+    lines' late-time intercept (both in ``diagnostics["time_lag"]``)."""
+    if not is_membrane(problem):
+        return
+    lag = numerical_time_lag(problem, fine, duration)
+    exact = series.time_lag if series is not None else None
+    outcome.quantities["time_lag"] = {"value": exact if exact is not None else lag, "unit": "s"}
+    outcome.diagnostics["time_lag"] = {"series": exact, "numerical": lag}

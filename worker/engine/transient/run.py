@@ -8,16 +8,19 @@ import numpy as np
 from worker.engine.model import Problem
 from worker.engine.outcome import Outcome
 from worker.engine.transient import checks, exact_series, method_of_lines
-from worker.engine.transient.compare import Route, compare_routes, reported_series_sign_check
-from worker.engine.transient.exact_series import TransientSeriesSolution
-from worker.engine.transient.method_of_lines import TransientFVSolution
+from worker.engine.transient.compare import compare_routes, reported_series_sign_check
+from worker.engine.transient.laplace import laplace_unsupported_reason, solve_transient_laplace
 from worker.engine.transient.record import (
     add_events,
     add_profile_and_probes,
     add_series,
+    add_time_lag,
     profile_positions,
+    report_events,
 )
+from worker.engine.transient.routes import fv_route, laplace_route, series_route
 from worker.engine.transient.scales import size_factor
+from worker.engine.transient.solution import Route
 from worker.engine.transient.solve import (
     extrapolated,
     fv_on_meshes,
@@ -59,15 +62,23 @@ def run_transient(problem: Problem, independent: Problem | None = None) -> Outco
         Naming the ``regime`` field when the regime is not a valid transient one.
     """
     requested, duration = requested_times(problem)
+    independent = problem if independent is None else independent
     outcome = Outcome()
     factor, amount_unit = size_factor(problem)
     c_unit = problem.concentration_unit
     internal = np.union1d(requested, [duration])
 
     series, scan = series_on_scan(problem, internal, duration)
-    series_primary = series is not None and bool(
-        np.all(series.release_converged[np.searchsorted(series.times, internal)]))
-    lines_problem = independent if series_primary and independent is not None else problem
+    at = np.searchsorted(series.times, internal) if series is not None else None
+    use_series = series is not None and bool(np.all(series.release_converged[at]))
+    # The exact Laplace-domain route for every linear case: on the independent reading when the
+    # series is primary, else it is the primary itself.
+    laplace = None
+    if laplace_unsupported_reason(problem) is None:
+        laplace_problem = independent if use_series else problem
+        laplace = solve_transient_laplace(laplace_problem, internal)
+    exact_primary = use_series or laplace is not None
+    lines_problem = independent if exact_primary else problem
     fvs = fv_on_meshes(lines_problem, internal, duration)
     fine, coarse = fvs[2], fvs[0]
     outcome.diagnostics["meshes"] = [f.diagnostics["cells_per_layer"] for f in fvs]
@@ -80,103 +91,67 @@ def run_transient(problem: Problem, independent: Problem | None = None) -> Outco
         return outcome
 
     if series is not None:
-        at = np.searchsorted(series.times, internal)
-        if not np.all(series.release_converged[at]):
-            outcome.warnings.append(
-                "exact series not converged at some requested times (too early for the term "
-                "budget); the numerical solution is reported")
         outcome.diagnostics["series_terms"] = series.terms
         outcome.diagnostics["series_notes"] = list(series.notes)
-        use_series = bool(np.all(series.release_converged[at]))
-    else:
-        reason = exact_series.series_unsupported_reason(problem)
-        outcome.warnings.append(
-            f"no exact series for this case ({reason}): checked by space and time refinement "
-            "and by the steady limit")
-        use_series = False
+        if not use_series:
+            outcome.warnings.append(
+                "exact series not converged at some requested times (too early for the term "
+                "budget); it is compared where it converges")
 
     numerical = extrapolated(fvs, internal)
-    fv_route_name = f"{fine.method} (three meshes, extrapolated)"
-    if series is not None and use_series:
-        primary = series.amounts(at)
-        initial_load = series.initial_load
-        outcome.methods.append({"role": "primary", "name": series.method,
-                                "reference": series.reference})
-        outcome.methods.append({"role": "independent", "name": fine.method,
-                                "reference": fine.reference + "; three meshes, Richardson "
-                                "extrapolation (Celik et al., J. Fluids Eng. 130 (2008) 078001)"})
-    else:
-        # the best numerical estimate: the three-mesh extrapolation (fine mesh where the
-        # meshes do not converge monotonically)
-        primary = numerical
-        initial_load = fine.initial_load
-        outcome.methods.append({"role": "primary", "name": fv_route_name,
-                                "reference": fine.reference})
-        outcome.methods.append(dict(_REFINEMENT_METHOD))
+    fv_name = f"{fine.method} (three meshes, extrapolated)"
+    add_events(outcome, lines_problem, series, scan, fvs, duration)
+    routes = [fv_route(fv_name, fine, numerical, internal, outcome)]
+    if laplace is not None:
+        routes.insert(0, laplace_route(laplace_problem, laplace, internal, duration))
+    if series is not None and at is not None:
+        routes.insert(0 if use_series else len(routes), series_route(series, at, internal,
+                                                                     outcome))
+    primary = routes[0]
+    _record_methods(outcome, primary, routes[1:])
+    if len(routes) == 1:
+        reason = exact_series.series_unsupported_reason(problem)
+        outcome.warnings.append(
+            f"no exact solution for this case ({reason}): checked by space and time refinement "
+            "and by the steady limit")
 
     requested_index = np.searchsorted(internal, requested)
     final_index = int(np.searchsorted(internal, duration))
+    amounts = primary.amounts
+    initial_load = primary.initial_load
     amount_scale = max(abs(initial_load), float(np.max(
-        np.abs(primary["released_inner"]) + np.abs(primary["released_outer"])
-        + np.abs(primary["consumed"]))))
+        np.abs(amounts["released_inner"]) + np.abs(amounts["released_outer"])
+        + np.abs(amounts["consumed"]))))
     c_scale = method_of_lines.concentration_scale(problem)
-    used_series = series if use_series else None
 
-    add_series(outcome, primary, requested, requested_index, initial_load, factor, amount_unit)
-    add_profile_and_probes(outcome, problem, used_series, fine, internal, requested,
+    add_series(outcome, amounts, requested, requested_index, initial_load, factor, amount_unit)
+    add_profile_and_probes(outcome, problem, primary.profile, internal, requested,
                            requested_index, final_index, c_unit)
-    add_events(outcome, problem, series, scan, fvs, initial_load, duration, use_series)
+    report_events(outcome, primary, duration)
+    add_time_lag(outcome, lines_problem, series, fine, duration)
 
-    routes = [_fv_route(fv_route_name, fine, numerical, internal, outcome)]
-    if series is not None:
-        routes.insert(0 if use_series else 1, _series_route(series, at, internal, outcome))
-    compare_routes(outcome, problem, routes[0], routes[1:], internal,
-                   profile_positions(problem), final_index, c_scale, amount_scale)
+    compare_routes(outcome, problem, primary, routes[1:], internal, profile_positions(problem),
+                   final_index, c_scale, amount_scale)
     _annotate(outcome, routes, int(requested_index[-1]))
     if series is not None:
         checks.time_lag_check(outcome, problem)
-    checks.mass_balance_check(outcome, problem, fine, internal)
-    checks.space_check(outcome, problem, fvs, internal, final_index, amount_scale)
-    checks.time_check(outcome, problem, coarse, internal, duration, amount_scale)
-    checks.steady_limit_check(outcome, problem, fine, duration, c_scale, amount_scale)
+    checks.mass_balance_check(outcome, lines_problem, fine, internal)
+    checks.space_check(outcome, lines_problem, fvs, internal, final_index, amount_scale)
+    checks.time_check(outcome, lines_problem, coarse, internal, duration, amount_scale)
+    checks.steady_limit_check(outcome, lines_problem, fine, duration, c_scale, amount_scale)
     reported_series_sign_check(outcome, problem, float(np.min(fine.cells)), c_scale,
                                amount_scale, factor)
-    if not any(c.name.startswith("cross_check") for c in outcome.checks):
-        outcome.warnings.append("no independent analytic solution: the numerical answer rests on "
-                                "the refinement, balance and steady-limit checks")
     return outcome
 
 
-def _events(outcome: Outcome, key: str) -> dict[str, float | None]:
-    events = outcome.diagnostics.get("events")
-    if not events:
-        return {}
-    return {name: found[key] for name, found in events.items()}
-
-
-def _fv_route(name: str, fine: TransientFVSolution, numerical: dict[str, np.ndarray],
-              internal: np.ndarray, outcome: Outcome) -> Route:
-    """The method of lines as a route: extrapolated amounts, the fine mesh's own load and
-    profiles (linear between cell centres), its extrapolated t50/t90."""
-    everywhere = np.ones(internal.size, dtype=bool)
-
-    def profile(r: np.ndarray, k: int, layer: int) -> np.ndarray:
-        return np.asarray(fine.profile_at(k)[0](r, layer=layer), dtype=float)
-
-    return Route(name, numerical, float(fine.initial_load), everywhere, everywhere, profile,
-                 _events(outcome, "numerical"))
-
-
-def _series_route(series: TransientSeriesSolution, at: np.ndarray, internal: np.ndarray,
-                  outcome: Outcome) -> Route:
-    """The exact series as a route: usable where its terms (or the short-time form) converge."""
-
-    def profile(r: np.ndarray, k: int, layer: int) -> np.ndarray:
-        return np.asarray(series.concentration_at(r, [internal[k]])[0], dtype=float)
-
-    return Route(series.method, series.amounts(at), float(series.initial_load),
-                 series.release_converged[at] | (internal == 0.0),
-                 series.converged[at], profile, _events(outcome, "series"))
+def _record_methods(outcome: Outcome, primary: Route, others: list[Route]) -> None:
+    outcome.methods.append({"role": "primary", "name": primary.name,
+                            "reference": primary.reference})
+    for other in others:
+        outcome.methods.append({"role": "independent", "name": other.name,
+                                "reference": other.reference})
+    if not others:
+        outcome.methods.append(dict(_REFINEMENT_METHOD))
 
 
 def _annotate(outcome: Outcome, routes: list[Route], last: int) -> None:
@@ -190,8 +165,8 @@ def _annotate(outcome: Outcome, routes: list[Route], last: int) -> None:
             continue
         entry["routes"] = names
         entry["verified_by"] = f"cross_check.{event}"
-        values = [route.events.get(event) for route in routes]
-        if entry["value"] is not None and all(v is not None for v in values):
+        values = [route.events.get(event) for route in routes if event in route.events]
+        if entry["value"] is not None and values and all(v is not None for v in values):
             entry["uncertainty"] = max(abs(entry["value"] - v) for v in values)
     fraction = outcome.quantities.get("release_fraction_final")
     if fraction is not None:

@@ -2,7 +2,8 @@
 
 from __future__ import annotations
 
-from dataclasses import dataclass
+from collections.abc import Callable
+from dataclasses import dataclass, field
 
 import numpy as np
 
@@ -10,7 +11,7 @@ import numpy as np
 AMOUNTS = ("remaining", "released_inner", "released_outer", "consumed", "flux_inner",
            "flux_outer")
 
-__all__ = ["AMOUNTS", "TransientSolution"]
+__all__ = ["AMOUNTS", "Route", "TransientSolution"]
 
 
 @dataclass
@@ -39,3 +40,25 @@ class TransientSolution:
     def amounts(self, at: np.ndarray | slice = slice(None)) -> dict[str, np.ndarray]:
         """Each of :data:`AMOUNTS` at the time indices ``at`` (all times by default)."""
         return {name: getattr(self, name)[at] for name in AMOUNTS}
+
+
+@dataclass
+class Route:
+    """One method's account of a transient case at the internal times (its ``name`` and
+    published ``reference`` go to the record's methods).
+
+    ``amounts``: each of ``transient.solution.AMOUNTS`` (per measure) at the internal times;
+    ``usable``/``flux_usable``: where its amounts / fluxes are trustworthy (a series before its
+    terms converge is not); ``profile(r, k, layer)``: concentrations at positions r (m) of layer
+    ``layer`` at internal time index k; ``events``: t50/t90 in s (None: not reached), absent
+    when the route gives none.
+    """
+
+    name: str
+    reference: str
+    amounts: dict[str, np.ndarray]
+    initial_load: float
+    usable: np.ndarray
+    flux_usable: np.ndarray
+    profile: Callable[[np.ndarray, int, int], np.ndarray]
+    events: dict[str, float | None] = field(default_factory=dict)

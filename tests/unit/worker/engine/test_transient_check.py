@@ -57,7 +57,7 @@ def test_record_shape_and_units(sheet_outcome):
     assert len(profile["position"]) == len(profile["concentration"]) == len(profile["layer"])
     assert profile["time"] == 12000.0
     roles = [m["role"] for m in sheet_outcome.methods]
-    assert roles == ["primary", "independent"]
+    assert roles == ["primary", "independent", "independent"]  # series; Laplace, lines
 
 
 def test_every_check_passes_on_a_sound_case(sheet_outcome):
@@ -178,7 +178,7 @@ def test_multilayer_reaction_case_uses_refinement_checks():
     assert {"mass_balance", "convergence.space", "convergence.time", "steady_limit",
             "non_negativity"} <= names
     assert all(c.passed for c in outcome.checks), [c.as_dict() for c in outcome.checks]
-    assert any("no exact series" in w for w in outcome.warnings)
+    assert any("no exact solution" in w for w in outcome.warnings)
 
 
 def test_bad_regimes_are_refused_with_the_field():

@@ -56,7 +56,7 @@ def test_plain_sphere_passes_every_route_check(plain):
     assert fraction["value"] == pytest.approx(_crank_sphere_fraction(600.0), rel=1e-6)
     assert fraction["verified_by"] == "cross_check.release_fraction"
     assert 0.0 <= fraction["uncertainty"] < 1e-4
-    assert len(plain.quantities["t50"]["routes"]) == 2
+    assert len(plain.quantities["t50"]["routes"]) == 3  # series, Laplace, method of lines
 
 
 def _patch_series(monkeypatch, change):
@@ -143,7 +143,8 @@ def _route(name: str, load: float, events: dict) -> Route:
                "released_inner": np.zeros(3), "released_outer": np.array([0.0, 0.5, 0.9]) * load,
                "consumed": np.zeros(3), "flux_inner": np.zeros(3), "flux_outer": np.ones(3)}
     every = np.ones(times.size, dtype=bool)
-    return Route(name, amounts, load, every, every, lambda r, k, layer: np.ones_like(r), events)
+    return Route(name, "", amounts, load, every, every, lambda r, k, layer: np.ones_like(r),
+                 events)
 
 
 @pytest.mark.parametrize("pair", [({"t50": 1.0}, {"t50": None}), ({"t50": None}, {"t50": 1.0})])

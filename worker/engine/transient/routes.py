@@ -1,0 +1,102 @@
+"""Each transient method as a :class:`~worker.engine.transient.compare.Route`: its amounts at
+the internal times, its own initial load, its profile at any internal time and its t50/t90.
+
+* the exact series (one layer, linear kinetics): usable where its terms (or the short-time
+  form) converge; events by a log scan of its closed-form amounts, each divided by its own load;
+* the exact Laplace-domain solution (any layers, linear kinetics): usable at every time; events
+  by a scan of its inverted amounts refined by ``brentq``;
+* the method of lines: the three-mesh extrapolated amounts, the fine mesh's load and profiles,
+  its extrapolated events (``record.add_events``).
+"""
+
+from __future__ import annotations
+
+import numpy as np
+
+from worker.engine.model import Problem
+from worker.engine.outcome import Outcome
+from worker.engine.transient.exact_series import TransientSeriesSolution
+from worker.engine.transient.laplace import TransientLaplaceSolution, solve_transient_laplace
+from worker.engine.transient.method_of_lines import TransientFVSolution
+from worker.engine.transient.scales import first_crossing
+from worker.engine.transient.solution import Route
+
+#: Log-spaced scan points (over the duration) that bracket t50/t90 of the Laplace route.
+LAPLACE_EVENT_SCAN_POINTS = 48
+#: Release levels of the events.
+EVENT_LEVELS = (("t50", 0.5), ("t90", 0.9))
+
+__all__ = ["EVENT_LEVELS", "fv_route", "laplace_route", "series_route"]
+
+
+def _events(outcome: Outcome, key: str) -> dict[str, float | None]:
+    events = outcome.diagnostics.get("events")
+    if not events:
+        return {}
+    return {name: found[key] for name, found in events.items()}
+
+
+def fv_route(name: str, fine: TransientFVSolution, numerical: dict[str, np.ndarray],
+             internal: np.ndarray, outcome: Outcome) -> Route:
+    """The method of lines: extrapolated amounts, the fine mesh's own load and profiles (linear
+    between cell centres), its extrapolated t50/t90 (from ``diagnostics["events"]``)."""
+    everywhere = np.ones(internal.size, dtype=bool)
+
+    def profile(r: np.ndarray, k: int, layer: int) -> np.ndarray:
+        return np.asarray(fine.profile_at(k)[0](r, layer=layer), dtype=float)
+
+    reference = (fine.reference + "; three meshes, Richardson extrapolation (Celik et al., "
+                 "J. Fluids Eng. 130 (2008) 078001)")
+    return Route(name, reference, numerical, float(fine.initial_load), everywhere, everywhere,
+                 profile, _events(outcome, "numerical"))
+
+
+def series_route(series: TransientSeriesSolution, at: np.ndarray, internal: np.ndarray,
+                 outcome: Outcome) -> Route:
+    """The exact series, usable where its terms (or the short-time form) converge."""
+
+    def profile(r: np.ndarray, k: int, layer: int) -> np.ndarray:
+        return np.asarray(series.concentration_at(r, [internal[k]])[0], dtype=float)
+
+    return Route(series.method, series.reference, series.amounts(at),
+                 float(series.initial_load),
+                 series.release_converged[at] | (internal == 0.0),
+                 series.converged[at], profile, _events(outcome, "series"))
+
+
+def laplace_events(problem: Problem, solution: TransientLaplaceSolution, duration: float
+                   ) -> dict[str, float | None]:
+    """t50/t90 of the Laplace route: released / its own load, first crossing on a log scan of
+    the duration refined by ``brentq`` (None: not reached; nothing for an empty body)."""
+    load = solution.initial_load
+    if load <= 0.0:
+        return {}
+    positive = solution.times[solution.times > 0.0]
+    low = float(min(positive.min() if positive.size else duration, duration)) * 0.5
+    scan = np.union1d(np.geomspace(max(low, duration * 1e-7), duration,
+                                   LAPLACE_EVENT_SCAN_POINTS), positive)
+    scan = scan[scan <= duration]
+    at_scan = solve_transient_laplace(problem, scan)
+    values = (at_scan.released_inner + at_scan.released_outer) / load
+
+    def fraction(t: np.ndarray) -> np.ndarray:
+        t = np.atleast_1d(np.asarray(t, dtype=float))
+        if t.size == scan.size and np.array_equal(t, scan):
+            return values
+        found = solve_transient_laplace(problem, t)
+        return (found.released_inner + found.released_outer) / load
+
+    return {name: first_crossing(fraction, scan, level) for name, level in EVENT_LEVELS}
+
+
+def laplace_route(problem: Problem, solution: TransientLaplaceSolution, internal: np.ndarray,
+                  duration: float) -> Route:
+    """The exact Laplace-domain solution at the internal times (``solution.times``)."""
+    everywhere = np.ones(internal.size, dtype=bool)
+
+    def profile(r: np.ndarray, k: int, layer: int) -> np.ndarray:
+        return np.asarray(solution.concentration_at(r, [internal[k]], layer)[0], dtype=float)
+
+    return Route(solution.method, solution.reference, solution.amounts(),
+                 float(solution.initial_load), everywhere, everywhere, profile,
+                 laplace_events(problem, solution, duration))
