@@ -155,6 +155,9 @@ class ProfileSchema(OpenSchema):
     concentration = NumbersOrRows(required=True)
     layer = fields.List(PlainInteger())
     units = fields.Nested(AxisUnitsSchema, required=True)
+    routes = fields.List(fields.String(), metadata={
+        "description": "the independent routes that produced and compared it"})
+    verified_by = fields.String(metadata={"description": "the check that compared the routes"})
 
 
 class ValuesSchema(OpenSchema):
@@ -162,6 +165,9 @@ class ValuesSchema(OpenSchema):
 
     values = _numbers(required=True)
     unit = fields.String(required=True)
+    routes = fields.List(fields.String(), metadata={
+        "description": "the independent routes that produced and compared it"})
+    verified_by = fields.String(metadata={"description": "the check that compared the routes"})
 
 
 class SeriesSchema(OpenSchema):

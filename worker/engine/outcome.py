@@ -76,6 +76,16 @@ class Outcome:
             entry["verified_by"] = verified_by
         self.quantities[name] = entry
 
+    def mark_verified(self, routes: list[str], series: dict[str, str]) -> None:
+        """Name the routes and the comparing check on each series entry (series name -> check
+        name) whose check is in the record."""
+        present = {check.name for check in self.checks}
+        for name, check in series.items():
+            entry = self.series.get(name)
+            if isinstance(entry, dict) and check in present:
+                entry["routes"] = list(routes)
+                entry["verified_by"] = check
+
     def add_check(
         self, name: str, value: float | None, limit: float | None, passed: bool, detail: str
     ) -> Check:

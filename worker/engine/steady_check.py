@@ -800,6 +800,8 @@ def run_steady(problem: Problem, independent: Problem | None = None) -> Outcome:
     if any(ly.reaction.law.has_bracket for ly in problem.layers) and fine.success:
         _bracket_check(outcome, problem, samples[id(fine)], c_scale)
 
+    outcome.mark_verified([primary.method] + ([compared.method] if compared is not None else []),
+                          {"profile": "cross_check.profile", "probes": "cross_check.probes"})
     _regime_notes(problem, primary, outcome)
     return outcome
 

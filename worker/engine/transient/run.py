@@ -9,6 +9,7 @@ from worker.engine.model import Problem
 from worker.engine.outcome import Outcome
 from worker.engine.transient import checks, exact_series, method_of_lines
 from worker.engine.transient.compare import compare_routes, reported_series_sign_check
+from worker.engine.transient.laplace import METHOD_NAME as LAPLACE_METHOD
 from worker.engine.transient.laplace import laplace_unsupported_reason, solve_transient_laplace
 from worker.engine.transient.record import (
     add_events,
@@ -159,6 +160,20 @@ def _annotate(outcome: Outcome, routes: list[Route], last: int) -> None:
     if len(routes) < 2:
         return
     names = [route.name for route in routes]
+    released = ("cross_check.release_fraction" if "release_fraction_final" in outcome.quantities
+                else "cross_check.released")
+    outcome.mark_verified(names, {
+        "released_inner": released, "released_outer": released,
+        "release_fraction": "cross_check.release_fraction", "uptake": "cross_check.released",
+        "remaining": "cross_check.remaining", "consumed": "cross_check.consumed",
+        "profile": "cross_check.profile", "probes": "cross_check.probes"})
+    lag = outcome.quantities.get("time_lag")
+    found = outcome.diagnostics.get("time_lag", {})
+    if lag is not None and found.get("series") is not None:
+        lag["routes"] = [name for name in names if name != LAPLACE_METHOD]
+        lag["verified_by"] = "cross_check.time_lag"
+        if found.get("numerical") is not None:
+            lag["uncertainty"] = abs(found["series"] - found["numerical"])
     for event in ("t50", "t90"):
         entry = outcome.quantities.get(event)
         if entry is None:
