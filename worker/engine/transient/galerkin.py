@@ -250,12 +250,6 @@ class _System:
     """
 
     def __init__(self, problem: Problem, meshes: list[GalerkinMesh], c_scale: float):
-        for j, ly in enumerate(problem.layers):
-            for name, value in (("partition", ly.partition), ("diffusivity", ly.diffusivity),
-                                ("thickness", ly.thickness)):
-                if not (value > 0.0 and math.isfinite(value)):
-                    raise ValueError(f"layers[{j}].{name}: expected a positive finite value, "
-                                     f"got {value!r}")
         exponent = problem.exponent
         self.meshes = meshes
         self.count = len(meshes)
@@ -516,6 +510,7 @@ class TransientGalerkinSolution(TransientSolution):
 def coarse_elements(problem: Problem, first_time: float | None = None) -> tuple[int, ...]:
     """Elements per layer of the coarse mesh of ``galerkin_study`` (see the ``MIN_ELEMENTS``
     group of constants for the rule)."""
+    _check_case(problem)
     layers = problem.layers
     resistances = [ly.thickness / (ly.diffusivity * ly.partition) for ly in layers]
     total = sum(resistances)
@@ -532,6 +527,18 @@ def coarse_elements(problem: Problem, first_time: float | None = None) -> tuple[
             n = max(n, min(early, MAX_EARLY_ELEMENTS))
         counts.append(min(n, MAX_ELEMENTS))
     return tuple(counts)
+
+
+def _check_case(problem: Problem) -> None:
+    """ValueError naming the field of a layer or face that cannot be used."""
+    for j, ly in enumerate(problem.layers):
+        for name, value in (("partition", ly.partition), ("diffusivity", ly.diffusivity),
+                            ("thickness", ly.thickness)):
+            if not (value > 0.0 and math.isfinite(value)):
+                raise ValueError(f"layers[{j}].{name}: expected a positive finite value, "
+                                 f"got {value!r}")
+    _face(problem, "inner")
+    _face(problem, "outer")
 
 
 def _times(problem: Problem, times, end, start) -> tuple[np.ndarray, float]:
@@ -599,6 +606,7 @@ def solve_transient_galerkin_meshes(
     """Integrate several meshes as one block-diagonal system (shared Radau steps, one error
     norm over all); each mesh's discrete solution is otherwise its own. Parameters as
     ``solve_transient_galerkin``; ``meshes`` is a list of ``elements_per_layer``."""
+    _check_case(problem)
     times, end = _times(problem, times, end, 0.0)
     c_scale = concentration_scale(problem)
     built = [build_galerkin_mesh(problem, spec) for spec in meshes]

@@ -93,8 +93,9 @@ def amount_study(solutions: Sequence[TransientSolution], sizes: Sequence[float]
 def outside_bands(a: AmountStudy, b: AmountStudy, name: str, floor: float = 0.0
                   ) -> np.ndarray:
     """Per time, True where the two extrapolated values of ``name`` differ by more than the
-    sum of the two bands plus ``floor`` (an absolute allowance in the amount's unit, for
-    values near zero whose bands vanish); NaN bands count as no agreement."""
+    sum of the two bands plus ``floor``, an absolute allowance in the amount's unit for what
+    no space study sees: the integrators' time error (their rtol times the amount scale) and
+    values near zero whose bands vanish. NaN bands count as no agreement."""
     gap = np.abs(a.extrapolated[name] - b.extrapolated[name])
     allowed = a.band[name] + b.band[name] + floor
     return ~(gap <= allowed)
