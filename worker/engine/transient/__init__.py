@@ -30,7 +30,9 @@ them by the check's full name or by its family (``cross_check``, ``mass_balance`
 
 Modules: ``solve`` (the solves), ``checks`` (the checks), ``record`` (series, profile, probes,
 events), ``scales`` (scales and error measures), ``run`` (``run_transient``), ``exact_series``
-and ``eigen_roots`` (the series), ``method_of_lines`` (the finite volumes in time).
+and ``eigen_roots`` (the series), ``method_of_lines`` (the finite volumes in time),
+``galerkin`` (a second discretisation: P1 Galerkin elements and Radau IIA, with its three-mesh
+study ``galerkin_study``) and ``refinement`` (the three-mesh study of any solver's amounts).
 """
 
 from worker.engine.transient.run import run_transient
