@@ -32,8 +32,10 @@ Modules: ``solve`` (the solves), ``checks`` (the checks), ``record`` (series, pr
 events), ``scales`` (scales and error measures), ``run`` (``run_transient``), ``exact_series``
 and ``eigen_roots`` (the series), ``method_of_lines`` (the finite volumes in time), ``laplace``
 (``solve_transient_laplace``: the exact Laplace-domain solution of every linear case, any number
-of layers and every boundary kind, inverted by the fixed Talbot method; not yet used by
-``run_transient``).
+of layers and every boundary kind, inverted by the fixed Talbot method), ``galerkin`` (a second
+discretisation: P1 Galerkin elements and Radau IIA, with its three-mesh study
+``galerkin_study``), ``refinement`` (the three-mesh study of any solver's amounts), ``routes``
+(each method as a route) and ``compare`` (the route cross-checks).
 """
 
 from worker.engine.transient.run import run_transient

@@ -1,0 +1,746 @@
+"""Galerkin finite elements in space, Radau IIA in time: a second transient discretisation.
+
+This solver shares no discretisation with the method of lines (``method_of_lines``: cell-centred
+finite volumes, BDF). It exists so that transient cases without an exact series (zero-order
+consumption with exhaustion, Michaelis-Menten, several layers) are checked by a second method of
+another family, with its own three-mesh convergence study.
+
+Weak form
+---------
+The unknown is the continuous potential ``u = C/K`` (K the layer's partition coefficient), so the
+equilibrium jump ``C_a/K_a = C_b/K_b`` at an interface is built into the trial space: ``u`` is
+continuous and piecewise linear (P1) on elements that are uniform within each layer, with a node
+at the inner face, at every interface and at the outer face. Multiplying
+``K du/dt = (1/r^n) d/dr(r^n D K du/dr) - R(K u)`` by a test function ``v`` and ``r^n`` and
+integrating by parts over [a, b] gives
+
+    int K u_t v r^n dr + int D K u' v' r^n dr + int R(K u) v r^n dr
+        = a^n N_a v(a) + b^n N_b v(b),
+
+with ``N_a``, ``N_b`` the flux densities *into* the body through the inner and outer face
+(V. Thomee, *Galerkin Finite Element Methods for Parabolic Problems*, 2nd ed., Springer, 2006,
+ch. 1 and 15; K. Eriksson, D. Estep, P. Hansbo, C. Johnson, *Computational Differential
+Equations*, Cambridge, 1996, ch. 15). Every element integral is taken with the three-point
+Gauss-Legendre rule, exact for the r^n-weighted mass and stiffness (degree <= 5) and applied to
+the first-order and Michaelis-Menten reaction at the Gauss points (the consistent reaction load).
+
+Zero-order consumption jumps from Q to 0 where C reaches 0, where no Gauss rule gains accuracy;
+its load is taken by nodal quadrature, ``Q s(C_i/eps) int phi_i r^n`` (the product
+approximation of the lumped mass method, Thomee 2006, ch. 15 and 14): a node that has run out
+consumes nothing, the scheme keeps the maximum principle, and the node at a moving front
+settles inside the switch so that its share consumes what the front zone does. A node held by a
+concentration face cannot settle, so on the elements next to such a face the zero-order load is
+taken at the Gauss points instead (the nodal rule there would drop the consumption of the
+face's half element, an O(h) error in the amounts).
+
+Mass matrix: lumped (row sums of the consistent matrix, ``m_i = int K phi_i r^n``). Lumping keeps
+the P1 scheme second order in the L2 norm and in the amounts (Thomee 2006, ch. 15, Theorem
+15.1), and with the M-matrix stiffness of P1 in one dimension it keeps the discrete maximum
+principle, so that a released or consumed solute does not undershoot below zero through mass
+coupling (Thomee 2006, ch. 15 shows the consistent mass matrix does not), which the exhaustion
+of zero-order consumption and the Michaelis-Menten rate need. It also gives an ODE system
+``du/dt = f(u)`` without a mass matrix, which ``solve_ivp`` requires.
+
+Faces
+-----
+* ``concentration``: ``u`` is held at ``K_face C_fluid / K`` (strong Dirichlet); the face flux is
+  the *consistent* flux, the residual of the weak form at that node,
+  ``r^n N = (A u)_b + F_b(u)`` (the node's time derivative is zero), so the released amount is
+  exactly what the discrete balance lost (T.J.R. Hughes, L.P. Franca, I. Harari, M. Mallet,
+  F. Shakib, T.E. Spelce, "Consistent flux boundary conditions", in *Finite Element Analysis
+  for Fluid Dynamics*, ASME FED 43, 1986; P.M. Gresho, R.L. Sani, *Incompressible Flow and the
+  Finite Element Method*, Wiley, 1998, section 3.13).
+* ``mass_transfer``: ``N = h (C_bulk - K u / K_face)`` enters the weak form (Robin).
+* ``flux``: ``N`` = the value; ``symmetry``: ``N = 0``. A solid centre has zero area and carries
+  nothing, whatever its face says.
+
+Initial state
+-------------
+The piecewise-constant initial concentration is projected with the lumped mass,
+``u_i = (int C_0 phi_i r^n) / m_i``, which conserves the load ``int C_0 r^n`` exactly; the load
+itself is this module's own Gauss quadrature of the initial state. A concentration face whose
+value differs from the initial state takes its value at 0+: the amount this removes from (or
+adds to) its node, ``int C_0 phi_b r^n - m_b u_b``, is booked as released through that face at
+0+, the discrete form of the flux impulse at the instant the face is applied. At t = 0 itself
+the pre-impulse amounts are reported (nothing released).
+
+Time
+----
+The nodal values and three cumulative amounts (out through the inner face, out through the
+outer face, consumed) are integrated together by ``scipy.integrate.solve_ivp(method="Radau")``:
+the three-stage Radau IIA implicit Runge-Kutta scheme of order 5, L-stable, with error control
+(E. Hairer, G. Wanner, *Solving Ordinary Differential Equations II*, 2nd ed., Springer, 1996,
+section IV.8) - a one-step collocation scheme, not a multistep (BDF) one - with the exact sparse
+Jacobian. Zero-order consumption stops where C reaches 0: its rate ``Q [C > 0]`` is regularised
+as ``Q s(C/eps)``, ``s(x) = x^2 (3 - 2x)`` on [0, 1] (0 below, 1 above), eps =
+``ZERO_ORDER_SWITCH`` times the case's concentration scale, so the Newton iterations see a
+continuous Jacobian. Michaelis-Menten consumes nothing where C < 0 (which the maximum principle
+excludes for the exact solution).
+
+Amounts are per measure: per m^2 (slab), per m (cylinder), total (sphere).
+"""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Callable, Sequence
+from dataclasses import dataclass, field
+
+import numpy as np
+from numpy.typing import ArrayLike
+from scipy import sparse
+from scipy.integrate import solve_ivp
+
+from worker.engine.model import Boundary, Problem
+from worker.engine.transient.method_of_lines import concentration_scale
+from worker.engine.transient.refinement import AmountStudy, amount_study
+from worker.engine.transient.solution import TransientSolution
+
+#: Relative tolerance of the Radau integration (absolute tolerances scale with it).
+RTOL = 1e-6
+#: Absolute tolerance of the nodal concentrations, as a fraction of the concentration scale.
+ATOL_CONCENTRATION = 1e-8
+#: Absolute tolerance of the cumulative amounts, as a fraction of the amount scale.
+ATOL_AMOUNT = 1e-11
+#: Width of the zero-order switch, as a fraction of the concentration scale.
+ZERO_ORDER_SWITCH = 1e-6
+
+#: Mesh rule of the coarse mesh (``coarse_elements``): at least ``MIN_ELEMENTS`` per layer;
+#: ``RESISTANCE_ELEMENTS`` shared in proportion to each layer's share of the diffusion
+#: resistance; a reacting layer's element at most ``REACTION_RESOLUTION`` reaction lengths long;
+#: an element at most ``EARLY_RESOLUTION`` diffusion lengths sqrt(D t) at the first positive
+#: requested time, up to ``MAX_EARLY_ELEMENTS`` per layer. The medium and fine meshes have
+#: ``REFINEMENT_RATIO`` and its square as many elements per layer.
+MIN_ELEMENTS = 8
+RESISTANCE_ELEMENTS = 48
+REACTION_RESOLUTION = 0.4
+EARLY_RESOLUTION = 0.5
+MAX_EARLY_ELEMENTS = 200
+MAX_ELEMENTS = 2000
+REFINEMENT_RATIO = 2
+
+#: Three-point Gauss-Legendre rule on [-1, 1] (exact to degree 5).
+_GAUSS_POINTS = np.array([-math.sqrt(0.6), 0.0, math.sqrt(0.6)])
+_GAUSS_WEIGHTS = np.array([5.0, 8.0, 5.0]) / 9.0
+#: P1 shape functions of the element's inner and outer node at the Gauss points.
+_PHI_INNER = 0.5 * (1.0 - _GAUSS_POINTS)
+_PHI_OUTER = 0.5 * (1.0 + _GAUSS_POINTS)
+
+METHOD_NAME = ("Galerkin finite elements (continuous P1 in C/K, lumped mass, consistent "
+               "boundary flux), Radau IIA (solve_ivp) with error control")
+METHOD_REFERENCE = (
+    "V. Thomee, Galerkin Finite Element Methods for Parabolic Problems, 2nd ed., 2006, ch. 1 "
+    "and 15 (lumped mass); T.J.R. Hughes et al., consistent flux boundary conditions, ASME FED "
+    "43 (1986); E. Hairer, G. Wanner, Solving Ordinary Differential Equations II, 1996, "
+    "section IV.8 (Radau IIA)"
+)
+
+__all__ = [
+    "METHOD_NAME",
+    "METHOD_REFERENCE",
+    "GalerkinMesh",
+    "GalerkinStudy",
+    "TransientGalerkinSolution",
+    "build_galerkin_mesh",
+    "coarse_elements",
+    "galerkin_study",
+    "solve_transient_galerkin",
+    "solve_transient_galerkin_meshes",
+]
+
+
+@dataclass(frozen=True)
+class GalerkinMesh:
+    """P1 elements of the layered body: uniform within each layer, a node on every edge.
+
+    ``nodes`` (m), ``element_layer`` (layer index of each element), ``node_layer`` (the layer of
+    each node; an interface node belongs to the inner layer), ``elements_per_layer``.
+    """
+
+    nodes: np.ndarray
+    element_layer: np.ndarray
+    node_layer: np.ndarray
+    elements_per_layer: tuple[int, ...]
+
+    @property
+    def n_nodes(self) -> int:
+        return int(self.nodes.size)
+
+    @property
+    def n_elements(self) -> int:
+        return int(self.nodes.size - 1)
+
+
+def build_galerkin_mesh(problem: Problem, elements_per_layer) -> GalerkinMesh:
+    """The mesh with ``elements_per_layer`` (an int for every layer, or one per layer)."""
+    count = len(problem.layers)
+    if isinstance(elements_per_layer, int | np.integer):
+        counts = (int(elements_per_layer),) * count
+    else:
+        counts = tuple(int(n) for n in elements_per_layer)
+    if len(counts) != count or min(counts) < 1:
+        raise ValueError(f"elements_per_layer: expected {count} positive integers (one per "
+                         f"layer), got {elements_per_layer!r}")
+    edges = problem.edges
+    pieces = [np.array([edges[0]])]
+    for j, n in enumerate(counts):
+        inner, outer = float(edges[j]), float(edges[j + 1])
+        interior = inner + (outer - inner) * np.arange(1, n) / n
+        pieces.append(np.concatenate((interior, [outer])))
+    nodes = np.concatenate(pieces)
+    element_layer = np.repeat(np.arange(count), counts)
+    node_layer = np.concatenate(([0], element_layer))
+    return GalerkinMesh(nodes, element_layer, node_layer, counts)
+
+
+@dataclass(frozen=True)
+class _Face:
+    """One face in the form the weak form takes it: kind ``dirichlet`` (u held at ``value``),
+    ``robin`` (r^n N = weight h (bulk - K u / K_face)), ``flux`` (r^n N = weight value) or
+    ``none`` (no area, or sealed)."""
+
+    kind: str
+    weight: float = 0.0
+    value: float = 0.0
+    coefficient: float = 0.0
+    bulk: float = 0.0
+    ratio: float = 1.0  # K_layer / K_face
+
+
+def _face(problem: Problem, side: str) -> _Face:
+    boundary: Boundary = problem.inner_boundary if side == "inner" else problem.outer_boundary
+    edge = problem.inner if side == "inner" else problem.outer
+    weight = float(edge) ** problem.exponent
+    if side == "inner" and problem.solid_centre:
+        return _Face("none")
+    try:
+        condition = boundary.condition
+    except ValueError as exc:
+        raise ValueError(f"{side}_boundary.kind: {exc}") from None
+    layer = problem.layers[0] if side == "inner" else problem.layers[-1]
+    k_face = problem.face_partition(side)
+    if not (k_face > 0.0):
+        raise ValueError(f"{side}_boundary.partition: expected a positive partition "
+                         f"coefficient, got {k_face!r}")
+    fluid = condition.fluid_concentration(boundary)
+    if condition.holds_concentration and fluid is not None:
+        return _Face("dirichlet", weight, value=k_face * fluid / layer.partition)
+    film = condition.film_coefficient(boundary)
+    if film is not None:
+        if film < 0.0 or not math.isfinite(film):
+            raise ValueError(f"{side}_boundary.coefficient: expected a non-negative "
+                             f"mass-transfer coefficient (m/s), got {film!r}")
+        return _Face("robin", weight, coefficient=film, bulk=float(fluid or 0.0),
+                     ratio=layer.partition / k_face)
+    imposed = condition.imposed_flux(boundary)
+    if imposed is not None:
+        return _Face("flux", weight, value=imposed)
+    if condition.is_sealed(boundary):
+        return _Face("none")
+    raise ValueError(f"{side}_boundary.kind: {boundary.kind!r} has no form in the Galerkin "
+                     "solver (expected concentration, mass_transfer, flux or symmetry)")
+
+
+class _System:
+    """Lumped-mass P1 systems of several meshes as one block-diagonal ODE system (shared Radau
+    steps, one error norm over all meshes; each mesh's discrete solution is otherwise its own).
+
+    State: the nodal u of every mesh, one after the other, then per mesh (out_inner, out_outer,
+    consumed), r^n-weighted without the measure factor.
+    """
+
+    def __init__(self, problem: Problem, meshes: list[GalerkinMesh], c_scale: float):
+        exponent = problem.exponent
+        self.meshes = meshes
+        self.count = len(meshes)
+        sizes = [mesh.n_nodes for mesh in meshes]
+        self.node_offsets = np.concatenate(([0], np.cumsum(sizes))).astype(np.intp)
+        self.size = int(self.node_offsets[-1])
+        size = self.size
+        nodes = np.concatenate([mesh.nodes for mesh in meshes])
+        self.left = np.concatenate([offset + np.arange(mesh.n_elements) for offset, mesh
+                                    in zip(self.node_offsets[:-1], meshes, strict=True)])
+        self.right = self.left + 1
+        index = np.concatenate([mesh.element_layer for mesh in meshes])
+        self.node_mesh = np.repeat(np.arange(self.count), sizes)
+        element_mesh = self.node_mesh[self.left]
+        r1, r2 = nodes[self.left], nodes[self.right]
+        length = r2 - r1
+        points = 0.5 * (r1 + r2)[:, None] + 0.5 * length[:, None] * _GAUSS_POINTS
+        #: r^n-weighted quadrature weights at the Gauss points, shape (elements, 3)
+        weights = 0.5 * length[:, None] * _GAUSS_WEIGHTS * points**exponent
+        layers = problem.layers
+        self.partition = np.array([ly.partition for ly in layers])[index]
+        diffusivity = np.array([ly.diffusivity for ly in layers])[index]
+        weighted_length = weights.sum(axis=1)  # int r^n dr over each element
+        self.stiffness = diffusivity * self.partition * weighted_length / length**2
+        self.inner_load = (weights * _PHI_INNER).sum(axis=1)  # int phi_inner r^n
+        self.outer_load = (weights * _PHI_OUTER).sum(axis=1)
+        self.lumped = self._gather(self.partition * self.inner_load,
+                                   self.partition * self.outer_load)
+        initial = np.array([ly.initial for ly in layers])[index]
+        self.initial_nodal_load = self._gather(initial * self.inner_load,
+                                               initial * self.outer_load)
+        self.initial_loads = np.bincount(element_mesh, initial * weighted_length,
+                                         minlength=self.count)
+        constants = np.array([ly.reaction.law.fv_constants(ly.reaction, j)
+                              for j, ly in enumerate(layers)], dtype=float).reshape(-1, 4)
+        self.inner = _face(problem, "inner")
+        self.outer = _face(problem, "outer")
+        self.inner_nodes = self.node_offsets[:-1].copy()
+        self.outer_nodes = self.node_offsets[1:] - 1
+        held = np.zeros(size, dtype=bool)
+        for face, nodes_of_face in ((self.inner, self.inner_nodes),
+                                    (self.outer, self.outer_nodes)):
+            if face.kind == "dirichlet":
+                held[nodes_of_face] = True
+        self.free = ~held
+        # first order, Michaelis-Menten, and zero order next to a held face: Gauss quadrature
+        zero_rate = constants[index, 3]
+        by_node = (zero_rate > 0.0) & ~held[self.left] & ~held[self.right]
+        gauss = (constants[index, 0] > 0.0) | (constants[index, 1] > 0.0) | (
+            (zero_rate > 0.0) & ~by_node)
+        self.smooth = np.flatnonzero(gauss)
+        self.smooth_weights = weights[gauss]
+        self.first_order = constants[index, 0][gauss]
+        self.vmax = constants[index, 1][gauss]
+        self.km = np.where(self.vmax > 0.0, constants[index, 2][gauss], 1.0)
+        self.smooth_zero_rate = np.where(by_node[gauss], 0.0, zero_rate[gauss])
+        self.has_saturable = bool(np.any(self.vmax > 0.0))
+        self.has_smooth_zero = bool(np.any(self.smooth_zero_rate > 0.0))
+        # zero order elsewhere: nodal quadrature (see ``_zero_order``)
+        self.zero = np.flatnonzero(by_node)
+        self.zero_rate = zero_rate[by_node]
+        self.has_zero_order = bool(np.any(zero_rate > 0.0))
+        self.epsilon = ZERO_ORDER_SWITCH * c_scale
+        self.reacts = bool(self.smooth.size or self.zero.size)
+        self.first_elements = self.inner_nodes - np.arange(self.count)
+        self.last_elements = self.outer_nodes - 1 - np.arange(self.count)
+        free = self.free
+        self.inverse_mass = np.where(free, 1.0 / self.lumped, 0.0)
+        self.amount_rows = size + 3 * np.arange(self.count)
+
+    def _gather(self, at_left: np.ndarray, at_right: np.ndarray) -> np.ndarray:
+        """Element contributions to their inner and outer node, summed per node."""
+        return (np.bincount(self.left, at_left, minlength=self.size)
+                + np.bincount(self.right, at_right, minlength=self.size))
+
+    # ---------------------------------------------------------------------------------------
+    def initial_state(self) -> np.ndarray:
+        """State at 0+: lumped projection of the initial state, concentration faces at their
+        value and the amount that moves at that instant booked as released there."""
+        u = self.initial_nodal_load / self.lumped
+        amounts = np.zeros((self.count, 3))
+        for k, (face, held) in enumerate(((self.inner, self.inner_nodes),
+                                          (self.outer, self.outer_nodes))):
+            if face.kind == "dirichlet":
+                amounts[:, k] = self.initial_nodal_load[held] - self.lumped[held] * face.value
+                u[held] = face.value
+        return np.concatenate((u, amounts.ravel()))
+
+    def stiffness_apply(self, u: np.ndarray) -> np.ndarray:
+        """A u with A the r^n-weighted stiffness matrix int D K phi_i' phi_j' r^n."""
+        flow = self.stiffness * (u[self.right] - u[self.left])
+        return self._gather(-flow, flow)
+
+    def _zero_order(self, u: np.ndarray, slopes: bool):
+        """Zero-order load by nodal quadrature, ``Q s(C_node/eps) int phi_i r^n``: the rate
+        jumps at C = 0, where Gauss points gain nothing in accuracy, and a node that has run
+        out then consumes nothing (the lumped scheme keeps the maximum principle). Returns the
+        element's (inner, outer) loads and, with ``slopes``, their derivatives."""
+        k = self.partition[self.zero]
+        values = []
+        for nodes, load in ((self.left, self.inner_load), (self.right, self.outer_load)):
+            x = np.clip(k * u[nodes[self.zero]] / self.epsilon, 0.0, 1.0)
+            weight = self.zero_rate * load[self.zero]
+            values.append(weight * x * x * (3.0 - 2.0 * x))
+            if slopes:
+                values.append(weight * 6.0 * x * (1.0 - x) * k / self.epsilon)
+        return values
+
+    def _smooth(self, u: np.ndarray, slopes: bool):
+        """First-order and Michaelis-Menten load by three-point Gauss quadrature,
+        ``int R(K u_h) phi_i r^n``, and with ``slopes`` the element Jacobian blocks."""
+        e = self.smooth
+        k = self.partition[e][:, None]
+        c = k * (u[self.left[e], None] * _PHI_INNER + u[self.right[e], None] * _PHI_OUTER)
+        rate = self.first_order[:, None] * c
+        slope = np.broadcast_to(self.first_order[:, None], c.shape)
+        if self.has_saturable:
+            live = np.maximum(c, 0.0)
+            km = self.km[:, None]
+            vmax = self.vmax[:, None]
+            rate = rate + vmax * live / (km + live)
+            if slopes:
+                slope = slope + np.where(c > 0.0, vmax * km / (km + live) ** 2, 0.0)
+        if self.has_smooth_zero:
+            x = np.clip(c / self.epsilon, 0.0, 1.0)
+            q = self.smooth_zero_rate[:, None]
+            rate = rate + q * x * x * (3.0 - 2.0 * x)
+            if slopes:
+                slope = slope + q * 6.0 * x * (1.0 - x) / self.epsilon
+        weighted = self.smooth_weights * rate
+        values = [weighted @ _PHI_INNER, weighted @ _PHI_OUTER]
+        if slopes:
+            weighted_slope = self.smooth_weights * slope * k
+            values += [weighted_slope @ (_PHI_INNER * _PHI_INNER),
+                       weighted_slope @ (_PHI_OUTER * _PHI_OUTER),
+                       weighted_slope @ (_PHI_INNER * _PHI_OUTER)]
+        return values
+
+    def reaction_load(self, u: np.ndarray) -> np.ndarray:
+        """Nodal reaction load F_i (r^n-weighted consumption per node)."""
+        load = np.zeros(self.size)
+        if self.smooth.size:
+            inner, outer = self._smooth(u, False)
+            load += (np.bincount(self.left[self.smooth], inner, minlength=self.size)
+                     + np.bincount(self.right[self.smooth], outer, minlength=self.size))
+        if self.zero.size:
+            inner, outer = self._zero_order(u, False)
+            load += (np.bincount(self.left[self.zero], inner, minlength=self.size)
+                     + np.bincount(self.right[self.zero], outer, minlength=self.size))
+        return load
+
+    def face_inflows(self, u: np.ndarray, balance: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+        """r^n-weighted inflow through the inner and outer face of each mesh; ``balance`` is
+        A u + F(u), whose row at a held node is its consistent flux."""
+        inflows = []
+        for face, held in ((self.inner, self.inner_nodes), (self.outer, self.outer_nodes)):
+            if face.kind == "dirichlet":
+                inflows.append(balance[held])
+            elif face.kind == "robin":
+                inflows.append(face.weight * face.coefficient
+                               * (face.bulk - face.ratio * u[held]))
+            elif face.kind == "flux":
+                inflows.append(np.full(self.count, face.weight * face.value))
+            else:
+                inflows.append(np.zeros(self.count))
+        return inflows[0], inflows[1]
+
+    def __call__(self, t: float, y: np.ndarray) -> np.ndarray:
+        u = y[: self.size]
+        load = self.reaction_load(u) if self.reacts else np.zeros(self.size)
+        balance = self.stiffness_apply(u) + load
+        inflow_inner, inflow_outer = self.face_inflows(u, balance)
+        residual = -balance
+        if self.inner.kind != "dirichlet":
+            residual[self.inner_nodes] += inflow_inner
+        if self.outer.kind != "dirichlet":
+            residual[self.outer_nodes] += inflow_outer
+        out = np.empty_like(y)
+        out[: self.size] = residual * self.inverse_mass
+        out[self.amount_rows] = -inflow_inner
+        out[self.amount_rows + 1] = -inflow_outer
+        out[self.amount_rows + 2] = np.bincount(self.node_mesh, load, minlength=self.count)
+        return out
+
+    def jacobian(self, t: float, y: np.ndarray) -> sparse.csc_matrix:
+        """Exact Jacobian (CSC) of ``__call__``."""
+        size = self.size
+        u = y[:size]
+        # d(A u + F)/du: diagonal ``main``, per element the coupling ``off`` of its two nodes
+        main = self._gather(self.stiffness, self.stiffness)
+        off = -self.stiffness.copy()
+        column_sums = np.zeros(size)  # d(sum of F)/du_j
+        if self.smooth.size:
+            _, _, inner, outer, coupling = self._smooth(u, True)
+            e = self.smooth
+            main += (np.bincount(self.left[e], inner, minlength=size)
+                     + np.bincount(self.right[e], outer, minlength=size))
+            off[e] += coupling
+            column_sums += (np.bincount(self.left[e], inner + coupling, minlength=size)
+                            + np.bincount(self.right[e], outer + coupling, minlength=size))
+        if self.zero.size:
+            _, inner, _, outer = self._zero_order(u, True)
+            e = self.zero
+            nodal = (np.bincount(self.left[e], inner, minlength=size)
+                     + np.bincount(self.right[e], outer, minlength=size))
+            main += nodal
+            column_sums += nodal
+        scale = self.inverse_mass
+        index = np.arange(size)
+        rows = [index, self.right, self.left]
+        cols = [index, self.left, self.right]
+        data = [-main * scale, -off * scale[self.right], -off * scale[self.left]]
+        for k, (face, held, elements, neighbours) in enumerate((
+                (self.inner, self.inner_nodes, self.first_elements, self.inner_nodes + 1),
+                (self.outer, self.outer_nodes, self.last_elements, self.outer_nodes - 1))):
+            amount = self.amount_rows + k
+            if face.kind == "dirichlet":
+                # inflow = (A u + F)_held: its derivative is that node's row
+                rows += [amount, amount]
+                cols += [held, neighbours]
+                data += [-main[held], -off[elements]]
+            elif face.kind == "robin":
+                slope = -face.weight * face.coefficient * face.ratio
+                rows += [held, amount]
+                cols += [held, held]
+                data += [slope * scale[held], np.full(self.count, -slope)]
+        rows.append(self.amount_rows[self.node_mesh] + 2)
+        cols.append(index)
+        data.append(column_sums)
+        total = size + 3 * self.count
+        matrix = sparse.coo_matrix(
+            (np.concatenate(data), (np.concatenate(rows), np.concatenate(cols))),
+            shape=(total, total))
+        return matrix.tocsc()
+
+
+@dataclass
+class TransientGalerkinSolution(TransientSolution):
+    """Galerkin solution at the requested times (amounts and fluxes: see
+    :class:`~worker.engine.transient.solution.TransientSolution`).
+
+    ``nodal`` holds C/K at the nodes, shape (len(times), nodes); ``mesh`` the elements.
+    ``concentration_at(r, times)`` gives C (amount/m^3), shape (len(times), len(r)), at any
+    times in [start, end] (the integrator's dense output; an r on an interface takes the inner
+    layer's value). ``state_at(t)`` is the dense output of (u, out_inner, out_outer, consumed),
+    r^n-weighted without the measure factor.
+    """
+
+    success: bool
+    message: str
+    mesh: GalerkinMesh
+    nodal: np.ndarray
+    concentration_at: Callable[[ArrayLike, ArrayLike], np.ndarray]
+    state_at: Callable[[ArrayLike], np.ndarray]
+    diagnostics: dict = field(default_factory=dict)
+
+
+def coarse_elements(problem: Problem, first_time: float | None = None) -> tuple[int, ...]:
+    """Elements per layer of the coarse mesh of ``galerkin_study`` (see the ``MIN_ELEMENTS``
+    group of constants for the rule)."""
+    _check_case(problem)
+    layers = problem.layers
+    resistances = [ly.thickness / (ly.diffusivity * ly.partition) for ly in layers]
+    total = sum(resistances)
+    c_scale = concentration_scale(problem)
+    counts = []
+    for layer, resistance in zip(layers, resistances, strict=True):
+        n = max(MIN_ELEMENTS, math.ceil(RESISTANCE_ELEMENTS * resistance / total))
+        inverse = layer.reaction.law.inverse_length(layer.reaction, layer.diffusivity, c_scale)
+        if inverse > 0.0:
+            n = max(n, math.ceil(layer.thickness * inverse / REACTION_RESOLUTION))
+        if first_time is not None and first_time > 0.0:
+            early = math.ceil(layer.thickness
+                              / (EARLY_RESOLUTION * math.sqrt(layer.diffusivity * first_time)))
+            n = max(n, min(early, MAX_EARLY_ELEMENTS))
+        counts.append(min(n, MAX_ELEMENTS))
+    return tuple(counts)
+
+
+def _check_case(problem: Problem) -> None:
+    """ValueError naming the field of a layer or face that cannot be used."""
+    for j, ly in enumerate(problem.layers):
+        for name, value in (("partition", ly.partition), ("diffusivity", ly.diffusivity),
+                            ("thickness", ly.thickness)):
+            if not (value > 0.0 and math.isfinite(value)):
+                raise ValueError(f"layers[{j}].{name}: expected a positive finite value, "
+                                 f"got {value!r}")
+    _face(problem, "inner")
+    _face(problem, "outer")
+
+
+def _times(problem: Problem, times, end, start) -> tuple[np.ndarray, float]:
+    times = np.asarray(problem.regime.times if times is None else times, dtype=float)
+    if times.ndim != 1 or times.size == 0 or not np.all(np.isfinite(times)):
+        raise ValueError(f"times: expected a non-empty list of finite times in s, got {times!r}")
+    if np.any(np.diff(times) < 0.0):
+        raise ValueError("times: expected increasing times")
+    duration = problem.regime.duration
+    if end is None:
+        end = float(max(times[-1], duration if duration is not None else times[-1]))
+    if times[0] < start or times[-1] > end * (1.0 + 1e-12):
+        raise ValueError(f"times: expected values within [{start}, {end}] s, got {times!r}")
+    return times, float(end)
+
+
+def solve_transient_galerkin(
+    problem: Problem,
+    times=None,
+    elements_per_layer=None,
+    *,
+    rtol: float = RTOL,
+    end: float | None = None,
+) -> TransientGalerkinSolution:
+    """Solve a transient case by P1 Galerkin elements and Radau IIA, at the requested times.
+
+    Parameters
+    ----------
+    problem : Problem
+        Normalised case (SI): any number of layers, every reaction and boundary kind, slab,
+        cylinder or sphere (a solid centre included), piecewise-constant initial state.
+    times : array_like, optional
+        Output times in s (default ``problem.regime.times``), increasing, within [0, end].
+    elements_per_layer : int or sequence of int, optional
+        Elements per layer (default: the fine mesh of ``galerkin_study``, four times
+        ``coarse_elements``).
+    rtol : float
+        Relative tolerance of the integrator (absolute tolerances scale with it).
+    end : float, optional
+        End of the integration, s (default: the regime's duration, or the last time).
+
+    Returns
+    -------
+    TransientGalerkinSolution
+        ``success`` False (with the integrator's message) when the integration failed.
+    """
+    if elements_per_layer is None:
+        times_array = np.asarray(problem.regime.times if times is None else times, dtype=float)
+        positive = times_array[times_array > 0.0]
+        first = float(positive.min()) if positive.size else None
+        elements_per_layer = tuple(REFINEMENT_RATIO**2 * n
+                                   for n in coarse_elements(problem, first))
+    return solve_transient_galerkin_meshes(problem, [elements_per_layer], times, rtol=rtol,
+                                           end=end)[0]
+
+
+def solve_transient_galerkin_meshes(
+    problem: Problem,
+    meshes: Sequence,
+    times=None,
+    *,
+    rtol: float = RTOL,
+    end: float | None = None,
+) -> list[TransientGalerkinSolution]:
+    """Integrate several meshes as one block-diagonal system (shared Radau steps, one error
+    norm over all); each mesh's discrete solution is otherwise its own. Parameters as
+    ``solve_transient_galerkin``; ``meshes`` is a list of ``elements_per_layer``."""
+    _check_case(problem)
+    times, end = _times(problem, times, end, 0.0)
+    c_scale = concentration_scale(problem)
+    built = [build_galerkin_mesh(problem, spec) for spec in meshes]
+    system = _System(problem, built, c_scale)
+    y0 = system.initial_state()
+    amount_scale = np.maximum(np.abs(system.initial_loads),
+                              c_scale * np.bincount(system.node_mesh, system.lumped)
+                              / max(ly.partition for ly in problem.layers))
+    u_scale = c_scale / min(ly.partition for ly in problem.layers)
+    atol = np.concatenate((np.full(system.size, ATOL_CONCENTRATION * u_scale),
+                           np.repeat(ATOL_AMOUNT * amount_scale, 3))) * (rtol / RTOL)
+    span_end = max(end, 1e-300)
+    result = solve_ivp(system, (0.0, span_end), y0, method="Radau",
+                       t_eval=np.clip(times, 0.0, span_end), dense_output=True, rtol=rtol,
+                       atol=atol, jac=system.jacobian)
+    success = bool(result.success) and result.y.shape[1] == times.size
+    states = result.y if success else np.full((y0.size, times.size), np.nan)
+    inflows = np.zeros((2, times.size, system.count))
+    for k in range(times.size):
+        u = states[: system.size, k]
+        load = system.reaction_load(u) if system.reacts else np.zeros(system.size)
+        inflows[:, k] = system.face_inflows(u, system.stiffness_apply(u) + load)
+    return [_package(problem, system, g, times, states, inflows[:, :, g], success, result,
+                     rtol) for g in range(system.count)]
+
+
+def _package(problem: Problem, system: _System, g: int, times: np.ndarray, states: np.ndarray,
+             inflows: np.ndarray, success: bool, result, rtol: float
+             ) -> TransientGalerkinSolution:
+    mesh = system.meshes[g]
+    low, high = int(system.node_offsets[g]), int(system.node_offsets[g + 1])
+    row = int(system.amount_rows[g])
+    n = high - low
+    measure = problem.measure_factor
+    nodal = states[low:high].T
+    remaining = measure * (nodal @ system.lumped[low:high])
+    out_inner, out_outer, consumed = (measure * states[row + k].copy() for k in range(3))
+    initial_load = measure * float(system.initial_loads[g])
+    at_start = times == 0.0
+    remaining[at_start] = initial_load
+    out_inner[at_start] = 0.0
+    out_outer[at_start] = 0.0
+    weight_inner = float(problem.inner) ** problem.exponent
+    weight_outer = float(problem.outer) ** problem.exponent
+    # outward flux density J (toward larger r): J_inner = inflow, J_outer = -inflow
+    flux_inner = inflows[0] / weight_inner if weight_inner > 0.0 else np.zeros(times.size)
+    flux_outer = -inflows[1] / weight_outer
+    dense = result.sol
+    partitions = np.array([ly.partition for ly in problem.layers])
+
+    def state_at(t):
+        if dense is None:
+            raise ValueError("no dense output: the integration failed")
+        values = dense(np.asarray(t, dtype=float))
+        return np.concatenate((values[low:high], values[row:row + 3]))
+
+    def concentration_at(r, at_times):
+        r = np.atleast_1d(np.asarray(r, dtype=float))
+        t = np.atleast_1d(np.asarray(at_times, dtype=float))
+        span = mesh.nodes[-1] - mesh.nodes[0]
+        if np.any(r < mesh.nodes[0] - 1e-12 * span) or np.any(r > mesh.nodes[-1] + 1e-12 * span):
+            raise ValueError(f"r: expected positions within [{mesh.nodes[0]}, "
+                             f"{mesh.nodes[-1]}] m, got {r!r}")
+        layer = np.clip(np.searchsorted(problem.edges, r, side="left") - 1, 0,
+                        len(problem.layers) - 1)
+        rows = np.array([state_at(tk)[:n] for tk in t])
+        return np.array([np.interp(r, mesh.nodes, u) for u in rows]) * partitions[layer]
+
+    return TransientGalerkinSolution(
+        method=METHOD_NAME,
+        reference=METHOD_REFERENCE,
+        times=times,
+        remaining=remaining,
+        released_inner=out_inner,
+        released_outer=out_outer,
+        consumed=consumed,
+        flux_inner=flux_inner,
+        flux_outer=flux_outer,
+        initial_load=initial_load,
+        success=success,
+        message=str(result.message),
+        mesh=mesh,
+        nodal=nodal,
+        concentration_at=concentration_at,
+        state_at=state_at,
+        diagnostics={
+            "nodes": n,
+            "elements_per_layer": list(mesh.elements_per_layer),
+            "steps": int(dense.ts.size - 1) if dense is not None else 0,
+            "rhs_evaluations": int(result.nfev),
+            "jacobian_evaluations": int(result.njev),
+            "lu_decompositions": int(result.nlu),
+            "rtol": float(rtol),
+            "meshes_integrated_together": system.count,
+            "zero_order_switch": system.epsilon if system.has_zero_order else None,
+        },
+    )
+
+
+@dataclass
+class GalerkinStudy:
+    """Three-mesh study of the Galerkin solution (coarse, medium, fine: ratio 2).
+
+    ``solutions`` coarse to fine; ``amounts`` the :class:`~worker.engine.transient.refinement.
+    AmountStudy` of every amount and face flux at each requested time (extrapolated values,
+    GCI and its absolute band, observed orders).
+    """
+
+    solutions: list[TransientGalerkinSolution]
+    amounts: AmountStudy
+
+    @property
+    def fine(self) -> TransientGalerkinSolution:
+        return self.solutions[-1]
+
+    @property
+    def success(self) -> bool:
+        return all(s.success for s in self.solutions)
+
+
+def galerkin_study(problem: Problem, times=None, coarse=None, *, rtol: float = RTOL,
+                   end: float | None = None) -> GalerkinStudy:
+    """Solve on three meshes (``coarse`` elements per layer, default ``coarse_elements``; then
+    twice and four times as many) and study each amount per requested time by
+    ``convergence.grid_study`` (Celik et al. 2008): observed order, Richardson extrapolation,
+    GCI."""
+    times_array, end = _times(problem, times, end, 0.0)
+    if coarse is None:
+        positive = times_array[times_array > 0.0]
+        coarse = coarse_elements(problem, float(positive.min()) if positive.size else None)
+    elif isinstance(coarse, int | np.integer):
+        coarse = (int(coarse),) * len(problem.layers)
+    meshes = [tuple(REFINEMENT_RATIO**k * int(n) for n in coarse) for k in range(3)]
+    solutions = solve_transient_galerkin_meshes(problem, meshes, times_array, rtol=rtol,
+                                                end=end)
+    sizes = [sum(mesh) for mesh in meshes]
+    return GalerkinStudy(solutions, amount_study(solutions, sizes))
