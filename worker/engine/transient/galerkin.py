@@ -492,7 +492,8 @@ class TransientGalerkinSolution(TransientSolution):
     :class:`~worker.engine.transient.solution.TransientSolution`).
 
     ``nodal`` holds C/K at the nodes, shape (len(times), nodes); ``mesh`` the elements.
-    ``concentration_at(r, times)`` gives C (amount/m^3), shape (len(times), len(r)), at any
+    ``concentration_at(r, times, layer=None)`` gives C (amount/m^3), shape (len(times), len(r)),
+    read in ``layer`` when given (both sides of a partition jump), at any
     times in [start, end] (the integrator's dense output; an r on an interface takes the inner
     layer's value). ``state_at(t)`` is the dense output of (u, out_inner, out_outer, consumed),
     r^n-weighted without the measure factor.
@@ -502,7 +503,7 @@ class TransientGalerkinSolution(TransientSolution):
     message: str
     mesh: GalerkinMesh
     nodal: np.ndarray
-    concentration_at: Callable[[ArrayLike, ArrayLike], np.ndarray]
+    concentration_at: Callable[..., np.ndarray]
     state_at: Callable[[ArrayLike], np.ndarray]
     diagnostics: dict = field(default_factory=dict)
 
@@ -663,17 +664,17 @@ def _package(problem: Problem, system: _System, g: int, times: np.ndarray, state
         values = dense(np.asarray(t, dtype=float))
         return np.concatenate((values[low:high], values[row:row + 3]))
 
-    def concentration_at(r, at_times):
+    def concentration_at(r, at_times, layer: int | None = None):
         r = np.atleast_1d(np.asarray(r, dtype=float))
         t = np.atleast_1d(np.asarray(at_times, dtype=float))
         span = mesh.nodes[-1] - mesh.nodes[0]
         if np.any(r < mesh.nodes[0] - 1e-12 * span) or np.any(r > mesh.nodes[-1] + 1e-12 * span):
             raise ValueError(f"r: expected positions within [{mesh.nodes[0]}, "
                              f"{mesh.nodes[-1]}] m, got {r!r}")
-        layer = np.clip(np.searchsorted(problem.edges, r, side="left") - 1, 0,
-                        len(problem.layers) - 1)
+        layers = np.clip(np.searchsorted(problem.edges, r, side="left") - 1, 0,
+                         len(problem.layers) - 1) if layer is None else np.full(r.size, layer)
         rows = np.array([state_at(tk)[:n] for tk in t])
-        return np.array([np.interp(r, mesh.nodes, u) for u in rows]) * partitions[layer]
+        return np.array([np.interp(r, mesh.nodes, u) for u in rows]) * partitions[layers]
 
     return TransientGalerkinSolution(
         method=METHOD_NAME,
@@ -696,6 +697,7 @@ def _package(problem: Problem, system: _System, g: int, times: np.ndarray, state
             "nodes": n,
             "elements_per_layer": list(mesh.elements_per_layer),
             "steps": int(dense.ts.size - 1) if dense is not None else 0,
+            "step_times": None if dense is None else np.asarray(dense.ts, dtype=float),
             "rhs_evaluations": int(result.nfev),
             "jacobian_evaluations": int(result.njev),
             "lu_decompositions": int(result.nlu),

@@ -13,9 +13,11 @@ from __future__ import annotations
 
 import numpy as np
 
+from worker.engine import convergence
 from worker.engine.model import Problem
 from worker.engine.outcome import Outcome
 from worker.engine.transient.exact_series import TransientSeriesSolution
+from worker.engine.transient.galerkin import GalerkinStudy, TransientGalerkinSolution
 from worker.engine.transient.laplace import TransientLaplaceSolution, solve_transient_laplace
 from worker.engine.transient.method_of_lines import TransientFVSolution
 from worker.engine.transient.scales import first_crossing
@@ -26,7 +28,7 @@ LAPLACE_EVENT_SCAN_POINTS = 48
 #: Release levels of the events.
 EVENT_LEVELS = (("t50", 0.5), ("t90", 0.9))
 
-__all__ = ["EVENT_LEVELS", "fv_route", "laplace_route", "series_route"]
+__all__ = ["EVENT_LEVELS", "fv_route", "galerkin_route", "laplace_route", "series_route"]
 
 
 def _events(outcome: Outcome, key: str) -> dict[str, float | None]:
@@ -100,3 +102,61 @@ def laplace_route(problem: Problem, solution: TransientLaplaceSolution, internal
     return Route(solution.method, solution.reference, solution.amounts(),
                  float(solution.initial_load), everywhere, everywhere, profile,
                  laplace_events(problem, solution, duration))
+
+
+def _galerkin_fraction(solution: TransientGalerkinSolution, problem: Problem):
+    """Released / own load of one Galerkin mesh at any t, from its dense output."""
+    nodes = solution.mesh.nodes.size
+    measure = problem.measure_factor
+
+    def fraction(t: np.ndarray) -> np.ndarray:
+        state = solution.state_at(np.asarray(t, dtype=float))
+        return measure * (state[nodes] + state[nodes + 1]) / solution.initial_load
+
+    return fraction
+
+
+def galerkin_events(problem: Problem, study: GalerkinStudy, duration: float
+                    ) -> dict[str, float | None]:
+    """t50/t90 of the Galerkin route: the first crossing on each mesh's step times (refined by
+    ``brentq`` on its dense output), Richardson-extrapolated over the three meshes where they
+    converge monotonically (Celik et al. 2008), else the fine mesh's."""
+    fine = study.fine
+    if fine.initial_load <= 0.0:
+        return {}
+    meshes = list(reversed(study.solutions))  # fine, medium, coarse
+    sizes = [float(sum(s.mesh.elements_per_layer)) for s in meshes]
+    events: dict[str, float | None] = {}
+    for name, level in EVENT_LEVELS:
+        per_mesh = []
+        for solution in meshes:
+            steps = solution.diagnostics.get("step_times")
+            grid = np.union1d(np.asarray(steps if steps is not None else solution.times,
+                                         dtype=float), solution.times)
+            grid = grid[(grid > 0.0) & (grid <= duration)]
+            per_mesh.append(first_crossing(_galerkin_fraction(solution, problem), grid, level)
+                            if grid.size else None)
+        value = per_mesh[0]
+        if all(t is not None for t in per_mesh):
+            found = convergence.grid_study([float(t) for t in per_mesh if t is not None], sizes)
+            if found.convergence == "monotonic" and np.isfinite(found.extrapolated):
+                value = float(found.extrapolated)
+        events[name] = value
+    return events
+
+
+def galerkin_route(problem: Problem, study: GalerkinStudy, internal: np.ndarray,
+                   duration: float) -> Route:
+    """The Galerkin second discretisation: its three-mesh extrapolated amounts
+    (``refinement.amount_study``), the fine mesh's own load and profiles."""
+    fine = study.fine
+    everywhere = np.ones(internal.size, dtype=bool)
+
+    def profile(r: np.ndarray, k: int, layer: int) -> np.ndarray:
+        return np.asarray(fine.concentration_at(r, [internal[k]], layer)[0], dtype=float)
+
+    return Route(f"{fine.method} (three meshes, extrapolated)",
+                 fine.reference + "; three meshes, Richardson extrapolation (Celik et al., "
+                 "J. Fluids Eng. 130 (2008) 078001)",
+                 dict(study.amounts.extrapolated), float(fine.initial_load), everywhere,
+                 everywhere, profile, galerkin_events(problem, study, duration))

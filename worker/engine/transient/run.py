@@ -9,6 +9,7 @@ from worker.engine.model import Problem
 from worker.engine.outcome import Outcome
 from worker.engine.transient import checks, exact_series, method_of_lines
 from worker.engine.transient.compare import compare_routes, reported_series_sign_check
+from worker.engine.transient.galerkin import galerkin_study
 from worker.engine.transient.laplace import METHOD_NAME as LAPLACE_METHOD
 from worker.engine.transient.laplace import laplace_unsupported_reason, solve_transient_laplace
 from worker.engine.transient.record import (
@@ -19,7 +20,7 @@ from worker.engine.transient.record import (
     profile_positions,
     report_events,
 )
-from worker.engine.transient.routes import fv_route, laplace_route, series_route
+from worker.engine.transient.routes import fv_route, galerkin_route, laplace_route, series_route
 from worker.engine.transient.scales import size_factor
 from worker.engine.transient.solution import Route
 from worker.engine.transient.solve import (
@@ -81,6 +82,9 @@ def run_transient(problem: Problem, independent: Problem | None = None) -> Outco
     exact_primary = use_series or laplace is not None
     lines_problem = independent if exact_primary else problem
     fvs = fv_on_meshes(lines_problem, internal, duration)
+    # Without an exact route (nonlinear kinetics) the second discretisation is the independent
+    # route, on the independent reading.
+    study = None if exact_primary else galerkin_study(independent, internal, end=duration)
     fine, coarse = fvs[2], fvs[0]
     outcome.diagnostics["meshes"] = [f.diagnostics["cells_per_layer"] for f in fvs]
     outcome.diagnostics["fv_steps"] = [f.diagnostics["steps"] for f in fvs]
@@ -103,6 +107,13 @@ def run_transient(problem: Problem, independent: Problem | None = None) -> Outco
     fv_name = f"{fine.method} (three meshes, extrapolated)"
     add_events(outcome, lines_problem, series, scan, fvs, duration)
     routes = [fv_route(fv_name, fine, numerical, internal, outcome)]
+    if study is not None:
+        if study.success:
+            routes.append(galerkin_route(independent, study, internal, duration))
+        else:
+            failed_mesh = next(s for s in study.solutions if not s.success)
+            outcome.add_check("cross_check.independent", None, None, False,
+                              f"the second discretisation failed: {failed_mesh.message}")
     if laplace is not None:
         routes.insert(0, laplace_route(laplace_problem, laplace, internal, duration))
     if series is not None and at is not None:

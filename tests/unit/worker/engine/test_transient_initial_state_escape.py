@@ -34,6 +34,8 @@ def _coating(reaction: Reaction) -> Problem:
 CASES = {
     "linear": _coating(Reaction()),
     "first order": _coating(Reaction("first_order", rate_constant=2e-5)),
+    "zero order": _coating(Reaction("zero_order", rate=2e-4)),
+    "Michaelis-Menten": _coating(Reaction("michaelis_menten", vmax=2e-4, km=0.5)),
 }
 
 
