@@ -44,7 +44,8 @@ STEADY_LIMITS: Mapping[str, float] = {
 #: 1e-3, since right after a discontinuous start at a fixed face the flux of any finite mesh
 #: converges more slowly than the released amount.
 TRANSIENT_LIMITS: Mapping[str, float] = {
-    "cross_check": 1e-3,  # face fluxes, probes: relative, with an absolute floor
+    "cross_check": 1e-3,  # face fluxes, probes, profile, amounts held and consumed
+    "cross_check.initial_load": 1e-9,  # each route's own quadrature of a piecewise-constant state
     "cross_check.release_fraction": 1e-4,
     "cross_check.released": 1e-4,
     "cross_check.t50": 1e-4,
