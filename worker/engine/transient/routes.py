@@ -5,8 +5,10 @@ the internal times, its own initial load, its profile at any internal time and i
   form) converge; events by a log scan of its closed-form amounts, each divided by its own load;
 * the exact Laplace-domain solution (any layers, linear kinetics): usable at every time; events
   by a scan of its inverted amounts refined by ``brentq``;
-* the method of lines: the three-mesh extrapolated amounts, the fine mesh's load and profiles,
-  its extrapolated events (``record.add_events``).
+* the Galerkin second discretisation: its three-mesh extrapolated amounts, the fine mesh's load
+  and profiles with the band |fine - medium|, its extrapolated events;
+* the method of lines: the three-mesh extrapolated amounts, the fine mesh's load and profiles
+  with the band |fine - medium|, its extrapolated events (``record.add_events``).
 """
 
 from __future__ import annotations
@@ -39,18 +41,25 @@ def _events(outcome: Outcome, key: str) -> dict[str, float | None]:
 
 
 def fv_route(name: str, fine: TransientFVSolution, numerical: dict[str, np.ndarray],
-             internal: np.ndarray, outcome: Outcome) -> Route:
+             internal: np.ndarray, outcome: Outcome,
+             medium: TransientFVSolution | None = None) -> Route:
     """The method of lines: extrapolated amounts, the fine mesh's own load and profiles (linear
-    between cell centres), its extrapolated t50/t90 (from ``diagnostics["events"]``)."""
+    between cell centres) with the band |fine - medium|, its extrapolated t50/t90 (from
+    ``diagnostics["events"]``)."""
     everywhere = np.ones(internal.size, dtype=bool)
 
     def profile(r: np.ndarray, k: int, layer: int) -> np.ndarray:
         return np.asarray(fine.profile_at(k)[0](r, layer=layer), dtype=float)
 
+    def band(r: np.ndarray, k: int, layer: int) -> np.ndarray:
+        assert medium is not None
+        return np.abs(profile(r, k, layer)
+                      - np.asarray(medium.profile_at(k)[0](r, layer=layer), dtype=float))
+
     reference = (fine.reference + "; three meshes, Richardson extrapolation (Celik et al., "
                  "J. Fluids Eng. 130 (2008) 078001)")
     return Route(name, reference, numerical, float(fine.initial_load), everywhere, everywhere,
-                 profile, _events(outcome, "numerical"))
+                 profile, _events(outcome, "numerical"), band if medium is not None else None)
 
 
 def series_route(series: TransientSeriesSolution, at: np.ndarray, internal: np.ndarray,
@@ -149,14 +158,18 @@ def galerkin_route(problem: Problem, study: GalerkinStudy, internal: np.ndarray,
                    duration: float) -> Route:
     """The Galerkin second discretisation: its three-mesh extrapolated amounts
     (``refinement.amount_study``), the fine mesh's own load and profiles."""
-    fine = study.fine
+    fine, medium = study.fine, study.solutions[-2]
     everywhere = np.ones(internal.size, dtype=bool)
 
     def profile(r: np.ndarray, k: int, layer: int) -> np.ndarray:
         return np.asarray(fine.concentration_at(r, [internal[k]], layer)[0], dtype=float)
 
+    def band(r: np.ndarray, k: int, layer: int) -> np.ndarray:
+        return np.abs(profile(r, k, layer) - np.asarray(
+            medium.concentration_at(r, [internal[k]], layer)[0], dtype=float))
+
     return Route(f"{fine.method} (three meshes, extrapolated)",
                  fine.reference + "; three meshes, Richardson extrapolation (Celik et al., "
                  "J. Fluids Eng. 130 (2008) 078001)",
                  dict(study.amounts.extrapolated), float(fine.initial_load), everywhere,
-                 everywhere, profile, galerkin_events(problem, study, duration))
+                 everywhere, profile, galerkin_events(problem, study, duration), band)

@@ -106,7 +106,7 @@ def run_transient(problem: Problem, independent: Problem | None = None) -> Outco
     numerical = extrapolated(fvs, internal)
     fv_name = f"{fine.method} (three meshes, extrapolated)"
     add_events(outcome, lines_problem, series, scan, fvs, duration)
-    routes = [fv_route(fv_name, fine, numerical, internal, outcome)]
+    routes = [fv_route(fv_name, fine, numerical, internal, outcome, medium=fvs[1])]
     if study is not None:
         if study.success:
             routes.append(galerkin_route(independent, study, internal, duration))

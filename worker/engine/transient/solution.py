@@ -62,3 +62,7 @@ class Route:
     flux_usable: np.ndarray
     profile: Callable[[np.ndarray, int, int], np.ndarray]
     events: dict[str, float | None] = field(default_factory=dict)
+    #: ``(r, k, layer) -> band``: the absolute grid band of ``profile`` (a numerical route's
+    #: GCI with the formal order 2, ratio 2 and Roache's safety factor 3: |fine - medium|);
+    #: None for an exact route.
+    profile_band: Callable[[np.ndarray, int, int], np.ndarray] | None = None

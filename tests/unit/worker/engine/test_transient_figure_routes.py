@@ -114,22 +114,25 @@ def test_a_sign_slip_in_the_series_profile_fails(monkeypatch):
 
 @pytest.mark.parametrize("factor", [0.99, 1.01])
 def test_a_wrong_numerical_profile_fails(monkeypatch, factor):
+    """The method's profile evaluation off on every mesh (a slip in its code)."""
     early = dataclasses.replace(_sphere(), regime=Regime("transient", 120.0, (0.0, 30.0, 120.0)))
     assert _checks(run_transient(early))["cross_check.profile"].passed
     meshes = solve.fv_on_meshes
 
     def scaled(problem, times, end):
         fvs = meshes(problem, times, end)
-        fine = fvs[-1]
-        profile_at = fine.profile_at
 
-        def wrong(index):
-            concentration_at, flux_at = profile_at(index)
-            return (lambda r, layer=None: factor * np.asarray(concentration_at(r, layer=layer)),
-                    flux_at)
+        def wrong_profiles(solution):
+            profile_at = solution.profile_at
 
-        fvs[-1] = dataclasses.replace(fine, profile_at=wrong)
-        return fvs
+            def wrong(index):
+                concentration_at, flux_at = profile_at(index)
+                return (lambda r, layer=None: factor * np.asarray(
+                    concentration_at(r, layer=layer)), flux_at)
+
+            return dataclasses.replace(solution, profile_at=wrong)
+
+        return [wrong_profiles(solution) for solution in fvs]
 
     monkeypatch.setattr(solve, "fv_on_meshes", scaled)
     # run.py imported the name: patch it there too
@@ -166,3 +169,26 @@ def test_routes_that_agree_pass_the_comparison():
     assert all(c.passed for c in outcome.checks), [(c.name, c.detail) for c in outcome.checks]
     assert {"cross_check.t50", "cross_check.release_fraction", "cross_check.initial_load",
             "cross_check.profile", "cross_check.remaining"} <= set(_checks(outcome))
+
+
+@pytest.mark.parametrize("factor", [0.9, 1.1])
+def test_a_grid_band_never_forgives_more_than_the_limit(monkeypatch, factor):
+    """Only the fine mesh off: its band |fine - medium| grows with the error, but a band counts
+    at most half the limit, so the error still shows."""
+    early = dataclasses.replace(_sphere(), regime=Regime("transient", 120.0, (0.0, 30.0, 120.0)))
+    meshes = solve.fv_on_meshes
+
+    def fine_only(problem, times, end):
+        fvs = meshes(problem, times, end)
+        profile_at = fvs[-1].profile_at
+
+        def wrong(index):
+            concentration_at, flux_at = profile_at(index)
+            return (lambda r, layer=None: factor * np.asarray(
+                concentration_at(r, layer=layer)), flux_at)
+
+        fvs[-1] = dataclasses.replace(fvs[-1], profile_at=wrong)
+        return fvs
+
+    monkeypatch.setattr("worker.engine.transient.run.fv_on_meshes", fine_only)
+    assert not _checks(run_transient(early))["cross_check.profile"].passed
