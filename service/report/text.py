@@ -69,7 +69,12 @@ def render_text(record: dict, case: dict) -> str:
         add(f"ENGINE FAILURE: {record.get('error')}")
     add("Quantities (SI; fluxes positive outward)")
     for name, q in record.get("quantities", {}).items():
-        add(f"  {name:<28} {_fmt(q.get('value')):>16} {q.get('unit', '')}")
+        line = f"  {name:<28} {_fmt(q.get('value')):>16} {q.get('unit', '')}"
+        if q.get("uncertainty") is not None:
+            line += f"  ± {_fmt(q['uncertainty'])}"
+        if q.get("verified_by"):
+            line += f"  [{q['verified_by']}, {len(q.get('routes') or [])} routes]"
+        add(line)
     probes = record.get("series", {}).get("probes")
     if probes and probes.get("position") and not isinstance(probes["concentration"][0], list):
         add("Probes")

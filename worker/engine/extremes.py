@@ -2,11 +2,11 @@
 
 A profile sampled at a few dozen points per layer misses the minimum of a thin reacting layer
 by a fraction of its curvature times the spacing squared. Each layer's sampled extreme is
-refined by a bounded scalar minimisation (Brent's method on the bracketing interval,
-``scipy.optimize.minimize_scalar(method="bounded")``; R.P. Brent, *Algorithms for Minimization
-without Derivatives*, 1973, ch. 5) of the solution's own ``concentration_at`` between the
-sampled neighbours of the extreme, and the layer's two ends are kept as candidates (an extreme
-on a face or an interface is found there).
+refined on the solution's own ``concentration_at`` between the sampled neighbours of the
+extreme: one evenly spaced grid (one call of the solution for the whole grid, where a scalar
+minimiser would call it a dozen times) and a parabolic step through the grid's best point
+(R.P. Brent, *Algorithms for Minimization without Derivatives*, 1973, ch. 5); the layer's two
+ends are kept as candidates (an extreme on a face or an interface is found there).
 """
 
 from __future__ import annotations
@@ -15,11 +15,11 @@ from collections.abc import Callable
 from dataclasses import dataclass
 
 import numpy as np
-from scipy.optimize import minimize_scalar
 
-#: Absolute position tolerance of the search, as a fraction of the bracketing interval: the
-#: value's error is of the order of C'' (tolerance * interval)^2, far below round-off of C.
-POSITION_TOLERANCE = 1e-7
+#: Points of the grid laid over the bracket of the sampled extreme; the vertex of the parabola
+#: through the grid's best point and its two neighbours (parabolic interpolation, Brent 1973,
+#: ch. 5) then lands the extreme to round-off of C for a smooth solution.
+GRID_POINTS = 65
 
 __all__ = ["Extreme", "layer_extremes", "true_extreme"]
 
@@ -33,8 +33,8 @@ class Extreme:
     layer: int
 
 
-def _refine(evaluate: Callable[[float], float], r: np.ndarray, c: np.ndarray, j: int,
-            sign: float, end_slopes: tuple[float, float] | None) -> tuple[float, float]:
+def _refine(evaluate: Callable[[np.ndarray], np.ndarray], r: np.ndarray, c: np.ndarray,
+            j: int, sign: float, end_slopes: tuple[float, float] | None) -> tuple[float, float]:
     """Refine the sampled extreme at index ``j`` of ``(r, c)``; ``sign`` +1 for a minimum,
     -1 for a maximum. Returns (position, value), never worse than the sample. A sampled extreme
     at a layer end whose slope there (``end_slopes``, dC/dr at the two ends) points into the
@@ -46,13 +46,31 @@ def _refine(evaluate: Callable[[float], float], r: np.ndarray, c: np.ndarray, j:
         if j == r.size - 1 and sign * end_slopes[1] <= 0.0:
             return best_r, best_c
     low, high = float(r[max(j - 1, 0)]), float(r[min(j + 1, r.size - 1)])
-    if high > low:
-        found = minimize_scalar(lambda x: sign * evaluate(x), bounds=(low, high),
-                                method="bounded",
-                                options={"xatol": POSITION_TOLERANCE * (high - low)})
-        if found.success and sign * float(found.fun) < sign * best_c:
-            best_r, best_c = float(found.x), float(sign * found.fun)
+    if not high > low:
+        return best_r, best_c
+    grid = np.linspace(low, high, GRID_POINTS)
+    values = sign * np.asarray(evaluate(grid), dtype=float)
+    k = int(np.argmin(values))
+    if values[k] < sign * best_c:
+        best_r, best_c = float(grid[k]), float(sign * values[k])
+    if 0 < k < grid.size - 1:
+        vertex = _parabola_vertex(evaluate, grid[k - 1:k + 2], values[k - 1:k + 2], sign)
+        if vertex is not None and sign * vertex[1] < sign * best_c:
+            best_r, best_c = vertex
     return best_r, best_c
+
+
+def _parabola_vertex(evaluate: Callable[[np.ndarray], np.ndarray], x: np.ndarray,
+                     f: np.ndarray, sign: float) -> tuple[float, float] | None:
+    """The vertex of the parabola through three evenly spaced points ``x`` with (signed)
+    values ``f`` around the grid's best point, evaluated on the solution itself (None when
+    the three points do not bracket an interior extreme)."""
+    curvature = f[0] - 2.0 * f[1] + f[2]
+    if not curvature > 0.0:
+        return None
+    step = x[1] - x[0]
+    where = float(min(max(x[1] + 0.5 * step * (f[0] - f[2]) / curvature, x[0]), x[2]))
+    return where, float(np.asarray(evaluate(np.array([where])), dtype=float)[0])
 
 
 def layer_extremes(concentration_at: Callable[..., np.ndarray], positions: list[np.ndarray],
@@ -77,8 +95,8 @@ def layer_extremes(concentration_at: Callable[..., np.ndarray], positions: list[
         c = np.asarray(c, dtype=float)
         j = int(np.argmin(sign * c))
 
-        def evaluate(x: float, i: int = i) -> float:
-            return float(np.asarray(concentration_at(np.array([x]), layer=i)).ravel()[0])
+        def evaluate(x: np.ndarray, i: int = i) -> np.ndarray:
+            return np.asarray(concentration_at(x, layer=i), dtype=float).ravel()
 
         slopes = end_slopes[i] if end_slopes is not None else None
         where, value = _refine(evaluate, np.asarray(r, dtype=float), c, j, sign, slopes)

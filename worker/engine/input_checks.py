@@ -233,8 +233,8 @@ def _field_pairs(primary: Problem, independent: Problem) -> list[tuple[str, Any,
                   independent.geometric_weight(independent.edges), strict=False)
     rows += [(f"geometric_weight(edges[{i}])", float(a), float(b))
              for i, (a, b) in enumerate(weights)]
-    if isinstance(independent, IndependentProblem) and len(primary.layers) == len(
-            independent.layers):
+    if primary.regime.kind == "transient" and isinstance(independent, IndependentProblem) \
+            and len(primary.layers) == len(independent.layers):  # a steady case holds no load
         rows.append(("initial load per measure", primary_initial_load(primary),
                      initial_load(independent)))
     return rows
