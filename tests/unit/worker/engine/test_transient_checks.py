@@ -447,3 +447,75 @@ def test_body_without_a_steady_state_gets_a_warning_and_no_steady_limit(monkeypa
     assert outcome.checks == []
     assert outcome.warnings == ["steady_limit: no steady state (no concentration or "
                                 "mass-transfer face and no first-order loss): not checked"]
+
+
+# ``checks.steady_limit_check`` when it compares (its docstring): face rates r^n J at the last
+# late time against the steady engine, over the throughput = the largest of |r_in^n J_in|,
+# |r_out^n J_out|, |consumption| and amount_scale / measure_factor / tau; cell concentrations
+# over the concentration scale; the value is the larger. A hollow sphere (n = 2) of one layer,
+# inner radius 1 mm, wall 1 mm, D = 1e-11 m^2/s: tau = L^2/D = 1e5 s (capacity K L times
+# resistance L/(K D)), measure factor 4 pi.
+SHELL_INNER, SHELL_OUTER, TAU = 1e-3, 2e-3, 1e5
+
+
+def _shell():
+    return Problem("sphere", SHELL_INNER, (Layer("shell", SHELL_OUTER - SHELL_INNER, D, 1.0,
+                                                 initial=1.0),),
+                   Boundary("concentration", 1.0), SINK, Regime("transient", 600.0, (600.0,)))
+
+
+def _late_and_reference(j_in, j_out, late_j_in, late_j_out, c_offsets):
+    centres = np.array([1.25e-3, 1.75e-3])
+    steady = np.array([0.7, 0.3])
+
+    def concentration_at(r, *, layer):
+        assert layer == 0 and isinstance(layer, int)
+        return steady[np.searchsorted(centres, r)]
+
+    garbage = np.array([50.0, 50.0])
+    late = SimpleNamespace(
+        success=True, times=np.array([1e3, 2e3, 5e6]),
+        flux_inner=np.array([99.0, 99.0, late_j_in]), flux_outer=np.array([99.0, 99.0, late_j_out]),
+        mesh=SimpleNamespace(centres=centres, layer_index=np.array([0, 0])),
+        cells=np.array([garbage, garbage, steady + np.asarray(c_offsets)]))
+    reference = SimpleNamespace(success=True, method="exact", flux_inner=j_in, flux_outer=j_out,
+                                consumption=0.0, concentration_at=concentration_at)
+    return late, reference
+
+
+def _compare(monkeypatch, late, reference, amount_scale, c_scale):
+    monkeypatch.setattr(checks.solve, "late_state", lambda problem, fine, duration: late)
+    monkeypatch.setattr(checks.solve, "steady_reference", lambda problem: reference)
+    outcome = Outcome()
+    checks.steady_limit_check(outcome, _shell(), SimpleNamespace(), 600.0, c_scale, amount_scale)
+    return _only(outcome, "steady_limit")
+
+
+@pytest.mark.parametrize("sign", [1.0, -1.0])
+def test_steady_limit_rates_are_weighted_by_r_squared_over_the_throughput(monkeypatch, sign):
+    # Throughput max(1e-6 * 2, 4e-6 * 1) = 4e-6 (the amount term is 1e-3/(4 pi)/1e5 ~ 8e-10).
+    # Inner face off by 0.5: 1e-6 * 0.5 / 4e-6 = 0.125; outer off by 0.01: 0.01; cells off
+    # by 0.02 on a scale of 2: 0.01.
+    late, reference = _late_and_reference(-2.0, 1.0, -2.0 + sign * 0.5, 1.0 + sign * 0.01,
+                                          [0.0, sign * 0.02])
+    check = _compare(monkeypatch, late, reference, amount_scale=1e-3, c_scale=2.0)
+    assert check.value == pytest.approx(SHELL_INNER**2 * 0.5 / (SHELL_OUTER**2 * 1.0), rel=1e-9)
+    assert not check.passed
+    assert check.detail.startswith("state at t = 5e+06 s")
+    assert "face rates 0.125 of the throughput, cell concentrations 0.01 of the scale" \
+        in check.detail
+
+
+def test_steady_limit_of_a_state_carrying_nothing_uses_the_relaxation_rate(monkeypatch):
+    # Steady fluxes zero: the throughput is amount_scale / (4 pi) / tau = 1e-6 here, the outer
+    # rate off by 4e-6 * 0.01 = 4e-8 gives 0.04; cells off by 0.09 of a scale of 3: 0.03.
+    amount_scale = 4.0 * np.pi * TAU * 1e-6
+    late, reference = _late_and_reference(0.0, 0.0, 0.0, 0.01, [-0.09, 0.0])
+    check = _compare(monkeypatch, late, reference, amount_scale=amount_scale, c_scale=3.0)
+    assert check.value == pytest.approx(0.04, rel=1e-9)
+    assert "face rates 0.04 of the throughput, cell concentrations 0.03 of the scale" \
+        in check.detail
+    late, reference = _late_and_reference(0.0, 0.0, 0.0, 1e-6, [-0.09, 0.0])
+    check = _compare(monkeypatch, late, reference, amount_scale=amount_scale, c_scale=3.0)
+    assert check.value == pytest.approx(0.03, rel=1e-9)  # the cells decide
+    assert not check.passed
