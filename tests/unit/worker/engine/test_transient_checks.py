@@ -519,3 +519,45 @@ def test_steady_limit_of_a_state_carrying_nothing_uses_the_relaxation_rate(monke
     check = _compare(monkeypatch, late, reference, amount_scale=amount_scale, c_scale=3.0)
     assert check.value == pytest.approx(0.03, rel=1e-9)  # the cells decide
     assert not check.passed
+
+
+# ``checks.mass_balance_check``: |initial - remaining - released (both faces) - consumed| over
+# the larger of the initial load and the largest throughput |in| + |out| + |consumed|.
+def _balance(initial_load, remaining, released_inner, released_outer, consumed, tolerances=None):
+    fine = SimpleNamespace(initial_load=initial_load, remaining=np.asarray(remaining),
+                           released_inner=np.asarray(released_inner),
+                           released_outer=np.asarray(released_outer),
+                           consumed=np.asarray(consumed))
+    problem = _problem()
+    if tolerances:
+        problem = Problem(problem.geometry, problem.inner, problem.layers, problem.inner_boundary,
+                          problem.outer_boundary, problem.regime, tolerances=tolerances)
+    outcome = Outcome()
+    checks.mass_balance_check(outcome, problem, fine, np.array([0.0, 10.0, 20.0]))
+    return _only(outcome, "mass_balance")
+
+
+@pytest.mark.parametrize("sign", [1.0, -1.0])
+def test_mass_balance_of_an_empty_body_is_relative_to_its_throughput(sign):
+    # No initial load: 2.0 taken up at the inner face (a negative release), 1.0 released at the
+    # outer face, 0.3 consumed, so 0.7 is held; the record holds 0.7 -/+ 3e-6.
+    check = _balance(0.0, [0.0, 0.6, 0.7 - sign * 3e-6], [0.0, -1.0, -2.0], [0.0, 0.3, 1.0],
+                     [0.0, 0.1, 0.3])
+    assert check.value == pytest.approx(3e-6 / (2.0 + 1.0 + 0.3), rel=1e-6)
+    assert not check.passed  # limit 1e-8
+    assert "worst at t = 20.0 s" in check.detail
+
+
+def test_mass_balance_of_a_body_with_nothing_in_it_is_zero():
+    check = _balance(0.0, [0.0, 0.0, 0.0], [0.0, 0.0, 0.0], [0.0, 0.0, 0.0], [0.0, 0.0, 0.0])
+    assert check.value == 0.0
+    assert check.passed
+
+
+def test_a_check_exactly_at_its_limit_passes():
+    # The limit is the largest value allowed: 0.125 of a load of 1 is exactly at it.
+    check = _balance(1.0, [1.0, 0.5, 0.125], [0.0, 0.0, 0.0], [0.0, 0.5, 0.75], [0.0, 0.0, 0.0],
+                     tolerances={"mass_balance": 0.125})
+    assert check.value == 0.125
+    assert check.limit == 0.125
+    assert check.passed
