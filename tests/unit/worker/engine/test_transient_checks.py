@@ -537,12 +537,13 @@ def _balance(initial_load, remaining, released_inner, released_outer, consumed, 
     return _only(outcome, "mass_balance")
 
 
+@pytest.mark.parametrize("unit", [1.0, 1e-6])  # amounts of order 1 and of micromoles
 @pytest.mark.parametrize("sign", [1.0, -1.0])
-def test_mass_balance_of_an_empty_body_is_relative_to_its_throughput(sign):
+def test_mass_balance_of_an_empty_body_is_relative_to_its_throughput(sign, unit):
     # No initial load: 2.0 taken up at the inner face (a negative release), 1.0 released at the
     # outer face, 0.3 consumed, so 0.7 is held; the record holds 0.7 -/+ 3e-6.
-    check = _balance(0.0, [0.0, 0.6, 0.7 - sign * 3e-6], [0.0, -1.0, -2.0], [0.0, 0.3, 1.0],
-                     [0.0, 0.1, 0.3])
+    amounts = [[0.0, 0.6, 0.7 - sign * 3e-6], [0.0, -1.0, -2.0], [0.0, 0.3, 1.0], [0.0, 0.1, 0.3]]
+    check = _balance(0.0, *(unit * np.array(a) for a in amounts))
     assert check.value == pytest.approx(3e-6 / (2.0 + 1.0 + 0.3), rel=1e-6)
     assert not check.passed  # limit 1e-8
     assert "worst at t = 20.0 s" in check.detail
@@ -561,3 +562,14 @@ def test_a_check_exactly_at_its_limit_passes():
     assert check.value == 0.125
     assert check.limit == 0.125
     assert check.passed
+
+
+@pytest.mark.parametrize(("lowest", "value"), [(-0.05, 0.025), (0.0, 0.0), (0.3, 0.0)])
+def test_non_negativity_is_the_most_negative_cell_over_the_concentration_scale(lowest, value):
+    fine = SimpleNamespace(cells=np.array([[1.0, 0.8], [0.6, lowest], [0.5, 0.4]]))
+    outcome = Outcome()
+    checks.non_negativity_check(outcome, _problem(), fine, np.array([0.0, 10.0, 20.0]), 2.0)
+    check = _only(outcome, "non_negativity")
+    assert check.value == pytest.approx(value, rel=1e-12)
+    assert check.passed is (value == 0.0)  # limit 1e-8
+    assert f"lowest cell concentration {min(lowest, 0.4):.6g}" in check.detail
