@@ -573,3 +573,10 @@ def test_non_negativity_is_the_most_negative_cell_over_the_concentration_scale(l
     assert check.value == pytest.approx(value, rel=1e-12)
     assert check.passed is (value == 0.0)  # limit 1e-8
     assert f"lowest cell concentration {min(lowest, 0.4):.6g}" in check.detail
+
+
+def test_mass_balance_with_no_load_and_no_throughput_is_the_absolute_amount_held():
+    # Nothing loaded, released or consumed, yet 3e-8 held: there is no scale to divide by.
+    check = _balance(0.0, [0.0, 0.0, 3e-8], [0.0, 0.0, 0.0], [0.0, 0.0, 0.0], [0.0, 0.0, 0.0])
+    assert check.value == pytest.approx(3e-8, rel=1e-12)
+    assert not check.passed
