@@ -127,9 +127,32 @@ def test_effectiveness_factor_against_mpmath(geometry, phi):
     assert_allclose(effectiveness_factor(geometry, phi), expected, rtol=2e-15)
 
 
+def _mpmath_effectiveness(geometry, phi):
+    """Thiele 1939; Aris 1975 (as above), at 50 digits."""
+    with mpmath.workdps(50):
+        p = mpmath.mpf(phi)
+        if geometry == "slab":
+            return float(mpmath.tanh(p) / p)
+        if geometry == "cylinder":
+            return float(2 * mpmath.besseli(1, p) / (p * mpmath.besseli(0, p)))
+        return float(3 / p**2 * (p * mpmath.coth(p) - 1))
+
+
+@pytest.mark.parametrize("geometry", ["slab", "cylinder", "sphere"])
+def test_effectiveness_factor_of_an_array_is_taken_value_by_value(geometry):
+    # Below and above the sphere's series limit (phi = 1) in one array.
+    phis = np.array([0.05, 0.5, 0.9, 2.0, 30.0])
+    factors = effectiveness_factor(geometry, phis)
+    assert factors.dtype == np.float64 and factors.shape == phis.shape
+    assert_allclose(factors, [_mpmath_effectiveness(geometry, p) for p in phis], rtol=2e-15)
+
+
 def test_effectiveness_factor_rejects_bad_input():
     with pytest.raises(ValueError, match="phi"):
         effectiveness_factor("slab", -1.0)
+    for not_finite in (math.nan, math.inf, [0.5, math.nan]):
+        with pytest.raises(ValueError, match="phi"):
+            effectiveness_factor("sphere", not_finite)
     with pytest.raises(ValueError, match="geometry"):
         effectiveness_factor("cone", 1.0)
 
@@ -157,6 +180,32 @@ def test_thiele_modulus_definitions():
                      inner_boundary=Boundary("symmetry"),
                      outer_boundary=Boundary("flux", value=1e-6))
     assert thiele_modulus(layers[2], sealed) is None
+
+
+def test_zero_order_thiele_modulus_takes_each_face_at_its_own_partition():
+    """phi = thickness * sqrt(Q / (D * Cs)) (definition above; Hill 1928) with Cs the largest
+    concentration a face imposes: K_face * C_fluid at a concentration face, carried into the
+    layer as C/K. A sealed film (coefficient 0) imposes nothing."""
+    layer = Layer("gel", 1e-3, 1e-9, partition=0.5, reaction=Reaction("zero_order", rate=2e-3))
+    # Inner face: K_face 0.25 over a fluid at 2.0 -> C = 0.5 in the layer; outer face: the
+    # layer's own K 0.5 over a fluid at 0.8 -> C = 0.4. Cs = 0.5, set by the inner face.
+    problem = Problem(geometry="slab", inner=0.0, layers=(layer,),
+                      inner_boundary=Boundary("concentration", value=2.0, partition=0.25),
+                      outer_boundary=Boundary("concentration", value=0.8))
+    assert_allclose(thiele_modulus(layer, problem), 1e-3 * math.sqrt(2e-3 / (1e-9 * 0.5)),
+                    rtol=1e-14)
+    # The same with the roles swapped: Cs = 0.5 from the outer face.
+    swapped = Problem(geometry="slab", inner=0.0, layers=(layer,),
+                      inner_boundary=Boundary("concentration", value=0.8),
+                      outer_boundary=Boundary("concentration", value=2.0, partition=0.25))
+    assert_allclose(thiele_modulus(layer, swapped), 1e-3 * math.sqrt(2e-3 / (1e-9 * 0.5)),
+                    rtol=1e-14)
+    # A sealed film over a richer bulk imposes nothing: Cs = 0.4 from the concentration face.
+    sealed_film = Problem(geometry="slab", inner=0.0, layers=(layer,),
+                          inner_boundary=Boundary("mass_transfer", coefficient=0.0, bulk=5.0),
+                          outer_boundary=Boundary("concentration", value=0.8))
+    assert_allclose(thiele_modulus(layer, sealed_film), 1e-3 * math.sqrt(2e-3 / (1e-9 * 0.4)),
+                    rtol=1e-14)
 
 
 @pytest.mark.parametrize("width", [None, 1e-2, 1e-5, 1e-9])
