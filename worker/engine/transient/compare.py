@@ -129,8 +129,8 @@ def compare_routes(outcome: Outcome, problem: Problem, primary: Route, others: l
                 offer(f"cross_check.{event}", math.inf,
                       f"{label}: {event} reached by one route only ({a_t} s vs {b_t} s)")
                 continue
-            offer(f"cross_check.{event}", abs(a_t - b_t) / b_t,
-                  f"{label}: {event} {a_t:.9g} s vs {b_t:.9g} s, relative")
+            offer(f"cross_check.{event}", abs(a_t - b_t) / abs(a_t),
+                  f"{label}: {event} {a_t:.9g} s vs {b_t:.9g} s, relative to the first")
     for name, found in checks.items():
         found.report(outcome, problem, name)
 
@@ -200,15 +200,16 @@ def _probe_offer(offer, problem: Problem, primary: Route, other: Route, internal
     floor = CROSS_CHECK_FLOOR * c_scale
     limit = check_limit(problem, "cross_check.probes")
     for k in range(internal.size):
-        if not (primary.usable[k] and other.usable[k]):
-            continue
+        if not (primary.flux_usable[k] and other.flux_usable[k]) and internal[k] != 0.0:
+            continue  # pointwise values converge with the fluxes, not with the amounts
         a = probe_row(primary.profile, problem, k)
         b = probe_row(other.profile, problem, k)
-        allowance = 0.5 * limit * np.maximum(np.abs(b), floor)
+        reference = np.maximum(np.abs(a), floor)  # the primary: the exact route where one exists
+        allowance = 0.5 * limit * reference
         band = sum(np.minimum(probe_row(route.profile_band, problem, k), allowance)
                    for route in (primary, other) if route.profile_band is not None)
         gap = np.maximum(np.abs(a - b) - band, 0.0)
-        errors[k] = float(np.max(gap / np.maximum(np.abs(b), floor)))
+        errors[k] = float(np.max(gap / reference))
     value, at = worst(errors, internal)
     offer("cross_check.probes", value,
           f"{label}: probe concentrations at every requested time, worst at t = {at} s")
