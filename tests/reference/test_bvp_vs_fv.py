@@ -79,9 +79,9 @@ def test_michaelis_menten_collocation_matches_extrapolated_fv(name):
     assert balance == pytest.approx(reference.consumption, rel=1e-7)
 
 
+@mpmath.workdps(30)  # scoped: a global precision would leak into every later mpmath test
 def _slab_first_integral_flux(d, cs, thickness, vmax, km):
     """Surface flux of a sealed MM slab from D/2 (dC/dx)^2 = int_{C0}^{C} R dc (mpmath)."""
-    mpmath.mp.dps = 30
     d, cs, thickness, vmax, km = (mpmath.mpf(v) for v in (d, cs, thickness, vmax, km))
 
     def integral_r(c0, c):
@@ -113,9 +113,9 @@ Q = 2.0e-2  # mol/(m^3 s)
 RADIUS = 0.5e-3  # m
 
 
+@mpmath.workdps(30)
 def _hill_front(geometry: str) -> float:
     """Depletion-front position from Hill's conditions C = dC/dr = 0 (mpmath.findroot)."""
-    mpmath.mp.dps = 30
     d, cs, q, big_r = (mpmath.mpf(v) for v in (D, CS, Q, RADIUS))
     if geometry == "slab":  # sealed mid-plane at x = 0, surface at x = L
         return float(big_r - mpmath.sqrt(2 * d * cs / q))

@@ -441,4 +441,4 @@ def table_quantity(raw: object) -> tuple[float, Dimension]:
     else:
         raise UnitTableError(f"expected '<number> <unit>' or {{value, unit}}, got {raw!r}")
     converted = table_unit(unit)
-    return float(number * converted.factor), converted.dimension
+    return float(number * converted.factor), converted.dimension  # one rounding, exact before
