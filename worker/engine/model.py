@@ -170,9 +170,6 @@ class Problem:
         layer = self.layers[0] if side == "inner" else self.layers[-1]
         return layer.partition if boundary.partition is None else boundary.partition
 
-    def tolerance(self, name: str, default: float) -> float:
-        return float(self.tolerances.get(name, default))
-
     @property
     def concentration_unit(self) -> str:
         return "mol/m^3" if self.basis == "molar" else "kg/m^3"
