@@ -1,18 +1,24 @@
 """The transient engine: ``run_transient`` solves a transient case and checks it.
 
 A transient case is solved by the method of lines (``method_of_lines``) on three meshes, always,
-and by the exact eigenfunction series (``exact_series``) where one exists (one layer, no or
-first-order reaction, a concentration or mass-transfer face). The record gets the release
-series at the requested times, t50/t90/time lag, the final profile and probe rows, and these
-checks, each aggregated over the requested times with the worst time named in its detail:
+and by an independent route of another kind: the exact eigenfunction series (``exact_series``:
+one layer, no or first-order reaction, a concentration or mass-transfer face) and the exact
+Laplace-domain solution (``laplace``: any layers, linear kinetics) where the kinetics are
+linear, else the Galerkin second discretisation (``galerkin``). The exact route is primary where
+one exists. Each method is a ``Route`` (``routes``), and the record gets the primary route's
+release series at the requested times, t50/t90/time lag, the final profile and probe rows, and
+these checks, each aggregated over the requested times with the worst time named in its detail:
 
-* ``cross_check.release_fraction`` (``cross_check.released`` for an initially empty body),
-  ``cross_check.flux_inner``/``flux_outer``, ``cross_check.probes``, ``cross_check.t50``,
-  ``cross_check.t90``, ``cross_check.time_lag`` - series against the grid-extrapolated
-  numerical values (Celik et al. 2008, eq. 4; the fine-mesh value where the three meshes do not
-  converge monotonically). The error at each time is ``|a - b| / max(|b|, CROSS_CHECK_FLOOR *
-  scale)``: relative where the value is large, absolute (a fraction of the load or throughput)
-  where it is small, as the membrane series needs at small times;
+* the route cross-checks of ``compare``: ``cross_check.initial_load``,
+  ``cross_check.release_fraction`` (each route divides by its own load;
+  ``cross_check.released`` for an initially empty body), ``cross_check.remaining``,
+  ``cross_check.consumed``, ``cross_check.flux_inner``/``flux_outer``, ``cross_check.profile``,
+  ``cross_check.probes``, ``cross_check.t50``, ``cross_check.t90`` (one route only fails), and
+  ``cross_check.time_lag`` (``checks``): numerical routes at their grid-extrapolated values
+  (Celik et al. 2008, eq. 4; the fine-mesh value where the three meshes do not converge
+  monotonically). The error at each time is ``|a - b| / max(|b|, CROSS_CHECK_FLOOR * scale)``:
+  relative where the value is large, absolute (a fraction of the load or throughput) where it
+  is small, as the membrane series needs at small times;
 * ``mass_balance``: initial = remaining + released + consumed, relative to the larger of the
   initial load and the throughput;
 * ``convergence.space``: GCI_fine of the release (three meshes, ratio 2), worst requested time;
@@ -21,7 +27,8 @@ checks, each aggregated over the requested times with the worst time named in it
 * ``steady_limit``: the state integrated ``STEADY_HORIZON`` capacity-resistance times past
   the duration against the steady engine (``exact_steady.solve_exact``, else
   ``fv_steady.solve_fv``);
-* ``non_negativity``: the most negative cell concentration over the requested times.
+* ``non_negativity``: the most negative of the reported profile, probe rows, amount held and
+  the method of lines' cells.
 
 Default limits are ``worker.engine.limits.TRANSIENT_LIMITS``; ``problem.tolerances`` overrides
 them by the check's full name or by its family (``cross_check``, ``mass_balance``, ``gci`` for

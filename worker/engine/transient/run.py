@@ -50,7 +50,8 @@ def run_transient(problem: Problem, independent: Problem | None = None) -> Outco
         Normalised case with ``regime.kind == "transient"``, a duration and requested times.
     independent : Problem, optional
         The case as the independent methods read it (default ``problem``): the method of lines
-        solves it when the exact series is primary.
+        solves it beside an exact primary, the Laplace route beside the series, and the
+        Galerkin route always.
 
     Returns
     -------
