@@ -37,26 +37,33 @@ def _samples(function, points=41):
     return [r], [function(r)]
 
 
-def test_interior_minimum_is_the_closed_form_minimum():
+# dC/dr of A e^(pr) + B e^(-pr) at r = 0 and r = 1 (the end slopes the steady check passes)
+EXPONENTIAL_SLOPES = (P * (A - B), P * (A * math.exp(P) - B * math.exp(-P)))
+
+
+@pytest.mark.parametrize("slopes", [None, [EXPONENTIAL_SLOPES]])
+def test_interior_minimum_is_the_closed_form_minimum(slopes):
     positions, values = _samples(_exponential)
-    found = layer_extremes(_exponential, positions, values, lowest=True)[0]
+    found = layer_extremes(_exponential, positions, values, lowest=True, end_slopes=slopes)[0]
     assert found.value == pytest.approx(2.0 * math.sqrt(A * B), rel=1e-12)
     assert found.position == pytest.approx(math.log(B / A) / (2 * P), abs=1e-5)
     assert found.layer == 0
     assert min(values[0]) - found.value > 1e-6  # the samples alone miss it
 
 
-def test_interior_maximum_is_the_vertex():
+@pytest.mark.parametrize("slopes", [None, [(10.0 * 0.3137, -10.0 * (1.0 - 0.3137))]])
+def test_interior_maximum_is_the_vertex(slopes):
     positions, values = _samples(_parabola)
-    found = layer_extremes(_parabola, positions, values, lowest=False)[0]
+    found = layer_extremes(_parabola, positions, values, lowest=False, end_slopes=slopes)[0]
     assert found.value == pytest.approx(2.0, rel=1e-13)
     assert found.position == pytest.approx(0.3137, abs=1e-6)
     assert max(values[0]) < 2.0 - 1e-6
 
 
-def test_maximum_of_the_exponential_is_at_its_higher_end():
+@pytest.mark.parametrize("slopes", [None, [EXPONENTIAL_SLOPES]])
+def test_maximum_of_the_exponential_is_at_its_higher_end(slopes):
     positions, values = _samples(_exponential)
-    found = layer_extremes(_exponential, positions, values, lowest=False)[0]
+    found = layer_extremes(_exponential, positions, values, lowest=False, end_slopes=slopes)[0]
     assert found.value == pytest.approx(A * math.exp(P) + B * math.exp(-P), rel=1e-14)
     assert found.position == 1.0
 
