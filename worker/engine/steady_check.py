@@ -19,6 +19,7 @@ from __future__ import annotations
 import dataclasses
 import math
 from dataclasses import dataclass
+from functools import cached_property
 from typing import Protocol
 
 import numpy as np
@@ -225,6 +226,14 @@ class _Figures:
     def flux(self, side: str) -> float:
         return self.flux_inner if side == "inner" else self.flux_outer
 
+    @cached_property
+    def totals(self) -> dict[str, float]:
+        """Every total the record reports, formed from this route by
+        :func:`worker.engine.steady_totals.totals_by_second_route` (its own shell measures);
+        formed once, read by the quantities and by ``cross_check.totals``."""
+        return totals_by_second_route(self.problem, self.flux_inner, self.flux_outer,
+                                      self.consumption)
+
 
 def _totals(problem: Problem, best: _Figures) -> dict[str, tuple[float, str]]:
     """The record's totals from the best estimates (this module's factors), name -> (value,
@@ -299,8 +308,7 @@ def _add_quantities(outcome: Outcome, problem: Problem, primary: _Sampled, best:
                       "definition on the independent reading"],
               verified_by="cross_check.dimensionless")
     reported = _totals(problem, best)
-    again = (totals_by_second_route(second.problem, second.flux_inner, second.flux_outer,
-                                    second.consumption) if second is not None else {})
+    again = second.totals if second is not None else {}
     for name, (value, unit) in reported.items():
         other_value = again.get(name)
         u = abs(value - other_value) if other_value is not None else None
@@ -584,8 +592,7 @@ def _cross_check_totals(outcome: Outcome, problem: Problem, second: _Figures,
     """Every reported total against the same total formed by
     :func:`~worker.engine.steady_totals.totals_by_second_route` from the second route, relative
     to the throughput scale in that total's own measure."""
-    again = totals_by_second_route(second.problem, second.flux_inner, second.flux_outer,
-                                   second.consumption)
+    again = second.totals
     if not again:
         return
     worst_name, worst = "", 0.0
