@@ -1,0 +1,6 @@
+"""Design verdicts beside the calculation's: requirements and margins, input uncertainty by
+Monte Carlo (JCGM 101:2008), sensitivity indices, design limits and sweeps.
+
+Pure numerics like the rest of the engine: the case document is read by ``schemas``; this
+package works on the SI ``Problem`` and on plain arrays.
+"""
