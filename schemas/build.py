@@ -9,6 +9,7 @@ every error found.
 
 from __future__ import annotations
 
+import dataclasses
 from collections.abc import Mapping
 from dataclasses import dataclass
 from types import MappingProxyType
@@ -17,9 +18,11 @@ from typing import Any
 from marshmallow import ValidationError
 
 from schemas.case import CaseSchema, SIValue, case_basis, case_rule_errors
+from schemas.design_rules import DesignRuleError, design_request
 from schemas.errors import CaseError, flatten_messages
 from worker.engine import model
 from worker.engine.boundaries import BOUNDARIES
+from worker.engine.design.request import DesignRequest
 from worker.engine.model import Problem
 from worker.engine.reactions import REACTIONS
 from worker.engine.units import si_unit
@@ -50,12 +53,15 @@ class ValidatedCase:
         A copy of the document as submitted.
     basis : str
         ``"molar"`` or ``"mass"``.
+    design : worker.engine.design.request.DesignRequest
+        The requirements, uncertainty, design limit and sweep the case asks for (SI).
     """
 
     problem: Problem
     normalised: dict
     original: dict
     basis: str
+    design: DesignRequest = DesignRequest()
 
 
 #: JSON leaves, shared by a copy (immutable); told apart before the abstract Mapping check.
@@ -240,9 +246,86 @@ def validate_case(doc: Any) -> ValidatedCase:
     """
     data = load_case(doc)
     basis = case_basis(data)
+    problem = _problem(data, basis)
+    try:
+        design = design_request(data, problem, basis)
+    except DesignRuleError as exc:
+        raise CaseError({"path": p, "message": m} for p, m in exc.errors) from None
+    if design.requirement_times:
+        times = tuple(sorted(set(problem.regime.times) | set(design.requirement_times)))
+        problem = dataclasses.replace(
+            problem, regime=dataclasses.replace(problem.regime, times=times))
+    normalised = _normalise(data, basis)
+    normalised.update(_normalise_design(data, design))
     return ValidatedCase(
-        problem=_problem(data, basis),
-        normalised=_normalise(data, basis),
+        problem=problem,
+        normalised=normalised,
         original=_copy_json(doc),
         basis=basis,
+        design=design,
     )
+
+
+def _si_number(value: float, unit: str) -> dict | float:
+    return value if unit == "1" else {"value": value, "unit": unit}
+
+
+def _normalise_design(data: Mapping, design: DesignRequest) -> dict:
+    """The design fields with every value in SI (``{"value", "unit"}``; plain numbers for
+    dimensionless quantities), in the document's order."""
+    out: dict[str, Any] = {}
+    if "requirements" in data:
+        items = []
+        for item, requirement in zip(data["requirements"], design.requirements, strict=True):
+            unit = requirement.unit
+            entry: dict[str, Any] = {"id": requirement.id, "quantity": requirement.quantity}
+            if requirement.layer_name is not None:
+                entry["layer"] = requirement.layer_name
+            if requirement.at is not None:
+                entry["at"] = {"value": requirement.at, "unit": "s"}
+            if "between" in item:
+                entry["between"] = [_si_number(requirement.low, unit),  # type: ignore[arg-type]
+                                    _si_number(requirement.high, unit)]  # type: ignore[arg-type]
+            elif "at_least" in item:
+                entry["at_least"] = _si_number(requirement.low, unit)  # type: ignore[arg-type]
+            else:
+                entry["at_most"] = _si_number(requirement.high, unit)  # type: ignore[arg-type]
+            if requirement.source is not None:
+                entry["source"] = requirement.source
+            items.append(entry)
+        out["requirements"] = items
+    if design.uncertainty is not None:
+        block = data["uncertainty"]
+        inputs = []
+        for spec, item in zip(design.uncertainty.inputs, block["inputs"], strict=True):
+            unit = spec.unit
+            entry = {"field": spec.field.path, "distribution": spec.distribution}
+            for key in ("sd", "low", "mode", "high"):
+                if key in item:
+                    entry[key] = _si_number(getattr(spec, key), unit)
+            if "relative_sd" in item:
+                entry["relative_sd"] = float(item["relative_sd"])
+            inputs.append(entry)
+        out["uncertainty"] = {
+            "inputs": inputs,
+            "correlations": [{"fields": [design.uncertainty.inputs[i].field.path,
+                                         design.uncertainty.inputs[j].field.path],
+                              "coefficient": rho}
+                             for i, j, rho in design.uncertainty.correlations],
+            "coverage": design.uncertainty.coverage,
+            "significant_digits": design.uncertainty.significant_digits,
+            "max_trials": design.uncertainty.max_trials,
+        }
+        if design.uncertainty.seed is not None:
+            out["uncertainty"]["seed"] = design.uncertainty.seed
+    if design.limit is not None:
+        unit = design.limit.unit
+        out["design_limit"] = {"vary": design.limit.field.path,
+                               "requirement": design.limit.requirement,
+                               "range": [_si_number(design.limit.low, unit),
+                                         _si_number(design.limit.high, unit)]}
+    if design.sweep is not None:
+        unit = design.sweep.unit
+        out["sweep"] = {"vary": design.sweep.field.path,
+                        "values": [_si_number(v, unit) for v in design.sweep.values]}
+    return out

@@ -476,6 +476,164 @@ def _not_blank(text: str) -> None:
 _not_blank.json_schema = {"pattern": r"\S"}  # type: ignore[attr-defined]
 
 
+# ------------------------------------------------------------------- design (second release)
+
+MAX_REQUIREMENTS = 50
+MAX_REQUIREMENT_ID_LENGTH = 64
+REQUIREMENT_ID_PATTERN = r"^[A-Za-z0-9][A-Za-z0-9._:/-]*$"
+MAX_UNCERTAIN_INPUTS = 20
+MAX_SWEEP_VALUES = 50
+MAX_FIELD_PATH_LENGTH = 120
+FIELD_PATH_PATTERN = r"^[a-z_]+(\[[0-9]{1,2}\])?(\.[a-z_]+){0,2}$"
+#: Largest ``max_trials`` a case may ask for: memory stays bounded (trials run in blocks), the
+#: time is bounded by the service's budgets.
+MAX_TRIALS_LIMIT = 10_000_000
+DISTRIBUTIONS = ("normal", "lognormal", "uniform", "triangular")
+
+
+class LooseValue(_CheckedInDeserialize):
+    """A number, ``"<number> <unit>"`` or ``{"value": number, "unit": str}`` whose dimension
+    depends on another field (the quantity a requirement names, the input an uncertainty
+    varies); it is converted by the design rules (:mod:`schemas.design_rules`) once the case is
+    read."""
+
+    def _deserialize(self, value: Any, attr: str | None, data: Any, **kwargs: Any) -> Any:
+        if isinstance(value, bool):
+            raise ValidationError("expected a number or a value with its unit, got a boolean")
+        if isinstance(value, int | float):
+            if not math.isfinite(value):
+                raise ValidationError("must be a finite number")
+            return float(value)
+        if isinstance(value, str):
+            if len(value) > MAX_QUANTITY_STRING_LENGTH:
+                raise ValidationError(f"at most {MAX_QUANTITY_STRING_LENGTH} characters")
+            return value
+        if isinstance(value, Mapping) and set(value) == {"value", "unit"}:
+            return dict(value)
+        raise ValidationError('expected a number, "<number> <unit>" or {"value": number, '
+                              f'"unit": "..."}}, got {_describe(value)}')
+
+    def _serialize(self, value: Any, attr: str | None, obj: Any, **kwargs: Any) -> Any:
+        return value
+
+    def json_schema(self) -> dict:
+        return {
+            "description": "a number (dimensionless quantities) or a value with its unit, in "
+                           "the dimension of the quantity or input it bounds",
+            "oneOf": [
+                {"type": "number"},
+                {"type": "string", "pattern": QUANTITY_STRING_PATTERN,
+                 "maxLength": MAX_QUANTITY_STRING_LENGTH},
+                {"type": "object", "properties": {
+                    "value": {"type": "number"},
+                    "unit": {"type": "string", "minLength": 1, "maxLength": MAX_UNIT_LENGTH}},
+                 "required": ["value", "unit"], "additionalProperties": False},
+            ],
+        }
+
+
+def _field_path(**kwargs: Any) -> fields.String:
+    return fields.String(
+        validate=[_at_most(MAX_FIELD_PATH_LENGTH, "characters"),
+                  WholeMatch(FIELD_PATH_PATTERN,
+                             error="a field path such as layers[0].diffusivity, "
+                                   "layers[1].reaction.rate or outer_boundary.bulk")],
+        **kwargs)
+
+
+def _requirement_id(**kwargs: Any) -> fields.String:
+    return fields.String(
+        validate=[_at_most(MAX_REQUIREMENT_ID_LENGTH, "characters"),
+                  WholeMatch(REQUIREMENT_ID_PATTERN,
+                             error="an id is a letter or digit followed by letters, digits, "
+                                   "'.', '_', ':', '/' or '-'")],
+        **kwargs)
+
+
+class RequirementSchema(StrictSchema):
+    """A design requirement on one figure of the record: exactly one of ``at_least``,
+    ``at_most``, ``between``, in that figure's dimension."""
+
+    noun = "a requirement"
+    id = _requirement_id(required=True, metadata=_about("unique in the case"))
+    quantity = fields.String(
+        required=True, validate=_at_most(64, "characters"),
+        metadata=_about("a quantity of the record; a series quantity needs `at`"))
+    layer = fields.String(
+        validate=_at_most(MAX_LAYER_NAME_LENGTH, "characters"),
+        metadata=_about("a layer's name: limits concentration_min/concentration_max to it"))
+    at = _positive("time", metadata=_about("the time at which a series quantity is bounded"))
+    at_least = LooseValue()
+    at_most = LooseValue()
+    between = fields.List(LooseValue(), validate=validate.Length(
+        equal=2, error="two values: [lowest, highest]"))
+    source = fields.String(validate=_at_most(MAX_REFERENCE_LENGTH, "characters"),
+                           metadata=_about("where the requirement comes from (design input)"))
+
+
+class UncertainInputSchema(StrictSchema):
+    """One uncertain numeric input of the case and its distribution."""
+
+    noun = "an uncertain input"
+    field = _field_path(required=True)
+    distribution = fields.String(
+        required=True,
+        validate=validate.OneOf(DISTRIBUTIONS, error="must be one of {choices}; got {input!r}"))
+    sd = LooseValue()
+    relative_sd = PlainNumber(validate=validate.Range(min=0.0, min_inclusive=False))
+    low = LooseValue()
+    mode = LooseValue()
+    high = LooseValue()
+
+
+class CorrelationSchema(StrictSchema):
+    """A correlation coefficient between two uncertain inputs (Gaussian copula)."""
+
+    noun = "a correlation"
+    fields_ = fields.List(_field_path(), data_key="fields", attribute="fields", required=True,
+                          validate=validate.Length(equal=2, error="two field paths"))
+    coefficient = PlainNumber(required=True, validate=validate.Range(
+        min=-1.0, max=1.0, min_inclusive=False, max_inclusive=False))
+
+
+class UncertaintySchema(StrictSchema):
+    """Input uncertainty propagated by Monte Carlo (JCGM 101:2008)."""
+
+    noun = "an uncertainty block"
+    inputs = fields.List(fields.Nested(UncertainInputSchema), required=True,
+                         validate=validate.Length(min=1, max=MAX_UNCERTAIN_INPUTS,
+                                                  error="1 to {max} inputs"))
+    correlations = fields.List(fields.Nested(CorrelationSchema),
+                               validate=_at_most(100, "correlations"))
+    coverage = PlainNumber(validate=validate.Range(min=0.5, max=0.999),
+                           metadata=_about("coverage probability", default=0.95))
+    significant_digits = PlainInteger(validate=validate.Range(min=1, max=3), metadata=_about(
+        "digits of the standard uncertainties the adaptive stopping aims at", default=2))
+    seed = PlainInteger(validate=validate.Range(min=0, max=2**63 - 1),
+                        metadata=_about("absent: one is drawn and recorded"))
+    max_trials = PlainInteger(validate=validate.Range(min=100, max=MAX_TRIALS_LIMIT),
+                              metadata=_about("trials at most", default=1_000_000))
+
+
+class DesignLimitSchema(StrictSchema):
+    """The value of one input at which a requirement's margin is zero."""
+
+    noun = "a design limit"
+    vary = _field_path(required=True)
+    requirement = _requirement_id(required=True)
+    range = fields.List(LooseValue(), required=True, validate=validate.Length(
+        equal=2, error="two values: [lowest, highest]"))
+
+
+class SweepSchema(StrictSchema):
+    """A full check at each of several values of one input."""
+
+    noun = "a sweep"
+    vary = _field_path(required=True)
+    values = fields.List(LooseValue(), required=True, validate=validate.Length(
+        min=1, max=MAX_SWEEP_VALUES, error="1 to {max} values"))
+
+
 class CaseSchema(StrictSchema):
     """A transport case, schema version 1."""
 
@@ -532,6 +690,13 @@ class CaseSchema(StrictSchema):
         metadata=_about("positions at which the concentration is reported"),
     )
     tolerances = Tolerances()
+    requirements = fields.List(
+        fields.Nested(RequirementSchema),
+        validate=_at_most(MAX_REQUIREMENTS, "requirements"),
+        metadata=_about("design requirements: the record's design block judges each"))
+    uncertainty = fields.Nested(UncertaintySchema)
+    design_limit = fields.Nested(DesignLimitSchema)
+    sweep = fields.Nested(SweepSchema)
 
 
 # --------------------------------------------------------------------------- cross-field rules

@@ -8,6 +8,7 @@ from schemas.build import validate_case
 from schemas.canonical import case_sha256
 from schemas.errors import CaseError
 from schemas.record import failed_record, succeeded_record
+from worker.engine.design.requirements import design_block
 from worker.engine.independent_problem import (
     IndependentInputError,
     IndependentProblem,
@@ -62,8 +63,11 @@ def check_case(case: dict) -> dict:
     except Exception as exc:  # the engine could not produce a result: recorded, not raised
         logger.exception("engine failure for case %s", digest)
         return failed_record(digest, exc, provenance_block(digest, started_at, utc_now()),
-                             validated.normalised)
+                             validated.normalised,
+                             design_block(validated.design.requirements, {}, {}))
     warnings = input_warnings(validated.problem)
+    design = design_block(validated.design.requirements, outcome.quantities, outcome.series,
+                          validated.problem.regime.duration)
     return succeeded_record(digest, outcome, warnings,
                             provenance_block(digest, started_at, utc_now()),
-                            validated.normalised)
+                            validated.normalised, design)

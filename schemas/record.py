@@ -18,7 +18,10 @@ CAUTION = (
     "independent review; local regulations and licensed professional practice govern their use."
 )
 
-__all__ = ["CAUTION", "failed_record", "succeeded_record"]
+#: The design block of a case that states no requirement.
+NO_DESIGN: dict = {"status": "none_stated", "requirements": []}
+
+__all__ = ["CAUTION", "NO_DESIGN", "failed_record", "succeeded_record"]
 
 
 def _check_dict(check: Check | Mapping) -> dict:
@@ -46,9 +49,11 @@ def _record(case_sha256: str, status: str, verdict: str | None, error: str | Non
 
 
 def succeeded_record(case_sha256: str, outcome: Outcome, input_warnings: list[str],
-                     provenance: dict, inputs: dict) -> dict:
+                     provenance: dict, inputs: dict, design: dict | None = None) -> dict:
     """The record of a solved case: ``outcome``'s results, the warnings about the inputs
-    first, and the verdict ``pass`` exactly when there are checks and every one passed."""
+    first, and the verdict ``pass`` exactly when there are checks and every one passed.
+    ``design`` is the design verdict (:func:`worker.engine.design.requirements.design_block`):
+    it stands beside ``verdict`` and never changes it."""
     checks = [_check_dict(c) for c in outcome.checks]
     return _record(
         case_sha256, RunStatus.SUCCEEDED.value,
@@ -60,15 +65,18 @@ def succeeded_record(case_sha256: str, outcome: Outcome, input_warnings: list[st
         methods=outcome.methods,
         checks=checks,
         warnings=list(input_warnings) + list(outcome.warnings),
+        design=design if design is not None else NO_DESIGN,
     )
 
 
 def failed_record(case_sha256: str, error: BaseException, provenance: dict,
-                  inputs: dict) -> dict:
+                  inputs: dict, design: dict | None = None) -> dict:
     """The record of a case the engine could not solve: status ``failed``, verdict ``fail``,
-    the exception named in ``error`` and its last line as the only warning."""
+    the exception named in ``error`` and its last line as the only warning; ``design`` judges
+    each requirement on no figures (every one ``indeterminate``)."""
     return _record(
         case_sha256, RunStatus.FAILED.value, Verdict.FAIL.value,
         f"{type(error).__name__}: {error}", provenance, inputs,
         warnings=[traceback.format_exception_only(error)[-1].strip()],
+        design=design if design is not None else NO_DESIGN,
     )

@@ -49,6 +49,9 @@ class Decision(StrEnum):
 
 
 STATUSES = tuple(s.value for s in RunStatus)
+#: Statuses of one requirement and of the design as a whole (``none_stated``: no requirement).
+REQUIREMENT_STATUSES = ("met", "not_met", "indeterminate")
+DESIGN_STATUSES = (*REQUIREMENT_STATUSES, "none_stated")
 VERDICTS = tuple(v.value for v in Verdict)
 METHOD_ROLES = ("primary", "independent", "bracket", "reference")
 SHA256_PATTERN = r"^[0-9a-f]{64}$"
@@ -165,6 +168,9 @@ class ValuesSchema(OpenSchema):
 
     values = _numbers(required=True)
     unit = fields.String(required=True)
+    uncertainty = _numbers(metadata={
+        "description": "numerical uncertainty at each time, same unit: the largest difference "
+                       "between the primary route and another"})
     routes = fields.List(fields.String(), metadata={
         "description": "the independent routes that produced and compared it"})
     verified_by = fields.String(metadata={"description": "the check that compared the routes"})
@@ -218,6 +224,33 @@ class ProvenanceSchema(OpenSchema):
     case_sha256 = fields.String(validate=WholeMatch(SHA256_PATTERN))
 
 
+class RequirementResultSchema(OpenSchema):
+    """One requirement judged on the record's figures (SI). ``margin`` > 0 means met."""
+
+    id = fields.String(required=True)
+    quantity = fields.String(required=True)
+    layer = fields.String()
+    at = PlainNumber(metadata={"description": "time of a series requirement, s"})
+    value = PlainNumber(required=True, allow_none=True)
+    bound = NumberOrList(required=True, allow_none=True)
+    margin = PlainNumber(required=True, allow_none=True)
+    relative_margin = PlainNumber(required=True, allow_none=True)
+    numerical_uncertainty = PlainNumber(required=True, allow_none=True)
+    status = fields.String(required=True, validate=validate.OneOf(REQUIREMENT_STATUSES))
+    unit = fields.String()
+    source = fields.String()
+    reason = fields.String()
+    beyond = PlainNumber(metadata={"description": "an event time not reached: it exceeds this "
+                                                  "duration, s"})
+
+
+class DesignSchema(OpenSchema):
+    """The design verdict, beside the calculation's ``verdict``: are the requirements met."""
+
+    status = fields.String(required=True, validate=validate.OneOf(DESIGN_STATUSES))
+    requirements = fields.List(fields.Nested(RequirementResultSchema), required=True)
+
+
 class ResultSchema(StrictSchema):
     """A check record: figures, checks, warnings and provenance of one run of one case."""
 
@@ -234,6 +267,12 @@ class ResultSchema(StrictSchema):
     checks = fields.List(fields.Nested(CheckSchema))
     warnings = fields.List(fields.String())
     provenance = fields.Nested(ProvenanceSchema)
+    design = fields.Nested(DesignSchema)
+    uncertainty = fields.Dict(metadata={"description": "input uncertainty by Monte Carlo "
+                                                       "(JCGM 101:2008)"})
+    design_limit = fields.Dict(metadata={"description": "the value of one input at which a "
+                                                        "requirement's margin is zero"})
+    sweep = fields.Dict(metadata={"description": "full checks at several values of one input"})
     inputs = fields.Dict()
     caution = fields.String()
 

@@ -15,6 +15,7 @@ falls back to that of the layer at its face.
 
 from __future__ import annotations
 
+import dataclasses
 import math
 from collections.abc import Mapping
 from dataclasses import dataclass, field
@@ -25,6 +26,8 @@ from typing import Any
 
 import numpy as np
 
+from worker.engine.design.paths import field_dimension, resolve
+from worker.engine.design.requirements import REQUIRABLE
 from worker.engine.model import Boundary, Layer, Problem, Reaction, Regime
 from worker.engine.unit_table import (
     AMOUNT,
@@ -267,11 +270,14 @@ def build_independent_problem(document: Mapping[str, Any]) -> IndependentProblem
     outer_boundary = _boundary(reader, document["outer_boundary"], "outer_boundary")
     regime_spec = document["regime"]
     if regime_spec["kind"] == "transient":
+        stated = [reader.read(t, "time", f"regime.times[{i}]")
+                  for i, t in enumerate(regime_spec["times"])]
+        required = [reader.read(item["at"], "time", f"requirements[{i}].at")
+                    for i, item in enumerate(document.get("requirements", [])) if "at" in item]
         regime = Regime(
             kind="transient",
             duration=reader.read(regime_spec["duration"], "time", "regime.duration"),
-            times=tuple(reader.read(t, "time", f"regime.times[{i}]")
-                        for i, t in enumerate(regime_spec["times"])),
+            times=tuple(sorted(set(stated) | set(required))),
         )
     else:
         regime = Regime(kind="steady")
@@ -279,7 +285,7 @@ def build_independent_problem(document: Mapping[str, Any]) -> IndependentProblem
                    for i, p in enumerate(document.get("probes", [])))
     length = reader.optional(document, "length", "length", "")
     area = reader.optional(document, "area", "area", "")
-    return IndependentProblem(
+    problem = IndependentProblem(
         geometry=str(document["geometry"]),
         inner=inner,
         layers=tuple(layers),
@@ -292,5 +298,40 @@ def build_independent_problem(document: Mapping[str, Any]) -> IndependentProblem
         tolerances=MappingProxyType({str(k): float(v)
                                      for k, v in document.get("tolerances", {}).items()}),
         basis=_basis(reader.values),
-        table_values=MappingProxyType(dict(reader.values)),
     )
+    _read_design_values(reader, document, problem)
+    return dataclasses.replace(problem, table_values=MappingProxyType(dict(reader.values)))
+
+
+def _read_design_values(reader: _Reader, document: Mapping[str, Any], problem: Problem) -> None:
+    """Read the dimensional values of the design fields (requirement bounds in the dimension
+    of the quantity they bound, uncertainty parameters, limit range and sweep values in that of
+    the input they vary), so that ``inputs.units`` compares them too. Plain numbers need no
+    unit route."""
+
+    def read(raw: Any, kind: str | None, path: str) -> None:
+        if kind is not None and kind != "dimensionless" and not isinstance(raw, int | float):
+            reader.read(raw, kind, path)
+
+    for i, item in enumerate(document.get("requirements", [])):
+        kind = REQUIRABLE[item["quantity"]].dimension(problem)
+        for key in ("at_least", "at_most"):
+            if key in item:
+                read(item[key], kind, f"requirements[{i}].{key}")
+        for j, raw in enumerate(item.get("between", [])):
+            read(raw, kind, f"requirements[{i}].between[{j}]")
+
+    def dimension(path: str) -> str | None:
+        return field_dimension(problem, resolve(problem, path))
+
+    block = document.get("uncertainty")
+    for i, item in enumerate(block["inputs"] if block else []):
+        varied = dimension(item["field"])
+        for key in ("sd", "low", "mode", "high"):
+            if key in item:
+                read(item[key], varied, f"uncertainty.inputs[{i}].{key}")
+    for name, key in (("design_limit", "range"), ("sweep", "values")):
+        if name in document:
+            varied = dimension(document[name]["vary"])
+            for j, raw in enumerate(document[name][key]):
+                read(raw, varied, f"{name}.{key}[{j}]")

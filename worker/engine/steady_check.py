@@ -264,7 +264,7 @@ def _totals(problem: Problem, best: _Figures) -> dict[str, tuple[float, str]]:
 
 def _add_quantities(outcome: Outcome, problem: Problem, primary: _Sampled, best: _Figures,
                     second: _Figures | None, flux_band: dict[str, float],
-                    extremes: dict[str, tuple[float, float | None]],
+                    extremes: dict[str, tuple],
                     other: _Sampled | None) -> None:
     """The record's figures: best estimates, each with its numerical uncertainty (the larger of
     the disagreement of the two routes and the grid band where the estimate is numerical), the
@@ -286,7 +286,8 @@ def _add_quantities(outcome: Outcome, problem: Problem, primary: _Sampled, best:
         u = abs(value - other.face_concentration(side)) if other is not None else None
         q(f"surface_{side}", value, c_unit, uncertainty=u, routes=routes,
           verified_by="cross_check.profile" if other is not None else None)
-    for name in ("concentration_min", "concentration_max"):
+    for name in ("concentration_min", "concentration_max",
+                 "concentration_min_layers", "concentration_max_layers"):
         value, u = extremes[name]
         q(name, value, c_unit, uncertainty=u, routes=routes,
           verified_by="cross_check.extremes" if u is not None else None)
@@ -557,34 +558,46 @@ def _figures_of(solution: SteadySolution, problem: Problem, route: str) -> _Figu
 
 
 def _extremes(problem: Problem, primary: _Sampled, other: _Sampled | None
-              ) -> dict[str, tuple[float, float | None]]:
+              ) -> dict[str, tuple]:
     """True minimum and maximum of the primary solution (by optimisation on the continuous
-    solution) with their uncertainty: the difference from the other route's true extreme."""
-    out: dict[str, tuple[float, float | None]] = {}
+    solution) with their uncertainty: the difference from the other route's true extreme; the
+    same per layer under ``<name>_layers`` (lists, inner layer first)."""
+    out: dict[str, tuple] = {}
     for name, lowest in (("concentration_min", True), ("concentration_max", False)):
-        found = true_extreme(primary.extremes(problem, lowest=lowest), lowest=lowest)
+        per_layer = primary.extremes(problem, lowest=lowest)
+        found = true_extreme(per_layer, lowest=lowest)
         u = None
+        layer_u: list[float] | None = None
         if other is not None:
-            again = true_extreme(other.extremes(problem, lowest=lowest), lowest=lowest)
+            again_layers = other.extremes(problem, lowest=lowest)
+            again = true_extreme(again_layers, lowest=lowest)
             u = abs(found.value - again.value)
+            layer_u = [abs(a.value - b.value)
+                       for a, b in zip(per_layer, again_layers, strict=True)]
         out[name] = (found.value, u)
+        out[f"{name}_layers"] = ([e.value for e in per_layer], layer_u)
     return out
 
 
 def _cross_check_extremes(outcome: Outcome, problem: Problem,
-                          extremes: dict[str, tuple[float, float | None]], c_scale: float,
+                          extremes: dict[str, tuple], c_scale: float,
                           label: str) -> None:
+    """The true extremes of the two routes, over the body and in every layer, relative to the
+    concentration scale."""
     worst_name, worst = "", -1.0
     for name, (_, u) in extremes.items():
-        if u is not None and u / c_scale > worst:
-            worst_name, worst = name, u / c_scale
+        spreads = u if isinstance(u, list) else [u]
+        for index, spread in enumerate(spreads):
+            if spread is not None and spread / c_scale > worst:
+                where = f" of {problem.layers[index].name}" if isinstance(u, list) else ""
+                worst_name, worst = name.removesuffix("_layers") + where, spread / c_scale
     if worst < 0.0:
         return
     outcome.check_at_most(
         "cross_check.extremes", worst, check_limit(problem, "cross_check.extremes"),
-        f"{label}: true minimum and maximum of each solution (bounded search on the continuous "
-        f"solution), worst {worst_name}, difference relative to {c_scale:.4g} "
-        f"{problem.concentration_unit}")
+        f"{label}: true minimum and maximum of each solution, over the body and in each layer "
+        f"(bounded search on the continuous solution), worst {worst_name}, difference relative "
+        f"to {c_scale:.4g} {problem.concentration_unit}")
 
 
 def _cross_check_totals(outcome: Outcome, problem: Problem, second: _Figures,

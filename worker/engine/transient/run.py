@@ -146,6 +146,7 @@ def run_transient(problem: Problem, independent: Problem | None = None) -> Outco
     compare_routes(outcome, problem, primary, routes[1:], internal, profile_positions(problem),
                    final_index, c_scale, amount_scale)
     _annotate(outcome, routes, int(requested_index[-1]))
+    _series_bands(outcome, routes, requested_index, factor)
     if series is not None:
         checks.time_lag_check(outcome, problem)
     checks.mass_balance_check(outcome, lines_problem, fine, internal)
@@ -165,6 +166,33 @@ def _record_methods(outcome: Outcome, primary: Route, others: list[Route]) -> No
                                 "reference": other.reference})
     if not others:
         outcome.methods.append(dict(_REFINEMENT_METHOD))
+
+
+def _released_fraction(route: Route, index: np.ndarray) -> np.ndarray:
+    released = route.amounts["released_inner"][index] + route.amounts["released_outer"][index]
+    return released / route.initial_load
+
+
+def _series_bands(outcome: Outcome, routes: list[Route], index: np.ndarray,
+                  factor: float) -> None:
+    """Per requested time, the numerical uncertainty of each amount series (and of the
+    release fraction, each route over its own load): the largest difference between the
+    primary route and another, in the series' unit."""
+    if len(routes) < 2:
+        return
+    primary = routes[0]
+    for name in ("released_inner", "released_outer", "remaining", "consumed"):
+        entry = outcome.series.get(name)
+        if isinstance(entry, dict):
+            a = primary.amounts[name][index]
+            band = np.max([np.abs(a - r.amounts[name][index]) for r in routes[1:]], axis=0)
+            entry["uncertainty"] = (factor * band).tolist()
+    entry = outcome.series.get("release_fraction")
+    loaded = [r for r in routes[1:] if r.initial_load > 0.0]
+    if isinstance(entry, dict) and primary.initial_load > 0.0 and loaded:
+        a = _released_fraction(primary, index)
+        band = np.max([np.abs(a - _released_fraction(r, index)) for r in loaded], axis=0)
+        entry["uncertainty"] = band.tolist()
 
 
 def _annotate(outcome: Outcome, routes: list[Route], last: int) -> None:

@@ -1,0 +1,272 @@
+"""Design requirements: which quantities a requirement may name, and the design verdict.
+
+A requirement bounds one figure of the record: a scalar quantity (``t90``, ``flux_outer``), a
+layer's extreme (``concentration_min`` with ``layer``), or a series at a time (``release_fraction``
+with ``at``). Its *margin* is positive when met: ``value − bound`` for a lower bound,
+``bound − value`` for an upper one, the smaller of the two for a range. The requirement is
+``indeterminate`` when |margin| ≤ the value's numerical uncertainty (the record's own
+``uncertainty`` of that figure): the calculation cannot tell which side of the bound the design
+is on.
+
+A time the run did not reach (``t90`` beyond the duration) is known only to exceed the duration:
+the requirement is then decided where that suffices (``t90 ≤ 21 d`` in a 30-day run: not met),
+and ``indeterminate`` where it does not.
+"""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Callable, Mapping, Sequence
+from dataclasses import dataclass
+
+from worker.engine.model import Problem
+
+#: Record statuses of a requirement and of the design as a whole.
+MET, NOT_MET, INDETERMINATE, NONE_STATED = "met", "not_met", "indeterminate", "none_stated"
+
+
+def _size_kind(problem: Problem, per_area: str, per_length: str, total: str) -> str:
+    """The dimension of an amount (or rate) reported per area for a slab without ``area``, per
+    length for a cylinder without ``length``, else in total."""
+    if problem.geometry == "slab" and problem.area is None:
+        return per_area
+    if problem.geometry == "cylinder" and problem.length is None:
+        return per_length
+    return total
+
+
+def _amount_kind(problem: Problem) -> str:
+    return _size_kind(problem, "amount_per_area", "amount_per_length", "amount")
+
+
+def _rate_kind(problem: Problem) -> str:
+    return _size_kind(problem, "flux", "amount_rate_per_length", "amount_rate")
+
+
+@dataclass(frozen=True)
+class RequirableQuantity:
+    """A figure a requirement may bound.
+
+    ``dimension(problem)`` gives its dimension (a key of ``worker.engine.units.KINDS``);
+    ``regimes`` where the record has it; ``series``: a value per requested time (a requirement
+    on it needs ``at``); ``per_layer``: a requirement may name a ``layer``.
+    """
+
+    name: str
+    dimension: Callable[[Problem], str]
+    regimes: frozenset[str]
+    series: bool = False
+    per_layer: bool = False
+
+
+def _fixed(kind: str) -> Callable[[Problem], str]:
+    return lambda problem: kind
+
+
+_STEADY, _TRANSIENT = frozenset({"steady"}), frozenset({"transient"})
+
+#: Every quantity a requirement may name, in the order the documentation lists them.
+REQUIRABLE: Mapping[str, RequirableQuantity] = {q.name: q for q in (
+    RequirableQuantity("flux_inner", _fixed("flux"), _STEADY),
+    RequirableQuantity("flux_outer", _fixed("flux"), _STEADY),
+    RequirableQuantity("surface_inner", _fixed("concentration"), _STEADY),
+    RequirableQuantity("surface_outer", _fixed("concentration"), _STEADY),
+    RequirableQuantity("concentration_min", _fixed("concentration"), _STEADY, per_layer=True),
+    RequirableQuantity("concentration_max", _fixed("concentration"), _STEADY, per_layer=True),
+    RequirableQuantity("depletion_front", _fixed("length"), _STEADY),
+    RequirableQuantity("biot_inner", _fixed("dimensionless"), _STEADY),
+    RequirableQuantity("biot_outer", _fixed("dimensionless"), _STEADY),
+    RequirableQuantity("rate_inner", _rate_kind, _STEADY),
+    RequirableQuantity("rate_outer", _rate_kind, _STEADY),
+    RequirableQuantity("consumption", _rate_kind, _STEADY),
+    RequirableQuantity("release_fraction_final", _fixed("dimensionless"), _TRANSIENT),
+    RequirableQuantity("t50", _fixed("time"), _TRANSIENT),
+    RequirableQuantity("t90", _fixed("time"), _TRANSIENT),
+    RequirableQuantity("time_lag", _fixed("time"), _TRANSIENT),
+    RequirableQuantity("time_to_steady", _fixed("time"), _TRANSIENT),
+    RequirableQuantity("release_fraction", _fixed("dimensionless"), _TRANSIENT, series=True),
+    RequirableQuantity("released_inner", _amount_kind, _TRANSIENT, series=True),
+    RequirableQuantity("released_outer", _amount_kind, _TRANSIENT, series=True),
+    RequirableQuantity("remaining", _amount_kind, _TRANSIENT, series=True),
+    RequirableQuantity("consumed", _amount_kind, _TRANSIENT, series=True),
+)}
+
+#: Scalar quantities that are event times: absent from the record when not reached in the run.
+EVENT_TIMES = frozenset({"t50", "t90", "time_lag", "time_to_steady"})
+
+
+@dataclass(frozen=True)
+class Requirement:
+    """One requirement in SI: ``low`` ≤ value ≤ ``high`` (either may be None).
+
+    ``layer`` is the layer's index (``layer_name`` its name) for a per-layer quantity; ``at`` the
+    time in s for a series quantity; ``unit`` the quantity's SI unit.
+    """
+
+    id: str
+    quantity: str
+    low: float | None = None
+    high: float | None = None
+    layer: int | None = None
+    layer_name: str | None = None
+    at: float | None = None
+    source: str | None = None
+    unit: str = "1"
+
+    def margin(self, value: float) -> float:
+        """Positive when ``value`` meets the requirement, in the quantity's SI unit."""
+        margins = []
+        if self.low is not None:
+            margins.append(value - self.low)
+        if self.high is not None:
+            margins.append(self.high - value)
+        return min(margins)
+
+    @property
+    def bound(self) -> float | list[float]:
+        """The bound as the record states it: one number, or [low, high] for a range."""
+        if self.low is not None and self.high is not None:
+            return [self.low, self.high]
+        return self.low if self.low is not None else self.high  # type: ignore[return-value]
+
+    def nearest_bound(self, value: float) -> float:
+        """The bound the margin is measured from."""
+        if self.low is None:
+            return self.high  # type: ignore[return-value]
+        if self.high is None:
+            return self.low
+        return self.low if value - self.low <= self.high - value else self.high
+
+    def describe(self) -> str:
+        """``concentration_min [islet] ≥ 0.005`` (SI numbers), for details and warnings."""
+        what = self.quantity
+        if self.layer_name is not None:
+            what += f" [{self.layer_name}]"
+        if self.at is not None:
+            what += f" at {self.at:.6g} s"
+        if self.low is not None and self.high is not None:
+            return f"{self.low:.6g} ≤ {what} ≤ {self.high:.6g}"
+        if self.low is not None:
+            return f"{what} ≥ {self.low:.6g}"
+        return f"{what} ≤ {self.high:.6g}"
+
+
+@dataclass(frozen=True)
+class Reading:
+    """The value a requirement reads from a record: ``value`` (None when the record has none),
+    its numerical ``uncertainty`` (None when not stated), and for an event time not reached,
+    ``beyond``: the duration it is known to exceed."""
+
+    value: float | None
+    uncertainty: float | None = None
+    beyond: float | None = None
+    missing: str | None = None
+
+
+def _entry_value(entry: Mapping, index: int | None) -> tuple[float | None, float | None]:
+    value, band = entry.get("value"), entry.get("uncertainty")
+    if index is not None:
+        value = value[index] if isinstance(value, list) and index < len(value) else None
+        band = band[index] if isinstance(band, list) and index < len(band) else None
+    return (None if value is None else float(value)), (None if band is None else float(band))
+
+
+def read_requirement(requirement: Requirement, quantities: Mapping, series: Mapping,
+                     duration: float | None = None) -> Reading:
+    """The figure ``requirement`` bounds, read from a record's ``quantities`` and ``series``.
+
+    A per-layer extreme reads ``<quantity>_layers`` at the layer's index; a series quantity reads
+    its value at the time ``at`` (which the run adds to its output times).
+    """
+    name = requirement.quantity
+    if requirement.at is not None:
+        entry = series.get(name)
+        times = series.get("time", {}).get("values", [])
+        if not isinstance(entry, Mapping):
+            return Reading(None, missing=f"the record has no series {name}")
+        hits = [i for i, t in enumerate(times) if math.isclose(t, requirement.at, rel_tol=1e-12)]
+        if not hits:
+            return Reading(None, missing=f"the series {name} has no value at {requirement.at} s")
+        values = entry.get("values", [])
+        value = values[hits[0]] if hits[0] < len(values) else None
+        bands = entry.get("uncertainty")
+        band = bands[hits[0]] if isinstance(bands, list) and hits[0] < len(bands) else None
+        return Reading(None if value is None else float(value),
+                       None if band is None or isinstance(band, list) else float(band))
+    if requirement.layer is not None:
+        entry = quantities.get(f"{name}_layers")
+        if not isinstance(entry, Mapping):
+            return Reading(None, missing=f"the record has no {name}_layers")
+        value, band = _entry_value(entry, requirement.layer)
+        return Reading(value, band)
+    entry = quantities.get(name)
+    if not isinstance(entry, Mapping) or entry.get("value") is None:
+        if name in EVENT_TIMES and duration is not None:
+            return Reading(None, beyond=duration)
+        return Reading(None, missing=f"the record has no {name}")
+    value, band = _entry_value(entry, None)
+    return Reading(value, band)
+
+
+def judge(requirement: Requirement, reading: Reading) -> dict:
+    """One entry of the record's ``design.requirements``."""
+    entry: dict = {"id": requirement.id, "quantity": requirement.quantity,
+                   "value": reading.value, "bound": requirement.bound, "margin": None,
+                   "relative_margin": None,
+                   "numerical_uncertainty": reading.uncertainty, "status": INDETERMINATE,
+                   "unit": requirement.unit}
+    if requirement.layer_name is not None:
+        entry["layer"] = requirement.layer_name
+    if requirement.at is not None:
+        entry["at"] = requirement.at
+    if requirement.source is not None:
+        entry["source"] = requirement.source
+    if reading.value is None or not math.isfinite(reading.value):
+        if reading.beyond is not None:
+            entry["beyond"] = reading.beyond
+            entry["status"] = _judge_beyond(requirement, reading.beyond)
+            entry["reason"] = (f"{requirement.quantity} not reached within the run "
+                               f"({reading.beyond:.6g} s)")
+        else:
+            entry["reason"] = reading.missing or f"no value of {requirement.quantity}"
+        return entry
+    margin = requirement.margin(reading.value)
+    bound = requirement.nearest_bound(reading.value)
+    entry["margin"] = margin
+    entry["relative_margin"] = margin / abs(bound) if bound != 0.0 else None
+    band = reading.uncertainty or 0.0
+    if abs(margin) <= band:
+        entry["status"] = INDETERMINATE
+        entry["reason"] = (f"the margin {margin:.3g} is inside the value's numerical uncertainty "
+                           f"{band:.3g}")
+    else:
+        entry["status"] = MET if margin > 0.0 else NOT_MET
+    return entry
+
+
+def _judge_beyond(requirement: Requirement, beyond: float) -> str:
+    """A value known only to exceed ``beyond``: decided where that suffices."""
+    if requirement.high is not None and requirement.high <= beyond:
+        return NOT_MET
+    if requirement.high is None and requirement.low is not None and requirement.low <= beyond:
+        return MET
+    return INDETERMINATE
+
+
+def overall_status(statuses: Sequence[str]) -> str:
+    """The design's status: ``not_met`` if any requirement is, else ``indeterminate`` if any
+    is, else ``met``; ``none_stated`` without requirements."""
+    if not statuses:
+        return NONE_STATED
+    if NOT_MET in statuses:
+        return NOT_MET
+    if INDETERMINATE in statuses:
+        return INDETERMINATE
+    return MET
+
+
+def design_block(requirements: Sequence[Requirement], quantities: Mapping, series: Mapping,
+                 duration: float | None = None) -> dict:
+    """The record's ``design`` block: each requirement judged on the record's figures."""
+    judged = [judge(r, read_requirement(r, quantities, series, duration)) for r in requirements]
+    return {"status": overall_status([j["status"] for j in judged]), "requirements": judged}
