@@ -115,6 +115,10 @@ def _requirements(items: list[Mapping], problem: Problem, reader: _Reader
             reader.fail(f"{path}.quantity", f"{name!r} is not a quantity a {regime} case "
                                             f"reports; one of: {known}")
             continue
+        absent = spec.available(problem)
+        if absent is not None:
+            reader.fail(f"{path}.quantity", f"{name}: {absent}")
+            continue
         given = [k for k in _BOUND_KEYS if k in item]
         if len(given) != 1:
             reader.fail(path, "exactly one of at_least, at_most, between is required; got "

@@ -78,6 +78,12 @@ _EXPECTED: Mapping[str, tuple[Dimension, ...]] = {
     "concentration": _quantity_dimensions(_power(LENGTH, -3)),
     "volumetric_rate": _quantity_dimensions(_times(_power(LENGTH, -3), _PER_TIME)),
     "flux": _quantity_dimensions(_times(_power(LENGTH, -2), _PER_TIME)),
+    "amount": _quantity_dimensions(_power(LENGTH, 0)),
+    "amount_per_area": _quantity_dimensions(_power(LENGTH, -2)),
+    "amount_per_length": _quantity_dimensions(_power(LENGTH, -1)),
+    "amount_rate": _quantity_dimensions(_PER_TIME),
+    "amount_rate_per_length": _quantity_dimensions(_times(_power(LENGTH, -1), _PER_TIME)),
+    "volume": (_power(LENGTH, 3),),
 }
 #: The dimensional parameters of each reaction and boundary kind, by field name. Written out
 #: here rather than read from the kinds' registries; a test holds the two lists together.

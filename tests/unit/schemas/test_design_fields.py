@@ -64,6 +64,8 @@ def _errors(doc: dict) -> list[tuple[str, str]]:
      "expected a dimensionless number"),
     ({"id": "A", "quantity": "concentration_min", "at_least": "1 mg/mL"},
      "requirements[0].at_least", "molar basis"),
+    ({"id": "A", "quantity": "consumption_per_area", "at_most": "1 mol/m^2/s"},
+     "requirements[0].quantity", "reported for a slab only"),
     ({"id": "A", "quantity": "concentration_min", "at": "1 d", "at_least": "1 mol/m^3"},
      "requirements[0].at", "not a series"),
 ])

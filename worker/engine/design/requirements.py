@@ -25,22 +25,32 @@ from worker.engine.model import Problem
 MET, NOT_MET, INDETERMINATE, NONE_STATED = "met", "not_met", "indeterminate", "none_stated"
 
 
-def _size_kind(problem: Problem, per_area: str, per_length: str, total: str) -> str:
-    """The dimension of an amount (or rate) reported per area for a slab without ``area``, per
-    length for a cylinder without ``length``, else in total."""
-    if problem.geometry == "slab" and problem.area is None:
-        return per_area
-    if problem.geometry == "cylinder" and problem.length is None:
-        return per_length
-    return total
-
-
 def _amount_kind(problem: Problem) -> str:
-    return _size_kind(problem, "amount_per_area", "amount_per_length", "amount")
+    """A transient amount: per area for a slab without ``area``, per length for a cylinder
+    without ``length``, else in total (``worker.engine.transient.scales.size_factor``)."""
+    if problem.geometry == "slab" and problem.area is None:
+        return "amount_per_area"
+    if problem.geometry == "cylinder" and problem.length is None:
+        return "amount_per_length"
+    return "amount"
 
 
-def _rate_kind(problem: Problem) -> str:
-    return _size_kind(problem, "flux", "amount_rate_per_length", "amount_rate")
+def _always(problem: Problem) -> str | None:
+    return None
+
+
+def _sized(problem: Problem) -> str | None:
+    if problem.geometry == "slab" and problem.area is None:
+        return "a slab reports totals in amount/s only with its area: give `area`"
+    if problem.geometry == "cylinder" and problem.length is None:
+        return "a cylinder reports totals in amount/s only with its length: give `length`"
+    return None
+
+
+def _geometry(name: str) -> Callable[[Problem], str | None]:
+    def available(problem: Problem) -> str | None:
+        return None if problem.geometry == name else f"reported for a {name} only"
+    return available
 
 
 @dataclass(frozen=True)
@@ -48,8 +58,9 @@ class RequirableQuantity:
     """A figure a requirement may bound.
 
     ``dimension(problem)`` gives its dimension (a key of ``worker.engine.units.KINDS``);
-    ``regimes`` where the record has it; ``series``: a value per requested time (a requirement
-    on it needs ``at``); ``per_layer``: a requirement may name a ``layer``.
+    ``regimes`` where the record has it; ``available(problem)`` None when the case's record
+    reports it, else why not; ``series``: a value per requested time (a requirement on it
+    needs ``at``); ``per_layer``: a requirement may name a ``layer``.
     """
 
     name: str
@@ -57,6 +68,7 @@ class RequirableQuantity:
     regimes: frozenset[str]
     series: bool = False
     per_layer: bool = False
+    available: Callable[[Problem], str | None] = _always
 
 
 def _fixed(kind: str) -> Callable[[Problem], str]:
@@ -76,9 +88,17 @@ REQUIRABLE: Mapping[str, RequirableQuantity] = {q.name: q for q in (
     RequirableQuantity("depletion_front", _fixed("length"), _STEADY),
     RequirableQuantity("biot_inner", _fixed("dimensionless"), _STEADY),
     RequirableQuantity("biot_outer", _fixed("dimensionless"), _STEADY),
-    RequirableQuantity("rate_inner", _rate_kind, _STEADY),
-    RequirableQuantity("rate_outer", _rate_kind, _STEADY),
-    RequirableQuantity("consumption", _rate_kind, _STEADY),
+    RequirableQuantity("rate_per_length_inner", _fixed("amount_rate_per_length"), _STEADY,
+                       available=_geometry("cylinder")),
+    RequirableQuantity("rate_per_length_outer", _fixed("amount_rate_per_length"), _STEADY,
+                       available=_geometry("cylinder")),
+    RequirableQuantity("consumption_per_length", _fixed("amount_rate_per_length"), _STEADY,
+                       available=_geometry("cylinder")),
+    RequirableQuantity("consumption_per_area", _fixed("flux"), _STEADY,
+                       available=_geometry("slab")),
+    RequirableQuantity("rate_inner", _fixed("amount_rate"), _STEADY, available=_sized),
+    RequirableQuantity("rate_outer", _fixed("amount_rate"), _STEADY, available=_sized),
+    RequirableQuantity("consumption", _fixed("amount_rate"), _STEADY, available=_sized),
     RequirableQuantity("release_fraction_final", _fixed("dimensionless"), _TRANSIENT),
     RequirableQuantity("t50", _fixed("time"), _TRANSIENT),
     RequirableQuantity("t90", _fixed("time"), _TRANSIENT),
