@@ -69,13 +69,38 @@ def _x_cosh_minus_sinh(x: Positions) -> np.ndarray:
     return np.where(x < _SERIES_LIMIT, series, x * np.cosh(x) - np.sinh(x))
 
 
-def _full(r, value: float):
-    """``value`` with the shape of r (an array), or as a scalar for a scalar r."""
+def _full(r, value):
+    """``value`` with the shape of r (an array), or as a scalar for a scalar r; a ``value``
+    batched over trials (an array) is broadcast against r."""
     if not isinstance(r, np.ndarray):
         return np.float64(value)
+    if isinstance(value, np.ndarray):
+        return np.broadcast_to(value, r.shape).copy()
     out = np.empty(r.shape)
     out.fill(value)
     return out
+
+
+def uniform_branch(condition) -> bool:
+    """A branch test on one layer's parameters. For plain floats, the test itself. For
+    parameters batched over trials (arrays, see ``LayerBasis``) every trial must take the same
+    branch: the caller groups trials by ``LayerBasis.branch`` first (ValueError otherwise)."""
+    if isinstance(condition, np.ndarray):
+        if condition.all():
+            return True
+        if not condition.any():
+            return False
+        raise ValueError("batched layer parameters span two branches of the closed form; "
+                         "group the trials by LayerBasis.branch")
+    return bool(condition)
+
+
+def _sqrt(x):
+    return np.sqrt(x) if isinstance(x, np.ndarray) else math.sqrt(x)
+
+
+def _expm1(x):
+    return np.expm1(x) if isinstance(x, np.ndarray) else math.expm1(x)
 
 
 def _zeros(r):
@@ -100,6 +125,11 @@ class LayerBasis:
         Zero-order consumption Q, amount/(m^3*s) (0 for none).
     solid : bool
         True for the innermost layer of a solid cylinder or sphere (a = 0).
+
+    The numeric fields may also be arrays over trials, of one shape that broadcasts against
+    the positions (``(n, 1)`` parameters, ``(n, p)`` positions): ``evaluate`` then gives every
+    trial's functions at once, provided every trial takes the same branch of the closed form
+    (``branch``; ``uniform_branch`` raises otherwise).
     """
 
     exponent: int
@@ -117,7 +147,15 @@ class LayerBasis:
     @property
     def decay_constant(self) -> float:
         """m = sqrt(k/D), 1/m (0 without first-order reaction)."""
-        return math.sqrt(self.rate_constant / self.diffusivity)
+        return _sqrt(self.rate_constant / self.diffusivity)
+
+    @staticmethod
+    def branch(rate_constant, diffusivity, thickness, zero_order_rate):
+        """Which closed form a layer takes, element by element (arrays over trials, or floats):
+        (reacting, nodal, zero order), the tests of ``evaluate``; trials with equal branches
+        can be evaluated as one batched ``LayerBasis``."""
+        m = np.sqrt(np.asarray(rate_constant, dtype=float) / diffusivity)
+        return m > 0.0, m * thickness > 1.0, np.asarray(zero_order_rate) != 0.0
 
     @overload
     def evaluate(self, r: np.ndarray) -> tuple[np.ndarray, ...]: ...
@@ -137,7 +175,7 @@ class LayerBasis:
             overhead).
         """
         r = np.float64(r) if isinstance(r, float) else np.asarray(r, dtype=float)
-        if self.decay_constant > 0.0:
+        if uniform_branch(self.decay_constant > 0.0):
             values = self._reacting(r)
         else:
             values = self._plain(r)
@@ -198,7 +236,7 @@ class LayerBasis:
     @property
     def nodal(self) -> bool:
         """True when g1 is the nodal function (g1(b) = 0), i.e. m (b - a) > 1."""
-        return self.decay_constant * self.thickness > 1.0
+        return uniform_branch(self.decay_constant * self.thickness > 1.0)
 
     def _reacting(self, r: Positions) -> tuple[Positions, ...]:
         n = self.exponent
@@ -229,7 +267,7 @@ class LayerBasis:
     def _sinh_ratio(self, t: Positions) -> tuple[Positions, Positions]:
         """sinh(m t)/sinh(m L) and its t-derivative, 0 <= t <= L, in decaying-exponential form."""
         m, length = self.decay_constant, self.outer_edge - self.inner_edge
-        denominator = -math.expm1(-2.0 * m * length)
+        denominator = -_expm1(-2.0 * m * length)
         decay = np.exp(-m * (length - t))
         twice = -2.0 * m * t
         value = decay * (-np.expm1(twice)) / denominator
@@ -288,7 +326,7 @@ class LayerBasis:
     def _particular(self, r: Positions) -> tuple[Positions, Positions]:
         """Zero-order particular solution vanishing at both edges, and its derivative."""
         q = self.zero_order_rate / self.diffusivity
-        if q == 0.0:
+        if not uniform_branch(q != 0.0):
             zeros = _zeros(r)
             return zeros, zeros
         a, b, n = self.inner_edge, self.outer_edge, self.exponent

@@ -47,6 +47,7 @@ from worker.engine.graded_quadrature import graded_gauss_rule
 from worker.engine.layered_profile import LayeredProfile
 from worker.engine.model import (
     GEOMETRY_EXPONENT,
+    Boundary,
     Problem,
     SteadySolution,
 )
@@ -153,38 +154,49 @@ def _is_well_posed(problem: Problem) -> bool:
     return any(ly.reaction.law.fixes_level(ly.reaction) for ly in problem.layers)
 
 
-class _EdgeForms:
+class EdgeForms:
     """C/K and J at both edges of one layer as linear forms in the layer's unknowns.
 
     With unknown columns (col1, col2) and C = K (c1 g1 + c2 g2) + P, each form is
     ``(coefficients by column, constant)``; ``u`` is C/K, ``flux`` is J = -D dC/dr.
-    ``evaluated``, if given, is ``basis.evaluate(r)`` at positions r that start with the two
-    edges (so one evaluation serves the edges and, say, quadrature nodes); else each edge is
-    evaluated alone (scalar arithmetic, the same values).
+    ``at_edges`` holds, per edge (inner, outer), ``(g1, g2, P, g1', g2', P')`` of the layer's
+    basis there: floats, or arrays over trials (``worker.engine.design.trials`` solves many
+    trials at once with the same forms and rows).
     """
 
-    def __init__(self, basis: LayerBasis, partition: float, columns: tuple[int | None, int],
-                 evaluated: tuple[np.ndarray, ...] | None = None):
-        at_edges: tuple[tuple[Any, ...], ...]
-        if evaluated is None:
-            at_edges = (basis.edge_values(basis.inner_edge), basis.edge_values(basis.outer_edge))
-        else:
-            at_edges = tuple(tuple(field[e] for field in evaluated) for e in (0, 1))
-        d = basis.diffusivity
-        self.u, self.flux = [], []
+    def __init__(self, at_edges, diffusivity, partition, columns: tuple[int | None, int]):
+        d = diffusivity
+        self.u: list[tuple[dict[int, Any], Any]] = []
+        self.flux: list[tuple[dict[int, Any], Any]] = []
         for g1, g2, part, dg1, dg2, dpart in at_edges:
-            u_terms = {columns[1]: float(g2)}
-            flux_terms = {columns[1]: -d * partition * float(dg2)}
+            u_terms = {columns[1]: g2}
+            flux_terms = {columns[1]: -d * partition * dg2}
             if columns[0] is not None:
-                u_terms[columns[0]] = float(g1)
-                flux_terms[columns[0]] = -d * partition * float(dg1)
-            self.u.append((u_terms, float(part) / partition))
-            self.flux.append((flux_terms, -d * float(dpart)))
+                u_terms[columns[0]] = g1
+                flux_terms[columns[0]] = -d * partition * dg1
+            self.u.append((u_terms, part / partition))
+            self.flux.append((flux_terms, -d * dpart))
 
 
-def _combine(*forms: tuple[dict[int, float], float], signs: tuple[float, ...]):
-    coefficients: dict[int, float] = {}
-    constant = 0.0
+def _edge_forms(basis: LayerBasis, partition: float, columns: tuple[int | None, int],
+                evaluated: tuple[np.ndarray, ...] | None = None) -> EdgeForms:
+    """``EdgeForms`` of one layer in floats. ``evaluated``, if given, is ``basis.evaluate(r)``
+    at positions r that start with the two edges (so one evaluation serves the edges and, say,
+    quadrature nodes); else each edge is evaluated alone (scalar arithmetic, the same
+    values)."""
+    at_edges: tuple[tuple[float, ...], ...]
+    if evaluated is None:
+        at_edges = (basis.edge_values(basis.inner_edge), basis.edge_values(basis.outer_edge))
+    else:
+        at_edges = tuple(tuple(float(field[e]) for field in evaluated) for e in (0, 1))
+    return EdgeForms(at_edges, basis.diffusivity, partition, columns)
+
+
+def combine(*forms: tuple[dict[int, Any], Any], signs: tuple[Any, ...]):
+    """The linear form sum(sign * form): coefficients by column and constant (floats, or
+    arrays over trials)."""
+    coefficients: dict[int, Any] = {}
+    constant: Any = 0.0
     for (terms, value), sign in zip(forms, signs, strict=True):
         for col, c in terms.items():
             coefficients[col] = coefficients.get(col, 0.0) + sign * c
@@ -192,17 +204,51 @@ def _combine(*forms: tuple[dict[int, float], float], signs: tuple[float, ...]):
     return coefficients, constant
 
 
-def _face_row(problem: Problem, side: str, forms: _EdgeForms, partition: float):
-    """Row (coefficients by column, right-hand side) of one face condition."""
-    boundary = problem.inner_boundary if side == "inner" else problem.outer_boundary
-    face_partition = problem.face_partition(side)
+def face_row(boundary: Boundary, side: str, forms: EdgeForms, partition, face_partition):
+    """Row (coefficients by column, right-hand side) of the condition of ``boundary`` at the
+    ``side`` face; ``partition`` is the face layer's K, ``face_partition`` the face's (floats,
+    or arrays over trials)."""
     e = 0 if side == "inner" else 1
     u_form, flux_form = forms.u[e], forms.flux[e]
     # Flux into the body: +J at the inner face, -J at the outer face.
     inward = 1.0 if side == "inner" else -1.0
     return boundary.condition.exact_row(
-        boundary, u_form, flux_form, inward, partition, face_partition, _combine
+        boundary, u_form, flux_form, inward, partition, face_partition, combine
     )
+
+
+def unknown_columns(solid_centre: bool, count: int) -> tuple[list[tuple[int | None, int]], int]:
+    """The unknowns' columns of each of ``count`` layers (the centre layer of a solid body
+    has one unknown, the others two) and their number."""
+    columns: list[tuple[int | None, int]] = []
+    n = 0
+    for i in range(count):
+        if i == 0 and solid_centre:
+            columns.append((None, n))
+            n += 1
+        else:
+            columns.append((n, n + 1))
+            n += 2
+    return columns, n
+
+
+def system_rows(problem: Problem, forms: list[EdgeForms], partitions, face_partitions,
+                boundaries: tuple[Boundary, Boundary] | None = None):
+    """Rows ``(coefficients by column, right-hand side)`` of the closed-form system in order:
+    the inner face (none at a solid centre), per interface continuity of C/K then of J, the
+    outer face. ``partitions`` per layer and ``face_partitions`` (inner, outer) are floats or
+    arrays over trials; ``boundaries`` (default the problem's) may carry arrays too."""
+    inner, outer = boundaries or (problem.inner_boundary, problem.outer_boundary)
+    rows = []
+    if not problem.solid_centre:
+        rows.append(face_row(inner, "inner", forms[0], partitions[0], face_partitions[0]))
+    for left, right in zip(forms[:-1], forms[1:], strict=True):
+        for name in ("u", "flux"):
+            terms, constant = combine(getattr(left, name)[1], getattr(right, name)[0],
+                                      signs=(1.0, -1.0))
+            rows.append((terms, -constant))
+    rows.append(face_row(outer, "outer", forms[-1], partitions[-1], face_partitions[1]))
+    return rows
 
 
 def _assemble(problem: Problem, bases: list[LayerBasis],
@@ -210,30 +256,15 @@ def _assemble(problem: Problem, bases: list[LayerBasis],
     """Equilibrated matrix, right-hand side and the unknown columns of each layer.
 
     ``evaluated``: per layer, its basis evaluated at positions starting with its two edges
-    (see ``_EdgeForms``), or None to evaluate at the edges here."""
-    columns: list[tuple[int | None, int]] = []
-    count = 0
-    for basis in bases:
-        if basis.solid:
-            columns.append((None, count))
-            count += 1
-        else:
-            columns.append((count, count + 1))
-            count += 2
+    (see ``_edge_forms``), or None to evaluate at the edges here."""
+    columns, count = unknown_columns(bases[0].solid, len(bases))
     partitions = [ly.partition for ly in problem.layers]
     if evaluated is None:
         evaluated = [None] * len(bases)
-    forms = [_EdgeForms(b, k, c, e)
+    forms = [_edge_forms(b, k, c, e)
              for b, k, c, e in zip(bases, partitions, columns, evaluated, strict=True)]
-    rows: list[tuple[dict[int, float], float]] = []
-    if not bases[0].solid:
-        rows.append(_face_row(problem, "inner", forms[0], partitions[0]))
-    for left, right in zip(forms[:-1], forms[1:], strict=True):
-        for name in ("u", "flux"):
-            terms, constant = _combine(getattr(left, name)[1], getattr(right, name)[0],
-                                       signs=(1.0, -1.0))
-            rows.append((terms, -constant))
-    rows.append(_face_row(problem, "outer", forms[-1], partitions[-1]))
+    rows = system_rows(problem, forms, partitions,
+                       (problem.face_partition("inner"), problem.face_partition("outer")))
     matrix = np.zeros((count, count))
     rhs = np.zeros(count)
     for j, (coefficients, value) in enumerate(rows):

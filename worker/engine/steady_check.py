@@ -262,6 +262,17 @@ def _totals(problem: Problem, best: _Figures) -> dict[str, tuple[float, str]]:
     return out
 
 
+def _biot(problem: Problem, side: str) -> float | None:
+    """Biot number of a face with a film: h * total thickness / (K_face * D of the face layer);
+    None for a face without one."""
+    b = problem.inner_boundary if side == "inner" else problem.outer_boundary
+    h = b.condition.film_coefficient(b)
+    if h is None:
+        return None
+    layer = problem.layers[0] if side == "inner" else problem.layers[-1]
+    return float(h * problem.total_thickness / (problem.face_partition(side) * layer.diffusivity))
+
+
 def _add_quantities(outcome: Outcome, problem: Problem, primary: _Sampled, best: _Figures,
                     second: _Figures | None, flux_band: dict[str, float],
                     extremes: dict[str, tuple],
@@ -298,12 +309,8 @@ def _add_quantities(outcome: Outcome, problem: Problem, primary: _Sampled, best:
       "1", routes=["reaction kinds on the case as read", "definition on the independent reading"],
       verified_by="cross_check.dimensionless")
     for side in ("inner", "outer"):
-        b = problem.inner_boundary if side == "inner" else problem.outer_boundary
-        h = b.condition.film_coefficient(b)
-        if h is not None:
-            layer = problem.layers[0] if side == "inner" else problem.layers[-1]
-            biot = h * problem.total_thickness / (
-                problem.face_partition(side) * layer.diffusivity)
+        biot = _biot(problem, side)
+        if biot is not None:
             q(f"biot_{side}", float(biot), "1",
               routes=["boundary kinds on the case as read",
                       "definition on the independent reading"],
@@ -849,3 +856,54 @@ def _bracket_check(outcome: Outcome, problem: Problem, fine: _Sampled,
         "bracket", worst, check_limit(problem, "bracket"),
         f"finite-volume solution inside the maximum-principle bracket (Aris 1975; Protter & "
         f"Weinberger 1967); largest excursion at r = {where:.5g} m")
+
+
+@dataclass(frozen=True)
+class PrimaryFigures:
+    """The record's primary figures of a steady case, without the routes that check them:
+    ``scalars`` by quantity name (as ``run_steady`` reports them; ``depletion_front`` NaN
+    without a front) and, per layer, the true minimum and maximum of the primary solution."""
+
+    scalars: dict[str, float]
+    layer_min: list[float]
+    layer_max: list[float]
+
+
+def primary_figures(problem: Problem) -> PrimaryFigures:
+    """The primary figures of :func:`run_steady` alone: the exact solution where a closed form
+    exists, else the finite volumes' three-grid study (Richardson-extrapolated face fluxes and
+    consumption where the grids converge monotonically, profile and extremes of the fine grid),
+    by the same functions ``run_steady`` uses. For many trials of one case
+    (``worker.engine.design.trials``); a failed solve gives NaN figures."""
+    positions = _profile_positions(problem)
+    exact = exact_steady.solve_exact(problem, sample_at=positions)
+    if exact is not None:
+        primary = exact
+        best = _figures_of(exact, problem, exact.method)
+    else:
+        grids = convergence.refined_solutions(problem)
+        primary = grids[0]
+        studies = convergence.run_grid_study(
+            problem, solutions=grids,
+            quantities=[f"flux_{side}" for side in _faces(problem)] + ["consumption"])
+        best, _ = _fv_figures(problem, studies, primary, primary.method)
+    count = len(problem.layers)
+    if not primary.success:
+        nan = math.nan
+        return PrimaryFigures({}, [nan] * count, [nan] * count)
+    sample = _Sampled.of(primary, positions)
+    scalars = {"flux_inner": best.flux_inner, "flux_outer": best.flux_outer,
+               "surface_inner": sample.face_concentration("inner"),
+               "surface_outer": sample.face_concentration("outer")}
+    lows = sample.extremes(problem, lowest=True)
+    highs = sample.extremes(problem, lowest=False)
+    scalars["concentration_min"] = true_extreme(lows, lowest=True).value
+    scalars["concentration_max"] = true_extreme(highs, lowest=False).value
+    front = primary.depletion_front
+    scalars["depletion_front"] = math.nan if front is None else float(front)
+    for side in ("inner", "outer"):
+        biot = _biot(problem, side)
+        if biot is not None:
+            scalars[f"biot_{side}"] = biot
+    scalars.update({name: float(value) for name, (value, _) in _totals(problem, best).items()})
+    return PrimaryFigures(scalars, [e.value for e in lows], [e.value for e in highs])

@@ -19,7 +19,7 @@ if TYPE_CHECKING:
 
 #: How a face takes part in the steady depletion solutions (``depletion_exact``).
 DepletionRole = Literal["fed", "sealed", "other"]
-#: The closed-form solver's linear-form combiner (``exact_steady._combine``).
+#: The closed-form solver's linear-form combiner (``exact_steady.combine``).
 Combine = Callable[..., tuple[Any, Any]]
 
 

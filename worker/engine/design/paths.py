@@ -22,6 +22,7 @@ import math
 import re
 from collections.abc import Mapping
 from dataclasses import dataclass
+from typing import Any
 
 from worker.engine.model import Boundary, Layer, Problem
 from worker.engine.parameters import Parameter
@@ -32,6 +33,7 @@ __all__ = [
     "field_dimension",
     "field_domain",
     "parse_field",
+    "replaced",
     "resolve",
     "value_of",
     "with_values",
@@ -215,13 +217,19 @@ def with_values(problem: Problem, values: Mapping[FieldRef, float]) -> Problem:
     """A new ``Problem`` with the given fields replaced (SI values); the cached properties
     (``edges``, ``outer``) are those of the new problem. FieldPathError for a field the case
     does not have."""
-    top: dict[str, float] = {}
-    layer_changes: dict[int, dict[str, float]] = {}
-    reaction_changes: dict[int, dict[str, float]] = {}
-    boundary_changes: dict[str, dict[str, float]] = {}
+    return replaced(problem, {ref: float(value) for ref, value in values.items()})
+
+
+def replaced(problem: Problem, values: Mapping[FieldRef, Any]) -> Problem:
+    """``with_values`` without turning the values into floats: with arrays over trials the
+    result carries them in its fields (for batched solvers that read the fields by name and
+    broadcast; its ``edges`` are then not meaningful)."""
+    top: dict[str, Any] = {}
+    layer_changes: dict[int, dict[str, Any]] = {}
+    reaction_changes: dict[int, dict[str, Any]] = {}
+    boundary_changes: dict[str, dict[str, Any]] = {}
     for ref, value in values.items():
         _parameter(problem, ref)
-        value = float(value)
         if ref.part == "problem":
             top[ref.name] = value
         elif ref.part in BOUNDARY_SIDES:
@@ -230,7 +238,7 @@ def with_values(problem: Problem, values: Mapping[FieldRef, float]) -> Problem:
             assert ref.layer is not None
             target = layer_changes if ref.part == "layer" else reaction_changes
             target.setdefault(ref.layer, {})[ref.name] = value
-    changes: dict[str, object] = dict(top)
+    changes: dict[str, Any] = dict(top)
     if layer_changes or reaction_changes:
         layers: list[Layer] = list(problem.layers)
         for index in set(layer_changes) | set(reaction_changes):
@@ -244,4 +252,4 @@ def with_values(problem: Problem, values: Mapping[FieldRef, float]) -> Problem:
     for side, fields in boundary_changes.items():
         changes[side] = dataclasses.replace(_boundary(problem, side), **fields)
     # dataclasses.replace builds a new instance: its cached properties start empty.
-    return dataclasses.replace(problem, **changes)  # type: ignore[arg-type]
+    return dataclasses.replace(problem, **changes)

@@ -1,0 +1,178 @@
+"""The figures a design requirement, a Monte Carlo run or a design limit can ask of a case.
+
+One table (``quantities``) says, for a problem, which quantities exist, their dimension (a key of
+``worker.engine.units.KINDS``, for the requirement's units) and whether a layer or a time goes
+with them. The names are those of the record's quantities and series:
+
+steady (``worker.engine.steady_check``)
+    ``flux_inner``, ``flux_outer`` (flux density, outward positive), ``surface_inner``,
+    ``surface_outer`` (material-side concentration at each face), ``concentration_min``,
+    ``concentration_max`` (the true extremes; with a layer: within that layer),
+    ``depletion_front`` (where a zero-order layer runs out; NaN for a trial without a front),
+    ``biot_inner``/``biot_outer`` (mass-transfer faces); per unit size: cylinder
+    ``rate_per_length_inner``/``rate_per_length_outer``/``consumption_per_length``, slab
+    ``consumption_per_area``; totals ``rate_inner``, ``rate_outer``, ``consumption`` (sphere
+    always, cylinder with ``length``, slab with ``area``).
+transient (``worker.engine.transient.record``)
+    ``t50``, ``t90`` (time to 50 % / 90 % release; NaN when not reached within the duration)
+    and ``release_fraction_final``, for an initially loaded body; series quantities at a time
+    ``at`` (s): ``release_fraction`` (loaded body), ``uptake`` (initially empty body),
+    ``released_inner``, ``released_outer``, ``remaining`` (amounts in the record's measure:
+    per m^2 of a slab without ``area``, per m of a cylinder without ``length``), and
+    ``concentration_min``/``concentration_max`` (over the body or a layer, at time ``at``).
+
+Not offered: the list-valued ``thiele_modulus`` and the membrane ``time_lag``.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass, field
+
+from worker.engine.model import Problem
+from worker.engine.transient.scales import size_factor
+
+__all__ = ["QuantitySpec", "Target", "TargetError", "check_target", "quantities",
+           "target_dimension"]
+
+
+class TargetError(ValueError):
+    """A target the problem cannot give; ``message`` names what was expected."""
+
+    def __init__(self, key: str, message: str):
+        super().__init__(f"{key}: {message}")
+        self.key = key
+        self.message = message
+
+
+@dataclass(frozen=True)
+class QuantitySpec:
+    """A quantity a problem offers: its dimension (``units.KINDS`` key; ``"dimensionless"``
+    for plain numbers), whether it may be limited to a layer, and whether it needs a time."""
+
+    quantity: str
+    dimension: str
+    per_layer: bool = False
+    at_time: bool = False
+
+
+@dataclass(frozen=True)
+class Target:
+    """One figure of a case: ``quantity``, optionally limited to ``layer`` (index) and, for a
+    series quantity, at time ``at`` (s). ``layer_name`` (filled by :func:`check_target`) is
+    the name the key shows; it takes no part in equality."""
+
+    quantity: str
+    layer: int | None = None
+    at: float | None = None
+    layer_name: str | None = field(default=None, compare=False)
+
+    @property
+    def key(self) -> str:
+        """``concentration_min``, ``concentration_min[islet]``, ``release_fraction@604800s``."""
+        text = self.quantity
+        if self.layer is not None:
+            text += f"[{self.layer_name if self.layer_name is not None else self.layer}]"
+        if self.at is not None:
+            text += f"@{self.at:.15g}s"
+        return text
+
+
+def _amount_dimension(problem: Problem) -> str:
+    factor_unit = size_factor(problem)[1]
+    if factor_unit.endswith("/m^2"):
+        return "amount_per_area"
+    if factor_unit.endswith("/m"):
+        return "amount_per_length"
+    return "amount"
+
+
+def _steady(problem: Problem) -> list[QuantitySpec]:
+    specs = [QuantitySpec("flux_inner", "flux"), QuantitySpec("flux_outer", "flux"),
+             QuantitySpec("surface_inner", "concentration"),
+             QuantitySpec("surface_outer", "concentration"),
+             QuantitySpec("concentration_min", "concentration", per_layer=True),
+             QuantitySpec("concentration_max", "concentration", per_layer=True)]
+    if any(ly.reaction.law.depletes for ly in problem.layers):
+        specs.append(QuantitySpec("depletion_front", "length"))
+    for side in ("inner", "outer"):
+        boundary = problem.inner_boundary if side == "inner" else problem.outer_boundary
+        if boundary.condition.film_coefficient(boundary) is not None:
+            specs.append(QuantitySpec(f"biot_{side}", "dimensionless"))
+    if problem.geometry == "cylinder":
+        specs += [QuantitySpec("rate_per_length_inner", "amount_rate_per_length"),
+                  QuantitySpec("rate_per_length_outer", "amount_rate_per_length"),
+                  QuantitySpec("consumption_per_length", "amount_rate_per_length")]
+        size = problem.length
+    elif problem.geometry == "slab":
+        specs.append(QuantitySpec("consumption_per_area", "flux"))
+        size = problem.area
+    else:
+        size = 1.0
+    if size is not None:
+        specs += [QuantitySpec(name, "amount_rate")
+                  for name in ("rate_inner", "rate_outer", "consumption")]
+    return specs
+
+
+def _loaded(problem: Problem) -> bool:
+    return any(ly.initial * ly.thickness > 0.0 for ly in problem.layers)
+
+
+def _transient(problem: Problem) -> list[QuantitySpec]:
+    amount = _amount_dimension(problem)
+    specs = []
+    if _loaded(problem):
+        specs += [QuantitySpec("t50", "time"), QuantitySpec("t90", "time"),
+                  QuantitySpec("release_fraction_final", "dimensionless"),
+                  QuantitySpec("release_fraction", "dimensionless", at_time=True)]
+    else:
+        specs.append(QuantitySpec("uptake", amount, at_time=True))
+    specs += [QuantitySpec("released_inner", amount, at_time=True),
+              QuantitySpec("released_outer", amount, at_time=True),
+              QuantitySpec("remaining", amount, at_time=True),
+              QuantitySpec("concentration_min", "concentration", per_layer=True, at_time=True),
+              QuantitySpec("concentration_max", "concentration", per_layer=True, at_time=True)]
+    return specs
+
+
+def quantities(problem: Problem) -> dict[str, QuantitySpec]:
+    """Every quantity ``problem`` offers as a target, by name (the one list; see the module
+    docstring)."""
+    specs = _transient(problem) if problem.regime.kind == "transient" else _steady(problem)
+    return {spec.quantity: spec for spec in specs}
+
+
+def check_target(problem: Problem, target: Target) -> Target:
+    """``target`` checked against ``problem`` (quantity offered, layer index in range, a time
+    exactly where the quantity needs one, within the duration), with its ``layer_name``
+    filled; TargetError naming what was expected otherwise."""
+    offered = quantities(problem)
+    spec = offered.get(target.quantity)
+    if spec is None:
+        raise TargetError(target.key, f"this {problem.regime.kind} case has no quantity "
+                          f"{target.quantity!r}; it has: {', '.join(offered)}")
+    name = None
+    if target.layer is not None:
+        if not spec.per_layer:
+            raise TargetError(target.key, f"{target.quantity} is not given per layer")
+        count = len(problem.layers)
+        if not 0 <= target.layer < count:
+            raise TargetError(target.key, f"layers[{target.layer}]: the case has {count} "
+                              f"layer{'s' if count != 1 else ''}")
+        name = problem.layers[target.layer].name
+    if spec.at_time:
+        if target.at is None:
+            raise TargetError(target.key, f"{target.quantity} is a series: give the time 'at'")
+        duration = problem.regime.duration or 0.0
+        if not (math.isfinite(target.at) and 0.0 <= target.at <= duration):
+            raise TargetError(target.key, f"at: expected a time within the duration 0–"
+                              f"{duration:.6g} s, got {target.at!r}")
+    elif target.at is not None:
+        raise TargetError(target.key, f"{target.quantity} is not a series: no time 'at'")
+    return Target(target.quantity, target.layer, target.at, layer_name=name)
+
+
+def target_dimension(problem: Problem, target: Target) -> str:
+    """The dimension of a target's values (a ``units.KINDS`` key)."""
+    return quantities(problem)[check_target(problem, target).quantity].dimension

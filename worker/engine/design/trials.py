@@ -1,0 +1,380 @@
+"""The trial model: a case's primary figures for many values of some of its inputs at once.
+
+``TrialModel(problem, fields, targets)`` is a callable ``x (n, k) -> y (n, m)``: row i of ``x``
+holds the SI values of the ``k`` fields (``worker.engine.design.paths``) in trial i, row i of
+``y`` the ``m`` targets (``worker.engine.design.targets``) of that trial, SI. A trial whose
+inputs leave their physical domain or whose solve fails gets NaN; one bad trial never raises.
+Monte Carlo propagation (JCGM 101:2008) calls it with thousands of trials, design limits and
+sweeps with a few.
+
+It gives the primary figures of the full check (``worker.engine.run.run_problem``) without the
+routes that check them. Methods, by case:
+
+* steady, every layer without reaction, first order or zero order (closed form): the exact
+  basis superposition of ``worker.engine.exact_steady`` for all trials at once. Each layer's
+  basis (``basis_functions.LayerBasis`` with parameters batched over trials, trials grouped by
+  the branch of the closed form) is evaluated at the edges; the face and interface rows
+  (``exact_steady.system_rows``, the boundary kinds' own rows) fill an (n, s, s) stack of
+  equilibrated systems solved by ``numpy.linalg.solve``. Fluxes from the edge forms; the
+  consumption of a layer is ``a^n J(a) - b^n J(b)`` (the layer's own balance, exact for the
+  closed form; the full check integrates it by quadrature, the same to round-off); the true
+  extremes per layer start, as ``worker.engine.extremes`` does, from the record's profile
+  points (41 per layer) and refine the sampled extreme by bisection on dC/dr between its
+  neighbours (the stationary point of the closed form). A trial in which a zero-order layer
+  would fall below zero (a depleted zone) is solved again alone, as below.
+* steady otherwise (Michaelis-Menten, zero order with a depleted zone): trial by trial,
+  ``steady_check.primary_figures`` (the exact depletion solution where it applies, else the
+  finite volumes' three-grid study with Richardson extrapolation, as the full check).
+* transient: trial by trial, the primary route of ``worker.engine.transient.run`` (see
+  ``transient_trials``).
+"""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Sequence
+from typing import Any
+
+import numpy as np
+
+from worker.engine.basis_functions import LayerBasis
+from worker.engine.design.paths import (
+    FieldRef,
+    field_domain,
+    replaced,
+    resolve,
+    value_of,
+    with_values,
+)
+from worker.engine.design.targets import Target, check_target
+from worker.engine.design.transient_trials import transient_targets
+from worker.engine.exact_steady import EdgeForms, system_rows, unknown_columns
+from worker.engine.model import Problem
+from worker.engine.steady_check import PROFILE_POINTS_PER_LAYER, primary_figures
+
+__all__ = ["TrialModel"]
+
+#: Halvings of the bracket of a sampled extreme (a fortieth of the layer): far below round-off.
+BISECTION_STEPS = 60
+
+
+class TrialModel:
+    """``model(x) -> y``: the targets' primary values for trials of the fields' values.
+
+    Parameters
+    ----------
+    problem : Problem
+        The case (SI) whose other inputs stay nominal.
+    fields : sequence of FieldRef or str
+        The inputs varied, in the columns of ``x`` (paths are resolved against ``problem``).
+    targets : sequence of Target
+        The figures returned, in the columns of ``y``.
+    """
+
+    def __init__(self, problem: Problem, fields: Sequence[FieldRef | str],
+                 targets: Sequence[Target]):
+        self.problem = problem
+        self.fields = tuple(resolve(problem, f) for f in fields)
+        self.targets = tuple(check_target(problem, t) for t in targets)
+        self._domains = [field_domain(problem, f) for f in self.fields]
+        self._nominal_x = np.array([value_of(problem, f) for f in self.fields], dtype=float)
+        self._batched = _closed_form_batch_applies(problem, self.fields)
+
+    @property
+    def method(self) -> str:
+        """How the trials are solved (``batched closed form`` or ``trial by trial``)."""
+        return "batched closed form" if self._batched else "trial by trial"
+
+    def nominal(self) -> np.ndarray:
+        """The targets at the case's own values, shape (m,)."""
+        return self(self._nominal_x[None, :])[0]
+
+    def __call__(self, x: np.ndarray) -> np.ndarray:
+        x = np.asarray(x, dtype=float)
+        if x.ndim != 2 or x.shape[1] != len(self.fields):
+            raise ValueError(f"x: expected shape (n, {len(self.fields)}), got {x.shape}")
+        out = np.full((x.shape[0], len(self.targets)), np.nan)
+        valid = np.all(np.isfinite(x), axis=1)
+        for j, (lower, open_) in enumerate(self._domains):
+            column = x[:, j]
+            with np.errstate(invalid="ignore"):
+                valid &= column > lower if open_ else column >= lower
+        rows = np.flatnonzero(valid)
+        if rows.size == 0:
+            return out
+        if self._batched:
+            values, again = _steady_closed_form(self.problem, self.fields, x[rows],
+                                                self.targets)
+            out[rows] = values
+            rows = rows[again]
+        elif self.problem.regime.kind == "transient":
+            out[rows] = transient_targets(self.problem, self.fields, x[rows], self.targets)
+            return out
+        for i in rows:
+            out[i] = _steady_one(with_values(self.problem, dict(zip(self.fields, x[i],
+                                                                     strict=True))),
+                                 self.targets)
+        return out
+
+
+def _closed_form_batch_applies(problem: Problem, fields: Sequence[FieldRef]) -> bool:
+    """Steady, every layer with a closed form, and the body's structure the same in every
+    trial (a solid body's inner radius is not varied)."""
+    if problem.regime.kind != "steady":
+        return False
+    if any(ly.reaction.law.exact_coefficients(ly.reaction) is None for ly in problem.layers):
+        return False
+    return not (problem.geometry != "slab" and any(f.path == "inner" for f in fields))
+
+
+# -- one trial ------------------------------------------------------------------------------
+
+def _steady_one(problem: Problem, targets: Sequence[Target]) -> np.ndarray:
+    """The targets of one steady trial by ``steady_check.primary_figures``; NaN on failure."""
+    try:
+        figures = primary_figures(problem)
+    except (ValueError, ArithmeticError, np.linalg.LinAlgError):
+        return np.full(len(targets), np.nan)
+    row = np.full(len(targets), np.nan)
+    for j, target in enumerate(targets):
+        if target.layer is not None:
+            per_layer = (figures.layer_min if target.quantity == "concentration_min"
+                         else figures.layer_max)
+            row[j] = per_layer[target.layer] if per_layer else math.nan
+        else:
+            row[j] = figures.scalars.get(target.quantity, math.nan)
+    return row
+
+
+# -- steady closed form, batched ------------------------------------------------------------
+
+class _Batch:
+    """A problem's numeric fields as arrays over n trials (scalars broadcast)."""
+
+    def __init__(self, problem: Problem, fields: Sequence[FieldRef], x: np.ndarray):
+        n = x.shape[0]
+        self.n = n
+        self.problem = problem
+        view = replaced(problem, {f: x[:, j] for j, f in enumerate(fields)})
+        self.view = view
+
+        def full(value: Any) -> np.ndarray:
+            return np.broadcast_to(np.asarray(value, dtype=float), (n,)).copy()
+
+        self.full = full
+        self.exponent = problem.exponent
+        self.thickness = [full(ly.thickness) for ly in view.layers]
+        self.diffusivity = [full(ly.diffusivity) for ly in view.layers]
+        self.partition = [full(ly.partition) for ly in view.layers]
+        self.rate_constant, self.zero_order = [], []
+        for ly in view.layers:
+            k, q = ly.reaction.law.exact_coefficients(ly.reaction) or (0.0, 0.0)
+            self.rate_constant.append(full(k))
+            self.zero_order.append(full(q))
+        edges = [full(view.inner)]
+        for t in self.thickness:
+            edges.append(edges[-1] + t)
+        self.edges = edges
+        self.face_partition = (full(view.face_partition("inner")),
+                               full(view.face_partition("outer")))
+
+    def evaluate(self, layer: int, r: np.ndarray, rows: np.ndarray | None = None):
+        """``LayerBasis.evaluate`` of ``layer`` at positions r (shape (len(rows), p)) for the
+        trials ``rows`` (default all), each branch group of trials as one batched basis."""
+        rows = np.arange(self.n) if rows is None else rows
+        a, b = self.edges[layer][rows], self.edges[layer + 1][rows]
+        d, k = self.diffusivity[layer][rows], self.rate_constant[layer][rows]
+        q = self.zero_order[layer][rows]
+        reacting, nodal, zero = LayerBasis.branch(k, d, b - a, q)
+        out = [np.empty(r.shape) for _ in range(6)]
+        key = reacting.astype(int) * 4 + nodal.astype(int) * 2 + zero.astype(int)
+        for value in np.unique(key):
+            group = np.flatnonzero(key == value)
+            # parameters batched over the group's trials (LayerBasis takes arrays, see there)
+            batched: dict[str, Any] = {
+                "inner_edge": a[group, None], "outer_edge": b[group, None],
+                "diffusivity": d[group, None], "rate_constant": k[group, None],
+                "zero_order_rate": q[group, None]}
+            basis = LayerBasis(exponent=self.exponent,
+                               solid=(layer == 0 and self.problem.solid_centre), **batched)
+            for field, values in zip(out, basis.evaluate(r[group]), strict=True):
+                field[group] = values
+        return out
+
+
+def _apply(form, unknowns: np.ndarray) -> np.ndarray:
+    terms, constant = form
+    total = np.asarray(constant, dtype=float)
+    for col, c in terms.items():
+        total = total + c * unknowns[:, col]
+    return total
+
+
+def _solve_stack(matrix: np.ndarray, rhs: np.ndarray) -> np.ndarray:
+    """Unknowns of every trial's system; a singular or non-finite trial gets NaN."""
+    finite = np.all(np.isfinite(matrix), axis=(1, 2)) & np.all(np.isfinite(rhs), axis=1)
+    out = np.full(rhs.shape, np.nan)
+    try:
+        out[finite] = np.linalg.solve(matrix[finite], rhs[finite][..., None])[..., 0]
+    except np.linalg.LinAlgError:
+        for i in np.flatnonzero(finite):
+            try:
+                out[i] = np.linalg.solve(matrix[i], rhs[i])
+            except np.linalg.LinAlgError:
+                continue
+    return out
+
+
+class _LayerSolution:
+    """C and dC/dr of one layer of every trial from its unknowns."""
+
+    def __init__(self, batch: _Batch, layer: int, c1: np.ndarray, c2: np.ndarray):
+        self.batch, self.layer, self.c1, self.c2 = batch, layer, c1, c2
+        self.partition = batch.partition[layer]
+
+    def at(self, r: np.ndarray, rows: np.ndarray | None = None):
+        rows = np.arange(self.batch.n) if rows is None else rows
+        g1, g2, part, dg1, dg2, dpart = self.batch.evaluate(self.layer, r, rows)
+        k = self.partition[rows, None]
+        c1, c2 = self.c1[rows, None], self.c2[rows, None]
+        return k * (c1 * g1 + c2 * g2) + part, k * (c1 * dg1 + c2 * dg2) + dpart
+
+
+def _layer_extremes(solution: _LayerSolution, a: np.ndarray, b: np.ndarray
+                    ) -> tuple[np.ndarray, np.ndarray]:
+    """True minimum and maximum of C in one layer for every trial: the record's profile
+    points, then bisection on dC/dr between the neighbours of the sampled extreme."""
+    steps = np.linspace(0.0, 1.0, PROFILE_POINTS_PER_LAYER)
+    r = a[:, None] + (b - a)[:, None] * steps[None, :]
+    r[:, -1] = b
+    c, dc = solution.at(r)
+    found = []
+    for sign in (1.0, -1.0):
+        j = np.argmin(sign * c, axis=1)
+        rows = np.arange(c.shape[0])
+        best = c[rows, j]
+        lo = r[rows, np.maximum(j - 1, 0)]
+        hi = r[rows, np.minimum(j + 1, r.shape[1] - 1)]
+        slope_lo = sign * dc[rows, np.maximum(j - 1, 0)]
+        slope_hi = sign * dc[rows, np.minimum(j + 1, r.shape[1] - 1)]
+        # a stationary point of the signed profile lies between the neighbours
+        search = np.flatnonzero((slope_lo < 0.0) & (slope_hi > 0.0))
+        if search.size:
+            low, high = lo[search].copy(), hi[search].copy()
+            for _ in range(BISECTION_STEPS):
+                middle = 0.5 * (low + high)
+                _, slope = solution.at(middle[:, None], search)
+                rising = sign * slope[:, 0] > 0.0
+                high = np.where(rising, middle, high)
+                low = np.where(rising, low, middle)
+            value, _ = solution.at((0.5 * (low + high))[:, None], search)
+            refined = value[:, 0]
+            better = sign * refined < sign * best[search]
+            best[search[better]] = refined[better]
+        found.append(best)
+    return found[0], found[1]
+
+
+def _totals(batch: _Batch, flux_inner, flux_outer, consumption) -> dict[str, np.ndarray]:
+    """The record's rates and totals (``steady_check._totals``) for every trial."""
+    problem, view = batch.problem, batch.view
+    inner, outer = batch.edges[0], batch.edges[-1]
+    out: dict[str, np.ndarray] = {}
+    if problem.geometry == "cylinder":
+        out["rate_per_length_inner"] = 2 * math.pi * inner * flux_inner
+        out["rate_per_length_outer"] = 2 * math.pi * outer * flux_outer
+        out["consumption_per_length"] = 2 * math.pi * consumption
+        size = view.length
+        a_in, a_out = 2 * math.pi * inner, 2 * math.pi * outer
+    elif problem.geometry == "slab":
+        out["consumption_per_area"] = consumption
+        size = view.area
+        a_in = a_out = np.ones(batch.n)
+    else:
+        size = 1.0
+        a_in, a_out = 4 * math.pi * inner**2, 4 * math.pi * outer**2
+    if size is not None:
+        extent = batch.full(size)
+        out["rate_inner"] = extent * a_in * flux_inner
+        out["rate_outer"] = extent * a_out * flux_outer
+        out["consumption"] = extent * problem.measure_factor * consumption
+    return out
+
+
+def _steady_closed_form(problem: Problem, fields: Sequence[FieldRef], x: np.ndarray,
+                        targets: Sequence[Target]) -> tuple[np.ndarray, np.ndarray]:
+    """Targets of every trial by the batched closed form, and the trials (a boolean mask) to
+    solve again alone: a zero-order layer falls below zero (a depleted zone)."""
+    with np.errstate(all="ignore"):
+        return _closed_form(problem, fields, x, targets)
+
+
+def _closed_form(problem: Problem, fields: Sequence[FieldRef], x: np.ndarray,
+                 targets: Sequence[Target]) -> tuple[np.ndarray, np.ndarray]:
+    batch = _Batch(problem, fields, x)
+    count = len(problem.layers)
+    columns, size = unknown_columns(problem.solid_centre, count)
+    forms = []
+    for i in range(count):
+        edges = np.stack([batch.edges[i], batch.edges[i + 1]], axis=1)
+        values = batch.evaluate(i, edges)
+        at_edges = [tuple(v[:, e] for v in values) for e in (0, 1)]
+        forms.append(EdgeForms(at_edges, batch.diffusivity[i], batch.partition[i], columns[i]))
+    rows = system_rows(problem, forms, batch.partition, batch.face_partition,
+                       (batch.view.inner_boundary, batch.view.outer_boundary))
+    matrix = np.zeros((batch.n, size, size))
+    rhs = np.zeros((batch.n, size))
+    for j, (coefficients, value) in enumerate(rows):
+        scale = np.max(np.abs(np.stack([batch.full(c) for c in coefficients.values()])),
+                       axis=0)
+        for col, c in coefficients.items():
+            matrix[:, j, col] = c / scale
+        rhs[:, j] = value / scale
+    unknowns = _solve_stack(matrix, rhs)
+
+    n = problem.exponent
+    figures: dict[str, np.ndarray] = {
+        "flux_inner": batch.full(_apply(forms[0].flux[0], unknowns)),
+        "flux_outer": batch.full(_apply(forms[-1].flux[1], unknowns)),
+        "surface_inner": batch.full(batch.partition[0] * _apply(forms[0].u[0], unknowns)),
+        "surface_outer": batch.full(batch.partition[-1] * _apply(forms[-1].u[1], unknowns)),
+    }
+    consumption = np.zeros(batch.n)
+    lows, highs = [], []
+    depleted = np.zeros(batch.n, dtype=bool)
+    for i, (col_a, col_b) in enumerate(columns):
+        c1 = np.zeros(batch.n) if col_a is None else unknowns[:, col_a]
+        solution = _LayerSolution(batch, i, c1, unknowns[:, col_b])
+        a, b = batch.edges[i], batch.edges[i + 1]
+        low, high = _layer_extremes(solution, a, b)
+        lows.append(low)
+        highs.append(high)
+        q = batch.zero_order[i]
+        if np.any(q != 0.0):
+            depleted |= (q > 0.0) & (low < 0.0)
+            consumption += q * (b ** (n + 1) - a ** (n + 1)) / (n + 1)
+        if np.any(batch.rate_constant[i] > 0.0):
+            j_in, j_out = _apply(forms[i].flux[0], unknowns), _apply(forms[i].flux[1], unknowns)
+            consumption += a**n * j_in - b**n * j_out
+    figures["concentration_min"] = np.min(lows, axis=0)
+    figures["concentration_max"] = np.max(highs, axis=0)
+    figures["depletion_front"] = np.full(batch.n, np.nan)
+    for side, boundary, layer in (("inner", batch.view.inner_boundary, 0),
+                                  ("outer", batch.view.outer_boundary, count - 1)):
+        h = boundary.condition.film_coefficient(boundary)
+        if h is not None:
+            face = batch.face_partition[0 if side == "inner" else 1]
+            total = batch.edges[-1] - batch.edges[0]
+            figures[f"biot_{side}"] = batch.full(h) * total / (face * batch.diffusivity[layer])
+    figures.update(_totals(batch, figures["flux_inner"], figures["flux_outer"], consumption))
+    out = np.full((batch.n, len(targets)), np.nan)
+    for j, target in enumerate(targets):
+        if target.layer is not None:
+            per_layer = lows if target.quantity == "concentration_min" else highs
+            out[:, j] = per_layer[target.layer]
+        else:
+            out[:, j] = figures.get(target.quantity, np.nan)
+    failed = ~np.all(np.isfinite(unknowns), axis=1)
+    out[failed] = np.nan
+    return out, depleted & ~failed
+
