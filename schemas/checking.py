@@ -3,12 +3,14 @@
 from __future__ import annotations
 
 import logging
+from collections.abc import Callable
 
 from schemas.build import validate_case
 from schemas.canonical import case_sha256
 from schemas.errors import CaseError
 from schemas.record import failed_record, succeeded_record
 from worker.engine.design.requirements import design_block
+from worker.engine.design.runner import run_design
 from worker.engine.independent_problem import (
     IndependentInputError,
     IndependentProblem,
@@ -24,7 +26,7 @@ logger = logging.getLogger(__name__)
 __all__ = ["CaseError", "check_case"]
 
 
-def check_case(case: dict) -> dict:
+def check_case(case: dict, *, on_progress: Callable[[int, int], None] | None = None) -> dict:
     """Check one case document and return its record.
 
     Parameters
@@ -46,6 +48,9 @@ def check_case(case: dict) -> dict:
     schemas.CaseError
         When the case is invalid; ``.errors`` lists every ``{path, message}``. An engine
         failure is not raised: it is recorded (status ``failed``).
+
+    ``on_progress(trials, blocks)`` is told how far a Monte Carlo run of the case's
+    ``uncertainty`` has got, after each block.
     """
     started_at = utc_now()
     validated = validate_case(case)
@@ -68,6 +73,10 @@ def check_case(case: dict) -> dict:
     warnings = input_warnings(validated.problem)
     design = design_block(validated.design.requirements, outcome.quantities, outcome.series,
                           validated.problem.regime.duration)
-    return succeeded_record(digest, outcome, warnings,
-                            provenance_block(digest, started_at, utc_now()),
-                            validated.normalised, design)
+    extra = run_design(validated.problem, independent, validated.design, run_problem,
+                       on_progress=on_progress)
+    record = succeeded_record(digest, outcome, warnings,
+                              provenance_block(digest, started_at, utc_now()),
+                              validated.normalised, design)
+    record.update(extra)
+    return record

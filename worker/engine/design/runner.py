@@ -1,0 +1,380 @@
+"""Answering a case's design request: input uncertainty, a design limit, a sweep.
+
+* Uncertainty: Monte Carlo (JCGM 101:2008, adaptive, :mod:`~worker.engine.design.monte_carlo`)
+  on the fast primary solve (:class:`~worker.engine.design.trials.TrialModel`), sensitivity
+  (:mod:`~worker.engine.design.sensitivity`), then a *verification subset* — the worst trial
+  for each requirement, the median trial and a few random ones — checked in full, each by
+  every route of the calculation, to show that the trials' figures are right and that their
+  numerical uncertainty is small against the spread the inputs cause.
+* Design limit: the value of one input at which a requirement's margin is zero, every other
+  input nominal (:func:`~worker.engine.design.limit_search.find_limit`), and the full check
+  there.
+* Sweep: the full check at each value of one input.
+
+A full check is ``check(problem, independent)`` → :class:`~worker.engine.outcome.Outcome`
+(``worker.engine.run.run_problem``): the same input field replaced in both readings of the
+case. The input checks of the case (units, interpretation) are not repeated for a varied value,
+which the engine sets, not the document.
+"""
+
+from __future__ import annotations
+
+import math
+import secrets
+from collections.abc import Callable, Sequence
+from dataclasses import dataclass
+
+import numpy as np
+
+from worker.engine.design.limit_search import find_limit
+from worker.engine.design.monte_carlo import BlockResult, Bound, MonteCarloResult, propagate
+from worker.engine.design.paths import FieldRef, value_of, with_values
+from worker.engine.design.request import DesignRequest, UncertaintyRequest
+from worker.engine.design.requirements import Requirement, design_block, read_requirement
+from worker.engine.design.sampling import InputDistribution, UncertaintySpec
+from worker.engine.design.sensitivity import sensitivity
+from worker.engine.design.targets import Target
+from worker.engine.design.trials import TrialModel
+from worker.engine.model import Problem
+from worker.engine.outcome import Outcome
+
+__all__ = ["DesignRunner", "FullCheck"]
+
+#: A full check of a problem and its independent reading.
+FullCheck = Callable[[Problem, Problem | None], Outcome]
+
+#: Random trials added to the verification subset (besides the worst and the median ones).
+RANDOM_CHECKS = 2
+#: The numerical uncertainty of a figure counts as small against the spread the inputs cause
+#: when it is at most this fraction of the figure's standard uncertainty (the project's rule:
+#: it then moves the standard uncertainty by under 0.5 %, below two significant digits).
+SMALL_AGAINST_SPREAD = 0.1
+#: Bins of the histogram a record keeps of each figure (from the bounded trial sample).
+HISTOGRAM_BINS = 30
+#: Base points of the Sobol indices (power of 2): batched models, and trial-by-trial ones.
+SOBOL_POINTS_BATCHED = 1024
+SOBOL_POINTS_ONE_BY_ONE = 64
+
+
+@dataclass(frozen=True)
+class _Scheme:
+    """The figures the design runs follow: targets (model columns) and requirements."""
+
+    targets: tuple[Target, ...]
+    requirements: tuple[Requirement, ...]
+
+    @property
+    def names(self) -> tuple[str, ...]:
+        return tuple(t.key for t in self.targets)
+
+
+def _target_of(requirement: Requirement) -> Target:
+    return Target(requirement.quantity, requirement.layer, requirement.at,
+                  layer_name=requirement.layer_name)
+
+
+def _default_targets(problem: Problem) -> list[Target]:
+    """The headline figures a design run follows when no requirement names one."""
+    if problem.regime.kind == "transient":
+        loaded = any(layer.initial > 0.0 for layer in problem.layers)
+        return [Target("release_fraction_final")] if loaded else [
+            Target("remaining", at=problem.regime.duration)]
+    return [Target("concentration_min"),
+            Target("flux_outer" if problem.outer_boundary.kind != "symmetry" else "flux_inner")]
+
+
+def _scheme(problem: Problem, requirements: Sequence[Requirement]) -> _Scheme:
+    targets: list[Target] = []
+    for requirement in requirements:
+        target = _target_of(requirement)
+        if target not in targets:
+            targets.append(target)
+    if not targets:
+        targets = _default_targets(problem)
+    return _Scheme(tuple(targets), tuple(requirements))
+
+
+def _bounds(scheme: _Scheme) -> list[Bound]:
+    return [Bound(scheme.targets.index(_target_of(r)), r.low, r.high, r.id)
+            for r in scheme.requirements]
+
+
+def _distribution(spec) -> InputDistribution:
+    floor, open_ = spec.domain
+    return InputDistribution(
+        field=spec.field.path, kind=spec.distribution, nominal=spec.nominal, sd=spec.sd,
+        relative_sd=spec.relative_sd, low=spec.low, mode=spec.mode, high=spec.high,
+        domain=floor if math.isfinite(floor) else None, domain_open=open_)
+
+
+def uncertainty_spec(request: UncertaintyRequest, seed: int) -> UncertaintySpec:
+    """The Monte Carlo specification of a case's uncertainty block."""
+    return UncertaintySpec(
+        inputs=tuple(_distribution(s) for s in request.inputs), seed=seed,
+        max_trials=request.max_trials, correlations=request.correlations,
+        coverage=request.coverage, significant_digits=request.significant_digits)
+
+
+def _histogram(values: np.ndarray) -> dict | None:
+    finite = values[np.isfinite(values)]
+    if finite.size < 2:
+        return None
+    counts, edges = np.histogram(finite, bins=HISTOGRAM_BINS)
+    return {"edges": edges.tolist(), "counts": counts.tolist(), "trials": int(finite.size)}
+
+
+def _finite(value) -> float | None:
+    return float(value) if value is not None and math.isfinite(float(value)) else None
+
+
+class DesignRunner:
+    """Runs the design parts a case asks for.
+
+    Parameters
+    ----------
+    problem, independent : Problem
+        The case as the primary and as the independent methods read it.
+    request : DesignRequest
+        What the case asks.
+    check : FullCheck
+        The full, cross-checked check of a problem (``run_problem``).
+    """
+
+    def __init__(self, problem: Problem, independent: Problem | None, request: DesignRequest,
+                 check: FullCheck):
+        self.problem = problem
+        self.independent = independent
+        self.request = request
+        self.check = check
+        self.scheme = _scheme(problem, request.requirements)
+
+    # -- shared --------------------------------------------------------------------------
+
+    def _checked(self, values: dict[FieldRef, float]) -> Outcome:
+        """The full check with ``values`` set in both readings of the case."""
+        independent = None if self.independent is None else with_values(self.independent,
+                                                                         values)
+        return self.check(with_values(self.problem, values), independent)
+
+    def _design_of(self, outcome: Outcome, problem: Problem) -> dict:
+        return design_block(self.request.requirements, outcome.quantities, outcome.series,
+                            problem.regime.duration)
+
+    def _verdict(self, outcome: Outcome) -> str:
+        return "pass" if outcome.checks and all(c.passed for c in outcome.checks) else "fail"
+
+    def _figure(self, outcome: Outcome, target: Target) -> tuple[float | None, float | None]:
+        reading = read_requirement(
+            Requirement(id="", quantity=target.quantity, layer=target.layer, at=target.at,
+                        low=0.0),
+            outcome.quantities, outcome.series, self.problem.regime.duration)
+        return reading.value, reading.uncertainty
+
+    # -- uncertainty ---------------------------------------------------------------------
+
+    def uncertainty(self, *, run_block: Callable[[int], BlockResult] | None = None,
+                    on_progress: Callable[[int, int], None] | None = None) -> dict:
+        """The record's ``uncertainty`` block."""
+        request = self.request.uncertainty
+        if request is None:
+            raise ValueError("the case states no uncertainty")
+        seed = request.seed if request.seed is not None else secrets.randbits(62)
+        spec = uncertainty_spec(request, seed)
+        fields = [s.field for s in request.inputs]
+        model = TrialModel(self.problem, fields, self.scheme.targets)
+        names = self.scheme.names
+        result = propagate(spec, model, names, _bounds(self.scheme), run_block=run_block,
+                           on_progress=on_progress)
+        points = SOBOL_POINTS_BATCHED if model.method == "batched closed form" \
+            else SOBOL_POINTS_ONE_BY_ONE
+        indices = sensitivity(spec, model, names, base_points=points)
+        verification = self._verify(result, fields, model)
+        sample_outputs = np.array([[np.nan if v is None else v for v in t.outputs]
+                                   for t in result.sample], dtype=float).reshape(-1, len(names))
+        quantities = {}
+        for j, (name, summary) in enumerate(result.quantities.items()):
+            entry: dict = {"mean": summary.mean, "standard_uncertainty": summary.standard_uncertainty,
+                           "interval": list(summary.interval), "coverage": summary.coverage,
+                           "median": summary.median, "unit": self._unit(self.scheme.targets[j]),
+                           "numerical_tolerance": summary.numerical_tolerance}
+            histogram = _histogram(sample_outputs[:, j])
+            if histogram is not None:
+                entry["histogram"] = histogram
+            quantities[name] = entry
+        requirements = {
+            r.id: {"probability_met": r.probability_met, "standard_error": r.standard_error,
+                   "zero_event_bound": r.zero_event_bound, "quantity": names[r.output_index],
+                   "low": r.low, "high": r.high,
+                   "successful_trials": r.successful_trials}
+            for r in result.requirements}
+        return {
+            "trials": result.trials, "failed_trials": result.failed_trials, "seed": result.seed,
+            "sampler": result.sampler, "converged": result.converged,
+            "stop_reason": result.stop_reason, "blocks": result.blocks,
+            "block_size": result.block_size, "coverage": result.coverage,
+            "significant_digits": result.significant_digits,
+            "method": f"Monte Carlo (JCGM 101:2008, adaptive §7.9) on the primary solve "
+                      f"({model.method}); correlations by Gaussian copula",
+            "inputs": [{"field": s.field.path, "distribution": s.distribution,
+                        "truncated": s.field.path in result.truncated_inputs}
+                       for s in request.inputs],
+            "quantities": quantities,
+            "requirements": requirements,
+            "sensitivity": indices.indices,
+            "sensitivity_method": {
+                "elasticity": f"central differences at the case's values (relative step "
+                              f"{indices.relative_step:g})",
+                "indices": f"Saltelli (2010) first-order and Jansen (1999) total estimators, "
+                           f"{indices.base_points} scrambled Sobol' base points, "
+                           f"{indices.evaluations} evaluations",
+                "independent_inputs_assumed": indices.independent_inputs_assumed},
+            "verification": verification,
+        }
+
+    def _unit(self, target: Target) -> str:
+        for requirement in self.request.requirements:
+            if _target_of(requirement) == target:
+                return requirement.unit
+        return ""
+
+    def _subset(self, result: MonteCarloResult) -> list[tuple[str, tuple[float, ...]]]:
+        chosen: list[tuple[str, tuple[float, ...]]] = []
+        for summary in result.requirements:
+            if summary.worst is not None:
+                chosen.append((f"worst for {summary.id}", summary.worst.inputs))
+        if result.median_trial is not None:
+            chosen.append(("median", result.median_trial.inputs))
+        picked = 0
+        for trial in result.sample:
+            if picked == RANDOM_CHECKS:
+                break
+            if all(trial.inputs != inputs for _, inputs in chosen):
+                chosen.append((f"random trial {trial.index}", trial.inputs))
+                picked += 1
+        return chosen
+
+    def _verify(self, result: MonteCarloResult, fields: list[FieldRef],
+                model: TrialModel) -> dict:
+        """Full checks of the verification subset: their verdicts, the numerical uncertainty
+        of each figure against its spread, and the trial model against the full check."""
+        rows = []
+        worst_ratio = 0.0
+        worst_model = 0.0
+        largest: dict[str, float] = {}
+        for label, inputs in self._subset(result):
+            values = dict(zip(fields, inputs, strict=True))
+            outcome = self._checked(values)
+            fast = model(np.asarray([inputs], dtype=float))[0]
+            row = {"trial": label, "inputs": {f.path: v for f, v in values.items()},
+                   "verdict": self._verdict(outcome)}
+            for j, target in enumerate(self.scheme.targets):
+                value, band = self._figure(outcome, target)
+                spread = result.quantities[target.key].standard_uncertainty
+                if band is not None:
+                    largest[target.key] = max(largest.get(target.key, 0.0), band)
+                    if spread:
+                        worst_ratio = max(worst_ratio, band / spread)
+                if value is not None and math.isfinite(fast[j]):
+                    scale = max(band or 0.0, abs(value) * 1e-12, 1e-300)
+                    difference = abs(fast[j] - value)
+                    worst_model = max(worst_model, difference / scale if band else
+                                      difference / max(abs(value), 1e-300))
+            rows.append(row)
+        return {
+            "trials_checked": len(rows),
+            "all_passed": all(r["verdict"] == "pass" for r in rows) and bool(rows),
+            "largest_numerical_uncertainty": largest,
+            "largest_ratio_to_spread": worst_ratio,
+            "numerical_small_against_spread": worst_ratio <= SMALL_AGAINST_SPREAD,
+            "small_against_spread_rule": f"numerical uncertainty ≤ {SMALL_AGAINST_SPREAD:g} × "
+                                         "the standard uncertainty of the figure",
+            "trial_model_difference": worst_model,
+            "trials": rows,
+        }
+
+    # -- design limit --------------------------------------------------------------------
+
+    def limit(self) -> dict:
+        """The record's ``design_limit`` block."""
+        request = self.request.limit
+        if request is None:
+            raise ValueError("the case states no design limit")
+        requirement = next(r for r in self.request.requirements if r.id == request.requirement)
+        model = TrialModel(self.problem, [request.field], [_target_of(requirement)])
+
+        def margin(value: float) -> float:
+            figure = float(model(np.array([[value]]))[0, 0])
+            return requirement.margin(figure) if math.isfinite(figure) else math.nan
+
+        found = find_limit(margin, request.low, request.high,
+                           nominal=value_of(self.problem, request.field))
+        block: dict = {"vary": request.field.path, "value": found.value, "unit": request.unit,
+                       "requirement": requirement.id, "met_side": found.met_side,
+                       "bracket": list(found.bracket), "range": [request.low, request.high],
+                       "reason": found.reason, "evaluations": found.evaluations,
+                       "verdict": None}
+        if found.other_brackets:
+            block["other_brackets"] = [list(b) for b in found.other_brackets]
+        if found.value is not None:
+            outcome = self._checked({request.field: found.value})
+            judged = self._design_of(outcome, self.problem)
+            entry = next(j for j in judged["requirements"] if j["id"] == requirement.id)
+            block["verdict"] = self._verdict(outcome)
+            block["check"] = {"margin": entry["margin"], "value": entry["value"],
+                              "numerical_uncertainty": entry["numerical_uncertainty"],
+                              "status": entry["status"],
+                              "failed_checks": [c.name for c in outcome.checks
+                                                if not c.passed]}
+        return block
+
+    # -- sweep ---------------------------------------------------------------------------
+
+    def sweep(self) -> dict:
+        """The record's ``sweep`` block: the full check at each value."""
+        request = self.request.sweep
+        if request is None:
+            raise ValueError("the case states no sweep")
+        names = self.scheme.names
+        quantities: dict[str, list[float | None]] = {name: [] for name in names}
+        uncertainties: dict[str, list[float | None]] = {name: [] for name in names}
+        statuses: dict[str, list[str]] = {r.id: [] for r in self.request.requirements}
+        verdicts: list[str] = []
+        for value in request.values:
+            outcome = self._checked({request.field: value})
+            verdicts.append(self._verdict(outcome))
+            for target in self.scheme.targets:
+                figure, band = self._figure(outcome, target)
+                quantities[target.key].append(_finite(figure))
+                uncertainties[target.key].append(_finite(band))
+            judged = self._design_of(outcome, self.problem)
+            for entry in judged["requirements"]:
+                statuses[entry["id"]].append(entry["status"])
+        return {"vary": request.field.path, "unit": request.unit,
+                "values": list(request.values), "quantities": quantities,
+                "uncertainties": uncertainties, "requirements": statuses,
+                "verdicts": verdicts,
+                "units": {t.key: self._unit(t) for t in self.scheme.targets}}
+
+
+def run_design(problem: Problem, independent: Problem | None, request: DesignRequest,
+               check: FullCheck, *, run_block: Callable[[int], BlockResult] | None = None,
+               on_progress: Callable[[int, int], None] | None = None) -> dict:
+    """The record blocks the request asks for: ``uncertainty``, ``design_limit``, ``sweep``."""
+    runner = DesignRunner(problem, independent, request, check)
+    parts: list[tuple[str, Callable[[], dict]]] = []
+    if request.uncertainty is not None:
+        parts.append(("uncertainty", lambda: runner.uncertainty(run_block=run_block,
+                                                                on_progress=on_progress)))
+    if request.limit is not None:
+        parts.append(("design_limit", runner.limit))
+    if request.sweep is not None:
+        parts.append(("sweep", runner.sweep))
+    blocks: dict = {}
+    for name, run in parts:
+        try:
+            blocks[name] = run()
+        except (ValueError, ArithmeticError, np.linalg.LinAlgError) as exc:
+            # Recorded in the block, never silently dropped: the record says what failed.
+            blocks[name] = {"error": f"{type(exc).__name__}: {exc}"}
+    return blocks
+
