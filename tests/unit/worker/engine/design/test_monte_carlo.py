@@ -30,8 +30,8 @@ from scipy.optimize import brentq
 
 from worker.engine.design import monte_carlo
 from worker.engine.design.monte_carlo import (
-    Bound,
     BlockResult,
+    Bound,
     MonteCarloAccumulator,
     compute_block,
     coverage_endpoints,
