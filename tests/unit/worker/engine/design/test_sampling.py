@@ -78,20 +78,36 @@ def test_bad_parameters_name_the_field(kind, params, named):
         InputDistribution("layers[1].thickness", kind, 1.0, **params)
 
 
+TRUNCATED = InputDistribution("layers[0].reaction.rate", "normal", 1e-3, sd=1e-3, domain=0.0,
+                              domain_open=True)
+
+
+def _truncation_agrees(distribution):
+    """All draws inside the domain, and their mean within 5 standard errors of the
+    truncated-normal mean mu + sigma phi(a) / (1 - Phi(a)), a = -1 (Johnson, Kotz &
+    Balakrishnan vol. 1, eq. 13.134)."""
+    x = draw(_spec([distribution], sampler="random"), 4096, 0)[:, 0]
+    expected = 1e-3 + 1e-3 * stats.norm.pdf(-1.0) / stats.norm.sf(-1.0)
+    sd = TRUNCATED.frozen().std()
+    return bool(np.all(x > 0.0)) and abs(x.mean() - expected) < 5 * sd / math.sqrt(x.size)
+
+
 def test_truncated_normal_stays_in_its_domain_and_says_so():
-    d = InputDistribution("layers[0].reaction.rate", "normal", 1e-3, sd=1e-3, domain=0.0,
-                          domain_open=True)
+    d = TRUNCATED
     assert d.truncated
     # mass removed: Phi(-1) for a bound one sd below the mean (scipy.stats.norm as reference)
     assert d.truncated_probability == pytest.approx(stats.norm.cdf(-1.0), rel=1e-12)
-    x = draw(_spec([d], sampler="random"), 4096, 0)[:, 0]
-    assert np.all(x > 0.0)
-    # truncated-normal mean mu + sigma phi(a) / (1 - Phi(a)), a = -1 (Johnson, Kotz &
-    # Balakrishnan vol. 1, eq. 13.134)
-    expected = 1e-3 + 1e-3 * stats.norm.pdf(-1.0) / stats.norm.sf(-1.0)
-    sd = d.frozen().std()
-    assert abs(x.mean() - expected) < 5 * sd / math.sqrt(x.size)
+    assert _truncation_agrees(d)
     assert not InputDistribution("x", "normal", 1.0, sd=0.1).truncated
+
+
+@pytest.mark.parametrize("lower", [-np.inf, 0.3])
+def test_truncation_check_catches_no_cut_and_a_cut_too_high(monkeypatch, lower):
+    """Inject an untruncated normal (values below 0 appear), then a cut 0.3 sd above the
+    domain (the mean rises): the check fails both ways."""
+    monkeypatch.setattr(InputDistribution, "frozen",
+                        lambda self: stats.truncnorm(lower, np.inf, loc=1e-3, scale=1e-3))
+    assert not _truncation_agrees(TRUNCATED)
 
 
 def test_open_domain_is_never_attained_even_at_the_smallest_uniform():
