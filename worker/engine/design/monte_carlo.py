@@ -293,6 +293,12 @@ def numerical_tolerance(value: float, significant_digits: int) -> float:
     return 0.5 * 10.0**exponent
 
 
+def proportion_standard_error(p: float, n: int) -> float:
+    """Standard error of a proportion ``p`` of ``n`` independent trials: ``sqrt(p(1-p)/n)``
+    (the binomial standard deviation over n)."""
+    return math.sqrt(p * (1.0 - p) / n)
+
+
 class _Running:
     """Mean and sum of squared deviations of a stream of equal-weight vectors (Welford 1962,
     Technometrics 4, 419)."""
@@ -560,7 +566,7 @@ class MonteCarloAccumulator:
         summaries = []
         for i, bound in enumerate(self.requirements):
             p = self._met[i] / n if n else None
-            se = math.sqrt(p * (1.0 - p) / n) if p is not None else None
+            se = proportion_standard_error(p, n) if p is not None else None
             zero_event = None
             if p is not None and p in (0.0, 1.0):
                 level = (1.0 - ZERO_EVENT_CONFIDENCE) ** (1.0 / n)
@@ -621,12 +627,13 @@ def merge_blocks(spec: UncertaintySpec, names: Sequence[str], requirements: Sequ
     """The result the blocks give, taken in block order up to where the procedure stops.
 
     Blocks beyond the stopping point are ignored (as a sequential run would never have made
-    them); if the blocks run out first, ``stop_reason`` is ``"more_blocks_needed"``.
+    them); if the blocks run out, or one is missing, first, ``stop_reason`` is
+    ``"more_blocks_needed"`` (the next block needed is ``result.blocks``).
     """
     accumulator = MonteCarloAccumulator(spec, tuple(names),
                                         tuple(Bound(*r) for r in requirements))
     for block in sorted(blocks, key=lambda b: b.block_index):
-        if accumulator.done:
-            break
+        if accumulator.done or block.block_index > accumulator.blocks:
+            break  # stopped, or a gap: the blocks after it wait for the missing one
         accumulator.add(block)
     return accumulator.result()

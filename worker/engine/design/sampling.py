@@ -192,7 +192,8 @@ class InputDistribution:
 
 def default_block_size(coverage: float) -> int:
     """JCGM 101:2008 §7.9.4 b): ``M = max(J, 10^4)`` with ``J = ceil(100 / (1 - p))``."""
-    return max(math.ceil(100.0 / (1.0 - coverage) - 1e-9), 10_000)
+    # rounded first: 100 / (1 - 0.9999) is 1000000.0000000xx in binary floating point
+    return max(math.ceil(round(100.0 / (1.0 - coverage), 6)), 10_000)
 
 
 @dataclass(frozen=True)
