@@ -167,9 +167,11 @@ def _parameter(problem: Problem, ref: FieldRef) -> Parameter:
     for parameter in law.parameters:
         if parameter.name == ref.name:
             return parameter
-    names = ", ".join(p.name for p in law.parameters) or "no parameters"
-    raise FieldPathError(ref.path, f"layers[{ref.layer}].reaction.{ref.name}: {law.noun} has "
-                         f"no {ref.name}; it has: {names}")
+    names = ", ".join(p.name for p in law.parameters)
+    if not names:
+        raise FieldPathError(ref.path, f"layers[{ref.layer}] has no reaction (kind "
+                             f"{law.name!r}): no reaction parameters")
+    raise FieldPathError(ref.path, f"{law.noun} has no {ref.name}; it has: {names}")
 
 
 def resolve(problem: Problem, path: str | FieldRef) -> FieldRef:

@@ -25,8 +25,12 @@ routes that check them. Methods, by case:
 * steady otherwise (Michaelis-Menten, zero order with a depleted zone): trial by trial,
   ``steady_check.primary_figures`` (the exact depletion solution where it applies, else the
   finite volumes' three-grid study with Richardson extrapolation, as the full check).
-* transient: trial by trial, the primary route of ``worker.engine.transient.run`` (see
-  ``transient_trials``).
+* transient: ``transient_trials`` (the series of a unit body rescaled for all trials where
+  that is exact, else the series or the full transient check trial by trial).
+
+Cost measured on the shared 2-core machine (``tests/benchmarks/test_bench_trials.py``): about
+20 us per trial batched (closed form), 5 us per trial (scaled series), 2 ms per trial for
+Michaelis-Menten trial by trial, about 0.15 s per trial for the full transient check.
 """
 
 from __future__ import annotations
@@ -47,7 +51,7 @@ from worker.engine.design.paths import (
     with_values,
 )
 from worker.engine.design.targets import Target, check_target
-from worker.engine.design.transient_trials import transient_targets
+from worker.engine.design.transient_trials import scaled_series_applies, transient_targets
 from worker.engine.exact_steady import EdgeForms, system_rows, unknown_columns
 from worker.engine.model import Problem
 from worker.engine.steady_check import PROFILE_POINTS_PER_LAYER, primary_figures
@@ -82,8 +86,14 @@ class TrialModel:
 
     @property
     def method(self) -> str:
-        """How the trials are solved (``batched closed form`` or ``trial by trial``)."""
-        return "batched closed form" if self._batched else "trial by trial"
+        """How the trials are solved: ``batched closed form``, ``scaled series`` (all trials
+        at once) or ``trial by trial``."""
+        if self._batched:
+            return "batched closed form"
+        if self.problem.regime.kind == "transient" and scaled_series_applies(self.problem,
+                                                                             self.fields):
+            return "scaled series"
+        return "trial by trial"
 
     def nominal(self) -> np.ndarray:
         """The targets at the case's own values, shape (m,)."""
