@@ -28,7 +28,8 @@ from worker.engine.design.request import (
     UncertainInput,
     UncertaintyRequest,
 )
-from worker.engine.design.requirements import REQUIRABLE, Requirement
+from worker.engine.design.requirements import Requirement
+from worker.engine.design.targets import quantities
 from worker.engine.model import Problem
 from worker.engine.units import UnitError, parse_with_basis, si_unit
 
@@ -109,15 +110,11 @@ def _requirements(items: list[Mapping], problem: Problem, reader: _Reader
                                       "unique in the case")
         seen.add(rid)
         name = item["quantity"]
-        spec = REQUIRABLE.get(name)
-        if spec is None or regime not in spec.regimes:
-            known = ", ".join(q.name for q in REQUIRABLE.values() if regime in q.regimes)
-            reader.fail(f"{path}.quantity", f"{name!r} is not a quantity a {regime} case "
-                                            f"reports; one of: {known}")
-            continue
-        absent = spec.available(problem)
-        if absent is not None:
-            reader.fail(f"{path}.quantity", f"{name}: {absent}")
+        offered = quantities(problem)
+        spec = offered.get(name)
+        if spec is None:
+            reader.fail(f"{path}.quantity", f"{name!r} is not a quantity this {regime} case "
+                                            f"reports; one of: {', '.join(offered)}")
             continue
         given = [k for k in _BOUND_KEYS if k in item]
         if len(given) != 1:
@@ -128,7 +125,7 @@ def _requirements(items: list[Mapping], problem: Problem, reader: _Reader
         if "layer" in item:
             if not spec.per_layer:
                 reader.fail(f"{path}.layer", f"{name} is not reported per layer; only "
-                            + ", ".join(q.name for q in REQUIRABLE.values() if q.per_layer)
+                            + ", ".join(q.quantity for q in offered.values() if q.per_layer)
                             + " take a layer")
                 continue
             layer_name = item["layer"]
@@ -138,10 +135,10 @@ def _requirements(items: list[Mapping], problem: Problem, reader: _Reader
                             "are " + ", ".join(repr(ly.name) for ly in problem.layers))
                 continue
         at = item["at"].value if "at" in item else None
-        if spec.series and at is None:
+        if spec.at_time and at is None:
             reader.fail(f"{path}.at", f"{name} is a series: give the time `at` it is bounded at")
             continue
-        if not spec.series and at is not None:
+        if not spec.at_time and at is not None:
             reader.fail(f"{path}.at", f"{name} is one figure of the run, not a series: "
                                       "remove `at`")
             continue
@@ -150,7 +147,7 @@ def _requirements(items: list[Mapping], problem: Problem, reader: _Reader
             reader.fail(f"{path}.at", f"{at!r} s is after the end of the run (duration "
                                       f"{problem.regime.duration!r} s)")
             continue
-        kind = spec.dimension(problem)
+        kind = spec.dimension
         key = given[0]
         if key == "between":
             low = reader.value(item[key][0], kind, f"{path}.between[0]")

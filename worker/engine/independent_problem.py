@@ -27,7 +27,7 @@ from typing import Any
 import numpy as np
 
 from worker.engine.design.paths import field_dimension, resolve
-from worker.engine.design.requirements import REQUIRABLE
+from worker.engine.design.targets import quantities
 from worker.engine.model import Boundary, Layer, Problem, Reaction, Regime
 from worker.engine.unit_table import (
     AMOUNT,
@@ -319,8 +319,9 @@ def _read_design_values(reader: _Reader, document: Mapping[str, Any], problem: P
         if kind is not None and kind != "dimensionless" and not isinstance(raw, int | float):
             reader.read(raw, kind, path)
 
+    offered = quantities(problem)
     for i, item in enumerate(document.get("requirements", [])):
-        kind = REQUIRABLE[item["quantity"]].dimension(problem)
+        kind = offered[item["quantity"]].dimension
         for key in ("at_least", "at_most"):
             if key in item:
                 read(item[key], kind, f"requirements[{i}].{key}")

@@ -1,8 +1,9 @@
 """Design requirements: which quantities a requirement may name, and the design verdict.
 
-A requirement bounds one figure of the record: a scalar quantity (``t90``, ``flux_outer``), a
-layer's extreme (``concentration_min`` with ``layer``), or a series at a time (``release_fraction``
-with ``at``). Its *margin* is positive when met: ``value − bound`` for a lower bound,
+A requirement bounds one figure of the record: a scalar quantity (``t90``, ``flux_outer``),
+a layer's extreme (``concentration_min`` with ``layer``), or a series at a time
+(``release_fraction`` with ``at``); the figures a case offers are listed once, in
+:func:`worker.engine.design.targets.quantities`. Its *margin* is positive when met: ``value − bound`` for a lower bound,
 ``bound − value`` for an upper one, the smaller of the two for a range. The requirement is
 ``indeterminate`` when |margin| ≤ the value's numerical uncertainty (the record's own
 ``uncertainty`` of that figure): the calculation cannot tell which side of the bound the design
@@ -16,100 +17,12 @@ and ``indeterminate`` where it does not.
 from __future__ import annotations
 
 import math
-from collections.abc import Callable, Mapping, Sequence
+from collections.abc import Mapping, Sequence
 from dataclasses import dataclass
-
-from worker.engine.model import Problem
 
 #: Record statuses of a requirement and of the design as a whole.
 MET, NOT_MET, INDETERMINATE, NONE_STATED = "met", "not_met", "indeterminate", "none_stated"
 
-
-def _amount_kind(problem: Problem) -> str:
-    """A transient amount: per area for a slab without ``area``, per length for a cylinder
-    without ``length``, else in total (``worker.engine.transient.scales.size_factor``)."""
-    if problem.geometry == "slab" and problem.area is None:
-        return "amount_per_area"
-    if problem.geometry == "cylinder" and problem.length is None:
-        return "amount_per_length"
-    return "amount"
-
-
-def _always(problem: Problem) -> str | None:
-    return None
-
-
-def _sized(problem: Problem) -> str | None:
-    if problem.geometry == "slab" and problem.area is None:
-        return "a slab reports totals in amount/s only with its area: give `area`"
-    if problem.geometry == "cylinder" and problem.length is None:
-        return "a cylinder reports totals in amount/s only with its length: give `length`"
-    return None
-
-
-def _geometry(name: str) -> Callable[[Problem], str | None]:
-    def available(problem: Problem) -> str | None:
-        return None if problem.geometry == name else f"reported for a {name} only"
-    return available
-
-
-@dataclass(frozen=True)
-class RequirableQuantity:
-    """A figure a requirement may bound.
-
-    ``dimension(problem)`` gives its dimension (a key of ``worker.engine.units.KINDS``);
-    ``regimes`` where the record has it; ``available(problem)`` None when the case's record
-    reports it, else why not; ``series``: a value per requested time (a requirement on it
-    needs ``at``); ``per_layer``: a requirement may name a ``layer``.
-    """
-
-    name: str
-    dimension: Callable[[Problem], str]
-    regimes: frozenset[str]
-    series: bool = False
-    per_layer: bool = False
-    available: Callable[[Problem], str | None] = _always
-
-
-def _fixed(kind: str) -> Callable[[Problem], str]:
-    return lambda problem: kind
-
-
-_STEADY, _TRANSIENT = frozenset({"steady"}), frozenset({"transient"})
-
-#: Every quantity a requirement may name, in the order the documentation lists them.
-REQUIRABLE: Mapping[str, RequirableQuantity] = {q.name: q for q in (
-    RequirableQuantity("flux_inner", _fixed("flux"), _STEADY),
-    RequirableQuantity("flux_outer", _fixed("flux"), _STEADY),
-    RequirableQuantity("surface_inner", _fixed("concentration"), _STEADY),
-    RequirableQuantity("surface_outer", _fixed("concentration"), _STEADY),
-    RequirableQuantity("concentration_min", _fixed("concentration"), _STEADY, per_layer=True),
-    RequirableQuantity("concentration_max", _fixed("concentration"), _STEADY, per_layer=True),
-    RequirableQuantity("depletion_front", _fixed("length"), _STEADY),
-    RequirableQuantity("biot_inner", _fixed("dimensionless"), _STEADY),
-    RequirableQuantity("biot_outer", _fixed("dimensionless"), _STEADY),
-    RequirableQuantity("rate_per_length_inner", _fixed("amount_rate_per_length"), _STEADY,
-                       available=_geometry("cylinder")),
-    RequirableQuantity("rate_per_length_outer", _fixed("amount_rate_per_length"), _STEADY,
-                       available=_geometry("cylinder")),
-    RequirableQuantity("consumption_per_length", _fixed("amount_rate_per_length"), _STEADY,
-                       available=_geometry("cylinder")),
-    RequirableQuantity("consumption_per_area", _fixed("flux"), _STEADY,
-                       available=_geometry("slab")),
-    RequirableQuantity("rate_inner", _fixed("amount_rate"), _STEADY, available=_sized),
-    RequirableQuantity("rate_outer", _fixed("amount_rate"), _STEADY, available=_sized),
-    RequirableQuantity("consumption", _fixed("amount_rate"), _STEADY, available=_sized),
-    RequirableQuantity("release_fraction_final", _fixed("dimensionless"), _TRANSIENT),
-    RequirableQuantity("t50", _fixed("time"), _TRANSIENT),
-    RequirableQuantity("t90", _fixed("time"), _TRANSIENT),
-    RequirableQuantity("time_lag", _fixed("time"), _TRANSIENT),
-    RequirableQuantity("time_to_steady", _fixed("time"), _TRANSIENT),
-    RequirableQuantity("release_fraction", _fixed("dimensionless"), _TRANSIENT, series=True),
-    RequirableQuantity("released_inner", _amount_kind, _TRANSIENT, series=True),
-    RequirableQuantity("released_outer", _amount_kind, _TRANSIENT, series=True),
-    RequirableQuantity("remaining", _amount_kind, _TRANSIENT, series=True),
-    RequirableQuantity("consumed", _amount_kind, _TRANSIENT, series=True),
-)}
 
 #: Scalar quantities that are event times: absent from the record when not reached in the run.
 EVENT_TIMES = frozenset({"t50", "t90", "time_lag", "time_to_steady"})

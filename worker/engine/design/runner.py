@@ -193,7 +193,8 @@ class DesignRunner:
                                    for t in result.sample], dtype=float).reshape(-1, len(names))
         quantities = {}
         for j, (name, summary) in enumerate(result.quantities.items()):
-            entry: dict = {"mean": summary.mean, "standard_uncertainty": summary.standard_uncertainty,
+            entry: dict = {"mean": summary.mean,
+                           "standard_uncertainty": summary.standard_uncertainty,
                            "interval": list(summary.interval), "coverage": summary.coverage,
                            "median": summary.median, "unit": self._unit(self.scheme.targets[j]),
                            "numerical_tolerance": summary.numerical_tolerance}
