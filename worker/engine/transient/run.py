@@ -9,6 +9,7 @@ import numpy as np
 
 from worker.engine.model import Problem
 from worker.engine.outcome import Outcome
+from worker.engine.regime_notes import thiele_notes
 from worker.engine.transient import checks, exact_series, method_of_lines, solve, uptake
 from worker.engine.transient.compare import (
     compare_minima,
@@ -167,6 +168,8 @@ def run_transient(problem: Problem, independent: Problem | None = None) -> Outco
     spread = compare_minima(outcome, problem, routes, minima, internal, requested_index, c_scale)
     add_minimum_series(outcome, problem, minima[0], spread, c_unit)
     _time_to_steady(outcome, problem, independent, routes, duration, c_scale)
+    outcome.warnings.extend(thiele_notes(problem, _fed_levels(problem, primary, final_index),
+                                         f" at t = {duration:.6g} s"))
     _annotate(outcome, routes, int(requested_index[-1]))
     if series is not None:
         checks.time_lag_check(outcome, problem)
@@ -177,6 +180,14 @@ def run_transient(problem: Problem, independent: Problem | None = None) -> Outco
     reported_series_sign_check(outcome, problem, float(np.min(fine.cells)), c_scale,
                                amount_scale, factor)
     return outcome
+
+
+def _fed_levels(problem: Problem, route: Route, k: int) -> list[float | None]:
+    """Per layer, the larger of the route's concentrations at the layer's two ends at internal
+    time k (a consuming layer has no interior maximum)."""
+    edges = problem.edges
+    return [float(np.max(route.profile(np.array([edges[j], edges[j + 1]]), k, j)))
+            for j in range(len(problem.layers))]
 
 
 def _uptake_note(outcome: Outcome, problem: Problem) -> None:
