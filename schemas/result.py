@@ -176,6 +176,32 @@ class ValuesSchema(OpenSchema):
     verified_by = fields.String(metadata={"description": "the check that compared the routes"})
 
 
+class MinimumSchema(ValuesSchema):
+    """The body's true minimum concentration at each requested time (a bounded search on the
+    continuous solution, not the smallest sampled point), where it lies and its layer."""
+
+    position = _numbers(metadata={"description": "where the minimum lies, m"})
+    layer = fields.List(PlainInteger(), metadata={"description": "the layer it lies in"})
+    uncertainty = _numbers(metadata={
+        "description": "numerical uncertainty of each value, same unit: the larger of the "
+                       "routes' disagreement and the primary's grid band; null where no "
+                       "second route was compared"})
+
+
+class LayerMinimaSchema(OpenSchema):
+    """Each layer's true minimum at each requested time: one row per time (aligned with
+    ``series.time``), one value per layer (in the order of ``layers``)."""
+
+    values = NumbersOrRows(required=True)
+    unit = fields.String(required=True)
+    layers = fields.List(fields.String(), metadata={"description": "the layers' names"})
+    uncertainty = NumbersOrRows(metadata={
+        "description": "numerical uncertainty of each value, rows as ``values``"})
+    routes = fields.List(fields.String(), metadata={
+        "description": "the independent routes that produced and compared it"})
+    verified_by = fields.String(metadata={"description": "the check that compared the routes"})
+
+
 class SeriesSchema(OpenSchema):
     """Profiles and, for transient cases, time series."""
 
@@ -184,8 +210,16 @@ class SeriesSchema(OpenSchema):
     time = fields.Nested(ValuesSchema)
     released_inner = fields.Nested(ValuesSchema)
     released_outer = fields.Nested(ValuesSchema)
-    release_fraction = fields.Nested(ValuesSchema)
+    release_fraction = fields.Nested(ValuesSchema, metadata={
+        "description": "released / initial load; only for a body that holds an initial load "
+                       "and that no face feeds"})
+    uptake = fields.Nested(ValuesSchema, metadata={
+        "description": "net amount taken in through the faces, -(released_inner + "
+                       "released_outer); instead of release_fraction where a face feeds the "
+                       "body or it holds no initial load"})
     remaining = fields.Nested(ValuesSchema)
+    concentration_min = fields.Nested(MinimumSchema)
+    concentration_min_layers = fields.Nested(LayerMinimaSchema)
 
 
 class MethodSchema(StrictSchema):

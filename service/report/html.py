@@ -19,7 +19,15 @@ from markupsafe import Markup
 
 import schemas
 from service.report.layer_stack import layer_stack_svg
-from service.report.numbers import length_markup, number_markup, quantity_markup, unit_text
+from service.report.numbers import (
+    length_markup,
+    number_markup,
+    quantity_markup,
+    readable_time,
+    time_markup,
+    unit_text,
+)
+from service.report.plot_minimum import minimum_svg
 from service.report.plot_profile import profile_svg
 from service.report.plot_release import release_svg
 
@@ -55,6 +63,8 @@ QUANTITY_WORDS = {
     "t90": "time to release 90 % of the initial load",
     "time_lag": "intercept of the late-time release line (membrane lag)",
     "release_fraction_final": "fraction of the initial load released by the last time",
+    "time_to_steady": "time after which the concentration stays within 1 % of the steady "
+                      "state's scale everywhere",
 }
 
 #: Quantities tried in order for the one figure shown at the top of the report.
@@ -152,6 +162,7 @@ def _figures(record: dict[str, Any], normalised: dict[str, Any] | None) -> dict[
         else None,
         "profile": lambda: profile_svg(with_inputs, names),
         "release": lambda: release_svg(record),
+        "minimum": lambda: minimum_svg(record),
     }
     figures: dict[str, Markup] = {}
     for name, make in makers.items():
@@ -165,6 +176,49 @@ def _figures(record: dict[str, Any], normalised: dict[str, Any] | None) -> dict[
         if svg:
             figures[name] = Markup(svg)
     return figures
+
+
+def _values(series: dict[str, Any], name: str) -> list[Any] | None:
+    entry = series.get(name)
+    values = entry.get("values") if isinstance(entry, dict) else None
+    return values if isinstance(values, list) else None
+
+
+def release_table(record: dict[str, Any]) -> dict[str, Any] | None:
+    """The release (or uptake) series at the requested times, for the report's table:
+    ``{"columns": [(name, unit)], "rows": [(time, readable time, [values])]}``; None when the
+    record is not transient."""
+    series = record.get("series") or {}
+    times = _values(series, "time")
+    if not times:
+        return None
+    names = [n for n in ("released_inner", "released_outer", "release_fraction", "uptake",
+                         "remaining", "consumed") if _values(series, n) is not None
+             and len(_values(series, n) or []) == len(times)]
+    columns = [(n, series[n].get("unit")) for n in names]
+    rows = [(t, readable_time(t), [series[n]["values"][k] for n in names])
+            for k, t in enumerate(times)]
+    return {"columns": columns, "rows": rows}
+
+
+def minimum_table(record: dict[str, Any]) -> dict[str, Any] | None:
+    """The true minimum at each requested time of a record that takes solute up:
+    ``{"unit", "layers": [names], "rows": [(time, readable, value, uncertainty, [per layer])],
+    "verified_by", "routes"}``; None for a release (its minimum sits at the sink) or a record
+    without the series."""
+    series = record.get("series") or {}
+    times = _values(series, "time")
+    values = _values(series, "concentration_min")
+    if not times or not values or len(values) != len(times) or "release_fraction" in series:
+        return None
+    lowest = series["concentration_min"]
+    layers = series.get("concentration_min_layers") or {}
+    per_layer = layers.get("values") if isinstance(layers.get("values"), list) else None
+    uncertainty = lowest.get("uncertainty") or [None] * len(values)
+    rows = [(t, readable_time(t), v, u, per_layer[k] if per_layer else [])
+            for k, (t, v, u) in enumerate(zip(times, values, uncertainty, strict=True))]
+    return {"unit": lowest.get("unit"), "layers": layers.get("layers") or [], "rows": rows,
+            "verified_by": lowest.get("verified_by"), "routes": lowest.get("routes") or []}
 
 
 def report_context(record: dict[str, Any], document: dict[str, Any]) -> dict[str, Any]:
@@ -192,7 +246,10 @@ def report_context(record: dict[str, Any], document: dict[str, Any]) -> dict[str
         "key_figure": key_figure(record),
         "depletion_front": front if isinstance(front, dict) else None,
         "transient": ((normalised or {}).get("regime") or {}).get("kind") == "transient",
+        "release_table": release_table(record),
+        "minimum_table": minimum_table(record),
         "num": number_markup,
+        "time": time_markup,
         "qty": quantity_markup,
         "unit": unit_text,
         "length": length_markup,

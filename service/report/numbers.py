@@ -93,3 +93,24 @@ def length_markup(metres: Any) -> Markup:
         return number_markup(metres)
     name, size = length_scale(abs(metres))
     return number_markup(metres / size) + Markup("&nbsp;") + name
+
+
+def readable_time(seconds: Any) -> str | None:
+    """A time in the unit a person reads best (``6.603 d``, ``21.66 min``), for beside its SI
+    value; None when seconds already read best or the value is not a finite number."""
+    if not is_number(seconds) or not math.isfinite(seconds):
+        return None
+    name, size = time_scale(abs(seconds))
+    if size == 1.0:
+        return None
+    return f"{plain_number(seconds / size)} {name}"
+
+
+def time_markup(seconds: Any) -> Markup:
+    """A time for HTML: the SI value in s and, where it reads better, the readable one beside."""
+    shown = number_markup(seconds) + Markup("&nbsp;s")
+    readable = readable_time(seconds)
+    if readable:
+        shown += Markup(' <span class="readable">({})</span>').format(
+            readable.replace(" ", "\u00a0"))
+    return shown

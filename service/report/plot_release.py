@@ -39,19 +39,21 @@ def release_svg(record: dict[str, Any]) -> str | None:
     """SVG of the release of a transient record, or None (not transient).
 
     With an initial load: ``series.release_fraction`` in % against ``series.time``, t50 and
-    t90 marked. Without one (the fraction is null, e.g. an initially empty membrane): the
-    cumulative amount out of the outer face, with the late-time line down to ``time_lag``.
+    t90 marked. Without one (no fraction, e.g. an initially empty membrane): the cumulative
+    amount out of the outer face, with the late-time line down to ``time_lag``, where some
+    leaves through it (a body that only takes up gets :func:`minimum_svg` instead).
     """
     series = record.get("series") or {}
     times = _values(series, "time")
-    fraction = _values(series, "release_fraction")
-    if not times or not fraction or len(times) != len(fraction):
+    if not times:
         return None
-    pairs = _known(times, fraction)
+    fraction = _values(series, "release_fraction")
+    pairs = _known(times, fraction) if fraction and len(fraction) == len(times) else []
     if pairs:
         return _fraction_svg(record, pairs)
     released = _values(series, "released_outer")
-    if released and len(released) == len(times) and _known(times, released):
+    known = _known(times, released) if released and len(released) == len(times) else []
+    if known and max(v for _, v in known) > 0.0:
         unit = (series.get("released_outer") or {}).get("unit", "")
         return _amount_svg(record, _known(times, released), unit)
     return None

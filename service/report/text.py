@@ -5,6 +5,7 @@ from __future__ import annotations
 from collections.abc import Iterator
 
 from schemas.result import RunStatus
+from service.report.numbers import readable_time
 
 RULE = "-" * 78
 
@@ -70,6 +71,8 @@ def render_text(record: dict, case: dict) -> str:
     add("Quantities (SI; fluxes positive outward)")
     for name, q in record.get("quantities", {}).items():
         line = f"  {name:<28} {_fmt(q.get('value')):>16} {q.get('unit', '')}"
+        if q.get("unit") == "s" and readable_time(q.get("value")):
+            line += f" ({readable_time(q['value'])})"
         if q.get("uncertainty") is not None:
             line += f"  ± {_fmt(q['uncertainty'])}"
         if q.get("verified_by"):
@@ -84,6 +87,10 @@ def render_text(record: dict, case: dict) -> str:
     if "time" in record.get("series", {}):
         add(RULE)
         add(format_release_table(record))
+    if "concentration_min" in record.get("series", {}) and \
+            "release_fraction" not in record.get("series", {}):
+        add(RULE)
+        add(format_minimum_table(record))
     add(RULE)
     add("Methods")
     for m in record.get("methods", []):
@@ -114,11 +121,17 @@ def render_text(record: dict, case: dict) -> str:
     return "\n".join(lines)
 
 
+def _time_cell(seconds: float) -> str:
+    return readable_time(seconds) or f"{seconds:.6g} s"
+
+
 def format_release_table(outcome) -> str:
     """Plain-text release table for the CLI report.
 
-    Columns: time, released out of the inner face, out of the outer face, release fraction
-    (or uptake for an initially empty body), remaining; then the t50, t90 and time-lag lines.
+    Columns: time (SI, then in the unit that reads best), released out of the inner face, out
+    of the outer face, release fraction (or uptake, the net amount taken in, for a body fed
+    through a face or without an initial load), remaining; then the t50, t90, time-lag and
+    time-to-steady lines, each in s and in the unit that reads best.
     Accepts a record or an engine ``Outcome`` (same ``series`` and ``quantities``).
     """
     series = outcome["series"] if isinstance(outcome, dict) else outcome.series
@@ -129,20 +142,50 @@ def format_release_table(outcome) -> str:
     unit = series["released_outer"]["unit"]
     fraction_key = "uptake" if "uptake" in series else "release_fraction"
     fraction_unit = "-" if fraction_key == "release_fraction" else unit
-    header = (f"{'time [s]':>14} {'out inner [' + unit + ']':>20} "
+    header = (f"{'time [s]':>14} {'time':>12} {'out inner [' + unit + ']':>20} "
               f"{'out outer [' + unit + ']':>20} {fraction_key + ' [' + fraction_unit + ']':>22} "
               f"{'remaining [' + unit + ']':>20}")
-    lines = ["Release", header, "-" * len(header)]
+    lines = ["Release" if fraction_key == "release_fraction" else "Uptake", header,
+             "-" * len(header)]
     for k, t in enumerate(times):
         lines.append(
-            f"{t:>14.6g} {series['released_inner']['values'][k]:>20.6g} "
+            f"{t:>14.6g} {_time_cell(t):>12} {series['released_inner']['values'][k]:>20.6g} "
             f"{series['released_outer']['values'][k]:>20.6g} "
             f"{series[fraction_key]['values'][k]:>22.6g} "
             f"{series['remaining']['values'][k]:>20.6g}")
     for name, label in (("t50", "t50 (50 % released)"), ("t90", "t90 (90 % released)"),
-                        ("time_lag", "time lag")):
+                        ("time_lag", "time lag"),
+                        ("time_to_steady", "time to steady (within 1 %)")):
         if name in quantities:
             value = quantities[name]["value"]
-            text = "not reached within the duration" if value is None else f"{value:.6g} s"
+            if value is None:
+                text = "not reached within the duration"
+            else:
+                readable = readable_time(value)
+                text = f"{value:.6g} s" + (f" ({readable})" if readable else "")
             lines.append(f"{label}: {text}")
+    return "\n".join(lines)
+
+
+def format_minimum_table(outcome) -> str:
+    """Plain-text table of the true minimum concentration at each requested time: the body's,
+    its numerical uncertainty, and each layer's (``series.concentration_min`` and
+    ``series.concentration_min_layers``)."""
+    series = outcome["series"] if isinstance(outcome, dict) else outcome.series
+    lowest = series.get("concentration_min")
+    if not lowest or "time" not in series:
+        return ""
+    layers = series.get("concentration_min_layers") or {}
+    names = layers.get("layers") or []
+    unit = lowest["unit"]
+    header = (f"{'time [s]':>14} {'time':>12} {'minimum [' + unit + ']':>22} {'±':>10}"
+              + "".join(f" {name[:18]:>18}" for name in names))
+    lines = ["Lowest concentration (true minimum over the body" +
+             (", and per layer" if names else "") + ")", header, "-" * len(header)]
+    uncertainty = lowest.get("uncertainty") or [None] * len(lowest["values"])
+    rows = layers.get("values") or [[] for _ in lowest["values"]]
+    for t, value, u, row in zip(series["time"]["values"], lowest["values"], uncertainty, rows,
+                                strict=True):
+        lines.append(f"{t:>14.6g} {_time_cell(t):>12} {value:>22.6g} {_fmt(u):>10}"
+                     + "".join(f" {v:>18.6g}" for v in row))
     return "\n".join(lines)

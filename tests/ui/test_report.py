@@ -278,3 +278,58 @@ def test_the_text_report_loads_neither_flask_nor_matplotlib():
     assert "service.report.text" in loaded
     assert not {"flask", "matplotlib", "sqlalchemy"} & loaded
     assert "flask" in _modules_loaded_by("from service.report.html import render_report")
+
+
+def test_release_table_at_the_requested_times_with_readable_times(flask_app, sheet_record):
+    html = _render(flask_app, sheet_record, RELEASING_SHEET)
+    section = html[html.index('id="over-time"'):html.index('id="checks"')]
+    rows = re.findall(r"<tr><th scope=\"row\" class=\"num\">", section)
+    assert len(rows) == 6
+    assert "<code>release_fraction</code>" in section and "<code>uptake</code>" not in section
+    assert "(8.333\u00a0min)" in section  # 500 s
+    # t50 by Crank 1975 eq. 4.18 (above), shown in minutes beside its SI value
+    tau = mpmath.findroot(lambda t: 1 - mpmath.nsum(
+        lambda n: 8 / ((2 * n + 1) ** 2 * mpmath.pi ** 2)
+        * mpmath.exp(-(2 * n + 1) ** 2 * mpmath.pi ** 2 * t / 4), [0, mpmath.inf]) - 0.5, 0.3)
+    t50_minutes = float(tau) * SHEET_L ** 2 / SHEET_D / 60.0
+    assert f"({t50_minutes:.4g}\u00a0min)" in html
+    assert 'id="minimum-curve"' not in html  # a release: its minimum sits at the sink
+
+
+FED_GEL = {
+    "schema_version": 1,
+    "title": "Test gel fed at one face, first-order uptake",
+    "geometry": "slab",
+    "inner": "0 m",
+    "layers": [{"name": "gel", "thickness": "1 mm", "diffusivity": "1e-9 m^2/s",
+                "partition": 1.0, "reaction": {"kind": "first_order",
+                                               "rate_constant": "2e-3 1/s"}}],
+    "inner_boundary": {"kind": "symmetry"},
+    "outer_boundary": {"kind": "concentration", "value": "0.2 mol/m^3"},
+    "regime": {"kind": "transient", "duration": "2 h",
+               "times": ["2 min", "10 min", "30 min", "2 h"]},
+}
+
+
+def test_uptake_case_shows_its_lowest_concentration_over_time(flask_app):
+    record = _run(FED_GEL)
+    html = _render(flask_app, record, FED_GEL)
+    section = html[html.index('id="over-time"'):html.index('id="checks"')]
+    assert "<code>uptake</code>" in section and "<code>release_fraction</code>" not in section
+    assert section.count('<table class="minimum">') == 1
+    curves = [svg for svg in _plots(html) if _by_id(svg, "minimum-curve") is not None]
+    assert len(curves) == 1
+    # the lowest concentration at 2 h: the mid-plane value of Danckwerts' transformation of
+    # Crank 1975 eq. 4.17, C/C_s = 1 - sum a_n (k + lam_n e^(-(lam_n + k) t)) / (lam_n + k)
+    k, d, half, t = 2e-3, 1e-9, 1e-3, 7200.0
+    total = 0.0
+    for n in range(4000):
+        lam = d * (2 * n + 1) ** 2 * mpmath.pi ** 2 / (4 * half ** 2)
+        a = 4 * (-1) ** n / ((2 * n + 1) * mpmath.pi)
+        total += a * (k + lam * mpmath.exp(-(lam + k) * t)) / (lam + k)
+    expected = 0.2 * float(1 - total)
+    assert f'<data value="{record["series"]["concentration_min"]["values"][-1]!r}">' in section
+    assert record["series"]["concentration_min"]["values"][-1] == pytest.approx(expected,
+                                                                                 rel=1e-7)
+    assert f"{expected:.4g}" in section
+    assert "time_to_steady" in html and "(2\u00a0h)" in section

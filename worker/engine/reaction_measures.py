@@ -13,11 +13,18 @@ mid-plane ``tanh(phi)/phi``; solid cylinder ``2 I1(phi) / (phi I0(phi))``; spher
 from __future__ import annotations
 
 import math
+from dataclasses import dataclass
 
 import numpy as np
 from scipy import special
 
 from worker.engine.model import Layer, Problem
+
+#: Michaelis-Menten regimes by the saturation C/km at the fed face: at or below FIRST_ORDER_LIKE
+#: the rate is within 10 % of vmax C/km (first order); at or above SATURATED within 10 % of
+#: vmax (zero order). Common practice.
+FIRST_ORDER_LIKE = 0.1
+SATURATED = 10.0
 
 # Below this phi the sphere factor uses its Taylor series (phi coth phi - 1 cancels); the
 # series terms fall like 2 (phi/pi)^(2k), so _SPHERE_SERIES_TERMS terms reach double precision.
@@ -122,3 +129,60 @@ def effectiveness_factor(geometry: str, phi) -> np.ndarray:
         small = np.minimum(phi, _SPHERE_SERIES_LIMIT)
         return np.where(phi < _SPHERE_SERIES_LIMIT, _sphere_series(small), direct)
     raise ValueError(f"geometry: expected slab, cylinder or sphere, got {geometry!r}")
+
+
+@dataclass(frozen=True)
+class MichaelisMentenRegime:
+    """Where a Michaelis-Menten layer's solution actually works.
+
+    ``surface``: the concentration at the layer's fed face, amount/m^3; ``saturation``:
+    surface / km; ``regime``: ``"first-order-like"``, ``"mixed"`` or ``"saturated"``
+    (see :data:`FIRST_ORDER_LIKE`, :data:`SATURATED`); ``effective_rate_constant``:
+    vmax / (km + surface), 1/s, the first-order constant with the same rate at the face;
+    ``modulus``: the generalised Thiele modulus at that face (:func:`generalised_modulus`).
+    """
+
+    surface: float
+    saturation: float
+    regime: str
+    effective_rate_constant: float
+    modulus: float
+
+
+def generalised_modulus(layer: Layer, surface: float) -> float:
+    """Generalised Thiele modulus of a Michaelis-Menten layer fed at ``surface`` (amount/m^3).
+
+    ``Phi = L R(Cs) / sqrt(2 D int_0^Cs R(c) dc)`` (K.B. Bischoff, AIChE J. 11 (1965) 351;
+    Aris 1975, ch. 3), with ``int_0^Cs R dc = vmax (Cs - km ln(1 + Cs/km))`` and L the layer's
+    thickness as in the record's Thiele modulus. It scales every kind of kinetics so that the
+    effectiveness factor tends to 1/Phi when Phi is large; for first order it is L sqrt(k/D),
+    for Cs << km it tends to L sqrt(vmax/(km D)), for Cs >> km to L sqrt(vmax/(2 D Cs)).
+    """
+    reaction = layer.reaction
+    vmax, km = reaction.vmax, reaction.km
+    if not (surface > 0.0 and vmax > 0.0):
+        return 0.0
+    rate = vmax * surface / (km + surface)
+    ratio = surface / km
+    # Cs - km ln(1 + Cs/km) = km (x - log1p(x)); for small x its series x^2/2 - x^3/3 + ...
+    excess = ratio - math.log1p(ratio) if ratio > 1e-4 else \
+        ratio**2 / 2.0 - ratio**3 / 3.0 + ratio**4 / 4.0
+    integral = vmax * km * excess
+    return float(layer.thickness * rate / math.sqrt(2.0 * layer.diffusivity * integral))
+
+
+def michaelis_menten_regime(layer: Layer, surface: float) -> MichaelisMentenRegime:
+    """The regime of a Michaelis-Menten layer whose fed face is at ``surface``
+    (amount/m^3, clipped at 0); see :class:`MichaelisMentenRegime`."""
+    reaction = layer.reaction
+    surface = max(float(surface), 0.0)
+    saturation = surface / reaction.km
+    if saturation <= FIRST_ORDER_LIKE:
+        regime = "first-order-like"
+    elif saturation >= SATURATED:
+        regime = "saturated"
+    else:
+        regime = "mixed"
+    return MichaelisMentenRegime(surface, saturation, regime,
+                                 reaction.vmax / (reaction.km + surface),
+                                 generalised_modulus(layer, surface))

@@ -31,12 +31,12 @@ from worker.engine.fv_mesh import boundary_concentration_scale
 from worker.engine.limits import check_limit
 from worker.engine.model import Problem, SteadySolution
 from worker.engine.outcome import Outcome
+from worker.engine.regime_notes import thiele_notes
 from worker.engine.steady_totals import totals_by_second_route
 
 #: Points per layer in the reported profile (both layer ends included, so jumps are visible).
 PROFILE_POINTS_PER_LAYER = 41
-#: Thresholds for regime notes (warnings): common practice.
-THIELE_LARGE = 3.0
+#: Thresholds for regime notes (warnings): common practice (THIELE_LARGE: regime_notes).
 BIOT_LARGE = 10.0
 BIOT_SMALL = 0.1
 THIN_WALL_NOTE = 0.01
@@ -324,15 +324,19 @@ def _add_quantities(outcome: Outcome, problem: Problem, primary: _Sampled, best:
           verified_by="cross_check.totals" if other_value is not None else None)
 
 
+def _fed_levels(problem: Problem, solution: SteadySolution) -> list[float | None]:
+    """Per layer, the larger of the solution's concentrations at the layer's two ends."""
+    edges = problem.edges
+    levels: list[float | None] = []
+    for j in range(len(problem.layers)):
+        ends = np.asarray(solution.concentration_at(np.array([edges[j], edges[j + 1]]),
+                                                    layer=j), dtype=float)
+        levels.append(float(np.max(ends)) if np.all(np.isfinite(ends)) else None)
+    return levels
+
+
 def _regime_notes(problem: Problem, primary: SteadySolution, outcome: Outcome) -> None:
-    for index, layer in enumerate(problem.layers):
-        phi = exact_steady.thiele_modulus(layer, problem)
-        if phi is not None and phi > THIELE_LARGE:
-            outcome.warnings.append(
-                f"layers[{index}] ({layer.name}): Thiele modulus {phi:.3g} > {THIELE_LARGE:g}: "
-                "reaction-limited, the solute is consumed within about thickness/phi of the fed "
-                "face and the interior sees little of it (common practice)"
-            )
+    outcome.warnings.extend(thiele_notes(problem, _fed_levels(problem, primary)))
     for side in ("inner", "outer"):
         biot = outcome.quantities.get(f"biot_{side}", {}).get("value")
         if biot is None:

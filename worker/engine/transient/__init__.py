@@ -13,7 +13,10 @@ these checks, each aggregated over the requested times with the worst time named
   ``cross_check.release_fraction`` (each route divides by its own load;
   ``cross_check.released`` for an initially empty body), ``cross_check.remaining``,
   ``cross_check.consumed``, ``cross_check.flux_inner``/``flux_outer``, ``cross_check.profile``,
-  ``cross_check.probes``, ``cross_check.t50``, ``cross_check.t90`` (one route only fails), and
+  ``cross_check.probes``, ``cross_check.t50``, ``cross_check.t90`` (one route only fails),
+  ``cross_check.concentration_min`` (each route's true minimum of each layer at every requested
+  time) and ``cross_check.time_to_steady`` (``uptake``: a case approaching a nonzero steady
+  state), and
   ``cross_check.time_lag`` (``checks``): numerical routes at their grid-extrapolated values
   (Celik et al. 2008, eq. 4; the fine-mesh value where the three meshes do not converge
   monotonically). The error at each time is ``|a - b| / max(|b|, CROSS_CHECK_FLOOR * scale)``:
@@ -42,7 +45,8 @@ and ``eigen_roots`` (the series), ``method_of_lines`` (the finite volumes in tim
 of layers and every boundary kind, inverted by the fixed Talbot method), ``galerkin`` (a second
 discretisation: P1 Galerkin elements and Radau IIA, with its three-mesh study
 ``galerkin_study``), ``refinement`` (the three-mesh study of any solver's amounts), ``routes``
-(each method as a route) and ``compare`` (the route cross-checks).
+(each method as a route), ``compare`` (the route cross-checks) and ``uptake`` (which bodies
+release, the true minima over time, the time to steady).
 """
 
 from worker.engine.transient.run import run_transient

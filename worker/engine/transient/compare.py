@@ -15,7 +15,11 @@ independent routes and the usable times (the worst named in its detail):
   concentration scale; ``cross_check.probes``: the probe rows at every requested time; for a
   numerical route the difference counts beyond its pointwise grid band (|fine - medium|, the
   GCI of a second-order scheme at ratio 2 with Roache's safety factor 3);
-* ``cross_check.t50``, ``cross_check.t90``: reached by one route and not by the other fails.
+* ``cross_check.t50``, ``cross_check.t90``: reached by one route and not by the other fails;
+* ``cross_check.concentration_min`` (:func:`compare_minima`): each route's true minimum of each
+  layer at every requested time (its own bounded search on its own solution), against the
+  concentration scale, beyond the grid bands at the two minima as for the profile;
+* ``cross_check.time_to_steady`` (:func:`compare_steady_times`): relative to the primary's.
 
 Errors are ``|a - b| / max(|b|, CROSS_CHECK_FLOOR * scale)`` (:func:`scales.relative_errors`).
 """
@@ -26,6 +30,7 @@ import math
 
 import numpy as np
 
+from worker.engine.extremes import Extreme
 from worker.engine.limits import check_limit
 from worker.engine.model import Problem
 from worker.engine.outcome import Check, Outcome
@@ -33,7 +38,8 @@ from worker.engine.transient.record import probe_row
 from worker.engine.transient.scales import CROSS_CHECK_FLOOR, relative_errors, worst
 from worker.engine.transient.solution import Route
 
-__all__ = ["compare_routes", "reported_series_sign_check"]
+__all__ = ["compare_minima", "compare_routes", "compare_steady_times",
+           "reported_series_sign_check"]
 
 
 def _add(outcome: Outcome, name: str, value: float | None, problem: Problem,
@@ -68,8 +74,11 @@ class _Worst:
 
 def compare_routes(outcome: Outcome, problem: Problem, primary: Route, others: list[Route],
                    internal: np.ndarray, profile_positions: list[tuple[int, np.ndarray]],
-                   final_index: int, c_scale: float, amount_scale: float) -> None:
-    """Every cross-check of ``primary`` against each of ``others`` (see the module notes)."""
+                   final_index: int, c_scale: float, amount_scale: float,
+                   releasing: bool = True) -> None:
+    """Every cross-check of ``primary`` against each of ``others`` (see the module notes);
+    ``releasing`` False (a body fed through a face) compares the released amounts, not the
+    fractions of the initial load, whatever that load."""
     checks: dict[str, _Worst] = {}
 
     def offer(name: str, value: float, detail: str) -> None:
@@ -86,6 +95,7 @@ def compare_routes(outcome: Outcome, problem: Problem, primary: Route, others: l
             offer("cross_check.initial_load", load_error,
                   f"{label}: initial load {primary.initial_load:.9g} vs "
                   f"{other.initial_load:.9g} (per measure), relative")
+        if loaded and releasing:
             a = _released(primary) / primary.initial_load if primary.initial_load > 0 else None
             b = _released(other) / other.initial_load if other.initial_load > 0 else None
             if a is None or b is None:
@@ -213,6 +223,74 @@ def _probe_offer(offer, problem: Problem, primary: Route, other: Route, internal
     value, at = worst(errors, internal)
     offer("cross_check.probes", value,
           f"{label}: probe concentrations at every requested time, worst at t = {at} s")
+
+
+def compare_minima(outcome: Outcome, problem: Problem, routes: list[Route],
+                   minima: list[list[list[Extreme]]], internal: np.ndarray, index: np.ndarray,
+                   c_scale: float) -> np.ndarray:
+    """``cross_check.concentration_min``: the primary's (``routes[0]``) true minimum of each
+    layer at each requested time against each other route's, where both routes' pointwise
+    values are usable (at t = 0 the minima are the initial state's).
+
+    ``minima[i][t][j]`` is route i's minimum of layer j at requested time t. The error is
+    |a - b| less the grid bands of numerical routes at their minima (each at most half the
+    allowance), over ``c_scale``. Returns the numerical uncertainty of each of the primary's
+    minima, shape (times, layers): the larger of |a - b| over the other routes and the
+    primary's own grid band there; NaN where no route could be compared.
+    """
+    primary, others = routes[0], routes[1:]
+    mine = minima[0]
+    shape = (len(mine), len(problem.layers))
+    uncertainty = np.full(shape, np.nan)
+    if not others:
+        return uncertainty
+    cap = 0.5 * check_limit(problem, "cross_check.concentration_min") * c_scale
+    found = _Worst()
+    for other, theirs in zip(others, minima[1:], strict=True):
+        label = f"{primary.name} vs {other.name}"
+        errors = np.full(len(mine), np.nan)
+        for t, k in enumerate(int(i) for i in index):
+            if internal[k] != 0.0 and not (primary.flux_usable[k] and other.flux_usable[k]):
+                continue  # pointwise values converge with the fluxes, not with the amounts
+            worst_layer = 0.0
+            for j, (a, b) in enumerate(zip(mine[t], theirs[t], strict=True)):
+                own = float(_band(primary, np.array([a.position]), k, j, math.inf)[0]) \
+                    if internal[k] != 0.0 else 0.0
+                spread = abs(a.value - b.value)
+                previous = uncertainty[t, j]
+                uncertainty[t, j] = max(spread, own, 0.0 if np.isnan(previous) else previous)
+                if internal[k] != 0.0:
+                    spread -= float(_band(primary, np.array([a.position]), k, j, cap)[0])
+                    spread -= float(_band(other, np.array([b.position]), k, j, cap)[0])
+                worst_layer = max(worst_layer, max(spread, 0.0) / c_scale)
+            errors[t] = worst_layer
+        value, at = worst(errors, internal[index])
+        if at is not None:
+            found.offer(value, f"{label}: true minimum of each layer (bounded search on each "
+                               f"route's own solution) at every requested time, worst at "
+                               f"t = {at} s, relative to the concentration scale {c_scale:.4g}")
+    found.report(outcome, problem, "cross_check.concentration_min")
+    return uncertainty
+
+
+def compare_steady_times(outcome: Outcome, problem: Problem, names: list[str],
+                         values: list[float | None]) -> None:
+    """``cross_check.time_to_steady``: the primary's (first) time to steady against each other
+    route's, relative to the primary's; reached by one route only fails."""
+    found = _Worst()
+    first = values[0]
+    for name, value in zip(names[1:], values[1:], strict=True):
+        label = f"{names[0]} vs {name}"
+        if first is None and value is None:
+            continue
+        if first is None or value is None:
+            found.offer(math.inf, f"{label}: the steady state is reached within the duration "
+                                  f"by one route only ({first} s vs {value} s)")
+            continue
+        error = abs(first - value) / abs(first) if first != 0.0 else abs(first - value)
+        found.offer(error, f"{label}: time to steady {first:.9g} s vs {value:.9g} s, "
+                           "relative to the first")
+    found.report(outcome, problem, "cross_check.time_to_steady")
 
 
 def reported_series_sign_check(outcome: Outcome, problem: Problem, extra_lowest: float,

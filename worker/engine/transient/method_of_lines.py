@@ -85,8 +85,9 @@ class TransientFVSolution(TransientSolution):
     ``profile_at(index)`` gives ``(concentration_at, flux_at)`` callables (see
     ``fv_mesh.make_profile_functions``) of the state at ``times[index]``;
     ``state_at(t)`` evaluates the dense output (cells, then out_inner, out_outer, consumed,
-    r^n-weighted, without the measure factor) at any t in [start, end]; ``step_times`` are the
-    integrator's step times.
+    r^n-weighted, without the measure factor) at any t in [start, end];
+    ``profile_at_time(t)`` gives the ``(concentration_at, flux_at)`` callables of the dense
+    output's cells at any such t; ``step_times`` are the integrator's step times.
     """
 
     success: bool
@@ -99,6 +100,7 @@ class TransientFVSolution(TransientSolution):
     profile_at: Callable[[int], tuple[Callable[..., Any], Callable[..., Any]]]
     step_times: np.ndarray | None = None
     diagnostics: dict = field(default_factory=dict)
+    profile_at_time: Callable[[float], tuple[Callable[..., Any], Callable[..., Any]]] | None = None
 
 
 def concentration_scale(problem: Problem) -> float:
@@ -373,6 +375,10 @@ def _package(problem, mesh, system, times, states, success, result, dense, low, 
             raise ValueError("no dense output: the integration failed")
         return dense(np.asarray(t, dtype=float))[low:high]
 
+    def profile_at_time(t: float):
+        c = np.asarray(state_at(float(t)), dtype=float)[:n]
+        return make_profile_functions(mesh, c, face_flux_densities(mesh, operator.face_fluxes(c)))
+
     return TransientFVSolution(
         method=METHOD_NAME,
         reference=METHOD_REFERENCE,
@@ -392,6 +398,7 @@ def _package(problem, mesh, system, times, states, success, result, dense, low, 
         rtol=float(rtol),
         state_at=state_at,
         profile_at=profile_at,
+        profile_at_time=profile_at_time,
         step_times=None if dense is None else np.asarray(dense.ts, dtype=float),
         diagnostics={
             "cells": int(n),

@@ -9,6 +9,7 @@ from collections.abc import Callable
 import numpy as np
 
 from worker.engine import convergence
+from worker.engine.extremes import Extreme
 from worker.engine.model import Problem
 from worker.engine.outcome import Outcome
 from worker.engine.transient.exact_series import TransientSeriesSolution
@@ -20,15 +21,19 @@ from worker.engine.transient.solve import numerical_time_lag
 #: Points per layer of the reported profile (both layer ends included).
 PROFILE_POINTS_PER_LAYER = 41
 
-__all__ = ["PROFILE_POINTS_PER_LAYER", "add_events", "add_profile_and_probes", "add_series",
+__all__ = ["PROFILE_POINTS_PER_LAYER", "add_events", "add_minimum_series",
+           "add_profile_and_probes", "add_series",
            "add_time_lag", "probe_layers", "probe_row", "profile_positions", "report_events"]
 
 
 def add_series(outcome: Outcome, primary: dict[str, np.ndarray], requested: np.ndarray,
-               index: np.ndarray, initial_load: float, factor: float, unit: str) -> None:
+               index: np.ndarray, initial_load: float, factor: float, unit: str,
+               releasing: bool = True) -> None:
     """Released (each face), remaining and consumed amounts at the requested times, and the
-    release fraction (or, for an initially empty body, the uptake); ``primary`` holds the
-    per-measure amounts at the internal times, ``index`` picks the requested ones."""
+    release fraction of a releasing body (``releasing``: it holds an initial load and no face
+    feeds it, :func:`worker.engine.transient.uptake.releases`) or else the uptake: the net
+    amount taken in through the faces, -(released_inner + released_outer). ``primary`` holds
+    the per-measure amounts at the internal times, ``index`` picks the requested ones."""
     released_inner = factor * primary["released_inner"][index]
     released_outer = factor * primary["released_outer"][index]
     remaining = factor * primary["remaining"][index]
@@ -40,17 +45,14 @@ def add_series(outcome: Outcome, primary: dict[str, np.ndarray], requested: np.n
     consumed = factor * primary["consumed"][index]
     if np.any(consumed != 0.0):
         series["consumed"] = {"values": consumed.tolist(), "unit": unit}
-    if initial_load > 0.0:
+    if releasing and initial_load > 0.0:
         fraction = (primary["released_inner"][index] + primary["released_outer"][index]) / \
             initial_load
         series["release_fraction"] = {"values": fraction.tolist(), "unit": "1"}
         outcome.quantities["release_fraction_final"] = {"value": float(fraction[-1]),
                                                         "unit": "1"}
     else:
-        # No initial load: a fraction of it is undefined (null, kept so the series has the
-        # documented shape); the amount taken up is reported instead.
-        series["release_fraction"] = {"values": [None] * len(index), "unit": "1"}
-        uptake = remaining - factor * initial_load
+        uptake = -(released_inner + released_outer)
         series["uptake"] = {"values": uptake.tolist(), "unit": unit}
 
 
@@ -104,6 +106,26 @@ def add_profile_and_probes(outcome: Outcome, problem: Problem,
             "time": [float(t) for t in requested],
             "units": {"position": "m", "concentration": c_unit, "time": "s"},
         }
+
+
+def add_minimum_series(outcome: Outcome, problem: Problem, minima: list[list[Extreme]],
+                       uncertainty: np.ndarray, c_unit: str) -> None:
+    """``series.concentration_min`` (the body's true minimum at each requested time, with its
+    position and layer) and ``series.concentration_min_layers`` (one row per requested time,
+    one value per layer), each with its numerical uncertainty (None where no second route
+    could be compared); ``minima[t][j]`` is the primary route's minimum of layer j at time t."""
+    def finite(value: float) -> float | None:
+        return float(value) if math.isfinite(value) else None
+
+    lowest = [min(row, key=lambda e: e.value) for row in minima]
+    outcome.series["concentration_min"] = {
+        "values": [e.value for e in lowest], "unit": c_unit,
+        "position": [e.position for e in lowest], "layer": [e.layer for e in lowest],
+        "uncertainty": [finite(uncertainty[t, e.layer]) for t, e in enumerate(lowest)]}
+    outcome.series["concentration_min_layers"] = {
+        "values": [[e.value for e in row] for row in minima], "unit": c_unit,
+        "layers": [layer.name for layer in problem.layers],
+        "uncertainty": [[finite(u) for u in row] for row in uncertainty]}
 
 
 def _fv_fraction(fine: TransientFVSolution, initial_load: float, problem: Problem):

@@ -56,10 +56,15 @@ def fv_route(name: str, fine: TransientFVSolution, numerical: dict[str, np.ndarr
         return np.abs(profile(r, k, layer)
                       - np.asarray(medium.profile_at(k)[0](r, layer=layer), dtype=float))
 
+    def concentration(r: np.ndarray, t: float, layer: int) -> np.ndarray:
+        assert fine.profile_at_time is not None, "a successful integration has dense output"
+        return np.asarray(fine.profile_at_time(t)[0](r, layer=layer), dtype=float)
+
     reference = (fine.reference + "; three meshes, Richardson extrapolation (Celik et al., "
                  "J. Fluids Eng. 130 (2008) 078001)")
     return Route(name, reference, numerical, float(fine.initial_load), everywhere, everywhere,
-                 profile, _events(outcome, "numerical"), band if medium is not None else None)
+                 profile, _events(outcome, "numerical"), band if medium is not None else None,
+                 concentration)
 
 
 def series_route(series: TransientSeriesSolution, at: np.ndarray, internal: np.ndarray,
@@ -69,10 +74,14 @@ def series_route(series: TransientSeriesSolution, at: np.ndarray, internal: np.n
     def profile(r: np.ndarray, k: int, layer: int) -> np.ndarray:
         return np.asarray(series.concentration_at(r, [internal[k]])[0], dtype=float)
 
+    def concentration(r: np.ndarray, t: float, layer: int) -> np.ndarray:
+        return np.asarray(series.concentration_at(r, [t])[0], dtype=float)
+
     return Route(series.method, series.reference, series.amounts(at),
                  float(series.initial_load),
                  series.release_converged[at] | (internal == 0.0),
-                 series.converged[at], profile, _events(outcome, "series"))
+                 series.converged[at], profile, _events(outcome, "series"),
+                 concentration=concentration)
 
 
 def laplace_events(problem: Problem, solution: TransientLaplaceSolution, duration: float
@@ -108,9 +117,12 @@ def laplace_route(problem: Problem, solution: TransientLaplaceSolution, internal
     def profile(r: np.ndarray, k: int, layer: int) -> np.ndarray:
         return np.asarray(solution.concentration_at(r, [internal[k]], layer)[0], dtype=float)
 
+    def concentration(r: np.ndarray, t: float, layer: int) -> np.ndarray:
+        return np.asarray(solution.concentration_at(r, [t], layer)[0], dtype=float)
+
     return Route(solution.method, solution.reference, solution.amounts(),
                  float(solution.initial_load), everywhere, everywhere, profile,
-                 laplace_events(problem, solution, duration))
+                 laplace_events(problem, solution, duration), concentration=concentration)
 
 
 def _galerkin_fraction(solution: TransientGalerkinSolution, problem: Problem):
@@ -168,8 +180,12 @@ def galerkin_route(problem: Problem, study: GalerkinStudy, internal: np.ndarray,
         return np.abs(profile(r, k, layer) - np.asarray(
             medium.concentration_at(r, [internal[k]], layer)[0], dtype=float))
 
+    def concentration(r: np.ndarray, t: float, layer: int) -> np.ndarray:
+        return np.asarray(fine.concentration_at(r, [t], layer)[0], dtype=float)
+
     return Route(f"{fine.method} (three meshes, extrapolated)",
                  fine.reference + "; three meshes, Richardson extrapolation (Celik et al., "
                  "J. Fluids Eng. 130 (2008) 078001)",
                  dict(study.amounts.extrapolated), float(fine.initial_load), everywhere,
-                 everywhere, profile, galerkin_events(problem, study, duration), band)
+                 everywhere, profile, galerkin_events(problem, study, duration), band,
+                 concentration)

@@ -3,17 +3,26 @@
 
 from __future__ import annotations
 
+import math
+
 import numpy as np
 
 from worker.engine.model import Problem
 from worker.engine.outcome import Outcome
-from worker.engine.transient import checks, exact_series, method_of_lines
-from worker.engine.transient.compare import compare_routes, reported_series_sign_check
+from worker.engine.regime_notes import thiele_notes
+from worker.engine.transient import checks, exact_series, method_of_lines, solve, uptake
+from worker.engine.transient.compare import (
+    compare_minima,
+    compare_routes,
+    compare_steady_times,
+    reported_series_sign_check,
+)
 from worker.engine.transient.galerkin import galerkin_study
 from worker.engine.transient.laplace import METHOD_NAME as LAPLACE_METHOD
 from worker.engine.transient.laplace import laplace_unsupported_reason, solve_transient_laplace
 from worker.engine.transient.record import (
     add_events,
+    add_minimum_series,
     add_profile_and_probes,
     add_series,
     add_time_lag,
@@ -21,7 +30,7 @@ from worker.engine.transient.record import (
     report_events,
 )
 from worker.engine.transient.routes import fv_route, galerkin_route, laplace_route, series_route
-from worker.engine.transient.scales import size_factor
+from worker.engine.transient.scales import capacity_resistance_time, size_factor
 from worker.engine.transient.solution import Route
 from worker.engine.transient.solve import (
     extrapolated,
@@ -106,7 +115,9 @@ def run_transient(problem: Problem, independent: Problem | None = None) -> Outco
 
     numerical = extrapolated(fvs, internal)
     fv_name = f"{fine.method} (three meshes, extrapolated)"
-    add_events(outcome, lines_problem, series, scan, fvs, duration)
+    releasing = uptake.releases(problem)
+    if releasing:
+        add_events(outcome, lines_problem, series, scan, fvs, duration)
     routes = [fv_route(fv_name, fine, numerical, internal, outcome, medium=fvs[1])]
     if study is not None:
         if study.success:
@@ -120,6 +131,9 @@ def run_transient(problem: Problem, independent: Problem | None = None) -> Outco
     if series is not None and at is not None:
         routes.insert(0 if use_series else len(routes), series_route(series, at, internal,
                                                                      outcome))
+    if not releasing:
+        for route in routes:
+            route.events = {}
     primary = routes[0]
     _record_methods(outcome, primary, routes[1:])
     if len(routes) == 1:
@@ -137,14 +151,25 @@ def run_transient(problem: Problem, independent: Problem | None = None) -> Outco
         + np.abs(amounts["consumed"]))))
     c_scale = method_of_lines.concentration_scale(problem)
 
-    add_series(outcome, amounts, requested, requested_index, initial_load, factor, amount_unit)
+    add_series(outcome, amounts, requested, requested_index, initial_load, factor, amount_unit,
+               releasing)
+    if not releasing:
+        _uptake_note(outcome, problem)
     add_profile_and_probes(outcome, problem, primary.profile, internal, requested,
                            requested_index, final_index, c_unit)
-    report_events(outcome, primary, duration)
+    if releasing:
+        report_events(outcome, primary, duration)
     add_time_lag(outcome, lines_problem, series, fine, duration)
 
     compare_routes(outcome, problem, primary, routes[1:], internal, profile_positions(problem),
-                   final_index, c_scale, amount_scale)
+                   final_index, c_scale, amount_scale, releasing)
+    minima = [uptake.route_minima(route.profile, problem, profile_positions(problem), internal,
+                                  requested_index) for route in routes]
+    spread = compare_minima(outcome, problem, routes, minima, internal, requested_index, c_scale)
+    add_minimum_series(outcome, problem, minima[0], spread, c_unit)
+    _time_to_steady(outcome, problem, independent, routes, duration, c_scale)
+    outcome.warnings.extend(thiele_notes(problem, _fed_levels(problem, primary, final_index),
+                                         f" at t = {duration:.6g} s"))
     _annotate(outcome, routes, int(requested_index[-1]))
     _series_bands(outcome, routes, requested_index, factor)
     if series is not None:
@@ -156,6 +181,74 @@ def run_transient(problem: Problem, independent: Problem | None = None) -> Outco
     reported_series_sign_check(outcome, problem, float(np.min(fine.cells)), c_scale,
                                amount_scale, factor)
     return outcome
+
+
+def _fed_levels(problem: Problem, route: Route, k: int) -> list[float | None]:
+    """Per layer, the larger of the route's concentrations at the layer's two ends at internal
+    time k (a consuming layer has no interior maximum)."""
+    edges = problem.edges
+    return [float(np.max(route.profile(np.array([edges[j], edges[j + 1]]), k, j)))
+            for j in range(len(problem.layers))]
+
+
+def _uptake_note(outcome: Outcome, problem: Problem) -> None:
+    """Say why a record has no release fraction, t50 or t90, and what it reports instead."""
+    faces = uptake.supplying_faces(problem)
+    if not any(layer.initial > 0.0 for layer in problem.layers):
+        why = "the body holds no initial load"
+    else:
+        named = " and ".join(faces)
+        verb = "faces feed" if len(faces) > 1 else "face feeds"
+        why = (f"the {named} {verb} solute into it, so released / initial load is no fraction "
+               "of that load")
+    outcome.warnings.append(
+        f"uptake: no release_fraction, t50 or t90 ({why}); series.uptake is the net amount "
+        "taken in through the faces, series.remaining the amount held")
+
+
+def _time_to_steady(outcome: Outcome, problem: Problem, independent: Problem,
+                    routes: list[Route], duration: float, c_scale: float) -> None:
+    """The quantity ``time_to_steady`` of a case that approaches a nonzero steady state, from
+    each route (the primary against the steady state of the case as read, the others against
+    that of the independent reading), and ``cross_check.time_to_steady``."""
+    if not math.isfinite(capacity_resistance_time(problem)):
+        return
+    positions = profile_positions(problem)
+    steady = solve.steady_reference(problem)
+    again = steady if independent is problem else solve.steady_reference(independent)
+    if not (steady.success and again.success):
+        return
+    scale = uptake.steady_scale(steady, positions)
+    if not scale > uptake.NONZERO_STEADY * c_scale:
+        return  # the steady state holds nothing: a release to a sink, not an approach
+
+    def initial(r: np.ndarray, layer: int) -> np.ndarray:
+        return np.full(np.size(r), problem.layers[layer].initial)
+
+    found = []
+    for i, route in enumerate(routes):
+        if route.concentration is None:
+            continue
+        found.append((route.name, uptake.time_to_steady(
+            route.concentration, initial, steady if i == 0 else again, positions, duration,
+            scale)))
+    if not found:
+        return
+    first = found[0][1]
+    entry: dict = {"value": first.value, "unit": "s"}
+    if first.value is None:
+        entry["reason"] = first.reason
+        outcome.warnings.append(f"time_to_steady: {first.reason}")
+    outcome.quantities["time_to_steady"] = entry
+    if len(found) > 1:
+        names = [name for name, _ in found]
+        values = [approach.value for _, approach in found]
+        compare_steady_times(outcome, problem, names, values)
+        entry["routes"] = names
+        entry["verified_by"] = "cross_check.time_to_steady"
+        reached = [v for v in values[1:] if v is not None]
+        if first.value is not None and len(reached) == len(values) - 1:
+            entry["uncertainty"] = max(abs(first.value - v) for v in reached)
 
 
 def _record_methods(outcome: Outcome, primary: Route, others: list[Route]) -> None:
@@ -206,7 +299,9 @@ def _annotate(outcome: Outcome, routes: list[Route], last: int) -> None:
         "released_inner": released, "released_outer": released,
         "release_fraction": "cross_check.release_fraction", "uptake": "cross_check.released",
         "remaining": "cross_check.remaining", "consumed": "cross_check.consumed",
-        "profile": "cross_check.profile", "probes": "cross_check.probes"})
+        "profile": "cross_check.profile", "probes": "cross_check.probes",
+        "concentration_min": "cross_check.concentration_min",
+        "concentration_min_layers": "cross_check.concentration_min"})
     lag = outcome.quantities.get("time_lag")
     found = outcome.diagnostics.get("time_lag", {})
     if lag is not None and found.get("series") is not None:

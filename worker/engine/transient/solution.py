@@ -66,3 +66,6 @@ class Route:
     #: GCI with the formal order 2, ratio 2 and Roache's safety factor 3: |fine - medium|);
     #: None for an exact route.
     profile_band: Callable[[np.ndarray, int, int], np.ndarray] | None = None
+    #: ``(r, t, layer) -> C``: concentrations at positions r (m) of layer ``layer`` at any time
+    #: t in (0, duration] s (the time to steady needs more times than the internal ones).
+    concentration: Callable[[np.ndarray, float, int], np.ndarray] | None = None
