@@ -47,7 +47,7 @@ def _errors(doc: dict) -> list[tuple[str, str]]:
 
 @pytest.mark.parametrize(("requirement", "path", "words"), [
     ({"id": "A", "quantity": "t90", "at_most": "1 d"}, "requirements[0].quantity",
-     "not a quantity a steady case reports"),
+     "not a quantity this steady case reports"),
     ({"id": "A", "quantity": "concentration_min", "at_least": "1 m"},
      "requirements[0].at_least", "expected a concentration"),
     ({"id": "A", "quantity": "concentration_min", "layer": "Core", "at_least": "1 mol/m^3"},
@@ -60,12 +60,12 @@ def _errors(doc: dict) -> list[tuple[str, str]]:
       "at_most": "2 mol/m^3"}, "requirements[0]", "exactly one of"),
     ({"id": "A", "quantity": "concentration_min", "between": ["2 mol/m^3", "1 mol/m^3"]},
      "requirements[0].between", "below the second"),
-    ({"id": "A", "quantity": "biot_outer", "at_most": "3 mol/m^3"}, "requirements[0].at_most",
-     "expected a dimensionless number"),
+    ({"id": "A", "quantity": "flux_outer", "at_most": 3}, "requirements[0].at_most",
+     "the unit is missing"),
     ({"id": "A", "quantity": "concentration_min", "at_least": "1 mg/mL"},
      "requirements[0].at_least", "molar basis"),
     ({"id": "A", "quantity": "consumption_per_area", "at_most": "1 mol/m^2/s"},
-     "requirements[0].quantity", "reported for a slab only"),
+     "requirements[0].quantity", "not a quantity this steady case reports"),
     ({"id": "A", "quantity": "concentration_min", "at": "1 d", "at_least": "1 mol/m^3"},
      "requirements[0].at", "not a series"),
 ])

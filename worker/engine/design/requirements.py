@@ -3,8 +3,9 @@
 A requirement bounds one figure of the record: a scalar quantity (``t90``, ``flux_outer``),
 a layer's extreme (``concentration_min`` with ``layer``), or a series at a time
 (``release_fraction`` with ``at``); the figures a case offers are listed once, in
-:func:`worker.engine.design.targets.quantities`. Its *margin* is positive when met: ``value − bound`` for a lower bound,
-``bound − value`` for an upper one, the smaller of the two for a range. The requirement is
+:func:`worker.engine.design.targets.quantities`. Its *margin* is positive when met:
+``value − bound`` for a lower bound, ``bound − value`` for an upper one, the smaller of the two
+for a range. The requirement is
 ``indeterminate`` when |margin| ≤ the value's numerical uncertainty (the record's own
 ``uncertainty`` of that figure): the calculation cannot tell which side of the bound the design
 is on.
@@ -104,6 +105,11 @@ def _entry_value(entry: Mapping, index: int | None) -> tuple[float | None, float
     return (None if value is None else float(value)), (None if band is None else float(band))
 
 
+def _item(row, index: int):
+    """``row[index]`` of a per-layer row, None where there is none."""
+    return row[index] if isinstance(row, list) and index < len(row) else None
+
+
 def read_requirement(requirement: Requirement, quantities: Mapping, series: Mapping,
                      duration: float | None = None) -> Reading:
     """The figure ``requirement`` bounds, read from a record's ``quantities`` and ``series``.
@@ -113,19 +119,23 @@ def read_requirement(requirement: Requirement, quantities: Mapping, series: Mapp
     """
     name = requirement.quantity
     if requirement.at is not None:
-        entry = series.get(name)
+        series_name = name if requirement.layer is None else f"{name}_layers"
+        entry = series.get(series_name)
         times = series.get("time", {}).get("values", [])
         if not isinstance(entry, Mapping):
-            return Reading(None, missing=f"the record has no series {name}")
+            return Reading(None, missing=f"the record has no series {series_name}")
         hits = [i for i, t in enumerate(times) if math.isclose(t, requirement.at, rel_tol=1e-12)]
         if not hits:
             return Reading(None, missing=f"the series {name} has no value at {requirement.at} s")
-        values = entry.get("values", [])
-        value = values[hits[0]] if hits[0] < len(values) else None
-        bands = entry.get("uncertainty")
-        band = bands[hits[0]] if isinstance(bands, list) and hits[0] < len(bands) else None
+        row = hits[0]
+        values, bands = entry.get("values", []), entry.get("uncertainty")
+        value = values[row] if row < len(values) else None
+        band = bands[row] if isinstance(bands, list) and row < len(bands) else None
+        if requirement.layer is not None:
+            value = _item(value, requirement.layer)
+            band = _item(band, requirement.layer)
         return Reading(None if value is None else float(value),
-                       None if band is None or isinstance(band, list) else float(band))
+                       None if band is None else float(band))
     if requirement.layer is not None:
         entry = quantities.get(f"{name}_layers")
         if not isinstance(entry, Mapping):

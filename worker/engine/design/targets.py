@@ -15,11 +15,13 @@ steady (``worker.engine.steady_check``)
     always, cylinder with ``length``, slab with ``area``).
 transient (``worker.engine.transient.record``)
     ``t50``, ``t90`` (time to 50 % / 90 % release; NaN when not reached within the duration)
-    and ``release_fraction_final``, for an initially loaded body; series quantities at a time
-    ``at`` (s): ``release_fraction`` (loaded body), ``uptake`` (initially empty body),
-    ``released_inner``, ``released_outer``, ``remaining`` (amounts in the record's measure:
-    per m^2 of a slab without ``area``, per m of a cylinder without ``length``), and
-    ``concentration_min``/``concentration_max`` (over the body or a layer, at time ``at``).
+    and ``release_fraction_final``, for a body that releases (loaded, no face feeding it:
+    ``worker.engine.transient.uptake.releases``); series quantities at a time ``at`` (s):
+    ``release_fraction`` (a body that releases), ``uptake`` (otherwise: the net amount in
+    through the faces), ``released_inner``, ``released_outer``, ``remaining`` (amounts in the
+    record's measure: per m^2 of a slab without ``area``, per m of a cylinder without
+    ``length``), and ``concentration_min`` (the true minimum over the body or a layer, at time
+    ``at``).
 
 Not offered: the list-valued ``thiele_modulus`` and the membrane ``time_lag``.
 """
@@ -31,6 +33,7 @@ from dataclasses import dataclass, field
 
 from worker.engine.model import Problem
 from worker.engine.transient.scales import size_factor
+from worker.engine.transient.uptake import releases
 
 __all__ = ["QuantitySpec", "Target", "TargetError", "check_target", "quantities",
            "target_dimension"]
@@ -115,14 +118,10 @@ def _steady(problem: Problem) -> list[QuantitySpec]:
     return specs
 
 
-def _loaded(problem: Problem) -> bool:
-    return any(ly.initial * ly.thickness > 0.0 for ly in problem.layers)
-
-
 def _transient(problem: Problem) -> list[QuantitySpec]:
     amount = _amount_dimension(problem)
     specs = []
-    if _loaded(problem):
+    if releases(problem):
         specs += [QuantitySpec("t50", "time"), QuantitySpec("t90", "time"),
                   QuantitySpec("release_fraction_final", "dimensionless"),
                   QuantitySpec("release_fraction", "dimensionless", at_time=True)]
@@ -131,8 +130,7 @@ def _transient(problem: Problem) -> list[QuantitySpec]:
     specs += [QuantitySpec("released_inner", amount, at_time=True),
               QuantitySpec("released_outer", amount, at_time=True),
               QuantitySpec("remaining", amount, at_time=True),
-              QuantitySpec("concentration_min", "concentration", per_layer=True, at_time=True),
-              QuantitySpec("concentration_max", "concentration", per_layer=True, at_time=True)]
+              QuantitySpec("concentration_min", "concentration", per_layer=True, at_time=True)]
     return specs
 
 

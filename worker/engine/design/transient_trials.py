@@ -29,6 +29,7 @@ from collections.abc import Sequence
 import numpy as np
 
 from worker.engine.design.paths import FieldRef, replaced, with_values
+from worker.engine.design.requirements import Requirement, read_requirement
 from worker.engine.design.targets import Target
 from worker.engine.model import Layer, Problem, Regime
 from worker.engine.transient import exact_series
@@ -221,35 +222,21 @@ def _series_trial(problem: Problem, targets: Sequence[Target], requested: np.nda
         if target.quantity in ("release_fraction", "release_fraction_final"):
             row[j] = released / load if load > 0.0 else math.nan
         elif target.quantity == "uptake":
-            row[j] = factor * (series.remaining[k] - load)
+            row[j] = -factor * released
         else:
             row[j] = factor * getattr(series, target.quantity)[k]
     return row
 
 
 def _full_trial(problem: Problem, targets: Sequence[Target]) -> np.ndarray:
-    """One trial by the full transient check; extremes at a time from its probe rows."""
-    positions = [np.linspace(problem.edges[j], problem.edges[j + 1], PROFILE_POINTS_PER_LAYER)
-                 for j in range(len(problem.layers))]
-    if any(t.quantity in ("concentration_min", "concentration_max") for t in targets):
-        problem = dataclasses.replace(problem, probes=tuple(np.concatenate(positions).tolist()))
+    """One trial by the full transient check; the figures read from its record as the design
+    block reads them (a layer's minimum at a time from ``concentration_min_layers``)."""
     outcome = run_transient(problem)
-    quantities, series = outcome.quantities, outcome.series
-    times = series.get("time", {}).get("values", [])
     row = np.full(len(targets), np.nan)
     for j, target in enumerate(targets):
-        if target.at is None:
-            value = quantities.get(target.quantity, {}).get("value")
-            row[j] = math.nan if value is None else float(value)
-            continue
-        k = int(np.argmin(np.abs(np.asarray(times) - target.at)))
-        if target.quantity in ("concentration_min", "concentration_max"):
-            values = np.asarray(series["probes"]["concentration"][k], dtype=float)
-            if target.layer is not None:
-                start = target.layer * PROFILE_POINTS_PER_LAYER
-                values = values[start:start + PROFILE_POINTS_PER_LAYER]
-            row[j] = values.min() if target.quantity == "concentration_min" else values.max()
-            continue
-        value = series.get(target.quantity, {}).get("values", [None] * (k + 1))[k]
-        row[j] = math.nan if value is None else float(value)
+        reading = read_requirement(
+            Requirement(id="", quantity=target.quantity, layer=target.layer, at=target.at,
+                        low=0.0),
+            outcome.quantities, outcome.series, problem.regime.duration)
+        row[j] = math.nan if reading.value is None else reading.value
     return row

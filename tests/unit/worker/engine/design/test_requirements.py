@@ -13,7 +13,6 @@ from worker.engine.design.requirements import (
     MET,
     NONE_STATED,
     NOT_MET,
-    REQUIRABLE,
     Reading,
     Requirement,
     design_block,
@@ -21,6 +20,7 @@ from worker.engine.design.requirements import (
     overall_status,
     read_requirement,
 )
+from worker.engine.design.targets import quantities
 from worker.engine.run import run_problem
 from worker.engine.units import KINDS
 
@@ -111,8 +111,8 @@ def test_reads_a_layer_extreme_and_a_series_value_at_its_time():
 
 
 def test_every_requirable_quantity_names_a_dimension_of_the_unit_table():
-    for spec in REQUIRABLE.values():
-        assert spec.dimension(sphere_problem()) in KINDS, spec.name
+    for spec in quantities(sphere_problem()).values():
+        assert spec.dimension in KINDS, spec.quantity
 
 
 def test_design_block_on_the_zero_order_sphere_matches_the_closed_form_minimum():

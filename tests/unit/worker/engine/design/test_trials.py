@@ -262,7 +262,14 @@ def test_transient_trials_agree_with_the_full_checks_primary(transient_case):
         if target.at is None:
             entry = outcome.quantities[target.quantity]
         else:
-            entry = {"value": outcome.series[target.quantity]["values"][k], "uncertainty": 0.0}
+            series = outcome.series[target.quantity]
+            band = (series.get("uncertainty") or [0.0] * (k + 1))[k]
+            entry = {"value": series["values"][k], "uncertainty": band}
+        if target.quantity == "concentration_min":
+            # A minimum at a sink face is zero to round-off of the concentration scale.
+            scale = max(layer.initial for layer in problem.layers)
+            assert abs(value - entry["value"]) <= max(1e-11 * scale, 0.01 * entry["uncertainty"])
+            continue
         assert _agrees(value, entry), (target.key, value, entry)
 
 
