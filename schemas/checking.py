@@ -9,8 +9,14 @@ from schemas.build import validate_case
 from schemas.canonical import case_sha256
 from schemas.errors import CaseError
 from schemas.record import failed_record, succeeded_record
+from worker.engine.design.monte_carlo import BlockResult
 from worker.engine.design.requirements import design_block
-from worker.engine.design.runner import run_design
+from worker.engine.design.runner import (
+    BlockScheduler,
+    DesignRunner,
+    run_design,
+    sequential_blocks,
+)
 from worker.engine.independent_problem import (
     IndependentInputError,
     IndependentProblem,
@@ -23,10 +29,11 @@ from worker.engine.run import run_problem
 
 logger = logging.getLogger(__name__)
 
-__all__ = ["CaseError", "check_case"]
+__all__ = ["CaseError", "check_case", "uncertainty_block"]
 
 
-def check_case(case: dict, *, on_progress: Callable[[int, int], None] | None = None) -> dict:
+def check_case(case: dict, *, on_progress: Callable[[int, int], None] | None = None,
+               seed: int | None = None, scheduler: BlockScheduler = sequential_blocks) -> dict:
     """Check one case document and return its record.
 
     Parameters
@@ -50,7 +57,10 @@ def check_case(case: dict, *, on_progress: Callable[[int, int], None] | None = N
         failure is not raised: it is recorded (status ``failed``).
 
     ``on_progress(trials, blocks)`` is told how far a Monte Carlo run of the case's
-    ``uncertainty`` has got, after each block.
+    ``uncertainty`` has got, after each block; ``seed`` is the Monte Carlo seed when the case
+    gives none (else one is drawn; the record holds it either way); ``scheduler`` runs the
+    Monte Carlo blocks (:data:`worker.engine.design.runner.BlockScheduler`; a service shares
+    them among workers, each computing :func:`uncertainty_block`).
     """
     started_at = utc_now()
     validated = validate_case(case)
@@ -74,9 +84,18 @@ def check_case(case: dict, *, on_progress: Callable[[int, int], None] | None = N
     design = design_block(validated.design.requirements, outcome.quantities, outcome.series,
                           validated.problem.regime.duration)
     extra = run_design(validated.problem, independent, validated.design, run_problem,
-                       on_progress=on_progress)
+                       seed=seed, scheduler=scheduler, on_progress=on_progress)
     record = succeeded_record(digest, outcome, warnings,
                               provenance_block(digest, started_at, utc_now()),
                               validated.normalised, design)
     record.update(extra)
     return record
+
+
+def uncertainty_block(case: dict, seed: int, index: int) -> BlockResult:
+    """Monte Carlo block ``index`` of ``case``'s uncertainty with ``seed``: what a worker
+    computes when a service shares a run's blocks (the same block wherever it runs)."""
+    validated = validate_case(case)
+    independent = build_independent_problem(validated.original)
+    runner = DesignRunner(validated.problem, independent, validated.design, run_problem)
+    return runner.block(seed, index)

@@ -27,7 +27,13 @@ from dataclasses import dataclass
 import numpy as np
 
 from worker.engine.design.limit_search import find_limit
-from worker.engine.design.monte_carlo import BlockResult, Bound, MonteCarloResult, propagate
+from worker.engine.design.monte_carlo import (
+    BlockResult,
+    Bound,
+    MonteCarloAccumulator,
+    MonteCarloResult,
+    compute_block,
+)
 from worker.engine.design.paths import FieldRef, value_of, with_values
 from worker.engine.design.request import DesignRequest, UncertaintyRequest
 from worker.engine.design.requirements import Requirement, design_block, read_requirement
@@ -38,10 +44,22 @@ from worker.engine.design.trials import TrialModel
 from worker.engine.model import Problem
 from worker.engine.outcome import Outcome
 
-__all__ = ["DesignRunner", "FullCheck"]
+__all__ = ["BlockScheduler", "DesignRunner", "FullCheck", "sequential_blocks"]
 
 #: A full check of a problem and its independent reading.
 FullCheck = Callable[[Problem, Problem | None], Outcome]
+#: Runs Monte Carlo blocks until the accumulator is done: ``scheduler(compute, accumulator)``,
+#: ``compute(index)`` the block in this process. A scheduler may instead have other processes
+#: compute blocks (:meth:`DesignRunner.block` on the same case and seed gives the same block),
+#: but it adds them to the accumulator in block order.
+BlockScheduler = Callable[[Callable[[int], BlockResult], MonteCarloAccumulator], None]
+
+
+def sequential_blocks(compute: Callable[[int], BlockResult],
+                      accumulator: MonteCarloAccumulator) -> None:
+    """The default scheduler: one block after another, in this process."""
+    while not accumulator.done:
+        accumulator.add(compute(accumulator.blocks))
 
 #: Random trials added to the verification subset (besides the worst and the median ones).
 RANDOM_CHECKS = 2
@@ -172,23 +190,48 @@ class DesignRunner:
 
     # -- uncertainty ---------------------------------------------------------------------
 
-    def uncertainty(self, *, run_block: Callable[[int], BlockResult] | None = None,
-                    on_progress: Callable[[int, int], None] | None = None) -> dict:
-        """The record's ``uncertainty`` block."""
+    def _monte_carlo(self, seed: int) -> tuple[UncertaintySpec, TrialModel, list[Bound]]:
         request = self.request.uncertainty
         if request is None:
             raise ValueError("the case states no uncertainty")
-        seed = request.seed if request.seed is not None else secrets.randbits(62)
         spec = uncertainty_spec(request, seed)
-        fields = [s.field for s in request.inputs]
-        model = TrialModel(self.problem, fields, self.scheme.targets)
+        model = TrialModel(self.problem, [s.field for s in request.inputs], self.scheme.targets)
+        return spec, model, _bounds(self.scheme)
+
+    def block(self, seed: int, index: int) -> BlockResult:
+        """Monte Carlo block ``index`` of the case's uncertainty with ``seed``: a pure function
+        of the case, the seed and the index, wherever it runs."""
+        spec, model, bounds = self._monte_carlo(seed)
+        return compute_block(spec, model, bounds, index, len(self.scheme.names))
+
+    def uncertainty(self, *, seed: int | None = None,
+                    scheduler: BlockScheduler = sequential_blocks,
+                    on_progress: Callable[[int, int], None] | None = None) -> dict:
+        """The record's ``uncertainty`` block. ``seed``: the case's, else this one, else one
+        drawn now (recorded either way)."""
+        request = self.request.uncertainty
+        if request is None:
+            raise ValueError("the case states no uncertainty")
+        if request.seed is not None:
+            seed = request.seed
+        elif seed is None:
+            seed = secrets.randbits(62)
+        spec, model, bounds = self._monte_carlo(seed)
         names = self.scheme.names
-        result = propagate(spec, model, names, _bounds(self.scheme), run_block=run_block,
-                           on_progress=on_progress)
+        accumulator = MonteCarloAccumulator(spec, names, tuple(bounds))
+
+        def compute(index: int) -> BlockResult:
+            block = compute_block(spec, model, accumulator.requirements, index, len(names))
+            if on_progress is not None:
+                on_progress((index + 1) * spec.trials_per_block, index + 1)
+            return block
+
+        scheduler(compute, accumulator)
+        result = accumulator.result()
         points = SOBOL_POINTS_BATCHED if model.method == "batched closed form" \
             else SOBOL_POINTS_ONE_BY_ONE
         indices = sensitivity(spec, model, names, base_points=points)
-        verification = self._verify(result, fields, model)
+        verification = self._verify(result, list(model.fields), model)
         sample_outputs = np.array([[np.nan if v is None else v for v in t.outputs]
                                    for t in result.sample], dtype=float).reshape(-1, len(names))
         quantities = {}
@@ -358,14 +401,15 @@ class DesignRunner:
 
 
 def run_design(problem: Problem, independent: Problem | None, request: DesignRequest,
-               check: FullCheck, *, run_block: Callable[[int], BlockResult] | None = None,
+               check: FullCheck, *, seed: int | None = None,
+               scheduler: BlockScheduler = sequential_blocks,
                on_progress: Callable[[int, int], None] | None = None) -> dict:
     """The record blocks the request asks for: ``uncertainty``, ``design_limit``, ``sweep``."""
     runner = DesignRunner(problem, independent, request, check)
     parts: list[tuple[str, Callable[[], dict]]] = []
     if request.uncertainty is not None:
-        parts.append(("uncertainty", lambda: runner.uncertainty(run_block=run_block,
-                                                                on_progress=on_progress)))
+        parts.append(("uncertainty", lambda: runner.uncertainty(
+            seed=seed, scheduler=scheduler, on_progress=on_progress)))
     if request.limit is not None:
         parts.append(("design_limit", runner.limit))
     if request.sweep is not None:
