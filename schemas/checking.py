@@ -89,7 +89,19 @@ def check_case(case: dict, *, on_progress: Callable[[int, int], None] | None = N
                               provenance_block(digest, started_at, utc_now()),
                               validated.normalised, design)
     record.update(extra)
+    _add_design_checks(record)
     return record
+
+
+def _add_design_checks(record: dict) -> None:
+    """The checks of the design runs (the fast solve against the full check, the verification
+    subset) join the record's checks: a design run on wrong figures fails the verdict."""
+    added = [check for block in ("uncertainty", "design_limit")
+             for check in (record.get(block) or {}).pop("checks", [])]
+    added += (record.get("uncertainty") or {}).get("verification", {}).pop("checks", [])
+    if added:
+        record["checks"].extend(added)
+        record["verdict"] = "pass" if all(c["passed"] for c in record["checks"]) else "fail"
 
 
 def uncertainty_block(case: dict, seed: int, index: int) -> BlockResult:

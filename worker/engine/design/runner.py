@@ -74,6 +74,23 @@ SOBOL_POINTS_BATCHED = 1024
 SOBOL_POINTS_ONE_BY_ONE = 64
 
 
+#: The fast solve agrees with the full check when within the figure's numerical uncertainty,
+#: or this fraction of the figure's size where the full check states none finer.
+AGREEMENT_FLOOR = 1e-9
+
+
+def model_disagreement(fast: float, value: float | None, band: float | None) -> float:
+    """|fast − value| over what agreement allows: the full check's numerical uncertainty of the
+    figure, at least ``AGREEMENT_FLOOR`` of its size (≤ 1: they agree). A figure one gives and
+    the other does not disagrees (infinity); neither giving it agrees (0)."""
+    if value is None or not math.isfinite(value):
+        return 0.0 if not math.isfinite(fast) else math.inf
+    if not math.isfinite(fast):
+        return math.inf
+    allowed = max(band or 0.0, AGREEMENT_FLOOR * abs(value), 1e-300)
+    return abs(fast - value) / allowed
+
+
 @dataclass(frozen=True)
 class _Scheme:
     """The figures the design runs follow: targets (model columns) and requirements."""
@@ -303,7 +320,7 @@ class DesignRunner:
         of each figure against its spread, and the trial model against the full check."""
         rows = []
         worst_ratio = 0.0
-        worst_model = 0.0
+        worst_model, worst_where = 0.0, ""
         largest: dict[str, float] = {}
         for label, inputs in self._subset(result):
             values = dict(zip(fields, inputs, strict=True))
@@ -318,15 +335,27 @@ class DesignRunner:
                     largest[target.key] = max(largest.get(target.key, 0.0), band)
                     if spread:
                         worst_ratio = max(worst_ratio, band / spread)
-                if value is not None and math.isfinite(fast[j]):
-                    scale = max(band or 0.0, abs(value) * 1e-12, 1e-300)
-                    difference = abs(fast[j] - value)
-                    worst_model = max(worst_model, difference / scale if band else
-                                      difference / max(abs(value), 1e-300))
+                ratio = model_disagreement(float(fast[j]), value, band)
+                if ratio > worst_model:
+                    worst_model, worst_where = ratio, f"{target.key} in the {label}"
             rows.append(row)
+        failed = [str(r["trial"]) for r in rows if r["verdict"] != "pass"]
+        checks = [
+            {"name": "uncertainty.subset", "value": float(len(failed)), "limit": 0.0,
+             "passed": bool(rows) and not failed,
+             "detail": f"{len(rows)} trials checked in full (worst for each requirement, "
+                       f"median, random)" + (f"; failed: {', '.join(failed)}" if failed
+                                              else "; every check passed")},
+            {"name": "uncertainty.trial_model", "value": worst_model, "limit": 1.0,
+             "passed": worst_model <= 1.0,
+             "detail": "the Monte Carlo trials' fast primary solve against the full check "
+                       "at the same inputs, relative to the figure's numerical uncertainty "
+                       f"(at least {AGREEMENT_FLOOR:g} of the value); worst "
+                       f"{worst_where or 'none'}"},
+        ]
         return {
             "trials_checked": len(rows),
-            "all_passed": all(r["verdict"] == "pass" for r in rows) and bool(rows),
+            "all_passed": bool(rows) and not failed,
             "largest_numerical_uncertainty": largest,
             "largest_ratio_to_spread": worst_ratio,
             "numerical_small_against_spread": worst_ratio <= SMALL_AGAINST_SPREAD,
@@ -334,6 +363,7 @@ class DesignRunner:
                                          "the standard uncertainty of the figure",
             "trial_model_difference": worst_model,
             "trials": rows,
+            "checks": checks,
         }
 
     # -- design limit --------------------------------------------------------------------
@@ -364,6 +394,15 @@ class DesignRunner:
             judged = self._design_of(outcome, self.problem)
             entry = next(j for j in judged["requirements"] if j["id"] == requirement.id)
             block["verdict"] = self._verdict(outcome)
+            fast = float(model(np.array([[found.value]]))[0, 0])
+            ratio = model_disagreement(fast, entry["value"], entry["numerical_uncertainty"])
+            block["checks"] = [{
+                "name": "design_limit.trial_model", "value": ratio, "limit": 1.0,
+                "passed": ratio <= 1.0,
+                "detail": f"{requirement.quantity} at the limit by the fast primary solve "
+                          f"({fast:.9g}) against the full check ({entry['value']}), relative "
+                          f"to its numerical uncertainty (at least {AGREEMENT_FLOOR:g} of the "
+                          "value)"}]
             block["check"] = {"margin": entry["margin"], "value": entry["value"],
                               "numerical_uncertainty": entry["numerical_uncertainty"],
                               "status": entry["status"],
