@@ -305,10 +305,10 @@ def batch_summary(document: dict[str, Any]) -> str:
         return "not finished"
     if not (failed or unverified or drifted):
         return WITHIN_TOLERANCE
-    parts = [f"{failed} run(s) failed", f"{unverified} run(s) failed a check",
-             f"{drifted} case(s) drifted"]
+    parts = [f"{failed} run(s) failed", f"{drifted} case(s) drifted"]
     if design:
         parts.append(f"{design} of them with a changed design requirement status")
+    parts.append(f"{unverified} run(s) failed a check")
     return ", ".join(parts)
 
 
