@@ -10,7 +10,11 @@ record from before the batch (or its last succeeded record, where none is approv
 A quantity has drifted when ``|now - baseline| / |baseline|`` exceeds the case's
 ``tolerances.cross_check`` (default :data:`DEFAULT_DRIFT_TOLERANCE`); with a baseline of 0 any
 non-zero value has drifted (``relative_change`` is then null). A quantity present on one side
-only has drifted too.
+only has drifted too. A design requirement whose status (met, not_met, indeterminate) differs
+from the baseline's, or that is stated on one side only, has drifted whatever the figures did.
+
+Beside the drift, a finished batch counts the verdicts of its succeeded runs
+(``verdicts``): a run whose calculation failed a check is never summed up as within tolerance.
 """
 
 from __future__ import annotations
@@ -45,6 +49,8 @@ logger = logging.getLogger(__name__)
 
 #: Relative tolerance of drift when a case gives no ``tolerances.cross_check``.
 DEFAULT_DRIFT_TOLERANCE = 1e-6
+#: The batch summary when every run succeeded, passed every check and nothing drifted.
+WITHIN_TOLERANCE = "all re-verified figures within tolerance"
 VERSION_KEYS = ("engine_version", "schema_version", "python", "numpy", "scipy", "pint")
 
 
@@ -209,6 +215,21 @@ def compare_quantities(baseline: dict[str, Any] | None, now: dict[str, Any] | No
     return moved
 
 
+def _requirement_statuses(record: dict[str, Any] | None) -> dict[str, str | None]:
+    design = (record or {}).get("design") or {}
+    return {str(entry.get("id")): entry.get("status")
+            for entry in design.get("requirements") or [] if isinstance(entry, dict)}
+
+
+def compare_requirements(baseline: dict[str, Any] | None, now: dict[str, Any] | None
+                         ) -> list[dict[str, Any]]:
+    """The design requirements of two records whose status differs (one side's status is None
+    where the requirement is stated on the other side only), by id."""
+    before, after = _requirement_statuses(baseline), _requirement_statuses(now)
+    return [{"id": rid, "baseline": before.get(rid), "now": after.get(rid)}
+            for rid in sorted(set(before) | set(after)) if before.get(rid) != after.get(rid)]
+
+
 def _runs_with_baselines(session: Session, batch_id: str) -> list[Any]:
     """Every succeeded run of the batch with its baseline (see module notes), in one query.
 
@@ -250,12 +271,45 @@ def compute_drift(session: Session, batch_id: str) -> list[dict[str, Any]]:
     for run_id, case_id, record, document, baseline_id, baseline_record in \
             _runs_with_baselines(session, batch_id):
         moved = compare_quantities(baseline_record, record, drift_tolerance(document))
-        if moved:
+        changed = compare_requirements(baseline_record, record)
+        if moved or changed:
             drifted.append({"case_id": case_id, "run_id": run_id,
                             "baseline_run_id": baseline_id, "quantities": moved,
+                            "requirements": changed,
                             "baseline_versions": _versions(baseline_record),
                             "now_versions": _versions(record)})
     return drifted
+
+
+def _verdict_counts(session: Session, batch_id: str) -> dict[str, int]:
+    """How many succeeded runs of the batch passed every check, and how many failed one."""
+    verdict = Run.record["verdict"].as_string()
+    rows = session.execute(select(verdict, func.count())
+                           .where(Run.batch_id == batch_id,
+                                  Run.status == RunStatus.SUCCEEDED.value)
+                           .group_by(verdict)).all()
+    counts = {"pass": 0, "fail": 0}
+    for name, number in rows:
+        counts["pass" if name == "pass" else "fail"] += number
+    return counts
+
+
+def batch_summary(document: dict[str, Any]) -> str:
+    """The batch in one sentence; "within tolerance" only when every run succeeded, passed
+    every check and nothing drifted."""
+    failed = document["counts"].get(RunStatus.FAILED.value, 0)
+    unverified = (document.get("verdicts") or {}).get("fail", 0)
+    drifted = len(document.get("drifted") or [])
+    design = sum(1 for d in document.get("drifted") or [] if d.get("requirements"))
+    if document["status"] != "finished":
+        return "not finished"
+    if not (failed or unverified or drifted):
+        return WITHIN_TOLERANCE
+    parts = [f"{failed} run(s) failed", f"{drifted} case(s) drifted"]
+    if design:
+        parts.append(f"{design} of them with a changed design requirement status")
+    parts.append(f"{unverified} run(s) failed a check")
+    return ", ".join(parts)
 
 
 def get_batch(store: Store, batch_id: str) -> dict[str, Any]:
@@ -282,6 +336,7 @@ def _read_batch(store: Store, batch_id: str) -> tuple[dict[str, Any], bool]:
             "batch_id": batch.id, "status": status, "selector": batch.selector,
             "created_by": batch.created_by, "created_at": batch.created_at.isoformat(),
             "finished_at": batch.finished_at.isoformat() if batch.finished_at else None,
-            "counts": counts, "run_ids": run_ids,
+            "counts": counts, "verdicts": _verdict_counts(session, batch_id),
+            "run_ids": run_ids,
             "drifted": list(batch.drift or []) if status == "finished" else []}
         return document, batch.status != "finished" and derived == "finished"

@@ -8,7 +8,7 @@ import time
 import click
 
 from service.audit import verify_chain
-from service.batches import get_batch, start_batch
+from service.batches import WITHIN_TOLERANCE, batch_summary, get_batch, start_batch
 from service.dispatch import make_dispatcher
 from service.errors import ValidationFailed
 from service.settings import dispatch_mode, settings_from_env
@@ -121,19 +121,19 @@ def _follow_batch(store, batch_id: str, total: int, poll_s: float = 1.0) -> None
 
 
 def _print_batch_summary(result: dict, seconds: float) -> None:
-    """The closing summary: counts by state, failed runs, drift, time taken; exit 1 on either."""
+    """The closing summary: counts by state, failed runs, runs that failed a check, drift of
+    figures and of design requirement statuses, time taken; exit 1 on any of them."""
     counts = ", ".join(f"{k} {v}" for k, v in result["counts"].items())
     click.echo(f"status {result['status']}: {counts}")
     for drift in result["drifted"]:
-        names = ", ".join(
-            f"{q['name']} {q['baseline']} -> {q['now']}" for q in drift["quantities"])
+        names = [f"{q['name']} {q['baseline']} -> {q['now']}" for q in drift["quantities"]]
+        names += [f"requirement {r['id']} {r['baseline'] or 'not stated'} -> "
+                  f"{r['now'] or 'not stated'}" for r in drift.get("requirements") or []]
         click.echo(f"DRIFT case {drift['case_id']} (run {drift['run_id']} vs "
-                   f"{drift['baseline_run_id']}): {names}")
-    failed, drifted = result["counts"]["failed"], len(result["drifted"])
+                   f"{drift['baseline_run_id']}): {', '.join(names)}")
     total = sum(result["counts"].values())
-    verdict = "all re-verified figures within tolerance" if not (failed or drifted) else \
-        f"{failed} run(s) failed, {drifted} case(s) drifted"
+    verdict = batch_summary(result)
     click.echo(f"summary: {total} run(s) in {seconds:.1f} s; {verdict}; "
                f"details at /ui/batches/{result['batch_id']}")
-    if failed or drifted:
+    if verdict != WITHIN_TOLERANCE:
         raise SystemExit(1)

@@ -29,6 +29,7 @@ from schemas.result import Decision, RunStatus
 from service.app import create_app, shutdown_app
 from service.audit import verify_chain
 from service.client import ApiError, Client
+from service.report.design_view import STATUS_WORDS, design_status
 from service.server import BackgroundServer
 from service.settings import database_url
 from service.store import Store
@@ -117,7 +118,8 @@ def run_demo(cases_dir: Traversable, reports_dir: Path, data_dir: Path,
                 report_path.write_text(engineer.report(run_id), encoding="utf-8")
                 rows.append([str(case.get("title", _slug(path)))[:60], case.get("geometry", "?"),
                              record.get("verdict") if record["status"] == RunStatus.SUCCEEDED
-                             else "RUN FAILED", _figure(record),
+                             else "RUN FAILED",
+                             STATUS_WORDS[design_status(record)], _figure(record),
                              f"{passed}/{len(checks)}", str(len(record.get("warnings") or []))])
             engineer.close()
             reviewer.close()
@@ -127,8 +129,8 @@ def run_demo(cases_dir: Traversable, reports_dir: Path, data_dir: Path,
     finally:
         shutdown_app(app)
     echo("")
-    echo(_table(rows, ["case", "geometry", "verdict", "key figure", "checks passed",
-                       "warnings"]))
+    echo(_table(rows, ["case", "geometry", "verdict", "design requirements", "key figure",
+                       "checks passed", "warnings"]))
     echo("")
     for line in failures:
         echo(f"failed run: {line}", err=True)

@@ -9,14 +9,14 @@ from typing import Any
 
 from sqlalchemy import false, func, select
 
-from schemas.result import VERDICTS, RunStatus
+from schemas.result import DESIGN_STATUSES, VERDICTS, RunStatus
 from service.store import Store
 from service.store.models import RUN_STATES, Batch, Case, CaseTag, Run, Signoff
 
 #: Rows in one page of a listing.
 PAGE_SIZE = 50
 
-__all__ = ["PAGE_SIZE", "VERDICTS", "RunFilters", "all_tags", "batch_runs",
+__all__ = ["DESIGN_STATUSES", "PAGE_SIZE", "VERDICTS", "RunFilters", "all_tags", "batch_runs",
            "case_runs_with_figures", "drifted_run_ids", "list_batches", "list_runs"]
 
 
@@ -25,6 +25,7 @@ class RunFilters:
     """The runs list's filters; None means "any"."""
 
     verdict: str | None = None   # pass | fail
+    design: str | None = None    # met | not_met | indeterminate | none_stated
     status: str | None = None    # queued | running | succeeded | failed
     tag: str | None = None
     signed: bool | None = None
@@ -32,7 +33,7 @@ class RunFilters:
 
     def as_query(self) -> dict[str, str]:
         query = {}
-        for name in ("verdict", "status", "tag"):
+        for name in ("verdict", "design", "status", "tag"):
             if getattr(self, name):
                 query[name] = getattr(self, name)
         for name in ("signed", "drifted"):
@@ -49,19 +50,37 @@ def drifted_run_ids(store: Store) -> set[str]:
                 if isinstance(entry, dict)}
 
 
+#: The design verdict of a stored run, read from its record like the verdict (no column of its
+#: own); a record made before requirements existed has none, which reads as ``none_stated``.
+DESIGN_STATUS = Run.record[("design", "status")].as_string()
+
+
+def design_status_of(stored: str | None, run_status: str) -> str | None:
+    """The design status the runs list shows: None before the run finishes."""
+    if run_status not in (RunStatus.SUCCEEDED.value, RunStatus.FAILED.value):
+        return None
+    return stored if stored in DESIGN_STATUSES else "none_stated"
+
+
 def list_runs(store: Store, filters: RunFilters, *, offset: int = 0,
               limit: int = PAGE_SIZE) -> dict[str, Any]:
-    """A page of runs, newest first, with case title, verdict, sign-off and drift."""
+    """A page of runs, newest first, with case title, verdict, design status, sign-off and
+    drift."""
     drifted = drifted_run_ids(store)
     verdict = Run.record["verdict"].as_string()
     with store.transaction() as session:
         query = (select(Run.id, Run.case_id, Run.status, verdict, Run.submitted_by, Run.batch_id,
                         Run.created_at, Run.finished_at, Case.title, Case.tags,
-                        Signoff.decision, Signoff.reviewer)
+                        Signoff.decision, Signoff.reviewer, DESIGN_STATUS)
                  .join(Case, Case.id == Run.case_id)
                  .outerjoin(Signoff, Signoff.run_id == Run.id))
         if filters.verdict:
             query = query.where(Run.status == RunStatus.SUCCEEDED.value, verdict == filters.verdict)
+        if filters.design:
+            finished = Run.status.in_((RunStatus.SUCCEEDED.value, RunStatus.FAILED.value))
+            stated = (DESIGN_STATUS.is_(None) | (DESIGN_STATUS == filters.design)
+                      if filters.design == "none_stated" else DESIGN_STATUS == filters.design)
+            query = query.where(finished, stated)
         if filters.status:
             query = query.where(Run.status == filters.status)
         if filters.tag:
@@ -80,7 +99,8 @@ def list_runs(store: Store, filters: RunFilters, *, offset: int = 0,
     items = [{"run_id": r[0], "case_id": r[1], "status": r[2], "verdict": r[3],
               "submitted_by": r[4], "batch_id": r[5], "created_at": r[6], "finished_at": r[7],
               "title": r[8], "tags": list(r[9] or []), "decision": r[10], "reviewer": r[11],
-              "drifted": r[0] in drifted} for r in rows]
+              "drifted": r[0] in drifted, "design": design_status_of(r[12], r[2])}
+             for r in rows]
     return {"items": items, "total": total, "offset": offset, "limit": limit}
 
 
@@ -101,6 +121,8 @@ def case_runs_with_figures(store: Store, case_id: str) -> list[dict[str, Any]]:
             signoff = run.signoffs[0] if run.signoffs else None
             result.append({
                 "run_id": run.id, "status": run.status, "verdict": record.get("verdict"),
+                "design": design_status_of(
+                    (record.get("design") or {}).get("status"), run.status),
                 "created_at": run.created_at, "batch_id": run.batch_id,
                 "submitted_by": run.submitted_by, "error": run.error,
                 "quantities": record.get("quantities") or {},
@@ -133,9 +155,10 @@ def batch_runs(store: Store, batch_id: str) -> list[dict[str, Any]]:
     """The runs of one batch with their case titles, in the order they were queued."""
     with store.transaction() as session:
         rows = session.execute(select(Run.id, Run.case_id, Run.status,
-                                      Run.record["verdict"].as_string(), Case.title)
+                                      Run.record["verdict"].as_string(), Case.title,
+                                      DESIGN_STATUS)
                                .join(Case, Case.id == Run.case_id)
                                .where(Run.batch_id == batch_id)
                                .order_by(Run.created_at, Run.id)).all()
-    return [{"run_id": r[0], "case_id": r[1], "status": r[2], "verdict": r[3], "title": r[4]}
-            for r in rows]
+    return [{"run_id": r[0], "case_id": r[1], "status": r[2], "verdict": r[3], "title": r[4],
+             "design": design_status_of(r[5], r[2])} for r in rows]

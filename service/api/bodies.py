@@ -202,11 +202,20 @@ class DriftQuantitySchema(Schema):
     relative_change = fields.Float(allow_none=True)
 
 
+class DriftRequirementSchema(Schema):
+    """A design requirement whose status changed (null: not stated on that side)."""
+
+    id = fields.String(required=True)
+    baseline = fields.String(allow_none=True)
+    now = fields.String(allow_none=True)
+
+
 class DriftSchema(Schema):
     case_id = fields.String(required=True)
     run_id = fields.String(required=True)
     baseline_run_id = fields.String(required=True)
     quantities = fields.List(fields.Nested(DriftQuantitySchema), required=True)
+    requirements = fields.List(fields.Nested(DriftRequirementSchema))
     baseline_versions = fields.Dict()
     now_versions = fields.Dict()
 
@@ -220,6 +229,9 @@ class BatchSchema(Schema):
     created_at = fields.String(required=True)
     finished_at = fields.String(allow_none=True)
     counts = fields.Dict(keys=fields.String(), values=fields.Integer(), required=True)
+    verdicts = fields.Dict(keys=fields.String(), values=fields.Integer(),
+                           metadata={"description": "succeeded runs that passed every check "
+                                                    "(pass) and that failed one (fail)"})
     run_ids = fields.List(fields.String(), required=True)
     drifted = fields.List(fields.Nested(DriftSchema), required=True)
 

@@ -2,7 +2,8 @@
 
 :func:`report_context` gathers everything the report shows (inputs as given beside SI, the
 layer-stack drawing, the profile and release plots as inline SVG, quantities, checks, methods,
-warnings, provenance, sign-off); ``report_body.html`` lays it out, both in the standalone report
+warnings, provenance, sign-off; the two verdicts apart and the design blocks from
+:mod:`service.report.html_design`); ``report_body.html`` lays it out, both in the standalone report
 (:func:`render_report`: ``GET /v1/runs/{id}/report`` and the files ``fluxproof demo`` writes) and
 in the run page under ``/ui/``.
 """
@@ -18,6 +19,7 @@ from flask import render_template
 from markupsafe import Markup
 
 import schemas
+from service.report.html_design import design_context
 from service.report.layer_stack import layer_stack_svg
 from service.report.numbers import (
     length_markup,
@@ -255,6 +257,7 @@ def report_context(record: dict[str, Any], document: dict[str, Any]) -> dict[str
         "length": length_markup,
         "layer_names": [str(layer.get("name") or f"layer {i + 1}")
                         for i, layer in enumerate((normalised or {}).get("layers") or [])],
+        **design_context(record, document),
     }
 
 

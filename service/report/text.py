@@ -6,6 +6,15 @@ from collections.abc import Iterator
 
 from schemas.result import RunStatus
 from service.report.numbers import readable_time
+from service.report.text_design import (
+    design_verdict_line,
+    headline_lines,
+    limit_lines,
+    requirement_lines,
+    sweep_lines,
+    uncertainty_lines,
+    verdict_lines,
+)
 
 RULE = "-" * 78
 
@@ -54,13 +63,18 @@ def _input_rows(original, normalised, path: str = "") -> Iterator[tuple[str, str
 
 
 def render_text(record: dict, case: dict) -> str:
-    """The readable report: inputs (as given and SI), quantities, checks, verdict, caution."""
+    """The readable report: the two verdicts (calculation verified, design requirements met)
+    and the required quantities first, then inputs (as given and SI), quantities, the design
+    blocks, checks, verdict, caution."""
     lines: list[str] = []
     add = lines.append
     add(f"fluxproof check record — {case.get('title', '(untitled)')}")
     if case.get("reference"):
         add(f"reference: {case['reference']}")
     add(f"case sha256: {record.get('case_sha256')}")
+    add(RULE)
+    lines.extend(verdict_lines(record))
+    lines.extend(headline_lines(record, case))
     add(RULE)
     add("Inputs (as given → SI)")
     for path, given, si in _input_rows(case, record.get("inputs") or {}):
@@ -92,6 +106,12 @@ def render_text(record: dict, case: dict) -> str:
         add(RULE)
         add(format_minimum_table(record))
     add(RULE)
+    lines.extend(requirement_lines(record, case))
+    for block in (uncertainty_lines(record), limit_lines(record), sweep_lines(record)):
+        if block:
+            add(RULE)
+            lines.extend(block)
+    add(RULE)
     add("Methods")
     for m in record.get("methods", []):
         add(f"  {m['role']:<12} {m['name']}")
@@ -115,8 +135,9 @@ def render_text(record: dict, case: dict) -> str:
     add(f"  {prov.get('worker', '')}  {prov.get('started_at', '')} → {prov.get('finished_at', '')}")
     add(RULE)
     passed = sum(1 for c in record.get("checks", []) if c["passed"])
-    add(f"VERDICT: {str(record.get('verdict')).upper()}  ({passed}/{len(record.get('checks', []))}"
-        " checks passed)")
+    add(f"CALCULATION VERDICT: {str(record.get('verdict')).upper()}  "
+        f"({passed}/{len(record.get('checks', []))} checks passed)")
+    add(design_verdict_line(record))
     add(f"CAUTION: {record.get('caution', '')}")
     return "\n".join(lines)
 

@@ -44,6 +44,7 @@ def parse_filters(args: Any) -> tuple[listing.RunFilters, list[dict[str, str]]]:
 
     tag = (args.get("tag") or "").strip() or None
     filters = listing.RunFilters(verdict=choice("verdict", listing.VERDICTS),
+                                 design=choice("design", listing.DESIGN_STATUSES),
                                  status=choice("status", RUN_STATES), tag=tag,
                                  signed=yes_no("signed"), drifted=yes_no("drifted"))
     return filters, errors
@@ -58,7 +59,8 @@ def runs():
     page = listing.list_runs(store, filters, offset=offset)
     return render_template("ui_runs.html", page=page, filters=filters, errors=errors,
                            tags=listing.all_tags(store), states=RUN_STATES,
-                           verdicts=listing.VERDICTS, query=filters.as_query(),
+                           verdicts=listing.VERDICTS, design_statuses=listing.DESIGN_STATUSES,
+                           query=filters.as_query(),
                            page_size=listing.PAGE_SIZE), 422 if errors else 200
 
 

@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import json
+import math
 from pathlib import Path
 
 import jsonschema
@@ -108,3 +109,44 @@ def test_cli_invalid_input_exit_2_without_traceback(tmp_path):
 
     result = runner.invoke(main, ["check", str(tmp_path / "missing.json")])
     assert result.exit_code == 2
+
+
+def test_cli_prints_both_verdicts_and_the_requirements_with_readable_units(tmp_path):
+    """A sealed-centre slab with first-order uptake has its minimum at the sealed face,
+    C_s / cosh(phi), phi = L sqrt(k/D) (E.W. Thiele, Ind. Eng. Chem. 31 (1939) 916; J. Crank,
+    The Mathematics of Diffusion, 2nd ed., 1975, §14.2): 0.4591 mol/m^3 here. One requirement
+    above it is missed, one below it is met; the calculation's verdict stays pass."""
+    c_min = 1.0 / math.cosh(200e-6 * math.sqrt(0.05 / 1e-9))
+    assert f"{c_min:.4g}" == "0.4591"
+    case = _case(requirements=[
+        {"id": "OX-1", "quantity": "concentration_min", "layer": "gel",
+         "at_least": "600 umol/L", "source": "design input OX-1"},
+        {"id": "OX-2", "quantity": "concentration_min", "at_least": "0.3 mol/m^3"},
+    ])
+    path = tmp_path / "required.json"
+    path.write_text(json.dumps(case))
+    result = CliRunner().invoke(main, ["check", str(path)])
+    assert result.exit_code == 0, result.output  # the calculation is verified
+    text = result.output
+    assert "[✓] Calculation verified: yes" in text
+    assert "[✗] Design requirements met: NO — requirement not met (1 of 2 not met: OX-1)" in text
+    assert "DESIGN REQUIREMENTS: NOT MET" in text and "CALCULATION VERDICT: PASS" in text
+    head = text[:text.index("Inputs (as given")]
+    assert head.index("OX-1 NOT MET") < head.index("OX-2 met")  # headline, missed first
+    assert "concentration_min [gel] = 0.4591 mol/m^3 (459.1 µmol/L)" in head
+    assert "required ≥ 0.6 mol/m^3 (600 µmol/L)" in head
+    assert "source      design input OX-1" in text and "CAUTION:" in text
+
+    case["requirements"][0]["at_least"] = "400 umol/L"  # now below the minimum: met
+    path.write_text(json.dumps(case))
+    met = CliRunner().invoke(main, ["check", str(path)]).output
+    assert "[✓] Design requirements met: yes (all 2 requirement(s) met)" in met
+    assert "NOT MET" not in met and "DESIGN REQUIREMENTS: MET" in met
+
+
+def test_cli_without_requirements_says_none_are_stated(tmp_path):
+    path = tmp_path / "plain.json"
+    path.write_text(json.dumps(_case()))
+    text = CliRunner().invoke(main, ["check", str(path)]).output
+    assert "Design requirements met: no design requirements stated" in text
+    assert "DESIGN REQUIREMENTS: NONE STATED" in text

@@ -140,6 +140,7 @@ def test_demo_prints_verdicts_writes_reports_and_the_caution(tmp_path, data_dir,
     assert result.exit_code == 0, result.output
     assert "demo test case 0" in result.output and "demo test case 1" in result.output
     assert "flux_outer = 2e-06" in result.output and "1/1" in result.output
+    assert "design requirements" in result.output and "none stated" in result.output
     assert f"HTML reports written to {reports}" in result.output
     assert ("support, but do not replace, design verification testing and qualified "
             "independent review; local regulations and licensed practice govern") in result.output
