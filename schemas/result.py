@@ -285,6 +285,74 @@ class DesignSchema(OpenSchema):
     requirements = fields.List(fields.Nested(RequirementResultSchema), required=True)
 
 
+class CoverageSchema(OpenSchema):
+    """One figure's distribution under the input uncertainty (SI)."""
+
+    mean = PlainNumber(required=True, allow_none=True)
+    standard_uncertainty = PlainNumber(required=True, allow_none=True)
+    interval = _numbers(required=True, metadata={
+        "description": "probabilistically symmetric coverage interval [low, high]"})
+    coverage = PlainNumber(required=True)
+    unit = fields.String()
+
+
+class ProbabilityMetSchema(OpenSchema):
+    """The probability that a requirement is met under the input uncertainty."""
+
+    probability_met = PlainNumber(required=True, allow_none=True)
+    standard_error = PlainNumber(required=True, allow_none=True)
+
+
+class SubsetVerificationSchema(OpenSchema):
+    """The trials checked in full: worst for each requirement, the median, random ones."""
+
+    trials_checked = PlainInteger(required=True)
+    all_passed = StrictBoolean(required=True)
+    largest_numerical_uncertainty = fields.Dict(keys=fields.String(), values=PlainNumber())
+    numerical_small_against_spread = StrictBoolean()
+
+
+class UncertaintyResultSchema(OpenSchema):
+    """Input uncertainty propagated by Monte Carlo (JCGM 101:2008)."""
+
+    trials = PlainInteger()
+    seed = PlainInteger()
+    sampler = fields.String()
+    converged = StrictBoolean()
+    quantities = fields.Dict(keys=fields.String(), values=fields.Nested(CoverageSchema))
+    requirements = fields.Dict(keys=fields.String(), values=fields.Nested(ProbabilityMetSchema))
+    sensitivity = fields.Dict(keys=fields.String(), values=fields.Dict(), metadata={
+        "description": "per figure, per input field: elasticity, first_index, total_index"})
+    verification = fields.Nested(SubsetVerificationSchema)
+    error = fields.String(metadata={"description": "why the run could not be made"})
+
+
+class DesignLimitResultSchema(OpenSchema):
+    """The value of one input at which a requirement's margin is zero (SI)."""
+
+    vary = fields.String()
+    value = PlainNumber(allow_none=True)
+    unit = fields.String()
+    requirement = fields.String()
+    met_side = fields.String(allow_none=True, validate=validate.OneOf(["below", "above"]))
+    bracket = _numbers()
+    verdict = fields.String(allow_none=True, validate=validate.OneOf(VERDICTS))
+    reason = fields.String()
+    error = fields.String()
+
+
+class SweepResultSchema(OpenSchema):
+    """Full checks at several values of one input (SI)."""
+
+    vary = fields.String()
+    unit = fields.String()
+    values = _numbers()
+    quantities = fields.Dict(keys=fields.String(), values=_numbers())
+    requirements = fields.Dict(keys=fields.String(), values=fields.List(fields.String()))
+    verdicts = fields.List(fields.String(validate=validate.OneOf(VERDICTS)))
+    error = fields.String()
+
+
 class ResultSchema(StrictSchema):
     """A check record: figures, checks, warnings and provenance of one run of one case."""
 
@@ -302,11 +370,9 @@ class ResultSchema(StrictSchema):
     warnings = fields.List(fields.String())
     provenance = fields.Nested(ProvenanceSchema)
     design = fields.Nested(DesignSchema)
-    uncertainty = fields.Dict(metadata={"description": "input uncertainty by Monte Carlo "
-                                                       "(JCGM 101:2008)"})
-    design_limit = fields.Dict(metadata={"description": "the value of one input at which a "
-                                                        "requirement's margin is zero"})
-    sweep = fields.Dict(metadata={"description": "full checks at several values of one input"})
+    uncertainty = fields.Nested(UncertaintyResultSchema)
+    design_limit = fields.Nested(DesignLimitResultSchema)
+    sweep = fields.Nested(SweepResultSchema)
     inputs = fields.Dict()
     caution = fields.String()
 

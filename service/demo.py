@@ -29,7 +29,7 @@ from schemas.result import Decision, RunStatus
 from service.app import create_app, shutdown_app
 from service.audit import verify_chain
 from service.client import ApiError, Client
-from service.report.design_view import STATUS_WORDS, design_status
+from service.report.design_view import STATUS_WORDS, design_status, headline_requirements
 from service.server import BackgroundServer
 from service.settings import database_url
 from service.store import Store
@@ -59,7 +59,11 @@ def _slug(path: Traversable) -> str:
     return re.sub(r"[^A-Za-z0-9_.-]+", "-", path.name.removesuffix(".json"))
 
 
-def _figure(record: dict[str, Any]) -> str:
+def _figure(record: dict[str, Any], case: dict[str, Any]) -> str:
+    headline = headline_requirements(record, case)
+    if headline:  # the first required quantity (a missed one first)
+        row = headline[0]
+        return f"{row.what} = {row.readable_value or row.value}"
     quantities = record.get("quantities") or {}
     # The outer-face flux, unless that face is sealed (then the inner one), else the release.
     for name in ("flux_outer", "flux_inner", "t50", "t90", "time_lag"):
@@ -111,15 +115,23 @@ def run_demo(cases_dir: Traversable, reports_dir: Path, data_dir: Path,
                 if record["status"] != RunStatus.SUCCEEDED:
                     failed += 1
                     failures.append(f"{path.name}: {record.get('error')}")
-                elif record.get("verdict") == "pass":
+                elif record.get("verdict") == "pass" and design_status(record) in (
+                        "met", "none_stated"):
                     reviewer.signoff(run_id, Decision.APPROVED.value,
-                                     "demo: every check passed; approved for the demonstration")
+                                     "demo: every check passed and every stated requirement is "
+                                     "met; approved for the demonstration")
+                elif record.get("verdict") == "pass":
+                    missed = [r["id"] for r in (record.get("design") or {}).get(
+                        "requirements", []) if r.get("status") != "met"]
+                    reviewer.signoff(run_id, Decision.REJECTED.value,
+                                     "demo: the calculation is verified but the design does not "
+                                     f"meet {', '.join(missed)}; rejected for redesign")
                 report_path = reports_dir / f"{_slug(path)}.html"
                 report_path.write_text(engineer.report(run_id), encoding="utf-8")
                 rows.append([str(case.get("title", _slug(path)))[:60], case.get("geometry", "?"),
                              record.get("verdict") if record["status"] == RunStatus.SUCCEEDED
                              else "RUN FAILED",
-                             STATUS_WORDS[design_status(record)], _figure(record),
+                             STATUS_WORDS[design_status(record)], _figure(record, case),
                              f"{passed}/{len(checks)}", str(len(record.get("warnings") or []))])
             engineer.close()
             reviewer.close()
@@ -141,7 +153,8 @@ def run_demo(cases_dir: Traversable, reports_dir: Path, data_dir: Path,
         audit_store.dispose()
     echo(f"audit chain: {'intact' if report.ok else 'BROKEN'} ({report.events} events); "
          f"runs that passed were signed off by {REVIEWER}, a different identity from the "
-         f"submitter {ENGINEER}")
+         f"submitter {ENGINEER}: approved where every stated requirement is met, rejected "
+         "where the design misses one")
     echo(f"HTML reports written to {reports_dir}/")
     echo(CAUTION_LINE)
     if failed:
