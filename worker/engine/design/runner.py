@@ -459,6 +459,7 @@ def run_design(problem: Problem, independent: Problem | None, request: DesignReq
             blocks[name] = run()
         except (ValueError, ArithmeticError, np.linalg.LinAlgError) as exc:
             # Recorded in the block, never silently dropped: the record says what failed.
-            blocks[name] = {"error": f"{type(exc).__name__}: {exc}"}
+            error = f"{type(exc).__name__}: {exc}"
+            blocks[name] = {"error": error, "reason": f"not computed: {error}"}
     return blocks
 
