@@ -198,6 +198,7 @@ class _Grid:
         self.km = self.per_cell(trials.km, 1.0)[self.mm]
         self.mm_load = (self.volumes * vmax)[self.mm]
         self.linear_diagonal = self.volumes * self.first_order
+        self.first_order_any = bool(np.any(self.first_order > 0.0))
         zero_order = self.per_cell(trials.zero_order, 0.0)
         self.zero_cells = zero_order > 0.0
         self.zero_index = np.flatnonzero(self.zero_cells)
@@ -224,7 +225,10 @@ class _Grid:
     def unconstrained(self, c: np.ndarray, smoothing: np.ndarray | None = None
                       ) -> tuple[np.ndarray, np.ndarray]:
         """``fv_steady._Balance.unconstrained``; ``smoothing``: eps of each zero-order cell."""
-        value = self.operator.apply(c) - self.operator.rhs + self.linear_diagonal * c
+        value = self.operator.apply(c)
+        value -= self.operator.rhs
+        if self.first_order_any:
+            value += self.linear_diagonal * c
         slope = self.linear_diagonal.copy()
         if self.mm.size:
             cm = c[self.mm]
@@ -232,7 +236,8 @@ class _Grid:
             value[self.mm] += self.mm_load * cm / denominator
             slope[self.mm] += self.mm_load * self.km / denominator**2
         if smoothing is None:
-            value += self.zero_load
+            if self.zero_index.size:
+                value += self.zero_load
         else:
             z = self.zero_index
             cz, eps = c[z], smoothing
@@ -316,13 +321,15 @@ def _newton_active_set(grid: _Grid, c: np.ndarray, active: np.ndarray,
         c, f, slope, norm = trial, f_trial, slope_trial, norm_trial
         size = np.maximum(grid.per_trial_max(c), _TINY)
         settled = update <= update_rtol * size
-        limit = residual_rtol * grid.scale(c)
+        if not np.any(~done & (settled | ~nonlinear)):
+            continue
+        limit = residual_rtol * grid.scale(c)  # as fv_steady: once the update is small
         # a linear balance (no Michaelis-Menten cell) is solved by one step: its residual
         # test alone says so
         newton_done = ~done & (norm <= limit) & (settled | ~nonlinear)
         if not newton_done.any():
             continue
-        if smoothing is not None:
+        if smoothing is not None or not grid.zero_index.size:
             done |= newton_done
             if done.all():
                 break
@@ -411,19 +418,25 @@ def _face_flux_density(grid: _Grid, c: np.ndarray, faces: np.ndarray) -> np.ndar
     return np.divide(q, areas, out=np.zeros_like(q), where=areas > 0.0)
 
 
-def _grid_figures(grid: _Grid, c: np.ndarray, active: np.ndarray) -> _GridFigures:
-    unconstrained, _ = grid.unconstrained(c)
-    achieved = grid.consumption(c) + grid.zero_load - np.where(active, unconstrained, 0.0)
+def _achieved(grid: _Grid, c: np.ndarray, active: np.ndarray) -> np.ndarray:
+    """The consumption V R each cell achieves (a depleted cell: its live part)."""
+    achieved = grid.consumption(c)
+    if grid.zero_index.size:
+        unconstrained, _ = grid.unconstrained(c)
+        achieved += grid.zero_load - np.where(active, unconstrained, 0.0)
+    return achieved
+
+
+def _grid_figures(grid: _Grid, c: np.ndarray, achieved: np.ndarray) -> _GridFigures:
     return _GridFigures(_face_flux_density(grid, c, grid.firsts),
                         _face_flux_density(grid, c, grid.lasts),
                         np.add.reduceat(achieved, grid.firsts))
 
 
-def _fronts(grid: _Grid, c: np.ndarray, active: np.ndarray) -> np.ndarray:
+def _fronts(grid: _Grid, c: np.ndarray, active: np.ndarray, achieved: np.ndarray
+            ) -> np.ndarray:
     """``fv_steady._depletion_fronts`` of every trial, the first (innermost) one; NaN without."""
     n_cells, member = c.size, grid.member
-    unconstrained, _ = grid.unconstrained(c)
-    achieved = grid.consumption(c) + grid.zero_load - np.where(active, unconstrained, 0.0)
     cells = np.flatnonzero(active)
     west_live = np.zeros(cells.size, dtype=bool)
     east_live = np.zeros(cells.size, dtype=bool)
@@ -500,7 +513,8 @@ def solve_trials(view: Problem, n: int) -> TrialFigures:
             c, active, done = _newton_active_set(grid, c, active)
         solved &= done & np.isfinite(np.add.reduceat(c, grid.firsts))
         grids.append(grid)
-        figures.append(_grid_figures(grid, c, active))
+        achieved = _achieved(grid, c, active)
+        figures.append(_grid_figures(grid, c, achieved))
     fine = grids[-1]
     assert c is not None and active is not None
     coarse_to_fine = figures[::-1]
@@ -516,5 +530,5 @@ def solve_trials(view: Problem, n: int) -> TrialFigures:
         flux_inner=flux_inner + nan, flux_outer=best("flux_outer") + nan,
         consumption=best("consumption") + nan, surface_inner=surface_inner + nan,
         surface_outer=surface_outer + nan, layer_min=low + nan[:, None],
-        layer_max=high + nan[:, None], depletion_front=_fronts(fine, c, active) + nan,
+        layer_max=high + nan[:, None], depletion_front=_fronts(fine, c, active, achieved) + nan,
         solved=solved)

@@ -22,15 +22,21 @@ routes that check them. Methods, by case:
   points (41 per layer) and refine the sampled extreme by bisection on dC/dr between its
   neighbours (the stationary point of the closed form). A trial in which a zero-order layer
   would fall below zero (a depleted zone) is solved again alone, as below.
-* steady otherwise (Michaelis-Menten, zero order with a depleted zone): trial by trial,
-  ``steady_check.primary_figures`` (the exact depletion solution where it applies, else the
-  finite volumes' three-grid study with Richardson extrapolation, as the full check).
+* steady otherwise (Michaelis-Menten; zero order with a depleted zone in a layered body): the
+  finite volumes of every trial at once (``worker.engine.fv_trials.solve_trials``: each trial's
+  own three meshes, Newton and the active set per trial, one stacked tridiagonal solve per
+  iteration, Richardson extrapolation as the full check), in chunks of ``FV_CHUNK_CELLS``
+  fine-grid cells; a trial that does not converge there, and a single zero-order layer with a
+  depleted zone (the exact depletion solution), trial by trial through
+  ``steady_check.primary_figures``.
 * transient: ``transient_trials`` (the series of a unit body rescaled for all trials where
   that is exact, else the series or the full transient check trial by trial).
 
-Cost measured on the shared 2-core machine (``tests/benchmarks/test_bench_trials.py``): about
-20 us per trial batched (closed form), 5 us per trial (scaled series), 2 ms per trial for
-Michaelis-Menten trial by trial, about 0.15 s per trial for the full transient check.
+Cost measured on the shared 2-core machine (``tests/benchmarks/test_bench_trials.py``,
+``test_bench_design.py``): about 10-20 us per trial batched (closed form), 5 us per trial
+(scaled series), about 0.33 ms per trial for the two-layer Michaelis-Menten slab by the batched
+finite volumes (1 ms trial by trial), 0.67 ms for the islet capsule with a depleted core
+(5.4 ms trial by trial), about 0.15 s per trial for the full transient check.
 """
 
 from __future__ import annotations
@@ -62,7 +68,7 @@ __all__ = ["TrialModel"]
 
 #: Fine-grid cells of the trials solved together by the batched finite volumes: a chunk's
 #: arrays stay a few megabytes, whatever the number of trials.
-FV_CHUNK_CELLS = 2**17
+FV_CHUNK_CELLS = 2**16
 #: Halvings of the bracket of a sampled extreme (a fortieth of the layer): far below round-off.
 BISECTION_STEPS = 60
 
@@ -92,8 +98,8 @@ class TrialModel:
 
     @property
     def method(self) -> str:
-        """How the trials are solved: ``batched closed form``, ``scaled series`` (all trials
-        at once) or ``trial by trial``."""
+        """How the trials are solved: ``batched closed form``, ``batched finite volumes``,
+        ``scaled series`` (all trials at once) or ``trial by trial``."""
         if self._batched:
             return "batched closed form"
         if self._finite_volumes:
