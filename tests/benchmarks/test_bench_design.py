@@ -31,8 +31,12 @@ from tests.benchmarks.test_bench_trials import _bvp_flux, _series_events, _two_l
 from worker.engine.design import runner as runner_module
 from worker.engine.design.monte_carlo import Bound, propagate
 from worker.engine.design.paths import resolve, with_values
-from worker.engine.design.request import DesignRequest, LimitRequest, UncertainInput, \
-    UncertaintyRequest
+from worker.engine.design.request import (
+    DesignRequest,
+    LimitRequest,
+    UncertainInput,
+    UncertaintyRequest,
+)
 from worker.engine.design.requirements import Requirement
 from worker.engine.design.runner import DesignRunner
 from worker.engine.design.sampling import InputDistribution, UncertaintySpec
@@ -147,8 +151,8 @@ def _uncertainty_row(label, problem, paths, requirement, loop_one, columns, monk
     loop_total = per_trial * TRIALS
     print(f"\n{label}: {block['trials']} trials, {model.method}; "
           f"{block['verification']['trials_checked']} full checks in the verification subset")
-    print(f"  DesignRunner.uncertainty {elapsed:7.2f} s   plain loop {per_trial * 1e3:7.2f} ms/trial"
-          f" x {TRIALS} = {loop_total:8.1f} s   ratio {loop_total / elapsed:6.0f}x"
+    print(f"  DesignRunner.uncertainty {elapsed:7.2f} s   plain loop {per_trial * 1e3:7.2f} "
+          f"ms/trial x {TRIALS} = {loop_total:8.1f} s   ratio {loop_total / elapsed:6.0f}x"
           f" (trial model alone {loop_total / clock.parts['trial model']:6.0f}x)")
     print(f"  loop vs trial model, largest relative difference {difference:.1e}")
     rest = elapsed - sum(clock.parts.values())
