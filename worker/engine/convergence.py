@@ -66,6 +66,7 @@ __all__ = [
     "SAFETY_FACTOR",
     "STUDIED_QUANTITIES",
     "GridStudy",
+    "extrapolated_or_fine",
     "grid_study",
     "refined_solutions",
     "run_grid_study",
@@ -256,6 +257,34 @@ def grid_study(
         kind = "monotonic"
         message = f"monotonic convergence, apparent order {p:.3g}"
     return GridStudy(phi, r21, r32, p, extrapolated, e_a, e_ext, gci, kind, message, iterations)
+
+
+def extrapolated_or_fine(values: np.ndarray, ratio: float,
+                         roundoff_rtol: float = ROUNDOFF_RTOL) -> np.ndarray:
+    """The best estimate of many three-grid studies with one constant refinement ratio: the
+    Richardson-extrapolated value where :func:`grid_study` finds monotonic convergence, else
+    the fine-grid value (what ``steady_check`` reports of a study).
+
+    ``values`` has shape (n, 3), fine, medium, coarse in each row; ``ratio`` is r21 = r32 > 1.
+    With equal ratios Celik's eq. (3) needs no fixed-point iteration: p = |ln|eps32/eps21|| /
+    ln r. The branches are :func:`grid_study`'s, row by row: a non-finite value, differences at
+    round-off, a difference exactly zero, a sign change (oscillatory) or differences that do
+    not shrink (|eps32/eps21| <= 1) all give the fine value; a non-finite extrapolation too.
+    """
+    values = np.asarray(values, dtype=float)
+    phi1, phi2, phi3 = values[:, 0], values[:, 1], values[:, 2]
+    with np.errstate(all="ignore"):
+        eps21, eps32 = phi2 - phi1, phi3 - phi2
+        band = roundoff_rtol * np.max(np.abs(values), axis=1)
+        roundoff = (np.abs(eps21) <= band) & (np.abs(eps32) <= band)
+        ratio_32_21 = eps32 / eps21
+        monotonic = (np.all(np.isfinite(values), axis=1) & ~roundoff & (eps21 != 0.0)
+                     & (eps32 != 0.0) & (ratio_32_21 > 1.0))
+        p = np.abs(np.log(np.abs(ratio_32_21))) / math.log(ratio)
+        factor = ratio**p
+        extrapolated = (factor * phi1 - phi2) / (factor - 1.0)
+    usable = monotonic & np.isfinite(p) & (p > 0.0) & np.isfinite(extrapolated)
+    return np.where(usable, extrapolated, phi1)
 
 
 def refined_solutions(

@@ -88,12 +88,14 @@ __all__ = [
     "MeshStack",
     "NodalProfile",
     "ReactionTerms",
+    "assemble_blocks",
     "assemble_diffusion",
     "assemble_stack",
     "assemble_stack_operator",
     "boundary_concentration_scale",
     "build_mesh",
     "build_mesh_stack",
+    "cell_geometry",
     "default_cells_per_layer",
     "face_flux_densities",
     "layer_profiles",
@@ -367,7 +369,7 @@ def _spread(per_layer: Sequence[float], counts_list: Sequence[Sequence[int]],
     return np.array(values, dtype=float).repeat(np.array(repeats))
 
 
-def _cell_geometry(faces: np.ndarray, n: int):
+def cell_geometry(faces: np.ndarray, n: int):
     """Centres, face areas r^n, r^n-weighted volumes and west/east gaps of the cells between
     consecutive faces."""
     west_faces, east_faces = faces[:-1], faces[1:]
@@ -407,7 +409,7 @@ def build_mesh_stack(problem: Problem, cells: Sequence[Sequence[int] | int]) -> 
         faces[start] = bounds[-1]
         start += 1
     n = problem.exponent
-    centres, face_areas, volumes, west_gaps, east_gaps = _cell_geometry(faces, n)
+    centres, face_areas, volumes, west_gaps, east_gaps = cell_geometry(faces, n)
     diffusivity = _spread([ly.diffusivity for ly in layers], counts_list, math.inf)
     partition = _spread([ly.partition for ly in layers], counts_list, 1.0)
     return MeshStack(
@@ -501,7 +503,32 @@ def _assemble(problem: Problem, face_areas, volumes, centres, west_gaps, east_ga
     """Operator of the cells between consecutive faces; ``blocks`` are the (first cell, cells)
     of each mesh, whose first and last faces are boundary faces; ``spacers`` the cells between
     meshes (see ``MeshStack``)."""
-    n_cells = centres.size
+    firsts = np.array([first for first, _ in blocks], dtype=np.intp)
+    lasts = np.array([first + cells for first, cells in blocks], dtype=np.intp)
+    inner = np.array([_boundary_face(problem, "inner", float(face_areas[first]),
+                                     float(west_gaps[first]), float(d[first]))
+                      for first in firsts]).T
+    outer = np.array([_boundary_face(problem, "outer", float(face_areas[last]),
+                                     float(east_gaps[last - 1]), float(d[last - 1]))
+                      for last in lasts]).T
+    rhs_source = None if source is None else volumes * np.asarray(source(centres), dtype=float)
+    return assemble_blocks(face_areas, west_gaps, east_gaps, d, k, firsts, lasts,
+                           (inner[0], inner[1], inner[2]), (outer[0], outer[1], outer[2]),
+                           np.asarray(spacers, dtype=np.intp), rhs_source)
+
+
+def assemble_blocks(face_areas: np.ndarray, west_gaps: np.ndarray, east_gaps: np.ndarray,
+                    d: np.ndarray, k: np.ndarray, firsts: np.ndarray, lasts: np.ndarray,
+                    inner_faces: tuple, outer_faces: tuple, spacers: np.ndarray,
+                    source_terms: np.ndarray | None = None) -> DiffusionOperator:
+    """The operator of meshes laid end to end (one per block), each block's boundary faces
+    given: ``firsts``/``lasts`` the inner and outer face of each block (= its first cell and
+    one past its last cell), ``inner_faces``/``outer_faces`` the (conductance g, far value,
+    fixed flux into the body) of each block's faces (``BoundaryKind.fv_face``; scalars or one
+    per block), ``spacers`` the decoupled cells between blocks (identity rows), and
+    ``source_terms`` an optional ``V * S`` per cell. Shared by one problem's grid stack
+    (``MeshStack``) and by many trials of a case stacked (``worker.engine.fv_trials``)."""
+    n_cells = d.size
     dk = d * k
     west = np.empty(n_cells + 1)
     east = np.empty(n_cells + 1)
@@ -514,21 +541,14 @@ def _assemble(problem: Problem, face_areas, volumes, centres, west_gaps, east_ga
     np.divide(conductance, k[:-1], out=west[1:-1])
     np.divide(conductance, k[1:], out=east[1:-1])
 
-    for first, cells in blocks:
-        last = first + cells  # the outer face
-        g_in, far_in, fixed_in = _boundary_face(
-            problem, "inner", float(face_areas[first]), float(west_gaps[first]), float(d[first])
-        )
-        west[first] = 0.0
-        east[first] = g_in
-        constant[first] = g_in * far_in + fixed_in
-        g_out, far_out, fixed_out = _boundary_face(
-            problem, "outer", float(face_areas[last]), float(east_gaps[last - 1]),
-            float(d[last - 1])
-        )
-        west[last] = g_out
-        east[last] = 0.0
-        constant[last] = -g_out * far_out - fixed_out
+    g_in, far_in, fixed_in = inner_faces
+    west[firsts] = 0.0
+    east[firsts] = g_in
+    constant[firsts] = g_in * far_in + fixed_in
+    g_out, far_out, fixed_out = outer_faces
+    west[lasts] = g_out
+    east[lasts] = 0.0
+    constant[lasts] = -g_out * far_out - fixed_out
 
     ab = np.empty((3, n_cells))
     ab[0, 0] = 0.0
@@ -537,13 +557,13 @@ def _assemble(problem: Problem, face_areas, volumes, centres, west_gaps, east_ga
     np.negative(west[1:-1], out=ab[2, :-1])
     ab[2, -1] = 0.0
     rhs = constant[:-1] - constant[1:]
-    if source is not None:
-        rhs = rhs + volumes * np.asarray(source(centres), dtype=float)
-    for j in spacers:  # decoupled identity rows
-        ab[1, j] = 1.0
-        ab[0, j + 1] = 0.0
-        ab[2, j - 1] = 0.0
-        rhs[j] = 0.0
+    if source_terms is not None:
+        rhs = rhs + source_terms
+    if spacers.size:  # decoupled identity rows
+        ab[1, spacers] = 1.0
+        ab[0, spacers + 1] = 0.0
+        ab[2, spacers - 1] = 0.0
+        rhs[spacers] = 0.0
     return DiffusionOperator(
         ab=ab, rhs=rhs, west_coefficient=west, east_coefficient=east, face_constant=constant
     )

@@ -6,6 +6,8 @@ from __future__ import annotations
 import math
 from typing import TYPE_CHECKING, Any
 
+import numpy as np
+
 from worker.engine.boundaries.base import BoundaryKind, Combine, DepletionRole
 from worker.engine.parameters import Parameter
 from worker.engine.screening import TRADE_TABLE, outside
@@ -46,7 +48,7 @@ class MassTransferFace(BoundaryKind):
         self, boundary: Boundary, side: str, k_face: float, area: float, gap: float,
         diffusivity: float,
     ) -> tuple[float, float, float]:
-        if boundary.coefficient <= 0.0:
+        if np.any(np.asarray(boundary.coefficient) <= 0.0):  # may be an array over trials
             raise ValueError(
                 f"{side}_boundary.coefficient: expected a positive mass-transfer coefficient "
                 f"(m/s), got {boundary.coefficient!r}"

@@ -22,15 +22,21 @@ routes that check them. Methods, by case:
   points (41 per layer) and refine the sampled extreme by bisection on dC/dr between its
   neighbours (the stationary point of the closed form). A trial in which a zero-order layer
   would fall below zero (a depleted zone) is solved again alone, as below.
-* steady otherwise (Michaelis-Menten, zero order with a depleted zone): trial by trial,
-  ``steady_check.primary_figures`` (the exact depletion solution where it applies, else the
-  finite volumes' three-grid study with Richardson extrapolation, as the full check).
+* steady otherwise (Michaelis-Menten; zero order with a depleted zone in a layered body): the
+  finite volumes of every trial at once (``worker.engine.fv_trials.solve_trials``: each trial's
+  own three meshes, Newton and the active set per trial, one stacked tridiagonal solve per
+  iteration, Richardson extrapolation as the full check), in chunks of ``FV_CHUNK_CELLS``
+  fine-grid cells; a trial that does not converge there, and a single zero-order layer with a
+  depleted zone (the exact depletion solution), trial by trial through
+  ``steady_check.primary_figures``.
 * transient: ``transient_trials`` (the series of a unit body rescaled for all trials where
   that is exact, else the series or the full transient check trial by trial).
 
-Cost measured on the shared 2-core machine (``tests/benchmarks/test_bench_trials.py``): about
-20 us per trial batched (closed form), 5 us per trial (scaled series), 2 ms per trial for
-Michaelis-Menten trial by trial, about 0.15 s per trial for the full transient check.
+Cost measured on the shared 2-core machine (``tests/benchmarks/test_bench_trials.py``,
+``test_bench_design.py``): about 10-20 us per trial batched (closed form), 5 us per trial
+(scaled series), about 0.33 ms per trial for the two-layer Michaelis-Menten slab by the batched
+finite volumes (1 ms trial by trial), 0.67 ms for the islet capsule with a depleted core
+(5.4 ms trial by trial), about 0.15 s per trial for the full transient check.
 """
 
 from __future__ import annotations
@@ -42,6 +48,7 @@ from typing import Any
 import numpy as np
 
 from worker.engine.basis_functions import LayerBasis
+from worker.engine.convergence import REFINEMENT_RATIO
 from worker.engine.design.paths import (
     FieldRef,
     field_domain,
@@ -53,11 +60,15 @@ from worker.engine.design.paths import (
 from worker.engine.design.targets import Target, check_target
 from worker.engine.design.transient_trials import scaled_series_applies, transient_targets
 from worker.engine.exact_steady import EdgeForms, system_rows, unknown_columns
+from worker.engine.fv_trials import TrialFigures, cells_per_layer_trials, solve_trials
 from worker.engine.model import Problem
 from worker.engine.steady_check import PROFILE_POINTS_PER_LAYER, primary_figures
 
 __all__ = ["TrialModel"]
 
+#: Fine-grid cells of the trials solved together by the batched finite volumes: a chunk's
+#: arrays stay a few megabytes, whatever the number of trials.
+FV_CHUNK_CELLS = 2**16
 #: Halvings of the bracket of a sampled extreme (a fortieth of the layer): far below round-off.
 BISECTION_STEPS = 60
 
@@ -83,17 +94,24 @@ class TrialModel:
         self._domains = [field_domain(problem, f) for f in self.fields]
         self._nominal_x = np.array([value_of(problem, f) for f in self.fields], dtype=float)
         self._batched = _closed_form_batch_applies(problem, self.fields)
+        self._finite_volumes = _finite_volume_batch_applies(problem, self.fields)
 
     @property
     def method(self) -> str:
-        """How the trials are solved: ``batched closed form``, ``scaled series`` (all trials
-        at once) or ``trial by trial``."""
+        """How the trials are solved: ``batched closed form``, ``batched finite volumes``,
+        ``scaled series`` (all trials at once) or ``trial by trial``."""
         if self._batched:
             return "batched closed form"
+        if self._finite_volumes:
+            return "batched finite volumes"
         if self.problem.regime.kind == "transient" and scaled_series_applies(self.problem,
                                                                              self.fields):
             return "scaled series"
         return "trial by trial"
+
+    def nominal_inputs(self) -> np.ndarray:
+        """The fields' values in the case itself (SI), shape (k,)."""
+        return self._nominal_x.copy()
 
     def nominal(self) -> np.ndarray:
         """The targets at the case's own values, shape (m,)."""
@@ -117,6 +135,15 @@ class TrialModel:
                                                 self.targets)
             out[rows] = values
             rows = rows[again]
+            if rows.size and len(self.problem.layers) > 1 and self._finite_volumes:
+                # a layered body's depleted zone: no closed form, the finite volumes
+                out[rows] = _steady_finite_volumes(self.problem, self.fields, x[rows],
+                                                   self.targets)
+                return out
+        elif self._finite_volumes:
+            out[rows] = _steady_finite_volumes(self.problem, self.fields, x[rows],
+                                               self.targets)
+            return out
         elif self.problem.regime.kind == "transient":
             out[rows] = transient_targets(self.problem, self.fields, x[rows], self.targets)
             return out
@@ -135,6 +162,78 @@ def _closed_form_batch_applies(problem: Problem, fields: Sequence[FieldRef]) -> 
     if any(ly.reaction.law.exact_coefficients(ly.reaction) is None for ly in problem.layers):
         return False
     return not (problem.geometry != "slab" and any(f.path == "inner" for f in fields))
+
+
+def _finite_volume_batch_applies(problem: Problem, fields: Sequence[FieldRef]) -> bool:
+    """Steady, and the body's structure the same in every trial (as for the closed form)."""
+    if problem.regime.kind != "steady":
+        return False
+    return not (problem.geometry != "slab" and any(f.path == "inner" for f in fields))
+
+
+# -- steady finite volumes, batched ---------------------------------------------------------
+
+def _steady_finite_volumes(problem: Problem, fields: Sequence[FieldRef], x: np.ndarray,
+                           targets: Sequence[Target]) -> np.ndarray:
+    """Targets of every trial by ``fv_trials.solve_trials``, the trials in chunks of about
+    ``FV_CHUNK_CELLS`` fine-grid cells; a trial it leaves unsolved is solved alone
+    (``_steady_one``)."""
+    n = x.shape[0]
+    out = np.full((n, len(targets)), np.nan)
+    unsolved = np.ones(n, dtype=bool)
+    try:
+        with np.errstate(all="ignore"):
+            base = cells_per_layer_trials(replaced(problem, _columns(fields, x)), n)
+    except (ValueError, ArithmeticError, np.linalg.LinAlgError):
+        base = None
+    if base is not None:
+        fine_cells = np.cumsum(base.sum(axis=1) * REFINEMENT_RATIO**2)
+        chunk = fine_cells // FV_CHUNK_CELLS
+        for label in np.unique(chunk):
+            rows = np.flatnonzero(chunk == label)
+            view = replaced(problem, _columns(fields, x[rows]))
+            try:
+                figures = solve_trials(view, rows.size)
+            except (ValueError, ArithmeticError, np.linalg.LinAlgError):
+                continue
+            out[rows] = _finite_volume_targets(problem, view, figures, targets)
+            unsolved[rows] = ~figures.solved
+    for i in np.flatnonzero(unsolved):
+        out[i] = _steady_one(with_values(problem, dict(zip(fields, x[i], strict=True))),
+                             targets)
+    return out
+
+
+def _columns(fields: Sequence[FieldRef], x: np.ndarray) -> dict[FieldRef, np.ndarray]:
+    return {f: x[:, j] for j, f in enumerate(fields)}
+
+
+def _finite_volume_targets(problem: Problem, view: Problem, figures: TrialFigures,
+                           targets: Sequence[Target]) -> np.ndarray:
+    n = figures.solved.size
+    inner = np.broadcast_to(np.asarray(view.inner, dtype=float), (n,)).copy()
+    total = sum((np.asarray(ly.thickness, dtype=float) for ly in view.layers),
+                np.zeros(n))
+    values: dict[str, np.ndarray] = {
+        "flux_inner": figures.flux_inner, "flux_outer": figures.flux_outer,
+        "surface_inner": figures.surface_inner, "surface_outer": figures.surface_outer,
+        "concentration_min": figures.layer_min.min(axis=1),
+        "concentration_max": figures.layer_max.max(axis=1),
+        "depletion_front": figures.depletion_front}
+    values.update(_biots(view, total, (view.layers[0].diffusivity,
+                                       view.layers[-1].diffusivity)))
+    values.update(_totals(problem, view, inner, inner + total, figures.flux_inner,
+                          figures.flux_outer, figures.consumption))
+    out = np.full((n, len(targets)), np.nan)
+    for j, target in enumerate(targets):
+        if target.layer is not None:
+            per_layer = figures.layer_min if target.quantity == "concentration_min" \
+                else figures.layer_max
+            out[:, j] = per_layer[:, target.layer]
+        else:
+            out[:, j] = values.get(target.quantity, np.nan)
+    out[~figures.solved] = np.nan
+    return out
 
 
 # -- one trial ------------------------------------------------------------------------------
@@ -285,10 +384,15 @@ def _layer_extremes(solution: _LayerSolution, a: np.ndarray, b: np.ndarray
     return found[0], found[1]
 
 
-def _totals(batch: _Batch, flux_inner, flux_outer, consumption) -> dict[str, np.ndarray]:
-    """The record's rates and totals (``steady_check._totals``) for every trial."""
-    problem, view = batch.problem, batch.view
-    inner, outer = batch.edges[0], batch.edges[-1]
+def _totals(problem: Problem, view: Problem, inner: np.ndarray, outer: np.ndarray,
+            flux_inner, flux_outer, consumption) -> dict[str, np.ndarray]:
+    """The record's rates and totals (``steady_check._totals``) for every trial; ``view`` the
+    case with the varied fields as arrays, ``inner``/``outer`` the trials' face positions."""
+    n = inner.size
+
+    def full(value: Any) -> np.ndarray:
+        return np.broadcast_to(np.asarray(value, dtype=float), (n,)).copy()
+
     out: dict[str, np.ndarray] = {}
     if problem.geometry == "cylinder":
         out["rate_per_length_inner"] = 2 * math.pi * inner * flux_inner
@@ -299,15 +403,29 @@ def _totals(batch: _Batch, flux_inner, flux_outer, consumption) -> dict[str, np.
     elif problem.geometry == "slab":
         out["consumption_per_area"] = consumption
         size = view.area
-        a_in = a_out = np.ones(batch.n)
+        a_in = a_out = np.ones(n)
     else:
         size = 1.0
         a_in, a_out = 4 * math.pi * inner**2, 4 * math.pi * outer**2
     if size is not None:
-        extent = batch.full(size)
+        extent = full(size)
         out["rate_inner"] = extent * a_in * flux_inner
         out["rate_outer"] = extent * a_out * flux_outer
         out["consumption"] = extent * problem.measure_factor * consumption
+    return out
+
+
+def _biots(view: Problem, total: np.ndarray, diffusivity: tuple[Any, Any]
+           ) -> dict[str, np.ndarray]:
+    """Biot numbers of the faces with a film (``steady_check._biot``) for every trial."""
+    out = {}
+    for side, boundary, d in (("inner", view.inner_boundary, diffusivity[0]),
+                              ("outer", view.outer_boundary, diffusivity[1])):
+        h = boundary.condition.film_coefficient(boundary)
+        if h is not None:
+            out[f"biot_{side}"] = np.broadcast_to(
+                np.asarray(h * total / (view.face_partition(side) * d), dtype=float),
+                total.shape).copy()
     return out
 
 
@@ -369,14 +487,10 @@ def _closed_form(problem: Problem, fields: Sequence[FieldRef], x: np.ndarray,
     figures["concentration_min"] = np.min(lows, axis=0)
     figures["concentration_max"] = np.max(highs, axis=0)
     figures["depletion_front"] = np.full(batch.n, np.nan)
-    for side, boundary, layer in (("inner", batch.view.inner_boundary, 0),
-                                  ("outer", batch.view.outer_boundary, count - 1)):
-        h = boundary.condition.film_coefficient(boundary)
-        if h is not None:
-            face = batch.face_partition[0 if side == "inner" else 1]
-            total = batch.edges[-1] - batch.edges[0]
-            figures[f"biot_{side}"] = batch.full(h) * total / (face * batch.diffusivity[layer])
-    figures.update(_totals(batch, figures["flux_inner"], figures["flux_outer"], consumption))
+    total = batch.edges[-1] - batch.edges[0]
+    figures.update(_biots(batch.view, total, (batch.diffusivity[0], batch.diffusivity[-1])))
+    figures.update(_totals(problem, batch.view, batch.edges[0], batch.edges[-1],
+                           figures["flux_inner"], figures["flux_outer"], consumption))
     out = np.full((batch.n, len(targets)), np.nan)
     for j, target in enumerate(targets):
         if target.layer is not None:

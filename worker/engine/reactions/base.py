@@ -82,6 +82,12 @@ class ReactionKind:
         the cells; ``c_scale`` is the largest concentration a face fixes."""
         return 0.0
 
+    def inverse_lengths(self, reaction: Reaction, diffusivity: np.ndarray,
+                        c_scale: np.ndarray) -> np.ndarray:
+        """``inverse_length`` for many trials at once: ``diffusivity``, ``c_scale`` and the
+        reaction's fields may be arrays over trials (broadcast); 1/m."""
+        return np.zeros(np.broadcast(diffusivity, c_scale).shape)
+
     def regularised_rate(
         self, reaction: Reaction, c: np.ndarray, scale: float, mode: str, smoothing: float
     ) -> tuple[np.ndarray, np.ndarray]:

@@ -48,6 +48,11 @@ class FirstOrder(ReactionKind):
     def inverse_length(self, reaction: Reaction, diffusivity: float, c_scale: float) -> float:
         return float(np.sqrt(reaction.rate_constant / diffusivity))
 
+    def inverse_lengths(self, reaction: Reaction, diffusivity: np.ndarray,
+                        c_scale: np.ndarray) -> np.ndarray:
+        k = np.broadcast_to(reaction.rate_constant, np.broadcast(diffusivity, c_scale).shape)
+        return np.sqrt(k / diffusivity)
+
     def regularised_rate(
         self, reaction: Reaction, c: np.ndarray, scale: float, mode: str, smoothing: float
     ) -> tuple[np.ndarray, np.ndarray]:

@@ -39,7 +39,7 @@ class MichaelisMenten(ReactionKind):
         return reaction.vmax * reaction.km / (reaction.km + c) ** 2
 
     def fv_constants(self, reaction: Reaction, index: int) -> tuple[float, float, float, float]:
-        if reaction.km <= 0.0:
+        if np.any(np.asarray(reaction.km) <= 0.0):  # km may be an array over trials
             raise ValueError(
                 f"layers[{index}].reaction.km: expected a positive Michaelis constant, "
                 f"got {reaction.km!r}"
@@ -50,6 +50,15 @@ class MichaelisMenten(ReactionKind):
         if reaction.km > 0.0:
             return float(np.sqrt(reaction.vmax / reaction.km / diffusivity))
         return 0.0
+
+    def inverse_lengths(self, reaction: Reaction, diffusivity: np.ndarray,
+                        c_scale: np.ndarray) -> np.ndarray:
+        shape = np.broadcast(diffusivity, c_scale).shape
+        km = np.broadcast_to(np.asarray(reaction.km, dtype=float), shape)
+        vmax = np.broadcast_to(np.asarray(reaction.vmax, dtype=float), shape)
+        positive = km > 0.0
+        ratio = np.divide(vmax, km, out=np.zeros(shape), where=positive)
+        return np.where(positive, np.sqrt(ratio / diffusivity), 0.0)
 
     def regularised_rate(
         self, reaction: Reaction, c: np.ndarray, scale: float, mode: str, smoothing: float

@@ -45,6 +45,15 @@ class ZeroOrder(ReactionKind):
             return float(np.sqrt(reaction.rate / (2.0 * diffusivity * c_scale)))
         return 0.0
 
+    def inverse_lengths(self, reaction: Reaction, diffusivity: np.ndarray,
+                        c_scale: np.ndarray) -> np.ndarray:
+        shape = np.broadcast(diffusivity, c_scale).shape
+        rate = np.broadcast_to(np.asarray(reaction.rate, dtype=float), shape)
+        scale = np.broadcast_to(np.asarray(c_scale, dtype=float), shape)
+        live = (rate > 0.0) & (scale > 0.0)
+        ratio = np.divide(rate, 2.0 * diffusivity * scale, out=np.zeros(shape), where=live)
+        return np.where(live, np.sqrt(ratio), 0.0)
+
     def regularised_rate(
         self, reaction: Reaction, c: np.ndarray, scale: float, mode: str, smoothing: float
     ) -> tuple[np.ndarray, np.ndarray]:

@@ -10,6 +10,7 @@ import pytest
 from scipy import special
 from scipy.optimize import brentq
 
+from worker.engine import fv_trials
 from worker.engine.design import trials
 from worker.engine.design.paths import with_values
 from worker.engine.design.targets import Target, TargetError, check_target, quantities
@@ -37,6 +38,10 @@ STEADY = {
     "zero-order sphere with a depleted core": Problem(
         "sphere", 0.0, (Layer("core", 1e-3, 1e-9, 1.0, Reaction("zero_order", rate=1e-2)),),
         Boundary("symmetry"), Boundary("concentration", value=1.0)),
+    "islet in a capsule, depleted core behind a film": Problem(
+        "sphere", 0.0, (Layer("islet", 125e-6, 1.3e-9, 1.0, Reaction("zero_order", rate=0.034)),
+                        Layer("capsule", 175e-6, 2.5e-9, 1.0)),
+        Boundary("symmetry"), Boundary("mass_transfer", coefficient=1e-5, bulk=0.052)),
     "Michaelis-Menten two-layer slab": Problem(
         "slab", 0.0, (Layer("wall", 4e-5, 1.5e-9, 0.8),
                       Layer("cells", 1.5e-4, 2e-9, 1.0,
@@ -294,3 +299,98 @@ def test_targets_are_checked_against_the_case():
     assert quantities(TRANSIENT["two-layer coated sheet"])["remaining"].dimension == \
         "amount_per_area"
     assert quantities(STEADY["linear hollow cylinder"])["rate_inner"].dimension == "amount_rate"
+
+
+# -- batched finite volumes ----------------------------------------------------------------------
+
+FV_CASES = {
+    "Michaelis-Menten two-layer slab": ["layers[1].reaction.vmax", "layers[0].diffusivity"],
+    "islet in a capsule, depleted core behind a film": ["layers[0].reaction.rate",
+                                                        "layers[1].thickness",
+                                                        "outer_boundary.coefficient"],
+}
+
+
+@pytest.mark.parametrize("name", list(FV_CASES))
+def test_batched_finite_volume_trials_agree_with_each_trials_full_check(name):
+    """Every trial of a batch against run_problem on that trial alone: each figure within a
+    hundredth of the numerical uncertainty the full check records for it."""
+    problem = STEADY[name]
+    fields = FV_CASES[name]
+    targets = _steady_targets(problem) + [Target("concentration_min", layer=i)
+                                          for i in range(len(problem.layers))]
+    model = TrialModel(problem, fields, targets)
+    assert model.method in ("batched finite volumes", "batched closed form")
+    rng = np.random.default_rng(7)
+    nominal = model.nominal_inputs()
+    x = nominal * rng.lognormal(0.0, 0.3, (3, nominal.size))
+    y = model(x)
+    for row, values in zip(x, y, strict=True):
+        trial = with_values(problem, dict(zip(model.fields, row, strict=True)))
+        outcome = run_problem(trial)
+        for target, value in zip(model.targets, values, strict=True):
+            entry = outcome.quantities[target.quantity]
+            if target.layer is not None:
+                entry = outcome.quantities[f"{target.quantity}_layers"]
+                entry = {"value": entry["value"][target.layer],
+                         "uncertainty": (entry.get("uncertainty") or [0.0] * 9)[target.layer]}
+            assert _agrees(value, entry), (target.key, value, entry)
+
+
+def test_batched_finite_volumes_equal_the_trial_by_trial_primary(monkeypatch):
+    """The batch against ``steady_check.primary_figures`` trial by trial (the path it
+    replaces), many trials at once, across chunks of the batch."""
+    problem = STEADY["Michaelis-Menten two-layer slab"]
+    model = TrialModel(problem, FV_CASES["Michaelis-Menten two-layer slab"],
+                       [Target("flux_inner"), Target("concentration_min", layer=1),
+                        Target("surface_outer")])
+    monkeypatch.setattr(trials, "FV_CHUNK_CELLS", 5000)  # several chunks
+    rng = np.random.default_rng(3)
+    x = model.nominal_inputs() * rng.lognormal(0.0, 0.5, (12, 2))
+    batched = model(x)
+    alone = np.vstack([trials._steady_one(with_values(problem, dict(zip(model.fields, row,
+                                                                          strict=True))),
+                                          model.targets) for row in x])
+    np.testing.assert_allclose(batched, alone, rtol=1e-8)
+
+
+def _unconverged(monkeypatch):
+    monkeypatch.setattr(fv_trials, "TRIAL_ITERATIONS", 1)
+
+
+def test_trials_the_batch_leaves_unsolved_are_solved_alone(monkeypatch):
+    """Injected: the batch stops after one Newton step; every trial then goes to the
+    trial-by-trial path and the figures are unchanged."""
+    problem = STEADY["Michaelis-Menten two-layer slab"]
+    model = TrialModel(problem, ["layers[1].reaction.vmax"], [Target("flux_inner")])
+    x = np.array([[4e-3], [8e-3]])
+    before = model(x)
+    calls = []
+    original = trials._steady_one
+    monkeypatch.setattr(trials, "_steady_one",
+                        lambda p, t: calls.append(1) or original(p, t))
+    _unconverged(monkeypatch)
+    np.testing.assert_allclose(model(x), before, rtol=1e-9)
+    assert len(calls) == 2
+
+
+def test_a_batch_that_cannot_converge_gives_nan_never_raises(monkeypatch):
+    problem = STEADY["Michaelis-Menten two-layer slab"]
+    model = TrialModel(problem, ["layers[1].reaction.vmax"], [Target("flux_inner")])
+    monkeypatch.setattr(trials, "_steady_one", lambda p, t: np.full(len(t), np.nan))
+    _unconverged(monkeypatch)
+    assert np.isnan(model(np.array([[4e-3], [-1.0]]))).all()
+
+
+def test_the_agreement_check_fails_when_the_batch_is_off(monkeypatch):
+    """Injected both ways: the fine grid's flux scaled by 1 +- 1e-6 (above the recorded
+    uncertainty of the Michaelis-Menten flux) fails the agreement with the full check."""
+    problem = STEADY["Michaelis-Menten two-layer slab"]
+    outcome = run_problem(problem)
+    original = fv_trials._face_flux_density
+    for factor in (1 + 1e-6, 1 - 1e-6):
+        monkeypatch.setattr(fv_trials, "_face_flux_density",
+                            lambda *a, f=factor: original(*a) * f)
+        (value,) = TrialModel(problem, ["layers[0].diffusivity"],
+                              [Target("flux_inner")]).nominal()
+        assert not _agrees(value, outcome.quantities["flux_inner"])
