@@ -29,6 +29,7 @@ from worker.engine.design.request import (
     UncertaintyRequest,
 )
 from worker.engine.design.requirements import Requirement
+from worker.engine.design.sampling import default_block_size
 from worker.engine.design.targets import quantities
 from worker.engine.model import Problem
 from worker.engine.units import UnitError, parse_with_basis, si_unit
@@ -266,6 +267,12 @@ def _uncertainty(block: Mapping, problem: Problem, reader: _Reader) -> Uncertain
             continue
         pairs.add(frozenset(ends))
         correlations.append((ends[0], ends[1], float(item["coefficient"])))
+    coverage = float(block.get("coverage", 0.95))
+    least = 2 * default_block_size(coverage)
+    if int(block.get("max_trials", 1_000_000)) < least:
+        reader.fail("uncertainty.max_trials",
+                    f"at least {least} trials: two blocks of {least // 2} (JCGM 101:2008 §7.9.4 "
+                    f"with coverage {coverage:g}), the fewest that adaptive stopping can judge")
     if len(inputs) != len(block["inputs"]):
         return None
     return UncertaintyRequest(

@@ -115,6 +115,9 @@ def test_a_series_requirement_needs_its_time_within_the_run():
       "correlations": [{"fields": ["layers[0].thickness", "layers[1].thickness"],
                         "coefficient": 0.5}]},
      "uncertainty.correlations[0].fields[1]", "not among the uncertain inputs"),
+    ({"inputs": [{"field": "layers[0].thickness", "distribution": "lognormal",
+                  "relative_sd": 0.1}], "max_trials": 5000},
+     "uncertainty.max_trials", "at least 20000 trials"),
 ])
 def test_a_wrong_uncertainty_block_names_its_path(block, path, words):
     errors = _errors(_with(STEADY, uncertainty=block))

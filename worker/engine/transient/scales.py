@@ -83,15 +83,34 @@ def worst(errors: np.ndarray, times: np.ndarray) -> tuple[float, float | None]:
     return float(errors[index]), float(times[index])
 
 
+#: Decades below a scan's first time searched for a crossing the scan starts after.
+EARLIER_DECADES = 15
+
+
 def first_crossing(function: Callable[[np.ndarray], np.ndarray], grid: np.ndarray,
                    level: float) -> float | None:
-    """First t on the grid interval where function(t) reaches level (refined by brentq)."""
+    """First t where the increasing ``function(t)`` reaches ``level``: the first grid interval
+    where it does, refined by brentq; when it has already reached it at the grid's first time,
+    searched decade by decade below that time (None: not reached on the grid)."""
     values = np.asarray(function(grid), dtype=float) - level
     above = np.nonzero(values >= 0.0)[0]
     if above.size == 0:
         return None
+
+    def gap(t: float) -> float:
+        return float(np.asarray(function(np.array([t])))[0]) - level
+
     k = int(above[0])
-    if k == 0:
-        return float(grid[0])
-    return float(brentq(lambda t: float(np.asarray(function(np.array([t])))[0]) - level,
-                        grid[k - 1], grid[k], xtol=1e-12 * grid[k], rtol=1e-12))
+    if k > 0:
+        return float(brentq(gap, grid[k - 1], grid[k], xtol=1e-12 * grid[k], rtol=1e-12))
+    # Reached at the grid's first time: the crossing is earlier; step down a decade at a
+    # time (the grid starts where the caller's solution is cheapest, not at t = 0).
+    high = float(grid[0])
+    for _ in range(EARLIER_DECADES):
+        if high <= 0.0 or gap(high) == 0.0:
+            return high
+        low = high / 10.0
+        if gap(low) < 0.0:
+            return float(brentq(gap, low, high, xtol=1e-12 * high, rtol=1e-12))
+        high = low
+    return high
