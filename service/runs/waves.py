@@ -152,11 +152,12 @@ class WaveScheduler:
     def __call__(self, compute: Callable[[int], BlockResult],
                  accumulator: MonteCarloAccumulator) -> None:
         seed = accumulator.spec.seed
+        # Alone, one block at a time: a wave would only compute blocks past the stopping point.
+        size = 1 if self.sharing.sender is None else max(1, self.sharing.wave)
         write_progress(self.store, self.run_id, progress_of(accumulator))
         while not accumulator.done:
             first = accumulator.blocks
-            wave = list(range(first, min(first + max(1, self.sharing.wave),
-                                         accumulator.spec.max_blocks)))
+            wave = list(range(first, min(first + size, accumulator.spec.max_blocks)))
             blocks = self._wave(compute, seed, wave)
             for index in wave:
                 if accumulator.done:
