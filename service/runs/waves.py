@@ -164,6 +164,9 @@ class WaveScheduler:
                     break
                 accumulator.add(blocks[index])
             write_progress(self.store, self.run_id, progress_of(accumulator))
+        logger.info("run %s: %d Monte Carlo blocks merged; %d read from the store, %d computed "
+                    "by this process", self.run_id, accumulator.blocks,
+                    len(self.read_from_store), len(self.computed_here))
 
     def _wave(self, compute: Callable[[int], BlockResult], seed: int, wave: list[int]
               ) -> dict[int, BlockResult]:
