@@ -7,7 +7,9 @@ same :func:`service.runs.execute_run`. The API behaves the same either way (202,
   the service's Celery client (:mod:`service.celery_client`, no task code in this process);
   workers run it (:mod:`worker.tasks`, a thin task around :func:`service.runs.execute_run`).
 * ``EmbeddedDispatcher``: a ``ThreadPoolExecutor`` in the service process. There is no time
-  limit on a solve here (a thread cannot be stopped); use workers where that matters.
+  limit on a solve here (a thread cannot be stopped); use workers where that matters. A run's
+  Monte Carlo blocks go to a second pool of its own (``MONTE_CARLO_WAVE`` threads,
+  :mod:`service.runs.waves`).
 * ``InlineDispatcher``: runs at once in the caller's thread (tests and command-line tools).
 """
 
@@ -21,6 +23,8 @@ from typing import Any, Protocol
 from service.celery_client import make_celery_app
 from service.errors import ServiceUnavailable
 from service.runs import execute_run
+from service.runs.waves import BlockSharing, PoolBlockSender
+from service.settings import monte_carlo_wave
 from service.store import Store
 from service.task_names import send_execute_run
 
@@ -58,16 +62,21 @@ class InlineDispatcher:
 class EmbeddedDispatcher:
     mode = "embedded"
 
-    def __init__(self, store: Store, max_attempts: int, workers: int = 2) -> None:
+    def __init__(self, store: Store, max_attempts: int, workers: int = 2, *,
+                 wave: int = 4, keep_blocks: bool = False) -> None:
         self.store = store
         self.max_attempts = max_attempts
         self._pool = ThreadPoolExecutor(max_workers=max(1, int(workers)),
                                         thread_name_prefix="fluxproof-run")
+        self._block_pool = ThreadPoolExecutor(max_workers=max(1, wave),
+                                              thread_name_prefix="fluxproof-block")
+        self.sharing = BlockSharing(PoolBlockSender(store, self._block_pool), wave, keep_blocks)
         self._futures: set[Future[str]] = set()
 
     def _run(self, run_id: str) -> str:
         try:
-            return execute_run(run_id, self.store, max_attempts=self.max_attempts)
+            return execute_run(run_id, self.store, max_attempts=self.max_attempts,
+                               sharing=self.sharing)
         except Exception:
             logger.exception("embedded execution of run %s failed; it stays unfinished",
                              run_id)
@@ -88,6 +97,7 @@ class EmbeddedDispatcher:
 
     def shutdown(self) -> None:
         self._pool.shutdown(wait=True, cancel_futures=False)
+        self._block_pool.shutdown(wait=True, cancel_futures=True)
 
 
 class CeleryDispatcher:
@@ -133,4 +143,6 @@ def make_dispatcher(mode: str, store: Store, settings: dict[str, Any]) -> Dispat
         return CeleryDispatcher(settings)
     if mode == "inline":
         return InlineDispatcher(store, attempts)
-    return EmbeddedDispatcher(store, attempts, int(settings.get("EMBEDDED_WORKERS") or 2))
+    return EmbeddedDispatcher(store, attempts, int(settings.get("EMBEDDED_WORKERS") or 2),
+                              wave=monte_carlo_wave(settings),
+                              keep_blocks=bool(settings.get("MONTE_CARLO_KEEP_BLOCKS")))

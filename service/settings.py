@@ -45,6 +45,13 @@ DEFAULTS: Mapping[str, Any] = {
     "WORKER_NICE": 10,
     # Threads of the embedded executor (no broker).
     "EMBEDDED_WORKERS": 2,
+    # Monte Carlo blocks of one run in flight at once (the run's own process computes one of
+    # them): the number of worker pool processes, across machines, that should share a large
+    # run; on the embedded default also the size of its block pool (threads).
+    "MONTE_CARLO_WAVE": 4,
+    # Keep a run's stored Monte Carlo blocks once its record is stored (else they are deleted;
+    # only a run that is still executing needs them).
+    "MONTE_CARLO_KEEP_BLOCKS": False,
     # Deliveries of one run before it is ended ``failed`` (a worker lost or killed each time).
     "MAX_RUN_ATTEMPTS": 3,
     # Apply the store's migrations when the app starts.
@@ -116,3 +123,12 @@ def dispatch_mode(settings: Mapping[str, Any]) -> str:
             f"FLUXPROOF_DISPATCH: expected auto, embedded, celery or inline, got {mode!r}"
         )
     return mode
+
+
+def monte_carlo_wave(settings: Mapping[str, Any]) -> int:
+    """Blocks of one run in flight at once (``MONTE_CARLO_WAVE``, a whole number >= 1)."""
+    value = settings.get("MONTE_CARLO_WAVE", DEFAULTS["MONTE_CARLO_WAVE"])
+    if isinstance(value, bool) or not isinstance(value, int) or value < 1:
+        raise ValueError(f"FLUXPROOF_MONTE_CARLO_WAVE: expected a whole number of at least 1, "
+                         f"got {value!r}")
+    return value

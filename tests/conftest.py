@@ -155,7 +155,8 @@ def controlled_engine(monkeypatch: pytest.MonkeyPatch):
         status = "succeeded"
         calls = 0
 
-        def __call__(self, case: dict) -> dict:
+        def __call__(self, case: dict, **_monte_carlo: object) -> dict:
+            # seed and scheduler, which the service passes for a case with uncertainty
             import schemas
 
             schemas.validate_case(case)  # as the real check_case does first (CaseError)

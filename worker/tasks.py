@@ -9,6 +9,8 @@ invalid input and solver failures are results, recorded.
 
 from __future__ import annotations
 
+import logging
+
 import kombu.exceptions
 import redis.exceptions
 import sqlalchemy.exc
@@ -19,11 +21,18 @@ from service.batches import close_finished_batches, start_batch
 from service.dispatch import CeleryDispatcher
 from service.recovery import recover_lost_runs as recover
 from service.recovery import recovery_settings
-from service.settings import settings_from_env
+from service.runs.waves import BlockSharing, CeleryBlockSender, compute_and_store_block
+from service.settings import monte_carlo_wave, settings_from_env
 from service.store import default_store
-from service.task_names import EXECUTE_RUN_TASK, RECOVER_LOST_RUNS_TASK, REVERIFY_ALL_TASK
+from service.task_names import (
+    EXECUTE_RUN_TASK,
+    MONTE_CARLO_BLOCK_TASK,
+    RECOVER_LOST_RUNS_TASK,
+    REVERIFY_ALL_TASK,
+)
 
 _SETTINGS = settings_from_env()
+logger = logging.getLogger(__name__)
 
 #: Errors worth another try: the store or the broker was briefly unreachable or locked.
 TRANSIENT_ERRORS = (
@@ -47,8 +56,29 @@ RETRY_OPTIONS = {
              ignore_result=True, soft_time_limit=int(_SETTINGS["TASK_SOFT_TIME_LIMIT"]),
              time_limit=int(_SETTINGS["TASK_TIME_LIMIT"]), **RETRY_OPTIONS)
 def execute_run(run_id: str) -> str:
-    """Execute run ``run_id`` (see :func:`service.runs.execute_run`); returns its status."""
-    return runs.execute_run(run_id, max_attempts=int(_SETTINGS["MAX_RUN_ATTEMPTS"]))
+    """Execute run ``run_id`` (see :func:`service.runs.execute_run`); returns its status. Its
+    Monte Carlo blocks are shared with the other workers as block tasks."""
+    sharing = BlockSharing(CeleryBlockSender(current_app), monte_carlo_wave(_SETTINGS),
+                           bool(_SETTINGS.get("MONTE_CARLO_KEEP_BLOCKS")))
+    return runs.execute_run(run_id, max_attempts=int(_SETTINGS["MAX_RUN_ATTEMPTS"]),
+                            sharing=sharing)
+
+
+@shared_task(name=MONTE_CARLO_BLOCK_TASK, acks_late=True, reject_on_worker_lost=True,
+             ignore_result=True, soft_time_limit=int(_SETTINGS["TASK_SOFT_TIME_LIMIT"]),
+             time_limit=int(_SETTINGS["TASK_TIME_LIMIT"]), **RETRY_OPTIONS)
+def monte_carlo_block(run_id: str, index: int, seed: int) -> str:
+    """Compute block ``index`` of run ``run_id``'s Monte Carlo with ``seed`` and store it once
+    (:func:`service.runs.waves.compute_and_store_block`); a redelivered message writes nothing
+    new. An engine error is logged and left to the run's own worker, which computes any block
+    nobody stored (and records the error there)."""
+    try:
+        return compute_and_store_block(default_store(), run_id, index, seed)
+    except TRANSIENT_ERRORS:
+        raise
+    except Exception as exc:  # noqa: BLE001 - the coordinator computes and records it
+        logger.warning("block %d of run %s not computed: %s", index, run_id, exc)
+        return f"not computed: {type(exc).__name__}"
 
 
 @shared_task(name=REVERIFY_ALL_TASK, acks_late=True, ignore_result=True, **RETRY_OPTIONS)

@@ -146,6 +146,17 @@ class SignoffSchema(Schema):
     at = fields.String(required=True)
 
 
+class ProgressSchema(Schema):
+    """How far a running Monte Carlo run has got (trials in whole blocks, merged in order)."""
+
+    trials = fields.Integer(required=True, metadata={"description": "trials merged so far"})
+    blocks = fields.Integer(required=True, metadata={"description": "blocks merged so far"})
+    max_trials = fields.Integer(required=True, metadata={
+        "description": "trials at most (the adaptive stopping usually ends sooner)"})
+    max_blocks = fields.Integer(required=True, metadata={"description": "blocks at most"})
+    updated_at = fields.String(required=True, metadata={"description": "when it was written"})
+
+
 class RunSummarySchema(Schema):
     run_id = fields.String(required=True)
     case_id = fields.String(required=True)
@@ -159,6 +170,9 @@ class RunSummarySchema(Schema):
     started_at = fields.String(allow_none=True)
     finished_at = fields.String(allow_none=True)
     signoffs = fields.List(fields.Nested(SignoffSchema), required=True)
+    progress = fields.Nested(ProgressSchema, metadata={
+        "description": "while a Monte Carlo run (the case's uncertainty) is running: how far "
+                       "it has got"})
 
 
 class RecordSchema(ResultSchema, RunSummarySchema):

@@ -10,6 +10,7 @@ the store's run writer (``store.runs``, :mod:`service.store.run_writer`).
 from __future__ import annotations
 
 import logging
+import secrets
 import socket
 from typing import Any
 
@@ -17,7 +18,9 @@ import schemas
 import worker.engine
 from service.batches import close_batch_after_run
 from service.runs.finite import non_finite_paths_of_record
+from service.runs.waves import BlockSharing, WaveScheduler
 from service.store import Store, default_store
+from service.store.blocks import delete_blocks, fix_seed
 from service.store.models import RunStatus
 
 logger = logging.getLogger(__name__)
@@ -42,7 +45,8 @@ def failure_reason(exc: BaseException) -> str:
 
 
 def execute_run(run_id: str, store: Store | None = None, *,
-                max_attempts: int = DEFAULT_MAX_ATTEMPTS, actor: str | None = None) -> str:
+                max_attempts: int = DEFAULT_MAX_ATTEMPTS, actor: str | None = None,
+                sharing: BlockSharing | None = None) -> str:
     """Execute one run: claim it, solve its case with the engine, store the record.
 
     Idempotent by ``run_id``: a finished run is left exactly as it is. A run that was started
@@ -53,6 +57,10 @@ def execute_run(run_id: str, store: Store | None = None, *,
     ``run.started``) before the solve, so that a lost worker's attempt counts; and the outcome
     (``run.finished``). Then, for a batch run, the batch is closed when this was its last
     unfinished run (:func:`service.batches.close_batch_after_run`).
+
+    A case with ``uncertainty`` has its Monte Carlo blocks shared as ``sharing`` says
+    (:mod:`service.runs.waves`; None: computed here, still stored block by block so that a
+    re-execution reuses them).
     """
     store = store or default_store()
     actor = actor or f"worker@{socket.gethostname()}"
@@ -63,9 +71,13 @@ def execute_run(run_id: str, store: Store | None = None, *,
             logger.warning("execute_run: no run %s", run_id)
         close_batch_after_run(store, batch_id)
         return status
-    status, record, error = check_outcome(run_id, claim.case_id, claim.document)
+    sharing = sharing or BlockSharing()
+    status, record, error = check_outcome(run_id, claim.case_id, claim.document,
+                                          monte_carlo=(store, sharing))
     stored, batch_id = store.runs.store_outcome(run_id, status=status, record=record,
                                                 error=error, actor=actor)
+    if stored and claim.document.get("uncertainty") and not sharing.keep_blocks:
+        delete_blocks(store, run_id)  # the record holds what they gave
     if not stored:
         # Another delivery finished first (or the run is gone); keep what it stored.
         found = store.runs.status_of(run_id)
@@ -74,14 +86,32 @@ def execute_run(run_id: str, store: Store | None = None, *,
     return status
 
 
-def check_outcome(run_id: str, case_id: str, document: dict[str, Any]
+def monte_carlo_options(store: Store, run_id: str, document: dict[str, Any],
+                        sharing: BlockSharing) -> dict[str, Any]:
+    """``check_case``'s Monte Carlo arguments for a run: its fixed seed (drawn and stored once
+    when the case states none) and the wave scheduler; none for a case without uncertainty."""
+    uncertainty = document.get("uncertainty")
+    if not isinstance(uncertainty, dict):
+        return {}
+    seed = uncertainty.get("seed")
+    if not isinstance(seed, int) or isinstance(seed, bool):
+        seed = fix_seed(store, run_id, secrets.randbits(62))
+    return {"seed": seed, "scheduler": WaveScheduler(store, run_id, sharing)}
+
+
+def check_outcome(run_id: str, case_id: str, document: dict[str, Any], *,
+                  monte_carlo: tuple[Store, BlockSharing] | None = None
                   ) -> tuple[str, dict[str, Any] | None, str | None]:
-    """Check the case with the engine: (status, record, error) of the run."""
+    """Check the case with the engine: (status, record, error) of the run. ``monte_carlo``:
+    the store and the sharing of the run's Monte Carlo blocks (else computed in this thread
+    with a fresh seed)."""
     record: dict[str, Any] | None = None
     error: str | None = None
     try:
+        options = ({} if monte_carlo is None
+                   else monte_carlo_options(monte_carlo[0], run_id, document, monte_carlo[1]))
         # check_case validates the stored case again (CaseError when it no longer passes).
-        result = worker.engine.check_case(document)
+        result = worker.engine.check_case(document, **options)
         record = dict(result)
         record["run_id"] = run_id
         record["case_id"] = case_id

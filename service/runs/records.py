@@ -6,7 +6,7 @@ from typing import Any
 
 from service.errors import NotFound
 from service.store import Store
-from service.store.models import Case, Run
+from service.store.models import Case, Run, RunStatus
 
 
 def _iso(value: Any) -> str | None:
@@ -19,9 +19,10 @@ def signoff_to_dict(signoff: Any) -> dict[str, Any]:
 
 
 def run_summary(run: Run) -> dict[str, Any]:
-    """The run's state without the record body (for lists and histories)."""
+    """The run's state without the record body (for lists and histories); a running Monte
+    Carlo run also says how far it has got (``progress``, :mod:`service.runs.waves`)."""
     record = run.record or {}
-    return {
+    summary = {
         "run_id": run.id,
         "case_id": run.case_id,
         "status": run.status,
@@ -35,6 +36,9 @@ def run_summary(run: Run) -> dict[str, Any]:
         "finished_at": _iso(run.finished_at),
         "signoffs": [signoff_to_dict(s) for s in run.signoffs],
     }
+    if run.progress is not None and run.status == RunStatus.RUNNING.value:
+        summary["progress"] = dict(run.progress)
+    return summary
 
 
 def record_of(run: Run) -> dict[str, Any]:

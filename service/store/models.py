@@ -109,8 +109,26 @@ class Run(Base):
     started_at: Mapped[datetime | None] = mapped_column(UtcDateTime(), nullable=True)
     finished_at: Mapped[datetime | None] = mapped_column(UtcDateTime(), nullable=True)
     attempts: Mapped[int] = mapped_column(Integer, default=0)
+    #: The Monte Carlo seed drawn for the run when its case states none (migration 0005).
+    monte_carlo_seed: Mapped[int | None] = mapped_column(BigInteger, nullable=True)
+    #: How far a running Monte Carlo run has got (:mod:`service.runs.waves`).
+    progress: Mapped[dict[str, Any] | None] = mapped_column(JSON, nullable=True)
 
     signoffs: Mapped[list[Signoff]] = relationship(order_by="Signoff.id")
+
+
+class RunBlock(Base):
+    """One Monte Carlo block of a run, written once by whichever process computed it
+    (:mod:`service.store.blocks`)."""
+
+    __tablename__ = "run_blocks"
+
+    run_id: Mapped[str] = mapped_column(ForeignKey("runs.id"), primary_key=True)
+    block_index: Mapped[int] = mapped_column(Integer, primary_key=True, autoincrement=False)
+    seed: Mapped[int] = mapped_column(BigInteger)
+    result: Mapped[dict[str, Any]] = mapped_column(JSON)
+    computed_by: Mapped[str] = mapped_column(String(200))
+    computed_at: Mapped[datetime] = mapped_column(UtcDateTime())
 
 
 class Signoff(Base):

@@ -43,6 +43,22 @@ def make_case(**changes: Any) -> dict[str, Any]:
     return case
 
 
+def uncertain_case(max_trials: int = 80_000, seed: int | None = 7, **changes: Any
+                   ) -> dict[str, Any]:
+    """BASE_CASE with an invented input uncertainty that runs to ``max_trials`` (blocks of
+    10,000 trials: three significant digits are not reached sooner), for the tests of how a
+    run's Monte Carlo blocks are shared. An input, never a check value."""
+    uncertainty: dict[str, Any] = {
+        "inputs": [{"field": "layers[0].diffusivity", "distribution": "lognormal",
+                    "relative_sd": 0.3},
+                   {"field": "layers[0].partition", "distribution": "normal",
+                    "relative_sd": 0.1}],
+        "significant_digits": 3, "max_trials": max_trials}
+    if seed is not None:
+        uncertainty["seed"] = seed
+    return make_case(uncertainty=uncertainty, **changes)
+
+
 def clear_fluxproof_env(monkeypatch: Any) -> None:
     for key in list(os.environ):
         if key.startswith(ENV_PREFIX):

@@ -198,3 +198,40 @@ def test_unsigned_records_can_still_be_finished_by_the_domain(store, client, tok
         session.get(Run, run_id).error = "annotated before sign-off"
     record = client.get(f"/v1/runs/{run_id}", headers=bearer(tokens["auditor"])).get_json()
     assert record["error"] == "annotated before sign-off"
+
+
+def test_a_running_monte_carlo_run_reports_its_progress(client, store, tokens,
+                                                        controlled_engine):
+    from service.store.blocks import write_progress
+    from service.store.models import Run
+
+    run_id = submit(client, tokens).get_json()["run_id"]
+    wait_for_run(client, tokens["engineer"], run_id)
+    progress = {"trials": 30_000, "blocks": 3, "max_trials": 1_000_000, "max_blocks": 100,
+                "updated_at": "2026-12-06T10:00:00+00:00"}
+    with store.transaction() as session:  # as while its Monte Carlo blocks are merged
+        run = session.get(Run, run_id)
+        run.status, run.record, run.finished_at = "running", None, None
+    write_progress(store, run_id, progress)
+
+    headers = bearer(tokens["auditor"])
+    document = client.get(f"/v1/runs/{run_id}", headers=headers).get_json()
+    assert document["status"] == "running"
+    assert document["progress"] == progress
+    listed = client.get(f"/v1/cases/{document['case_id']}/runs", headers=headers).get_json()
+    assert [item.get("progress") for item in listed["items"]] == [progress]
+
+    with store.transaction() as session:  # finished: the record says it all
+        session.get(Run, run_id).status = "failed"
+    write_progress(store, run_id, dict(progress, blocks=4))  # not written once finished
+    document = client.get(f"/v1/runs/{run_id}", headers=headers).get_json()
+    assert "progress" not in document
+    with store.transaction() as session:
+        assert session.get(Run, run_id).progress == progress
+
+
+def test_the_openapi_document_describes_progress(client):
+    schemas = client.get("/v1/openapi.json").get_json()["components"]["schemas"]
+    progress = next(s for name, s in schemas.items() if name.startswith("Progress"))
+    assert set(progress["required"]) == {"trials", "blocks", "max_trials", "max_blocks",
+                                         "updated_at"}

@@ -61,3 +61,20 @@ def distinct_steady_cases(count: int, *, tags: list[str]) -> list[dict[str, Any]
         builder = single_layer_case if index % 2 == 0 else two_layer_case
         cases.append(builder(thickness, diffusivity, tags=tags))
     return cases
+
+
+def uncertain_uptake_case(max_trials: int, *, tags: list[str]) -> dict[str, Any]:
+    """A membrane with zero-order uptake whose diffusivity and partition coefficient are
+    uncertain: its Monte Carlo runs to ``max_trials`` (three significant digits are not
+    reached sooner) in blocks of 10,000 trials of about a quarter of a second each here."""
+    case = single_layer_case(50.0, 1.0e-10, tags=tags)
+    case["layers"][0]["partition"] = 1.0
+    case["layers"][0]["reaction"] = {"kind": "zero_order", "rate": "0.05 mol/(m^3*s)"}
+    case["inner_boundary"]["value"] = "1 mol/m^3"
+    case["uncertainty"] = {
+        "inputs": [{"field": "layers[0].diffusivity", "distribution": "lognormal",
+                    "relative_sd": 0.3},
+                   {"field": "layers[0].partition", "distribution": "normal",
+                    "relative_sd": 0.1}],
+        "significant_digits": 3, "max_trials": max_trials, "seed": 7}
+    return case

@@ -117,3 +117,17 @@ def test_the_caution_stays_on_every_report():
                    records.record("none_stated")):
         html = _render(record, records.case())
         assert "design verification testing" in html and "qualified" in html
+
+
+def test_a_running_monte_carlo_run_shows_how_far_it_has_got():
+    running = {"run_id": "r-1", "case_id": "c-1", "status": "running", "verdict": None,
+               "signoffs": [], "progress": {"trials": 30000, "blocks": 3,
+                                            "max_trials": 1000000, "max_blocks": 100,
+                                            "updated_at": "2026-12-06T10:00:00+00:00"}}
+    html = _render(running, records.case())
+    shown = re.search(r'<div id="monte-carlo-progress">(.*?)</div>', html, re.DOTALL)
+    assert shown, "no progress on the page of a running Monte Carlo run"
+    text = re.sub(r"\s+", " ", re.sub(r"<[^>]+>", " ", shown.group(1)))
+    assert "30,000 trials in 3 blocks" in text and "1,000,000 in 100" in text
+    finished = {key: value for key, value in running.items() if key != "progress"}
+    assert 'id="monte-carlo-progress"' not in _render(finished, records.case())

@@ -138,3 +138,30 @@ def test_unknown_event_kind_is_refused(tmp_path):
                 audit.append_event(session, actor="x", kind="case.deleted", subject="c")
     finally:
         store.dispose()
+
+
+def test_the_monte_carlo_blocks_migration_goes_down_and_up_again(tmp_path):
+    """Revision 0005 (run_blocks, runs.monte_carlo_seed, runs.progress) is reversible and
+    leaves the seal triggers of 0004 in place."""
+    from alembic import command
+    from sqlalchemy import inspect, text
+
+    from service.store.migrate import alembic_config
+
+    store = Store(f"sqlite:///{tmp_path / 'm.sqlite3'}")
+    try:
+        upgrade(store)
+        command.downgrade(alembic_config(store), "0004_audit_outbox_and_seals")
+        inspector = inspect(store.engine)
+        assert "run_blocks" not in inspector.get_table_names()
+        assert {"monte_carlo_seed", "progress"}.isdisjoint(
+            c["name"] for c in inspector.get_columns("runs"))
+        assert upgrade(store) == head_revision()
+        inspector = inspect(store.engine)
+        assert "run_blocks" in inspector.get_table_names()
+        with store.engine.connect() as connection:
+            triggers = set(connection.execute(text(
+                "SELECT name FROM sqlite_master WHERE type = 'trigger'")).scalars())
+        assert {"runs_sealed_on_update", "runs_sealed_on_delete"} <= triggers
+    finally:
+        store.dispose()
