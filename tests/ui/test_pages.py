@@ -125,6 +125,7 @@ def test_an_old_session_must_sign_in_again(client, tokens, monkeypatch):
 def _pages(run_id: str, case_id: str, batch_id: str) -> dict[str, str]:
     return {"runs": "/ui/runs", "run": f"/ui/runs/{run_id}",
             "report": f"/ui/runs/{run_id}/report", "record": f"/ui/runs/{run_id}/record.json",
+            "record_pdf": f"/ui/runs/{run_id}/record.pdf",
             "case": f"/ui/cases/{case_id}", "batches": "/ui/batches",
             "batch": f"/ui/batches/{batch_id}", "audit": "/ui/audit"}
 
@@ -141,6 +142,9 @@ def test_each_page_for_each_role(app, store, tokens, run_id, role):
         response = client.get(path)
         expected = 403 if name == "audit" and role in ("engineer", "reviewer") else 200
         assert response.status_code == expected, (role, name)
+        if response.mimetype == "application/pdf":
+            assert response.get_data().startswith(b"%PDF-")
+            continue
         body = response.get_data(as_text=True)
         if expected == 403:
             assert f"you are signed in as {ROLE_NAMES[role]} ({role})" in body
