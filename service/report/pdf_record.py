@@ -27,12 +27,17 @@ SIGNOFF_ORDER = ("printed_name", "reviewer", "meaning", "decision", "at", "comme
                  "justification", "record_sha256", "signature")
 
 
-def _si(value: Any) -> str:
+def _si(value: Any, significant: int = 6) -> str:
     if isinstance(value, Mapping) and "value" in value:
-        return f"{plain_number(value.get('value'), 6)} {unit_text(value.get('unit'))}".strip()
+        number = plain_number(value.get("value"), significant)
+        return f"{number} {unit_text(value.get('unit'))}".strip()
     if isinstance(value, list):
-        return ", ".join("—" if v is None else plain_number(v, 6) for v in value)
-    return "—" if value is None else plain_number(value, 6)
+        return ", ".join("—" if v is None else plain_number(v, significant) for v in value)
+    return "—" if value is None else plain_number(value, significant)
+
+
+def _readable(text: str) -> str:
+    return f" ({text})" if text else ""
 
 
 def _words(key: str) -> str:
@@ -91,8 +96,8 @@ def _requirements(doc: PagedDocument, record: Mapping[str, Any],
         return
     doc.data_table(
         ("id", "requirement", "value", "bound", "margin", "status", "source"),
-        [(r.id, r.what, f"{_si(r.value)} {unit_text(r.unit)} {r.readable_value}".strip(),
-          f"{r.relation} {_si(r.bound)} {r.readable_bound}".strip(),
+        [(r.id, r.what, f"{_si(r.value)} {unit_text(r.unit)}{_readable(r.readable_value)}",
+          f"{r.relation} {_si(r.bound)}{_readable(r.readable_bound)}",
           _si(r.margin), f"{r.mark} {r.words}", r.source or "—") for r in rows],
         (18, 38, 28, 28, 18, 20, 30))
 
@@ -136,7 +141,7 @@ def _design_blocks(doc: PagedDocument, record: Mapping[str, Any]) -> None:
 
 def _checks(doc: PagedDocument, record: Mapping[str, Any]) -> None:
     doc.heading("Checks")
-    rows = [(c.get("name"), _si(c.get("value")), _si(c.get("limit")),
+    rows = [(c.get("name"), _si(c.get("value"), 4), _si(c.get("limit"), 4),
              "✓ pass" if c.get("passed") else "✗ FAIL", c.get("detail") or "")
             for c in record.get("checks") or []]
     if rows:
