@@ -4,7 +4,7 @@ VENV   := .venv
 PY     := $(VENV)/bin/python
 STAMP  := $(VENV)/.installed
 
-.PHONY: demo test check lint bench schemas clean browser mutate
+.PHONY: demo test check lint bench schemas manifest clean browser mutate
 
 $(STAMP): pyproject.toml
 	$(PYTHON) -m venv $(VENV)
@@ -40,6 +40,12 @@ bench: $(STAMP)
 
 schemas: $(STAMP)
 	$(PY) -m schemas.export
+
+# The release manifest `fluxproof qualify` checks the installed files against: SHA-256 of every
+# file the project installs (service/qualification/manifest.json). Regenerate and commit it after
+# changing any of them; `$(PY) -m service.qualification.manifest --check` names what differs.
+manifest: $(STAMP)
+	$(PY) -m service.qualification.manifest
 
 # Mutation testing (never part of `make test`): mutmut 3 mutates worker/engine and runs, for
 # each mutant, the fast tests that reach the mutated function ([tool.mutmut] in pyproject.toml;
