@@ -21,12 +21,14 @@ browser:
 	@command -v chromium >/dev/null 2>&1 || { $(SUDO) apt-get update && \
 		$(SUDO) apt-get install -y chromium; }
 
-# ruff (every file), mypy (the engine and the documents: [tool.mypy] in pyproject.toml) and the
-# import-linter layer contracts ([tool.importlinter]: engine < schemas < service < Celery glue).
+# ruff (every file), mypy (the engine and the documents: [tool.mypy] in pyproject.toml), the
+# import-linter layer contracts ([tool.importlinter]: engine < schemas < service < Celery glue)
+# and the release manifest against the files (`make manifest` regenerates it).
 lint: $(STAMP)
 	$(VENV)/bin/ruff check .
 	$(VENV)/bin/mypy worker/engine schemas
 	$(VENV)/bin/lint-imports
+	$(PY) -m service.qualification.manifest --check
 
 # The fast tests: unit, reference, property and API (no integration, faults, UI, load, fuzz).
 check: $(STAMP)
