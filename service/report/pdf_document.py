@@ -33,6 +33,11 @@ SMALL_SIZE = 7.5
 LINE = 4.6
 
 
+def printable(text: str) -> str:
+    """``text`` with each lone surrogate (which no PDF string can hold) replaced by U+FFFD."""
+    return text.encode("utf-16", "surrogatepass").decode("utf-16", "replace")
+
+
 def font_directory() -> Path:
     """Where the DejaVu fonts are read from: Debian's, else matplotlib's bundled copy."""
     if (DEBIAN_DEJAVU / FONT_FILES[""]).is_file():
@@ -57,13 +62,16 @@ class PagedDocument(FPDF):
         for style, name in FONT_FILES.items():
             self.add_font(FONT, style, str(directory / name))
         self.add_font(MONO, "", str(directory / MONO_FILE))
-        self.set_title(title)
+        self.set_title(printable(title))
         self.set_author(author)
         self.set_creator("fluxproof")
         self.set_margins(15, 15, 15)
         self.set_auto_page_break(auto=True, margin=15)
         self.alias_nb_pages(PAGE_COUNT)
         self.add_page()
+
+    def normalize_text(self, text: str) -> str:
+        return super().normalize_text(printable(text))
 
     # --- page furniture --------------------------------------------------------------------
 

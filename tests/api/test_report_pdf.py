@@ -110,3 +110,16 @@ def test_deviations_head_every_page_when_the_record_lists_them():
     assert pdf_record.header_lines(record)[1].startswith("DEVIATIONS: 1")
     assert not any("DEVIATIONS" in line for line in pdf_record.header_lines(
         {"run_id": "r1", "case_sha256": "ab" * 32}))
+
+
+def test_a_failed_run_prints_its_error_and_no_quantities():
+    content = pdf_record.render_record_pdf(
+        {"run_id": "r-1", "case_sha256": "cd" * 32, "status": "failed", "verdict": None,
+         "error": "the solver did not converge", "signoffs": []},
+        {"title": "failed run"})
+    pages = [" ".join(p.extract_text().split())
+             for p in pypdf.PdfReader(io.BytesIO(content)).pages]
+    whole = " ".join(pages)
+    assert "Engine failure the solver did not converge" in whole
+    assert "NO — no result" in whole and "No quantities" in whole
+    assert all("page" in p and "run r-1" in p for p in pages)

@@ -39,3 +39,13 @@ def test_no_fonts_anywhere_is_a_clear_error(tmp_path, monkeypatch):
     monkeypatch.setattr(pdf_document, "FONT_FILES", {"": "NoSuchFont.ttf"})
     with pytest.raises(FileNotFoundError, match="fonts-dejavu-core"):
         pdf_document.font_directory()
+
+
+def test_a_lone_surrogate_prints_as_the_replacement_character():
+    """A stored string with a lone surrogate (no PDF string can hold one) still prints."""
+    assert pdf_document.printable("a\ud800b") == "a\ufffdb"
+    assert pdf_document.printable("µ ≤ ✓ 😀") == "µ ≤ ✓ 😀"
+    doc = pdf_document.PagedDocument(title="t\udfff", header_lines=["run \ud800"])
+    doc.paragraph("body \udc00 text")
+    pages = _text(doc.finish())
+    assert "run \ufffd" in pages[0] and "body \ufffd text" in pages[0]
