@@ -5,7 +5,9 @@
   requirement of the project (the base and the ``service`` extra) satisfied by what is
   installed (``packaging`` evaluates the specifiers and markers);
 - files: the SHA-256 of each installed project file against the release manifest
-  (:mod:`service.qualification.manifest`); a missing, changed or unlisted file is named.
+  (:mod:`service.qualification.manifest`); a missing, changed or unlisted file is named. The
+  manifest does not vouch for itself: its own SHA-256 is reported, to be compared with the one
+  published with the release.
 """
 
 from __future__ import annotations
@@ -45,6 +47,7 @@ class InstallationResult:
     items: list[Item] = field(default_factory=list)
     distributions: dict[str, str] = field(default_factory=dict)
     files_checked: int = 0
+    manifest_sha256: str | None = None
     file_differences: list[release_manifest.FileDifference] = field(default_factory=list)
 
     @property
@@ -60,7 +63,7 @@ class InstallationResult:
         return {"passed": self.passed, "python": self.python, "platform": self.platform,
                 "project_version": self.project_version,
                 "items": [asdict(i) for i in self.items], "distributions": self.distributions,
-                "files_checked": self.files_checked,
+                "files_checked": self.files_checked, "manifest_sha256": self.manifest_sha256,
                 "file_differences": [asdict(d) for d in self.file_differences]}
 
 
@@ -103,10 +106,14 @@ def qualify_installation(root: Path | None = None,
                          manifest: Mapping[str, Any] | None = None) -> InstallationResult:
     """Check this installation (or the files under ``root`` against ``manifest``)."""
     root = root or release_manifest.install_root()
-    manifest = manifest if manifest is not None else release_manifest.read_manifest()
+    manifest_sha256 = None
+    if manifest is None:
+        manifest = release_manifest.read_manifest()
+        manifest_sha256 = release_manifest.sha256_of(release_manifest.MANIFEST_PATH)
     python = platform.python_version()
     result = InstallationResult(python=python, platform=platform.platform(),
-                                project_version=release_manifest.project_version())
+                                project_version=release_manifest.project_version(),
+                                manifest_sha256=manifest_sha256)
     try:
         metadata = importlib.metadata.metadata(release_manifest.PROJECT)
     except importlib.metadata.PackageNotFoundError:

@@ -96,6 +96,7 @@ def render_pdf(document: dict[str, Any]) -> bytes:
 
     pdf.heading("Installation qualification")
     pdf.paragraph(f"Platform: {installation['platform']}")
+    pdf.paragraph(f"Release manifest SHA-256: {installation['manifest_sha256'] or '—'}")
     pdf.data_table(("check", "expected", "found", "result"),
                    [(i["name"], i["expected"], i["found"], "✓ pass" if i["passed"] else "✗ FAIL")
                     for i in installation["items"]], (55, 50, 50, 25))

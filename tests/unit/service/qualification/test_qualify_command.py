@@ -38,6 +38,8 @@ def test_fluxproof_qualify_passes_here_and_writes_json_html_pdf(tmp_path):
     assert document["passed"] is True
     assert document["summary"]["failures"] == []
     assert document["installation"]["files_checked"] == len(manifest.read_manifest()["files"])
+    assert document["installation"]["manifest_sha256"] == manifest.sha256_of(
+        manifest.MANIFEST_PATH)
     cases = {case.id for case in operational.reference_cases()}
     assert {r["id"] for r in document["operation"]} == cases and len(cases) >= 10
     for result in document["operation"]:
