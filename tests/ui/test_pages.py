@@ -156,6 +156,16 @@ def test_each_page_for_each_role(app, store, tokens, run_id, role):
     assert ('href="/ui/audit"' in nav) == (role in ("auditor", "admin"))
 
 
+def test_the_run_page_links_its_archival_pdf(client, tokens, run_id):
+    _signed(client, tokens, "reviewer")
+    page = client.get(f"/ui/runs/{run_id}").get_data(as_text=True)
+    assert f'href="/ui/runs/{run_id}/record.pdf">Archival record (PDF)</a>' in page
+    pdf = client.get(f"/ui/runs/{run_id}/record.pdf")
+    assert pdf.mimetype == "application/pdf" and pdf.get_data().startswith(b"%PDF-")
+    assert f'filename="record-{run_id}.pdf"' in pdf.headers["Content-Disposition"]
+    assert client.get("/ui/runs/none/record.pdf").status_code == 404
+
+
 def test_missing_things_are_html_404_pages(client, tokens):
     _signed(client, tokens, "auditor")
     for path in ("/ui/runs/none", "/ui/cases/none", "/ui/batches/none"):
