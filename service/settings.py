@@ -54,6 +54,13 @@ DEFAULTS: Mapping[str, Any] = {
     "MONTE_CARLO_KEEP_BLOCKS": False,
     # Deliveries of one run before it is ended ``failed`` (a worker lost or killed each time).
     "MAX_RUN_ATTEMPTS": 3,
+    # Cost budgets of one run (worker/engine/cost.py) are multiplied by this factor; raise it
+    # only together with the workers' time and memory limits.
+    "COST_BUDGET_SCALE": 1.0,
+    # Address-space limit of each worker process (Celery pool processes and the embedded run
+    # processes), in MiB; 0 leaves it unlimited. A solve that needs more fails with a memory
+    # error recorded on its run instead of exhausting the host.
+    "WORKER_MEMORY_LIMIT_MB": 4096,
     # Apply the store's migrations when the app starts.
     "AUTO_MIGRATE": True,
     # Dispatch mode: "auto" (celery when BROKER_URL is set, else embedded), "embedded",
@@ -111,6 +118,24 @@ def worker_nice(settings: Mapping[str, Any]) -> int:
         raise ValueError(f"FLUXPROOF_WORKER_NICE: expected a whole number from 0 to 19, "
                          f"got {value!r}")
     return value
+
+
+def cost_budget_scale(settings: Mapping[str, Any]) -> float:
+    """The factor on the engine's cost budgets (``COST_BUDGET_SCALE``, a positive number)."""
+    raw = settings.get("COST_BUDGET_SCALE", DEFAULTS["COST_BUDGET_SCALE"])
+    if isinstance(raw, bool) or not isinstance(raw, int | float) or not raw > 0:
+        raise ValueError(f"FLUXPROOF_COST_BUDGET_SCALE: expected a positive number, got {raw!r}")
+    return float(raw)
+
+
+def worker_memory_limit_bytes(settings: Mapping[str, Any]) -> int | None:
+    """The address-space limit of a worker process in bytes (``WORKER_MEMORY_LIMIT_MB``);
+    None when it is 0 (unlimited)."""
+    raw = settings.get("WORKER_MEMORY_LIMIT_MB", DEFAULTS["WORKER_MEMORY_LIMIT_MB"])
+    if isinstance(raw, bool) or not isinstance(raw, int) or raw < 0:
+        raise ValueError(f"FLUXPROOF_WORKER_MEMORY_LIMIT_MB: expected a whole number of MiB "
+                         f"(0: unlimited), got {raw!r}")
+    return raw * 1024 * 1024 if raw else None
 
 
 def dispatch_mode(settings: Mapping[str, Any]) -> str:

@@ -17,6 +17,7 @@ from typing import Any
 import schemas
 import worker.engine
 from service.batches import close_batch_after_run
+from service.case_intake import intake_budgets
 from service.runs.finite import non_finite_paths_of_record
 from service.runs.waves import BlockSharing, WaveScheduler
 from service.store import Store, default_store
@@ -111,7 +112,8 @@ def check_outcome(run_id: str, case_id: str, document: dict[str, Any], *,
         options = ({} if monte_carlo is None
                    else monte_carlo_options(monte_carlo[0], run_id, document, monte_carlo[1]))
         # check_case validates the stored case again (CaseError when it no longer passes).
-        result = worker.engine.check_case(document, **options)
+        result = worker.engine.check_case(document, budgets=intake_budgets(),
+                                          **options)
         record = dict(result)
         record["run_id"] = run_id
         record["case_id"] = case_id
