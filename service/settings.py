@@ -61,6 +61,11 @@ DEFAULTS: Mapping[str, Any] = {
     # processes), in MiB; 0 leaves it unlimited. A solve that needs more fails with a memory
     # error recorded on its run instead of exhausting the host.
     "WORKER_MEMORY_LIMIT_MB": 4096,
+    # The recovery sweep (service/recovery.py): seconds between sweeps, and the age in seconds
+    # of an unfinished run before one the broker does not know about counts as lost. It runs in
+    # the API process and in every worker (beat is not needed), one at a time.
+    "RECOVERY_INTERVAL": 30,
+    "RECOVERY_AFTER": 60,
     # Apply the store's migrations when the app starts.
     "AUTO_MIGRATE": True,
     # Dispatch mode: "auto" (celery when BROKER_URL is set, else embedded), "embedded",
