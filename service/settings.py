@@ -43,7 +43,12 @@ DEFAULTS: Mapping[str, Any] = {
     # background work: on a host that also serves the API, the API then keeps the CPU when
     # both want it, and the workers still use every cycle the API leaves.
     "WORKER_NICE": 10,
-    # Threads of the embedded executor (no broker).
+    # How the embedded executor runs a run: "process" (a run process of its own per
+    # EMBEDDED_WORKERS, so TASK_SOFT_TIME_LIMIT, TASK_TIME_LIMIT and WORKER_MEMORY_LIMIT_MB hold
+    # as on workers) or "thread" (in the service process, no limits; for tests that replace the
+    # engine in-process). An in-memory SQLite store always uses threads.
+    "EMBEDDED_ISOLATION": "process",
+    # Run processes (threads with EMBEDDED_ISOLATION=thread) of the embedded executor.
     "EMBEDDED_WORKERS": 2,
     # Monte Carlo blocks of one run in flight at once (the run's own process computes one of
     # them): the number of worker pool processes, across machines, that should share a large
@@ -141,6 +146,18 @@ def worker_memory_limit_bytes(settings: Mapping[str, Any]) -> int | None:
         raise ValueError(f"FLUXPROOF_WORKER_MEMORY_LIMIT_MB: expected a whole number of MiB "
                          f"(0: unlimited), got {raw!r}")
     return raw * 1024 * 1024 if raw else None
+
+
+def embedded_isolation(settings: Mapping[str, Any], store_url: str) -> str:
+    """``EMBEDDED_ISOLATION`` ("process" or "thread"); "thread" for an in-memory SQLite store,
+    which another process cannot open."""
+    value = str(settings.get("EMBEDDED_ISOLATION") or DEFAULTS["EMBEDDED_ISOLATION"])
+    if value not in ("process", "thread"):
+        raise ValueError(f"FLUXPROOF_EMBEDDED_ISOLATION: expected process or thread, got "
+                         f"{value!r}")
+    in_memory = store_url.startswith("sqlite") and (
+        store_url in ("sqlite://", "sqlite:///:memory:") or "mode=memory" in store_url)
+    return "thread" if in_memory else value
 
 
 def dispatch_mode(settings: Mapping[str, Any]) -> str:

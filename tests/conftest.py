@@ -112,8 +112,11 @@ def dispatch_mode() -> str:
 
 @pytest.fixture
 def app(data_dir: Path, dispatch_mode: str) -> Iterator[Flask]:
+    # Embedded runs in the test's own threads: the controlled engine replaces the engine in
+    # this process (the run processes are tested in tests/unit/service/test_run_processes.py).
     application = create_app({"TESTING": True, "DATA_DIR": str(data_dir),
-                              "DATABASE_URL": TEST_DATABASE_URL, "DISPATCH": dispatch_mode})
+                              "DATABASE_URL": TEST_DATABASE_URL, "DISPATCH": dispatch_mode,
+                              "EMBEDDED_ISOLATION": "thread"})
     yield application
     shutdown_app(application)
 
