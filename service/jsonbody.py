@@ -18,6 +18,7 @@ import math
 import re
 from typing import Any
 
+import numpy as np
 from flask import request
 
 from service.errors import MalformedBody, UnsupportedMediaType, ValidationFailed
@@ -29,10 +30,14 @@ JSON_MEDIA_TYPES = ("application/json",)
 #: parser far from Python's recursion limit.
 MAX_JSON_DEPTH = 32
 
-#: A JSON string token (escapes included) or one bracket: strings are skipped whole, so a
+#: A JSON string token (escapes included): removed before the brackets are counted, so a
 #: bracket inside a string does not count.
-_STRING_OR_BRACKET = re.compile(r'"(?:[^"\\]|\\.)*"|[\[\]{}]')
+_STRING = re.compile(r'"(?:[^"\\]|\\.)*"')
 _LONE_SURROGATE = re.compile("[\ud800-\udfff]")
+#: A surrogate written as an escape: the only way one reaches a string of UTF-8 text.
+_SURROGATE_ESCAPE = re.compile(r"\\u[dD][89a-fA-F]")
+_OPENING = np.frombuffer(b"[{", dtype=np.uint8)
+_CLOSING = np.frombuffer(b"]}", dtype=np.uint8)
 
 
 class _NonFinite:
@@ -42,13 +47,24 @@ class _NonFinite:
         self.literal = literal
 
 
-def _parse_constant(literal: str) -> _NonFinite:
-    return _NonFinite(literal)
 
+class _NumberHooks:
+    """``json.loads`` hooks that put a placeholder for each non-finite number and remember
+    that they did (so an ordinary body is not walked for them)."""
 
-def _parse_float(text: str) -> float | _NonFinite:
-    value = float(text)
-    return value if math.isfinite(value) else _NonFinite(text)
+    def __init__(self) -> None:
+        self.non_finite = False
+
+    def constant(self, literal: str) -> _NonFinite:
+        self.non_finite = True
+        return _NonFinite(literal)
+
+    def float(self, text: str) -> float | _NonFinite:
+        value = float(text)
+        if math.isfinite(value):
+            return value
+        self.non_finite = True
+        return _NonFinite(text)
 
 
 def _reject_duplicates(pairs: list[tuple[str, Any]]) -> dict[str, Any]:
@@ -68,16 +84,9 @@ def nesting_depth_exceeds(text: str, limit: int = MAX_JSON_DEPTH) -> bool:
     """
     if text.count("[") + text.count("{") <= limit:
         return False
-    depth = 0
-    for match in _STRING_OR_BRACKET.finditer(text):
-        token = match.group()
-        if token in ("[", "{"):
-            depth += 1
-            if depth > limit:
-                return True
-        elif token in ("]", "}"):
-            depth -= 1
-    return False
+    codes = np.frombuffer(_STRING.sub("", text).encode("utf-8"), dtype=np.uint8)
+    steps = np.isin(codes, _OPENING).astype(np.int64) - np.isin(codes, _CLOSING)
+    return bool(steps.size) and int(np.cumsum(steps).max()) > limit
 
 
 def has_lone_surrogate(text: str) -> bool:
@@ -123,8 +132,9 @@ def parse_strict_json(data: bytes) -> Any:
                             "levels; no request needs that.",
                             errors=[{"path": "", "message": "nesting deeper than "
                                      f"{MAX_JSON_DEPTH} levels"}])
+    hooks = _NumberHooks()
     try:
-        value = json.loads(text, parse_constant=_parse_constant, parse_float=_parse_float,
+        value = json.loads(text, parse_constant=hooks.constant, parse_float=hooks.float,
                            object_pairs_hook=_reject_duplicates)
     except json.JSONDecodeError as exc:
         raise MalformedBody(f"The body is not valid JSON: {exc.msg} at line {exc.lineno} "
@@ -134,7 +144,8 @@ def parse_strict_json(data: bytes) -> Any:
     except RecursionError as exc:  # a guard behind the depth scan
         raise MalformedBody("The body nests too deeply to be read.") from exc
     found: list[dict[str, str]] = []
-    _find_unacceptable(value, "", found)
+    if hooks.non_finite or _SURROGATE_ESCAPE.search(text):
+        _find_unacceptable(value, "", found)
     if found:
         raise ValidationFailed("The body holds values that are not acceptable JSON data "
                                "(non-finite numbers, or lone surrogates in text).", errors=found)

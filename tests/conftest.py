@@ -169,6 +169,8 @@ def controlled_engine(monkeypatch: pytest.MonkeyPatch):
 
     engine = Controlled()
     monkeypatch.setattr(worker.engine, "check_case", engine)
+    # It replaces the engine in this process: an embedded app must run its runs here too.
+    monkeypatch.setenv("FLUXPROOF_EMBEDDED_ISOLATION", "thread")
     return engine
 
 

@@ -15,6 +15,7 @@ from click.testing import CliRunner
 from service.cli import main
 from tests.api.support import bearer, make_case
 from tests.security.hostile_cases import long_transient, steep_many_layer_steady
+from tests.ui.support import sign_in
 
 GIB = 2**30
 
@@ -115,3 +116,13 @@ def test_error_lists_are_capped_with_a_count(sec_app, sec_tokens):
     assert response.status_code == 422
     assert len(problem["errors"]) == 100
     assert problem["errors_total"] > 100
+
+
+@pytest.mark.parametrize("page", ["/ui/runs", "/ui/audit"])
+def test_an_offset_beyond_any_store_is_400_on_the_pages(sec_app, sec_tokens, page):
+    client = sec_app.test_client()
+    sign_in(client, sec_tokens["admin"])
+    assert client.get(f"{page}?offset=2").status_code == 200
+    response = client.get(f"{page}?offset={2**64}")
+    assert response.status_code == 400
+    assert "offset" in response.get_data(as_text=True)
