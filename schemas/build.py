@@ -10,6 +10,7 @@ every error found.
 from __future__ import annotations
 
 import dataclasses
+import re
 from collections.abc import Mapping
 from dataclasses import dataclass
 from types import MappingProxyType
@@ -242,6 +243,33 @@ def oversized_lists(doc: Mapping) -> list[dict[str, str]]:
     return errors
 
 
+_LONE_SURROGATE = re.compile("[\ud800-\udfff]")
+
+
+def lone_surrogate_paths(value: Any, path: str = "") -> list[dict[str, str]]:
+    """``{path, message}`` for every string (key or value) of ``value`` that holds a lone UTF-16
+    surrogate: JSON's ``"\\ud800"`` escape parses into one, and it is no character (it cannot
+    be stored, hashed or printed as UTF-8)."""
+    found: list[dict[str, str]] = []
+    if isinstance(value, str):
+        if _LONE_SURROGATE.search(value):
+            found.append({"path": path, "message": "holds a lone UTF-16 surrogate (an unpaired "
+                          "\\ud800-\\udfff escape), which is not a character"})
+    elif isinstance(value, Mapping):
+        for key, item in value.items():
+            key_text = str(key)
+            item_path = f"{path}.{key_text}" if path else key_text
+            if _LONE_SURROGATE.search(key_text):
+                item_path = f"{path}.{ascii(key_text)}" if path else ascii(key_text)
+                found.append({"path": item_path, "message": "a key holds a lone UTF-16 "
+                              "surrogate, which is not a character"})
+            found.extend(lone_surrogate_paths(item, item_path))
+    elif isinstance(value, list | tuple):
+        for index, item in enumerate(value):
+            found.extend(lone_surrogate_paths(item, f"{path}[{index}]"))
+    return found
+
+
 def load_case(doc: Any) -> dict:
     """Load a case with every field and cross-field rule; the loaded data holds SIValues.
 
@@ -254,9 +282,9 @@ def load_case(doc: Any) -> dict:
         raise CaseError(
             [{"path": "", "message": f"a case document is a JSON object, got {type(doc).__name__}"}]
         )
-    too_long = oversized_lists(doc)
-    if too_long:
-        raise CaseError(too_long)
+    refused = oversized_lists(doc) or lone_surrogate_paths(doc)
+    if refused:
+        raise CaseError(refused)
     try:
         data = _CASE_SCHEMA.load(doc)
         errors: list[tuple[str, str]] = []

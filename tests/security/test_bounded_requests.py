@@ -126,3 +126,11 @@ def test_an_offset_beyond_any_store_is_400_on_the_pages(sec_app, sec_tokens, pag
     response = client.get(f"{page}?offset={2**64}")
     assert response.status_code == 400
     assert "offset" in response.get_data(as_text=True)
+
+
+def test_the_command_line_check_names_a_lone_surrogate(tmp_path):
+    case_file = tmp_path / "surrogate.json"
+    case_file.write_text('{"schema_version": 1, "title": "a\\ud800b"}')
+    result = CliRunner().invoke(main, ["check", str(case_file)])
+    assert result.exit_code != 0
+    assert "title: holds a lone UTF-16 surrogate" in result.output
