@@ -9,6 +9,7 @@ from schemas.build import validate_case
 from schemas.canonical import case_sha256
 from schemas.errors import CaseError
 from schemas.record import failed_record, succeeded_record
+from worker.engine.cost import DEFAULT_BUDGETS, Budgets
 from worker.engine.design.monte_carlo import BlockResult
 from worker.engine.design.requirements import design_block
 from worker.engine.design.runner import (
@@ -33,7 +34,8 @@ __all__ = ["CaseError", "check_case", "uncertainty_block"]
 
 
 def check_case(case: dict, *, on_progress: Callable[[int, int], None] | None = None,
-               seed: int | None = None, scheduler: BlockScheduler = sequential_blocks) -> dict:
+               seed: int | None = None, scheduler: BlockScheduler = sequential_blocks,
+               budgets: Budgets = DEFAULT_BUDGETS) -> dict:
     """Check one case document and return its record.
 
     Parameters
@@ -60,10 +62,11 @@ def check_case(case: dict, *, on_progress: Callable[[int, int], None] | None = N
     ``uncertainty`` has got, after each block; ``seed`` is the Monte Carlo seed when the case
     gives none (else one is drawn; the record holds it either way); ``scheduler`` runs the
     Monte Carlo blocks (:data:`worker.engine.design.runner.BlockScheduler`; a service shares
-    them among workers, each computing :func:`uncertainty_block`).
+    them among workers, each computing :func:`uncertainty_block`); ``budgets``: what the case
+    may cost (:mod:`worker.engine.cost`; a case over budget raises CaseError).
     """
     started_at = utc_now()
-    validated = validate_case(case)
+    validated = validate_case(case, budgets)
     digest = case_sha256(case)
     independent: IndependentProblem | None = None
     try:
@@ -107,7 +110,7 @@ def _add_design_checks(record: dict) -> None:
 def uncertainty_block(case: dict, seed: int, index: int) -> BlockResult:
     """Monte Carlo block ``index`` of ``case``'s uncertainty with ``seed``: what a worker
     computes when a service shares a run's blocks (the same block wherever it runs)."""
-    validated = validate_case(case)
+    validated = validate_case(case, budgets=None)  # its run was accepted within budget
     independent = build_independent_problem(validated.original)
     runner = DesignRunner(validated.problem, independent, validated.design, run_problem)
     return runner.block(seed, index)

@@ -10,7 +10,8 @@ from flask import Flask
 from service import errors
 from service.api import api
 from service.api.context import Services
-from service.dispatch import make_dispatcher
+from service.dispatch import CeleryDispatcher, make_dispatcher
+from service.recovery import SweepTimer, recovery_settings
 from service.runs import pending_run_ids
 from service.settings import DEFAULTS, database_url, dispatch_mode
 from service.store import Store
@@ -25,7 +26,8 @@ def create_app(test_config: dict[str, Any] | None = None) -> Flask:
 
     Opens the store (applying migrations when ``AUTO_MIGRATE``), chooses the dispatcher
     (Celery when ``BROKER_URL`` is set, else the embedded thread pool) and registers the API.
-    In embedded mode, runs left unfinished by an earlier process are sent again at start.
+    In embedded mode, runs left unfinished by an earlier process are sent again at start; with
+    Celery (outside tests) a thread runs the recovery sweep (:class:`service.recovery.SweepTimer`).
     """
     app = Flask(__name__, static_folder=None)
     app.config.from_mapping(DEFAULTS)
@@ -54,6 +56,12 @@ def create_app(test_config: dict[str, Any] | None = None) -> Flask:
     app.register_blueprint(api)
     init_ui(app)
 
+    if isinstance(dispatcher, CeleryDispatcher) and not app.config.get("TESTING"):
+        # The recovery sweep runs here too, so no deployment needs beat for it.
+        interval, after = recovery_settings(settings)
+        app.extensions["fluxproof.recovery"] = SweepTimer(
+            store, dispatcher.celery, interval=interval, older_than_s=after,
+            name="fluxproof-api-recovery").start()
     if mode == "embedded" and settings["AUTO_MIGRATE"]:
         pending = pending_run_ids(store)
         if pending:
@@ -64,6 +72,9 @@ def create_app(test_config: dict[str, Any] | None = None) -> Flask:
 
 def shutdown_app(app: Flask) -> None:
     """Finish queued embedded work and close the store's connections."""
+    timer = app.extensions.pop("fluxproof.recovery", None)
+    if timer is not None:
+        timer.stop()
     services = app.extensions.get("fluxproof")
     if services is not None:
         services.dispatcher.shutdown()

@@ -112,8 +112,11 @@ def dispatch_mode() -> str:
 
 @pytest.fixture
 def app(data_dir: Path, dispatch_mode: str) -> Iterator[Flask]:
+    # Embedded runs in the test's own threads: the controlled engine replaces the engine in
+    # this process (the run processes are tested in tests/unit/service/test_run_processes.py).
     application = create_app({"TESTING": True, "DATA_DIR": str(data_dir),
-                              "DATABASE_URL": TEST_DATABASE_URL, "DISPATCH": dispatch_mode})
+                              "DATABASE_URL": TEST_DATABASE_URL, "DISPATCH": dispatch_mode,
+                              "EMBEDDED_ISOLATION": "thread"})
     yield application
     shutdown_app(application)
 
@@ -166,6 +169,8 @@ def controlled_engine(monkeypatch: pytest.MonkeyPatch):
 
     engine = Controlled()
     monkeypatch.setattr(worker.engine, "check_case", engine)
+    # It replaces the engine in this process: an embedded app must run its runs here too.
+    monkeypatch.setenv("FLUXPROOF_EMBEDDED_ISOLATION", "thread")
     return engine
 
 

@@ -16,6 +16,7 @@ from schemas.case import CaseSchema, WholeMatch
 from schemas.errors import flatten_messages
 from schemas.result import SHA256_PATTERN, ResultSchema
 from service.errors import ValidationFailed
+from service.listing import MAX_OFFSET
 from service.store.models import DECISIONS, RUN_STATES
 
 COMMENT_MAX = 4000
@@ -66,7 +67,7 @@ class BatchRequestSchema(StrictSchema):
 
 class PageQuerySchema(StrictSchema):
     limit = fields.Integer(load_default=50, validate=validate.Range(min=1, max=500))
-    offset = fields.Integer(load_default=0, validate=validate.Range(min=0))
+    offset = fields.Integer(load_default=0, validate=validate.Range(min=0, max=MAX_OFFSET))
 
 
 class CaseListQuerySchema(PageQuerySchema):

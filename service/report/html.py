@@ -136,7 +136,7 @@ def _normalised(record: dict[str, Any], document: dict[str, Any]) -> dict[str, A
     if isinstance(record.get("inputs"), dict):
         return record["inputs"]
     try:
-        return dict(schemas.validate_case(document).normalised)
+        return dict(schemas.validate_case(document, budgets=None).normalised)
     except schemas.CaseError:
         return None
 

@@ -131,6 +131,17 @@ class RunBlock(Base):
     computed_at: Mapped[datetime] = mapped_column(UtcDateTime())
 
 
+class ServiceLease(Base):
+    """A named lease that one process at a time holds until ``expires_at``
+    (:mod:`service.store.leases`): the recovery sweep's turn among API and worker processes."""
+
+    __tablename__ = "service_leases"
+
+    name: Mapped[str] = mapped_column(String(64), primary_key=True)
+    holder: Mapped[str] = mapped_column(String(200))
+    expires_at: Mapped[datetime] = mapped_column(UtcDateTime())
+
+
 class Signoff(Base):
     __tablename__ = "signoffs"
 

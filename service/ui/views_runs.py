@@ -19,10 +19,7 @@ from service.ui.blueprint import ui
 
 
 def _offset() -> int:
-    try:
-        return max(0, int(request.args.get("offset", "0")))
-    except ValueError:
-        return 0
+    return listing.page_offset(request.args.get("offset"))
 
 
 def parse_filters(args: Any) -> tuple[listing.RunFilters, list[dict[str, str]]]:

@@ -13,12 +13,10 @@ ROLE_NAMES = {"engineer": "fenna.fault-engineer", "reviewer": "rune.fault-review
 
 
 def clean_upkeep_keys(client: Any) -> None:
-    """Delete the recovery sweep's queue and lock, which the lease's clean-up does not know."""
-    from service.recovery import LOCK_KEY
-
+    """Delete the recovery sweep's queue, which the lease's clean-up does not know (the sweep
+    takes turns by a database lease, not a broker key)."""
     for key in client.keys("fluxproof.upkeep*"):
         client.delete(key)
-    client.delete(LOCK_KEY)
 
 
 def make_stack(tmp_path: Path, schema: PostgresSchema, broker_url: str, owner: str,

@@ -13,7 +13,8 @@ from tests.api.support import make_case
 
 @pytest.fixture
 def served(data_dir):  # noqa: F811
-    app = create_app({"DATA_DIR": str(data_dir), "DISPATCH": "embedded"})
+    app = create_app({"DATA_DIR": str(data_dir), "DISPATCH": "embedded",
+                      "EMBEDDED_ISOLATION": "thread"})  # the controlled engine is in-process
     store = app.extensions["fluxproof"].store
     tokens = {role: create_token(store, role=role, name=f"{role}-person")[1]
               for role in ("engineer", "reviewer", "admin")}
