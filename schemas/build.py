@@ -20,6 +20,7 @@ from marshmallow import ValidationError
 from schemas.case import CaseSchema, SIValue, case_basis, case_rule_errors
 from schemas.design_rules import DesignRuleError, design_request
 from schemas.errors import CaseError, flatten_messages
+from schemas.text import hidden_character_errors
 from worker.engine import model
 from worker.engine.boundaries import BOUNDARIES
 from worker.engine.design.request import DesignRequest
@@ -214,6 +215,9 @@ def load_case(doc: Any) -> dict:
         raise CaseError(
             [{"path": "", "message": f"a case document is a JSON object, got {type(doc).__name__}"}]
         )
+    hidden = list(hidden_character_errors(doc))
+    if hidden:
+        raise CaseError({"path": p, "message": m} for p, m in hidden)
     try:
         data = _CASE_SCHEMA.load(doc)
         errors: list[tuple[str, str]] = []

@@ -9,7 +9,7 @@ from __future__ import annotations
 
 import re
 
-from tests.api.support import bearer
+from tests.api.support import SIGN, bearer
 
 CSRF_FIELD = re.compile(r'name="csrf_token"\s+value="([^"]+)"')
 
@@ -72,16 +72,16 @@ def test_forms_without_the_csrf_token_are_refused(sec_app, sec_tokens, seeded):
     assert CSRF_FIELD.search(run_page), "the sign-off form must carry a CSRF field"
     action = re.search(r'<form method="post" action="([^"]*signoff[^"]*)"', run_page).group(1)
     no_token = client.post(action,
-                           data={"decision": "approved", "comment": "forged"})
+                           data={"decision": "approved", **SIGN, "comment": "forged"})
     assert no_token.status_code == 400
     other_site = client.post(action,
-                             data={"decision": "approved", "comment": "forged",
+                             data={"decision": "approved", **SIGN, "comment": "forged",
                                    "csrf_token": CSRF_FIELD.search(run_page).group(1)},
                              headers={"Origin": "https://elsewhere.invalid"})
     assert other_site.status_code == 400
     record = sec_app.test_client().get(f"/v1/runs/{seeded['run_id']}",
                                        headers=bearer(sec_tokens["auditor"])).get_json()
     assert record["signoffs"] == []  # none of the refused forms signed anything
-    accepted = client.post(action, data={"decision": "approved", "comment": "checked",
+    accepted = client.post(action, data={"decision": "approved", **SIGN, "comment": "checked",
                                          "csrf_token": CSRF_FIELD.search(run_page).group(1)})
     assert accepted.status_code in (200, 303), accepted.status_code  # the real form works

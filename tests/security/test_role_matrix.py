@@ -11,7 +11,7 @@ from __future__ import annotations
 
 import pytest
 
-from tests.api.support import bearer
+from tests.api.support import SIGN, bearer
 
 ROLES = ("engineer", "reviewer", "auditor", "admin")
 EVERYONE = frozenset(ROLES)
@@ -59,7 +59,7 @@ def _body(method: str, template: str, ids: dict[str, str]):
     if method != "POST":
         return None
     return {"/v1/runs": {"case_id": ids["case_id"]},
-            "/v1/runs/<run_id>/signoffs": {"decision": "rejected", "comment": "matrix"},
+            "/v1/runs/<run_id>/signoffs": {"decision": "rejected", **SIGN, "comment": "matrix"},
             "/v1/batches": {"all": True}}.get(template, make_case(title="role matrix"))
 
 
@@ -129,7 +129,7 @@ def test_a_reviewer_cannot_sign_off_a_run_they_submitted(sec_app, sec_store):
     run_id = client.post("/v1/runs", json={"case": make_case(title="four eyes")},
                          headers=bearer(engineer)).get_json()["run_id"]
     response = client.post(f"/v1/runs/{run_id}/signoffs",
-                           json={"decision": "approved", "comment": "mine"},
+                           json={"decision": "approved", **SIGN, "comment": "mine"},
                            headers=bearer(reviewer))
     assert response.status_code == 403
     assert response.get_json()["type"].endswith("/four-eyes")

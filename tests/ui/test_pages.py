@@ -16,7 +16,7 @@ from sqlalchemy import select, text
 from service.store.models import Signoff
 from service.tokens import create_token, revoke_token
 from service.ui import signin
-from tests.api.support import ROLE_NAMES, bearer, make_case
+from tests.api.support import ROLE_NAMES, SIGN, bearer, make_case
 from tests.ui.support import csrf_of, page_csrf, queue_and_run, sign_in
 
 ROLES = ("engineer", "reviewer", "auditor", "admin")
@@ -78,7 +78,8 @@ def test_a_post_from_another_origin_is_refused(client, tokens, run_id):
     _signed(client, tokens, "reviewer")
     csrf = page_csrf(client, f"/ui/runs/{run_id}")
     response = client.post(f"/ui/runs/{run_id}/signoff",
-                           data={"csrf_token": csrf, "decision": "approved", "comment": "x"},
+                           data={"csrf_token": csrf, "decision": "approved", **SIGN,
+                                 "comment": "x"},
                            headers={"Origin": "https://evil.example"})
     assert response.status_code == 400 and "another site" in response.get_data(as_text=True)
 
@@ -89,8 +90,8 @@ def test_signoff_without_or_with_a_foreign_csrf_token_is_refused(app, client, st
     other = app.test_client()
     _signed(other, tokens, "reviewer")
     foreign = page_csrf(other, f"/ui/runs/{run_id}")
-    for data in ({"decision": "approved", "comment": "x"},
-                 {"decision": "approved", "comment": "x", "csrf_token": foreign}):
+    for data in ({"decision": "approved", **SIGN, "comment": "x"},
+                 {"decision": "approved", **SIGN, "comment": "x", "csrf_token": foreign}):
         response = client.post(f"/ui/runs/{run_id}/signoff", data=data)
         assert response.status_code == 400
     with store.transaction() as session:
@@ -185,7 +186,7 @@ def test_a_reviewer_approves_and_the_record_is_signed(client, store, tokens, run
     page = client.get(f"/ui/runs/{run_id}").get_data(as_text=True)
     assert "Approve this record" in page and "Reject this record" in page
     response = client.post(f"/ui/runs/{run_id}/signoff",
-                           data={"csrf_token": csrf_of(page), "decision": "approved",
+                           data={"csrf_token": csrf_of(page), "decision": "approved", **SIGN,
                                  "comment": "flux and mass balance checked"})
     assert response.status_code == 303 and response.headers["Location"] == f"/ui/runs/{run_id}"
     signed = client.get(f"/ui/runs/{run_id}").get_data(as_text=True)
@@ -203,6 +204,7 @@ def test_a_reviewer_rejects_with_reasons(client, tokens, run_id):
     _signed(client, tokens, "reviewer")
     csrf = page_csrf(client, f"/ui/runs/{run_id}")
     client.post(f"/ui/runs/{run_id}/signoff", data={"csrf_token": csrf, "decision": "rejected",
+                                                    **SIGN,
                                                     "comment": "wrong diffusivity basis"})
     page = client.get(f"/ui/runs/{run_id}").get_data(as_text=True)
     assert "decision-rejected" in page and "wrong diffusivity basis" in page
@@ -230,7 +232,7 @@ def test_the_submitter_sees_why_they_cannot_approve_their_own_run(app, store, ru
     assert "You submitted this run (erin.engineer), so you cannot sign it off" in page
     assert "four-eyes" in page and "Approve this record" not in page
     forced = client.post(f"/ui/runs/{run_id}/signoff",
-                         data={"csrf_token": csrf_of(page), "decision": "approved",
+                         data={"csrf_token": csrf_of(page), "decision": "approved", **SIGN,
                                "comment": "my own work looks fine"})
     assert forced.status_code == 403  # refused by sign_off with the reason the page gave
     assert "You submitted this run (erin.engineer), so you cannot sign it off" \
@@ -246,7 +248,7 @@ def test_an_engineer_has_no_signoff_form_and_is_refused(client, store, tokens, r
     assert "You submitted this run (erin.engineer)" in page
     assert "Approve this record" not in page
     forced = client.post(f"/ui/runs/{run_id}/signoff",
-                         data={"csrf_token": csrf_of(page), "decision": "approved",
+                         data={"csrf_token": csrf_of(page), "decision": "approved", **SIGN,
                                "comment": "x"})
     assert forced.status_code == 403
     with store.transaction() as session:

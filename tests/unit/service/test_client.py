@@ -7,15 +7,14 @@ import pytest
 from service.app import create_app, shutdown_app
 from service.client import ApiError, Client
 from service.server import BackgroundServer
-from service.tokens import create_token
-from tests.api.support import make_case
+from tests.api.support import make_case, person_token
 
 
 @pytest.fixture
 def served(data_dir):  # noqa: F811
     app = create_app({"DATA_DIR": str(data_dir), "DISPATCH": "embedded"})
     store = app.extensions["fluxproof"].store
-    tokens = {role: create_token(store, role=role, name=f"{role}-person")[1]
+    tokens = {role: person_token(store, role, f"{role}-person")
               for role in ("engineer", "reviewer", "admin")}
     server = BackgroundServer(app).start()
     yield server.url, tokens
