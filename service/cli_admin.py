@@ -30,7 +30,7 @@ def _store():
 
 @click.group("token")
 def token() -> None:
-    """Bearer tokens."""
+    """Bearer tokens of people."""
 
 
 @token.command("create")

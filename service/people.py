@@ -183,6 +183,9 @@ def disable_user(store: Store, login: str, *, actor: str) -> Person:
                                                              Token.revoked.is_(False))
                                          ).scalars():
                 token.revoked = True
+                audit.append_event(session, actor=actor, kind="token.revoked", subject=token.id,
+                                   payload={"login": row.login, "name": token.name,
+                                            "reason": "user disabled"})
             for browser in session.execute(select(BrowserSession).where(
                     BrowserSession.user_id == row.id, BrowserSession.ended_at.is_(None))
                     ).scalars():

@@ -332,7 +332,7 @@ def fuzz_tokens(fuzz_app) -> dict[str, str]:
 
 @pytest.fixture
 def sec_app(tmp_path, monkeypatch):
-    yield from fresh_app(tmp_path, monkeypatch, SECRET_KEY="security-test-secret-0123456789")
+    yield from fresh_app(tmp_path, monkeypatch, SECRET_KEY="security-test-secret-0123456789abcdef")
 
 
 @pytest.fixture

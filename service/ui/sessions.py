@@ -1,8 +1,8 @@
 """Browser sessions kept on the server: the cookie carries only a random session id.
 
-The store keeps the SHA-256 of the id (someone reading the database cannot take a session
-over), who signed in, when, when the session was last seen, and the session's small data (the
-form token, messages to show once). A session ends on sign-out, when its person is disabled,
+The store keeps the SHA-256 of the id, who signed in, when, when the session was last seen, and
+the session's small data (the form token, messages to show once), through
+:mod:`service.browser_sessions`. A session ends on sign-out, when its person is disabled,
 after ``SESSION_IDLE_MINUTES`` without a request and ``SESSION_MAX_HOURS`` after sign-in,
 whichever comes first; an ended session is never resumed. Signing in gives a fresh id (no
 session fixation). The cookie is HttpOnly, SameSite=Lax, limited to ``/ui``, and ``Secure``
@@ -12,25 +12,19 @@ or ``SESSION_COOKIE_SECURE`` is true.
 
 from __future__ import annotations
 
-import hashlib
-import secrets
-from datetime import datetime, timedelta
+from datetime import UTC, datetime, timedelta
 from typing import Any
 
 from flask import Flask, Request, Response, request
 from flask.sessions import SessionInterface, SessionMixin
-from sqlalchemy import delete, or_, update
 from werkzeug.datastructures import CallbackDict
 
-from service.store.models import BrowserSession, User, utc_now
+from service import browser_sessions
+from service.browser_sessions import Ended, Resumed
 
 COOKIE_NAME = "fluxproof_session"
 #: The last-seen time is written at most this often for a session whose data did not change.
 TOUCH_SECONDS = 30
-
-
-def session_digest(session_id: str) -> str:
-    return hashlib.sha256(session_id.encode("utf-8")).hexdigest()
 
 
 class ServerSession(CallbackDict, SessionMixin):  # type: ignore[misc]
@@ -58,7 +52,7 @@ class ServerSession(CallbackDict, SessionMixin):  # type: ignore[misc]
         self.end_reason = "replaced by a sign-in"
         self.clear()
         self.user_id = user_id
-        self.signed_in_at = utc_now()
+        self.signed_in_at = datetime.now(UTC)
         self.modified = True
 
     def end(self, reason: str) -> None:
@@ -101,7 +95,7 @@ def cookie_secure(app: Flask, request: Request) -> bool:
 
 
 class ServerSessionInterface(SessionInterface):
-    """Flask's session, stored in ``browser_sessions`` (:mod:`service.store`)."""
+    """Flask's session, kept by :mod:`service.browser_sessions`."""
 
     def _store(self, app: Flask) -> Any:
         return app.extensions["fluxproof"].store
@@ -110,68 +104,37 @@ class ServerSessionInterface(SessionInterface):
         presented = request.cookies.get(COOKIE_NAME)
         if not presented or len(presented) > 200:
             return ServerSession()
-        digest = session_digest(presented)
-        now = utc_now()
-        with self._store(app).transaction() as db:
-            row = db.get(BrowserSession, digest)
-            if row is None or row.ended_at is not None:
-                return ServerSession()
-            reason = None
-            if now - row.last_seen_at > idle_limit(app):
-                reason = "idle timeout"
-            elif row.signed_in_at is not None and now - row.signed_in_at > absolute_limit(app):
-                reason = "absolute timeout"
-            elif row.user_id is not None:
-                user = db.get(User, row.user_id)
-                if user is None or user.disabled:
-                    reason = "user disabled"
-            if reason is not None:
-                row.ended_at, row.end_reason = now, reason
-                fresh = ServerSession()
-                fresh.expired_reason = reason if row.user_id else None
-                return fresh
-            return ServerSession(dict(row.data or {}), session_id=presented,
-                                 user_id=row.user_id, signed_in_at=row.signed_in_at,
-                                 last_seen_at=row.last_seen_at)
+        found = browser_sessions.resume(self._store(app), presented, idle=idle_limit(app),
+                                        absolute=absolute_limit(app))
+        if isinstance(found, Resumed):
+            return ServerSession(found.data, session_id=presented, user_id=found.user_id,
+                                 signed_in_at=found.signed_in_at,
+                                 last_seen_at=found.last_seen_at)
+        fresh = ServerSession()
+        if isinstance(found, Ended) and found.signed_in:
+            fresh.expired_reason = found.reason
+        return fresh
 
     def save_session(self, app: Flask, session: SessionMixin, response: Response) -> None:
         assert isinstance(session, ServerSession)
-        now = utc_now()
         store = self._store(app)
-        domain, path = self.get_cookie_domain(app), "/ui"
-        with store.transaction() as db:
-            if session.end_reason is not None and session.session_id is not None:
-                db.execute(update(BrowserSession)
-                           .where(BrowserSession.id_sha256 == session_digest(session.session_id),
-                                  BrowserSession.ended_at.is_(None))
-                           .values(ended_at=now, end_reason=session.end_reason))
-                session.session_id = None
-            if session.session_id is None:
-                if not session.modified or (not dict(session) and session.user_id is None):
-                    if session.end_reason is not None:
-                        response.delete_cookie(COOKIE_NAME, path=path, domain=domain)
-                    return
-                self._forget_old(app, db, now)
-                session.session_id = secrets.token_urlsafe(32)
-                db.add(BrowserSession(id_sha256=session_digest(session.session_id),
-                                      user_id=session.user_id, data=dict(session),
-                                      created_at=now, signed_in_at=session.signed_in_at,
-                                      last_seen_at=now))
-            elif session.modified or session.last_seen_at is None or \
-                    (now - session.last_seen_at).total_seconds() > TOUCH_SECONDS:
-                db.execute(update(BrowserSession)
-                           .where(BrowserSession.id_sha256 == session_digest(session.session_id))
-                           .values(data=dict(session), last_seen_at=now))
-            else:
+        path, domain = "/ui", self.get_cookie_domain(app)
+        if session.end_reason is not None and session.session_id is not None:
+            browser_sessions.end(store, session.session_id, session.end_reason)
+            session.session_id = None
+        if session.session_id is None:
+            if not session.modified or (not dict(session) and session.user_id is None):
+                if session.end_reason is not None:
+                    response.delete_cookie(COOKIE_NAME, path=path, domain=domain)
                 return
+            session.session_id = browser_sessions.start(
+                store, user_id=session.user_id, data=dict(session),
+                signed_in_at=session.signed_in_at, idle=idle_limit(app),
+                absolute=absolute_limit(app))
+        elif session.modified or session.last_seen_at is None or \
+                (datetime.now(UTC) - session.last_seen_at).total_seconds() > TOUCH_SECONDS:
+            browser_sessions.touch(store, session.session_id, dict(session))
+        else:
+            return
         response.set_cookie(COOKIE_NAME, session.session_id, httponly=True, samesite="Lax",
-                            secure=cookie_secure(app, request), path=path,
-                            domain=domain)
-
-    def _forget_old(self, app: Flask, db: Any, now: datetime) -> None:
-        """Delete sessions nobody can resume: anonymous ones idle past the idle limit, any
-        seen last before the absolute limit (the audit trail keeps sign-in and sign-out)."""
-        db.execute(delete(BrowserSession).where(or_(
-            (BrowserSession.user_id.is_(None))
-            & (BrowserSession.last_seen_at < now - idle_limit(app)),
-            BrowserSession.last_seen_at < now - absolute_limit(app) - idle_limit(app))))
+                            secure=cookie_secure(app, request), path=path, domain=domain)

@@ -15,7 +15,7 @@ from types import MappingProxyType
 from typing import Any
 from urllib.parse import quote
 
-from flask import current_app, g, redirect, request, session, url_for
+from flask import current_app, flash, g, redirect, request, session, url_for
 
 from service import auth_events
 from service.api import ROLE_MATRIX
@@ -109,6 +109,9 @@ def require_person() -> Any:
         return None
     person = _session_identity()
     if person is None:
+        ended = _server_session().expired_reason
+        if ended:
+            flash(f"Your session ended ({ended}); sign in again.", "error")
         if request.method == "GET":
             target = request.full_path.rstrip("?")
             return redirect(url_for("ui.login") + "?next=" + quote(target, safe="/"), code=303)

@@ -4,7 +4,7 @@ from __future__ import annotations
 
 from typing import Any
 
-from flask import current_app, flash, g, redirect, render_template, request, session, url_for
+from flask import current_app, flash, g, redirect, render_template, request, url_for
 
 from service.ui import signin
 from service.ui.blueprint import ui
@@ -17,10 +17,8 @@ def index():
 
 def _login_page(status: int = 200, **context: Any):
     config = current_app.config
-    current = session._get_current_object()  # type: ignore[attr-defined]
     return render_template("ui_login.html", idle_minutes=config.get("SESSION_IDLE_MINUTES"),
                            max_hours=config.get("SESSION_MAX_HOURS"),
-                           expired=getattr(current, "expired_reason", None),
                            **{"error": None, "login": "", **context}), status
 
 

@@ -9,15 +9,14 @@ from __future__ import annotations
 
 import re
 
-from tests.api.support import SIGN, bearer
+from tests.api.support import SIGN, TEST_PASSWORD, bearer
+from tests.ui.support import login_of, sign_in
 
 CSRF_FIELD = re.compile(r'name="csrf_token"\s+value="([^"]+)"')
 
 
 def _signed_in(client, token: str):
-    page = client.get("/ui/login")
-    csrf = CSRF_FIELD.search(page.get_data(as_text=True)).group(1)
-    response = client.post("/ui/login", data={"token": token, "csrf_token": csrf})
+    response = sign_in(client, token)
     assert response.status_code == 303, response.get_data(as_text=True)[:500]
     return client
 
@@ -51,8 +50,8 @@ def test_the_session_cookie_is_httponly_and_samesite(sec_app, sec_tokens):
     client = sec_app.test_client()
     page = client.get("/ui/login")
     csrf = CSRF_FIELD.search(page.get_data(as_text=True)).group(1)
-    response = client.post("/ui/login", data={"token": sec_tokens["reviewer"],
-                                              "csrf_token": csrf})
+    response = client.post("/ui/login", data={"login": login_of(client, sec_tokens["reviewer"]),
+                                              "password": TEST_PASSWORD, "csrf_token": csrf})
     cookie = next(v for k, v in response.headers.items()
                   if k == "Set-Cookie" and v.startswith("fluxproof_session="))
     assert "HttpOnly" in cookie and "SameSite=Lax" in cookie
@@ -61,10 +60,10 @@ def test_the_session_cookie_is_httponly_and_samesite(sec_app, sec_tokens):
 def test_forms_without_the_csrf_token_are_refused(sec_app, sec_tokens, seeded):
     client = sec_app.test_client()
     client.get("/ui/login")  # the session now has a token; the form below does not send it
-    refused = client.post("/ui/login", data={"token": sec_tokens["reviewer"]})
+    person = {"login": login_of(client, sec_tokens["reviewer"]), "password": TEST_PASSWORD}
+    refused = client.post("/ui/login", data=person)
     assert refused.status_code == 400
-    forged = client.post("/ui/login", data={"token": sec_tokens["reviewer"],
-                                            "csrf_token": "forged"})
+    forged = client.post("/ui/login", data={**person, "csrf_token": "forged"})
     assert forged.status_code == 400
 
     _signed_in(client, sec_tokens["reviewer"])

@@ -7,7 +7,7 @@ import pytest
 from service.app import create_app, shutdown_app
 from service.client import ApiError, Client
 from service.server import BackgroundServer
-from tests.api.support import make_case, person_token
+from tests.api.support import TEST_PASSWORD, make_case, person_token
 
 
 @pytest.fixture
@@ -36,8 +36,10 @@ def test_submit_wait_report_signoff(served, controlled_engine):  # noqa: F811
         assert engineer.get_run(run_id)["run_id"] == run_id
         assert "<h2>Checks</h2>" in engineer.report(run_id)
         assert engineer.wait(engineer.submit_stored(stored["case_id"]), timeout=30)
-        signed = reviewer.signoff(run_id, "approved", "fine")
-        assert signed["decision"] == "approved"
+        signed = reviewer.signoff(run_id, "approved", "fine", password=TEST_PASSWORD,
+                                  meaning="responsibility")
+        assert (signed["decision"], signed["meaning"]) == ("approved", "responsibility")
+        assert signed["name"] == "reviewer-person" and signed["signature"]
     with Client(url, tokens["admin"]) as admin:
         batch_id = admin.start_batch(all_cases=True)
         assert admin.get_batch(batch_id)["batch_id"] == batch_id
