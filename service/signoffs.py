@@ -199,10 +199,10 @@ def verify_signature(record: Mapping[str, Any], signoff: Mapping[str, Any],
             and server_keys.verify(public_pem, data, signoff["signature"]))
 
 
-#: Fields :func:`service.runs.record_of` adds to the stored result document.
-RUN_FIELDS = frozenset({"run_id", "case_id", "submitted_by", "batch_id", "attempts",
-                        "created_at", "started_at", "finished_at", "signoffs", "progress",
-                        "case_author"})
+#: Fields :func:`service.runs.record_of` adds to the stored result document (which holds its
+#: own ``run_id`` and ``case_id``; ``status``, ``verdict`` and ``error`` are the same values).
+RUN_FIELDS = frozenset({"submitted_by", "batch_id", "attempts", "created_at", "started_at",
+                        "finished_at", "signoffs", "progress", "case_author"})
 
 
 def sign_off(store: Store, run_id: str, identity: Identity, *, decision: str, comment: str,
