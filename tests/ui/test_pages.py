@@ -357,6 +357,64 @@ def test_an_engineer_has_no_signoff_form_and_is_refused(client, store, tokens, r
         assert session.execute(select(Signoff)).first() is None
 
 
+def test_signing_on_the_page_takes_the_meaning_and_the_password_again(client, store, tokens,
+                                                                      run_id):
+    _signed(client, tokens, "reviewer")
+    page = client.get(f"/ui/runs/{run_id}").get_data(as_text=True)
+    assert 'name="meaning"' in page and 'name="password"' in page
+    form = {"csrf_token": csrf_of(page), "decision": "approved", "comment": "checked",
+            "meaning": "approval"}
+    missing = client.post(f"/ui/runs/{run_id}/signoff", data=form)
+    assert missing.status_code == 422
+    assert "<code>password</code>: give your password again" in missing.get_data(as_text=True)
+    wrong = client.post(f"/ui/runs/{run_id}/signoff", data={**form, "password": "nope"})
+    assert wrong.status_code == 401 and "the password is not yours" in wrong.get_data(
+        as_text=True)
+    with store.transaction() as session:
+        assert session.execute(select(Signoff)).first() is None
+    signed = client.post(f"/ui/runs/{run_id}/signoff", data={**form, "password": TEST_PASSWORD})
+    assert signed.status_code == 303
+    page = client.get(f"/ui/runs/{run_id}").get_data(as_text=True)
+    assert 'id="signature-line"' in page and "approval, approved" in page
+
+
+def test_a_failed_verification_offers_only_rejection(client, store, tokens, monkeypatch):
+    import worker.engine
+    from tests.api.support import controlled_result
+
+    monkeypatch.setattr(worker.engine, "check_case", lambda case, **_: controlled_result(
+        case, {"flux_outer": 1.0}, verdict="fail"))
+    failing = queue_and_run(store, make_case(title="a verification that fails"))
+    _signed(client, tokens, "reviewer")
+    page = client.get(f"/ui/runs/{failing}").get_data(as_text=True)
+    assert "a failed verification cannot be approved" in page
+    assert "Approve this record" not in page and "Reject this record" in page
+    forced = client.post(f"/ui/runs/{failing}/signoff", data={
+        "csrf_token": csrf_of(page), "decision": "approved", "comment": "x",
+        "meaning": "approval", "password": TEST_PASSWORD})
+    assert forced.status_code == 409
+
+
+def test_deviations_show_on_the_run_page_and_ask_for_a_justification(client, store, tokens):
+    # The real engine: a case that loosens the mass balance limit.
+    loose = queue_and_run(store, make_case(title="loose limits",
+                                           tolerances={"mass_balance": 1e6}))
+    _signed(client, tokens, "reviewer")
+    page = client.get(f"/ui/runs/{loose}").get_data(as_text=True)
+    assert 'id="deviations"' in page and "<code>mass_balance</code>" in page
+    assert 'name="justification"' in page
+    form = {"csrf_token": csrf_of(page), "decision": "approved", "comment": "checked",
+            "meaning": "approval", "password": TEST_PASSWORD}
+    refused = client.post(f"/ui/runs/{loose}/signoff", data=form)
+    assert refused.status_code == 422
+    assert "<code>justification</code>: required to approve" in refused.get_data(as_text=True)
+    accepted = client.post(f"/ui/runs/{loose}/signoff",
+                           data={**form, "justification": "bench data cover it"})
+    assert accepted.status_code == 303
+    page = client.get(f"/ui/runs/{loose}").get_data(as_text=True)
+    assert "Justification of the deviations" in page and "bench data cover it" in page
+
+
 def test_a_failed_run_cannot_be_signed(client, store, tokens, controlled_engine):
     controlled_engine.status = "failed"
     failed = queue_and_run(store, make_case(title="a run that fails"))
