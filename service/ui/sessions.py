@@ -80,18 +80,25 @@ def absolute_limit(app: Flask) -> timedelta:
     return timedelta(hours=_setting_int(app, "SESSION_MAX_HOURS", 8))
 
 
-def cookie_secure(app: Flask, request: Request) -> bool:
-    """``Secure`` when forced by ``SESSION_COOKIE_SECURE`` (true), or, on ``auto`` (the
-    default), when the request came over TLS."""
+def cookie_secure_setting(app: Flask) -> bool | None:
+    """``SESSION_COOKIE_SECURE``: True (always), False (never) or None (``auto``: when the
+    request came over TLS)."""
     setting = app.config.get("SESSION_COOKIE_SECURE", "auto")
-    if setting in (True, "true", "1", 1):
+    if setting is True or setting in ("true", "1"):
         return True
-    if setting in (False, "false", "0", 0):
+    if setting is False or setting in ("false", "0"):
         return False
     if setting != "auto":
         raise ValueError(f"FLUXPROOF_SESSION_COOKIE_SECURE: expected auto, true or false, "
                          f"got {setting!r}")
-    return request.is_secure
+    return None
+
+
+def cookie_secure(app: Flask, request: Request) -> bool:
+    """``Secure`` when forced by ``SESSION_COOKIE_SECURE``, or, on ``auto`` (the default),
+    when the request came over TLS."""
+    forced = cookie_secure_setting(app)
+    return request.is_secure if forced is None else forced
 
 
 class ServerSessionInterface(SessionInterface):

@@ -7,7 +7,13 @@ from werkzeug.middleware.proxy_fix import ProxyFix
 
 from service.server_keys import installation_secret
 from service.ui.blueprint import ui
-from service.ui.sessions import COOKIE_NAME, ServerSessionInterface
+from service.ui.sessions import (
+    COOKIE_NAME,
+    ServerSessionInterface,
+    absolute_limit,
+    cookie_secure_setting,
+    idle_limit,
+)
 
 #: No scripts at all, styles from this site (and the inline ones of the SVG figures and the
 #: standalone report), forms only to this site, never framed.
@@ -46,6 +52,7 @@ def init_app(app: Flask) -> None:
     if hops:
         app.wsgi_app = ProxyFix(app.wsgi_app, x_for=hops, x_proto=hops,  # type: ignore[method-assign]
                                 x_host=hops)
+    idle_limit(app), absolute_limit(app), cookie_secure_setting(app)  # refuse bad settings now
     app.config["SESSION_COOKIE_NAME"] = COOKIE_NAME
     app.session_interface = ServerSessionInterface()
     app.register_blueprint(ui)

@@ -71,3 +71,17 @@ def test_a_session_forged_with_the_old_default_secret_opens_nothing(tmp_path, mo
         assert client.get("/ui/runs").status_code == 303
     finally:
         shutdown_app(app)
+
+
+@pytest.mark.parametrize("setting,value,expected", [
+    ("SESSION_IDLE_MINUTES", 0, "FLUXPROOF_SESSION_IDLE_MINUTES"),
+    ("SESSION_MAX_HOURS", "eight", "FLUXPROOF_SESSION_MAX_HOURS"),
+    ("SESSION_COOKIE_SECURE", "sometimes", "FLUXPROOF_SESSION_COOKIE_SECURE"),
+    ("PROXY_FIX_HOPS", -1, "FLUXPROOF_PROXY_FIX_HOPS"),
+])
+def test_bad_session_settings_are_refused_at_start_naming_them(tmp_path, monkeypatch, setting,
+                                                               value, expected):
+    clear_fluxproof_env(monkeypatch)
+    with pytest.raises(ValueError, match=expected):
+        create_app({"TESTING": True, "DATA_DIR": str(tmp_path), "DISPATCH": "inline",
+                    setting: value})
