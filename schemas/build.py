@@ -12,6 +12,7 @@ from __future__ import annotations
 import dataclasses
 from collections.abc import Mapping
 from dataclasses import dataclass
+from itertools import islice
 from types import MappingProxyType
 from typing import Any
 
@@ -29,6 +30,8 @@ from worker.engine.reactions import REACTIONS
 from worker.engine.units import si_unit
 
 _CASE_SCHEMA = CaseSchema()
+#: Strings with refused characters listed at most (a hostile document may hold many).
+MAX_HIDDEN_ERRORS = 50
 
 #: Parameters of each reaction and boundary kind, in the order the normalised document lists them.
 _REACTION_PARAMETERS = {
@@ -215,8 +218,11 @@ def load_case(doc: Any) -> dict:
         raise CaseError(
             [{"path": "", "message": f"a case document is a JSON object, got {type(doc).__name__}"}]
         )
-    hidden = list(hidden_character_errors(doc))
+    hidden = list(islice(hidden_character_errors(doc), MAX_HIDDEN_ERRORS + 1))
     if hidden:
+        if len(hidden) > MAX_HIDDEN_ERRORS:
+            hidden[MAX_HIDDEN_ERRORS:] = [("", f"more strings hold refused characters; the "
+                                               f"first {MAX_HIDDEN_ERRORS} are listed")]
         raise CaseError({"path": p, "message": m} for p, m in hidden)
     try:
         data = _CASE_SCHEMA.load(doc)
