@@ -22,15 +22,19 @@ REFUSED_CATEGORIES = frozenset({"Cc", "Cf", "Co", "Cs", "Cn", "Zl", "Zp"})
 BIDI_CONTROLS = frozenset(chr(c) for c in (*range(0x202A, 0x202F), *range(0x2066, 0x206A)))
 #: Controls a multi-line text (a comment, a justification) may keep.
 LINE_BREAKS = frozenset("\n\r\t")
+#: White space a document's strings may carry around their text.
+EDGE_SPACE = " \t\n\r"
 
 __all__ = ["BIDI_CONTROLS", "REFUSED_CATEGORIES", "hidden_character_errors",
            "hidden_character_problem"]
 
 
-def hidden_character_problem(text: str, *, multiline: bool = False) -> str | None:
+def hidden_character_problem(text: str, *, multiline: bool = False, offset: int = 0
+                             ) -> str | None:
     """Why ``text`` may not be shown to a reader (its first refused character named by code
-    point and category), or None when every character is visible."""
-    for position, char in enumerate(text):
+    point, category and position, counted from ``offset``), or None when every character is
+    visible."""
+    for position, char in enumerate(text, start=offset):
         if multiline and char in LINE_BREAKS:
             continue
         category = unicodedata.category(char)
@@ -50,13 +54,18 @@ def _join(prefix: str, key: Any) -> str:
 
 def hidden_character_errors(document: Any) -> Iterator[tuple[str, str]]:
     """``(path, message)`` for every string of a JSON document (keys too) holding a refused
-    character, in document order; paths as the case schema writes them (``layers[1].name``).
-    Walks with its own stack, so no nesting depth can exhaust Python's."""
+    character within its text (white space around it is let be), in document order; paths
+    as the case schema writes them (``layers[1].name``). Walks with its own stack, so no
+    nesting depth can exhaust Python's."""
     stack: list[tuple[str, Any]] = [("", document)]
     while stack:
         path, value = stack.pop()
         if isinstance(value, str):
-            problem = hidden_character_problem(value)
+            # Surrounding white space (a trailing line break after a unit) is ignored, as the
+            # case schema ignores it; inside the text no control is accepted.
+            core = value.strip(EDGE_SPACE)
+            offset = len(value) - len(value.lstrip(EDGE_SPACE))
+            problem = hidden_character_problem(core, offset=offset)
             if problem is not None:
                 yield path, problem
         elif isinstance(value, dict):

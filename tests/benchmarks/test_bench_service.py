@@ -44,6 +44,7 @@ from pathlib import Path
 import pytest
 import requests
 
+from tests.api.support import app_keys
 from tests.integration.invented_cases import distinct_steady_cases
 from tests.integration.real_services import (
     PostgresSchema,
@@ -359,7 +360,9 @@ def _free_port() -> int:
 
 
 def _start_gunicorn(schema, lease, log_dir: Path, port: int) -> subprocess.Popen:
-    env = clean_environment({**_settings(schema, lease), "FLUXPROOF_BIND": f"127.0.0.1:{port}",
+    keys = {f"FLUXPROOF_{name}": value for name, value in app_keys(log_dir).items()}
+    env = clean_environment({**_settings(schema, lease), **keys,
+                             "FLUXPROOF_BIND": f"127.0.0.1:{port}",
                              "FLUXPROOF_ACCESS_LOG": str(log_dir / "access.log"),
                              "FLUXPROOF_ERROR_LOG": str(log_dir / "api.log")})
     process = subprocess.Popen(

@@ -34,6 +34,12 @@ def test_line_breaks_pass_only_where_a_text_may_have_lines():
     assert hidden_character_problem("one\ntwo") is not None
 
 
+def test_white_space_around_a_document_string_is_let_be_but_not_inside_it():
+    assert list(hidden_character_errors({"thickness": "1 mm\n", "title": "\t T "})) == []
+    ((path, message),) = hidden_character_errors({"title": " a\nb"})
+    assert path == "title" and "U+000A, at position 2" in message
+
+
 def test_paths_cover_keys_nested_lists_and_values():
     document = {"title": "ok", "layers": [{"name": "ok"}, {"name": "x\u200by"}],
                 "tags": ["a", "\u202e"], "odd\u200bkey": 1}
