@@ -38,6 +38,10 @@ SUBCOMMANDS: dict[str, LazyCommand] = {
     "db": LazyCommand("service.cli_service:db", "The store's schema."),
     "demo": LazyCommand("service.demo:demo", "Start the embedded service, submit the demo cases "
                         "over HTTP, print the verdicts."),
+    "qualify": LazyCommand("service.cli_qualify:qualify",
+                           "Qualify this installation: versions and file hashes against the "
+                           "release manifest, and published-reference cases run here; exit 1 "
+                           "naming whatever differs."),
     "reverify": LazyCommand("service.cli_admin:reverify",
                             "Re-verify stored cases as a batch; report drift."),
     "serve": LazyCommand("service.cli_service:serve", "Run the HTTP service (embedded: SQLite, "

@@ -1,4 +1,4 @@
-"""Runs: queue, read the record, the HTML report, sign-off."""
+"""Runs: queue, read the record, the HTML report, the archival PDF, sign-off."""
 
 from __future__ import annotations
 
@@ -15,8 +15,10 @@ from service.api.bodies import (
 )
 from service.api.context import services
 from service.api.declare import Raw, Reply, Returns, declare
+from service.api.pdf import pdf_response
 from service.auth import ENGINEER, READERS, current_identity
 from service.report.html import render_report
+from service.report.pdf_record import render_record_pdf
 from service.signoffs import SIGNOFF_ROLES
 
 
@@ -45,6 +47,16 @@ def get_run(run_id: str):
 def get_run_report(run_id: str):
     record, document = runs.get_run_and_case(services().store, run_id)
     return render_report(record, document)
+
+
+@declare(api, "get", "/runs/<run_id>/report.pdf",
+         summary="The archival record as a PDF: every page headed with the run id, the case's "
+                 "SHA-256 and page x of y", roles=READERS,
+         responses={200: Returns("PDF record", Raw("application/pdf",
+                                                   {"type": "string", "format": "binary"}))})
+def get_run_report_pdf(run_id: str):
+    record, document = runs.get_run_and_case(services().store, run_id)
+    return pdf_response(render_record_pdf(record, document), f"record-{run_id}.pdf")
 
 
 @declare(api, "post", "/runs/<run_id>/signoffs",

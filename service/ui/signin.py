@@ -37,6 +37,7 @@ PAGE_ROLES: Mapping[str, frozenset[str]] = MappingProxyType({
     "ui.run": ROLE_MATRIX["api.get_run"],
     "ui.run_report": ROLE_MATRIX["api.get_run_report"],
     "ui.run_record": ROLE_MATRIX["api.get_run"],
+    "ui.run_record_pdf": ROLE_MATRIX["api.get_run_report_pdf"],
     "ui.signoff": ROLE_MATRIX["api.create_signoff"],
     "ui.case": ROLE_MATRIX["api.list_case_runs"],
     "ui.batches": ROLE_MATRIX["api.get_batch"],

@@ -11,8 +11,10 @@ from service import listing, signoffs
 from service import runs as run_service
 from service.api.bodies import COMMENT_MAX
 from service.api.context import services
+from service.api.pdf import pdf_response
 from service.errors import Conflict, Forbidden, Unauthorized, ValidationFailed
 from service.report.html import render_report, report_context
+from service.report.pdf_record import render_record_pdf
 from service.store.models import DECISIONS, MEANINGS, RUN_STATES
 from service.ui.blueprint import ui
 
@@ -86,6 +88,12 @@ def run(run_id: str):
 def run_report(run_id: str):
     record, document = run_service.get_run_and_case(services().store, run_id)
     return render_report(record, document)
+
+
+@ui.get("/runs/<run_id>/record.pdf")
+def run_record_pdf(run_id: str):
+    record, document = run_service.get_run_and_case(services().store, run_id)
+    return pdf_response(render_record_pdf(record, document), f"record-{run_id}.pdf")
 
 
 @ui.get("/runs/<run_id>/record.json")

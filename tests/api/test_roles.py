@@ -27,6 +27,7 @@ EXPECTED_ACCESS = {
     "api.create_run": ("POST", "/v1/runs", {"engineer"}),
     "api.get_run": ("GET", "/v1/runs/{run_id}", ALL),
     "api.get_run_report": ("GET", "/v1/runs/{run_id}/report", ALL),
+    "api.get_run_report_pdf": ("GET", "/v1/runs/{run_id}/report.pdf", ALL),
     "api.create_signoff": ("POST", "/v1/runs/{run_id}/signoffs", {"reviewer"}),
     "api.create_batch": ("POST", "/v1/batches", {"admin"}),
     "api.get_batch": ("GET", "/v1/batches/{batch_id}", ALL),

@@ -31,6 +31,7 @@ EXPECTED = {
     ("POST", "/v1/runs"): frozenset({"engineer"}),
     ("GET", "/v1/runs/<run_id>"): EVERYONE,
     ("GET", "/v1/runs/<run_id>/report"): EVERYONE,
+    ("GET", "/v1/runs/<run_id>/report.pdf"): EVERYONE,
     ("POST", "/v1/runs/<run_id>/signoffs"): frozenset({"reviewer"}),
     ("POST", "/v1/batches"): frozenset({"admin"}),
     ("GET", "/v1/batches/<batch_id>"): EVERYONE,

@@ -228,6 +228,7 @@ def test_behind_a_trusted_tls_proxy_the_cookie_is_secure(data_dir, tokens):
 def _pages(run_id: str, case_id: str, batch_id: str) -> dict[str, str]:
     return {"runs": "/ui/runs", "run": f"/ui/runs/{run_id}",
             "report": f"/ui/runs/{run_id}/report", "record": f"/ui/runs/{run_id}/record.json",
+            "record_pdf": f"/ui/runs/{run_id}/record.pdf",
             "case": f"/ui/cases/{case_id}", "batches": "/ui/batches",
             "batch": f"/ui/batches/{batch_id}", "audit": "/ui/audit"}
 
@@ -244,6 +245,9 @@ def test_each_page_for_each_role(app, store, tokens, run_id, role):
         response = client.get(path)
         expected = 403 if name == "audit" and role in ("engineer", "reviewer") else 200
         assert response.status_code == expected, (role, name)
+        if response.mimetype == "application/pdf":
+            assert response.get_data().startswith(b"%PDF-")
+            continue
         body = response.get_data(as_text=True)
         if expected == 403:
             assert f"you are signed in as {ROLE_NAMES[role]} ({role})" in body
@@ -253,6 +257,16 @@ def test_each_page_for_each_role(app, store, tokens, run_id, role):
             assert "do not replace, design verification testing" in body
     nav = client.get("/ui/runs").get_data(as_text=True)
     assert ('href="/ui/audit"' in nav) == (role in ("auditor", "admin"))
+
+
+def test_the_run_page_links_its_archival_pdf(client, tokens, run_id):
+    _signed(client, tokens, "reviewer")
+    page = client.get(f"/ui/runs/{run_id}").get_data(as_text=True)
+    assert f'href="/ui/runs/{run_id}/record.pdf">Archival record (PDF)</a>' in page
+    pdf = client.get(f"/ui/runs/{run_id}/record.pdf")
+    assert pdf.mimetype == "application/pdf" and pdf.get_data().startswith(b"%PDF-")
+    assert f'filename="record-{run_id}.pdf"' in pdf.headers["Content-Disposition"]
+    assert client.get("/ui/runs/none/record.pdf").status_code == 404
 
 
 def test_missing_things_are_html_404_pages(client, tokens):
