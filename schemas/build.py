@@ -13,6 +13,7 @@ import dataclasses
 import re
 from collections.abc import Mapping
 from dataclasses import dataclass
+from itertools import islice
 from types import MappingProxyType
 from typing import Any
 
@@ -33,6 +34,7 @@ from schemas.case import (
 )
 from schemas.design_rules import DesignRuleError, design_request
 from schemas.errors import CaseError, flatten_messages
+from schemas.text import hidden_character_errors
 from worker.engine import model
 from worker.engine.boundaries import BOUNDARIES
 from worker.engine.cost import DEFAULT_BUDGETS, Budgets, estimate_cost, over_budget
@@ -42,6 +44,8 @@ from worker.engine.reactions import REACTIONS
 from worker.engine.units import si_unit
 
 _CASE_SCHEMA = CaseSchema()
+#: Strings with refused characters listed at most (a hostile document may hold many).
+MAX_HIDDEN_ERRORS = 50
 
 #: Parameters of each reaction and boundary kind, in the order the normalised document lists them.
 _REACTION_PARAMETERS = {
@@ -285,6 +289,12 @@ def load_case(doc: Any) -> dict:
     refused = oversized_lists(doc) or lone_surrogate_paths(doc)
     if refused:
         raise CaseError(refused)
+    hidden = list(islice(hidden_character_errors(doc), MAX_HIDDEN_ERRORS + 1))
+    if hidden:
+        if len(hidden) > MAX_HIDDEN_ERRORS:
+            hidden[MAX_HIDDEN_ERRORS:] = [("", f"more strings hold refused characters; the "
+                                               f"first {MAX_HIDDEN_ERRORS} are listed")]
+        raise CaseError({"path": p, "message": m} for p, m in hidden)
     try:
         data = _CASE_SCHEMA.load(doc)
         errors: list[tuple[str, str]] = []

@@ -24,6 +24,8 @@ from worker.engine.independent_problem import (
     build_independent_problem,
 )
 from worker.engine.input_checks import unit_routes_check, unread_inputs_checks
+from worker.engine.limits import loosened_limits, regime_defaults
+from worker.engine.model import Problem
 from worker.engine.plausibility import input_warnings
 from worker.engine.provenance import provenance_block, utc_now
 from worker.engine.run import run_problem
@@ -80,9 +82,11 @@ def check_case(case: dict, *, on_progress: Callable[[int, int], None] | None = N
         outcome.checks[:0] = input_checks
     except Exception as exc:  # the engine could not produce a result: recorded, not raised
         logger.exception("engine failure for case %s", digest)
-        return failed_record(digest, exc, provenance_block(digest, started_at, utc_now()),
-                             validated.normalised,
-                             design_block(validated.design.requirements, {}, {}))
+        failed = failed_record(digest, exc, provenance_block(digest, started_at, utc_now()),
+                               validated.normalised,
+                               design_block(validated.design.requirements, {}, {}))
+        failed["deviations"] = deviations(validated.problem)
+        return failed
     warnings = input_warnings(validated.problem)
     design = design_block(validated.design.requirements, outcome.quantities, outcome.series,
                           validated.problem.regime.duration)
@@ -93,7 +97,15 @@ def check_case(case: dict, *, on_progress: Callable[[int, int], None] | None = N
                               validated.normalised, design)
     record.update(extra)
     _add_design_checks(record)
+    record["deviations"] = deviations(validated.problem)
     return record
+
+
+def deviations(problem: Problem) -> list[dict]:
+    """The default limits the case loosens, as the record lists them."""
+    return [{"check": name, "default": default, "value": value}
+            for name, default, value in loosened_limits(problem.tolerances,
+                                                        regime_defaults(problem))]
 
 
 def _add_design_checks(record: dict) -> None:

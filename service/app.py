@@ -13,6 +13,7 @@ from service.api.context import Services
 from service.dispatch import CeleryDispatcher, make_dispatcher
 from service.recovery import SweepTimer, recovery_settings
 from service.runs import pending_run_ids
+from service.server_keys import installation_secret, load_signing_key
 from service.settings import DEFAULTS, database_url, dispatch_mode
 from service.store import Store
 from service.store.migrate import upgrade
@@ -28,6 +29,12 @@ def create_app(test_config: dict[str, Any] | None = None) -> Flask:
     (Celery when ``BROKER_URL`` is set, else the embedded thread pool) and registers the API.
     In embedded mode, runs left unfinished by an earlier process are sent again at start; with
     Celery (outside tests) a thread runs the recovery sweep (:class:`service.recovery.SweepTimer`).
+
+    Raises
+    ------
+    SecretError
+        A configuration with its own database and no strong ``FLUXPROOF_SECRET_KEY``, or no
+        ``FLUXPROOF_SIGNING_KEY_FILE`` (:mod:`service.server_keys`): it refuses to start.
     """
     app = Flask(__name__, static_folder=None)
     app.config.from_mapping(DEFAULTS)
@@ -43,6 +50,9 @@ def create_app(test_config: dict[str, Any] | None = None) -> Flask:
     app.config["MAX_CONTENT_LENGTH"] = max_body
     app.config["MAX_BODY_BYTES"] = max_body
     app.json.sort_keys = False
+    app.secret_key = installation_secret(settings)
+    app.config["SECRET_KEY"] = app.secret_key
+    signing_key = load_signing_key(settings)
 
     store = Store(database_url(settings))
     if settings["AUTO_MIGRATE"]:
@@ -50,7 +60,7 @@ def create_app(test_config: dict[str, Any] | None = None) -> Flask:
     mode = dispatch_mode(settings)
     dispatcher = make_dispatcher(mode, store, settings)
     app.extensions["fluxproof"] = Services(store=store, dispatcher=dispatcher,
-                                           settings=settings)
+                                           settings=settings, signing_key=signing_key)
 
     errors.init_app(app)
     app.register_blueprint(api)

@@ -46,7 +46,9 @@ SUBCOMMANDS: dict[str, LazyCommand] = {
                             "Re-verify stored cases as a batch; report drift."),
     "serve": LazyCommand("service.cli_service:serve", "Run the HTTP service (embedded: SQLite, "
                          "in-process runs; with a broker: queue to workers)."),
-    "token": LazyCommand("service.cli_admin:token", "Bearer tokens."),
+    "token": LazyCommand("service.cli_admin:token", "Bearer tokens of people."),
+    "user": LazyCommand("service.cli_people:user", "People: create, change, disable, set "
+                        "a password."),
     "worker": LazyCommand("service.cli_worker:worker",
                           "Run a Celery worker for queued runs (needs FLUXPROOF_BROKER_URL)."),
 }

@@ -27,8 +27,24 @@ DEFAULTS: Mapping[str, Any] = {
     "MAX_BODY_BYTES": 1_048_576,
     # Time of day (UTC, HH:MM) of the nightly re-verification of every stored case.
     "NIGHTLY_AT": "02:30",
-    # Secret for signed cookies of the browser pages; set it in every deployment.
-    "SECRET_KEY": "dev-only-change-me",
+    # The installation's secret (at least 32 characters). Unset on the embedded default: one is
+    # made in DATA_DIR/secret_key (mode 0600); any configuration with DATABASE_URL refuses to
+    # start without a strong one (service.server_keys).
+    "SECRET_KEY": None,
+    # PEM file of the server's Ed25519 signing key (e-signatures); unset on the embedded
+    # default: DATA_DIR/signing_key.pem, created on first start.
+    "SIGNING_KEY_FILE": None,
+    # Browser sessions end after this many minutes without a request ...
+    "SESSION_IDLE_MINUTES": 30,
+    # ... and this many hours after sign-in, whichever comes first.
+    "SESSION_MAX_HOURS": 8,
+    # Secure flag of the session cookie: "auto" (when the request came over TLS), true, false.
+    "SESSION_COOKIE_SECURE": "auto",
+    # Proxies in front of the service whose X-Forwarded-For/-Proto/-Host are trusted (0: none).
+    # Behind one TLS-terminating proxy set 1, so that the cookie is Secure.
+    "PROXY_FIX_HOPS": 0,
+    # Days a new bearer token lives unless its creator says otherwise.
+    "TOKEN_LIFETIME_DAYS": 90,
     # Celery task limits in seconds: the soft limit ends a run ``failed``; the hard limit kills it.
     "TASK_SOFT_TIME_LIMIT": 300,
     "TASK_TIME_LIMIT": 360,

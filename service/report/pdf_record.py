@@ -23,8 +23,12 @@ from service.report.pdf_document import PagedDocument
 from service.report.text_design import limit_lines, sweep_lines, uncertainty_lines
 
 #: Sign-off fields shown first, in this order; any other field follows under its own name.
-SIGNOFF_ORDER = ("printed_name", "reviewer", "meaning", "decision", "at", "comment",
-                 "justification", "record_sha256", "signature")
+SIGNOFF_ORDER = ("name", "reviewer", "meaning", "decision", "at", "comment",
+                 "justification", "record_sha256", "payload_sha256", "signature", "key_id")
+
+
+#: Sign-off fields whose name alone says too little.
+SIGNOFF_LABELS = {"name": "printed name"}
 
 
 def _si(value: Any, significant: int = 6) -> str:
@@ -68,7 +72,7 @@ def signoff_rows(signoff: Mapping[str, Any]) -> list[tuple[str, str]]:
     """(field, value) for every field of one sign-off, the usual ones first."""
     keys = [k for k in SIGNOFF_ORDER if k in signoff]
     keys += [k for k in signoff if k not in keys]
-    return [(_words(k), _text(signoff[k])) for k in keys]
+    return [(SIGNOFF_LABELS.get(k, _words(k)), _text(signoff[k])) for k in keys]
 
 
 def _identity(doc: PagedDocument, record: Mapping[str, Any]) -> None:

@@ -11,7 +11,7 @@ import pypdf
 import pytest
 
 from service.report import pdf_record
-from tests.api.support import bearer, make_case
+from tests.api.support import SIGN, bearer, make_case
 
 
 def _pages(response) -> list[str]:
@@ -40,7 +40,8 @@ def signed_run(client, tokens):
     record = client.get(f"/v1/runs/{run_id}", headers=bearer(tokens["auditor"])).get_json()
     assert record["status"] == "succeeded", record
     signed = client.post(f"/v1/runs/{run_id}/signoffs",
-                         json={"decision": "approved", "comment": "checked at 5 µm ≤ limit"},
+                         json={"decision": "approved", **SIGN,
+                               "comment": "checked at 5 µm ≤ limit"},
                          headers=bearer(tokens["reviewer"]))
     assert signed.status_code == 201, signed.get_json()
     return run_id, record["case_sha256"]
@@ -71,6 +72,7 @@ def test_the_sign_off_is_printed_with_its_fields(client, tokens, signed_run):
     assert "reviewer rafael.reviewer" in signoffs
     assert "decision approved" in signoffs
     assert "comment checked at 5 µm ≤ limit" in signoffs
+    assert "meaning approval" in signoffs and "printed name rafael.reviewer" in signoffs
     assert re.search(r"at \d{4}-\d\d-\d\dT", signoffs)
 
 
@@ -97,7 +99,7 @@ def test_sign_off_fields_are_printed_generically_whatever_they_are():
     """Fields a later sign-off carries (printed name, meaning, signature) are printed under
     their own names, the usual ones first; a field left out is not invented."""
     rows = pdf_record.signoff_rows({"comment": "c", "signature": "abc", "reviewer": "r",
-                                    "printed_name": "Rafael Reviewer", "meaning": "approval",
+                                    "name": "Rafael Reviewer", "meaning": "approval",
                                     "new_field": {"key_id": "k1"}})
     assert rows == [("printed name", "Rafael Reviewer"), ("reviewer", "r"),
                     ("meaning", "approval"), ("comment", "c"), ("signature", "abc"),

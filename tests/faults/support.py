@@ -26,7 +26,7 @@ def make_stack(tmp_path: Path, schema: PostgresSchema, broker_url: str, owner: s
 
 
 def create_tokens(store: Any) -> dict[str, str]:
-    from service.tokens import create_token
+    from tests.api.support import person_token
 
-    return {role: create_token(store, role=role, name=name)[1]
+    return {role: person_token(store, role, name)
             for role, name in ROLE_NAMES.items()}

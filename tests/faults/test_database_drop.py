@@ -28,16 +28,17 @@ ALLOWED_DURING_FAULT = {200, 201, 202, 503}
 
 
 @pytest.fixture
-def proxied_api(pg_schema, migrated_store, monkeypatch):
+def proxied_api(pg_schema, migrated_store, monkeypatch, tmp_path):
     from service.app import create_app, shutdown_app
     from service.server import BackgroundServer
+    from tests.api.support import app_keys
 
     for key in list(__import__("os").environ):
         if key.startswith("FLUXPROOF_"):
             monkeypatch.delenv(key)
     proxy = TcpProxy(POSTGRES_HOST, POSTGRES_PORT).start()
     app = create_app({"DATABASE_URL": proxy.url_for(pg_schema.user, pg_schema.name),
-                      "AUTO_MIGRATE": False, "DISPATCH": "inline"})
+                      "AUTO_MIGRATE": False, "DISPATCH": "inline", **app_keys(tmp_path)})
     server = BackgroundServer(app).start()
     try:
         yield server.url, proxy

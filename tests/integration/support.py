@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+from pathlib import Path
 from typing import Any
 
 from tests.api.support import wait_for_run
@@ -17,17 +18,20 @@ def worker_settings(schema: PostgresSchema, broker: RedisLease) -> dict[str, str
 
 
 def make_app(schema: PostgresSchema, broker: RedisLease):
+    import tempfile
+
     from service.app import create_app
+    from tests.api.support import app_keys
 
     return create_app({"TESTING": True, "DATABASE_URL": schema.url, "BROKER_URL": broker.url,
-                       "DISPATCH": "celery"})
+                       "DISPATCH": "celery", **app_keys(Path(tempfile.gettempdir()))})
 
 
 def create_tokens(store: Any) -> dict[str, str]:
     """role -> a fresh bearer token (each role's own person)."""
-    from service.tokens import create_token
+    from tests.api.support import person_token
 
-    return {role: create_token(store, role=role, name=name)[1]
+    return {role: person_token(store, role, name)
             for role, name in ROLE_NAMES.items()}
 
 
