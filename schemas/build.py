@@ -256,9 +256,11 @@ def lone_surrogate_paths(value: Any, path: str = "") -> list[dict[str, str]]:
     be stored, hashed or printed as UTF-8)."""
     found: list[dict[str, str]] = []
     if isinstance(value, str):
-        if _LONE_SURROGATE.search(value):
-            found.append({"path": path, "message": "holds a lone UTF-16 surrogate (an unpaired "
-                          "\\ud800-\\udfff escape), which is not a character"})
+        lone = _LONE_SURROGATE.search(value)
+        if lone:
+            found.append({"path": path, "message": f"holds a lone UTF-16 surrogate "
+                          f"U+{ord(lone.group()[0]):04X} (an unpaired \\ud800-\\udfff escape), "
+                          "which is not a character"})
     elif isinstance(value, Mapping):
         for key, item in value.items():
             key_text = str(key)

@@ -94,9 +94,11 @@ def has_lone_surrogate(text: str) -> bool:
     return _LONE_SURROGATE.search(text) is not None
 
 
-def _lone_surrogate_message(what: str) -> str:
-    return (f"{what} holds a lone UTF-16 surrogate (an unpaired \\ud800-\\udfff escape), "
-            "which is not a character; send valid Unicode text")
+def _lone_surrogate_message(what: str, text: str) -> str:
+    lone = _LONE_SURROGATE.search(text)
+    point = f" U+{ord(lone.group()[0]):04X}" if lone else ""
+    return (f"{what} holds a lone UTF-16 surrogate{point} (an unpaired \\ud800-\\udfff "
+            "escape), which is not a character; send valid Unicode text")
 
 
 def _find_unacceptable(value: Any, path: str, found: list[dict[str, str]]) -> None:
@@ -106,13 +108,14 @@ def _find_unacceptable(value: Any, path: str, found: list[dict[str, str]]) -> No
                       "give a finite value"})
     elif isinstance(value, str):
         if has_lone_surrogate(value):
-            found.append({"path": path, "message": _lone_surrogate_message("the text")})
+            found.append({"path": path, "message": _lone_surrogate_message("the text", value)})
     elif isinstance(value, dict):
         for key, item in value.items():
             item_path = f"{path}.{key}" if path else str(key)
             if has_lone_surrogate(key):
                 item_path = f"{path}.{key!a}" if path else ascii(key)
-                found.append({"path": item_path, "message": _lone_surrogate_message("the key")})
+                found.append({"path": item_path,
+                              "message": _lone_surrogate_message("the key", key)})
             _find_unacceptable(item, item_path, found)
     elif isinstance(value, list):
         for index, item in enumerate(value):
