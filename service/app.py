@@ -42,7 +42,7 @@ def create_app(test_config: dict[str, Any] | None = None) -> Flask:
     app.config["MAX_BODY_BYTES"] = max_body
     app.json.sort_keys = False
 
-    store = Store(database_url(settings))
+    store = Store(database_url(settings), settings)
     if settings["AUTO_MIGRATE"]:
         upgrade(store)
     mode = dispatch_mode(settings)

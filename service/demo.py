@@ -146,7 +146,8 @@ def run_demo(cases_dir: Traversable, reports_dir: Path, data_dir: Path,
     echo("")
     for line in failures:
         echo(f"failed run: {line}", err=True)
-    audit_store = Store(database_url({"DATA_DIR": str(data_dir)}))
+    demo_settings = {"DATA_DIR": str(data_dir)}
+    audit_store = Store(database_url(demo_settings), demo_settings)
     try:
         report = verify_chain(audit_store)
     finally:

@@ -29,6 +29,14 @@ DEFAULTS: Mapping[str, Any] = {
     "NIGHTLY_AT": "02:30",
     # Secret for signed cookies of the browser pages; set it in every deployment.
     "SECRET_KEY": "dev-only-change-me",
+    # The server's Ed25519 key (PEM file outside the database; service.server_keys). Unset on
+    # the embedded default: DATA_DIR/signing_key.pem; every other deployment names one file
+    # that the API and every worker read (it also keys the audit chain).
+    "SIGNING_KEY_FILE": None,
+    # The audit chain's anchor file (append-only checkpoints the operator keeps apart from the
+    # database; service.store.audit_seal). Unset: DATA_DIR/audit_anchor.jsonl. The API and
+    # every worker must append to the same file.
+    "AUDIT_ANCHOR_FILE": None,
     # Celery task limits in seconds: the soft limit ends a run ``failed``; the hard limit kills it.
     "TASK_SOFT_TIME_LIMIT": 300,
     "TASK_TIME_LIMIT": 360,

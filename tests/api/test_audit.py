@@ -35,7 +35,10 @@ def test_every_change_leaves_an_event(client, tokens, controlled_engine):
 def test_verify_accepts_an_intact_chain(client, tokens):
     client.post("/v1/cases", json=make_case(), headers=bearer(tokens["engineer"]))
     result = client.get("/v1/audit/verify", headers=bearer(tokens["auditor"])).get_json()
-    assert result == {"ok": True, "events": 5, "head_seq": 5, "first_broken": None}
+    assert {k: result[k] for k in ("ok", "events", "head_seq", "first_broken", "findings")} \
+        == {"ok": True, "events": 5, "head_seq": 5, "first_broken": None, "findings": []}
+    assert result["anchor"]["seq"] == 5 and result["anchor"]["checkpoints"] == 5
+    assert result["compared"]["cases"] == 1
 
 
 def test_verify_names_the_edited_event(client, store, tokens):

@@ -122,7 +122,7 @@ def test_concurrent_appends_keep_the_chain_linear(tmp_path):
     try:
         assert errors == []
         report = audit.verify_chain(store)
-        assert report.ok and report.events == 120 and report.head_seq == 120
+        assert report.chain_intact and report.events == 120 and report.head_seq == 120
     finally:
         store.dispose()
 
