@@ -2,6 +2,9 @@
 
 from __future__ import annotations
 
+import os
+import tempfile
+from pathlib import Path
 from typing import Any
 
 from tests.api.support import wait_for_run
@@ -11,16 +14,25 @@ ROLE_NAMES = {"engineer": "ivo.integration-engineer", "reviewer": "rhea.integrat
               "auditor": "aurel.integration-auditor", "admin": "ada.integration-admin"}
 
 
+#: The signing key every process of the PostgreSQL tests shares (a deployment with its own
+#: database names one file for the API and every worker; it also keys the audit chain). The
+#: anchor file is each process's default (``./var/audit_anchor.jsonl`` of the repository, the
+#: working directory of the tests and their workers); each schema is a chain of its own.
+TEST_SIGNING_KEY_FILE = str(Path(tempfile.gettempdir()) / f"fluxproof-test-{os.getuid()}"
+                            / "signing_key.pem")
+
+
 def worker_settings(schema: PostgresSchema, broker: RedisLease) -> dict[str, str]:
     return {"FLUXPROOF_DATABASE_URL": schema.url, "FLUXPROOF_BROKER_URL": broker.url,
-            "FLUXPROOF_AUTO_MIGRATE": "false"}
+            "FLUXPROOF_AUTO_MIGRATE": "false",
+            "FLUXPROOF_SIGNING_KEY_FILE": TEST_SIGNING_KEY_FILE}
 
 
 def make_app(schema: PostgresSchema, broker: RedisLease):
     from service.app import create_app
 
     return create_app({"TESTING": True, "DATABASE_URL": schema.url, "BROKER_URL": broker.url,
-                       "DISPATCH": "celery"})
+                       "DISPATCH": "celery", "SIGNING_KEY_FILE": TEST_SIGNING_KEY_FILE})
 
 
 def create_tokens(store: Any) -> dict[str, str]:

@@ -82,7 +82,10 @@ def test_local_stack_starts_runs_a_case_and_stops_cleanly(stack_env):
     assert body["store"] == {"state": "ok", "mode": "postgresql"}
     assert body["broker"]["state"] == "ok" and body["broker"]["mode"] == "celery"
 
-    store = Store(schema.url)  # the stack migrated this schema
+    # The stack migrated this schema; its processes keep their key in the stack's data dir.
+    data = stack_dir / "data"
+    store = Store(schema.url, {"DATABASE_URL": schema.url, "DATA_DIR": str(data),
+                               "SIGNING_KEY_FILE": str(data / "signing_key.pem")})
     try:
         _token_id, token = create_token(store, role="engineer", name="sol.stack-engineer")
     finally:

@@ -246,3 +246,17 @@ def test_audit_rows_refuse_update_and_delete_on_postgresql(installation):
             with store.transaction() as session:
                 session.execute(text(statement))
     assert verify_both(installation)[0]["ok"] is True
+
+
+def test_a_run_deleted_and_a_run_forged(installation):
+    """Completeness both ways: an event whose run is gone, a run that no event announced."""
+    store, gone = installation["store"], installation["unsigned"]
+    with store.engine.begin() as connection:
+        connection.execute(text("DELETE FROM run_blocks WHERE run_id = :r"), {"r": gone})
+        connection.execute(text("DELETE FROM runs WHERE id = :r"), {"r": gone})
+        connection.execute(text(
+            "INSERT INTO runs (id, case_id, status, submitted_by, created_at, attempts) "
+            "VALUES ('forged-run', :c, 'queued', 'mallory', :t, 0)"),
+            {"c": installation["case_id"], "t": "2026-12-05 00:00:00"})
+    assert_caught(installation, f"is about run {gone}, which is not stored")
+    assert_caught(installation, "run forged-run has no run.queued event")

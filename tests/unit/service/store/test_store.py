@@ -99,7 +99,9 @@ def test_concurrent_appends_keep_the_chain_linear(tmp_path):
 
     if TEST_DATABASE_URL:
         empty_database(TEST_DATABASE_URL)
-        store = Store(TEST_DATABASE_URL, pool_size=8)
+        store = Store(TEST_DATABASE_URL, {"DATABASE_URL": TEST_DATABASE_URL, "DATA_DIR":
+                                          str(tmp_path), "SIGNING_KEY_FILE":
+                                          str(tmp_path / "key.pem")}, pool_size=8)
     else:
         store = Store(f"sqlite:///{tmp_path / 'c.sqlite3'}", pool_size=8)
     upgrade(store)
