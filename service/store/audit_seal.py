@@ -10,9 +10,9 @@ events unnoticed. Two things the database does not hold make that so:
   nobody can recompute a hash, so an event changed in place, or a whole chain rewritten and
   re-hashed, no longer matches. An HMAC per event was chosen over an Ed25519 signature of the
   head now and then because it binds *every* event, including the ones written after the last
-  signed head, costs no more than the SHA-256 it replaces on the chaining's hot path (an
-  Ed25519 signature per event would cost about 50 µs more each), and needs no second table
-  of signatures that an attacker could delete. Its limit: verifying it needs the key, so it is
+  signed head, costs about what the SHA-256 it replaces did on the chaining's hot path (a
+  pre-keyed HMAC is copied per event; an Ed25519 signature per event would add tens of µs
+  each), and needs no second table of signatures that an attacker could delete. Its limit: verifying it needs the key, so it is
   the installation that verifies; the checkpoints below are signed with Ed25519 so that anyone
   holding the published public key can check the anchor itself.
 * **The anchor file** (``FLUXPROOF_AUDIT_ANCHOR_FILE``, else ``DATA_DIR/audit_anchor.jsonl``,
