@@ -12,9 +12,10 @@ events unnoticed. Two things the database does not hold make that so:
   head now and then because it binds *every* event, including the ones written after the last
   signed head, costs about what the SHA-256 it replaces did on the chaining's hot path (a
   pre-keyed HMAC is copied per event; an Ed25519 signature per event would add tens of µs
-  each), and needs no second table of signatures that an attacker could delete. Its limit: verifying it needs the key, so it is
-  the installation that verifies; the checkpoints below are signed with Ed25519 so that anyone
-  holding the published public key can check the anchor itself.
+  each), and needs no second table of signatures that an attacker could delete. Its limit:
+  verifying it needs the key, so it is the installation that verifies; the checkpoints below
+  are signed with Ed25519 so that anyone holding the published public key can check the
+  anchor itself.
 * **The anchor file** (``FLUXPROOF_AUDIT_ANCHOR_FILE``, else ``DATA_DIR/audit_anchor.jsonl``,
   created mode 0600): an append-only JSON Lines file that gets one *checkpoint* each time
   events are chained, after the chaining is committed: the chain's id, the head's sequence
