@@ -20,6 +20,7 @@ from celery.signals import celeryd_after_setup, worker_process_init
 
 from service.celery_client import make_celery_app
 from service.settings import settings_from_env, worker_nice
+from service.store import default_store
 from worker.warmup import warm_up_engine
 
 #: Modules whose tasks the workers register (each under a name of :mod:`service.task_names`).
@@ -37,8 +38,13 @@ def make_celery(settings: Mapping[str, Any] | None = None) -> Celery:
 @celeryd_after_setup.connect
 def warm_up_before_forking(**_signal: Any) -> None:
     """In the worker's main process, before it forks the pool: load the engine
-    (:mod:`worker.warmup`), so that every pool process starts warm."""
+    (:mod:`worker.warmup`), so that every pool process starts warm, and the store's audit
+    seal (no connection is opened), so that a worker without the installation's signing key or
+    a writable anchor file (``FLUXPROOF_SIGNING_KEY_FILE``, ``FLUXPROOF_AUDIT_ANCHOR_FILE``)
+    says so in its log at start, naming them, before any run's chaining fails on it."""
     logger.info("engine warmed up in %.2f s", warm_up_engine())
+    seal = default_store().seal()
+    logger.info("audit chain keyed with key %s, anchored in %s", seal.key_id, seal.anchor)
 
 
 @worker_process_init.connect
