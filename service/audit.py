@@ -39,8 +39,8 @@ from service.store.audit_chain import (
     event_hash,
     write_pending_events,
 )
-from service.store.audit_seal import AnchorError, AuditSeal, read_checkpoints
-from service.store.models import AuditEvent, AuditHead
+from service.store.audit_seal import AnchorError, AuditSeal, read_all_checkpoints
+from service.store.models import AuditEvent, AuditHead, AuditPending
 
 __all__ = ["EVENT_KINDS", "GENESIS_HASH", "ChainReport", "PendingEvent", "append_event",
            "chain_json", "event_hash", "list_events", "verify_chain", "write_pending_events"]
@@ -171,15 +171,14 @@ def _event_fault(event: AuditEvent, expected_seq: int, prev_hash: str, keyed_fro
             "match the recomputed hash: the event's content was changed after it was written")
 
 
-def _check_anchor(seal: AuditSeal, chain: str, keyed_from: int, walk: _Walk, stored_last: int
+def _check_anchor(seal: AuditSeal, chain: str, keyed_from: int, walk: _Walk, stored_last: int,
+                  checkpoints: list[dict[str, Any]], error: AnchorError | None
                   ) -> tuple[dict[str, Any], list[Finding]]:
     """Every checkpoint of ``chain`` in the anchor file against the stored chain."""
     shown: dict[str, Any] = {"file": str(seal.anchor), "chain": chain, "checkpoints": 0,
                              "seq": None, "hash": None, "at": None, "key_id": None}
-    try:
-        checkpoints = read_checkpoints(seal.anchor, chain)
-    except AnchorError as exc:
-        return shown, [Finding("anchor", str(seal.anchor), None, str(exc))]
+    if error is not None:
+        return shown, [Finding("anchor", str(seal.anchor), None, str(error))]
     findings = []
     for point in checkpoints:
         where = f"anchor checkpoint (line {point['line']}, seq {point['seq']}, {point.get('at')})"
@@ -233,16 +232,42 @@ def _first_of_each(findings: list[Finding]) -> list[Finding]:
     return kept
 
 
+def _read_anchor(seal: AuditSeal) -> tuple[dict[str, Any] | None, AnchorError | None]:
+    """Every checkpoint in the anchor file by chain (read before the database, so that each
+    was written after a commit the database's snapshot then holds)."""
+    try:
+        return read_all_checkpoints(seal.anchor), None
+    except AnchorError as exc:
+        return None, exc
+
+
+def _index_outbox(session: Session, index: EventIndex) -> None:
+    """Events committed with their change but not chained yet (PostgreSQL) join the
+    comparison of stored objects, unnumbered."""
+    for row in session.execute(select(AuditPending).order_by(AuditPending.id)).scalars():
+        index.add(IndexedEvent(None, row.actor, row.kind, row.subject, row.payload))
+
+
 def verify_chain(store: Store) -> ChainReport:
     """Verify the chain, the anchor and the stored objects (see the module notes); ``ok``
-    only when nothing differs."""
+    only when nothing differs.
+
+    The database is read in one snapshot (PostgreSQL: a repeatable-read, read-only
+    transaction; SQLite: the write lock), so that writers carrying on meanwhile cause no
+    false finding; the anchor file is read before it.
+    """
     store.chain_audit(only_if_pending=True)
     seal = store.seal()
+    anchored, anchor_error = _read_anchor(seal)
     with store.transaction() as session:
+        if store.dialect == "postgresql":
+            session.connection(execution_options={"isolation_level": "REPEATABLE READ",
+                                                  "postgresql_readonly": True})
         head = session.execute(select(AuditHead).where(AuditHead.id == HEAD_ROW_ID)).scalar_one()
         head_seq, head_hash = head.seq, head.hash
         chain, keyed_from = head.chain_id, head.keyed_from
         walk = _walk_chain(session, keyed_from, seal.chain_key)
+        _index_outbox(session, walk.index)
         objects = compare_stored_objects(session, walk.index)
     stored_last = max(walk.hashes, default=0)
     findings = list(walk.findings)
@@ -251,7 +276,9 @@ def verify_chain(store: Store) -> ChainReport:
                                 f"chain head records seq {head_seq} but the stored events end "
                                 f"at seq {walk.checked}: events were removed or the head was "
                                 "altered"))
-    anchor, anchor_findings = _check_anchor(seal, chain, keyed_from, walk, stored_last)
+    checkpoints = [] if anchored is None else anchored.get(chain, [])
+    anchor, anchor_findings = _check_anchor(seal, chain, keyed_from, walk, stored_last,
+                                            checkpoints, anchor_error)
     findings += anchor_findings + objects.findings
     first = findings[0] if findings else None
     return ChainReport(ok=not findings, events=walk.checked, head_seq=head_seq,

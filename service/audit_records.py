@@ -55,11 +55,18 @@ class Finding:
 
 @dataclass(frozen=True)
 class IndexedEvent:
-    seq: int
+    """An event as compared: ``seq`` None for one committed with its change but still in the
+    outbox (PostgreSQL chains right after the commit)."""
+
+    seq: int | None
     actor: str
     kind: str
     subject: str
     payload: dict[str, Any]
+
+    @property
+    def where(self) -> str:
+        return "not chained yet" if self.seq is None else f"seq {self.seq}"
 
 
 @dataclass
@@ -109,8 +116,8 @@ def _one(report: ObjectReport, events: list[IndexedEvent], what: str, subject: s
     if len(events) > 1:
         report.findings.append(Finding(
             what, subject, events[1].seq,
-            f"{what} {subject} has {len(events)} {kind} events (seq "
-            f"{', '.join(str(e.seq) for e in events)}); one was expected"))
+            f"{what} {subject} has {len(events)} {kind} events ("
+            f"{', '.join(e.where for e in events)}); one was expected"))
     return events[-1]
 
 
@@ -122,7 +129,7 @@ def _differs(report: ObjectReport, what: str, subject: str, event: IndexedEvent,
         report.findings.append(Finding(
             what, subject, event.seq,
             f"{what} {subject} {name}: stored {shown[0]} differs from {shown[1]} in its "
-            f"{event.kind} event (seq {event.seq}){consequence}"))
+            f"{event.kind} event ({event.where}){consequence}"))
 
 
 def _compare_cases(session: Session, index: EventIndex, report: ObjectReport) -> dict[str, str]:
@@ -193,15 +200,15 @@ def _compare_run(run: Run, signoff: Signoff | None, addresses: dict[str, str],
     elif finished:
         report.findings.append(Finding(
             "run", run.id, finished[-1].seq,
-            f"run {run.id} is stored as {run.status} but its run.finished event (seq "
-            f"{finished[-1].seq}) says {finished[-1].payload.get('status')!r}"))
+            f"run {run.id} is stored as {run.status} but its run.finished event ("
+            f"{finished[-1].where}) says {finished[-1].payload.get('status')!r}"))
     if signoff is not None:
         _compare_signoff(run, signoff, index, report)
     elif index.of("signoff.recorded", run.id):
         event = index.of("signoff.recorded", run.id)[-1]
         report.findings.append(Finding(
             "sign-off of run", run.id, event.seq,
-            f"sign-off of run {run.id}: its signoff.recorded event (seq {event.seq}, "
+            f"sign-off of run {run.id}: its signoff.recorded event ({event.where}, "
             f"{event.payload.get('decision')!r} by {event.actor}) has no stored sign-off"))
 
 
@@ -231,7 +238,7 @@ def _compare_existence(session: Session, index: EventIndex, report: ObjectReport
         if subject not in present[table]:
             report.findings.append(Finding(
                 table, subject, events[0].seq,
-                f"event seq {events[0].seq} ({kind}) is about {table} {subject}, which is not "
+                f"event {events[0].where} ({kind}) is about {table} {subject}, which is not "
                 "stored: it was deleted"))
 
 

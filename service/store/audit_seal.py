@@ -154,9 +154,15 @@ class AuditSeal:
 def read_checkpoints(path: Path, chain: str) -> list[dict[str, Any]]:
     """Every checkpoint of chain ``chain`` in the anchor file, in file order ([] when the file
     does not exist). :class:`AnchorError` names a line that is not a checkpoint."""
+    return read_all_checkpoints(path).get(chain, [])
+
+
+def read_all_checkpoints(path: Path) -> dict[str, list[dict[str, Any]]]:
+    """Every checkpoint in the anchor file by chain id, each chain's in file order (each
+    carries its ``line``); {} when the file does not exist."""
     if not path.exists():
-        return []
-    found = []
+        return {}
+    found: dict[str, list[dict[str, Any]]] = {}
     with path.open("rb") as handle:
         for number, raw in enumerate(handle, start=1):
             if not raw.strip():
@@ -169,7 +175,6 @@ def read_checkpoints(path: Path, chain: str) -> list[dict[str, Any]]:
                 raise AnchorError(f"{path}, line {number}: not a checkpoint (expected an "
                                   "object with chain, seq, hash, keyed_from, at, key_id, "
                                   "signature)")
-            if entry.get("chain") == chain:
-                entry["line"] = number
-                found.append(entry)
+            entry["line"] = number
+            found.setdefault(str(entry.get("chain")), []).append(entry)
     return found

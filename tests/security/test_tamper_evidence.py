@@ -13,7 +13,9 @@ a failure when ``CI`` is set).
 from __future__ import annotations
 
 import json
+import threading
 from collections.abc import Iterator
+from concurrent.futures import ThreadPoolExecutor
 from pathlib import Path
 from typing import Any
 
@@ -260,3 +262,35 @@ def test_a_run_deleted_and_a_run_forged(installation):
             {"c": installation["case_id"], "t": "2026-12-05 00:00:00"})
     assert_caught(installation, f"is about run {gone}, which is not stored")
     assert_caught(installation, "run forged-run has no run.queued event")
+
+
+def test_verification_while_runs_are_written_finds_nothing(installation):
+    """Writers carrying on during a verification cause no false finding: the database is
+    read in one snapshot, events committed but not chained yet count, and the anchor file is
+    read first (a checkpoint written meanwhile is never ahead of what is read)."""
+    from service import audit
+    from service.runs import create_run, execute_run
+
+    store, reports, done = installation["store"], [], threading.Event()
+
+    def write(n: int) -> None:
+        run_id = create_run(store, actor=NAMES["engineer"],
+                            document=make_case(title=f"concurrent {n}"))["run_id"]
+        execute_run(run_id, store, actor="worker")
+
+    def verify() -> None:
+        while not done.is_set():
+            reports.append(audit.verify_chain(store))
+
+    checker = threading.Thread(target=verify)
+    checker.start()
+    try:
+        with ThreadPoolExecutor(max_workers=3) as pool:
+            list(pool.map(write, range(9)))
+    finally:
+        done.set()
+        checker.join()
+    reports.append(audit.verify_chain(store))
+    assert len(reports) >= 2
+    assert [f.message for r in reports for f in r.findings] == []
+    assert reports[-1].compared["runs"] == 11
