@@ -2,9 +2,9 @@
 
 Measured side by side in one run: one event's chain hash by the old rule (plain SHA-256) and
 by the keyed rule (HMAC-SHA256, pre-keyed), one checkpoint (Ed25519 signature and one append
-to the anchor file), one SQLite transaction writing a token and its event (chained and checkpointed), and
-``verify_chain`` over a store of runs with their records, per run. Figures printed, nothing
-asserted about time (shared, noisy machines).
+to the anchor file), one SQLite transaction writing a token and its event (chained and
+checkpointed), and ``verify_chain`` over a store of runs with their records, per run.
+Figures printed, nothing asserted about time (shared, noisy machines).
 
 Run with ``make bench``.
 """
