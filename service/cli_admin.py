@@ -11,8 +11,10 @@ from service.audit import verify_chain
 from service.batches import WITHIN_TOLERANCE, batch_summary, get_batch, start_batch
 from service.dispatch import make_dispatcher
 from service.errors import ValidationFailed
+from service.server_keys import SecretError
 from service.settings import dispatch_mode, settings_from_env
 from service.store import default_store
+from service.store.audit_seal import AnchorError
 from service.store.migrate import upgrade
 from service.store.models import FINISHED_STATES, ROLES
 from service.tokens import create_token, revoke_token
@@ -60,7 +62,10 @@ def audit_group() -> None:
 def audit_verify() -> None:
     """Recompute the keyed hash chain, check it against the anchor file and every stored
     case, record and sign-off against its event; exit 1 naming each difference."""
-    report = verify_chain(_store())
+    try:
+        report = verify_chain(_store())
+    except (SecretError, AnchorError, OSError) as exc:
+        raise click.ClickException(f"cannot verify: {exc}") from exc
     anchor = report.anchor or {}
     if anchor.get("seq") is None:
         click.echo(f"anchor: {anchor.get('file')}: no checkpoint of chain {anchor.get('chain')}")
