@@ -108,18 +108,21 @@ VERIFY_PAGE = 1000
 
 @dataclass
 class _Walk:
-    """The chain as walked: how far it held, the hash of each event, the index of events."""
+    """The chain as walked: how far it held, the last stored seq, the hashes of the anchored
+    events, the index of events."""
 
     checked: int = 0
     last_hash: str = GENESIS_HASH
+    stored_last: int = 0
     hashes: dict[int, str] = field(default_factory=dict)
     index: EventIndex = field(default_factory=EventIndex)
     findings: list[Finding] = field(default_factory=list)
 
 
-def _walk_chain(session: Session, keyed_from: int, key: bytes) -> _Walk:
+def _walk_chain(session: Session, keyed_from: int, key: bytes, anchored: set[int]) -> _Walk:
     """Recompute every hash in order; the first event that does not fit is a finding and ends
-    the hash check (later events are still indexed for the object comparison)."""
+    the hash check (later events are still indexed for the object comparison). The stored
+    hashes of the ``anchored`` sequence numbers are kept for the anchor's check."""
     walk = _Walk()
     expected_seq, prev_hash, broken = 1, GENESIS_HASH, False
     last_seq = 0
@@ -131,8 +134,9 @@ def _walk_chain(session: Session, keyed_from: int, key: bytes) -> _Walk:
         if not page:
             break
         for event in page:
-            last_seq = event.seq
-            walk.hashes[event.seq] = event.hash
+            last_seq = walk.stored_last = event.seq
+            if event.seq in anchored:
+                walk.hashes[event.seq] = event.hash
             walk.index.add(IndexedEvent(event.seq, event.actor, event.kind, event.subject,
                                         event.payload))
             if broken:
@@ -266,17 +270,18 @@ def verify_chain(store: Store) -> ChainReport:
         head = session.execute(select(AuditHead).where(AuditHead.id == HEAD_ROW_ID)).scalar_one()
         head_seq, head_hash = head.seq, head.hash
         chain, keyed_from = head.chain_id, head.keyed_from
-        walk = _walk_chain(session, keyed_from, seal.chain_key)
+        checkpoints = [] if anchored is None else anchored.get(chain, [])
+        walk = _walk_chain(session, keyed_from, seal.chain_key,
+                           {point["seq"] for point in checkpoints})
         _index_outbox(session, walk.index)
         objects = compare_stored_objects(session, walk.index)
-    stored_last = max(walk.hashes, default=0)
+    stored_last = walk.stored_last
     findings = list(walk.findings)
     if not findings and (head_seq != walk.checked or head_hash != walk.last_hash):
         findings.append(Finding("event", None, min(head_seq, walk.checked + 1),
                                 f"chain head records seq {head_seq} but the stored events end "
                                 f"at seq {walk.checked}: events were removed or the head was "
                                 "altered"))
-    checkpoints = [] if anchored is None else anchored.get(chain, [])
     anchor, anchor_findings = _check_anchor(seal, chain, keyed_from, walk, stored_last,
                                             checkpoints, anchor_error)
     findings += anchor_findings + objects.findings

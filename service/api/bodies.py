@@ -269,7 +269,9 @@ class AuditPageSchema(Schema):
 
 
 class BrokenEventSchema(Schema):
-    seq = fields.Integer(required=True)
+    seq = fields.Integer(required=True, allow_none=True, metadata={
+        "description": "The event at fault or compared with; null when the difference has no "
+                       "event (an object without its event, an anchor without checkpoints)"})
     reason = fields.String(required=True)
 
 
