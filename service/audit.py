@@ -277,11 +277,15 @@ def verify_chain(store: Store) -> ChainReport:
         objects = compare_stored_objects(session, walk.index)
     stored_last = walk.stored_last
     findings = list(walk.findings)
-    if not findings and (head_seq != walk.checked or head_hash != walk.last_hash):
+    if not findings and head_seq != walk.checked:
         findings.append(Finding("event", None, min(head_seq, walk.checked + 1),
                                 f"chain head records seq {head_seq} but the stored events end "
                                 f"at seq {walk.checked}: events were removed or the head was "
                                 "altered"))
+    elif not findings and head_hash != walk.last_hash:
+        findings.append(Finding("event", None, head_seq or None,
+                                f"chain head hash {head_hash[:12]}… differs from the last "
+                                f"stored event's {walk.last_hash[:12]}…: the head was altered"))
     anchor, anchor_findings = _check_anchor(seal, chain, keyed_from, walk, stored_last,
                                             checkpoints, anchor_error)
     findings += anchor_findings + objects.findings
