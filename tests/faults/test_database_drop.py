@@ -23,6 +23,7 @@ from tests.faults.support import create_tokens
 from tests.faults.tcp_proxy import TcpProxy
 from tests.integration.invented_cases import distinct_steady_cases
 from tests.integration.real_services import POSTGRES_HOST, POSTGRES_PORT
+from tests.integration.support import TEST_SIGNING_KEY_FILE
 
 ALLOWED_DURING_FAULT = {200, 201, 202, 503}
 
@@ -37,7 +38,8 @@ def proxied_api(pg_schema, migrated_store, monkeypatch):
             monkeypatch.delenv(key)
     proxy = TcpProxy(POSTGRES_HOST, POSTGRES_PORT).start()
     app = create_app({"DATABASE_URL": proxy.url_for(pg_schema.user, pg_schema.name),
-                      "AUTO_MIGRATE": False, "DISPATCH": "inline"})
+                      "AUTO_MIGRATE": False, "DISPATCH": "inline",
+                      "SIGNING_KEY_FILE": TEST_SIGNING_KEY_FILE})
     server = BackgroundServer(app).start()
     try:
         yield server.url, proxy
