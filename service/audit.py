@@ -170,7 +170,8 @@ def _event_fault(event: AuditEvent, expected_seq: int, prev_hash: str, keyed_fro
     if keyed:
         return (f"event seq {event.seq} ({event.kind} {event.subject}): its hash is not the "
                 "server key's HMAC of its content: the event was changed, or the chain "
-                "re-hashed without the key")
+                "re-hashed without the key (or a process chained with a key file other than "
+                "this one's)")
     return (f"event seq {event.seq} ({event.kind} {event.subject}): stored hash does not "
             "match the recomputed hash: the event's content was changed after it was written")
 
