@@ -89,8 +89,10 @@ def run_demo(cases_dir: Traversable, reports_dir: Path, data_dir: Path,
     if not paths:
         echo(f"no demo cases found in {cases_dir}", err=True)
         return 1
+    # An embedded installation of its own: its store, key and anchor file in data_dir.
     app = create_app({"DATA_DIR": str(data_dir), "DATABASE_URL": None, "BROKER_URL": None,
-                      "DISPATCH": "embedded"})
+                      "DISPATCH": "embedded", "SIGNING_KEY_FILE": None,
+                      "AUDIT_ANCHOR_FILE": None})
     store = app.extensions["fluxproof"].store
     _, engineer_token = create_token(store, role="engineer", name=ENGINEER, actor="demo")
     _, reviewer_token = create_token(store, role="reviewer", name=REVIEWER, actor="demo")
