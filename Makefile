@@ -4,7 +4,7 @@ VENV   := .venv
 PY     := $(VENV)/bin/python
 STAMP  := $(VENV)/.installed
 
-.PHONY: demo test check lint bench schemas clean browser mutate
+.PHONY: demo test check lint bench schemas manifest clean browser mutate
 
 $(STAMP): pyproject.toml
 	$(PYTHON) -m venv $(VENV)
@@ -21,12 +21,14 @@ browser:
 	@command -v chromium >/dev/null 2>&1 || { $(SUDO) apt-get update && \
 		$(SUDO) apt-get install -y chromium; }
 
-# ruff (every file), mypy (the engine and the documents: [tool.mypy] in pyproject.toml) and the
-# import-linter layer contracts ([tool.importlinter]: engine < schemas < service < Celery glue).
+# ruff (every file), mypy (the engine and the documents: [tool.mypy] in pyproject.toml), the
+# import-linter layer contracts ([tool.importlinter]: engine < schemas < service < Celery glue)
+# and the release manifest against the files (`make manifest` regenerates it).
 lint: $(STAMP)
 	$(VENV)/bin/ruff check .
 	$(VENV)/bin/mypy worker/engine schemas
 	$(VENV)/bin/lint-imports
+	$(PY) -m service.qualification.manifest --check
 
 # The fast tests: unit, reference, property and API (no integration, faults, UI, load, fuzz).
 check: $(STAMP)
@@ -40,6 +42,12 @@ bench: $(STAMP)
 
 schemas: $(STAMP)
 	$(PY) -m schemas.export
+
+# The release manifest `fluxproof qualify` checks the installed files against: SHA-256 of every
+# file the project installs (service/qualification/manifest.json). Regenerate and commit it after
+# changing any of them; `$(PY) -m service.qualification.manifest --check` names what differs.
+manifest: $(STAMP)
+	$(PY) -m service.qualification.manifest
 
 # Mutation testing (never part of `make test`): mutmut 3 mutates worker/engine and runs, for
 # each mutant, the fast tests that reach the mutated function ([tool.mutmut] in pyproject.toml;

@@ -10,24 +10,42 @@ every error found.
 from __future__ import annotations
 
 import dataclasses
+import re
 from collections.abc import Mapping
 from dataclasses import dataclass
+from itertools import islice
 from types import MappingProxyType
 from typing import Any
 
 from marshmallow import ValidationError
 
-from schemas.case import CaseSchema, SIValue, case_basis, case_rule_errors
+from schemas.case import (
+    MAX_LAYERS,
+    MAX_PROBES,
+    MAX_REQUIREMENTS,
+    MAX_SWEEP_VALUES,
+    MAX_TAGS,
+    MAX_TIMES,
+    MAX_UNCERTAIN_INPUTS,
+    CaseSchema,
+    SIValue,
+    case_basis,
+    case_rule_errors,
+)
 from schemas.design_rules import DesignRuleError, design_request
 from schemas.errors import CaseError, flatten_messages
+from schemas.text import hidden_character_errors
 from worker.engine import model
 from worker.engine.boundaries import BOUNDARIES
+from worker.engine.cost import DEFAULT_BUDGETS, Budgets, estimate_cost, over_budget
 from worker.engine.design.request import DesignRequest
 from worker.engine.model import Problem
 from worker.engine.reactions import REACTIONS
 from worker.engine.units import si_unit
 
 _CASE_SCHEMA = CaseSchema()
+#: Strings with refused characters listed at most (a hostile document may hold many).
+MAX_HIDDEN_ERRORS = 50
 
 #: Parameters of each reaction and boundary kind, in the order the normalised document lists them.
 _REACTION_PARAMETERS = {
@@ -202,6 +220,60 @@ def _problem(data: Mapping, basis: str) -> Problem:
     )
 
 
+#: The case's lists and their longest accepted length, checked before any item is validated
+#: (marshmallow validates every item first, so 100,000 bad layers would give 100,000 errors).
+LIST_LIMITS: tuple[tuple[tuple[str, ...], int], ...] = (
+    (("layers",), MAX_LAYERS),
+    (("probes",), MAX_PROBES),
+    (("tags",), MAX_TAGS),
+    (("requirements",), MAX_REQUIREMENTS),
+    (("regime", "times"), MAX_TIMES),
+    (("uncertainty", "inputs"), MAX_UNCERTAIN_INPUTS),
+    (("uncertainty", "correlations"), 100),
+    (("sweep", "values"), MAX_SWEEP_VALUES),
+)
+
+
+def oversized_lists(doc: Mapping) -> list[dict[str, str]]:
+    """``{path, message}`` for every list of ``doc`` longer than :data:`LIST_LIMITS` allows."""
+    errors = []
+    for keys, limit in LIST_LIMITS:
+        value: Any = doc
+        for key in keys:
+            value = value.get(key) if isinstance(value, Mapping) else None
+        if isinstance(value, list) and len(value) > limit:
+            errors.append({"path": ".".join(keys),
+                           "message": f"at most {limit} items; got {len(value)}"})
+    return errors
+
+
+_LONE_SURROGATE = re.compile("[\ud800-\udfff]")
+
+
+def lone_surrogate_paths(value: Any, path: str = "") -> list[dict[str, str]]:
+    """``{path, message}`` for every string (key or value) of ``value`` that holds a lone UTF-16
+    surrogate: JSON's ``"\\ud800"`` escape parses into one, and it is no character (it cannot
+    be stored, hashed or printed as UTF-8)."""
+    found: list[dict[str, str]] = []
+    if isinstance(value, str):
+        if _LONE_SURROGATE.search(value):
+            found.append({"path": path, "message": "holds a lone UTF-16 surrogate (an unpaired "
+                          "\\ud800-\\udfff escape), which is not a character"})
+    elif isinstance(value, Mapping):
+        for key, item in value.items():
+            key_text = str(key)
+            item_path = f"{path}.{key_text}" if path else key_text
+            if _LONE_SURROGATE.search(key_text):
+                item_path = f"{path}.{ascii(key_text)}" if path else ascii(key_text)
+                found.append({"path": item_path, "message": "a key holds a lone UTF-16 "
+                              "surrogate, which is not a character"})
+            found.extend(lone_surrogate_paths(item, item_path))
+    elif isinstance(value, list | tuple):
+        for index, item in enumerate(value):
+            found.extend(lone_surrogate_paths(item, f"{path}[{index}]"))
+    return found
+
+
 def load_case(doc: Any) -> dict:
     """Load a case with every field and cross-field rule; the loaded data holds SIValues.
 
@@ -214,6 +286,15 @@ def load_case(doc: Any) -> dict:
         raise CaseError(
             [{"path": "", "message": f"a case document is a JSON object, got {type(doc).__name__}"}]
         )
+    refused = oversized_lists(doc) or lone_surrogate_paths(doc)
+    if refused:
+        raise CaseError(refused)
+    hidden = list(islice(hidden_character_errors(doc), MAX_HIDDEN_ERRORS + 1))
+    if hidden:
+        if len(hidden) > MAX_HIDDEN_ERRORS:
+            hidden[MAX_HIDDEN_ERRORS:] = [("", f"more strings hold refused characters; the "
+                                               f"first {MAX_HIDDEN_ERRORS} are listed")]
+        raise CaseError({"path": p, "message": m} for p, m in hidden)
     try:
         data = _CASE_SCHEMA.load(doc)
         errors: list[tuple[str, str]] = []
@@ -227,13 +308,17 @@ def load_case(doc: Any) -> dict:
     return data
 
 
-def validate_case(doc: Any) -> ValidatedCase:
+def validate_case(doc: Any, budgets: Budgets | None = DEFAULT_BUDGETS) -> ValidatedCase:
     """Validate a case document (schema_version 1) and build its SI problem.
 
     Parameters
     ----------
     doc : dict
         The case as parsed from JSON.
+    budgets : worker.engine.cost.Budgets or None
+        What checking the case may cost (:func:`worker.engine.cost.estimate_cost`, before any
+        solve); a case over budget is invalid, each overrun naming the field to change. None:
+        not estimated (a Monte Carlo block of a case accepted already).
 
     Returns
     -------
@@ -255,6 +340,11 @@ def validate_case(doc: Any) -> ValidatedCase:
         times = tuple(sorted(set(problem.regime.times) | set(design.requirement_times)))
         problem = dataclasses.replace(
             problem, regime=dataclasses.replace(problem.regime, times=times))
+    if budgets is not None:
+        overruns = over_budget(estimate_cost(problem, design), budgets, problem.regime.kind)
+        if overruns:
+            raise CaseError({"path": o.path, "message": f"over the cost budget: {o.message}"}
+                            for o in overruns)
     normalised = _normalise(data, basis)
     normalised.update(_normalise_design(data, design))
     return ValidatedCase(

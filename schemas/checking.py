@@ -9,6 +9,7 @@ from schemas.build import validate_case
 from schemas.canonical import case_sha256
 from schemas.errors import CaseError
 from schemas.record import failed_record, succeeded_record
+from worker.engine.cost import DEFAULT_BUDGETS, Budgets
 from worker.engine.design.monte_carlo import BlockResult
 from worker.engine.design.requirements import design_block
 from worker.engine.design.runner import (
@@ -23,6 +24,8 @@ from worker.engine.independent_problem import (
     build_independent_problem,
 )
 from worker.engine.input_checks import unit_routes_check, unread_inputs_checks
+from worker.engine.limits import loosened_limits, regime_defaults
+from worker.engine.model import Problem
 from worker.engine.plausibility import input_warnings
 from worker.engine.provenance import provenance_block, utc_now
 from worker.engine.run import run_problem
@@ -33,7 +36,8 @@ __all__ = ["CaseError", "check_case", "uncertainty_block"]
 
 
 def check_case(case: dict, *, on_progress: Callable[[int, int], None] | None = None,
-               seed: int | None = None, scheduler: BlockScheduler = sequential_blocks) -> dict:
+               seed: int | None = None, scheduler: BlockScheduler = sequential_blocks,
+               budgets: Budgets = DEFAULT_BUDGETS) -> dict:
     """Check one case document and return its record.
 
     Parameters
@@ -60,10 +64,11 @@ def check_case(case: dict, *, on_progress: Callable[[int, int], None] | None = N
     ``uncertainty`` has got, after each block; ``seed`` is the Monte Carlo seed when the case
     gives none (else one is drawn; the record holds it either way); ``scheduler`` runs the
     Monte Carlo blocks (:data:`worker.engine.design.runner.BlockScheduler`; a service shares
-    them among workers, each computing :func:`uncertainty_block`).
+    them among workers, each computing :func:`uncertainty_block`); ``budgets``: what the case
+    may cost (:mod:`worker.engine.cost`; a case over budget raises CaseError).
     """
     started_at = utc_now()
-    validated = validate_case(case)
+    validated = validate_case(case, budgets)
     digest = case_sha256(case)
     independent: IndependentProblem | None = None
     try:
@@ -77,9 +82,11 @@ def check_case(case: dict, *, on_progress: Callable[[int, int], None] | None = N
         outcome.checks[:0] = input_checks
     except Exception as exc:  # the engine could not produce a result: recorded, not raised
         logger.exception("engine failure for case %s", digest)
-        return failed_record(digest, exc, provenance_block(digest, started_at, utc_now()),
-                             validated.normalised,
-                             design_block(validated.design.requirements, {}, {}))
+        failed = failed_record(digest, exc, provenance_block(digest, started_at, utc_now()),
+                               validated.normalised,
+                               design_block(validated.design.requirements, {}, {}))
+        failed["deviations"] = deviations(validated.problem)
+        return failed
     warnings = input_warnings(validated.problem)
     design = design_block(validated.design.requirements, outcome.quantities, outcome.series,
                           validated.problem.regime.duration)
@@ -90,7 +97,15 @@ def check_case(case: dict, *, on_progress: Callable[[int, int], None] | None = N
                               validated.normalised, design)
     record.update(extra)
     _add_design_checks(record)
+    record["deviations"] = deviations(validated.problem)
     return record
+
+
+def deviations(problem: Problem) -> list[dict]:
+    """The default limits the case loosens, as the record lists them."""
+    return [{"check": name, "default": default, "value": value}
+            for name, default, value in loosened_limits(problem.tolerances,
+                                                        regime_defaults(problem))]
 
 
 def _add_design_checks(record: dict) -> None:
@@ -107,7 +122,7 @@ def _add_design_checks(record: dict) -> None:
 def uncertainty_block(case: dict, seed: int, index: int) -> BlockResult:
     """Monte Carlo block ``index`` of ``case``'s uncertainty with ``seed``: what a worker
     computes when a service shares a run's blocks (the same block wherever it runs)."""
-    validated = validate_case(case)
+    validated = validate_case(case, budgets=None)  # its run was accepted within budget
     independent = build_independent_problem(validated.original)
     runner = DesignRunner(validated.problem, independent, validated.design, run_problem)
     return runner.block(seed, index)

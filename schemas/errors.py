@@ -5,21 +5,33 @@ from __future__ import annotations
 from collections.abc import Iterable, Iterator
 from typing import Any
 
+#: Most errors a CaseError keeps; ``total`` still counts every one found.
+MAX_ERRORS = 100
+
 
 class CaseError(Exception):
     """An invalid case document.
 
-    ``errors`` lists every problem found, each ``{"path": str, "message": str}``; the path is
-    dotted with list indices (``layers[1].reaction.vmax``), empty for the whole document.
+    ``errors`` lists the problems found (the first :data:`MAX_ERRORS`), each
+    ``{"path": str, "message": str}``; the path is dotted with list indices
+    (``layers[1].reaction.vmax``), empty for the whole document. ``total`` counts every problem
+    found, kept or not.
     """
 
     def __init__(self, errors: Iterable[dict[str, str]]) -> None:
-        self.errors = [{"path": e["path"], "message": e["message"]} for e in errors]
+        self.errors = []
+        self.total = 0
+        for e in errors:
+            self.total += 1
+            if self.total <= MAX_ERRORS:
+                self.errors.append({"path": e["path"], "message": e["message"]})
         super().__init__(self._text())
 
     def _text(self) -> str:
         lines = [f"{e['path'] or '(document)'}: {e['message']}" for e in self.errors]
-        count = len(lines)
+        count = self.total
+        if count > len(lines):
+            lines.append(f"... and {count - len(lines)} more")
         head = f"invalid case ({count} error{'s' if count != 1 else ''})"
         return "\n".join([head, *("  " + line for line in lines)])
 

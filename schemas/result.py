@@ -353,6 +353,15 @@ class SweepResultSchema(OpenSchema):
     error = fields.String()
 
 
+class DeviationSchema(StrictSchema):
+    """A default limit the case loosens: the check, its default and the case's value."""
+
+    noun = "a deviation"
+    check = fields.String(required=True)
+    default = PlainNumber(required=True)
+    value = PlainNumber(required=True)
+
+
 class ResultSchema(StrictSchema):
     """A check record: figures, checks, warnings and provenance of one run of one case."""
 
@@ -375,6 +384,9 @@ class ResultSchema(StrictSchema):
     sweep = fields.Nested(SweepResultSchema)
     inputs = fields.Dict()
     caution = fields.String()
+    deviations = fields.List(fields.Nested(DeviationSchema), metadata={
+        "description": "default limits the case loosens (its tolerances above the defaults); "
+                       "approving such a record needs a justification"})
 
     #: The status rules below, for the JSON Schema export.
     json_schema_extra = {

@@ -168,6 +168,11 @@ def _compare_signoff(run: Run, signoff: Signoff, index: EventIndex,
             _differs(report, "sealed record of run", run.id, event, "record sha256",
                      document_sha256(run.record or {}), recorded,
                      ": the record was changed after it was signed off")
+            if signoff.record_sha256 is not None:
+                _differs(report, what, run.id, event, "record_sha256 column",
+                         signoff.record_sha256, recorded)
+        elif name == "printed_name":
+            _differs(report, what, run.id, event, "printed name", signoff.signer_name, recorded)
         elif hasattr(Signoff, name) and not name.startswith("_"):
             stored = getattr(signoff, name)
             _differs(report, what, run.id, event, name,

@@ -4,16 +4,18 @@ Each endpoint names its roles where it is declared (``service.api.declare``); th
 them from the declaration attached to the view function, and ``service.api.ROLE_MATRIX`` is
 derived from the same declarations. A declaration with ``roles=None`` is public; a view
 without a declaration is refused to everyone (fail closed).
-Four-eyes (no sign-off by the identity that submitted the run) is enforced in
-``service.signoffs``, because it depends on the run, not on the role.
+Four-eyes (no sign-off by the person who submitted the run or first stored its case) is
+enforced in ``service.signoffs``, because it depends on the run, not on the role. A presented
+token that is not valid is an ``auth.failed`` audit event.
 """
 
 from __future__ import annotations
 
 from flask import current_app, g, request
 
+from service import auth_events
 from service.errors import Forbidden, Unauthorized
-from service.tokens import Identity, identify
+from service.tokens import TOKEN_PREFIX, Identity, identify
 
 ENGINEER = frozenset({"engineer"})
 ADMIN = frozenset({"admin"})
@@ -47,7 +49,13 @@ def authenticate_request() -> None:
     store = current_app.extensions["fluxproof"].store
     identity = identify(store, token)
     if identity is None:
-        raise Unauthorized("The bearer token is unknown, malformed or revoked.",
+        claimed = token[len(TOKEN_PREFIX):].partition("_")[0] \
+            if token.startswith(TOKEN_PREFIX) else ""
+        auth_events.record(store, "auth.failed", actor=auth_events.UNKNOWN_ACTOR,
+                           subject=f"token {claimed}" if claimed else "token",
+                           payload={"via": "bearer token", "path": request.path,
+                                    "reason": "unknown, malformed, expired or revoked token"})
+        raise Unauthorized("The bearer token is unknown, malformed, expired or revoked.",
                            errors=[{"path": "Authorization", "message": "invalid token"}],
                            headers={"WWW-Authenticate":
                                     BEARER_CHALLENGE + ', error="invalid_token"'})

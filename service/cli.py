@@ -38,11 +38,17 @@ SUBCOMMANDS: dict[str, LazyCommand] = {
     "db": LazyCommand("service.cli_service:db", "The store's schema."),
     "demo": LazyCommand("service.demo:demo", "Start the embedded service, submit the demo cases "
                         "over HTTP, print the verdicts."),
+    "qualify": LazyCommand("service.cli_qualify:qualify",
+                           "Qualify this installation: versions and file hashes against the "
+                           "release manifest, and published-reference cases run here; exit 1 "
+                           "naming whatever differs."),
     "reverify": LazyCommand("service.cli_admin:reverify",
                             "Re-verify stored cases as a batch; report drift."),
     "serve": LazyCommand("service.cli_service:serve", "Run the HTTP service (embedded: SQLite, "
                          "in-process runs; with a broker: queue to workers)."),
-    "token": LazyCommand("service.cli_admin:token", "Bearer tokens."),
+    "token": LazyCommand("service.cli_admin:token", "Bearer tokens of people."),
+    "user": LazyCommand("service.cli_people:user", "People: create, change, disable, set "
+                        "a password."),
     "worker": LazyCommand("service.cli_worker:worker",
                           "Run a Celery worker for queued runs (needs FLUXPROOF_BROKER_URL)."),
 }

@@ -1,4 +1,7 @@
-"""``fluxproof token``, ``fluxproof audit verify`` and ``fluxproof reverify``."""
+"""``fluxproof token``, ``fluxproof audit verify`` and ``fluxproof reverify``.
+
+Changes made here are audit events naming the acting person: the operating-system account
+that ran the command (:func:`service.cli_people.cli_actor`)."""
 
 from __future__ import annotations
 
@@ -9,14 +12,15 @@ import click
 
 from service.audit import verify_chain
 from service.batches import WITHIN_TOLERANCE, batch_summary, get_batch, start_batch
+from service.cli_people import cli_actor, problem_text
 from service.dispatch import make_dispatcher
-from service.errors import ValidationFailed
+from service.errors import NotFound, ValidationFailed
 from service.server_keys import SecretError
 from service.settings import dispatch_mode, settings_from_env
 from service.store import default_store
 from service.store.audit_seal import AnchorError
 from service.store.migrate import upgrade
-from service.store.models import FINISHED_STATES, ROLES
+from service.store.models import FINISHED_STATES
 from service.tokens import create_token, revoke_token
 
 
@@ -28,19 +32,24 @@ def _store():
 
 @click.group("token")
 def token() -> None:
-    """Bearer tokens."""
+    """Bearer tokens of people."""
 
 
 @token.command("create")
-@click.option("--role", required=True, type=click.Choice(ROLES), help="The token's role.")
-@click.option("--name", required=True, help="The person's identity (used for four-eyes).")
-def token_create(role: str, name: str) -> None:
-    """Create a token and print it once; only its SHA-256 is stored."""
+@click.option("--login", required=True, help="The person the token belongs to (see "
+              "`fluxproof user create`); it acts with their name and role.")
+@click.option("--name", default=None, help="What the token is for (default: the login).")
+@click.option("--days", type=float, default=None,
+              help="Lifetime in days (default FLUXPROOF_TOKEN_LIFETIME_DAYS, 90).")
+def token_create(login: str, name: str | None, days: float | None) -> None:
+    """Create a token for a person and print it once; only its SHA-256 is stored."""
+    lifetime = days if days is not None else settings_from_env().get("TOKEN_LIFETIME_DAYS")
     try:
-        token_id, secret = create_token(_store(), role=role, name=name)
-    except ValidationFailed as exc:
-        raise click.BadParameter("; ".join(e["message"] for e in exc.errors)) from exc
-    click.echo(f"token {token_id} for {name.strip()!r} ({role}); shown only now:", err=True)
+        token_id, secret = create_token(_store(), login=login, name=name,
+                                        lifetime_days=lifetime, actor=cli_actor())
+    except (ValidationFailed, NotFound) as exc:
+        raise click.ClickException(problem_text(exc)) from exc
+    click.echo(f"token {token_id} for {login.strip()!r}; shown only now:", err=True)
     click.echo(secret)
 
 
@@ -48,7 +57,7 @@ def token_create(role: str, name: str) -> None:
 @click.argument("token_id")
 def token_revoke(token_id: str) -> None:
     """Revoke a token by its id."""
-    if not revoke_token(_store(), token_id):
+    if not revoke_token(_store(), token_id, actor=cli_actor()):
         raise click.ClickException(f"no token with id {token_id!r}")
     click.echo(f"token {token_id} revoked")
 
@@ -109,7 +118,7 @@ def reverify(all_cases: bool, tag: str | None, wait: bool) -> None:
     mode = "celery" if dispatch_mode(settings) == "celery" else "inline"
     dispatcher = make_dispatcher(mode, store, settings)
     started = time.monotonic()
-    batch = start_batch(store, actor="cli", tag=tag, all_cases=all_cases)
+    batch = start_batch(store, actor=cli_actor(), tag=tag, all_cases=all_cases)
     batch_id, run_ids = batch["batch_id"], batch["run_ids"]
     click.echo(f"batch {batch_id}: {len(run_ids)} runs ({mode})")
     if mode == "celery":

@@ -48,7 +48,7 @@ def check(case_file: str, output_format: str) -> None:
     try:
         record = check_case(case)
     except CaseError as exc:
-        click.echo(f"invalid case {case_file}: {len(exc.errors)} error(s)", err=True)
+        click.echo(f"invalid case {case_file}: {exc.total} error(s)", err=True)
         for error in exc.errors:
             click.echo(f"  {error['path'] or '(document)'}: {error['message']}", err=True)
         sys.exit(EXIT_INVALID)

@@ -9,6 +9,7 @@ import click
 from werkzeug.serving import make_server
 
 from service.app import create_app, shutdown_app
+from service.server_keys import SecretError
 from service.settings import database_url, settings_from_env
 from service.store import Store
 from service.store.migrate import upgrade
@@ -23,7 +24,10 @@ def serve(host: str, port: int) -> None:
     workers). Ctrl-C (SIGINT) or SIGTERM (a service manager's stop) ends it cleanly: queued
     embedded runs finish and the store is closed."""
     signal.signal(signal.SIGTERM, _stop_on_signal)
-    app = create_app()
+    try:
+        app = create_app()
+    except SecretError as exc:
+        raise click.ClickException(f"refusing to start: {exc}") from exc
     services = app.extensions["fluxproof"]
     server = make_server(host, port, app, threaded=True)
     actual_host, actual_port = server.server_address[:2]

@@ -120,10 +120,15 @@ class Client:
         """The HTML report of a run."""
         return self._request("GET", f"/runs/{run_id}/report").text
 
-    def signoff(self, run_id: str, decision: str, comment: str) -> dict[str, Any]:
-        """Record a reviewer's decision (``approved`` or ``rejected``) on a succeeded run."""
-        return self._json("POST", f"/runs/{run_id}/signoffs",
-                          json={"decision": decision, "comment": comment})
+    def signoff(self, run_id: str, decision: str, comment: str, *, password: str,
+                meaning: str = "approval", justification: str | None = None) -> dict[str, Any]:
+        """Sign a reviewer's decision (``approved`` or ``rejected``) on a succeeded run, with
+        its meaning (review, approval, responsibility) and the reviewer's password again."""
+        body = {"decision": decision, "comment": comment, "meaning": meaning,
+                "password": password}
+        if justification is not None:
+            body["justification"] = justification
+        return self._json("POST", f"/runs/{run_id}/signoffs", json=body)
 
     def start_batch(self, *, tag: str | None = None, all_cases: bool = False) -> str:
         """Re-verify stored cases (those with ``tag``, or all); returns the batch id."""

@@ -1,9 +1,11 @@
 """``fluxproof demo``: the embedded service end to end, over HTTP, on the demo cases.
 
 Starts the service in-process (SQLite in a fresh data directory, runs in the embedded thread
-pool, a Werkzeug server on a free port), creates an engineer and a reviewer token, submits every
-demo case with :class:`service.client.Client`, waits for the records, has the reviewer sign off
-the runs that passed (four-eyes: a different identity from the submitter), verifies the audit
+pool, a Werkzeug server on a free port), creates two people, an engineer and a reviewer, with
+passwords generated at run time and a token each, submits every demo case with
+:class:`service.client.Client`, waits for the records, has the reviewer sign off the runs that
+passed with an electronic signature (four-eyes: a different person from the submitter and the
+case's author; the reviewer's password again at each signing), verifies the audit
 chain, prints a verdict table and writes each HTML report to ``var/demo-reports/`` under the
 working directory. Exit 1 only if a run ends ``failed`` or the HTTP path breaks.
 
@@ -17,6 +19,7 @@ from __future__ import annotations
 import json
 import logging
 import re
+import secrets
 import tempfile
 from importlib import resources
 from importlib.resources.abc import Traversable
@@ -28,7 +31,9 @@ import click
 from schemas.result import Decision, RunStatus
 from service.app import create_app, shutdown_app
 from service.audit import verify_chain
+from service.cli_people import cli_actor
 from service.client import ApiError, Client
+from service.people import create_user
 from service.report.design_view import STATUS_WORDS, design_status, headline_requirements
 from service.server import BackgroundServer
 from service.settings import database_url
@@ -39,6 +44,7 @@ CAUTION_LINE = ("Caution: these results support, but do not replace, design veri
                 "testing and qualified independent review; local regulations and licensed "
                 "practice govern.")
 ENGINEER, REVIEWER = "demo.engineer", "demo.reviewer"
+PRINTED_NAMES = {ENGINEER: "Demo Engineer", REVIEWER: "Demo Reviewer"}
 DEFAULT_REPORTS_DIR = Path("var") / "demo-reports"
 
 
@@ -82,6 +88,13 @@ def _table(rows: list[list[str]], headers: list[str]) -> str:
     return "\n".join(out)
 
 
+def _justification(record: dict[str, Any]) -> str | None:
+    """A demonstration's justification of loosened limits (None when there are none)."""
+    if not record.get("deviations"):
+        return None
+    return "demo: the loosened limits are part of the demonstration case"
+
+
 def run_demo(cases_dir: Traversable, reports_dir: Path, data_dir: Path,
              echo=click.echo) -> int:
     """Run the demonstration; return the exit status (0, or 1 when a run failed)."""
@@ -94,8 +107,12 @@ def run_demo(cases_dir: Traversable, reports_dir: Path, data_dir: Path,
                       "DISPATCH": "embedded", "SIGNING_KEY_FILE": None,
                       "AUDIT_ANCHOR_FILE": None})
     store = app.extensions["fluxproof"].store
-    _, engineer_token = create_token(store, role="engineer", name=ENGINEER, actor="demo")
-    _, reviewer_token = create_token(store, role="reviewer", name=REVIEWER, actor="demo")
+    passwords = {login: secrets.token_urlsafe(18) for login in (ENGINEER, REVIEWER)}
+    for login, role in ((ENGINEER, "engineer"), (REVIEWER, "reviewer")):
+        create_user(store, login=login, name=PRINTED_NAMES[login], role=role,
+                    password=passwords[login], actor=cli_actor())
+    _, engineer_token = create_token(store, login=ENGINEER, actor=cli_actor(), lifetime_days=1)
+    _, reviewer_token = create_token(store, login=REVIEWER, actor=cli_actor(), lifetime_days=1)
     reports_dir.mkdir(parents=True, exist_ok=True)
     rows: list[list[str]] = []
     failures: list[str] = []
@@ -121,13 +138,16 @@ def run_demo(cases_dir: Traversable, reports_dir: Path, data_dir: Path,
                         "met", "none_stated"):
                     reviewer.signoff(run_id, Decision.APPROVED.value,
                                      "demo: every check passed and every stated requirement is "
-                                     "met; approved for the demonstration")
+                                     "met; approved for the demonstration",
+                                     password=passwords[REVIEWER], meaning="approval",
+                                     justification=_justification(record))
                 elif record.get("verdict") == "pass":
                     missed = [r["id"] for r in (record.get("design") or {}).get(
                         "requirements", []) if r.get("status") != "met"]
                     reviewer.signoff(run_id, Decision.REJECTED.value,
                                      "demo: the calculation is verified but the design does not "
-                                     f"meet {', '.join(missed)}; rejected for redesign")
+                                     f"meet {', '.join(missed)}; rejected for redesign",
+                                     password=passwords[REVIEWER], meaning="review")
                 report_path = reports_dir / f"{_slug(path)}.html"
                 report_path.write_text(engineer.report(run_id), encoding="utf-8")
                 rows.append([str(case.get("title", _slug(path)))[:60], case.get("geometry", "?"),
@@ -155,9 +175,12 @@ def run_demo(cases_dir: Traversable, reports_dir: Path, data_dir: Path,
     finally:
         audit_store.dispose()
     echo(f"audit chain: {'intact' if report.ok else 'BROKEN'} ({report.events} events); "
-         f"runs that passed were signed off by {REVIEWER}, a different identity from the "
-         f"submitter {ENGINEER}: approved where every stated requirement is met, rejected "
-         "where the design misses one")
+         f"runs that passed were signed by {PRINTED_NAMES[REVIEWER]} ({REVIEWER}), a different "
+         f"person from the submitter {ENGINEER}, password given again at each signature: "
+         "approved where every stated requirement is met, rejected where the design misses "
+         "one")
+    echo(f"sign in at the pages with {ENGINEER} / {passwords[ENGINEER]} or {REVIEWER} / "
+         f"{passwords[REVIEWER]} (this run only; --data-dir keeps the store)")
     echo(f"HTML reports written to {reports_dir}/")
     echo(CAUTION_LINE)
     if failed:

@@ -102,9 +102,17 @@ _HTTP_SLUGS = {
 }
 
 
+#: Most ``errors`` a problem document lists; ``errors_total`` counts them all when more.
+MAX_PROBLEM_ERRORS = 100
+
+
 def problem_document(status: int, title: str, detail: str, slug: str,
                      errors: list[dict[str, str]] | None = None,
                      extra: dict[str, Any] | None = None) -> dict[str, Any]:
+    errors = list(errors or [])
+    if len(errors) > MAX_PROBLEM_ERRORS:
+        extra = {"errors_total": len(errors), **(extra or {})}
+        errors = errors[:MAX_PROBLEM_ERRORS]
     document: dict[str, Any] = {
         "type": PROBLEM_TYPE_BASE + slug,
         "title": title,

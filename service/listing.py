@@ -10,11 +10,28 @@ from typing import Any
 from sqlalchemy import false, func, select
 
 from schemas.result import DESIGN_STATUSES, VERDICTS, RunStatus
+from service.errors import MalformedBody
 from service.store import Store
 from service.store.models import RUN_STATES, Batch, Case, CaseTag, Run, Signoff
 
 #: Rows in one page of a listing.
 PAGE_SIZE = 50
+#: Largest page offset accepted anywhere (API and pages): far beyond any store's rows, and
+#: inside every database's integer range (an offset past 2^63 made the driver fail).
+MAX_OFFSET = 2**31 - 1
+
+
+def page_offset(raw: str | None) -> int:
+    """A page's ``offset`` query parameter: 0 when absent or not a whole number; MalformedBody
+    (400, naming ``offset``) when larger than :data:`MAX_OFFSET`."""
+    try:
+        offset = max(0, int(raw or "0"))
+    except ValueError:
+        return 0
+    if offset > MAX_OFFSET:
+        raise MalformedBody(f"The offset is larger than {MAX_OFFSET}.",
+                            errors=[{"path": "offset", "message": f"at most {MAX_OFFSET}"}])
+    return offset
 
 __all__ = ["DESIGN_STATUSES", "PAGE_SIZE", "VERDICTS", "RunFilters", "all_tags", "batch_runs",
            "case_runs_with_figures", "drifted_run_ids", "list_batches", "list_runs"]

@@ -16,9 +16,15 @@ number of messages name it.
 
 The snapshot is taken in the order queue, unacknowledged set, workers: a message moves from the
 queue to a worker, never back, so reading the queue first can only make a run look alive twice,
-not lost. The Celery task ``fluxproof.recover_lost_runs`` (scheduled by beat every
-``FLUXPROOF_RECOVERY_INTERVAL`` seconds) calls it with rows older than
-``FLUXPROOF_RECOVERY_AFTER`` seconds.
+not lost.
+
+The sweep runs wherever runs are served, so that no deployment strands a run: a thread of the
+API process (:class:`SweepTimer`, started by ``create_app`` when runs go to Celery), a timer in
+every Celery worker (``worker.celery_app``), and the beat-scheduled task
+``fluxproof.recover_lost_runs`` where beat runs. Every
+``FLUXPROOF_RECOVERY_INTERVAL`` seconds each calls it with rows older than
+``FLUXPROOF_RECOVERY_AFTER`` seconds; the sweeps take turns by a lease in the database
+(:mod:`service.store.leases`), so one sweeps at a time however many processes try.
 """
 
 from __future__ import annotations
@@ -26,7 +32,7 @@ from __future__ import annotations
 import base64
 import json
 import logging
-import uuid
+import threading
 from collections.abc import Iterable, Iterator, Mapping
 from contextlib import contextmanager
 from dataclasses import dataclass, field
@@ -36,6 +42,7 @@ from typing import Any
 from sqlalchemy import and_, or_, select
 
 from service.store import Store
+from service.store.leases import held_lease
 from service.store.models import UNFINISHED_STATES, Run, RunStatus, utc_now
 from service.task_names import EXECUTE_RUN_TASK, RUN_QUEUE, send_execute_run
 
@@ -48,10 +55,10 @@ DEFAULT_INTERVAL_S = 30.0
 DEFAULT_AFTER_S = 60.0
 #: Seconds to wait for workers to answer the active/reserved inspection.
 INSPECT_TIMEOUT_S = 1.0
-#: Broker key that makes sweeps take turns (two overlapping sweeps would each send what the
-#: other is sending). It expires by itself should a sweep die holding it.
-LOCK_KEY = "fluxproof:recovery-lock"
-LOCK_SECONDS = 120
+#: The database lease that makes sweeps take turns (two overlapping sweeps would each send what
+#: the other is sending). It expires by itself should a sweep die holding it.
+LEASE_NAME = "recovery-sweep"
+LEASE_SECONDS = 120
 #: Largest number of runs sent again in one sweep (the next sweep takes the rest).
 MAX_PER_SWEEP = 5000
 
@@ -189,26 +196,11 @@ def worker_run_ids(celery_app: Any, timeout: float = INSPECT_TIMEOUT_S) -> set[s
 
 
 @contextmanager
-def sweep_lock(celery_app: Any, seconds: int = LOCK_SECONDS) -> Iterator[bool]:
-    """Hold the broker's sweep lock while the block runs; yields False when another sweep
-    holds it. Raises :class:`BrokerUnreadable` when the broker cannot be reached."""
-    token = uuid.uuid4().hex
-    try:
-        connection = celery_app.connection_for_write()
-        client = connection.default_channel.client
-        taken = bool(client.set(LOCK_KEY, token, nx=True, ex=seconds))
-    except Exception as exc:  # noqa: BLE001
-        raise BrokerUnreadable(f"the broker could not be reached: {exc}") from exc
-    try:
+def sweep_lease(store: Store, seconds: float = LEASE_SECONDS) -> Iterator[bool]:
+    """Hold the sweep's database lease while the block runs; yields False when another
+    process's sweep holds it."""
+    with held_lease(store, LEASE_NAME, seconds) as taken:
         yield taken
-    finally:
-        try:
-            if taken and client.get(LOCK_KEY) == token.encode():
-                client.delete(LOCK_KEY)
-        except Exception:  # noqa: BLE001 - the lock expires by itself
-            logger.warning("recovery: the sweep lock could not be released; it expires in "
-                           "%d s", seconds)
-        connection.release()
 
 
 def recover_lost_runs(store: Store, celery_app: Any, *, older_than_s: float = DEFAULT_AFTER_S,
@@ -216,11 +208,11 @@ def recover_lost_runs(store: Store, celery_app: Any, *, older_than_s: float = DE
                       now: datetime | None = None) -> RecoveryReport:
     """Send again every unfinished run older than ``older_than_s`` that neither the broker nor
     a live worker knows about. Raises :class:`BrokerUnreadable` when the broker cannot be read
-    (nothing is sent then). Returns a report with ``skipped`` set when another sweep is under
-    way."""
+    (nothing is sent then). Returns a report with ``skipped`` set when another process's sweep
+    holds the lease."""
     # Audit events whose writer died between its commit and their chaining (PostgreSQL).
     store.chain_audit(only_if_pending=True)
-    with sweep_lock(celery_app) as taken:
+    with sweep_lease(store) as taken:
         if not taken:
             return RecoveryReport(skipped=True)
         return _sweep(store, celery_app, older_than_s=older_than_s, queues=queues, now=now)
@@ -253,3 +245,47 @@ def _sweep(store: Store, celery_app: Any, *, older_than_s: float, queues: Iterab
                        "%d sent again, %d unsent", report.unfinished, older_than_s,
                        report.known_to_broker, len(report.redispatched), len(report.unsent))
     return report
+
+
+class SweepTimer:
+    """Runs :func:`recover_lost_runs` every ``interval`` seconds in a daemon thread of this
+    process (the API process or a Celery worker), so that a deployment without beat still
+    re-sends the runs a broker lost. The sweeps of all processes take turns by the lease; a
+    sweep that fails (broker or store unreachable) is logged and tried again next time."""
+
+    def __init__(self, store: Store, celery_app: Any, *, interval: float = DEFAULT_INTERVAL_S,
+                 older_than_s: float = DEFAULT_AFTER_S, name: str = "fluxproof-recovery"
+                 ) -> None:
+        self.store = store
+        self.celery_app = celery_app
+        self.interval = interval
+        self.older_than_s = older_than_s
+        self.sweeps = 0
+        self._stop = threading.Event()
+        self._thread = threading.Thread(target=self._loop, name=name, daemon=True)
+
+    def start(self) -> SweepTimer:
+        self._thread.start()
+        return self
+
+    def stop(self, timeout: float | None = 5.0) -> None:
+        self._stop.set()
+        if self._thread.is_alive():
+            self._thread.join(timeout)
+
+    def sweep_once(self) -> RecoveryReport | None:
+        """One sweep; None when it failed (logged)."""
+        try:
+            report = recover_lost_runs(self.store, self.celery_app,
+                                       older_than_s=self.older_than_s)
+        except Exception:  # noqa: BLE001 - the next sweep tries again
+            logger.warning("recovery: the sweep failed; trying again in %g s", self.interval,
+                           exc_info=True)
+            return None
+        finally:
+            self.sweeps += 1
+        return report
+
+    def _loop(self) -> None:
+        while not self._stop.wait(self.interval):
+            self.sweep_once()

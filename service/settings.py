@@ -27,16 +27,29 @@ DEFAULTS: Mapping[str, Any] = {
     "MAX_BODY_BYTES": 1_048_576,
     # Time of day (UTC, HH:MM) of the nightly re-verification of every stored case.
     "NIGHTLY_AT": "02:30",
-    # Secret for signed cookies of the browser pages; set it in every deployment.
-    "SECRET_KEY": "dev-only-change-me",
-    # The server's Ed25519 key (PEM file outside the database; service.server_keys). Unset on
-    # the embedded default: DATA_DIR/signing_key.pem; every other deployment names one file
-    # that the API and every worker read (it also keys the audit chain).
+    # The installation's secret (at least 32 characters). Unset on the embedded default: one is
+    # made in DATA_DIR/secret_key (mode 0600); any configuration with DATABASE_URL refuses to
+    # start without a strong one (service.server_keys).
+    "SECRET_KEY": None,
+    # PEM file of the server's Ed25519 signing key (e-signatures; it also keys the audit
+    # chain, so the API and every worker read the same file); unset on the embedded default:
+    # DATA_DIR/signing_key.pem, created on first start.
     "SIGNING_KEY_FILE": None,
     # The audit chain's anchor file (append-only checkpoints the operator keeps apart from the
     # database; service.store.audit_seal). Unset: DATA_DIR/audit_anchor.jsonl. The API and
     # every worker must append to the same file.
     "AUDIT_ANCHOR_FILE": None,
+    # Browser sessions end after this many minutes without a request ...
+    "SESSION_IDLE_MINUTES": 30,
+    # ... and this many hours after sign-in, whichever comes first.
+    "SESSION_MAX_HOURS": 8,
+    # Secure flag of the session cookie: "auto" (when the request came over TLS), true, false.
+    "SESSION_COOKIE_SECURE": "auto",
+    # Proxies in front of the service whose X-Forwarded-For/-Proto/-Host are trusted (0: none).
+    # Behind one TLS-terminating proxy set 1, so that the cookie is Secure.
+    "PROXY_FIX_HOPS": 0,
+    # Days a new bearer token lives unless its creator says otherwise.
+    "TOKEN_LIFETIME_DAYS": 90,
     # Celery task limits in seconds: the soft limit ends a run ``failed``; the hard limit kills it.
     "TASK_SOFT_TIME_LIMIT": 300,
     "TASK_TIME_LIMIT": 360,
@@ -51,7 +64,12 @@ DEFAULTS: Mapping[str, Any] = {
     # background work: on a host that also serves the API, the API then keeps the CPU when
     # both want it, and the workers still use every cycle the API leaves.
     "WORKER_NICE": 10,
-    # Threads of the embedded executor (no broker).
+    # How the embedded executor runs a run: "process" (a run process of its own per
+    # EMBEDDED_WORKERS, so TASK_SOFT_TIME_LIMIT, TASK_TIME_LIMIT and WORKER_MEMORY_LIMIT_MB hold
+    # as on workers) or "thread" (in the service process, no limits; for tests that replace the
+    # engine in-process). An in-memory SQLite store always uses threads.
+    "EMBEDDED_ISOLATION": "process",
+    # Run processes (threads with EMBEDDED_ISOLATION=thread) of the embedded executor.
     "EMBEDDED_WORKERS": 2,
     # Monte Carlo blocks of one run in flight at once (the run's own process computes one of
     # them): the number of worker pool processes, across machines, that should share a large
@@ -62,6 +80,18 @@ DEFAULTS: Mapping[str, Any] = {
     "MONTE_CARLO_KEEP_BLOCKS": False,
     # Deliveries of one run before it is ended ``failed`` (a worker lost or killed each time).
     "MAX_RUN_ATTEMPTS": 3,
+    # Cost budgets of one run (worker/engine/cost.py) are multiplied by this factor; raise it
+    # only together with the workers' time and memory limits.
+    "COST_BUDGET_SCALE": 1.0,
+    # Address-space limit of each worker process (Celery pool processes and the embedded run
+    # processes), in MiB; 0 leaves it unlimited. A solve that needs more fails with a memory
+    # error recorded on its run instead of exhausting the host.
+    "WORKER_MEMORY_LIMIT_MB": 4096,
+    # The recovery sweep (service/recovery.py): seconds between sweeps, and the age in seconds
+    # of an unfinished run before one the broker does not know about counts as lost. It runs in
+    # the API process and in every worker (beat is not needed), one at a time.
+    "RECOVERY_INTERVAL": 30,
+    "RECOVERY_AFTER": 60,
     # Apply the store's migrations when the app starts.
     "AUTO_MIGRATE": True,
     # Dispatch mode: "auto" (celery when BROKER_URL is set, else embedded), "embedded",
@@ -119,6 +149,36 @@ def worker_nice(settings: Mapping[str, Any]) -> int:
         raise ValueError(f"FLUXPROOF_WORKER_NICE: expected a whole number from 0 to 19, "
                          f"got {value!r}")
     return value
+
+
+def cost_budget_scale(settings: Mapping[str, Any]) -> float:
+    """The factor on the engine's cost budgets (``COST_BUDGET_SCALE``, a positive number)."""
+    raw = settings.get("COST_BUDGET_SCALE", DEFAULTS["COST_BUDGET_SCALE"])
+    if isinstance(raw, bool) or not isinstance(raw, int | float) or not raw > 0:
+        raise ValueError(f"FLUXPROOF_COST_BUDGET_SCALE: expected a positive number, got {raw!r}")
+    return float(raw)
+
+
+def worker_memory_limit_bytes(settings: Mapping[str, Any]) -> int | None:
+    """The address-space limit of a worker process in bytes (``WORKER_MEMORY_LIMIT_MB``);
+    None when it is 0 (unlimited)."""
+    raw = settings.get("WORKER_MEMORY_LIMIT_MB", DEFAULTS["WORKER_MEMORY_LIMIT_MB"])
+    if isinstance(raw, bool) or not isinstance(raw, int) or raw < 0:
+        raise ValueError(f"FLUXPROOF_WORKER_MEMORY_LIMIT_MB: expected a whole number of MiB "
+                         f"(0: unlimited), got {raw!r}")
+    return raw * 1024 * 1024 if raw else None
+
+
+def embedded_isolation(settings: Mapping[str, Any], store_url: str) -> str:
+    """``EMBEDDED_ISOLATION`` ("process" or "thread"); "thread" for an in-memory SQLite store,
+    which another process cannot open."""
+    value = str(settings.get("EMBEDDED_ISOLATION") or DEFAULTS["EMBEDDED_ISOLATION"])
+    if value not in ("process", "thread"):
+        raise ValueError(f"FLUXPROOF_EMBEDDED_ISOLATION: expected process or thread, got "
+                         f"{value!r}")
+    in_memory = store_url.startswith("sqlite") and (
+        store_url in ("sqlite://", "sqlite:///:memory:") or "mode=memory" in store_url)
+    return "thread" if in_memory else value
 
 
 def dispatch_mode(settings: Mapping[str, Any]) -> str:

@@ -40,16 +40,17 @@ from service.app import create_app, shutdown_app
 from service.settings import SQLITE_FILE_NAME
 from service.store import Store, reset_default_store
 from service.store.migrate import upgrade
-from service.tokens import create_token
 from tests.api.support import (
     BASE_CASE,
     ROLE_NAMES,
     TEST_DATABASE_URL,
+    app_keys,
     bearer,
     clear_fluxproof_env,
     copy_template_db,
     empty_database,
     fresh_app,
+    person_token,
 )
 from tests.faults.processes import OwnRedis
 from tests.faults.support import clean_upkeep_keys
@@ -86,6 +87,18 @@ def pytest_collection_modifyitems(config: pytest.Config, items: list[pytest.Item
 # --- service tests: a fresh SQLite store per test (api, ui, unit/service) -----------------------
 
 
+@pytest.fixture(autouse=True)
+def cheap_password_hash(monkeypatch: pytest.MonkeyPatch) -> None:
+    """argon2id with the smallest cost, so that the many people the tests create cost little
+    time; a hash records its parameters, so verification is the same code as in service."""
+    import argon2
+
+    import service.people
+
+    monkeypatch.setattr(service.people, "HASHER",
+                        argon2.PasswordHasher(time_cost=1, memory_cost=8, parallelism=1))
+
+
 @pytest.fixture(scope="session")
 def migrated_template(tmp_path_factory: pytest.TempPathFactory) -> Path:
     directory = tmp_path_factory.mktemp("template")
@@ -118,8 +131,11 @@ def dispatch_mode() -> str:
 
 @pytest.fixture
 def app(data_dir: Path, dispatch_mode: str) -> Iterator[Flask]:
+    # Embedded runs in the test's own threads: the controlled engine replaces the engine in
+    # this process (the run processes are tested in tests/unit/service/test_run_processes.py).
     application = create_app({"TESTING": True, "DATA_DIR": str(data_dir),
-                              "DATABASE_URL": TEST_DATABASE_URL, "DISPATCH": dispatch_mode})
+                              "DATABASE_URL": TEST_DATABASE_URL, "DISPATCH": dispatch_mode,
+                              "EMBEDDED_ISOLATION": "thread", **app_keys(data_dir)})
     yield application
     shutdown_app(application)
 
@@ -142,7 +158,7 @@ def runner(data_dir: Path) -> CliRunner:
 @pytest.fixture
 def tokens(store: Store) -> dict[str, str]:
     """role -> bearer token; each role's token has its own person's name."""
-    return {role: create_token(store, role=role, name=name)[1]
+    return {role: person_token(store, role, name)
             for role, name in ROLE_NAMES.items()}
 
 
@@ -172,6 +188,8 @@ def controlled_engine(monkeypatch: pytest.MonkeyPatch):
 
     engine = Controlled()
     monkeypatch.setattr(worker.engine, "check_case", engine)
+    # It replaces the engine in this process: an embedded app must run its runs here too.
+    monkeypatch.setenv("FLUXPROOF_EMBEDDED_ISOLATION", "thread")
     return engine
 
 
@@ -318,7 +336,7 @@ def fuzz_app(tmp_path, monkeypatch):
 @pytest.fixture
 def fuzz_tokens(fuzz_app) -> dict[str, str]:
     store = fuzz_app.extensions["fluxproof"].store
-    return {role: create_token(store, role=role, name=name)[1]
+    return {role: person_token(store, role, name)
             for role, name in FUZZ_ROLE_NAMES.items()}
 
 
@@ -327,7 +345,7 @@ def fuzz_tokens(fuzz_app) -> dict[str, str]:
 
 @pytest.fixture
 def sec_app(tmp_path, monkeypatch):
-    yield from fresh_app(tmp_path, monkeypatch, SECRET_KEY="security-test-secret-0123456789")
+    yield from fresh_app(tmp_path, monkeypatch, SECRET_KEY="security-test-secret-0123456789abcdef")
 
 
 @pytest.fixture
@@ -337,7 +355,7 @@ def sec_store(sec_app):
 
 @pytest.fixture
 def sec_tokens(sec_store) -> dict[str, str]:
-    return {role: create_token(sec_store, role=role, name=name)[1]
+    return {role: person_token(sec_store, role, name)
             for role, name in SECURITY_ROLE_NAMES.items()}
 
 

@@ -19,7 +19,7 @@ from service.auth import ADMIN, READERS, current_identity
          problems={503: "The broker is unreachable (the runs stay queued)"})
 def create_batch(body: dict[str, Any]):
     svc = services()
-    started = batches.start_batch(svc.store, actor=current_identity().name,
+    started = batches.start_batch(svc.store, actor=current_identity().login,
                                   tag=body.get("tag"), all_cases=bool(body.get("all")))
     svc.dispatcher.send(started["run_ids"])  # after the commit in start_batch
     return Reply({"batch_id": started["batch_id"], "status": started["status"],

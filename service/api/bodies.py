@@ -15,8 +15,10 @@ from marshmallow import INCLUDE, RAISE, Schema, ValidationError, fields, validat
 from schemas.case import CaseSchema, WholeMatch
 from schemas.errors import flatten_messages
 from schemas.result import SHA256_PATTERN, ResultSchema
+from schemas.text import hidden_character_problem
 from service.errors import ValidationFailed
-from service.store.models import DECISIONS, RUN_STATES
+from service.listing import MAX_OFFSET
+from service.store.models import DECISIONS, MEANINGS, RUN_STATES
 
 COMMENT_MAX = 4000
 TAG_MAX = 200
@@ -42,10 +44,36 @@ class RunRequestSchema(StrictSchema):
             raise ValidationError("expected exactly one of 'case_id' or 'case'", "_schema")
 
 
+def _visible(multiline: bool = False) -> Any:
+    """A validator refusing invisible and bidirectional-control characters."""
+
+    def check(value: str) -> None:
+        problem = hidden_character_problem(value, multiline=multiline)
+        if problem is not None:
+            raise ValidationError(problem)
+
+    return check
+
+
 class SignoffRequestSchema(StrictSchema):
+    """An electronic signature: the decision, what it means, the reasons, and the signer's
+    password again (21 CFR Part 11 §11.200(a)(1))."""
+
     decision = fields.String(required=True, validate=validate.OneOf(DECISIONS))
-    comment = fields.String(required=True, validate=validate.Length(min=1, max=COMMENT_MAX),
+    meaning = fields.String(required=True, validate=validate.OneOf(MEANINGS), metadata={
+        "description": "what the signature means: review, approval or responsibility"})
+    comment = fields.String(required=True,
+                            validate=[validate.Length(min=1, max=COMMENT_MAX),
+                                      _visible(multiline=True)],
                             metadata={"description": "the reviewer's reasons"})
+    password = fields.String(required=True, load_only=True,
+                             validate=validate.Length(min=1, max=1024),
+                             metadata={"description": "the signer's password, again at each "
+                                                      "signing", "format": "password"})
+    justification = fields.String(
+        validate=[validate.Length(min=1, max=COMMENT_MAX), _visible(multiline=True)],
+        metadata={"description": "why loosened limits (the record's deviations) are "
+                                 "acceptable; required to approve such a record"})
 
 
 class BatchRequestSchema(StrictSchema):
@@ -66,7 +94,7 @@ class BatchRequestSchema(StrictSchema):
 
 class PageQuerySchema(StrictSchema):
     limit = fields.Integer(load_default=50, validate=validate.Range(min=1, max=500))
-    offset = fields.Integer(load_default=0, validate=validate.Range(min=0))
+    offset = fields.Integer(load_default=0, validate=validate.Range(min=0, max=MAX_OFFSET))
 
 
 class CaseListQuerySchema(PageQuerySchema):
@@ -140,10 +168,36 @@ class CasePageSchema(Schema):
 
 
 class SignoffSchema(Schema):
-    reviewer = fields.String(required=True)
+    """A sign-off and its electronic signature (the signature fields are null on sign-offs
+    made before signatures existed)."""
+
+    reviewer = fields.String(required=True, metadata={"description": "the signer's login"})
+    name = fields.String(allow_none=True, metadata={"description": "the signer's printed name"})
     decision = fields.String(required=True, validate=validate.OneOf(DECISIONS))
+    meaning = fields.String(allow_none=True, metadata={"description": "review, approval or "
+                                                                      "responsibility"})
     comment = fields.String(required=True)
-    at = fields.String(required=True)
+    justification = fields.String(allow_none=True)
+    at = fields.String(required=True, metadata={"description": "UTC time of signing"})
+    record_sha256 = fields.String(allow_none=True, metadata={
+        "description": "SHA-256 of the signed result document (canonical JSON)"})
+    payload_sha256 = fields.String(allow_none=True, metadata={
+        "description": "SHA-256 of the signed payload (canonical JSON)"})
+    signature = fields.String(allow_none=True, metadata={
+        "description": "Ed25519 signature of the payload, base64; verify with "
+                       "GET /v1/meta/signing-key"})
+    key_id = fields.String(allow_none=True, metadata={"description": "the signing key's id"})
+
+
+class SigningKeySchema(Schema):
+    """The server's public signing key."""
+
+    algorithm = fields.String(required=True)
+    key_id = fields.String(required=True)
+    public_key_pem = fields.String(required=True)
+    payload_fields = fields.List(fields.String(), required=True, metadata={
+        "description": "the fields of a signed payload (canonical JSON: keys sorted, no "
+                       "whitespace, UTF-8)"})
 
 
 class ProgressSchema(Schema):
@@ -185,6 +239,7 @@ class RecordSchema(ResultSchema, RunSummarySchema):
     run_id = fields.String(required=True)
     case_id = fields.String(required=True)
     case_sha256 = fields.String(validate=WholeMatch(SHA256_PATTERN))
+    case_author = fields.String(metadata={"description": "who first stored the case"})
 
 
 class CaseRunsSchema(Schema):

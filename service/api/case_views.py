@@ -26,7 +26,7 @@ from service.auth import ENGINEER, READERS, current_identity
                     200: Returns("The same content was stored already", CaseCreatedSchema,
                                  headers={"Location": "URL of the case"})})
 def create_case(body: dict[str, Any]):
-    stored, created = cases.store_case(services().store, body, current_identity().name)
+    stored, created = cases.store_case(services().store, body, current_identity().login)
     return Reply(stored, 201 if created else 200,
                  {"Location": f"/v1/cases/{stored['case_id']}"})
 

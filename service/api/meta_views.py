@@ -7,13 +7,15 @@ from typing import Any
 from schemas.case import CaseSchema
 from service import __version__
 from service.api import api
-from service.api.bodies import HealthSchema
+from service.api.bodies import HealthSchema, SigningKeySchema
 from service.api.context import services
 from service.api.declare import Raw, Returns, declare
 from service.api.openapi import openapi_document
 from service.auth import ENGINEER
 from service.cases import validate_document
 from service.errors import ServiceUnavailable
+from service.server_keys import key_id, public_key_pem
+from service.signoffs import PAYLOAD_FIELDS
 
 
 @declare(api, "get", "/health", summary="Service, store and broker state", roles=None,
@@ -48,3 +50,12 @@ def openapi():
                                  Raw("application/json", {"type": "object"}))})
 def validate(body: dict[str, Any]):
     return validate_document(body).normalised
+
+
+@declare(api, "get", "/meta/signing-key",
+         summary="The server's public Ed25519 key: verifies every e-signature", roles=None,
+         responses={200: Returns("The public key (PEM) and its id", SigningKeySchema)})
+def signing_key():
+    key = services().signing_key
+    return {"algorithm": "Ed25519", "key_id": key_id(key), "public_key_pem": public_key_pem(key),
+            "payload_fields": list(PAYLOAD_FIELDS)}

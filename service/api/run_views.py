@@ -1,4 +1,4 @@
-"""Runs: queue, read the record, the HTML report, sign-off."""
+"""Runs: queue, read the record, the HTML report, the archival PDF, sign-off."""
 
 from __future__ import annotations
 
@@ -15,8 +15,10 @@ from service.api.bodies import (
 )
 from service.api.context import services
 from service.api.declare import Raw, Reply, Returns, declare
+from service.api.pdf import pdf_response
 from service.auth import ENGINEER, READERS, current_identity
 from service.report.html import render_report
+from service.report.pdf_record import render_record_pdf
 from service.signoffs import SIGNOFF_ROLES
 
 
@@ -27,7 +29,7 @@ from service.signoffs import SIGNOFF_ROLES
          problems={503: "The broker is unreachable (the runs stay queued)"})
 def create_run(body: dict[str, Any]):
     svc = services()
-    accepted = runs.create_run(svc.store, actor=current_identity().name,
+    accepted = runs.create_run(svc.store, actor=current_identity().login,
                                case_id=body.get("case_id"), document=body.get("case"))
     svc.dispatcher.send([accepted["run_id"]])  # after the commit in create_run
     return Reply(accepted, 202, {"Location": f"/v1/runs/{accepted['run_id']}"})
@@ -47,13 +49,32 @@ def get_run_report(run_id: str):
     return render_report(record, document)
 
 
+@declare(api, "get", "/runs/<run_id>/report.pdf",
+         summary="The archival record as a PDF: every page headed with the run id, the case's "
+                 "SHA-256 and page x of y", roles=READERS,
+         responses={200: Returns("PDF record", Raw("application/pdf",
+                                                   {"type": "string", "format": "binary"}))})
+def get_run_report_pdf(run_id: str):
+    record, document = runs.get_run_and_case(services().store, run_id)
+    return pdf_response(render_record_pdf(record, document), f"record-{run_id}.pdf")
+
+
 @declare(api, "post", "/runs/<run_id>/signoffs",
-         summary="Sign off a succeeded run (four-eyes: never its submitter)", roles=SIGNOFF_ROLES,
-         request=SignoffRequestSchema, request_name="sign-off",
-         responses={201: Returns("Recorded; the record is now sealed", SignoffCreatedSchema)},
-         problems={403: "The token's role may not do this, or four-eyes: the reviewer "
-                        "submitted the run",
-                   409: "The run is not succeeded, or is already signed off"})
+         summary="Sign a succeeded run off with an electronic signature (four-eyes: never its "
+                 "submitter or its case's author; the signer's password again)",
+         roles=SIGNOFF_ROLES, request=SignoffRequestSchema, request_name="sign-off",
+         responses={201: Returns("Recorded and signed; the record is now sealed",
+                                 SignoffCreatedSchema)},
+         problems={401: "The password is not the signer's",
+                   403: "The token's role may not do this, or four-eyes: the reviewer "
+                        "submitted the run or wrote its case",
+                   409: "The run is not succeeded, is already signed off, or its "
+                        "verification failed and the decision is approved",
+                   422: "Approving a record with deviations needs a justification"})
 def create_signoff(run_id: str, body: dict[str, Any]):
-    return Reply(signoffs.sign_off(services().store, run_id, current_identity(),
-                                   decision=body["decision"], comment=body["comment"]), 201)
+    svc = services()
+    return Reply(signoffs.sign_off(svc.store, run_id, current_identity(),
+                                   decision=body["decision"], comment=body["comment"],
+                                   meaning=body["meaning"], password=body["password"],
+                                   justification=body.get("justification"),
+                                   key=svc.signing_key), 201)

@@ -136,7 +136,7 @@ def _normalised(record: dict[str, Any], document: dict[str, Any]) -> dict[str, A
     if isinstance(record.get("inputs"), dict):
         return record["inputs"]
     try:
-        return dict(schemas.validate_case(document).normalised)
+        return dict(schemas.validate_case(document, budgets=None).normalised)
     except schemas.CaseError:
         return None
 
@@ -242,6 +242,7 @@ def report_context(record: dict[str, Any], document: dict[str, Any]) -> dict[str
         "warnings": record.get("warnings") or [],
         "provenance": record.get("provenance") or {},
         "signoffs": record.get("signoffs") or [],
+        "deviations": record.get("deviations") or [],
         "caution": record.get("caution") or DEFAULT_CAUTION,
         "standard_caution": DEFAULT_CAUTION,
         "figures": _figures(record, normalised),

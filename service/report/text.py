@@ -62,6 +62,29 @@ def _input_rows(original, normalised, path: str = "") -> Iterator[tuple[str, str
         yield path, given, si if si != given else ""
 
 
+def deviation_lines(record: dict) -> list[str]:
+    """The default limits the case loosens (the record's ``deviations``), or nothing."""
+    deviations = record.get("deviations") or []
+    if not deviations:
+        return []
+    return ["DEVIATIONS: this case loosens default limits"] + [
+        f"  {d['check']:<32} default {_fmt(d['default']):>12}  this case {_fmt(d['value']):>12}"
+        for d in deviations]
+
+
+def signature_lines(record: dict) -> list[str]:
+    """Each sign-off's electronic signature: printed name, meaning, decision, UTC time."""
+    lines = []
+    for s in record.get("signoffs") or []:
+        lines.append(f"SIGNED: {s.get('name') or s['reviewer']} ({s['reviewer']}), "
+                     f"{s.get('meaning') or 'sign-off'}, {s['decision']}, {s['at']} UTC")
+        if s.get("signature"):
+            lines.append(f"  Ed25519 key {s['key_id']}, record sha256 {s['record_sha256']}")
+        if s.get("justification"):
+            lines.append(f"  justification: {s['justification']}")
+    return lines
+
+
 def render_text(record: dict, case: dict) -> str:
     """The readable report: the two verdicts (calculation verified, design requirements met)
     and the required quantities first, then inputs (as given and SI), quantities, the design
@@ -72,6 +95,8 @@ def render_text(record: dict, case: dict) -> str:
     if case.get("reference"):
         add(f"reference: {case['reference']}")
     add(f"case sha256: {record.get('case_sha256')}")
+    lines.extend(deviation_lines(record))
+    lines.extend(signature_lines(record))
     add(RULE)
     lines.extend(verdict_lines(record))
     lines.extend(headline_lines(record, case))

@@ -17,11 +17,13 @@ from typing import Any
 import schemas
 import worker.engine
 from service.batches import close_batch_after_run
+from service.case_intake import intake_budgets
 from service.runs.finite import non_finite_paths_of_record
 from service.runs.waves import BlockSharing, WaveScheduler
 from service.store import Store, default_store
 from service.store.blocks import delete_blocks, fix_seed
 from service.store.models import RunStatus
+from worker.engine.cost import DEFAULT_BUDGETS
 
 logger = logging.getLogger(__name__)
 
@@ -111,6 +113,9 @@ def check_outcome(run_id: str, case_id: str, document: dict[str, Any], *,
         options = ({} if monte_carlo is None
                    else monte_carlo_options(monte_carlo[0], run_id, document, monte_carlo[1]))
         # check_case validates the stored case again (CaseError when it no longer passes).
+        budgets = intake_budgets()
+        if budgets != DEFAULT_BUDGETS:  # a scaled budget; check_case holds the default itself
+            options["budgets"] = budgets
         result = worker.engine.check_case(document, **options)
         record = dict(result)
         record["run_id"] = run_id

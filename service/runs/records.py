@@ -14,8 +14,14 @@ def _iso(value: Any) -> str | None:
 
 
 def signoff_to_dict(signoff: Any) -> dict[str, Any]:
-    return {"reviewer": signoff.reviewer, "decision": signoff.decision,
-            "comment": signoff.comment, "at": _iso(signoff.at)}
+    """A sign-off and its electronic signature (None in each signature field for sign-offs
+    made before signatures existed)."""
+    return {"reviewer": signoff.reviewer, "name": signoff.signer_name,
+            "decision": signoff.decision, "meaning": signoff.meaning,
+            "comment": signoff.comment, "justification": signoff.justification,
+            "at": _iso(signoff.at), "record_sha256": signoff.record_sha256,
+            "payload_sha256": signoff.payload_sha256, "signature": signoff.signature,
+            "key_id": signoff.key_id}
 
 
 def run_summary(run: Run) -> dict[str, Any]:
@@ -41,11 +47,19 @@ def run_summary(run: Run) -> dict[str, Any]:
     return summary
 
 
-def record_of(run: Run) -> dict[str, Any]:
-    """The full record: the engine's result document plus the run's own fields."""
+def record_of(run: Run, case_author: str | None = None) -> dict[str, Any]:
+    """The full record: the engine's result document plus the run's own fields (and who first
+    stored the case, when given: the second person four-eyes excludes)."""
     record = dict(run.record or {})
     record.update(run_summary(run))
+    if case_author is not None:
+        record["case_author"] = case_author
     return record
+
+
+def _case_author(session: Any, run: Run) -> str | None:
+    case = session.get(Case, run.case_id)
+    return None if case is None else case.created_by
 
 
 def get_record(store: Store, run_id: str) -> dict[str, Any]:
@@ -53,7 +67,7 @@ def get_record(store: Store, run_id: str) -> dict[str, Any]:
         run = session.get(Run, run_id)
         if run is None:
             raise NotFound(f"There is no run with id {run_id!r}.")
-        return record_of(run)
+        return record_of(run, _case_author(session, run))
 
 
 def get_run_and_case(store: Store, run_id: str) -> tuple[dict[str, Any], dict[str, Any]]:
@@ -64,4 +78,4 @@ def get_run_and_case(store: Store, run_id: str) -> tuple[dict[str, Any], dict[st
             raise NotFound(f"There is no run with id {run_id!r}.")
         case = session.get(Case, run.case_id)
         assert case is not None
-        return record_of(run), dict(case.document)
+        return record_of(run, case.created_by), dict(case.document)

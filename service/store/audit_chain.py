@@ -93,6 +93,12 @@ EVENT_KINDS = (
     "signoff.recorded",
     "token.created",
     "token.revoked",
+    "user.created",
+    "user.changed",
+    "user.disabled",
+    "auth.signed_in",
+    "auth.signed_out",
+    "auth.failed",
     "batch.started",
     "batch.finished",
 )

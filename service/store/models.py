@@ -30,6 +30,8 @@ UNFINISHED_STATES = (RunStatus.QUEUED.value, RunStatus.RUNNING.value)
 FINISHED_STATES = (RunStatus.SUCCEEDED.value, RunStatus.FAILED.value)
 ROLES = ("engineer", "reviewer", "auditor", "admin")
 DECISIONS = tuple(d.value for d in Decision)
+#: What a signature means (21 CFR Part 11 §11.50(a)(3)).
+MEANINGS = ("review", "approval", "responsibility")
 
 
 def utc_now() -> datetime:
@@ -131,7 +133,23 @@ class RunBlock(Base):
     computed_at: Mapped[datetime] = mapped_column(UtcDateTime())
 
 
+class ServiceLease(Base):
+    """A named lease that one process at a time holds until ``expires_at``
+    (:mod:`service.store.leases`): the recovery sweep's turn among API and worker processes."""
+
+    __tablename__ = "service_leases"
+
+    name: Mapped[str] = mapped_column(String(64), primary_key=True)
+    holder: Mapped[str] = mapped_column(String(200))
+    expires_at: Mapped[datetime] = mapped_column(UtcDateTime())
+
+
 class Signoff(Base):
+    """A sign-off: ``reviewer`` is the signer's login. The electronic signature (migration
+    0006) is the signer's printed name, the meaning, the UTC time ``at``, bound to the SHA-256
+    of the signed record and signed with the server's Ed25519 key (:mod:`service.signoffs`);
+    sign-offs written before 0006 have none of it."""
+
     __tablename__ = "signoffs"
 
     id: Mapped[int] = mapped_column(Integer, primary_key=True, autoincrement=True)
@@ -140,9 +158,37 @@ class Signoff(Base):
     decision: Mapped[str] = mapped_column(String(16))
     comment: Mapped[str] = mapped_column(Text)
     at: Mapped[datetime] = mapped_column(UtcDateTime())
+    meaning: Mapped[str | None] = mapped_column(String(16), nullable=True)
+    signer_name: Mapped[str | None] = mapped_column(String(200), nullable=True)
+    justification: Mapped[str | None] = mapped_column(Text, nullable=True)
+    record_sha256: Mapped[str | None] = mapped_column(String(64), nullable=True)
+    payload_sha256: Mapped[str | None] = mapped_column(String(64), nullable=True)
+    signature: Mapped[str | None] = mapped_column(String(200), nullable=True)
+    key_id: Mapped[str | None] = mapped_column(String(32), nullable=True)
+
+
+class User(Base):
+    """A person: login (unique by ``login_key``, its NFKC case-folded form), printed name,
+    role and an argon2id password hash (:mod:`service.people`)."""
+
+    __tablename__ = "users"
+
+    id: Mapped[str] = mapped_column(String(32), primary_key=True)
+    login: Mapped[str] = mapped_column(String(200))
+    login_key: Mapped[str] = mapped_column(String(200), unique=True)
+    name: Mapped[str] = mapped_column(String(200))
+    role: Mapped[str] = mapped_column(String(16))
+    password_hash: Mapped[str | None] = mapped_column(String(200), nullable=True)
+    disabled: Mapped[bool] = mapped_column(Boolean, default=False)
+    created_at: Mapped[datetime] = mapped_column(UtcDateTime())
+    created_by: Mapped[str] = mapped_column(String(200))
+    changed_at: Mapped[datetime | None] = mapped_column(UtcDateTime(), nullable=True)
 
 
 class Token(Base):
+    """A bearer token of a person (``user_id``); ``name`` says what it is for. Tokens made
+    before migration 0006 belong to nobody and are refused."""
+
     __tablename__ = "tokens"
 
     id: Mapped[str] = mapped_column(String(32), primary_key=True)
@@ -151,6 +197,25 @@ class Token(Base):
     sha256: Mapped[str] = mapped_column(String(64))
     created_at: Mapped[datetime] = mapped_column(UtcDateTime())
     revoked: Mapped[bool] = mapped_column(Boolean, default=False)
+    user_id: Mapped[str | None] = mapped_column(ForeignKey("users.id"), nullable=True)
+    expires_at: Mapped[datetime | None] = mapped_column(UtcDateTime(), nullable=True)
+
+
+class BrowserSession(Base):
+    """A browser session kept on the server; the cookie carries only its random id, and the
+    store only the SHA-256 of that id (:mod:`service.ui.sessions`)."""
+
+    __tablename__ = "browser_sessions"
+
+    id_sha256: Mapped[str] = mapped_column(String(64), primary_key=True)
+    user_id: Mapped[str | None] = mapped_column(ForeignKey("users.id"), nullable=True,
+                                                index=True)
+    data: Mapped[dict[str, Any]] = mapped_column(JSON)
+    created_at: Mapped[datetime] = mapped_column(UtcDateTime())
+    signed_in_at: Mapped[datetime | None] = mapped_column(UtcDateTime(), nullable=True)
+    last_seen_at: Mapped[datetime] = mapped_column(UtcDateTime(), index=True)
+    ended_at: Mapped[datetime | None] = mapped_column(UtcDateTime(), nullable=True)
+    end_reason: Mapped[str | None] = mapped_column(String(40), nullable=True)
 
 
 class AuditEvent(Base):

@@ -2,15 +2,18 @@
 
 from __future__ import annotations
 
-import logging
-
 from flask import Flask, Response
+from werkzeug.middleware.proxy_fix import ProxyFix
 
+from service.server_keys import installation_secret
 from service.ui.blueprint import ui
-
-logger = logging.getLogger(__name__)
-
-DEV_SECRET = "dev-only-change-me"
+from service.ui.sessions import (
+    COOKIE_NAME,
+    ServerSessionInterface,
+    absolute_limit,
+    cookie_secure_setting,
+    idle_limit,
+)
 
 #: No scripts at all, styles from this site (and the inline ones of the SVG figures and the
 #: standalone report), forms only to this site, never framed.
@@ -36,19 +39,21 @@ def add_security_headers(response: Response) -> Response:
 
 
 def init_app(app: Flask) -> None:
-    """Register ``/ui/``; the session cookie is HttpOnly, SameSite=Lax, signed with SECRET_KEY."""
-    app.secret_key = app.config.get("SECRET_KEY")
+    """Register ``/ui/`` with server-side sessions (:mod:`service.ui.sessions`); the app's
+    secret is the installation's (:func:`service.server_keys.installation_secret`, which
+    refuses a weak one outside the embedded default). ``PROXY_FIX_HOPS`` proxies are trusted
+    for the client's address, scheme and host (so a TLS proxy makes cookies Secure)."""
     if not app.secret_key:
-        raise ValueError("FLUXPROOF_SECRET_KEY: expected a secret for the session cookie, got "
-                         "nothing")
-    if app.secret_key == DEV_SECRET and not app.config.get("TESTING"):
-        logger.warning("FLUXPROOF_SECRET_KEY is the development default; set a secret of your "
-                       "own before anyone signs in to /ui/")
-    app.config["SESSION_COOKIE_NAME"] = "fluxproof_session"
-    app.config["SESSION_COOKIE_HTTPONLY"] = True
-    app.config["SESSION_COOKIE_SAMESITE"] = "Lax"
-    app.config["SESSION_COOKIE_PATH"] = "/ui"
-    # Secure cookies need HTTPS; set FLUXPROOF_SESSION_COOKIE_SECURE=true behind TLS.
-    app.config["SESSION_COOKIE_SECURE"] = bool(app.config.get("SESSION_COOKIE_SECURE", False))
+        app.secret_key = installation_secret(app.config)
+    hops = app.config.get("PROXY_FIX_HOPS", 0)
+    if isinstance(hops, bool) or not isinstance(hops, int) or not 0 <= hops <= 10:
+        raise ValueError(f"FLUXPROOF_PROXY_FIX_HOPS: expected a whole number from 0 to 10, "
+                         f"got {hops!r}")
+    if hops:
+        app.wsgi_app = ProxyFix(app.wsgi_app, x_for=hops, x_proto=hops,  # type: ignore[method-assign]
+                                x_host=hops)
+    idle_limit(app), absolute_limit(app), cookie_secure_setting(app)  # refuse bad settings now
+    app.config["SESSION_COOKIE_NAME"] = COOKIE_NAME
+    app.session_interface = ServerSessionInterface()
     app.register_blueprint(ui)
     app.after_request(add_security_headers)

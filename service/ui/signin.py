@@ -1,29 +1,30 @@
-"""Who is using the browser pages: sign-in with a bearer token, the session, the role gate.
+"""Who is using the browser pages: sign-in with login and password, the session, the role gate.
 
-The session (Flask's signed cookie) holds the token's id and the time of sign-in, never the
-token itself. Every request re-reads the token's row, so a revoked token ends its sessions at
-once, and a session older than :data:`SESSION_SECONDS` must sign in again. Which role may open
-which page comes from the API's :data:`service.api.ROLE_MATRIX`, so the two never disagree.
+People sign in with their login and password (:func:`service.people.check_password`); the
+session is kept on the server (:mod:`service.ui.sessions`) and the cookie holds only its id.
+Every request re-reads the person, so a disabled person's sessions end at once, and the
+session's idle and absolute timeouts apply. Sign-in, sign-out and a failed sign-in are audit
+events naming the person. Which role may open which page comes from the API's
+:data:`service.api.ROLE_MATRIX`, so the two never disagree.
 """
 
 from __future__ import annotations
 
-import time
 from collections.abc import Mapping
 from types import MappingProxyType
 from typing import Any
 from urllib.parse import quote
 
-from flask import current_app, g, redirect, request, session, url_for
+from flask import current_app, flash, g, redirect, request, session, url_for
 
+from service import auth_events
 from service.api import ROLE_MATRIX
 from service.errors import Forbidden, Unauthorized
+from service.people import check_password, get_person
 from service.report.html import DEFAULT_CAUTION
-from service.tokens import Identity, identify, identity_of_token_id
+from service.tokens import Identity
 from service.ui import csrf
-
-#: A session lasts this long after sign-in (8 hours: one working day).
-SESSION_SECONDS = 8 * 3600
+from service.ui.sessions import ServerSession
 
 #: Pages anyone may open (the sign-in form and the stylesheet).
 OPEN_PAGES = frozenset({"ui.login", "ui.login_submit", "ui.static"})
@@ -36,6 +37,7 @@ PAGE_ROLES: Mapping[str, frozenset[str]] = MappingProxyType({
     "ui.run": ROLE_MATRIX["api.get_run"],
     "ui.run_report": ROLE_MATRIX["api.get_run_report"],
     "ui.run_record": ROLE_MATRIX["api.get_run"],
+    "ui.run_record_pdf": ROLE_MATRIX["api.get_run_report_pdf"],
     "ui.signoff": ROLE_MATRIX["api.create_signoff"],
     "ui.case": ROLE_MATRIX["api.list_case_runs"],
     "ui.batches": ROLE_MATRIX["api.get_batch"],
@@ -48,31 +50,52 @@ def _store():
     return current_app.extensions["fluxproof"].store
 
 
-def sign_in(token: str) -> Identity | None:
-    """Start a session for the holder of ``token``; None (no session) when it is not valid."""
-    identity = identify(_store(), token.strip())
-    if identity is None:
+def _server_session() -> ServerSession:
+    current = session._get_current_object()  # type: ignore[attr-defined]
+    assert isinstance(current, ServerSession)
+    return current
+
+
+def identity_of(person: Any) -> Identity:
+    return Identity(login=person.login, name=person.name, role=person.role,
+                    user_id=person.user_id)
+
+
+def sign_in(login: str, password: str) -> Identity | None:
+    """Start a session for the person with this login and password; None (no session, an
+    ``auth.failed`` event) when they do not match an enabled person."""
+    store = _store()
+    person = check_password(store, login.strip(), password)
+    if person is None:
+        auth_events.record(store, "auth.failed", actor=login.strip(), subject=login.strip(),
+                           payload={"via": "sign-in form", "reason": "unknown login, wrong "
+                                    "password or disabled person"})
         return None
-    session.clear()  # no state from before sign-in survives (session fixation)
-    session["token_id"] = identity.token_id
-    session["signed_in_at"] = int(time.time())
+    _server_session().start_person(person.user_id)  # a new session id (no fixation)
     csrf.renew()
-    return identity
+    auth_events.record(store, "auth.signed_in", actor=person.login, subject=person.login,
+                       payload={"via": "sign-in form"})
+    return identity_of(person)
 
 
 def sign_out() -> None:
-    session.clear()
+    """End the session (it can never be resumed) and audit it."""
+    person = g.get("person")
+    _server_session().end("signed out")
     csrf.renew()
+    if person is not None:
+        auth_events.record(_store(), "auth.signed_out", actor=person.login,
+                           subject=person.login, payload={})
 
 
 def _session_identity() -> Identity | None:
-    token_id = session.get("token_id")
-    signed_in_at = session.get("signed_in_at")
-    if not token_id or not isinstance(signed_in_at, int):
+    user_id = _server_session().user_id
+    if not user_id:
         return None
-    if time.time() - signed_in_at > SESSION_SECONDS:
+    person = get_person(_store(), user_id)
+    if person is None or person.disabled:
         return None
-    return identity_of_token_id(_store(), token_id)
+    return identity_of(person)
 
 
 def may_open(role: str, endpoint: str) -> bool:
@@ -87,8 +110,9 @@ def require_person() -> Any:
         return None
     person = _session_identity()
     if person is None:
-        if session.get("token_id"):
-            sign_out()
+        ended = _server_session().expired_reason
+        if ended:
+            flash(f"Your session ended ({ended}); sign in again.", "error")
         if request.method == "GET":
             target = request.full_path.rstrip("?")
             return redirect(url_for("ui.login") + "?next=" + quote(target, safe="/"), code=303)

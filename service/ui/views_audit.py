@@ -4,7 +4,7 @@ from __future__ import annotations
 
 from flask import render_template, request
 
-from service import audit
+from service import audit, listing
 from service.api.context import services
 from service.ui.blueprint import ui
 
@@ -21,10 +21,7 @@ def audit_page():
         errors.append({"path": "kind", "message": f"expected one of "
                                                   f"{', '.join(audit.EVENT_KINDS)}"})
         kind = None
-    try:
-        offset = max(0, int(request.args.get("offset", "0")))
-    except ValueError:
-        offset = 0
+    offset = listing.page_offset(request.args.get("offset"))
     events = audit.list_events(store, limit=EVENTS_PER_PAGE, offset=offset, kind=kind,
                                subject=subject)
     chain = audit.verify_chain(store)

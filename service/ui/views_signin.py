@@ -1,8 +1,10 @@
-"""Signing in with a token, and out."""
+"""Signing in with login and password, and out."""
 
 from __future__ import annotations
 
-from flask import flash, g, redirect, render_template, request, url_for
+from typing import Any
+
+from flask import current_app, flash, g, redirect, render_template, request, url_for
 
 from service.ui import signin
 from service.ui.blueprint import ui
@@ -13,24 +15,30 @@ def index():
     return redirect(url_for("ui.runs"), code=303)
 
 
+def _login_page(status: int = 200, **context: Any):
+    config = current_app.config
+    return render_template("ui_login.html", idle_minutes=config.get("SESSION_IDLE_MINUTES"),
+                           max_hours=config.get("SESSION_MAX_HOURS"),
+                           **{"error": None, "login": "", **context}), status
+
+
 @ui.get("/login")
 def login():
-    return render_template("ui_login.html", next=signin.safe_next(request.args.get("next")),
-                           error=None)
+    return _login_page(next=signin.safe_next(request.args.get("next")))
 
 
 @ui.post("/login")
 def login_submit():
-    token = request.form.get("token", "")
+    login_name = request.form.get("login", "")
+    password = request.form.get("password", "")
     target = signin.safe_next(request.form.get("next"))
-    if not token.strip():
-        return render_template("ui_login.html", next=target,
-                               error="token: paste the access token you were given "
-                                     "(it begins with fpt_)."), 422
-    person = signin.sign_in(token)
+    if not login_name.strip() or not password:
+        return _login_page(422, next=target, login=login_name,
+                           error="login, password: give both your login and your password.")
+    person = signin.sign_in(login_name, password)
     if person is None:
-        return render_template("ui_login.html", next=target,
-                               error="token: this token is unknown, malformed or revoked."), 401
+        return _login_page(401, next=target, login=login_name,
+                           error="login, password: these do not match an active account.")
     g.person = person
     flash(f"Signed in as {person.name} ({person.role}).", "ok")
     return redirect(target, code=303)

@@ -71,6 +71,42 @@ def copy_template_db(template: Path, data_dir: Path) -> None:
     shutil.copyfile(template, data_dir / SQLITE_FILE_NAME)
 
 
+def app_keys(directory: Path) -> dict[str, str]:
+    """The secret and the signing key file a test app needs when it has its own database (the
+    embedded default makes both in its data directory)."""
+    return {"SECRET_KEY": "test-installation-secret-0123456789abcdef",
+            "SIGNING_KEY_FILE": str(Path(directory) / "signing_key.pem")}
+
+
+#: The password of every person the test helpers create (an input, never a check value).
+TEST_PASSWORD = "correct horse battery staple"
+
+
+def person_token(store: Any, role: str, login: str, *, password: str | None = TEST_PASSWORD,
+                 name: str | None = None, lifetime_days: float | None = None) -> str:
+    """A bearer token of the person ``login`` (created with ``role`` and ``password`` when
+    missing; printed name ``name`` or the login)."""
+    from service.people import create_user, person_by_login
+    from service.tokens import create_token
+
+    if person_by_login(store, login) is None:
+        create_user(store, login=login, name=name or login, role=role, password=password,
+                    actor="os:test")
+    return create_token(store, login=login, actor="os:test", lifetime_days=lifetime_days)[1]
+
+
+#: The signature fields of a sign-off by one of the helpers' persons.
+SIGN = {"meaning": "approval", "password": TEST_PASSWORD}
+
+
+def signoff_body(decision: str = "approved", comment: str = "checked", *,
+                 meaning: str = "approval", password: str = TEST_PASSWORD,
+                 **more: Any) -> dict[str, Any]:
+    """A sign-off request body (the helpers' persons' password)."""
+    return {"decision": decision, "comment": comment, "meaning": meaning, "password": password,
+            **more}
+
+
 def bearer(token: str) -> dict[str, str]:
     return {"Authorization": f"Bearer {token}"}
 

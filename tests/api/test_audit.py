@@ -4,7 +4,7 @@ from __future__ import annotations
 
 from sqlalchemy import text
 
-from tests.api.support import bearer, make_case
+from tests.api.support import SIGN, bearer, make_case
 from tests.tampering import owner_edit
 
 
@@ -12,13 +12,13 @@ def test_every_change_leaves_an_event(client, tokens, controlled_engine):
     run = client.post("/v1/runs", json={"case": make_case()},
                       headers=bearer(tokens["engineer"])).get_json()
     client.post(f"/v1/runs/{run['run_id']}/signoffs",
-                json={"decision": "approved", "comment": "ok"},
+                json={"decision": "approved", **SIGN, "comment": "ok"},
                 headers=bearer(tokens["reviewer"]))
     client.post("/v1/batches", json={"all": True}, headers=bearer(tokens["admin"]))
     events = client.get("/v1/audit?limit=500", headers=bearer(tokens["auditor"])).get_json()
     kinds = [e["kind"] for e in events["items"]]
-    assert kinds[:4] == ["token.created"] * 4
-    assert kinds[4:] == ["case.stored", "run.queued", "run.started", "run.finished",
+    assert kinds[:8] == ["user.created", "token.created"] * 4
+    assert kinds[8:] == ["case.stored", "run.queued", "run.started", "run.finished",
                          "signoff.recorded", "batch.started", "run.queued", "run.started",
                          "run.finished", "batch.finished"]
     seqs = [e["seq"] for e in events["items"]]
@@ -31,14 +31,16 @@ def test_every_change_leaves_an_event(client, tokens, controlled_engine):
                                                        "run.finished", "signoff.recorded"]
     page = client.get("/v1/audit?limit=3&offset=3", headers=bearer(tokens["admin"])).get_json()
     assert [e["seq"] for e in page["items"]] == [4, 5, 6]
+    creations = [e for e in events["items"] if e["kind"] in ("user.created", "token.created")]
+    assert {e["actor"] for e in creations} == {"os:test"}  # the acting person, never "cli"
 
 
 def test_verify_accepts_an_intact_chain(client, tokens):
     client.post("/v1/cases", json=make_case(), headers=bearer(tokens["engineer"]))
     result = client.get("/v1/audit/verify", headers=bearer(tokens["auditor"])).get_json()
     assert {k: result[k] for k in ("ok", "events", "head_seq", "first_broken", "findings")} \
-        == {"ok": True, "events": 5, "head_seq": 5, "first_broken": None, "findings": []}
-    assert result["anchor"]["seq"] == 5 and result["anchor"]["checkpoints"] == 5
+        == {"ok": True, "events": 9, "head_seq": 9, "first_broken": None, "findings": []}
+    assert result["anchor"]["seq"] == 9 and result["anchor"]["checkpoints"] >= 1
     assert result["compared"]["cases"] == 1
 
 
@@ -67,7 +69,7 @@ def test_verify_names_a_removed_event(client, store, tokens):
 def test_verify_notices_a_truncated_tail(client, store, tokens):
     client.post("/v1/cases", json=make_case(), headers=bearer(tokens["engineer"]))
     with owner_edit(store, "audit_events") as connection:
-        connection.execute(text("DELETE FROM audit_events WHERE seq = 5"))
+        connection.execute(text("DELETE FROM audit_events WHERE seq = 9"))
     result = client.get("/v1/audit/verify", headers=bearer(tokens["auditor"])).get_json()
-    assert result["ok"] is False and result["first_broken"]["seq"] == 5
+    assert result["ok"] is False and result["first_broken"]["seq"] == 9
     assert "head" in result["first_broken"]["reason"]

@@ -4,7 +4,7 @@ from __future__ import annotations
 
 import pytest
 
-from tests.api.support import bearer, make_case
+from tests.api.support import SIGN, bearer, make_case
 
 
 def store_cases(client, tokens, specs):
@@ -38,7 +38,7 @@ def test_drift_is_reported_against_the_last_approved_record(client, tokens,
     # Second, later record that is not approved: the approved one stays the baseline.
     controlled_engine.quantities = {"flux_outer": approved_value, "flux_inner": 1.0}
     client.post(f"/v1/runs/{first['run_id']}/signoffs",
-                json={"decision": "approved", "comment": "baseline"},
+                json={"decision": "approved", **SIGN, "comment": "baseline"},
                 headers=bearer(tokens["reviewer"]))
     controlled_engine.quantities = {"flux_outer": 9.0e-6, "flux_inner": 1.0}
     client.post("/v1/runs", json={"case_id": first["case_id"]},

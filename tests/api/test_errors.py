@@ -122,12 +122,12 @@ def test_body_must_be_an_object(client, tokens):
 
 def test_oversize_body_is_413_and_stores_nothing(data_dir, dispatch_mode):
     from service.app import create_app, shutdown_app
-    from service.tokens import create_token
+    from tests.api.support import person_token
 
     app = create_app({"DATA_DIR": str(data_dir), "DISPATCH": "inline", "MAX_BODY_BYTES": 2000})
     try:
         store = app.extensions["fluxproof"].store
-        _, token = create_token(store, role="engineer", name="big-sender")
+        token = person_token(store, "engineer", "big-sender")
         before = count_rows(store)
         case = make_case(reference="x" * 5000)
         response = app.test_client().post("/v1/cases", json=case, headers=bearer(token))

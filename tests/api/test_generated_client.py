@@ -34,6 +34,12 @@ def generate_client(document: dict[str, Any], directory: Path) -> tuple[bool, st
     """Run openapi-python-client on ``document``; (clean, generator output)."""
     spec_path = directory / "openapi.json"
     spec_path.write_text(json.dumps(document), encoding="utf-8")
+    # The generator reads binary bodies only as octet-stream; the archival PDF is one (its
+    # documented configuration option for a media type it does not know).
+    config_path = directory / "generator.json"
+    config_path.write_text(json.dumps(
+        {"content_type_overrides": {"application/pdf": "application/octet-stream"}}),
+        encoding="utf-8")
     bin_dir = str(Path(sys.executable).parent)
     generator = shutil.which("openapi-python-client", path=bin_dir) or shutil.which(
         "openapi-python-client")
@@ -41,7 +47,8 @@ def generate_client(document: dict[str, Any], directory: Path) -> tuple[bool, st
     env = {**os.environ, "PATH": bin_dir + os.pathsep + os.environ.get("PATH", "")}
     finished = subprocess.run(
         [generator, "generate", "--path", str(spec_path), "--output-path",
-         str(directory / PACKAGE), "--meta", "none", "--overwrite"],
+         str(directory / PACKAGE), "--meta", "none", "--overwrite", "--config",
+         str(config_path)],
         capture_output=True, text=True, env=env, timeout=300, check=False)
     output = finished.stdout + finished.stderr
     complete = ("WARNING" not in output and "Unable to process" not in output

@@ -9,7 +9,7 @@ from __future__ import annotations
 import pytest
 
 from service.api import PUBLIC, ROLE_MATRIX
-from tests.api.support import bearer, make_case
+from tests.api.support import SIGN, bearer, make_case
 
 ROLES = ("engineer", "reviewer", "auditor", "admin")
 ALL = frozenset(ROLES)
@@ -18,6 +18,7 @@ ALL = frozenset(ROLES)
 EXPECTED_ACCESS = {
     "api.health": ("GET", "/v1/health", None),
     "api.openapi": ("GET", "/v1/openapi.json", None),
+    "api.signing_key": ("GET", "/v1/meta/signing-key", None),
     "api.validate": ("POST", "/v1/validate", {"engineer"}),
     "api.create_case": ("POST", "/v1/cases", {"engineer"}),
     "api.list_cases": ("GET", "/v1/cases", ALL),
@@ -26,6 +27,7 @@ EXPECTED_ACCESS = {
     "api.create_run": ("POST", "/v1/runs", {"engineer"}),
     "api.get_run": ("GET", "/v1/runs/{run_id}", ALL),
     "api.get_run_report": ("GET", "/v1/runs/{run_id}/report", ALL),
+    "api.get_run_report_pdf": ("GET", "/v1/runs/{run_id}/report.pdf", ALL),
     "api.create_signoff": ("POST", "/v1/runs/{run_id}/signoffs", {"reviewer"}),
     "api.create_batch": ("POST", "/v1/batches", {"admin"}),
     "api.get_batch": ("GET", "/v1/batches/{batch_id}", ALL),
@@ -59,7 +61,7 @@ def _body(endpoint: str, ids: dict[str, str]) -> dict | None:
         "api.validate": make_case(),
         "api.create_case": make_case(title="role matrix: another case"),
         "api.create_run": {"case_id": ids["case_id"]},
-        "api.create_signoff": {"decision": "approved", "comment": "role matrix check"},
+        "api.create_signoff": {"decision": "approved", **SIGN, "comment": "role matrix check"},
         "api.create_batch": {"tag": "service-test"},
     }.get(endpoint)
 
@@ -109,8 +111,9 @@ def test_invalid_and_revoked_tokens_are_401(client, store, tokens):
         response = client.get("/v1/cases", headers=bearer(token))
         assert response.status_code == 401
         assert "invalid_token" in response.headers["WWW-Authenticate"]
-    token_id, token = create_token(store, role="auditor", name="short-lived")
+    token_id, token = create_token(store, login="ana.auditor", name="short-lived",
+                                   actor="os:test")
     assert client.get("/v1/cases", headers=bearer(token)).status_code == 200
-    assert revoke_token(store, token_id)
+    assert revoke_token(store, token_id, actor="os:test")
     assert client.get("/v1/cases", headers=bearer(token)).status_code == 401
     assert client.get("/v1/cases", headers={"Authorization": "Basic abc"}).status_code == 401

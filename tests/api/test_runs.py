@@ -5,7 +5,7 @@ from __future__ import annotations
 import pytest
 
 from service.store.guards import SealedRecordError
-from tests.api.support import bearer, count_rows, make_case, wait_for_run
+from tests.api.support import SIGN, bearer, count_rows, make_case, wait_for_run
 
 RECORD_KEYS = {"case_sha256", "status", "verdict", "quantities", "series", "methods", "checks",
                "warnings", "provenance"}
@@ -102,7 +102,7 @@ def test_report_is_html_with_every_section(client, tokens, controlled_engine):
 def test_signoff_by_a_second_person_seals_the_record(client, store, tokens, controlled_engine):
     run_id = submit(client, tokens).get_json()["run_id"]
     response = client.post(f"/v1/runs/{run_id}/signoffs",
-                           json={"decision": "approved", "comment": "figures checked"},
+                           json={"decision": "approved", **SIGN, "comment": "figures checked"},
                            headers=bearer(tokens["reviewer"]))
     assert response.status_code == 201, response.get_json()
     body = response.get_json()
@@ -110,7 +110,7 @@ def test_signoff_by_a_second_person_seals_the_record(client, store, tokens, cont
     record = client.get(f"/v1/runs/{run_id}", headers=bearer(tokens["auditor"])).get_json()
     assert record["signoffs"][0]["comment"] == "figures checked"
     again = client.post(f"/v1/runs/{run_id}/signoffs",
-                        json={"decision": "rejected", "comment": "changed my mind"},
+                        json={"decision": "rejected", **SIGN, "comment": "changed my mind"},
                         headers=bearer(tokens["reviewer"]))
     assert again.status_code == 409
     assert again.mimetype == "application/problem+json"
@@ -119,13 +119,15 @@ def test_signoff_by_a_second_person_seals_the_record(client, store, tokens, cont
 
 
 def test_four_eyes_the_submitter_cannot_sign_off(client, store, tokens, controlled_engine):
-    from service.tokens import create_token
+    from service.people import change_user
 
-    _, same_person_reviewer = create_token(store, role="reviewer", name="erin.engineer")
     run_id = submit(client, tokens).get_json()["run_id"]
+    # The submitter becomes a reviewer: the same person, whose token now carries that role.
+    change_user(store, "erin.engineer", role="reviewer", actor="adi.admin")
+    same_person_reviewer = tokens["engineer"]
     before = count_rows(store)
     response = client.post(f"/v1/runs/{run_id}/signoffs",
-                           json={"decision": "approved", "comment": "my own work"},
+                           json={"decision": "approved", **SIGN, "comment": "my own work"},
                            headers=bearer(same_person_reviewer))
     assert response.status_code == 403
     assert response.mimetype == "application/problem+json"
@@ -138,16 +140,16 @@ def test_only_succeeded_runs_can_be_signed_off(client, store, tokens, controlled
     controlled_engine.status = "failed"
     run_id = submit(client, tokens).get_json()["run_id"]
     response = client.post(f"/v1/runs/{run_id}/signoffs",
-                           json={"decision": "approved", "comment": "x"},
+                           json={"decision": "approved", **SIGN, "comment": "x"},
                            headers=bearer(tokens["reviewer"]))
     assert response.status_code == 409
     assert "succeeded" in response.get_json()["detail"]
 
 
 @pytest.mark.parametrize("body,path", [
-    ({"decision": "maybe", "comment": "x"}, "decision"),
-    ({"decision": "approved"}, "comment"),
-    ({"decision": "approved", "comment": "x", "stamp": True}, "stamp"),
+    ({"decision": "maybe", **SIGN, "comment": "x"}, "decision"),
+    ({"decision": "approved", **SIGN}, "comment"),
+    ({"decision": "approved", **SIGN, "comment": "x", "stamp": True}, "stamp"),
 ])
 def test_signoff_body_is_validated(client, store, tokens, controlled_engine, body, path):
     run_id = submit(client, tokens).get_json()["run_id"]
@@ -164,7 +166,8 @@ def test_signed_records_never_change(client, store, tokens, controlled_engine):
     from service.store.models import Run, Signoff
 
     run_id = submit(client, tokens).get_json()["run_id"]
-    client.post(f"/v1/runs/{run_id}/signoffs", json={"decision": "approved", "comment": "ok"},
+    client.post(f"/v1/runs/{run_id}/signoffs",
+                json={"decision": "approved", **SIGN, "comment": "ok"},
                 headers=bearer(tokens["reviewer"]))
     before = client.get(f"/v1/runs/{run_id}", headers=bearer(tokens["auditor"])).get_json()
 

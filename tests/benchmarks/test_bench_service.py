@@ -44,6 +44,7 @@ from pathlib import Path
 import pytest
 import requests
 
+from tests.api.support import app_keys
 from tests.integration.invented_cases import distinct_steady_cases
 from tests.integration.real_services import (
     PostgresSchema,
@@ -363,7 +364,9 @@ def _free_port() -> int:
 
 
 def _start_gunicorn(schema, lease, log_dir: Path, port: int) -> subprocess.Popen:
-    env = clean_environment({**_settings(schema, lease), "FLUXPROOF_BIND": f"127.0.0.1:{port}",
+    keys = {f"FLUXPROOF_{name}": value for name, value in app_keys(log_dir).items()}
+    env = clean_environment({**_settings(schema, lease), **keys,
+                             "FLUXPROOF_BIND": f"127.0.0.1:{port}",
                              "FLUXPROOF_ACCESS_LOG": str(log_dir / "access.log"),
                              "FLUXPROOF_ERROR_LOG": str(log_dir / "api.log")})
     process = subprocess.Popen(
@@ -454,13 +457,13 @@ def _server_times(access_log: Path, skip_lines: int) -> tuple[list[float], int]:
 
 def _profile_in_process(schema, lease) -> str:
     from service.app import create_app, shutdown_app
-    from service.tokens import create_token
+    from tests.api.support import person_token
 
     app = create_app({"TESTING": True, "DATABASE_URL": schema.url, "BROKER_URL": lease.url,
                       "DISPATCH": "celery", "AUTO_MIGRATE": False})
     try:
         store = app.extensions["fluxproof"].store
-        token = create_token(store, role="engineer", name="bench.profile")[1]
+        token = person_token(store, "engineer", "bench.profile")
         client = app.test_client()
         headers = {"Authorization": f"Bearer {token}"}
         documents = distinct_steady_cases(PROFILE_REQUESTS + 20, tags=["bench-profile"])
@@ -499,11 +502,11 @@ def _profile_in_process(schema, lease) -> str:
 
 def test_post_runs_latency_under_loopback_load(schema, lease, tmp_path):
     from service.store import Store
-    from service.tokens import create_token
+    from tests.api.support import person_token
 
     store = Store(schema.url)
     try:
-        token = create_token(store, role="engineer", name="bench.load")[1]
+        token = person_token(store, "engineer", "bench.load")
     finally:
         store.dispose()
     port = _free_port()

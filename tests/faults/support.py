@@ -13,12 +13,10 @@ ROLE_NAMES = {"engineer": "fenna.fault-engineer", "reviewer": "rune.fault-review
 
 
 def clean_upkeep_keys(client: Any) -> None:
-    """Delete the recovery sweep's queue and lock, which the lease's clean-up does not know."""
-    from service.recovery import LOCK_KEY
-
+    """Delete the recovery sweep's queue, which the lease's clean-up does not know (the sweep
+    takes turns by a database lease, not a broker key)."""
     for key in client.keys("fluxproof.upkeep*"):
         client.delete(key)
-    client.delete(LOCK_KEY)
 
 
 def make_stack(tmp_path: Path, schema: PostgresSchema, broker_url: str, owner: str,
@@ -28,7 +26,7 @@ def make_stack(tmp_path: Path, schema: PostgresSchema, broker_url: str, owner: s
 
 
 def create_tokens(store: Any) -> dict[str, str]:
-    from service.tokens import create_token
+    from tests.api.support import person_token
 
-    return {role: create_token(store, role=role, name=name)[1]
+    return {role: person_token(store, role, name)
             for role, name in ROLE_NAMES.items()}

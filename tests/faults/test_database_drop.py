@@ -13,6 +13,7 @@ import threading
 import time
 import uuid
 from concurrent.futures import ThreadPoolExecutor
+from pathlib import Path
 
 import pytest
 import requests
@@ -29,9 +30,10 @@ ALLOWED_DURING_FAULT = {200, 201, 202, 503}
 
 
 @pytest.fixture
-def proxied_api(pg_schema, migrated_store, monkeypatch):
+def proxied_api(pg_schema, migrated_store, monkeypatch, tmp_path):
     from service.app import create_app, shutdown_app
     from service.server import BackgroundServer
+    from tests.api.support import app_keys
 
     for key in list(__import__("os").environ):
         if key.startswith("FLUXPROOF_"):
@@ -39,7 +41,7 @@ def proxied_api(pg_schema, migrated_store, monkeypatch):
     proxy = TcpProxy(POSTGRES_HOST, POSTGRES_PORT).start()
     app = create_app({"DATABASE_URL": proxy.url_for(pg_schema.user, pg_schema.name),
                       "AUTO_MIGRATE": False, "DISPATCH": "inline",
-                      "SIGNING_KEY_FILE": TEST_SIGNING_KEY_FILE})
+                      **app_keys(Path(TEST_SIGNING_KEY_FILE).parent)})
     server = BackgroundServer(app).start()
     try:
         yield server.url, proxy

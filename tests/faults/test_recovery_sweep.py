@@ -8,13 +8,14 @@ from datetime import timedelta
 import pytest
 
 from service.recovery import (
-    LOCK_KEY,
+    LEASE_NAME,
     queued_run_ids,
     recover_lost_runs,
     recovery_settings,
-    sweep_lock,
+    sweep_lease,
 )
 from service.settings import DEFAULTS
+from service.store.models import ServiceLease
 from tests.integration.invented_cases import distinct_steady_cases
 
 
@@ -86,11 +87,12 @@ def test_only_old_unfinished_runs_unknown_to_the_broker_are_sent_again(
 def test_a_sweep_under_way_makes_the_next_one_skip(sqlite_store, idle_celery, redis_lease):
     (run_id,) = _queue_runs(sqlite_store, 1, "sweep-lock")
     _set_state(sqlite_store, run_id, "queued", 600)
-    with sweep_lock(idle_celery) as taken:
+    with sweep_lease(sqlite_store) as taken:
         assert taken is True
         report = recover_lost_runs(sqlite_store, idle_celery, older_than_s=60)
         assert report.skipped is True and report.redispatched == []
-    assert redis_lease.client().get(LOCK_KEY) is None  # released
+    with sqlite_store.transaction() as session:
+        assert session.get(ServiceLease, LEASE_NAME) is None  # released
     assert recover_lost_runs(sqlite_store, idle_celery, older_than_s=60).redispatched == [run_id]
 
 

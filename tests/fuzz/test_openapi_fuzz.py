@@ -22,7 +22,7 @@ from schemathesis.specs.openapi.checks import (
     status_code_conformance,
 )
 
-from tests.api.support import BASE_CASE
+from tests.api.support import BASE_CASE, SIGN
 
 #: Examples per operation and role (14 operations x 4 roles x this, at most).
 MAX_EXAMPLES = 20
@@ -35,7 +35,7 @@ def _seed(client, tokens) -> None:
                       headers={"Authorization": f"Bearer {tokens['engineer']}"})
     assert run.status_code == 202, run.get_json()
     signed = client.post(f"/v1/runs/{run.get_json()['run_id']}/signoffs",
-                         json={"decision": "approved", "comment": "fuzz seed"},
+                         json={"decision": "approved", **SIGN, "comment": "fuzz seed"},
                          headers={"Authorization": f"Bearer {tokens['reviewer']}"})
     assert signed.status_code == 201, signed.get_json()
     batch = client.post("/v1/batches", json={"all": True},

@@ -30,16 +30,17 @@ def worker_settings(schema: PostgresSchema, broker: RedisLease) -> dict[str, str
 
 def make_app(schema: PostgresSchema, broker: RedisLease):
     from service.app import create_app
+    from tests.api.support import app_keys
 
     return create_app({"TESTING": True, "DATABASE_URL": schema.url, "BROKER_URL": broker.url,
-                       "DISPATCH": "celery", "SIGNING_KEY_FILE": TEST_SIGNING_KEY_FILE})
+                       "DISPATCH": "celery", **app_keys(Path(TEST_SIGNING_KEY_FILE).parent)})
 
 
 def create_tokens(store: Any) -> dict[str, str]:
     """role -> a fresh bearer token (each role's own person)."""
-    from service.tokens import create_token
+    from tests.api.support import person_token
 
-    return {role: create_token(store, role=role, name=name)[1]
+    return {role: person_token(store, role, name)
             for role, name in ROLE_NAMES.items()}
 
 

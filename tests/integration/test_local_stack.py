@@ -60,7 +60,7 @@ def stack_env(real_services, tmp_path: Path):
 def test_local_stack_starts_runs_a_case_and_stops_cleanly(stack_env):
     from service.client import Client
     from service.store import Store
-    from service.tokens import create_token
+    from tests.api.support import person_token
 
     env, schema = stack_env
     stack_dir = Path(env["FLUXPROOF_STACK_DIR"])
@@ -87,7 +87,7 @@ def test_local_stack_starts_runs_a_case_and_stops_cleanly(stack_env):
     store = Store(schema.url, {"DATABASE_URL": schema.url, "DATA_DIR": str(data),
                                "SIGNING_KEY_FILE": str(data / "signing_key.pem")})
     try:
-        _token_id, token = create_token(store, role="engineer", name="sol.stack-engineer")
+        token = person_token(store, "engineer", "sol.stack-engineer")
     finally:
         store.dispose()
     with Client(base_url, token) as client:

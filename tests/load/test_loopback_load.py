@@ -34,7 +34,7 @@ def served(tmp_path, monkeypatch):
     from service.app import create_app, shutdown_app
     from service.server import BackgroundServer
     from service.store import reset_default_store
-    from service.tokens import create_token
+    from tests.api.support import person_token
 
     for key in list(os.environ):
         if key.startswith("FLUXPROOF_"):
@@ -43,7 +43,7 @@ def served(tmp_path, monkeypatch):
     app = create_app({"TESTING": True, "DATA_DIR": str(tmp_path / "data"),
                       "DISPATCH": "embedded", "EMBEDDED_WORKERS": 2})
     store = app.extensions["fluxproof"].store
-    tokens = {role: create_token(store, role=role, name=f"lin.load-{role}")[1]
+    tokens = {role: person_token(store, role, f"lin.load-{role}")
               for role in ("engineer", "auditor")}
     server = BackgroundServer(app).start()
     try:

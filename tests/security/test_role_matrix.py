@@ -2,7 +2,8 @@
 
 The expected table below is written from the role table of README.md ("API (v1)"): engineers
 submit, reviewers sign off, auditors read everything and the audit, admins start batches;
-reading records is open to every role; health and the OpenAPI document need no token. It is
+reading records is open to every role; health, the OpenAPI document and the public signing key
+need no token. It is
 compared with what the running app does, not with the app's own table; every route the app
 serves under /v1 must appear here, so a new endpoint without a decision fails this test.
 """
@@ -11,7 +12,7 @@ from __future__ import annotations
 
 import pytest
 
-from tests.api.support import bearer
+from tests.api.support import SIGN, bearer
 
 ROLES = ("engineer", "reviewer", "auditor", "admin")
 EVERYONE = frozenset(ROLES)
@@ -21,6 +22,7 @@ PUBLIC = "public"
 EXPECTED = {
     ("GET", "/v1/health"): PUBLIC,
     ("GET", "/v1/openapi.json"): PUBLIC,
+    ("GET", "/v1/meta/signing-key"): PUBLIC,
     ("POST", "/v1/validate"): frozenset({"engineer"}),
     ("POST", "/v1/cases"): frozenset({"engineer"}),
     ("GET", "/v1/cases"): EVERYONE,
@@ -29,6 +31,7 @@ EXPECTED = {
     ("POST", "/v1/runs"): frozenset({"engineer"}),
     ("GET", "/v1/runs/<run_id>"): EVERYONE,
     ("GET", "/v1/runs/<run_id>/report"): EVERYONE,
+    ("GET", "/v1/runs/<run_id>/report.pdf"): EVERYONE,
     ("POST", "/v1/runs/<run_id>/signoffs"): frozenset({"reviewer"}),
     ("POST", "/v1/batches"): frozenset({"admin"}),
     ("GET", "/v1/batches/<batch_id>"): EVERYONE,
@@ -59,7 +62,7 @@ def _body(method: str, template: str, ids: dict[str, str]):
     if method != "POST":
         return None
     return {"/v1/runs": {"case_id": ids["case_id"]},
-            "/v1/runs/<run_id>/signoffs": {"decision": "rejected", "comment": "matrix"},
+            "/v1/runs/<run_id>/signoffs": {"decision": "rejected", **SIGN, "comment": "matrix"},
             "/v1/batches": {"all": True}}.get(template, make_case(title="role matrix"))
 
 
@@ -117,19 +120,19 @@ def test_methods_not_allowed_are_405_problem_documents(sec_app, sec_tokens, seed
 
 
 def test_a_reviewer_cannot_sign_off_a_run_they_submitted(sec_app, sec_store):
-    """Four-eyes: one person holding both roles (two tokens, one name) may not approve their
-    own submission."""
-    from service.tokens import create_token
+    """Four-eyes: one person who submitted as an engineer and is a reviewer now may not
+    approve their own submission."""
+    from service.people import change_user
+    from tests.api.support import make_case, person_token
 
-    _id, engineer = create_token(sec_store, role="engineer", name="solo.person")
-    _id, reviewer = create_token(sec_store, role="reviewer", name="solo.person")
+    engineer = person_token(sec_store, "engineer", "solo.person")
     client = sec_app.test_client()
-    from tests.api.support import make_case
-
     run_id = client.post("/v1/runs", json={"case": make_case(title="four eyes")},
                          headers=bearer(engineer)).get_json()["run_id"]
+    change_user(sec_store, "solo.person", role="reviewer", actor="arvo.sec-admin")
+    reviewer = person_token(sec_store, "reviewer", "solo.person")
     response = client.post(f"/v1/runs/{run_id}/signoffs",
-                           json={"decision": "approved", "comment": "mine"},
+                           json={"decision": "approved", **SIGN, "comment": "mine"},
                            headers=bearer(reviewer))
     assert response.status_code == 403
     assert response.get_json()["type"].endswith("/four-eyes")

@@ -28,8 +28,7 @@ from service.audit import event_hash
 from service.cli import main
 from service.store import reset_default_store
 from service.store.guards import SealedRecordError
-from service.tokens import create_token
-from tests.api.support import BASE_CASE, bearer, make_case
+from tests.api.support import BASE_CASE, app_keys, bearer, make_case, person_token, signoff_body
 from tests.integration.real_services import PostgresSchema, ServiceMissing, postgres_user
 from tests.integration.service_gate import unavailable
 from tests.tampering import owner_edit
@@ -47,8 +46,7 @@ def installation(request, tmp_path: Path, monkeypatch: pytest.MonkeyPatch
         if key.startswith("FLUXPROOF_"):
             monkeypatch.delenv(key)
     data = tmp_path / "data"
-    config: dict[str, Any] = {"TESTING": True, "DATA_DIR": str(data), "DISPATCH": "inline",
-                              "SECRET_KEY": "tamper-test-secret-0123456789abcdef"}
+    config: dict[str, Any] = {"TESTING": True, "DATA_DIR": str(data), "DISPATCH": "inline"}
     schema = None
     if request.param == "postgresql":
         try:
@@ -56,22 +54,20 @@ def installation(request, tmp_path: Path, monkeypatch: pytest.MonkeyPatch
         except (ServiceMissing, ImportError) as exc:
             unavailable(str(exc), "PostgreSQL")
         schema = PostgresSchema.create(prefix="fluxproof_tamper")
-        config.update(DATABASE_URL=schema.url, SIGNING_KEY_FILE=str(tmp_path / "key.pem"))
+        config.update(DATABASE_URL=schema.url, **app_keys(tmp_path))
     for name, value in config.items():
         if name != "TESTING":
             monkeypatch.setenv(f"FLUXPROOF_{name}", str(value))
     reset_default_store()
     app = create_app(config)
     store = app.extensions["fluxproof"].store
-    tokens = {role: create_token(store, role=role, name=name)[1]
-              for role, name in NAMES.items()}
+    tokens = {role: person_token(store, role, name) for role, name in NAMES.items()}
     client = app.test_client()
     signed = client.post("/v1/runs", json={"case": BASE_CASE},
                          headers=bearer(tokens["engineer"])).get_json()["run_id"]
     unsigned = client.post("/v1/runs", json={"case": make_case(title="second")},
                            headers=bearer(tokens["engineer"])).get_json()["run_id"]
-    answer = client.post(f"/v1/runs/{signed}/signoffs",
-                         json={"decision": "approved", "comment": "checked"},
+    answer = client.post(f"/v1/runs/{signed}/signoffs", json=signoff_body("approved"),
                          headers=bearer(tokens["reviewer"]))
     assert answer.status_code == 201, answer.get_json()
     case_id = client.get(f"/v1/runs/{signed}", headers=bearer(tokens["engineer"])

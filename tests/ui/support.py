@@ -14,11 +14,27 @@ def csrf_of(html: str) -> str:
     return match.group(1)
 
 
-def sign_in(client: Any, token: str, next_path: str = "/ui/runs") -> Any:
-    """Sign ``client`` in through the form; returns the POST's response."""
+def login_of(client: Any, who: str) -> str:
+    """The login of ``who``: a login, or a bearer token of the test helpers' persons."""
+    from service.tokens import identify
+
+    if not who.startswith("fpt_"):
+        return who
+    identity = identify(client.application.extensions["fluxproof"].store, who)
+    assert identity is not None, "not a valid token"
+    return identity.login
+
+
+def sign_in(client: Any, who: str, next_path: str = "/ui/runs", *,
+            password: str | None = None) -> Any:
+    """Sign ``client`` in through the form with the login and password of ``who`` (a login, or
+    the token of a helpers' person, whose password is TEST_PASSWORD); returns the response."""
+    from tests.api.support import TEST_PASSWORD
+
     form = client.get("/ui/login").get_data(as_text=True)
-    return client.post("/ui/login", data={"token": token, "csrf_token": csrf_of(form),
-                                          "next": next_path})
+    return client.post("/ui/login", data={"login": login_of(client, who),
+                                          "password": password or TEST_PASSWORD,
+                                          "csrf_token": csrf_of(form), "next": next_path})
 
 
 def page_csrf(client: Any, path: str) -> str:

@@ -18,9 +18,9 @@ from pathlib import Path
 
 import pytest
 
+from service.people import change_user
 from service.server import BackgroundServer
-from service.tokens import create_token
-from tests.api.support import make_case
+from tests.api.support import TEST_PASSWORD, make_case
 
 CHROMIUM = shutil.which("chromium") or "/usr/bin/chromium"
 BROWSER_ARGS = ["--headless", "--no-sandbox", "--disable-gpu", "--disable-quic",
@@ -59,10 +59,11 @@ def _person(playwright, profile: Path):
         java_script_enabled=False, viewport={"width": 1280, "height": 900})
 
 
-def _sign_in(page, url: str, token: str) -> None:
+def _sign_in(page, url: str, login: str) -> None:
     page.goto(f"{url}/ui/runs")
     assert "/ui/login" in page.url
-    page.get_by_label("Access token").fill(token)
+    page.get_by_label("Login").fill(login)
+    page.get_by_label("Password").fill(TEST_PASSWORD)
     page.get_by_role("button", name="Sign in").click()
     assert page.url.endswith("/ui/runs"), page.url
 
@@ -78,14 +79,13 @@ def test_review_in_a_real_browser(served, store, tokens, tmp_path):
                                             tags=["browser-test"]))
         for run_id in (to_approve, own_run):
             assert engineer.wait(run_id, timeout=60)["status"] == "succeeded"
-    _, same_person_reviewer = create_token(store, role="reviewer", name="erin.engineer")
     ARTIFACTS.mkdir(parents=True, exist_ok=True)
 
     with sync_playwright() as playwright:
         reviewer = _person(playwright, tmp_path / "reviewer-profile")
         try:
             page = reviewer.new_page()
-            _sign_in(page, served, tokens["reviewer"])
+            _sign_in(page, served, "rafael.reviewer")
             assert page.get_by_role("heading", name="Runs").is_visible()
             page.get_by_role("link", name="Browser test membrane A").first.wait_for()
             page.get_by_role("link", name=f"Open run {to_approve[:8]}").click()
@@ -93,12 +93,19 @@ def test_review_in_a_real_browser(served, store, tokens, tmp_path):
             assert page.get_by_role("heading", name="Browser test membrane A").is_visible()
             assert page.locator("svg.plot").count() >= 1  # the profile plot is drawn
             page.get_by_label("Your reasons").fill("Browser test: figures and checks read.")
+            page.get_by_label("Meaning of your signature").select_option("approval")
+            page.get_by_label("Your password").fill("not my password")
+            page.get_by_role("button", name="Approve this record").click()
+            assert "the password is not yours" in page.locator("#review").inner_text()
+            page.get_by_label("Your password").fill(TEST_PASSWORD)
             page.get_by_role("button", name="Approve this record").click()
             assert page.url.endswith(f"/ui/runs/{to_approve}")
-            assert page.get_by_text("Signed off: approved. The record is now sealed.").is_visible()
+            assert page.get_by_text("Signed off: approved (approval). The record is now "
+                                    "sealed.").is_visible()
             signature = page.locator("#signoff")
             assert "approved" in signature.inner_text()
             assert "rafael.reviewer" in signature.inner_text()
+            assert "approval" in page.locator("#signature-line").inner_text()
             assert page.get_by_role("button", name="Approve this record").count() == 0
             page.screenshot(path=str(ARTIFACTS / "run-page.png"), full_page=True)
             page.goto(f"{served}/ui/runs?signed=yes")
@@ -106,12 +113,13 @@ def test_review_in_a_real_browser(served, store, tokens, tmp_path):
         finally:
             reviewer.close()
 
-        for name, token in (("engineer", tokens["engineer"]),
-                            ("same-person-reviewer", same_person_reviewer)):
+        for name in ("engineer", "same-person-reviewer"):
+            if name == "same-person-reviewer":  # the submitter, a reviewer now
+                change_user(store, "erin.engineer", role="reviewer", actor="adi.admin")
             context = _person(playwright, tmp_path / f"{name}-profile")
             try:
                 page = context.new_page()
-                _sign_in(page, served, token)
+                _sign_in(page, served, "erin.engineer")
                 page.goto(f"{served}/ui/runs/{own_run}")
                 refusal = page.locator("#cannot-sign").inner_text()
                 assert "You submitted this run (erin.engineer), so you cannot sign it off" \

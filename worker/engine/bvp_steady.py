@@ -61,6 +61,11 @@ BVP_BC_TOLERANCE = 1e-12
 #: Initial collocation nodes on the unit interval, and the most ``solve_bvp`` may use.
 BVP_INITIAL_NODES = 41
 BVP_MAX_NODES = 100_000
+#: Most non-zeros of the collocation Jacobian (about 2 (2L)^2 per node for L layers, each with
+#: C and J): the node limit of a many-layer case is lowered to keep within it, so its memory
+#: stays bounded (about 100 bytes resident per entry with the sparse copies and the LU
+#: factors; a 20-layer Michaelis-Menten slab at 100,000 nodes asked for over 11 GB).
+BVP_MAX_JACOBIAN_ENTRIES = 4_000_000
 #: Reaction-strength continuation used when the direct solve fails (fractions of the rates).
 REACTION_CONTINUATION = (0.01, 0.1, 0.3, 1.0)
 #: Zero-order smoothing widths eps / C_ref of the search for a depleted zone (last = finest).
@@ -74,7 +79,9 @@ QUADRATURE_POINTS = 5
 __all__ = [
     "BVP_BC_TOLERANCE",
     "BVP_INITIAL_NODES",
+    "BVP_MAX_JACOBIAN_ENTRIES",
     "BVP_MAX_NODES",
+    "node_limit",
     "BVP_TOLERANCE",
     "METHOD_NAME",
     "REFERENCE",
@@ -214,6 +221,13 @@ class _LayeredSystem:
         return y
 
 
+def node_limit(layers: int) -> int:
+    """``solve_bvp``'s ``max_nodes`` for ``layers`` layers: ``BVP_MAX_NODES``, lowered so that
+    the Jacobian's 2 (2 layers)^2 entries per node stay within ``BVP_MAX_JACOBIAN_ENTRIES``."""
+    per_node = 2 * (2 * layers) ** 2
+    return max(BVP_INITIAL_NODES, min(BVP_MAX_NODES, BVP_MAX_JACOBIAN_ENTRIES // per_node))
+
+
 def _solve(system: _LayeredSystem, t: np.ndarray, y: np.ndarray, p=None, tol=BVP_TOLERANCE):
     with_front = p is not None
     return solve_bvp(
@@ -226,7 +240,7 @@ def _solve(system: _LayeredSystem, t: np.ndarray, y: np.ndarray, p=None, tol=BVP
         fun_jac=None if with_front else system.fun_jac,
         tol=tol,
         bc_tol=BVP_BC_TOLERANCE,
-        max_nodes=BVP_MAX_NODES,
+        max_nodes=node_limit(system.count),
     )
 
 

@@ -63,7 +63,7 @@ TRANSIENT_LIMITS: Mapping[str, float] = {
 FAMILY: Mapping[str, str] = {"convergence.space": "gci", "convergence.time": "convergence"}
 
 __all__ = ["FAMILY", "INPUT_LIMITS", "STEADY_LIMITS", "TRANSIENT_LIMITS", "check_limit", "family",
-           "resolve_limit"]
+           "loosened_limits", "regime_defaults", "resolve_limit"]
 
 
 def family(name: str) -> str:
@@ -85,5 +85,23 @@ def resolve_limit(tolerances: Mapping[str, float], name: str,
 
 def check_limit(problem: Problem, name: str) -> float:
     """Limit of check ``name`` for ``problem``, from the defaults of its regime."""
-    defaults = TRANSIENT_LIMITS if problem.regime.kind == "transient" else STEADY_LIMITS
-    return resolve_limit(problem.tolerances, name, defaults)
+    return resolve_limit(problem.tolerances, name, regime_defaults(problem))
+
+
+def regime_defaults(problem: Problem) -> Mapping[str, float]:
+    """The default limits of ``problem``'s regime."""
+    return TRANSIENT_LIMITS if problem.regime.kind == "transient" else STEADY_LIMITS
+
+
+def loosened_limits(tolerances: Mapping[str, float], defaults: Mapping[str, float]
+                    ) -> list[tuple[str, float, float]]:
+    """``(name, default, value)`` for every override in ``tolerances`` above the default it
+    replaces (the default by full name, else by family), in name order. An override naming
+    a family is compared with the family's default; a tighter one is no deviation."""
+    loosened = []
+    for name in sorted(tolerances):
+        default = float(defaults.get(name, defaults.get(family(name), float("inf"))))
+        value = float(tolerances[name])
+        if value > default:
+            loosened.append((name, default, value))
+    return loosened

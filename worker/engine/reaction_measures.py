@@ -162,13 +162,14 @@ def generalised_modulus(layer: Layer, surface: float) -> float:
     vmax, km = reaction.vmax, reaction.km
     if not (surface > 0.0 and vmax > 0.0):
         return 0.0
-    rate = vmax * surface / (km + surface)
     ratio = surface / km
-    # Cs - km ln(1 + Cs/km) = km (x - log1p(x)); for small x its series x^2/2 - x^3/3 + ...
-    excess = ratio - math.log1p(ratio) if ratio > 1e-4 else \
-        ratio**2 / 2.0 - ratio**3 / 3.0 + ratio**4 / 4.0
-    integral = vmax * km * excess
-    return float(layer.thickness * rate / math.sqrt(2.0 * layer.diffusivity * integral))
+    # With x = Cs/km: R(Cs) = vmax x/(1 + x) and int_0^Cs R dc = vmax km (x - log1p(x)), so
+    # Phi = L/(1 + x) sqrt(vmax / (2 D km e)) with e = (x - log1p(x))/x^2, whose series
+    # 1/2 - x/3 + x^2/4 serves small x (x^2 itself would underflow for the tiniest levels).
+    shape = (ratio - math.log1p(ratio)) / ratio**2 if ratio > 1e-4 else \
+        0.5 - ratio / 3.0 + ratio**2 / 4.0
+    return float(layer.thickness / (1.0 + ratio)
+                 * math.sqrt(vmax / (2.0 * layer.diffusivity * km * shape)))
 
 
 def michaelis_menten_regime(layer: Layer, surface: float) -> MichaelisMentenRegime:

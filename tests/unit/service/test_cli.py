@@ -16,40 +16,78 @@ from service.tokens import identify, token_digest
 from tests.api.support import make_case
 from tests.tampering import owner_edit
 
+PASSWORD = {"FLUXPROOF_NEW_PASSWORD": "a long enough password"}
+
+
+def _user(runner, login="rosa", role="reviewer", name="Rosa Reviewer"):
+    return runner.invoke(main, ["user", "create", "--login", login, "--name", name, "--role",
+                                role], env=PASSWORD)
+
 
 def test_token_create_prints_the_token_once_and_stores_its_digest(data_dir):  # noqa: F811
-    result = CliRunner().invoke(main, ["token", "create", "--role", "reviewer",
-                                       "--name", "rosa"])
+    runner = CliRunner()
+    assert _user(runner).exit_code == 0
+    result = runner.invoke(main, ["token", "create", "--login", "ROSA", "--days", "7"])
     assert result.exit_code == 0, result.output
     token = result.stdout.strip().splitlines()[-1]
     identity = identify(default_store(), token)
-    assert identity is not None and (identity.name, identity.role) == ("rosa", "reviewer")
+    assert identity is not None
+    assert (identity.login, identity.name, identity.role) == ("rosa", "Rosa Reviewer",
+                                                              "reviewer")
     with default_store().transaction() as session:
         row = session.execute(select(Token)).scalar_one()
         assert row.sha256 == token_digest(token) and token not in (row.sha256, row.id)
+        assert 6.9 < (row.expires_at - row.created_at).total_seconds() / 86400 < 7.1
 
 
-def test_token_create_refuses_a_bad_role_or_name(data_dir):  # noqa: F811
+def test_user_create_refuses_a_bad_role_a_blank_name_a_taken_login(data_dir):  # noqa: F811
     runner = CliRunner()
-    bad_role = runner.invoke(main, ["token", "create", "--role", "boss", "--name", "x"])
+    bad_role = _user(runner, role="boss")
     assert bad_role.exit_code == 2 and "boss" in bad_role.output
-    blank = runner.invoke(main, ["token", "create", "--role", "admin", "--name", "  "])
-    assert blank.exit_code == 2 and "1 to 200 characters" in blank.output
+    blank = _user(runner, name="  ")
+    assert blank.exit_code == 1 and "name: expected 1 to 200 characters" in blank.output
+    assert _user(runner, login="engineer-1", role="engineer").exit_code == 0
+    taken = _user(runner, login="Engineer-1")
+    assert taken.exit_code == 1 and "'Engineer-1' is taken" in taken.output
+    hidden = _user(runner, login="eve", name="Eve \u202eTSIL")
+    assert hidden.exit_code == 1 and "U+202E" in hidden.output
+    nobody = runner.invoke(main, ["token", "create", "--login", "nobody"])
+    assert nobody.exit_code == 1 and "no user with login 'nobody'" in nobody.output
+
+
+def test_user_change_and_disable_are_audited_with_the_acting_account(data_dir):  # noqa: F811
+    runner = CliRunner()
+    _user(runner)
+    token = runner.invoke(main, ["token", "create", "--login", "rosa"]).stdout.split()[-1]
+    assert runner.invoke(main, ["user", "change", "--login", "rosa", "--role",
+                                "auditor"]).exit_code == 0
+    assert identify(default_store(), token).role == "auditor"
+    assert runner.invoke(main, ["user", "disable", "--login", "rosa"]).exit_code == 0
+    assert identify(default_store(), token) is None
+    with default_store().engine.begin() as connection:
+        events = connection.execute(text("SELECT kind, actor FROM audit_events ORDER BY seq")
+                                    ).all()
+    assert [kind for kind, _ in events] == ["user.created", "token.created", "user.changed",
+                                            "token.revoked", "user.disabled"]
+    assert all(actor.startswith("os:") and actor != "os:" for _, actor in events)
 
 
 def test_token_revoke(data_dir):  # noqa: F811
     from service.tokens import create_token
 
-    token_id, token = create_token(default_store(), role="auditor", name="temp")
-    assert CliRunner().invoke(main, ["token", "revoke", token_id]).exit_code == 0
+    runner = CliRunner()
+    _user(runner, role="auditor")
+    token_id, token = create_token(default_store(), login="rosa", actor="os:test")
+    assert runner.invoke(main, ["token", "revoke", token_id]).exit_code == 0
     assert identify(default_store(), token) is None
-    assert CliRunner().invoke(main, ["token", "revoke", "nope"]).exit_code == 1
+    assert runner.invoke(main, ["token", "revoke", "nope"]).exit_code == 1
 
 
 def test_audit_verify_exits_1_naming_the_broken_event(data_dir):  # noqa: F811
     runner = CliRunner()
-    for name in ("a", "b", "c"):
-        runner.invoke(main, ["token", "create", "--role", "admin", "--name", name])
+    _user(runner, role="admin")
+    for name in ("a", "b"):
+        runner.invoke(main, ["token", "create", "--login", "rosa", "--name", name])
     intact = runner.invoke(main, ["audit", "verify"])
     assert intact.exit_code == 0 and "intact: 3 events" in intact.output
     with owner_edit(default_store(), "audit_events") as connection:

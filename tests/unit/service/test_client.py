@@ -7,15 +7,15 @@ import pytest
 from service.app import create_app, shutdown_app
 from service.client import ApiError, Client
 from service.server import BackgroundServer
-from service.tokens import create_token
-from tests.api.support import make_case
+from tests.api.support import TEST_PASSWORD, make_case, person_token
 
 
 @pytest.fixture
 def served(data_dir):  # noqa: F811
-    app = create_app({"DATA_DIR": str(data_dir), "DISPATCH": "embedded"})
+    app = create_app({"DATA_DIR": str(data_dir), "DISPATCH": "embedded",
+                      "EMBEDDED_ISOLATION": "thread"})  # the controlled engine is in-process
     store = app.extensions["fluxproof"].store
-    tokens = {role: create_token(store, role=role, name=f"{role}-person")[1]
+    tokens = {role: person_token(store, role, f"{role}-person")
               for role in ("engineer", "reviewer", "admin")}
     server = BackgroundServer(app).start()
     yield server.url, tokens
@@ -37,8 +37,10 @@ def test_submit_wait_report_signoff(served, controlled_engine):  # noqa: F811
         assert engineer.get_run(run_id)["run_id"] == run_id
         assert "<h2>Checks</h2>" in engineer.report(run_id)
         assert engineer.wait(engineer.submit_stored(stored["case_id"]), timeout=30)
-        signed = reviewer.signoff(run_id, "approved", "fine")
-        assert signed["decision"] == "approved"
+        signed = reviewer.signoff(run_id, "approved", "fine", password=TEST_PASSWORD,
+                                  meaning="responsibility")
+        assert (signed["decision"], signed["meaning"]) == ("approved", "responsibility")
+        assert signed["name"] == "reviewer-person" and signed["signature"]
     with Client(url, tokens["admin"]) as admin:
         batch_id = admin.start_batch(all_cases=True)
         assert admin.get_batch(batch_id)["batch_id"] == batch_id

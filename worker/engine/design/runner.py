@@ -39,10 +39,11 @@ from worker.engine.design.request import DesignRequest, UncertaintyRequest
 from worker.engine.design.requirements import Requirement, design_block, read_requirement
 from worker.engine.design.sampling import InputDistribution, UncertaintySpec
 from worker.engine.design.sensitivity import sensitivity
-from worker.engine.design.targets import Target
+from worker.engine.design.targets import Target, target_dimension
 from worker.engine.design.trials import TrialModel
 from worker.engine.model import Problem
 from worker.engine.outcome import Outcome
+from worker.engine.units import si_unit
 
 __all__ = ["BlockScheduler", "DesignRunner", "FullCheck", "sequential_blocks"]
 
@@ -294,10 +295,9 @@ class DesignRunner:
         }
 
     def _unit(self, target: Target) -> str:
-        for requirement in self.request.requirements:
-            if _target_of(requirement) == target:
-                return requirement.unit
-        return ""
+        """The SI unit of a target's values (that of the case's basis)."""
+        kind = target_dimension(self.problem, target)
+        return "1" if kind == "dimensionless" else si_unit(kind, self.problem.basis)
 
     def _subset(self, result: MonteCarloResult) -> list[tuple[str, tuple[float, ...]]]:
         chosen: list[tuple[str, tuple[float, ...]]] = []

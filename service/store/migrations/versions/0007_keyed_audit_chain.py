@@ -13,7 +13,7 @@ PostgreSQL: a trigger refuses any ``UPDATE`` or ``DELETE`` of an ``audit_events`
 anyone who does not own the table; an owner who drops it is caught by verification instead.
 
 Revision ID: 0007_keyed_audit_chain
-Revises: 0005_monte_carlo_blocks (the lead re-chains it after 0006 on merge)
+Revises: 0006_people_sessions_signatures
 Create Date: 2026-12-05
 """
 
@@ -25,7 +25,7 @@ import sqlalchemy as sa
 from alembic import op
 
 revision = "0007_keyed_audit_chain"
-down_revision = "0005_monte_carlo_blocks"
+down_revision = "0006_people_sessions_signatures"
 branch_labels = None
 depends_on = None
 

@@ -167,3 +167,40 @@ def test_the_monte_carlo_blocks_migration_goes_down_and_up_again(tmp_path):
         assert {"runs_sealed_on_update", "runs_sealed_on_delete"} <= triggers
     finally:
         store.dispose()
+
+
+def test_the_people_migration_goes_down_and_up_again_keeping_the_seals(tmp_path):
+    """Revision 0006 (users, browser_sessions, tokens.user_id/expires_at, the signature columns
+    of signoffs) is reversible; a token made before it belongs to nobody; the seal triggers of
+    0004 stay on signoffs."""
+    from alembic import command
+    from sqlalchemy import inspect, text
+
+    from service.store.migrate import alembic_config
+
+    store = Store(f"sqlite:///{tmp_path / 'm.sqlite3'}")
+    try:
+        upgrade(store)
+        command.downgrade(alembic_config(store), "0005_monte_carlo_blocks")
+        inspector = inspect(store.engine)
+        assert {"users", "browser_sessions"}.isdisjoint(inspector.get_table_names())
+        assert "signature" not in {c["name"] for c in inspector.get_columns("signoffs")}
+        with store.engine.begin() as connection:
+            connection.execute(text(
+                "INSERT INTO tokens (id, name, role, sha256, created_at, revoked) VALUES "
+                "('t1', 'Engineer-1', 'reviewer', :digest, '2026-01-01', 0)"),
+                {"digest": "0" * 64})
+        assert upgrade(store) == head_revision()
+        inspector = inspect(store.engine)
+        assert {"users", "browser_sessions"} <= set(inspector.get_table_names())
+        assert {"meaning", "signer_name", "signature", "key_id", "record_sha256",
+                "payload_sha256", "justification"} <= {
+            c["name"] for c in inspector.get_columns("signoffs")}
+        with store.engine.connect() as connection:
+            assert connection.execute(text("SELECT user_id, expires_at FROM tokens")).one() == (
+                None, None)
+            triggers = set(connection.execute(text(
+                "SELECT name FROM sqlite_master WHERE type = 'trigger'")).scalars())
+        assert {"signoffs_never_update", "signoffs_never_delete"} <= triggers
+    finally:
+        store.dispose()

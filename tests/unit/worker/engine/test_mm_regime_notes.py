@@ -65,6 +65,14 @@ def test_modulus_limits_follow_the_definition():
                                                                     rel=1e-12)
 
 
+@pytest.mark.parametrize("level", [1e-200, 1e-300, 5e-324])
+def test_modulus_at_a_vanishing_level_is_the_first_order_limit(level):
+    """A level so small that (C/km)^2 underflows still gives L sqrt(vmax/(km D)) (the drawn
+    case that once divided by zero)."""
+    assert generalised_modulus(_layer(), level) == pytest.approx(
+        L * math.sqrt(VMAX / KM / D), rel=1e-9)
+
+
 @pytest.mark.parametrize("ratio, regime", [(0.05, "first-order-like"), (1.0, "mixed"),
                                            (10.0, "saturated"), (200.0, "saturated")])
 def test_regime_by_saturation(ratio, regime):

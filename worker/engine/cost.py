@@ -1,0 +1,264 @@
+"""The cost of checking a case, estimated before any solve, and the budgets it is held to.
+
+:func:`estimate_cost` is a pure function of the ``Problem`` and the ``DesignRequest``: it reads
+the mesh rules of the solvers (``fv_mesh.default_cells_per_layer``, the transient
+``solve.mesh_sequence``), never solves. :func:`over_budget` compares the estimate with
+:class:`Budgets` and names the case field to change for each overrun, so a case that would
+exhaust a worker's memory or run for hours is refused at validation (422) instead.
+
+What is counted (all estimates, deliberately on the safe side):
+
+* ``solve_cells``: unknowns of one primary check: the three finite-volume meshes (coarse,
+  medium, fine at ratio 2: 1 + 2 + 4 or 1 + 4 + 16 times the coarse mesh) of all layers.
+* ``collocation_entries``: non-zeros of the Jacobian ``scipy.integrate.solve_bvp`` builds for
+  a nonlinear steady case (2 unknowns per layer, every layer mapped onto one node set): about
+  2 (2L)^2 per node, with the nodes the finest layer asks for (its Thiele length resolved as the
+  finite volumes resolve it), at most ``BVP_MAX_NODES``. Measured: a 20-layer
+  Michaelis-Menten slab reached 10.4 million entries per array and 1.1 GB resident before its
+  first refinement; the same case drove an unlimited service to 11.6 GB.
+* ``time_steps``: implicit (BDF) steps of a transient check, ``STEPS_PER_DECADE`` per decade of
+  time from the first requested time (or the mesh's diffusion time) to the duration plus the
+  continuation to steady state (``STEADY_HORIZON`` relaxation times).
+* ``work``: unknown-iterations of the whole run: one check (cells times Newton iterations, or
+  unknowns times steps), plus every sweep value (a full check each), the design limit's
+  evaluations and the Monte Carlo trials (``max_trials``) times the cost of one trial by the
+  method the trial model uses.
+
+The budgets are documented defaults (:data:`DEFAULT_BUDGETS`); a service may scale them
+(``FLUXPROOF_COST_BUDGET_SCALE``), never past the worker's memory and time limits it also sets.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass, replace
+
+from worker.engine.bvp_steady import BVP_MAX_JACOBIAN_ENTRIES, BVP_MAX_NODES
+from worker.engine.design.request import DesignRequest
+from worker.engine.fv_mesh import (
+    MIN_CELLS_PER_LAYER,
+    RESISTANCE_CELLS,
+    THIELE_CELL_LIMIT,
+    boundary_concentration_scale,
+)
+from worker.engine.model import Problem
+
+#: Implicit steps per decade of time of the transient integrators (rtol 1e-6, BDF orders 1-5):
+#: a generous count; measured runs take 20-60.
+STEPS_PER_DECADE = 80
+#: Work of one unknown-step of a transient check relative to one unknown-iteration of a steady
+#: solve: each step factorises the sparse Jacobian of three meshes, and the Galerkin, Laplace
+#: and series routes follow the same times (measured: 0.39 s for 9.8e4 unknown-steps, the
+#: stent-coating demo, against 0.22 s for 3.1e5 unknown-iterations of a Michaelis-Menten slab).
+TRANSIENT_STEP_WORK = 5.0
+#: Work of one transient Monte Carlo trial by the scaled series (one unreacting body; measured
+#: 5 us a trial).
+SCALED_SERIES_TRIAL_WORK = 5.0
+#: Newton/Picard iterations charged to a nonlinear steady solve per mesh (the solver allows 60
+#: Newton iterations plus Picard sweeps and active-set passes; typical cases take 5-20).
+NONLINEAR_ITERATIONS = 40
+#: Coarse transient mesh: steady mesh rule / 4, at least 10 and, for early resolution, at most
+#: 250 cells per layer (``transient.solve``); the three meshes hold 1 + 2 + 4 times it.
+TRANSIENT_MESH_FACTOR = 7
+#: Three steady meshes hold 1 + 4 + 16 times the coarse mesh's cells.
+STEADY_MESH_FACTOR = 21
+#: Design-limit evaluations: the scan (25 points) and Brent's method, with a margin.
+LIMIT_EVALUATIONS = 80
+#: Work of one closed-form Monte Carlo trial, unknown-iterations (measured 10-20 us a trial).
+CLOSED_FORM_TRIAL_WORK = 20.0
+#: A batched finite-volume trial costs this fraction of a lone check's work (measured 0.33 ms
+#: batched against about 30 ms for the whole primary solve of a two-layer Michaelis-Menten slab).
+BATCHED_TRIAL_FRACTION = 0.02
+
+
+@dataclass(frozen=True)
+class Budgets:
+    """What one run may cost. ``work`` in unknown-iterations (about a microsecond each on the
+    shared 2-core reference machine: the default, 1e8, is about 100 s there, a third of the
+    workers' default soft time limit), ``collocation_entries`` in Jacobian non-zeros (about
+    100 bytes of resident memory each, copies and factorisation included), ``solve_cells`` in
+    unknowns of one check."""
+
+    work: float = 1.0e8
+    collocation_entries: float = float(BVP_MAX_JACOBIAN_ENTRIES)
+    solve_cells: float = 400_000.0
+
+    def scaled(self, factor: float) -> Budgets:
+        """Every budget times ``factor`` (> 0)."""
+        if not (factor > 0.0 and math.isfinite(factor)):
+            raise ValueError(f"budget scale: expected a positive finite number, got {factor!r}")
+        return replace(self, work=self.work * factor,
+                       collocation_entries=self.collocation_entries * factor,
+                       solve_cells=self.solve_cells * factor)
+
+
+DEFAULT_BUDGETS = Budgets()
+
+
+@dataclass(frozen=True)
+class CostEstimate:
+    """The estimated cost of checking one case (see the module docstring for each figure)."""
+
+    solve_cells: int
+    collocation_entries: int
+    time_steps: int
+    check_work: float
+    sweep_work: float
+    limit_work: float
+    trial_work: float
+    trials: int
+    #: Index of the layer that asks for the most cells (the first layer to change).
+    costliest_layer: int
+
+    @property
+    def monte_carlo_work(self) -> float:
+        return self.trial_work * self.trials
+
+    @property
+    def work(self) -> float:
+        return self.check_work + self.sweep_work + self.limit_work + self.monte_carlo_work
+
+
+@dataclass(frozen=True)
+class Overrun:
+    """One budget a case exceeds: the field to change and what to do."""
+
+    path: str
+    message: str
+
+
+def resolution_cells(problem: Problem) -> list[int]:
+    """Cells each layer asks for by the mesh rule of ``fv_mesh.default_cells_per_layer``
+    before its cap: the resistance share and the reaction length."""
+    n = problem.exponent
+    edges = problem.edges
+    resistances = [layer.thickness
+                   / (layer.diffusivity * layer.partition * (0.5 * (edges[j] + edges[j + 1])) ** n)
+                   for j, layer in enumerate(problem.layers)]
+    total = sum(resistances)
+    c_scale = boundary_concentration_scale(problem)
+    counts = []
+    for j, layer in enumerate(problem.layers):
+        cells = max(MIN_CELLS_PER_LAYER, math.ceil(RESISTANCE_CELLS * resistances[j] / total))
+        reaction = layer.reaction
+        inverse_length = reaction.law.inverse_length(reaction, layer.diffusivity, c_scale)
+        if inverse_length > 0.0:
+            wanted = layer.thickness * inverse_length / THIELE_CELL_LIMIT
+            cells = max(cells, math.ceil(min(wanted, 1e15)))
+        counts.append(cells)
+    return counts
+
+
+def _transient_steps(problem: Problem) -> int:
+    times = [t for t in problem.regime.times if t > 0.0]
+    duration = problem.regime.duration or 0.0
+    layer_time = min(ly.thickness ** 2 / ly.diffusivity for ly in problem.layers)
+    first = min(times) if times else layer_time
+    first = min(first, layer_time)
+    capacity = sum(ly.partition * ly.thickness for ly in problem.layers)
+    resistance = sum(ly.thickness / (ly.partition * ly.diffusivity) for ly in problem.layers)
+    end = max(duration, 40.0 * capacity * resistance)
+    decades = max(1.0, math.log10(max(end, first) / first))
+    return math.ceil(STEPS_PER_DECADE * min(decades, 60.0))
+
+
+def _transient_cells(problem: Problem, wanted: list[int]) -> int:
+    times = [t for t in problem.regime.times if t > 0.0]
+    first = min(times) if times else None
+    coarse = 0
+    for cells, layer in zip(wanted, problem.layers, strict=True):
+        n = max(10, math.ceil(min(cells, 4000) / 4))
+        if first is not None:
+            early = math.ceil(layer.thickness / (0.35 * math.sqrt(layer.diffusivity * first)))
+            n = max(n, min(early, 250))
+        coarse += n
+    return TRANSIENT_MESH_FACTOR * coarse
+
+
+def estimate_cost(problem: Problem, design: DesignRequest | None = None) -> CostEstimate:
+    """The estimated cost of checking ``problem`` with ``design``'s runs (no solve)."""
+    design = design or DesignRequest()
+    wanted = resolution_cells(problem)
+    costliest = max(range(len(wanted)), key=wanted.__getitem__)
+    linear = problem.is_linear
+    collocation = 0
+    if problem.regime.kind == "transient":
+        cells = _transient_cells(problem, wanted)
+        steps = _transient_steps(problem)
+        check_work = float(cells) * steps * TRANSIENT_STEP_WORK
+    else:
+        steps = 1
+        cells = STEADY_MESH_FACTOR * sum(min(n, 4000) for n in wanted)
+        check_work = float(cells) * (1 if linear else NONLINEAR_ITERATIONS)
+        if not linear:
+            unknowns = 2 * len(problem.layers)
+            collocation = 2 * unknowns ** 2 * min(max(wanted), BVP_MAX_NODES)
+            check_work += float(collocation) * NONLINEAR_ITERATIONS
+    closed_form = problem.regime.kind == "steady" and all(
+        ly.reaction.kind in ("none", "first_order", "zero_order") for ly in problem.layers)
+    if closed_form:
+        trial = CLOSED_FORM_TRIAL_WORK
+    elif problem.regime.kind == "steady":
+        trial = BATCHED_TRIAL_FRACTION * check_work
+    elif len(problem.layers) == 1 and not problem.layers[0].reaction.reacts:
+        trial = SCALED_SERIES_TRIAL_WORK
+    else:
+        trial = check_work
+    sweep = len(design.sweep.values) * check_work if design.sweep else 0.0
+    limit = LIMIT_EVALUATIONS * trial if design.limit else 0.0
+    trials = design.uncertainty.max_trials if design.uncertainty else 0
+    return CostEstimate(solve_cells=cells, collocation_entries=collocation, time_steps=steps,
+                        check_work=check_work, sweep_work=sweep, limit_work=limit,
+                        trial_work=trial, trials=trials, costliest_layer=costliest)
+
+
+def _times_over(value: float, budget: float) -> str:
+    return f"{value:.3g}, {value / budget:.3g} times the budget of {budget:.3g}"
+
+
+def over_budget(estimate: CostEstimate, budgets: Budgets = DEFAULT_BUDGETS,
+                regime: str = "steady") -> list[Overrun]:
+    """Every budget ``estimate`` exceeds, each with the field to change; empty when within."""
+    found: list[Overrun] = []
+    layer = f"layers[{estimate.costliest_layer}]"
+    if estimate.collocation_entries > budgets.collocation_entries:
+        found.append(Overrun("layers", (
+            "the nonlinear reference solve would need about "
+            f"{_times_over(estimate.collocation_entries, budgets.collocation_entries)} Jacobian "
+            f"entries (memory): use fewer layers, or thicker or less steep reaction layers "
+            f"({layer} asks for the finest resolution)")))
+    if estimate.solve_cells > budgets.solve_cells:
+        found.append(Overrun(layer, (
+            f"the three meshes would hold {_times_over(estimate.solve_cells, budgets.solve_cells)}"
+            " cells: use fewer or thicker layers, or a less steep reaction")))
+    if estimate.check_work > budgets.work:
+        path = "regime.times" if regime == "transient" else layer
+        advice = ("start the requested times later or shorten regime.duration (the integration "
+                  "spans every decade from the first time to steady state)"
+                  if regime == "transient" else "use fewer layers or a less steep reaction")
+        found.append(Overrun(path, (
+            f"one check would take about {_times_over(estimate.check_work, budgets.work)} "
+            f"unknown-iterations: {advice}")))
+        return found
+    remaining = budgets.work - estimate.check_work
+    if estimate.sweep_work > remaining:
+        found.append(Overrun("sweep.values", (
+            f"a full check at each sweep value would take about "
+            f"{_times_over(estimate.sweep_work, remaining)} unknown-iterations: sweep at most "
+            f"{max(0, int(remaining // estimate.check_work))} values")))
+        return found
+    remaining -= estimate.sweep_work
+    if estimate.limit_work > remaining:
+        found.append(Overrun("design_limit", (
+            f"the design-limit search would take about "
+            f"{_times_over(estimate.limit_work, remaining)} unknown-iterations: drop it or "
+            "lighten the case")))
+        return found
+    remaining -= estimate.limit_work
+    if estimate.monte_carlo_work > remaining:
+        most = int(remaining // estimate.trial_work) if estimate.trial_work > 0 else 0
+        found.append(Overrun("uncertainty.max_trials", (
+            f"{estimate.trials} trials would take about "
+            f"{_times_over(estimate.monte_carlo_work, remaining)} unknown-iterations: ask for "
+            f"at most {most} trials")))
+    return found
