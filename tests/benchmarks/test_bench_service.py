@@ -364,7 +364,8 @@ def _free_port() -> int:
 
 
 def _start_gunicorn(schema, lease, log_dir: Path, port: int) -> subprocess.Popen:
-    keys = {f"FLUXPROOF_{name}": value for name, value in app_keys(log_dir).items()}
+    keys = {f"FLUXPROOF_{name}": value
+            for name, value in app_keys(Path(TEST_SIGNING_KEY_FILE).parent).items()}
     env = clean_environment({**_settings(schema, lease), **keys,
                              "FLUXPROOF_BIND": f"127.0.0.1:{port}",
                              "FLUXPROOF_ACCESS_LOG": str(log_dir / "access.log"),
