@@ -127,8 +127,8 @@ save_settings() {
     : > "$env_file"
     chmod 600 "$env_file"
     for key in FLUXPROOF_BIND FLUXPROOF_BROKER_URL FLUXPROOF_DATABASE_URL FLUXPROOF_SECRET_KEY \
-               FLUXPROOF_SIGNING_KEY_FILE FLUXPROOF_DATA_DIR FLUXPROOF_STACK_WORKERS FLUXPROOF_STACK_BEAT \
-               FLUXPROOF_STACK_LEASE_OWNER; do
+               FLUXPROOF_SIGNING_KEY_FILE FLUXPROOF_AUDIT_ANCHOR_FILE FLUXPROOF_DATA_DIR \
+               FLUXPROOF_STACK_WORKERS FLUXPROOF_STACK_BEAT FLUXPROOF_STACK_LEASE_OWNER; do
         printf 'export %s=%q\n' "$key" "${!key}" >> "$env_file"
     done
 }
@@ -164,8 +164,10 @@ start() {
     fi
     export FLUXPROOF_SECRET_KEY
     export FLUXPROOF_DATA_DIR="${FLUXPROOF_DATA_DIR:-$stack_dir/data}"
-    # The Ed25519 key that signs sign-offs, outside the database (created on first start).
+    # The Ed25519 key that signs sign-offs and keys the audit chain, outside the database
+    # (created on first start), and the chain's anchor file: one each for every process.
     export FLUXPROOF_SIGNING_KEY_FILE="${FLUXPROOF_SIGNING_KEY_FILE:-$stack_dir/signing_key.pem}"
+    export FLUXPROOF_AUDIT_ANCHOR_FILE="${FLUXPROOF_AUDIT_ANCHOR_FILE:-$stack_dir/audit_anchor.jsonl}"
     export FLUXPROOF_STACK_WORKERS="${FLUXPROOF_STACK_WORKERS:-2}"
     export FLUXPROOF_STACK_BEAT="${FLUXPROOF_STACK_BEAT:-0}"
     export FLUXPROOF_STACK_LEASE_OWNER="${FLUXPROOF_STACK_LEASE_OWNER:-local-stack:$stack_dir}"
@@ -249,7 +251,7 @@ status() {
 
 print_env() {
     load_settings || die "not started (no $env_file)"
-    grep -E '^export FLUXPROOF_(BIND|BROKER_URL|DATABASE_URL|SECRET_KEY|SIGNING_KEY_FILE|DATA_DIR)=' \
+    grep -E '^export FLUXPROOF_(BIND|BROKER_URL|DATABASE_URL|SECRET_KEY|SIGNING_KEY_FILE|AUDIT_ANCHOR_FILE|DATA_DIR)=' \
         "$env_file"
 }
 

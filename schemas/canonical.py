@@ -17,6 +17,11 @@ def canonical_json(doc: Any) -> str:
     return _CANONICAL.encode(doc)
 
 
-def case_sha256(doc: Any) -> str:
-    """Hex SHA-256 of the UTF-8 bytes of :func:`canonical_json`."""
+def document_sha256(doc: Any) -> str:
+    """Hex SHA-256 of the UTF-8 bytes of :func:`canonical_json` (a case, a record)."""
     return hashlib.sha256(canonical_json(doc).encode("utf-8")).hexdigest()
+
+
+def case_sha256(doc: Any) -> str:
+    """Hex SHA-256 of the UTF-8 bytes of :func:`canonical_json`: a case's content address."""
+    return document_sha256(doc)

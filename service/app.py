@@ -54,7 +54,7 @@ def create_app(test_config: dict[str, Any] | None = None) -> Flask:
     app.config["SECRET_KEY"] = app.secret_key
     signing_key = load_signing_key(settings)
 
-    store = Store(database_url(settings))
+    store = Store(database_url(settings), settings)
     if settings["AUTO_MIGRATE"]:
         upgrade(store)
     mode = dispatch_mode(settings)

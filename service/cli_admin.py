@@ -15,8 +15,10 @@ from service.batches import WITHIN_TOLERANCE, batch_summary, get_batch, start_ba
 from service.cli_people import cli_actor, problem_text
 from service.dispatch import make_dispatcher
 from service.errors import NotFound, ValidationFailed
+from service.server_keys import SecretError
 from service.settings import dispatch_mode, settings_from_env
 from service.store import default_store
+from service.store.audit_seal import AnchorError
 from service.store.migrate import upgrade
 from service.store.models import FINISHED_STATES
 from service.tokens import create_token, revoke_token
@@ -67,13 +69,32 @@ def audit_group() -> None:
 
 @audit_group.command("verify")
 def audit_verify() -> None:
-    """Recompute the hash chain; exit 1 naming the first broken event."""
-    report = verify_chain(_store())
+    """Recompute the keyed hash chain, check it against the anchor file and every stored
+    case, record and sign-off against its event; exit 1 naming each difference."""
+    try:
+        report = verify_chain(_store())
+    except (SecretError, AnchorError, OSError) as exc:
+        raise click.ClickException(f"cannot verify: {exc}") from exc
+    anchor = report.anchor or {}
+    if anchor.get("seq") is None:
+        click.echo(f"anchor: {anchor.get('file')}: no checkpoint of chain {anchor.get('chain')}")
+    else:
+        click.echo(f"anchor: {anchor['file']}: chain {anchor['chain']}, "
+                   f"{anchor['checkpoints']} checkpoints, latest seq {anchor['seq']} hash "
+                   f"{anchor['hash']} at {anchor['at']} (key {anchor['key_id']})")
+    compared = report.compared
+    click.echo(f"compared: {compared.get('cases', 0)} cases, {compared.get('runs', 0)} runs, "
+               f"{compared.get('records', 0)} records, {compared.get('signoffs', 0)} sign-offs"
+               + (f" ({compared['records_without_hash']} records from before revision 0007 "
+                  "carry no hash in their event)" if compared.get("records_without_hash")
+                  else ""))
     if report.ok:
         click.echo(f"audit chain intact: {report.events} events")
         return
     click.echo(f"audit chain BROKEN at event seq {report.first_broken_seq}: {report.reason}",
                err=True)
+    for finding in report.findings:
+        click.echo(f"  - {finding.message}", err=True)
     raise SystemExit(1)
 
 

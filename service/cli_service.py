@@ -57,7 +57,7 @@ def db_upgrade() -> None:
     """Apply every pending migration to the store (FLUXPROOF_DATABASE_URL or the SQLite
     default)."""
     settings = settings_from_env()
-    store = Store(database_url(settings))
+    store = Store(database_url(settings), settings)
     try:
         revision = upgrade(store)
     finally:

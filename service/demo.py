@@ -102,8 +102,10 @@ def run_demo(cases_dir: Traversable, reports_dir: Path, data_dir: Path,
     if not paths:
         echo(f"no demo cases found in {cases_dir}", err=True)
         return 1
+    # An embedded installation of its own: its store, key and anchor file in data_dir.
     app = create_app({"DATA_DIR": str(data_dir), "DATABASE_URL": None, "BROKER_URL": None,
-                      "DISPATCH": "embedded"})
+                      "DISPATCH": "embedded", "SIGNING_KEY_FILE": None,
+                      "AUDIT_ANCHOR_FILE": None})
     store = app.extensions["fluxproof"].store
     passwords = {login: secrets.token_urlsafe(18) for login in (ENGINEER, REVIEWER)}
     for login, role in ((ENGINEER, "engineer"), (REVIEWER, "reviewer")):
@@ -166,7 +168,8 @@ def run_demo(cases_dir: Traversable, reports_dir: Path, data_dir: Path,
     echo("")
     for line in failures:
         echo(f"failed run: {line}", err=True)
-    audit_store = Store(database_url({"DATA_DIR": str(data_dir)}))
+    demo_settings = {"DATA_DIR": str(data_dir)}
+    audit_store = Store(database_url(demo_settings), demo_settings)
     try:
         report = verify_chain(audit_store)
     finally:

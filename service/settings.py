@@ -31,9 +31,14 @@ DEFAULTS: Mapping[str, Any] = {
     # made in DATA_DIR/secret_key (mode 0600); any configuration with DATABASE_URL refuses to
     # start without a strong one (service.server_keys).
     "SECRET_KEY": None,
-    # PEM file of the server's Ed25519 signing key (e-signatures); unset on the embedded
-    # default: DATA_DIR/signing_key.pem, created on first start.
+    # PEM file of the server's Ed25519 signing key (e-signatures; it also keys the audit
+    # chain, so the API and every worker read the same file); unset on the embedded default:
+    # DATA_DIR/signing_key.pem, created on first start.
     "SIGNING_KEY_FILE": None,
+    # The audit chain's anchor file (append-only checkpoints the operator keeps apart from the
+    # database; service.store.audit_seal). Unset: DATA_DIR/audit_anchor.jsonl. The API and
+    # every worker must append to the same file.
+    "AUDIT_ANCHOR_FILE": None,
     # Browser sessions end after this many minutes without a request ...
     "SESSION_IDLE_MINUTES": 30,
     # ... and this many hours after sign-in, whichever comes first.

@@ -56,7 +56,12 @@ from tests.faults.processes import OwnRedis
 from tests.faults.support import clean_upkeep_keys
 from tests.integration.real_services import PostgresSchema, RedisLease
 from tests.integration.service_gate import require_real_services, unavailable
-from tests.integration.support import create_tokens, make_app, worker_settings
+from tests.integration.support import (
+    TEST_SIGNING_KEY_FILE,
+    create_tokens,
+    make_app,
+    worker_settings,
+)
 from tests.integration.worker_processes import WorkerProcess, stop_all
 
 TESTS_DIR = Path(__file__).parent
@@ -110,6 +115,7 @@ def data_dir(tmp_path: Path, migrated_template: Path, monkeypatch: pytest.Monkey
     if TEST_DATABASE_URL:
         empty_database(TEST_DATABASE_URL)
         monkeypatch.setenv("FLUXPROOF_DATABASE_URL", TEST_DATABASE_URL)
+        monkeypatch.setenv("FLUXPROOF_SIGNING_KEY_FILE", str(directory / "signing_key.pem"))
     else:
         copy_template_db(migrated_template, directory)
     monkeypatch.setenv("FLUXPROOF_DATA_DIR", str(directory))
@@ -192,7 +198,9 @@ def controlled_engine(monkeypatch: pytest.MonkeyPatch):
 
 @pytest.fixture(scope="session")
 def real_services() -> str:
-    """Check Redis and PostgreSQL once; return the PostgreSQL user that works."""
+    """Check Redis and PostgreSQL once; return the PostgreSQL user that works. Stores built on
+    PostgreSQL from a URL alone then find the tests' signing key in the environment."""
+    os.environ.setdefault("FLUXPROOF_SIGNING_KEY_FILE", TEST_SIGNING_KEY_FILE)
     return require_real_services("integration or fault")
 
 
@@ -293,7 +301,8 @@ def pg_schema(real_services: str) -> Iterator[PostgresSchema]:
 
 @pytest.fixture
 def migrated_store(pg_schema: PostgresSchema):
-    store = Store(pg_schema.url)
+    store = Store(pg_schema.url, {"DATABASE_URL": pg_schema.url,
+                                  "SIGNING_KEY_FILE": TEST_SIGNING_KEY_FILE})
     upgrade(store)
     yield store
     store.dispose()

@@ -25,7 +25,7 @@ from service.celery_client import make_celery_app
 from service.process_limits import limit_address_space
 from service.recovery import SweepTimer, recovery_settings
 from service.settings import database_url, settings_from_env, worker_memory_limit_bytes, worker_nice
-from service.store import Store
+from service.store import Store, default_store
 from worker.warmup import warm_up_engine
 
 #: Modules whose tasks the workers register (each under a name of :mod:`service.task_names`).
@@ -43,8 +43,13 @@ def make_celery(settings: Mapping[str, Any] | None = None) -> Celery:
 @celeryd_after_setup.connect
 def warm_up_before_forking(**_signal: Any) -> None:
     """In the worker's main process, before it forks the pool: load the engine
-    (:mod:`worker.warmup`), so that every pool process starts warm."""
+    (:mod:`worker.warmup`), so that every pool process starts warm, and the store's audit
+    seal (no connection is opened), so that a worker without the installation's signing key or
+    a writable anchor file (``FLUXPROOF_SIGNING_KEY_FILE``, ``FLUXPROOF_AUDIT_ANCHOR_FILE``)
+    says so in its log at start, naming them, before any run's chaining fails on it."""
     logger.info("engine warmed up in %.2f s", warm_up_engine())
+    seal = default_store().seal()
+    logger.info("audit chain keyed with key %s, anchored in %s", seal.key_id, seal.anchor)
 
 
 @worker_process_init.connect
@@ -71,7 +76,7 @@ def start_recovery_sweep(sender: Any = None, **_signal: Any) -> None:
     interval, after = recovery_settings(settings)
     app = getattr(sender, "app", None) or celery_app
     # Its own store: pool processes forked later must not share its connections.
-    store = Store(database_url(settings))
+    store = Store(database_url(settings), settings)
     _SWEEP_TIMERS.append(SweepTimer(store, app, interval=interval, older_than_s=after,
                                     name="fluxproof-worker-recovery").start())
 

@@ -324,8 +324,31 @@ class AuditPageSchema(Schema):
 
 
 class BrokenEventSchema(Schema):
-    seq = fields.Integer(required=True)
+    seq = fields.Integer(required=True, allow_none=True, metadata={
+        "description": "The event at fault or compared with; null when the difference has no "
+                       "event (an object without its event, an anchor without checkpoints)"})
     reason = fields.String(required=True)
+
+
+class VerifyFindingSchema(Schema):
+    kind = fields.String(required=True, metadata={
+        "description": "What differs: event (the chain), anchor (the anchor file), case, run, "
+                       "sign-off of run, sealed record of run, token, batch"})
+    subject = fields.String(required=True, allow_none=True)
+    seq = fields.Integer(required=True, allow_none=True,
+                         metadata={"description": "The audit event compared with, if any"})
+    message = fields.String(required=True)
+
+
+class VerifyAnchorSchema(Schema):
+    file = fields.String(required=True, metadata={"description": "The anchor file read"})
+    chain = fields.String(required=True)
+    checkpoints = fields.Integer(required=True)
+    seq = fields.Integer(required=True, allow_none=True,
+                         metadata={"description": "The latest checkpoint's head"})
+    hash = fields.String(required=True, allow_none=True)
+    at = fields.String(required=True, allow_none=True)
+    key_id = fields.String(required=True, allow_none=True)
 
 
 class AuditVerifySchema(Schema):
@@ -333,6 +356,13 @@ class AuditVerifySchema(Schema):
     events = fields.Integer(required=True)
     head_seq = fields.Integer(required=True)
     first_broken = fields.Nested(BrokenEventSchema, allow_none=True, required=True)
+    findings = fields.List(fields.Nested(VerifyFindingSchema), required=True)
+    anchor = fields.Nested(VerifyAnchorSchema, required=True, metadata={
+        "description": "The anchor checkpoint verified against (kept outside the database)"})
+    compared = fields.Dict(keys=fields.String(), values=fields.Integer(), required=True,
+                           metadata={"description": "Stored objects compared with their "
+                                                    "events: cases, runs, records, "
+                                                    "records_without_hash, signoffs"})
 
 
 def flatten_errors(messages: Any) -> list[dict[str, str]]:

@@ -20,7 +20,8 @@ def default_store() -> Store:
     global _default_store
     with _default_lock:
         if _default_store is None:
-            _default_store = Store(database_url(settings_from_env()))
+            settings = settings_from_env()
+            _default_store = Store(database_url(settings), settings)
         return _default_store
 
 

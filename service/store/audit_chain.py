@@ -1,8 +1,12 @@
 """The audit chain's writing side: the outbox, and the one place events are hashed and chained.
 
-Each event's hash is ``sha256(prev_hash + canonical JSON of {seq, at, actor, kind, subject,
-payload})`` (hex), with ``prev_hash`` the previous event's hash (64 zeros before the first).
-:func:`event_hash` is the only code that computes it; :mod:`service.audit` verifies with it.
+Each event's hash is ``HMAC-SHA256(K, prev_hash + canonical JSON of {seq, at, actor, kind,
+subject, payload})`` (hex), with ``prev_hash`` the previous event's hash (64 zeros before the
+first) and ``K`` the chain key derived from the server's signing key; events chained before
+revision 0007 (below ``audit_head.keyed_from``) keep their plain SHA-256 of the same text (see
+:mod:`service.store.audit_seal`, which also writes the anchor file's checkpoint after each
+chaining). :func:`event_hash` is the only code that computes it; :mod:`service.audit` verifies
+with it.
 
 Two steps, on both databases:
 
@@ -45,7 +49,9 @@ deliberately independent of the case canonicalisation, so old chains stay verifi
 
 from __future__ import annotations
 
+import functools
 import hashlib
+import hmac
 import json
 from dataclasses import dataclass
 from typing import Any
@@ -72,6 +78,7 @@ from sqlalchemy.dialects.postgresql import ARRAY
 from sqlalchemy.orm import ORMExecuteState, Session
 from sqlalchemy.sql.util import find_tables
 
+from service.store.audit_seal import AuditSeal, ChainHead
 from service.store.models import AuditEvent, AuditHead, AuditPending, utc_now
 
 GENESIS_HASH = "0" * 64
@@ -104,18 +111,38 @@ def chain_json(value: Any) -> str:
 
 
 def event_hash(prev_hash: str, seq: int, at: str, actor: str, kind: str, subject: str,
-               payload: dict[str, Any]) -> str:
-    """The chain hash of one event (hex SHA-256)."""
+               payload: dict[str, Any], key: bytes | None = None) -> str:
+    """The chain hash of one event (hex): HMAC-SHA256 keyed with ``key`` (the chain key of
+    :mod:`service.store.audit_seal`, every event from ``audit_head.keyed_from`` on), or plain
+    SHA-256 without one (events chained before revision 0007)."""
     body = chain_json(
         {"seq": seq, "at": at, "actor": actor, "kind": kind, "subject": subject,
          "payload": payload}
     )
-    return hashlib.sha256((prev_hash + body).encode("utf-8")).hexdigest()
+    message = (prev_hash + body).encode("utf-8")
+    if key is None:
+        return hashlib.sha256(message).hexdigest()
+    keyed = _keyed_hmac(key).copy()
+    keyed.update(message)
+    return keyed.hexdigest()
+
+
+@functools.lru_cache(maxsize=4)
+def _keyed_hmac(key: bytes) -> hmac.HMAC:
+    """An HMAC-SHA256 object with ``key`` absorbed, copied for each event (half the cost of
+    keying a new one each time)."""
+    return hmac.new(key, digestmod=hashlib.sha256)
 
 
 PENDING_KEY = "fluxproof.audit.pending"
 #: Set on a session's ``info`` when its transaction put events into the outbox.
 PENDED_KEY = "fluxproof.audit.pended"
+#: On a session's ``info`` (the store's sessions carry it): a callable returning the
+#: :class:`~service.store.audit_seal.AuditSeal` that keys the chain and writes checkpoints.
+SEAL_KEY = "fluxproof.audit.seal"
+#: Set on a session's ``info`` when its transaction chained events: the head to checkpoint
+#: once the transaction is committed.
+CHAINED_KEY = "fluxproof.audit.chained"
 
 
 @dataclass(frozen=True)
@@ -166,8 +193,8 @@ _HEAD = AuditHead.__table__
 _EVENTS = AuditEvent.__table__
 _EVENT_COLUMNS = ["seq", "at", "actor", "kind", "subject", "payload", "prev_hash", "hash"]
 _READ_HEAD_AND_PENDING = (
-    select(_HEAD.c.seq, _HEAD.c.hash, _PENDING.c.id, _PENDING.c.actor, _PENDING.c.kind,
-           _PENDING.c.subject, _PENDING.c.payload)
+    select(_HEAD.c.seq, _HEAD.c.hash, _HEAD.c.chain_id, _HEAD.c.keyed_from, _PENDING.c.id,
+           _PENDING.c.actor, _PENDING.c.kind, _PENDING.c.subject, _PENDING.c.payload)
     .select_from(_HEAD.outerjoin(_PENDING, true())).where(_HEAD.c.id == HEAD_ROW_ID)
     .order_by(_PENDING.c.id))
 _INSERT_EVENTS = insert(_EVENTS)
@@ -203,14 +230,15 @@ def _pg_chain_if_head_unmoved() -> Any:
 _PG_CHAIN_IF_HEAD_UNMOVED = _pg_chain_if_head_unmoved()
 
 
-def _chained(head_seq: int, head_hash: str, pending: list[Any]) -> list[dict[str, Any]]:
-    """The outbox rows ``pending`` as chain events after the head (``head_seq``,
-    ``head_hash``): numbered, timed now and hashed (:func:`event_hash`), in order."""
-    events, seq, prev_hash = [], head_seq, head_hash
+def _chained(head: ChainHead, pending: list[Any], key: bytes) -> list[dict[str, Any]]:
+    """The outbox rows ``pending`` as chain events after ``head``: numbered, timed now and
+    hashed with the chain key (:func:`event_hash`), in order."""
+    events, seq, prev_hash = [], head.seq, head.hash
     for row in pending:
         seq += 1
         at = utc_now().isoformat(timespec="microseconds")
-        digest = event_hash(prev_hash, seq, at, row.actor, row.kind, row.subject, row.payload)
+        digest = event_hash(prev_hash, seq, at, row.actor, row.kind, row.subject, row.payload,
+                            key)
         events.append({"seq": seq, "at": at, "actor": row.actor, "kind": row.kind,
                        "subject": row.subject, "payload": row.payload,
                        "prev_hash": prev_hash, "hash": digest})
@@ -218,27 +246,37 @@ def _chained(head_seq: int, head_hash: str, pending: list[Any]) -> list[dict[str
     return events
 
 
-def _read_outbox(connection: Connection | Session) -> tuple[int, str, list[Any]]:
+def _read_outbox(connection: Connection | Session) -> tuple[ChainHead, list[Any]]:
     """The chain head and the outbox in order, in one statement."""
     rows = connection.execute(_READ_HEAD_AND_PENDING).all()
-    return rows[0].seq, rows[0].hash, [row for row in rows if row.id is not None]
+    head = ChainHead(chain=rows[0].chain_id, seq=rows[0].seq, hash=rows[0].hash,
+                     keyed_from=rows[0].keyed_from)
+    return head, [row for row in rows if row.id is not None]
 
 
-def chain_pending(connection: Connection | Session) -> int:
+def _moved(head: ChainHead, events: list[dict[str, Any]]) -> ChainHead:
+    return ChainHead(chain=head.chain, seq=events[-1]["seq"], hash=events[-1]["hash"],
+                     keyed_from=head.keyed_from)
+
+
+def chain_pending(connection: Connection | Session, seal: AuditSeal
+                  ) -> tuple[int, ChainHead | None]:
     """Chain every event in the outbox on ``connection``'s transaction, which must hold the
-    database's write lock (SQLite's ``BEGIN IMMEDIATE``); how many were chained."""
-    head_seq, head_hash, pending = _read_outbox(connection)
+    database's write lock (SQLite's ``BEGIN IMMEDIATE``); how many were chained and the new
+    head (None when none were), which the caller checkpoints once the transaction is
+    committed (:meth:`AuditSeal.write_checkpoint`)."""
+    head, pending = _read_outbox(connection)
     if not pending:
-        return 0
-    events = _chained(head_seq, head_hash, pending)
+        return 0, None
+    events = _chained(head, pending, seal.chain_key)
     connection.execute(_INSERT_EVENTS, events)
     connection.execute(_MOVE_HEAD, {"head_seq": events[-1]["seq"],
                                     "head_hash": events[-1]["hash"]})
     connection.execute(_DELETE_CHAINED, {"ids": [row.id for row in pending]})
-    return len(events)
+    return len(events), _moved(head, events)
 
 
-def chain_pending_concurrently(connection: Connection) -> int:
+def chain_pending_concurrently(connection: Connection, seal: AuditSeal) -> int:
     """PostgreSQL: chain every event in the outbox, on an autocommit connection, while other
     processes may be doing the same; how many this call chained.
 
@@ -249,26 +287,29 @@ def chain_pending_concurrently(connection: Connection) -> int:
     whoever moved it chained every event committed before its read, so what is left is newer.
     """
     while True:
-        head_seq, head_hash, pending = _read_outbox(connection)
+        head, pending = _read_outbox(connection)
         if not pending:
             return 0
-        if try_chaining(connection, head_seq, head_hash, pending):
+        if try_chaining(connection, head, pending, seal):
             return len(pending)
 
 
-def try_chaining(connection: Connection, head_seq: int, head_hash: str, pending: list[Any]
-                 ) -> bool:
+def try_chaining(connection: Connection, head: ChainHead, pending: list[Any],
+                 seal: AuditSeal) -> bool:
     """PostgreSQL: chain the outbox rows ``pending`` (rows with ``id``, ``actor``, ``kind``,
-    ``subject``, ``payload``, in outbox order) after the head (``head_seq``, ``head_hash``) as
-    read, in one self-committing statement; False, with nothing written, when the head has
-    moved since (see :func:`chain_pending_concurrently`)."""
-    events = _chained(head_seq, head_hash, pending)
+    ``subject``, ``payload``, in outbox order) after ``head`` as read, in one self-committing
+    statement, and checkpoint the new head in the anchor file; False, with nothing written,
+    when the head has moved since (see :func:`chain_pending_concurrently`)."""
+    events = _chained(head, pending, seal.chain_key)
     params: dict[str, Any] = {f"{name}s": [e[name] for e in events]
                               for name in _EVENT_COLUMNS if name != "payload"}
     params["payloads"] = [chain_json(e["payload"]) for e in events]
-    params.update(old_seq=head_seq, head_seq=events[-1]["seq"],
+    params.update(old_seq=head.seq, head_seq=events[-1]["seq"],
                   head_hash=events[-1]["hash"], ids=[row.id for row in pending])
-    return bool(connection.execute(_PG_CHAIN_IF_HEAD_UNMOVED, params).scalar_one())
+    if not connection.execute(_PG_CHAIN_IF_HEAD_UNMOVED, params).scalar_one():
+        return False
+    seal.write_checkpoint(_moved(head, events))
+    return True
 
 
 def write_pending_events(session: Session) -> int:
@@ -291,14 +332,33 @@ def _write_pending_at_commit(session: Session) -> None:
         write_pending_events(session)
     if session.info.get(PENDED_KEY) and session.get_bind().dialect.name == "sqlite":
         # SQLite: the write lock is held since BEGIN IMMEDIATE; chain before the commit.
-        chain_pending(session)
+        _count, head = chain_pending(session, session_seal(session))
+        session.info[CHAINED_KEY] = head
         session.info.pop(PENDED_KEY, None)
+
+
+@event.listens_for(Session, "after_commit")
+def _checkpoint_after_commit(session: Session) -> None:
+    head = session.info.pop(CHAINED_KEY, None)
+    if head is not None:
+        session_seal(session).write_checkpoint(head)
+
+
+def session_seal(session: Session) -> AuditSeal:
+    """The seal of the store that made ``session`` (see :data:`SEAL_KEY`)."""
+    provider = session.info.get(SEAL_KEY)
+    if provider is None:
+        raise RuntimeError("audit events need the store's seal: open sessions with "
+                           "Store.transaction(), not a bare Session")
+    seal: AuditSeal = provider()
+    return seal
 
 
 @event.listens_for(Session, "after_soft_rollback")
 def _drop_pending_on_rollback(session: Session, _previous_transaction: Any) -> None:
     session.info.pop(PENDING_KEY, None)
     session.info.pop(PENDED_KEY, None)
+    session.info.pop(CHAINED_KEY, None)
 
 
 _AUDIT_EVENTS_TABLE = AuditEvent.__table__
@@ -316,4 +376,4 @@ def _chain_before_reading_the_chain(state: ORMExecuteState) -> None:
             _AUDIT_EVENTS_TABLE not in find_tables(state.statement, include_crud=False):
         return
     with bind.connect().execution_options(isolation_level="AUTOCOMMIT") as connection:
-        chain_pending_concurrently(connection)
+        chain_pending_concurrently(connection, session_seal(state.session))

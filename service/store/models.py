@@ -240,6 +240,11 @@ class AuditHead(Base):
     id: Mapped[int] = mapped_column(Integer, primary_key=True, autoincrement=False)
     seq: Mapped[int] = mapped_column(Integer)
     hash: Mapped[str] = mapped_column(String(64))
+    #: The chain's identity in the anchor file (migration 0007; a new one for a new chain).
+    chain_id: Mapped[str] = mapped_column(String(36))
+    #: The first sequence number hashed with the chain key; earlier events keep plain SHA-256
+    #: (:mod:`service.store.audit_seal`).
+    keyed_from: Mapped[int] = mapped_column(Integer)
 
 
 class AuditPending(Base):

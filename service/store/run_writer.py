@@ -52,7 +52,9 @@ from sqlalchemy.dialects.postgresql import insert as pg_insert
 from sqlalchemy.exc import SQLAlchemyError
 from sqlalchemy.orm import Session
 
+from schemas.canonical import document_sha256
 from service.store.audit_chain import HEAD_ROW_ID, append_event, try_chaining
+from service.store.audit_seal import ChainHead
 from service.store.models import (
     FINISHED_STATES,
     UNFINISHED_STATES,
@@ -123,11 +125,17 @@ _GIVE_UP = (update(_RUNS).where(_RUNS.c.id == bindparam("run_id"))
 _STATUS_OF = select(_RUNS.c.status).where(_RUNS.c.id == bindparam("run_id"))
 
 
+def record_sha256(record: dict[str, Any] | None) -> str | None:
+    """SHA-256 of a stored record's canonical JSON (None for a run without one): what its
+    ``run.finished`` event pins, and what verification recomputes from the stored row."""
+    return None if record is None else document_sha256(record)
+
+
 def finished_payload(status: str, record: dict[str, Any] | None, error: str | None,
                      attempts: int) -> dict[str, Any]:
-    """The payload of a ``run.finished`` event."""
+    """The payload of a ``run.finished`` event (``record_sha256`` from revision 0007 on)."""
     return {"status": status, "verdict": (record or {}).get("verdict"), "error": error,
-            "attempts": attempts}
+            "attempts": attempts, "record_sha256": record_sha256(record)}
 
 
 def find_case(session: Session, sha256: str) -> StoredCase | None:
@@ -297,8 +305,9 @@ def _pg_store_outcome() -> Any:
     pended = insert(_PENDING).from_select(_EVENT_COLUMNS, select(
         _P_ACTOR, literal("run.finished"), _P_RUN_ID,
         func.json_build_object(literal("attempts"), done.c.attempts, literal("error"),
-                               _P_ERROR, literal("status"), _P_STATUS, literal("verdict"),
-                               bindparam("verdict", type_=Text)))
+                               _P_ERROR, literal("record_sha256"),
+                               bindparam("record_sha256", type_=Text), literal("status"),
+                               _P_STATUS, literal("verdict"), bindparam("verdict", type_=Text)))
     ).returning(*_outbox_columns(_PENDING)).cte("pended")
     # What the chaining reads, in the same round trip: the head and the outbox as of the
     # statement's start, and this statement's own event (a statement does not see its own
@@ -306,7 +315,8 @@ def _pg_store_outcome() -> Any:
     outbox = union_all(select(*_outbox_columns(_PENDING)),
                        select(*_outbox_columns(pended))).subquery("outbox")
     return (select(done.c.attempts, done.c.batch_id, _HEAD.c.seq.label("head_seq"),
-                   _HEAD.c.hash.label("head_hash"), *_outbox_columns(outbox))
+                   _HEAD.c.hash.label("head_hash"), _HEAD.c.chain_id.label("head_chain"),
+                   _HEAD.c.keyed_from.label("head_keyed_from"), *_outbox_columns(outbox))
             .select_from(done.join(_HEAD, _HEAD.c.id == HEAD_ROW_ID)
                          .outerjoin(outbox, true()))
             .order_by(outbox.c.id))
@@ -399,14 +409,17 @@ class PostgresqlRunWriter(SessionRunWriter):
         with self._store.autocommit() as connection:
             rows = connection.execute(self._STORE_OUTCOME, {
                 "run_id": run_id, "status": status, "record": record, "error": error,
-                "verdict": (record or {}).get("verdict"), "now": utc_now(),
+                "verdict": (record or {}).get("verdict"),
+                "record_sha256": record_sha256(record), "now": utc_now(),
                 "actor": actor}).all()
         if not rows:
             return False, None
         # Chain with what the statement read; should the head have moved since, read again.
         try:
+            head = ChainHead(chain=rows[0].head_chain, seq=rows[0].head_seq,
+                             hash=rows[0].head_hash, keyed_from=rows[0].head_keyed_from)
             with self._store.autocommit() as connection:
-                chained = try_chaining(connection, rows[0].head_seq, rows[0].head_hash, rows)
+                chained = try_chaining(connection, head, rows, self._store.seal())
         except SQLAlchemyError:
             chained = False
         if not chained:

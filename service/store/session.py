@@ -18,20 +18,25 @@ record (triggers of migration 0004) into :class:`~service.store.guards.SealedRec
 from __future__ import annotations
 
 import logging
-from collections.abc import Iterator
+import threading
+from collections.abc import Iterator, Mapping
 from contextlib import contextmanager
+from pathlib import Path
 from typing import Any
 
 from sqlalchemy import Engine, create_engine, event, text
 from sqlalchemy.exc import DBAPIError, SQLAlchemyError
 from sqlalchemy.orm import Session, sessionmaker
 
+from service.settings import settings_from_env
 from service.store.audit_chain import (
     ANY_PENDING,
     PENDED_KEY,
+    SEAL_KEY,
     chain_pending,
     chain_pending_concurrently,
 )
+from service.store.audit_seal import AuditSeal
 from service.store.guards import sealed_record_error
 from service.store.run_writer import RunWriter, run_writer_for
 
@@ -77,15 +82,45 @@ def make_engine(url: str, **kwargs: Any) -> Engine:
     return create_engine(url, **kwargs)
 
 
-class Store:
-    """The store of one process: an engine and a session factory."""
+def seal_settings(url: str, settings: Mapping[str, Any] | None) -> dict[str, Any]:
+    """Where the audit seal of a store on ``url`` finds its key and anchor file: ``settings``
+    when given (the app's); else the ``FLUXPROOF_*`` environment, a SQLite store keeping them
+    in its database file's directory (``DATA_DIR`` of the embedded default) unless
+    ``FLUXPROOF_SIGNING_KEY_FILE`` / ``FLUXPROOF_AUDIT_ANCHOR_FILE`` say otherwise."""
+    if settings is not None:
+        return dict(settings)
+    found = settings_from_env()
+    if url.startswith("sqlite"):
+        found["DATABASE_URL"] = None
+        found["DATA_DIR"] = str(Path(url.split("///", 1)[-1]).parent)
+    else:
+        found["DATABASE_URL"] = url
+    return found
 
-    def __init__(self, url: str, **engine_kwargs: Any) -> None:
+
+class Store:
+    """The store of one process: an engine, a session factory and the audit seal (the chain
+    key and anchor file of :mod:`service.store.audit_seal`, loaded when first needed from
+    ``settings``, see :func:`seal_settings`)."""
+
+    def __init__(self, url: str, settings: Mapping[str, Any] | None = None,
+                 **engine_kwargs: Any) -> None:
         self.url = url
         self.engine = make_engine(url, **engine_kwargs)
-        self._sessions = sessionmaker(self.engine, expire_on_commit=False)
+        self._seal_settings = seal_settings(url, settings)
+        self._seal: AuditSeal | None = None
+        self._seal_lock = threading.Lock()
+        self._sessions = sessionmaker(self.engine, expire_on_commit=False,
+                                      info={SEAL_KEY: self.seal})
         #: How runs are written on this database (:mod:`service.store.run_writer`).
         self.runs: RunWriter = run_writer_for(self)
+
+    def seal(self) -> AuditSeal:
+        """The audit seal of this store's installation (loaded once)."""
+        with self._seal_lock:
+            if self._seal is None:
+                self._seal = AuditSeal.from_settings(self._seal_settings)
+            return self._seal
 
     @property
     def dialect(self) -> str:
@@ -130,11 +165,15 @@ class Store:
         """
         if only_if_pending and not self.read(ANY_PENDING):
             return 0
+        seal = self.seal()
         if self.dialect == "postgresql":
             with self.autocommit() as connection:
-                return chain_pending_concurrently(connection)
+                return chain_pending_concurrently(connection, seal)
         with self.engine.begin() as connection:
-            return chain_pending(connection)
+            count, head = chain_pending(connection, seal)
+        if head is not None:
+            seal.write_checkpoint(head)
+        return count
 
     def read(self, statement: Any, params: dict[str, Any] | None = None) -> list[Any]:
         """The rows of one read-only statement, asked outside any transaction.

@@ -6,6 +6,7 @@ import copy
 import os
 import shutil
 import time
+import uuid
 from pathlib import Path
 from typing import Any
 
@@ -201,7 +202,9 @@ def empty_database(url: str) -> None:
             else:
                 for table in tables:
                     connection.execute(table.delete())
-            connection.execute(text("UPDATE audit_head SET seq = 0, hash = :h"),
-                               {"h": GENESIS_HASH})
+            # A new chain: its own id in the anchor file, keyed from its first event.
+            connection.execute(text("UPDATE audit_head SET seq = 0, hash = :h, chain_id = :c, "
+                                    "keyed_from = 1"), {"h": GENESIS_HASH,
+                                                        "c": str(uuid.uuid4())})
     finally:
         store.dispose()

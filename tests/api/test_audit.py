@@ -5,6 +5,7 @@ from __future__ import annotations
 from sqlalchemy import text
 
 from tests.api.support import SIGN, bearer, make_case
+from tests.tampering import owner_edit
 
 
 def test_every_change_leaves_an_event(client, tokens, controlled_engine):
@@ -37,13 +38,16 @@ def test_every_change_leaves_an_event(client, tokens, controlled_engine):
 def test_verify_accepts_an_intact_chain(client, tokens):
     client.post("/v1/cases", json=make_case(), headers=bearer(tokens["engineer"]))
     result = client.get("/v1/audit/verify", headers=bearer(tokens["auditor"])).get_json()
-    assert result == {"ok": True, "events": 9, "head_seq": 9, "first_broken": None}
+    assert {k: result[k] for k in ("ok", "events", "head_seq", "first_broken", "findings")} \
+        == {"ok": True, "events": 9, "head_seq": 9, "first_broken": None, "findings": []}
+    assert result["anchor"]["seq"] == 9 and result["anchor"]["checkpoints"] >= 1
+    assert result["compared"]["cases"] == 1
 
 
 def test_verify_names_the_edited_event(client, store, tokens):
     for i in range(3):
         client.post("/v1/cases", json=make_case(title=f"t{i}"), headers=bearer(tokens["engineer"]))
-    with store.engine.begin() as connection:
+    with owner_edit(store, "audit_events") as connection:
         connection.execute(text("UPDATE audit_events SET payload = :p WHERE seq = 6"),
                            {"p": '{"sha256": "forged", "title": "t1", "tags": []}'})
     result = client.get("/v1/audit/verify", headers=bearer(tokens["auditor"])).get_json()
@@ -55,7 +59,7 @@ def test_verify_names_the_edited_event(client, store, tokens):
 def test_verify_names_a_removed_event(client, store, tokens):
     for i in range(3):
         client.post("/v1/cases", json=make_case(title=f"t{i}"), headers=bearer(tokens["engineer"]))
-    with store.engine.begin() as connection:
+    with owner_edit(store, "audit_events") as connection:
         connection.execute(text("DELETE FROM audit_events WHERE seq = 5"))
     result = client.get("/v1/audit/verify", headers=bearer(tokens["auditor"])).get_json()
     assert result["first_broken"]["seq"] == 5
@@ -64,7 +68,7 @@ def test_verify_names_a_removed_event(client, store, tokens):
 
 def test_verify_notices_a_truncated_tail(client, store, tokens):
     client.post("/v1/cases", json=make_case(), headers=bearer(tokens["engineer"]))
-    with store.engine.begin() as connection:
+    with owner_edit(store, "audit_events") as connection:
         connection.execute(text("DELETE FROM audit_events WHERE seq = 9"))
     result = client.get("/v1/audit/verify", headers=bearer(tokens["auditor"])).get_json()
     assert result["ok"] is False and result["first_broken"]["seq"] == 9

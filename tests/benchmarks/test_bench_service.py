@@ -53,6 +53,7 @@ from tests.integration.real_services import (
     postgres_user,
     require_redis,
 )
+from tests.integration.support import TEST_SIGNING_KEY_FILE
 from tests.integration.worker_processes import (
     REPO_ROOT,
     WorkerProcess,
@@ -77,6 +78,8 @@ BENCH_ACTOR = "bench.service"
 
 @pytest.fixture(scope="module")
 def services_present() -> None:
+    # Stores built on PostgreSQL from a URL alone (and their workers) find the key here.
+    os.environ.setdefault("FLUXPROOF_SIGNING_KEY_FILE", TEST_SIGNING_KEY_FILE)
     try:
         require_redis()
         postgres_user()
@@ -110,7 +113,8 @@ def lease(services_present) -> Iterator[RedisLease]:
 
 def _settings(schema: PostgresSchema, lease: RedisLease) -> dict[str, str]:
     return {"FLUXPROOF_DATABASE_URL": schema.url, "FLUXPROOF_BROKER_URL": lease.url,
-            "FLUXPROOF_AUTO_MIGRATE": "false"}
+            "FLUXPROOF_AUTO_MIGRATE": "false",
+            "FLUXPROOF_SIGNING_KEY_FILE": TEST_SIGNING_KEY_FILE}
 
 
 def _start_workers(schema, lease, log_dir: Path, count: int = 2, *,
@@ -360,7 +364,8 @@ def _free_port() -> int:
 
 
 def _start_gunicorn(schema, lease, log_dir: Path, port: int) -> subprocess.Popen:
-    keys = {f"FLUXPROOF_{name}": value for name, value in app_keys(log_dir).items()}
+    keys = {f"FLUXPROOF_{name}": value
+            for name, value in app_keys(Path(TEST_SIGNING_KEY_FILE).parent).items()}
     env = clean_environment({**_settings(schema, lease), **keys,
                              "FLUXPROOF_BIND": f"127.0.0.1:{port}",
                              "FLUXPROOF_ACCESS_LOG": str(log_dir / "access.log"),

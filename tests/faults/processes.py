@@ -22,6 +22,7 @@ from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
 
+from tests.integration.support import TEST_SIGNING_KEY_FILE
 from tests.integration.worker_processes import (
     REPO_ROOT,
     children_of,
@@ -137,6 +138,8 @@ class LocalStack:
             "FLUXPROOF_STACK_BEAT": "1" if self.beat else "0",
             "FLUXPROOF_STACK_STOP_TIMEOUT": "20",
             "FLUXPROOF_STACK_START_TIMEOUT": "90",
+            # The key the test's own stores chain with (one key per installation).
+            "FLUXPROOF_SIGNING_KEY_FILE": TEST_SIGNING_KEY_FILE,
             "WEB_CONCURRENCY": "2",
         }
         settings.update(self.extra_env)

@@ -13,6 +13,7 @@ import threading
 import time
 import uuid
 from concurrent.futures import ThreadPoolExecutor
+from pathlib import Path
 
 import pytest
 import requests
@@ -23,6 +24,7 @@ from tests.faults.support import create_tokens
 from tests.faults.tcp_proxy import TcpProxy
 from tests.integration.invented_cases import distinct_steady_cases
 from tests.integration.real_services import POSTGRES_HOST, POSTGRES_PORT
+from tests.integration.support import TEST_SIGNING_KEY_FILE
 
 ALLOWED_DURING_FAULT = {200, 201, 202, 503}
 
@@ -38,7 +40,8 @@ def proxied_api(pg_schema, migrated_store, monkeypatch, tmp_path):
             monkeypatch.delenv(key)
     proxy = TcpProxy(POSTGRES_HOST, POSTGRES_PORT).start()
     app = create_app({"DATABASE_URL": proxy.url_for(pg_schema.user, pg_schema.name),
-                      "AUTO_MIGRATE": False, "DISPATCH": "inline", **app_keys(tmp_path)})
+                      "AUTO_MIGRATE": False, "DISPATCH": "inline",
+                      **app_keys(Path(TEST_SIGNING_KEY_FILE).parent)})
     server = BackgroundServer(app).start()
     try:
         yield server.url, proxy

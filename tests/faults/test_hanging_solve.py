@@ -25,6 +25,7 @@ import pytest
 
 from tests.faults.processes import wait_until
 from tests.integration.invented_cases import single_layer_case
+from tests.integration.support import TEST_SIGNING_KEY_FILE
 from tests.integration.worker_processes import REPO_ROOT, clean_environment
 
 SOFT_S, HARD_S = 3, 6
@@ -39,7 +40,8 @@ def hang_worker(tmp_path, pg_schema, migrated_store, redis_lease, request):
         "FLUXPROOF_DATABASE_URL": pg_schema.url, "FLUXPROOF_BROKER_URL": redis_lease.url,
         "FLUXPROOF_AUTO_MIGRATE": "false", "FLUXPROOF_TASK_SOFT_TIME_LIMIT": str(SOFT_S),
         "FLUXPROOF_TASK_TIME_LIMIT": str(HARD_S), "FAULT_TEST_HANG": mode,
-        "FLUXPROOF_RECOVERY_INTERVAL": "2", "FLUXPROOF_RECOVERY_AFTER": "8"})
+        "FLUXPROOF_RECOVERY_INTERVAL": "2", "FLUXPROOF_RECOVERY_AFTER": "8",
+        "FLUXPROOF_SIGNING_KEY_FILE": TEST_SIGNING_KEY_FILE})
     with log_path.open("ab") as log:
         process = subprocess.Popen(
             [sys.executable, "-m", "celery", "-A", "tests.faults.hang_app", "worker",

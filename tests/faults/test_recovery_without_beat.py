@@ -15,6 +15,7 @@ from service.store.leases import take_lease
 from service.store.models import Run, utc_now
 from tests.faults.processes import wait_until
 from tests.integration.invented_cases import distinct_steady_cases
+from tests.integration.support import TEST_SIGNING_KEY_FILE
 from tests.integration.worker_processes import WorkerProcess
 
 
@@ -37,7 +38,8 @@ def test_a_plain_worker_sends_a_lost_run_again_and_runs_it(migrated_store, pg_sc
     run_id = _lost_run(migrated_store)
     settings = {"FLUXPROOF_DATABASE_URL": pg_schema.url, "FLUXPROOF_BROKER_URL": redis_lease.url,
                 "FLUXPROOF_AUTO_MIGRATE": "false", "FLUXPROOF_RECOVERY_INTERVAL": "1",
-                "FLUXPROOF_RECOVERY_AFTER": "60"}
+                "FLUXPROOF_RECOVERY_AFTER": "60",
+                "FLUXPROOF_SIGNING_KEY_FILE": TEST_SIGNING_KEY_FILE}
     worker = WorkerProcess(settings, tmp_path / "worker.log").start()
     try:
         worker.wait_ready()

@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+import os
+import tempfile
 from pathlib import Path
 from typing import Any
 
@@ -12,19 +14,26 @@ ROLE_NAMES = {"engineer": "ivo.integration-engineer", "reviewer": "rhea.integrat
               "auditor": "aurel.integration-auditor", "admin": "ada.integration-admin"}
 
 
+#: The signing key every process of the PostgreSQL tests shares (a deployment with its own
+#: database names one file for the API and every worker; it also keys the audit chain). The
+#: anchor file is each process's default (``./var/audit_anchor.jsonl`` of the repository, the
+#: working directory of the tests and their workers); each schema is a chain of its own.
+TEST_SIGNING_KEY_FILE = str(Path(tempfile.gettempdir()) / f"fluxproof-test-{os.getuid()}"
+                            / "signing_key.pem")
+
+
 def worker_settings(schema: PostgresSchema, broker: RedisLease) -> dict[str, str]:
     return {"FLUXPROOF_DATABASE_URL": schema.url, "FLUXPROOF_BROKER_URL": broker.url,
-            "FLUXPROOF_AUTO_MIGRATE": "false"}
+            "FLUXPROOF_AUTO_MIGRATE": "false",
+            "FLUXPROOF_SIGNING_KEY_FILE": TEST_SIGNING_KEY_FILE}
 
 
 def make_app(schema: PostgresSchema, broker: RedisLease):
-    import tempfile
-
     from service.app import create_app
     from tests.api.support import app_keys
 
     return create_app({"TESTING": True, "DATABASE_URL": schema.url, "BROKER_URL": broker.url,
-                       "DISPATCH": "celery", **app_keys(Path(tempfile.gettempdir()))})
+                       "DISPATCH": "celery", **app_keys(Path(TEST_SIGNING_KEY_FILE).parent)})
 
 
 def create_tokens(store: Any) -> dict[str, str]:

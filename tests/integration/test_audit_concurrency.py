@@ -8,10 +8,12 @@ from concurrent.futures import ThreadPoolExecutor
 import pytest
 from sqlalchemy import select, text
 
+from service.store.guards import SealedRecordError
 from tests.api.support import bearer
 from tests.integration.invented_cases import distinct_steady_cases
 from tests.integration.support import wait_finished
 from tests.integration.worker_processes import parent_of
+from tests.tampering import owner_edit
 
 RUNS = 16
 
@@ -68,14 +70,19 @@ def test_verify_detects_an_event_changed_behind_the_service(live_app, live_store
         event = session.execute(select(AuditEvent).order_by(AuditEvent.seq.desc())
                                 .limit(1)).scalar_one()
         seq, original = event.seq, event.actor
-        event.actor = original + " (edited)"
+    with pytest.raises(SealedRecordError):  # the trigger of migration 0007
+        with live_store.transaction() as session:
+            session.get(AuditEvent, seq).actor = original + " (edited)"
+    edit = text("UPDATE audit_events SET actor = :actor WHERE seq = :seq")
+    with owner_edit(live_store, "audit_events") as connection:  # the owner drops the guard
+        connection.execute(edit, {"actor": original + " (edited)", "seq": seq})
     try:
         report = verify_chain(live_store)
         assert report.ok is False
         assert report.first_broken_seq == seq
     finally:
-        with live_store.transaction() as session:
-            session.get(AuditEvent, seq).actor = original
+        with owner_edit(live_store, "audit_events") as connection:
+            connection.execute(edit, {"actor": original, "seq": seq})
     assert verify_chain(live_store).ok is True
 
 
@@ -102,7 +109,7 @@ def test_events_with_awkward_text_chain_and_verify_and_nothing_stays_pending(liv
                                    text_value: "as a key"})
     assert live_store.read_scalar(text("SELECT count(*) FROM audit_pending")) == 0
     report = audit.verify_chain(live_store)
-    assert report.ok, report
+    assert report.chain_intact, report
     with live_store.transaction() as session:
         written = session.execute(select(AuditEvent).order_by(AuditEvent.seq.desc())
                                   .limit(len(AWKWARD_TEXT))).scalars().all()
@@ -110,7 +117,8 @@ def test_events_with_awkward_text_chain_and_verify_and_nothing_stays_pending(liv
     for event in written:
         assert re.fullmatch(r"\d{4}-\d\d-\d\dT\d\d:\d\d:\d\d\.\d{6}\+00:00", event.at), event.at
         assert event.hash == audit.event_hash(event.prev_hash, event.seq, event.at, event.actor,
-                                              event.kind, event.subject, event.payload)
+                                              event.kind, event.subject, event.payload,
+                                              live_store.seal().chain_key)
     times = [e.at for e in sorted(written, key=lambda e: e.seq)]
     assert times == sorted(times)
 
@@ -128,7 +136,7 @@ def test_a_rolled_back_transaction_leaves_no_event_pending_or_chained(live_store
             raise RuntimeError("change refused")
     assert live_store.read_scalar(text("SELECT count(*) FROM audit_pending")) == 0
     report = audit.verify_chain(live_store)
-    assert report.ok and report.head_seq == head_before
+    assert report.chain_intact and report.head_seq == head_before
 
 
 def test_events_left_in_the_outbox_are_chained_by_the_next_reader(live_store):
@@ -146,7 +154,7 @@ def test_events_left_in_the_outbox_are_chained_by_the_next_reader(live_store):
     listed = audit.list_events(live_store, kind="token.created", limit=1000)["items"]
     assert [e["subject"] for e in listed if e["subject"] in subjects] == subjects
     assert live_store.read_scalar(text("SELECT count(*) FROM audit_pending")) == 0
-    assert audit.verify_chain(live_store).ok
+    assert audit.verify_chain(live_store).chain_intact
 
 
 def test_many_writers_at_once_make_one_chain(live_store):
@@ -168,7 +176,7 @@ def test_many_writers_at_once_make_one_chain(live_store):
         run_ids = list(pool.map(write, cases))
     assert live_store.read_scalar(text("SELECT count(*) FROM audit_pending")) == 0
     report = audit.verify_chain(live_store)
-    assert report.ok, report
+    assert report.chain_intact, report
     events = audit.list_events(live_store, limit=1000, offset=head_before)["items"]
     by_run = {run_id: sorted(e["kind"] for e in events if e["subject"] == run_id)
               for run_id in run_ids}

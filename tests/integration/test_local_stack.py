@@ -82,7 +82,11 @@ def test_local_stack_starts_runs_a_case_and_stops_cleanly(stack_env):
     assert body["store"] == {"state": "ok", "mode": "postgresql"}
     assert body["broker"]["state"] == "ok" and body["broker"]["mode"] == "celery"
 
-    store = Store(schema.url)  # the stack migrated this schema
+    # The stack migrated this schema; its processes keep their key and the chain's anchor in
+    # the stack's directory (deploy/local-stack.sh).
+    store = Store(schema.url, {"DATABASE_URL": schema.url,
+                               "SIGNING_KEY_FILE": str(stack_dir / "signing_key.pem"),
+                               "AUDIT_ANCHOR_FILE": str(stack_dir / "audit_anchor.jsonl")})
     try:
         token = person_token(store, "engineer", "sol.stack-engineer")
     finally:

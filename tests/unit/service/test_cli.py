@@ -14,6 +14,7 @@ from service.store import default_store
 from service.store.models import Token
 from service.tokens import identify, token_digest
 from tests.api.support import make_case
+from tests.tampering import owner_edit
 
 PASSWORD = {"FLUXPROOF_NEW_PASSWORD": "a long enough password"}
 
@@ -89,7 +90,7 @@ def test_audit_verify_exits_1_naming_the_broken_event(data_dir):  # noqa: F811
         runner.invoke(main, ["token", "create", "--login", "rosa", "--name", name])
     intact = runner.invoke(main, ["audit", "verify"])
     assert intact.exit_code == 0 and "intact: 3 events" in intact.output
-    with default_store().engine.begin() as connection:
+    with owner_edit(default_store(), "audit_events") as connection:
         connection.execute(text("UPDATE audit_events SET actor = 'mallory' WHERE seq = 2"))
     broken = runner.invoke(main, ["audit", "verify"])
     assert broken.exit_code == 1 and "seq 2" in broken.output

@@ -6,7 +6,7 @@ the lease by inserting the row, or by updating it when it has expired or is its 
 with or without a broker or beat.
 
 Revision ID: 0008_service_leases
-Revises: 0006_people_sessions_signatures
+Revises: 0007_keyed_audit_chain
 Create Date: 2026-12-05
 """
 
@@ -16,7 +16,7 @@ import sqlalchemy as sa
 from alembic import op
 
 revision = "0008_service_leases"
-down_revision = "0006_people_sessions_signatures"
+down_revision = "0007_keyed_audit_chain"
 branch_labels = None
 depends_on = None
 
