@@ -51,8 +51,10 @@ def check_case(case: dict, *, on_progress: Callable[[int, int], None] | None = N
         The result document: ``status``, ``verdict``, ``quantities`` (SI), ``series``,
         ``methods``, ``checks`` (first the two inputs checks: the units converted by pint and
         by the unit table, and the case as the primary and the independent problem read it),
-        ``warnings``, ``provenance``, ``inputs`` (the normalised case)
-        and ``caution`` (see :mod:`schemas.record`).
+        ``warnings``, ``provenance``, ``inputs`` (the normalised case), ``design`` (each
+        stated requirement judged; ``none_stated`` without any), ``deviations`` (the default
+        limits the case loosens), ``uncertainty``, ``design_limit`` and ``sweep`` where the case
+        asks for them, and ``caution`` (see :mod:`schemas.record`).
 
     Raises
     ------
