@@ -100,6 +100,7 @@ def _layer_index(problem: Problem, name: str) -> int | None:
 def _requirements(items: list[Mapping], problem: Problem, reader: _Reader
                   ) -> tuple[list[Requirement], list[float]]:
     regime = problem.regime.kind
+    offered = quantities(problem)
     seen: set[str] = set()
     found: list[Requirement] = []
     times: list[float] = []
@@ -111,7 +112,6 @@ def _requirements(items: list[Mapping], problem: Problem, reader: _Reader
                                       "unique in the case")
         seen.add(rid)
         name = item["quantity"]
-        offered = quantities(problem)
         spec = offered.get(name)
         if spec is None:
             reader.fail(f"{path}.quantity", f"{name!r} is not a quantity this {regime} case "

@@ -15,7 +15,7 @@ import math
 import re
 import time
 from collections.abc import Callable, Iterable
-from dataclasses import asdict, dataclass
+from dataclasses import asdict, dataclass, fields
 from pathlib import Path
 from typing import Any
 
@@ -27,7 +27,9 @@ _INDEXED = re.compile(r"^([a-z0-9_]+)(?:\[(\d+)\])?$")
 
 
 @dataclass(frozen=True)
-class ReferenceCase:
+class ReferenceFacts:
+    """What a reference case states: its published value, source and tolerance."""
+
     id: str
     title: str
     covers: dict[str, str]
@@ -38,21 +40,19 @@ class ReferenceCase:
     unit: str
     tolerance: float
     tolerance_reason: str
+
+
+@dataclass(frozen=True)
+class ReferenceCase(ReferenceFacts):
+    """A reference case: its facts and the case document run to check them."""
+
     case: dict[str, Any]
 
 
 @dataclass(frozen=True)
-class CaseResult:
-    id: str
-    title: str
-    covers: dict[str, str]
-    source: str
-    formula: str
-    quantity: str
-    expected: float
-    unit: str
-    tolerance: float
-    tolerance_reason: str
+class CaseResult(ReferenceFacts):
+    """A reference case's facts and what this installation found."""
+
     result: float | None
     relative_error: float | None
     verdict: str | None
@@ -115,11 +115,8 @@ def judge(reference: ReferenceCase, record: dict[str, Any], seconds: float) -> C
             reasons.append(f"{reference.quantity} = {value:.12g} {unit} differs from the "
                            f"published {reference.expected:.12g} {reference.unit} by "
                            f"{error:.3g} relative (tolerance {reference.tolerance:g})")
-    return CaseResult(id=reference.id, title=reference.title, covers=reference.covers,
-                      source=reference.source, formula=reference.formula,
-                      quantity=reference.quantity, expected=reference.expected,
-                      unit=reference.unit, tolerance=reference.tolerance,
-                      tolerance_reason=reference.tolerance_reason, result=value,
+    facts = {f.name: getattr(reference, f.name) for f in fields(ReferenceFacts)}
+    return CaseResult(**facts, result=value,
                       relative_error=error, verdict=record.get("verdict"),
                       passed=not reasons,
                       reason="; ".join(reasons) or "within tolerance, calculation verified",

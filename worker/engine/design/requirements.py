@@ -20,6 +20,7 @@ from __future__ import annotations
 import math
 from collections.abc import Mapping, Sequence
 from dataclasses import dataclass
+from typing import Protocol
 
 #: Record statuses of a requirement and of the design as a whole.
 MET, NOT_MET, INDETERMINATE, NONE_STATED = "met", "not_met", "indeterminate", "none_stated"
@@ -105,42 +106,57 @@ def _entry_value(entry: Mapping, index: int | None) -> tuple[float | None, float
     return (None if value is None else float(value)), (None if band is None else float(band))
 
 
+class Figure(Protocol):
+    """Names one figure of a record: ``quantity``, optionally ``layer`` (index) and ``at`` (s).
+    A :class:`Requirement` and a design run's ``Target`` both do."""
+
+    @property
+    def quantity(self) -> str: ...
+
+    @property
+    def layer(self) -> int | None: ...
+
+    @property
+    def at(self) -> float | None: ...
+
+
 def _item(row, index: int):
     """``row[index]`` of a per-layer row, None where there is none."""
     return row[index] if isinstance(row, list) and index < len(row) else None
 
 
-def read_requirement(requirement: Requirement, quantities: Mapping, series: Mapping,
-                     duration: float | None = None) -> Reading:
-    """The figure ``requirement`` bounds, read from a record's ``quantities`` and ``series``.
+def read_figure(figure: Figure, quantities: Mapping, series: Mapping,
+                duration: float | None = None) -> Reading:
+    """A figure (a requirement's, or a design run's target) read from a record's
+    ``quantities`` and ``series``.
 
     A per-layer extreme reads ``<quantity>_layers`` at the layer's index; a series quantity reads
     its value at the time ``at`` (which the run adds to its output times).
     """
-    name = requirement.quantity
-    if requirement.at is not None:
-        series_name = name if requirement.layer is None else f"{name}_layers"
+    name = figure.quantity
+    if figure.at is not None:
+        series_name = name if figure.layer is None else f"{name}_layers"
         entry = series.get(series_name)
         times = series.get("time", {}).get("values", [])
         if not isinstance(entry, Mapping):
             return Reading(None, missing=f"the record has no series {series_name}")
-        hits = [i for i, t in enumerate(times) if math.isclose(t, requirement.at, rel_tol=1e-12)]
+        hits = [i for i, t in enumerate(times) if math.isclose(t, figure.at, rel_tol=1e-12)]
         if not hits:
-            return Reading(None, missing=f"the series {name} has no value at {requirement.at} s")
+            return Reading(None, missing=f"the series {name} has no value at {figure.at} s")
         row = hits[0]
         values, bands = entry.get("values", []), entry.get("uncertainty")
         value = values[row] if row < len(values) else None
         band = bands[row] if isinstance(bands, list) and row < len(bands) else None
-        if requirement.layer is not None:
-            value = _item(value, requirement.layer)
-            band = _item(band, requirement.layer)
+        if figure.layer is not None:
+            value = _item(value, figure.layer)
+            band = _item(band, figure.layer)
         return Reading(None if value is None else float(value),
                        None if band is None else float(band))
-    if requirement.layer is not None:
+    if figure.layer is not None:
         entry = quantities.get(f"{name}_layers")
         if not isinstance(entry, Mapping):
             return Reading(None, missing=f"the record has no {name}_layers")
-        value, band = _entry_value(entry, requirement.layer)
+        value, band = _entry_value(entry, figure.layer)
         return Reading(value, band)
     entry = quantities.get(name)
     if not isinstance(entry, Mapping) or entry.get("value") is None:
@@ -211,5 +227,5 @@ def overall_status(statuses: Sequence[str]) -> str:
 def design_block(requirements: Sequence[Requirement], quantities: Mapping, series: Mapping,
                  duration: float | None = None) -> dict:
     """The record's ``design`` block: each requirement judged on the record's figures."""
-    judged = [judge(r, read_requirement(r, quantities, series, duration)) for r in requirements]
+    judged = [judge(r, read_figure(r, quantities, series, duration)) for r in requirements]
     return {"status": overall_status([j["status"] for j in judged]), "requirements": judged}

@@ -36,7 +36,7 @@ from worker.engine.design.monte_carlo import (
 )
 from worker.engine.design.paths import FieldRef, value_of, with_values
 from worker.engine.design.request import DesignRequest, UncertaintyRequest
-from worker.engine.design.requirements import Requirement, design_block, read_requirement
+from worker.engine.design.requirements import Requirement, design_block, read_figure
 from worker.engine.design.sampling import InputDistribution, UncertaintySpec
 from worker.engine.design.sensitivity import sensitivity
 from worker.engine.design.targets import Target, target_dimension
@@ -202,10 +202,8 @@ class DesignRunner:
         return "pass" if outcome.checks and all(c.passed for c in outcome.checks) else "fail"
 
     def _figure(self, outcome: Outcome, target: Target) -> tuple[float | None, float | None]:
-        reading = read_requirement(
-            Requirement(id="", quantity=target.quantity, layer=target.layer, at=target.at,
-                        low=0.0),
-            outcome.quantities, outcome.series, self.problem.regime.duration)
+        reading = read_figure(target, outcome.quantities, outcome.series,
+                              self.problem.regime.duration)
         return reading.value, reading.uncertainty
 
     # -- uncertainty ---------------------------------------------------------------------

@@ -29,7 +29,7 @@ from collections.abc import Sequence
 import numpy as np
 
 from worker.engine.design.paths import FieldRef, replaced, with_values
-from worker.engine.design.requirements import Requirement, read_requirement
+from worker.engine.design.requirements import read_figure
 from worker.engine.design.targets import Target
 from worker.engine.model import Layer, Problem, Regime
 from worker.engine.transient import exact_series
@@ -234,9 +234,6 @@ def _full_trial(problem: Problem, targets: Sequence[Target]) -> np.ndarray:
     outcome = run_transient(problem)
     row = np.full(len(targets), np.nan)
     for j, target in enumerate(targets):
-        reading = read_requirement(
-            Requirement(id="", quantity=target.quantity, layer=target.layer, at=target.at,
-                        low=0.0),
-            outcome.quantities, outcome.series, problem.regime.duration)
+        reading = read_figure(target, outcome.quantities, outcome.series, problem.regime.duration)
         row[j] = math.nan if reading.value is None else reading.value
     return row

@@ -18,7 +18,7 @@ from worker.engine.design.requirements import (
     design_block,
     judge,
     overall_status,
-    read_requirement,
+    read_figure,
 )
 from worker.engine.design.targets import quantities
 from worker.engine.run import run_problem
@@ -76,7 +76,7 @@ def test_indeterminate_when_the_margin_is_inside_the_numerical_uncertainty(value
 def test_an_event_time_not_reached_is_decided_only_where_the_duration_suffices(low, high,
                                                                                  status):
     requirement = _req(quantity="t90", low=low, high=high)
-    reading = read_requirement(requirement, {}, {}, duration=30 * 86400.0)
+    reading = read_figure(requirement, {}, {}, duration=30 * 86400.0)
     assert reading.value is None and reading.beyond == 30 * 86400.0
     entry = judge(requirement, reading)
     assert entry["status"] == status
@@ -85,7 +85,7 @@ def test_an_event_time_not_reached_is_decided_only_where_the_duration_suffices(l
 
 def test_a_missing_figure_is_indeterminate_and_says_why():
     entry = judge(_req(quantity="depletion_front", low=1e-4),
-                  read_requirement(_req(quantity="depletion_front", low=1e-4), {}, {}))
+                  read_figure(_req(quantity="depletion_front", low=1e-4), {}, {}))
     assert entry["status"] == INDETERMINATE
     assert "no depletion_front" in entry["reason"]
 
@@ -100,13 +100,13 @@ def test_overall_status_orders_not_met_before_indeterminate_before_met():
 def test_reads_a_layer_extreme_and_a_series_value_at_its_time():
     quantities = {"concentration_min_layers": {"value": [0.0, 0.012], "uncertainty": [0.0, 2e-7],
                                                "unit": "mol/m^3"}}
-    reading = read_requirement(_req(layer=1, layer_name="shell", low=0.005), quantities, {})
+    reading = read_figure(_req(layer=1, layer_name="shell", low=0.005), quantities, {})
     assert (reading.value, reading.uncertainty) == (0.012, 2e-7)
     series = {"time": {"values": [3600.0, 7200.0]},
               "release_fraction": {"values": [0.1, 0.3], "uncertainty": [1e-6, 3e-6]}}
-    reading = read_requirement(_req(quantity="release_fraction", at=7200.0, low=0.2), {}, series)
+    reading = read_figure(_req(quantity="release_fraction", at=7200.0, low=0.2), {}, series)
     assert (reading.value, reading.uncertainty) == (0.3, 3e-6)
-    missing = read_requirement(_req(quantity="release_fraction", at=5000.0, low=0.2), {}, series)
+    missing = read_figure(_req(quantity="release_fraction", at=5000.0, low=0.2), {}, series)
     assert missing.value is None and "no value at 5000" in (missing.missing or "")
 
 
