@@ -76,7 +76,15 @@ class Reaction:
 
 @dataclass(frozen=True)
 class Layer:
-    """One homogeneous layer, listed inner to outer."""
+    """One homogeneous layer, listed inner to outer.
+
+    ``initial`` is the solute per volume of layer at t = 0, dissolved and undissolved together
+    (the case's ``initial`` or ``loading``). ``solubility`` is the saturation concentration of
+    the dissolved solute in the layer (material side), None for no limit: wherever a layer's
+    solute content exceeds its solubility the dissolved part is the solubility and the excess
+    is undissolved (dispersed) solute, which does not diffuse and dissolves as the dissolved
+    level falls below saturation (T. Higuchi, J. Pharm. Sci. 50 (1961) 874).
+    """
 
     name: str
     thickness: float
@@ -84,6 +92,17 @@ class Layer:
     partition: float = 1.0
     reaction: Reaction = field(default_factory=Reaction)
     initial: float = 0.0
+    solubility: float | None = None
+
+    @property
+    def dissolved_initial(self) -> float:
+        """Dissolved concentration at t = 0: ``initial`` capped at the solubility."""
+        return self.initial if self.solubility is None else min(self.initial, self.solubility)
+
+    @property
+    def is_loaded_above_solubility(self) -> bool:
+        """True when the layer starts with undissolved solute."""
+        return self.solubility is not None and self.initial > self.solubility
 
 
 @dataclass(frozen=True)
@@ -92,7 +111,10 @@ class Boundary:
 
     kind ``concentration``: surface C = K_face * value (value = fluid concentration);
     ``flux``: flux density *into* the body = value; ``mass_transfer``: flux into the body =
-    coefficient * (bulk - C_surface / K_face); ``symmetry``: zero flux.
+    coefficient * (bulk - C_surface / K_face); ``symmetry``: zero flux; ``compartment``: a
+    well-stirred fluid of ``volume`` (m^3) starting at concentration ``initial``, surface
+    C = K_face * C_compartment, first-order ``clearance`` (1/s) removing solute from the fluid
+    (a slab's compartment serves the problem's ``area``, a cylinder's its ``length``).
     ``partition`` overrides K_face (default: the partition of the layer at that face).
     The condition itself is the kind object ``condition`` (``worker.engine.boundaries``).
     """
@@ -102,6 +124,9 @@ class Boundary:
     coefficient: float = 0.0
     bulk: float = 0.0
     partition: float | None = None
+    volume: float = 0.0
+    initial: float = 0.0
+    clearance: float = 0.0
 
     @property
     def condition(self) -> BoundaryKind:
@@ -162,7 +187,36 @@ class Problem:
 
     @property
     def is_linear(self) -> bool:
-        return all(ly.reaction.is_linear for ly in self.layers)
+        """True when every layer's reaction is linear and no solubility can ever be reached
+        (:attr:`can_saturate`): then the transport equations are linear."""
+        return all(ly.reaction.is_linear for ly in self.layers) and not self.can_saturate
+
+    @property
+    def can_saturate(self) -> bool:
+        """True when some layer's dissolved solute can reach that layer's solubility.
+
+        With linear kinetics and no sources the largest fluid-equivalent level u = C/K over
+        the body never exceeds its largest initial or boundary value (the maximum principle
+        for parabolic equations: M.H. Protter, H.F. Weinberger, *Maximum Principles in
+        Differential Equations*, 1967, ch. 3); a layer with solubility S is never saturated
+        when K * max(u) <= S. A layer loaded above its solubility saturates at once; a face
+        that imposes an inflow is a source, and then any layer with a solubility counts as
+        able to saturate.
+        """
+        limited = [ly for ly in self.layers if ly.solubility is not None]
+        if not limited:
+            return False
+        levels = [ly.initial / ly.partition for ly in self.layers]
+        for boundary in (self.inner_boundary, self.outer_boundary):
+            inflow = boundary.condition.imposed_flux(boundary)
+            if inflow is not None and inflow > 0.0:
+                return True  # a source: no maximum principle
+            fluid = boundary.condition.fluid_concentration(boundary)
+            if fluid is not None:
+                levels.append(fluid)
+        top = max(levels)
+        return any(ly.partition * top > ly.solubility for ly in limited  # type: ignore[operator]
+                   )
 
     def face_partition(self, side: str) -> float:
         """Layer/fluid partition coefficient at the ``inner`` or ``outer`` face."""
