@@ -136,13 +136,15 @@ def _normalise(data: Mapping, basis: str) -> dict:
                 "reaction": _normalise_kind_object(
                     reaction, _REACTION_PARAMETERS[reaction["kind"]], basis
                 ),
-                "initial": (
-                    _si(layer["initial"], basis)
-                    if "initial" in layer
-                    else _zero("concentration", basis)
-                ),
             }
         )
+        if "loading" in layer:
+            layers[-1]["loading"] = _si(layer["loading"], basis)
+        else:
+            layers[-1]["initial"] = (_si(layer["initial"], basis) if "initial" in layer
+                                     else _zero("concentration", basis))
+        if "solubility" in layer:
+            layers[-1]["solubility"] = _si(layer["solubility"], basis)
     out["layers"] = layers
     for side in ("inner_boundary", "outer_boundary"):
         face = data[side]
@@ -182,7 +184,8 @@ def _problem(data: Mapping, basis: str) -> Problem:
                     kind=reaction["kind"],
                     **{key: _number(reaction, key) for key in parameters},
                 ),
-                initial=_number(layer, "initial"),
+                initial=_number(layer, "loading" if "loading" in layer else "initial"),
+                solubility=_optional_number(layer, "solubility"),
             )
         )
 
@@ -194,6 +197,9 @@ def _problem(data: Mapping, basis: str) -> Problem:
             coefficient=_number(face, "coefficient"),
             bulk=_number(face, "bulk"),
             partition=None if partition is None else float(partition),
+            volume=_number(face, "volume"),
+            initial=_number(face, "initial"),
+            clearance=_number(face, "clearance"),
         )
 
     regime = data["regime"]

@@ -23,6 +23,7 @@ from typing import Any, cast
 from marshmallow import RAISE, Schema, ValidationError, fields, validate
 
 from worker.engine.boundaries import BOUNDARIES, SYMMETRY, BoundaryKind
+from worker.engine.design.targets import COMPARTMENT
 from worker.engine.parameters import Parameter
 from worker.engine.reactions import REACTIONS, ReactionKind
 from worker.engine.units import (
@@ -434,6 +435,17 @@ class LayerSchema(StrictSchema):
         # No JSON Schema "default": a bare 0 has no unit, which the field itself refuses.
         metadata=_about("concentration in the layer at t = 0 (transient cases); absent: zero"),
     )
+    loading = _non_negative(
+        "concentration",
+        metadata=_about("solute per volume of layer at t = 0, dissolved and undissolved "
+                        "together (transient cases; instead of `initial`); above `solubility` "
+                        "the excess is undissolved and dissolves as the layer empties"),
+    )
+    solubility = _positive(
+        "concentration",
+        metadata=_about("saturation concentration of the dissolved solute in the layer "
+                        "(transient cases); absent: no limit"),
+    )
 
 
 #: One schema per boundary kind of ``worker.engine.boundaries`` (``FluxBoundarySchema``...).
@@ -462,6 +474,7 @@ REGIME_SCHEMAS: Mapping[str, type[Schema]] = {
     "steady": SteadyRegimeSchema,
     "transient": TransientRegimeSchema,
 }
+REGIME_NAMES = tuple(REGIME_SCHEMAS)
 
 
 def _at_most(limit: int, what: str) -> validate.Length:
@@ -861,6 +874,65 @@ def _probe_rules(data: Mapping) -> Iterator[tuple[str, str]]:
             )
 
 
+def _is_transient(data: Mapping) -> bool | None:
+    """True or False by the regime's kind; None when the regime did not load."""
+    regime = data.get("regime")
+    if not (isinstance(regime, Mapping) and regime.get("kind") in REGIME_NAMES):
+        return None
+    return bool(regime.get("kind") == "transient")
+
+
+def _loading_rules(data: Mapping) -> Iterator[tuple[str, str]]:
+    """A layer's ``initial`` and ``loading`` are alternatives; an ``initial`` above the
+    layer's ``solubility`` is refused (the solute beyond saturation is undissolved: state it as
+    ``loading``); ``loading`` and ``solubility`` belong to transient cases."""
+    layers = data.get("layers")
+    if not isinstance(layers, list):
+        return
+    transient = _is_transient(data)
+    for index, layer in enumerate(layers):
+        if not isinstance(layer, Mapping):
+            continue
+        path = f"layers[{index}]"
+        if "initial" in layer and "loading" in layer:
+            yield (f"{path}.loading", "initial and loading are alternatives (both are the "
+                                      "solute per volume of layer at t = 0): give one")
+        initial, solubility = _value(layer, "initial"), _value(layer, "solubility")
+        if initial is not None and solubility is not None and initial > solubility:
+            yield (f"{path}.initial", f"{initial!r} is above the layer's solubility "
+                                      f"{solubility!r} (SI units): a layer loaded beyond "
+                                      "saturation is stated with `loading` (dissolved and "
+                                      "undissolved together)")
+        if transient is False:
+            for key in ("loading", "solubility"):
+                if key in layer:
+                    yield (f"{path}.{key}", f"{key} is read only in transient cases (a steady "
+                                            "case has no initial content); remove it or make "
+                                            "the regime transient")
+
+
+def _compartment_rules(data: Mapping) -> Iterator[tuple[str, str]]:
+    """A compartment holds a finite fluid volume in time: transient cases only; its face area
+    must be known (a slab's ``area``, a cylinder's ``length``). A solid centre takes only
+    ``symmetry`` (:func:`_symmetry_rules`), so no compartment sits there."""
+    geometry, transient = data.get("geometry"), _is_transient(data)
+    for side in ("inner", "outer"):
+        face = data.get(f"{side}_boundary")
+        if not (isinstance(face, Mapping) and face.get("kind") == COMPARTMENT):
+            continue
+        path = f"{side}_boundary"
+        if transient is False:
+            yield (f"{path}.kind", "a compartment (a finite stirred volume) is read only in "
+                                   "transient cases; make the regime transient or use a "
+                                   "concentration or mass_transfer boundary")
+        if geometry == "slab" and "area" not in data:
+            yield ("area", f"{path} is a compartment: a slab case needs its `area` (the face "
+                           "area through which the compartment exchanges solute)")
+        if geometry == "cylinder" and "length" not in data:
+            yield ("length", f"{path} is a compartment: a cylinder case needs its `length` "
+                             "(the face area is 2 pi r length)")
+
+
 CASE_RULES = (
     _size_rules,
     _symmetry_rules,
@@ -868,6 +940,8 @@ CASE_RULES = (
     _basis_rules,
     _time_rules,
     _probe_rules,
+    _loading_rules,
+    _compartment_rules,
 )
 
 

@@ -135,6 +135,10 @@ def _requirements(items: list[Mapping], problem: Problem, reader: _Reader
                 reader.fail(f"{path}.layer", f"no layer is named {layer_name!r}; the layers "
                             "are " + ", ".join(repr(ly.name) for ly in problem.layers))
                 continue
+        wrong_layer = spec.layer_error(problem, layer)
+        if wrong_layer is not None:
+            reader.fail(f"{path}.layer", wrong_layer)
+            continue
         at = item["at"].value if "at" in item else None
         if spec.at_time and at is None:
             reader.fail(f"{path}.at", f"{name} is a series: give the time `at` it is bounded at")

@@ -202,6 +202,21 @@ class LayerMinimaSchema(OpenSchema):
     verified_by = fields.String(metadata={"description": "the check that compared the routes"})
 
 
+class LayerRowsSchema(OpenSchema):
+    """A value per listed layer at each requested time: one row per time (aligned with
+    ``series.time``), one value (or null) per layer named in ``layers``."""
+
+    values = NumbersOrRows(required=True)
+    unit = fields.String(required=True)
+    layers = fields.List(fields.String(), required=True,
+                         metadata={"description": "the layers the columns belong to"})
+    uncertainty = NumbersOrRows(metadata={
+        "description": "numerical uncertainty of each value, rows as ``values``"})
+    routes = fields.List(fields.String(), metadata={
+        "description": "the independent routes that produced and compared it"})
+    verified_by = fields.String(metadata={"description": "the check that compared the routes"})
+
+
 class SeriesSchema(OpenSchema):
     """Profiles and, for transient cases, time series."""
 
@@ -220,6 +235,17 @@ class SeriesSchema(OpenSchema):
     remaining = fields.Nested(ValuesSchema)
     concentration_min = fields.Nested(MinimumSchema)
     concentration_min_layers = fields.Nested(LayerMinimaSchema)
+    front_position = fields.Nested(LayerRowsSchema, metadata={
+        "description": "position (m) of the front of each layer loaded above its solubility: "
+                       "the edge of its undissolved region that has left its starting layer "
+                       "edge (the outer one where both have moved); null once that layer's "
+                       "undissolved solute is gone"})
+    front_position_inner = fields.Nested(LayerRowsSchema, metadata={
+        "description": "the inner edge of the undissolved region where both edges have moved"})
+    compartment_inner = fields.Nested(ValuesSchema, metadata={
+        "description": "concentration of the stirred compartment at the inner face"})
+    compartment_outer = fields.Nested(ValuesSchema, metadata={
+        "description": "concentration of the stirred compartment at the outer face"})
 
 
 class MethodSchema(StrictSchema):

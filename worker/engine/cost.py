@@ -18,11 +18,19 @@ What is counted (all estimates, deliberately on the safe side):
   first refinement; the same case drove an unlimited service to 11.6 GB.
 * ``time_steps``: implicit (BDF) steps of a transient check, ``STEPS_PER_DECADE`` per decade of
   time from the first requested time (or the mesh's diffusion time) to the duration plus the
-  continuation to steady state (``STEADY_HORIZON`` relaxation times).
+  continuation to steady state (``STEADY_HORIZON`` relaxation times). A layer loaded above its
+  solubility holds loading/solubility times the solute its dissolved capacity holds, and the
+  reserve empties about that much more slowly (T. Higuchi, J. Pharm. Sci. 50 (1961) 874: a
+  plane sheet of thickness L, loading A, solubility Cs empties in about A L^2 / (2 D Cs)); a
+  compartment's fluid adds its volume per face area to the capacity (its fluid-equivalent
+  thickness). Each dispersed layer's front is charged ``FRONT_STEP_FACTOR`` times the steps (the
+  dissolution switches on and off as the front passes each cell).
 * ``work``: unknown-iterations of the whole run: one check (cells times Newton iterations, or
   unknowns times steps), plus every sweep value (a full check each), the design limit's
   evaluations and the Monte Carlo trials (``max_trials``) times the cost of one trial by the
-  method the trial model uses.
+  method the trial model uses. A case with a dispersed load or a compartment has no batched or
+  scaled trial model (``Problem.is_linear`` is False for the first; the scaled series takes
+  neither): each trial is a full primary solve.
 
 The budgets are documented defaults (:data:`DEFAULT_BUDGETS`); a service may scale them
 (``FLUXPROOF_COST_BUDGET_SCALE``), never past the worker's memory and time limits it also sets.
@@ -41,7 +49,8 @@ from worker.engine.fv_mesh import (
     THIELE_CELL_LIMIT,
     boundary_concentration_scale,
 )
-from worker.engine.model import Problem
+from worker.engine.design.targets import COMPARTMENT
+from worker.engine.model import Boundary, Problem
 
 #: Implicit steps per decade of time of the transient integrators (rtol 1e-6, BDF orders 1-5):
 #: a generous count; measured runs take 20-60.
@@ -69,6 +78,10 @@ CLOSED_FORM_TRIAL_WORK = 20.0
 #: A batched finite-volume trial costs this fraction of a lone check's work (measured 0.33 ms
 #: batched against about 30 ms for the whole primary solve of a two-layer Michaelis-Menten slab).
 BATCHED_TRIAL_FRACTION = 0.02
+#: Steps charged to a transient check with a dissolution front, relative to one without: a
+#: generous allowance for the step-size cuts where the front crosses a cell (an estimate, not a
+#: measurement; the front solver's own figures replace it once measured).
+FRONT_STEP_FACTOR = 3.0
 
 
 @dataclass(frozen=True)
@@ -109,6 +122,9 @@ class CostEstimate:
     trials: int
     #: Index of the layer that asks for the most cells (the first layer to change).
     costliest_layer: int
+    #: The field (a dispersed layer's ``loading``, a compartment's ``volume``) whose capacity
+    #: sets a transient run's continuation to steady state beyond its duration; None otherwise.
+    horizon_field: str | None = None
 
     @property
     def monte_carlo_work(self) -> float:
@@ -149,17 +165,78 @@ def resolution_cells(problem: Problem) -> list[int]:
     return counts
 
 
+def has_dispersed_load(problem: Problem) -> bool:
+    """True when some layer starts loaded above its solubility."""
+    return any(ly.is_loaded_above_solubility for ly in problem.layers)
+
+
+def compartment_faces(problem: Problem) -> list[tuple[str, Boundary]]:
+    """``(side, boundary)`` of each face whose kind is a compartment."""
+    return [(side, b) for side, b in (("inner", problem.inner_boundary),
+                                      ("outer", problem.outer_boundary))
+            if b.kind == COMPARTMENT]
+
+
+def _face_area(problem: Problem, side: str) -> float | None:
+    """The face's area (m^2) as the compartment sees it: a slab's ``area``, a cylinder's
+    2 pi r ``length``, a sphere's 4 pi r^2; None where the case lacks the size."""
+    r = problem.inner if side == "inner" else problem.outer
+    if problem.geometry == "slab":
+        return problem.area
+    if problem.geometry == "cylinder":
+        return None if problem.length is None else math.tau * r * problem.length
+    return 2.0 * math.tau * r * r
+
+
+def _capacity(problem: Problem) -> float:
+    """Fluid-equivalent thickness (m) the run fills or empties: the layers' partition times
+    thickness, a dispersed layer's times loading/solubility, plus each compartment's volume per
+    face area."""
+    capacity = 0.0
+    for ly in problem.layers:
+        held = ly.partition * ly.thickness
+        if ly.is_loaded_above_solubility:
+            held *= ly.initial / ly.solubility  # type: ignore[operator]
+        capacity += held
+    for side, boundary in compartment_faces(problem):
+        area = _face_area(problem, side)
+        if area is not None and area > 0.0:
+            capacity += boundary.volume / area
+    return capacity
+
+
+def _horizon_field(problem: Problem) -> str | None:
+    """The dispersed loading or compartment volume that holds most of the capacity, where the
+    relaxation it sets outlasts the duration (:func:`_transient_steps`)."""
+    resistance = sum(ly.thickness / (ly.partition * ly.diffusivity) for ly in problem.layers)
+    if 40.0 * _capacity(problem) * resistance <= (problem.regime.duration or 0.0):
+        return None
+    shares: list[tuple[float, str]] = [
+        (ly.partition * ly.thickness * ly.initial / ly.solubility,  # type: ignore[operator]
+         f"layers[{j}].loading")
+        for j, ly in enumerate(problem.layers) if ly.is_loaded_above_solubility]
+    for side, boundary in compartment_faces(problem):
+        area = _face_area(problem, side)
+        if area is not None and area > 0.0:
+            shares.append((boundary.volume / area, f"{side}_boundary.volume"))
+    plain = sum(ly.partition * ly.thickness for ly in problem.layers)
+    biggest = max(shares, default=None)
+    return biggest[1] if biggest is not None and biggest[0] > plain else None
+
+
 def _transient_steps(problem: Problem) -> int:
     times = [t for t in problem.regime.times if t > 0.0]
     duration = problem.regime.duration or 0.0
     layer_time = min(ly.thickness ** 2 / ly.diffusivity for ly in problem.layers)
     first = min(times) if times else layer_time
     first = min(first, layer_time)
-    capacity = sum(ly.partition * ly.thickness for ly in problem.layers)
     resistance = sum(ly.thickness / (ly.partition * ly.diffusivity) for ly in problem.layers)
-    end = max(duration, 40.0 * capacity * resistance)
+    end = max(duration, 40.0 * _capacity(problem) * resistance)
     decades = max(1.0, math.log10(max(end, first) / first))
-    return math.ceil(STEPS_PER_DECADE * min(decades, 60.0))
+    steps = STEPS_PER_DECADE * min(decades, 60.0)
+    if has_dispersed_load(problem):
+        steps *= FRONT_STEP_FACTOR
+    return math.ceil(steps)
 
 
 def _transient_cells(problem: Problem, wanted: list[int]) -> int:
@@ -200,7 +277,8 @@ def estimate_cost(problem: Problem, design: DesignRequest | None = None) -> Cost
         trial = CLOSED_FORM_TRIAL_WORK
     elif problem.regime.kind == "steady":
         trial = BATCHED_TRIAL_FRACTION * check_work
-    elif len(problem.layers) == 1 and not problem.layers[0].reaction.reacts:
+    elif (len(problem.layers) == 1 and not problem.layers[0].reaction.reacts
+          and problem.layers[0].solubility is None and not compartment_faces(problem)):
         trial = SCALED_SERIES_TRIAL_WORK
     else:
         trial = check_work
@@ -209,7 +287,9 @@ def estimate_cost(problem: Problem, design: DesignRequest | None = None) -> Cost
     trials = design.uncertainty.max_trials if design.uncertainty else 0
     return CostEstimate(solve_cells=cells, collocation_entries=collocation, time_steps=steps,
                         check_work=check_work, sweep_work=sweep, limit_work=limit,
-                        trial_work=trial, trials=trials, costliest_layer=costliest)
+                        trial_work=trial, trials=trials, costliest_layer=costliest,
+                        horizon_field=(_horizon_field(problem)
+                                       if problem.regime.kind == "transient" else None))
 
 
 def _times_over(value: float, budget: float) -> str:
@@ -236,6 +316,10 @@ def over_budget(estimate: CostEstimate, budgets: Budgets = DEFAULT_BUDGETS,
         advice = ("start the requested times later or shorten regime.duration (the integration "
                   "spans every decade from the first time to steady state)"
                   if regime == "transient" else "use fewer layers or a less steep reaction")
+        if regime == "transient" and estimate.horizon_field is not None:
+            advice += (f"; the run to steady state is set here by {estimate.horizon_field} "
+                       "(a loading far above solubility, or a large compartment, empties "
+                       "slowly): a smaller value shortens it")
         found.append(Overrun(path, (
             f"one check would take about {_times_over(estimate.check_work, budgets.work)} "
             f"unknown-iterations: {advice}")))

@@ -9,8 +9,9 @@ weight) are this module's own code. A slip in either reading of the case then sh
 disagreement between the methods, and field by field in the ``inputs.interpretation`` check.
 
 Defaults applied here, as the case format states them (README "The case"): a layer's name
-``layer <i+1>``, partition 1, initial concentration 0, reaction ``none``; a boundary's partition
-falls back to that of the layer at its face.
+``layer <i+1>``, partition 1, initial concentration 0 (``loading`` stands in for ``initial``),
+no solubility limit, reaction ``none``; a boundary's partition falls back to that of the layer at
+its face; a compartment's starting concentration and clearance are 0.
 """
 
 from __future__ import annotations
@@ -98,6 +99,7 @@ BOUNDARY_FIELDS: Mapping[str, Mapping[str, str]] = {
     "flux": {"value": "flux"},
     "mass_transfer": {"coefficient": "velocity", "bulk": "concentration"},
     "symmetry": {},
+    "compartment": {"volume": "volume", "initial": "concentration", "clearance": "rate_constant"},
 }
 
 
@@ -262,7 +264,10 @@ def build_independent_problem(document: Mapping[str, Any]) -> IndependentProblem
     layers = []
     for index, spec in enumerate(document["layers"]):
         path = f"layers[{index}]"
+        # ``loading`` and ``initial`` are alternatives (the case rules refuse both): either is
+        # the layer's content at t = 0, dissolved and undissolved together.
         initial = reader.optional(spec, "initial", "concentration", f"{path}.")
+        loading = reader.optional(spec, "loading", "concentration", f"{path}.")
         layers.append(Layer(
             name=str(spec.get("name", f"layer {index + 1}")),
             thickness=reader.read(spec["thickness"], "length", f"{path}.thickness"),
@@ -270,7 +275,8 @@ def build_independent_problem(document: Mapping[str, Any]) -> IndependentProblem
             partition=_partition(spec),
             reaction=_reaction(reader, spec.get("reaction", {"kind": "none"}),
                                f"{path}.reaction"),
-            initial=0.0 if initial is None else initial,
+            initial=loading if loading is not None else (0.0 if initial is None else initial),
+            solubility=reader.optional(spec, "solubility", "concentration", f"{path}."),
         ))
     inner_boundary = _boundary(reader, document["inner_boundary"], "inner_boundary")
     outer_boundary = _boundary(reader, document["outer_boundary"], "outer_boundary")

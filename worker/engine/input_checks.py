@@ -53,7 +53,7 @@ __all__ = [
 _INDEX_RE = re.compile(r"\[(\d+)\]")
 #: The reaction parameters compared (every field of ``model.Reaction`` but its kind).
 _REACTION_PARAMETERS = ("rate", "rate_constant", "vmax", "km")
-_BOUNDARY_PARAMETERS = ("value", "coefficient", "bulk")
+_BOUNDARY_PARAMETERS = ("value", "coefficient", "bulk", "volume", "initial", "clearance")
 
 
 def relative_difference(a: Any, b: Any) -> float:
@@ -205,6 +205,7 @@ def _field_pairs(primary: Problem, independent: Problem) -> list[tuple[str, Any,
                  (f"layers[{i}].diffusivity", a.diffusivity, b.diffusivity),
                  (f"layers[{i}].partition", a.partition, b.partition),
                  (f"layers[{i}].initial", a.initial, b.initial),
+                 (f"layers[{i}].solubility", a.solubility, b.solubility),
                  (f"layers[{i}].reaction.kind", a.reaction.kind, b.reaction.kind)]
         rows += [(f"layers[{i}].reaction.{key}", getattr(a.reaction, key),
                   getattr(b.reaction, key)) for key in _REACTION_PARAMETERS]

@@ -6,7 +6,8 @@ the model's attribute names (``schemas.build``), so a path reads and replaces on
 ``Problem``, one of its ``Layer``s, that layer's ``Reaction`` or a face's ``Boundary``:
 
 * ``inner``, ``length``, ``area``;
-* ``layers[i].thickness`` | ``diffusivity`` | ``partition`` | ``initial``;
+* ``layers[i].thickness`` | ``diffusivity`` | ``partition`` | ``initial`` | ``loading`` (the
+  same attribute, ``Layer.initial``) | ``solubility`` (where the case gives one);
 * ``layers[i].reaction.<p>``, ``p`` a parameter the layer's reaction kind declares
   (``worker.engine.reactions``: ``rate``, ``rate_constant``, ``vmax``, ``km``);
 * ``inner_boundary.<p>`` / ``outer_boundary.<p>``, ``p`` a parameter the face's boundary kind
@@ -45,7 +46,12 @@ LAYER_FIELDS: Mapping[str, Parameter] = {
     "diffusivity": Parameter("diffusivity", "diffusivity", "positive"),
     "partition": Parameter("partition", None, "positive"),
     "initial": Parameter("initial", "concentration", "non_negative"),
+    "loading": Parameter("loading", "concentration", "non_negative"),
+    "solubility": Parameter("solubility", "concentration", "positive"),
 }
+#: Layer fields whose model attribute has another name: the case's ``loading`` is the layer's
+#: content at t = 0, ``Layer.initial``, as the case's ``initial`` is.
+LAYER_ATTRIBUTES: Mapping[str, str] = {"loading": "initial"}
 #: Fields of the problem itself. ``inner`` is a position: a slab's may be any number, a radius
 #: is >= 0 (``worker.engine.exact_steady.validate_problem``).
 PROBLEM_FIELDS: Mapping[str, Parameter] = {
@@ -97,7 +103,8 @@ class FieldRef:
 
 
 def _expected_paths() -> str:
-    return ("inner, length, area, layers[i].<thickness|diffusivity|partition|initial>, "
+    return ("inner, length, area, "
+            "layers[i].<thickness|diffusivity|partition|initial|loading|solubility>, "
             "layers[i].reaction.<parameter>, inner_boundary.<parameter> or "
             "outer_boundary.<parameter>")
 
@@ -162,6 +169,9 @@ def _parameter(problem: Problem, ref: FieldRef) -> Parameter:
         raise FieldPathError(ref.path, f"layers[{ref.layer}]: the case has {count} "
                              f"layer{'s' if count != 1 else ''}")
     if ref.part == "layer":
+        if ref.name == "solubility" and problem.layers[ref.layer].solubility is None:
+            raise FieldPathError(ref.path, f"layers[{ref.layer}] has no solubility (no limit): "
+                                 "the case gives none to vary")
         return LAYER_FIELDS[ref.name]
     law = problem.layers[ref.layer].reaction.law
     for parameter in law.parameters:
@@ -211,8 +221,9 @@ def value_of(problem: Problem, ref: FieldRef) -> float:
         return float(getattr(_boundary(problem, ref.part), ref.name))
     assert ref.layer is not None
     layer = problem.layers[ref.layer]
-    holder = layer if ref.part == "layer" else layer.reaction
-    return float(getattr(holder, ref.name))
+    if ref.part == "layer":
+        return float(getattr(layer, LAYER_ATTRIBUTES.get(ref.name, ref.name)))
+    return float(getattr(layer.reaction, ref.name))
 
 
 def with_values(problem: Problem, values: Mapping[FieldRef, float]) -> Problem:
@@ -238,8 +249,11 @@ def replaced(problem: Problem, values: Mapping[FieldRef, Any]) -> Problem:
             boundary_changes.setdefault(ref.part, {})[ref.name] = value
         else:
             assert ref.layer is not None
-            target = layer_changes if ref.part == "layer" else reaction_changes
-            target.setdefault(ref.layer, {})[ref.name] = value
+            if ref.part == "layer":
+                name = LAYER_ATTRIBUTES.get(ref.name, ref.name)
+                layer_changes.setdefault(ref.layer, {})[name] = value
+            else:
+                reaction_changes.setdefault(ref.layer, {})[ref.name] = value
     changes: dict[str, Any] = dict(top)
     if layer_changes or reaction_changes:
         layers: list[Layer] = list(problem.layers)

@@ -27,7 +27,7 @@ MET, NOT_MET, INDETERMINATE, NONE_STATED = "met", "not_met", "indeterminate", "n
 
 
 #: Scalar quantities that are event times: absent from the record when not reached in the run.
-EVENT_TIMES = frozenset({"t50", "t90", "time_lag", "time_to_steady"})
+EVENT_TIMES = frozenset({"t50", "t90", "time_lag", "time_to_steady", "time_depleted"})
 
 
 @dataclass(frozen=True)
@@ -119,10 +119,29 @@ class Figure(Protocol):
     @property
     def at(self) -> float | None: ...
 
+    @property
+    def layer_name(self) -> str | None: ...
+
 
 def _item(row, index: int):
     """``row[index]`` of a per-layer row, None where there is none."""
     return row[index] if isinstance(row, list) and index < len(row) else None
+
+
+def _listed_column(entry: Mapping, figure: Figure) -> tuple[int | None, str | None]:
+    """The column of ``figure``'s layer in an entry that lists its layers by name (``"layers"``:
+    ``front_position``, ``time_depleted_layers``): (column, None), or (None, why not). With no
+    layer named, the one listed layer's column."""
+    listed = entry.get("layers")
+    names = list(listed) if isinstance(listed, list) else []
+    if figure.layer is None:
+        if len(names) == 1:
+            return 0, None
+        return None, f"the record lists {len(names)} layers for {figure.quantity}: name one"
+    name = figure.layer_name
+    if name in names:
+        return names.index(name), None
+    return None, f"the record gives no {figure.quantity} for the layer {name!r}"
 
 
 def read_figure(figure: Figure, quantities: Mapping, series: Mapping,
@@ -131,10 +150,16 @@ def read_figure(figure: Figure, quantities: Mapping, series: Mapping,
     ``quantities`` and ``series``.
 
     A per-layer extreme reads ``<quantity>_layers`` at the layer's index; a series quantity reads
-    its value at the time ``at`` (which the run adds to its output times).
+    its value at the time ``at`` (which the run adds to its output times). An entry that lists
+    its own layers by name (``"layers"``: ``front_position``, ``time_depleted_layers``) is read
+    at the named layer's place in that list. A per-layer event time (``time_depleted``) that is
+    null was not reached within the run.
     """
     name = figure.quantity
     if figure.at is not None:
+        own = series.get(name)
+        if isinstance(own, Mapping) and "layers" in own:
+            return _read_listed_series(figure, own, series)
         series_name = name if figure.layer is None else f"{name}_layers"
         entry = series.get(series_name)
         times = series.get("time", {}).get("values", [])
@@ -156,7 +181,14 @@ def read_figure(figure: Figure, quantities: Mapping, series: Mapping,
         entry = quantities.get(f"{name}_layers")
         if not isinstance(entry, Mapping):
             return Reading(None, missing=f"the record has no {name}_layers")
-        value, band = _entry_value(entry, figure.layer)
+        index: int | None = figure.layer
+        if "layers" in entry:
+            index, why = _listed_column(entry, figure)
+            if index is None:
+                return Reading(None, missing=why)
+        value, band = _entry_value(entry, index)
+        if value is None and name in EVENT_TIMES and duration is not None:
+            return Reading(None, beyond=duration)
         return Reading(value, band)
     entry = quantities.get(name)
     if not isinstance(entry, Mapping) or entry.get("value") is None:
@@ -165,6 +197,25 @@ def read_figure(figure: Figure, quantities: Mapping, series: Mapping,
         return Reading(None, missing=f"the record has no {name}")
     value, band = _entry_value(entry, None)
     return Reading(value, band)
+
+
+def _read_listed_series(figure: Figure, entry: Mapping, series: Mapping) -> Reading:
+    """A series whose rows hold one value per listed layer (``front_position``), at ``at``."""
+    column, why = _listed_column(entry, figure)
+    if column is None:
+        return Reading(None, missing=why)
+    times = series.get("time", {}).get("values", [])
+    hits = [i for i, t in enumerate(times) if math.isclose(t, figure.at, rel_tol=1e-12)]
+    if not hits:
+        return Reading(None, missing=f"the series {figure.quantity} has no value at "
+                                     f"{figure.at} s")
+    values, bands = entry.get("values", []), entry.get("uncertainty")
+    value = _item(_item(values, hits[0]), column)
+    band = _item(_item(bands, hits[0]), column)
+    if value is None:
+        return Reading(None, missing=f"no {figure.quantity} at {figure.at} s: the layer holds "
+                                     "no undissolved solute then")
+    return Reading(float(value), None if band is None else float(band))
 
 
 def judge(requirement: Requirement, reading: Reading) -> dict:

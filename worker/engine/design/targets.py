@@ -22,6 +22,14 @@ transient (``worker.engine.transient.record``)
     record's measure: per m^2 of a slab without ``area``, per m of a cylinder without
     ``length``), and ``concentration_min`` (the true minimum over the body or a layer, at time
     ``at``).
+dispersed drug (a layer loaded above its solubility, ``Layer.is_loaded_above_solubility``)
+    ``time_depleted`` (s: when the last undissolved solute is gone; with a loaded layer, when
+    that layer's is gone; absent when not within the duration) and the series
+    ``front_position`` (m, at a time ``at``: the edge of a loaded layer's undissolved region;
+    the layer must be named where several are loaded). Only loaded layers take these.
+compartments (a face of kind ``compartment``)
+    the series ``compartment_inner`` / ``compartment_outer`` (the stirred fluid's concentration
+    at a time ``at``).
 
 Not offered: the list-valued ``thiele_modulus`` and the membrane ``time_lag``.
 """
@@ -35,7 +43,10 @@ from worker.engine.model import Problem
 from worker.engine.transient.scales import size_factor
 from worker.engine.transient.uptake import releases
 
-__all__ = ["QuantitySpec", "Target", "TargetError", "check_target", "quantities",
+#: The boundary kind of a well-stirred finite volume at a face (``worker.engine.boundaries``).
+COMPARTMENT = "compartment"
+
+__all__ = ["COMPARTMENT", "QuantitySpec", "Target", "TargetError", "check_target", "quantities",
            "target_dimension"]
 
 
@@ -57,6 +68,29 @@ class QuantitySpec:
     dimension: str
     per_layer: bool = False
     at_time: bool = False
+    #: The layers (indices) it may be limited to; None: any layer.
+    layers: tuple[int, ...] | None = None
+    #: True when a layer must be named (several layers hold the quantity, no case-wide value).
+    layer_required: bool = False
+
+    def layer_error(self, problem: Problem, layer: int | None) -> str | None:
+        """Why ``layer`` (an index, or None for none named) does not suit this quantity in
+        ``problem``; None when it does. The layer index is taken to be in range."""
+        if layer is None:
+            if self.layer_required:
+                return (f"{self.quantity} is given per layer here: name one of the layers "
+                        f"{self._layer_names(problem)}")
+            return None
+        if not self.per_layer:
+            return f"{self.quantity} is not given per layer"
+        if self.layers is not None and layer not in self.layers:
+            return (f"{self.quantity} is given only for the layers {self._layer_names(problem)}"
+                    f", not {problem.layers[layer].name!r}")
+        return None
+
+    def _layer_names(self, problem: Problem) -> str:
+        indices = range(len(problem.layers)) if self.layers is None else self.layers
+        return ", ".join(repr(problem.layers[j].name) for j in indices)
 
 
 @dataclass(frozen=True)
@@ -131,6 +165,15 @@ def _transient(problem: Problem) -> list[QuantitySpec]:
               QuantitySpec("released_outer", amount, at_time=True),
               QuantitySpec("remaining", amount, at_time=True),
               QuantitySpec("concentration_min", "concentration", per_layer=True, at_time=True)]
+    loaded = tuple(j for j, ly in enumerate(problem.layers) if ly.is_loaded_above_solubility)
+    if loaded:
+        specs += [QuantitySpec("time_depleted", "time", per_layer=True, layers=loaded),
+                  QuantitySpec("front_position", "length", per_layer=True, at_time=True,
+                               layers=loaded, layer_required=len(loaded) > 1)]
+    for side in ("inner", "outer"):
+        boundary = problem.inner_boundary if side == "inner" else problem.outer_boundary
+        if boundary.kind == COMPARTMENT:
+            specs.append(QuantitySpec(f"compartment_{side}", "concentration", at_time=True))
     return specs
 
 
@@ -159,6 +202,9 @@ def check_target(problem: Problem, target: Target) -> Target:
             raise TargetError(target.key, f"layers[{target.layer}]: the case has {count} "
                               f"layer{'s' if count != 1 else ''}")
         name = problem.layers[target.layer].name
+    wrong_layer = spec.layer_error(problem, target.layer)
+    if wrong_layer is not None:
+        raise TargetError(target.key, wrong_layer)
     if spec.at_time:
         if target.at is None:
             raise TargetError(target.key, f"{target.quantity} is a series: give the time 'at'")

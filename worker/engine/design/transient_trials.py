@@ -11,6 +11,7 @@ Three ways, the fastest that applies:
   and extremes (times C0); t50 = tau50 L^2 / D with tau50 found once by the record's own
   root search (``scales.first_crossing``) on the unit series. The extremes of these bodies lie
   at a face, the centre or the mid-plane of the sheet, all of them profile points.
+  Not for a layer with a solubility nor a compartment face.
 * **series per trial**: other single-layer linear cases, the series of the record
   (``solve.series_on_scan``: the requested times with the event scan) trial by trial, where it
   converges at every requested time, as ``run_transient`` then takes it as primary.
@@ -30,7 +31,7 @@ import numpy as np
 
 from worker.engine.design.paths import FieldRef, replaced, with_values
 from worker.engine.design.requirements import read_figure
-from worker.engine.design.targets import Target
+from worker.engine.design.targets import COMPARTMENT, Target
 from worker.engine.model import Layer, Problem, Regime
 from worker.engine.transient import exact_series
 from worker.engine.transient.record import PROFILE_POINTS_PER_LAYER
@@ -38,7 +39,7 @@ from worker.engine.transient.run import run_transient
 from worker.engine.transient.scales import first_crossing, size_factor
 from worker.engine.transient.solve import requested_times, series_on_scan
 
-__all__ = ["scaled_series_applies", "transient_targets"]
+__all__ = ["scaled_series_applies", "series_trial_applies", "transient_targets"]
 
 #: Event scan of the unit body in tau = D t / L^2 (log-spaced), far past 90 % release.
 TAU_SCAN = (1e-4, 1e2, 2000)
@@ -48,8 +49,16 @@ _SCALED_FIELDS = {("layer", "thickness"), ("layer", "diffusivity"), ("layer", "i
 
 
 def scaled_series_applies(problem: Problem, fields: Sequence[FieldRef]) -> bool:
-    """True when every trial is the unit body's series rescaled (see the module docstring)."""
+    """True when every trial is the unit body's series rescaled (see the module docstring).
+
+    Never for a layer with a solubility (a trial may load it above saturation, where the
+    series, which knows no solubility, does not hold) nor for a compartment face (neither a
+    sink nor sealed: its level follows the release)."""
     if len(problem.layers) != 1 or problem.layers[0].reaction.reacts:
+        return False
+    if problem.layers[0].solubility is not None:
+        return False
+    if any(b.kind == COMPARTMENT for b in (problem.inner_boundary, problem.outer_boundary)):
         return False
     if problem.geometry != "slab" and not problem.solid_centre:
         return False
@@ -186,10 +195,19 @@ def _one_trial(problem: Problem, targets: Sequence[Target]) -> np.ndarray:
         problem = dataclasses.replace(problem, regime=dataclasses.replace(problem.regime,
                                                                           times=times))
         requested, duration = requested_times(problem)
-    row = _series_trial(problem, targets, requested, duration)
-    if row is not None:
-        return row
+    if series_trial_applies(problem):
+        row = _series_trial(problem, targets, requested, duration)
+        if row is not None:
+            return row
     return _full_trial(problem, targets)
+
+
+def series_trial_applies(problem: Problem) -> bool:
+    """True when a trial may be read from the eigenfunction series: linear transport
+    (``Problem.is_linear``: no layer that can saturate) and no compartment face (the series
+    knows neither). Otherwise each trial is a full primary solve."""
+    return problem.is_linear and not any(
+        b.kind == COMPARTMENT for b in (problem.inner_boundary, problem.outer_boundary))
 
 
 def _series_trial(problem: Problem, targets: Sequence[Target], requested: np.ndarray,

@@ -133,4 +133,9 @@ def test_the_written_out_kind_fields_match_the_registries():
     assert declared == {k: dict(v) for k, v in REACTION_FIELDS.items()}
     declared = {name: {p.name: p.dimension for p in kind.parameters if p.dimension}
                 for name, kind in BOUNDARIES.items()}
-    assert declared == {k: dict(v) for k, v in BOUNDARY_FIELDS.items()}
+    written = {k: dict(v) for k, v in BOUNDARY_FIELDS.items()}
+    # The compartment kind (issue 14) is written out here ahead of its module; once the
+    # registry holds it, the two lists must agree on it as on every other kind.
+    if "compartment" not in BOUNDARIES:
+        del written["compartment"]
+    assert declared == written

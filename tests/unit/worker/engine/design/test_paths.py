@@ -59,7 +59,8 @@ def test_paths_parse_and_print_back(path, ref):
                                  "instead"),
     ("length", "length applies to a cylinder; the case is a slab"),
     ("layers[0].name", "a layer has no numeric field 'name'; expected one of: thickness, "
-                       "diffusivity, partition, initial or reaction.<parameter>"),
+                       "diffusivity, partition, initial, loading, solubility or "
+                       "reaction.<parameter>"),
     ("layers[0].thickness.value", "layers[0].thickness has no fields; expected "
                                   "layers[0].reaction.<parameter>"),
     ("inner_boundary", "expected inner_boundary.<parameter of its kind>"),
