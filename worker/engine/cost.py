@@ -43,14 +43,16 @@ from dataclasses import dataclass, replace
 
 from worker.engine.bvp_steady import BVP_MAX_JACOBIAN_ENTRIES, BVP_MAX_NODES
 from worker.engine.design.request import DesignRequest
+from worker.engine.design.sampling import default_block_size
+from worker.engine.design.targets import COMPARTMENT
 from worker.engine.fv_mesh import (
     MIN_CELLS_PER_LAYER,
     RESISTANCE_CELLS,
     THIELE_CELL_LIMIT,
     boundary_concentration_scale,
 )
-from worker.engine.design.targets import COMPARTMENT
 from worker.engine.model import Boundary, Problem
+from worker.engine.transient.solve import STEADY_HORIZON
 
 #: Implicit steps per decade of time of the transient integrators (rtol 1e-6, BDF orders 1-5):
 #: a generous count; measured runs take 20-60.
@@ -125,6 +127,8 @@ class CostEstimate:
     #: The field (a dispersed layer's ``loading``, a compartment's ``volume``) whose capacity
     #: sets a transient run's continuation to steady state beyond its duration; None otherwise.
     horizon_field: str | None = None
+    #: The fewest trials the case's Monte Carlo can stop at (two blocks); 0 without one.
+    least_trials: int = 0
 
     @property
     def monte_carlo_work(self) -> float:
@@ -205,11 +209,19 @@ def _capacity(problem: Problem) -> float:
     return capacity
 
 
+def relaxation_time(problem: Problem) -> float:
+    """Capacity (:func:`_capacity`, m) times the layers' resistance in series
+    (sum L / (K D), s/m): the time scale (s) on which the body fills or empties, dispersed
+    reserve and compartments included; the estimate follows the run for ``STEADY_HORIZON``
+    of them."""
+    resistance = sum(ly.thickness / (ly.partition * ly.diffusivity) for ly in problem.layers)
+    return _capacity(problem) * resistance
+
+
 def _horizon_field(problem: Problem) -> str | None:
     """The dispersed loading or compartment volume that holds most of the capacity, where the
     relaxation it sets outlasts the duration (:func:`_transient_steps`)."""
-    resistance = sum(ly.thickness / (ly.partition * ly.diffusivity) for ly in problem.layers)
-    if 40.0 * _capacity(problem) * resistance <= (problem.regime.duration or 0.0):
+    if STEADY_HORIZON * relaxation_time(problem) <= (problem.regime.duration or 0.0):
         return None
     shares: list[tuple[float, str]] = [
         (ly.partition * ly.thickness * ly.initial / ly.solubility,  # type: ignore[operator]
@@ -230,8 +242,7 @@ def _transient_steps(problem: Problem) -> int:
     layer_time = min(ly.thickness ** 2 / ly.diffusivity for ly in problem.layers)
     first = min(times) if times else layer_time
     first = min(first, layer_time)
-    resistance = sum(ly.thickness / (ly.partition * ly.diffusivity) for ly in problem.layers)
-    end = max(duration, 40.0 * _capacity(problem) * resistance)
+    end = max(duration, STEADY_HORIZON * relaxation_time(problem))
     decades = max(1.0, math.log10(max(end, first) / first))
     steps = STEPS_PER_DECADE * min(decades, 60.0)
     if has_dispersed_load(problem):
@@ -285,11 +296,13 @@ def estimate_cost(problem: Problem, design: DesignRequest | None = None) -> Cost
     sweep = len(design.sweep.values) * check_work if design.sweep else 0.0
     limit = LIMIT_EVALUATIONS * trial if design.limit else 0.0
     trials = design.uncertainty.max_trials if design.uncertainty else 0
+    least = 2 * default_block_size(design.uncertainty.coverage) if design.uncertainty else 0
     return CostEstimate(solve_cells=cells, collocation_entries=collocation, time_steps=steps,
                         check_work=check_work, sweep_work=sweep, limit_work=limit,
                         trial_work=trial, trials=trials, costliest_layer=costliest,
                         horizon_field=(_horizon_field(problem)
-                                       if problem.regime.kind == "transient" else None))
+                                       if problem.regime.kind == "transient" else None),
+                        least_trials=least)
 
 
 def _times_over(value: float, budget: float) -> str:
@@ -341,8 +354,15 @@ def over_budget(estimate: CostEstimate, budgets: Budgets = DEFAULT_BUDGETS,
     remaining -= estimate.limit_work
     if estimate.monte_carlo_work > remaining:
         most = int(remaining // estimate.trial_work) if estimate.trial_work > 0 else 0
+        if most >= estimate.least_trials:
+            advice = f"ask for at most {most} trials"
+        else:
+            advice = (f"at most {most} fit, fewer than the {estimate.least_trials} the "
+                      "adaptive Monte Carlo needs (each trial of this case is a full check): "
+                      "drop the uncertainty block (a sweep or design_limit over the uncertain "
+                      "input takes far fewer checks) or lighten the case")
         found.append(Overrun("uncertainty.max_trials", (
             f"{estimate.trials} trials would take about "
-            f"{_times_over(estimate.monte_carlo_work, remaining)} unknown-iterations: ask for "
-            f"at most {most} trials")))
+            f"{_times_over(estimate.monte_carlo_work, remaining)} unknown-iterations: "
+            f"{advice}")))
     return found
