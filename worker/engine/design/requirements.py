@@ -204,8 +204,10 @@ def _read_listed_series(figure: Figure, entry: Mapping, series: Mapping) -> Read
     column, why = _listed_column(entry, figure)
     if column is None:
         return Reading(None, missing=why)
+    at = figure.at
+    assert at is not None  # a series figure (read_figure's branch)
     times = series.get("time", {}).get("values", [])
-    hits = [i for i, t in enumerate(times) if math.isclose(t, figure.at, rel_tol=1e-12)]
+    hits = [i for i, t in enumerate(times) if math.isclose(t, at, rel_tol=1e-12)]
     if not hits:
         return Reading(None, missing=f"the series {figure.quantity} has no value at "
                                      f"{figure.at} s")

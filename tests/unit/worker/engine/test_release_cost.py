@@ -29,8 +29,8 @@ from worker.engine.cost import (
     over_budget,
     relaxation_time,
 )
-from worker.engine.design.transient_trials import scaled_series_applies, series_trial_applies
 from worker.engine.design.paths import parse_field
+from worker.engine.design.transient_trials import scaled_series_applies, series_trial_applies
 from worker.engine.model import Boundary
 
 #: Invented: a plane coating loaded above its solubility, releasing into a sink.
