@@ -62,6 +62,8 @@ CHECK_NAMES = (
     "gci",
     "non_negativity",
     "bracket",
+    "convergence",
+    "compartment",
 )
 #: Quantity names include digits (``t50``), so the part after the dot may hold them.
 TOLERANCE_KEY_PATTERN = r"^[a-z_]+(\.[a-z0-9_]+)?$"
@@ -898,7 +900,11 @@ def _loading_rules(data: Mapping) -> Iterator[tuple[str, str]]:
             yield (f"{path}.loading", "initial and loading are alternatives (both are the "
                                       "solute per volume of layer at t = 0): give one")
         initial, solubility = _value(layer, "initial"), _value(layer, "solubility")
-        if initial is not None and solubility is not None and initial > solubility:
+        same_basis = (isinstance(layer.get("initial"), SIValue)
+                      and isinstance(layer.get("solubility"), SIValue)
+                      and layer["initial"].basis == layer["solubility"].basis)
+        if same_basis and initial is not None and solubility is not None \
+                and initial > solubility:  # across bases the basis rule speaks
             yield (f"{path}.initial", f"{initial!r} is above the layer's solubility "
                                       f"{solubility!r} (SI units): a layer loaded beyond "
                                       "saturation is stated with `loading` (dissolved and "

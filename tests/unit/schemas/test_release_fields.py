@@ -128,6 +128,15 @@ def test_loading_and_solubility_are_refused_in_a_steady_case(key):
 
 def test_one_basis_per_case_covers_the_new_fields():
     _only_error(_doc(solubility="1 mol/m^3"), "layers[0].solubility", "one concentration basis")
+    # an initial in another basis is not compared with the solubility: the basis rule speaks
+    errors = _errors(_doc(loading=None, initial="1 mol/m^3", solubility="0.5 mg/mL"))
+    assert [e["path"] for e in errors] == ["layers[0].solubility", "outer_boundary.value"]
+    assert all("one concentration basis" in e["message"] for e in errors)
+
+
+@pytest.mark.parametrize("key", ["compartment.equilibrium", "convergence.time"])
+def test_the_release_checks_limits_may_be_overridden(key):
+    assert validate_case({**COATING, "tolerances": {key: 1e-6}}).problem.tolerances == {key: 1e-6}
 
 
 def test_the_second_layer_is_named_in_its_errors():
