@@ -53,7 +53,7 @@ __all__ = [
 _INDEX_RE = re.compile(r"\[(\d+)\]")
 #: The reaction parameters compared (every field of ``model.Reaction`` but its kind).
 _REACTION_PARAMETERS = ("rate", "rate_constant", "vmax", "km")
-_BOUNDARY_PARAMETERS = ("value", "coefficient", "bulk")
+_BOUNDARY_PARAMETERS = ("value", "coefficient", "bulk", "volume", "initial", "clearance")
 
 
 def relative_difference(a: Any, b: Any) -> float:
