@@ -9,13 +9,12 @@ volume) per measure, the fraction of the final exchange reached at time t is
 
     M_t / M_inf = 1 - sum_n B_n exp(-D q_n^2 t / a^2),
 
-========  =================================  =====================================  ==========
-geometry  B_n                                q_n: positive roots of                 Crank
-========  =================================  =====================================  ==========
-plane     2 alpha(1+alpha)/(1+alpha+alpha^2 q^2)    tan q = -alpha q                §4.3.5, eqs. 4.37-4.38
-cylinder  4 alpha(1+alpha)/(4+4alpha+alpha^2 q^2)   alpha q J0(q) + 2 J1(q) = 0     §5.3.4
-sphere    6 alpha(1+alpha)/(9+9alpha+alpha^2 q^2)   tan q = 3q/(3 + alpha q^2)      §6.3.4, eq. 6.30
-========  =================================  =====================================  ==========
+* plane sheet (Crank §4.3.5, eqs. 4.37-4.38): B_n = 2 alpha (1 + alpha) /
+  (1 + alpha + alpha^2 q_n^2), q_n the positive roots of tan q = -alpha q;
+* cylinder (Crank §5.3.4): B_n = 4 alpha (1 + alpha) / (4 + 4 alpha + alpha^2 q_n^2),
+  alpha q J0(q) + 2 J1(q) = 0;
+* sphere (Crank §6.3.4, eq. 6.30): B_n = 6 alpha (1 + alpha) / (9 + 9 alpha + alpha^2 q_n^2),
+  tan q = 3 q / (3 + alpha q^2)
 
 (equation numbers from memory; the forms are checked in the tests against their alpha -> inf
 limits, Crank's sink solutions eqs. 4.18, 5.23, 6.20, and against the method of lines and the

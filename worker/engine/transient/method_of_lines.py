@@ -154,7 +154,7 @@ class _CompartmentFace:
 
 def _compartment_couplings(problem: Problem, system: _Rhs) -> list[_CompartmentFace]:
     """The compartment faces of ``problem`` on the system's mesh (inner first)."""
-    faces = []
+    faces: list[_CompartmentFace] = []
     n = system.n
     for side in compartment_sides(problem):
         boundary = problem.inner_boundary if side == "inner" else problem.outer_boundary

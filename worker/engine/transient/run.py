@@ -7,10 +7,10 @@ import math
 
 import numpy as np
 
+from worker.engine.boundaries.compartment import compartment_sides
 from worker.engine.model import Problem
 from worker.engine.outcome import Outcome
 from worker.engine.regime_notes import thiele_notes
-from worker.engine.boundaries.compartment import compartment_sides
 from worker.engine.transient import (
     checks,
     compartment_checks,
