@@ -52,35 +52,46 @@ __all__ = ["CrankCase", "crank_case", "donor_time_constant", "equilibrium_level"
            "limited_volume_fraction", "limited_volume_roots"]
 
 
-def _bracket(geometry: str, alpha: float, count: int) -> list[tuple[float, float]]:
-    n = np.arange(1, count + 1)
-    if geometry == "slab":
-        return [((k - 0.5) * math.pi, k * math.pi) for k in n]
-    if geometry == "sphere":
-        return [(k * math.pi, (k + 0.5) * math.pi) for k in n]
-    zeros0 = jn_zeros(0, count)
-    zeros1 = jn_zeros(1, count)
-    return list(zip(zeros0.tolist(), zeros1.tolist(), strict=True))
-
-
-def _root_function(geometry: str, alpha: float):
-    if geometry == "slab":
-        return lambda q: math.sin(q) + alpha * q * math.cos(q)  # tan q = -alpha q
-    if geometry == "sphere":
-        return lambda q: (3.0 + alpha * q * q) * math.sin(q) - 3.0 * q * math.cos(q)
-    return lambda q: alpha * q * float(j0(q)) + 2.0 * float(j1(q))
-
-
 def limited_volume_roots(geometry: str, alpha: float, count: int) -> np.ndarray:
     """The first ``count`` positive roots q_n of Crank's limited-volume eigen-condition for
     ``geometry`` (``slab``, ``cylinder``, ``sphere``) and ``alpha`` > 0, each by ``brentq`` in
-    its bracket: slab ((n-1/2)pi, n pi); sphere (n pi, (n+1/2)pi); cylinder (j_{0,n}, j_{1,n}),
-    the zeros of J0 and J1 (the alpha -> inf and alpha -> 0 limits)."""
+    its bracket.
+
+    Slab: q = (n - 1/2) pi + x with x in (0, pi/2) and tan q = -alpha q written as
+    x = atan(1/(alpha q)); sphere: q = n pi + x, x in (0, pi/2), x = atan(3q/(3 + alpha q^2))
+    (both free of the cancellation of tan near its poles at any alpha); cylinder: between
+    j_{0,n} and j_{1,n}, the zeros of J0 and J1 (the alpha -> inf and alpha -> 0 limits).
+    """
     if not (alpha > 0.0 and math.isfinite(alpha)):
         raise ValueError(f"alpha: expected a positive finite volume ratio, got {alpha!r}")
-    f = _root_function(geometry, alpha)
-    return np.array([brentq(f, low, high, xtol=1e-15, rtol=1e-15, maxiter=200)
-                     for low, high in _bracket(geometry, alpha, count)])
+    roots = np.empty(count)
+    half = 0.5 * math.pi
+    for k in range(count):
+        if geometry == "slab":
+            base = (k + 0.5) * math.pi
+
+            def shift(x: float, base: float = base) -> float:
+                return x - math.atan(1.0 / (alpha * (base + x)))
+        elif geometry == "sphere":
+            base = (k + 1) * math.pi
+
+            def shift(x: float, base: float = base) -> float:
+                q = base + x
+                return x - math.atan(3.0 * q / (3.0 + alpha * q * q))
+        else:
+            base = 0.0
+            shift = None  # type: ignore[assignment]
+        if shift is not None:
+            roots[k] = base + brentq(shift, 0.0, half, xtol=1e-16, rtol=1e-15, maxiter=200)
+    if geometry == "cylinder":
+        low, high = jn_zeros(0, count), jn_zeros(1, count)
+
+        def condition(q: float) -> float:
+            return alpha * q * float(j0(q)) + 2.0 * float(j1(q))
+
+        roots = np.array([brentq(condition, a, b, xtol=1e-15, rtol=1e-15, maxiter=200)
+                          for a, b in zip(low, high, strict=True)])
+    return roots
 
 
 def _weights(geometry: str, alpha: float, q: np.ndarray) -> np.ndarray:

@@ -37,7 +37,8 @@ POSITIVE_C = np.array([1e-4, 3e-3, 0.05, 0.8])
 
 def test_the_registries_hold_the_kinds_of_the_case_document_in_order():
     assert tuple(REACTIONS) == ("none", "zero_order", "first_order", "michaelis_menten")
-    assert tuple(BOUNDARIES) == ("concentration", "flux", "mass_transfer", "symmetry")
+    assert tuple(BOUNDARIES) == ("concentration", "flux", "mass_transfer", "symmetry",
+                                 "compartment")
     assert set(REACTION_CASES) == set(REACTIONS)
     assert set(FACES) == set(BOUNDARIES)
 
