@@ -98,6 +98,7 @@ BOUNDARY_FIELDS: Mapping[str, Mapping[str, str]] = {
     "flux": {"value": "flux"},
     "mass_transfer": {"coefficient": "velocity", "bulk": "concentration"},
     "symmetry": {},
+    "compartment": {"volume": "volume", "initial": "concentration", "clearance": "rate_constant"},
 }
 
 
