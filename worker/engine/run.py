@@ -43,5 +43,12 @@ def run_problem(problem: Problem, independent: Problem | None = None) -> Outcome
 
 def _solve(problem: Problem, independent: Problem | None) -> Outcome:
     if problem.regime.kind == "steady":
+        for side, boundary in (("inner", problem.inner_boundary),
+                               ("outer", problem.outer_boundary)):
+            if boundary.condition.transient_only:
+                raise ValueError(
+                    f"{side}_boundary.kind: {boundary.kind!r} is for transient cases only (its "
+                    "level follows the body and has no steady value of its own); expected "
+                    "regime.kind 'transient', or a concentration or mass_transfer face")
         return run_steady(problem, independent)
     return run_transient(problem, independent)

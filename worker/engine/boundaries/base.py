@@ -46,6 +46,10 @@ class BoundaryKind:
     wording: str = ""
     #: The words for a face whose dimensioned parameters are all zero, where they differ.
     wording_at_zero: str | None = None
+    #: The face only makes sense in time (a compartment): steady cases refuse it.
+    transient_only: bool = False
+    #: The face is a well-stirred fluid of finite volume whose level is one more unknown.
+    finite_volume: bool = False
 
     def fixes_level(self, boundary: Boundary) -> bool:
         """True when this face fixes the steady level (a concentration or a live film)."""
@@ -105,6 +109,16 @@ class BoundaryKind:
         """(alpha, beta, gamma) of ``alpha f + beta f' = gamma`` for the eigenfunction series,
         flux rows divided by D; ``outward`` is +1 at the outer face, -1 at the inner."""
         raise NotImplementedError
+
+    def laplace_row(
+        self, boundary: Boundary, s: Any, outward: float, diffusivity: float,
+        face_partition: float, weight: float, capacity: float,
+    ) -> tuple[Any, float, Any]:
+        """``(alpha, beta, gamma)`` of ``alpha C^ + beta C^' = gamma`` in the Laplace domain at
+        complex ``s``: the eigen row with its constant data transformed (gamma / s);
+        ``weight`` is r^n at the face, ``capacity`` a compartment's (see ``compartment``)."""
+        alpha, beta, gamma = self.eigen_row(boundary, outward, diffusivity, face_partition)
+        return alpha, beta, gamma / s
 
     def bvp_residual(
         self, boundary: Boundary, c: float, flux: float, into: float, k_face: float,

@@ -278,6 +278,10 @@ def series_unsupported_reason(problem: Problem) -> str | None:
     """Why no exact series exists for the problem here, or None when it does."""
     if len(problem.layers) != 1:
         return "more than one layer"
+    for side, boundary in (("inner", problem.inner_boundary), ("outer", problem.outer_boundary)):
+        if boundary.condition.finite_volume:
+            return (f"{side}_boundary is a compartment (its level changes in time: the "
+                    "eigenvalue problem is not of this form)")
     layer = problem.layers[0]
     if not layer.reaction.law.is_linear:
         return f"{layer.reaction.kind} kinetics are nonlinear"

@@ -95,6 +95,8 @@ import numpy as np
 from numpy.typing import ArrayLike
 from scipy import special
 
+from worker.engine.boundaries.compartment import capacity as compartment_capacity
+from worker.engine.boundaries.compartment import compartment_sides
 from worker.engine.exact_steady import validate_problem
 from worker.engine.model import Problem
 from worker.engine.transient.solution import TransientSolution
@@ -146,6 +148,8 @@ class TransientLaplaceSolution(TransientSolution):
     positions: np.ndarray | None = None
     profile: np.ndarray | None = None
     notes: list[str] = field(default_factory=list)
+    #: Fluid concentration of each compartment face (``"inner"``/``"outer"``) at the times.
+    compartments: dict[str, np.ndarray] = field(default_factory=dict)
 
 
 # --------------------------------------------------------------------------------------------
@@ -450,7 +454,7 @@ def laplace_unsupported_reason(problem: Problem) -> str | None:
     for side in ("inner", "outer"):
         boundary = problem.inner_boundary if side == "inner" else problem.outer_boundary
         try:
-            boundary.condition.eigen_row(boundary, 1.0, 1.0, 1.0)
+            boundary.condition.laplace_row(boundary, np.ones(1), 1.0, 1.0, 1.0, 1.0, 1.0)
         except NotImplementedError:
             return f"{side}_boundary: kind {boundary.kind!r} has no linear face condition"
     return None
@@ -483,13 +487,22 @@ class _Transformed:
         self.inner_weight = 0.0 if self.solid else float(edges[0]) ** n
         self.outer_weight = float(edges[-1]) ** n
         self.measure = problem.measure_factor
-        rows = []
-        for side, outward, layer in (("inner", -1.0, self.layers[0]),
-                                     ("outer", 1.0, self.layers[-1])):
-            boundary = problem.inner_boundary if side == "inner" else problem.outer_boundary
-            rows.append(boundary.condition.eigen_row(
-                boundary, outward, layer.diffusivity, problem.face_partition(side)))
-        self.face_rows = rows
+        self.compartments = compartment_sides(problem)
+        self.capacities = {side: compartment_capacity(problem, side)
+                           for side in self.compartments}
+
+    def face_row(self, side: str, s: np.ndarray):
+        """``(alpha, beta, gamma)`` of the face's Laplace-domain row at s (``laplace_row``: the
+        eigen row with gamma / s; a compartment's coefficients depend on s)."""
+        problem = self.problem
+        inner = side == "inner"
+        boundary = problem.inner_boundary if inner else problem.outer_boundary
+        layer = self.layers[0] if inner else self.layers[-1]
+        weight = self.inner_weight if inner else self.outer_weight
+        return boundary.condition.laplace_row(
+            boundary, s, -1.0 if inner else 1.0, layer.diffusivity,
+            problem.face_partition(side), weight if weight > 0.0 else 1.0,
+            self.capacities.get(side, 0.0))
 
     def initial_load(self) -> float:
         """Initial amount per measure by Gauss-Legendre quadrature of r^n C0 over each layer."""
@@ -524,11 +537,11 @@ class _Transformed:
         if self.solid:  # delta_0 = 0: a solid centre has the one regular solution
             matrix[:, 0, 1] = 1.0
         else:
-            alpha, beta, gamma = self.face_rows[0]
+            alpha, beta, gamma = self.face_row("inner", s)
             e_a, _, o_a, _ = slopes[0]
             matrix[:, 0, 0] = alpha + beta * e_a
             matrix[:, 0, 1] = -0.5 * alpha + beta * o_a
-            rhs[:, 0] = gamma / s - alpha * particular[:, 0]
+            rhs[:, 0] = gamma - alpha * particular[:, 0]
         for i in range(self.count - 1):
             row = 2 * i + 1
             k_left, k_right = self.partitions[i], self.partitions[i + 1]
@@ -544,12 +557,12 @@ class _Transformed:
             matrix[:, row + 1, 2 * i + 1] = d_left * o_b
             matrix[:, row + 1, 2 * i + 2] = -d_right * e_a
             matrix[:, row + 1, 2 * i + 3] = -d_right * o_a
-        alpha, beta, gamma = self.face_rows[1]
+        alpha, beta, gamma = self.face_row("outer", s)
         _, e_b, _, o_b = slopes[-1]
         last = self.count - 1
         matrix[:, -1, 2 * last] = alpha + beta * e_b
         matrix[:, -1, 2 * last + 1] = odd_b[last] * alpha + beta * o_b
-        rhs[:, -1] = gamma / s - alpha * particular[:, last]
+        rhs[:, -1] = gamma - alpha * particular[:, last]
         scale = np.max(np.abs(matrix), axis=2)
         unknowns = np.linalg.solve(matrix / scale[:, :, None], (rhs / scale)[:, :, None])[..., 0]
         integrals = [integral for _, integral in terms]
@@ -696,6 +709,17 @@ def solve_transient_laplace(problem: Problem, times: ArrayLike | None = None,
         out[~later] = transformed.initial[layers][None, :]
         return out
 
+    compartments = {}
+    for side in transformed.compartments:
+        boundary = problem.inner_boundary if side == "inner" else problem.outer_boundary
+        face = problem.edges[0] if side == "inner" else problem.edges[-1]
+        layer_index = 0 if side == "inner" else transformed.count - 1
+        level = np.full(times.size, float(boundary.initial))
+        if np.any(positive):  # surface C = K_face * C_f
+            level[positive] = concentration_at(np.array([face]), times[positive],
+                                               layer_index)[:, 0] / problem.face_partition(side)
+        compartments[side] = level
+
     profile = None
     where = None
     if positions is not None:
@@ -717,4 +741,5 @@ def solve_transient_laplace(problem: Problem, times: ArrayLike | None = None,
         positions=where,
         profile=profile,
         notes=[f"fixed Talbot inversion, {nodes} nodes per time"],
+        compartments=compartments,
     )

@@ -12,6 +12,18 @@ discretisation and the mass balance can be checked:
 
     d(out_inner)/dt = -Q_0,   d(out_outer)/dt = Q_N,   d(consumed)/dt = sum_i V_i R(C_i).
 
+A ``compartment`` face (a well-stirred fluid of finite volume, ``boundaries.compartment``)
+adds one state after those three, its fluid concentration C_f (inner face first): with the
+face's half-cell conductance g, its partition K_face, the compartment's r^n-weighted capacity
+W (``compartment.capacity``) and its clearance k_c, the outflow through the face is
+``g (C_P - K_face C_f)`` and
+
+    W dC_f/dt = g (C_P - K_face C_f) - W k_c C_f
+
+(J. Crank, *The Mathematics of Diffusion*, 2nd ed., 1975, §4.3.5, the balance of a stirred
+solution of limited volume). ``out_*`` stays the cumulative amount through the face, so the
+mass balance of the body is unchanged; the compartment holds ``W C_f`` (times the measure).
+
 The system is stiff; it is integrated by ``scipy.integrate.solve_ivp(method="BDF")`` (variable
 order 1-5 backward differentiation with error control) with its exact sparse Jacobian, the
 requested times in ``t_eval`` and dense output for event times (t50, t90).
@@ -45,6 +57,8 @@ from numpy.typing import ArrayLike
 from scipy import sparse
 from scipy.integrate import BDF, solve_ivp
 
+from worker.engine.boundaries.compartment import capacity as compartment_capacity
+from worker.engine.boundaries.compartment import compartment_sides
 from worker.engine.fv_mesh import (
     Mesh,
     assemble_diffusion,
@@ -85,7 +99,8 @@ class TransientFVSolution(TransientSolution):
     ``profile_at(index)`` gives ``(concentration_at, flux_at)`` callables (see
     ``fv_mesh.make_profile_functions``) of the state at ``times[index]``;
     ``state_at(t)`` evaluates the dense output (cells, then out_inner, out_outer, consumed,
-    r^n-weighted, without the measure factor) at any t in [start, end];
+    r^n-weighted, without the measure factor, then the fluid concentration of each compartment
+    face) at any t in [start, end];
     ``profile_at_time(t)`` gives the ``(concentration_at, flux_at)`` callables of the dense
     output's cells at any such t; ``step_times`` are the integrator's step times.
     """
@@ -101,6 +116,8 @@ class TransientFVSolution(TransientSolution):
     step_times: np.ndarray | None = None
     diagnostics: dict = field(default_factory=dict)
     profile_at_time: Callable[[float], tuple[Callable[..., Any], Callable[..., Any]]] | None = None
+    #: Fluid concentration of each compartment face at the times (``"inner"``/``"outer"``).
+    compartments: dict[str, np.ndarray] = field(default_factory=dict)
 
 
 def concentration_scale(problem: Problem) -> float:
@@ -115,6 +132,42 @@ def concentration_scale(problem: Problem) -> float:
         d_min = min(layer.diffusivity for layer in problem.layers)
         scale = flux * problem.total_thickness / d_min
     return scale if scale > 0.0 else 1.0
+
+
+@dataclass(frozen=True)
+class _CompartmentFace:
+    """One compartment face in the state: its side, its state index, the boundary cell and the
+    released state it feeds, the half-cell conductance g (r^n-weighted), g * K_face, the
+    compartment's r^n-weighted capacity W, its clearance (1/s) and starting level."""
+
+    side: str
+    state: int
+    cell: int
+    released: int
+    conductance: float
+    coupling: float
+    capacity: float
+    clearance: float
+    start: float
+    partition: float
+
+
+def _compartment_couplings(problem: Problem, system: _Rhs) -> list[_CompartmentFace]:
+    """The compartment faces of ``problem`` on the system's mesh (inner first)."""
+    faces: list[_CompartmentFace] = []
+    n = system.n
+    for side in compartment_sides(problem):
+        boundary = problem.inner_boundary if side == "inner" else problem.outer_boundary
+        k_face = problem.face_partition(side)
+        inner = side == "inner"
+        g = float(system.operator.east_coefficient[0] if inner
+                  else system.operator.west_coefficient[-1])
+        faces.append(_CompartmentFace(
+            side=side, state=n + 3 + len(faces), cell=0 if inner else n - 1,
+            released=n if inner else n + 1, conductance=g, coupling=g * k_face,
+            capacity=compartment_capacity(problem, side), clearance=float(boundary.clearance),
+            start=float(boundary.initial), partition=float(k_face)))
+    return faces
 
 
 class _Rhs:
@@ -137,6 +190,8 @@ class _Rhs:
         self.qn_slope = self.operator.west_coefficient[-1]  # dQ_N/dC_{N-1}
         self.source = self.operator.rhs / self.volumes
         self.inverse_volumes = 1.0 / self.volumes
+        self.compartments = _compartment_couplings(problem, self)
+        self.size = n + 3 + len(self.compartments)
 
     def reaction(self, c: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
         """Consumption R(C) and dR/dC per cell (zero order through the smooth switch)."""
@@ -160,7 +215,25 @@ class _Rhs:
         out[self.n] = -q0
         out[self.n + 1] = qn
         out[self.n + 2] = float(np.dot(self.volumes, rate))
+        for face in self.compartments:
+            level = y[face.state]
+            shift = face.coupling * (level - face.start)
+            out[face.cell] += shift * self.inverse_volumes[face.cell]
+            out[face.released] -= shift
+            out[face.state] = (face.conductance * c[face.cell] - face.coupling * level) \
+                / face.capacity - face.clearance * level
         return out
+
+    def face_fluxes(self, y: np.ndarray) -> np.ndarray:
+        """r^n-weighted outward face fluxes Q of state ``y`` (each compartment's level in)."""
+        q = self.operator.face_fluxes(y[: self.n])
+        for face in self.compartments:
+            shift = face.coupling * (y[face.state] - face.start)
+            if face.side == "inner":
+                q[0] += shift
+            else:
+                q[-1] -= shift
+        return q
 
     def _build_pattern(self) -> None:
         """CSC matrix of the full Jacobian pattern, with the positions of the entries that
@@ -171,7 +244,19 @@ class _Rhs:
         cols = np.concatenate((block.col, np.arange(n), [0, n - 1], np.arange(n)))
         data = np.concatenate((block.data, np.zeros(n), [-self.q0_slope, self.qn_slope],
                                np.zeros(n)))
-        base = sparse.csc_matrix((data, (rows, cols)), shape=(n + 3, n + 3))
+        extra_rows, extra_cols, extra_data = [], [], []
+        for face in self.compartments:  # constant entries: the coupling is linear
+            p, f = face.cell, face.state
+            extra_rows += [p, face.released, f, f]
+            extra_cols += [f, f, p, f]
+            extra_data += [face.coupling / self.volumes[p], -face.coupling,
+                           face.conductance / face.capacity,
+                           -face.coupling / face.capacity - face.clearance]
+        rows = np.concatenate((rows, extra_rows)).astype(int)
+        cols = np.concatenate((cols, extra_cols)).astype(int)
+        data = np.concatenate((data, extra_data))
+        size = self.size
+        base = sparse.csc_matrix((data, (rows, cols)), shape=(size, size))
         base.sum_duplicates()
         base.sort_indices()
         self._base_data = base.data.copy()
@@ -205,7 +290,7 @@ class _Stack:
 
     def __init__(self, systems: list[_Rhs]):
         self.systems = systems
-        sizes = [system.n + 3 for system in systems]
+        sizes = [system.size for system in systems]
         self.offsets = np.concatenate(([0], np.cumsum(sizes)))
 
     def __call__(self, t: float, y: np.ndarray) -> np.ndarray:
@@ -320,9 +405,10 @@ def solve_transient_fv_meshes(
     y0_parts, atol_parts, loads = [], [], []
     for k, mesh in enumerate(built):
         n = mesh.n_cells
+        faces = systems[k].compartments
         if initial_states is None:
             initial_cells = np.array([problem.layers[j].initial for j in mesh.layer_index])
-            y0 = np.concatenate((initial_cells, np.zeros(3)))
+            y0 = np.concatenate((initial_cells, np.zeros(3), [f.start for f in faces]))
         else:
             y0 = np.asarray(initial_states[k], dtype=float)
         load = float(np.dot(mesh.volumes, y0[:n]))
@@ -332,6 +418,7 @@ def solve_transient_fv_meshes(
         atol_parts.append(np.concatenate((
             np.full(n, ATOL_CONCENTRATION * c_scale * rtol / RTOL),
             np.full(3, ATOL_AMOUNT * amount_scale * rtol / RTOL),
+            [ATOL_CONCENTRATION * c_scale / f.partition * rtol / RTOL for f in faces],
         )))
     span_end = max(end, start + 1e-300)
     result = solve_ivp(
@@ -358,17 +445,17 @@ def _package(problem, mesh, system, times, states, success, result, dense, low, 
     measure = problem.measure_factor
     cells = states[:n].T
     remaining = measure * (cells @ mesh.volumes)
-    operator = system.operator
     flux_inner = np.empty(times.size)
     flux_outer = np.empty(times.size)
     for k in range(times.size):
-        densities = face_flux_densities(mesh, operator.face_fluxes(cells[k]))
+        densities = face_flux_densities(mesh, system.face_fluxes(states[:, k]))
         flux_inner[k] = densities[0]
         flux_outer[k] = densities[-1]
 
     def profile_at(index: int):
-        c = cells[index]
-        return make_profile_functions(mesh, c, face_flux_densities(mesh, operator.face_fluxes(c)))
+        y = states[:, index]
+        return make_profile_functions(mesh, y[:n],
+                                      face_flux_densities(mesh, system.face_fluxes(y)))
 
     def state_at(t):
         if dense is None:
@@ -376,8 +463,9 @@ def _package(problem, mesh, system, times, states, success, result, dense, low, 
         return dense(np.asarray(t, dtype=float))[low:high]
 
     def profile_at_time(t: float):
-        c = np.asarray(state_at(float(t)), dtype=float)[:n]
-        return make_profile_functions(mesh, c, face_flux_densities(mesh, operator.face_fluxes(c)))
+        y = np.asarray(state_at(float(t)), dtype=float)
+        return make_profile_functions(mesh, y[:n],
+                                      face_flux_densities(mesh, system.face_fluxes(y)))
 
     return TransientFVSolution(
         method=METHOD_NAME,
@@ -399,6 +487,7 @@ def _package(problem, mesh, system, times, states, success, result, dense, low, 
         state_at=state_at,
         profile_at=profile_at,
         profile_at_time=profile_at_time,
+        compartments={face.side: states[face.state].copy() for face in system.compartments},
         step_times=None if dense is None else np.asarray(dense.ts, dtype=float),
         diagnostics={
             "cells": int(n),

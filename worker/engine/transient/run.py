@@ -7,10 +7,18 @@ import math
 
 import numpy as np
 
+from worker.engine.boundaries.compartment import compartment_sides
 from worker.engine.model import Problem
 from worker.engine.outcome import Outcome
 from worker.engine.regime_notes import thiele_notes
-from worker.engine.transient import checks, exact_series, method_of_lines, solve, uptake
+from worker.engine.transient import (
+    checks,
+    compartment_checks,
+    exact_series,
+    method_of_lines,
+    solve,
+    uptake,
+)
 from worker.engine.transient.compare import (
     compare_minima,
     compare_routes,
@@ -34,6 +42,7 @@ from worker.engine.transient.scales import capacity_resistance_time, size_factor
 from worker.engine.transient.solution import Route
 from worker.engine.transient.solve import (
     extrapolated,
+    extrapolated_compartments,
     fv_on_meshes,
     requested_times,
     series_on_scan,
@@ -94,7 +103,14 @@ def run_transient(problem: Problem, independent: Problem | None = None) -> Outco
     fvs = fv_on_meshes(lines_problem, internal, duration)
     # Without an exact route (nonlinear kinetics) the second discretisation is the independent
     # route, on the independent reading.
-    study = None if exact_primary else galerkin_study(independent, internal, end=duration)
+    compartments = compartment_sides(problem)
+    study = None
+    if not exact_primary and compartments:
+        outcome.warnings.append(
+            "the Galerkin second discretisation has no compartment face: this nonlinear case "
+            "with a compartment is checked by space and time refinement and mass balance")
+    elif not exact_primary:
+        study = galerkin_study(independent, internal, end=duration)
     fine, coarse = fvs[2], fvs[0]
     outcome.diagnostics["meshes"] = [f.diagnostics["cells_per_layer"] for f in fvs]
     outcome.diagnostics["fv_steps"] = [f.diagnostics["steps"] for f in fvs]
@@ -119,6 +135,7 @@ def run_transient(problem: Problem, independent: Problem | None = None) -> Outco
     if releasing:
         add_events(outcome, lines_problem, series, scan, fvs, duration)
     routes = [fv_route(fv_name, fine, numerical, internal, outcome, medium=fvs[1])]
+    routes[0].compartments = extrapolated_compartments(fvs, internal)
     if study is not None:
         if study.success:
             routes.append(galerkin_route(independent, study, internal, duration))
@@ -128,6 +145,7 @@ def run_transient(problem: Problem, independent: Problem | None = None) -> Outco
                               f"the second discretisation failed: {failed_mesh.message}")
     if laplace is not None:
         routes.insert(0, laplace_route(laplace_problem, laplace, internal, duration))
+        routes[0].compartments = dict(laplace.compartments)
     if series is not None and at is not None:
         routes.insert(0 if use_series else len(routes), series_route(series, at, internal,
                                                                      outcome))
@@ -140,7 +158,7 @@ def run_transient(problem: Problem, independent: Problem | None = None) -> Outco
         reason = exact_series.series_unsupported_reason(problem)
         outcome.warnings.append(
             f"no exact solution for this case ({reason}): checked by space and time refinement "
-            "and by the steady limit")
+            + ("and mass balance" if compartments else "and by the steady limit"))
 
     requested_index = np.searchsorted(internal, requested)
     final_index = int(np.searchsorted(internal, duration))
@@ -167,7 +185,11 @@ def run_transient(problem: Problem, independent: Problem | None = None) -> Outco
                                   requested_index) for route in routes]
     spread = compare_minima(outcome, problem, routes, minima, internal, requested_index, c_scale)
     add_minimum_series(outcome, problem, minima[0], spread, c_unit)
-    _time_to_steady(outcome, problem, independent, routes, duration, c_scale)
+    if compartments:
+        compartment_checks.add_compartment_series(outcome, routes, requested_index, c_unit)
+        compartment_checks.limited_volume_check(outcome, problem, routes, internal)
+    else:  # a compartment's steady state is its equilibrium (checked below)
+        _time_to_steady(outcome, problem, independent, routes, duration, c_scale)
     outcome.warnings.extend(thiele_notes(problem, _fed_levels(problem, primary, final_index),
                                          f" at t = {duration:.6g} s"))
     _annotate(outcome, routes, int(requested_index[-1]))
@@ -177,7 +199,11 @@ def run_transient(problem: Problem, independent: Problem | None = None) -> Outco
     checks.mass_balance_check(outcome, lines_problem, fine, internal)
     checks.space_check(outcome, lines_problem, fvs, internal, final_index, amount_scale)
     checks.time_check(outcome, lines_problem, coarse, internal, duration, amount_scale)
-    checks.steady_limit_check(outcome, lines_problem, fine, duration, c_scale, amount_scale)
+    if compartments:
+        compartment_checks.equilibrium_check(outcome, lines_problem, fine, duration, c_scale)
+    else:
+        checks.steady_limit_check(outcome, lines_problem, fine, duration, c_scale,
+                                  amount_scale)
     reported_series_sign_check(outcome, problem, float(np.min(fine.cells)), c_scale,
                                amount_scale, factor)
     return outcome

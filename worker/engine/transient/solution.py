@@ -69,3 +69,6 @@ class Route:
     #: ``(r, t, layer) -> C``: concentrations at positions r (m) of layer ``layer`` at any time
     #: t in (0, duration] s (the time to steady needs more times than the internal ones).
     concentration: Callable[[np.ndarray, float, int], np.ndarray] | None = None
+    #: Fluid concentration of each compartment face (``"inner"``/``"outer"``) at the internal
+    #: times, amount/m^3 (empty without compartments).
+    compartments: dict[str, np.ndarray] = field(default_factory=dict)

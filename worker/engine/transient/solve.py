@@ -108,10 +108,22 @@ def series_on_scan(problem: Problem, times: np.ndarray, end: float
 def extrapolated(fvs: list[TransientFVSolution], times: np.ndarray) -> dict[str, np.ndarray]:
     """Per time, the Richardson-extrapolated value of each of :data:`AMOUNTS` (the fine value
     where the three meshes do not converge monotonically); ``fvs`` is coarse, medium, fine."""
+    return _extrapolate(fvs, times, {name: [getattr(f, name) for f in reversed(fvs)]
+                                     for name in AMOUNTS})
+
+
+def extrapolated_compartments(fvs: list[TransientFVSolution], times: np.ndarray
+                              ) -> dict[str, np.ndarray]:
+    """As :func:`extrapolated`, the fluid concentration of each compartment face."""
+    return _extrapolate(fvs, times, {side: [f.compartments[side] for f in reversed(fvs)]
+                                     for side in fvs[-1].compartments})
+
+
+def _extrapolate(fvs: list[TransientFVSolution], times: np.ndarray,
+                 named: dict[str, list[np.ndarray]]) -> dict[str, np.ndarray]:
     cells = [sum(f.diagnostics["cells_per_layer"]) for f in reversed(fvs)]  # fine first
     out = {}
-    for name in AMOUNTS:
-        series = [getattr(f, name) for f in reversed(fvs)]  # fine, medium, coarse
+    for name, series in named.items():  # each: fine, medium, coarse
         values = np.array(series[0], dtype=float)
         for k in range(times.size):
             triple = [float(s[k]) for s in series]

@@ -61,7 +61,8 @@ def supplying_faces(problem: Problem) -> list[str]:
             faces.append(side)
             continue
         fluid = condition.fluid_concentration(boundary)
-        if fluid is None or not condition.fixes_level(boundary):
+        # a compartment feeds the body when it starts at or above the body's levels (a donor)
+        if fluid is None or not (condition.fixes_level(boundary) or condition.finite_volume):
             continue
         level = problem.face_partition(side) * fluid / layer.partition
         if level > 0.0 and level >= highest:
