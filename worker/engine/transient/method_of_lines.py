@@ -45,6 +45,7 @@ import numpy as np
 from numpy.typing import ArrayLike
 from scipy import sparse
 from scipy.integrate import BDF, solve_ivp
+from scipy.interpolate import PchipInterpolator
 
 from worker.engine.fv_mesh import (
     Mesh,
@@ -607,15 +608,19 @@ def uses_implicit_steps(problem: Problem) -> bool:
 
 
 class StepHistory:
-    """Piecewise-linear interpolant of the reported state over the accepted steps ``ts``:
-    the cells' dissolved concentrations (half-step solution) then the other states (the
-    Richardson combination of the half-step and whole-step solutions). ``contents`` holds the cells' solute per volume
+    """Interpolant of the reported state over the accepted steps ``ts``: the cells' dissolved
+    concentrations (linear in time) then the other states (the cumulative amounts: monotone
+    cubic, Fritsch & Carlson, SIAM J. Numer. Anal. 17 (1980) 238), all from the Richardson
+    combination of the half-step and whole-step paths, the cells clipped to [0, solubility]. ``contents`` holds the cells' solute per volume
     (dissolved plus undissolved) at each step, shape (N, len(ts))."""
 
-    def __init__(self, ts: np.ndarray, values: np.ndarray, contents: np.ndarray):
+    def __init__(self, ts: np.ndarray, values: np.ndarray, contents: np.ndarray, cells: int):
         self.ts = ts
         self.values = values
         self.contents = contents
+        self.cells = cells
+        # the cumulative amounts are smooth and monotone between steps: shape-preserving cubic
+        self._amounts = PchipInterpolator(ts, values[cells:], axis=1) if ts.size > 1 else None
 
     def _interpolate(self, array: np.ndarray, t: ArrayLike) -> np.ndarray:
         t_array = np.asarray(t, dtype=float)
@@ -626,7 +631,11 @@ class StepHistory:
         return out[:, 0] if t_array.ndim == 0 else out
 
     def __call__(self, t: ArrayLike) -> np.ndarray:
-        return self._interpolate(self.values, t)
+        t_array = np.asarray(t, dtype=float)
+        out = self._interpolate(self.values, t_array)
+        if self._amounts is not None:
+            out[self.cells:] = self._amounts(np.clip(t_array, self.ts[0], self.ts[-1]))
+        return out
 
     def contents_at(self, t: ArrayLike) -> np.ndarray:
         """Cell contents per volume at t (columns for an array of times)."""
@@ -666,10 +675,10 @@ def _reported(system: _Rhs, fine: np.ndarray, coarse: np.ndarray, ts: np.ndarray
     held, so the mass balance holds with the combined amounts)."""
     n = system.n
     u_fine, c_fine = _cell_parts(system, fine[:n])
-    u_coarse, _ = _cell_parts(system, coarse[:n])
+    u_coarse, c_coarse = _cell_parts(system, coarse[:n])
     values = 2.0 * fine - coarse
-    values[:n] = c_fine
-    return StepHistory(ts, values, u_fine), 2.0 * u_fine - u_coarse
+    values[:n] = np.clip(2.0 * c_fine - c_coarse, 0.0, system.solubility[:, None])
+    return StepHistory(ts, values, u_fine, n), 2.0 * u_fine - u_coarse
 
 
 def _solve_implicit(problem, built, systems, stack, times, end, start, rtol, y0, atol, loads):
@@ -713,3 +722,30 @@ def _solve_implicit(problem, built, systems, stack, times, end, start, rtol, y0,
         })
         solutions.append(solution)
     return solutions
+
+
+def time_refinement(problem: Problem, solution: TransientFVSolution, parts: int
+                    ) -> dict[str, np.ndarray] | None:
+    """The amounts of an implicit-step solution integrated again on its own accepted steps cut
+    into ``parts`` (same mesh, same Richardson combination), at its requested times; None when
+    the solution was not integrated by implicit steps or the replay failed."""
+    diagnostics = solution.diagnostics
+    if solution.history is None or diagnostics.get("step_sequence") is None:
+        return None
+    ts = diagnostics["step_sequence"]
+    system = _Rhs(problem, solution.mesh, concentration_scale(problem), exact=True)
+    fine, coarse, ok = implicit_steps.replay(system, diagnostics["initial_state"], ts, parts,
+                                             diagnostics["atol"], implicit_rtol(solution.rtol))
+    if not ok:
+        return None
+    history, contents = _reported(system, fine, coarse, ts)
+    at = np.clip(np.searchsorted(ts, solution.times - 1e-9 * max(abs(solution.end), 1.0)), 0,
+                 ts.size - 1)
+    n = solution.mesh.n_cells
+    measure = problem.measure_factor
+    return {
+        "remaining": measure * (contents[:, at].T @ solution.mesh.volumes),
+        "released_inner": measure * history.values[n, at],
+        "released_outer": measure * history.values[n + 1, at],
+        "consumed": measure * history.values[n + 2, at],
+    }
