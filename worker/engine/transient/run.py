@@ -10,7 +10,7 @@ import numpy as np
 from worker.engine.model import Problem
 from worker.engine.outcome import Outcome
 from worker.engine.regime_notes import thiele_notes
-from worker.engine.transient import checks, exact_series, method_of_lines, solve, uptake
+from worker.engine.transient import checks, dispersed, exact_series, method_of_lines, solve, uptake
 from worker.engine.transient.compare import (
     compare_minima,
     compare_routes,
@@ -155,6 +155,7 @@ def run_transient(problem: Problem, independent: Problem | None = None) -> Outco
                releasing)
     if not releasing:
         _uptake_note(outcome, problem)
+    dispersed.add_dispersed(outcome, lines_problem, fvs, requested_index, duration)
     add_profile_and_probes(outcome, problem, primary.profile, internal, requested,
                            requested_index, final_index, c_unit)
     if releasing:
