@@ -707,8 +707,8 @@ def _solve_implicit(problem, built, systems, stack, times, end, start, rtol, y0,
         if success:
             solution.contents = history.contents[:, at].T
             solution.remaining = measure * (extrapolated_contents[:, at].T @ mesh.volumes)
-            solution.undissolved = measure * (
-                (extrapolated_contents[:, at].T - solution.cells) @ mesh.volumes)
+            solution.undissolved = measure * (np.maximum(
+                extrapolated_contents[:, at].T - solution.cells, 0.0) @ mesh.volumes)
         solution.history = history
         solution.diagnostics.update({
             "integrator": "implicit Euler, step doubling, Richardson extrapolation",
