@@ -612,8 +612,9 @@ class StepHistory:
     """Interpolant of the reported state over the accepted steps ``ts``: the cells' dissolved
     concentrations (linear in time) then the other states (the cumulative amounts: monotone
     cubic, Fritsch & Carlson, SIAM J. Numer. Anal. 17 (1980) 238), all from the Richardson
-    combination of the half-step and whole-step paths, the cells clipped to [0, solubility]. ``contents`` holds the cells' solute per volume
-    (dissolved plus undissolved) at each step, shape (N, len(ts))."""
+    combination of the half-step and whole-step paths, the cells clipped to [0, solubility].
+    ``contents`` holds the cells' solute per volume (dissolved plus undissolved) of the
+    half-step path at each step, shape (N, len(ts))."""
 
     def __init__(self, ts: np.ndarray, values: np.ndarray, contents: np.ndarray, cells: int):
         self.ts = ts
@@ -696,7 +697,6 @@ def _solve_implicit(problem, built, systems, stack, times, end, start, rtol, y0,
     solutions = []
     for k, (mesh, system) in enumerate(zip(built, systems, strict=True)):
         low, high = int(stack.offsets[k]), int(stack.offsets[k + 1])
-        n = mesh.n_cells
         fine, coarse = found.fine[low:high], found.coarse[low:high]
         history, extrapolated_contents = _reported(system, fine, coarse, ts)
         states = history.values[:, at] if success else np.full((high - low, times.size), np.nan)
