@@ -23,6 +23,18 @@ is exactly Q wherever C >= eps, nothing is consumed at C <= 0, and the Jacobian 
 continuous for the BDF Newton iteration. The steady solver treats the same step as an exact
 complementarity condition; the two agree except in cells with 0 < C < eps.
 
+Kinked cases (zero-order consumption, a layer whose solubility can be reached:
+``uses_implicit_steps``) are integrated instead by ``implicit_steps``: implicit Euler with a
+semismooth Newton solve, step doubling and the Richardson combination of the half-step and
+whole-step paths. There the zero-order step is exact (a complementarity variable per cell, see
+``_Rhs``) and a cell's state is its total content u, dissolved c = min(u, S) (Paul & McSpadden
+1976's dispersed matrix on finite volumes): the undissolved reserve u - c does not diffuse,
+reactions act on c, and the amount held counts both, so the mass balance covers the reserve.
+Orders measured on the Paul & McSpadden slab (tests/unit/worker/engine/transient/
+test_nonsmooth_steps.py): the released amount converges at about second order in the cell size
+despite the front, the front position at first to second order; in time the Richardson
+combination is about second order.
+
 Amounts are reported per measure: per m^2 of a slab, per m of a cylinder, total for a sphere
 (r^n-weighted sums times 1, 2 pi, 4 pi).
 
