@@ -22,11 +22,13 @@ these checks, each aggregated over the requested times with the worst time named
   monotonically). The error at each time is ``|a - b| / max(|b|, CROSS_CHECK_FLOOR * scale)``:
   relative where the value is large, absolute (a fraction of the load or throughput) where it
   is small, as the membrane series needs at small times;
-* ``mass_balance``: initial = remaining + released + consumed, relative to the larger of the
-  initial load and the throughput;
+* ``mass_balance``: initial = remaining (dissolved and undissolved) + released + consumed,
+  relative to the larger of the initial load and the throughput;
 * ``convergence.space``: GCI_fine of the release (three meshes, ratio 2), worst requested time;
 * ``convergence.time``: change of the amounts under a ``TIME_TIGHTENING`` times tighter
-  integrator tolerance (on the coarse mesh), relative to the amount scale;
+  integrator tolerance (on the coarse mesh), relative to the amount scale; for a kinked case
+  (zero order, a reachable solubility: ``implicit_steps``) the change when every accepted step
+  is halved, with the observed order in time from the steps quartered;
 * ``steady_limit``: the state integrated ``STEADY_HORIZON`` capacity-resistance times past
   the duration against the steady engine (``exact_steady.solve_exact``, else
   ``fv_steady.solve_fv``);

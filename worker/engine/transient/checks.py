@@ -114,7 +114,12 @@ def space_check(outcome: Outcome, problem: Problem, fvs: list[TransientFVSolutio
 def time_check(outcome: Outcome, problem: Problem, coarse: TransientFVSolution,
                times: np.ndarray, duration: float, amount_scale: float) -> None:
     """Change of the amounts under a ``TIME_TIGHTENING`` times tighter integrator tolerance
-    (coarse mesh), relative to the amount scale."""
+    (coarse mesh), relative to the amount scale; for implicit steps (kinked systems) the
+    change when every accepted step is halved, with the observed order in time from the
+    steps quartered (:func:`implicit_time_check`)."""
+    if getattr(coarse, "history", None) is not None:
+        implicit_time_check(outcome, problem, coarse, times, amount_scale)
+        return
     tight = method_of_lines.solve_transient_fv(
         problem, times, coarse.diagnostics["cells_per_layer"], end=duration,
         rtol=coarse.rtol / TIME_TIGHTENING)
@@ -172,3 +177,34 @@ def steady_limit_check(outcome: Outcome, problem: Problem, fine: TransientFVSolu
          f"state at t = {late.times[-1]:.6g} s ({solve.STEADY_HORIZON:g} relaxation times of "
          f"{tau:.4g} s past the duration) vs the steady engine ({reference.method}): face rates "
          f"{flux_error:.3g} of the throughput, cell concentrations {c_error:.3g} of the scale")
+
+
+def implicit_time_check(outcome: Outcome, problem: Problem, coarse: TransientFVSolution,
+                        times: np.ndarray, amount_scale: float) -> None:
+    """Time refinement of an implicit-step solution on the coarse mesh: its amounts against
+    those with every accepted step halved (the value) and quartered (observed order
+    p = log2(|A_1 - A_2| / |A_2 - A_4|) at the worst time), relative to the amount scale
+    (Richardson; Roache 1998 for the observed order)."""
+    limit = check_limit(problem, "convergence.time")
+    halved = method_of_lines.time_refinement(problem, coarse, 2)
+    quartered = method_of_lines.time_refinement(problem, coarse, 4) if halved else None
+    if halved is None or quartered is None:
+        outcome.checks.append(Check("convergence.time", None, limit, False,
+                                    "the implicit steps halved or quartered did not converge"))
+        return
+    names = ("remaining", "released_inner", "released_outer", "consumed")
+    first = np.array([getattr(coarse, n) for n in names])
+    second = np.array([halved[n] for n in names])
+    third = np.array([quartered[n] for n in names])
+    changes = np.max(np.abs(first - second), axis=0) / amount_scale
+    value, at_worst = worst(changes, times)
+    k = int(np.argmax(np.where(np.isfinite(changes), changes, -1.0)))
+    row = int(np.argmax(np.abs(first[:, k] - second[:, k])))
+    e1, e2 = abs(first[row, k] - second[row, k]), abs(second[row, k] - third[row, k])
+    order = math.log2(e1 / e2) if e1 > 0.0 and e2 > 0.0 else float("nan")
+    outcome.diagnostics["time_study"] = {"changes_halved": float(value) if value else 0.0,
+                                         "observed_order": order, "at": at_worst}
+    _add(outcome, "convergence.time", value, limit,
+         f"largest change of the amounts when every implicit step is halved (coarse mesh), "
+         f"relative to the amount scale; worst at t = {at_worst} s, observed order in time "
+         f"{order:.3g} (steps halved and quartered)")

@@ -10,7 +10,8 @@ independent routes and the usable times (the worst named in its detail):
 * ``cross_check.release_fraction`` (initially loaded body) or ``cross_check.released`` (empty
   body): released / own load, or the released amounts against the amount scale;
 * ``cross_check.remaining``, ``cross_check.consumed``: the amounts held and consumed;
-* ``cross_check.flux_inner``/``flux_outer``: face rates against the largest face rate;
+* ``cross_check.flux_inner``/``flux_outer``: face rates against the largest face rate (at least
+  the rate that would move the amount scale over the duration);
 * ``cross_check.profile``: the reported profile (final time), every point, against the
   concentration scale; ``cross_check.probes``: the probe rows at every requested time; for a
   numerical route the difference counts beyond its pointwise grid band (|fine - medium|, the
@@ -156,7 +157,16 @@ def _flux_offers(offer, problem: Problem, primary: Route, other: Route, internal
     weight_outer = problem.outer ** problem.exponent
     rates = [np.abs(w * primary.amounts[f"flux_{s}"][usable])
              for s, w in (("inner", weight_inner), ("outer", weight_outer))]
-    scale = max(float(np.nanmax(r, initial=0.0)) for r in rates) or 1e-300
+    # floor: the rate that, held over the whole duration, would move the amount scale (a face
+    # that passes nothing at every requested time, as after a zero-order depletion, is not
+    # judged by the relative size of two numbers that are both round-off)
+    amounts = [np.abs(primary.amounts[name]) for name in
+               ("released_inner", "released_outer", "consumed")]
+    amount_scale = max([abs(primary.initial_load)] + [float(np.nanmax(a, initial=0.0))
+                                                      for a in amounts])
+    duration = float(internal[-1]) if internal.size and internal[-1] > 0.0 else 1.0
+    floor = amount_scale / (problem.measure_factor * duration)
+    scale = max([float(np.nanmax(r, initial=0.0)) for r in rates] + [floor]) or 1e-300
     for side, weight in (("inner", weight_inner), ("outer", weight_outer)):
         if weight == 0.0:
             continue

@@ -14,6 +14,7 @@ from worker.engine.regime_notes import thiele_notes
 from worker.engine.transient import (
     checks,
     compartment_checks,
+    dispersed,
     exact_series,
     method_of_lines,
     solve,
@@ -173,6 +174,7 @@ def run_transient(problem: Problem, independent: Problem | None = None) -> Outco
                releasing)
     if not releasing:
         _uptake_note(outcome, problem)
+    dispersed.add_dispersed(outcome, lines_problem, fvs, requested_index, duration)
     add_profile_and_probes(outcome, problem, primary.profile, internal, requested,
                            requested_index, final_index, c_unit)
     if releasing:
