@@ -51,6 +51,8 @@ TRANSIENT_LIMITS: Mapping[str, float] = {
     "cross_check.t50": 1e-4,
     "cross_check.t90": 1e-4,
     "cross_check.time_lag": 1e-4,
+    "cross_check.front_position": 1e-3,  # fronts' difference / layer thickness
+    "cross_check.time_depleted": 1e-3,  # relative to the primary's
     "mass_balance": 1e-8,  # |initial - remaining - released - consumed| / amount scale
     "gci": 1e-3,  # GCI_fine of the release (worst requested time) / amount scale
     "convergence": 1e-5,  # change under a tighter time tolerance / amount scale

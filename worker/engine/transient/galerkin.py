@@ -727,7 +727,8 @@ def solve_transient_galerkin(
     rtol: float = RTOL,
     end: float | None = None,
 ) -> TransientGalerkinSolution:
-    """Solve a transient case by P1 Galerkin elements and extrapolated implicit Euler, at the requested times.
+    """Solve a transient case by P1 Galerkin elements and extrapolated implicit Euler, at the
+    requested times.
 
     Parameters
     ----------

@@ -11,7 +11,7 @@ import numpy as np
 AMOUNTS = ("remaining", "released_inner", "released_outer", "consumed", "flux_inner",
            "flux_outer")
 
-__all__ = ["AMOUNTS", "Route", "TransientSolution"]
+__all__ = ["AMOUNTS", "FrontAccount", "Route", "TransientSolution"]
 
 
 @dataclass
@@ -43,6 +43,22 @@ class TransientSolution:
 
 
 @dataclass
+class FrontAccount:
+    """A route's account of the undissolved solute of the layers loaded above their solubility.
+
+    ``layers``: the indices of those layers; ``outer``/``inner``: per internal time and layer
+    (columns as ``layers``) the outer and inner edge of the layer's undissolved region, m (NaN
+    once its undissolved solute is gone); ``time_depleted``: per layer, when its undissolved
+    solute ran out, s (None: not within the duration).
+    """
+
+    layers: list[int]
+    outer: np.ndarray
+    inner: np.ndarray
+    time_depleted: list[float | None]
+
+
+@dataclass
 class Route:
     """One method's account of a transient case at the internal times (its ``name`` and
     published ``reference`` go to the record's methods).
@@ -69,3 +85,5 @@ class Route:
     #: ``(r, t, layer) -> C``: concentrations at positions r (m) of layer ``layer`` at any time
     #: t in (0, duration] s (the time to steady needs more times than the internal ones).
     concentration: Callable[[np.ndarray, float, int], np.ndarray] | None = None
+    #: The undissolved solute's fronts and depletion times (None: the route gives none).
+    fronts: FrontAccount | None = None
