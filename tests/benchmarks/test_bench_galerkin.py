@@ -1,7 +1,7 @@
 """Benchmark: the Galerkin three-mesh study against the method of lines' three meshes.
 
 Target (issue "checks that catch bugs"): the second discretisation (``transient.galerkin``:
-P1 elements, Radau IIA) must not be much slower than the method of lines
+P1 elements, extrapolated implicit Euler) must not be much slower than the method of lines
 (``method_of_lines.solve_transient_fv_meshes`` on ``solve.mesh_sequence``) on the same case.
 Cases (invented): a zero-order slab that runs out of solute while it releases into a sink (the
 slowest transient kind today), a Michaelis-Menten sphere taking up solute, a two-layer
@@ -11,13 +11,24 @@ difference of the released amount between the two extrapolated answers relative 
 GCI bands (and to the bands plus the integrators' time floor, rtol times the load). Figures
 printed, nothing asserted about time (shared, noisy machines).
 
+A second figure (issue 14, speed): the Galerkin three-mesh study of an invented zero-order gel
+that runs out of solute (1 mm slab, 30 days, 20 times) before and after the Galerkin solver
+took its own time stepping: "before" is the Radau IIA version of ``transient/galerkin.py`` read
+from git history (``BEFORE_COMMIT``) into a scratch module, run in the same process on the same
+case; skipped with a note where git or that commit is not available.
+
 Run with ``make bench``.
 """
 
 from __future__ import annotations
 
+import importlib.util
 import statistics
+import subprocess
+import sys
+import tempfile
 import time
+from pathlib import Path
 
 import numpy as np
 
@@ -28,6 +39,8 @@ from worker.engine.transient.refinement import amount_study
 
 REPEATS = 3
 COUNT = 20
+#: The last commit whose Galerkin solver stepped with scipy's Radau IIA.
+BEFORE_COMMIT = "76d8158"
 
 
 def _times(end: float) -> tuple[float, ...]:
@@ -82,10 +95,63 @@ def test_bench_galerkin_against_method_of_lines():
                            float(np.max(np.abs(study.fine.released_outer))))
         print(f"{name}: Galerkin three meshes {ours:.3f} s "
               f"({study.fine.diagnostics['elements_per_layer']} elements fine, "
-              f"{study.fine.diagnostics['steps']} Radau steps); method of lines {theirs:.3f} s "
+              f"{study.fine.diagnostics['steps']} steps); method of lines {theirs:.3f} s "
               f"({fvs[2].diagnostics['cells_per_layer']} cells fine, "
               f"{fvs[2].diagnostics['steps']} BDF steps); ratio {ours / theirs:.2f}; "
               f"released: largest gap / (sum of bands) "
               f"{float(np.max(gap / np.maximum(bands, 1e-300))):.2f}, "
               f"/ (sum of bands + time floor) {float(np.max(gap / (bands + floor))):.2f}")
         assert study.success and all(f.success for f in fvs)
+
+
+DAY = 86400.0
+GEL = Problem(
+    "slab", 0.0,
+    (Layer("gel", 1e-3, 1e-10, 1.0, Reaction("zero_order", rate=2e-4), initial=1.0),),
+    Boundary("symmetry"), Boundary("concentration", 0.0),
+    Regime("transient", 30 * DAY, _times(30 * DAY)))
+
+
+def _before_module():
+    """The Radau version of the Galerkin solver, from git history, as a scratch module."""
+    root = Path(__file__).resolve().parents[2]
+    try:
+        text = subprocess.run(
+            ["git", "show", f"{BEFORE_COMMIT}:worker/engine/transient/galerkin.py"], cwd=root,
+            capture_output=True, text=True, check=True, timeout=30).stdout
+    except (OSError, subprocess.SubprocessError):
+        return None
+    folder = Path(tempfile.mkdtemp())
+    path = folder / "galerkin_before.py"
+    path.write_text(text)
+    spec = importlib.util.spec_from_file_location("galerkin_before", path)
+    assert spec is not None and spec.loader is not None
+    module = importlib.util.module_from_spec(spec)
+    sys.modules["galerkin_before"] = module
+    spec.loader.exec_module(module)
+    return module
+
+
+def test_bench_galerkin_before_and_after_on_the_running_out_gel():
+    print()
+    times, _ = solve.requested_times(GEL)
+    after, t_after = _median_time(lambda: galerkin_study(GEL, times))
+    assert after.success
+    released = after.amounts.extrapolated["released_outer"][-1]
+    before_module = _before_module()
+    if before_module is None:
+        print(f"zero-order gel, 30 days, 20 times: Galerkin study {t_after:.3f} s "
+              f"({after.fine.diagnostics['steps']} steps); before: not available (no git "
+              f"history at {BEFORE_COMMIT})")
+        return
+    start = time.perf_counter()
+    before = before_module.galerkin_study(GEL, times)
+    t_before = time.perf_counter() - start  # once: it takes tens of seconds
+    assert before.success
+    old = before.amounts.extrapolated["released_outer"][-1]
+    print(f"zero-order gel, 30 days, 20 times: Galerkin study before (Radau IIA, "
+          f"{before.fine.diagnostics['steps']} steps) {t_before:.3f} s, after (extrapolated "
+          f"implicit Euler, {after.fine.diagnostics['steps']} steps) {t_after:.3f} s; "
+          f"ratio before / after {t_before / t_after:.1f}; released at 30 days "
+          f"{old:.9g} vs {released:.9g} mol/m^2 (relative difference "
+          f"{abs(old - released) / abs(old):.1e})")

@@ -45,7 +45,7 @@ events), ``scales`` (scales and error measures), ``run`` (``run_transient``), ``
 and ``eigen_roots`` (the series), ``method_of_lines`` (the finite volumes in time), ``laplace``
 (``solve_transient_laplace``: the exact Laplace-domain solution of every linear case, any number
 of layers and every boundary kind, inverted by the fixed Talbot method), ``galerkin`` (a second
-discretisation: P1 Galerkin elements and Radau IIA, with its three-mesh study
+discretisation: P1 Galerkin elements and extrapolated implicit Euler, with its three-mesh study
 ``galerkin_study``), ``refinement`` (the three-mesh study of any solver's amounts), ``routes``
 (each method as a route), ``compare`` (the route cross-checks) and ``uptake`` (which bodies
 release, the true minima over time, the time to steady).

@@ -21,6 +21,11 @@ independent routes and the usable times (the worst named in its detail):
   layer at every requested time (its own bounded search on its own solution), against the
   concentration scale, beyond the grid bands at the two minima as for the profile;
 * ``cross_check.time_to_steady`` (:func:`compare_steady_times`): relative to the primary's.
+* ``cross_check.front_position`` (:func:`compare_fronts`): each loaded layer's undissolved
+  region, its outer and inner edge at every internal time where both routes still hold
+  undissolved solute there, the difference as a fraction of the layer's thickness;
+  ``cross_check.time_depleted``: when each layer's undissolved solute ran out, relative to the
+  primary's (ran out in one route only fails).
 
 Errors are ``|a - b| / max(|b|, CROSS_CHECK_FLOOR * scale)`` (:func:`scales.relative_errors`).
 """
@@ -39,7 +44,7 @@ from worker.engine.transient.record import probe_row
 from worker.engine.transient.scales import CROSS_CHECK_FLOOR, relative_errors, worst
 from worker.engine.transient.solution import Route
 
-__all__ = ["compare_minima", "compare_routes", "compare_steady_times",
+__all__ = ["compare_fronts", "compare_minima", "compare_routes", "compare_steady_times",
            "reported_series_sign_check"]
 
 
@@ -325,3 +330,57 @@ def reported_series_sign_check(outcome: Outcome, problem: Problem, extra_lowest:
     _add(outcome, "non_negativity", max(0.0, -lowest), problem,
          f"most negative of the reported profile, probe rows, amount held and the numerical "
          f"cells: {name} at {lowest:.3g} of its scale")
+
+
+def compare_fronts(outcome: Outcome, problem: Problem, primary: Route, others: list[Route],
+                   internal: np.ndarray) -> None:
+    """``cross_check.front_position`` and ``cross_check.time_depleted`` of every route that
+    gives fronts (:class:`~worker.engine.transient.solution.FrontAccount`) against the
+    primary's; nothing where the primary or no other route gives them."""
+    mine = primary.fronts
+    if mine is None:
+        return
+    checks: dict[str, _Worst] = {}
+
+    def offer(name: str, value: float, detail: str) -> None:
+        checks.setdefault(name, _Worst()).offer(value, detail)
+
+    for other in others:
+        theirs = other.fronts
+        if theirs is None:
+            continue
+        label = f"{primary.name} vs {other.name}"
+        for column, layer in enumerate(mine.layers):
+            if layer not in theirs.layers:
+                offer("cross_check.front_position", math.inf,
+                      f"{label}: layer {problem.layers[layer].name!r} has undissolved solute "
+                      "in one route only")
+                continue
+            at = theirs.layers.index(layer)
+            thickness = problem.layers[layer].thickness
+            name = problem.layers[layer].name
+            for side in ("outer", "inner"):
+                a = getattr(mine, side)[:, column]
+                b = getattr(theirs, side)[:, at]
+                both = np.isfinite(a) & np.isfinite(b) & (internal > 0.0)
+                if not np.any(both):
+                    continue
+                errors = np.where(both, np.abs(a - b) / thickness, np.nan)
+                value, when = worst(errors, internal)
+                offer("cross_check.front_position", value,
+                      f"{label}: {side} edge of the undissolved region of layer {name!r} at "
+                      f"{int(np.sum(both))} times, worst at t = {when} s, as a fraction of "
+                      f"its thickness {thickness:.6g} m")
+            t_a, t_b = mine.time_depleted[column], theirs.time_depleted[at]
+            if t_a is None and t_b is None:
+                continue
+            if t_a is None or t_b is None:
+                offer("cross_check.time_depleted", math.inf,
+                      f"{label}: the undissolved solute of layer {name!r} runs out within the "
+                      f"duration in one route only ({t_a} s vs {t_b} s)")
+                continue
+            offer("cross_check.time_depleted", abs(t_a - t_b) / max(abs(t_a), 1e-300),
+                  f"{label}: layer {name!r} runs out of undissolved solute at {t_a:.9g} s vs "
+                  f"{t_b:.9g} s, relative")
+    for name, found in checks.items():
+        found.report(outcome, problem, name)

@@ -1,4 +1,5 @@
-"""Galerkin finite elements in space, Radau IIA in time: a second transient discretisation.
+"""Galerkin finite elements in space, extrapolated implicit Euler in time: a second transient
+discretisation.
 
 This solver shares no discretisation with the method of lines (``method_of_lines``: cell-centred
 finite volumes, BDF). It exists so that transient cases without an exact series (zero-order
@@ -25,13 +26,26 @@ Gauss-Legendre rule, exact for the r^n-weighted mass and stiffness (degree <= 5)
 the first-order and Michaelis-Menten reaction at the Gauss points (the consistent reaction load).
 
 Zero-order consumption jumps from Q to 0 where C reaches 0, where no Gauss rule gains accuracy;
-its load is taken by nodal quadrature, ``Q s(C_i/eps) int phi_i r^n`` (the product
-approximation of the lumped mass method, Thomee 2006, ch. 15 and 14): a node that has run out
-consumes nothing, the scheme keeps the maximum principle, and the node at a moving front
-settles inside the switch so that its share consumes what the front zone does. A node held by a
-concentration face cannot settle, so on the elements next to such a face the zero-order load is
-taken at the Gauss points instead (the nodal rule there would drop the consumption of the
-face's half element, an O(h) error in the amounts).
+its load is taken by nodal quadrature, ``Q int phi_i r^n`` while the node holds solute (the
+product approximation of the lumped mass method, Thomee 2006, ch. 15 and 14), and a node that
+has run out consumes what reaches it and no more: a complementarity condition solved exactly in
+each implicit substep (``galerkin_steps``), so the scheme keeps the maximum principle. A node
+held by a concentration face cannot run out, so on the elements next to such a face the
+zero-order load is taken at the Gauss points instead, with the rate switched off smoothly over
+``ZERO_ORDER_SWITCH`` of the concentration scale (the nodal rule there would drop the
+consumption of the face's half element, an O(h) error in the amounts).
+
+Solubility
+----------
+A layer with a solubility S holds dissolved solute up to S and undissolved solute beyond it,
+which does not diffuse. The lumped scheme carries per node the dissolved potential u and the
+undissolved amount s >= 0 (r^n-weighted): the node's content is ``m_i u_i + s_i``, and
+``u_i <= S/K`` with ``s_i (S/K - u_i) = 0`` (an enthalpy-type formulation on the total
+content, as for the Stefan problem: C.M. Elliott, J.R. Ockendon, *Weak and Variational Methods
+for Moving Boundary Problems*, Pitman, 1982, ch. 2). An interface node's undissolved solute
+belongs to the layer whose limit binds there. The edge of a layer's undissolved region is read
+from the partly dissolved node at each end of it: its fraction ``s_i / ((C0 - S) int phi_i
+r^n)`` of its dual cell (element midpoints), taken in the r^n measure.
 
 Mass matrix: lumped (row sums of the consistent matrix, ``m_i = int K phi_i r^n``). Lumping keeps
 the P1 scheme second order in the L2 norm and in the amounts (Thomee 2006, ch. 15, Theorem
@@ -39,7 +53,7 @@ the P1 scheme second order in the L2 norm and in the amounts (Thomee 2006, ch. 1
 principle, so that a released or consumed solute does not undershoot below zero through mass
 coupling (Thomee 2006, ch. 15 shows the consistent mass matrix does not), which the exhaustion
 of zero-order consumption and the Michaelis-Menten rate need. It also gives an ODE system
-``du/dt = f(u)`` without a mass matrix, which ``solve_ivp`` requires.
+``du/dt = f(u)`` without a mass matrix, which the substeps solve as a tridiagonal system.
 
 Faces
 -----
@@ -66,16 +80,11 @@ the pre-impulse amounts are reported (nothing released).
 
 Time
 ----
-The nodal values and three cumulative amounts (out through the inner face, out through the
-outer face, consumed) are integrated together by ``scipy.integrate.solve_ivp(method="Radau")``:
-the three-stage Radau IIA implicit Runge-Kutta scheme of order 5, L-stable, with error control
-(E. Hairer, G. Wanner, *Solving Ordinary Differential Equations II*, 2nd ed., Springer, 1996,
-section IV.8) - a one-step collocation scheme, not a multistep (BDF) one - with the exact sparse
-Jacobian. Zero-order consumption stops where C reaches 0: its rate ``Q [C > 0]`` is regularised
-as ``Q s(C/eps)``, ``s(x) = x^2 (3 - 2x)`` on [0, 1] (0 below, 1 above), eps =
-``ZERO_ORDER_SWITCH`` times the case's concentration scale, so the Newton iterations see a
-continuous Jacobian. Michaelis-Menten consumes nothing where C < 0 (which the maximum principle
-excludes for the exact solution).
+``galerkin_steps``: implicit Euler with 1, 2, 3 and 4 substeps per step, extrapolated (Hairer &
+Wanner 1996, section IV.9), the smooth balance linearised once per step with its exact
+tridiagonal Jacobian (LAPACK ``dgtsv``), the switching terms exact; error control on the nodal
+values and the cumulative amounts, steps landing on every requested time. Several meshes are
+stepped together (shared steps, one error norm).
 
 Amounts are per measure: per m^2 (slab), per m (cylinder), total (sphere).
 """
@@ -88,22 +97,31 @@ from dataclasses import dataclass, field
 
 import numpy as np
 from numpy.typing import ArrayLike
-from scipy import sparse
-from scipy.integrate import solve_ivp
+from scipy.interpolate import CubicSpline
 
 from worker.engine.model import Boundary, Problem
+from worker.engine.transient.galerkin_steps import integrate
 from worker.engine.transient.method_of_lines import concentration_scale
 from worker.engine.transient.refinement import AmountStudy, amount_study
 from worker.engine.transient.solution import TransientSolution
 
-#: Relative tolerance of the Radau integration (absolute tolerances scale with it).
+#: Relative tolerance of the time integration (absolute tolerances scale with it).
 RTOL = 1e-6
 #: Absolute tolerance of the nodal concentrations, as a fraction of the concentration scale.
 ATOL_CONCENTRATION = 1e-8
 #: Absolute tolerance of the cumulative amounts, as a fraction of the amount scale.
 ATOL_AMOUNT = 1e-11
-#: Width of the zero-order switch, as a fraction of the concentration scale.
+#: Width of the Gauss-point zero-order switch next to a held face, as a fraction of the
+#: concentration scale.
 ZERO_ORDER_SWITCH = 1e-6
+
+#: Neighbours on either side of a switching node that share its loose step tolerance (the
+#: kink's error decays over a few nodes; see ``galerkin_steps.SWITCH_TOLERANCE``).
+SWITCH_NEIGHBOURS = 4
+#: A layer's undissolved solute counts as gone below this fraction of its initial amount.
+DEPLETED = 1e-10
+#: A step is not shortened toward a depletion closer than this fraction of the time.
+MIN_DEPLETION_STEP = 1e-6
 
 #: Mesh rule of the coarse mesh (``coarse_elements``): at least ``MIN_ELEMENTS`` per layer;
 #: ``RESISTANCE_ELEMENTS`` shared in proportion to each layer's share of the diffusion
@@ -127,12 +145,13 @@ _PHI_INNER = 0.5 * (1.0 - _GAUSS_POINTS)
 _PHI_OUTER = 0.5 * (1.0 + _GAUSS_POINTS)
 
 METHOD_NAME = ("Galerkin finite elements (continuous P1 in C/K, lumped mass, consistent "
-               "boundary flux), Radau IIA (solve_ivp) with error control")
+               "boundary flux), extrapolated implicit Euler with error control")
 METHOD_REFERENCE = (
     "V. Thomee, Galerkin Finite Element Methods for Parabolic Problems, 2nd ed., 2006, ch. 1 "
     "and 15 (lumped mass); T.J.R. Hughes et al., consistent flux boundary conditions, ASME FED "
     "43 (1986); E. Hairer, G. Wanner, Solving Ordinary Differential Equations II, 1996, "
-    "section IV.8 (Radau IIA)"
+    "section IV.9 (extrapolated implicit Euler); M. Hintermueller, K. Ito, K. Kunisch, SIAM J. "
+    "Optim. 13 (2002) 865 (active sets)"
 )
 
 __all__ = [
@@ -242,11 +261,11 @@ def _face(problem: Problem, side: str) -> _Face:
 
 
 class _System:
-    """Lumped-mass P1 systems of several meshes as one block-diagonal ODE system (shared Radau
+    """Lumped-mass P1 systems of several meshes as one block-diagonal ODE system (shared
     steps, one error norm over all meshes; each mesh's discrete solution is otherwise its own).
 
-    State: the nodal u of every mesh, one after the other, then per mesh (out_inner, out_outer,
-    consumed), r^n-weighted without the measure factor.
+    State of the stepper: the nodal u of every mesh, then the undissolved s of every node, then per
+    mesh (out_inner, out_outer, consumed), r^n-weighted without the measure factor.
     """
 
     def __init__(self, problem: Problem, meshes: list[GalerkinMesh], c_scale: float):
@@ -265,6 +284,7 @@ class _System:
         self.node_mesh = np.repeat(np.arange(self.count), sizes)
         element_mesh = self.node_mesh[self.left]
         r1, r2 = nodes[self.left], nodes[self.right]
+        self.element_r1, self.element_r2 = r1, r2
         length = r2 - r1
         points = 0.5 * (r1 + r2)[:, None] + 0.5 * length[:, None] * _GAUSS_POINTS
         #: r^n-weighted quadrature weights at the Gauss points, shape (elements, 3)
@@ -312,13 +332,33 @@ class _System:
         self.zero = np.flatnonzero(by_node)
         self.zero_rate = zero_rate[by_node]
         self.has_zero_order = bool(np.any(zero_rate > 0.0))
-        self.epsilon = ZERO_ORDER_SWITCH * c_scale
+        self.epsilon = ZERO_ORDER_SWITCH * c_scale  # the Gauss-point switch next to a held face
         self.reacts = bool(self.smooth.size or self.zero.size)
+        #: nodal zero-order rate q_i = Q int phi_i r^n (a switch solved by complementarity)
+        self.nodal_zero = self._gather(
+            np.bincount(self.zero, self.zero_rate * self.inner_load[self.zero],
+                        minlength=self.left.size),
+            np.bincount(self.zero, self.zero_rate * self.outer_load[self.zero],
+                        minlength=self.left.size))
+        self.nonlinear = self.has_saturable or self.has_smooth_zero
+        self.newton_tolerance = 1e-3 * ATOL_CONCENTRATION * c_scale / float(
+            np.min(self.partition))
+        self.held_value = np.zeros(size)
+        for face, nodes_of_face in ((self.inner, self.inner_nodes),
+                                    (self.outer, self.outer_nodes)):
+            if face.kind == "dirichlet":
+                self.held_value[nodes_of_face] = face.value
+        self._saturation(problem, index, element_mesh)
+        self.u_scale = c_scale / float(np.min(self.partition))
+        self.stiffness_diagonal = self._gather(self.stiffness, self.stiffness)
+        #: undissolved scale of each node for the step tolerance (set by the driver)
+        self.solid_scale = np.ones(size)
+        self.zero_nodes = (self.nodal_zero > 0.0) & self.free
+        self.limited = np.isfinite(self.saturation_potential)
         self.first_elements = self.inner_nodes - np.arange(self.count)
         self.last_elements = self.outer_nodes - 1 - np.arange(self.count)
         free = self.free
         self.inverse_mass = np.where(free, 1.0 / self.lumped, 0.0)
-        self.amount_rows = size + 3 * np.arange(self.count)
 
     def _gather(self, at_left: np.ndarray, at_right: np.ndarray) -> np.ndarray:
         """Element contributions to their inner and outer node, summed per node."""
@@ -338,25 +378,207 @@ class _System:
                 u[held] = face.value
         return np.concatenate((u, amounts.ravel()))
 
+    def start_state(self) -> np.ndarray:
+        """The stepping state at 0+: (u, s, amounts), the content of each node split into
+        dissolved (at most its saturation potential) and undissolved; otherwise as
+        :meth:`initial_state`."""
+        ode = self.initial_state()
+        u = ode[: self.size]
+        solid = np.zeros(self.size)
+        if self.can_saturate:
+            content = self.initial_nodal_load
+            limited = np.isfinite(self.saturation_potential)
+            dissolved = np.minimum(content, self.lumped * np.where(
+                limited, self.saturation_potential, np.inf))
+            solid = np.where(limited, content - dissolved, 0.0)
+            u = np.where(limited, dissolved / self.lumped, u)
+        self.initial_undissolved = self.layer_undissolved(solid)
+        return np.concatenate((u, solid, ode[self.size:]))
+
     def stiffness_apply(self, u: np.ndarray) -> np.ndarray:
         """A u with A the r^n-weighted stiffness matrix int D K phi_i' phi_j' r^n."""
         flow = self.stiffness * (u[self.right] - u[self.left])
         return self._gather(-flow, flow)
 
-    def _zero_order(self, u: np.ndarray, slopes: bool):
-        """Zero-order load by nodal quadrature, ``Q s(C_node/eps) int phi_i r^n``: the rate
-        jumps at C = 0, where Gauss points gain nothing in accuracy, and a node that has run
-        out then consumes nothing (the lumped scheme keeps the maximum principle). Returns the
-        element's (inner, outer) loads and, with ``slopes``, their derivatives."""
-        k = self.partition[self.zero]
-        values = []
-        for nodes, load in ((self.left, self.inner_load), (self.right, self.outer_load)):
-            x = np.clip(k * u[nodes[self.zero]] / self.epsilon, 0.0, 1.0)
-            weight = self.zero_rate * load[self.zero]
-            values.append(weight * x * x * (3.0 - 2.0 * x))
+    def _saturation(self, problem: Problem, index: np.ndarray, element_mesh: np.ndarray) -> None:
+        """Saturation potential U_i = S/K of each node (the smaller of its elements' layers;
+        inf where no layer limits it), the layer that holds a node's undissolved solute (an
+        interface node: the layer whose limit binds) and each node's undissolved capacity
+        ``(C0 - S) int phi_i r^n`` over that layer's elements (the reference of a front)."""
+        size = self.size
+        layers = problem.layers
+        count = len(layers)
+        limits = np.array([np.inf if ly.solubility is None else ly.solubility / ly.partition
+                           for ly in layers])
+        element_limit = limits[index]
+        self.saturation_potential = np.full(size, np.inf)
+        np.minimum.at(self.saturation_potential, self.left, element_limit)
+        np.minimum.at(self.saturation_potential, self.right, element_limit)
+        self.saturation_potential[~self.free] = np.inf
+        self.can_saturate = bool(np.any(np.isfinite(self.saturation_potential)))
+        # owner: the inner layer, unless the outer one's limit binds
+        right_layer = np.full(size, -1)
+        right_layer[self.left] = index
+        left_layer = np.full(size, -1)
+        left_layer[self.right] = index
+        owner = np.where(left_layer >= 0, left_layer, right_layer)
+        both = (left_layer >= 0) & (right_layer >= 0) & (left_layer != right_layer)
+        outer_binds = both & (limits[np.maximum(right_layer, 0)]
+                              < limits[np.maximum(left_layer, 0)])
+        owner = np.where(outer_binds, right_layer, owner)
+        self.node_owner = owner
+        excess = np.array([max(ly.initial - ly.solubility, 0.0) if ly.solubility is not None
+                           else 0.0 for ly in layers])
+        mine_left = index == owner[self.left]
+        mine_right = index == owner[self.right]
+        self.undissolved_capacity = (
+            np.bincount(self.left, np.where(mine_left, excess[index] * self.inner_load, 0.0),
+                        minlength=size)
+            + np.bincount(self.right, np.where(mine_right, excess[index] * self.outer_load,
+                                               0.0), minlength=size))
+        #: per node, the span of its dual cell (element midpoints) inside its owner layer
+        nodes = np.zeros(size)
+        nodes[self.left] = self.element_r1
+        nodes[self.right] = self.element_r2
+        self.node_r = nodes
+        low = nodes.copy()
+        high = nodes.copy()
+        mid = 0.5 * (self.element_r1 + self.element_r2)
+        low[self.right] = np.where(mine_right, mid, nodes[self.right])
+        high[self.left] = np.where(mine_left, mid, nodes[self.left])
+        self.cell_low, self.cell_high = low, high
+        self.layer_count = count
+        self.loaded_layers = [j for j, ly in enumerate(layers) if ly.is_loaded_above_solubility]
+
+    def balance(self, u: np.ndarray, tau: float, slopes: bool = True):
+        """``(A u + F(u) - B(u), d/du diagonal, d/du coupling of node k with k + 1)``: the
+        nodal balance without the time derivative and the switching terms (F the Gauss-point
+        reaction load, B the Robin or imposed-flux inflow at a face that holds no value); the
+        coupling has size - 1 entries (zero between meshes). ``tau`` is unused (kept for the
+        callers' symmetry)."""
+        size = self.size
+        flow_e = self.stiffness * (u[self.right] - u[self.left])
+        flow = self._gather(-flow_e, flow_e)
+        diag = self.stiffness_diagonal.copy() if slopes else np.zeros(0)
+        off_e = -self.stiffness if slopes else np.zeros(0)
+        if self.smooth.size:
+            e = self.smooth
+            values = self._smooth(u, slopes)
+            flow += (np.bincount(self.left[e], values[0], minlength=size)
+                     + np.bincount(self.right[e], values[1], minlength=size))
             if slopes:
-                values.append(weight * 6.0 * x * (1.0 - x) * k / self.epsilon)
-        return values
+                diag += (np.bincount(self.left[e], values[2], minlength=size)
+                         + np.bincount(self.right[e], values[3], minlength=size))
+                off_e = off_e.copy()
+                off_e[e] += values[4]
+        for face, held in ((self.inner, self.inner_nodes), (self.outer, self.outer_nodes)):
+            if face.kind == "robin":
+                flow[held] -= face.weight * face.coefficient * (face.bulk - face.ratio * u[held])
+                if slopes:
+                    diag[held] = diag[held] + face.weight * face.coefficient * face.ratio
+            elif face.kind == "flux":
+                flow[held] -= face.weight * face.value
+        if slopes:
+            off = np.zeros(size - 1)
+            off[self.left] = off_e
+            return flow, diag, off
+        return flow, None, None
+
+    def substep_amounts(self, u: np.ndarray, flow: np.ndarray, rate: np.ndarray):
+        """Per mesh: inflow through the inner and outer face and the consumption rate of a
+        substep ending at u (``flow`` the balance of :meth:`balance` there, ``rate`` the nodal
+        zero-order rates). The stiffness rows sum to zero, so the Gauss-point consumption is
+        the sum of ``flow`` plus the Robin and imposed inflows."""
+        inflows: list[np.ndarray] = []
+        consumption = np.bincount(self.node_mesh, flow + rate, minlength=self.count).astype(float)
+        for face, held in ((self.inner, self.inner_nodes), (self.outer, self.outer_nodes)):
+            if face.kind == "dirichlet":
+                inflows.append(flow[held])
+                continue
+            if face.kind == "robin":
+                inflow = face.weight * face.coefficient * (face.bulk - face.ratio * u[held])
+            elif face.kind == "flux":
+                inflow = np.full(self.count, face.weight * face.value)
+            else:
+                inflow = np.zeros(self.count)
+            inflows.append(np.asarray(inflow, dtype=float))
+            consumption = consumption + inflow
+        return inflows[0], inflows[1], consumption
+
+    def project(self, y: np.ndarray) -> np.ndarray:
+        """Split each node's content ``m u + s`` again into dissolved (at most the saturation
+        potential) and undissolved (non-negative), keeping the content."""
+        size = self.size
+        if self.zero.size:
+            # a node that has run out holds nothing: an extrapolated overshoot below zero is
+            # taken back from the consumed amount, so the balance stays closed
+            below = (self.nodal_zero > 0.0) & (y[:size] < 0.0)
+            if below.any():
+                y = y.copy()
+                back = self.lumped * np.where(below, -y[:size], 0.0)
+                y[:size][below] = 0.0
+                y[2 * size + 2 + 3 * np.arange(self.count)] -= np.bincount(
+                    self.node_mesh, back, minlength=self.count)
+        if not self.can_saturate:
+            return y
+        u, s = y[:size], y[size:2 * size]
+        content = self.lumped * u + s
+        limited = np.isfinite(self.saturation_potential)
+        solid = np.where(limited, np.maximum(
+            content - self.lumped * np.where(limited, self.saturation_potential, 0.0), 0.0), 0.0)
+        out = y.copy()
+        out[:size] = np.where(limited, (content - solid) / self.lumped, u)
+        out[size:2 * size] = solid
+        return out
+
+    def switching_nodes(self, y0: np.ndarray, y1: np.ndarray) -> np.ndarray:
+        """Nodes (and their neighbours) where a switching term changes between two states:
+        a zero-order node running out or coming back, a node's undissolved solute appearing
+        or running out."""
+        size = self.size
+        changed = np.zeros(size, dtype=bool)
+        if self.zero.size:
+            changed |= (self.nodal_zero > 0.0) & ((y0[:size] > 0.0) != (y1[:size] > 0.0))
+        if self.can_saturate:
+            changed |= (y0[size:2 * size] > 0.0) != (y1[size:2 * size] > 0.0)
+        if self.zero.size:
+            # a node that ran out within the step, seen from either end (an extrapolated
+            # state may bring it back a little)
+            changed |= (self.nodal_zero > 0.0) & ((y0[:size] <= 0.0) | (y1[:size] <= 0.0)) & (
+                np.maximum(y0[:size], y1[:size]) > 0.0)
+        for _ in range(SWITCH_NEIGHBOURS):
+            if not changed.any():
+                break
+            spread = changed.copy()
+            spread[self.left] |= changed[self.right]
+            spread[self.right] |= changed[self.left]
+            changed = spread
+        return changed
+
+    def layer_undissolved(self, s: np.ndarray) -> np.ndarray:
+        """Undissolved amount (r^n-weighted) per mesh and layer, shape (meshes, layers)."""
+        key = self.node_mesh * self.layer_count + self.node_owner
+        return np.bincount(key, s, minlength=self.count * self.layer_count).reshape(
+            self.count, self.layer_count)
+
+    def limit_to_depletion(self, y: np.ndarray, t: float, h: float, history) -> float:
+        """Shorten a step in which a layer's undissolved solute would run out at the rate of
+        the last step, so that the step ends just after it (its time is then read within a
+        short step)."""
+        if not self.loaded_layers or len(history.states) < 2:
+            return h
+        size = self.size
+        now = self.layer_undissolved(y[size:2 * size])
+        before = self.layer_undissolved(history.states[-2][size:2 * size])
+        span = t - history.ts[-2]
+        rate = (before - now) / span if span > 0.0 else np.zeros_like(now)
+        live = (now > DEPLETED * self.initial_undissolved) & (rate > 0.0)
+        if not np.any(live):
+            return h
+        ahead = float(np.min(now[live] / rate[live]))
+        if ahead < h and ahead > MIN_DEPLETION_STEP * max(t, h):
+            return 1.02 * ahead
+        return h
 
     def _smooth(self, u: np.ndarray, slopes: bool):
         """First-order and Michaelis-Menten load by three-point Gauss quadrature,
@@ -396,9 +618,7 @@ class _System:
             load += (np.bincount(self.left[self.smooth], inner, minlength=self.size)
                      + np.bincount(self.right[self.smooth], outer, minlength=self.size))
         if self.zero.size:
-            inner, outer = self._zero_order(u, False)
-            load += (np.bincount(self.left[self.zero], inner, minlength=self.size)
-                     + np.bincount(self.right[self.zero], outer, minlength=self.size))
+            load += np.where(u > 0.0, self.nodal_zero, 0.0)
         return load
 
     def face_inflows(self, u: np.ndarray, balance: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
@@ -416,74 +636,6 @@ class _System:
             else:
                 inflows.append(np.zeros(self.count))
         return inflows[0], inflows[1]
-
-    def __call__(self, t: float, y: np.ndarray) -> np.ndarray:
-        u = y[: self.size]
-        load = self.reaction_load(u) if self.reacts else np.zeros(self.size)
-        balance = self.stiffness_apply(u) + load
-        inflow_inner, inflow_outer = self.face_inflows(u, balance)
-        residual = -balance
-        if self.inner.kind != "dirichlet":
-            residual[self.inner_nodes] += inflow_inner
-        if self.outer.kind != "dirichlet":
-            residual[self.outer_nodes] += inflow_outer
-        out = np.empty_like(y)
-        out[: self.size] = residual * self.inverse_mass
-        out[self.amount_rows] = -inflow_inner
-        out[self.amount_rows + 1] = -inflow_outer
-        out[self.amount_rows + 2] = np.bincount(self.node_mesh, load, minlength=self.count)
-        return out
-
-    def jacobian(self, t: float, y: np.ndarray) -> sparse.csc_matrix:
-        """Exact Jacobian (CSC) of ``__call__``."""
-        size = self.size
-        u = y[:size]
-        # d(A u + F)/du: diagonal ``main``, per element the coupling ``off`` of its two nodes
-        main = self._gather(self.stiffness, self.stiffness)
-        off = -self.stiffness.copy()
-        column_sums = np.zeros(size)  # d(sum of F)/du_j
-        if self.smooth.size:
-            _, _, inner, outer, coupling = self._smooth(u, True)
-            e = self.smooth
-            main += (np.bincount(self.left[e], inner, minlength=size)
-                     + np.bincount(self.right[e], outer, minlength=size))
-            off[e] += coupling
-            column_sums += (np.bincount(self.left[e], inner + coupling, minlength=size)
-                            + np.bincount(self.right[e], outer + coupling, minlength=size))
-        if self.zero.size:
-            _, inner, _, outer = self._zero_order(u, True)
-            e = self.zero
-            nodal = (np.bincount(self.left[e], inner, minlength=size)
-                     + np.bincount(self.right[e], outer, minlength=size))
-            main += nodal
-            column_sums += nodal
-        scale = self.inverse_mass
-        index = np.arange(size)
-        rows = [index, self.right, self.left]
-        cols = [index, self.left, self.right]
-        data = [-main * scale, -off * scale[self.right], -off * scale[self.left]]
-        for k, (face, held, elements, neighbours) in enumerate((
-                (self.inner, self.inner_nodes, self.first_elements, self.inner_nodes + 1),
-                (self.outer, self.outer_nodes, self.last_elements, self.outer_nodes - 1))):
-            amount = self.amount_rows + k
-            if face.kind == "dirichlet":
-                # inflow = (A u + F)_held: its derivative is that node's row
-                rows += [amount, amount]
-                cols += [held, neighbours]
-                data += [-main[held], -off[elements]]
-            elif face.kind == "robin":
-                slope = -face.weight * face.coefficient * face.ratio
-                rows += [held, amount]
-                cols += [held, held]
-                data += [slope * scale[held], np.full(self.count, -slope)]
-        rows.append(self.amount_rows[self.node_mesh] + 2)
-        cols.append(index)
-        data.append(column_sums)
-        total = size + 3 * self.count
-        matrix = sparse.coo_matrix(
-            (np.concatenate(data), (np.concatenate(rows), np.concatenate(cols))),
-            shape=(total, total))
-        return matrix.tocsc()
 
 
 @dataclass
@@ -506,6 +658,17 @@ class TransientGalerkinSolution(TransientSolution):
     concentration_at: Callable[..., np.ndarray]
     state_at: Callable[[ArrayLike], np.ndarray]
     diagnostics: dict = field(default_factory=dict)
+    #: undissolved amount per measure at the times (zeros where no layer can saturate)
+    undissolved: np.ndarray | None = None
+    #: indices of the layers loaded above their solubility at t = 0
+    loaded_layers: list[int] = field(default_factory=list)
+    #: per time and loaded layer (columns as ``loaded_layers``), the outer and the inner edge
+    #: of the layer's undissolved region, m (NaN once its undissolved solute is gone)
+    front_outer: np.ndarray | None = None
+    front_inner: np.ndarray | None = None
+    #: per loaded layer, the time its undissolved solute ran out, s (None: not within the
+    #: integration)
+    time_depleted_layers: list[float | None] = field(default_factory=list)
 
 
 def coarse_elements(problem: Problem, first_time: float | None = None) -> tuple[int, ...]:
@@ -564,7 +727,8 @@ def solve_transient_galerkin(
     rtol: float = RTOL,
     end: float | None = None,
 ) -> TransientGalerkinSolution:
-    """Solve a transient case by P1 Galerkin elements and Radau IIA, at the requested times.
+    """Solve a transient case by P1 Galerkin elements and extrapolated implicit Euler, at the
+    requested times.
 
     Parameters
     ----------
@@ -604,46 +768,136 @@ def solve_transient_galerkin_meshes(
     rtol: float = RTOL,
     end: float | None = None,
 ) -> list[TransientGalerkinSolution]:
-    """Integrate several meshes as one block-diagonal system (shared Radau steps, one error
-    norm over all); each mesh's discrete solution is otherwise its own. Parameters as
+    """Integrate several meshes as one block-diagonal system (shared steps, one error norm over
+    all); each mesh's discrete solution is otherwise its own. Parameters as
     ``solve_transient_galerkin``; ``meshes`` is a list of ``elements_per_layer``."""
     _check_case(problem)
     times, end = _times(problem, times, end, 0.0)
     c_scale = concentration_scale(problem)
     built = [build_galerkin_mesh(problem, spec) for spec in meshes]
     system = _System(problem, built, c_scale)
-    y0 = system.initial_state()
-    amount_scale = np.maximum(np.abs(system.initial_loads),
+    y0 = system.start_state()
+    total_load = system.initial_loads
+    amount_scale = np.maximum(np.abs(total_load),
                               c_scale * np.bincount(system.node_mesh, system.lumped)
                               / max(ly.partition for ly in problem.layers))
     u_scale = c_scale / min(ly.partition for ly in problem.layers)
+    solid_scale = np.maximum(system.undissolved_capacity, ATOL_CONCENTRATION * u_scale
+                             * system.lumped)
+    system.solid_scale = solid_scale
     atol = np.concatenate((np.full(system.size, ATOL_CONCENTRATION * u_scale),
+                           ATOL_CONCENTRATION * solid_scale,
                            np.repeat(ATOL_AMOUNT * amount_scale, 3))) * (rtol / RTOL)
     span_end = max(end, 1e-300)
-    result = solve_ivp(system, (0.0, span_end), y0, method="Radau",
-                       t_eval=np.clip(times, 0.0, span_end), dense_output=True, rtol=rtol,
-                       atol=atol, jac=system.jacobian)
-    success = bool(result.success) and result.y.shape[1] == times.size
-    states = result.y if success else np.full((y0.size, times.size), np.nan)
+    history = integrate(system, y0, np.clip(times, 0.0, span_end), span_end, rtol, atol)
+    ts = np.asarray(history.ts)
+    stored = np.array(history.states)  # (steps + 1, state)
+    success = history.success and ts[-1] >= times[-1] * (1.0 - 1e-12)
+    size = system.size
+    if success:
+        at = np.searchsorted(ts, times * (1.0 - 1e-12), side="left")
+        at = np.minimum(at, ts.size - 1)
+        states = stored[at].T
+    else:
+        states = np.full((y0.size, times.size), np.nan)
+    dense = _dense(ts, stored, size) if success else None
     inflows = np.zeros((2, times.size, system.count))
     for k in range(times.size):
-        u = states[: system.size, k]
-        load = system.reaction_load(u) if system.reacts else np.zeros(system.size)
+        u = states[:size, k]
+        load = system.reaction_load(u) if system.reacts else np.zeros(size)
         inflows[:, k] = system.face_inflows(u, system.stiffness_apply(u) + load)
-    return [_package(problem, system, g, times, states, inflows[:, :, g], success, result,
-                     rtol) for g in range(system.count)]
+    return [_package(problem, system, g, times, states, inflows[:, :, g], success, history,
+                     dense, stored, rtol) for g in range(system.count)]
+
+
+def _dense(ts: np.ndarray, stored: np.ndarray, size: int):
+    """Dense output of (u, amounts) over the accepted steps: the not-a-knot cubic spline
+    through the step ends (exact at every step end, fourth order between smooth steps)."""
+    keep = np.concatenate((np.arange(size), np.arange(2 * size, stored.shape[1])))
+    values = stored[:, keep]
+    if ts.size >= 4:
+        spline = CubicSpline(ts, values, axis=0)
+        return lambda t: spline(np.asarray(t, dtype=float)).T
+    return lambda t: np.array([np.interp(np.asarray(t, dtype=float), ts, column)
+                               for column in values.T])
+
+
+def _fronts(system: _System, g: int, solid: np.ndarray, exponent: int):
+    """Outer and inner edge of each loaded layer's undissolved region on mesh g, from the
+    partly dissolved node at each end: its undissolved fraction of the dual cell, read in the
+    r^n measure (the region holds its initial excess over the solubility, so a node's fraction
+    f = s / capacity occupies that fraction of the cell's volume)."""
+    low, high = int(system.node_offsets[g]), int(system.node_offsets[g + 1])
+    owner = system.node_owner[low:high]
+    capacity = system.undissolved_capacity[low:high]
+    a = system.cell_low[low:high]
+    b = system.cell_high[low:high]
+    power = exponent + 1
+    outer, inner = [], []
+    for j in system.loaded_layers:
+        mine = np.flatnonzero(owner == j)
+        total0 = float(system.initial_undissolved[g, j])
+        here = solid[mine]
+        if not np.sum(here) > DEPLETED * total0:
+            outer.append(math.nan)
+            inner.append(math.nan)
+            continue
+        present = mine[here > DEPLETED * capacity[mine]]
+        if present.size == 0:
+            present = mine[here > 0.0]
+        last, first = int(present.max()), int(present.min())
+        f_out = min(1.0, solid[last] / capacity[last]) if capacity[last] > 0.0 else 1.0
+        f_in = min(1.0, solid[first] / capacity[first]) if capacity[first] > 0.0 else 1.0
+        lo, hi = a[last] ** power, b[last] ** power
+        outer.append(float((lo + f_out * (hi - lo)) ** (1.0 / power)))
+        lo, hi = a[first] ** power, b[first] ** power
+        inner.append(float((hi - f_in * (hi - lo)) ** (1.0 / power)))
+    return outer, inner
+
+
+def _depletion_times(system: _System, g: int, ts: np.ndarray, stored: np.ndarray
+                     ) -> list[float | None]:
+    """Per loaded layer, when its undissolved solute ran out on mesh g: within the step where
+    it did, at the rate of the step before (None where it did not)."""
+    size = system.size
+    low, high = int(system.node_offsets[g]), int(system.node_offsets[g + 1])
+    key = system.node_owner[low:high]
+    totals = np.array([np.bincount(key, row[size + low:size + high],
+                                   minlength=system.layer_count) for row in stored])
+    found: list[float | None] = []
+    for j in system.loaded_layers:
+        series = totals[:, j]
+        gone = series <= DEPLETED * float(system.initial_undissolved[g, j])
+        if not np.any(gone):
+            found.append(None)
+            continue
+        n = int(np.argmax(gone))
+        if n == 0:
+            found.append(0.0)
+            continue
+        start, stop = float(ts[n - 1]), float(ts[n])
+        left = float(series[n - 1])
+        if n >= 2 and ts[n - 1] > ts[n - 2] and series[n - 2] > left:
+            rate = (float(series[n - 2]) - left) / float(ts[n - 1] - ts[n - 2])
+            found.append(min(stop, start + left / rate))
+        else:
+            found.append(stop)
+    return found
 
 
 def _package(problem: Problem, system: _System, g: int, times: np.ndarray, states: np.ndarray,
-             inflows: np.ndarray, success: bool, result, rtol: float
-             ) -> TransientGalerkinSolution:
+             inflows: np.ndarray, success: bool, history, dense, stored: np.ndarray,
+             rtol: float) -> TransientGalerkinSolution:
     mesh = system.meshes[g]
     low, high = int(system.node_offsets[g]), int(system.node_offsets[g + 1])
-    row = int(system.amount_rows[g])
+    size = system.size
+    row = 2 * size + 3 * g
     n = high - low
     measure = problem.measure_factor
     nodal = states[low:high].T
-    remaining = measure * (nodal @ system.lumped[low:high])
+    solid = states[size + low:size + high].T
+    undissolved = measure * solid.sum(axis=1)
+    remaining = measure * (nodal @ system.lumped[low:high]) + undissolved
     out_inner, out_outer, consumed = (measure * states[row + k].copy() for k in range(3))
     initial_load = measure * float(system.initial_loads[g])
     at_start = times == 0.0
@@ -655,14 +909,14 @@ def _package(problem: Problem, system: _System, g: int, times: np.ndarray, state
     # outward flux density J (toward larger r): J_inner = inflow, J_outer = -inflow
     flux_inner = inflows[0] / weight_inner if weight_inner > 0.0 else np.zeros(times.size)
     flux_outer = -inflows[1] / weight_outer
-    dense = result.sol
     partitions = np.array([ly.partition for ly in problem.layers])
+    ode_row = size + 3 * g  # in the dense output: u of every mesh, then the amounts
 
     def state_at(t):
         if dense is None:
             raise ValueError("no dense output: the integration failed")
         values = dense(np.asarray(t, dtype=float))
-        return np.concatenate((values[low:high], values[row:row + 3]))
+        return np.concatenate((values[low:high], values[ode_row:ode_row + 3]))
 
     def concentration_at(r, at_times, layer: int | None = None):
         r = np.atleast_1d(np.asarray(r, dtype=float))
@@ -676,6 +930,17 @@ def _package(problem: Problem, system: _System, g: int, times: np.ndarray, state
         rows = np.array([state_at(tk)[:n] for tk in t])
         return np.array([np.interp(r, mesh.nodes, u) for u in rows]) * partitions[layers]
 
+    loaded = list(system.loaded_layers)
+    front_outer = np.full((times.size, len(loaded)), np.nan)
+    front_inner = np.full((times.size, len(loaded)), np.nan)
+    depleted: list[float | None] = [None] * len(loaded)
+    if loaded and success:
+        full = states[size:2 * size].T
+        for k in range(times.size):
+            front_outer[k], front_inner[k] = _fronts(system, g, full[k][low:high],
+                                                     problem.exponent)
+        depleted = _depletion_times(system, g, np.asarray(history.ts), stored)
+    ts = np.asarray(history.ts, dtype=float)
     return TransientGalerkinSolution(
         method=METHOD_NAME,
         reference=METHOD_REFERENCE,
@@ -688,7 +953,7 @@ def _package(problem: Problem, system: _System, g: int, times: np.ndarray, state
         flux_outer=flux_outer,
         initial_load=initial_load,
         success=success,
-        message=str(result.message),
+        message=history.message,
         mesh=mesh,
         nodal=nodal,
         concentration_at=concentration_at,
@@ -696,15 +961,20 @@ def _package(problem: Problem, system: _System, g: int, times: np.ndarray, state
         diagnostics={
             "nodes": n,
             "elements_per_layer": list(mesh.elements_per_layer),
-            "steps": int(dense.ts.size - 1) if dense is not None else 0,
-            "step_times": None if dense is None else np.asarray(dense.ts, dtype=float),
-            "rhs_evaluations": int(result.nfev),
-            "jacobian_evaluations": int(result.njev),
-            "lu_decompositions": int(result.nlu),
+            "steps": int(ts.size - 1),
+            "step_times": ts,
+            "rejected_steps": history.rejected,
+            "euler_substeps": history.substeps,
+            "linear_solves": history.solves,
             "rtol": float(rtol),
             "meshes_integrated_together": system.count,
-            "zero_order_switch": system.epsilon if system.has_zero_order else None,
+            "zero_order_switch": system.epsilon if system.has_smooth_zero else None,
         },
+        undissolved=undissolved,
+        loaded_layers=loaded,
+        front_outer=front_outer,
+        front_inner=front_inner,
+        time_depleted_layers=depleted,
     )
 
 

@@ -13,6 +13,8 @@ the internal times, its own initial load, its profile at any internal time and i
 
 from __future__ import annotations
 
+import math
+
 import numpy as np
 
 from worker.engine import convergence
@@ -23,14 +25,15 @@ from worker.engine.transient.galerkin import GalerkinStudy, TransientGalerkinSol
 from worker.engine.transient.laplace import TransientLaplaceSolution, solve_transient_laplace
 from worker.engine.transient.method_of_lines import TransientFVSolution
 from worker.engine.transient.scales import first_crossing
-from worker.engine.transient.solution import Route
+from worker.engine.transient.solution import FrontAccount, Route
 
 #: Log-spaced scan points (over the duration) that bracket t50/t90 of the Laplace route.
 LAPLACE_EVENT_SCAN_POINTS = 48
 #: Release levels of the events.
 EVENT_LEVELS = (("t50", 0.5), ("t90", 0.9))
 
-__all__ = ["EVENT_LEVELS", "fv_route", "galerkin_route", "laplace_route", "series_route"]
+__all__ = ["EVENT_LEVELS", "fv_route", "galerkin_fronts", "galerkin_route", "laplace_route",
+           "series_route"]
 
 
 def _events(outcome: Outcome, key: str) -> dict[str, float | None]:
@@ -183,9 +186,50 @@ def galerkin_route(problem: Problem, study: GalerkinStudy, internal: np.ndarray,
     def concentration(r: np.ndarray, t: float, layer: int) -> np.ndarray:
         return np.asarray(fine.concentration_at(r, [t], layer)[0], dtype=float)
 
-    return Route(f"{fine.method} (three meshes, extrapolated)",
+    route = Route(f"{fine.method} (three meshes, extrapolated)",
                  fine.reference + "; three meshes, Richardson extrapolation (Celik et al., "
                  "J. Fluids Eng. 130 (2008) 078001)",
                  dict(study.amounts.extrapolated), float(fine.initial_load), everywhere,
                  everywhere, profile, galerkin_events(problem, study, duration), band,
                  concentration)
+    route.fronts = galerkin_fronts(study)
+    return route
+
+
+def _extrapolated(per_mesh: list[float | None], sizes: list[float]) -> float | None:
+    """Richardson value of a figure over the fine, medium and coarse mesh where it converges
+    monotonically (Celik et al. 2008), else the fine mesh's; None where the fine has none."""
+    fine = per_mesh[0]
+    if fine is None or not math.isfinite(fine):
+        return None
+    if all(v is not None and math.isfinite(v) for v in per_mesh):
+        found = convergence.grid_study([float(v) for v in per_mesh if v is not None], sizes)
+        if found.convergence == "monotonic" and math.isfinite(found.extrapolated):
+            return float(found.extrapolated)
+    return float(fine)
+
+
+def galerkin_fronts(study: GalerkinStudy) -> FrontAccount | None:
+    """The Galerkin route's fronts and depletion times: per time and loaded layer, extrapolated
+    over the three meshes where they converge monotonically, else the fine mesh's (None where
+    no layer starts above its solubility)."""
+    fine = study.fine
+    if not fine.loaded_layers or fine.front_outer is None or fine.front_inner is None:
+        return None
+    meshes = list(reversed(study.solutions))  # fine, medium, coarse
+    sizes = [float(sum(s.mesh.elements_per_layer)) for s in meshes]
+    shape = fine.front_outer.shape
+    edges: dict[str, np.ndarray] = {}
+    for side in ("front_outer", "front_inner"):
+        values = np.full(shape, np.nan)
+        for k in range(shape[0]):
+            for j in range(shape[1]):
+                per_mesh = [float(getattr(s, side)[k, j]) for s in meshes]
+                found = _extrapolated([v if math.isfinite(v) else None for v in per_mesh],
+                                      sizes)
+                values[k, j] = math.nan if found is None else found
+        edges[side] = values
+    depleted = [_extrapolated([s.time_depleted_layers[j] for s in meshes], sizes)
+                for j in range(len(fine.loaded_layers))]
+    return FrontAccount(list(fine.loaded_layers), edges["front_outer"], edges["front_inner"],
+                        depleted)

@@ -21,6 +21,7 @@ from worker.engine.transient import (
     uptake,
 )
 from worker.engine.transient.compare import (
+    compare_fronts,
     compare_minima,
     compare_routes,
     compare_steady_times,
@@ -183,6 +184,7 @@ def run_transient(problem: Problem, independent: Problem | None = None) -> Outco
 
     compare_routes(outcome, problem, primary, routes[1:], internal, profile_positions(problem),
                    final_index, c_scale, amount_scale, releasing)
+    compare_fronts(outcome, problem, primary, routes[1:], internal)
     minima = [uptake.route_minima(route.profile, problem, profile_positions(problem), internal,
                                   requested_index) for route in routes]
     spread = compare_minima(outcome, problem, routes, minima, internal, requested_index, c_scale)

@@ -11,7 +11,7 @@ import numpy as np
 AMOUNTS = ("remaining", "released_inner", "released_outer", "consumed", "flux_inner",
            "flux_outer")
 
-__all__ = ["AMOUNTS", "Route", "TransientSolution"]
+__all__ = ["AMOUNTS", "FrontAccount", "Route", "TransientSolution"]
 
 
 @dataclass
@@ -40,6 +40,22 @@ class TransientSolution:
     def amounts(self, at: np.ndarray | slice = slice(None)) -> dict[str, np.ndarray]:
         """Each of :data:`AMOUNTS` at the time indices ``at`` (all times by default)."""
         return {name: getattr(self, name)[at] for name in AMOUNTS}
+
+
+@dataclass
+class FrontAccount:
+    """A route's account of the undissolved solute of the layers loaded above their solubility.
+
+    ``layers``: the indices of those layers; ``outer``/``inner``: per internal time and layer
+    (columns as ``layers``) the outer and inner edge of the layer's undissolved region, m (NaN
+    once its undissolved solute is gone); ``time_depleted``: per layer, when its undissolved
+    solute ran out, s (None: not within the duration).
+    """
+
+    layers: list[int]
+    outer: np.ndarray
+    inner: np.ndarray
+    time_depleted: list[float | None]
 
 
 @dataclass
@@ -72,3 +88,5 @@ class Route:
     #: Fluid concentration of each compartment face (``"inner"``/``"outer"``) at the internal
     #: times, amount/m^3 (empty without compartments).
     compartments: dict[str, np.ndarray] = field(default_factory=dict)
+    #: The undissolved solute's fronts and depletion times (None: the route gives none).
+    fronts: FrontAccount | None = None

@@ -1,0 +1,234 @@
+"""Time stepping of the Galerkin system (``galerkin._System``): extrapolated implicit Euler with
+exact complementarity for the switching terms, error control and steps that land on the
+requested times.
+
+One step of size H is taken as implicit Euler with 1, 2 and 3 equal substeps; the three end
+states are combined by the Aitken-Neville table of the harmonic sequence (E. Hairer, G. Wanner,
+*Solving Ordinary Differential Equations II*, 2nd ed., Springer, 1996, section IV.9, the
+extrapolated linearly implicit / implicit Euler methods; P. Deuflhard, Numer. Math. 41 (1983)
+399): the diagonal entry T33 is third order, T33 - T32 its error estimate, and the step size
+follows the standard controller ``H_new = H min(4, max(0.2, 0.9 err^(-1/3)))`` with a weighted
+root-mean-square norm. The stability function of T33 of implicit Euler tends to 0 along the
+negative real axis, where the spectrum of the lumped P1 system lies (a symmetric stiffness
+against a positive diagonal mass), so stiff modes are damped.
+
+Every substep is one implicit Euler system on the r^n-weighted nodal balance
+
+    m_i (u_i - u_i^0) + (s_i - s_i^0) + tau [(A u)_i + F_i(u) + R_i - B_i(u)] = 0,
+
+with ``m`` the lumped mass, ``A`` the stiffness, ``F`` the Gauss-point reaction load,
+``B`` the face inflow (Robin or imposed flux) and two switching terms solved exactly as
+complementarity conditions by the primal-dual active-set method (M. Hintermueller, K. Ito,
+K. Kunisch, SIAM J. Optim. 13 (2002) 865, a semismooth Newton method, finite for M-matrices):
+
+* nodal zero-order consumption ``R_i``: ``R_i = q_i`` where u_i > 0, ``0 <= R_i <= q_i`` where
+  u_i = 0 (the node has run out and consumes what reaches it);
+* undissolved solute ``s_i >= 0`` (a layer with a solubility): ``u_i <= U_i`` (U the saturation
+  potential S/K of the node), ``s_i (U_i - u_i) = 0``: where solid remains the dissolved
+  solute is saturated, and solid dissolves only as fast as diffusion carries solute away.
+
+The smooth remainder (Michaelis-Menten, first order, the Gauss-point zero-order switch next to
+a held face) is solved by Newton's method with the exact tridiagonal Jacobian
+(``scipy.linalg.solve_banded``). The released and consumed amounts of each substep are the
+consistent ones (held face: the residual of its node), so the nodal balance closes to round-off
+at every substep, and the extrapolated amounts, being linear combinations of balanced states,
+close as well. After extrapolation each node's content ``m_i u_i + s_i`` is split again into
+dissolved and undissolved (a projection that keeps the content, so the balance stays closed).
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass, field
+
+import numpy as np
+from scipy.linalg.lapack import dgtsv
+
+__all__ = ["StepHistory", "integrate"]
+
+#: Substep counts of the extrapolation table (the harmonic sequence).
+SEQUENCE = (1, 2, 3, 4)
+#: Order of the error estimate's lower entry plus one: the exponent of the step controller.
+ORDER = len(SEQUENCE)
+#: Step controller: safety factor and bounds on the change of step size.
+SAFETY = 0.9
+GROW = 4.0
+SHRINK = 0.2
+#: Largest number of active-set sweeps and Newton iterations of one substep.
+MAX_SWEEPS = 60
+MAX_NEWTON = 25
+#: The nodal error tolerance, as a fraction of the concentration scale, of a node where a
+#: switching term changes within the step (and of its neighbours): there any one-step scheme is
+#: only first order, the error is local and passes once the switch has happened, and the amounts
+#: it moves stay under the amounts' own tolerance.
+SWITCH_TOLERANCE = 1e-3
+#: Largest number of steps before the integration gives up.
+MAX_STEPS = 200_000
+
+
+@dataclass
+class StepHistory:
+    """Accepted step ends: ``ts`` (s), ``states`` (one row per t: u, s, amounts), the number
+    of steps, rejected steps, implicit Euler substeps and linear solves."""
+
+    ts: list[float] = field(default_factory=list)
+    states: list[np.ndarray] = field(default_factory=list)
+    rejected: int = 0
+    substeps: int = 0
+    solves: int = 0
+    success: bool = True
+    message: str = "the integration reached the end"
+
+
+class SubstepFailure(RuntimeError):
+    """An implicit Euler substep whose active set or Newton iteration did not settle."""
+
+
+def _solve_substep(system, u0: np.ndarray, s0: np.ndarray, tau: float,
+                   slopes: tuple[np.ndarray, np.ndarray], tally: StepHistory):
+    """One linearly implicit Euler substep of size tau from (u0, s0): the smooth balance
+    linearised about u0 with the step's Jacobian ``slopes`` (diagonal, coupling of node k with
+    k + 1), the switching terms exact. Returns (u, s, inflow_inner, inflow_outer,
+    consumption), the last three per mesh as rates (r^n-weighted)."""
+    m = system.lumped
+    q = system.nodal_zero
+    limit = system.saturation_potential
+    free = system.free
+    zero_nodes = system.zero_nodes
+    diag, off = slopes
+    flow0, _, _ = system.balance(u0, tau, slopes=False)
+    main = m + tau * diag
+    coupling = tau * off
+    # active sets guessed from an explicit predictor (the sweeps then correct the guess)
+    dead = zero_nodes & (u0 - tau * (flow0 + q) / m <= 0.0) & free
+    idle = np.zeros(u0.size, dtype=bool)
+    saturated = system.limited & (s0 - tau * flow0 > 0.0)
+    target = np.where(free, u0, system.held_value)
+    for _sweep in range(MAX_SWEEPS):
+        fixed = ~free | dead | saturated
+        target = np.where(dead, 0.0, np.where(saturated, limit, target))
+        rate = np.where(dead | idle, 0.0, q)
+        # unknown: the change u - u0; a fixed node's row is the identity
+        upper = np.where(fixed[:-1], 0.0, coupling)
+        lower = np.where(fixed[1:], 0.0, coupling)
+        rhs = np.where(fixed, target - u0, s0 - tau * (flow0 + rate))
+        _, _, _, change, info = dgtsv(lower, np.where(fixed, 1.0, main), upper, rhs)
+        tally.solves += 1
+        if info != 0:
+            raise SubstepFailure(f"singular substep matrix (LAPACK dgtsv info {info})")
+        u = u0 + change
+        # the linearised balance at u
+        flow = flow0 + diag * change
+        flow[:-1] += off * change[1:]
+        flow[1:] += off * change[:-1]
+        needed = (m * (u0 - u) + s0) / tau - flow
+        solid = s0 - m * change - tau * (flow + rate)
+        to_dead = zero_nodes & ~fixed & ~idle & (u < 0.0)
+        back = dead & (needed > q)
+        to_idle = dead & (needed < 0.0)
+        idle_back = idle & (u > 0.0)
+        to_saturated = system.limited & ~fixed & (u > limit)
+        dissolved = saturated & (solid < 0.0)
+        if not (to_dead.any() or back.any() or to_idle.any() or idle_back.any()
+                or to_saturated.any() or dissolved.any()):
+            break
+        dead = (dead & ~back & ~to_idle) | to_dead | idle_back
+        idle = (idle & ~idle_back) | to_idle
+        saturated = (saturated & ~dissolved) | to_saturated
+        target = u
+    else:
+        raise SubstepFailure("the active sets of the switching terms did not settle")
+    s = np.where(saturated, solid, 0.0)
+    rate = np.where(dead, needed, rate)
+    inflow_inner, inflow_outer, consumption = system.substep_amounts(u, flow, rate)
+    return u, s, inflow_inner, inflow_outer, consumption
+
+
+def _euler(system, y0: np.ndarray, h: float, n: int, slopes, tally: StepHistory) -> np.ndarray:
+    size = system.size
+    u, s = y0[:size], y0[size:2 * size]
+    amounts = y0[2 * size:].reshape(system.count, 3).copy()
+    tau = h / n
+    for _ in range(n):
+        u, s, inner, outer, consumed = _solve_substep(system, u, s, tau, slopes, tally)
+        amounts[:, 0] -= tau * inner
+        amounts[:, 1] -= tau * outer
+        amounts[:, 2] += tau * consumed
+        tally.substeps += 1
+    return np.concatenate((u, s, amounts.ravel()))
+
+
+def _extrapolate(system, y0: np.ndarray, h: float, tally: StepHistory):
+    """T33 and the error estimate T33 - T32 of one step of size h."""
+    _, diag, off = system.balance(y0[:system.size], 1.0, slopes=True)
+    slopes = (diag, off)
+    table: list[list[np.ndarray]] = []
+    for j, n in enumerate(SEQUENCE):
+        row = [_euler(system, y0, h, n, slopes, tally)]
+        for k in range(1, j + 1):
+            ratio = SEQUENCE[j] / SEQUENCE[j - k]
+            row.append(row[k - 1] + (row[k - 1] - table[j - 1][k - 1]) / (ratio - 1.0))
+        table.append(row)
+    best = table[-1][-1]
+    return best, best - table[-1][-2]
+
+
+def integrate(system, y0: np.ndarray, times: np.ndarray, end: float, rtol: float,
+              atol: np.ndarray, first_step: float | None = None) -> StepHistory:
+    """Integrate from t = 0 to ``end``, landing on every time of ``times`` (and on ``end``);
+    the error of each accepted step is at most 1 in the weighted RMS norm with ``rtol`` and
+    ``atol`` (per component of the state)."""
+    history = StepHistory()
+    history.ts.append(0.0)
+    history.states.append(y0.copy())
+    targets = np.unique(np.concatenate((times[times > 0.0], [end])))
+    targets = targets[targets > 0.0]
+    if targets.size == 0:
+        return history
+    t, y = 0.0, y0.copy()
+    h = first_step if first_step is not None else 1e-6 * float(targets[0])
+    target_index = 0
+    steps = 0
+    while target_index < targets.size:
+        target = float(targets[target_index])
+        landing = t + h >= target * (1.0 - 1e-12)
+        h_try = target - t if landing else h
+        if not landing and t + 2.0 * h_try > target:
+            h_try = 0.5 * (target - t)  # two even steps instead of one long and one sliver
+        h_try = system.limit_to_depletion(y, t, h_try, history)
+        landing = t + h_try >= target * (1.0 - 1e-12)
+        try:
+            candidate, estimate = _extrapolate(system, y, h_try, history)
+            scale = atol + rtol * np.maximum(np.abs(y), np.abs(candidate))
+            switching = system.switching_nodes(y, candidate)
+            if switching.any():
+                size = system.size
+                scale[:size][switching] = np.maximum(scale[:size][switching],
+                                                     SWITCH_TOLERANCE * system.u_scale)
+                solid = scale[size:2 * size]
+                solid[switching] = np.maximum(
+                    solid[switching], SWITCH_TOLERANCE * system.solid_scale[switching])
+            error = math.sqrt(float(np.mean((estimate / scale) ** 2)))
+        except (SubstepFailure, np.linalg.LinAlgError, FloatingPointError):
+            error = math.inf
+        steps += 1
+        if steps > MAX_STEPS or h_try < 1e-14 * max(target, 1.0):
+            history.success = False
+            history.message = (f"the step size fell below the round-off of t = {t:.6g} s"
+                               if steps <= MAX_STEPS else "too many steps")
+            return history
+        if not math.isfinite(error) or error > 1.0:
+            history.rejected += 1
+            factor = SHRINK if not math.isfinite(error) else max(
+                SHRINK, SAFETY * error ** (-1.0 / ORDER))
+            h = h_try * factor
+            continue
+        y = system.project(candidate)
+        t = target if landing else t + h_try
+        history.ts.append(t)
+        history.states.append(y.copy())
+        factor = GROW if error == 0.0 else min(GROW, max(SHRINK, SAFETY * error ** (-1.0 / ORDER)))
+        h = max(h_try * factor, h if landing else 0.0) if landing else h_try * factor
+        if landing:
+            target_index += 1
+    return history
