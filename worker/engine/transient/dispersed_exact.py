@@ -43,7 +43,7 @@ positions in m; released amounts per m^2 (plane), per m (cylinder), total (spher
 
 Pseudo-steady derivation (cylinder n = 1, sphere n = 2; front radius r' inside radius r0):
 the dissolved profile between r' (level Cs) and r0 (sink) is the steady one, carrying the rate
-``2 pi D Cs / ln(r0/r'))`` per length (cylinder) or ``4 pi D Cs r' r0 / (r0 - r')`` (sphere);
+``2 pi D Cs / ln(r0/r')`` per length (cylinder) or ``4 pi D Cs r' r0 / (r0 - r')`` (sphere);
 it is fed by the undissolved solute ``A`` swept by the front (the dissolved solute in the
 depleted shell is neglected, A >> Cs). Integrating ``-A d(volume inside r')/dt = rate`` from
 r' = r0 gives the two forms above, with ``F = 1 - (r'/r0)^(n+1)``.
