@@ -47,8 +47,11 @@ and ``eigen_roots`` (the series), ``method_of_lines`` (the finite volumes in tim
 of layers and every boundary kind, inverted by the fixed Talbot method), ``galerkin`` (a second
 discretisation: P1 Galerkin elements and extrapolated implicit Euler, with its three-mesh study
 ``galerkin_study``), ``refinement`` (the three-mesh study of any solver's amounts), ``routes``
-(each method as a route), ``compare`` (the route cross-checks) and ``uptake`` (which bodies
-release, the true minima over time, the time to steady).
+(each method as a route), ``compare`` (the route cross-checks), ``uptake`` (which bodies
+release, the true minima over time, the time to steady), ``dispersed_exact`` (closed forms of
+release from a layer loaded above its solubility and their ranges of validity) and
+``dispersed_checks`` (``cross_check.dispersed_similarity`` and ``cross_check.pseudo_steady``:
+a route's release and front against those closed forms, inside their ranges).
 """
 
 from worker.engine.transient.run import run_transient
