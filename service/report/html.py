@@ -179,7 +179,8 @@ def _figures(record: dict[str, Any], normalised: dict[str, Any] | None) -> dict[
         except Exception:  # noqa: BLE001 - a figure must never take the record down with it
             logger.exception("report figure %r of run %s could not be drawn", name,
                              record.get("run_id"))
-            figures[f"{name}_missing"] = Markup("")
+            # a non-empty marker: the template's notice tests it for truth
+            figures[f"{name}_missing"] = Markup("missing")
             continue
         if svg:
             figures[name] = Markup(svg)
