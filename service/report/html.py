@@ -32,6 +32,8 @@ from service.report.numbers import (
 from service.report.plot_minimum import minimum_svg
 from service.report.plot_profile import profile_svg
 from service.report.plot_release import release_svg
+from service.report.plot_release_physics import compartment_svg, front_svg
+from service.report.release_view import depletion_times, over_time_columns, per_layer_values
 
 logger = logging.getLogger(__name__)
 
@@ -67,6 +69,8 @@ QUANTITY_WORDS = {
     "release_fraction_final": "fraction of the initial load released by the last time",
     "time_to_steady": "time after which the concentration stays within 1 % of the steady "
                       "state's scale everywhere",
+    "time_depleted": "time when the last undissolved drug has dissolved",
+    "time_depleted_layers": "time when each loaded layer's undissolved drug has dissolved",
 }
 
 #: Quantities tried in order for the one figure shown at the top of the report.
@@ -164,6 +168,8 @@ def _figures(record: dict[str, Any], normalised: dict[str, Any] | None) -> dict[
         else None,
         "profile": lambda: profile_svg(with_inputs, names),
         "release": lambda: release_svg(record),
+        "front": lambda: front_svg(with_inputs),
+        "compartment": lambda: compartment_svg(with_inputs),
         "minimum": lambda: minimum_svg(record),
     }
     figures: dict[str, Markup] = {}
@@ -173,7 +179,8 @@ def _figures(record: dict[str, Any], normalised: dict[str, Any] | None) -> dict[
         except Exception:  # noqa: BLE001 - a figure must never take the record down with it
             logger.exception("report figure %r of run %s could not be drawn", name,
                              record.get("run_id"))
-            figures[f"{name}_missing"] = Markup("")
+            # a non-empty marker: the template's notice tests it for truth
+            figures[f"{name}_missing"] = Markup("missing")
             continue
         if svg:
             figures[name] = Markup(svg)
@@ -188,8 +195,11 @@ def _values(series: dict[str, Any], name: str) -> list[Any] | None:
 
 def release_table(record: dict[str, Any]) -> dict[str, Any] | None:
     """The release (or uptake) series at the requested times, for the report's table:
-    ``{"columns": [(name, unit)], "rows": [(time, readable time, [values])]}``; None when the
-    record is not transient."""
+    ``{"columns": [(name, unit)], "rows": [(time, readable time, [values])], "extra":
+    [OverTimeColumn], "extra_rows": [[(value, uncertainty)] per row]}``; ``extra``: the
+    dissolution front of each loaded layer and the compartment concentrations, each in the
+    unit that reads best (:mod:`service.report.release_view`). None when the record is not
+    transient."""
     series = record.get("series") or {}
     times = _values(series, "time")
     if not times:
@@ -200,7 +210,9 @@ def release_table(record: dict[str, Any]) -> dict[str, Any] | None:
     columns = [(n, series[n].get("unit")) for n in names]
     rows = [(t, readable_time(t), [series[n]["values"][k] for n in names])
             for k, t in enumerate(times)]
-    return {"columns": columns, "rows": rows}
+    extra = over_time_columns(record)
+    extra_rows = [[column.shown(k) for column in extra] for k in range(len(times))]
+    return {"columns": columns, "rows": rows, "extra": extra, "extra_rows": extra_rows}
 
 
 def minimum_table(record: dict[str, Any]) -> dict[str, Any] | None:
@@ -228,7 +240,8 @@ def report_context(record: dict[str, Any], document: dict[str, Any]) -> dict[str
     normalised = _normalised(record, document)
     quantities = []
     for name, quantity in (record.get("quantities") or {}).items():
-        quantities.append((name, quantity, QUANTITY_WORDS.get(name, "")))
+        quantities.append((name, quantity, QUANTITY_WORDS.get(name, ""),
+                           per_layer_values(quantity)))
     checks = record.get("checks") or []
     front = (record.get("quantities") or {}).get("depletion_front")
     return {
@@ -248,6 +261,7 @@ def report_context(record: dict[str, Any], document: dict[str, Any]) -> dict[str
         "figures": _figures(record, normalised),
         "key_figure": key_figure(record),
         "depletion_front": front if isinstance(front, dict) else None,
+        "depletion_times": depletion_times(record),
         "transient": ((normalised or {}).get("regime") or {}).get("kind") == "transient",
         "release_table": release_table(record),
         "minimum_table": minimum_table(record),

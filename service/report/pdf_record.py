@@ -20,6 +20,12 @@ from service.report.design_view import (
 from service.report.html import DEFAULT_CAUTION, input_rows
 from service.report.numbers import plain_number, readable_time, unit_text
 from service.report.pdf_document import PagedDocument
+from service.report.release_view import (
+    depletion_times,
+    over_time_columns,
+    per_layer_values,
+    requested_times,
+)
 from service.report.text_design import limit_lines, sweep_lines, uncertainty_lines
 
 #: Sign-off fields shown first, in this order; any other field follows under its own name.
@@ -120,9 +126,11 @@ def _quantities(doc: PagedDocument, record: Mapping[str, Any]) -> None:
     for name, quantity in (record.get("quantities") or {}).items():
         value = quantity.get("value") if isinstance(quantity, Mapping) else quantity
         unit = quantity.get("unit") if isinstance(quantity, Mapping) else ""
-        shown = f"{_si(value)} {unit_text(unit)}".strip()
-        if unit == "s" and readable_time(value):
-            shown += f" ({readable_time(value)})"
+        per_layer = per_layer_values(quantity)
+        if per_layer is not None:
+            shown = "; ".join(f"{layer}: {_timed(v, unit)}" for layer, v in per_layer)
+        else:
+            shown = _timed(value, unit)
         uncertainty = quantity.get("uncertainty") if isinstance(quantity, Mapping) else None
         verified = quantity.get("verified_by") if isinstance(quantity, Mapping) else None
         rows.append((name, shown, _si(uncertainty) if uncertainty is not None else "—",
@@ -132,6 +140,44 @@ def _quantities(doc: PagedDocument, record: Mapping[str, Any]) -> None:
                        (45, 55, 35, 45))
     else:
         doc.paragraph("No quantities (the engine produced no result).")
+
+
+def _timed(value: Any, unit: Any) -> str:
+    """A value with its unit, a time also in the unit that reads best; a missing time is not
+    within the duration."""
+    if value is None and unit == "s":
+        return "not within the duration"
+    shown = f"{_si(value)} {unit_text(unit)}".strip()
+    if unit == "s" and readable_time(value):
+        shown += f" ({readable_time(value)})"
+    return shown
+
+
+def _over_time(doc: PagedDocument, record: Mapping[str, Any]) -> None:
+    """The dissolution front of each loaded layer and the compartment concentrations at the
+    requested times, and when the undissolved drug is gone (nothing for other records)."""
+    columns = over_time_columns(record)
+    times = requested_times(record)
+    if not columns or not times:
+        return
+    doc.heading("Dissolution front and compartments at the requested times")
+    rows = []
+    for k, t in enumerate(times):
+        cells = [f"{_si(t)} s{_readable(readable_time(t) or '')}"]
+        for column in columns:
+            value, spread = column.shown(k)
+            if value is None:
+                cells.append(column.empty_word)
+            else:
+                cells.append(_si(value, 4) + (f" ± {_si(spread, 2)}" if spread is not None
+                                              else ""))
+        rows.append(cells)
+    share = int(140 / len(columns))
+    doc.data_table(("time", *[f"{c.label} / {unit_text(c.shown_unit)}" for c in columns]), rows,
+                   (40, *[share] * len(columns)))
+    for gone in depletion_times(record):
+        where = f" in {gone.layer}" if gone.layer is not None else ""
+        doc.paragraph(f"Undissolved drug{where} gone: {_timed(gone.seconds, 's')}")
 
 
 def _design_blocks(doc: PagedDocument, record: Mapping[str, Any]) -> None:
@@ -203,6 +249,7 @@ def render_record_pdf(record: Mapping[str, Any], document: Mapping[str, Any]) ->
         doc.paragraph(str(record["error"]))
     _inputs(doc, record, document)
     _quantities(doc, record)
+    _over_time(doc, record)
     _design_blocks(doc, record)
     _checks(doc, record)
     if record.get("warnings"):

@@ -15,6 +15,7 @@ from service.report.plot_common import LINE_COLOURS, MUTED, drawing, figure_svg,
 
 #: Quantities tried first for the trend, in order; up to MAX_LINES are drawn.
 KEY_QUANTITIES = ("flux_outer", "flux_inner", "consumption", "depletion_front", "t50", "t90",
+                  "time_depleted",
                   "time_lag", "rate_outer", "surface_inner", "surface_outer",
                   "concentration_min")
 MAX_LINES = 5

@@ -6,6 +6,12 @@ from collections.abc import Iterator
 
 from schemas.result import RunStatus
 from service.report.numbers import readable_time
+from service.report.release_view import (
+    depletion_times,
+    over_time_columns,
+    per_layer_values,
+    requested_times,
+)
 from service.report.text_design import (
     design_verdict_line,
     headline_lines,
@@ -109,6 +115,12 @@ def render_text(record: dict, case: dict) -> str:
         add(f"ENGINE FAILURE: {record.get('error')}")
     add("Quantities (SI; fluxes positive outward)")
     for name, q in record.get("quantities", {}).items():
+        per_layer = per_layer_values(q)
+        if per_layer is not None:
+            add(f"  {name:<28} {'per layer':>16} {q.get('unit', '')}")
+            for layer, value in per_layer:
+                add(f"    {layer[:26]:<26} " + _per_layer_text(value, q.get("unit")))
+            continue
         line = f"  {name:<28} {_fmt(q.get('value')):>16} {q.get('unit', '')}"
         if q.get("unit") == "s" and readable_time(q.get("value")):
             line += f" ({readable_time(q['value'])})"
@@ -126,6 +138,10 @@ def render_text(record: dict, case: dict) -> str:
     if "time" in record.get("series", {}):
         add(RULE)
         add(format_release_table(record))
+        front_table = format_over_time_table(record)
+        if front_table:
+            add(RULE)
+            add(front_table)
     if "concentration_min" in record.get("series", {}) and \
             "release_fraction" not in record.get("series", {}):
         add(RULE)
@@ -164,6 +180,54 @@ def render_text(record: dict, case: dict) -> str:
         f"({passed}/{len(record.get('checks', []))} checks passed)")
     add(design_verdict_line(record))
     add(f"CAUTION: {record.get('caution', '')}")
+    return "\n".join(lines)
+
+
+def _per_layer_text(value: float | None, unit: str | None) -> str:
+    if value is None:
+        return f"{'—':>16}   not within the duration" if unit == "s" else f"{'—':>16}"
+    text = f"{_fmt(value):>16} {unit or ''}"
+    if unit == "s" and readable_time(value):
+        text += f" ({readable_time(value)})"
+    return text
+
+
+def format_over_time_table(record: dict) -> str:
+    """Plain-text table of the dissolution front of each loaded layer and the compartment
+    concentrations at each requested time, each column in the unit in its heading (the one
+    that reads best for the whole column); "dissolved" where a layer's undissolved drug is
+    gone; "" for a record without them."""
+    columns = over_time_columns(record)
+    times = requested_times(record)
+    if not columns or not times:
+        return ""
+    headings = [f"{c.label} [{c.shown_unit}]" for c in columns]
+    widths = [max(14, len(h)) for h in headings]
+    header = f"{'time [s]':>14} {'time':>12}" + "".join(
+        f" {h:>{w}}" for h, w in zip(headings, widths, strict=True))
+    fronts = any(c.kind == "front" for c in columns)
+    compartments = any(c.kind == "compartment" for c in columns)
+    title = " and ".join(t for t, on in (("Dissolution front", fronts),
+                                         ("compartment concentrations", compartments)) if on)
+    lines = [title[0].upper() + title[1:] + " at the requested times", header, "-" * len(header)]
+    for k, t in enumerate(times):
+        cells = []
+        for column in columns:
+            value, spread = column.shown(k)
+            if value is None:
+                cells.append(column.empty_word)
+            else:
+                cells.append(f"{value:.6g}" + (f" ±{spread:.2g}" if spread is not None else ""))
+        lines.append(f"{t:>14.6g} {_time_cell(t):>12}"
+                     + "".join(f" {c:>{w}}" for c, w in zip(cells, widths, strict=True)))
+    for gone in depletion_times(record):
+        where = f" in {gone.layer}" if gone.layer is not None else ""
+        if gone.seconds is None:
+            lines.append(f"undissolved drug{where} gone: not within the duration")
+        else:
+            readable = readable_time(gone.seconds)
+            lines.append(f"undissolved drug{where} gone: {gone.seconds:.6g} s"
+                         + (f" ({readable})" if readable else ""))
     return "\n".join(lines)
 
 
