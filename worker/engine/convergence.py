@@ -73,6 +73,11 @@ __all__ = [
 ]
 
 
+#: Lowest apparent order at which a transient amount is Richardson-extrapolated
+#: (:attr:`GridStudy.best_estimate`).
+MIN_EXTRAPOLATION_ORDER = 0.5
+
+
 @dataclass(frozen=True)
 class GridStudy:
     """Result of one three-grid study (grid 1 finest).
@@ -114,6 +119,19 @@ class GridStudy:
     @property
     def fine(self) -> float:
         return self.values[0]
+
+    @property
+    def best_estimate(self) -> float:
+        """The Richardson-extrapolated value where the grids converge monotonically at an
+        apparent order of at least ``MIN_EXTRAPOLATION_ORDER``, else the fine value. Below
+        that order r^p - 1 is small and the extrapolation multiplies the fine-grid difference
+        many times over (a front crossing cells makes such orders): the grids are not in their
+        asymptotic range (Celik et al., J. Fluids Eng. 130 (2008) 078001, on apparent orders far
+        from the formal one), and the fine value is the safer estimate."""
+        if (self.convergence == "monotonic" and math.isfinite(self.extrapolated)
+                and self.apparent_order >= MIN_EXTRAPOLATION_ORDER):
+            return self.extrapolated
+        return self.fine
 
     @property
     def reliable(self) -> bool:

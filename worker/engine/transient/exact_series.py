@@ -274,6 +274,11 @@ class _Body:
         return (self.b ** (self.n + 1) - self.a ** (self.n + 1)) / (self.n + 1)
 
 
+#: Why the linear exact routes refuse a case whose dissolved solute can reach a solubility.
+SATURATION_REASON = ("a layer's dissolved solute can reach its solubility (undissolved solute "
+                     "makes the equations nonlinear)")
+
+
 def series_unsupported_reason(problem: Problem) -> str | None:
     """Why no exact series exists for the problem here, or None when it does."""
     if len(problem.layers) != 1:
@@ -285,6 +290,8 @@ def series_unsupported_reason(problem: Problem) -> str | None:
     layer = problem.layers[0]
     if not layer.reaction.law.is_linear:
         return f"{layer.reaction.kind} kinetics are nonlinear"
+    if problem.can_saturate:
+        return SATURATION_REASON
     anchored = [
         b.condition.fixes_level(b) for b in (problem.inner_boundary, problem.outer_boundary)
     ]

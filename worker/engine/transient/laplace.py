@@ -444,13 +444,17 @@ def laplace_unsupported_reason(problem: Problem) -> str | None:
     """Why this module has no solution of the problem, or None when it has one.
 
     Supported: any geometry (hollow or solid), any number of layers with partition jumps, no or
-    first-order reaction in every layer, and every boundary kind with a Robin form
-    (concentration, flux, mass transfer, symmetry), a uniform initial state per layer.
+    first-order reaction in every layer, no solubility that can be reached
+    (``Problem.can_saturate``), and every boundary kind with a Robin form (concentration, flux,
+    mass transfer, symmetry, compartment), a uniform initial state per layer.
     """
     for i, layer in enumerate(problem.layers):
         if not layer.reaction.law.is_linear:
             return (f"layers[{i}] ({layer.name}): {layer.reaction.kind} kinetics are nonlinear "
                     "(no Laplace transform of the layer equation)")
+    if problem.can_saturate:
+        return ("a layer's dissolved solute can reach its solubility (undissolved solute makes "
+                "the equations nonlinear)")
     for side in ("inner", "outer"):
         boundary = problem.inner_boundary if side == "inner" else problem.outer_boundary
         try:

@@ -161,8 +161,7 @@ def add_events(outcome: Outcome, problem: Problem, series: TransientSeriesSoluti
         reached = [t for t in per_mesh if t is not None]
         if len(reached) == len(per_mesh):
             study = convergence.grid_study(reached, cells)
-            if study.convergence == "monotonic" and math.isfinite(study.extrapolated):
-                t_fv = float(study.extrapolated)
+            t_fv = float(study.best_estimate)
         t_series = None
         if series is not None and series.initial_load > 0.0:
             assert scan is not None, "series_on_scan gives a scan with every series"

@@ -74,7 +74,7 @@ def amount_study(solutions: Sequence[TransientSolution], sizes: Sequence[float]
             kinds.append(study.convergence)
             fine = triple[0]
             if study.convergence == "monotonic" and math.isfinite(study.extrapolated):
-                extrapolated[k] = study.extrapolated
+                extrapolated[k] = study.best_estimate
                 band[k] = study.gci_fine * abs(fine)
                 gci[k] = study.gci_fine
                 order[k] = study.apparent_order

@@ -25,7 +25,7 @@ from worker.engine.transient.galerkin import GalerkinStudy, TransientGalerkinSol
 from worker.engine.transient.laplace import TransientLaplaceSolution, solve_transient_laplace
 from worker.engine.transient.method_of_lines import TransientFVSolution
 from worker.engine.transient.scales import first_crossing
-from worker.engine.transient.solution import FrontAccount, Route
+from worker.engine.transient.solution import FrontAccount, Route, TransientSolution
 
 #: Log-spaced scan points (over the duration) that bracket t50/t90 of the Laplace route.
 LAPLACE_EVENT_SCAN_POINTS = 48
@@ -65,9 +65,19 @@ def fv_route(name: str, fine: TransientFVSolution, numerical: dict[str, np.ndarr
 
     reference = (fine.reference + "; three meshes, Richardson extrapolation (Celik et al., "
                  "J. Fluids Eng. 130 (2008) 078001)")
-    return Route(name, reference, numerical, float(fine.initial_load), everywhere, everywhere,
-                 profile, _events(outcome, "numerical"), band if medium is not None else None,
-                 concentration)
+    route = Route(name, reference, numerical, float(fine.initial_load), everywhere, everywhere,
+                  profile, _events(outcome, "numerical"), band if medium is not None else None,
+                  concentration)
+    if medium is not None:
+        route.flux_band = _flux_band(fine, medium)
+    return route
+
+
+def _flux_band(fine: TransientSolution, medium: TransientSolution) -> dict[str, np.ndarray]:
+    """|fine - medium| of each face's flux density at the internal times."""
+    return {side: np.abs(np.asarray(getattr(fine, f"flux_{side}"), dtype=float)
+                         - np.asarray(getattr(medium, f"flux_{side}"), dtype=float))
+            for side in ("inner", "outer")}
 
 
 def series_route(series: TransientSeriesSolution, at: np.ndarray, internal: np.ndarray,
@@ -163,8 +173,7 @@ def galerkin_events(problem: Problem, study: GalerkinStudy, duration: float
         value = per_mesh[0]
         if all(t is not None for t in per_mesh):
             found = convergence.grid_study([float(t) for t in per_mesh if t is not None], sizes)
-            if found.convergence == "monotonic" and np.isfinite(found.extrapolated):
-                value = float(found.extrapolated)
+            value = float(found.best_estimate)
         events[name] = value
     return events
 
@@ -193,6 +202,7 @@ def galerkin_route(problem: Problem, study: GalerkinStudy, internal: np.ndarray,
                  everywhere, profile, galerkin_events(problem, study, duration), band,
                  concentration)
     route.fronts = galerkin_fronts(study)
+    route.flux_band = _flux_band(fine, medium)
     return route
 
 
@@ -204,8 +214,7 @@ def _extrapolated(per_mesh: list[float | None], sizes: list[float]) -> float | N
         return None
     if all(v is not None and math.isfinite(v) for v in per_mesh):
         found = convergence.grid_study([float(v) for v in per_mesh if v is not None], sizes)
-        if found.convergence == "monotonic" and math.isfinite(found.extrapolated):
-            return float(found.extrapolated)
+        return float(found.best_estimate)
     return float(fine)
 
 

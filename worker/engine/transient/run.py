@@ -15,6 +15,7 @@ from worker.engine.transient import (
     checks,
     compartment_checks,
     dispersed,
+    dispersed_checks,
     exact_series,
     method_of_lines,
     solve,
@@ -176,6 +177,7 @@ def run_transient(problem: Problem, independent: Problem | None = None) -> Outco
     if not releasing:
         _uptake_note(outcome, problem)
     dispersed.add_dispersed(outcome, lines_problem, fvs, requested_index, duration)
+    _closed_form_release_checks(outcome, problem, primary, requested, requested_index)
     add_profile_and_probes(outcome, problem, primary.profile, internal, requested,
                            requested_index, final_index, c_unit)
     if releasing:
@@ -208,9 +210,36 @@ def run_transient(problem: Problem, independent: Problem | None = None) -> Outco
     else:
         checks.steady_limit_check(outcome, lines_problem, fine, duration, c_scale,
                                   amount_scale)
+    time_check = outcome.check("convergence.time")
+    time_error = 0.0
+    if fine.history is not None and primary.name.startswith(fine.method) \
+            and time_check is not None and time_check.value is not None:
+        time_error = float(time_check.value)
     reported_series_sign_check(outcome, problem, float(np.min(fine.cells)), c_scale,
-                               amount_scale, factor)
+                               amount_scale, factor, time_error)
     return outcome
+
+
+def _closed_form_release_checks(outcome: Outcome, problem: Problem, primary: Route,
+                                requested: np.ndarray, index: np.ndarray) -> None:
+    """The dispersed-drug closed forms (Paul & McSpadden; the pseudo-steady forms) against the
+    primary's release and reported fronts, where a single loaded layer puts them in range."""
+    front = outcome.series.get("front_position")
+    if front is None or len(front["layers"]) != 1:
+        return
+
+    def column(entry: dict, key: str = "values") -> np.ndarray:
+        return np.array([np.nan if row[0] is None else row[0] for row in entry[key]])
+
+    inner = outcome.series.get("front_position_inner")
+    band = column(front, "uncertainty")
+    if inner is not None:
+        band = np.fmax(band, column(inner, "uncertainty"))
+    amounts = primary.amounts
+    released = (amounts["released_inner"] + amounts["released_outer"])[index]
+    dispersed_checks.add_dispersed_checks(
+        outcome, problem, requested, released, column(front),
+        None if inner is None else column(inner), band)
 
 
 def _fed_levels(problem: Problem, route: Route, k: int) -> list[float | None]:

@@ -90,3 +90,6 @@ class Route:
     compartments: dict[str, np.ndarray] = field(default_factory=dict)
     #: The undissolved solute's fronts and depletion times (None: the route gives none).
     fronts: FrontAccount | None = None
+    #: Per face (``"inner"``/``"outer"``), the grid band |fine - medium| of a numerical route's
+    #: face flux density at the internal times (empty for an exact route).
+    flux_band: dict[str, np.ndarray] = field(default_factory=dict)

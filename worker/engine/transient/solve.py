@@ -130,8 +130,7 @@ def _extrapolate(fvs: list[TransientFVSolution], times: np.ndarray,
             if not all(math.isfinite(v) for v in triple):
                 continue
             study = convergence.grid_study(triple, cells)
-            if study.convergence == "monotonic" and math.isfinite(study.extrapolated):
-                values[k] = study.extrapolated
+            values[k] = study.best_estimate
         out[name] = values
     return out
 
