@@ -118,6 +118,16 @@ def limited_volume_check(outcome: Outcome, problem: Problem, routes: list[Route]
         f"worst: {name} at t = {at} s"))
 
 
+def dissolution_time(problem: Problem) -> float:
+    """An upper estimate (s) of the time the undissolved solute of any layer takes to dissolve
+    into a sink: the plane pseudo-steady emptying time L^2 A / (2 D S) of the layer (T.
+    Higuchi, J. Pharm. Sci. 50 (1961) 874), which bounds a curved layer's; 0 without one."""
+    times = [ly.thickness ** 2 * ly.initial / (2.0 * ly.diffusivity * ly.solubility)
+             for ly in problem.layers if ly.is_loaded_above_solubility
+             and ly.solubility is not None]
+    return max(times, default=0.0)
+
+
 def equilibrium_check(outcome: Outcome, problem: Problem, fine: TransientFVSolution,
                       duration: float, c_scale: float) -> None:
     """``compartment.equilibrium``: the fine mesh continued ``EQUILIBRIUM_HORIZON`` exchange
@@ -127,12 +137,12 @@ def equilibrium_check(outcome: Outcome, problem: Problem, fine: TransientFVSolut
     level = equilibrium_level(problem)
     if level is None:
         outcome.warnings.append(
-            "compartment.equilibrium: not applicable (a reaction, a clearance, a face passing "
-            "solute out of the system, or a layer that can saturate: no equilibrium partition "
-            "of the load)")
+            "compartment.equilibrium: not applicable (a reaction, a clearance or a face passing "
+            "solute out of the system: no equilibrium partition of the load)")
         return
     limit = check_limit(problem, "compartment.equilibrium")
-    end = duration + EQUILIBRIUM_HORIZON * exchange_time(problem)
+    end = duration + EQUILIBRIUM_HORIZON * exchange_time(problem) \
+        + 2.0 * dissolution_time(problem)
     late = method_of_lines.solve_transient_fv(
         problem, [end], fine.diagnostics["cells_per_layer"], end=end,
         initial_state=fine.diagnostics["end_state"], start=duration, rtol=CONTINUATION_RTOL)

@@ -125,9 +125,13 @@ def equilibrium_level(problem: Problem) -> float | None:
     clearance, every face sealed or a compartment) reaches, amount/m^3, exactly by
     conservation: (N_body + sum W C_f0) / (sum_i K_i V_i + sum W K_layer/K_face) per measure
     (r^n-weighted); each compartment then holds C_f = u K_layer / K_face. None where the case
-    is not closed (a face passing solute to the outside, a reaction, a clearance, a layer that
-    can saturate)."""
-    if not problem.is_linear or any(ly.reaction.reacts for ly in problem.layers):
+    is not closed (a face passing solute to the outside, a reaction, a clearance).
+
+    A layer with a solubility S_i caps the level at u* = min S_i/K_i: where the load exceeds
+    what the body and compartments hold at u*, the level is u* and the excess stays
+    undissolved in the layer(s) that saturate first (dissolved C_i = min(K_i u, S_i) = K_i u
+    everywhere, since u <= u*)."""
+    if any(ly.reaction.reacts for ly in problem.layers):
         return None
     sides = compartment_sides(problem)
     if not sides:
@@ -150,7 +154,8 @@ def equilibrium_level(problem: Problem) -> float | None:
         layer = problem.layers[0] if side == "inner" else problem.layers[-1]
         amount += w * boundary.initial
         held += w * layer.partition / problem.face_partition(side)
-    return amount / held
+    caps = [ly.solubility / ly.partition for ly in problem.layers if ly.solubility is not None]
+    return min([amount / held] + caps)
 
 
 @dataclass(frozen=True)
