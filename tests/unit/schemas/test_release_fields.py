@@ -14,7 +14,6 @@ import pytest
 
 from schemas import CaseError, validate_case
 from schemas.case import SIValue, case_rule_errors
-from tests.compartment_stand_in import merged
 
 #: Invented: a coating loaded above its solubility, releasing into a sink.
 COATING = {
@@ -148,7 +147,7 @@ def test_the_second_layer_is_named_in_its_errors():
 
 # --- compartment rules -------------------------------------------------------------------------
 # The rules read the loaded document, so they are shown here on loaded data; the same documents
-# go through validate_case once the compartment kind is merged (the tests marked below).
+# go through validate_case in the tests further below.
 
 
 def _loaded(geometry="slab", side="outer", regime="transient", **top) -> dict:
@@ -200,8 +199,6 @@ def test_a_compartment_at_a_solid_centre_is_refused():
     assert "symmetry" in errors[0][1]
 
 
-_AFTER_MERGE = pytest.mark.skipif(not merged(), reason="the compartment kind is not merged yet "
-                                                       "(issue 14): its case fields come from it")
 
 
 def _release_medium(**changes) -> dict:
@@ -212,14 +209,12 @@ def _release_medium(**changes) -> dict:
     return doc
 
 
-@_AFTER_MERGE
 def test_a_compartment_case_builds_its_face():
     face = validate_case(_release_medium()).problem.outer_boundary
     assert face.kind == "compartment" and face.volume == pytest.approx(2e-6, rel=1e-15)
     assert face.clearance == pytest.approx(0.5 / 3600.0, rel=1e-15)
 
 
-@_AFTER_MERGE
 def test_a_compartment_case_is_refused_without_area_or_in_a_steady_case():
     doc = _release_medium()
     del doc["area"]
@@ -230,7 +225,6 @@ def test_a_compartment_case_is_refused_without_area_or_in_a_steady_case():
     assert "outer_boundary.kind" in [e["path"] for e in _errors(doc)]
 
 
-@_AFTER_MERGE
 def test_a_compartment_volume_is_required_and_positive():
     doc = _release_medium()
     doc["outer_boundary"]["volume"] = "0 mL"

@@ -20,7 +20,6 @@ import dataclasses
 import pytest
 
 from schemas import CaseError, validate_case
-from tests.compartment_stand_in import compartment_kind  # noqa: F401  (a fixture)
 from worker.engine.cost import (
     DEFAULT_BUDGETS,
     SCALED_SERIES_TRIAL_WORK,
@@ -117,7 +116,6 @@ def test_a_check_over_the_work_budget_names_the_loading_that_lengthens_it():
                                         "transient")[0].message
 
 
-@pytest.mark.usefixtures("compartment_kind")
 def test_a_compartment_adds_its_volume_to_the_time_scale():
     plain = validate_case(_case(solubility=None)).problem
     volume = 5e-6  # m^3
@@ -131,7 +129,6 @@ def test_a_compartment_adds_its_volume_to_the_time_scale():
     assert estimate.time_steps > estimate_cost(plain).time_steps
 
 
-@pytest.mark.usefixtures("compartment_kind")
 def test_no_scaled_or_series_trial_model_serves_the_new_physics():
     dispersed = validate_case(_case()).problem
     plain = validate_case(_case(solubility=None)).problem

@@ -16,7 +16,6 @@ import dataclasses
 import pytest
 
 from schemas import validate_case
-from tests.compartment_stand_in import compartment_kind  # noqa: F401  (a fixture)
 from worker.engine.independent_problem import build_independent_problem
 from worker.engine.input_checks import (
     interpretation_check,
@@ -124,7 +123,6 @@ def _with_medium() -> tuple[dict, dict]:
     return original, normalised
 
 
-@pytest.mark.usefixtures("compartment_kind")
 def test_the_table_route_reads_a_compartment():
     original, normalised = _with_medium()
     problem = build_independent_problem(original)
@@ -140,7 +138,6 @@ def test_the_table_route_reads_a_compartment():
 
 @pytest.mark.parametrize("factor", [1 + 1e-9, 1 - 1e-9])
 @pytest.mark.parametrize("key", ["volume", "initial", "clearance"])
-@pytest.mark.usefixtures("compartment_kind")
 def test_units_fail_when_a_compartment_field_is_misread(factor, key):
     original, normalised = _with_medium()
     normalised["outer_boundary"][key]["value"] *= factor
@@ -152,7 +149,6 @@ def test_units_fail_when_a_compartment_field_is_misread(factor, key):
 
 @pytest.mark.parametrize("factor", [1 + 1e-9, 1 - 1e-9])
 @pytest.mark.parametrize("key", ["volume", "initial", "clearance"])
-@pytest.mark.usefixtures("compartment_kind")
 def test_interpretation_compares_the_compartment_fields(factor, key):
     original, _ = _with_medium()
     independent = build_independent_problem(original)

@@ -17,7 +17,6 @@ import dataclasses
 import pytest
 
 from schemas import CaseError, validate_case
-from tests.compartment_stand_in import compartment_kind  # noqa: F401  (a fixture)
 from worker.engine.design.paths import parse_field, resolve, value_of, with_values
 from worker.engine.design.requirements import (
     MET,
@@ -98,7 +97,6 @@ def test_with_two_loaded_layers_the_front_needs_its_layer():
     assert check_target(problem, Target("time_depleted")).layer is None
 
 
-@pytest.mark.usefixtures("compartment_kind")
 def test_a_compartment_face_offers_its_concentration_series():
     problem = _problem()
     medium = dataclasses.replace(problem, outer_boundary=Boundary("compartment", volume=2e-6))
