@@ -188,7 +188,7 @@ def depletion_times(record: Mapping[str, Any]) -> list[DepletionTime]:
     per_layer = quantities.get("time_depleted_layers")
     if isinstance(per_layer, Mapping):
         layers = per_layer.get("layers") or []
-        values = per_layer.get("values") or []
+        values = per_layer.get("value") or []
         if isinstance(layers, list) and isinstance(values, list) and len(layers) == len(values):
             found += [DepletionTime(str(layer), _number(v)) for layer, v in zip(
                 layers, values, strict=True)]
@@ -196,13 +196,13 @@ def depletion_times(record: Mapping[str, Any]) -> list[DepletionTime]:
 
 
 def per_layer_values(quantity: Any) -> list[tuple[str, float | None]] | None:
-    """(layer, value) of a quantity given per layer (``{"values", "layers", "unit"}``, as
-    ``time_depleted_layers``), or None for any other quantity."""
+    """(layer, value) of a quantity given per layer (``{"value": [...], "layers", "unit"}``,
+    as ``time_depleted_layers``), or None for any other quantity."""
     if not isinstance(quantity, Mapping):
         return None
-    layers, values = quantity.get("layers"), quantity.get("values")
+    layers, values = quantity.get("layers"), quantity.get("value")
     if not isinstance(layers, Sequence) or not isinstance(values, list) or isinstance(
-            layers, str) or len(layers) != len(values) or "value" in quantity:
+            layers, str) or len(layers) != len(values):
         return None
     return [(str(layer), _number(v)) for layer, v in zip(layers, values, strict=True)]
 

@@ -172,7 +172,7 @@ def add_dispersed(outcome: Outcome, problem: Problem, fvs: list, requested_index
                             "coarse": triple[2], "observed_order": study.apparent_order,
                             "convergence": study.convergence})
         layer_values.append(None if value is None or value > duration else float(value))
-    outcome.quantities["time_depleted_layers"] = {"values": layer_values, "unit": "s",
+    outcome.quantities["time_depleted_layers"] = {"value": layer_values, "unit": "s",
                                                   "layers": names}
     outcome.diagnostics["time_depleted_study"] = studies
     if all(v is not None for v in layer_values):

@@ -73,7 +73,7 @@ def coating_record() -> dict[str, Any]:
     record["quantities"] = {
         "release_fraction_final": _si(0.97, "1"), "t50": _si(6.2 * DAY, "s"),
         "t90": _si(14 * DAY, "s"), "time_depleted": _si(10 * DAY, "s"),
-        "time_depleted_layers": {"values": [10 * DAY], "unit": "s", "layers": ["drug matrix"]}}
+        "time_depleted_layers": {"value": [10 * DAY], "unit": "s", "layers": ["drug matrix"]}}
     return record
 
 
@@ -95,7 +95,7 @@ def two_front_record() -> dict[str, Any]:
         "unit": "m", "layers": ["core", "drug matrix"]}
     record["quantities"].pop("time_depleted")
     record["quantities"]["time_depleted_layers"] = {
-        "values": [None, 10 * DAY], "unit": "s", "layers": ["core", "drug matrix"]}
+        "value": [None, 10 * DAY], "unit": "s", "layers": ["core", "drug matrix"]}
     record["warnings"] = ["time_depleted: undissolved drug is left at the end of the duration"]
     return record
 

@@ -182,7 +182,7 @@ SERIES = {
 }
 QUANTITIES = {
     "time_depleted": {"value": 12 * DAY, "unit": "s", "uncertainty": 600.0},
-    "time_depleted_layers": {"values": [12 * DAY, None], "value": [12 * DAY, None],
+    "time_depleted_layers": {"value": [12 * DAY, None],
                              "unit": "s", "layers": ["drug layer", "top coat"]},
 }
 
