@@ -108,11 +108,7 @@ def run_transient(problem: Problem, independent: Problem | None = None) -> Outco
     # route, on the independent reading.
     compartments = compartment_sides(problem)
     study = None
-    if not exact_primary and compartments:
-        outcome.warnings.append(
-            "the Galerkin second discretisation has no compartment face: this nonlinear case "
-            "with a compartment is checked by space and time refinement and mass balance")
-    elif not exact_primary:
+    if not exact_primary:
         study = galerkin_study(independent, internal, end=duration)
     fine, coarse = fvs[2], fvs[0]
     outcome.diagnostics["meshes"] = [f.diagnostics["cells_per_layer"] for f in fvs]
