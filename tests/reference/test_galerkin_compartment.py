@@ -30,6 +30,7 @@ from worker.engine.transient import compartment_checks, galerkin, run_transient
 from worker.engine.transient.galerkin import galerkin_study, solve_transient_galerkin
 from worker.engine.transient.laplace import solve_transient_laplace
 from worker.engine.transient.limited_volume import crank_case
+from worker.engine.transient.method_of_lines import solve_transient_fv
 from worker.engine.transient.routes import galerkin_route
 
 D = 1.0e-10  # m^2/s
@@ -169,29 +170,51 @@ def _saturable():
         area=1e-4)
 
 
-def _loaded_coating():
-    """A coating loaded ten times above its solubility releasing into a finite medium with a
-    clearance."""
-    return Problem("slab", 0.0, (Layer("coat", 1e-4, 1e-12, 1.0, initial=50.0,
-                                       solubility=5.0),),
-                   Boundary("flux"), Boundary("compartment", volume=2e-6, clearance=1e-4),
-                   Regime("transient", 1e4, (1e3, 1e4)), area=1e-4)
+def _zero_order():
+    """A gel taking up solute from a stirred donor and consuming it at a zero-order rate until
+    the donor runs low (exhaustion inside the gel)."""
+    return Problem("slab", 0.0, (Layer("gel", 1e-3, 1e-9, initial=0.0, reaction=Reaction(
+        "zero_order", rate=2e-4)),), Boundary("flux"),
+        Boundary("compartment", volume=1e-6, initial=0.2), Regime("transient", 1e4, (1e3, 1e4)),
+        area=1e-4)
 
 
-@pytest.mark.parametrize("make", [_saturable, pytest.param(_loaded_coating,
-                                                            marks=pytest.mark.slow)])
+@pytest.mark.parametrize("make", [_saturable, _zero_order])
 def test_nonlinear_case_with_a_compartment_has_a_galerkin_route(make):
     outcome = run_transient(make())
     names = [m["name"] for m in outcome.methods]
     assert any(name.startswith("Galerkin") for name in names)
-    assert not any("no compartment face" in w for w in outcome.warnings)
+    assert not any("Galerkin second discretisation" in w for w in outcome.warnings)
     checks = {c.name: c for c in outcome.checks}
-    for name in ("cross_check.remaining", "cross_check.flux_outer", "mass_balance",
-                 "convergence.space"):
+    for name in ("cross_check.released", "cross_check.remaining", "cross_check.consumed",
+                 "cross_check.flux_outer", "mass_balance", "convergence.space"):
         assert checks[name].passed, checks[name].detail
     entry = outcome.series["compartment_outer"]
     assert all(u is not None for u in entry["uncertainty"])  # a second route compares it
-    assert max(entry["uncertainty"]) < 1e-3 * max(entry["values"])
+    assert max(entry["uncertainty"]) < 1e-4 * max(entry["values"])
+
+
+def test_loaded_coating_behind_a_compartment_agrees_with_the_method_of_lines():
+    """A coating loaded ten times above its solubility releasing into a finite medium with a
+    clearance (Paul & McSpadden's dispersed release, the sink replaced by a stirred volume):
+    the Galerkin route's level and release against the method of lines past the first
+    instants. ``run_transient`` does not yet take this route for such a case (its face flux
+    right after a front leaves the face is not resolved by the early grids of either method)."""
+    times = np.array([1e3, 1e4])
+    problem = Problem("slab", 0.0, (Layer("coat", 1e-4, 1e-12, 1.0, initial=50.0,
+                                          solubility=5.0),),
+                      Boundary("flux"), Boundary("compartment", volume=2e-6, clearance=1e-4),
+                      Regime("transient", 1e4, tuple(times)), area=1e-4)
+    found = solve_transient_galerkin(problem, times, 64)
+    lines = solve_transient_fv(problem, times, [128])
+    assert found.success and lines.success
+    load = found.initial_load
+    assert np.max(np.abs(found.released_outer - lines.released_outer)) < 2e-3 * load
+    level = lines.compartments["outer"]
+    assert np.max(np.abs(found.compartments["outer"] - level)) < 2e-3 * np.max(level)
+    outcome = run_transient(problem)
+    assert any("not run for a layer that can saturate behind a compartment" in w
+               for w in outcome.warnings)
 
 
 @pytest.mark.parametrize("factor", [1.01, 0.99])
