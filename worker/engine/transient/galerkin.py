@@ -67,6 +67,15 @@ Faces
 * ``mass_transfer``: ``N = h (C_bulk - K u / K_face)`` enters the weak form (Robin).
 * ``flux``: ``N`` = the value; ``symmetry``: ``N = 0``. A solid centre has zero area and carries
   nothing, whatever its face says.
+* ``compartment``: the well-stirred fluid is at equilibrium with the face node (the node holds
+  the surface concentration exactly, no film: the compartment's definition), C_f = u_b K / K_face.
+  The fluid is then extra lumped capacity of that node, ``W K / K_face`` with W the
+  compartment's r^n-weighted volume per measure (``compartment.capacity``), and its clearance a
+  first-order sink ``W k_c K / K_face u_b`` at that node that leaves the system; the tridiagonal
+  structure is kept. Released through the face = what the fluid holds now less what it held at
+  t = 0, plus what the clearance removed (the cumulative flux into the fluid), so the balance of
+  the body closes as for the other faces. At 0+ the face node and the fluid share their
+  content (the discrete form of the instant the fluid touches the body).
 
 Initial state
 -------------
@@ -99,6 +108,7 @@ import numpy as np
 from numpy.typing import ArrayLike
 from scipy.interpolate import CubicSpline
 
+from worker.engine.boundaries.compartment import capacity as compartment_capacity
 from worker.engine.model import Boundary, Problem
 from worker.engine.transient.galerkin_steps import integrate
 from worker.engine.transient.method_of_lines import concentration_scale
@@ -215,7 +225,8 @@ def build_galerkin_mesh(problem: Problem, elements_per_layer) -> GalerkinMesh:
 @dataclass(frozen=True)
 class _Face:
     """One face in the form the weak form takes it: kind ``dirichlet`` (u held at ``value``),
-    ``robin`` (r^n N = weight h (bulk - K u / K_face)), ``flux`` (r^n N = weight value) or
+    ``robin`` (r^n N = weight h (bulk - K u / K_face)), ``flux`` (r^n N = weight value),
+    ``compartment`` (extra lumped ``capacity`` at the node, sink ``clearance capacity u``) or
     ``none`` (no area, or sealed)."""
 
     kind: str
@@ -224,6 +235,9 @@ class _Face:
     coefficient: float = 0.0
     bulk: float = 0.0
     ratio: float = 1.0  # K_layer / K_face
+    capacity: float = 0.0  # a compartment's W K_layer / K_face (r^n-weighted)
+    clearance: float = 0.0  # a compartment's clearance, 1/s
+    initial: float = 0.0  # a compartment's starting concentration, amount/m^3
 
 
 def _face(problem: Problem, side: str) -> _Face:
@@ -242,6 +256,11 @@ def _face(problem: Problem, side: str) -> _Face:
         raise ValueError(f"{side}_boundary.partition: expected a positive partition "
                          f"coefficient, got {k_face!r}")
     fluid = condition.fluid_concentration(boundary)
+    if getattr(condition, "finite_volume", False):
+        volume = compartment_capacity(problem, side)
+        return _Face("compartment", weight, ratio=layer.partition / k_face,
+                     capacity=volume * layer.partition / k_face,
+                     clearance=float(boundary.clearance), initial=float(boundary.initial))
     if condition.holds_concentration and fluid is not None:
         return _Face("dirichlet", weight, value=k_face * fluid / layer.partition)
     film = condition.film_coefficient(boundary)
@@ -257,7 +276,8 @@ def _face(problem: Problem, side: str) -> _Face:
     if condition.is_sealed(boundary):
         return _Face("none")
     raise ValueError(f"{side}_boundary.kind: {boundary.kind!r} has no form in the Galerkin "
-                     "solver (expected concentration, mass_transfer, flux or symmetry)")
+                     "solver (expected concentration, mass_transfer, flux, symmetry or "
+                     "compartment)")
 
 
 class _System:
@@ -309,6 +329,13 @@ class _System:
         self.outer = _face(problem, "outer")
         self.inner_nodes = self.node_offsets[:-1].copy()
         self.outer_nodes = self.node_offsets[1:] - 1
+        #: the body's own lumped mass; ``lumped`` (the stepping mass) adds a compartment's
+        #: capacity at its face node
+        self.body_lumped = self.lumped.copy()
+        self.initial_content = self.initial_nodal_load.copy()
+        for face, nodes_of_face in self._compartments():
+            self.lumped[nodes_of_face] += face.capacity
+            self.initial_content[nodes_of_face] += face.capacity / face.ratio * face.initial
         held = np.zeros(size, dtype=bool)
         for face, nodes_of_face in ((self.inner, self.inner_nodes),
                                     (self.outer, self.outer_nodes)):
@@ -360,6 +387,20 @@ class _System:
         free = self.free
         self.inverse_mass = np.where(free, 1.0 / self.lumped, 0.0)
 
+    def _compartments(self) -> list[tuple[_Face, np.ndarray]]:
+        """The compartment faces with their node in every mesh."""
+        return [(face, nodes) for face, nodes in ((self.inner, self.inner_nodes),
+                                                  (self.outer, self.outer_nodes))
+                if face.kind == "compartment"]
+
+    def _compartment_out(self, u: np.ndarray, amounts: np.ndarray) -> None:
+        """Book as released through each compartment face what its fluid holds at state u less
+        what it held at t = 0 (the exchange at 0+ between the face node and the fluid)."""
+        for k, (face, held) in enumerate(((self.inner, self.inner_nodes),
+                                          (self.outer, self.outer_nodes))):
+            if face.kind == "compartment":
+                amounts[:, k] = face.capacity * u[held] - face.capacity / face.ratio * face.initial
+
     def _gather(self, at_left: np.ndarray, at_right: np.ndarray) -> np.ndarray:
         """Element contributions to their inner and outer node, summed per node."""
         return (np.bincount(self.left, at_left, minlength=self.size)
@@ -369,13 +410,14 @@ class _System:
     def initial_state(self) -> np.ndarray:
         """State at 0+: lumped projection of the initial state, concentration faces at their
         value and the amount that moves at that instant booked as released there."""
-        u = self.initial_nodal_load / self.lumped
+        u = self.initial_content / self.lumped
         amounts = np.zeros((self.count, 3))
         for k, (face, held) in enumerate(((self.inner, self.inner_nodes),
                                           (self.outer, self.outer_nodes))):
             if face.kind == "dirichlet":
                 amounts[:, k] = self.initial_nodal_load[held] - self.lumped[held] * face.value
                 u[held] = face.value
+        self._compartment_out(u, amounts)
         return np.concatenate((u, amounts.ravel()))
 
     def start_state(self) -> np.ndarray:
@@ -385,15 +427,17 @@ class _System:
         ode = self.initial_state()
         u = ode[: self.size]
         solid = np.zeros(self.size)
+        amounts = ode[self.size:].reshape(self.count, 3).copy()
         if self.can_saturate:
-            content = self.initial_nodal_load
+            content = self.initial_content
             limited = np.isfinite(self.saturation_potential)
             dissolved = np.minimum(content, self.lumped * np.where(
                 limited, self.saturation_potential, np.inf))
             solid = np.where(limited, content - dissolved, 0.0)
             u = np.where(limited, dissolved / self.lumped, u)
+            self._compartment_out(u, amounts)
         self.initial_undissolved = self.layer_undissolved(solid)
-        return np.concatenate((u, solid, ode[self.size:]))
+        return np.concatenate((u, solid, amounts.ravel()))
 
     def stiffness_apply(self, u: np.ndarray) -> np.ndarray:
         """A u with A the r^n-weighted stiffness matrix int D K phi_i' phi_j' r^n."""
@@ -453,7 +497,8 @@ class _System:
     def balance(self, u: np.ndarray, tau: float, slopes: bool = True):
         """``(A u + F(u) - B(u), d/du diagonal, d/du coupling of node k with k + 1)``: the
         nodal balance without the time derivative and the switching terms (F the Gauss-point
-        reaction load, B the Robin or imposed-flux inflow at a face that holds no value); the
+        reaction load and a compartment's clearance, B the Robin or imposed-flux inflow at a
+        face that holds no value); the
         coupling has size - 1 entries (zero between meshes). ``tau`` is unused (kept for the
         callers' symmetry)."""
         size = self.size
@@ -478,22 +523,34 @@ class _System:
                     diag[held] = diag[held] + face.weight * face.coefficient * face.ratio
             elif face.kind == "flux":
                 flow[held] -= face.weight * face.value
+            elif face.kind == "compartment" and face.clearance > 0.0:
+                flow[held] += face.capacity * face.clearance * u[held]
+                if slopes:
+                    diag[held] = diag[held] + face.capacity * face.clearance
         if slopes:
             off = np.zeros(size - 1)
             off[self.left] = off_e
             return flow, diag, off
         return flow, None, None
 
-    def substep_amounts(self, u: np.ndarray, flow: np.ndarray, rate: np.ndarray):
+    def substep_amounts(self, u: np.ndarray, flow: np.ndarray, rate: np.ndarray,
+                        u0: np.ndarray, tau: float):
         """Per mesh: inflow through the inner and outer face and the consumption rate of a
-        substep ending at u (``flow`` the balance of :meth:`balance` there, ``rate`` the nodal
-        zero-order rates). The stiffness rows sum to zero, so the Gauss-point consumption is
-        the sum of ``flow`` plus the Robin and imposed inflows."""
+        substep of size tau from u0 to u (``flow`` the balance of :meth:`balance` at u,
+        ``rate`` the nodal zero-order rates). The stiffness rows sum to zero, so the
+        Gauss-point consumption is the sum of ``flow`` plus the Robin and imposed inflows less
+        a compartment's clearance; a compartment's inflow is minus what its fluid gained and
+        what its clearance removed."""
         inflows: list[np.ndarray] = []
         consumption = np.bincount(self.node_mesh, flow + rate, minlength=self.count).astype(float)
         for face, held in ((self.inner, self.inner_nodes), (self.outer, self.outer_nodes)):
             if face.kind == "dirichlet":
                 inflows.append(flow[held])
+                continue
+            if face.kind == "compartment":
+                cleared = face.capacity * face.clearance * u[held]
+                inflows.append(-face.capacity * (u[held] - u0[held]) / tau - cleared)
+                consumption = consumption - cleared
                 continue
             if face.kind == "robin":
                 inflow = face.weight * face.coefficient * (face.bulk - face.ratio * u[held])
@@ -621,13 +678,23 @@ class _System:
             load += np.where(u > 0.0, self.nodal_zero, 0.0)
         return load
 
-    def face_inflows(self, u: np.ndarray, balance: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    def face_inflows(self, u: np.ndarray, balance: np.ndarray, solid: np.ndarray | None = None
+                     ) -> tuple[np.ndarray, np.ndarray]:
         """r^n-weighted inflow through the inner and outer face of each mesh; ``balance`` is
-        A u + F(u), whose row at a held node is its consistent flux."""
+        A u + F(u), whose row at a held node is its consistent flux. At a compartment's node
+        (body mass m, fluid capacity W'), M du/dt = -(balance + W' k_c u) with M = m + W' while
+        no undissolved solute sits there (``solid``), else du/dt = 0; the inflow is
+        -W' du/dt - W' k_c u."""
         inflows = []
         for face, held in ((self.inner, self.inner_nodes), (self.outer, self.outer_nodes)):
             if face.kind == "dirichlet":
                 inflows.append(balance[held])
+            elif face.kind == "compartment":
+                cleared = face.capacity * face.clearance * u[held]
+                rate = -(balance[held] + cleared) / self.lumped[held]
+                if solid is not None:
+                    rate = np.where(solid[held] > 0.0, 0.0, rate)
+                inflows.append(-face.capacity * rate - cleared)
             elif face.kind == "robin":
                 inflows.append(face.weight * face.coefficient
                                * (face.bulk - face.ratio * u[held]))
@@ -669,6 +736,9 @@ class TransientGalerkinSolution(TransientSolution):
     #: per loaded layer, the time its undissolved solute ran out, s (None: not within the
     #: integration)
     time_depleted_layers: list[float | None] = field(default_factory=list)
+    #: Fluid concentration of each compartment face (``"inner"``/``"outer"``) at the times,
+    #: amount/m^3 (its starting level at t = 0; empty without compartments).
+    compartments: dict[str, np.ndarray] = field(default_factory=dict)
 
 
 def coarse_elements(problem: Problem, first_time: float | None = None) -> tuple[int, ...]:
@@ -805,7 +875,8 @@ def solve_transient_galerkin_meshes(
     for k in range(times.size):
         u = states[:size, k]
         load = system.reaction_load(u) if system.reacts else np.zeros(size)
-        inflows[:, k] = system.face_inflows(u, system.stiffness_apply(u) + load)
+        inflows[:, k] = system.face_inflows(u, system.stiffness_apply(u) + load,
+                                            states[size:2 * size, k])
     return [_package(problem, system, g, times, states, inflows[:, :, g], success, history,
                      dense, stored, rtol) for g in range(system.count)]
 
@@ -897,7 +968,7 @@ def _package(problem: Problem, system: _System, g: int, times: np.ndarray, state
     nodal = states[low:high].T
     solid = states[size + low:size + high].T
     undissolved = measure * solid.sum(axis=1)
-    remaining = measure * (nodal @ system.lumped[low:high]) + undissolved
+    remaining = measure * (nodal @ system.body_lumped[low:high]) + undissolved
     out_inner, out_outer, consumed = (measure * states[row + k].copy() for k in range(3))
     initial_load = measure * float(system.initial_loads[g])
     at_start = times == 0.0
@@ -941,6 +1012,12 @@ def _package(problem: Problem, system: _System, g: int, times: np.ndarray, state
                                                      problem.exponent)
         depleted = _depletion_times(system, g, np.asarray(history.ts), stored)
     ts = np.asarray(history.ts, dtype=float)
+    compartments = {}
+    for side, face, local in (("inner", system.inner, 0), ("outer", system.outer, n - 1)):
+        if face.kind == "compartment":
+            level = nodal[:, local] * face.ratio
+            level[at_start] = face.initial
+            compartments[side] = level
     return TransientGalerkinSolution(
         method=METHOD_NAME,
         reference=METHOD_REFERENCE,
@@ -975,6 +1052,7 @@ def _package(problem: Problem, system: _System, g: int, times: np.ndarray, state
         front_outer=front_outer,
         front_inner=front_inner,
         time_depleted_layers=depleted,
+        compartments=compartments,
     )
 
 

@@ -17,7 +17,8 @@ Every substep is one implicit Euler system on the r^n-weighted nodal balance
     m_i (u_i - u_i^0) + (s_i - s_i^0) + tau [(A u)_i + F_i(u) + R_i - B_i(u)] = 0,
 
 with ``m`` the lumped mass, ``A`` the stiffness, ``F`` the Gauss-point reaction load,
-``B`` the face inflow (Robin or imposed flux) and two switching terms solved exactly as
+``B`` the face inflow (Robin or imposed flux; ``m`` includes a compartment's capacity at its
+face node and ``F`` its clearance) and two switching terms solved exactly as
 complementarity conditions by the primal-dual active-set method (M. Hintermueller, K. Ito,
 K. Kunisch, SIAM J. Optim. 13 (2002) 865, a semismooth Newton method, finite for M-matrices):
 
@@ -140,7 +141,8 @@ def _solve_substep(system, u0: np.ndarray, s0: np.ndarray, tau: float,
         raise SubstepFailure("the active sets of the switching terms did not settle")
     s = np.where(saturated, solid, 0.0)
     rate = np.where(dead, needed, rate)
-    inflow_inner, inflow_outer, consumption = system.substep_amounts(u, flow, rate)
+    inflow_inner, inflow_outer, consumption = system.substep_amounts(u, flow, rate, u0,
+                                                                         tau)
     return u, s, inflow_inner, inflow_outer, consumption
 
 

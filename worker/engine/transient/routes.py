@@ -5,8 +5,9 @@ the internal times, its own initial load, its profile at any internal time and i
   form) converge; events by a log scan of its closed-form amounts, each divided by its own load;
 * the exact Laplace-domain solution (any layers, linear kinetics): usable at every time; events
   by a scan of its inverted amounts refined by ``brentq``;
-* the Galerkin second discretisation: its three-mesh extrapolated amounts, the fine mesh's load
-  and profiles with the band |fine - medium|, its extrapolated events;
+* the Galerkin second discretisation: its three-mesh extrapolated amounts and compartment
+  levels, the fine mesh's load and profiles with the band |fine - medium|, its extrapolated
+  events;
 * the method of lines: the three-mesh extrapolated amounts, the fine mesh's load and profiles
   with the band |fine - medium|, its extrapolated events (``record.add_events``).
 """
@@ -32,8 +33,8 @@ LAPLACE_EVENT_SCAN_POINTS = 48
 #: Release levels of the events.
 EVENT_LEVELS = (("t50", 0.5), ("t90", 0.9))
 
-__all__ = ["EVENT_LEVELS", "fv_route", "galerkin_fronts", "galerkin_route", "laplace_route",
-           "series_route"]
+__all__ = ["EVENT_LEVELS", "fv_route", "galerkin_compartments", "galerkin_fronts",
+           "galerkin_route", "laplace_route", "series_route"]
 
 
 def _events(outcome: Outcome, key: str) -> dict[str, float | None]:
@@ -203,7 +204,24 @@ def galerkin_route(problem: Problem, study: GalerkinStudy, internal: np.ndarray,
                  concentration)
     route.fronts = galerkin_fronts(study)
     route.flux_band = _flux_band(fine, medium)
+    route.compartments = galerkin_compartments(study)
     return route
+
+
+def galerkin_compartments(study: GalerkinStudy) -> dict[str, np.ndarray]:
+    """Fluid concentration of each compartment face at the internal times, extrapolated over
+    the three meshes where it converges monotonically, else the fine mesh's."""
+    meshes = list(reversed(study.solutions))  # fine, medium, coarse
+    sizes = [float(sum(s.mesh.elements_per_layer)) for s in meshes]
+    out = {}
+    for side, fine in study.fine.compartments.items():
+        values = np.array(fine, dtype=float)
+        for k in range(values.size):
+            found = _extrapolated([float(s.compartments[side][k]) for s in meshes], sizes)
+            if found is not None:
+                values[k] = found
+        out[side] = values
+    return out
 
 
 def _extrapolated(per_mesh: list[float | None], sizes: list[float]) -> float | None:
