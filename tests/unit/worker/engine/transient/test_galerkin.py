@@ -106,8 +106,8 @@ def test_mass_balance_catches_a_wrong_consumption_either_way(monkeypatch):
     problem = _mixed()
     original = galerkin._System.substep_amounts
     for factor in (1.01, 0.99):
-        def scaled(self, u, flow, rate, factor=factor):
-            inner, outer, consumption = original(self, u, flow, rate)
+        def scaled(self, u, flow, rate, u0, tau, factor=factor):
+            inner, outer, consumption = original(self, u, flow, rate, u0, tau)
             return inner, outer, consumption * factor
         monkeypatch.setattr(galerkin._System, "substep_amounts", scaled)
         solution = solve_transient_galerkin(problem, elements_per_layer=(12, 8, 6))
