@@ -20,6 +20,7 @@ from markupsafe import Markup
 
 import schemas
 from service.report.html_design import design_context
+from service.report.html_measured import measured_context
 from service.report.layer_stack import layer_stack_svg
 from service.report.numbers import (
     length_markup,
@@ -273,6 +274,7 @@ def report_context(record: dict[str, Any], document: dict[str, Any]) -> dict[str
         "layer_names": [str(layer.get("name") or f"layer {i + 1}")
                         for i, layer in enumerate((normalised or {}).get("layers") or [])],
         **design_context(record, document),
+        **measured_context(record),
     }
 
 

@@ -3,7 +3,9 @@
 Every page is headed with the run id, the case's SHA-256 and ``page x of y`` (and the number of
 deviations when the record lists any). The body says what the HTML report says, in the same
 words (:mod:`service.report.design_view`, :mod:`service.report.text_design`): title, the two
-verdicts apart, requirements, inputs as given and in SI, quantities, the design blocks, checks,
+verdicts apart, requirements, inputs as given and in SI, quantities, the design blocks, the
+measured-data blocks (calibration, validation with its figure, credibility:
+:mod:`service.report.pdf_measured`), checks,
 warnings, methods, provenance, every sign-off with every field it carries, and the caution.
 """
 
@@ -20,6 +22,7 @@ from service.report.design_view import (
 from service.report.html import DEFAULT_CAUTION, input_rows
 from service.report.numbers import plain_number, readable_time, unit_text
 from service.report.pdf_document import PagedDocument
+from service.report.pdf_measured import measured_sections
 from service.report.release_view import (
     depletion_times,
     over_time_columns,
@@ -251,6 +254,7 @@ def render_record_pdf(record: Mapping[str, Any], document: Mapping[str, Any]) ->
     _quantities(doc, record)
     _over_time(doc, record)
     _design_blocks(doc, record)
+    measured_sections(doc, record)
     _checks(doc, record)
     if record.get("warnings"):
         doc.heading("Warnings")

@@ -21,6 +21,7 @@ from service.report.text_design import (
     uncertainty_lines,
     verdict_lines,
 )
+from service.report.text_measured import calibration_lines, credibility_lines, validation_lines
 
 RULE = "-" * 78
 
@@ -148,7 +149,8 @@ def render_text(record: dict, case: dict) -> str:
         add(format_minimum_table(record))
     add(RULE)
     lines.extend(requirement_lines(record, case))
-    for block in (uncertainty_lines(record), limit_lines(record), sweep_lines(record)):
+    for block in (uncertainty_lines(record), limit_lines(record), sweep_lines(record),
+                  calibration_lines(record), validation_lines(record), credibility_lines(record)):
         if block:
             add(RULE)
             lines.extend(block)
