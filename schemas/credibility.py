@@ -253,9 +253,11 @@ def model_inputs(record: Mapping[str, Any]) -> Factor:
         inputs = [i.get("field") for i in uncertainty.get("inputs") or []
                   if isinstance(i, Mapping)]
         converged = uncertainty.get("converged")
+        sensitivity = uncertainty.get("sensitivity")
         parts.append(f"the uncertainty of {len(inputs)} input(s) ({', '.join(map(str, inputs))}) "
                      f"propagated by Monte Carlo over {uncertainty.get('trials', '—')} trials"
-                     + ("" if converged else ", not converged"))
+                     + ("" if converged else ", not converged")
+                     + (", with sensitivity indices" if sensitivity else ""))
         if converged is False:
             problems.append("the Monte Carlo run did not converge")
     if isinstance(calibration, Mapping):

@@ -197,6 +197,12 @@ def test_model_inputs_uncertainty(steady_record, release_record):
     assert shown["status"] == EVIDENCED
     assert f"over {steady_record['uncertainty']['trials']} trials" in shown["evidence"]
     assert "layers[0].diffusivity" in shown["evidence"]
+    has_indices = bool(steady_record["uncertainty"].get("sensitivity"))
+    assert ("with sensitivity indices" in shown["evidence"]) is has_indices
+    flipped = copy.deepcopy(steady_record)
+    flipped["uncertainty"]["sensitivity"] = None if has_indices else {"x": {}}
+    assert ("with sensitivity indices" in factor(flipped, "model inputs")["evidence"]) \
+        is not has_indices
     assert factor(release_record, "model inputs")["status"] == NOT_ASSESSED
     removed = copy.deepcopy(steady_record)
     removed.pop("uncertainty")

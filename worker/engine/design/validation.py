@@ -30,7 +30,7 @@ import numpy as np
 
 DEFAULT_COVERAGE_FACTOR = 2.0
 
-__all__ = ["DEFAULT_COVERAGE_FACTOR", "ValidationSet", "compare"]
+__all__ = ["DEFAULT_COVERAGE_FACTOR", "ValidationSet", "compare", "validation_block"]
 
 Numbers = Sequence[float] | np.ndarray
 
@@ -187,3 +187,14 @@ def compare(simulated: Numbers, measured: Numbers, u_num: Numbers | float,
                          f"{int(zero[0])} (u_num, u_input and u_D all zero); expected a "
                          f"positive standard uncertainty of the data")
     return result
+
+
+def validation_block(sets: Sequence[dict], *, coverage_factor: float, u_input_method: str,
+                     u_num_method: str) -> dict:
+    """The record's ``validation`` block from the sets' :meth:`ValidationSet.as_dict` entries
+    (all compared with ``coverage_factor``): it agrees when no point of any set is flagged."""
+    if not sets:
+        raise ValueError("sets: expected at least one validation set, got none")
+    return {"coverage_factor": float(coverage_factor), "u_input_method": u_input_method,
+            "u_num_method": u_num_method, "sets": list(sets),
+            "agrees": all(entry["agrees"] for entry in sets)}

@@ -16,7 +16,11 @@ import math
 import numpy as np
 import pytest
 
-from worker.engine.design.validation import DEFAULT_COVERAGE_FACTOR, compare
+from worker.engine.design.validation import (
+    DEFAULT_COVERAGE_FACTOR,
+    compare,
+    validation_block,
+)
 
 # Worked example (hand computation, k = 2):
 #   point 0: S = 0.50, D = 0.40 → E = +0.10; u = (0.02, 0.03, 0.06) → u_val = 0.07;
@@ -130,3 +134,15 @@ def test_bad_input_is_named(args, kwargs, words):
 def test_times_must_match_the_points():
     with pytest.raises(ValueError, match="times: expected 3 values"):
         compare(S, D, U_NUM, U_INPUT, U_D).as_dict("s", "q", "1", [1.0, 2.0])
+
+
+def test_block_agrees_only_when_no_set_flags():
+    flagged = compare(S, D, U_NUM, U_INPUT, U_D).as_dict("A", "q", "1", TIMES)
+    clean = compare(S, S, U_NUM, U_INPUT, U_D).as_dict("B", "q", "1", TIMES)
+    both = validation_block([clean, flagged], coverage_factor=2.0, u_input_method="m",
+                            u_num_method="n")
+    assert both["agrees"] is False and [s["id"] for s in both["sets"]] == ["B", "A"]
+    assert validation_block([clean], coverage_factor=2.0, u_input_method="m",
+                            u_num_method="n")["agrees"] is True
+    with pytest.raises(ValueError, match="sets: expected at least one"):
+        validation_block([], coverage_factor=2.0, u_input_method="m", u_num_method="n")
