@@ -111,7 +111,7 @@ class CalibrationView:
             short.get("agrees"), "agreement not stated")
         return (f"Second estimate from early data ({short.get('source') or 'short-time form'}): "
                 f"{plain_number(short.get('estimate'))} ± "
-                f"{plain_number(short.get('standard_error'), 2)} from "
+                f"{plain_number(short.get('standard_error'), 2)} (SI) from "
                 f"{short.get('points', '—')} points; {agrees}")
 
 

@@ -162,3 +162,37 @@ def test_credibility_table_pastes_as_it_stands():
     assert comparison["software quality assurance"] == "pass"
     pdf, _ = _pdf(record)
     assert "not supported" in pdf and "output comparison" in pdf
+
+
+def test_a_real_record_with_its_blocks_renders():
+    """A record from check_case (an invented releasing film), its release compared with data
+    on the simulation by the engine's comparison and its credibility block built from it: every
+    rendering holds the credibility rows the block states and the validation sentence."""
+    import copy
+
+    from schemas.checking import check_case
+    from schemas.credibility import credibility_block
+    from tests.unit.schemas.test_credibility import RELEASE_CASE
+    from worker.engine.design.validation import compare, validation_block
+
+    case = copy.deepcopy(RELEASE_CASE)
+    record = check_case(case)
+    series = record["series"]
+    simulated = series["release_fraction"]["values"]
+    result = compare(simulated, simulated, 0.0, None, 0.01)  # data on the simulation
+    record["validation"] = validation_block(
+        [result.as_dict("FILM", "release_fraction", "1", series["time"]["values"])],
+        coverage_factor=2.0, u_input_method="not assessed", u_num_method="test")
+    record["credibility"] = credibility_block(record)
+    text = render_text(record, case)
+    html = _plain(_section(_html_of(record, case), "credibility"))
+    for factor in record["credibility"]["factors"]:
+        assert f"| {factor['factor']} |" in text
+        assert factor["evidence"] in html
+    points = len(simulated)
+    assert f"All {points} points lie within ±2·u_val of the simulation" in text
+
+
+def _html_of(record: dict, case: dict) -> str:
+    with Flask("service").test_request_context():
+        return render_report(record, case)
