@@ -47,8 +47,9 @@ CHI_SQUARE_RANGE = 0.95
 AT_BOUND = 1.0e-6
 #: Optimiser tolerances (scipy's ftol, xtol, gtol) on the normalised parameters.
 TOLERANCE = 1.0e-10
-#: Absolute precision (chi-square units) of an interval end's profile.
-PROFILE_TOLERANCE = 1.0e-6
+#: A profile point this far (chi-square units) below the fit's minimum means the fit was not the
+#: minimum (0.01 is small beside the interval's 3.84).
+LOWER_MINIMUM = 0.01
 
 METHOD = (
     "weighted nonlinear least squares (scipy.optimize.least_squares, trust-region reflective, "
@@ -278,10 +279,12 @@ def _least_squares(fun: Callable[[np.ndarray], np.ndarray], w0: np.ndarray, low:
                                   max_nfev=200 * (w0.size + 1))
 
 
-def _jacobian(problem: _Problem, z: np.ndarray) -> np.ndarray:
-    """d(residual)/dz (n, k) by central differences, one-sided at a bound."""
+def _jacobian(problem: _Problem, z: np.ndarray) -> tuple[np.ndarray, list[str]]:
+    """d(residual)/dz (n, k) by central differences, one-sided at a bound or where the model
+    fails on one side; the sides ("below"/"above") where it failed, per parameter."""
     r0 = problem.residuals(z)
     jac = np.empty((r0.size, z.size))
+    failed_sides: list[str] = []
     span = problem.z_high - problem.z_low
     for j in range(z.size):
         if problem.log[j]:
@@ -291,8 +294,18 @@ def _jacobian(problem: _Problem, z: np.ndarray) -> np.ndarray:
         up, down = z.copy(), z.copy()
         up[j] = min(z[j] + h, problem.z_high[j])
         down[j] = max(z[j] - h, problem.z_low[j])
-        jac[:, j] = (problem.residuals(up) - problem.residuals(down)) / (up[j] - down[j])
-    return jac
+        r_up, r_down = problem.predict(up), problem.predict(down)
+        failed = [side for side, r in (("below", r_down), ("above", r_up)) if r is None]
+        failed_sides.append(" and ".join(failed))
+        if r_up is None:
+            r_up, up = r0 * problem.u + problem.y, z.copy()
+        if r_down is None:
+            r_down, down = r0 * problem.u + problem.y, z.copy()
+        if up[j] == down[j]:
+            jac[:, j] = np.nan
+        else:
+            jac[:, j] = (r_up - r_down) / problem.u / (up[j] - down[j])
+    return jac, failed_sides
 
 
 def _covariance(jac: np.ndarray) -> tuple[np.ndarray, np.ndarray, int, np.ndarray]:
@@ -316,6 +329,7 @@ def _covariance(jac: np.ndarray) -> tuple[np.ndarray, np.ndarray, int, np.ndarra
     v = vt[keep]
     scaled_inv = (v.T / s[keep] ** 2) @ v  # pseudo-inverse of (J/n)^T (J/n)
     cov = scaled_inv / np.outer(safe, safe)
+    cov = (cov + cov.T) / 2.0
     corr = np.zeros((k, k))
     det = ~undetermined
     diag = np.sqrt(np.diag(cov))
@@ -441,8 +455,13 @@ def calibrate(model: Model, parameters: Sequence[FitParameter], values: Any,
     dof = n - k
     paths = [p.path for p in parameters]
 
-    jac = _jacobian(problem, z_hat)
-    cov_z, corr, rank, undetermined = _covariance(jac)
+    jac, failed_sides = _jacobian(problem, z_hat)
+    for j, sides in enumerate(failed_sides):
+        if sides:
+            warnings.append(f"{paths[j]}: the model fails just {sides} the estimate: it sits at "
+                            "the edge of the region where the model can be computed, not at a "
+                            "minimum set by the data")
+    cov_z, corr, rank, undetermined = _covariance(np.nan_to_num(jac, nan=0.0))
     if rank < k:
         names = ", ".join(paths[j] for j in range(k) if undetermined[j])
         warnings.append(f"the Jacobian is rank-deficient (rank {rank} of {k}): the data "
@@ -494,9 +513,10 @@ def calibrate(model: Model, parameters: Sequence[FitParameter], values: Any,
         intervals[j] = [10.0 ** e for e in ends] if p.log else ends
         open_sides.append((opened[0], opened[1]))
         best = profile.lowest
-        if best < chi_min - max(1e-6 * chi_min, PROFILE_TOLERANCE):
-            warnings.append(f"{p.path}: its profile found a lower chi-square ({best:.6g}) than "
-                            f"the fit ({chi_min:.6g}): the fit may be a local minimum")
+        if best < chi_min - LOWER_MINIMUM:
+            warnings.append(f"{p.path}: its profile found a chi-square {chi_min - best:.3g} "
+                            f"lower than the fit's ({chi_min:.6g}): the fit may be a local "
+                            "minimum")
 
     if dof <= 0:
         warnings.append(f"no degrees of freedom ({n} points, {k} parameters): the fit cannot "
