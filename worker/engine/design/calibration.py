@@ -210,7 +210,6 @@ class _Problem:
         self.z_low = np.array([self._to_z(p, p.low) for p in parameters])
         self.z_high = np.array([self._to_z(p, p.high) for p in parameters])
         self.evaluations = 0
-        self.failures = 0
 
     @staticmethod
     def _to_z(p: FitParameter, value: float) -> float:
@@ -220,7 +219,8 @@ class _Problem:
         return np.where(self.log, 10.0 ** np.where(self.log, z, 0.0), z)
 
     def predict(self, z: np.ndarray) -> np.ndarray | None:
-        """Predictions at fitted-scale ``z``; None when the model fails there."""
+        """Predictions at fitted-scale ``z``; None when the model fails there (a non-finite
+        prediction, or an ArithmeticError or ValueError raised by the model)."""
         self.evaluations += 1
         try:
             predicted = np.asarray(self.model(self.to_si(z)), dtype=float)
@@ -230,7 +230,6 @@ class _Problem:
             raise ValueError(f"model: expected {self.y.size} predictions (one per measured "
                              f"value), got shape {predicted.shape}")
         if not np.all(np.isfinite(predicted)):
-            self.failures += 1
             return None
         return predicted
 
@@ -282,8 +281,10 @@ def _least_squares(fun: Callable[[np.ndarray], np.ndarray], w0: np.ndarray, low:
 def _jacobian(problem: _Problem, z: np.ndarray) -> tuple[np.ndarray, list[str]]:
     """d(residual)/dz (n, k) by central differences, one-sided at a bound or where the model
     fails on one side; the sides ("below"/"above") where it failed, per parameter."""
-    r0 = problem.residuals(z)
-    jac = np.empty((r0.size, z.size))
+    centre = problem.predict(z)
+    if centre is None:
+        raise ValueError("model: the model failed at the fitted values; no fit was found")
+    jac = np.empty((centre.size, z.size))
     failed_sides: list[str] = []
     span = problem.z_high - problem.z_low
     for j in range(z.size):
@@ -298,9 +299,9 @@ def _jacobian(problem: _Problem, z: np.ndarray) -> tuple[np.ndarray, list[str]]:
         failed = [side for side, r in (("below", r_down), ("above", r_up)) if r is None]
         failed_sides.append(" and ".join(failed))
         if r_up is None:
-            r_up, up = r0 * problem.u + problem.y, z.copy()
+            r_up, up = centre, z.copy()
         if r_down is None:
-            r_down, down = r0 * problem.u + problem.y, z.copy()
+            r_down, down = centre, z.copy()
         if up[j] == down[j]:
             jac[:, j] = np.nan
         else:
@@ -424,7 +425,8 @@ def _profile_side(profile: _Profile, z_hat: float, chi_min: float, target: float
 def calibrate(model: Model, parameters: Sequence[FitParameter], values: Any,
               standard_uncertainty: Any, *, level: float = 0.95) -> CalibrationResult:
     """Fit ``parameters`` so that ``model(theta)`` (SI values in, one prediction per measured
-    value out; NaN where the model fails) matches ``values`` with their standard uncertainties.
+    value out; NaN where the model fails, or an ArithmeticError or ValueError raised) matches
+    ``values`` with their standard uncertainties (one per value, or one for all).
 
     Raises ValueError naming the field for bad input, for fewer points than parameters, and for
     a model that fails at the start.

@@ -16,6 +16,7 @@ import numpy as np
 import pytest
 from scipy import stats
 
+from worker.engine.design import calibration
 from worker.engine.design.calibration import CalibrationResult, FitParameter, calibrate
 
 D_TRUE = 2.0e-12  # m^2/s, invented
@@ -193,6 +194,43 @@ def test_no_degrees_of_freedom_is_warned_not_refused():
     assert has(one, "no degrees of freedom")
     two = calibrate(release(SPREAD[5:7]), [d_param()], data(SPREAD[5:7], 9), NOISE)
     assert not has(two, "no degrees of freedom")
+
+
+def _double_well(th):
+    """Residuals r1 = theta^2 - 1 (u = 1), r2 = 0.3 theta + 1: chi-square has a local minimum
+    near theta = +1 (~1.7) and a deeper one near -1 (~0.5), the barrier between them ~0.3 above
+    the local one (well inside the profile's 3.84)."""
+    return np.array([th[0] ** 2, 0.3 * th[0]])
+
+
+def test_profile_finding_a_lower_minimum_is_warned():
+    """Started in the shallow well the fit stops there; its profile walks into the deeper well
+    and says the fit may be a local minimum. Started in the deep well: no warning."""
+    line = [FitParameter("theta", 1.2, -3.0, 3.0, False, "1")]
+    shallow = calibrate(_double_well, line, [1.0, -1.0], 1.0)
+    assert shallow.estimates[0] > 0
+    assert has(shallow, "theta", "lower than the fit", "local minimum")
+    deep = calibrate(_double_well, [FitParameter("theta", -1.2, -3.0, 3.0, False, "1")],
+                     [1.0, -1.0], 1.0)
+    assert deep.estimates[0] < 0
+    assert not has(deep, "local minimum")
+
+
+def test_optimiser_stopping_early_is_reported(monkeypatch):
+    """An optimiser held to 2 evaluations (scipy status 0) is not converged and says so; with
+    its normal allowance it converges silently."""
+    y = data(SPREAD, 13)
+    assert calibrate(release(SPREAD), [d_param()], y, NOISE).converged
+    original = calibration.optimize.least_squares
+
+    def starved(*args, **kwargs):
+        kwargs["max_nfev"] = 2
+        return original(*args, **kwargs)
+
+    monkeypatch.setattr(calibration.optimize, "least_squares", starved)
+    stopped = calibrate(release(SPREAD), [d_param()], y, NOISE)
+    assert not stopped.converged
+    assert has(stopped, "optimiser stopped without converging")
 
 
 # --------------------------------------------------------------------------------------------
