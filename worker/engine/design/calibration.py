@@ -18,6 +18,9 @@
   profile is the chi-square itself. Each side is bracketed by steps growing outward from the
   estimate and then found by ``scipy.optimize.brentq``. A side whose profile stays below the
   threshold up to the bound is reported open there: that end is the bound.
+
+The fitted values and intervals support, and do not replace, design verification testing and
+qualified review of the device; they are only as good as the model and the stated uncertainties.
 """
 
 from __future__ import annotations
@@ -419,6 +422,66 @@ def _profile_side(profile: _Profile, z_hat: float, chi_min: float, target: float
     return float(end), "closed"
 
 
+def _intervals(problem: _Problem, z_hat: np.ndarray, ref: np.ndarray, cov_z: np.ndarray,
+               chi_min: float, target: float, level: float, warnings: list[str]
+               ) -> tuple[np.ndarray, list[tuple[bool, bool]]]:
+    """Profile-likelihood interval (SI) of each parameter and which sides are open at a bound;
+    appends the warnings of open, failed and lower-minimum profiles."""
+    k = z_hat.size
+    intervals = np.empty((k, 2))
+    open_sides = []
+    for j, p in enumerate(problem.parameters):
+        profile = _Profile(problem, j, z_hat, ref)
+        span = problem.z_high[j] - problem.z_low[j]
+        se_z = math.sqrt(cov_z[j, j]) if math.isfinite(cov_z[j, j]) else math.inf
+        first = min(se_z, 0.25 * span) if se_z > 0.0 else 0.01 * span
+        ends, opened = [], []
+        for index, bound, word in ((0, problem.z_low[j], "below"),
+                                   (1, problem.z_high[j], "above")):
+            end, status = _profile_side(profile, float(z_hat[j]), chi_min, target, first,
+                                        float(bound))
+            ends.append(end)
+            opened.append(status == "open")
+            if status == "open":
+                warnings.append(f"{p.path}: the data do not bound it from {word} at "
+                                f"{100 * level:g} %: its interval is open at the "
+                                f"{'lower' if index == 0 else 'upper'} bound "
+                                f"{(p.low if index == 0 else p.high):.6g} {p.unit}")
+            elif status == "failed":
+                warnings.append(f"{p.path}: the model failed while profiling it from {word}: "
+                                "that end of its interval is not established")
+        intervals[j] = [10.0 ** e for e in ends] if p.log else ends
+        open_sides.append((opened[0], opened[1]))
+        best = profile.lowest
+        if best < chi_min - LOWER_MINIMUM:
+            warnings.append(f"{p.path}: its profile found a chi-square {chi_min - best:.3g} "
+                            f"lower than the fit's ({chi_min:.6g}): the fit may be a local "
+                            "minimum")
+    return intervals, open_sides
+
+
+def _chi_square_warnings(chi_min: float, n: int, k: int) -> list[str]:
+    """A warning when the reduced chi-square lies outside the central ``CHI_SQUARE_RANGE`` of
+    chi2(nu)/nu, nu = n - k, or when there are no degrees of freedom."""
+    dof = n - k
+    if dof <= 0:
+        return [f"no degrees of freedom ({n} points, {k} parameters): the fit cannot test the "
+                "model or the stated uncertainties"]
+    tail = (1.0 - CHI_SQUARE_RANGE) / 2.0
+    lo_r = float(stats.chi2.ppf(tail, dof)) / dof
+    hi_r = float(stats.chi2.ppf(1.0 - tail, dof)) / dof
+    reduced = chi_min / dof
+    where = (f"its central {100 * CHI_SQUARE_RANGE:g} % range [{lo_r:.3g}, {hi_r:.3g}] for "
+             f"{dof} degrees of freedom")
+    if reduced > hi_r:
+        return [f"reduced chi-square {reduced:.3g} lies above {where}: the stated uncertainties "
+                "are too small or the model does not describe the data"]
+    if reduced < lo_r:
+        return [f"reduced chi-square {reduced:.3g} lies below {where}: the stated uncertainties "
+                "are too large or the points are not independent"]
+    return []
+
+
 # --------------------------------------------------------------------------------------------
 # Public entry
 # --------------------------------------------------------------------------------------------
@@ -454,7 +517,6 @@ def calibrate(model: Model, parameters: Sequence[FitParameter], values: Any,
         warnings.append(f"the optimiser stopped without converging ({fit.message})")
 
     k, n = len(parameters), y.size
-    dof = n - k
     paths = [p.path for p in parameters]
 
     jac, failed_sides = _jacobian(problem, z_hat)
@@ -490,54 +552,9 @@ def calibrate(model: Model, parameters: Sequence[FitParameter], values: Any,
                                 f"{si:.6g} {p.unit}: the bound, not the data, sets it")
 
     target = float(stats.chi2.ppf(level, 1))
-    intervals = np.empty((k, 2))
-    open_sides = []
-    for j, p in enumerate(parameters):
-        profile = _Profile(problem, j, z_hat, ref)
-        span = problem.z_high[j] - problem.z_low[j]
-        se_z = math.sqrt(cov_z[j, j]) if math.isfinite(cov_z[j, j]) else math.inf
-        first = min(se_z, 0.25 * span) if se_z > 0.0 else 0.01 * span
-        ends, opened = [], []
-        for index, bound, word in ((0, problem.z_low[j], "below"),
-                                   (1, problem.z_high[j], "above")):
-            end, status = _profile_side(profile, float(z_hat[j]), chi_min, target, first,
-                                        float(bound))
-            ends.append(end)
-            opened.append(status == "open")
-            if status == "open":
-                warnings.append(f"{p.path}: the data do not bound it from {word} at "
-                                f"{100 * level:g} %: its interval is open at the "
-                                f"{'lower' if index == 0 else 'upper'} bound "
-                                f"{(p.low if index == 0 else p.high):.6g} {p.unit}")
-            elif status == "failed":
-                warnings.append(f"{p.path}: the model failed while profiling it from {word}: "
-                                "that end of its interval is not established")
-        intervals[j] = [10.0 ** e for e in ends] if p.log else ends
-        open_sides.append((opened[0], opened[1]))
-        best = profile.lowest
-        if best < chi_min - LOWER_MINIMUM:
-            warnings.append(f"{p.path}: its profile found a chi-square {chi_min - best:.3g} "
-                            f"lower than the fit's ({chi_min:.6g}): the fit may be a local "
-                            "minimum")
-
-    if dof <= 0:
-        warnings.append(f"no degrees of freedom ({n} points, {k} parameters): the fit cannot "
-                        "test the model or the stated uncertainties")
-    else:
-        tail = (1.0 - CHI_SQUARE_RANGE) / 2.0
-        lo_r = float(stats.chi2.ppf(tail, dof)) / dof
-        hi_r = float(stats.chi2.ppf(1.0 - tail, dof)) / dof
-        reduced = chi_min / dof
-        if reduced > hi_r:
-            warnings.append(f"reduced chi-square {reduced:.3g} lies above its central "
-                            f"{100 * CHI_SQUARE_RANGE:g} % range [{lo_r:.3g}, {hi_r:.3g}] for "
-                            f"{dof} degrees of freedom: the stated uncertainties are too small "
-                            "or the model does not describe the data")
-        elif reduced < lo_r:
-            warnings.append(f"reduced chi-square {reduced:.3g} lies below its central "
-                            f"{100 * CHI_SQUARE_RANGE:g} % range [{lo_r:.3g}, {hi_r:.3g}] for "
-                            f"{dof} degrees of freedom: the stated uncertainties are too large "
-                            "or the points are not independent")
+    intervals, open_sides = _intervals(problem, z_hat, ref, cov_z, chi_min, target, level,
+                                       warnings)
+    warnings.extend(_chi_square_warnings(chi_min, n, k))
 
     return CalibrationResult(
         parameters=tuple(parameters),
@@ -549,7 +566,7 @@ def calibrate(model: Model, parameters: Sequence[FitParameter], values: Any,
         level=level,
         interval_method=f"profile likelihood, Δχ² = {target:.2f} ({100 * level:g} %)",
         chi_square=chi_min,
-        degrees_of_freedom=dof,
+        degrees_of_freedom=n - k,
         predicted=predicted,
         measured=y,
         standard_uncertainty=u,
