@@ -211,10 +211,12 @@ def test_coverage_with_a_nuisance_parameter_over_300_replicates():
 # --------------------------------------------------------------------------------------------
 # A model linear in its parameters: closed forms of Press et al. 2007 §15.2
 # --------------------------------------------------------------------------------------------
-def test_straight_line_matches_the_closed_form_and_its_profile_is_wald():
+@pytest.mark.parametrize("level", [0.6827, 0.95, 0.99])
+def test_straight_line_matches_the_closed_form_and_its_profile_is_wald(level):
     """Press et al. 2007, Numerical Recipes 3rd ed., §15.2 (from memory): estimates, variances
     and covariance of y = a + b x with stated sigma_i; chi-square is quadratic, so the profile
-    interval is estimate +- sqrt(chi2.ppf(0.95, 1)) standard errors."""
+    interval is estimate +- sqrt(chi2.ppf(level, 1)) standard errors (1.00 at 68.27 %, 1.96 at
+    95 %, 2.58 at 99 %)."""
     x = np.linspace(0.0, 10.0, 12)
     sigma = 0.2 + 0.05 * x
     y = 1.5 + 0.7 * x + np.random.default_rng(31).normal(0.0, sigma)
@@ -226,11 +228,12 @@ def test_straight_line_matches_the_closed_form_and_its_profile_is_wald():
 
     result = calibrate(lambda th: th[0] + th[1] * x,
                        [FitParameter("a", 0.0, -100.0, 100.0, False, "1"),
-                        FitParameter("b", 1.0, -100.0, 100.0, False, "1")], y, sigma)
+                        FitParameter("b", 1.0, -100.0, 100.0, False, "1")], y, sigma,
+                       level=level)
     np.testing.assert_allclose(result.estimates, [a, b], rtol=1e-8)
     np.testing.assert_allclose(result.covariance, [[var_a, cov_ab], [cov_ab, var_b]], rtol=1e-6)
     assert result.correlation[0, 1] == pytest.approx(-sx / math.sqrt(s * sxx), rel=1e-6)
-    half = math.sqrt(DELTA_95) * np.sqrt([var_a, var_b])
+    half = math.sqrt(stats.chi2.ppf(level, 1)) * np.sqrt([var_a, var_b])
     np.testing.assert_allclose(result.intervals[:, 0], [a, b] - half, rtol=1e-6)
     np.testing.assert_allclose(result.intervals[:, 1], [a, b] + half, rtol=1e-6)
 
