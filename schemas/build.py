@@ -426,4 +426,27 @@ def _normalise_design(data: Mapping, design: DesignRequest) -> dict:
         unit = design.sweep.unit
         out["sweep"] = {"vary": design.sweep.field.path,
                         "values": [_si_number(v, unit) for v in design.sweep.values]}
+    if design.measurements:
+        sets = []
+        for item, found in zip(data["measurements"], design.measurements, strict=True):
+            measured: dict[str, Any] = {"id": found.id, "quantity": found.quantity}
+            if found.layer_name is not None:
+                measured["layer"] = found.layer_name
+            if found.probe is not None:
+                measured["probe"] = found.probe
+            measured["times"] = [{"value": t, "unit": "s"} for t in found.times]
+            measured["values"] = [_si_number(v, found.unit) for v in found.values]
+            measured["standard_uncertainty"] = [_si_number(u, found.unit)
+                                             for u in found.standard_uncertainty]
+            measured["use"] = found.use
+            if "source" in item:
+                measured["source"] = item["source"]
+            sets.append(measured)
+        out["measurements"] = sets
+    if design.calibration is not None:
+        out["calibration"] = {"parameters": [
+            {"field": p.field.path, "bounds": [_si_number(p.low, p.unit),
+                                               _si_number(p.high, p.unit)],
+             "scale": "log" if p.log else "linear"}
+            for p in design.calibration.parameters]}
     return out

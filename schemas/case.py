@@ -649,6 +649,69 @@ class SweepSchema(StrictSchema):
         min=1, max=MAX_SWEEP_VALUES, error="1 to {max} values"))
 
 
+MAX_MEASUREMENT_SETS = 20
+MAX_POINTS_PER_SET = 200
+MAX_CALIBRATED_INPUTS = 5
+MEASUREMENT_USES = ("calibration", "validation")
+SCALES = ("linear", "log")
+
+
+class MeasurementSchema(StrictSchema):
+    """Measured values of one series quantity of the record over time, with the standard
+    uncertainty of each value, for calibration or for validation."""
+
+    noun = "a measurement set"
+    id = _requirement_id(required=True, metadata=_about("unique among the measurement sets"))
+    quantity = fields.String(
+        required=True, validate=_at_most(64, "characters"),
+        metadata=_about("a series quantity of the record (release_fraction, released_outer, "
+                        "compartment_outer, probe_concentration, ...)"))
+    layer = fields.String(validate=_at_most(MAX_LAYER_NAME_LENGTH, "characters"),
+                          metadata=_about("a layer's name, where the quantity takes one"))
+    probe = PlainInteger(validate=validate.Range(min=0, max=MAX_PROBES - 1),
+                         metadata=_about("the probe (index into probes) of probe_concentration"))
+    times = fields.List(_positive("time"), required=True, validate=validate.Length(
+        min=1, max=MAX_POINTS_PER_SET, error="1 to {max} times"))
+    values = fields.List(PlainNumber(), required=True, validate=validate.Length(
+        min=1, max=MAX_POINTS_PER_SET, error="1 to {max} values"))
+    unit = fields.String(validate=_at_most(MAX_UNIT_LENGTH, "characters"), metadata=_about(
+        "the unit of values and standard_uncertainty; absent: plain numbers (dimensionless "
+        "quantities)"))
+    standard_uncertainty = fields.List(
+        PlainNumber(validate=validate.Range(min=0.0, min_inclusive=False)),
+        validate=validate.Length(min=1, max=MAX_POINTS_PER_SET),
+        metadata=_about("the standard uncertainty of each value, in unit"))
+    relative_uncertainty = PlainNumber(
+        validate=validate.Range(min=0.0, min_inclusive=False),
+        metadata=_about("standard uncertainty as a fraction of each value"))
+    use = fields.String(required=True, validate=validate.OneOf(
+        MEASUREMENT_USES, error="must be one of {choices}; got {input!r}"),
+        metadata=_about("calibration: fitted; validation: compared, never fitted"))
+    source = fields.String(validate=_at_most(MAX_REFERENCE_LENGTH, "characters"),
+                           metadata=_about("where the data come from (study, report)"))
+
+
+class CalibratedInputSchema(StrictSchema):
+    """One numeric input fitted to the calibration data."""
+
+    noun = "a calibrated input"
+    field = _field_path(required=True)
+    bounds = fields.List(LooseValue(), required=True, validate=validate.Length(
+        equal=2, error="two values: [lowest, highest]"))
+    scale = fields.String(validate=validate.OneOf(
+        SCALES, error="must be one of {choices}; got {input!r}"),
+        metadata=_about("fit the value or its logarithm", default="linear"))
+
+
+class CalibrationSchema(StrictSchema):
+    """Inputs fitted by weighted least squares to the measurement sets marked calibration."""
+
+    noun = "a calibration block"
+    parameters = fields.List(fields.Nested(CalibratedInputSchema), required=True,
+                             validate=validate.Length(min=1, max=MAX_CALIBRATED_INPUTS,
+                                                      error="1 to {max} inputs"))
+
+
 class CaseSchema(StrictSchema):
     """A transport case, schema version 1."""
 
@@ -712,6 +775,11 @@ class CaseSchema(StrictSchema):
     uncertainty = fields.Nested(UncertaintySchema)
     design_limit = fields.Nested(DesignLimitSchema)
     sweep = fields.Nested(SweepSchema)
+    measurements = fields.List(
+        fields.Nested(MeasurementSchema),
+        validate=validate.Length(min=1, max=MAX_MEASUREMENT_SETS, error="1 to {max} sets"),
+        metadata=_about("measured data: calibration sets are fitted, validation sets compared"))
+    calibration = fields.Nested(CalibrationSchema)
 
 
 # --------------------------------------------------------------------------- cross-field rules

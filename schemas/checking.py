@@ -5,12 +5,24 @@ from __future__ import annotations
 import logging
 from collections.abc import Callable
 
+import numpy as np
+
 from schemas.build import validate_case
 from schemas.canonical import case_sha256
+from schemas.credibility import credibility_block
 from schemas.errors import CaseError
 from schemas.record import failed_record, succeeded_record
 from worker.engine.cost import DEFAULT_BUDGETS, Budgets
+from worker.engine.design.measured import (
+    CalibrationRun,
+    calibrate_case,
+    calibration_propagation,
+    fit_check,
+    validation_block,
+)
 from worker.engine.design.monte_carlo import BlockResult
+from worker.engine.design.paths import with_values
+from worker.engine.design.request import DesignRequest
 from worker.engine.design.requirements import design_block
 from worker.engine.design.runner import (
     BlockScheduler,
@@ -26,6 +38,7 @@ from worker.engine.independent_problem import (
 from worker.engine.input_checks import unit_routes_check, unread_inputs_checks
 from worker.engine.limits import loosened_limits, regime_defaults
 from worker.engine.model import Problem
+from worker.engine.outcome import Outcome
 from worker.engine.plausibility import input_warnings
 from worker.engine.provenance import provenance_block, utc_now
 from worker.engine.run import run_problem
@@ -79,8 +92,16 @@ def check_case(case: dict, *, on_progress: Callable[[int, int], None] | None = N
                                           validated.original)]
     except IndependentInputError as exc:
         input_checks = unread_inputs_checks(validated.problem, exc)
+    problem = validated.problem
+    second: Problem | None = independent
+    calibrated: CalibrationRun | None = None
     try:
-        outcome = run_problem(validated.problem, independent)
+        if validated.design.calibration is not None:
+            calibrated = calibrate_case(problem, validated.design)
+            problem = with_values(problem, calibrated.values)
+            if second is not None:
+                second = with_values(second, calibrated.values)
+        outcome = run_problem(problem, second)
         outcome.checks[:0] = input_checks
     except Exception as exc:  # the engine could not produce a result: recorded, not raised
         logger.exception("engine failure for case %s", digest)
@@ -88,19 +109,55 @@ def check_case(case: dict, *, on_progress: Callable[[int, int], None] | None = N
                                validated.normalised,
                                design_block(validated.design.requirements, {}, {}))
         failed["deviations"] = deviations(validated.problem)
+        failed["credibility"] = credibility_block(failed)
         return failed
-    warnings = input_warnings(validated.problem)
+    duration = problem.regime.duration
+    warnings = input_warnings(problem)
     design = design_block(validated.design.requirements, outcome.quantities, outcome.series,
-                          validated.problem.regime.duration)
-    extra = run_design(validated.problem, independent, validated.design, run_problem,
+                          duration)
+    extra = run_design(problem, second, validated.design, run_problem,
                        seed=seed, scheduler=scheduler, on_progress=on_progress)
     record = succeeded_record(digest, outcome, warnings,
                               provenance_block(digest, started_at, utc_now()),
                               validated.normalised, design)
     record.update(extra)
+    if calibrated is not None:
+        record["calibration"] = calibrated.block
+        record["checks"].append(fit_check(calibrated, outcome, validated.design, duration))
+        record["verdict"] = "pass" if all(c["passed"] for c in record["checks"]) else "fail"
+        record["warnings"].extend(f"calibration: {w}" for w in calibrated.block["warnings"])
+    if validated.design.validation_sets:
+        record["validation"] = _validation(validated.design, outcome, problem, duration,
+                                           record.get("uncertainty"), calibrated)
+        if not record["validation"].get("agrees", True):
+            record["warnings"].append(
+                "validation: the measured data disagree with the simulation beyond the "
+                "validation uncertainty u_val at some points (ASME V&V 20-2009): the model "
+                "error there is evident; see the validation block")
     _add_design_checks(record)
     record["deviations"] = deviations(validated.problem)
+    record["credibility"] = credibility_block(record)
     return record
+
+
+def _validation(request: DesignRequest, outcome: Outcome, problem: Problem,
+                duration: float | None, uncertainty: dict | None,
+                calibrated: CalibrationRun | None) -> dict:
+    """The record's ``validation`` block; an error is recorded in the block, never dropped."""
+    targets = list(request.validation_targets)
+    monte_carlo = None
+    if uncertainty is not None and "quantities" in uncertainty:
+        monte_carlo = {t.key: float(uncertainty["quantities"][t.key]["standard_uncertainty"])
+                       for t in targets if t.key in uncertainty["quantities"]}
+    fit = None
+    try:
+        if calibrated is not None:
+            spread = calibration_propagation(calibrated, problem, targets)
+            fit = {t.key: float(u) for t, u in zip(targets, spread, strict=True)}
+        return validation_block(request, outcome, duration, monte_carlo, fit)
+    except (ValueError, ArithmeticError, np.linalg.LinAlgError) as exc:
+        error = f"{type(exc).__name__}: {exc}"
+        return {"error": error, "reason": f"not computed: {error}", "agrees": False}
 
 
 def deviations(problem: Problem) -> list[dict]:
@@ -125,6 +182,10 @@ def uncertainty_block(case: dict, seed: int, index: int) -> BlockResult:
     """Monte Carlo block ``index`` of ``case``'s uncertainty with ``seed``: what a worker
     computes when a service shares a run's blocks (the same block wherever it runs)."""
     validated = validate_case(case, budgets=None)  # its run was accepted within budget
-    independent = build_independent_problem(validated.original)
-    runner = DesignRunner(validated.problem, independent, validated.design, run_problem)
+    problem: Problem = validated.problem
+    independent: Problem = build_independent_problem(validated.original)
+    if validated.design.calibration is not None:  # the run's Monte Carlo is on the fitted case
+        values = calibrate_case(problem, validated.design).values
+        problem, independent = with_values(problem, values), with_values(independent, values)
+    runner = DesignRunner(problem, independent, validated.design, run_problem)
     return runner.block(seed, index)

@@ -22,15 +22,18 @@ from worker.engine.design.paths import (
     value_of,
 )
 from worker.engine.design.request import (
+    CalibratedInput,
+    CalibrationRequest,
     DesignRequest,
     LimitRequest,
+    MeasurementSet,
     SweepRequest,
     UncertainInput,
     UncertaintyRequest,
 )
 from worker.engine.design.requirements import Requirement
 from worker.engine.design.sampling import default_block_size
-from worker.engine.design.targets import quantities
+from worker.engine.design.targets import PROBE, quantities
 from worker.engine.model import Problem
 from worker.engine.units import UnitError, parse_with_basis, si_unit
 
@@ -100,7 +103,7 @@ def _layer_index(problem: Problem, name: str) -> int | None:
 def _requirements(items: list[Mapping], problem: Problem, reader: _Reader
                   ) -> tuple[list[Requirement], list[float]]:
     regime = problem.regime.kind
-    offered = quantities(problem)
+    offered = {name: spec for name, spec in quantities(problem).items() if name != PROBE}
     seen: set[str] = set()
     found: list[Requirement] = []
     times: list[float] = []
@@ -342,6 +345,213 @@ def _sweep(block: Mapping, problem: Problem, reader: _Reader) -> SweepRequest | 
     return SweepRequest(field=ref, values=tuple(values), unit=reader.unit(kind))
 
 
+def _measurement_target(item: Mapping, path: str, problem: Problem, reader: _Reader
+                        ) -> tuple[str, int | None, str | None, int | None] | None:
+    """(quantity, layer, layer name, probe) of a measurement set, or None after an error."""
+    offered = {name: spec for name, spec in quantities(problem).items() if spec.at_time}
+    name = item["quantity"]
+    spec = offered.get(name)
+    if spec is None:
+        reader.fail(f"{path}.quantity", f"{name!r} is not a series this case reports; "
+                                        f"measured data can be one of: {', '.join(offered)}")
+        return None
+    layer = layer_name = None
+    if "layer" in item:
+        if not spec.per_layer:
+            reader.fail(f"{path}.layer", f"{name} is not reported per layer")
+            return None
+        layer_name = item["layer"]
+        layer = _layer_index(problem, layer_name)
+        if layer is None:
+            reader.fail(f"{path}.layer", f"no layer is named {layer_name!r}; the layers are "
+                        + ", ".join(repr(ly.name) for ly in problem.layers))
+            return None
+    wrong_layer = spec.layer_error(problem, layer)
+    if wrong_layer is not None:
+        reader.fail(f"{path}.layer", wrong_layer)
+        return None
+    probe = item.get("probe")
+    if (name == PROBE) != (probe is not None):
+        reader.fail(f"{path}.probe", f"a probe index (into probes) goes with {PROBE} and "
+                                     "only with it")
+        return None
+    if probe is not None and probe >= len(problem.probes):
+        reader.fail(f"{path}.probe", f"the case has {len(problem.probes)} probes (indices "
+                                     f"from 0); got {probe}")
+        return None
+    return name, layer, layer_name, probe
+
+
+def _unit_factor(item: Mapping, kind: str, path: str, reader: _Reader) -> tuple[float, str]:
+    """The SI value of one of the set's units, and the unit as written."""
+    unit = item.get("unit")
+    if kind == "dimensionless":
+        if unit in (None, "1"):
+            return 1.0, "1"
+        if unit == "%":
+            return 0.01, "%"
+        reader.fail(f"{path}.unit", f"the quantity is dimensionless: give plain numbers "
+                                    f"(no unit, '1' or '%'), got {unit!r}")
+        return math.nan, unit
+    if unit is None:
+        reader.fail(f"{path}.unit", f"the quantity has the dimension {kind}: give the unit of "
+                                    f"the values (e.g. {si_unit(kind, reader.basis)})")
+        return math.nan, ""
+    try:
+        factor, basis = parse_with_basis(f"1 {unit}", kind)
+    except UnitError as exc:
+        reader.fail(f"{path}.unit", f"{unit!r} is not a unit of this quantity "
+                                    f"({kind}, e.g. {si_unit(kind, reader.basis)}): "
+                                    f"{exc.message}")
+        return math.nan, unit
+    if basis is not None and basis != reader.basis:
+        reader.fail(f"{path}.unit", f"{unit!r} is on the {basis} basis but the case is on the "
+                                    f"{reader.basis} basis ({si_unit(kind, reader.basis)})")
+        return math.nan, unit
+    return factor, unit
+
+
+def _measurement(item: Mapping, path: str, problem: Problem, reader: _Reader
+                 ) -> MeasurementSet | None:
+    target = _measurement_target(item, path, problem, reader)
+    if target is None:
+        return None
+    name, layer, layer_name, probe = target
+    kind = quantities(problem)[name].dimension
+    factor, given_unit = _unit_factor(item, kind, path, reader)
+    times = [t.value for t in item["times"]]
+    values = list(item["values"])
+    if len(values) != len(times):
+        reader.fail(f"{path}.values", f"one value per time: {len(times)} times, "
+                                      f"{len(values)} values")
+        return None
+    duration = problem.regime.duration or 0.0
+    late = [i for i, t in enumerate(times) if t > duration]
+    if late:
+        reader.fail(f"{path}.times[{late[0]}]", f"{times[late[0]]!r} s is after the end of "
+                                                f"the run (duration {duration!r} s)")
+        return None
+    given = [k for k in ("standard_uncertainty", "relative_uncertainty") if k in item]
+    if len(given) != 1:
+        reader.fail(path, "exactly one of standard_uncertainty (one per value) and "
+                          "relative_uncertainty is required; got " + (", ".join(given) or "none"))
+        return None
+    if given[0] == "standard_uncertainty":
+        u = list(item["standard_uncertainty"])
+        if len(u) != len(values):
+            reader.fail(f"{path}.standard_uncertainty", f"one per value: {len(values)} values, "
+                                                        f"{len(u)} uncertainties")
+            return None
+    else:
+        u = [abs(v) * float(item["relative_uncertainty"]) for v in values]
+        zero = [i for i, x in enumerate(u) if not x > 0.0]
+        if zero:
+            reader.fail(f"{path}.relative_uncertainty",
+                        f"gives a zero uncertainty for the value at times[{zero[0]}] (0): "
+                        "give standard_uncertainty instead")
+            return None
+    if not math.isfinite(factor):
+        return None
+    unit = "1" if kind == "dimensionless" else si_unit(kind, reader.basis)
+    return MeasurementSet(
+        id=item["id"], quantity=name, times=tuple(times),
+        values=tuple(v * factor for v in values),
+        standard_uncertainty=tuple(x * factor for x in u), use=item["use"], unit=unit,
+        given_unit=given_unit, layer=layer, layer_name=layer_name, probe=probe)
+
+
+def _measurements(items: list[Mapping], problem: Problem, reader: _Reader
+                  ) -> list[MeasurementSet]:
+    if items and problem.regime.kind != "transient":
+        reader.fail("measurements", "measured data are series over time: the case's regime "
+                                    "must be transient")
+        return []
+    found: list[MeasurementSet] = []
+    seen: set[str] = set()
+    for index, item in enumerate(items):
+        path = f"measurements[{index}]"
+        if item["id"] in seen:
+            reader.fail(f"{path}.id", f"{item['id']!r} is used by an earlier set: ids are "
+                                      "unique among the measurement sets")
+            continue
+        seen.add(item["id"])
+        measurement = _measurement(item, path, problem, reader)
+        if measurement is not None:
+            found.append(measurement)
+    return found
+
+
+def _calibration(data: Mapping, problem: Problem, measurements: list[MeasurementSet],
+                 reader: _Reader) -> CalibrationRequest | None:
+    block = data.get("calibration")
+    fitted_sets = [i for i, item in enumerate(data.get("measurements", []))
+                   if item.get("use") == "calibration"]
+    if block is None:
+        if fitted_sets:
+            reader.fail(f"measurements[{fitted_sets[0]}].use",
+                        "calibration data need a calibration block naming the inputs to fit")
+        return None
+    if not fitted_sets:
+        reader.fail("calibration", "no measurement set has use 'calibration': nothing to fit")
+        return None
+    parameters: list[CalibratedInput] = []
+    seen: set[str] = set()
+    for index, item in enumerate(block["parameters"]):
+        path = f"calibration.parameters[{index}]"
+        varied = _varied(problem, item["field"], f"{path}.field", reader)
+        if varied is None:
+            continue
+        ref, kind = varied
+        if ref.path in seen:
+            reader.fail(f"{path}.field", f"{ref.path} is fitted already")
+            continue
+        seen.add(ref.path)
+        low = reader.value(item["bounds"][0], kind, f"{path}.bounds[0]")
+        high = reader.value(item["bounds"][1], kind, f"{path}.bounds[1]")
+        if low is None or high is None:
+            continue
+        if not low < high:
+            reader.fail(f"{path}.bounds", "the first value must be below the second")
+            continue
+        if not _in_domain(problem, ref, low, f"{path}.bounds[0]", reader):
+            continue
+        log = item.get("scale", "linear") == "log"
+        if log and not low > 0.0:
+            reader.fail(f"{path}.scale", "a log scale needs positive bounds")
+            continue
+        start = value_of(problem, ref)
+        if not low <= start <= high:
+            reader.fail(f"{path}.bounds", f"the case's value of {ref.path} ({start:g} "
+                        f"{reader.unit(kind)}) starts the fit: it must lie within the bounds")
+            continue
+        parameters.append(CalibratedInput(field=ref, low=low, high=high, log=log,
+                                          unit=reader.unit(kind)))
+    if len(parameters) != len(block["parameters"]):
+        return None
+    points = sum(len(m.times) for m in measurements if m.for_calibration)
+    if len(measurements) == len(data.get("measurements", [])) and points <= len(parameters):
+        reader.fail("calibration.parameters", f"{len(parameters)} inputs need more than "
+                    f"{len(parameters)} calibration points (at least one degree of freedom); "
+                    f"the calibration sets hold {points}")
+        return None
+    elsewhere = [("uncertainty.inputs", [i.get("field") for i in
+                                         (data.get("uncertainty") or {}).get("inputs", [])]),
+                 ("sweep.vary", [(data.get("sweep") or {}).get("vary")]),
+                 ("design_limit.vary", [(data.get("design_limit") or {}).get("vary")])]
+    for where, paths in elsewhere:
+        for path in paths:
+            if path is None:
+                continue
+            try:
+                other = resolve(problem, path).path
+            except FieldPathError:
+                continue
+            if other in seen:
+                reader.fail(where, f"{other} is calibrated: its value and uncertainty come "
+                                   "from the fit, so it cannot also be varied here")
+    return CalibrationRequest(parameters=tuple(parameters))
+
+
 def _finite(value: float | None) -> bool:
     return value is not None and math.isfinite(value)
 
@@ -361,10 +571,15 @@ def design_request(data: Mapping, problem: Problem, basis: str) -> DesignRequest
     limit = _limit(data["design_limit"], problem, requirements, reader) \
         if "design_limit" in data else None
     sweep = _sweep(data["sweep"], problem, reader) if "sweep" in data else None
+    measurements = _measurements(list(data.get("measurements", [])), problem, reader)
+    calibration = _calibration(data, problem, measurements, reader)
     if reader.errors:
         raise DesignRuleError(reader.errors)
+    for measurement in measurements:
+        times.extend(measurement.times)
     return DesignRequest(requirements=tuple(requirements), uncertainty=uncertainty,
-                         limit=limit, sweep=sweep,
+                         limit=limit, sweep=sweep, measurements=tuple(measurements),
+                         calibration=calibration,
                          requirement_times=tuple(sorted(set(times))))
 
 

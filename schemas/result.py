@@ -23,6 +23,7 @@ from marshmallow import (
 )
 
 from schemas.case import PlainInteger, PlainNumber, StrictSchema, WholeMatch
+from schemas.credibility import CredibilitySchema
 
 
 class RunStatus(StrEnum):
@@ -379,6 +380,64 @@ class SweepResultSchema(OpenSchema):
     error = fields.String()
 
 
+class FittedInputSchema(OpenSchema):
+    """One input fitted to the calibration data (SI)."""
+
+    field = fields.String(required=True)
+    estimate = PlainNumber(required=True, allow_none=True)
+    unit = fields.String()
+    standard_error = PlainNumber(allow_none=True)
+    interval = fields.List(PlainNumber(allow_none=True), metadata={
+        "description": "the confidence interval [low, high] (interval_method says how)"})
+    interval_method = fields.String()
+
+
+class CalibrationResultSchema(OpenSchema):
+    """Inputs fitted by weighted least squares to the measurement sets marked calibration;
+    the record's figures are those of the case with the estimates."""
+
+    parameters = fields.List(fields.Nested(FittedInputSchema))
+    correlation = fields.List(fields.List(PlainNumber(allow_none=True)))
+    chi_square = PlainNumber(allow_none=True)
+    degrees_of_freedom = PlainInteger()
+    residuals = fields.List(fields.Dict())
+    warnings = fields.List(fields.String())
+    fitted_inputs = fields.List(fields.String())
+    error = fields.String()
+
+
+class ValidationPointSchema(OpenSchema):
+    """One comparison of simulation and measurement (ASME V&V 20-2009), SI."""
+
+    time = PlainNumber(required=True)
+    simulated = PlainNumber(required=True, allow_none=True)
+    measured = PlainNumber(required=True)
+    comparison_error = PlainNumber(required=True, allow_none=True)
+    u_num = PlainNumber(allow_none=True)
+    u_input = PlainNumber(allow_none=True)
+    u_D = PlainNumber(allow_none=True)
+    u_val = PlainNumber(allow_none=True)
+
+
+class ValidationSetSchema(OpenSchema):
+    """One validation set's comparison."""
+
+    id = fields.String(required=True)
+    quantity = fields.String()
+    unit = fields.String()
+    points = fields.List(fields.Nested(ValidationPointSchema))
+    agrees = StrictBoolean()
+
+
+class ValidationResultSchema(OpenSchema):
+    """Simulation against the validation data (ASME V&V 20-2009)."""
+
+    coverage_factor = PlainNumber()
+    sets = fields.List(fields.Nested(ValidationSetSchema))
+    agrees = StrictBoolean()
+    error = fields.String()
+
+
 class DeviationSchema(StrictSchema):
     """A default limit the case loosens: the check, its default and the case's value."""
 
@@ -408,6 +467,9 @@ class ResultSchema(StrictSchema):
     uncertainty = fields.Nested(UncertaintyResultSchema)
     design_limit = fields.Nested(DesignLimitResultSchema)
     sweep = fields.Nested(SweepResultSchema)
+    calibration = fields.Nested(CalibrationResultSchema)
+    validation = fields.Nested(ValidationResultSchema)
+    credibility = fields.Nested(CredibilitySchema)
     inputs = fields.Dict()
     caution = fields.String()
     deviations = fields.List(fields.Nested(DeviationSchema), metadata={

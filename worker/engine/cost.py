@@ -27,10 +27,11 @@ What is counted (all estimates, deliberately on the safe side):
   dissolution switches on and off as the front passes each cell).
 * ``work``: unknown-iterations of the whole run: one check (cells times Newton iterations, or
   unknowns times steps), plus every sweep value (a full check each), the design limit's
-  evaluations and the Monte Carlo trials (``max_trials``) times the cost of one trial by the
-  method the trial model uses. A case with a dispersed load or a compartment has no batched or
-  scaled trial model (``Problem.is_linear`` is False for the first; the scaled series takes
-  neither): each trial is a full primary solve.
+  evaluations, the calibration's evaluations (:func:`calibration_evaluations`) and the
+  Monte Carlo trials (``max_trials``) times the cost of one trial by the method the trial
+  model uses. A case with a dispersed load or a compartment has no batched or scaled trial
+  model (``Problem.is_linear`` is False for the first; the scaled series takes neither): each
+  trial is a full primary solve.
 
 The budgets are documented defaults (:data:`DEFAULT_BUDGETS`); a service may scale them
 (``FLUXPROOF_COST_BUDGET_SCALE``), never past the worker's memory and time limits it also sets.
@@ -80,6 +81,18 @@ CLOSED_FORM_TRIAL_WORK = 20.0
 #: A batched finite-volume trial costs this fraction of a lone check's work (measured 0.33 ms
 #: batched against about 30 ms for the whole primary solve of a two-layer Michaelis-Menten slab).
 BATCHED_TRIAL_FRACTION = 0.02
+#: Model evaluations charged to a calibration of k inputs: the least-squares fit (about 20
+#: Jacobian passes of k + 1 evaluations), each profile-likelihood end (about 20 evaluations of
+#: the profile, each a fit of the other k - 1 inputs of about 10 k evaluations), and the k + 1
+#: evaluations that carry the fit's covariance to the validation points. A generous count.
+def calibration_evaluations(k: int) -> int:
+    """Evaluations of the trial model charged to a calibration of ``k`` inputs."""
+    if k <= 0:
+        return 0
+    inner = 1 if k == 1 else 10 * k
+    return 20 * (k + 1) + 2 * k * 20 * inner + (k + 1)
+
+
 #: Steps charged to a transient check with a dissolution front, relative to one without: a
 #: generous allowance for the step-size cuts where the front crosses a cell (an estimate, not a
 #: measurement; the front solver's own figures replace it once measured).
@@ -129,6 +142,8 @@ class CostEstimate:
     horizon_field: str | None = None
     #: The fewest trials the case's Monte Carlo can stop at (two blocks); 0 without one.
     least_trials: int = 0
+    #: The calibration's model evaluations times the trial work; 0 without a calibration.
+    calibration_work: float = 0.0
 
     @property
     def monte_carlo_work(self) -> float:
@@ -136,7 +151,8 @@ class CostEstimate:
 
     @property
     def work(self) -> float:
-        return self.check_work + self.sweep_work + self.limit_work + self.monte_carlo_work
+        return self.check_work + self.sweep_work + self.limit_work + self.monte_carlo_work \
+            + self.calibration_work
 
 
 @dataclass(frozen=True)
@@ -297,12 +313,14 @@ def estimate_cost(problem: Problem, design: DesignRequest | None = None) -> Cost
     limit = LIMIT_EVALUATIONS * trial if design.limit else 0.0
     trials = design.uncertainty.max_trials if design.uncertainty else 0
     least = 2 * default_block_size(design.uncertainty.coverage) if design.uncertainty else 0
+    calibration = (calibration_evaluations(len(design.calibration.parameters)) * trial
+                   if design.calibration else 0.0)
     return CostEstimate(solve_cells=cells, collocation_entries=collocation, time_steps=steps,
                         check_work=check_work, sweep_work=sweep, limit_work=limit,
                         trial_work=trial, trials=trials, costliest_layer=costliest,
                         horizon_field=(_horizon_field(problem)
                                        if problem.regime.kind == "transient" else None),
-                        least_trials=least)
+                        least_trials=least, calibration_work=calibration)
 
 
 def _times_over(value: float, budget: float) -> str:
@@ -338,6 +356,13 @@ def over_budget(estimate: CostEstimate, budgets: Budgets = DEFAULT_BUDGETS,
             f"unknown-iterations: {advice}")))
         return found
     remaining = budgets.work - estimate.check_work
+    if estimate.calibration_work > remaining:
+        found.append(Overrun("calibration.parameters", (
+            f"fitting would take about {_times_over(estimate.calibration_work, remaining)} "
+            "unknown-iterations (each evaluation of this case is a full primary solve): fit "
+            "fewer inputs or lighten the case")))
+        return found
+    remaining -= estimate.calibration_work
     if estimate.sweep_work > remaining:
         found.append(Overrun("sweep.values", (
             f"a full check at each sweep value would take about "

@@ -286,6 +286,9 @@ def build_independent_problem(document: Mapping[str, Any]) -> IndependentProblem
                   for i, t in enumerate(regime_spec["times"])]
         required = [reader.read(item["at"], "time", f"requirements[{i}].at")
                     for i, item in enumerate(document.get("requirements", [])) if "at" in item]
+        required += [reader.read(t, "time", f"measurements[{i}].times[{j}]")
+                     for i, item in enumerate(document.get("measurements", []))
+                     for j, t in enumerate(item["times"])]
         regime = Regime(
             kind="transient",
             duration=reader.read(regime_spec["duration"], "time", "regime.duration"),
@@ -348,3 +351,14 @@ def _read_design_values(reader: _Reader, document: Mapping[str, Any], problem: P
             varied = dimension(document[name]["vary"])
             for j, raw in enumerate(document[name][key]):
                 read(raw, varied, f"{name}.{key}[{j}]")
+    for i, item in enumerate((document.get("calibration") or {}).get("parameters", [])):
+        varied = dimension(item["field"])
+        for j, raw in enumerate(item["bounds"]):
+            read(raw, varied, f"calibration.parameters[{i}].bounds[{j}]")
+    for i, item in enumerate(document.get("measurements", [])):
+        kind = offered[item["quantity"]].dimension
+        if kind == "dimensionless":
+            continue
+        for key in ("values", "standard_uncertainty"):
+            for j, number in enumerate(item.get(key, [])):
+                read(f"{number!r} {item['unit']}", kind, f"measurements[{i}].{key}[{j}]")

@@ -156,6 +156,9 @@ def read_figure(figure: Figure, quantities: Mapping, series: Mapping,
     null was not reached within the run.
     """
     name = figure.quantity
+    probe = getattr(figure, "probe", None)
+    if probe is not None and figure.at is not None:
+        return _read_probe(probe, figure.at, series)
     if figure.at is not None:
         own = series.get(name)
         if isinstance(own, Mapping) and "layers" in own:
@@ -197,6 +200,24 @@ def read_figure(figure: Figure, quantities: Mapping, series: Mapping,
         return Reading(None, missing=f"the record has no {name}")
     value, band = _entry_value(entry, None)
     return Reading(value, band)
+
+
+def _read_probe(probe: int, at: float, series: Mapping) -> Reading:
+    """Probe ``probe``'s concentration at ``at`` from the record's ``probes`` rows (one row per
+    requested time), with its numerical uncertainty where the record states one."""
+    entry = series.get("probes")
+    if not isinstance(entry, Mapping):
+        return Reading(None, missing="the record has no probe series")
+    times = entry.get("time", [])
+    hits = [i for i, t in enumerate(times) if math.isclose(t, at, rel_tol=1e-12)]
+    if not hits:
+        return Reading(None, missing=f"the probe series has no row at {at} s")
+    rows, bands = entry.get("concentration", []), entry.get("uncertainty")
+    value = _item(rows[hits[0]] if hits[0] < len(rows) else None, probe)
+    band = _item(bands[hits[0]], probe) if isinstance(bands, list) and hits[0] < len(bands) \
+        else None
+    return Reading(None if value is None else float(value),
+                   None if band is None else float(band))
 
 
 def _read_listed_series(figure: Figure, entry: Mapping, series: Mapping) -> Reading:

@@ -121,10 +121,12 @@ def _default_targets(problem: Problem) -> list[Target]:
             Target("flux_outer" if problem.outer_boundary.kind != "symmetry" else "flux_inner")]
 
 
-def _scheme(problem: Problem, requirements: Sequence[Requirement]) -> _Scheme:
+def _scheme(problem: Problem, requirements: Sequence[Requirement],
+            followed: Sequence[Target] = ()) -> _Scheme:
+    """The figures of the requirements, then the ``followed`` ones (validation points); the
+    headline figures when there are neither."""
     targets: list[Target] = []
-    for requirement in requirements:
-        target = _target_of(requirement)
+    for target in [_target_of(r) for r in requirements] + list(followed):
         if target not in targets:
             targets.append(target)
     if not targets:
@@ -184,7 +186,7 @@ class DesignRunner:
         self.independent = independent
         self.request = request
         self.check = check
-        self.scheme = _scheme(problem, request.requirements)
+        self.scheme = _scheme(problem, request.requirements, request.validation_targets)
 
     # -- shared --------------------------------------------------------------------------
 

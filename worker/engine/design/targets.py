@@ -30,6 +30,9 @@ dispersed drug (a layer loaded above its solubility, ``Layer.is_loaded_above_sol
 compartments (a face of kind ``compartment``)
     the series ``compartment_inner`` / ``compartment_outer`` (the stirred fluid's concentration
     at a time ``at``).
+probes (a transient case with ``probes``)
+    the series ``probe_concentration`` (the concentration at probe ``probe``, an index into the
+    case's ``probes``, at a time ``at``): what a sensor or a sampled section measures.
 
 Not offered: the list-valued ``thiele_modulus`` and the membrane ``time_lag``.
 """
@@ -45,9 +48,11 @@ from worker.engine.transient.uptake import releases
 
 #: The boundary kind of a well-stirred finite volume at a face (``worker.engine.boundaries``).
 COMPARTMENT = "compartment"
+#: The series quantity of one probe's concentration.
+PROBE = "probe_concentration"
 
-__all__ = ["COMPARTMENT", "QuantitySpec", "Target", "TargetError", "check_target", "quantities",
-           "target_dimension"]
+__all__ = ["COMPARTMENT", "PROBE", "QuantitySpec", "Target", "TargetError", "check_target",
+           "quantities", "target_dimension"]
 
 
 class TargetError(ValueError):
@@ -103,13 +108,18 @@ class Target:
     layer: int | None = None
     at: float | None = None
     layer_name: str | None = field(default=None, compare=False)
+    #: The probe (index into the case's ``probes``) of a ``probe_concentration``.
+    probe: int | None = None
 
     @property
     def key(self) -> str:
-        """``concentration_min``, ``concentration_min[islet]``, ``release_fraction@604800s``."""
+        """``concentration_min``, ``concentration_min[islet]``, ``release_fraction@604800s``,
+        ``probe_concentration[probe 0]@86400s``."""
         text = self.quantity
         if self.layer is not None:
             text += f"[{self.layer_name if self.layer_name is not None else self.layer}]"
+        if self.probe is not None:
+            text += f"[probe {self.probe}]"
         if self.at is not None:
             text += f"@{self.at:.15g}s"
         return text
@@ -174,6 +184,8 @@ def _transient(problem: Problem) -> list[QuantitySpec]:
         boundary = problem.inner_boundary if side == "inner" else problem.outer_boundary
         if boundary.kind == COMPARTMENT:
             specs.append(QuantitySpec(f"compartment_{side}", "concentration", at_time=True))
+    if problem.probes:
+        specs.append(QuantitySpec(PROBE, "concentration", at_time=True))
     return specs
 
 
@@ -205,6 +217,11 @@ def check_target(problem: Problem, target: Target) -> Target:
     wrong_layer = spec.layer_error(problem, target.layer)
     if wrong_layer is not None:
         raise TargetError(target.key, wrong_layer)
+    if (target.quantity == PROBE) != (target.probe is not None):
+        raise TargetError(target.key, f"a probe index goes with {PROBE} and only with it")
+    if target.probe is not None and not 0 <= target.probe < len(problem.probes):
+        raise TargetError(target.key, f"probe {target.probe}: the case has "
+                          f"{len(problem.probes)} probes (indices from 0)")
     if spec.at_time:
         if target.at is None:
             raise TargetError(target.key, f"{target.quantity} is a series: give the time 'at'")
@@ -214,7 +231,8 @@ def check_target(problem: Problem, target: Target) -> Target:
                               f"{duration:.6g} s, got {target.at!r}")
     elif target.at is not None:
         raise TargetError(target.key, f"{target.quantity} is not a series: no time 'at'")
-    return Target(target.quantity, target.layer, target.at, layer_name=name)
+    return Target(target.quantity, target.layer, target.at, layer_name=name,
+                  probe=target.probe)
 
 
 def target_dimension(problem: Problem, target: Target) -> str:

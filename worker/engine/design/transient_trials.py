@@ -74,8 +74,9 @@ def scaled_series_applies(problem: Problem, fields: Sequence[FieldRef]) -> bool:
 
 def transient_targets(problem: Problem, fields: Sequence[FieldRef], x: np.ndarray,
                       targets: Sequence[Target]) -> np.ndarray:
-    """Targets (n, m) of the transient trials ``x`` (n, k); NaN where a trial fails."""
-    if scaled_series_applies(problem, fields):
+    """Targets (n, m) of the transient trials ``x`` (n, k); NaN where a trial fails. A probe's
+    concentration is read per trial (the scaled series follows amounts and extremes only)."""
+    if scaled_series_applies(problem, fields) and all(t.probe is None for t in targets):
         with np.errstate(all="ignore"):
             return _scaled_series(problem, fields, x, targets)
     out = np.full((x.shape[0], len(targets)), np.nan)
@@ -236,6 +237,12 @@ def _series_trial(problem: Problem, targets: Sequence[Target], requested: np.nda
             continue
         at = duration if target.at is None else target.at
         k = index[int(np.searchsorted(internal, at))]
+        if target.probe is not None:
+            if not bool(series.converged[k]):
+                return None
+            x = problem.probes[target.probe]
+            row[j] = float(series.concentration_at(np.array([x]), np.array([at]))[0, 0])
+            continue
         released = series.released_inner[k] + series.released_outer[k]
         if target.quantity in ("release_fraction", "release_fraction_final"):
             row[j] = released / load if load > 0.0 else math.nan

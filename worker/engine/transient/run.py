@@ -37,6 +37,7 @@ from worker.engine.transient.record import (
     add_profile_and_probes,
     add_series,
     add_time_lag,
+    probe_row,
     profile_positions,
     report_events,
 )
@@ -203,7 +204,7 @@ def run_transient(problem: Problem, independent: Problem | None = None) -> Outco
     outcome.warnings.extend(thiele_notes(problem, _fed_levels(problem, primary, final_index),
                                          f" at t = {duration:.6g} s"))
     _annotate(outcome, routes, int(requested_index[-1]))
-    _series_bands(outcome, routes, requested_index, factor)
+    _series_bands(outcome, problem, routes, requested_index, factor)
     if series is not None:
         checks.time_lag_check(outcome, problem)
     checks.mass_balance_check(outcome, lines_problem, fine, internal)
@@ -329,11 +330,11 @@ def _released_fraction(route: Route, index: np.ndarray) -> np.ndarray:
     return released / route.initial_load
 
 
-def _series_bands(outcome: Outcome, routes: list[Route], index: np.ndarray,
+def _series_bands(outcome: Outcome, problem: Problem, routes: list[Route], index: np.ndarray,
                   factor: float) -> None:
     """Per requested time, the numerical uncertainty of each amount series (and of the
-    release fraction, each route over its own load): the largest difference between the
-    primary route and another, in the series' unit."""
+    release fraction, each route over its own load; of each probe's concentration): the
+    largest difference between the primary route and another, in the series' unit."""
     if len(routes) < 2:
         return
     primary = routes[0]
@@ -349,6 +350,12 @@ def _series_bands(outcome: Outcome, routes: list[Route], index: np.ndarray,
         a = _released_fraction(primary, index)
         band = np.max([np.abs(a - _released_fraction(r, index)) for r in loaded], axis=0)
         entry["uncertainty"] = band.tolist()
+    probes = outcome.series.get("probes")
+    if isinstance(probes, dict) and problem.probes:
+        rows = [np.array([probe_row(r.profile, problem, int(k)) for k in index])
+                for r in routes]
+        probes["uncertainty"] = np.max([np.abs(rows[0] - other) for other in rows[1:]],
+                                       axis=0).tolist()
 
 
 def _annotate(outcome: Outcome, routes: list[Route], last: int) -> None:

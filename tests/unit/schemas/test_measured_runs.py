@@ -1,0 +1,169 @@
+"""Measured data through a whole check: the calibration fits the case's input, the fitted case
+is checked in full, the fit's fast solve is checked against that full check, and the
+validation sets are compared per ASME V&V 20-2009 with the data never used twice.
+
+The data are drawn from J. Crank, The Mathematics of Diffusion, 2nd ed. (1975), eq. 4.18 (release
+from a plane sheet into a sink), coded here apart from the engine, at a known diffusivity."""
+
+from __future__ import annotations
+
+import copy
+import math
+
+import numpy as np
+import pytest
+
+from worker.engine import check_case
+from worker.engine.design import trials as trials_module
+
+DAY = 86400.0
+THICKNESS = 100e-6  # m: one face sealed, so Crank's half-thickness l
+TRUE_D = 2.0e-14  # m^2/s
+NOISE = 0.01
+SHEET = {
+    "schema_version": 1, "title": "plane sheet release", "geometry": "slab", "inner": "0 m",
+    "area": "1 cm^2",
+    "layers": [{"name": "film", "thickness": "100 um", "diffusivity": "1e-14 m^2/s",
+                "initial": "1 mol/m^3"}],
+    "inner_boundary": {"kind": "symmetry"},
+    "outer_boundary": {"kind": "concentration", "value": "0 mol/m^3"},
+    "regime": {"kind": "transient", "duration": "10 d", "times": ["1 d", "5 d", "10 d"]},
+}
+FIT = {"parameters": [{"field": "layers[0].diffusivity",
+                       "bounds": ["1e-16 m^2/s", "1e-12 m^2/s"], "scale": "log"}]}
+FIT_DAYS = (0.25, 0.5, 1.0, 1.5, 2.0, 3.0, 4.0, 5.0, 7.0, 9.0)
+CHECK_DAYS = (0.75, 2.5, 6.0)
+
+
+def crank_fraction(t: float, d: float = TRUE_D) -> float:
+    """Mt/M∞ of a sheet -l < x < l into a sink: Crank (1975), eq. 4.18."""
+    total = sum(8.0 / ((2 * n + 1) ** 2 * math.pi ** 2)
+                * math.exp(-d * (2 * n + 1) ** 2 * math.pi ** 2 * t / (4 * THICKNESS ** 2))
+                for n in range(300))
+    return 1.0 - total
+
+
+def _set(set_id: str, days, use: str, shift: float = 0.0, seed: int = 1) -> dict:
+    rng = np.random.default_rng(seed)
+    values = [crank_fraction(d * DAY) + shift + float(rng.normal(0.0, NOISE)) for d in days]
+    return {"id": set_id, "quantity": "release_fraction", "times": [f"{d} d" for d in days],
+            "values": values, "standard_uncertainty": [NOISE] * len(days), "use": use}
+
+
+def _case(*sets, calibration=FIT, **extra) -> dict:
+    doc = copy.deepcopy(SHEET)
+    doc["measurements"] = list(sets)
+    if calibration is not None:
+        doc["calibration"] = calibration
+    doc.update(extra)
+    return doc
+
+
+@pytest.fixture(scope="module")
+def fitted() -> dict:
+    return check_case(_case(_set("FIT", FIT_DAYS, "calibration"),
+                            _set("CHK", CHECK_DAYS, "validation", seed=2)))
+
+
+def _check(record: dict, name: str) -> dict:
+    return next(c for c in record["checks"] if c["name"] == name)
+
+
+def test_the_fit_recovers_the_diffusivity_and_the_record_is_of_the_fitted_case(fitted):
+    block = fitted["calibration"]
+    (parameter,) = block["parameters"]
+    assert parameter["field"] == "layers[0].diffusivity" and block["fitted_inputs"] == [
+        "layers[0].diffusivity"]
+    estimate, se = parameter["estimate"], parameter["standard_error"]
+    assert abs(estimate - TRUE_D) <= 3.0 * se
+    low, high = parameter["interval"]
+    assert low < estimate < high
+    assert block["degrees_of_freedom"] == len(FIT_DAYS) - 1
+    assert len(block["residuals"]) == len(FIT_DAYS)
+    assert fitted["verdict"] == "pass"
+    assert _check(fitted, "calibration.trial_model")["passed"]
+    # the record's figures are those of the fitted sheet (Crank eq. 4.18 at the estimate)
+    release = fitted["series"]["release_fraction"]
+    k = fitted["series"]["time"]["values"].index(5 * DAY)
+    assert release["values"][k] == pytest.approx(crank_fraction(5 * DAY, estimate), abs=1e-4)
+
+
+def test_the_short_time_form_gives_a_second_estimate_that_agrees(fitted):
+    cross = fitted["calibration"]["short_time"]
+    assert cross["agrees"] and cross["points"] >= 2
+    assert abs(cross["estimate"] - TRUE_D) <= 3.0 * cross["standard_error"]
+
+
+def test_validation_compares_the_other_set_only(fitted):
+    block = fitted["validation"]
+    (found,) = block["sets"]
+    assert found["id"] == "CHK" and len(found["points"]) == len(CHECK_DAYS)
+    assert block["agrees"] and found["agrees"]
+    for point in found["points"]:
+        assert point["u_D"] == pytest.approx(NOISE)
+        assert point["u_input"] is not None and point["u_input"] > 0.0  # the fit's covariance
+        assert point["u_val"] == pytest.approx(math.sqrt(
+            point["u_num"] ** 2 + point["u_input"] ** 2 + point["u_D"] ** 2))
+        assert point["comparison_error"] == pytest.approx(point["simulated"]
+                                                          - point["measured"])
+    assert "propagation" in block["u_input_method"]
+
+
+def test_data_that_disagree_beyond_u_val_are_flagged():
+    record = check_case(_case(_set("FIT", FIT_DAYS, "calibration"),
+                              _set("CHK", CHECK_DAYS, "validation", shift=0.1, seed=2)))
+    assert record["validation"]["agrees"] is False
+    assert any(w.startswith("validation:") for w in record["warnings"])
+    assert record["verdict"] == "pass"  # the calculation is still verified
+
+
+def test_without_input_uncertainty_u_input_is_not_assessed():
+    record = check_case(_case(_set("CHK", CHECK_DAYS, "validation", seed=2),
+                              calibration=None))
+    block = record["validation"]
+    assert "not assessed" in block["u_input_method"]
+    assert all(p["u_input"] is None for p in block["sets"][0]["points"])
+
+
+def test_the_uncertainty_block_gives_u_input_by_monte_carlo():
+    record = check_case(_case(
+        _set("CHK", CHECK_DAYS, "validation", seed=2), calibration=None,
+        uncertainty={"inputs": [{"field": "layers[0].thickness", "distribution": "normal",
+                                 "relative_sd": 0.05}], "seed": 11}))
+    quantities = record["uncertainty"]["quantities"]
+    for point in record["validation"]["sets"][0]["points"]:
+        key = f"release_fraction@{point['time']:.15g}s"
+        assert point["u_input"] == pytest.approx(quantities[key]["standard_uncertainty"])
+    assert "Monte Carlo" in record["validation"]["u_input_method"]
+
+
+def test_a_wrong_fast_solve_fails_the_fit_check(monkeypatch):
+    """``calibration.trial_model`` fails when the model the fit used is off by 1 %, and
+    passes when it is right (the fixture above)."""
+    honest = trials_module.TrialModel.__call__
+
+    def off(self, x):
+        return honest(self, x) * 1.01
+
+    monkeypatch.setattr(trials_module.TrialModel, "__call__", off)
+    record = check_case(_case(_set("FIT", FIT_DAYS, "calibration")))
+    check = _check(record, "calibration.trial_model")
+    assert not check["passed"] and check["value"] > 1.0
+    assert record["verdict"] == "fail"
+
+
+def test_a_fit_that_cannot_be_made_is_recorded_as_failed(monkeypatch):
+    def broken(self, x):
+        return np.full((np.asarray(x).shape[0], len(self.targets)), np.nan)
+
+    monkeypatch.setattr(trials_module.TrialModel, "__call__", broken)
+    record = check_case(_case(_set("FIT", FIT_DAYS, "calibration")))
+    assert record["status"] == "failed" and "calibration" not in record
+    assert record["error"]
+
+
+def test_every_record_carries_its_credibility_summary(fitted):
+    factors = {f["factor"]: f for f in fitted["credibility"]["factors"]}
+    assert len(factors) >= 7
+    assert all(f["status"] in ("evidenced", "not supported", "not assessed")
+               for f in factors.values())
