@@ -435,9 +435,10 @@ def _normalise_design(data: Mapping, design: DesignRequest) -> dict:
             if found.probe is not None:
                 measured["probe"] = found.probe
             measured["times"] = [{"value": t, "unit": "s"} for t in found.times]
-            measured["values"] = [_si_number(v, found.unit) for v in found.values]
-            measured["standard_uncertainty"] = [_si_number(u, found.unit)
-                                             for u in found.standard_uncertainty]
+            measured["values"] = list(found.values)
+            if found.unit != "1":
+                measured["unit"] = found.unit
+            measured["standard_uncertainty"] = list(found.standard_uncertainty)
             measured["use"] = found.use
             if "source" in item:
                 measured["source"] = item["source"]

@@ -80,14 +80,26 @@ def _worst(items: list[tuple[str, float]]) -> tuple[str, float]:
 # --------------------------------------------------------------------------------- inputs.units
 
 
+#: Lists of numbers in a measurement set that share the set's ``unit``.
+_SHARED_UNIT_LISTS = ("values", "standard_uncertainty")
+
+
 def _si_leaves(node: Any, path: str = "") -> Iterator[tuple[str, Mapping]]:
-    """``(path, {"value", "unit"})`` of every SI value in a normalised document."""
+    """``(path, {"value", "unit"})`` of every SI value in a normalised document: each
+    ``{"value", "unit"}`` and each number of a measurement set's ``values`` and
+    ``standard_uncertainty`` lists, which share the set's SI ``unit``."""
     if isinstance(node, Mapping):
         if set(node) == {"value", "unit"}:
             yield path, node
             return
+        shared = node.get("unit") if isinstance(node.get("values"), list) else None
         for key, item in node.items():
-            yield from _si_leaves(item, f"{path}.{key}" if path else str(key))
+            where = f"{path}.{key}" if path else str(key)
+            if isinstance(shared, str) and key in _SHARED_UNIT_LISTS and isinstance(item, list):
+                for index, number in enumerate(item):
+                    yield f"{where}[{index}]", {"value": number, "unit": shared}
+                continue
+            yield from _si_leaves(item, where)
     elif isinstance(node, list):
         for index, item in enumerate(node):
             yield from _si_leaves(item, f"{path}[{index}]")

@@ -30,6 +30,7 @@ from worker.engine.design.calibration import CalibrationResult, FitParameter, ca
 from worker.engine.design.paths import FieldRef, value_of
 from worker.engine.design.request import DesignRequest
 from worker.engine.design.requirements import read_figure
+from worker.engine.design.runner import model_disagreement
 from worker.engine.design.short_time import short_time_diffusivity
 from worker.engine.design.targets import Target
 from worker.engine.design.trials import TrialModel
@@ -158,8 +159,6 @@ def fit_check(run: CalibrationRun, outcome: Outcome, request: DesignRequest,
     """``calibration.trial_model``: the fast solve the fit used, at the estimates, against the
     full check of the fitted case at every calibration point, relative to the figure's
     numerical uncertainty (at least ``AGREEMENT_FLOOR`` of the value): ≤ 1 passes."""
-    from worker.engine.design.runner import model_disagreement  # the one agreement rule
-
     theta = np.array([run.values[f] for f in run.model.fields], dtype=float)
     fast = run.model(theta[None, :])[0]
     worst, where = 0.0, "none"
