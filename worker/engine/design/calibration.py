@@ -359,15 +359,23 @@ def _covariance(jac: np.ndarray) -> tuple[np.ndarray, np.ndarray, int, np.ndarra
 class _Profile:
     """Minimum chi-square over the other parameters with parameter j held at a value."""
 
-    def __init__(self, problem: _Problem, j: int, z_hat: np.ndarray, ref: np.ndarray) -> None:
+    def __init__(self, problem: _Problem, j: int, z_hat: np.ndarray, ref: np.ndarray,
+                 chi_min: float) -> None:
         self.problem = problem
         self.j = j
         self.others = np.array([i for i in range(z_hat.size) if i != j], dtype=int)
         self.ref = ref
         self.solved: dict[float, np.ndarray] = {float(z_hat[j]): z_hat.copy()}
-        self.lowest = math.inf
+        self.values: dict[float, float] = {float(z_hat[j]): chi_min}
+        self.lowest = chi_min
 
     def __call__(self, t: float) -> float:
+        t = float(t)
+        if t not in self.values:
+            self.values[t] = self._minimise(t)
+        return self.values[t]
+
+    def _minimise(self, t: float) -> float:
         problem = self.problem
         nearest = min(self.solved, key=lambda s: abs(s - t))
         z = self.solved[nearest].copy()
@@ -383,10 +391,13 @@ class _Profile:
             fit = _least_squares(fun, z[others] / ref, problem.z_low[others] / ref,
                                  problem.z_high[others] / ref)
             z[others] = fit.x * ref
-        value = problem.chi_square(z)
+            failed = bool(np.all(fit.fun == FAILED_RESIDUAL))
+            value = math.inf if failed else float(np.sum(fit.fun**2))
+        else:
+            value = problem.chi_square(z)
         if not math.isfinite(value):
             return math.inf
-        self.solved[float(t)] = z
+        self.solved[t] = z
         self.lowest = min(self.lowest, value)
         return value
 
@@ -418,7 +429,7 @@ def _profile_side(profile: _Profile, z_hat: float, chi_min: float, target: float
 
     span = abs(outer - inner)
     end = optimize.brentq(excess, inner, outer,
-                          xtol=max(1e-12 * max(abs(outer), 1.0), 1e-9 * span))
+                          xtol=max(1e-12 * max(abs(outer), 1.0), 1e-7 * span))
     return float(end), "closed"
 
 
@@ -431,10 +442,11 @@ def _intervals(problem: _Problem, z_hat: np.ndarray, ref: np.ndarray, cov_z: np.
     intervals = np.empty((k, 2))
     open_sides = []
     for j, p in enumerate(problem.parameters):
-        profile = _Profile(problem, j, z_hat, ref)
+        profile = _Profile(problem, j, z_hat, ref, chi_min)
         span = problem.z_high[j] - problem.z_low[j]
         se_z = math.sqrt(cov_z[j, j]) if math.isfinite(cov_z[j, j]) else math.inf
-        first = min(se_z, 0.25 * span) if se_z > 0.0 else 0.01 * span
+        # first try where a quadratic chi-square would reach the threshold
+        first = min(math.sqrt(target) * se_z, 0.25 * span) if se_z > 0.0 else 0.01 * span
         ends, opened = [], []
         for index, bound, word in ((0, problem.z_low[j], "below"),
                                    (1, problem.z_high[j], "above")):
