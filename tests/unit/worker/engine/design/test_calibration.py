@@ -172,6 +172,30 @@ def test_failed_evaluations_are_never_taken_as_a_fit():
     assert not has(sound, "model fail")
 
 
+def test_failure_while_profiling_over_a_nuisance_parameter():
+    """D and a burst fraction: a model that fails one standard error above the estimate (inside
+    the 95 % interval) leaves that end unestablished (None in the record) with a warning, and
+    the lower end closed; the sound model profiles both ends without it."""
+    def burst(th):
+        return th[1] + (1.0 - th[1]) * crank_sheet(th[0] * SPREAD / L**2)
+
+    params = [d_param(start=1e-12), FitParameter("burst", 0.2, 0.0, 0.9, False, "1")]
+    y = burst(np.array([D_TRUE, 0.1])) + np.random.default_rng(14).normal(0, NOISE, SPREAD.size)
+    sound = calibrate(burst, params, y, NOISE)
+    assert not has(sound, "model fail")
+    assert np.all(np.isfinite(sound.intervals))
+    edge = sound.estimates[0] + sound.standard_errors[0]
+
+    def fragile(th):
+        return np.full(SPREAD.size, np.nan) if th[0] > edge else burst(th)
+
+    cut = calibrate(fragile, params, y, NOISE)
+    assert cut.estimates[0] == pytest.approx(sound.estimates[0], rel=1e-6, abs=0)
+    assert has(cut, "layers[0].diffusivity: the model failed while profiling it from above")
+    assert math.isnan(cut.intervals[0, 1])
+    assert cut.intervals[0, 0] == pytest.approx(sound.intervals[0, 0], rel=1e-6, abs=0)
+
+
 def test_start_outside_bounds_is_clipped_and_noted():
     """A start outside its bounds is moved inside and the fit still finds D; a start inside
     gives no note."""
