@@ -7,17 +7,19 @@
   a fit; a model that fails at the start raises.
 - Standard errors and correlation from the Jacobian J of the normalised residuals at the optimum
   (central differences): ``cov = (J^T J)^-1`` in the fitted scale, the covariance of an
-  estimate from data with *stated* standard uncertainties (Press et al. 2007, *Numerical Recipes*,
-  3rd ed., §15.4-15.5; JCGM 100:2008 §5). It is not scaled by the reduced chi-square; a reduced
-  chi-square outside its central 95 % range is reported as a warning instead. A log10 parameter's
-  covariance is carried to SI by the delta method (first-order propagation, JCGM 100:2008
-  §5.1.2): ``x = 10^z``, ``dx/dz = ln(10) x``.
+  estimate from data with *stated* standard uncertainties (Press et al. 2007, *Numerical
+  Recipes*, 3rd ed., §15.4-15.5, from memory; JCGM 100:2008 §5). It is not scaled by the
+  reduced chi-square; a reduced chi-square outside its central 95 % range is reported as a
+  warning instead. A log10 parameter's covariance is carried to SI by the delta method
+  (first-order propagation, JCGM 100:2008 §5.1.2): ``x = 10^z``, ``dx/dz = ln(10) x``.
 - Intervals by profile likelihood (Press et al. 2007 §15.6; Venzon & Moolgavkar 1988, *Appl.
-  Statist.* 37, 87): the values of one parameter where the chi-square minimised over the others
-  rises by ``chi2.ppf(level, 1)`` (3.84 at 95 %) above its minimum; with one parameter the
-  profile is the chi-square itself. Each side is bracketed by steps growing outward from the
-  estimate and then found by ``scipy.optimize.brentq``. A side whose profile stays below the
-  threshold up to the bound is reported open there: that end is the bound.
+  Statist.* 37, 87; both from memory): the values of one parameter where the chi-square
+  minimised over the others rises by ``chi2.ppf(level, 1)`` (3.84 at 95 %) above its minimum;
+  with one parameter the profile is the chi-square itself. Each side is bracketed by steps
+  outward from the estimate (the first to where a quadratic chi-square would cross, sqrt(3.84)
+  standard errors, then doubling) and the crossing found by ``scipy.optimize.brentq``. A side
+  whose profile stays below the threshold up to the bound is reported open there: that end is
+  the bound.
 
 The fitted values and intervals support, and do not replace, design verification testing and
 qualified review of the device; they are only as good as the model and the stated uncertainties.
@@ -77,7 +79,11 @@ class FitParameter:
 
 @dataclass(frozen=True)
 class CalibrationResult:
-    """The fit: SI estimates, covariance and intervals, the data's residuals, and warnings."""
+    """The fit: SI estimates, covariance and intervals, the data's residuals, and warnings.
+
+    ``standard_errors`` and ``covariance`` are infinite/NaN for parameters the data do not
+    determine (rank-deficient Jacobian); an interval end is NaN where the model failed while
+    profiling; ``open_sides[j]`` says which ends of parameter j's interval are its bounds."""
 
     parameters: tuple[FitParameter, ...]
     estimates: np.ndarray
