@@ -97,7 +97,7 @@ def test_profile_ends_lie_where_chi_square_rises_by_the_chi2_quantile():
     def chi_square(d):
         return float(np.sum(((crank_sheet(d * TIMES / HALF_THICKNESS**2) - y) / NOISE) ** 2))
 
-    assert chi_square(result.estimates[0]) == pytest.approx(result.chi_square, rel=1e-12)
+    assert chi_square(result.estimates[0]) == pytest.approx(result.chi_square, rel=1e-12, abs=0)
     for end in result.intervals[0]:
         assert chi_square(end) - result.chi_square == pytest.approx(DELTA_95, abs=1e-5)
     # the quantile the method names
@@ -145,7 +145,7 @@ def test_fit_through_the_engine_transient_solver():
     assert abs(result.estimates[0] - DIFFUSIVITY) <= 3.0 * result.standard_errors[0]
     assert result.intervals[0, 0] < DIFFUSIVITY < result.intervals[0, 1]
     series = calibrate(_release_model(TIMES), [_d_parameter()], y, NOISE)
-    assert result.estimates[0] == pytest.approx(series.estimates[0], rel=1e-6)
+    assert result.estimates[0] == pytest.approx(series.estimates[0], rel=1e-6, abs=0)
 
 
 # --------------------------------------------------------------------------------------------
@@ -232,7 +232,7 @@ def test_straight_line_matches_the_closed_form_and_its_profile_is_wald(level):
                        level=level)
     np.testing.assert_allclose(result.estimates, [a, b], rtol=1e-8)
     np.testing.assert_allclose(result.covariance, [[var_a, cov_ab], [cov_ab, var_b]], rtol=1e-6)
-    assert result.correlation[0, 1] == pytest.approx(-sx / math.sqrt(s * sxx), rel=1e-6)
+    assert result.correlation[0, 1] == pytest.approx(-sx / math.sqrt(s * sxx), rel=1e-6, abs=0)
     half = math.sqrt(stats.chi2.ppf(level, 1)) * np.sqrt([var_a, var_b])
     np.testing.assert_allclose(result.intervals[:, 0], [a, b] - half, rtol=1e-6)
     np.testing.assert_allclose(result.intervals[:, 1], [a, b] + half, rtol=1e-6)
@@ -270,7 +270,7 @@ def test_short_time_estimate_of_clean_series_data_within_its_bias():
     times = tau * TIME_SCALE
     clean = crank_sheet(tau)
     estimate = short_time_diffusivity(times, clean, NOISE, HALF_THICKNESS)
-    assert estimate.diffusivity == pytest.approx(DIFFUSIVITY, rel=2e-3)
+    assert estimate.diffusivity == pytest.approx(DIFFUSIVITY, rel=2e-3, abs=0)
     assert estimate.points == 10
 
     with pytest.MonkeyPatch.context() as patch:

@@ -7,17 +7,19 @@
   a fit; a model that fails at the start raises.
 - Standard errors and correlation from the Jacobian J of the normalised residuals at the optimum
   (central differences): ``cov = (J^T J)^-1`` in the fitted scale, the covariance of an
-  estimate from data with *stated* standard uncertainties (Press et al. 2007, *Numerical Recipes*,
-  3rd ed., §15.4-15.5; JCGM 100:2008 §5). It is not scaled by the reduced chi-square; a reduced
-  chi-square outside its central 95 % range is reported as a warning instead. A log10 parameter's
-  covariance is carried to SI by the delta method (first-order propagation, JCGM 100:2008
-  §5.1.2): ``x = 10^z``, ``dx/dz = ln(10) x``.
+  estimate from data with *stated* standard uncertainties (Press et al. 2007, *Numerical
+  Recipes*, 3rd ed., §15.4-15.5, from memory; JCGM 100:2008 §5). It is not scaled by the
+  reduced chi-square; a reduced chi-square outside its central 95 % range is reported as a
+  warning instead. A log10 parameter's covariance is carried to SI by the delta method
+  (first-order propagation, JCGM 100:2008 §5.1.2): ``x = 10^z``, ``dx/dz = ln(10) x``.
 - Intervals by profile likelihood (Press et al. 2007 §15.6; Venzon & Moolgavkar 1988, *Appl.
-  Statist.* 37, 87): the values of one parameter where the chi-square minimised over the others
-  rises by ``chi2.ppf(level, 1)`` (3.84 at 95 %) above its minimum; with one parameter the
-  profile is the chi-square itself. Each side is bracketed by steps growing outward from the
-  estimate and then found by ``scipy.optimize.brentq``. A side whose profile stays below the
-  threshold up to the bound is reported open there: that end is the bound.
+  Statist.* 37, 87; both from memory): the values of one parameter where the chi-square
+  minimised over the others rises by ``chi2.ppf(level, 1)`` (3.84 at 95 %) above its minimum;
+  with one parameter the profile is the chi-square itself. Each side is bracketed by steps
+  outward from the estimate (the first to where a quadratic chi-square would cross, sqrt(3.84)
+  standard errors, then doubling) and the crossing found by ``scipy.optimize.brentq``. A side
+  whose profile stays below the threshold up to the bound is reported open there: that end is
+  the bound.
 
 The fitted values and intervals support, and do not replace, design verification testing and
 qualified review of the device; they are only as good as the model and the stated uncertainties.
@@ -77,7 +79,11 @@ class FitParameter:
 
 @dataclass(frozen=True)
 class CalibrationResult:
-    """The fit: SI estimates, covariance and intervals, the data's residuals, and warnings."""
+    """The fit: SI estimates, covariance and intervals, the data's residuals, and warnings.
+
+    ``standard_errors`` and ``covariance`` are infinite/NaN for parameters the data do not
+    determine (rank-deficient Jacobian); an interval end is NaN where the model failed while
+    profiling; ``open_sides[j]`` says which ends of parameter j's interval are its bounds."""
 
     parameters: tuple[FitParameter, ...]
     estimates: np.ndarray
@@ -359,15 +365,23 @@ def _covariance(jac: np.ndarray) -> tuple[np.ndarray, np.ndarray, int, np.ndarra
 class _Profile:
     """Minimum chi-square over the other parameters with parameter j held at a value."""
 
-    def __init__(self, problem: _Problem, j: int, z_hat: np.ndarray, ref: np.ndarray) -> None:
+    def __init__(self, problem: _Problem, j: int, z_hat: np.ndarray, ref: np.ndarray,
+                 chi_min: float) -> None:
         self.problem = problem
         self.j = j
         self.others = np.array([i for i in range(z_hat.size) if i != j], dtype=int)
         self.ref = ref
         self.solved: dict[float, np.ndarray] = {float(z_hat[j]): z_hat.copy()}
-        self.lowest = math.inf
+        self.values: dict[float, float] = {float(z_hat[j]): chi_min}
+        self.lowest = chi_min
 
     def __call__(self, t: float) -> float:
+        t = float(t)
+        if t not in self.values:
+            self.values[t] = self._minimise(t)
+        return self.values[t]
+
+    def _minimise(self, t: float) -> float:
         problem = self.problem
         nearest = min(self.solved, key=lambda s: abs(s - t))
         z = self.solved[nearest].copy()
@@ -383,10 +397,13 @@ class _Profile:
             fit = _least_squares(fun, z[others] / ref, problem.z_low[others] / ref,
                                  problem.z_high[others] / ref)
             z[others] = fit.x * ref
-        value = problem.chi_square(z)
+            failed = bool(np.all(fit.fun == FAILED_RESIDUAL))
+            value = math.inf if failed else float(np.sum(fit.fun**2))
+        else:
+            value = problem.chi_square(z)
         if not math.isfinite(value):
             return math.inf
-        self.solved[float(t)] = z
+        self.solved[t] = z
         self.lowest = min(self.lowest, value)
         return value
 
@@ -418,7 +435,7 @@ def _profile_side(profile: _Profile, z_hat: float, chi_min: float, target: float
 
     span = abs(outer - inner)
     end = optimize.brentq(excess, inner, outer,
-                          xtol=max(1e-12 * max(abs(outer), 1.0), 1e-9 * span))
+                          xtol=max(1e-12 * max(abs(outer), 1.0), 1e-7 * span))
     return float(end), "closed"
 
 
@@ -431,10 +448,11 @@ def _intervals(problem: _Problem, z_hat: np.ndarray, ref: np.ndarray, cov_z: np.
     intervals = np.empty((k, 2))
     open_sides = []
     for j, p in enumerate(problem.parameters):
-        profile = _Profile(problem, j, z_hat, ref)
+        profile = _Profile(problem, j, z_hat, ref, chi_min)
         span = problem.z_high[j] - problem.z_low[j]
         se_z = math.sqrt(cov_z[j, j]) if math.isfinite(cov_z[j, j]) else math.inf
-        first = min(se_z, 0.25 * span) if se_z > 0.0 else 0.01 * span
+        # first try where a quadratic chi-square would reach the threshold
+        first = min(math.sqrt(target) * se_z, 0.25 * span) if se_z > 0.0 else 0.01 * span
         ends, opened = [], []
         for index, bound, word in ((0, problem.z_low[j], "below"),
                                    (1, problem.z_high[j], "above")):
