@@ -167,3 +167,20 @@ def test_every_record_carries_its_credibility_summary(fitted):
     assert len(factors) >= 7
     assert all(f["status"] in ("evidenced", "not supported", "not assessed")
                for f in factors.values())
+
+
+def test_the_fit_warns_where_the_data_do_not_cover_the_record(fitted):
+    """Short-time data only and data ending before the duration are warned about; data covering
+    the release to its end are not (the module fixture's set ends at 9 d of 10 d)."""
+    early = check_case(_case(_set("FIT", (0.1, 0.2, 0.3, 0.5, 0.7), "calibration")))
+    warnings = early["calibration"]["warnings"]
+    assert any("short-time form" in w for w in warnings)
+    assert any("extrapolated beyond them" in w for w in warnings)
+    assert not any("short-time form" in w for w in fitted["calibration"]["warnings"])
+    full = check_case(_case(_set("FIT", FIT_DAYS + (10.0,), "calibration")))
+    assert not any("extrapolated beyond them" in w for w in full["calibration"]["warnings"])
+    assert any(w.startswith("calibration: ") and "short-time form" in w
+               for w in early["warnings"])
+    assert not any("outside [0, 1]" in w for w in fitted["calibration"]["warnings"])
+    over = check_case(_case(_set("FIT", FIT_DAYS, "calibration", shift=0.1)))
+    assert any("outside [0, 1]" in w for w in over["calibration"]["warnings"])

@@ -93,6 +93,7 @@ def calibrate_case(problem: Problem, request: DesignRequest) -> CalibrationRun:
     block["points"] = int(measured.size)
     block["fitted_inputs"] = [p.field.path for p in inputs]
     block["model"] = f"the fast primary solve of the design runs ({model.method})"
+    block.setdefault("warnings", []).extend(range_warnings(problem, request))
     cross = short_time_cross_estimate(problem, request, result)
     if cross is not None:
         block["short_time"] = cross
@@ -103,6 +104,38 @@ def calibrate_case(problem: Problem, request: DesignRequest) -> CalibrationRun:
                 "not follow the model the fit assumes (a burst, a lag, or a wrong thickness)")
     values = {p.field: float(v) for p, v in zip(inputs, result.estimates, strict=True)}
     return CalibrationRun(result=result, values=values, block=block, model=model)
+
+
+#: Release fraction up to which release from a plane sheet follows the short-time form
+#: Mt/M∞ = 2 (D t / (π l²))^½ to within 0.1 % (Crank 1975, §4.3; checked against the full
+#: series in the calibration tests): data below it alone cannot show the long-time behaviour.
+SHORT_TIME_FRACTION = 0.5
+
+
+def range_warnings(problem: Problem, request: DesignRequest) -> list[str]:
+    """Where the calibration data do not cover what the record then reports: figures after the
+    last calibration time are extrapolated; release fractions all in the short-time regime
+    (≤ ``SHORT_TIME_FRACTION``) fix only D t / l² as a square root, not the long-time release;
+    release fractions outside [0, 1] are beyond any model of release."""
+    found: list[str] = []
+    sets = request.calibration_sets
+    last = max(t for m in sets for t in m.times)
+    duration = problem.regime.duration or last
+    if last < duration:
+        found.append(f"the calibration data end at {last:.6g} s; the record's figures after "
+                     f"that, up to the duration {duration:.6g} s, are extrapolated beyond them")
+    fractions = [v for m in sets if m.quantity == "release_fraction" for v in m.values]
+    if fractions and max(fractions) <= SHORT_TIME_FRACTION:
+        found.append(f"every calibrated release fraction is at most {SHORT_TIME_FRACTION:g}, "
+                     "where release from a sheet follows the short-time form 2(Dt/πl²)^½ "
+                     "(Crank 1975, §4.3): the data fix D/l² but do not test the long-time "
+                     "release, which is extrapolated")
+    outside = [v for v in fractions if not 0.0 <= v <= 1.0]
+    if outside:
+        found.append(f"{len(outside)} calibrated release fraction(s) lie outside [0, 1] (e.g. "
+                     f"{outside[0]:g}): beyond what any release model gives; check the data's "
+                     "normalisation (the total load)")
+    return found
 
 
 def _plane_sheet_half_path(problem: Problem) -> float | None:
