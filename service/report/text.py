@@ -111,6 +111,10 @@ def render_text(record: dict, case: dict) -> str:
     add("Inputs (as given → SI)")
     for path, given, si in _input_rows(case, record.get("inputs") or {}):
         add(f"  {path:<42} {given:<20} {('→ ' + si) if si else ''}".rstrip())
+    for fitted in (record.get("calibration") or {}).get("parameters", []):
+        add(f"  fitted: {fitted.get('field')} = {_fmt(fitted.get('estimate'))} "
+            f"{fitted.get('unit', '')} replaces the value above in every figure of this record "
+            "(see Calibration)")
     add(RULE)
     if record.get("status") == RunStatus.FAILED:
         add(f"ENGINE FAILURE: {record.get('error')}")

@@ -184,3 +184,30 @@ def test_the_fit_warns_where_the_data_do_not_cover_the_record(fitted):
     assert not any("outside [0, 1]" in w for w in fitted["calibration"]["warnings"])
     over = check_case(_case(_set("FIT", FIT_DAYS, "calibration", shift=0.1)))
     assert any("outside [0, 1]" in w for w in over["calibration"]["warnings"])
+
+
+def test_a_worker_computes_the_monte_carlo_block_of_the_fitted_case():
+    """A block a service hands to another worker (``uncertainty_block``) is the block the run
+    itself computes: the Monte Carlo is on the fitted case there too (without the fit, on the
+    case's own diffusivity, the block differs)."""
+    from schemas.checking import uncertainty_block
+
+    uncertain = {"inputs": [{"field": "layers[0].thickness", "distribution": "normal",
+                             "relative_sd": 0.05}], "seed": 5, "max_trials": 20_000}
+    doc = _case(_set("FIT", FIT_DAYS, "calibration"),
+                _set("CHK", CHECK_DAYS, "validation", seed=2), uncertainty=uncertain)
+    computed = []
+
+    def keep(compute, accumulator):
+        while not accumulator.done:
+            block = compute(accumulator.blocks)
+            computed.append(block)
+            accumulator.add(block)
+
+    check_case(doc, scheduler=keep)
+    assert computed
+    assert uncertainty_block(doc, 5, 0).as_dict() == computed[0].as_dict()
+    unfitted = copy.deepcopy(doc)
+    unfitted["measurements"] = [unfitted["measurements"][1]]
+    del unfitted["calibration"]
+    assert uncertainty_block(unfitted, 5, 0).as_dict() != computed[0].as_dict()

@@ -196,3 +196,19 @@ def test_a_real_record_with_its_blocks_renders():
 def _html_of(record: dict, case: dict) -> str:
     with Flask("service").test_request_context():
         return render_report(record, case)
+
+
+@pytest.mark.parametrize("calibrated", [True, False])
+def test_the_inputs_say_which_value_the_fit_replaced(calibrated):
+    """Beside the inputs as given, the text and HTML reports name each fitted input and its
+    estimate (the figures are the fitted case's); without a calibration they say nothing."""
+    record = records.record("calibration") if calibrated else records.record()
+    text = render_text(record, records.case())
+    html = _html(record)
+    assert ("fitted: layers[0].diffusivity = 2.4e-14 m^2/s replaces the value above"
+            in text) is calibrated
+    assert ('class="fitted-inputs"' in html) is calibrated
+    if calibrated:
+        inputs = html[html.index('<section id="inputs"'):]
+        inputs = _plain(inputs[:inputs.index("</section>")])
+        assert "layers[0].diffusivity = 2.4e-14 m^2/s" in inputs
