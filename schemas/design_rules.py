@@ -481,6 +481,25 @@ def _measurements(items: list[Mapping], problem: Problem, reader: _Reader
     return found
 
 
+def _reused_points(items: list[Mapping], measurements: list[MeasurementSet],
+                   reader: _Reader) -> None:
+    """A validation point that repeats a calibration point (same figure, time and value) is
+    refused: data used for calibration never count as validation."""
+    if len(measurements) != len(items):
+        return  # a set was refused already; its indices no longer match
+    fitted = {(t.key, value): m.id for m in measurements if m.for_calibration
+              for t, value in zip(m.targets(), m.values, strict=True)}
+    for index, m in enumerate(measurements):
+        if m.for_calibration:
+            continue
+        for j, (t, value) in enumerate(zip(m.targets(), m.values, strict=True)):
+            if (t.key, value) in fitted:
+                reader.fail(f"measurements[{index}].values[{j}]",
+                            f"the same point is in the calibration set "
+                            f"{fitted[(t.key, value)]!r}: data used for calibration never "
+                            "count as validation")
+
+
 def _calibration(data: Mapping, problem: Problem, measurements: list[MeasurementSet],
                  reader: _Reader) -> CalibrationRequest | None:
     block = data.get("calibration")
@@ -573,6 +592,7 @@ def design_request(data: Mapping, problem: Problem, basis: str) -> DesignRequest
     sweep = _sweep(data["sweep"], problem, reader) if "sweep" in data else None
     measurements = _measurements(list(data.get("measurements", [])), problem, reader)
     calibration = _calibration(data, problem, measurements, reader)
+    _reused_points(list(data.get("measurements", [])), measurements, reader)
     if reader.errors:
         raise DesignRuleError(reader.errors)
     for measurement in measurements:

@@ -195,3 +195,16 @@ def test_both_unit_routes_read_the_measured_values():
     object.__setattr__(blind, "table_values", MappingProxyType(unread))
     check = unit_routes_check(case.problem, blind, case.normalised, case.original)
     assert not check.passed and "not read by the table route" in check.detail
+
+
+def test_calibration_data_never_count_as_validation():
+    """A validation point repeating a calibration point is refused; the same time with another
+    value (a second lot) is a fair comparison."""
+    repeated = _set(id="S2", use="validation", times=["3 d"], values=[0.3],
+                    standard_uncertainty=[0.01])
+    errors = _errors(_with(measurements=[FRACTIONS, repeated], calibration=FIT))
+    assert any(p == "measurements[1].values[0]" and "never count as validation" in m
+               for p, m in errors), errors
+    other_lot = _set(id="S2", use="validation", times=["3 d"], values=[0.31],
+                     standard_uncertainty=[0.01])
+    validate_case(_with(measurements=[FRACTIONS, other_lot], calibration=FIT))
