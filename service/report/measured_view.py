@@ -183,6 +183,9 @@ class ValidationSetView:
     agrees: bool
     u_input_assessed: bool
     coverage_factor: float
+    #: The record's own series of the quantity at its requested times (times s, values), for
+    #: drawing the simulation between the measured times; None where the record has none.
+    curve: tuple[list[float], list[float]] | None = None
 
     @property
     def sentence(self) -> str:
@@ -225,6 +228,22 @@ class ValidationView:
                 f"±{plain_number(self.coverage_factor)}·u_val.")
 
 
+def _curve(record: Mapping[str, Any], quantity: str) -> tuple[list[float], list[float]] | None:
+    """(times, values) of a plain series of the record (one number per requested time)."""
+    series = record.get("series")
+    if not isinstance(series, Mapping):
+        return None
+    entry, times = series.get(quantity), series.get("time")
+    if not isinstance(entry, Mapping) or not isinstance(times, Mapping):
+        return None
+    pairs = [(_number(t), _number(v)) for t, v in zip(times.get("values") or [],
+                                                      entry.get("values") or [], strict=False)]
+    kept = [(t, v) for t, v in pairs if t is not None and v is not None]
+    if len(kept) < 2:
+        return None
+    return [t for t, _ in kept], [v for _, v in kept]
+
+
 def validation_view(record: Mapping[str, Any]) -> ValidationView | None:
     block = record.get("validation")
     if not isinstance(block, Mapping):
@@ -247,6 +266,7 @@ def validation_view(record: Mapping[str, Any]) -> ValidationView | None:
                 u_d=_number(p.get("u_D")), u_val=_number(p.get("u_val")),
                 interval=_pair(p.get("interval")), flagged=bool(p.get("flagged"))))
         sets.append(ValidationSetView(
+            curve=_curve(record, str(entry.get("quantity", ""))),
             id=str(entry.get("id", "")), quantity=str(entry.get("quantity", "")),
             unit=str(entry.get("unit") or ""), points=points,
             largest_ratio=_number(entry.get("largest_ratio")),

@@ -45,8 +45,14 @@ def _draw(view: ValidationSetView, points: list[PointRow]) -> tuple[Figure, str]
                              color=LINE_COLOURS[0], alpha=0.18, linewidth=0,
                              label=f"simulation ± {plain_number(k)}·u_S")
     band.set_gid("validation-band")
-    (line,) = axes.plot(xs, simulated, color=LINE_COLOURS[0], linewidth=1.6,
-                        label="simulation")
+    if view.curve is not None:
+        curve_t, curve_v = view.curve
+        (line,) = axes.plot([t / unit_size for t in curve_t], curve_v, color=LINE_COLOURS[0],
+                            linewidth=1.2, label="simulation (record's series)")
+        axes.plot(xs, simulated, "x", color=LINE_COLOURS[0], markersize=5)
+    else:
+        (line,) = axes.plot(xs, simulated, "x--", color=LINE_COLOURS[0], linewidth=1.0,
+                            markersize=5, label="simulation at the measured times")
     line.set_gid("validation-simulation")
     for gid, chosen, style in (
             ("validation-data", [p for p in points if not p.flagged],

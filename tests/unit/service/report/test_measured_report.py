@@ -5,6 +5,7 @@ points are said plainly; the validation figure draws the band, the data and the 
 
 from __future__ import annotations
 
+import copy
 import html as html_text
 import io
 import re
@@ -212,3 +213,22 @@ def test_the_inputs_say_which_value_the_fit_replaced(calibrated):
         inputs = html[html.index('<section id="inputs"'):]
         inputs = _plain(inputs[:inputs.index("</section>")])
         assert "layers[0].diffusivity = 2.4e-14 m^2/s" in inputs
+
+
+def test_the_simulation_is_drawn_from_the_records_series_where_it_has_one():
+    """Between the measured times the figure follows the record's own series of the quantity;
+    a record without that series draws the simulation at the measured times only."""
+    from service.report.measured_view import validation_view
+    from service.report.plot_validation import validation_svg
+
+    record = records.record("validation")
+    bare = validation_view(record).sets[0]
+    record = copy.deepcopy(record)
+    quantity = bare.quantity
+    record.setdefault("series", {})["time"] = {"values": [0.0, 1800.0, 3600.0, 28800.0]}
+    record["series"][quantity] = {"values": [0.0, 0.05, 0.1, 0.7]}
+    drawn = validation_view(record).sets[0]
+    assert bare.curve is None
+    assert drawn.curve == ([0.0, 1800.0, 3600.0, 28800.0], [0.0, 0.05, 0.1, 0.7])
+    assert "simulation (record" in validation_svg(drawn)
+    assert "simulation at the measured times" in validation_svg(bare)
