@@ -67,7 +67,11 @@ def check_case(case: dict, *, on_progress: Callable[[int, int], None] | None = N
         ``warnings``, ``provenance``, ``inputs`` (the normalised case), ``design`` (each
         stated requirement judged; ``none_stated`` without any), ``deviations`` (the default
         limits the case loosens), ``uncertainty``, ``design_limit`` and ``sweep`` where the case
-        asks for them, and ``caution`` (see :mod:`schemas.record`).
+        asks for them, ``calibration`` (the inputs fitted to the measurement sets marked
+        calibration: every figure of the record is then the fitted case's) and ``validation``
+        (ASME V&V 20-2009 comparison with the sets marked validation) where it gives measured
+        data, ``credibility`` (the ASME V&V 40-2018 evidence this record holds) and
+        ``caution`` (see :mod:`schemas.record`).
 
     Raises
     ------
@@ -147,8 +151,9 @@ def _validation(request: DesignRequest, outcome: Outcome, problem: Problem,
     targets = list(request.validation_targets)
     monte_carlo = None
     if uncertainty is not None and "quantities" in uncertainty:
-        monte_carlo = {t.key: float(uncertainty["quantities"][t.key]["standard_uncertainty"])
-                       for t in targets if t.key in uncertainty["quantities"]}
+        found = uncertainty["quantities"]
+        monte_carlo = {t.key: float(found[t.key]["standard_uncertainty"]) for t in targets
+                       if found.get(t.key, {}).get("standard_uncertainty") is not None}
     fit = None
     try:
         if calibrated is not None:
