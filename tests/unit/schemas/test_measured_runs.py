@@ -211,3 +211,15 @@ def test_a_worker_computes_the_monte_carlo_block_of_the_fitted_case():
     unfitted["measurements"] = [unfitted["measurements"][1]]
     del unfitted["calibration"]
     assert uncertainty_block(unfitted, 5, 0).as_dict() != computed[0].as_dict()
+
+
+def test_the_fits_uncertainty_reaches_each_validation_point(fitted):
+    """With one fitted diffusivity and no uncertainty block, u_input at a validation time is
+    |∂F/∂D| times the estimate's standard error (JCGM 100:2008, eq. 10), ∂F/∂D from Crank's
+    eq. 4.18 by central differences here."""
+    (parameter,) = fitted["calibration"]["parameters"]
+    estimate, se = parameter["estimate"], parameter["standard_error"]
+    for point in fitted["validation"]["sets"][0]["points"]:
+        t, h = point["time"], 1e-4 * estimate
+        slope = (crank_fraction(t, estimate + h) - crank_fraction(t, estimate - h)) / (2 * h)
+        assert point["u_input"] == pytest.approx(abs(slope) * se, rel=1e-3, abs=0)
