@@ -12,6 +12,7 @@ from collections.abc import Mapping
 from typing import Any
 
 from service.report.measured_view import calibration_view, credibility_view, validation_view
+from service.report.readable import readable_unit
 
 
 def _g(value: Any, digits: int = 4) -> str:
@@ -71,15 +72,24 @@ def validation_lines(record: Mapping[str, Any]) -> list[str]:
     if view.u_input_method:
         lines.append(f"  u_input: {view.u_input_method}")
     for s in view.sets:
-        lines.append(f"  Set {s.id}: {s.quantity} [{s.unit or '1'}]")
+        chosen = readable_unit(s.unit, [v for p in s.points for v in (p.simulated, p.measured)],
+                               s.quantity)
+        symbol, size = chosen if chosen is not None else (s.unit or "1", 1.0)
+        si_note = f" (SI: {s.unit or '1'})" if chosen is not None else ""
+
+        def shown(value: float | None, significant: int = 4, size: float = size) -> str:
+            return _g(None if value is None else value / size, significant)
+
+        lines.append(f"  Set {s.id}: {s.quantity} [{symbol}]{si_note}")
         header = (f"    {'time':>10} {'simulated':>11} {'measured':>11} {'E':>11} {'u_val':>10} "
                   f"  model-error interval E ± {k}·u_val")
         lines += [header, "    " + "-" * (len(header) - 4)]
         for p in s.points:
             flag = "   <<< beyond k·u_val" if p.flagged else ""
-            lines.append(f"    {p.readable_time:>10} {_g(p.simulated):>11} {_g(p.measured):>11} "
-                         f"{_g(p.comparison_error, 3):>11} {_g(p.u_val, 3):>10}   "
-                         f"[{_g(p.interval[0], 3)}, {_g(p.interval[1], 3)}]{flag}")
+            lines.append(f"    {p.readable_time:>10} {shown(p.simulated):>11} "
+                         f"{shown(p.measured):>11} {shown(p.comparison_error, 3):>11} "
+                         f"{shown(p.u_val, 3):>10}   "
+                         f"[{shown(p.interval[0], 3)}, {shown(p.interval[1], 3)}]{flag}")
         lines.append(f"    {s.sentence}")
     return lines
 

@@ -104,15 +104,17 @@ def test_flagged_points_said_plainly(shift, flagged):
     assert ("YES: model error indicated" in html) is flagged
     assert html.count('class="row-fail"') == int(flagged)
     row = next(line for line in text.splitlines() if line.strip().startswith("2 h"))
-    assert f"{-shift:.3g}" in row  # E = S − D
+    assert f"{-100 * shift:.3g}" in row  # E = S − D, a release fraction read in %
 
 
 def test_validation_interval_and_uncertainties_in_the_table():
     record = records.record("validation", shift_at_2h=0.1)
     point = record["validation"]["sets"][0]["points"][1]
     text = "\n".join(validation_lines(record))
-    assert f"[{point['interval'][0]:.3g}, {point['interval'][1]:.3g}]" in text
-    assert f"{point['u_val']:.3g}" in text
+    percent = 100.0  # a release fraction reads in % in the table (SI stated beside it)
+    assert f"[{percent * point['interval'][0]:.3g}, {percent * point['interval'][1]:.3g}]" in text
+    assert f"{percent * point['u_val']:.3g}" in text
+    assert "release_fraction [%] (SI: 1)" in text
     assert "k = 2" in text and "u_input: Monte Carlo over the uncertainty block" in text
 
 
