@@ -25,9 +25,14 @@ land on every requested time. The integration continues from the half-step solut
 (``fine``); beside it the solution with the whole steps (``coarse``) is carried along its own
 path on the same steps, and the reported amounts are their Richardson combination
 2 fine - coarse, which removes the O(h) term of the global error where the solution is smooth
-in time (a linear combination: the mass balance of both paths carries over). ``replay`` runs
-the same pair on the accepted steps cut into 2^k parts: the change gives the time error and
-the observed order in time.
+in time (a linear combination: the mass balance of both paths carries over). ``path`` runs
+implicit Euler on the accepted steps cut into 2^k parts: the pair with the steps halved and
+quartered gives the time error and the observed order in time.
+
+Where the system declares a chain of states among which its Jacobian is tridiagonal (the cells
+of the finite volumes, a compartment's level at either end) and the remaining states (the
+cumulative amounts) are depended on by none, each Newton correction is one tridiagonal solve
+(LAPACK ``dgtsv``) and a substitution (``_ChainSolver``); otherwise a sparse LU.
 
 References
 ----------
@@ -46,6 +51,7 @@ from typing import Any
 
 import numpy as np
 from scipy import sparse
+from scipy.linalg.lapack import dgtsv
 from scipy.sparse.linalg import splu
 
 #: Newton iterations allowed per implicit step before the step is halved.
@@ -58,7 +64,7 @@ GROWTH_MAX, GROWTH_MIN, SAFETY = 4.0, 0.2, 0.9
 #: Most accepted steps per integration before it is given up as failed.
 MAX_STEPS = 200_000
 
-__all__ = ["ImplicitResult", "integrate", "replay"]
+__all__ = ["ImplicitResult", "integrate", "path"]
 
 
 @dataclass
@@ -169,6 +175,110 @@ class _StepSolver:
         return None
 
 
+class _ChainSolver(_StepSolver):
+    """Implicit Euler steps of a system whose Jacobian is tridiagonal among the states of
+    ``system.chain_order()`` and whose remaining states (the cumulative amounts) no state
+    depends on: each Newton correction solves the tridiagonal block (LAPACK ``dgtsv``) and
+    then the remaining rows by substitution. The same Newton iterates as the sparse LU of the
+    whole matrix, without building or factorising it."""
+
+    def __init__(self, system: Any, atol: np.ndarray, rtol: float):
+        self.system = system
+        self.atol = atol
+        self.rtol = rtol
+        self.counts = {"rhs_evaluations": 0, "jacobian_evaluations": 0, "lu_decompositions": 0,
+                       "newton_iterations": 0}
+        pattern = sparse.csc_matrix(system.jacobian_pattern())
+        size = pattern.shape[0]
+        chain = np.asarray(system.chain_order(), dtype=np.int64)
+        place = np.full(size, -1, dtype=np.int64)
+        place[chain] = np.arange(chain.size)
+        rows = pattern.indices.astype(np.int64)
+        cols = np.repeat(np.arange(size), np.diff(pattern.indptr))
+        if np.any(place[cols] < 0):
+            raise ValueError("a state outside the chain is depended on")
+        in_chain = place[rows] >= 0
+        offset = place[rows[in_chain]] - place[cols[in_chain]]
+        if np.any(np.abs(offset) > 1):
+            raise ValueError("the chain's Jacobian is not tridiagonal")
+        at = np.flatnonzero(in_chain)
+        self.chain = chain
+        self.tail = np.flatnonzero(place < 0)
+        count = chain.size
+        # data positions of each tridiagonal entry (-1: structurally zero)
+        self.diag_at = np.full(count, -1, dtype=np.int64)
+        self.lower_at = np.full(max(count - 1, 0), -1, dtype=np.int64)
+        self.upper_at = np.full(max(count - 1, 0), -1, dtype=np.int64)
+        positions = place[cols[at]]
+        self.diag_at[positions[offset == 0]] = at[offset == 0]
+        self.lower_at[positions[offset == 1]] = at[offset == 1]  # row k + 1, column k
+        self.upper_at[positions[offset == -1] - 1] = at[offset == -1]  # row k, column k + 1
+        # the remaining rows' entries: data position, row (in the tail) and chain column
+        tail_place = np.full(size, -1, dtype=np.int64)
+        tail_place[self.tail] = np.arange(self.tail.size)
+        off_chain = np.flatnonzero(~in_chain)
+        self.tail_at = off_chain
+        self.tail_row = tail_place[rows[off_chain]]
+        self.tail_col = place[cols[off_chain]]
+
+    @staticmethod
+    def _gather(values: np.ndarray, at: np.ndarray) -> np.ndarray:
+        out = values[np.maximum(at, 0)]
+        out[at < 0] = 0.0
+        return out
+
+    def _correction(self, t: float, y: np.ndarray, h: float, residual: np.ndarray
+                    ) -> np.ndarray | None:
+        slope = _content_slope(self.system, y)
+        values = self.system.jacobian_values(t, y)
+        self.counts["jacobian_evaluations"] += 1
+        self.counts["lu_decompositions"] += 1
+        chain, tail = self.chain, self.tail
+        main = slope[chain] - h * self._gather(values, self.diag_at)
+        lower = -h * self._gather(values, self.lower_at)
+        upper = -h * self._gather(values, self.upper_at)
+        _, _, _, change, info = dgtsv(lower, main, upper, residual[chain])
+        if info != 0:
+            return None
+        correction = np.empty_like(residual)
+        correction[chain] = change
+        coupled = np.bincount(self.tail_row, weights=values[self.tail_at]
+                              * change[self.tail_col], minlength=tail.size)
+        correction[tail] = (residual[tail] + h * coupled) / slope[tail]
+        return correction
+
+    def step(self, t: float, y_old: np.ndarray, h: float) -> np.ndarray | None:
+        """The implicit Euler step from (t, y_old) to t + h, or None when Newton fails."""
+        m_old = _content(self.system, y_old)
+        y = y_old.copy()
+        t_new = t + h
+        weight = self.atol + self.rtol * np.abs(m_old)
+        for _ in range(MAX_NEWTON):
+            residual = _content(self.system, y) - m_old - h * self.system(t_new, y)
+            self.counts["rhs_evaluations"] += 1
+            if not np.all(np.isfinite(residual)):
+                return None
+            if np.sqrt(np.mean((residual / weight) ** 2)) <= NEWTON_TOLERANCE:
+                return y
+            correction = self._correction(t_new, y, h, residual)
+            if correction is None:
+                return None
+            self.counts["newton_iterations"] += 1
+            y = y - correction
+        return None
+
+
+def _solver(system: Any, atol: np.ndarray, rtol: float) -> _StepSolver:
+    """The chain solver where the system declares a tridiagonal chain, else sparse LU."""
+    atol = np.asarray(atol, dtype=float)
+    if hasattr(system, "chain_order") and hasattr(system, "jacobian_values"):
+        try:
+            return _ChainSolver(system, atol, float(rtol))
+        except ValueError:
+            pass
+    return _StepSolver(system, atol, float(rtol))
+
+
 def _hits(times: np.ndarray, start: float, end: float) -> np.ndarray:
     stops = np.unique(np.concatenate((times[(times > start) & (times < end)], [end])))
     return stops
@@ -185,7 +295,7 @@ def integrate(system: Any, y0: np.ndarray, start: float, end: float, times: np.n
     """Error-controlled implicit Euler from ``start`` to ``end`` landing on ``times``, with
     the whole-step path alongside; ``atol`` (per state) and ``rtol`` weigh the step-doubling
     error estimate."""
-    solver = _StepSolver(system, np.asarray(atol, dtype=float), float(rtol))
+    solver = _solver(system, atol, rtol)
     y0 = np.asarray(y0, dtype=float)
     ts = [start]
     states = [y0.copy()]
@@ -266,26 +376,21 @@ def _double_step(solver: _StepSolver, t: float, y: np.ndarray, h: float
     return None if double is None else (double, whole)
 
 
-def replay(system: Any, y0: np.ndarray, ts: np.ndarray, parts: int, atol: np.ndarray,
-           rtol: float) -> tuple[np.ndarray, np.ndarray, bool]:
-    """The half-step and whole-step paths on the step times ``ts`` with every step cut into
-    ``parts`` equal steps (no error control; Newton to the tolerance of ``atol``/``rtol``):
-    their states at ``ts`` (columns) and whether every step converged."""
-    solver = _StepSolver(system, np.asarray(atol, dtype=float), float(rtol))
+def path(system: Any, y0: np.ndarray, ts: np.ndarray, parts: int, atol: np.ndarray,
+         rtol: float) -> tuple[np.ndarray, bool]:
+    """Implicit Euler on the step times ``ts`` with every step cut into ``parts`` equal steps
+    (no error control; Newton to the tolerance of ``atol``/``rtol``): the states at ``ts``
+    (columns) and whether every step converged."""
+    solver = _solver(system, atol, rtol)
     y = np.asarray(y0, dtype=float).copy()
-    y_coarse = y.copy()
-    fine = np.full((y.size, ts.size), np.nan)
-    coarse = np.full((y.size, ts.size), np.nan)
-    fine[:, 0] = coarse[:, 0] = y
+    states = np.full((y.size, ts.size), np.nan)
+    states[:, 0] = y
     for k in range(1, ts.size):
         h = (ts[k] - ts[k - 1]) / parts
         for i in range(parts):
-            t = ts[k - 1] + i * h
-            half = solver.step(t, y, 0.5 * h)
-            double = solver.step(t + 0.5 * h, half, 0.5 * h) if half is not None else None
-            whole = solver.step(t, y_coarse, h)
-            if double is None or whole is None:
-                return fine, coarse, False
-            y, y_coarse = double, whole
-        fine[:, k], coarse[:, k] = y, y_coarse
-    return fine, coarse, True
+            found = solver.step(ts[k - 1] + i * h, y, h)
+            if found is None:
+                return states, False
+            y = found
+        states[:, k] = y
+    return states, True

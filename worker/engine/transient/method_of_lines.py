@@ -396,6 +396,14 @@ class _Rhs:
         data[self._consumed_at] = self.volumes * slope
         return data
 
+    def chain_order(self) -> np.ndarray:
+        """The states every other state depends on, in an order in which the Jacobian among
+        them is tridiagonal: the inner compartment's level, the cells, the outer compartment's
+        level (the amounts, which nothing depends on, are left out)."""
+        inner = [f.state for f in self.compartments if f.side == "inner"]
+        outer = [f.state for f in self.compartments if f.side == "outer"]
+        return np.concatenate((inner, np.arange(self.n), outer)).astype(np.int64)
+
     def jacobian(self, t: float, y: np.ndarray):
         """Exact (generalised) Jacobian as a CSC matrix (fixed pattern, state-dependent
         entries updated)."""
@@ -465,6 +473,11 @@ class _Stack:
             (np.concatenate([block.data for block in blocks]), np.concatenate(indices),
              np.concatenate(indptr)), shape=(size, size))
         return self._pattern
+
+    def chain_order(self) -> np.ndarray:
+        """Each system's chain (``_Rhs.chain_order``) in block order."""
+        return np.concatenate([system.chain_order() + int(self.offsets[k])
+                               for k, system in enumerate(self.systems)])
 
     def jacobian_values(self, t: float, y: np.ndarray) -> np.ndarray:
         """The entries in the order of ``jacobian_pattern().data``."""
@@ -845,9 +858,9 @@ def time_refinement(problem: Problem, solution: TransientFVSolution, parts: int
         return None
     ts = diagnostics["step_sequence"]
     system = _Rhs(problem, solution.mesh, concentration_scale(problem), exact=True)
-    fine, coarse, ok = implicit_steps.replay(system, diagnostics["initial_state"], ts, parts,
-                                             diagnostics["atol"], implicit_rtol(solution.rtol))
-    if not ok:
+    fine = _replayed(problem, system, solution, 2 * parts)
+    coarse = _replayed(problem, system, solution, parts) if fine is not None else None
+    if fine is None or coarse is None:
         return None
     history, contents = _reported(system, fine, coarse, ts)
     at = np.clip(np.searchsorted(ts, solution.times - 1e-9 * max(abs(solution.end), 1.0)), 0,
@@ -860,3 +873,22 @@ def time_refinement(problem: Problem, solution: TransientFVSolution, parts: int
         "released_outer": measure * history.values[n + 1, at],
         "consumed": measure * history.values[n + 2, at],
     }
+
+
+def _replayed(problem: Problem, system: _Rhs, solution: TransientFVSolution, parts: int
+              ) -> np.ndarray | None:
+    """The implicit Euler path of ``solution`` on its accepted steps cut into ``parts`` (None
+    when a step did not converge), kept on the solution per case and ``parts``: the steps
+    halved and quartered share the path with the steps cut in four."""
+    cache = getattr(solution, "_replayed", None)
+    if cache is None:
+        cache = {}
+        setattr(solution, "_replayed", cache)  # noqa: B010 - a cache the type does not declare
+    key = (id(problem), parts)  # the case is held with its path, so its id stays its own
+    if key not in cache:
+        diagnostics = solution.diagnostics
+        states, ok = implicit_steps.path(system, diagnostics["initial_state"],
+                                         diagnostics["step_sequence"], parts,
+                                         diagnostics["atol"], implicit_rtol(solution.rtol))
+        cache[key] = (problem, states if ok else None)
+    return cache[key][1]
