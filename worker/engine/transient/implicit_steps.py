@@ -46,6 +46,7 @@ Newton method", SIAM J. Optim. 13 (2002) 865-888.
 
 from __future__ import annotations
 
+import math
 from dataclasses import dataclass, field
 from typing import Any
 
@@ -205,10 +206,12 @@ class _ChainSolver(_StepSolver):
         self.chain = chain
         self.tail = np.flatnonzero(place < 0)
         count = chain.size
-        # data positions of each tridiagonal entry (-1: structurally zero)
-        self.diag_at = np.full(count, -1, dtype=np.int64)
-        self.lower_at = np.full(max(count - 1, 0), -1, dtype=np.int64)
-        self.upper_at = np.full(max(count - 1, 0), -1, dtype=np.int64)
+        # data positions of each tridiagonal entry (nnz: structurally zero, the zero appended
+        # to the values)
+        nnz = pattern.nnz
+        self.diag_at = np.full(count, nnz, dtype=np.int64)
+        self.lower_at = np.full(max(count - 1, 0), nnz, dtype=np.int64)
+        self.upper_at = np.full(max(count - 1, 0), nnz, dtype=np.int64)
         positions = place[cols[at]]
         self.diag_at[positions[offset == 0]] = at[offset == 0]
         self.lower_at[positions[offset == 1]] = at[offset == 1]  # row k + 1, column k
@@ -220,24 +223,36 @@ class _ChainSolver(_StepSolver):
         self.tail_at = off_chain
         self.tail_row = tail_place[rows[off_chain]]
         self.tail_col = place[cols[off_chain]]
+        self.terms = getattr(system, "newton_terms", None)
+        self.pieces: Any = getattr(system, "pieces", None) \
+            if getattr(system, "piecewise_linear", False) else None
 
-    @staticmethod
-    def _gather(values: np.ndarray, at: np.ndarray) -> np.ndarray:
-        out = values[np.maximum(at, 0)]
-        out[at < 0] = 0.0
-        return out
+    def _evaluate(self, t: float, y: np.ndarray, jacobian: bool
+                  ) -> tuple[np.ndarray, np.ndarray, np.ndarray | None, np.ndarray | None]:
+        """Content, right-hand side and, with ``jacobian`` (or where the system gives them
+        together), the Jacobian's values and the content's slope at y."""
+        if self.terms is not None:
+            return self.terms(t, y)
+        content, f = _content(self.system, y), self.system(t, y)
+        if not jacobian:
+            return content, f, None, None
+        return content, f, self.system.jacobian_values(t, y), _content_slope(self.system, y)
 
-    def _correction(self, t: float, y: np.ndarray, h: float, residual: np.ndarray
+    def _correction(self, t: float, y: np.ndarray, h: float, residual: np.ndarray,
+                    values: np.ndarray | None = None, slope: np.ndarray | None = None
                     ) -> np.ndarray | None:
-        slope = _content_slope(self.system, y)
-        values = self.system.jacobian_values(t, y)
+        if values is None or slope is None:
+            _, _, values, slope = self._evaluate(t, y, True)
+            assert values is not None and slope is not None
         self.counts["jacobian_evaluations"] += 1
         self.counts["lu_decompositions"] += 1
         chain, tail = self.chain, self.tail
-        main = slope[chain] - h * self._gather(values, self.diag_at)
-        lower = -h * self._gather(values, self.lower_at)
-        upper = -h * self._gather(values, self.upper_at)
-        _, _, _, change, info = dgtsv(lower, main, upper, residual[chain])
+        padded = np.append(values, 0.0)
+        main = slope[chain] - h * padded[self.diag_at]
+        lower = -h * padded[self.lower_at]
+        upper = -h * padded[self.upper_at]
+        _, _, _, change, info = dgtsv(lower, main, upper, residual[chain], True, True, True,
+                                      True)
         if info != 0:
             return None
         correction = np.empty_like(residual)
@@ -253,18 +268,28 @@ class _ChainSolver(_StepSolver):
         y = y_old.copy()
         t_new = t + h
         weight = self.atol + self.rtol * np.abs(m_old)
+        size = y.size
         for _ in range(MAX_NEWTON):
-            residual = _content(self.system, y) - m_old - h * self.system(t_new, y)
+            content, f, values, slope = self._evaluate(t_new, y, False)
+            residual = content - m_old - h * f
             self.counts["rhs_evaluations"] += 1
-            if not np.all(np.isfinite(residual)):
+            scaled = residual / weight
+            norm = math.sqrt(float(np.dot(scaled, scaled)) / size)
+            if not math.isfinite(norm):
                 return None
-            if np.sqrt(np.mean((residual / weight) ** 2)) <= NEWTON_TOLERANCE:
+            if norm <= NEWTON_TOLERANCE:
                 return y
-            correction = self._correction(t_new, y, h, residual)
+            correction = self._correction(t_new, y, h, residual, values, slope)
             if correction is None:
                 return None
             self.counts["newton_iterations"] += 1
+            before = None if self.pieces is None else self.pieces(y)
             y = y - correction
+            if before is not None and np.array_equal(before, self.pieces(y)) \
+                    and math.isfinite(float(np.sum(correction))):
+                # the system is affine between the two iterates: the new residual is zero
+                # to round-off, so y is the root
+                return y
         return None
 
 

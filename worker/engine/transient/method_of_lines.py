@@ -248,6 +248,22 @@ class _Rhs:
         self.floor = np.where(self.switched, 0.0, -np.inf)
         self.switched_rate = np.where(self.switched, self.terms.zero_order, 0.0)
         self.switched_kappa = np.where(self.switched, self.kappa, 0.0)
+        #: the system is affine on each piece of ``pieces`` (no Michaelis-Menten term, no
+        #: smoothed zero-order switch)
+        self.piecewise_linear = not self.terms.has_michaelis_menten and (
+            exact or not self.terms.has_zero_order)
+
+    def pieces(self, y: np.ndarray) -> np.ndarray:
+        """Per cell, the piece of the piecewise-linear terms the state is on (content above
+        its floor, content below the solubility): where two states agree the system is affine
+        between them."""
+        cells = y[: self.n]
+        if not self.any_switched:
+            return cells < self.solubility if self.has_solubility else np.zeros(0, dtype=bool)
+        above = cells > self.floor
+        if not self.has_solubility:
+            return above
+        return np.concatenate((above, np.maximum(cells, self.floor) < self.solubility))
 
     def content(self, y: np.ndarray) -> np.ndarray:
         """Conserved content of each state (cells: solute per volume; other states as they
@@ -316,6 +332,18 @@ class _Rhs:
     def __call__(self, t: float, y: np.ndarray) -> np.ndarray:
         c, dc = self.dissolved(y)
         rate, _ = self._rate(y, c, dc)
+        return self._rhs(y, c, rate)
+
+    def newton_terms(self, t: float, y: np.ndarray
+                     ) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
+        """``(content(y), f(t, y), jacobian_values(t, y), content_slope(y))`` from one
+        evaluation of the dissolved part and the consumption (what a Newton iteration needs)."""
+        c, dc = self.dissolved(y)
+        rate, slope = self._rate(y, c, dc)
+        return self.content(y), self._rhs(y, c, rate), self._values(c, dc, slope), \
+            self.content_slope(y)
+
+    def _rhs(self, y: np.ndarray, c: np.ndarray, rate: np.ndarray) -> np.ndarray:
         out = np.empty_like(y)
         out[: self.n] = self.source - self.operator.apply(c) * self.inverse_volumes - rate
         q0 = self.q0_slope * c[0] + self.operator.face_constant[0]
@@ -388,6 +416,11 @@ class _Rhs:
             self._build_pattern()
         c, dc = self.dissolved(y)
         _, slope = self._rate(y, c, dc)
+        return self._values(c, dc, slope)
+
+    def _values(self, c: np.ndarray, dc: np.ndarray, slope: np.ndarray) -> np.ndarray:
+        if not hasattr(self, "_pattern"):
+            self._build_pattern()
         data = self._base_data.copy()
         if self.has_solubility or self.any_switched:
             scaled = self._scaled
@@ -473,6 +506,25 @@ class _Stack:
             (np.concatenate([block.data for block in blocks]), np.concatenate(indices),
              np.concatenate(indptr)), shape=(size, size))
         return self._pattern
+
+    def newton_terms(self, t: float, y: np.ndarray
+                     ) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
+        """Each system's ``_Rhs.newton_terms``, joined in block order."""
+        parts = [system.newton_terms(t, y[self.offsets[k]: self.offsets[k + 1]])
+                 for k, system in enumerate(self.systems)]
+        if len(parts) == 1:
+            return parts[0]
+        return tuple(np.concatenate(terms) for terms in zip(*parts, strict=True))  # type: ignore[return-value]
+
+    @property
+    def piecewise_linear(self) -> bool:
+        """Whether every system is affine on each of its pieces."""
+        return all(system.piecewise_linear for system in self.systems)
+
+    def pieces(self, y: np.ndarray) -> np.ndarray:
+        """Each system's ``_Rhs.pieces``, joined in block order."""
+        return np.concatenate([system.pieces(y[self.offsets[k]: self.offsets[k + 1]])
+                               for k, system in enumerate(self.systems)])
 
     def chain_order(self) -> np.ndarray:
         """Each system's chain (``_Rhs.chain_order``) in block order."""

@@ -342,3 +342,25 @@ class _ChainOf:
 
     def chain_order(self):
         return self.order
+
+
+def test_a_michaelis_menten_layer_is_iterated_to_its_residual():
+    # Michaelis-Menten consumption is not affine on any piece: the chain solver does not stop
+    # on unchanged pieces there but on the residual, and its step is the sparse LU's.
+    from worker.engine.transient import implicit_steps
+
+    layer = Layer("matrix", 1e-3, 1e-11, reaction=Reaction("michaelis_menten", vmax=1e-4,
+                                                           km=0.5), initial=3.0, solubility=1.0)
+    problem = _problem([layer], times=(0.0, 1e5))
+    mesh = method_of_lines.build_mesh(problem, (10,))
+    system = method_of_lines._Rhs(problem, mesh, 3.0, exact=True)
+    assert not system.piecewise_linear
+    linear = method_of_lines._Rhs(_dispersed_slab((0.0, 1e5)), mesh, 10.0, exact=True)
+    assert linear.piecewise_linear
+    atol = np.full(system.size, 1e-9)
+    y = np.concatenate((np.linspace(0.2, 3.0, system.n), np.zeros(3)))
+    chain = implicit_steps._solver(system, atol, 1e-6)
+    assert chain.pieces is None
+    assert_allclose(chain.step(0.0, y, 1e4),
+                    implicit_steps._StepSolver(system, atol, 1e-6).step(0.0, y, 1e4),
+                    rtol=1e-10, atol=1e-12)
