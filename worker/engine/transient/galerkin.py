@@ -382,6 +382,8 @@ class _System:
         self.solid_scale = np.ones(size)
         self.zero_nodes = (self.nodal_zero > 0.0) & self.free
         self.limited = np.isfinite(self.saturation_potential)
+        self.any_zero = bool(np.any(self.zero_nodes))
+        self.any_limited = bool(np.any(self.limited))
         self.first_elements = self.inner_nodes - np.arange(self.count)
         self.last_elements = self.outer_nodes - 1 - np.arange(self.count)
         free = self.free

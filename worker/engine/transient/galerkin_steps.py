@@ -96,19 +96,30 @@ def _solve_substep(system, u0: np.ndarray, s0: np.ndarray, tau: float,
     limit = system.saturation_potential
     free = system.free
     zero_nodes = system.zero_nodes
+    # the switching terms a mesh has at all (the sets of the others stay empty)
+    any_zero = system.any_zero
+    any_limited = system.any_limited
     diag, off = slopes
     flow0, _, _ = system.balance(u0, tau, slopes=False)
     main = m + tau * diag
     coupling = tau * off
+    nothing = np.zeros(u0.size, dtype=bool)
     # active sets guessed from an explicit predictor (the sweeps then correct the guess)
-    dead = zero_nodes & (u0 - tau * (flow0 + q) / m <= 0.0) & free
-    idle = np.zeros(u0.size, dtype=bool)
-    saturated = system.limited & (s0 - tau * flow0 > 0.0)
+    dead = zero_nodes & (u0 - tau * (flow0 + q) / m <= 0.0) & free if any_zero else nothing
+    idle = nothing
+    saturated = system.limited & (s0 - tau * flow0 > 0.0) if any_limited else nothing
     target = np.where(free, u0, system.held_value)
+    needed = solid = None
     for _sweep in range(MAX_SWEEPS):
-        fixed = ~free | dead | saturated
-        target = np.where(dead, 0.0, np.where(saturated, limit, target))
-        rate = np.where(dead | idle, 0.0, q)
+        if any_zero:
+            fixed = ~free | dead | saturated
+            target = np.where(dead, 0.0, np.where(saturated, limit, target))
+            rate = np.where(dead | idle, 0.0, q)
+        else:
+            fixed = ~free | saturated
+            if any_limited:
+                target = np.where(saturated, limit, target)
+            rate = q
         # unknown: the change u - u0; a fixed node's row is the identity
         upper = np.where(fixed[:-1], 0.0, coupling)
         lower = np.where(fixed[1:], 0.0, coupling)
@@ -122,25 +133,32 @@ def _solve_substep(system, u0: np.ndarray, s0: np.ndarray, tau: float,
         flow = flow0 + diag * change
         flow[:-1] += off * change[1:]
         flow[1:] += off * change[:-1]
-        needed = (m * (u0 - u) + s0) / tau - flow
-        solid = s0 - m * change - tau * (flow + rate)
-        to_dead = zero_nodes & ~fixed & ~idle & (u < 0.0)
-        back = dead & (needed > q)
-        to_idle = dead & (needed < 0.0)
-        idle_back = idle & (u > 0.0)
-        to_saturated = system.limited & ~fixed & (u > limit)
-        dissolved = saturated & (solid < 0.0)
-        if not (to_dead.any() or back.any() or to_idle.any() or idle_back.any()
-                or to_saturated.any() or dissolved.any()):
+        moved = False
+        if any_zero:
+            needed = (m * (u0 - u) + s0) / tau - flow
+            to_dead = zero_nodes & ~fixed & ~idle & (u < 0.0)
+            back = dead & (needed > q)
+            to_idle = dead & (needed < 0.0)
+            idle_back = idle & (u > 0.0)
+            moved = bool(to_dead.any() or back.any() or to_idle.any() or idle_back.any())
+        if any_limited:
+            solid = s0 - m * change - tau * (flow + rate)
+            to_saturated = system.limited & ~fixed & (u > limit)
+            dissolved = saturated & (solid < 0.0)
+            moved = moved or bool(to_saturated.any() or dissolved.any())
+        if not moved:
             break
-        dead = (dead & ~back & ~to_idle) | to_dead | idle_back
-        idle = (idle & ~idle_back) | to_idle
-        saturated = (saturated & ~dissolved) | to_saturated
+        if any_zero:
+            dead = (dead & ~back & ~to_idle) | to_dead | idle_back
+            idle = (idle & ~idle_back) | to_idle
+        if any_limited:
+            saturated = (saturated & ~dissolved) | to_saturated
         target = u
     else:
         raise SubstepFailure("the active sets of the switching terms did not settle")
-    s = np.where(saturated, solid, 0.0)
-    rate = np.where(dead, needed, rate)
+    s = np.where(saturated, solid, 0.0) if solid is not None else np.zeros(u0.size)
+    if needed is not None:
+        rate = np.where(dead, needed, rate)
     inflow_inner, inflow_outer, consumption = system.substep_amounts(u, flow, rate, u0,
                                                                          tau)
     return u, s, inflow_inner, inflow_outer, consumption
