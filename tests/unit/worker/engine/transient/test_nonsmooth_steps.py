@@ -364,3 +364,34 @@ def test_a_michaelis_menten_layer_is_iterated_to_its_residual():
     assert_allclose(chain.step(0.0, y, 1e4),
                     implicit_steps._StepSolver(system, atol, 1e-6).step(0.0, y, 1e4),
                     rtol=1e-10, atol=1e-12)
+
+
+@pytest.mark.parametrize("reaction", [Reaction("zero_order", rate=1e-4),
+                                      Reaction("michaelis_menten", vmax=1e-4, km=0.5),
+                                      Reaction("first_order", rate=1e-5)])
+def test_meshes_evaluated_at_once_match_each_alone(reaction):
+    # The stacked evaluation of several meshes' Newton terms equals each mesh's own (the same
+    # arithmetic element by element): two layers, a dispersed load, the reaction, compartments
+    # at both faces.
+    layers = (Layer("core", 4e-4, 2e-11, initial=5.0, solubility=1.0),
+              Layer("coat", 2e-4, 5e-12, reaction=reaction, initial=0.2))
+    inner = Boundary("compartment", volume=1e-7, initial=0.3)
+    outer = Boundary("compartment", volume=2e-6, initial=0.0, clearance=1e-4)
+    problem = Problem("cylinder", 1e-3, layers, inner, outer,
+                      Regime("transient", 1e5, (0.0, 1e5)), length=0.01)
+    systems = [method_of_lines._Rhs(problem, method_of_lines.build_mesh(problem, cells), 5.0,
+                                    exact=True) for cells in ((6, 3), (12, 6), (24, 12))]
+    stack = method_of_lines._Stack(systems)
+    assert stack.stacked is not None
+    rng = np.random.default_rng(3)
+    y = np.concatenate([np.concatenate((rng.uniform(-0.05, 4.0, s.n), rng.uniform(size=3),
+                                        [0.3, 0.1])) for s in systems])
+    together = stack.stacked.newton_terms(y)
+    alone = [s.newton_terms(0.0, y[stack.offsets[k]: stack.offsets[k + 1]])
+             for k, s in enumerate(systems)]
+    for got, parts in zip(together, zip(*alone, strict=True), strict=True):
+        np.testing.assert_array_equal(got, np.concatenate(parts))
+    np.testing.assert_array_equal(
+        np.sort(stack.stacked.pieces(y).astype(int)),
+        np.sort(np.concatenate([s.pieces(y[stack.offsets[k]: stack.offsets[k + 1]])
+                                for k, s in enumerate(systems)]).astype(int)))
