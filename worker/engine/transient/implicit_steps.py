@@ -27,7 +27,8 @@ path on the same steps, and the reported amounts are their Richardson combinatio
 2 fine - coarse, which removes the O(h) term of the global error where the solution is smooth
 in time (a linear combination: the mass balance of both paths carries over). ``path`` runs
 implicit Euler on the accepted steps cut into 2^k parts: the pair with the steps halved and
-quartered gives the time error and the observed order in time.
+quartered gives the time error and the observed order in time; ``paths`` steps those paths
+together on copies of the system (each path's states as it has them alone).
 
 Where the system declares a chain of states among which its Jacobian is tridiagonal (the cells
 of the finite volumes, a compartment's level at either end) and the remaining states (the
@@ -65,7 +66,7 @@ GROWTH_MAX, GROWTH_MIN, SAFETY = 4.0, 0.2, 0.9
 #: Most accepted steps per integration before it is given up as failed.
 MAX_STEPS = 200_000
 
-__all__ = ["ImplicitResult", "integrate", "path"]
+__all__ = ["ImplicitResult", "integrate", "path", "paths"]
 
 
 @dataclass
@@ -238,9 +239,11 @@ class _ChainSolver(_StepSolver):
             return content, f, None, None
         return content, f, self.system.jacobian_values(t, y), _content_slope(self.system, y)
 
-    def _correction(self, t: float, y: np.ndarray, h: float, residual: np.ndarray,
-                    values: np.ndarray | None = None, slope: np.ndarray | None = None
-                    ) -> np.ndarray | None:
+    def _correction(self, t: float, y: np.ndarray, h: float | np.ndarray,
+                    residual: np.ndarray, values: np.ndarray | None = None,
+                    slope: np.ndarray | None = None) -> np.ndarray | None:
+        """The Newton correction; ``h`` one step for every state or one per state (then each
+        row of the Newton matrix takes its own state's)."""
         if values is None or slope is None:
             _, _, values, slope = self._evaluate(t, y, True)
             assert values is not None and slope is not None
@@ -248,9 +251,17 @@ class _ChainSolver(_StepSolver):
         self.counts["lu_decompositions"] += 1
         chain, tail = self.chain, self.tail
         padded = np.append(values, 0.0)
-        main = slope[chain] - h * padded[self.diag_at]
-        lower = -h * padded[self.lower_at]
-        upper = -h * padded[self.upper_at]
+        h_tail: float | np.ndarray
+        if isinstance(h, np.ndarray):
+            h_chain, h_tail = h[chain], h[tail]
+            main = slope[chain] - h_chain * padded[self.diag_at]
+            lower = -h_chain[1:] * padded[self.lower_at]  # row k + 1
+            upper = -h_chain[:-1] * padded[self.upper_at]  # row k
+        else:
+            h_tail = h
+            main = slope[chain] - h * padded[self.diag_at]
+            lower = -h * padded[self.lower_at]
+            upper = -h * padded[self.upper_at]
         _, _, _, change, info = dgtsv(lower, main, upper, residual[chain], True, True, True,
                                       True)
         if info != 0:
@@ -259,8 +270,53 @@ class _ChainSolver(_StepSolver):
         correction[chain] = change
         coupled = np.bincount(self.tail_row, weights=values[self.tail_at]
                               * change[self.tail_col], minlength=tail.size)
-        correction[tail] = (residual[tail] + h * coupled) / slope[tail]
+        correction[tail] = (residual[tail] + h_tail * coupled) / slope[tail]
         return correction
+
+    def step_blocks(self, y_old: np.ndarray, h: np.ndarray, starts: np.ndarray,
+                    pieces: Any) -> np.ndarray | None:
+        """Implicit Euler steps of independent blocks of states (copies of one system, block
+        b the states ``starts[b]:starts[b + 1]``) at once, ``h`` the step of each state's block:
+        each block is iterated as :meth:`step` iterates it alone (its own residual norm, its
+        own piece test with ``pieces`` of one block) and left as it is once it has converged.
+        None when any block fails."""
+        m_old = _content(self.system, y_old)
+        y = y_old.copy()
+        weight = self.atol + self.rtol * np.abs(m_old)
+        blocks = [slice(int(starts[b]), int(starts[b + 1])) for b in range(len(starts) - 1)]
+        live = list(blocks)
+        for _ in range(MAX_NEWTON):
+            content, f, values, slope = self._evaluate(0.0, y, False)
+            residual = content - m_old - h * f
+            self.counts["rhs_evaluations"] += 1
+            scaled = residual / weight
+            running = []
+            for block in live:
+                part = scaled[block].copy()
+                norm = math.sqrt(float(np.dot(part, part)) / part.size)
+                if not math.isfinite(norm):
+                    return None
+                if norm > NEWTON_TOLERANCE:
+                    running.append(block)
+            live = running
+            if not live:
+                return y
+            correction = self._correction(0.0, y, h, residual, values, slope)
+            if correction is None:
+                return None
+            self.counts["newton_iterations"] += 1
+            moving = np.zeros_like(correction)
+            for block in live:
+                moving[block] = correction[block]
+            before = [pieces(y[block]) for block in live] if self.pieces is not None else []
+            y = y - moving
+            if self.pieces is not None:
+                live = [block for block, was in zip(live, before, strict=True)
+                        if not (np.array_equal(was, pieces(y[block]))
+                                and math.isfinite(float(np.sum(moving[block]))))]
+                if not live:
+                    return y
+        return None
 
     def step(self, t: float, y_old: np.ndarray, h: float) -> np.ndarray | None:
         """The implicit Euler step from (t, y_old) to t + h, or None when Newton fails."""
@@ -419,3 +475,45 @@ def path(system: Any, y0: np.ndarray, ts: np.ndarray, parts: int, atol: np.ndarr
             y = found
         states[:, k] = y
     return states, True
+
+
+def paths(system: Any, copies: Any, y0: np.ndarray, ts: np.ndarray, parts: tuple[int, ...],
+          atol: np.ndarray, rtol: float) -> dict[int, tuple[np.ndarray, bool]]:
+    """:func:`path` for every count of ``parts`` (powers of two), the paths stepped together:
+    ``copies(k)`` is the system of k copies of ``system`` laid end to end (a block each); in
+    each of the finest path's steps every path whose step ends at a multiple of its own length
+    takes it, the paths still stepping being the leading copies (most parts first). Each path's
+    states are those :func:`path` gives it alone. Without a tridiagonal chain, :func:`path`
+    for each."""
+    order = sorted(parts, reverse=True)
+    single = _solver(system, atol, rtol)
+    finest = order[0]
+    if not isinstance(single, _ChainSolver) or any(finest % p for p in order):
+        return {p: path(system, y0, ts, p, atol, rtol) for p in order}
+    y0 = np.asarray(y0, dtype=float)
+    size = y0.size
+    solvers = {k: single if k == 1 else _solver(copies(k), np.tile(atol, k), rtol)
+               for k in range(1, len(order) + 1)}
+    if not all(isinstance(solver, _ChainSolver) for solver in solvers.values()):
+        return {p: path(system, y0, ts, p, atol, rtol) for p in order}
+    pieces = getattr(system, "pieces", None)
+    y = np.tile(y0, len(order))
+    states = np.full((len(order), size, ts.size), np.nan)
+    states[:, :, 0] = y0
+    for k in range(1, ts.size):
+        lengths = [(ts[k] - ts[k - 1]) / p for p in order]
+        for i in range(finest):
+            count = sum(1 for p in order if i % (finest // p) == 0)
+            h = np.repeat(lengths[:count], size)
+            starts = np.arange(count + 1) * size
+            solver = solvers[count]
+            if count == 1:
+                found = solver.step(ts[k - 1] + i * lengths[0], y[:size], lengths[0])
+            else:
+                assert isinstance(solver, _ChainSolver)
+                found = solver.step_blocks(y[:count * size], h, starts, pieces)
+            if found is None:
+                return {p: (states[j], False) for j, p in enumerate(order)}
+            y[:count * size] = found
+        states[:, :, k] = y.reshape(len(order), size)
+    return {p: (states[j], True) for j, p in enumerate(order)}

@@ -1080,8 +1080,8 @@ def time_refinement(problem: Problem, solution: TransientFVSolution, parts: int
 def _replayed(problem: Problem, system: _Rhs, solution: TransientFVSolution, parts: int
               ) -> np.ndarray | None:
     """The implicit Euler path of ``solution`` on its accepted steps cut into ``parts`` (None
-    when a step did not converge), kept on the solution per case and ``parts``: the steps
-    halved and quartered share the path with the steps cut in four."""
+    when a step did not converge), kept on the solution per case: the paths with the steps cut
+    into 2, 4 and 8 (the steps halved and quartered) are integrated together on first use."""
     cache = getattr(solution, "_replayed", None)
     if cache is None:
         cache = {}
@@ -1089,8 +1089,14 @@ def _replayed(problem: Problem, system: _Rhs, solution: TransientFVSolution, par
     key = (id(problem), parts)  # the case is held with its path, so its id stays its own
     if key not in cache:
         diagnostics = solution.diagnostics
-        states, ok = implicit_steps.path(system, diagnostics["initial_state"],
-                                         diagnostics["step_sequence"], parts,
-                                         diagnostics["atol"], implicit_rtol(solution.rtol))
-        cache[key] = (problem, states if ok else None)
+        wanted = tuple(sorted({2, 4, 8, parts}, reverse=True))
+
+        def copies(k: int) -> _Stack:
+            return _Stack([system] * k)
+
+        found = implicit_steps.paths(system, copies, diagnostics["initial_state"],
+                                     diagnostics["step_sequence"], wanted, diagnostics["atol"],
+                                     implicit_rtol(solution.rtol))
+        for count, (states, ok) in found.items():
+            cache[(id(problem), count)] = (problem, states if ok else None)
     return cache[key][1]

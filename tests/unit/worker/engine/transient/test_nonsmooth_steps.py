@@ -395,3 +395,29 @@ def test_meshes_evaluated_at_once_match_each_alone(reaction):
         np.sort(stack.stacked.pieces(y).astype(int)),
         np.sort(np.concatenate([s.pieces(y[stack.offsets[k]: stack.offsets[k + 1]])
                                 for k, s in enumerate(systems)]).astype(int)))
+
+
+@pytest.mark.parametrize("case", ["zero_order", "dispersed"])
+def test_paths_stepped_together_are_each_path_alone(case):
+    # The time check's paths (steps cut into 2, 4 and 8) integrated together on copies of the
+    # coarse mesh give each path's states as integrated alone, to the last bit.
+    from worker.engine.transient import implicit_steps
+
+    if case == "zero_order":
+        problem = _problem([Layer("gel", 1e-3, 1e-10, reaction=Reaction("zero_order",
+                                                                         rate=2e-4),
+                                  initial=1.0)], times=(0.0, 2e3, 6e3))
+    else:
+        problem = _dispersed_slab((0.0, 2 * DAY, 5 * DAY))
+    coarse = solve_transient_fv(problem, None, 12)
+    diagnostics = coarse.diagnostics
+    system = method_of_lines._Rhs(problem, coarse.mesh,
+                                  method_of_lines.concentration_scale(problem), exact=True)
+    rtol = method_of_lines.implicit_rtol(coarse.rtol)
+    arguments = (diagnostics["initial_state"], diagnostics["step_sequence"])
+    together = implicit_steps.paths(system, lambda k: method_of_lines._Stack([system] * k),
+                                    *arguments, (8, 4, 2), diagnostics["atol"], rtol)
+    for parts in (8, 4, 2):
+        alone, ok = implicit_steps.path(system, *arguments, parts, diagnostics["atol"], rtol)
+        assert ok and together[parts][1]
+        np.testing.assert_array_equal(together[parts][0], alone)
