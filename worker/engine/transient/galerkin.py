@@ -386,6 +386,9 @@ class _System:
         self.zero_nodes = (self.nodal_zero > 0.0) & self.free
         self.limited = np.isfinite(self.saturation_potential)
         self.any_zero = bool(np.any(self.zero_nodes))
+        #: the held nodes, and no node (read-only masks of the substeps)
+        self.held = ~self.free
+        self.nothing = np.zeros(size, dtype=bool)
         self.any_limited = bool(np.any(self.limited))
         self.first_elements = self.inner_nodes - np.arange(self.count)
         self.last_elements = self.outer_nodes - 1 - np.arange(self.count)

@@ -106,7 +106,8 @@ def _solve_substep(system, u0: np.ndarray, s0: np.ndarray, tau: float | np.ndarr
     flow0, _, _ = system.balance(u0, tau, slopes=False)
     main = m + tau * diag
     coupling = (tau[:-1] if isinstance(tau, np.ndarray) else tau) * off
-    nothing = np.zeros(u0.size, dtype=bool)
+    nothing = system.nothing
+    held = system.held
     # active sets guessed from an explicit predictor (the sweeps then correct the guess)
     dead = zero_nodes & (u0 - tau * (flow0 + q) / m <= 0.0) & free if any_zero else nothing
     idle = nothing
@@ -115,11 +116,11 @@ def _solve_substep(system, u0: np.ndarray, s0: np.ndarray, tau: float | np.ndarr
     needed = solid = None
     for _sweep in range(MAX_SWEEPS):
         if any_zero:
-            fixed = ~free | dead | saturated
+            fixed = held | dead | saturated
             target = np.where(dead, 0.0, np.where(saturated, limit, target))
             rate = np.where(dead | idle, 0.0, q)
         else:
-            fixed = ~free | saturated
+            fixed = held | saturated
             if any_limited:
                 target = np.where(saturated, limit, target)
             rate = q
@@ -193,11 +194,12 @@ def _euler_together(system, y0: np.ndarray, h: float, slopes, tally: StepHistory
     size, count = system.size, system.count
     order = sorted(SEQUENCE, reverse=True)
     copies = len(order)
-    u = np.tile(y0[:size], copies)
-    s = np.tile(y0[size:2 * size], copies)
-    amounts = np.tile(y0[2 * size:].reshape(count, 3), (copies, 1))
+    u = np.concatenate([y0[:size]] * copies)
+    s = np.concatenate([y0[size:2 * size]] * copies)
+    amounts = np.concatenate([y0[2 * size:].reshape(count, 3)] * copies)
     diag, off = slopes
-    diag_all, off_all = np.tile(diag, copies), np.tile(np.append(off, 0.0), copies)
+    diag_all = np.concatenate([diag] * copies)
+    off_all = np.concatenate([off, [0.0]] * copies)
     ends: dict[int, np.ndarray] = {}
     for r in range(1, order[0] + 1):
         copies = sum(1 for n in order if n >= r)
