@@ -88,12 +88,14 @@ class SubstepFailure(RuntimeError):
 
 
 def _solve_substep(system, u0: np.ndarray, s0: np.ndarray, tau: float | np.ndarray,
-                   slopes: tuple[np.ndarray, np.ndarray], tally: StepHistory):
+                   slopes: tuple[np.ndarray, np.ndarray], tally: StepHistory,
+                   flow0: np.ndarray | None = None):
     """One linearly implicit Euler substep of size tau from (u0, s0): the smooth balance
     linearised about u0 with the step's Jacobian ``slopes`` (diagonal, coupling of node k with
     k + 1), the switching terms exact. Returns (u, s, inflow_inner, inflow_outer,
     consumption), the last three per mesh as rates (r^n-weighted). ``tau`` may be one size per
-    node (meshes that are copies stepped with different sizes)."""
+    node (meshes that are copies stepped with different sizes); ``flow0`` the balance at u0
+    where it is known."""
     m = system.lumped
     q = system.nodal_zero
     limit = system.saturation_potential
@@ -103,7 +105,8 @@ def _solve_substep(system, u0: np.ndarray, s0: np.ndarray, tau: float | np.ndarr
     any_zero = system.any_zero
     any_limited = system.any_limited
     diag, off = slopes
-    flow0, _, _ = system.balance(u0, tau, slopes=False)
+    if flow0 is None:
+        flow0, _, _ = system.balance(u0, tau, slopes=False)
     main = m + tau * diag
     coupling = (tau[:-1] if isinstance(tau, np.ndarray) else tau) * off
     nothing = system.nothing
@@ -182,15 +185,16 @@ def _euler(system, y0: np.ndarray, h: float, n: int, slopes, tally: StepHistory)
     return np.concatenate((u, s, amounts.ravel()))
 
 
-def _euler_together(system, y0: np.ndarray, h: float, slopes, tally: StepHistory
-                    ) -> dict[int, np.ndarray]:
+def _euler_together(system, y0: np.ndarray, h: float, slopes, tally: StepHistory,
+                    flow: np.ndarray | None = None) -> dict[int, np.ndarray]:
     """The end states of implicit Euler over h with each of ``SEQUENCE`` substeps, the
     sequences stepped together: in round r every sequence with at least r substeps takes its
     r-th, all of them one substep of ``system.replica`` (copies of the meshes side by side,
     most substeps first, so the sequences still running are always the leading copies). Each
     copy's substep is the one :func:`_euler` takes (the copies do not couple; the active-set
     sweeps run until every copy's sets settle, a further sweep of a settled copy repeating its
-    solution)."""
+    solution). ``flow``: the balance at y0 where it is known (the first substeps start
+    there)."""
     size, count = system.size, system.count
     order = sorted(SEQUENCE, reverse=True)
     copies = len(order)
@@ -206,8 +210,10 @@ def _euler_together(system, y0: np.ndarray, h: float, slopes, tally: StepHistory
         steps = h / np.array(order[:copies], dtype=float)
         tau = np.repeat(steps, size)
         tiled = (diag_all[:copies * size], off_all[:copies * size - 1])
+        start = np.concatenate([flow] * copies) if r == 1 and flow is not None else None
         u, s, inner, outer, consumed = _solve_substep(
-            system.replica(copies), u[:copies * size], s[:copies * size], tau, tiled, tally)
+            system.replica(copies), u[:copies * size], s[:copies * size], tau, tiled, tally,
+            start)
         amounts = amounts[:copies * count]
         per_mesh = np.repeat(steps, count)
         amounts[:, 0] -= per_mesh * inner
@@ -224,9 +230,9 @@ def _euler_together(system, y0: np.ndarray, h: float, slopes, tally: StepHistory
 
 def _extrapolate(system, y0: np.ndarray, h: float, tally: StepHistory):
     """T33 and the error estimate T33 - T32 of one step of size h."""
-    _, diag, off = system.balance(y0[:system.size], 1.0, slopes=True)
+    flow, diag, off = system.balance(y0[:system.size], 1.0, slopes=True)
     slopes = (diag, off)
-    ends = _euler_together(system, y0, h, slopes, tally) if hasattr(system, "replica") \
+    ends = _euler_together(system, y0, h, slopes, tally, flow) if hasattr(system, "replica") \
         else {n: _euler(system, y0, h, n, slopes, tally) for n in SEQUENCE}
     table: list[list[np.ndarray]] = []
     for j, n in enumerate(SEQUENCE):
