@@ -290,7 +290,10 @@ class _System:
 
     def __init__(self, problem: Problem, meshes: list[GalerkinMesh], c_scale: float):
         exponent = problem.exponent
+        self.problem = problem
+        self.c_scale = c_scale
         self.meshes = meshes
+        self._replicas: dict[int, _System] = {}
         self.count = len(meshes)
         sizes = [mesh.n_nodes for mesh in meshes]
         self.node_offsets = np.concatenate(([0], np.cumsum(sizes))).astype(np.intp)
@@ -382,10 +385,24 @@ class _System:
         self.solid_scale = np.ones(size)
         self.zero_nodes = (self.nodal_zero > 0.0) & self.free
         self.limited = np.isfinite(self.saturation_potential)
+        self.any_zero = bool(np.any(self.zero_nodes))
+        #: the held nodes, and no node (read-only masks of the substeps)
+        self.held = ~self.free
+        self.nothing = np.zeros(size, dtype=bool)
+        self.any_limited = bool(np.any(self.limited))
         self.first_elements = self.inner_nodes - np.arange(self.count)
         self.last_elements = self.outer_nodes - 1 - np.arange(self.count)
         free = self.free
         self.inverse_mass = np.where(free, 1.0 / self.lumped, 0.0)
+
+    def replica(self, copies: int) -> _System:
+        """The system of ``copies`` copies of these meshes one after the other (the substeps
+        of several implicit Euler sequences solved together; cached)."""
+        if copies == 1:
+            return self
+        if copies not in self._replicas:
+            self._replicas[copies] = _System(self.problem, self.meshes * copies, self.c_scale)
+        return self._replicas[copies]
 
     def _compartments(self) -> list[tuple[_Face, np.ndarray]]:
         """The compartment faces with their node in every mesh."""
@@ -534,7 +551,7 @@ class _System:
         return flow, None, None
 
     def substep_amounts(self, u: np.ndarray, flow: np.ndarray, rate: np.ndarray,
-                        u0: np.ndarray, tau: float):
+                        u0: np.ndarray, tau: float | np.ndarray):
         """Per mesh: inflow through the inner and outer face and the consumption rate of a
         substep of size tau from u0 to u (``flow`` the balance of :meth:`balance` at u,
         ``rate`` the nodal zero-order rates). The stiffness rows sum to zero, so the
@@ -549,7 +566,8 @@ class _System:
                 continue
             if face.kind == "compartment":
                 cleared = face.capacity * face.clearance * u[held]
-                inflows.append(-face.capacity * (u[held] - u0[held]) / tau - cleared)
+                step = tau[held] if isinstance(tau, np.ndarray) else tau
+                inflows.append(-face.capacity * (u[held] - u0[held]) / step - cleared)
                 consumption = consumption - cleared
                 continue
             if face.kind == "robin":

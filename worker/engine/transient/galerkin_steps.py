@@ -10,7 +10,9 @@ extrapolated linearly implicit / implicit Euler methods; P. Deuflhard, Numer. Ma
 follows the standard controller ``H_new = H min(4, max(0.2, 0.9 err^(-1/3)))`` with a weighted
 root-mean-square norm. The stability function of T33 of implicit Euler tends to 0 along the
 negative real axis, where the spectrum of the lumped P1 system lies (a symmetric stiffness
-against a positive diagonal mass), so stiff modes are damped.
+against a positive diagonal mass), so stiff modes are damped. The sequences of one step are
+stepped together (``_euler_together``): their r-th substeps are one system of copies of the
+meshes side by side, each copy with its own substep size.
 
 Every substep is one implicit Euler system on the r^n-weighted nodal balance
 
@@ -85,30 +87,46 @@ class SubstepFailure(RuntimeError):
     """An implicit Euler substep whose active set or Newton iteration did not settle."""
 
 
-def _solve_substep(system, u0: np.ndarray, s0: np.ndarray, tau: float,
-                   slopes: tuple[np.ndarray, np.ndarray], tally: StepHistory):
+def _solve_substep(system, u0: np.ndarray, s0: np.ndarray, tau: float | np.ndarray,
+                   slopes: tuple[np.ndarray, np.ndarray], tally: StepHistory,
+                   flow0: np.ndarray | None = None):
     """One linearly implicit Euler substep of size tau from (u0, s0): the smooth balance
     linearised about u0 with the step's Jacobian ``slopes`` (diagonal, coupling of node k with
     k + 1), the switching terms exact. Returns (u, s, inflow_inner, inflow_outer,
-    consumption), the last three per mesh as rates (r^n-weighted)."""
+    consumption), the last three per mesh as rates (r^n-weighted). ``tau`` may be one size per
+    node (meshes that are copies stepped with different sizes); ``flow0`` the balance at u0
+    where it is known."""
     m = system.lumped
     q = system.nodal_zero
     limit = system.saturation_potential
     free = system.free
     zero_nodes = system.zero_nodes
+    # the switching terms a mesh has at all (the sets of the others stay empty)
+    any_zero = system.any_zero
+    any_limited = system.any_limited
     diag, off = slopes
-    flow0, _, _ = system.balance(u0, tau, slopes=False)
+    if flow0 is None:
+        flow0, _, _ = system.balance(u0, tau, slopes=False)
     main = m + tau * diag
-    coupling = tau * off
+    coupling = (tau[:-1] if isinstance(tau, np.ndarray) else tau) * off
+    nothing = system.nothing
+    held = system.held
     # active sets guessed from an explicit predictor (the sweeps then correct the guess)
-    dead = zero_nodes & (u0 - tau * (flow0 + q) / m <= 0.0) & free
-    idle = np.zeros(u0.size, dtype=bool)
-    saturated = system.limited & (s0 - tau * flow0 > 0.0)
+    dead = zero_nodes & (u0 - tau * (flow0 + q) / m <= 0.0) & free if any_zero else nothing
+    idle = nothing
+    saturated = system.limited & (s0 - tau * flow0 > 0.0) if any_limited else nothing
     target = np.where(free, u0, system.held_value)
+    needed = solid = None
     for _sweep in range(MAX_SWEEPS):
-        fixed = ~free | dead | saturated
-        target = np.where(dead, 0.0, np.where(saturated, limit, target))
-        rate = np.where(dead | idle, 0.0, q)
+        if any_zero:
+            fixed = held | dead | saturated
+            target = np.where(dead, 0.0, np.where(saturated, limit, target))
+            rate = np.where(dead | idle, 0.0, q)
+        else:
+            fixed = held | saturated
+            if any_limited:
+                target = np.where(saturated, limit, target)
+            rate = q
         # unknown: the change u - u0; a fixed node's row is the identity
         upper = np.where(fixed[:-1], 0.0, coupling)
         lower = np.where(fixed[1:], 0.0, coupling)
@@ -122,25 +140,32 @@ def _solve_substep(system, u0: np.ndarray, s0: np.ndarray, tau: float,
         flow = flow0 + diag * change
         flow[:-1] += off * change[1:]
         flow[1:] += off * change[:-1]
-        needed = (m * (u0 - u) + s0) / tau - flow
-        solid = s0 - m * change - tau * (flow + rate)
-        to_dead = zero_nodes & ~fixed & ~idle & (u < 0.0)
-        back = dead & (needed > q)
-        to_idle = dead & (needed < 0.0)
-        idle_back = idle & (u > 0.0)
-        to_saturated = system.limited & ~fixed & (u > limit)
-        dissolved = saturated & (solid < 0.0)
-        if not (to_dead.any() or back.any() or to_idle.any() or idle_back.any()
-                or to_saturated.any() or dissolved.any()):
+        moved = False
+        if any_zero:
+            needed = (m * (u0 - u) + s0) / tau - flow
+            to_dead = zero_nodes & ~fixed & ~idle & (u < 0.0)
+            back = dead & (needed > q)
+            to_idle = dead & (needed < 0.0)
+            idle_back = idle & (u > 0.0)
+            moved = bool(to_dead.any() or back.any() or to_idle.any() or idle_back.any())
+        if any_limited:
+            solid = s0 - m * change - tau * (flow + rate)
+            to_saturated = system.limited & ~fixed & (u > limit)
+            dissolved = saturated & (solid < 0.0)
+            moved = moved or bool(to_saturated.any() or dissolved.any())
+        if not moved:
             break
-        dead = (dead & ~back & ~to_idle) | to_dead | idle_back
-        idle = (idle & ~idle_back) | to_idle
-        saturated = (saturated & ~dissolved) | to_saturated
+        if any_zero:
+            dead = (dead & ~back & ~to_idle) | to_dead | idle_back
+            idle = (idle & ~idle_back) | to_idle
+        if any_limited:
+            saturated = (saturated & ~dissolved) | to_saturated
         target = u
     else:
         raise SubstepFailure("the active sets of the switching terms did not settle")
-    s = np.where(saturated, solid, 0.0)
-    rate = np.where(dead, needed, rate)
+    s = np.where(saturated, solid, 0.0) if solid is not None else np.zeros(u0.size)
+    if needed is not None:
+        rate = np.where(dead, needed, rate)
     inflow_inner, inflow_outer, consumption = system.substep_amounts(u, flow, rate, u0,
                                                                          tau)
     return u, s, inflow_inner, inflow_outer, consumption
@@ -160,13 +185,58 @@ def _euler(system, y0: np.ndarray, h: float, n: int, slopes, tally: StepHistory)
     return np.concatenate((u, s, amounts.ravel()))
 
 
+def _euler_together(system, y0: np.ndarray, h: float, slopes, tally: StepHistory,
+                    flow: np.ndarray | None = None) -> dict[int, np.ndarray]:
+    """The end states of implicit Euler over h with each of ``SEQUENCE`` substeps, the
+    sequences stepped together: in round r every sequence with at least r substeps takes its
+    r-th, all of them one substep of ``system.replica`` (copies of the meshes side by side,
+    most substeps first, so the sequences still running are always the leading copies). Each
+    copy's substep is the one :func:`_euler` takes (the copies do not couple; the active-set
+    sweeps run until every copy's sets settle, a further sweep of a settled copy repeating its
+    solution). ``flow``: the balance at y0 where it is known (the first substeps start
+    there)."""
+    size, count = system.size, system.count
+    order = sorted(SEQUENCE, reverse=True)
+    copies = len(order)
+    u = np.concatenate([y0[:size]] * copies)
+    s = np.concatenate([y0[size:2 * size]] * copies)
+    amounts = np.concatenate([y0[2 * size:].reshape(count, 3)] * copies)
+    diag, off = slopes
+    diag_all = np.concatenate([diag] * copies)
+    off_all = np.concatenate([off, [0.0]] * copies)
+    ends: dict[int, np.ndarray] = {}
+    for r in range(1, order[0] + 1):
+        copies = sum(1 for n in order if n >= r)
+        steps = h / np.array(order[:copies], dtype=float)
+        tau = np.repeat(steps, size)
+        tiled = (diag_all[:copies * size], off_all[:copies * size - 1])
+        start = np.concatenate([flow] * copies) if r == 1 and flow is not None else None
+        u, s, inner, outer, consumed = _solve_substep(
+            system.replica(copies), u[:copies * size], s[:copies * size], tau, tiled, tally,
+            start)
+        amounts = amounts[:copies * count]
+        per_mesh = np.repeat(steps, count)
+        amounts[:, 0] -= per_mesh * inner
+        amounts[:, 1] -= per_mesh * outer
+        amounts[:, 2] += per_mesh * consumed
+        tally.substeps += copies
+        for i in range(copies):
+            if order[i] == r:
+                ends[r] = np.concatenate((u[i * size:(i + 1) * size],
+                                          s[i * size:(i + 1) * size],
+                                          amounts[i * count:(i + 1) * count].ravel()))
+    return ends
+
+
 def _extrapolate(system, y0: np.ndarray, h: float, tally: StepHistory):
     """T33 and the error estimate T33 - T32 of one step of size h."""
-    _, diag, off = system.balance(y0[:system.size], 1.0, slopes=True)
+    flow, diag, off = system.balance(y0[:system.size], 1.0, slopes=True)
     slopes = (diag, off)
+    ends = _euler_together(system, y0, h, slopes, tally, flow) if hasattr(system, "replica") \
+        else {n: _euler(system, y0, h, n, slopes, tally) for n in SEQUENCE}
     table: list[list[np.ndarray]] = []
     for j, n in enumerate(SEQUENCE):
-        row = [_euler(system, y0, h, n, slopes, tally)]
+        row = [ends[n]]
         for k in range(1, j + 1):
             ratio = SEQUENCE[j] / SEQUENCE[j - k]
             row.append(row[k - 1] + (row[k - 1] - table[j - 1][k - 1]) / (ratio - 1.0))

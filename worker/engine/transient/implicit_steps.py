@@ -25,9 +25,15 @@ land on every requested time. The integration continues from the half-step solut
 (``fine``); beside it the solution with the whole steps (``coarse``) is carried along its own
 path on the same steps, and the reported amounts are their Richardson combination
 2 fine - coarse, which removes the O(h) term of the global error where the solution is smooth
-in time (a linear combination: the mass balance of both paths carries over). ``replay`` runs
-the same pair on the accepted steps cut into 2^k parts: the change gives the time error and
-the observed order in time.
+in time (a linear combination: the mass balance of both paths carries over). ``path`` runs
+implicit Euler on the accepted steps cut into 2^k parts: the pair with the steps halved and
+quartered gives the time error and the observed order in time; ``paths`` steps those paths
+together on copies of the system (each path's states as it has them alone).
+
+Where the system declares a chain of states among which its Jacobian is tridiagonal (the cells
+of the finite volumes, a compartment's level at either end) and the remaining states (the
+cumulative amounts) are depended on by none, each Newton correction is one tridiagonal solve
+(LAPACK ``dgtsv``) and a substitution (``_ChainSolver``); otherwise a sparse LU.
 
 References
 ----------
@@ -41,11 +47,13 @@ Newton method", SIAM J. Optim. 13 (2002) 865-888.
 
 from __future__ import annotations
 
+import math
 from dataclasses import dataclass, field
 from typing import Any
 
 import numpy as np
 from scipy import sparse
+from scipy.linalg.lapack import dgtsv
 from scipy.sparse.linalg import splu
 
 #: Newton iterations allowed per implicit step before the step is halved.
@@ -58,7 +66,7 @@ GROWTH_MAX, GROWTH_MIN, SAFETY = 4.0, 0.2, 0.9
 #: Most accepted steps per integration before it is given up as failed.
 MAX_STEPS = 200_000
 
-__all__ = ["ImplicitResult", "integrate", "replay"]
+__all__ = ["ImplicitResult", "integrate", "path", "paths"]
 
 
 @dataclass
@@ -169,6 +177,189 @@ class _StepSolver:
         return None
 
 
+class _ChainSolver(_StepSolver):
+    """Implicit Euler steps of a system whose Jacobian is tridiagonal among the states of
+    ``system.chain_order()`` and whose remaining states (the cumulative amounts) no state
+    depends on: each Newton correction solves the tridiagonal block (LAPACK ``dgtsv``) and
+    then the remaining rows by substitution. The same Newton iterates as the sparse LU of the
+    whole matrix, without building or factorising it."""
+
+    def __init__(self, system: Any, atol: np.ndarray, rtol: float):
+        self.system = system
+        self.atol = atol
+        self.rtol = rtol
+        self.counts = {"rhs_evaluations": 0, "jacobian_evaluations": 0, "lu_decompositions": 0,
+                       "newton_iterations": 0}
+        pattern = sparse.csc_matrix(system.jacobian_pattern())
+        size = pattern.shape[0]
+        chain = np.asarray(system.chain_order(), dtype=np.int64)
+        place = np.full(size, -1, dtype=np.int64)
+        place[chain] = np.arange(chain.size)
+        rows = pattern.indices.astype(np.int64)
+        cols = np.repeat(np.arange(size), np.diff(pattern.indptr))
+        if np.any(place[cols] < 0):
+            raise ValueError("a state outside the chain is depended on")
+        in_chain = place[rows] >= 0
+        offset = place[rows[in_chain]] - place[cols[in_chain]]
+        if np.any(np.abs(offset) > 1):
+            raise ValueError("the chain's Jacobian is not tridiagonal")
+        at = np.flatnonzero(in_chain)
+        self.chain = chain
+        self.tail = np.flatnonzero(place < 0)
+        count = chain.size
+        # data positions of each tridiagonal entry (nnz: structurally zero, the zero appended
+        # to the values)
+        nnz = pattern.nnz
+        self.diag_at = np.full(count, nnz, dtype=np.int64)
+        self.lower_at = np.full(max(count - 1, 0), nnz, dtype=np.int64)
+        self.upper_at = np.full(max(count - 1, 0), nnz, dtype=np.int64)
+        positions = place[cols[at]]
+        self.diag_at[positions[offset == 0]] = at[offset == 0]
+        self.lower_at[positions[offset == 1]] = at[offset == 1]  # row k + 1, column k
+        self.upper_at[positions[offset == -1] - 1] = at[offset == -1]  # row k, column k + 1
+        # the remaining rows' entries: data position, row (in the tail) and chain column
+        tail_place = np.full(size, -1, dtype=np.int64)
+        tail_place[self.tail] = np.arange(self.tail.size)
+        off_chain = np.flatnonzero(~in_chain)
+        self.tail_at = off_chain
+        self.tail_row = tail_place[rows[off_chain]]
+        self.tail_col = place[cols[off_chain]]
+        self.terms = getattr(system, "newton_terms", None)
+        self.pieces: Any = getattr(system, "pieces", None) \
+            if getattr(system, "piecewise_linear", False) else None
+
+    def _evaluate(self, t: float, y: np.ndarray, jacobian: bool
+                  ) -> tuple[np.ndarray, np.ndarray, np.ndarray | None, np.ndarray | None]:
+        """Content, right-hand side and, with ``jacobian`` (or where the system gives them
+        together), the Jacobian's values and the content's slope at y."""
+        if self.terms is not None:
+            return self.terms(t, y)
+        content, f = _content(self.system, y), self.system(t, y)
+        if not jacobian:
+            return content, f, None, None
+        return content, f, self.system.jacobian_values(t, y), _content_slope(self.system, y)
+
+    def _correction(self, t: float, y: np.ndarray, h: float | np.ndarray,
+                    residual: np.ndarray, values: np.ndarray | None = None,
+                    slope: np.ndarray | None = None) -> np.ndarray | None:
+        """The Newton correction; ``h`` one step for every state or one per state (then each
+        row of the Newton matrix takes its own state's)."""
+        if values is None or slope is None:
+            _, _, values, slope = self._evaluate(t, y, True)
+            assert values is not None and slope is not None
+        self.counts["jacobian_evaluations"] += 1
+        self.counts["lu_decompositions"] += 1
+        chain, tail = self.chain, self.tail
+        padded = np.append(values, 0.0)
+        h_tail: float | np.ndarray
+        if isinstance(h, np.ndarray):
+            h_chain, h_tail = h[chain], h[tail]
+            main = slope[chain] - h_chain * padded[self.diag_at]
+            lower = -h_chain[1:] * padded[self.lower_at]  # row k + 1
+            upper = -h_chain[:-1] * padded[self.upper_at]  # row k
+        else:
+            h_tail = h
+            main = slope[chain] - h * padded[self.diag_at]
+            lower = -h * padded[self.lower_at]
+            upper = -h * padded[self.upper_at]
+        _, _, _, change, info = dgtsv(lower, main, upper, residual[chain], True, True, True,
+                                      True)
+        if info != 0:
+            return None
+        correction = np.empty_like(residual)
+        correction[chain] = change
+        coupled = np.bincount(self.tail_row, weights=values[self.tail_at]
+                              * change[self.tail_col], minlength=tail.size)
+        correction[tail] = (residual[tail] + h_tail * coupled) / slope[tail]
+        return correction
+
+    def step_blocks(self, y_old: np.ndarray, h: np.ndarray, starts: np.ndarray,
+                    pieces: Any) -> np.ndarray | None:
+        """Implicit Euler steps of independent blocks of states (copies of one system, block
+        b the states ``starts[b]:starts[b + 1]``) at once, ``h`` the step of each state's block:
+        each block is iterated as :meth:`step` iterates it alone (its own residual norm, its
+        own piece test with ``pieces`` of one block) and left as it is once it has converged.
+        None when any block fails."""
+        m_old = _content(self.system, y_old)
+        y = y_old.copy()
+        weight = self.atol + self.rtol * np.abs(m_old)
+        blocks = [slice(int(starts[b]), int(starts[b + 1])) for b in range(len(starts) - 1)]
+        live = list(blocks)
+        for _ in range(MAX_NEWTON):
+            content, f, values, slope = self._evaluate(0.0, y, False)
+            residual = content - m_old - h * f
+            self.counts["rhs_evaluations"] += 1
+            scaled = residual / weight
+            running = []
+            for block in live:
+                part = scaled[block].copy()
+                norm = math.sqrt(float(np.dot(part, part)) / part.size)
+                if not math.isfinite(norm):
+                    return None
+                if norm > NEWTON_TOLERANCE:
+                    running.append(block)
+            live = running
+            if not live:
+                return y
+            correction = self._correction(0.0, y, h, residual, values, slope)
+            if correction is None:
+                return None
+            self.counts["newton_iterations"] += 1
+            moving = np.zeros_like(correction)
+            for block in live:
+                moving[block] = correction[block]
+            before = [pieces(y[block]) for block in live] if self.pieces is not None else []
+            y = y - moving
+            if self.pieces is not None:
+                live = [block for block, was in zip(live, before, strict=True)
+                        if not (np.array_equal(was, pieces(y[block]))
+                                and math.isfinite(float(np.sum(moving[block]))))]
+                if not live:
+                    return y
+        return None
+
+    def step(self, t: float, y_old: np.ndarray, h: float) -> np.ndarray | None:
+        """The implicit Euler step from (t, y_old) to t + h, or None when Newton fails."""
+        m_old = _content(self.system, y_old)
+        y = y_old.copy()
+        t_new = t + h
+        weight = self.atol + self.rtol * np.abs(m_old)
+        size = y.size
+        for _ in range(MAX_NEWTON):
+            content, f, values, slope = self._evaluate(t_new, y, False)
+            residual = content - m_old - h * f
+            self.counts["rhs_evaluations"] += 1
+            scaled = residual / weight
+            norm = math.sqrt(float(np.dot(scaled, scaled)) / size)
+            if not math.isfinite(norm):
+                return None
+            if norm <= NEWTON_TOLERANCE:
+                return y
+            correction = self._correction(t_new, y, h, residual, values, slope)
+            if correction is None:
+                return None
+            self.counts["newton_iterations"] += 1
+            before = None if self.pieces is None else self.pieces(y)
+            y = y - correction
+            if before is not None and np.array_equal(before, self.pieces(y)) \
+                    and math.isfinite(float(np.sum(correction))):
+                # the system is affine between the two iterates: the new residual is zero
+                # to round-off, so y is the root
+                return y
+        return None
+
+
+def _solver(system: Any, atol: np.ndarray, rtol: float) -> _StepSolver:
+    """The chain solver where the system declares a tridiagonal chain, else sparse LU."""
+    atol = np.asarray(atol, dtype=float)
+    if hasattr(system, "chain_order") and hasattr(system, "jacobian_values"):
+        try:
+            return _ChainSolver(system, atol, float(rtol))
+        except ValueError:
+            pass
+    return _StepSolver(system, atol, float(rtol))
+
+
 def _hits(times: np.ndarray, start: float, end: float) -> np.ndarray:
     stops = np.unique(np.concatenate((times[(times > start) & (times < end)], [end])))
     return stops
@@ -185,7 +376,7 @@ def integrate(system: Any, y0: np.ndarray, start: float, end: float, times: np.n
     """Error-controlled implicit Euler from ``start`` to ``end`` landing on ``times``, with
     the whole-step path alongside; ``atol`` (per state) and ``rtol`` weigh the step-doubling
     error estimate."""
-    solver = _StepSolver(system, np.asarray(atol, dtype=float), float(rtol))
+    solver = _solver(system, atol, rtol)
     y0 = np.asarray(y0, dtype=float)
     ts = [start]
     states = [y0.copy()]
@@ -266,26 +457,63 @@ def _double_step(solver: _StepSolver, t: float, y: np.ndarray, h: float
     return None if double is None else (double, whole)
 
 
-def replay(system: Any, y0: np.ndarray, ts: np.ndarray, parts: int, atol: np.ndarray,
-           rtol: float) -> tuple[np.ndarray, np.ndarray, bool]:
-    """The half-step and whole-step paths on the step times ``ts`` with every step cut into
-    ``parts`` equal steps (no error control; Newton to the tolerance of ``atol``/``rtol``):
-    their states at ``ts`` (columns) and whether every step converged."""
-    solver = _StepSolver(system, np.asarray(atol, dtype=float), float(rtol))
+def path(system: Any, y0: np.ndarray, ts: np.ndarray, parts: int, atol: np.ndarray,
+         rtol: float) -> tuple[np.ndarray, bool]:
+    """Implicit Euler on the step times ``ts`` with every step cut into ``parts`` equal steps
+    (no error control; Newton to the tolerance of ``atol``/``rtol``): the states at ``ts``
+    (columns) and whether every step converged."""
+    solver = _solver(system, atol, rtol)
     y = np.asarray(y0, dtype=float).copy()
-    y_coarse = y.copy()
-    fine = np.full((y.size, ts.size), np.nan)
-    coarse = np.full((y.size, ts.size), np.nan)
-    fine[:, 0] = coarse[:, 0] = y
+    states = np.full((y.size, ts.size), np.nan)
+    states[:, 0] = y
     for k in range(1, ts.size):
         h = (ts[k] - ts[k - 1]) / parts
         for i in range(parts):
-            t = ts[k - 1] + i * h
-            half = solver.step(t, y, 0.5 * h)
-            double = solver.step(t + 0.5 * h, half, 0.5 * h) if half is not None else None
-            whole = solver.step(t, y_coarse, h)
-            if double is None or whole is None:
-                return fine, coarse, False
-            y, y_coarse = double, whole
-        fine[:, k], coarse[:, k] = y, y_coarse
-    return fine, coarse, True
+            found = solver.step(ts[k - 1] + i * h, y, h)
+            if found is None:
+                return states, False
+            y = found
+        states[:, k] = y
+    return states, True
+
+
+def paths(system: Any, copies: Any, y0: np.ndarray, ts: np.ndarray, parts: tuple[int, ...],
+          atol: np.ndarray, rtol: float) -> dict[int, tuple[np.ndarray, bool]]:
+    """:func:`path` for every count of ``parts`` (powers of two), the paths stepped together:
+    ``copies(k)`` is the system of k copies of ``system`` laid end to end (a block each); in
+    each of the finest path's steps every path whose step ends at a multiple of its own length
+    takes it, the paths still stepping being the leading copies (most parts first). Each path's
+    states are those :func:`path` gives it alone. Without a tridiagonal chain, :func:`path`
+    for each."""
+    order = sorted(parts, reverse=True)
+    single = _solver(system, atol, rtol)
+    finest = order[0]
+    if not isinstance(single, _ChainSolver) or any(finest % p for p in order):
+        return {p: path(system, y0, ts, p, atol, rtol) for p in order}
+    y0 = np.asarray(y0, dtype=float)
+    size = y0.size
+    solvers = {k: single if k == 1 else _solver(copies(k), np.tile(atol, k), rtol)
+               for k in range(1, len(order) + 1)}
+    if not all(isinstance(solver, _ChainSolver) for solver in solvers.values()):
+        return {p: path(system, y0, ts, p, atol, rtol) for p in order}
+    pieces = getattr(system, "pieces", None)
+    y = np.tile(y0, len(order))
+    states = np.full((len(order), size, ts.size), np.nan)
+    states[:, :, 0] = y0
+    for k in range(1, ts.size):
+        lengths = [(ts[k] - ts[k - 1]) / p for p in order]
+        for i in range(finest):
+            count = sum(1 for p in order if i % (finest // p) == 0)
+            h = np.repeat(lengths[:count], size)
+            starts = np.arange(count + 1) * size
+            solver = solvers[count]
+            if count == 1:
+                found = solver.step(ts[k - 1] + i * lengths[0], y[:size], lengths[0])
+            else:
+                assert isinstance(solver, _ChainSolver)
+                found = solver.step_blocks(y[:count * size], h, starts, pieces)
+            if found is None:
+                return {p: (states[j], False) for j, p in enumerate(order)}
+            y[:count * size] = found
+        states[:, :, k] = y.reshape(len(order), size)
+    return {p: (states[j], True) for j, p in enumerate(order)}

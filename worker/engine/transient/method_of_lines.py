@@ -248,6 +248,22 @@ class _Rhs:
         self.floor = np.where(self.switched, 0.0, -np.inf)
         self.switched_rate = np.where(self.switched, self.terms.zero_order, 0.0)
         self.switched_kappa = np.where(self.switched, self.kappa, 0.0)
+        #: the system is affine on each piece of ``pieces`` (no Michaelis-Menten term, no
+        #: smoothed zero-order switch)
+        self.piecewise_linear = not self.terms.has_michaelis_menten and (
+            exact or not self.terms.has_zero_order)
+
+    def pieces(self, y: np.ndarray) -> np.ndarray:
+        """Per cell, the piece of the piecewise-linear terms the state is on (content above
+        its floor, content below the solubility): where two states agree the system is affine
+        between them."""
+        cells = y[: self.n]
+        if not self.any_switched:
+            return cells < self.solubility if self.has_solubility else np.zeros(0, dtype=bool)
+        above = cells > self.floor
+        if not self.has_solubility:
+            return above
+        return np.concatenate((above, np.maximum(cells, self.floor) < self.solubility))
 
     def content(self, y: np.ndarray) -> np.ndarray:
         """Conserved content of each state (cells: solute per volume; other states as they
@@ -316,6 +332,18 @@ class _Rhs:
     def __call__(self, t: float, y: np.ndarray) -> np.ndarray:
         c, dc = self.dissolved(y)
         rate, _ = self._rate(y, c, dc)
+        return self._rhs(y, c, rate)
+
+    def newton_terms(self, t: float, y: np.ndarray
+                     ) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
+        """``(content(y), f(t, y), jacobian_values(t, y), content_slope(y))`` from one
+        evaluation of the dissolved part and the consumption (what a Newton iteration needs)."""
+        c, dc = self.dissolved(y)
+        rate, slope = self._rate(y, c, dc)
+        return self.content(y), self._rhs(y, c, rate), self._values(c, dc, slope), \
+            self.content_slope(y)
+
+    def _rhs(self, y: np.ndarray, c: np.ndarray, rate: np.ndarray) -> np.ndarray:
         out = np.empty_like(y)
         out[: self.n] = self.source - self.operator.apply(c) * self.inverse_volumes - rate
         q0 = self.q0_slope * c[0] + self.operator.face_constant[0]
@@ -388,6 +416,11 @@ class _Rhs:
             self._build_pattern()
         c, dc = self.dissolved(y)
         _, slope = self._rate(y, c, dc)
+        return self._values(c, dc, slope)
+
+    def _values(self, c: np.ndarray, dc: np.ndarray, slope: np.ndarray) -> np.ndarray:
+        if not hasattr(self, "_pattern"):
+            self._build_pattern()
         data = self._base_data.copy()
         if self.has_solubility or self.any_switched:
             scaled = self._scaled
@@ -395,6 +428,14 @@ class _Rhs:
         data[self._diagonal_at] -= slope
         data[self._consumed_at] = self.volumes * slope
         return data
+
+    def chain_order(self) -> np.ndarray:
+        """The states every other state depends on, in an order in which the Jacobian among
+        them is tridiagonal: the inner compartment's level, the cells, the outer compartment's
+        level (the amounts, which nothing depends on, are left out)."""
+        inner = [f.state for f in self.compartments if f.side == "inner"]
+        outer = [f.state for f in self.compartments if f.side == "outer"]
+        return np.concatenate((inner, np.arange(self.n), outer)).astype(np.int64)
 
     def jacobian(self, t: float, y: np.ndarray):
         """Exact (generalised) Jacobian as a CSC matrix (fixed pattern, state-dependent
@@ -413,6 +454,8 @@ class _Stack:
         self.offsets = np.concatenate(([0], np.cumsum(sizes)))
         # whether some state's content differs from the state itself
         self.switching = any(getattr(system, "any_switched", True) for system in systems)
+        self.stacked = _StackedTerms(systems, self.offsets) \
+            if len(systems) > 1 and all(system.exact for system in systems) else None
 
     def __call__(self, t: float, y: np.ndarray) -> np.ndarray:
         if len(self.systems) == 1:
@@ -466,6 +509,36 @@ class _Stack:
              np.concatenate(indptr)), shape=(size, size))
         return self._pattern
 
+    def newton_terms(self, t: float, y: np.ndarray
+                     ) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
+        """Each system's ``_Rhs.newton_terms``, joined in block order (every mesh at once
+        where the systems are exact, see :class:`_StackedTerms`)."""
+        if self.stacked is not None:
+            return self.stacked.newton_terms(y)
+        parts = [system.newton_terms(t, y[self.offsets[k]: self.offsets[k + 1]])
+                 for k, system in enumerate(self.systems)]
+        if len(parts) == 1:
+            return parts[0]
+        return tuple(np.concatenate(terms) for terms in zip(*parts, strict=True))  # type: ignore[return-value]
+
+    @property
+    def piecewise_linear(self) -> bool:
+        """Whether every system is affine on each of its pieces."""
+        return all(system.piecewise_linear for system in self.systems)
+
+    def pieces(self, y: np.ndarray) -> np.ndarray:
+        """Each system's ``_Rhs.pieces`` (in another order where the meshes are evaluated at
+        once: only compared with itself)."""
+        if self.stacked is not None:
+            return self.stacked.pieces(y)
+        return np.concatenate([system.pieces(y[self.offsets[k]: self.offsets[k + 1]])
+                               for k, system in enumerate(self.systems)])
+
+    def chain_order(self) -> np.ndarray:
+        """Each system's chain (``_Rhs.chain_order``) in block order."""
+        return np.concatenate([system.chain_order() + int(self.offsets[k])
+                               for k, system in enumerate(self.systems)])
+
     def jacobian_values(self, t: float, y: np.ndarray) -> np.ndarray:
         """The entries in the order of ``jacobian_pattern().data``."""
         return np.concatenate([
@@ -478,6 +551,148 @@ class _Stack:
         matrix = self.jacobian_pattern().copy()
         matrix.data = self.jacobian_values(t, y)
         return matrix
+
+
+class _StackedTerms:
+    """``_Rhs.newton_terms`` and ``_Rhs.pieces`` of several exact systems of one problem
+    (meshes of the same layers) evaluated at once on their states laid end to end: the cells of
+    every mesh in one array (the diffusion operators' bands joined, which couple no two meshes:
+    each band is zero at its mesh's ends), element by element the arithmetic of each system
+    alone."""
+
+    def __init__(self, systems: list[_Rhs], offsets: np.ndarray):
+        first = systems[0]
+        self.systems = systems
+        self.offsets = offsets
+        self.any_switched = first.any_switched
+        self.has_solubility = first.has_solubility
+        self.smooth_reacts = first.smooth_reacts
+        self.has_michaelis_menten = first.terms.has_michaelis_menten
+        if any((s.any_switched, s.has_solubility, s.smooth_reacts,
+                s.terms.has_michaelis_menten) != (self.any_switched, self.has_solubility,
+                                                  self.smooth_reacts, self.has_michaelis_menten)
+               for s in systems):
+            raise ValueError("the systems do not share their kinds of terms")
+        counts = [s.n for s in systems]
+        self.cell_starts = np.concatenate(([0], np.cumsum(counts))).astype(np.int64)
+        self.cells = np.concatenate([int(offsets[k]) + np.arange(s.n)
+                                     for k, s in enumerate(systems)])
+
+        def joined(name: str) -> np.ndarray:
+            return np.concatenate([getattr(s, name) for s in systems])
+
+        self.ab = np.concatenate([s.operator.ab for s in systems], axis=1)
+        self.source = joined("source")
+        self.inverse_volumes = joined("inverse_volumes")
+        self.volumes = joined("volumes")
+        self.solubility = joined("solubility")
+        self.floor = joined("floor")
+        self.switched_rate = joined("switched_rate")
+        self.switched_kappa = joined("switched_kappa")
+        self.first_order = np.concatenate([s.terms.first_order for s in systems])
+        self.vmax = np.concatenate([s.terms.vmax for s in systems])
+        self.km = np.concatenate([s.terms.km for s in systems])
+        self.mm = self.vmax > 0.0
+        firsts, lasts = self.cell_starts[:-1], self.cell_starts[1:] - 1
+        self.first_cell, self.last_cell = firsts, lasts
+        self.q0_slope = np.array([s.q0_slope for s in systems])
+        self.qn_slope = np.array([s.qn_slope for s in systems])
+        self.q0_constant = np.array([s.operator.face_constant[0] for s in systems])
+        self.qn_constant = np.array([s.operator.face_constant[-1] for s in systems])
+        self.out_inner = np.array([int(offsets[k]) + s.n for k, s in enumerate(systems)])
+        # the Jacobian values: the blocks' data joined (the stack's pattern), positions global
+        data_starts = np.concatenate(([0], np.cumsum([s.jacobian_pattern().nnz
+                                                       for s in systems]))).astype(np.int64)
+        self.base_data = np.concatenate([s._base_data for s in systems])
+        scaled = [np.flatnonzero(s._scaled) for s in systems]
+        self.scaled_at = np.concatenate([data_starts[k] + at for k, at in enumerate(scaled)])
+        self.scaled_cell = np.concatenate([self.cell_starts[k] + s._column_of[at]
+                                           for k, (s, at) in enumerate(zip(systems, scaled,
+                                                                           strict=True))])
+        self.diagonal_at = np.concatenate([data_starts[k] + s._diagonal_at
+                                           for k, s in enumerate(systems)])
+        self.consumed_at = np.concatenate([data_starts[k] + s._consumed_at
+                                           for k, s in enumerate(systems)])
+        self.faces = [(k, face) for k, s in enumerate(systems) for face in s.compartments]
+
+    def _dissolved(self, cells: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+        if self.any_switched:
+            u = np.maximum(cells, self.floor)
+            slope = (cells > self.floor).astype(float)
+        else:
+            u = cells
+            slope = np.ones(cells.size)
+        if not self.has_solubility:
+            return u, slope
+        return np.minimum(u, self.solubility), slope * (u < self.solubility)
+
+    def newton_terms(self, y: np.ndarray
+                     ) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
+        cells = y[self.cells]
+        c, dc = self._dissolved(cells)
+        if self.smooth_reacts:
+            rate = self.first_order * c
+            slope = self.first_order.copy()
+            if self.has_michaelis_menten:
+                mm = self.mm
+                denominator = self.km[mm] + c[mm]
+                rate[mm] += self.vmax[mm] * c[mm] / denominator
+                slope[mm] += self.vmax[mm] * self.km[mm] / denominator**2
+            slope = slope * dc
+        else:
+            rate, slope = np.zeros(cells.size), np.zeros(cells.size)
+        if self.any_switched:
+            rate = rate + self.switched_rate + self.switched_kappa * np.minimum(cells, 0.0)
+            slope = slope + self.switched_kappa * (cells <= 0.0)
+        # the right-hand side (``_Rhs._rhs``)
+        ab = self.ab
+        applied = ab[1] * c
+        applied[:-1] += ab[0, 1:] * c[1:]
+        applied[1:] += ab[2, :-1] * c[:-1]
+        out = np.empty_like(y)
+        out[self.cells] = self.source - applied * self.inverse_volumes - rate
+        q0 = self.q0_slope * c[self.first_cell] + self.q0_constant
+        qn = self.qn_slope * c[self.last_cell] + self.qn_constant
+        out[self.out_inner] = -q0
+        out[self.out_inner + 1] = qn
+        starts = self.cell_starts
+        for k in range(len(self.systems)):
+            out[self.out_inner[k] + 2] = float(np.dot(self.volumes[starts[k]:starts[k + 1]],
+                                                      rate[starts[k]:starts[k + 1]]))
+        for k, face in self.faces:
+            low = int(self.offsets[k])
+            level = y[low + face.state]
+            shift = face.coupling * (level - face.start)
+            cell = int(starts[k]) + face.cell
+            out[low + face.cell] += shift * self.inverse_volumes[cell]
+            out[low + face.released] -= shift
+            out[low + face.state] = (face.conductance * c[cell] - face.coupling * level) \
+                / face.capacity - face.clearance * level
+        # the Jacobian's values (``_Rhs._values``)
+        data = self.base_data.copy()
+        if self.has_solubility or self.any_switched:
+            data[self.scaled_at] *= dc[self.scaled_cell]
+        data[self.diagonal_at] -= slope
+        data[self.consumed_at] = self.volumes * slope
+        # the content and its slope
+        if self.any_switched:
+            content = y.copy()
+            content[self.cells] = np.maximum(cells, self.floor)
+            content_slope = np.ones_like(y)
+            content_slope[self.cells] = cells > self.floor
+        else:
+            content = y
+            content_slope = np.ones_like(y)
+        return content, out, data, content_slope
+
+    def pieces(self, y: np.ndarray) -> np.ndarray:
+        cells = y[self.cells]
+        if not self.any_switched:
+            return cells < self.solubility if self.has_solubility else np.zeros(0, dtype=bool)
+        above = cells > self.floor
+        if not self.has_solubility:
+            return above
+        return np.concatenate((above, np.maximum(cells, self.floor) < self.solubility))
 
 
 class _ClearedHistoryBDF(BDF):
@@ -845,9 +1060,9 @@ def time_refinement(problem: Problem, solution: TransientFVSolution, parts: int
         return None
     ts = diagnostics["step_sequence"]
     system = _Rhs(problem, solution.mesh, concentration_scale(problem), exact=True)
-    fine, coarse, ok = implicit_steps.replay(system, diagnostics["initial_state"], ts, parts,
-                                             diagnostics["atol"], implicit_rtol(solution.rtol))
-    if not ok:
+    fine = _replayed(problem, system, solution, 2 * parts)
+    coarse = _replayed(problem, system, solution, parts) if fine is not None else None
+    if fine is None or coarse is None:
         return None
     history, contents = _reported(system, fine, coarse, ts)
     at = np.clip(np.searchsorted(ts, solution.times - 1e-9 * max(abs(solution.end), 1.0)), 0,
@@ -860,3 +1075,28 @@ def time_refinement(problem: Problem, solution: TransientFVSolution, parts: int
         "released_outer": measure * history.values[n + 1, at],
         "consumed": measure * history.values[n + 2, at],
     }
+
+
+def _replayed(problem: Problem, system: _Rhs, solution: TransientFVSolution, parts: int
+              ) -> np.ndarray | None:
+    """The implicit Euler path of ``solution`` on its accepted steps cut into ``parts`` (None
+    when a step did not converge), kept on the solution per case: the paths with the steps cut
+    into 2, 4 and 8 (the steps halved and quartered) are integrated together on first use."""
+    cache = getattr(solution, "_replayed", None)
+    if cache is None:
+        cache = {}
+        setattr(solution, "_replayed", cache)  # noqa: B010 - a cache the type does not declare
+    key = (id(problem), parts)  # the case is held with its path, so its id stays its own
+    if key not in cache:
+        diagnostics = solution.diagnostics
+        wanted = tuple(sorted({2, 4, 8, parts}, reverse=True))
+
+        def copies(k: int) -> _Stack:
+            return _Stack([system] * k)
+
+        found = implicit_steps.paths(system, copies, diagnostics["initial_state"],
+                                     diagnostics["step_sequence"], wanted, diagnostics["atol"],
+                                     implicit_rtol(solution.rtol))
+        for count, (states, ok) in found.items():
+            cache[(id(problem), count)] = (problem, states if ok else None)
+    return cache[key][1]

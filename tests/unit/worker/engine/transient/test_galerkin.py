@@ -233,3 +233,31 @@ def test_an_injected_error_falls_outside_the_bands(method_of_lines_study, mutate
                                 _time_floor(problem)))
     difference = _released(study.amounts) - _released(method_of_lines_study)
     assert np.all(np.sign(difference) == direction)
+
+
+@pytest.mark.parametrize("geometry", ["slab", "sphere"])
+def test_sequences_stepped_together_end_where_each_alone_does(geometry):
+    # The extrapolation's implicit Euler sequences (1 to 4 substeps) taken together on copies
+    # of the meshes end where each taken alone ends: a dispersed layer, a zero-order layer and
+    # a compartment face with clearance (its inflow reads the copies' own substep sizes).
+    from worker.engine.transient import galerkin_steps
+
+    layers = (Layer("core", 4e-4, 2e-11, initial=5.0, solubility=1.0),
+              Layer("coat", 2e-4, 5e-12, reaction=Reaction("zero_order", rate=1e-4),
+                    initial=0.2))
+    outer = Boundary("compartment", volume=2e-6, initial=0.1, clearance=1e-4)
+    problem = dataclasses.replace(
+        _problem(geometry, layers, Boundary("symmetry"), outer, start=0.0),
+        area=1e-3, length=0.01)
+    meshes = [build_galerkin_mesh(problem, (8, 4)), build_galerkin_mesh(problem, (16, 8))]
+    system = galerkin._System(problem, meshes, 5.0)
+    y0 = system.start_state()
+    _, diag, off = system.balance(y0[:system.size], 1.0, slopes=True)
+    for h in (50.0, 5e3):
+        tally = galerkin_steps.StepHistory()
+        together = galerkin_steps._euler_together(system, y0, h, (diag, off), tally)
+        assert tally.substeps == sum(galerkin_steps.SEQUENCE)
+        for n in galerkin_steps.SEQUENCE:
+            alone = galerkin_steps._euler(system, y0, h, n, (diag, off),
+                                          galerkin_steps.StepHistory())
+            np.testing.assert_allclose(together[n], alone, rtol=1e-12, atol=1e-15)

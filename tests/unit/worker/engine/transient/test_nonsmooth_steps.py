@@ -24,6 +24,8 @@ import mpmath
 import numpy as np
 import pytest
 from numpy.testing import assert_allclose
+from scipy import sparse
+from scipy.sparse.linalg import splu
 
 from worker.engine import convergence
 from worker.engine.model import Boundary, Layer, Problem, Reaction, Regime
@@ -263,3 +265,159 @@ def test_mass_balance_check_sees_a_lost_undissolved_reserve():
     outcome = Outcome()
     checks.mass_balance_check(outcome, problem, coarse, coarse.times)
     assert outcome.checks[-1].passed
+
+
+# --- the tridiagonal Newton correction against scipy's sparse LU --------------------------
+
+@pytest.mark.parametrize("geometry", ["slab", "cylinder", "sphere"])
+def test_chain_steps_match_sparse_lu(geometry):
+    # The chain solver (dgtsv on the cells and compartment levels, substitution for the
+    # amounts) takes the same implicit Euler step as scipy's sparse LU of the whole Newton
+    # matrix (scipy.sparse.linalg.splu, the reference), on a case with every kind of row: two
+    # layers with a partition, both faces compartments (one with clearance), zero-order
+    # consumption and a dispersed load; from a state where some cells have run out.
+    from worker.engine.transient import implicit_steps
+
+    layers = (Layer("core", 4e-4, 2e-11, initial=5.0, solubility=1.0, partition=1.5),
+              Layer("coat", 2e-4, 5e-12, reaction=Reaction("zero_order", rate=1e-4),
+                    initial=0.2))
+    inner = Boundary("compartment", volume=1e-7, initial=0.3)
+    outer = Boundary("compartment", volume=2e-6, initial=0.0, clearance=1e-4)
+    start = 1e-3 if geometry != "slab" else 0.0
+    problem = Problem(geometry, start, layers, inner, outer,
+                      Regime("transient", 1e5, (0.0, 1e5)), area=1e-3, length=0.01)
+    mesh = method_of_lines.build_mesh(problem, (12, 7))
+    system = method_of_lines._Rhs(problem, mesh, 5.0, exact=True)
+    n = system.n
+    rng = np.random.default_rng(7)
+    y = np.concatenate((rng.uniform(-0.05, 4.0, n), np.zeros(3), [0.3, 0.0]))
+    atol = np.full(system.size, 1e-9)
+    chain = implicit_steps._solver(system, atol, 1e-6)
+    assert isinstance(chain, implicit_steps._ChainSolver)
+    lu = implicit_steps._StepSolver(system, atol, 1e-6)
+    residual = rng.normal(size=system.size)
+    for h in (1.0, 1e3, 1e5):
+        # one Newton correction: the Newton matrix dm/dy - h df/dy solved by splu
+        matrix = sparse.diags(system.content_slope(y)) - h * system.jacobian(0.0, y)
+        expected = splu(sparse.csc_matrix(matrix)).solve(residual)
+        assert_allclose(chain._correction(0.0, y, h, residual), expected, rtol=1e-9,
+                        atol=1e-12 * np.max(np.abs(expected)))
+        a, b = chain.step(0.0, y, h), lu.step(0.0, y, h)
+        assert a is not None and b is not None
+        assert_allclose(a, b, rtol=1e-10, atol=1e-12)
+
+
+def test_a_system_without_a_tridiagonal_chain_gets_sparse_lu():
+    # A chain whose Jacobian is not tridiagonal (the cells in reverse pairs) is refused and
+    # the sparse LU taken; the step is the same.
+    from worker.engine.transient import implicit_steps
+
+    problem = _dispersed_slab((0.0, 1e5))
+    mesh = method_of_lines.build_mesh(problem, (8,))
+    system = method_of_lines._Rhs(problem, mesh, 10.0, exact=True)
+    order = np.arange(system.n)
+    order[[2, 5]] = order[[5, 2]]
+    broken = _ChainOf(system, order)
+    atol = np.full(system.size, 1e-9)
+    assert type(implicit_steps._solver(broken, atol, 1e-6)) is implicit_steps._StepSolver
+    assert type(implicit_steps._solver(system, atol, 1e-6)) is implicit_steps._ChainSolver
+    y = np.concatenate((np.full(system.n, 10.0), np.zeros(3)))
+    assert_allclose(implicit_steps._solver(broken, atol, 1e-6).step(0.0, y, 1e4),
+                    implicit_steps._solver(system, atol, 1e-6).step(0.0, y, 1e4),
+                    rtol=1e-10, atol=1e-12)
+
+
+class _ChainOf:
+    """A method-of-lines system that declares the chain ``order``."""
+
+    def __init__(self, system, order):
+        self.system = system
+        self.order = order
+
+    def __getattr__(self, name):
+        return getattr(self.system, name)
+
+    def __call__(self, t, y):
+        return self.system(t, y)
+
+    def chain_order(self):
+        return self.order
+
+
+def test_a_michaelis_menten_layer_is_iterated_to_its_residual():
+    # Michaelis-Menten consumption is not affine on any piece: the chain solver does not stop
+    # on unchanged pieces there but on the residual, and its step is the sparse LU's.
+    from worker.engine.transient import implicit_steps
+
+    layer = Layer("matrix", 1e-3, 1e-11, reaction=Reaction("michaelis_menten", vmax=1e-4,
+                                                           km=0.5), initial=3.0, solubility=1.0)
+    problem = _problem([layer], times=(0.0, 1e5))
+    mesh = method_of_lines.build_mesh(problem, (10,))
+    system = method_of_lines._Rhs(problem, mesh, 3.0, exact=True)
+    assert not system.piecewise_linear
+    linear = method_of_lines._Rhs(_dispersed_slab((0.0, 1e5)), mesh, 10.0, exact=True)
+    assert linear.piecewise_linear
+    atol = np.full(system.size, 1e-9)
+    y = np.concatenate((np.linspace(0.2, 3.0, system.n), np.zeros(3)))
+    chain = implicit_steps._solver(system, atol, 1e-6)
+    assert chain.pieces is None
+    assert_allclose(chain.step(0.0, y, 1e4),
+                    implicit_steps._StepSolver(system, atol, 1e-6).step(0.0, y, 1e4),
+                    rtol=1e-10, atol=1e-12)
+
+
+@pytest.mark.parametrize("reaction", [Reaction("zero_order", rate=1e-4),
+                                      Reaction("michaelis_menten", vmax=1e-4, km=0.5),
+                                      Reaction("first_order", rate=1e-5)])
+def test_meshes_evaluated_at_once_match_each_alone(reaction):
+    # The stacked evaluation of several meshes' Newton terms equals each mesh's own (the same
+    # arithmetic element by element): two layers, a dispersed load, the reaction, compartments
+    # at both faces.
+    layers = (Layer("core", 4e-4, 2e-11, initial=5.0, solubility=1.0),
+              Layer("coat", 2e-4, 5e-12, reaction=reaction, initial=0.2))
+    inner = Boundary("compartment", volume=1e-7, initial=0.3)
+    outer = Boundary("compartment", volume=2e-6, initial=0.0, clearance=1e-4)
+    problem = Problem("cylinder", 1e-3, layers, inner, outer,
+                      Regime("transient", 1e5, (0.0, 1e5)), length=0.01)
+    systems = [method_of_lines._Rhs(problem, method_of_lines.build_mesh(problem, cells), 5.0,
+                                    exact=True) for cells in ((6, 3), (12, 6), (24, 12))]
+    stack = method_of_lines._Stack(systems)
+    assert stack.stacked is not None
+    rng = np.random.default_rng(3)
+    y = np.concatenate([np.concatenate((rng.uniform(-0.05, 4.0, s.n), rng.uniform(size=3),
+                                        [0.3, 0.1])) for s in systems])
+    together = stack.stacked.newton_terms(y)
+    alone = [s.newton_terms(0.0, y[stack.offsets[k]: stack.offsets[k + 1]])
+             for k, s in enumerate(systems)]
+    for got, parts in zip(together, zip(*alone, strict=True), strict=True):
+        np.testing.assert_array_equal(got, np.concatenate(parts))
+    np.testing.assert_array_equal(
+        np.sort(stack.stacked.pieces(y).astype(int)),
+        np.sort(np.concatenate([s.pieces(y[stack.offsets[k]: stack.offsets[k + 1]])
+                                for k, s in enumerate(systems)]).astype(int)))
+
+
+@pytest.mark.parametrize("case", ["zero_order", "dispersed"])
+def test_paths_stepped_together_are_each_path_alone(case):
+    # The time check's paths (steps cut into 2, 4 and 8) integrated together on copies of the
+    # coarse mesh give each path's states as integrated alone, to the last bit.
+    from worker.engine.transient import implicit_steps
+
+    if case == "zero_order":
+        problem = _problem([Layer("gel", 1e-3, 1e-10, reaction=Reaction("zero_order",
+                                                                         rate=2e-4),
+                                  initial=1.0)], times=(0.0, 2e3, 6e3))
+    else:
+        problem = _dispersed_slab((0.0, 2 * DAY, 5 * DAY))
+    coarse = solve_transient_fv(problem, None, 12)
+    diagnostics = coarse.diagnostics
+    system = method_of_lines._Rhs(problem, coarse.mesh,
+                                  method_of_lines.concentration_scale(problem), exact=True)
+    rtol = method_of_lines.implicit_rtol(coarse.rtol)
+    arguments = (diagnostics["initial_state"], diagnostics["step_sequence"])
+    together = implicit_steps.paths(system, lambda k: method_of_lines._Stack([system] * k),
+                                    *arguments, (8, 4, 2), diagnostics["atol"], rtol)
+    for parts in (8, 4, 2):
+        alone, ok = implicit_steps.path(system, *arguments, parts, diagnostics["atol"], rtol)
+        assert ok and together[parts][1]
+        np.testing.assert_array_equal(together[parts][0], alone)
