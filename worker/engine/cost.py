@@ -42,6 +42,8 @@ from __future__ import annotations
 import math
 from dataclasses import dataclass, replace
 
+import numpy as np
+
 from worker.engine.bvp_steady import BVP_MAX_JACOBIAN_ENTRIES, BVP_MAX_NODES
 from worker.engine.design.request import DesignRequest
 from worker.engine.design.sampling import default_block_size
@@ -168,14 +170,20 @@ def resolution_cells(problem: Problem) -> list[int]:
     before its cap: the resistance share and the reaction length."""
     n = problem.exponent
     edges = problem.edges
-    resistances = [layer.thickness
-                   / (layer.diffusivity * layer.partition * (0.5 * (edges[j] + edges[j + 1])) ** n)
-                   for j, layer in enumerate(problem.layers)]
-    total = sum(resistances)
+    with np.errstate(divide="ignore", over="ignore", invalid="ignore"):
+        conductances = np.array([
+            layer.diffusivity * layer.partition * (0.5 * (edges[j] + edges[j + 1])) ** n
+            for j, layer in enumerate(problem.layers)], dtype=float)
+        resistances = np.array([layer.thickness for layer in problem.layers]) / conductances
+    unbounded = ~np.isfinite(resistances)
+    if unbounded.any():  # a conductance that underflows: those layers share the whole budget
+        shares = unbounded / unbounded.sum()
+    else:
+        shares = resistances / resistances.sum()
     c_scale = boundary_concentration_scale(problem)
     counts = []
     for j, layer in enumerate(problem.layers):
-        cells = max(MIN_CELLS_PER_LAYER, math.ceil(RESISTANCE_CELLS * resistances[j] / total))
+        cells = max(MIN_CELLS_PER_LAYER, math.ceil(RESISTANCE_CELLS * float(shares[j])))
         reaction = layer.reaction
         inverse_length = reaction.law.inverse_length(reaction, layer.diffusivity, c_scale)
         if inverse_length > 0.0:

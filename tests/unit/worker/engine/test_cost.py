@@ -72,3 +72,22 @@ def test_the_collocation_node_limit_keeps_the_jacobian_within_its_entries():
         nodes = bvp_steady.node_limit(layers)
         assert 2 * (2 * layers) ** 2 * nodes <= bvp_steady.BVP_MAX_JACOBIAN_ENTRIES
         assert nodes < bvp_steady.BVP_MAX_NODES
+
+
+def test_a_conductance_that_underflows_gives_cells_not_a_warning():
+    """D·K·r^n below the smallest double (found by the fuzz test: 5e-324 m^2/s with a partition
+    of 1e-300) has an unbounded resistance: that layer takes the resistance share, the others
+    none, and the estimate stays finite instead of warning about a division by zero."""
+    import warnings
+
+    from worker.engine.cost import RESISTANCE_CELLS, resolution_cells
+    from worker.engine.model import Boundary, Layer, Problem, Regime
+
+    problem = Problem("sphere", 0.0, (Layer("a", 1e-4, 5e-324, 1e-300),
+                                      Layer("b", 1e-4, 1e-9, 1.0)),
+                      Boundary("symmetry"), Boundary("concentration", value=1.0),
+                      regime=Regime("steady"))
+    with warnings.catch_warnings():
+        warnings.simplefilter("error")
+        cells = resolution_cells(problem)
+    assert cells[0] == RESISTANCE_CELLS and cells[1] < RESISTANCE_CELLS
