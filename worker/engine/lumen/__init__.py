@@ -1,0 +1,21 @@
+"""Flow along a lumen: laminar (Poiseuille) flow in a tube of radius R with radial diffusion in
+the fluid and axial convection, axial diffusion neglected.
+
+Modules
+-------
+graetz
+    The Graetz eigenfunction series for a wall held at one concentration (Dirichlet), a wall of
+    finite conductance (Robin) and a uniform wall flux; the Leveque short-length asymptote.
+marching
+    Finite volumes in the radius, Crank-Nicolson marching in the axial position, any wall law
+    ``flux(c_wall)`` (Newton at every step); three-mesh refinement studies.
+krogh
+    The Krogh cylinder: the Krogh-Erlang profile in a tissue annulus with zero-order uptake and
+    the linear fall of the mixing-cup concentration along the capillary.
+
+The coordinate along the tube is measured from the inlet. The dimensionless axial position is
+``z* = z / (D_h Pe) = pi D z / (4 F)`` (D_h = 2R, Pe = u_m D_h / D, F the volume flow rate), and
+Sherwood numbers are on the hydraulic diameter, ``Sh = k D_h / D`` (R.K. Shah, A.L. London,
+*Laminar Flow Forced Convection in Ducts*, Academic Press, 1978, ch. 5, with mass in place of
+heat).
+"""
