@@ -51,7 +51,7 @@ __all__ = [
 
 #: Newton iteration on the wall concentration: relative step tolerance and iteration cap.
 NEWTON_RTOL = 1e-12
-NEWTON_MAX_ITERATIONS = 50
+NEWTON_MAX_ITERATIONS = 100
 #: Default grading exponent of the axial nodes (1: equal steps). Outlet quantities converge
 #: at second order for 1 <= g <= 3 (measured on the Graetz problem); g > 1 puts more nodes
 #: where the wall's entrance layer is thin.
@@ -216,13 +216,31 @@ class _Wall:
             return c_w, self.g * (a + (b - 1.0) * c_w), 0
         c_w = guess
         scale = max(abs(a), abs(guess), 1e-300)
+        # The residual falls as c_w rises (b < 1, dj/dc_w >= 0): points where it is positive
+        # and negative bracket the root, and once both are known a Newton step that leaves the
+        # bracket or does not halve the previous step is replaced by bisection (safeguarded
+        # Newton, "rtsafe": W.H. Press et al., *Numerical Recipes*, 3rd ed., 2007, §9.4).
+        low, high = -math.inf, math.inf
+        previous = math.inf
         for iteration in range(1, NEWTON_MAX_ITERATIONS + 1):
             j, slope = self.wall.flux(c_w)
             residual = self.g * (a + (b - 1.0) * c_w) - j
-            derivative = self.g * (b - 1.0) - slope
-            step = -residual / derivative
-            c_w += step
-            if abs(step) <= NEWTON_RTOL * max(abs(c_w), scale):
+            if residual == 0.0:
+                return c_w, j, iteration
+            if residual > 0.0:
+                low = max(low, c_w)
+            elif residual < 0.0:
+                high = min(high, c_w)
+            step = -residual / (self.g * (b - 1.0) - slope)
+            proposal = c_w + step
+            bracketed = math.isfinite(low) and math.isfinite(high)
+            if bracketed and (not low <= proposal <= high or abs(step) > 0.5 * previous):
+                proposal = 0.5 * (low + high)
+            previous = abs(proposal - c_w)
+            if not math.isfinite(proposal):
+                break
+            change, c_w = abs(proposal - c_w), proposal
+            if change <= NEWTON_RTOL * max(abs(c_w), scale):
                 return c_w, self.wall.flux(c_w)[0], iteration
         raise LumenInputError(
             f"wall: the wall law gives no wall concentration (Newton did not settle in "
