@@ -82,15 +82,13 @@ QUADRATURE_BASE = 64
 QUADRATURE_PER_LAMBDA = 4
 
 
-def dimensionless_length(z, radius: float, flow_rate: float, diffusivity: float):
-    """``z* = pi D z / (4 F)`` (dimensionless) at axial position(s) z (m), for a tube of radius
-    ``radius`` (m), volume flow rate F (m^3/s) and diffusivity D in the fluid (m^2/s).
+def dimensionless_length(z, flow_rate: float, diffusivity: float):
+    """``z* = pi D z / (4 F)`` (dimensionless) at axial position(s) z (m), for a volume flow
+    rate F (m^3/s) and diffusivity D in the fluid (m^2/s).
 
-    Equals ``z / (D_h Pe)`` with ``Pe = u_m D_h / D`` (Shah & London 1978, ch. 1); the
-    inverse at the tube's length is the Graetz number in that convention. ``radius`` enters
-    only through the definition's cancellation and is checked for sign.
+    Equals ``z / (D_h Pe)`` with ``Pe = u_m D_h / D`` (Shah & London 1978, ch. 1); the radius
+    cancels. The inverse at the tube's length is the Graetz number in that convention.
     """
-    positive("radius", radius)
     positive("flow_rate", flow_rate)
     positive("diffusivity", diffusivity)
     return math.pi * diffusivity * np.asarray(z, dtype=float) / (4.0 * flow_rate)

@@ -36,6 +36,7 @@ import numpy as np
 from scipy.linalg import solve_banded
 
 from worker.engine.convergence import GridStudy, grid_study
+from worker.engine.lumen.graetz import dimensionless_length
 from worker.engine.lumen.inputs import LumenInputError, non_negative, positive
 
 __all__ = [
@@ -45,6 +46,7 @@ __all__ = [
     "MarchSolution",
     "Tube",
     "UniformFluxWall",
+    "axial_nodes",
     "march",
     "refinement_study",
 ]
@@ -87,7 +89,7 @@ class Tube:
 
     def z_star(self, z):
         """``pi D z / (4 F)`` (dimensionless), see ``graetz.dimensionless_length``."""
-        return math.pi * self.diffusivity * np.asarray(z, dtype=float) / (4.0 * self.flow_rate)
+        return dimensionless_length(z, self.flow_rate, self.diffusivity)
 
 
 @dataclass(frozen=True)
@@ -155,7 +157,14 @@ class MarchSolution:
     """Axial profiles (index k along ``position``, m) and the field ``concentration[k, i]`` at
     the cell centres ``radii`` (m). Concentrations in the inlet's unit; ``wall_flux`` outward
     (mol/(m^2 s)); rates in mol/s. ``through_wall`` is the cumulative amount per time that left
-    through the wall, integrated as the scheme integrates it."""
+    through the wall, integrated as the scheme integrates it.
+
+    At the inlet node (k = 0) the wall values are those of the uniform inlet against the wall
+    law on the half cell: where the wall and inlet concentrations differ the true flux there is
+    unbounded (z^(-1/3), Leveque), so ``wall_flux[0]`` depends on the mesh and is no result.
+    With a nonlinear wall law the extrapolated ``wall_flux`` meets the law at ``wall`` to second
+    order in the step, not exactly (both are combinations of the half- and whole-step values).
+    """
 
     position: np.ndarray
     radii: np.ndarray
@@ -197,6 +206,8 @@ def axial_nodes(length: float, steps: int, grading: float = AXIAL_GRADING) -> np
 
 
 def _cell_weights(radius: float, cells: int, mean_velocity: float):
+    """Faces of ``cells`` equal cells (m) and each cell's ``int u r dr`` (m^3/s per radian),
+    exact for the parabola: ``2 u_m (r^2/2 - r^4/(4 R^2))`` between the faces."""
     faces = np.linspace(0.0, radius, cells + 1)
     primitive = 2.0 * mean_velocity * (faces**2 / 2.0 - faces**4 / (4.0 * radius**2))
     return faces, np.diff(primitive)
