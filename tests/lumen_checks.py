@@ -27,6 +27,20 @@ def assert_check_and_injection(check, value, error: float) -> None:
         assert not check(injected), f"the check passes with an injected error {sign * error:+g}"
 
 
+#: Relative closure of the lumen's global mass balance: the marching scheme conserves exactly,
+#: so only round-off remains (measured: at most 8e-14 over 300 drawn cases on 24 x 24 meshes).
+BALANCE_RTOL = 1e-10
+
+
+def balance_closes(tube, outlet_mixing_cup: float, through_wall: float) -> bool:
+    """F c_in - F c_m(L) = what crossed the wall (mol/s), within ``BALANCE_RTOL``; the rates
+    at the ends from the tube's F, not from the solver's cell weights."""
+    entering = tube.flow_rate * tube.inlet
+    leaving = tube.flow_rate * outlet_mixing_cup
+    scale = max(abs(entering), abs(leaving), abs(through_wall))
+    return abs(entering - leaving - through_wall) <= BALANCE_RTOL * scale
+
+
 # --- an independent route to the Graetz eigenfunctions: the power series about the axis ------
 # R(eta) = sum_k c_k eta^(2k), c_0 = 1, c_k = lambda^2 (c_(k-2) - c_(k-1)) / (4 k^2), from
 # (eta R')' + lambda^2 eta (1 - eta^2) R = 0 term by term (Frobenius; the route of G.M. Brown,

@@ -18,6 +18,7 @@ import numpy as np
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
+from tests.lumen_checks import BALANCE_RTOL, balance_closes
 from worker.engine.lumen.marching import (
     ConductanceWall,
     FixedWall,
@@ -26,10 +27,6 @@ from worker.engine.lumen.marching import (
     UniformFluxWall,
     march,
 )
-
-#: Relative closure of the discrete balance: the scheme conserves exactly, so only round-off
-#: remains (measured: at most 8e-14 over 300 drawn cases on 24 x 24 meshes).
-BALANCE_RTOL = 1e-10
 
 
 def log_uniform(low: float, high: float):
@@ -67,13 +64,6 @@ def tubes_and_walls(draw, kinds=WALL_KINDS):
 
         wall = FunctionWall(law)
     return Tube(radius, length, flow, diffusivity, inlet), wall
-
-
-def balance_closes(tube: Tube, outlet_mixing_cup: float, through_wall: float) -> bool:
-    entering = tube.flow_rate * tube.inlet
-    leaving = tube.flow_rate * outlet_mixing_cup
-    scale = max(abs(entering), abs(leaving), abs(through_wall))
-    return abs(entering - leaving - through_wall) <= BALANCE_RTOL * scale
 
 
 @settings(max_examples=60, deadline=None, suppress_health_check=[HealthCheck.too_slow])

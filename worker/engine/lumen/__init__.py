@@ -18,4 +18,8 @@ The coordinate along the tube is measured from the inlet. The dimensionless axia
 Sherwood numbers are on the hydraulic diameter, ``Sh = k D_h / D`` (R.K. Shah, A.L. London,
 *Laminar Flow Forced Convection in Ducts*, Academic Press, 1978, ch. 5, with mass in place of
 heat).
+
+These functions check design calculations for devices that feed or drain living tissue; their
+results support, but do not replace, design verification testing and qualified review, and
+local regulations and licensed practice govern their use.
 """

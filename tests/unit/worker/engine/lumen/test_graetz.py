@@ -36,6 +36,7 @@ from worker.engine.convergence import grid_study
 from worker.engine.lumen.graetz import (
     _norms,
     dimensionless_length,
+    eigenfunction,
     eigenvalues,
     graetz_series,
     layered_wall_conductance,
@@ -127,9 +128,22 @@ def test_robin_eigenvalues_against_the_power_series(biot):
     assert_check_and_injection(within(independent, 1e-11), engine, 1e-8)
 
 
+def test_robin_wall_with_biot_two_has_a_closed_form_first_mode():
+    """R = exp(-eta^2) solves (eta R')' + 4 eta (1 - eta^2) R = 0 and meets R'(1) + 2 R(1) = 0
+    (by substitution: (eta R')' = (4 eta^3 - 4 eta) exp(-eta^2)), so at Bi = 2 the first root
+    is lambda_0 = 2 and the fully developed fluid-side Sherwood number is
+    2 (-R'(1)) / (4 (-R'(1))/lambda^2 - R(1)) = 4 exactly."""
+    series = graetz_series(10, biot=2.0)
+    assert_check_and_injection(within(2.0, 1e-13), series.eigenvalues[0], 1e-10)
+    eta = np.linspace(0.0, 1.0, 11)
+    assert_check_and_injection(within(np.exp(-eta**2), 1e-13, atol=1e-15),
+                               eigenfunction(eta, series.eigenvalues[0]), 1e-10)
+    assert_check_and_injection(within(4.0, 1e-12), series.fully_developed_sherwood(), 1e-9)
+    assert_check_and_injection(within(4.0, 1e-12), series.local_sherwood(3.0)[0], 1e-9)
+
+
 def test_eigenfunction_zero_count_orders_the_roots():
     """Sturm-Liouville: the n-th eigenfunction has n zeros in (0, 1) (common practice)."""
-    from worker.engine.lumen.graetz import eigenfunction
     eta = np.linspace(0.0, 1.0 - 1e-9, 4001)
 
     def zeros(lam):

@@ -16,7 +16,8 @@ import math
 import numpy as np
 import pytest
 
-from tests.lumen_checks import assert_check_and_injection, within
+from tests.lumen_checks import assert_check_and_injection, balance_closes, within
+from worker.engine.lumen import marching
 from worker.engine.lumen.inputs import LumenInputError
 from worker.engine.lumen.marching import (
     ConductanceWall,
@@ -147,12 +148,9 @@ def test_bad_input_names_the_field(call, field):
 
 
 def test_balance_check_sees_weights_that_miss_the_flow_rate(monkeypatch):
-    """The property test's balance (tests/property/test_lumen_mass_balance.py) uses the tube's
-    F at the ends: midpoint-rule cell weights (u at the centre times r dr), which miss the
+    """The property test's balance (``balance_closes`` in tests/lumen_checks.py) takes the
+    tube's F at the ends: midpoint-rule cell weights (u at the centre times r dr), which miss the
     Poiseuille integral by O(dr^2), make it fail, while the exact weights pass."""
-    from tests.property.test_lumen_mass_balance import balance_closes
-    from worker.engine.lumen import marching
-
     tube, wall = tube_at(0.05), ConductanceWall(2 * D / R, 0.0)
     good = march(tube, wall, 24, 24)
     assert balance_closes(tube, good.mixing_cup[-1], good.through_wall[-1])
