@@ -9,6 +9,9 @@ graetz
 marching
     Finite volumes in the radius, Crank-Nicolson marching in the axial position, any wall law
     ``flux(c_wall)`` (Newton at every step); three-mesh refinement studies.
+layer_walls
+    Wall laws from the layers' steady radial solve (``model.Problem``): an exact conductance
+    wall for linear kinetics (the Robin wall of the Graetz series), a general law otherwise.
 krogh
     The Krogh cylinder: the Krogh-Erlang profile in a tissue annulus with zero-order uptake and
     the linear fall of the mixing-cup concentration along the capillary.
