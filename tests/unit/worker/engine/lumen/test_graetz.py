@@ -239,7 +239,8 @@ def test_layered_wall_conductance_against_ht_cylinder_resistance():
         inner += thickness
     reference = 1.0 / (2 * math.pi * r * resistance)
     assert_check_and_injection(within(reference, 1e-12), layered_wall_conductance(r, layers), 1e-9)
-    assert math.isclose(wall_biot_number(2.0, 1e-4, 1e-9), 2.0 * 1e-4 / 1e-9)
+    assert_check_and_injection(within(2.0 * 1e-4 / 1e-9, 1e-14), wall_biot_number(2.0, 1e-4, 1e-9),
+                               1e-12)
 
 
 def test_dimensionless_groups_from_their_definitions():
@@ -247,8 +248,9 @@ def test_dimensionless_groups_from_their_definitions():
     r, f, d, z = 1e-4, 3e-10, 2e-9, 0.05
     u_m = f / (math.pi * r**2)
     pe = u_m * 2 * r / d
-    assert math.isclose(peclet_number(r, f, d), pe, rel_tol=1e-14)
-    assert math.isclose(float(dimensionless_length(z, f, d)), z / (2 * r * pe), rel_tol=1e-14)
+    assert_check_and_injection(within(pe, 1e-14), peclet_number(r, f, d), 1e-12)
+    assert_check_and_injection(within(z / (2 * r * pe), 1e-14), dimensionless_length(z, f, d),
+                               1e-12)
 
 
 @pytest.mark.parametrize("call, field", [

@@ -70,6 +70,12 @@ def test_krogh_erlang_profile_satisfies_the_ode_by_mpmath():
             r = mpmath.mpf(r)
             laplacian = mpmath.diff(c, r, 2) + mpmath.diff(c, r) / r
             assert abs(d * laplacian - q) < 1e-15 * q
+            # the same residual of a profile with its uptake term off by 1e-6, either way
+            for sign in (1, -1):
+                def wrong(r, sign=sign):
+                    return c(r) + sign * mpmath.mpf("1e-6") * q / (4 * d) * r**2
+                off = mpmath.diff(wrong, r, 2) + mpmath.diff(wrong, r) / r
+                assert abs(d * off - q) > 1e-15 * q
             assert float(krogh_erlang_profile(float(r), R_C, R_T, D_TISSUE, Q, C_WALL)) == \
                 pytest.approx(float(c(r)), rel=1e-13)
         assert abs(mpmath.diff(c, r_t)) < 1e-20 * q * r_t / d
@@ -90,7 +96,9 @@ def test_linear_fall_of_the_mixing_cup_against_the_marching_solver():
     inlet = 0.15
     tube = Tube(R_C, length, flow, D_FLUID, inlet)
     j = krogh_wall_flux(R_C, R_T, Q)
-    assert j * 2 * math.pi * R_C == pytest.approx(krogh_uptake_per_length(R_C, R_T, Q))
+    assert_check_and_injection(within(Q * math.pi * (R_T**2 - R_C**2), 1e-14),
+                               krogh_uptake_per_length(R_C, R_T, Q), 1e-12)
+    assert_check_and_injection(within(Q * (R_T**2 - R_C**2) / (2 * R_C), 1e-14), j, 1e-12)
     solution = march(tube, UniformFluxWall(j), 64, 64)
     exact = krogh_mixing_cup(solution.position, inlet, flow, R_C, R_T, Q)
     assert_check_and_injection(within(exact, 1e-12), solution.mixing_cup, 1e-9)
