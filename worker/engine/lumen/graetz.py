@@ -67,14 +67,16 @@ __all__ = [
 #: ch. 5; follows in closed form from the fully developed profile, see ``UniformFluxSeries``).
 FULLY_DEVELOPED_SH_UNIFORM_FLUX = 48.0 / 11.0
 #: Scan step for sign changes of the characteristic function (dimensionless lambda); the roots
-#: are about 4 apart (n-th root near 4n + 8/3 for the Dirichlet wall), so one step holds at most
-#: one root.
+#: are about 4 apart (n-th root near 4n + 8/3 for the Dirichlet wall: J.R. Sellars, M. Tribus,
+#: J.S. Klein, Trans. ASME 78 (1956) 441, from memory, and seen in the roots found), so one step
+#: holds at most one root.
 SCAN_STEP = 0.5
 #: Brent tolerances on lambda.
 ROOT_XTOL = 1e-13
 ROOT_RTOL = 4.0 * np.finfo(float).eps
 #: Step in lambda of the five-point derivative in ``_norms`` (truncation ~ h^4, round-off
-#: ~ 1e-16 / h, both far below 1e-10 relative for the first hundred roots; tested against mpmath).
+#: ~ 1e-16 / h): measured within 1.3e-10 of Gauss-Legendre quadrature for the first hundred
+#: roots and within 1e-10 of an mpmath computation for the first six (the tests).
 NORM_STEP = 1e-3
 #: Gauss-Legendre points for ``quadrature_norms``: this many plus ``QUADRATURE_PER_LAMBDA``
 #: per unit of the largest eigenvalue (the n-th eigenfunction squared has about 2n oscillations).
