@@ -4,8 +4,10 @@ Printed: one march per mesh, and the three-mesh study (32, 64, 128 cells and ste
 r and z together: the meshes tests/reference/test_lumen_graetz_marching.py uses) for a wall
 held at one concentration, a conductance wall and a Michaelis-Menten wall law (Newton at every
 step), each with the outlet mixing cup's apparent order and GCI; and the Graetz series (60
-terms) for comparison. Medians of repeated ``time.perf_counter`` timings; figures printed,
-nothing asserted about time (shared, noisy machines).
+terms) for comparison; and once, the study with a Michaelis-Menten tissue layer solved at every
+evaluation of the wall law (the coupling the lead wires later, before any tabulation). Medians
+of repeated ``time.perf_counter`` timings; figures printed, nothing asserted about time
+(shared, noisy machines).
 
 Run with ``make bench``.
 """
@@ -17,6 +19,7 @@ import statistics
 import time
 
 from worker.engine.lumen.graetz import graetz_series
+from worker.engine.lumen.layer_walls import layer_wall_law
 from worker.engine.lumen.marching import (
     ConductanceWall,
     FixedWall,
@@ -25,6 +28,7 @@ from worker.engine.lumen.marching import (
     march,
     refinement_study,
 )
+from worker.engine.model import Boundary, Layer, Problem, Reaction
 
 REPEATS = 7
 BASE = 32
@@ -68,5 +72,18 @@ def test_lumen_marching_costs():
         print(f"three-mesh study ({BASE}/{2 * BASE}/{4 * BASE}), {name}: "
               f"{1e3 * seconds:.1f} ms; outlet mixing cup order {study.apparent_order:.3f}, "
               f"GCI {100 * study.gci_fine:.2g} %")
+    # a Michaelis-Menten tissue layer around the lumen: every evaluation of the wall law is
+    # three steady layer solves (value and central difference), several per axial step
+    layer = Problem("cylinder", R, (Layer("tissue", 80e-6, 4e-10, reaction=Reaction(
+        "michaelis_menten", vmax=1e-3, km=0.05)),), Boundary("concentration", 0.0),
+        Boundary("flux", 0.0))
+    law = layer_wall_law(layer)
+    start = time.perf_counter()
+    studies, _ = refinement_study(TUBE, law, BASE, BASE)
+    seconds = time.perf_counter() - start
+    study = studies["through_wall"]  # the mixing cup falls by 0.4 % only: study what crossed
+    print(f"three-mesh study ({BASE}/{2 * BASE}/{4 * BASE}), Michaelis-Menten layer around the "
+          f"lumen (layer_wall_law, one run): {seconds:.2f} s; amount through the wall: order "
+          f"{study.apparent_order:.3f}, GCI {100 * study.gci_fine:.2g} %")
     seconds = _median_seconds(lambda: graetz_series(60))
     print(f"Graetz series, 60 terms: {1e3 * seconds:.1f} ms")
