@@ -223,3 +223,13 @@ def test_the_fits_uncertainty_reaches_each_validation_point(fitted):
         t, h = point["time"], 1e-4 * estimate
         slope = (crank_fraction(t, estimate + h) - crank_fraction(t, estimate - h)) / (2 * h)
         assert point["u_input"] == pytest.approx(abs(slope) * se, rel=1e-3, abs=0)
+
+
+def test_the_monte_carlo_follows_the_headline_figure_and_every_validation_point():
+    record = check_case(_case(
+        _set("CHK", CHECK_DAYS, "validation", seed=2), calibration=None,
+        uncertainty={"inputs": [{"field": "layers[0].thickness", "distribution": "normal",
+                                 "relative_sd": 0.05}], "seed": 11}))
+    names = list(record["uncertainty"]["quantities"])
+    assert names[0] == "release_fraction_final"
+    assert names[1:] == [f"release_fraction@{d * DAY:.15g}s" for d in CHECK_DAYS]

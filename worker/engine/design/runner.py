@@ -123,14 +123,13 @@ def _default_targets(problem: Problem) -> list[Target]:
 
 def _scheme(problem: Problem, requirements: Sequence[Requirement],
             followed: Sequence[Target] = ()) -> _Scheme:
-    """The figures of the requirements, then the ``followed`` ones (validation points); the
-    headline figures when there are neither."""
+    """The figures of the requirements (the headline figures when there are none), then the
+    ``followed`` ones (validation points)."""
+    first = [_target_of(r) for r in requirements] or _default_targets(problem)
     targets: list[Target] = []
-    for target in [_target_of(r) for r in requirements] + list(followed):
+    for target in first + list(followed):
         if target not in targets:
             targets.append(target)
-    if not targets:
-        targets = _default_targets(problem)
     return _Scheme(tuple(targets), tuple(requirements))
 
 
