@@ -21,6 +21,7 @@ from service.report.text_design import (
     uncertainty_lines,
     verdict_lines,
 )
+from service.report.text_axial import axial_lines
 from service.report.text_measured import calibration_lines, credibility_lines, validation_lines
 
 RULE = "-" * 78
@@ -140,6 +141,10 @@ def render_text(record: dict, case: dict) -> str:
         unit = probes["units"]["concentration"]
         for r, c in zip(probes["position"], probes["concentration"], strict=True):
             add(f"  r = {r:<12.6g} m   C = {c:.6g} {unit}")
+    axial = axial_lines(record)
+    if axial:
+        add(RULE)
+        lines.extend(axial)
     if "time" in record.get("series", {}):
         add(RULE)
         add(format_release_table(record))

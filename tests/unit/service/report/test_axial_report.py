@@ -1,0 +1,34 @@
+"""The axial profiles of a lumen case in the text report: shown where the record holds
+``series.axial`` (the contract's columns, in the units the series states), absent otherwise.
+The figures are invented for the rendering test, not check values."""
+
+from __future__ import annotations
+
+import copy
+
+from service.report.text import render_text
+from service.report.text_axial import axial_lines
+from tests.unit.service.report import measured_records as records
+
+AXIAL = {"position": [0.0, 0.05, 0.1], "mixing_cup": [0.2, 0.15, 0.12],
+         "wall": [0.2, 0.1, 0.08], "wall_flux": [1e-6, 5e-7, 4e-7],
+         "concentration_min": [0.1, 0.05, 0.03],
+         "units": {"position": "m", "mixing_cup": "mol/m^3", "wall": "mol/m^3",
+                   "wall_flux": "mol/m^2/s", "concentration_min": "mol/m^3"}}
+
+
+def test_the_axial_table_lists_every_position_in_the_series_units():
+    record = copy.deepcopy(records.record())
+    record.setdefault("series", {})["axial"] = AXIAL
+    lines = axial_lines(record)
+    assert lines[0] == "Along the lumen (inlet to outlet)"
+    assert "mixing cup [mol/m^3]" in lines[1] and "wall flux [mol/m^2/s]" in lines[1]
+    assert len(lines) == 3 + len(AXIAL["position"])
+    assert lines[-1].split() == ["0.1", "0.12", "0.08", "4e-07", "0.03"]
+    assert "Along the lumen" in render_text(record, records.case())
+
+
+def test_no_axial_table_without_the_series():
+    record = records.record()
+    assert axial_lines(record) == []
+    assert "Along the lumen" not in render_text(record, records.case())
