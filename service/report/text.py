@@ -12,6 +12,7 @@ from service.report.release_view import (
     per_layer_values,
     requested_times,
 )
+from service.report.text_axial import axial_lines
 from service.report.text_design import (
     design_verdict_line,
     headline_lines,
@@ -21,7 +22,6 @@ from service.report.text_design import (
     uncertainty_lines,
     verdict_lines,
 )
-from service.report.text_axial import axial_lines
 from service.report.text_measured import calibration_lines, credibility_lines, validation_lines
 
 RULE = "-" * 78
