@@ -93,7 +93,9 @@ def _solve_substep(system, u0: np.ndarray, s0: np.ndarray, tau: float | np.ndarr
     """One linearly implicit Euler substep of size tau from (u0, s0): the smooth balance
     linearised about u0 with the step's Jacobian ``slopes`` (diagonal, coupling of node k with
     k + 1), the switching terms exact. Returns (u, s, inflow_inner, inflow_outer,
-    consumption), the last three per mesh as rates (r^n-weighted). ``tau`` may be one size per
+    consumption, flow), the inflows and consumption per mesh as rates (r^n-weighted), ``flow``
+    the linearised balance at u (the balance itself where it is affine in u:
+    ``system.affine``). ``tau`` may be one size per
     node (meshes that are copies stepped with different sizes); ``flow0`` the balance at u0
     where it is known."""
     m = system.lumped
@@ -168,7 +170,7 @@ def _solve_substep(system, u0: np.ndarray, s0: np.ndarray, tau: float | np.ndarr
         rate = np.where(dead, needed, rate)
     inflow_inner, inflow_outer, consumption = system.substep_amounts(u, flow, rate, u0,
                                                                          tau)
-    return u, s, inflow_inner, inflow_outer, consumption
+    return u, s, inflow_inner, inflow_outer, consumption, flow
 
 
 def _euler(system, y0: np.ndarray, h: float, n: int, slopes, tally: StepHistory) -> np.ndarray:
@@ -177,7 +179,7 @@ def _euler(system, y0: np.ndarray, h: float, n: int, slopes, tally: StepHistory)
     amounts = y0[2 * size:].reshape(system.count, 3).copy()
     tau = h / n
     for _ in range(n):
-        u, s, inner, outer, consumed = _solve_substep(system, u, s, tau, slopes, tally)
+        u, s, inner, outer, consumed, _ = _solve_substep(system, u, s, tau, slopes, tally)
         amounts[:, 0] -= tau * inner
         amounts[:, 1] -= tau * outer
         amounts[:, 2] += tau * consumed
@@ -194,7 +196,8 @@ def _euler_together(system, y0: np.ndarray, h: float, slopes, tally: StepHistory
     copy's substep is the one :func:`_euler` takes (the copies do not couple; the active-set
     sweeps run until every copy's sets settle, a further sweep of a settled copy repeating its
     solution). ``flow``: the balance at y0 where it is known (the first substeps start
-    there)."""
+    there); where the balance is affine (``system.affine``) each later substep starts from the
+    balance its predecessor reached."""
     size, count = system.size, system.count
     order = sorted(SEQUENCE, reverse=True)
     copies = len(order)
@@ -205,13 +208,18 @@ def _euler_together(system, y0: np.ndarray, h: float, slopes, tally: StepHistory
     diag_all = np.concatenate([diag] * copies)
     off_all = np.concatenate([off, [0.0]] * copies)
     ends: dict[int, np.ndarray] = {}
+    reached = np.zeros(0)  # the balance the last substeps reached
     for r in range(1, order[0] + 1):
         copies = sum(1 for n in order if n >= r)
         steps = h / np.array(order[:copies], dtype=float)
         tau = np.repeat(steps, size)
         tiled = (diag_all[:copies * size], off_all[:copies * size - 1])
-        start = np.concatenate([flow] * copies) if r == 1 and flow is not None else None
-        u, s, inner, outer, consumed = _solve_substep(
+        if r == 1:
+            start = np.concatenate([flow] * copies) if flow is not None else None
+        else:
+            # an affine balance: the linearised balance at the last substep's end is exact
+            start = reached[:copies * size] if system.affine else None
+        u, s, inner, outer, consumed, reached = _solve_substep(
             system.replica(copies), u[:copies * size], s[:copies * size], tau, tiled, tally,
             start)
         amounts = amounts[:copies * count]
@@ -228,9 +236,11 @@ def _euler_together(system, y0: np.ndarray, h: float, slopes, tally: StepHistory
     return ends
 
 
-def _extrapolate(system, y0: np.ndarray, h: float, tally: StepHistory):
-    """T33 and the error estimate T33 - T32 of one step of size h."""
-    flow, diag, off = system.balance(y0[:system.size], 1.0, slopes=True)
+def _extrapolate(system, y0: np.ndarray, h: float, tally: StepHistory, linear=None):
+    """T33 and the error estimate T33 - T32 of one step of size h; ``linear``: the balance at
+    y0 with its Jacobian, ``system.balance(u0, 1.0, slopes=True)``, where it is known."""
+    flow, diag, off = linear if linear is not None else system.balance(
+        y0[:system.size], 1.0, slopes=True)
     slopes = (diag, off)
     ends = _euler_together(system, y0, h, slopes, tally, flow) if hasattr(system, "replica") \
         else {n: _euler(system, y0, h, n, slopes, tally) for n in SEQUENCE}
@@ -261,16 +271,23 @@ def integrate(system, y0: np.ndarray, times: np.ndarray, end: float, rtol: float
     h = first_step if first_step is not None else 1e-6 * float(targets[0])
     target_index = 0
     steps = 0
+    known = -1
     while target_index < targets.size:
         target = float(targets[target_index])
         landing = t + h >= target * (1.0 - 1e-12)
         h_try = target - t if landing else h
         if not landing and t + 2.0 * h_try > target:
             h_try = 0.5 * (target - t)  # two even steps instead of one long and one sliver
-        h_try = system.limit_to_depletion(y, t, h_try, history)
+        if known != len(history.ts):
+            # what depends on the state alone, once per accepted step (a rejected step
+            # retries from the same state)
+            linear = system.balance(y[:system.size], 1.0, slopes=True)
+            spans = system.event_spans(y, t, history, linear[0])
+            known = len(history.ts)
+        h_try = system.limit_to_events(spans, t, h_try)
         landing = t + h_try >= target * (1.0 - 1e-12)
         try:
-            candidate, estimate = _extrapolate(system, y, h_try, history)
+            candidate, estimate = _extrapolate(system, y, h_try, history, linear)
             scale = atol + rtol * np.maximum(np.abs(y), np.abs(candidate))
             switching = system.switching_nodes(y, candidate)
             if switching.any():
