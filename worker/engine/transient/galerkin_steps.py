@@ -10,7 +10,7 @@ extrapolated linearly implicit / implicit Euler methods; P. Deuflhard, Numer. Ma
 follows the standard controller ``H_new = H min(4, max(0.2, 0.9 err^(-1/3)))`` with a weighted
 root-mean-square norm (where a layer can saturate, after a second rejection from the same time
 with the lower order the two attempts show: ``_shrink``). A step in which a node's undissolved
-solute would run out ends just past that instant (``event_spans`` of the system). The
+solute would run out ends just short of that instant (``event_spans`` of the system). The
 stability function of T33 of implicit Euler tends to 0 along the negative real axis, where the
 spectrum of the lumped P1 system lies (a symmetric stiffness against a positive diagonal mass),
 so stiff modes are damped. The sequences of one step are stepped together

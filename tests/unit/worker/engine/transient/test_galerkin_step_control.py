@@ -1,6 +1,6 @@
 """Step control of the Galerkin stepper (``transient.galerkin_steps``): the step-size factor
-after a rejection, and the landing of a step just past the instant a node's undissolved solute
-runs out (``galerkin._System.event_spans``).
+after a rejection, and the landing of a step on the instant a node's undissolved solute
+would run out (``galerkin._System.event_spans``).
 
 Check values are definitions: the standard controller factor 0.9 err^(-1/p) (E. Hairer,
 G. Wanner, *Solving Ordinary Differential Equations II*, 2nd ed., 1996, section IV.9); an error
@@ -55,7 +55,7 @@ def _system():
     return galerkin._System(problem, [mesh], 1.0)
 
 
-def test_a_step_lands_just_past_the_instant_a_node_runs_out():
+def test_a_step_lands_on_the_instant_a_node_runs_out():
     system = _system()
     y = system.start_state()
     size = system.size
@@ -68,11 +68,15 @@ def test_a_step_lands_just_past_the_instant_a_node_runs_out():
     spans = system.event_spans(y, 1.0, galerkin_steps.StepHistory(ts=[0.0], states=[y]),
                                flow)
     expected = y[size + node] / flow[node]
-    assert spans == [(pytest.approx(expected), galerkin.SWITCH_LANDING)]
-    # a longer step is cut to land just past it; a shorter one is kept
-    assert system.limit_to_events(spans, 1.0, 10.0 * expected) == pytest.approx(
+    assert spans == [(pytest.approx(expected), galerkin.SWITCH_LANDING,
+                      galerkin.SWITCH_SLIVER)]
+    # a longer step is cut to land on it; a shorter one is kept, and so is a step for which
+    # the span is only a sliver
+    assert system.limit_to_events(spans, 1.0, 2.0 * expected) == pytest.approx(
         galerkin.SWITCH_LANDING * expected)
     assert system.limit_to_events(spans, 1.0, 0.5 * expected) == 0.5 * expected
+    long_step = 1.01 * expected / galerkin.SWITCH_SLIVER
+    assert system.limit_to_events(spans, 1.0, long_step) == long_step
     # nothing left to dissolve: no span
     y[size + node] = 0.0
     assert system.event_spans(y, 1.0, galerkin_steps.StepHistory(ts=[0.0], states=[y]),
