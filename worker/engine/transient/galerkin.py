@@ -381,8 +381,6 @@ class _System:
             np.bincount(self.zero, self.zero_rate * self.outer_load[self.zero],
                         minlength=self.left.size))
         self.nonlinear = self.has_saturable or self.has_smooth_zero
-        #: the balance is affine in u (no Gauss-point reaction): its linearisation is exact
-        self.affine = not self.smooth.size
         self.newton_tolerance = 1e-3 * ATOL_CONCENTRATION * c_scale / float(
             np.min(self.partition))
         self.held_value = np.zeros(size)

@@ -99,9 +99,7 @@ def _solve_substep(system, u0: np.ndarray, s0: np.ndarray, tau: float | np.ndarr
     """One linearly implicit Euler substep of size tau from (u0, s0): the smooth balance
     linearised about u0 with the step's Jacobian ``slopes`` (diagonal, coupling of node k with
     k + 1), the switching terms exact. Returns (u, s, inflow_inner, inflow_outer,
-    consumption, flow), the inflows and consumption per mesh as rates (r^n-weighted), ``flow``
-    the linearised balance at u (the balance itself where it is affine in u:
-    ``system.affine``). ``tau`` may be one size per
+    consumption), the last three per mesh as rates (r^n-weighted). ``tau`` may be one size per
     node (meshes that are copies stepped with different sizes); ``flow0`` the balance at u0
     where it is known."""
     m = system.lumped
@@ -176,7 +174,7 @@ def _solve_substep(system, u0: np.ndarray, s0: np.ndarray, tau: float | np.ndarr
         rate = np.where(dead, needed, rate)
     inflow_inner, inflow_outer, consumption = system.substep_amounts(u, flow, rate, u0,
                                                                          tau)
-    return u, s, inflow_inner, inflow_outer, consumption, flow
+    return u, s, inflow_inner, inflow_outer, consumption
 
 
 def _euler(system, y0: np.ndarray, h: float, n: int, slopes, tally: StepHistory) -> np.ndarray:
@@ -185,7 +183,7 @@ def _euler(system, y0: np.ndarray, h: float, n: int, slopes, tally: StepHistory)
     amounts = y0[2 * size:].reshape(system.count, 3).copy()
     tau = h / n
     for _ in range(n):
-        u, s, inner, outer, consumed, _ = _solve_substep(system, u, s, tau, slopes, tally)
+        u, s, inner, outer, consumed = _solve_substep(system, u, s, tau, slopes, tally)
         amounts[:, 0] -= tau * inner
         amounts[:, 1] -= tau * outer
         amounts[:, 2] += tau * consumed
@@ -215,8 +213,7 @@ def _euler_together(system, y0: np.ndarray, h: float, slopes, tally: StepHistory
     copy's substep is the one :func:`_euler` takes (the copies do not couple; the active-set
     sweeps run until every copy's sets settle, a further sweep of a settled copy repeating its
     solution). ``flow``: the balance at y0 where it is known (the first substeps start
-    there); where the balance is affine (``system.affine``) each later substep starts from the
-    balance its predecessor reached."""
+    there)."""
     size, count = system.size, system.count
     order = sorted(SEQUENCE, reverse=True)
     copies = len(order)
@@ -227,19 +224,14 @@ def _euler_together(system, y0: np.ndarray, h: float, slopes, tally: StepHistory
     diag_all = np.concatenate([diag] * copies)
     off_all = np.concatenate([off, [0.0]] * copies)
     ends: dict[int, np.ndarray] = {}
-    reached = np.zeros(0)  # the balance the last substeps reached
     patterns = _patterns(system, order)
     for r in range(1, order[0] + 1):
         copies = sum(1 for n in order if n >= r)
         per_node, per_mesh_count = patterns[copies]
         tau = h / per_node
         tiled = (diag_all[:copies * size], off_all[:copies * size - 1])
-        if r == 1:
-            start = np.concatenate([flow] * copies) if flow is not None else None
-        else:
-            # an affine balance: the linearised balance at the last substep's end is exact
-            start = reached[:copies * size] if system.affine else None
-        u, s, inner, outer, consumed, reached = _solve_substep(
+        start = np.concatenate([flow] * copies) if r == 1 and flow is not None else None
+        u, s, inner, outer, consumed = _solve_substep(
             system.replica(copies), u[:copies * size], s[:copies * size], tau, tiled, tally,
             start)
         amounts = amounts[:copies * count]
