@@ -8,11 +8,14 @@ states are combined by the Aitken-Neville table of the harmonic sequence (E. Hai
 extrapolated linearly implicit / implicit Euler methods; P. Deuflhard, Numer. Math. 41 (1983)
 399): the diagonal entry T33 is third order, T33 - T32 its error estimate, and the step size
 follows the standard controller ``H_new = H min(4, max(0.2, 0.9 err^(-1/3)))`` with a weighted
-root-mean-square norm. The stability function of T33 of implicit Euler tends to 0 along the
-negative real axis, where the spectrum of the lumped P1 system lies (a symmetric stiffness
-against a positive diagonal mass), so stiff modes are damped. The sequences of one step are
-stepped together (``_euler_together``): their r-th substeps are one system of copies of the
-meshes side by side, each copy with its own substep size.
+root-mean-square norm (where a layer can saturate, after a second rejection from the same time
+with the lower order the two attempts show: ``_shrink``). A step in which a node's undissolved
+solute would run out ends just short of that instant (``event_spans`` of the system). The
+stability function of T33 of implicit Euler tends to 0 along the negative real axis, where the
+spectrum of the lumped P1 system lies (a symmetric stiffness against a positive diagonal mass),
+so stiff modes are damped. The sequences of one step are stepped together
+(``_euler_together``): their r-th substeps are one system of copies of the meshes side by side,
+each copy with its own substep size.
 
 Every substep is one implicit Euler system on the r^n-weighted nodal balance
 
@@ -67,6 +70,9 @@ MAX_NEWTON = 25
 SWITCH_TOLERANCE = 1e-3
 #: Largest number of steps before the integration gives up.
 MAX_STEPS = 200_000
+#: Lowest observed order the controller assumes after a second rejection from the same time
+#: (see ``_shrink``).
+LOWEST_ORDER = 0.5
 
 
 @dataclass
@@ -185,6 +191,19 @@ def _euler(system, y0: np.ndarray, h: float, n: int, slopes, tally: StepHistory)
     return np.concatenate((u, s, amounts.ravel()))
 
 
+def _patterns(system, order: list[int]) -> dict[int, tuple[np.ndarray, np.ndarray]]:
+    """Per number of copies: each copy's number of substeps per step, repeated per node and
+    per mesh (cached on the system)."""
+    cached = getattr(system, "_substep_patterns", None)
+    if cached is None:
+        cached = {}
+        for copies in range(1, len(order) + 1):
+            counts = np.array(order[:copies], dtype=float)
+            cached[copies] = (np.repeat(counts, system.size), np.repeat(counts, system.count))
+        system._substep_patterns = cached
+    return cached
+
+
 def _euler_together(system, y0: np.ndarray, h: float, slopes, tally: StepHistory,
                     flow: np.ndarray | None = None) -> dict[int, np.ndarray]:
     """The end states of implicit Euler over h with each of ``SEQUENCE`` substeps, the
@@ -205,17 +224,18 @@ def _euler_together(system, y0: np.ndarray, h: float, slopes, tally: StepHistory
     diag_all = np.concatenate([diag] * copies)
     off_all = np.concatenate([off, [0.0]] * copies)
     ends: dict[int, np.ndarray] = {}
+    patterns = _patterns(system, order)
     for r in range(1, order[0] + 1):
         copies = sum(1 for n in order if n >= r)
-        steps = h / np.array(order[:copies], dtype=float)
-        tau = np.repeat(steps, size)
+        per_node, per_mesh_count = patterns[copies]
+        tau = h / per_node
         tiled = (diag_all[:copies * size], off_all[:copies * size - 1])
         start = np.concatenate([flow] * copies) if r == 1 and flow is not None else None
         u, s, inner, outer, consumed = _solve_substep(
             system.replica(copies), u[:copies * size], s[:copies * size], tau, tiled, tally,
             start)
         amounts = amounts[:copies * count]
-        per_mesh = np.repeat(steps, count)
+        per_mesh = h / per_mesh_count
         amounts[:, 0] -= per_mesh * inner
         amounts[:, 1] -= per_mesh * outer
         amounts[:, 2] += per_mesh * consumed
@@ -228,9 +248,11 @@ def _euler_together(system, y0: np.ndarray, h: float, slopes, tally: StepHistory
     return ends
 
 
-def _extrapolate(system, y0: np.ndarray, h: float, tally: StepHistory):
-    """T33 and the error estimate T33 - T32 of one step of size h."""
-    flow, diag, off = system.balance(y0[:system.size], 1.0, slopes=True)
+def _extrapolate(system, y0: np.ndarray, h: float, tally: StepHistory, linear=None):
+    """T33 and the error estimate T33 - T32 of one step of size h; ``linear``: the balance at
+    y0 with its Jacobian, ``system.balance(u0, 1.0, slopes=True)``, where it is known."""
+    flow, diag, off = linear if linear is not None else system.balance(
+        y0[:system.size], 1.0, slopes=True)
     slopes = (diag, off)
     ends = _euler_together(system, y0, h, slopes, tally, flow) if hasattr(system, "replica") \
         else {n: _euler(system, y0, h, n, slopes, tally) for n in SEQUENCE}
@@ -243,6 +265,27 @@ def _extrapolate(system, y0: np.ndarray, h: float, tally: StepHistory):
         table.append(row)
     best = table[-1][-1]
     return best, best - table[-1][-2]
+
+
+def _shrink(error: float, h: float, before: tuple[float, float, float] | None) -> float:
+    """Factor of the step size after a rejected step of size h with error ``error`` (in the
+    tolerance norm). The controller assumes the error scales as h^ORDER; where a step is
+    rejected again from the same time (``before``: the earlier attempt's t, h, error), the
+    order the two attempts show, log(e1/e2) / log(h1/h2), is used instead when it is lower
+    (at least ``LOWEST_ORDER``): right after a node switches, the error is a fast local
+    transient that shrinks much more slowly than h^ORDER, and the standard factor would take
+    many rejections to get there."""
+    if not math.isfinite(error):
+        return SHRINK
+    order = float(ORDER)
+    if before is not None:
+        _, h_before, error_before = before
+        if h_before > h and error_before > error:
+            observed = math.log(error_before / error) / math.log(h_before / h)
+            order = min(order, max(LOWEST_ORDER, observed))
+        elif error_before <= error:
+            order = LOWEST_ORDER
+    return max(SHRINK, SAFETY * error ** (-1.0 / order))
 
 
 def integrate(system, y0: np.ndarray, times: np.ndarray, end: float, rtol: float,
@@ -261,16 +304,24 @@ def integrate(system, y0: np.ndarray, times: np.ndarray, end: float, rtol: float
     h = first_step if first_step is not None else 1e-6 * float(targets[0])
     target_index = 0
     steps = 0
+    known = -1
+    retried: tuple[float, float, float] | None = None  # (t, h, error) of the last rejection
     while target_index < targets.size:
         target = float(targets[target_index])
         landing = t + h >= target * (1.0 - 1e-12)
         h_try = target - t if landing else h
         if not landing and t + 2.0 * h_try > target:
             h_try = 0.5 * (target - t)  # two even steps instead of one long and one sliver
-        h_try = system.limit_to_depletion(y, t, h_try, history)
+        if known != len(history.ts):
+            # what depends on the state alone, once per accepted step (a rejected step
+            # retries from the same state)
+            linear = system.balance(y[:system.size], 1.0, slopes=True)
+            spans = system.event_spans(y, t, history, linear[0])
+            known = len(history.ts)
+        h_try = system.limit_to_events(spans, t, h_try)
         landing = t + h_try >= target * (1.0 - 1e-12)
         try:
-            candidate, estimate = _extrapolate(system, y, h_try, history)
+            candidate, estimate = _extrapolate(system, y, h_try, history, linear)
             scale = atol + rtol * np.maximum(np.abs(y), np.abs(candidate))
             switching = system.switching_nodes(y, candidate)
             if switching.any():
@@ -291,9 +342,11 @@ def integrate(system, y0: np.ndarray, times: np.ndarray, end: float, rtol: float
             return history
         if not math.isfinite(error) or error > 1.0:
             history.rejected += 1
-            factor = SHRINK if not math.isfinite(error) else max(
-                SHRINK, SAFETY * error ** (-1.0 / ORDER))
-            h = h_try * factor
+            h = h_try * _shrink(error, h_try, retried if retried is not None and
+                                retried[0] == t else None)
+            # measured: it saves steps where dissolution fronts pass nodes, but not where
+            # zero-order consumption runs out (there it took more steps), so only the former
+            retried = (t, h_try, error) if system.can_saturate else None
             continue
         y = system.project(candidate)
         t = target if landing else t + h_try
