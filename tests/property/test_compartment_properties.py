@@ -93,3 +93,19 @@ def test_uniform_load_rises_monotonically_to_its_equilibrium(problem):
     assert np.all(np.diff(fluid[:-1]) >= -1e-9 * expected)
     assert np.all(fluid[:-1] <= expected * (1 + 1e-9))
     assert abs(fluid[-1] - expected) < 1e-6 * expected
+
+
+def test_a_subnormal_starting_level_integrates():
+    """Hypothesis once drew a compartment starting at 5e-324 with an empty body: the
+    concentration scale was that subnormal number and the integrator's absolute tolerances
+    underflowed to zero (a division by zero in its first-step choice). Such a scale now counts
+    as none (1), and mass is conserved as for any case."""
+    problem = Problem("slab", 0.0, (Layer("membrane", 1e-4, 1e-10, 1.0, initial=0.0),),
+                      Boundary("flux"),
+                      Boundary("compartment", volume=1e-6, initial=5e-324),
+                      Regime("transient", 10.0, (1.0, 10.0)), area=1e-4)
+    solution = solve_transient_fv(problem, cells_per_layer=[12])
+    assert solution.success
+    residual = solution.initial_load - solution.remaining - solution.released_inner \
+        - solution.released_outer - solution.consumed
+    assert np.all(np.isfinite(residual))

@@ -2,18 +2,19 @@
 exact complementarity for the switching terms, error control and steps that land on the
 requested times.
 
-One step of size H is taken as implicit Euler with 1, 2 and 3 equal substeps; the three end
-states are combined by the Aitken-Neville table of the harmonic sequence (E. Hairer, G. Wanner,
-*Solving Ordinary Differential Equations II*, 2nd ed., Springer, 1996, section IV.9, the
-extrapolated linearly implicit / implicit Euler methods; P. Deuflhard, Numer. Math. 41 (1983)
-399): the diagonal entry T33 is third order, T33 - T32 its error estimate, and the step size
-follows the standard controller ``H_new = H min(4, max(0.2, 0.9 err^(-1/3)))`` with a weighted
+One step of size H is taken as implicit Euler with 1, 2, 3 and 4 equal substeps
+(``SEQUENCE``); the four end states are combined by the Aitken-Neville table of the harmonic
+sequence (E. Hairer, G. Wanner, *Solving Ordinary Differential Equations II*, 2nd ed.,
+Springer, 1996, section IV.9, the extrapolated linearly implicit / implicit Euler methods;
+P. Deuflhard, Numer. Math. 41 (1983) 399): the diagonal entry T44 is fourth order, T44 - T43
+its error estimate, and the step size follows the standard controller
+``H_new = H min(4, max(0.2, 0.9 err^(-1/4)))`` with a weighted
 root-mean-square norm (where a layer can saturate, after a second rejection from the same time
 with the lower order the two attempts show: ``_shrink``). A step in which a node's undissolved
 solute would run out ends just short of that instant (``event_spans`` of the system). The
-stability function of T33 of implicit Euler tends to 0 along the negative real axis, where the
-spectrum of the lumped P1 system lies (a symmetric stiffness against a positive diagonal mass),
-so stiff modes are damped. The sequences of one step are stepped together
+stability function of the table's diagonal entries of implicit Euler tends to 0 along the
+negative real axis, where the spectrum of the lumped P1 system lies (a symmetric stiffness
+against a positive diagonal mass), so stiff modes are damped. The sequences of one step are stepped together
 (``_euler_together``): their r-th substeps are one system of copies of the meshes side by side,
 each copy with its own substep size.
 
@@ -249,8 +250,9 @@ def _euler_together(system, y0: np.ndarray, h: float, slopes, tally: StepHistory
 
 
 def _extrapolate(system, y0: np.ndarray, h: float, tally: StepHistory, linear=None):
-    """T33 and the error estimate T33 - T32 of one step of size h; ``linear``: the balance at
-    y0 with its Jacobian, ``system.balance(u0, 1.0, slopes=True)``, where it is known."""
+    """The table's last diagonal entry (T44) and its error estimate (T44 - T43) of one step of
+    size h; ``linear``: the balance at y0 with its Jacobian,
+    ``system.balance(u0, 1.0, slopes=True)``, where it is known."""
     flow, diag, off = linear if linear is not None else system.balance(
         y0[:system.size], 1.0, slopes=True)
     slopes = (diag, off)

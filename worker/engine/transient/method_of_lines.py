@@ -149,7 +149,9 @@ class TransientFVSolution(TransientSolution):
 
 
 def concentration_scale(problem: Problem) -> float:
-    """Largest of the boundary-set and initial concentrations (material side), or 1 if none."""
+    """Largest of the boundary-set and initial concentrations (material side), or 1 if none
+    (a scale below the smallest normal double, such as a subnormal initial level, counts as
+    none: the tolerances built on it would underflow to zero)."""
     scale = max(boundary_concentration_scale(problem),
                 max(abs(layer.initial) for layer in problem.layers))
     if scale == 0.0:
@@ -159,7 +161,7 @@ def concentration_scale(problem: Problem) -> float:
         flux = max(abs(value) if value is not None else 0.0 for value in imposed)
         d_min = min(layer.diffusivity for layer in problem.layers)
         scale = flux * problem.total_thickness / d_min
-    return scale if scale > 0.0 else 1.0
+    return scale if scale >= np.finfo(float).tiny else 1.0
 
 
 @dataclass(frozen=True)
