@@ -14,9 +14,9 @@ with the lower order the two attempts show: ``_shrink``). A step in which a node
 solute would run out ends just short of that instant (``event_spans`` of the system). The
 stability function of the table's diagonal entries of implicit Euler tends to 0 along the
 negative real axis, where the spectrum of the lumped P1 system lies (a symmetric stiffness
-against a positive diagonal mass), so stiff modes are damped. The sequences of one step are stepped together
-(``_euler_together``): their r-th substeps are one system of copies of the meshes side by side,
-each copy with its own substep size.
+against a positive diagonal mass), so stiff modes are damped. The sequences of one step are
+stepped together (``_euler_together``): their r-th substeps are one system of copies of the
+meshes side by side, each copy with its own substep size.
 
 Every substep is one implicit Euler system on the r^n-weighted nodal balance
 
