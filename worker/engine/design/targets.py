@@ -48,10 +48,12 @@ from worker.engine.transient.uptake import releases
 
 #: The boundary kind of a well-stirred finite volume at a face (``worker.engine.boundaries``).
 COMPARTMENT = "compartment"
+#: The boundary kind of a lumen with flow along it (``worker.engine.boundaries.flow``).
+FLOW = "flow"
 #: The series quantity of one probe's concentration.
 PROBE = "probe_concentration"
 
-__all__ = ["COMPARTMENT", "PROBE", "QuantitySpec", "Target", "TargetError", "check_target",
+__all__ = ["COMPARTMENT", "FLOW", "PROBE", "QuantitySpec", "Target", "TargetError", "check_target",
            "quantities", "target_dimension"]
 
 
