@@ -126,3 +126,35 @@ def test_a_misread_flow_rate_fails_the_interpretation_check(monkeypatch):
         check = next(c for c in record["checks"] if c["name"] == "inputs.interpretation")
         assert not check["passed"]
         assert record["verdict"] != "pass"
+
+
+def test_requirements_and_the_smallest_flow_rate_that_keeps_the_minimum():
+    """A requirement on the lowest concentration and a design limit on the flow rate: the
+    limit is where the full check finds the margin zero, and more flow meets it (the minimum
+    rises as the fluid loses less solute along the fibre)."""
+    case = _doc()
+    threshold = 2.4e-4  # invented, between the minima at the ends of the range
+    case["requirements"] = [
+        {"id": "MIN", "quantity": "concentration_min", "at_least": f"{threshold} mol/m^3"},
+        {"id": "OUT", "quantity": "outlet_concentration", "at_least": "0.1 mol/m^3"}]
+    case["design_limit"] = {"vary": "inner_boundary.flow_rate", "requirement": "MIN",
+                            "range": ["0.02 mL/min", "2 mL/min"]}
+    record = check_case(case)
+    validate_result(copy.deepcopy(record))
+    judged = {r["id"]: r for r in record["design"]["requirements"]}
+    assert judged["OUT"]["status"] == "met"
+    assert judged["MIN"]["status"] == "not_met"
+    limit = record["design_limit"]
+    assert limit["value"] is not None, limit
+    assert limit["met_side"] == "above"
+    assert limit["verdict"] == "pass"
+    assert abs(limit["check"]["margin"]) <= 1e-5 * threshold
+    trial_model = next(c for c in record["checks"] if c["name"] == "design_limit.trial_model")
+    assert trial_model["passed"]
+
+
+def test_a_flow_case_offers_only_its_own_quantities():
+    case = _doc()
+    case["requirements"] = [{"id": "F", "quantity": "flux_inner", "at_most": "1 mol/m^2/s"}]
+    errors = _errors(case)
+    assert any("outlet_concentration" in m for m in errors.values()), errors

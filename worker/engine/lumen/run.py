@@ -65,6 +65,7 @@ __all__ = [
     "COARSE_MESH",
     "FlowRun",
     "convergence_checks",
+    "flow_figures",
     "graetz_check",
     "krogh_check",
     "layers_problem",
@@ -325,6 +326,24 @@ def _body_minimum(run: FlowRun, layers: Problem) -> tuple[float, float, float, n
     along[k] = min(fluid_min[k], direct.minimum)
     best = layer if layer[0] <= fluid[0] else fluid
     return best[0], best[1], best[2], along
+
+
+def _figures(run: FlowRun, layers: Problem) -> dict[str, float]:
+    tube, fine = run.tube, run.fine
+    driving = float(fine.mixing_cup[-1] - fine.wall[-1])
+    sherwood = (2.0 * tube.radius * float(fine.wall_flux[-1]) / (tube.diffusivity * driving)
+                if driving != 0.0 else math.nan)
+    value, r_min, z_min, _ = _body_minimum(run, layers)
+    return {"outlet_concentration": float(fine.mixing_cup[-1]), "concentration_min": value,
+            "concentration_min_r": r_min, "concentration_min_z": z_min,
+            "peclet": peclet_number(tube.radius, tube.flow_rate, tube.diffusivity),
+            "graetz": 1.0 / float(tube.z_star(tube.length)), "sherwood_outlet": sherwood}
+
+
+def flow_figures(problem: Problem, coarse=COARSE_MESH) -> dict[str, float]:
+    """The record's scalar figures of a steady flow case by the primary solve alone (the
+    design trials' model: the same meshes and wall law as :func:`run_flow`, no checks)."""
+    return _figures(solve_flow(problem, coarse), layers_problem(problem))
 
 
 def run_flow(problem: Problem, independent: Problem | None = None,
