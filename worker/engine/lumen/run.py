@@ -77,6 +77,8 @@ __all__ = [
     "wall_law_check",
 ]
 
+#: Studied quantities that are concentrations (their bands are taken over the inlet's).
+CONCENTRATIONS = ("outlet_mixing_cup", "concentration_min")
 #: Coarse mesh (radial cells, axial steps); the study refines each by 2 twice.
 COARSE_MESH = (10, 20)
 REFINEMENT = 2
@@ -144,9 +146,10 @@ def _meshes(coarse=COARSE_MESH, ratio=REFINEMENT):
     return r_study, z_study
 
 
-def _studied(solution: MarchSolution) -> dict[str, float]:
+def _studied(solution: MarchSolution, table: WallTable, layers: Problem) -> dict[str, float]:
     return {"outlet_mixing_cup": solution.quantity("outlet_mixing_cup"),
-            "through_wall": solution.quantity("through_wall")}
+            "through_wall": solution.quantity("through_wall"),
+            "concentration_min": _minimum_of(solution, table, layers)[0]}
 
 
 def solve_flow(problem: Problem, coarse=COARSE_MESH) -> FlowRun:
@@ -171,7 +174,7 @@ def solve_flow(problem: Problem, coarse=COARSE_MESH) -> FlowRun:
             by_mesh = {mesh: march(tube, table.wall(), *mesh) for mesh in meshes}
     studies = {}
     for direction, meshes in (("r", r_study), ("z", z_study)):
-        values = [_studied(by_mesh[m]) for m in meshes]
+        values = [_studied(by_mesh[m], table, layers) for m in meshes]
         studies[direction] = {
             name: grid_study([v[name] for v in values], ratios=(REFINEMENT, REFINEMENT))
             for name in values[0]}
@@ -190,10 +193,10 @@ def _gci(study: GridStudy) -> float:
 
 def convergence_checks(outcome: Outcome, problem: Problem, studies: dict, meshes,
                        inlet: float) -> dict:
-    """``convergence.space_r`` and ``convergence.space_z``: the larger of the outlet mixing
-    cup's grid band (GCI_fine times its value) over the inlet concentration and the GCI_fine
-    (fraction) of the amount through the wall; returns each quantity's grid band (its unit)
-    summed over the directions."""
+    """``convergence.space_r`` and ``convergence.space_z``: the largest of the grid bands
+    (GCI_fine times the value) of the outlet mixing cup and of the body's minimum over the
+    inlet concentration, and the GCI_fine (fraction) of the amount through the wall; returns
+    each quantity's grid band (its unit) summed over the directions."""
     bands: dict[str, float] = {}
     for direction, mesh_list in zip(("r", "z"), meshes, strict=True):
         worst, words = 0.0, []
@@ -201,7 +204,7 @@ def convergence_checks(outcome: Outcome, problem: Problem, studies: dict, meshes
             gci = _gci(study)
             band = gci * abs(study.fine)
             bands[name] = bands.get(name, 0.0) + band
-            relative = band / max(abs(inlet), 1e-300) if name == "outlet_mixing_cup" else gci
+            relative = band / max(abs(inlet), 1e-300) if name in CONCENTRATIONS else gci
             worst = max(worst, relative) if math.isfinite(relative) else math.inf
             order = (f"{study.apparent_order:.3g}" if math.isfinite(study.apparent_order)
                      else "not formed")
@@ -211,8 +214,8 @@ def convergence_checks(outcome: Outcome, problem: Problem, studies: dict, meshes
             f"convergence.space_{direction}", worst,
             check_limit(problem, f"convergence.space_{direction}"),
             f"meshes (radial cells, axial steps) {', '.join(map(str, mesh_list))}, refined in "
-            f"{direction} only: " + "; ".join(words) + "; the mixing cup's band taken over the "
-            "inlet concentration (Celik et al. 2008)")
+            f"{direction} only: " + "; ".join(words) + "; the concentrations' bands taken over "
+            "the inlet concentration (Celik et al. 2008)")
     return bands
 
 
@@ -235,15 +238,16 @@ def mass_balance_check(outcome: Outcome, problem: Problem, *, inlet_rate: float,
 
 
 def wall_law_check(outcome: Outcome, problem: Problem, table: WallTable) -> None:
-    """``cross_check.wall_law``: the tabulated j(c_w) against direct solves between nodes."""
+    """``cross_check.wall_law``: the tabulated layers against direct solves between nodes."""
     points = ", ".join(f"{c:.4g}" for c, _ in table.verified)
     outcome.check_at_most(
         "cross_check.wall_law", table.worst_error, _limit(problem, "cross_check.wall_law"),
         f"monotone cubic table of the layers' wall flux on {len(table.nodes)} wall "
         f"concentrations in [0, {table.top:.6g}] {problem.concentration_unit}, verified over "
         f"[{table.low:.6g}, {table.top:.6g}] (the wall concentrations the lumen reaches) "
-        f"against direct steady solves at {points}; largest difference relative to the "
-        "largest flux")
+        f"against direct steady solves at {points}; largest difference of the wall flux, the "
+        "consumption and the outer-face rate, relative to the largest flux (rate through the "
+        "wall)")
 
 
 def _series_for(independent: Problem, z_star: float) -> tuple[GraetzSeries, float, float]:
@@ -311,21 +315,29 @@ def _trapezoid(y, x) -> float:
     return float(np.sum(0.5 * (y[1:] + y[:-1]) * np.diff(x)))
 
 
-def _body_minimum(run: FlowRun, layers: Problem) -> tuple[float, float, float, np.ndarray]:
-    """(value, r, z) of the lowest concentration of the fluid and the layers, and the
-    per-position minimum along the lumen (fine mesh)."""
-    fine = run.fine
-    layer_min = np.asarray(run.table.minimum(fine.wall), dtype=float)
-    fluid_min = fine.concentration.min(axis=1)
+def _minimum_of(solution: MarchSolution, table: WallTable, layers: Problem
+                ) -> tuple[float, float, float, np.ndarray]:
+    """(value, r, z) of the lowest concentration of the fluid and the layers on one mesh, and
+    the per-position minimum along the lumen. The layers' minimum at each position comes from
+    the table; at the lowest position it is solved again directly."""
+    layer_min = np.asarray(table.minimum(solution.wall), dtype=float)
+    fluid_min = solution.concentration.min(axis=1)
     along = np.minimum(layer_min, fluid_min)
     k = int(np.argmin(layer_min))
-    direct = layer_answer(layers, float(fine.wall[k]))
-    i, j = np.unravel_index(int(np.argmin(fine.concentration)), fine.concentration.shape)
-    fluid = (float(fine.concentration[i, j]), float(fine.radii[j]), float(fine.position[i]))
-    layer = (direct.minimum, direct.minimum_radius, float(fine.position[k]))
+    direct = layer_answer(layers, float(solution.wall[k]))
+    i, j = np.unravel_index(int(np.argmin(solution.concentration)),
+                            solution.concentration.shape)
+    fluid = (float(solution.concentration[i, j]), float(solution.radii[j]),
+             float(solution.position[i]))
+    layer = (direct.minimum, direct.minimum_radius, float(solution.position[k]))
     along[k] = min(fluid_min[k], direct.minimum)
     best = layer if layer[0] <= fluid[0] else fluid
     return best[0], best[1], best[2], along
+
+
+def _body_minimum(run: FlowRun, layers: Problem) -> tuple[float, float, float, np.ndarray]:
+    """:func:`_minimum_of` on the finest mesh."""
+    return _minimum_of(run.fine, run.table, layers)
 
 
 def _figures(run: FlowRun, layers: Problem) -> dict[str, float]:
@@ -435,7 +447,8 @@ def run_flow(problem: Problem, independent: Problem | None = None,
 
     value, r_min, z_min, along = _body_minimum(run, layers)
     outcome.add_quantity("outlet_concentration", outlet, conc, uncertainty=fall_band)
-    outcome.add_quantity("concentration_min", value, conc)
+    outcome.add_quantity("concentration_min", value, conc,
+                         uncertainty=bands["concentration_min"])
     outcome.quantities["concentration_min_position"] = {"value": [r_min, z_min], "unit": "m",
                                                         "r": r_min, "z": z_min}
     outcome.add_quantity("peclet", pe, "1")

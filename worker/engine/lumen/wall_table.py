@@ -126,13 +126,26 @@ class WallTable:
         return self._minimum(np.clip(c_wall, 0.0, self.top))
 
 
+def _table_error(table: WallTable, direct: LayerAnswer, c: float, scale: float,
+                 radius: float) -> float:
+    """The table's largest difference from a direct solve at c: of the wall flux, relative to
+    the largest |j| (``scale``), and of the consumption and the outer-face rate per unit
+    length, relative to the largest rate through the wall, ``2 pi R scale``."""
+    per_length = 2.0 * math.pi * radius * scale
+    return max(abs(table.flux(c)[0] - direct.wall_flux) / scale,
+               abs(float(table.consumption_per_length(c)) - direct.consumption_per_length)
+               / per_length,
+               abs(float(table.outer_per_length(c)) - direct.outer_per_length) / per_length)
+
+
 def tabulate(problem: Problem, top: float, tolerance: float, *, low: float = 0.0,
              start: WallTable | None = None, max_nodes: int = MAX_NODES) -> WallTable:
     """Tabulate the layers over c_w in [0, top] (``problem``: the layers with the lumen wall
     as a ``concentration`` face), verified over [``low``, top].
 
     Every interval reaching into [low, top] has its midpoint checked against a direct solve;
-    where j misses ``tolerance`` (relative to the largest |j|) the midpoint joins the nodes
+    where j, the consumption or the outer-face rate misses ``tolerance`` (relative to the
+    largest |j| or the largest rate through the wall) the midpoint joins the nodes
     and the intervals whose interpolant that changes (pchip slopes use the neighbours) are
     checked again, until all pass or the table holds ``max_nodes``. A law with a kink (a
     zero-order layer whose dry zone reaches a face) is so refined around the kink alone; one
@@ -159,7 +172,7 @@ def tabulate(problem: Problem, top: float, tolerance: float, *, low: float = 0.0
                 continue
             c = 0.5 * (nodes[i] + nodes[i + 1])
             direct = layer_answer(problem, c)
-            error = abs(table.flux(c)[0] - direct.wall_flux) / scale
+            error = _table_error(table, direct, c, scale, problem.inner)
             errors[nodes[i]] = (c, error)
             if error > tolerance:
                 failing.append((i, c, direct))
