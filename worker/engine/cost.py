@@ -47,7 +47,7 @@ import numpy as np
 from worker.engine.bvp_steady import BVP_MAX_JACOBIAN_ENTRIES, BVP_MAX_NODES
 from worker.engine.design.request import DesignRequest
 from worker.engine.design.sampling import default_block_size
-from worker.engine.design.targets import COMPARTMENT
+from worker.engine.design.targets import COMPARTMENT, FLOW
 from worker.engine.fv_mesh import (
     MIN_CELLS_PER_LAYER,
     RESISTANCE_CELLS,
@@ -287,6 +287,25 @@ def _transient_cells(problem: Problem, wanted: list[int]) -> int:
     return TRANSIENT_MESH_FACTOR * coarse
 
 
+#: A lumen with flow (``worker.engine.lumen.run``): steady solves of the layers charged to its
+#: wall table (measured: 35-60 for a Michaelis-Menten fibre, first pass and verification), and
+#: the marching's work per cell-step of its five meshes (three half and whole steps, a few
+#: Newton iterations on the table each). Its design trials are full primary solves.
+FLOW_TABLE_SOLVES = 80
+FLOW_CELL_STEP_WORK = 12.0
+#: Cell-steps of the five meshes of the lumen's studies (coarse 10 x 20 refined twice by 2 in
+#: r and in z, the finest shared).
+FLOW_CELL_STEPS = 40 * 80 + 20 * 80 + 10 * 80 + 40 * 40 + 40 * 20
+#: Values of the finest lumen field kept (radial cells times axial nodes).
+FLOW_FINEST_FIELD = 40 * 81
+
+
+def _flow_check_work(problem: Problem, wanted: list[int]) -> float:
+    one_solve = float(sum(min(n, 4000) for n in wanted)) * (
+        1 if problem.is_linear else NONLINEAR_ITERATIONS)
+    return FLOW_TABLE_SOLVES * one_solve + FLOW_CELL_STEP_WORK * FLOW_CELL_STEPS
+
+
 def estimate_cost(problem: Problem, design: DesignRequest | None = None) -> CostEstimate:
     """The estimated cost of checking ``problem`` with ``design``'s runs (no solve)."""
     design = design or DesignRequest()
@@ -294,7 +313,12 @@ def estimate_cost(problem: Problem, design: DesignRequest | None = None) -> Cost
     costliest = max(range(len(wanted)), key=wanted.__getitem__)
     linear = problem.is_linear
     collocation = 0
-    if problem.regime.kind == "transient":
+    flow = problem.inner_boundary.kind == FLOW
+    if flow:
+        steps = 1
+        cells = sum(min(n, 4000) for n in wanted) + FLOW_FINEST_FIELD
+        check_work = _flow_check_work(problem, wanted)
+    elif problem.regime.kind == "transient":
         cells = _transient_cells(problem, wanted)
         steps = _transient_steps(problem)
         check_work = float(cells) * steps * TRANSIENT_STEP_WORK
@@ -308,7 +332,9 @@ def estimate_cost(problem: Problem, design: DesignRequest | None = None) -> Cost
             check_work += float(collocation) * NONLINEAR_ITERATIONS
     closed_form = problem.regime.kind == "steady" and all(
         ly.reaction.kind in ("none", "first_order", "zero_order") for ly in problem.layers)
-    if closed_form:
+    if flow:
+        trial = check_work
+    elif closed_form:
         trial = CLOSED_FORM_TRIAL_WORK
     elif problem.regime.kind == "steady":
         trial = BATCHED_TRIAL_FRACTION * check_work

@@ -158,3 +158,18 @@ def test_a_flow_case_offers_only_its_own_quantities():
     case["requirements"] = [{"id": "F", "quantity": "flux_inner", "at_most": "1 mol/m^2/s"}]
     errors = _errors(case)
     assert any("outlet_concentration" in m for m in errors.values()), errors
+
+
+def test_monte_carlo_on_a_flow_case_is_refused_by_its_cost():
+    """Each Monte Carlo trial of a flow case is a full primary solve of the lumen: the
+    adaptive run's fewest trials (two blocks, JCGM 101:2008 §7.9.4) exceed the work budget,
+    and the error names the field and suggests a sweep or a design limit instead."""
+    case = _doc()
+    case["requirements"] = [{"id": "OUT", "quantity": "outlet_concentration",
+                             "at_least": "0.1 mol/m^3"}]
+    case["uncertainty"] = {"inputs": [{"field": "layers[1].reaction.vmax",
+                                       "distribution": "normal", "relative_sd": 0.1}],
+                           "max_trials": 20000}
+    errors = _errors(case)
+    assert "uncertainty.max_trials" in errors
+    assert "design_limit" in errors["uncertainty.max_trials"]
