@@ -223,3 +223,21 @@ def test_other_outer_faces(kind, outer):
                                                    if not c.passed]
     assert ("cross_check.graetz" in {c.name for c in outcome.checks}) == (kind == "first_order")
     assert outcome.quantities["concentration_min"]["uncertainty"] >= 0.0
+
+
+def test_a_wall_resistance_tending_to_zero_reaches_the_fixed_wall_limit():
+    """A thin, very permeable layer with ever faster first-order uptake is a wall of ever
+    larger conductance; the outlet mixing cup tends to the Graetz series for a wall held at
+    zero (Graetz 1883; Shah & London 1978, ch. 5), from above."""
+    z_star = math.pi * 2e-9 * 0.05 / (4 * 1.2e-9)
+    dirichlet = 0.2 * float(graetz_series(60).mixing_cup(z_star)[0])
+    gaps = []
+    for k in (1e2, 1e4):
+        problem = Problem("cylinder", 100e-6, (Layer("sink", 20e-6, 1e-7, 1.0, Reaction(
+            "first_order", rate_constant=k)),), Boundary("flow", flow_rate=1.2e-9, inlet=0.2,
+                                                          diffusivity=2e-9),
+                          Boundary("symmetry"), length=0.05)
+        outlet = run_problem(problem).quantities["outlet_concentration"]["value"]
+        gaps.append((outlet - dirichlet) / dirichlet)
+    assert 0.0 < gaps[1] < gaps[0]
+    assert gaps[1] < 2e-3
