@@ -1031,6 +1031,10 @@ def _flow_rules(data: Mapping) -> Iterator[tuple[str, str]]:
     if _is_transient(data):
         yield ("regime.kind", "a flow boundary is offered for steady cases only; the transient "
                               "lumen is not offered yet: make the regime steady")
+    if data.get("probes"):
+        yield ("probes", "probes are not read in a flow case yet (the concentration varies "
+                         "along the lumen): remove them; the record gives the axial series and "
+                         "the lowest concentration with its position")
 
 
 CASE_RULES = (

@@ -64,6 +64,7 @@ def test_the_fibre_validates_and_both_routes_read_the_flow_fields():
     ({"inner": "0 m"}, "inner", "lumen radius"),
     ({"length": None}, "length", "length of the lumen"),
     ({"regime": {"kind": "transient", "duration": "1 d"}}, "regime.kind", "not offered yet"),
+    ({"probes": ["200 um"]}, "probes", "not read in a flow case"),
 ])
 def test_rules_name_the_field(changes, path, words):
     doc = _doc(**{k: v for k, v in changes.items() if v is not None})
