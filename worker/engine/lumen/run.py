@@ -259,21 +259,26 @@ def _series_for(independent: Problem, z_star: float) -> tuple[GraetzSeries, floa
     return series, wall.conductance, wall.outside
 
 
-def graetz_check(outcome: Outcome, problem: Problem, *, outlet_mixing_cup: float,
-                 outlet_wall: float, band: float, series_mixing_cup: float, series_wall: float,
-                 series_band: float, scale: float) -> None:
-    """``cross_check.graetz``: the larger of the outlet mixing-cup and wall differences over
+def graetz_check(outcome: Outcome, problem: Problem, *, mixing_cup, outlet_wall: float,
+                 band: float, series_mixing_cup, series_wall: float, series_band: float,
+                 scale: float) -> None:
+    """``cross_check.graetz``: the larger of the mixing-cup difference along the lumen (the
+    positions where the series is trusted, arrays alike) and the outlet wall difference, over
     ``scale`` (the driving difference c_in - c_out); it fails only beyond the limit plus both
     routes' bands (``band``: the marching's, ``series_band``: the truncation's, both over
     ``scale``)."""
-    diff = max(abs(outlet_mixing_cup - series_mixing_cup), abs(outlet_wall - series_wall))
-    value = diff / scale
+    cup = np.abs(np.atleast_1d(np.asarray(mixing_cup, dtype=float))
+                 - np.atleast_1d(np.asarray(series_mixing_cup, dtype=float)))
+    k = int(np.argmax(cup))
+    value = max(float(cup[k]), abs(outlet_wall - series_wall)) / scale
     limit = check_limit(problem, "cross_check.graetz") + band + series_band
     outcome.check_at_most(
         "cross_check.graetz", value, limit,
-        f"outlet mixing cup: marching {outlet_mixing_cup:.9g}, Graetz series (layers as a "
-        f"Robin wall) {series_mixing_cup:.9g}; fluid at the wall: {outlet_wall:.9g} vs "
-        f"{series_wall:.9g} {problem.concentration_unit}; relative to the driving difference "
+        f"mixing cup at {cup.size} positions along the lumen: largest difference "
+        f"{float(cup[k]):.3g} {problem.concentration_unit} (marching "
+        f"{float(np.atleast_1d(mixing_cup)[k]):.9g}, Graetz series with the layers as a Robin "
+        f"wall {float(np.atleast_1d(series_mixing_cup)[k]):.9g}); fluid at the wall at the "
+        f"outlet: {outlet_wall:.9g} vs {series_wall:.9g}; relative to the driving difference "
         f"{scale:.6g}; limit includes the grid band {band:.3g} and the series band "
         f"{series_band:.3g} (Graetz 1883; Shah & London 1978)")
 
@@ -406,11 +411,13 @@ def run_flow(problem: Problem, independent: Problem | None = None,
         series, conductance, c_out = _series_for(independent, z_star)
         if z_star >= series.smallest_z_star(SERIES_TOLERANCE):
             scale = max(abs(tube.inlet - c_out), 1e-300)
+            z_all = np.asarray(tube.z_star(fine.position), dtype=float)
+            trusted = z_all >= series.smallest_z_star(SERIES_TOLERANCE)
             graetz_check(
-                outcome, problem, outlet_mixing_cup=outlet, outlet_wall=float(fine.wall[-1]),
-                band=fall_band / scale,
-                series_mixing_cup=c_out + (tube.inlet - c_out) * float(
-                    series.mixing_cup(z_star)[0]),
+                outcome, problem, mixing_cup=fine.mixing_cup[trusted],
+                outlet_wall=float(fine.wall[-1]), band=fall_band / scale,
+                series_mixing_cup=c_out + (tube.inlet - c_out) * series.mixing_cup(
+                    z_all[trusted]),
                 series_wall=c_out + (tube.inlet - c_out) * float(series.wall(z_star)[0]),
                 series_band=SERIES_TOLERANCE, scale=scale)
             methods.append({"role": "independent", "name": "Graetz series, layers as a Robin "

@@ -145,12 +145,16 @@ def test_mass_balance_check_catches_either_end_and_the_layers():
 
 
 def test_graetz_check_catches_an_error_in_either_route():
-    good = dict(outlet_mixing_cup=0.1794, outlet_wall=0.1709, band=1e-6,
-                series_mixing_cup=0.1794, series_wall=0.1709, series_band=1e-10, scale=0.2)
+    cup = np.array([0.199, 0.19, 0.1794])
+    good = dict(mixing_cup=cup, outlet_wall=0.1709, band=1e-6, series_mixing_cup=cup.copy(),
+                series_wall=0.1709, series_band=1e-10, scale=0.2)
     assert _passes(flow.graetz_check, **good)
-    for key in ("outlet_mixing_cup", "series_wall"):
-        for sign in (1.0, -1.0):
-            assert not _passes(flow.graetz_check, **dict(good, **{key: good[key] + sign * 1e-4}))
+    for sign in (1.0, -1.0):
+        assert not _passes(flow.graetz_check, **dict(good, series_wall=0.1709 + sign * 1e-4))
+        for i in range(cup.size):  # an error at any one position along the lumen
+            wrong = cup.copy()
+            wrong[i] += sign * 1e-4
+            assert not _passes(flow.graetz_check, **dict(good, mixing_cup=wrong))
 
 
 def test_sherwood_check_catches_an_error_either_way():
