@@ -294,19 +294,24 @@ def sherwood_check(outcome: Outcome, problem: Problem, *, sherwood: float, expec
         f"({source}); grid band {band:.3g}")
 
 
-def krogh_check(outcome: Outcome, problem: Problem, *, outlet_mixing_cup: float,
-                exact_mixing_cup: float, layer_minimum: float, exact_minimum: float,
-                band: float, inlet: float) -> None:
-    """``cross_check.krogh``: the outlet mixing cup against the exact linear fall (relative to
-    the fall) and the layer's outlet minimum against Krogh-Erlang (relative to the inlet)."""
-    fall = max(abs(inlet - exact_mixing_cup), 1e-300)
-    cup = abs(outlet_mixing_cup - exact_mixing_cup) / fall
+def krogh_check(outcome: Outcome, problem: Problem, *, mixing_cup, exact_mixing_cup,
+                layer_minimum: float, exact_minimum: float, band: float, inlet: float) -> None:
+    """``cross_check.krogh``: the mixing cup along the lumen against the exact linear fall
+    (arrays alike; relative to the fall at the outlet, the last entries) and the layer's
+    outlet minimum against Krogh-Erlang (relative to the inlet)."""
+    cups = np.atleast_1d(np.asarray(mixing_cup, dtype=float))
+    exact = np.atleast_1d(np.asarray(exact_mixing_cup, dtype=float))
+    fall = max(abs(inlet - float(exact[-1])), 1e-300)
+    diff = np.abs(cups - exact)
+    k = int(np.argmax(diff))
+    cup = float(diff[k]) / fall
     low = abs(layer_minimum - exact_minimum) / max(abs(inlet), 1e-300)
     outcome.check_at_most(
         "cross_check.krogh", max(cup, low), check_limit(problem, "cross_check.krogh") + band,
-        f"outlet mixing cup {outlet_mixing_cup:.9g} vs the linear fall {exact_mixing_cup:.9g} "
-        f"(relative to the fall {cup:.3g}); tissue minimum at the outlet {layer_minimum:.9g} vs "
-        f"Krogh-Erlang {exact_minimum:.9g} {problem.concentration_unit} (Krogh 1919)")
+        f"mixing cup at {cups.size} positions against the linear fall: largest difference "
+        f"{float(diff[k]):.3g} ({float(cups[k]):.9g} vs {float(exact[k]):.9g}; relative to the "
+        f"fall {cup:.3g}); tissue minimum at the outlet {layer_minimum:.9g} vs Krogh-Erlang "
+        f"{exact_minimum:.9g} {problem.concentration_unit} (Krogh 1919)")
 
 
 def _krogh_applies(problem: Problem) -> bool:
@@ -438,9 +443,9 @@ def run_flow(problem: Problem, independent: Problem | None = None,
         minimum = krogh_tissue_minimum(problem.inner, problem.outer, layer.diffusivity,
                                        layer.reaction.rate, k_wall * float(fine.wall[-1]))
         if minimum > 0.0:
-            exact = float(krogh_mixing_cup(tube.length, tube.inlet, tube.flow_rate,
-                                           problem.inner, problem.outer, layer.reaction.rate))
-            krogh_check(outcome, problem, outlet_mixing_cup=outlet, exact_mixing_cup=exact,
+            exact = krogh_mixing_cup(fine.position, tube.inlet, tube.flow_rate,
+                                     problem.inner, problem.outer, layer.reaction.rate)
+            krogh_check(outcome, problem, mixing_cup=fine.mixing_cup, exact_mixing_cup=exact,
                         layer_minimum=layer_answer(layers, float(fine.wall[-1])).minimum,
                         exact_minimum=minimum, band=fall_relative, inlet=tube.inlet)
             methods.append({"role": "independent", "name": "Krogh cylinder (linear fall, "

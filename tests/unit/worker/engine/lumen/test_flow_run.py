@@ -165,12 +165,16 @@ def test_sherwood_check_catches_an_error_either_way():
 
 
 def test_krogh_check_catches_the_fall_and_the_minimum():
-    good = dict(outlet_mixing_cup=0.1921, exact_mixing_cup=0.1921, layer_minimum=0.1845,
+    cup = np.array([0.2, 0.196, 0.1921])
+    good = dict(mixing_cup=cup, exact_mixing_cup=cup.copy(), layer_minimum=0.1845,
                 exact_minimum=0.1845, band=0.0, inlet=0.2)
     assert _passes(flow.krogh_check, **good)
-    for key in ("outlet_mixing_cup", "layer_minimum"):
-        for sign in (1.0, -1.0):
-            assert not _passes(flow.krogh_check, **dict(good, **{key: good[key] + sign * 1e-4}))
+    for sign in (1.0, -1.0):
+        assert not _passes(flow.krogh_check, **dict(good, layer_minimum=0.1845 + sign * 1e-4))
+        for i in (1, 2):  # an error at any position along the lumen
+            wrong = cup.copy()
+            wrong[i] += sign * 1e-5
+            assert not _passes(flow.krogh_check, **dict(good, mixing_cup=wrong))
 
 
 def test_convergence_checks_catch_a_mesh_dependent_answer():
