@@ -54,6 +54,7 @@ from worker.engine.fv_mesh import (
     THIELE_CELL_LIMIT,
     boundary_concentration_scale,
 )
+from worker.engine.lumen.run import coarse_mesh
 from worker.engine.model import Boundary, Problem
 from worker.engine.transient.solve import STEADY_HORIZON
 
@@ -293,17 +294,20 @@ def _transient_cells(problem: Problem, wanted: list[int]) -> int:
 #: Newton iterations on the table each). Its design trials are full primary solves.
 FLOW_TABLE_SOLVES = 80
 FLOW_CELL_STEP_WORK = 12.0
-#: Cell-steps of the five meshes of the lumen's studies (coarse 10 x 20 refined twice by 2 in
-#: r and in z, the finest shared).
-FLOW_CELL_STEPS = 40 * 80 + 20 * 80 + 10 * 80 + 40 * 40 + 40 * 20
-#: Values of the finest lumen field kept (radial cells times axial nodes).
-FLOW_FINEST_FIELD = 40 * 81
+
+
+def _flow_cell_steps(problem: Problem) -> tuple[int, int]:
+    """Cell-steps of the five meshes of the lumen's studies (the coarse mesh refined twice by
+    2 in r and in z, the finest shared), and the values of the finest field."""
+    n_r, n_z = coarse_mesh(problem)
+    meshes = {(n_r * 2**i, n_z * 4) for i in range(3)} | {(n_r * 4, n_z * 2**i) for i in range(3)}
+    return sum(a * b for a, b in meshes), (n_r * 4) * (n_z * 4 + 1)
 
 
 def _flow_check_work(problem: Problem, wanted: list[int]) -> float:
     one_solve = float(sum(min(n, 4000) for n in wanted)) * (
         1 if problem.is_linear else NONLINEAR_ITERATIONS)
-    return FLOW_TABLE_SOLVES * one_solve + FLOW_CELL_STEP_WORK * FLOW_CELL_STEPS
+    return FLOW_TABLE_SOLVES * one_solve + FLOW_CELL_STEP_WORK * _flow_cell_steps(problem)[0]
 
 
 def estimate_cost(problem: Problem, design: DesignRequest | None = None) -> CostEstimate:
@@ -316,7 +320,7 @@ def estimate_cost(problem: Problem, design: DesignRequest | None = None) -> Cost
     flow = problem.inner_boundary.kind == FLOW
     if flow:
         steps = 1
-        cells = sum(min(n, 4000) for n in wanted) + FLOW_FINEST_FIELD
+        cells = sum(min(n, 4000) for n in wanted) + _flow_cell_steps(problem)[1]
         check_work = _flow_check_work(problem, wanted)
     elif problem.regime.kind == "transient":
         cells = _transient_cells(problem, wanted)

@@ -36,6 +36,9 @@ FIRST_NODES = 17
 MAX_NODES = 257
 #: Nodes of the first pass, before the lumen has shown which wall concentrations it reaches.
 FIRST_PASS_NODES = 65
+#: Where the table starts, as a fraction of the inlet, when the layers cannot be solved with
+#: the wall at exactly zero.
+ZERO_NODE = 1e-9
 #: Samples per layer before the search for the layer minimum.
 SAMPLES_PER_LAYER = 81
 
@@ -160,7 +163,14 @@ def tabulate(problem: Problem, top: float, tolerance: float, *, low: float = 0.0
         answers = dict(zip(nodes, start.answers, strict=True))
     else:
         nodes = [float(c) for c in _nodes(top, 5 if problem.is_linear else FIRST_NODES)]
-        answers = {c: layer_answer(problem, c) for c in nodes}
+        try:
+            first = layer_answer(problem, 0.0)
+        except LumenInputError:
+            # the finite volumes may not settle with the wall at exactly zero (a residual at
+            # the underflow limit judged against a zero scale): start just above it
+            nodes[0] = ZERO_NODE * top
+            first = layer_answer(problem, nodes[0])
+        answers = {nodes[0]: first} | {c: layer_answer(problem, c) for c in nodes[1:]}
     scale = max(abs(a.wall_flux) for a in answers.values()) or 1.0
     errors: dict[float, tuple[float, float]] = {}  # left node -> (midpoint, error)
     pending = set(range(len(nodes) - 1))

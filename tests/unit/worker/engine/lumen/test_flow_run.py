@@ -249,3 +249,26 @@ def test_a_wall_resistance_tending_to_zero_reaches_the_fixed_wall_limit():
         gaps.append((outlet - dirichlet) / dirichlet)
     assert 0.0 < gaps[1] < gaps[0]
     assert gaps[1] < 2e-3
+
+
+def test_a_long_tube_gets_more_axial_steps_and_its_profile_agrees_with_graetz():
+    """A long tube (z* about 5 at the outlet) with a strongly conducting wall: the mixing cup
+    falls by e^-35 along it, so the coarse mesh's axial steps grow with z*_L, and the
+    mixing cup along the whole lumen agrees with the Graetz series (Graetz 1883; Shah &
+    London 1978) within the grid band of its worst axial node. (Drawn by a property search,
+    where 20 coarse steps met the outlet's grid study yet missed the series mid-lumen.)"""
+    problem = Problem(
+        "cylinder", 7.864426414487924e-05,
+        (Layer("wall", 4.1924889273891816e-05, 4.628020243433809e-10, 1.5),
+         Layer("cells", 5.76538282452223e-05, 2.0367027019004403e-09, 1.0,
+               Reaction("first_order", rate_constant=0.6531308122043575))),
+        Boundary("flow", flow_rate=1.3148310049142323e-09, inlet=0.2,
+                 diffusivity=2.9849853486833814e-09),
+        Boundary("symmetry"),
+        # z* = pi D L / (4 F) = 4.77
+        length=4.0 * 1.3148310049142323e-09 * 4.77 / (math.pi * 2.9849853486833814e-09))
+    assert flow.coarse_mesh(problem)[1] > flow.coarse_mesh(_case("first_order"))[1] == 20
+    outcome = run_problem(problem)
+    assert all(c.passed for c in outcome.checks), [c.as_dict() for c in outcome.checks
+                                                   if not c.passed]
+    assert "positions along the lumen" in outcome.check("cross_check.graetz").detail
