@@ -291,9 +291,12 @@ def _transient_cells(problem: Problem, wanted: list[int]) -> int:
 #: A lumen with flow (``worker.engine.lumen.run``): steady solves of the layers charged to its
 #: wall table (measured: 35-60 for a Michaelis-Menten fibre, first pass and verification), and
 #: the marching's work per cell-step of its five meshes (three half and whole steps, a few
-#: Newton iterations on the table each). Its design trials are full primary solves.
+#: Newton iterations on the table each). Its design trials are full primary solves. A mesh the
+#: study finds too coarse is doubled (up to twice per direction, ``lumen.run.MESH_ADAPTATIONS``:
+#: up to 16 times the marching work); charged here: twice the marching work, as drawn cases
+#: rarely adapt (a short tube's thin wall layer in r).
 FLOW_TABLE_SOLVES = 80
-FLOW_CELL_STEP_WORK = 12.0
+FLOW_CELL_STEP_WORK = 24.0
 
 
 def _flow_cell_steps(problem: Problem) -> tuple[int, int]:

@@ -86,6 +86,10 @@ COARSE_MESH = (10, 20)
 #: Axial steps of the coarse mesh per z*_L^(2/3), and their cap (see ``coarse_mesh``).
 AXIAL_PER_Z_STAR = 60.0
 MAX_COARSE_STEPS = 400
+#: Times the coarse mesh may be doubled in a direction whose study misses its limit, and the
+#: radial cells it may reach.
+MESH_ADAPTATIONS = 2
+MAX_COARSE_CELLS = 40
 REFINEMENT = 2
 #: Below this Peclet number axial diffusion may matter (common practice, see the docstring).
 PECLET_WARNING = 100.0
@@ -201,28 +205,50 @@ def solve_flow(problem: Problem, coarse: tuple[int, int] | None = None) -> FlowR
     coarse = coarse or coarse_mesh(problem)
     layers = layers_problem(problem)
     top = max(tube.inlet, 1e-300)
-    tolerance = 0.1 * _limit(problem, "cross_check.wall_law")
+    # the table's flux and totals enter the wall law and the layers' mass balance
+    tolerance = 0.1 * min(_limit(problem, "cross_check.wall_law"),
+                          check_limit(problem, "mass_balance"))
     table = tabulate(layers, top, tolerance, max_nodes=FIRST_PASS_NODES)
-    r_study, z_study = _meshes(coarse)
-    meshes = list(dict.fromkeys(r_study + z_study))
-    if layers.is_linear:
-        wall = linear_layer_wall(layers)
-        by_mesh = {mesh: march(tube, wall, *mesh) for mesh in meshes}
-    else:
-        by_mesh = {mesh: march(tube, table.wall(), *mesh) for mesh in meshes}
-        low = min(float(np.min(s.wall)) for s in by_mesh.values())
-        if table.worst_error > tolerance:
-            # refine where the lumen goes, and march again on the refined law
+    wall = linear_layer_wall(layers) if layers.is_linear else None
+    by_mesh: dict = {}
+
+    def solved(meshes):
+        for mesh in meshes:
+            if mesh not in by_mesh:
+                by_mesh[mesh] = march(tube, wall if wall is not None else table.wall(), *mesh)
+        return [by_mesh[m] for m in meshes]
+
+    for _ in range(MESH_ADAPTATIONS + 1):
+        r_study, z_study = _meshes(coarse)
+        solved(list(dict.fromkeys(r_study + z_study)))
+        if wall is None and table.worst_error > tolerance:
+            # refine the table where the lumen goes, and march again on the refined law
+            low = min(float(np.min(s.wall)) for s in by_mesh.values())
             table = tabulate(layers, top, tolerance, low=low, start=table)
-            by_mesh = {mesh: march(tube, table.wall(), *mesh) for mesh in meshes}
-    studies = {}
-    for direction, meshes in (("r", r_study), ("z", z_study)):
-        values = [_studied(by_mesh[m], table, layers) for m in meshes]
-        studies[direction] = {
-            name: grid_study([v[name] for v in values], ratios=(REFINEMENT, REFINEMENT))
-            for name in values[0]}
-        studies[direction]["mixing_cup_profile"] = _profile_study(
-            [by_mesh[m] for m in meshes], coarse[1])
+            by_mesh.clear()
+            solved(list(dict.fromkeys(r_study + z_study)))
+        studies = {}
+        for direction, meshes in (("r", r_study), ("z", z_study)):
+            solutions = solved(meshes)
+            values = [_studied(s, table, layers) for s in solutions]
+            studies[direction] = {
+                name: grid_study([v[name] for v in values], ratios=(REFINEMENT, REFINEMENT))
+                for name in values[0]}
+            studies[direction]["mixing_cup_profile"] = _profile_study(solutions, coarse[1])
+        limits = {d: check_limit(problem, f"convergence.space_{d}") for d in "rz"}
+        short = [d for d in "rz" if _worst_band(studies[d], tube.inlet) > limits[d]]
+        if not short:
+            break
+        # a mesh the study finds too coarse: double the coarse mesh in that direction
+        n_r, n_z = coarse
+        grown = (min(2 * n_r, MAX_COARSE_CELLS) if "r" in short else n_r,
+                 min(2 * n_z, MAX_COARSE_STEPS) if "z" in short else n_z)
+        if grown == coarse:
+            break
+        coarse = grown
+    finest = _meshes(coarse)[0][0]
+    by_mesh = {m: by_mesh[m] for m in dict.fromkeys(r_study + z_study)}
+    assert max(by_mesh) == finest
     return FlowRun(problem, tube, table, by_mesh, studies, coarse, time.perf_counter() - start)
 
 
@@ -234,6 +260,21 @@ def _gci(study: GridStudy) -> float:
     if math.isfinite(study.gci_fine):
         return float(study.gci_fine)
     return 3.0 * study.approximate_relative_error / (study.ratio_21**2 - 1.0)
+
+
+def _relative_band(name: str, study: GridStudy, inlet: float) -> float:
+    """What ``convergence.space_*`` judges of one study: a concentration's grid band over the
+    inlet concentration, else the GCI_fine fraction."""
+    gci = _gci(study)
+    return gci * abs(study.fine) / max(abs(inlet), 1e-300) if name in CONCENTRATIONS else gci
+
+
+def _worst_band(studies: dict, inlet: float) -> float:
+    worst = 0.0
+    for name, study in studies.items():
+        relative = _relative_band(name, study, inlet)
+        worst = max(worst, relative) if math.isfinite(relative) else math.inf
+    return worst
 
 
 def convergence_checks(outcome: Outcome, problem: Problem, studies: dict, meshes,
@@ -250,7 +291,7 @@ def convergence_checks(outcome: Outcome, problem: Problem, studies: dict, meshes
             gci = _gci(study)
             band = gci * abs(study.fine)
             bands[name] = bands.get(name, 0.0) + band
-            relative = band / max(abs(inlet), 1e-300) if name in CONCENTRATIONS else gci
+            relative = _relative_band(name, study, inlet)
             worst = max(worst, relative) if math.isfinite(relative) else math.inf
             order = (f"{study.apparent_order:.3g}" if math.isfinite(study.apparent_order)
                      else "not formed")
