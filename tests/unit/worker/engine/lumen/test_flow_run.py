@@ -272,3 +272,29 @@ def test_a_long_tube_gets_more_axial_steps_and_its_profile_agrees_with_graetz():
     assert all(c.passed for c in outcome.checks), [c.as_dict() for c in outcome.checks
                                                    if not c.passed]
     assert "positions along the lumen" in outcome.check("cross_check.graetz").detail
+
+
+def _short_tube() -> Problem:
+    """A short tube (z* about 1e-3 at the outlet, drawn by a property search): its wall layer
+    of concentration is thin, and 10-40 radial cells do not resolve it to the GCI limit."""
+    return Problem(
+        "cylinder", 0.0003473288332124362,
+        (Layer("wall", 4.3431914557738546e-05, 9.191821467073935e-10, 1.6119708996685032),
+         Layer("cells", 0.0001474990034692783, 2.256286872342065e-09, 1.0,
+               Reaction("first_order", rate_constant=0.34864245662935306))),
+        Boundary("flow", flow_rate=1.0782083138424298e-09, inlet=0.2,
+                 diffusivity=1.2064028469223291e-09),
+        Boundary("mass_transfer", coefficient=1e-6, bulk=0.01), length=0.0011379428241143643)
+
+
+def test_a_mesh_the_study_finds_too_coarse_is_refined(monkeypatch):
+    problem = _short_tube()
+    run = flow.solve_flow(problem)
+    assert run.coarse[0] > flow.COARSE_MESH[0]
+    outcome = run_problem(problem)
+    assert all(c.passed for c in outcome.checks), [c.as_dict() for c in outcome.checks
+                                                   if not c.passed]
+    # without the refinement the radial study says the mesh is too coarse
+    monkeypatch.setattr(flow, "MESH_ADAPTATIONS", 0)
+    coarse = run_problem(problem)
+    assert not coarse.check("convergence.space_r").passed
