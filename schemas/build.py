@@ -200,6 +200,9 @@ def _problem(data: Mapping, basis: str) -> Problem:
             volume=_number(face, "volume"),
             initial=_number(face, "initial"),
             clearance=_number(face, "clearance"),
+            flow_rate=_number(face, "flow_rate"),
+            inlet=_number(face, "inlet"),
+            diffusivity=_number(face, "diffusivity"),
         )
 
     regime = data["regime"]

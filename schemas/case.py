@@ -23,7 +23,7 @@ from typing import Any, cast
 from marshmallow import RAISE, Schema, ValidationError, fields, validate
 
 from worker.engine.boundaries import BOUNDARIES, SYMMETRY, BoundaryKind
-from worker.engine.design.targets import COMPARTMENT
+from worker.engine.design.targets import COMPARTMENT, FLOW
 from worker.engine.parameters import Parameter
 from worker.engine.reactions import REACTIONS, ReactionKind
 from worker.engine.units import (
@@ -1007,6 +1007,36 @@ def _compartment_rules(data: Mapping) -> Iterator[tuple[str, str]]:
                              "(the face area is 2 pi r length)")
 
 
+def _flow_rules(data: Mapping) -> Iterator[tuple[str, str]]:
+    """A flow face is the wall of a lumen along a cylinder: the inner face of a hollow
+    cylinder (``inner`` > 0 is the lumen radius) of known ``length``, in a steady case (the
+    transient lumen is not offered yet)."""
+    outer = data.get("outer_boundary")
+    if isinstance(outer, Mapping) and outer.get("kind") == FLOW:
+        yield ("outer_boundary.kind", "a flow boundary is the wall of a lumen inside the body: "
+                                      "it is offered for the inner boundary only")
+    face = data.get("inner_boundary")
+    if not (isinstance(face, Mapping) and face.get("kind") == FLOW):
+        return
+    geometry = data.get("geometry")
+    if geometry in GEOMETRIES and geometry != "cylinder":
+        yield ("geometry", f"inner_boundary is a flow (a lumen): expected geometry 'cylinder', "
+                           f"got {geometry!r}")
+    inner = _value(data, "inner")
+    if inner is not None and not inner > 0.0:
+        yield ("inner", "inner_boundary is a flow: expected `inner` > 0, the lumen radius")
+    if geometry == "cylinder" and "length" not in data:
+        yield ("length", "inner_boundary is a flow: a cylinder case needs its `length` (the "
+                         "length of the lumen along which the fluid flows)")
+    if _is_transient(data):
+        yield ("regime.kind", "a flow boundary is offered for steady cases only; the transient "
+                              "lumen is not offered yet: make the regime steady")
+    if data.get("probes"):
+        yield ("probes", "probes are not read in a flow case yet (the concentration varies "
+                         "along the lumen): remove them; the record gives the axial series and "
+                         "the lowest concentration with its position")
+
+
 CASE_RULES = (
     _size_rules,
     _symmetry_rules,
@@ -1016,6 +1046,7 @@ CASE_RULES = (
     _probe_rules,
     _loading_rules,
     _compartment_rules,
+    _flow_rules,
 )
 
 

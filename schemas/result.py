@@ -218,6 +218,22 @@ class LayerRowsSchema(OpenSchema):
     verified_by = fields.String(metadata={"description": "the check that compared the routes"})
 
 
+class AxialSchema(OpenSchema):
+    """Profiles along a lumen with flow (a ``flow`` inner boundary), from the inlet."""
+
+    position = _numbers(required=True, metadata={"description": "distance from the inlet, m"})
+    mixing_cup = _numbers(required=True, metadata={
+        "description": "flow-weighted mean concentration of the fluid"})
+    wall = _numbers(required=True, metadata={
+        "description": "fluid concentration at the lumen wall"})
+    wall_flux = _numbers(required=True, metadata={
+        "description": "flux density out of the lumen into the layers"})
+    concentration_min = _numbers(required=True, metadata={
+        "description": "lowest concentration at each position, fluid and layers (material "
+                       "side)"})
+    units = fields.Dict(keys=fields.String(), values=fields.String(), required=True)
+
+
 class SeriesSchema(OpenSchema):
     """Profiles and, for transient cases, time series."""
 
@@ -235,6 +251,8 @@ class SeriesSchema(OpenSchema):
                        "body or it holds no initial load"})
     remaining = fields.Nested(ValuesSchema)
     concentration_min = fields.Nested(MinimumSchema)
+    axial = fields.Nested(AxialSchema, metadata={
+        "description": "along the lumen of a flow case: mixing cup, wall, wall flux, minimum"})
     concentration_min_layers = fields.Nested(LayerMinimaSchema)
     front_position = fields.Nested(LayerRowsSchema, metadata={
         "description": "position (m) of the front of each layer loaded above its solubility: "

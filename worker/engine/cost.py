@@ -49,13 +49,14 @@ import numpy as np
 from worker.engine.bvp_steady import BVP_MAX_JACOBIAN_ENTRIES, BVP_MAX_NODES
 from worker.engine.design.request import DesignRequest
 from worker.engine.design.sampling import default_block_size
-from worker.engine.design.targets import COMPARTMENT
+from worker.engine.design.targets import COMPARTMENT, FLOW
 from worker.engine.fv_mesh import (
     MIN_CELLS_PER_LAYER,
     RESISTANCE_CELLS,
     THIELE_CELL_LIMIT,
     boundary_concentration_scale,
 )
+from worker.engine.lumen.run import coarse_mesh
 from worker.engine.model import Boundary, Problem
 from worker.engine.transient.method_of_lines import uses_implicit_steps
 from worker.engine.transient.solve import STEADY_HORIZON
@@ -299,6 +300,31 @@ def _transient_cells(problem: Problem, wanted: list[int]) -> int:
     return TRANSIENT_MESH_FACTOR * coarse
 
 
+#: A lumen with flow (``worker.engine.lumen.run``): steady solves of the layers charged to its
+#: wall table (measured: 35-60 for a Michaelis-Menten fibre, first pass and verification), and
+#: the marching's work per cell-step of its five meshes (three half and whole steps, a few
+#: Newton iterations on the table each). Its design trials are full primary solves. A mesh the
+#: study finds too coarse is doubled (up to twice per direction, ``lumen.run.MESH_ADAPTATIONS``:
+#: up to 16 times the marching work); charged here: twice the marching work, as drawn cases
+#: rarely adapt (a short tube's thin wall layer in r).
+FLOW_TABLE_SOLVES = 80
+FLOW_CELL_STEP_WORK = 24.0
+
+
+def _flow_cell_steps(problem: Problem) -> tuple[int, int]:
+    """Cell-steps of the five meshes of the lumen's studies (the coarse mesh refined twice by
+    2 in r and in z, the finest shared), and the values of the finest field."""
+    n_r, n_z = coarse_mesh(problem)
+    meshes = {(n_r * 2**i, n_z * 4) for i in range(3)} | {(n_r * 4, n_z * 2**i) for i in range(3)}
+    return sum(a * b for a, b in meshes), (n_r * 4) * (n_z * 4 + 1)
+
+
+def _flow_check_work(problem: Problem, wanted: list[int]) -> float:
+    one_solve = float(sum(min(n, 4000) for n in wanted)) * (
+        1 if problem.is_linear else NONLINEAR_ITERATIONS)
+    return FLOW_TABLE_SOLVES * one_solve + FLOW_CELL_STEP_WORK * _flow_cell_steps(problem)[0]
+
+
 def estimate_cost(problem: Problem, design: DesignRequest | None = None) -> CostEstimate:
     """The estimated cost of checking ``problem`` with ``design``'s runs (no solve)."""
     design = design or DesignRequest()
@@ -306,7 +332,12 @@ def estimate_cost(problem: Problem, design: DesignRequest | None = None) -> Cost
     costliest = max(range(len(wanted)), key=wanted.__getitem__)
     linear = problem.is_linear
     collocation = 0
-    if problem.regime.kind == "transient":
+    flow = problem.inner_boundary.kind == FLOW
+    if flow:
+        steps = 1
+        cells = sum(min(n, 4000) for n in wanted) + _flow_cell_steps(problem)[1]
+        check_work = _flow_check_work(problem, wanted)
+    elif problem.regime.kind == "transient":
         cells = _transient_cells(problem, wanted)
         steps = _transient_steps(problem)
         check_work = float(cells) * steps * TRANSIENT_STEP_WORK
@@ -320,7 +351,9 @@ def estimate_cost(problem: Problem, design: DesignRequest | None = None) -> Cost
             check_work += float(collocation) * NONLINEAR_ITERATIONS
     closed_form = problem.regime.kind == "steady" and all(
         ly.reaction.kind in ("none", "first_order", "zero_order") for ly in problem.layers)
-    if closed_form:
+    if flow:
+        trial = check_work
+    elif closed_form:
         trial = CLOSED_FORM_TRIAL_WORK
     elif problem.regime.kind == "steady":
         trial = BATCHED_TRIAL_FRACTION * check_work

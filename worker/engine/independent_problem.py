@@ -85,6 +85,7 @@ _EXPECTED: Mapping[str, tuple[Dimension, ...]] = {
     "amount_rate": _quantity_dimensions(_PER_TIME),
     "amount_rate_per_length": _quantity_dimensions(_times(_power(LENGTH, -1), _PER_TIME)),
     "volume": (_power(LENGTH, 3),),
+    "volume_flow_rate": (_times(_power(LENGTH, 3), _PER_TIME),),
 }
 #: The dimensional parameters of each reaction and boundary kind, by field name. Written out
 #: here rather than read from the kinds' registries; a test holds the two lists together.
@@ -100,6 +101,8 @@ BOUNDARY_FIELDS: Mapping[str, Mapping[str, str]] = {
     "mass_transfer": {"coefficient": "velocity", "bulk": "concentration"},
     "symmetry": {},
     "compartment": {"volume": "volume", "initial": "concentration", "clearance": "rate_constant"},
+    "flow": {"flow_rate": "volume_flow_rate", "inlet": "concentration",
+             "diffusivity": "diffusivity"},
 }
 
 

@@ -53,7 +53,8 @@ __all__ = [
 _INDEX_RE = re.compile(r"\[(\d+)\]")
 #: The reaction parameters compared (every field of ``model.Reaction`` but its kind).
 _REACTION_PARAMETERS = ("rate", "rate_constant", "vmax", "km")
-_BOUNDARY_PARAMETERS = ("value", "coefficient", "bulk", "volume", "initial", "clearance")
+_BOUNDARY_PARAMETERS = ("value", "coefficient", "bulk", "volume", "initial", "clearance",
+                        "flow_rate", "inlet", "diffusivity")
 
 
 def relative_difference(a: Any, b: Any) -> float:

@@ -114,7 +114,9 @@ class Boundary:
     coefficient * (bulk - C_surface / K_face); ``symmetry``: zero flux; ``compartment``: a
     well-stirred fluid of ``volume`` (m^3) starting at concentration ``initial``, surface
     C = K_face * C_compartment, first-order ``clearance`` (1/s) removing solute from the fluid
-    (a slab's compartment serves the problem's ``area``, a cylinder's its ``length``).
+    (a slab's compartment serves the problem's ``area``, a cylinder's its ``length``);
+    ``flow``: the lumen of radius ``inner`` carries laminar flow of ``flow_rate`` (m^3/s),
+    entering at ``inlet``, the solute's ``diffusivity`` in the fluid (m^2/s) (inner face only).
     ``partition`` overrides K_face (default: the partition of the layer at that face).
     The condition itself is the kind object ``condition`` (``worker.engine.boundaries``).
     """
@@ -127,6 +129,9 @@ class Boundary:
     volume: float = 0.0
     initial: float = 0.0
     clearance: float = 0.0
+    flow_rate: float = 0.0
+    inlet: float = 0.0
+    diffusivity: float = 0.0
 
     @property
     def condition(self) -> BoundaryKind:

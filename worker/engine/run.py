@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 from worker.engine.input_checks import interpretation_check
+from worker.engine.lumen.run import run_flow
 from worker.engine.model import Problem
 from worker.engine.outcome import Outcome
 from worker.engine.steady_check import run_steady
@@ -42,6 +43,8 @@ def run_problem(problem: Problem, independent: Problem | None = None) -> Outcome
 
 
 def _solve(problem: Problem, independent: Problem | None) -> Outcome:
+    if problem.inner_boundary.condition.lumen:
+        return run_flow(problem, independent)
     if problem.regime.kind == "steady":
         for side, boundary in (("inner", problem.inner_boundary),
                                ("outer", problem.outer_boundary)):

@@ -152,6 +152,13 @@ KINDS: Mapping[str, Kind] = MappingProxyType(
                 ["1e-9 m^2/s"],
             ),
             _kind(
+                "volume_flow_rate",
+                "a volume flow rate",
+                {None: {"[length]": 3, "[time]": -1}},
+                {None: "m^3/s"},
+                ["0.5 mL/min"],
+            ),
+            _kind(
                 "rate_constant",
                 "a first-order rate constant",
                 {None: {"[time]": -1}},

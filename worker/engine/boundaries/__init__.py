@@ -9,13 +9,20 @@ from __future__ import annotations
 from collections.abc import Mapping
 from types import MappingProxyType
 
-from worker.engine.boundaries import compartment, concentration, flux, mass_transfer, symmetry
+from worker.engine.boundaries import (
+    compartment,
+    concentration,
+    flow,
+    flux,
+    mass_transfer,
+    symmetry,
+)
 from worker.engine.boundaries.base import BoundaryKind
 
 #: Every boundary kind by its ``kind`` string, in the order the schema lists them.
 BOUNDARIES: Mapping[str, BoundaryKind] = MappingProxyType(
     {kind.name: kind for kind in (concentration.KIND, flux.KIND, mass_transfer.KIND,
-                                  symmetry.KIND, compartment.KIND)}
+                                  symmetry.KIND, compartment.KIND, flow.KIND)}
 )
 #: The kind a solid cylinder's or sphere's centre must have.
 SYMMETRY = symmetry.KIND

@@ -50,6 +50,9 @@ class BoundaryKind:
     transient_only: bool = False
     #: The face is a well-stirred fluid of finite volume whose level is one more unknown.
     finite_volume: bool = False
+    #: The face is the wall of a lumen with flow along it (``flow``): solved by the lumen
+    #: route (``worker.engine.lumen.run``), not by the radial solvers.
+    lumen: bool = False
 
     def fixes_level(self, boundary: Boundary) -> bool:
         """True when this face fixes the steady level (a concentration or a live film)."""

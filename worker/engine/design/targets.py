@@ -30,6 +30,11 @@ dispersed drug (a layer loaded above its solubility, ``Layer.is_loaded_above_sol
 compartments (a face of kind ``compartment``)
     the series ``compartment_inner`` / ``compartment_outer`` (the stirred fluid's concentration
     at a time ``at``).
+a lumen with flow (an inner boundary of kind ``flow``, ``worker.engine.lumen.run``)
+    ``outlet_concentration`` (the mixing cup at the outlet), ``concentration_min`` (the
+    lowest concentration of the fluid and the layers), ``peclet``, ``graetz``,
+    ``sherwood_outlet``; nothing else of the steady list (its faces' figures vary along the
+    lumen).
 probes (a transient case with ``probes``)
     the series ``probe_concentration`` (the concentration at probe ``probe``, an index into the
     case's ``probes``, at a time ``at``): what a sensor or a sampled section measures.
@@ -48,10 +53,12 @@ from worker.engine.transient.uptake import releases
 
 #: The boundary kind of a well-stirred finite volume at a face (``worker.engine.boundaries``).
 COMPARTMENT = "compartment"
+#: The boundary kind of a lumen with flow along it (``worker.engine.boundaries.flow``).
+FLOW = "flow"
 #: The series quantity of one probe's concentration.
 PROBE = "probe_concentration"
 
-__all__ = ["COMPARTMENT", "PROBE", "QuantitySpec", "Target", "TargetError", "check_target",
+__all__ = ["COMPARTMENT", "FLOW", "PROBE", "QuantitySpec", "Target", "TargetError", "check_target",
            "quantities", "target_dimension"]
 
 
@@ -189,10 +196,23 @@ def _transient(problem: Problem) -> list[QuantitySpec]:
     return specs
 
 
+def _flow(problem: Problem) -> list[QuantitySpec]:
+    return [QuantitySpec("outlet_concentration", "concentration"),
+            QuantitySpec("concentration_min", "concentration"),
+            QuantitySpec("peclet", "dimensionless"),
+            QuantitySpec("graetz", "dimensionless"),
+            QuantitySpec("sherwood_outlet", "dimensionless")]
+
+
 def quantities(problem: Problem) -> dict[str, QuantitySpec]:
     """Every quantity ``problem`` offers as a target, by name (the one list; see the module
     docstring)."""
-    specs = _transient(problem) if problem.regime.kind == "transient" else _steady(problem)
+    if problem.inner_boundary.kind == FLOW:
+        specs = _flow(problem)
+    elif problem.regime.kind == "transient":
+        specs = _transient(problem)
+    else:
+        specs = _steady(problem)
     return {spec.quantity: spec for spec in specs}
 
 

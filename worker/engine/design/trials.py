@@ -61,6 +61,7 @@ from worker.engine.design.targets import Target, check_target
 from worker.engine.design.transient_trials import scaled_series_applies, transient_targets
 from worker.engine.exact_steady import EdgeForms, system_rows, unknown_columns
 from worker.engine.fv_trials import TrialFigures, cells_per_layer_trials, solve_trials
+from worker.engine.lumen.run import flow_figures
 from worker.engine.model import Problem
 from worker.engine.steady_check import PROFILE_POINTS_PER_LAYER, primary_figures
 
@@ -144,6 +145,12 @@ class TrialModel:
             out[rows] = _steady_finite_volumes(self.problem, self.fields, x[rows],
                                                self.targets)
             return out
+        elif self.problem.inner_boundary.condition.lumen:
+            for i in rows:
+                out[i] = _flow_one(with_values(self.problem, dict(zip(self.fields, x[i],
+                                                                       strict=True))),
+                                   self.targets)
+            return out
         elif self.problem.regime.kind == "transient":
             out[rows] = transient_targets(self.problem, self.fields, x[rows], self.targets)
             return out
@@ -157,7 +164,7 @@ class TrialModel:
 def _closed_form_batch_applies(problem: Problem, fields: Sequence[FieldRef]) -> bool:
     """Steady, every layer with a closed form, and the body's structure the same in every
     trial (a solid body's inner radius is not varied)."""
-    if problem.regime.kind != "steady":
+    if problem.regime.kind != "steady" or problem.inner_boundary.condition.lumen:
         return False
     if any(ly.reaction.law.exact_coefficients(ly.reaction) is None for ly in problem.layers):
         return False
@@ -166,7 +173,7 @@ def _closed_form_batch_applies(problem: Problem, fields: Sequence[FieldRef]) -> 
 
 def _finite_volume_batch_applies(problem: Problem, fields: Sequence[FieldRef]) -> bool:
     """Steady, and the body's structure the same in every trial (as for the closed form)."""
-    if problem.regime.kind != "steady":
+    if problem.regime.kind != "steady" or problem.inner_boundary.condition.lumen:
         return False
     return not (problem.geometry != "slab" and any(f.path == "inner" for f in fields))
 
@@ -253,6 +260,16 @@ def _steady_one(problem: Problem, targets: Sequence[Target]) -> np.ndarray:
         else:
             row[j] = figures.scalars.get(target.quantity, math.nan)
     return row
+
+
+def _flow_one(problem: Problem, targets: Sequence[Target]) -> np.ndarray:
+    """The targets of one trial of a lumen with flow by ``lumen.run.flow_figures`` (the same
+    primary solve as the full check, without its checks); NaN on failure."""
+    try:
+        figures = flow_figures(problem)
+    except (ValueError, ArithmeticError, np.linalg.LinAlgError):
+        return np.full(len(targets), np.nan)
+    return np.array([figures.get(t.quantity, math.nan) for t in targets], dtype=float)
 
 
 # -- steady closed form, batched ------------------------------------------------------------

@@ -38,11 +38,14 @@ POSITIVE_C = np.array([1e-4, 3e-3, 0.05, 0.8])
 def test_the_registries_hold_the_kinds_of_the_case_document_in_order():
     assert tuple(REACTIONS) == ("none", "zero_order", "first_order", "michaelis_menten")
     assert tuple(BOUNDARIES) == ("concentration", "flux", "mass_transfer", "symmetry",
-                                 "compartment")
+                                 "compartment", "flow")
     assert set(REACTION_CASES) == set(REACTIONS)
     # a transient-only kind has no steady forms; the compartment's own forms are tested in
     # test_compartment.py (its Jacobian, its balance) and against Crank in the reference tests
-    assert set(FACES) == {name for name, kind in BOUNDARIES.items() if not kind.transient_only}
+    # a lumen face (flow) has no radial forms: the lumen route solves it (tests/unit/worker/
+    # engine/lumen/test_flow_run.py)
+    assert set(FACES) == {name for name, kind in BOUNDARIES.items()
+                          if not kind.transient_only and not kind.lumen}
 
 
 def test_unknown_kinds_are_refused_by_name():
