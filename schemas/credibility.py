@@ -145,8 +145,10 @@ _ORDER = re.compile(r"observed order (not formed|[-+]?\d[\d.eE+-]*)")
 
 
 def discretization_error(record: Mapping[str, Any]) -> Factor:
-    """The grid studies: GCI (Celik et al. 2008) and observed order of each."""
-    checks = _checks(record, lambda n: n == "convergence.space" or n.startswith("gci."))
+    """The grid studies: GCI (Celik et al. 2008) and observed order of each (a lumen case has
+    one per direction, ``convergence.space_r`` and ``convergence.space_z``)."""
+    checks = _checks(record, lambda n: n == "convergence.space"
+                     or n.startswith(("convergence.space_", "gci.")))
     if not checks:
         return "No grid-convergence study in this record.", NOT_ASSESSED
     names = ", ".join(str(c.get("name")) for c in checks)

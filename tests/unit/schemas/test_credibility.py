@@ -284,3 +284,22 @@ def test_failed_record_is_summarised():
     statuses = {f["factor"]: f["status"] for f in credibility_block(record)["factors"]}
     assert statuses.pop("software quality assurance") == EVIDENCED
     assert set(statuses.values()) == {NOT_ASSESSED}
+
+
+def test_a_lumen_records_grid_studies_in_both_directions_count():
+    """A flow case refines across the lumen and along it (``convergence.space_r``,
+    ``convergence.space_z``): both are the record's discretization evidence; without them the
+    factor is not assessed."""
+    from tests.unit.schemas.test_flow_case import FIBRE
+
+    record = check_case(copy.deepcopy(FIBRE))
+    factor = {f["factor"]: f for f in credibility_block(record)["factors"]}
+    found = factor["discretization error"]
+    assert found["status"] == "evidenced", found
+    assert "convergence.space_r" in found["evidence"]
+    assert "convergence.space_z" in found["evidence"]
+    stripped = copy.deepcopy(record)
+    stripped["checks"] = [c for c in stripped["checks"]
+                          if not c["name"].startswith("convergence.space")]
+    factor = {f["factor"]: f for f in credibility_block(stripped)["factors"]}
+    assert factor["discretization error"]["status"] == "not assessed"
