@@ -32,3 +32,22 @@ def test_no_axial_table_without_the_series():
     record = records.record()
     assert axial_lines(record) == []
     assert "Along the lumen" not in render_text(record, records.case())
+
+
+def test_the_html_report_draws_the_axial_profiles_only_for_a_lumen_record():
+    from flask import Flask
+
+    from service.report.html import render_report
+    from service.report.plot_axial import axial_svg
+
+    record = copy.deepcopy(records.record())
+    record.setdefault("series", {})["axial"] = AXIAL
+    svg = axial_svg(record)
+    for gid in ("axial-mixing-cup", "axial-wall", "axial-minimum"):
+        assert f'id="{gid}"' in svg
+    with Flask("service").test_request_context():
+        drawn = render_report(record, records.case())
+        plain = render_report(records.record(), records.case())
+    assert '<section id="axial"' in drawn and 'id="axial-mixing-cup"' in drawn
+    assert '<section id="axial"' not in plain
+    assert axial_svg(records.record()) is None

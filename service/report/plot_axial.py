@@ -1,0 +1,65 @@
+"""The axial profiles of a case with flow along a lumen (``series.axial``): the mixing-cup and
+wall concentrations of the flowing fluid and the lowest concentration of the body around it,
+against the position along the lumen, inlet to outlet.
+
+Element ids in the SVG: ``axial-mixing-cup``, ``axial-wall``, ``axial-minimum``.
+"""
+
+from __future__ import annotations
+
+from typing import Any
+
+from service.report.numbers import length_scale, plain_number, unit_text
+from service.report.plot_common import LINE_COLOURS, MUTED, drawing, figure_svg, new_figure
+
+#: The drawn series: key, label, element id, line style.
+CURVES = (("mixing_cup", "mixing cup (flow-weighted mean in the lumen)", "axial-mixing-cup", "-"),
+          ("wall", "fluid at the lumen wall", "axial-wall", (0, (4, 2))),
+          ("concentration_min", "lowest in the body at that position", "axial-minimum",
+           (0, (1, 1.5))))
+
+
+def _numbers(values: Any) -> list[float] | None:
+    if not isinstance(values, list) or not values:
+        return None
+    if not all(isinstance(v, (int, float)) and not isinstance(v, bool) for v in values):
+        return None
+    return [float(v) for v in values]
+
+
+def axial_svg(record: dict[str, Any]) -> str | None:
+    """SVG of the axial series, or None when the record has none."""
+    axial = (record.get("series") or {}).get("axial")
+    if not isinstance(axial, dict):
+        return None
+    positions = _numbers(axial.get("position"))
+    if not positions or len(positions) < 2:
+        return None
+    units = axial.get("units") if isinstance(axial.get("units"), dict) else {}
+    unit_name, unit_size = length_scale(max(positions))
+    xs = [z / unit_size for z in positions]
+    with drawing():
+        figure = new_figure(height_in=3.0)
+        axes = figure.add_subplot()
+        axes.patch.set_gid("plot-area")
+        drawn = 0
+        for j, (key, label, gid, style) in enumerate(CURVES):
+            values = _numbers(axial.get(key))
+            if values is None or len(values) != len(xs):
+                continue
+            (line,) = axes.plot(xs, values, color=LINE_COLOURS[j % len(LINE_COLOURS)],
+                                linewidth=1.5, linestyle=style, label=label)
+            line.set_gid(gid)
+            drawn += 1
+        if not drawn:
+            return None
+        axes.axhline(0.0, color=MUTED, linewidth=0.6)
+        axes.set_xlim(0.0, xs[-1])
+        axes.set_xlabel(f"position along the lumen z / {unit_name}")
+        axes.set_ylabel(f"C / {unit_text(units.get('mixing_cup')) or '1'}")
+        figure.legend(loc="outside lower center", ncols=min(3, drawn), fontsize=8)
+        outlet = _numbers(axial.get("mixing_cup"))
+        words = (f": mixing cup {plain_number(outlet[-1])} "
+                 f"{unit_text(units.get('mixing_cup'))} at the outlet" if outlet else "")
+        return figure_svg(figure, title=f"Along the lumen, {plain_number(xs[-1])} "
+                                        f"{unit_name}{words}")
