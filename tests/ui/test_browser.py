@@ -12,6 +12,7 @@ fails.
 
 from __future__ import annotations
 
+import copy
 import os
 import shutil
 from pathlib import Path
@@ -132,3 +133,41 @@ def test_review_in_a_real_browser(served, store, tokens, tmp_path):
             finally:
                 context.close()
     assert (ARTIFACTS / "run-page.png").stat().st_size > 10_000
+
+
+def test_measured_data_sections_in_a_real_browser(served, tokens, tmp_path):
+    """A run whose case fits a diffusivity to release data and compares a second set: its run
+    page shows which input came from the fit, the calibration, the validation table with its
+    figure, and the credibility table, in a real browser (screenshot kept)."""
+    sync_playwright = _browser_or_stop()
+    from service.client import Client
+    from tests.unit.schemas.test_measured_runs import CHECK_DAYS, FIT, FIT_DAYS, SHEET, _set
+
+    case = copy.deepcopy(SHEET)  # invented scenario; data drawn from Crank's series there
+    case.update(title="Browser test film fitted to release data",
+                measurements=[_set("FIT", FIT_DAYS, "calibration"),
+                              _set("CHK", CHECK_DAYS, "validation", seed=2)],
+                calibration=FIT)
+    with Client(served, tokens["engineer"]) as engineer:
+        run_id = engineer.submit(case)
+        assert engineer.wait(run_id, timeout=60)["status"] == "succeeded"
+    ARTIFACTS.mkdir(parents=True, exist_ok=True)
+    with sync_playwright() as playwright:
+        reviewer = _person(playwright, tmp_path / "measured-profile")
+        try:
+            page = reviewer.new_page()
+            _sign_in(page, served, "rafael.reviewer")
+            page.goto(f"{served}/ui/runs/{run_id}")
+            assert page.get_by_role("heading", name="Calibration").is_visible()
+            assert "layers[0].diffusivity" in page.locator("p.fitted-inputs").inner_text()
+            assert page.get_by_role("heading", name="Validation against measured data") \
+                .is_visible()
+            assert page.locator("#validation svg").count() == 1
+            assert page.locator("#validation-headline").is_visible()
+            rows = page.locator("table.credibility tbody tr")
+            assert rows.count() == 7
+            assert page.get_by_role("heading", name="Credibility evidence").is_visible()
+            page.screenshot(path=str(ARTIFACTS / "run-page-measured.png"), full_page=True)
+        finally:
+            reviewer.close()
+    assert (ARTIFACTS / "run-page-measured.png").stat().st_size > 10_000
