@@ -234,6 +234,20 @@ class AxialSchema(OpenSchema):
     units = fields.Dict(keys=fields.String(), values=fields.String(), required=True)
 
 
+class AxialFieldSchema(OpenSchema):
+    """Concentration over (position along the lumen, radius): the fluid's cells, then the
+    layers (material side), at some of the lumen's axial positions."""
+
+    position = _numbers(required=True, metadata={"description": "distance from the inlet, m"})
+    radius = _numbers(required=True, metadata={
+        "description": "radii, m: the fluid's cell centres, then the layers' points"})
+    fluid_cells = PlainInteger(required=True, metadata={
+        "description": "how many of the radii are the fluid's"})
+    concentration = fields.List(fields.List(PlainNumber()), required=True, metadata={
+        "description": "one row per position, one value per radius"})
+    units = fields.Dict(keys=fields.String(), values=fields.String(), required=True)
+
+
 class SeriesSchema(OpenSchema):
     """Profiles and, for transient cases, time series."""
 
@@ -251,6 +265,8 @@ class SeriesSchema(OpenSchema):
                        "body or it holds no initial load"})
     remaining = fields.Nested(ValuesSchema)
     concentration_min = fields.Nested(MinimumSchema)
+    axial_field = fields.Nested(AxialFieldSchema, metadata={
+        "description": "the picture of a lumen case: concentration over position and radius"})
     axial = fields.Nested(AxialSchema, metadata={
         "description": "along the lumen of a flow case: mixing cup, wall, wall flux, minimum"})
     concentration_min_layers = fields.Nested(LayerMinimaSchema)

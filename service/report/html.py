@@ -30,7 +30,7 @@ from service.report.numbers import (
     time_markup,
     unit_text,
 )
-from service.report.plot_axial import axial_svg
+from service.report.plot_axial import axial_field_svg, axial_svg
 from service.report.plot_minimum import minimum_svg
 from service.report.plot_profile import profile_svg
 from service.report.plot_release import release_svg
@@ -174,6 +174,7 @@ def _figures(record: dict[str, Any], normalised: dict[str, Any] | None) -> dict[
         "compartment": lambda: compartment_svg(with_inputs),
         "minimum": lambda: minimum_svg(record),
         "axial": lambda: axial_svg(record),
+        "axial_field": lambda: axial_field_svg(record),
     }
     figures: dict[str, Markup] = {}
     for name, make in makers.items():

@@ -2,12 +2,15 @@
 wall concentrations of the flowing fluid and the lowest concentration of the body around it,
 against the position along the lumen, inlet to outlet.
 
-Element ids in the SVG: ``axial-mixing-cup``, ``axial-wall``, ``axial-minimum``.
+Element ids in the SVG: ``axial-mixing-cup``, ``axial-wall``, ``axial-minimum``; in the picture
+of the body (:func:`axial_field_svg`) ``axial-field`` and ``axial-field-wall``.
 """
 
 from __future__ import annotations
 
 from typing import Any
+
+import numpy as np
 
 from service.report.numbers import length_scale, plain_number, unit_text
 from service.report.plot_common import LINE_COLOURS, MUTED, drawing, figure_svg, new_figure
@@ -63,3 +66,42 @@ def axial_svg(record: dict[str, Any]) -> str | None:
                  f"{unit_text(units.get('mixing_cup'))} at the outlet" if outlet else "")
         return figure_svg(figure, title=f"Along the lumen, {plain_number(xs[-1])} "
                                         f"{unit_name}{words}")
+
+
+def axial_field_svg(record: dict[str, Any]) -> str | None:
+    """SVG of ``series.axial_field``: the concentration over the position along the lumen and
+    the radius (the fluid, then the layers), with the lumen wall marked; None without it."""
+    field = (record.get("series") or {}).get("axial_field")
+    if not isinstance(field, dict):
+        return None
+    positions, radii = _numbers(field.get("position")), _numbers(field.get("radius"))
+    rows = field.get("concentration")
+    if not positions or not radii or not isinstance(rows, list) or len(rows) != len(positions):
+        return None
+    values = [_numbers(row) for row in rows]
+    if any(row is None or len(row) != len(radii) for row in values):
+        return None
+    cells = field.get("fluid_cells")
+    units = field.get("units") if isinstance(field.get("units"), dict) else {}
+    z_name, z_size = length_scale(max(positions))
+    r_name, r_size = length_scale(max(radii))
+    grid = np.array(values, dtype=float).T  # (radius, position)
+    z, r = np.meshgrid(np.array(positions) / z_size, np.array(radii) / r_size)
+    with drawing():
+        figure = new_figure(height_in=3.2)
+        axes = figure.add_subplot()
+        axes.patch.set_gid("plot-area")
+        mesh = axes.pcolormesh(z, r, grid, shading="gouraud", cmap="viridis", rasterized=True)
+        mesh.set_gid("axial-field")
+        if isinstance(cells, int) and 0 < cells < len(radii):
+            wall = axes.axhline(radii[cells] / r_size, color="white", linewidth=1.0,
+                                linestyle=(0, (4, 2)), label="lumen wall")
+            wall.set_gid("axial-field-wall")
+        bar = figure.colorbar(mesh, ax=axes)
+        bar.set_label(f"C / {unit_text(units.get('concentration')) or '1'}")
+        axes.set_xlabel(f"position along the lumen z / {z_name}")
+        axes.set_ylabel(f"r / {r_name}")
+        lowest = float(grid.min())
+        return figure_svg(figure, title=(
+            f"Concentration along the lumen and across the body: lowest "
+            f"{plain_number(lowest)} {unit_text(units.get('concentration'))}"))

@@ -453,6 +453,26 @@ def _figures(run: FlowRun, layers: Problem) -> dict[str, float]:
             "graetz": 1.0 / float(tube.z_star(tube.length)), "sherwood_outlet": sherwood}
 
 
+#: Axial positions of the record's picture of the body (both ends included).
+FIELD_POSITIONS = 21
+
+
+def axial_field(fine: MarchSolution, table: WallTable, unit: str) -> dict:
+    """The record's ``axial_field``: concentration over (position along the lumen, radius) at
+    ``FIELD_POSITIONS`` axial nodes of the finest march: the fluid at its cell centres (the
+    march's own field), then the layers (material side) at the wall table's profile radii,
+    interpolated from the table at the fluid's wall concentration there."""
+    picks = np.unique(np.linspace(0, fine.position.size - 1, FIELD_POSITIONS)
+                      .round().astype(int))
+    rows = [np.concatenate((fine.concentration[k], table.profile(float(fine.wall[k]))))
+            for k in picks]
+    return {"position": fine.position[picks].tolist(),
+            "radius": np.concatenate((fine.radii, table.profile_radii)).tolist(),
+            "fluid_cells": int(fine.radii.size),
+            "concentration": np.array(rows).tolist(),
+            "units": {"position": "m", "radius": "m", "concentration": unit}}
+
+
 def flow_figures(problem: Problem, coarse: tuple[int, int] | None = None) -> dict[str, float]:
     """The record's scalar figures of a steady flow case by the primary solve alone (the
     design trials' model: the same meshes and wall law as :func:`run_flow`, no checks)."""
@@ -564,6 +584,7 @@ def run_flow(problem: Problem, independent: Problem | None = None,
         "concentration_min": along.tolist(),
         "units": {"position": "m", "mixing_cup": conc, "wall": conc,
                   "wall_flux": f"{amount}/(m^2*s)", "concentration_min": conc}}
+    outcome.series["axial_field"] = axial_field(fine, run.table, conc)
     if pe < PECLET_WARNING:
         outcome.warnings.append(
             f"Peclet number {pe:.3g} is below {PECLET_WARNING:g}: axial diffusion, neglected "

@@ -41,6 +41,9 @@ FIRST_PASS_NODES = 65
 ZERO_NODE = 1e-9
 #: Samples per layer before the search for the layer minimum.
 SAMPLES_PER_LAYER = 81
+#: Radii per layer (both ends included, a subset of the samples) at which the table also keeps
+#: the layers' profile, for the record's picture of the body along the lumen.
+PROFILE_POINTS_PER_LAYER = 11
 
 
 @dataclass(frozen=True)
@@ -54,6 +57,10 @@ class LayerAnswer:
     outer_per_length: float
     minimum: float
     minimum_radius: float
+    #: The layers' concentration (material side) at ``profile_radii`` (both sides of each
+    #: interface: each layer's own ends).
+    profile: tuple[float, ...] = ()
+    profile_radii: tuple[float, ...] = ()
 
 
 def layer_answer(problem: Problem, c_wall: float) -> LayerAnswer:
@@ -67,12 +74,15 @@ def layer_answer(problem: Problem, c_wall: float) -> LayerAnswer:
         sampled.append(np.asarray(solution.concentration_at(r, layer=index), dtype=float))
     lowest = true_extreme(layer_extremes(solution.concentration_at, positions, sampled,
                                          lowest=True), lowest=True)
+    picks = np.linspace(0, SAMPLES_PER_LAYER - 1, PROFILE_POINTS_PER_LAYER).round().astype(int)
     return LayerAnswer(
         wall_flux=float(solution.flux_inner),
         consumption_per_length=2.0 * math.pi * float(solution.consumption),
         outer_per_length=2.0 * math.pi * problem.outer * float(solution.flux_outer),
         minimum=float(lowest.value),
         minimum_radius=float(lowest.position),
+        profile=tuple(float(v) for values in sampled for v in values[picks]),
+        profile_radii=tuple(float(r) for radii in positions for r in radii[picks]),
     )
 
 
@@ -105,6 +115,8 @@ class WallTable:
         self._outer = fit([a.outer_per_length for a in self.answers])
         self._minimum = fit([a.minimum for a in self.answers])
         self._radius = fit([a.minimum_radius for a in self.answers])
+        self._profile = PchipInterpolator(
+            self.nodes, np.array([a.profile for a in self.answers], dtype=float), axis=0)
 
     @property
     def top(self) -> float:
@@ -127,6 +139,16 @@ class WallTable:
 
     def minimum(self, c_wall):
         return self._minimum(np.clip(c_wall, 0.0, self.top))
+
+    @property
+    def profile_radii(self) -> np.ndarray:
+        """The radii (m) of :meth:`profile`."""
+        return np.array(self.answers[0].profile_radii)
+
+    def profile(self, c_wall: float) -> np.ndarray:
+        """The layers' concentration (material side) at :attr:`profile_radii` with the fluid at
+        the wall at ``c_wall``, interpolated as the other figures are (pchip on the nodes)."""
+        return np.asarray(self._profile(min(max(c_wall, 0.0), self.top)), dtype=float)
 
 
 def _table_error(table: WallTable, direct: LayerAnswer, c: float, scale: float,

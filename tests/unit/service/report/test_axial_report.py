@@ -51,3 +51,27 @@ def test_the_html_report_draws_the_axial_profiles_only_for_a_lumen_record():
     assert '<section id="axial"' in drawn and 'id="axial-mixing-cup"' in drawn
     assert '<section id="axial"' not in plain
     assert axial_svg(records.record()) is None
+
+
+def test_the_picture_of_the_body_only_where_the_record_holds_it():
+    from flask import Flask
+
+    from service.report.html import render_report
+    from service.report.plot_axial import axial_field_svg
+
+    record = copy.deepcopy(records.record())
+    record.setdefault("series", {})["axial"] = AXIAL
+    record["series"]["axial_field"] = {
+        "position": [0.0, 0.05, 0.1], "radius": [1e-5, 3e-5, 1e-4, 2e-4], "fluid_cells": 2,
+        "concentration": [[0.2, 0.2, 0.15, 0.1], [0.18, 0.16, 0.1, 0.05],
+                          [0.15, 0.12, 0.08, 0.03]],
+        "units": {"position": "m", "radius": "m", "concentration": "mol/m^3"}}
+    svg = axial_field_svg(record)
+    assert svg is not None and 'id="axial-field-wall"' in svg and "<image" in svg
+    with Flask("service").test_request_context():
+        drawn = render_report(record, records.case())
+    assert 'id="axial-field-figure"' in drawn
+    del record["series"]["axial_field"]
+    assert axial_field_svg(record) is None
+    with Flask("service").test_request_context():
+        assert 'id="axial-field-figure"' not in render_report(record, records.case())
