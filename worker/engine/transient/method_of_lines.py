@@ -290,16 +290,7 @@ class _Rhs:
 
     def dissolved(self, y: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
         """Dissolved concentration c = min(u, S) per cell and dc/dy (generalised)."""
-        cells = y[: self.n]
-        if self.any_switched:
-            u = np.maximum(cells, self.floor)
-            slope = (cells > self.floor).astype(float)
-        else:
-            u = cells
-            slope = np.ones(self.n)
-        if not self.has_solubility:
-            return u, slope
-        return np.minimum(u, self.solubility), slope * (u < self.solubility)
+        return _dissolved_cells(self, y[: self.n])
 
     def reaction(self, c: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
         """Consumption R(C) and dR/dC per cell (zero order through the smooth switch, where
@@ -617,21 +608,10 @@ class _StackedTerms:
                                            for k, s in enumerate(systems)])
         self.faces = [(k, face) for k, s in enumerate(systems) for face in s.compartments]
 
-    def _dissolved(self, cells: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
-        if self.any_switched:
-            u = np.maximum(cells, self.floor)
-            slope = (cells > self.floor).astype(float)
-        else:
-            u = cells
-            slope = np.ones(cells.size)
-        if not self.has_solubility:
-            return u, slope
-        return np.minimum(u, self.solubility), slope * (u < self.solubility)
-
     def newton_terms(self, y: np.ndarray
                      ) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
         cells = y[self.cells]
-        c, dc = self._dissolved(cells)
+        c, dc = _dissolved_cells(self, cells)
         if self.smooth_reacts:
             rate = self.first_order * c
             slope = self.first_order.copy()
@@ -966,6 +946,21 @@ def _compartment_face_fluxes(system: Any, c: np.ndarray, y: np.ndarray) -> np.nd
             q[-1] -= shift
     return q
 
+
+
+def _dissolved_cells(terms: _Rhs | _StackedTerms, cells: np.ndarray
+                     ) -> tuple[np.ndarray, np.ndarray]:
+    """Dissolved concentration c = min(u, S) of cell states, u = max(y, floor) where the
+    content switches off at zero, and dc/dy (generalised derivative at the kinks)."""
+    if terms.any_switched:
+        u = np.maximum(cells, terms.floor)
+        slope = (cells > terms.floor).astype(float)
+    else:
+        u = cells
+        slope = np.ones(cells.size)
+    if not terms.has_solubility:
+        return u, slope
+    return np.minimum(u, terms.solubility), slope * (u < terms.solubility)
 
 class _ConcentrationView:
     """A system whose cell states are already the dissolved concentrations (for packaging the
