@@ -292,7 +292,7 @@ class _ChainSolver(_StepSolver):
             scaled = residual / weight
             running = []
             for block in live:
-                part = scaled[block].copy()
+                part = scaled[block]
                 norm = math.sqrt(float(np.dot(part, part)) / part.size)
                 if not math.isfinite(norm):
                     return None
@@ -325,6 +325,7 @@ class _ChainSolver(_StepSolver):
         t_new = t + h
         weight = self.atol + self.rtol * np.abs(m_old)
         size = y.size
+        known: np.ndarray | None = None  # pieces(y) of the current iterate, once computed
         for _ in range(MAX_NEWTON):
             content, f, values, slope = self._evaluate(t_new, y, False)
             residual = content - m_old - h * f
@@ -339,10 +340,13 @@ class _ChainSolver(_StepSolver):
             if correction is None:
                 return None
             self.counts["newton_iterations"] += 1
-            before = None if self.pieces is None else self.pieces(y)
+            if self.pieces is None:
+                y = y - correction
+                continue
+            before = known if known is not None else self.pieces(y)
             y = y - correction
-            if before is not None and np.array_equal(before, self.pieces(y)) \
-                    and math.isfinite(float(np.sum(correction))):
+            known = self.pieces(y)
+            if np.array_equal(before, known) and math.isfinite(float(np.sum(correction))):
                 # the system is affine between the two iterates: the new residual is zero
                 # to round-off, so y is the root
                 return y
