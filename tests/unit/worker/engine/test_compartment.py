@@ -18,6 +18,7 @@ import pytest
 from worker.engine.boundaries import BOUNDARIES
 from worker.engine.boundaries.compartment import capacity
 from worker.engine.fv_mesh import build_mesh
+from worker.engine.limits import check_limit
 from worker.engine.model import Boundary, Layer, Problem, Reaction, Regime
 from worker.engine.outcome import Outcome
 from worker.engine.run import run_problem
@@ -226,3 +227,34 @@ def test_equilibrium_applies_only_to_closed_cases():
     assert equilibrium_level(_release(clearance=1e-4)) is None
     leaky = dataclasses.replace(_release(), inner_boundary=Boundary("concentration", 0.0))
     assert equilibrium_level(leaky) is None
+
+
+def _crank_route(case, internal, fluid_error=0.0, amount_error=0.0) -> Route:
+    """A route giving Crank's exact level and release with the injected errors (fractions of
+    the exact change in the level and of the exact exchange)."""
+    ones = np.ones(internal.size, dtype=bool)
+    change = abs(case.final_fluid - case.start_fluid)
+    amounts = {f"released_{case.side}": case.released(internal)
+               + amount_error * case.measure * case.capacity * change}
+    route = Route("injected", "ref", amounts, 1.0, ones, ones, lambda r, k, j: np.zeros_like(r))
+    route.compartments = {case.side: case.fluid(internal) + fluid_error * change}
+    return route
+
+
+@pytest.mark.parametrize("sign", [+1.0, -1.0])
+@pytest.mark.parametrize("which", ["fluid_error", "amount_error"])
+def test_limited_volume_check_turns_on_an_injected_error_either_way(sign, which):
+    problem = _release()
+    case, _ = crank_case(problem)
+    assert case is not None
+    internal = np.array(TIMES)
+    limit = check_limit(problem, "cross_check.limited_volume")
+    verdicts = []
+    for size in (0.5, 2.0):
+        outcome = Outcome()
+        route = _crank_route(case, internal, **{which: sign * size * limit})
+        compartment_checks.limited_volume_check(outcome, problem, [route], internal)
+        check = outcome.check("cross_check.limited_volume")
+        assert check is not None and check.value == pytest.approx(size * limit, rel=1e-6)
+        verdicts.append(check.passed)
+    assert verdicts == [True, False]
