@@ -158,12 +158,16 @@ class _StepSolver:
         self.cache[h] = (key_data, lu)
         return lu
 
+    def _start(self, y_old: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+        """The old contents, the first Newton iterate (a copy of ``y_old``) and the weights
+        of the residual norm (atol + rtol |old contents|)."""
+        m_old = _content(self.system, y_old)
+        return m_old, y_old.copy(), self.atol + self.rtol * np.abs(m_old)
+
     def step(self, t: float, y_old: np.ndarray, h: float) -> np.ndarray | None:
         """The implicit Euler step from (t, y_old) to t + h, or None when Newton fails."""
-        m_old = _content(self.system, y_old)
-        y = y_old.copy()
+        m_old, y, weight = self._start(y_old)
         t_new = t + h
-        weight = self.atol + self.rtol * np.abs(m_old)
         for _ in range(MAX_NEWTON):
             residual = _content(self.system, y) - m_old - h * self.system(t_new, y)
             self.counts["rhs_evaluations"] += 1
@@ -280,9 +284,7 @@ class _ChainSolver(_StepSolver):
         each block is iterated as :meth:`step` iterates it alone (its own residual norm, its
         own piece test with ``pieces`` of one block) and left as it is once it has converged.
         None when any block fails."""
-        m_old = _content(self.system, y_old)
-        y = y_old.copy()
-        weight = self.atol + self.rtol * np.abs(m_old)
+        m_old, y, weight = self._start(y_old)
         blocks = [slice(int(starts[b]), int(starts[b + 1])) for b in range(len(starts) - 1)]
         live = list(blocks)
         for _ in range(MAX_NEWTON):
@@ -320,10 +322,8 @@ class _ChainSolver(_StepSolver):
 
     def step(self, t: float, y_old: np.ndarray, h: float) -> np.ndarray | None:
         """The implicit Euler step from (t, y_old) to t + h, or None when Newton fails."""
-        m_old = _content(self.system, y_old)
-        y = y_old.copy()
+        m_old, y, weight = self._start(y_old)
         t_new = t + h
-        weight = self.atol + self.rtol * np.abs(m_old)
         size = y.size
         known: np.ndarray | None = None  # pieces(y) of the current iterate, once computed
         for _ in range(MAX_NEWTON):
