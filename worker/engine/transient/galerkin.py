@@ -70,12 +70,12 @@ Faces
 * ``compartment``: the well-stirred fluid is at equilibrium with the face node (the node holds
   the surface concentration exactly, no film: the compartment's definition), C_f = u_b K / K_face.
   The fluid is then extra lumped capacity of that node, ``W K / K_face`` with W the
-  compartment's r^n-weighted volume per measure (``compartment.capacity``), and its clearance a
-  first-order sink ``W k_c K / K_face u_b`` at that node that leaves the system; the tridiagonal
-  structure is kept. Released through the face = what the fluid holds now less what it held at
-  t = 0, plus what the clearance removed (the cumulative flux into the fluid), so the balance of
-  the body closes as for the other faces. At 0+ the face node and the fluid share their
-  content (the discrete form of the instant the fluid touches the body).
+  compartment's r^n-weighted volume per measure (derived here, ``_fluid_per_weight``), and its
+  clearance a first-order sink ``W k_c K / K_face u_b`` at that node that leaves the system;
+  the tridiagonal structure is kept. Released through the face = what the fluid holds now
+  less what it held at t = 0, plus what the clearance removed (the cumulative flux into the
+  fluid), so the balance of the body closes as for the other faces. At 0+ the face node and
+  the fluid share their content (the discrete form of the instant the fluid touches the body).
 
 Initial state
 -------------
@@ -108,7 +108,6 @@ import numpy as np
 from numpy.typing import ArrayLike
 from scipy.interpolate import CubicSpline
 
-from worker.engine.boundaries.compartment import capacity as compartment_capacity
 from worker.engine.model import Boundary, Problem
 from worker.engine.transient.galerkin_steps import integrate
 from worker.engine.transient.method_of_lines import concentration_scale
@@ -250,6 +249,25 @@ class _Face:
     initial: float = 0.0  # a compartment's starting concentration, amount/m^3
 
 
+def _fluid_per_weight(problem: Problem, side: str, radius: float, weight: float) -> float:
+    """A compartment's fluid in this route's r^n-weighted units, derived here from the face's
+    physical area rather than taken from the other routes' ``boundaries.compartment.capacity``
+    (an error there would reach them all alike): V r^n / A_face, with A_face the slab's
+    ``area``, 2 pi r L of a cylinder, 4 pi r^2 of a sphere; so that ``W dC/dt`` balances the
+    r^n-weighted flux r^n J through the face (the fluid's amount V C changes by A_face J)."""
+    boundary = problem.inner_boundary if side == "inner" else problem.outer_boundary
+    if not (math.isfinite(boundary.volume) and boundary.volume > 0.0):
+        raise ValueError(f"{side}_boundary.volume: expected a positive volume in m^3, got "
+                         f"{boundary.volume!r}")
+    extent = {"slab": problem.area, "cylinder": problem.length, "sphere": 1.0}[problem.geometry]
+    if extent is None or not extent > 0.0:
+        field = "area" if problem.geometry == "slab" else "length"
+        raise ValueError(f"{field}: a compartment face needs the body's {field}")
+    face_area = {"slab": float(extent), "cylinder": 2.0 * math.pi * radius * float(extent),
+                 "sphere": 4.0 * math.pi * radius * radius}[problem.geometry]
+    return float(boundary.volume) * weight / face_area
+
+
 def _face(problem: Problem, side: str) -> _Face:
     boundary: Boundary = problem.inner_boundary if side == "inner" else problem.outer_boundary
     edge = problem.inner if side == "inner" else problem.outer
@@ -267,7 +285,7 @@ def _face(problem: Problem, side: str) -> _Face:
                          f"coefficient, got {k_face!r}")
     fluid = condition.fluid_concentration(boundary)
     if getattr(condition, "finite_volume", False):
-        volume = compartment_capacity(problem, side)
+        volume = _fluid_per_weight(problem, side, float(edge), weight)
         return _Face("compartment", weight, ratio=layer.partition / k_face,
                      capacity=volume * layer.partition / k_face,
                      clearance=float(boundary.clearance), initial=float(boundary.initial))

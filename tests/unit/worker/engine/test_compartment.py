@@ -258,3 +258,46 @@ def test_limited_volume_check_turns_on_an_injected_error_either_way(sign, which)
         assert check is not None and check.value == pytest.approx(size * limit, rel=1e-6)
         verdicts.append(check.passed)
     assert verdicts == [True, False]
+
+
+@pytest.mark.parametrize("geometry", ["slab", "cylinder", "sphere"])
+def test_the_galerkin_route_derives_the_fluids_capacity_itself(geometry):
+    """The Galerkin route's fluid per weight, V r^n / A_face from the face's own area, equals
+    ``boundaries.compartment.capacity`` (V / (area per measure x measure factor)) used by the
+    other routes: two derivations of one quantity."""
+    from worker.engine.transient.galerkin import _fluid_per_weight
+
+    inner = 0.0 if geometry == "slab" else 2e-4
+    problem = Problem(geometry, inner, (Layer("gel", 1e-4, 1e-10, 1.0, initial=1.0),),
+                      Boundary("flux") if geometry == "slab" else Boundary("symmetry"),
+                      Boundary("compartment", volume=2e-6), area=3e-4, length=0.02,
+                      regime=Regime("transient", 100.0, (100.0,)))
+    radius = problem.outer
+    weight = radius ** problem.exponent
+    assert _fluid_per_weight(problem, "outer", radius, weight) == pytest.approx(
+        capacity(problem, "outer"), rel=1e-14, abs=0)
+
+
+def test_a_wrong_shared_capacity_is_caught_by_the_galerkin_route(monkeypatch):
+    """The method of lines, the Laplace route and Crank's reference read the fluid's capacity
+    from ``boundaries.compartment.capacity``; the Galerkin route derives its own. A 2 % error
+    in the shared function then turns a zero-order case behind a compartment from pass to fail
+    (the routes disagree); the honest function passes."""
+    from worker.engine.transient import laplace, limited_volume, method_of_lines
+
+    problem = Problem("slab", 0.0, (Layer("gel", 5e-4, 1e-10, 1.0, initial=1.0,
+                                          reaction=Reaction("zero_order", rate=1e-4)),),
+                      Boundary("flux"), Boundary("compartment", volume=2e-7), area=1e-4,
+                      regime=Regime("transient", 4000.0, (500.0, 1000.0, 2000.0, 4000.0)))
+    honest = run_transient(problem)
+    assert all(c.passed for c in honest.checks), [c.name for c in honest.checks if not c.passed]
+
+    def wrong(problem, side):
+        return 1.02 * capacity(problem, side)
+
+    for module in (method_of_lines, laplace):
+        monkeypatch.setattr(module, "compartment_capacity", wrong)
+    for module in (limited_volume, compartment_checks):
+        monkeypatch.setattr(module, "capacity", wrong)
+    skewed = run_transient(problem)
+    assert not all(c.passed for c in skewed.checks)
