@@ -8,18 +8,12 @@ record does not hold, except counts and the plain sentence that says them.
 
 from __future__ import annotations
 
-import math
 from collections.abc import Mapping
 from dataclasses import dataclass
 from typing import Any
 
+from service.report.numbers import finite_number as _number
 from service.report.numbers import plain_number, readable_time
-
-
-def _number(value: Any) -> float | None:
-    if isinstance(value, bool) or not isinstance(value, (int, float)):
-        return None
-    return float(value) if math.isfinite(value) else None
 
 
 def _pair(value: Any) -> tuple[float | None, float | None]:

@@ -18,6 +18,11 @@ def is_number(value: Any) -> bool:
     return isinstance(value, (int, float)) and not isinstance(value, bool)
 
 
+def finite_number(value: Any) -> float | None:
+    """``value`` as a float when it is a finite number (not a bool), else None."""
+    return float(value) if is_number(value) and math.isfinite(value) else None
+
+
 def plain_number(value: Any, significant: int = SIGNIFICANT) -> str:
     """``value`` to ``significant`` figures as plain text (``1.235e-06`` style for extremes)."""
     if not is_number(value):

@@ -13,16 +13,7 @@ from typing import Any
 
 from service.report.measured_view import calibration_view, credibility_view, validation_view
 from service.report.readable import readable_unit
-
-
-def _g(value: Any, digits: int = 4) -> str:
-    if value is None:
-        return "—"
-    if isinstance(value, bool):
-        return "yes" if value else "no"
-    if isinstance(value, (int, float)):
-        return f"{value:.{digits}g}"
-    return str(value)
+from service.report.text_design import _g
 
 
 def calibration_lines(record: Mapping[str, Any]) -> list[str]:

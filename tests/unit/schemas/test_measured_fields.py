@@ -184,10 +184,11 @@ def test_both_unit_routes_read_the_measured_values():
     for path in ("measurements[1].values[0]", "measurements[1].standard_uncertainty[0]",
                  "measurements[0].times[1]", "calibration.parameters[0].bounds[1]"):
         assert path in independent.table_values
-    wrong = copy.deepcopy(case.normalised)
-    wrong["measurements"][1]["values"][0] *= 1.001
-    check = unit_routes_check(case.problem, independent, wrong, case.original)
-    assert not check.passed and "measurements[1].values[0]" in check.detail
+    for factor in (1.001, 0.999):  # the primary route's reading off high, then low
+        wrong = copy.deepcopy(case.normalised)
+        wrong["measurements"][1]["values"][0] *= factor
+        check = unit_routes_check(case.problem, independent, wrong, case.original)
+        assert not check.passed and "measurements[1].values[0]" in check.detail
     unread = dict(independent.table_values)
     del unread["measurements[1].standard_uncertainty[0]"]
     blind = type(independent).__new__(type(independent))

@@ -109,9 +109,12 @@ def test_validation_compares_the_other_set_only(fitted):
     assert "propagation" in block["u_input_method"]
 
 
-def test_data_that_disagree_beyond_u_val_are_flagged():
+@pytest.mark.parametrize("shift", [0.1, -0.1])
+def test_data_that_disagree_beyond_u_val_are_flagged(shift):
+    """Validation data shifted above or below the sheet are flagged (unshifted, they agree:
+    ``test_validation_compares_the_other_set_only``)."""
     record = check_case(_case(_set("FIT", FIT_DAYS, "calibration"),
-                              _set("CHK", CHECK_DAYS, "validation", shift=0.1, seed=2)))
+                              _set("CHK", CHECK_DAYS, "validation", shift=shift, seed=2)))
     assert record["validation"]["agrees"] is False
     assert any(w.startswith("validation:") for w in record["warnings"])
     assert record["verdict"] == "pass"  # the calculation is still verified
@@ -137,13 +140,14 @@ def test_the_uncertainty_block_gives_u_input_by_monte_carlo():
     assert "Monte Carlo" in record["validation"]["u_input_method"]
 
 
-def test_a_wrong_fast_solve_fails_the_fit_check(monkeypatch):
-    """``calibration.trial_model`` fails when the model the fit used is off by 1 %, and
-    passes when it is right (the fixture above)."""
+@pytest.mark.parametrize("factor", [1.01, 0.99])
+def test_a_wrong_fast_solve_fails_the_fit_check(monkeypatch, factor):
+    """``calibration.trial_model`` fails when the model the fit used is off by 1 %, high or
+    low, and passes when it is right (the fixture above)."""
     honest = trials_module.TrialModel.__call__
 
     def off(self, x):
-        return honest(self, x) * 1.01
+        return honest(self, x) * factor
 
     monkeypatch.setattr(trials_module.TrialModel, "__call__", off)
     record = check_case(_case(_set("FIT", FIT_DAYS, "calibration")))

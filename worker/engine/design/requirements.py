@@ -168,10 +168,9 @@ def read_figure(figure: Figure, quantities: Mapping, series: Mapping,
         times = series.get("time", {}).get("values", [])
         if not isinstance(entry, Mapping):
             return Reading(None, missing=f"the record has no series {series_name}")
-        hits = [i for i, t in enumerate(times) if math.isclose(t, figure.at, rel_tol=1e-12)]
-        if not hits:
+        row = _row_at(times, figure.at)
+        if row is None:
             return Reading(None, missing=f"the series {name} has no value at {figure.at} s")
-        row = hits[0]
         values, bands = entry.get("values", []), entry.get("uncertainty")
         value = values[row] if row < len(values) else None
         band = bands[row] if isinstance(bands, list) and row < len(bands) else None
@@ -202,6 +201,11 @@ def read_figure(figure: Figure, quantities: Mapping, series: Mapping,
     return Reading(value, band)
 
 
+def _row_at(times: Sequence[float], at: float) -> int | None:
+    """The first row of a record's output ``times`` (s) at ``at`` (s, to 1e-12 relative)."""
+    return next((i for i, t in enumerate(times) if math.isclose(t, at, rel_tol=1e-12)), None)
+
+
 def _read_probe(probe: int, at: float, series: Mapping) -> Reading:
     """Probe ``probe``'s concentration at ``at`` from the record's ``probes`` rows (one row per
     requested time), with its numerical uncertainty where the record states one."""
@@ -209,13 +213,12 @@ def _read_probe(probe: int, at: float, series: Mapping) -> Reading:
     if not isinstance(entry, Mapping):
         return Reading(None, missing="the record has no probe series")
     times = entry.get("time", [])
-    hits = [i for i, t in enumerate(times) if math.isclose(t, at, rel_tol=1e-12)]
-    if not hits:
+    row = _row_at(times, at)
+    if row is None:
         return Reading(None, missing=f"the probe series has no row at {at} s")
     rows, bands = entry.get("concentration", []), entry.get("uncertainty")
-    value = _item(rows[hits[0]] if hits[0] < len(rows) else None, probe)
-    band = _item(bands[hits[0]], probe) if isinstance(bands, list) and hits[0] < len(bands) \
-        else None
+    value = _item(rows[row] if row < len(rows) else None, probe)
+    band = _item(bands[row], probe) if isinstance(bands, list) and row < len(bands) else None
     return Reading(None if value is None else float(value),
                    None if band is None else float(band))
 
@@ -228,13 +231,13 @@ def _read_listed_series(figure: Figure, entry: Mapping, series: Mapping) -> Read
     at = figure.at
     assert at is not None  # a series figure (read_figure's branch)
     times = series.get("time", {}).get("values", [])
-    hits = [i for i, t in enumerate(times) if math.isclose(t, at, rel_tol=1e-12)]
-    if not hits:
+    row = _row_at(times, at)
+    if row is None:
         return Reading(None, missing=f"the series {figure.quantity} has no value at "
                                      f"{figure.at} s")
     values, bands = entry.get("values", []), entry.get("uncertainty")
-    value = _item(_item(values, hits[0]), column)
-    band = _item(_item(bands, hits[0]), column)
+    value = _item(_item(values, row), column)
+    band = _item(_item(bands, row), column)
     if value is None:
         return Reading(None, missing=f"no {figure.quantity} at {figure.at} s: the layer holds "
                                      "no undissolved solute then")
