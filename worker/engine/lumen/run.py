@@ -341,7 +341,7 @@ def wall_law_check(outcome: Outcome, problem: Problem, table: WallTable) -> None
         "wall)")
 
 
-def _series_for(independent: Problem, z_star: float) -> tuple[GraetzSeries, float, float]:
+def _series_for(independent: Problem) -> tuple[GraetzSeries, float, float]:
     """The Robin-wall series of the independent reading: (series, conductance, c_out)."""
     wall = linear_layer_wall(layers_problem(independent))
     face = independent.inner_boundary
@@ -524,18 +524,21 @@ def run_flow(problem: Problem, independent: Problem | None = None,
                              "(grid study)"}]
 
     if layers.is_linear:
-        series, conductance, c_out = _series_for(independent, z_star)
+        series, conductance, c_out = _series_for(independent)
+        # the series' positions, inlet and length from the second reading too
+        second = tube_of(independent)
         if z_star >= series.smallest_z_star(SERIES_TOLERANCE):
-            scale = max(abs(tube.inlet - c_out), 1e-300)
-            z_all = np.asarray(tube.z_star(fine.position), dtype=float)
+            scale = max(abs(second.inlet - c_out), 1e-300)
+            z_all = np.asarray(second.z_star(fine.position), dtype=float)
             trusted = z_all >= series.smallest_z_star(SERIES_TOLERANCE)
             graetz_check(
                 outcome, problem, mixing_cup=fine.mixing_cup[trusted],
                 outlet_wall=float(fine.wall[-1]),
                 band=max(fall_band, bands["mixing_cup_profile"], bands["outlet_wall"]) / scale,
-                series_mixing_cup=c_out + (tube.inlet - c_out) * series.mixing_cup(
+                series_mixing_cup=c_out + (second.inlet - c_out) * series.mixing_cup(
                     z_all[trusted]),
-                series_wall=c_out + (tube.inlet - c_out) * float(series.wall(z_star)[0]),
+                series_wall=c_out + (second.inlet - c_out) * float(
+                    series.wall(float(second.z_star(second.length)))[0]),
                 series_band=SERIES_TOLERANCE, scale=scale)
             methods.append({"role": "independent", "name": "Graetz series, layers as a Robin "
                             "wall (second reading of the case)",

@@ -157,6 +157,21 @@ def test_graetz_check_catches_an_error_in_either_route():
             assert not _passes(flow.graetz_check, **dict(good, mixing_cup=wrong))
 
 
+@pytest.mark.parametrize("field", ["flow_rate", "inlet", "diffusivity"])
+def test_graetz_route_reads_the_flow_from_the_second_reading(field):
+    """A primary reading of the flow face off by 1 % either way (the second reading right)
+    turns ``cross_check.graetz``: the series takes the flow, the inlet and the fluid's
+    diffusivity from the second reading, not from the primary's."""
+    problem = _case("first_order")
+    for sign in (1.0, -1.0):
+        face = problem.inner_boundary
+        misread = dataclasses.replace(
+            problem, inner_boundary=dataclasses.replace(
+                face, **{field: getattr(face, field) * (1.0 + sign * 0.01)}))
+        checks = {c.name: c for c in flow.run_flow(misread, problem).checks}
+        assert not checks["cross_check.graetz"].passed, (field, sign)
+
+
 def test_sherwood_check_catches_an_error_either_way():
     assert _passes(flow.sherwood_check, sherwood=4.3311, expected=4.3282, band=0.0, source="t")
     for sign in (1.0, -1.0):
