@@ -441,11 +441,19 @@ def _body_minimum(run: FlowRun, layers: Problem) -> tuple[float, float, float, n
     return _minimum_of(run.fine, run.table, layers)
 
 
-def _figures(run: FlowRun, layers: Problem) -> dict[str, float]:
+def _outlet_sherwood(run: FlowRun) -> tuple[float, float]:
+    """(c_m - c_w at the outlet, the local Sherwood number 2 R j / (D (c_m - c_w)) there;
+    NaN where the two are equal)."""
     tube, fine = run.tube, run.fine
     driving = float(fine.mixing_cup[-1] - fine.wall[-1])
     sherwood = (2.0 * tube.radius * float(fine.wall_flux[-1]) / (tube.diffusivity * driving)
                 if driving != 0.0 else math.nan)
+    return driving, sherwood
+
+
+def _figures(run: FlowRun, layers: Problem) -> dict[str, float]:
+    tube, fine = run.tube, run.fine
+    _, sherwood = _outlet_sherwood(run)
     value, r_min, z_min, _ = _body_minimum(run, layers)
     return {"outlet_concentration": float(fine.mixing_cup[-1]), "concentration_min": value,
             "concentration_min_r": r_min, "concentration_min_z": z_min,
@@ -515,9 +523,7 @@ def run_flow(problem: Problem, independent: Problem | None = None,
     outlet = float(fine.mixing_cup[-1])
     fall_band = bands["outlet_mixing_cup"]
     fall_relative = fall_band / max(abs(tube.inlet - outlet), 1e-300)
-    driving = float(fine.mixing_cup[-1] - fine.wall[-1])
-    sherwood = (2.0 * tube.radius * float(fine.wall_flux[-1]) / (tube.diffusivity * driving)
-                if driving != 0.0 else math.nan)
+    driving, sherwood = _outlet_sherwood(run)
     methods = [{"role": "primary", "name": "lumen marching (finite volumes in r, extrapolated "
                 "implicit Euler in z) coupled to the layers' steady solve",
                 "reference": "Shah & London 1978, ch. 5 (the problem); Celik et al. 2008 "
