@@ -208,6 +208,25 @@ def test_convergence_checks_catch_a_mesh_dependent_answer():
             False, False]
 
 
+def test_each_convergence_check_judges_its_own_direction():
+    """A mesh-dependent answer in r alone turns ``convergence.space_r`` only, in z alone
+    ``convergence.space_z`` only, in either direction of the error."""
+    settled = grid_study([0.18, 0.18 + 1e-8, 0.18 + 5e-8], ratios=(2, 2))
+
+    def verdicts(bad_direction, sign):
+        moving = grid_study([0.18, 0.18 * (1 + sign * 0.01), 0.18 * (1 + sign * 0.03)],
+                            ratios=(2, 2))
+        studies = {d: {"outlet_mixing_cup": moving if d == bad_direction else settled,
+                       "through_wall": settled} for d in "rz"}
+        outcome = Outcome()
+        flow.convergence_checks(outcome, _case("first_order"), studies, ([], []), 0.2)
+        return {c.name: c.passed for c in outcome.checks}
+
+    for sign in (1.0, -1.0):
+        assert verdicts("r", sign) == {"convergence.space_r": False, "convergence.space_z": True}
+        assert verdicts("z", sign) == {"convergence.space_r": True, "convergence.space_z": False}
+
+
 @pytest.mark.parametrize("sign", [1.0, -1.0])
 def test_wall_table_verification_catches_a_wrong_node(sign):
     """A node's flux off by 1e-3 (either way) shows against the direct solves midway."""
