@@ -26,7 +26,8 @@ Checks (each a function below, so a test can feed it a wrong figure):
   number at the outlet against its fully developed value (the Robin series' first term for
   linear kinetics, 48/11 for a uniform wall flux; Shah & London 1978, ch. 5).
 * ``cross_check.krogh`` (one zero-order layer, sealed outer face, live everywhere): the linear
-  fall of the mixing cup and the Krogh-Erlang minimum at the outlet (Krogh 1919).
+  fall of the mixing cup and the Krogh-Erlang minimum at the outlet (Krogh 1919), the closed
+  forms' inputs read from the independent reading of the case.
 
 Axial diffusion is neglected; the record states the Peclet number and warns below
 ``PECLET_WARNING`` (common practice: axial conduction in laminar duct flow is negligible for
@@ -559,13 +560,14 @@ def run_flow(problem: Problem, independent: Problem | None = None,
                            band=fall_band / max(abs(driving), 1e-300),
                            source=f"Robin wall, Bi = {series.biot:.4g}, first Graetz term")
     elif _krogh_applies(problem):
-        layer = problem.layers[0]
-        k_wall = problem.face_partition("inner")
-        minimum = krogh_tissue_minimum(problem.inner, problem.outer, layer.diffusivity,
+        # the closed forms' inputs from the second reading
+        layer, second = independent.layers[0], tube_of(independent)
+        k_wall = independent.face_partition("inner")
+        minimum = krogh_tissue_minimum(independent.inner, independent.outer, layer.diffusivity,
                                        layer.reaction.rate, k_wall * float(fine.wall[-1]))
         if minimum > 0.0:
-            exact = krogh_mixing_cup(fine.position, tube.inlet, tube.flow_rate,
-                                     problem.inner, problem.outer, layer.reaction.rate)
+            exact = krogh_mixing_cup(fine.position, second.inlet, second.flow_rate,
+                                     independent.inner, independent.outer, layer.reaction.rate)
             krogh_check(outcome, problem, mixing_cup=fine.mixing_cup, exact_mixing_cup=exact,
                         layer_minimum=layer_answer(layers, float(fine.wall[-1])).minimum,
                         exact_minimum=minimum, band=fall_relative, inlet=tube.inlet)

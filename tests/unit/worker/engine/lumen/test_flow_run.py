@@ -172,6 +172,20 @@ def test_graetz_route_reads_the_flow_from_the_second_reading(field):
         assert not checks["cross_check.graetz"].passed, (field, sign)
 
 
+@pytest.mark.parametrize("field", ["flow_rate", "inlet"])
+def test_krogh_route_reads_the_case_from_the_second_reading(field):
+    """As for the Graetz route: a primary reading of the flow face off by 1 % either way turns
+    ``cross_check.krogh``."""
+    problem = _case("zero_order")
+    for sign in (1.0, -1.0):
+        face = problem.inner_boundary
+        misread = dataclasses.replace(
+            problem, inner_boundary=dataclasses.replace(
+                face, **{field: getattr(face, field) * (1.0 + sign * 0.01)}))
+        checks = {c.name: c for c in flow.run_flow(misread, problem).checks}
+        assert not checks["cross_check.krogh"].passed, (field, sign)
+
+
 def test_sherwood_check_catches_an_error_either_way():
     assert _passes(flow.sherwood_check, sherwood=4.3311, expected=4.3282, band=0.0, source="t")
     for sign in (1.0, -1.0):
