@@ -13,7 +13,14 @@ from typing import Any
 import numpy as np
 
 from service.report.numbers import length_scale, plain_number, unit_text
-from service.report.plot_common import LINE_COLOURS, MUTED, drawing, figure_svg, new_figure
+from service.report.plot_common import (
+    LINE_COLOURS,
+    MUTED,
+    drawing,
+    figure_svg,
+    new_figure,
+    numbers,
+)
 
 #: The drawn series: key, label, element id, line style.
 CURVES = (("mixing_cup", "mixing cup (flow-weighted mean in the lumen)", "axial-mixing-cup", "-"),
@@ -22,20 +29,12 @@ CURVES = (("mixing_cup", "mixing cup (flow-weighted mean in the lumen)", "axial-
            (0, (1, 1.5))))
 
 
-def _numbers(values: Any) -> list[float] | None:
-    if not isinstance(values, list) or not values:
-        return None
-    if not all(isinstance(v, (int, float)) and not isinstance(v, bool) for v in values):
-        return None
-    return [float(v) for v in values]
-
-
 def axial_svg(record: dict[str, Any]) -> str | None:
     """SVG of the axial series, or None when the record has none."""
     axial = (record.get("series") or {}).get("axial")
     if not isinstance(axial, dict):
         return None
-    positions = _numbers(axial.get("position"))
+    positions = numbers(axial.get("position"))
     if not positions or len(positions) < 2:
         return None
     units = axial.get("units") if isinstance(axial.get("units"), dict) else {}
@@ -47,7 +46,7 @@ def axial_svg(record: dict[str, Any]) -> str | None:
         axes.patch.set_gid("plot-area")
         drawn = 0
         for j, (key, label, gid, style) in enumerate(CURVES):
-            values = _numbers(axial.get(key))
+            values = numbers(axial.get(key))
             if values is None or len(values) != len(xs):
                 continue
             (line,) = axes.plot(xs, values, color=LINE_COLOURS[j % len(LINE_COLOURS)],
@@ -61,7 +60,7 @@ def axial_svg(record: dict[str, Any]) -> str | None:
         axes.set_xlabel(f"position along the lumen z / {unit_name}")
         axes.set_ylabel(f"C / {unit_text(units.get('mixing_cup')) or '1'}")
         figure.legend(loc="outside lower center", ncols=min(3, drawn), fontsize=8)
-        outlet = _numbers(axial.get("mixing_cup"))
+        outlet = numbers(axial.get("mixing_cup"))
         words = (f": mixing cup {plain_number(outlet[-1])} "
                  f"{unit_text(units.get('mixing_cup'))} at the outlet" if outlet else "")
         return figure_svg(figure, title=f"Along the lumen, {plain_number(xs[-1])} "
@@ -74,11 +73,11 @@ def axial_field_svg(record: dict[str, Any]) -> str | None:
     field = (record.get("series") or {}).get("axial_field")
     if not isinstance(field, dict):
         return None
-    positions, radii = _numbers(field.get("position")), _numbers(field.get("radius"))
+    positions, radii = numbers(field.get("position")), numbers(field.get("radius"))
     rows = field.get("concentration")
     if not positions or not radii or not isinstance(rows, list) or len(rows) != len(positions):
         return None
-    values = [_numbers(row) for row in rows]
+    values = [numbers(row) for row in rows]
     if any(row is None or len(row) != len(radii) for row in values):
         return None
     cells = field.get("fluid_cells")

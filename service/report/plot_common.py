@@ -6,6 +6,7 @@ from __future__ import annotations
 import io
 import re
 import threading
+from typing import Any
 
 import matplotlib
 from markupsafe import escape
@@ -33,6 +34,17 @@ INK, MUTED = "#1f262d", "#4d5761"
 LAYER_SHADES = ("#dfe7ee", "#ece6d8", "#e2ebe0", "#e9e1ea", "#e6e6e6")
 DEPLETED = "#9a5b00"
 LINE_COLOURS = ("#1f4e79", "#a1401b", "#2f6b3a", "#6b3f7a", "#7a6a1f", "#3d6f73")
+
+
+
+def numbers(values: Any) -> list[float] | None:
+    """A record's non-empty list of numbers as floats, or None when it is anything else."""
+    if not isinstance(values, list) or not values:
+        return None
+    if not all(isinstance(v, (int, float)) and not isinstance(v, bool) for v in values):
+        return None
+    return [float(v) for v in values]
+
 
 _LOCK = threading.RLock()
 _PROLOGUE = re.compile(r"^.*?(?=<svg\b)", re.DOTALL)

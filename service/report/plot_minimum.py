@@ -10,15 +10,14 @@ from __future__ import annotations
 from typing import Any
 
 from service.report.numbers import plain_number, time_scale, unit_text
-from service.report.plot_common import LINE_COLOURS, MUTED, drawing, figure_svg, new_figure
-
-
-def _numbers(values: Any) -> list[float] | None:
-    if not isinstance(values, list) or not values:
-        return None
-    if not all(isinstance(v, (int, float)) and not isinstance(v, bool) for v in values):
-        return None
-    return [float(v) for v in values]
+from service.report.plot_common import (
+    LINE_COLOURS,
+    MUTED,
+    drawing,
+    figure_svg,
+    new_figure,
+    numbers,
+)
 
 
 def minimum_svg(record: dict[str, Any]) -> str | None:
@@ -28,9 +27,9 @@ def minimum_svg(record: dict[str, Any]) -> str | None:
     series = record.get("series") or {}
     if "release_fraction" in series:
         return None
-    times = _numbers((series.get("time") or {}).get("values"))
+    times = numbers((series.get("time") or {}).get("values"))
     lowest = series.get("concentration_min") or {}
-    values = _numbers(lowest.get("values"))
+    values = numbers(lowest.get("values"))
     if not times or not values or len(times) != len(values):
         return None
     unit_name, unit_size = time_scale(max(times))

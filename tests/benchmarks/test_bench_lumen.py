@@ -15,9 +15,9 @@ Run with ``make bench``.
 from __future__ import annotations
 
 import math
-import statistics
 import time
 
+from tests.benchmarks.timing import median_seconds
 from worker.engine.lumen.graetz import graetz_series
 from worker.engine.lumen.layer_walls import layer_wall_law
 from worker.engine.lumen.marching import (
@@ -51,22 +51,14 @@ WALLS = {
 }
 
 
-def _median_seconds(fn) -> float:
-    times = []
-    for _ in range(REPEATS):
-        start = time.perf_counter()
-        fn()
-        times.append(time.perf_counter() - start)
-    return statistics.median(times)
-
-
 def test_lumen_marching_costs():
     print()
     for n in (BASE, 2 * BASE, 4 * BASE):
-        seconds = _median_seconds(lambda n=n: march(TUBE, WALLS["fixed wall"], n, n))
+        seconds = median_seconds(lambda n=n: march(TUBE, WALLS["fixed wall"], n, n), REPEATS)
         print(f"march, fixed wall, {n} cells x {n} steps: {1e3 * seconds:.1f} ms")
     for name, wall in WALLS.items():
-        seconds = _median_seconds(lambda wall=wall: refinement_study(TUBE, wall, BASE, BASE))
+        seconds = median_seconds(
+            lambda wall=wall: refinement_study(TUBE, wall, BASE, BASE), REPEATS)
         studies, _ = refinement_study(TUBE, wall, BASE, BASE)
         study = studies["outlet_mixing_cup"]
         print(f"three-mesh study ({BASE}/{2 * BASE}/{4 * BASE}), {name}: "
@@ -85,5 +77,5 @@ def test_lumen_marching_costs():
     print(f"three-mesh study ({BASE}/{2 * BASE}/{4 * BASE}), Michaelis-Menten layer around the "
           f"lumen (layer_wall_law, one run): {seconds:.2f} s; amount through the wall: order "
           f"{study.apparent_order:.3f}, GCI {100 * study.gci_fine:.2g} %")
-    seconds = _median_seconds(lambda: graetz_series(60))
+    seconds = median_seconds(lambda: graetz_series(60), REPEATS)
     print(f"Graetz series, 60 terms: {1e3 * seconds:.1f} ms")

@@ -26,7 +26,8 @@ Checks (each a function below, so a test can feed it a wrong figure):
   number at the outlet against its fully developed value (the Robin series' first term for
   linear kinetics, 48/11 for a uniform wall flux; Shah & London 1978, ch. 5).
 * ``cross_check.krogh`` (one zero-order layer, sealed outer face, live everywhere): the linear
-  fall of the mixing cup and the Krogh-Erlang minimum at the outlet (Krogh 1919).
+  fall of the mixing cup and the Krogh-Erlang minimum at the outlet (Krogh 1919), the closed
+  forms' inputs read from the independent reading of the case.
 
 Axial diffusion is neglected; the record states the Peclet number and warns below
 ``PECLET_WARNING`` (common practice: axial conduction in laminar duct flow is negligible for
@@ -341,7 +342,7 @@ def wall_law_check(outcome: Outcome, problem: Problem, table: WallTable) -> None
         "wall)")
 
 
-def _series_for(independent: Problem, z_star: float) -> tuple[GraetzSeries, float, float]:
+def _series_for(independent: Problem) -> tuple[GraetzSeries, float, float]:
     """The Robin-wall series of the independent reading: (series, conductance, c_out)."""
     wall = linear_layer_wall(layers_problem(independent))
     face = independent.inner_boundary
@@ -441,11 +442,19 @@ def _body_minimum(run: FlowRun, layers: Problem) -> tuple[float, float, float, n
     return _minimum_of(run.fine, run.table, layers)
 
 
-def _figures(run: FlowRun, layers: Problem) -> dict[str, float]:
+def _outlet_sherwood(run: FlowRun) -> tuple[float, float]:
+    """(c_m - c_w at the outlet, the local Sherwood number 2 R j / (D (c_m - c_w)) there;
+    NaN where the two are equal)."""
     tube, fine = run.tube, run.fine
     driving = float(fine.mixing_cup[-1] - fine.wall[-1])
     sherwood = (2.0 * tube.radius * float(fine.wall_flux[-1]) / (tube.diffusivity * driving)
                 if driving != 0.0 else math.nan)
+    return driving, sherwood
+
+
+def _figures(run: FlowRun, layers: Problem) -> dict[str, float]:
+    tube, fine = run.tube, run.fine
+    _, sherwood = _outlet_sherwood(run)
     value, r_min, z_min, _ = _body_minimum(run, layers)
     return {"outlet_concentration": float(fine.mixing_cup[-1]), "concentration_min": value,
             "concentration_min_r": r_min, "concentration_min_z": z_min,
@@ -515,27 +524,28 @@ def run_flow(problem: Problem, independent: Problem | None = None,
     outlet = float(fine.mixing_cup[-1])
     fall_band = bands["outlet_mixing_cup"]
     fall_relative = fall_band / max(abs(tube.inlet - outlet), 1e-300)
-    driving = float(fine.mixing_cup[-1] - fine.wall[-1])
-    sherwood = (2.0 * tube.radius * float(fine.wall_flux[-1]) / (tube.diffusivity * driving)
-                if driving != 0.0 else math.nan)
+    driving, sherwood = _outlet_sherwood(run)
     methods = [{"role": "primary", "name": "lumen marching (finite volumes in r, extrapolated "
                 "implicit Euler in z) coupled to the layers' steady solve",
                 "reference": "Shah & London 1978, ch. 5 (the problem); Celik et al. 2008 "
                              "(grid study)"}]
 
     if layers.is_linear:
-        series, conductance, c_out = _series_for(independent, z_star)
+        series, conductance, c_out = _series_for(independent)
+        # the series' positions, inlet and length from the second reading too
+        second = tube_of(independent)
         if z_star >= series.smallest_z_star(SERIES_TOLERANCE):
-            scale = max(abs(tube.inlet - c_out), 1e-300)
-            z_all = np.asarray(tube.z_star(fine.position), dtype=float)
+            scale = max(abs(second.inlet - c_out), 1e-300)
+            z_all = np.asarray(second.z_star(fine.position), dtype=float)
             trusted = z_all >= series.smallest_z_star(SERIES_TOLERANCE)
             graetz_check(
                 outcome, problem, mixing_cup=fine.mixing_cup[trusted],
                 outlet_wall=float(fine.wall[-1]),
                 band=max(fall_band, bands["mixing_cup_profile"], bands["outlet_wall"]) / scale,
-                series_mixing_cup=c_out + (tube.inlet - c_out) * series.mixing_cup(
+                series_mixing_cup=c_out + (second.inlet - c_out) * series.mixing_cup(
                     z_all[trusted]),
-                series_wall=c_out + (tube.inlet - c_out) * float(series.wall(z_star)[0]),
+                series_wall=c_out + (second.inlet - c_out) * float(
+                    series.wall(float(second.z_star(second.length)))[0]),
                 series_band=SERIES_TOLERANCE, scale=scale)
             methods.append({"role": "independent", "name": "Graetz series, layers as a Robin "
                             "wall (second reading of the case)",
@@ -550,13 +560,14 @@ def run_flow(problem: Problem, independent: Problem | None = None,
                            band=fall_band / max(abs(driving), 1e-300),
                            source=f"Robin wall, Bi = {series.biot:.4g}, first Graetz term")
     elif _krogh_applies(problem):
-        layer = problem.layers[0]
-        k_wall = problem.face_partition("inner")
-        minimum = krogh_tissue_minimum(problem.inner, problem.outer, layer.diffusivity,
+        # the closed forms' inputs from the second reading
+        layer, second = independent.layers[0], tube_of(independent)
+        k_wall = independent.face_partition("inner")
+        minimum = krogh_tissue_minimum(independent.inner, independent.outer, layer.diffusivity,
                                        layer.reaction.rate, k_wall * float(fine.wall[-1]))
         if minimum > 0.0:
-            exact = krogh_mixing_cup(fine.position, tube.inlet, tube.flow_rate,
-                                     problem.inner, problem.outer, layer.reaction.rate)
+            exact = krogh_mixing_cup(fine.position, second.inlet, second.flow_rate,
+                                     independent.inner, independent.outer, layer.reaction.rate)
             krogh_check(outcome, problem, mixing_cup=fine.mixing_cup, exact_mixing_cup=exact,
                         layer_minimum=layer_answer(layers, float(fine.wall[-1])).minimum,
                         exact_minimum=minimum, band=fall_relative, inlet=tube.inlet)

@@ -157,6 +157,35 @@ def test_graetz_check_catches_an_error_in_either_route():
             assert not _passes(flow.graetz_check, **dict(good, mixing_cup=wrong))
 
 
+@pytest.mark.parametrize("field", ["flow_rate", "inlet", "diffusivity"])
+def test_graetz_route_reads_the_flow_from_the_second_reading(field):
+    """A primary reading of the flow face off by 1 % either way (the second reading right)
+    turns ``cross_check.graetz``: the series takes the flow, the inlet and the fluid's
+    diffusivity from the second reading, not from the primary's."""
+    problem = _case("first_order")
+    for sign in (1.0, -1.0):
+        face = problem.inner_boundary
+        misread = dataclasses.replace(
+            problem, inner_boundary=dataclasses.replace(
+                face, **{field: getattr(face, field) * (1.0 + sign * 0.01)}))
+        checks = {c.name: c for c in flow.run_flow(misread, problem).checks}
+        assert not checks["cross_check.graetz"].passed, (field, sign)
+
+
+@pytest.mark.parametrize("field", ["flow_rate", "inlet"])
+def test_krogh_route_reads_the_case_from_the_second_reading(field):
+    """As for the Graetz route: a primary reading of the flow face off by 1 % either way turns
+    ``cross_check.krogh``."""
+    problem = _case("zero_order")
+    for sign in (1.0, -1.0):
+        face = problem.inner_boundary
+        misread = dataclasses.replace(
+            problem, inner_boundary=dataclasses.replace(
+                face, **{field: getattr(face, field) * (1.0 + sign * 0.01)}))
+        checks = {c.name: c for c in flow.run_flow(misread, problem).checks}
+        assert not checks["cross_check.krogh"].passed, (field, sign)
+
+
 def test_sherwood_check_catches_an_error_either_way():
     assert _passes(flow.sherwood_check, sherwood=4.3311, expected=4.3282, band=0.0, source="t")
     for sign in (1.0, -1.0):
@@ -191,6 +220,25 @@ def test_convergence_checks_catch_a_mesh_dependent_answer():
     for sign in (1.0, -1.0):
         assert outcome_of([0.18, 0.18 * (1 + sign * 0.01), 0.18 * (1 + sign * 0.03)]) == [
             False, False]
+
+
+def test_each_convergence_check_judges_its_own_direction():
+    """A mesh-dependent answer in r alone turns ``convergence.space_r`` only, in z alone
+    ``convergence.space_z`` only, in either direction of the error."""
+    settled = grid_study([0.18, 0.18 + 1e-8, 0.18 + 5e-8], ratios=(2, 2))
+
+    def verdicts(bad_direction, sign):
+        moving = grid_study([0.18, 0.18 * (1 + sign * 0.01), 0.18 * (1 + sign * 0.03)],
+                            ratios=(2, 2))
+        studies = {d: {"outlet_mixing_cup": moving if d == bad_direction else settled,
+                       "through_wall": settled} for d in "rz"}
+        outcome = Outcome()
+        flow.convergence_checks(outcome, _case("first_order"), studies, ([], []), 0.2)
+        return {c.name: c.passed for c in outcome.checks}
+
+    for sign in (1.0, -1.0):
+        assert verdicts("r", sign) == {"convergence.space_r": False, "convergence.space_z": True}
+        assert verdicts("z", sign) == {"convergence.space_r": True, "convergence.space_z": False}
 
 
 @pytest.mark.parametrize("sign", [1.0, -1.0])
