@@ -142,9 +142,11 @@ def test_inner_donor_with_clearance_converges_to_the_laplace_route(geometry):
 
 
 def _with_capacity_factor(monkeypatch, factor):
-    original = galerkin.compartment_capacity
-    monkeypatch.setattr(galerkin, "compartment_capacity",
-                        lambda problem, side: factor * original(problem, side))
+    """The Galerkin route's own compartment capacity (``_fluid_per_weight``) times ``factor``."""
+    original = galerkin._fluid_per_weight
+    monkeypatch.setattr(galerkin, "_fluid_per_weight",
+                        lambda problem, side, radius, weight:
+                        factor * original(problem, side, radius, weight))
 
 
 @pytest.mark.parametrize("factor", [1.002, 0.998])
