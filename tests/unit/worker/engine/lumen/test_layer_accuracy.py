@@ -131,3 +131,12 @@ def test_the_layers_band_joins_the_minimum_and_the_outlet():
     # the minimum's band holds at least the layers' own band at the minimum's wall
     assert (outcome.quantities["concentration_min"]["uncertainty"]
             >= studies[0].band("minimum"))
+
+
+def test_a_closed_form_run_says_so_and_has_no_layer_study():
+    outcome = run_problem(_case(Reaction("first_order", rate_constant=0.05)))
+    assert outcome.check("convergence.space_layers") is None
+    wall_law = outcome.check("cross_check.wall_law")
+    assert wall_law is not None and "closed form" in wall_law.detail
+    mm = run_problem(_case()).check("cross_check.wall_law")
+    assert mm is not None and "closed form" not in mm.detail
