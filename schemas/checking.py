@@ -125,6 +125,8 @@ def check_case(case: dict, *, on_progress: Callable[[int, int], None] | None = N
                               provenance_block(digest, started_at, utc_now()),
                               validated.normalised, design)
     record.update(extra)
+    record["warnings"].extend(f"uncertainty: {w}"
+                              for w in (record.get("uncertainty") or {}).get("warnings", []))
     if calibrated is not None:
         record["calibration"] = calibrated.block
         record["checks"].append(fit_check(calibrated, outcome, validated.design, duration))
