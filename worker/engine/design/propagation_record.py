@@ -33,9 +33,11 @@ ASSUMPTIONS = (
     "the output is taken as normally distributed: U = k u_c with k from the normal "
     "distribution at the coverage, and each probability met is that of a normal of mean y "
     "and standard deviation u_c; neither is a coverage interval of the actual distribution",
-    "correlations enter eq. 13 as the correlation coefficients of the inputs (the case states "
-    "them as those of the inputs' normal scores; the same for normal inputs)",
 )
+#: Said only when the case correlates some inputs.
+CORRELATION_ASSUMPTION = (
+    "correlations enter eq. 13 as the correlation coefficients of the inputs (the case states "
+    "them as those of the inputs' normal scores; the same for normal inputs)")
 
 
 @dataclass(frozen=True)
@@ -203,7 +205,8 @@ def propagation_block(result: Propagation, request: UncertaintyRequest, names: S
         "method": (f"law of propagation of uncertainty (JCGM 100:2008 §5.1-5.2): sensitivity "
                    f"coefficients by central differences at x_i ± u(x_i), {2 * k + 1} "
                    f"evaluations by {how}; first order, the output taken as normal"),
-        "assumptions": list(ASSUMPTIONS),
+        "assumptions": list(ASSUMPTIONS) + ([CORRELATION_ASSUMPTION] if result.correlated
+                                            else []),
         "evaluations": 2 * k + 1,
         "coverage": result.coverage,
         "coverage_factor": result.coverage_factor,
