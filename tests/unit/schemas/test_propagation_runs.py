@@ -81,6 +81,19 @@ def test_linear_inputs_give_the_gums_combined_uncertainty_exactly():
                                                       "uncertainty.trial_model"}
 
 
+def test_the_cost_estimate_charges_2k_plus_1_evaluations():
+    """Two inputs of a closed-form case: five trials of the batched closed form and the three
+    points checked in full; no Monte Carlo trials."""
+    validated = validate_case(_sheet(inputs=[
+        {"field": "inner_boundary.value", "distribution": "normal", "sd": "0.05 mol/m^3"},
+        {"field": "layers[0].diffusivity", "distribution": "normal", "relative_sd": 0.1}]))
+    estimate = estimate_cost(validated.problem, validated.design)
+    assert estimate.propagation_evaluations == 5 and estimate.trials == 0
+    assert estimate.propagation_work == pytest.approx(
+        5 * estimate.trial_work + 3 * estimate.check_work)
+    assert estimate.work == pytest.approx(estimate.check_work + estimate.propagation_work)
+
+
 @pytest.mark.parametrize("r", [0.7, -0.7])
 def test_correlation_changes_u_c_as_eq_13_says(r):
     """JCGM 100 §5.2.2, eq. 13: u_c² = c1² u1² + c2² u2² + 2 c1 c2 u1 u2 r; here c1 c2 < 0, so a

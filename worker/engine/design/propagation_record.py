@@ -87,8 +87,8 @@ def verification_block(rows: Sequence[PointCheck], names: Sequence[str],
             if band is not None and math.isfinite(band):
                 largest[name] = max(largest.get(name, 0.0), band)
                 spread = float(combined[j])
-                ratio = band / spread if spread > 0.0 else (0.0 if band == 0.0 else math.inf)
-                worst_ratio = max(worst_ratio, ratio)
+                if spread > 0.0 and math.isfinite(spread):  # a figure the inputs do not move
+                    worst_ratio = max(worst_ratio, band / spread)  # has nothing to resolve
             if row.fast is not None:
                 off = _disagreement(row.fast[j], row.full[j], band)
                 if off > worst_model:

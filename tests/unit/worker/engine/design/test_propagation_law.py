@@ -210,3 +210,6 @@ def test_verification_checks_fail_when_their_error_is_injected_both_ways():
     assert checks(_row(fast=1.0 - 3e-6))[0]["uncertainty.trial_model"] is False
     assert checks(_row(band=2e-4))[1]["numerical_small_against_spread"] is False
     assert "uncertainty.trial_model" not in checks(_row(), compared=False)[0]
+    # a figure the inputs do not move (u_c = 0) has nothing to resolve: no infinite ratio
+    still = verification_block([_row()], ["y"], np.array([0.0]), compared=False)
+    assert still["largest_ratio_to_spread"] == 0.0
