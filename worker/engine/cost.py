@@ -48,6 +48,7 @@ from dataclasses import dataclass, replace
 import numpy as np
 
 from worker.engine.bvp_steady import BVP_MAX_JACOBIAN_ENTRIES, BVP_MAX_NODES
+from worker.engine.design.propagation_law import full_check_at_every_point
 from worker.engine.design.request import LAW_OF_PROPAGATION, DesignRequest
 from worker.engine.design.sampling import default_block_size
 from worker.engine.design.targets import COMPARTMENT, FLOW
@@ -342,16 +343,14 @@ PROPAGATION_FULL_CHECKS = 3
 def propagation_work(problem: Problem, design: DesignRequest, check_work: float,
                      trial_work: float) -> float:
     """Work of the law of propagation (JCGM 100:2008) over the case's k uncertain inputs: 2k + 1
-    full checks where each trial is a full check anyway (the runner then checks every point in
-    full: a lumen with flow, a transient case without a scaled series, a non-slab steady case
-    whose inner radius varies), else 2k + 1 trials and ``PROPAGATION_FULL_CHECKS`` full
-    checks."""
+    full checks where the runner checks every point in full
+    (:func:`~worker.engine.design.propagation_law.full_check_at_every_point`: a lumen with
+    flow, a transient case without the scaled series, a non-slab steady case whose inner radius
+    varies), else 2k + 1 trials and ``PROPAGATION_FULL_CHECKS`` full checks."""
     if design.uncertainty is None:
         return 0.0
     evaluations = design.uncertainty.evaluations
-    varies_inner = problem.geometry != "slab" and any(
-        s.field.path == "inner" for s in design.uncertainty.inputs)
-    if trial_work >= check_work or (problem.regime.kind == "steady" and varies_inner):
+    if full_check_at_every_point(problem, [s.field for s in design.uncertainty.inputs]):
         return evaluations * check_work
     return evaluations * trial_work + min(PROPAGATION_FULL_CHECKS, evaluations) * check_work
 

@@ -52,11 +52,14 @@ from dataclasses import dataclass
 import numpy as np
 from scipy import stats
 
+from worker.engine.design.paths import FieldRef
 from worker.engine.design.request import UncertainInput
+from worker.engine.design.trials import TrialModel
+from worker.engine.model import Problem
 
-__all__ = ["InputEstimate", "Propagation", "REFERENCE", "coverage_factor", "design_points",
-           "input_estimate", "propagate", "requirement_summary", "sensitivity_coefficients",
-           "significance_tolerance"]
+__all__ = ["REFERENCE", "InputEstimate", "Propagation", "coverage_factor", "design_points",
+           "full_check_at_every_point", "input_estimate", "propagate", "requirement_summary",
+           "sensitivity_coefficients", "significance_tolerance"]
 
 REFERENCE = ("JCGM 100:2008 (GUM), law of propagation of uncertainty §5.1-5.2, eq. 10 and 13; "
              "coverage factor §G.1-G.2")
@@ -136,6 +139,15 @@ def input_estimate(spec: UncertainInput) -> InputEstimate:
                 f"({spec.field.path} {relation} {floor:g}); use method monte_carlo, or a "
                 "narrower distribution")
     return InputEstimate(spec.field.path, float(estimate), float(u), value, basis)
+
+
+def full_check_at_every_point(problem: Problem, fields: Sequence[FieldRef]) -> bool:
+    """True where the trial model solves the case trial by trial (a transient case without the
+    scaled series, a lumen with flow, a non-slab steady case whose inner radius varies): each
+    point is then a full check, whose figures the propagation takes. Otherwise the batched or
+    scaled trial model gives the figures and a few points are checked in full. The design
+    runner and the cost estimate both follow this rule."""
+    return TrialModel(problem, fields, ()).method == "trial by trial"
 
 
 def design_points(estimates: Sequence[InputEstimate]) -> np.ndarray:

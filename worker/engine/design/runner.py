@@ -35,7 +35,12 @@ from worker.engine.design.monte_carlo import (
     compute_block,
 )
 from worker.engine.design.paths import FieldRef, value_of, with_values
-from worker.engine.design.propagation_law import design_points, input_estimate, propagate
+from worker.engine.design.propagation_law import (
+    design_points,
+    full_check_at_every_point,
+    input_estimate,
+    propagate,
+)
 from worker.engine.design.propagation_record import (
     PointCheck,
     propagation_block,
@@ -322,7 +327,7 @@ class DesignRunner:
         labels = ["centre"] + [f"{f.path} + u" for f in fields] + [f"{f.path} − u"
                                                                     for f in fields]
         model = TrialModel(self.problem, fields, self.scheme.targets)
-        every_point = model.method == "trial by trial"
+        every_point = full_check_at_every_point(self.problem, fields)
         fast = None if every_point else model(points)
         checked: list[int] = list(range(len(points))) if every_point else [0]
         if fast is not None:
