@@ -378,7 +378,7 @@ class UncertaintyResultSchema(OpenSchema):
     ``law_of_propagation``, by the law of propagation of uncertainty (JCGM 100:2008)."""
 
     propagation = fields.String(metadata={
-        "description": "law_of_propagation when the case chose it (absent: Monte Carlo)"})
+        "description": "monte_carlo or law_of_propagation: the case's uncertainty.method"})
     reference = fields.String(metadata={"description": "the standard and clauses applied"})
     evaluations = PlainInteger(metadata={
         "description": "law of propagation: model evaluations, 2k + 1 for k inputs"})

@@ -64,7 +64,7 @@ __all__ = ["REFERENCE", "InputEstimate", "Propagation", "coverage_factor", "desi
 REFERENCE = ("JCGM 100:2008 (GUM), law of propagation of uncertainty §5.1-5.2, eq. 10 and 13; "
              "coverage factor §G.1-G.2")
 #: Parent-normal probability below the field's domain above which a truncated normal's own
-#: moments are used (below it the truncation moves the mean and sd by less than about 1e-6 sd).
+#: moments are used (below it the truncation moves the mean and sd by at most about 2e-8 sd).
 TRUNCATION_NEGLIGIBLE = 1e-9
 
 

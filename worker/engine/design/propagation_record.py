@@ -32,7 +32,7 @@ ASSUMPTIONS = (
     "term below measures how far it is not)",
     "the output is taken as normally distributed: U = k u_c with k from the normal "
     "distribution at the coverage, and each probability met is that of a normal of mean y "
-    "and standard deviation u_c; neither is a coverage interval of the actual distribution",
+    "and standard deviation u_c; both hold only as far as the output is normal",
 )
 #: Said only when the case correlates some inputs.
 CORRELATION_ASSUMPTION = (

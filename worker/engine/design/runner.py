@@ -46,7 +46,12 @@ from worker.engine.design.propagation_record import (
     propagation_block,
     verification_block,
 )
-from worker.engine.design.request import LAW_OF_PROPAGATION, DesignRequest, UncertaintyRequest
+from worker.engine.design.request import (
+    LAW_OF_PROPAGATION,
+    MONTE_CARLO,
+    DesignRequest,
+    UncertaintyRequest,
+)
 from worker.engine.design.requirements import Requirement, design_block, read_figure
 from worker.engine.design.sampling import InputDistribution, UncertaintySpec
 from worker.engine.design.sensitivity import sensitivity
@@ -285,6 +290,7 @@ class DesignRunner:
                    "successful_trials": r.successful_trials}
             for r in result.requirements}
         return {
+            "propagation": MONTE_CARLO, "reference": "JCGM 101:2008 (GUM Supplement 1)",
             "trials": result.trials, "failed_trials": result.failed_trials, "seed": result.seed,
             "sampler": result.sampler, "converged": result.converged,
             "stop_reason": result.stop_reason, "blocks": result.blocks,
