@@ -363,11 +363,6 @@ class UncertaintyView:
     def by_law_of_propagation(self) -> bool:
         return self.propagation == "law_of_propagation"
 
-    @property
-    def heading(self) -> str:
-        return ("law of propagation of uncertainty (JCGM 100:2008)" if self.by_law_of_propagation
-                else "Monte Carlo (JCGM 101:2008)")
-
 
 def bounds_of(entries: list[Mapping[str, Any]]) -> list[float]:
     """The numeric bounds of the requirement entries given (both ends of a range)."""
