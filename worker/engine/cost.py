@@ -31,9 +31,10 @@ What is counted (all estimates, deliberately on the safe side):
   unknowns times steps), plus every sweep value (a full check each), the design limit's
   evaluations, the calibration's evaluations (:func:`calibration_evaluations`) and the
   Monte Carlo trials (``max_trials``) times the cost of one trial by the method the trial
-  model uses. A case with a dispersed load or a compartment has no batched or scaled trial
-  model (``Problem.is_linear`` is False for the first; the scaled series takes neither): each
-  trial is a full primary solve.
+  model uses; with ``uncertainty.method`` ``law_of_propagation`` (JCGM 100:2008) instead its
+  2k + 1 evaluations for k inputs (:func:`propagation_work`). A case with a dispersed load or
+  a compartment has no batched or scaled trial model (``Problem.is_linear`` is False for the
+  first; the scaled series takes neither): each trial is a full primary solve.
 
 The budgets are documented defaults (:data:`DEFAULT_BUDGETS`); a service may scale them
 (``FLUXPROOF_COST_BUDGET_SCALE``), never past the worker's memory and time limits it also sets.
@@ -47,7 +48,8 @@ from dataclasses import dataclass, replace
 import numpy as np
 
 from worker.engine.bvp_steady import BVP_MAX_JACOBIAN_ENTRIES, BVP_MAX_NODES
-from worker.engine.design.request import DesignRequest
+from worker.engine.design.propagation_law import full_check_at_every_point
+from worker.engine.design.request import LAW_OF_PROPAGATION, DesignRequest
 from worker.engine.design.sampling import default_block_size
 from worker.engine.design.targets import COMPARTMENT, FLOW
 from worker.engine.fv_mesh import (
@@ -157,6 +159,13 @@ class CostEstimate:
     least_trials: int = 0
     #: The calibration's model evaluations times the trial work; 0 without a calibration.
     calibration_work: float = 0.0
+    #: The law of propagation's work (:func:`propagation_work`) when the case asks for it.
+    propagation_work: float = 0.0
+    #: Its 2k + 1 evaluations for k uncertain inputs (whichever method the case asks for).
+    propagation_evaluations: int = 0
+    #: What the law of propagation would cost this case (whichever method it asks for): the
+    #: alternative a Monte Carlo over budget is told of.
+    propagation_alternative: float = 0.0
 
     @property
     def monte_carlo_work(self) -> float:
@@ -165,7 +174,7 @@ class CostEstimate:
     @property
     def work(self) -> float:
         return self.check_work + self.sweep_work + self.limit_work + self.monte_carlo_work \
-            + self.calibration_work
+            + self.calibration_work + self.propagation_work
 
 
 @dataclass(frozen=True)
@@ -325,6 +334,27 @@ def _flow_check_work(problem: Problem, wanted: list[int]) -> float:
     return FLOW_TABLE_SOLVES * one_solve + FLOW_CELL_STEP_WORK * _flow_cell_steps(problem)[0]
 
 
+#: Points the law of propagation checks in full when its figures come from a batched or scaled
+#: trial model: the centre and the ± u points of the input contributing most
+#: (``DesignRunner.law_of_propagation``).
+PROPAGATION_FULL_CHECKS = 3
+
+
+def propagation_work(problem: Problem, design: DesignRequest, check_work: float,
+                     trial_work: float) -> float:
+    """Work of the law of propagation (JCGM 100:2008) over the case's k uncertain inputs: 2k + 1
+    full checks where the runner checks every point in full
+    (:func:`~worker.engine.design.propagation_law.full_check_at_every_point`: a lumen with
+    flow, a transient case without the scaled series, a non-slab steady case whose inner radius
+    varies), else 2k + 1 trials and ``PROPAGATION_FULL_CHECKS`` full checks."""
+    if design.uncertainty is None:
+        return 0.0
+    evaluations = design.uncertainty.evaluations
+    if full_check_at_every_point(problem, [s.field for s in design.uncertainty.inputs]):
+        return evaluations * check_work
+    return evaluations * trial_work + min(PROPAGATION_FULL_CHECKS, evaluations) * check_work
+
+
 def estimate_cost(problem: Problem, design: DesignRequest | None = None) -> CostEstimate:
     """The estimated cost of checking ``problem`` with ``design``'s runs (no solve)."""
     design = design or DesignRequest()
@@ -364,8 +394,12 @@ def estimate_cost(problem: Problem, design: DesignRequest | None = None) -> Cost
         trial = check_work
     sweep = len(design.sweep.values) * check_work if design.sweep else 0.0
     limit = LIMIT_EVALUATIONS * trial if design.limit else 0.0
-    trials = design.uncertainty.max_trials if design.uncertainty else 0
-    least = 2 * default_block_size(design.uncertainty.coverage) if design.uncertainty else 0
+    propagation = (design.uncertainty is not None
+                   and design.uncertainty.method == LAW_OF_PROPAGATION)
+    alternative = propagation_work(problem, design, check_work, trial)
+    trials = design.uncertainty.max_trials if design.uncertainty and not propagation else 0
+    least = (2 * default_block_size(design.uncertainty.coverage)
+             if design.uncertainty and not propagation else 0)
     calibration = (calibration_evaluations(len(design.calibration.parameters)) * trial
                    if design.calibration else 0.0)
     return CostEstimate(solve_cells=cells, collocation_entries=collocation, time_steps=steps,
@@ -373,7 +407,11 @@ def estimate_cost(problem: Problem, design: DesignRequest | None = None) -> Cost
                         trial_work=trial, trials=trials, costliest_layer=costliest,
                         horizon_field=(_horizon_field(problem)
                                        if problem.regime.kind == "transient" else None),
-                        least_trials=least, calibration_work=calibration)
+                        least_trials=least, calibration_work=calibration,
+                        propagation_work=alternative if propagation else 0.0,
+                        propagation_evaluations=(design.uncertainty.evaluations
+                                                 if design.uncertainty else 0),
+                        propagation_alternative=alternative)
 
 
 def _times_over(value: float, budget: float) -> str:
@@ -430,6 +468,12 @@ def over_budget(estimate: CostEstimate, budgets: Budgets = DEFAULT_BUDGETS,
             "lighten the case")))
         return found
     remaining -= estimate.limit_work
+    if estimate.propagation_work > remaining:
+        found.append(Overrun("uncertainty.inputs", (
+            f"the law of propagation's {estimate.propagation_evaluations} evaluations would "
+            f"take about {_times_over(estimate.propagation_work, remaining)} "
+            "unknown-iterations: propagate fewer inputs or lighten the case")))
+        return found
     if estimate.monte_carlo_work > remaining:
         most = int(remaining // estimate.trial_work) if estimate.trial_work > 0 else 0
         if most >= estimate.least_trials:
@@ -439,6 +483,12 @@ def over_budget(estimate: CostEstimate, budgets: Budgets = DEFAULT_BUDGETS,
                       "adaptive Monte Carlo needs (each trial of this case is a full check): "
                       "drop the uncertainty block (a sweep or design_limit over the uncertain "
                       "input takes far fewer checks) or lighten the case")
+        if 0.0 < estimate.propagation_alternative <= remaining:
+            advice += (f"; or set uncertainty.method to \"{LAW_OF_PROPAGATION}\" (JCGM "
+                       f"100:2008, first order, the output taken as normal): its "
+                       f"{estimate.propagation_evaluations} evaluations take about "
+                       f"{estimate.propagation_alternative:.3g} unknown-iterations, within "
+                       "the budget")
         found.append(Overrun("uncertainty.max_trials", (
             f"{estimate.trials} trials would take about "
             f"{_times_over(estimate.monte_carlo_work, remaining)} unknown-iterations: "
