@@ -33,7 +33,9 @@ What is counted (all estimates, deliberately on the safe side):
   Monte Carlo trials (``max_trials``) times the cost of one trial by the method the trial
   model uses. A case with a dispersed load or a compartment has no batched or scaled trial
   model (``Problem.is_linear`` is False for the first; the scaled series takes neither): each
-  trial is a full primary solve.
+  trial is a full primary solve. A flow case's trials are batched marches of the finest mesh
+  (:func:`flow_trial_work`), with the layers solved per trial where a varied field changes
+  them.
 
 The budgets are documented defaults (:data:`DEFAULT_BUDGETS`); a service may scale them
 (``FLUXPROOF_COST_BUDGET_SCALE``), never past the worker's memory and time limits it also sets.
@@ -57,6 +59,7 @@ from worker.engine.fv_mesh import (
     boundary_concentration_scale,
 )
 from worker.engine.lumen.run import coarse_mesh
+from worker.engine.lumen.trials import LUMEN_FIELDS
 from worker.engine.model import Boundary, Problem
 from worker.engine.transient.method_of_lines import uses_implicit_steps
 from worker.engine.transient.solve import STEADY_HORIZON
@@ -303,12 +306,30 @@ def _transient_cells(problem: Problem, wanted: list[int]) -> int:
 #: A lumen with flow (``worker.engine.lumen.run``): steady solves of the layers charged to its
 #: wall table (measured: 35-60 for a Michaelis-Menten fibre, first pass and verification), and
 #: the marching's work per cell-step of its five meshes (three half and whole steps, a few
-#: Newton iterations on the table each). Its design trials are full primary solves. A mesh the
-#: study finds too coarse is doubled (up to twice per direction, ``lumen.run.MESH_ADAPTATIONS``:
-#: up to 16 times the marching work); charged here: twice the marching work, as drawn cases
-#: rarely adapt (a short tube's thin wall layer in r).
+#: Newton iterations on the table each). A mesh the study finds too coarse is doubled (up to
+#: twice per direction, ``lumen.run.MESH_ADAPTATIONS``: up to 16 times the marching work);
+#: charged here: twice the marching work, as drawn cases rarely adapt (a short tube's thin wall
+#: layer in r).
 FLOW_TABLE_SOLVES = 80
 FLOW_CELL_STEP_WORK = 24.0
+#: A flow case's design trial (``worker.engine.lumen.trials``): the finest march of every trial
+#: at once, charged per cell-step of the finest mesh. Measured 2026-12-05 on the shared 2-core
+#: machine (``tests/benchmarks/test_bench_flow_trials.py``, batches of 2000 trials, 40 x 80
+#: cell-steps): 0.29 ms a trial for the Michaelis-Menten fibre of
+#: ``tests/unit/schemas/test_flow_case.py`` with its flow rate varied (0.09 work a cell-step),
+#: 0.46 ms for the same fibre with first-order cells; charged 0.15.
+FLOW_TRIAL_CELL_STEP_WORK = 0.15
+#: Where a varied field changes the layers, each trial solves them at the nodes of its own wall
+#: table that its lumen reaches and once more for its minimum: measured 15-19 solves a trial for
+#: the fibre above (vmax varied by 10 % to 30 %), charged ``FLOW_TRIAL_LAYER_SOLVES``. The
+#: batched one-grid finite volumes (Michaelis-Menten) cost about 0.5 work a cell each (measured
+#: 0.11 ms for the fibre's 221 cells, with 2.0 ms a trial in all); a closed form
+#: (linear kinetics) ``CLOSED_FORM_TRIAL_WORK`` (0.55 ms a trial in all for the first-order
+#: fibre); a zero-order or saturating body without a batched route is solved trial by trial
+#: (``wall_table.layer_answer``, measured 124 ms a trial for a zero-order fibre), charged as
+#: the full check charges each table solve.
+FLOW_TRIAL_LAYER_SOLVES = 30
+FLOW_BATCHED_SOLVE_CELL_WORK = 0.6
 
 
 def _flow_cell_steps(problem: Problem) -> tuple[int, int]:
@@ -319,10 +340,46 @@ def _flow_cell_steps(problem: Problem) -> tuple[int, int]:
     return sum(a * b for a, b in meshes), (n_r * 4) * (n_z * 4 + 1)
 
 
-def _flow_check_work(problem: Problem, wanted: list[int]) -> float:
-    one_solve = float(sum(min(n, 4000) for n in wanted)) * (
+def _flow_one_solve(problem: Problem, wanted: list[int]) -> float:
+    """Work of one steady solve of the layers, as the full check charges it."""
+    return float(sum(min(n, 4000) for n in wanted)) * (
         1 if problem.is_linear else NONLINEAR_ITERATIONS)
-    return FLOW_TABLE_SOLVES * one_solve + FLOW_CELL_STEP_WORK * _flow_cell_steps(problem)[0]
+
+
+def _flow_check_work(problem: Problem, wanted: list[int]) -> float:
+    return (FLOW_TABLE_SOLVES * _flow_one_solve(problem, wanted)
+            + FLOW_CELL_STEP_WORK * _flow_cell_steps(problem)[0])
+
+
+def _varied_fields(design: DesignRequest) -> list:
+    """The fields the design runs' trial models vary (uncertainty, limit, calibration)."""
+    fields = [s.field for s in design.uncertainty.inputs] if design.uncertainty else []
+    if design.limit is not None:
+        fields.append(design.limit.field)
+    if design.calibration is not None:
+        fields.extend(c.field for c in design.calibration.parameters)
+    return fields
+
+
+def flow_trial_work(problem: Problem, design: DesignRequest, wanted: list[int]) -> float:
+    """Work of one design trial of a flow case (the constants above): the finest march, plus
+    the layers' solves per trial where a varied field changes the layers (their minimum once
+    per trial in any nonlinear case)."""
+    n_r, n_z = coarse_mesh(problem)
+    work = FLOW_TRIAL_CELL_STEP_WORK * (n_r * REFINEMENT_SQUARED) * (n_z * REFINEMENT_SQUARED)
+    layers_vary = any((f.part, f.name) not in LUMEN_FIELDS for f in _varied_fields(design))
+    cells = float(sum(min(n, 4000) for n in wanted))
+    if problem.is_linear:
+        return work + (3 * CLOSED_FORM_TRIAL_WORK if layers_vary else 0.0)
+    batched = any(ly.reaction.law.exact_coefficients(ly.reaction) is None
+                  for ly in problem.layers)
+    one_solve = (FLOW_BATCHED_SOLVE_CELL_WORK * cells if batched
+                 else _flow_one_solve(problem, wanted))
+    return work + one_solve * (FLOW_TRIAL_LAYER_SOLVES if layers_vary else 1)
+
+
+#: The finest mesh of a lumen's study has the coarse mesh's cells and steps times this.
+REFINEMENT_SQUARED = 4
 
 
 def estimate_cost(problem: Problem, design: DesignRequest | None = None) -> CostEstimate:
@@ -352,7 +409,7 @@ def estimate_cost(problem: Problem, design: DesignRequest | None = None) -> Cost
     closed_form = problem.regime.kind == "steady" and all(
         ly.reaction.kind in ("none", "first_order", "zero_order") for ly in problem.layers)
     if flow:
-        trial = check_work
+        trial = flow_trial_work(problem, design, wanted)
     elif closed_form:
         trial = CLOSED_FORM_TRIAL_WORK
     elif problem.regime.kind == "steady":
@@ -436,7 +493,8 @@ def over_budget(estimate: CostEstimate, budgets: Budgets = DEFAULT_BUDGETS,
             advice = f"ask for at most {most} trials"
         else:
             advice = (f"at most {most} fit, fewer than the {estimate.least_trials} the "
-                      "adaptive Monte Carlo needs (each trial of this case is a full check): "
+                      f"adaptive Monte Carlo needs (each trial of this case takes about "
+                      f"{estimate.trial_work:.3g} unknown-iterations): "
                       "drop the uncertainty block (a sweep or design_limit over the uncertain "
                       "input takes far fewer checks) or lighten the case")
         found.append(Overrun("uncertainty.max_trials", (

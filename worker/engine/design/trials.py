@@ -78,6 +78,7 @@ from worker.engine.lumen.run import (
     solve_flow,
 )
 from worker.engine.lumen.trials import (
+    LUMEN_FIELDS,
     NODE_MARGIN,
     ConductanceWalls,
     TableWalls,
@@ -173,9 +174,17 @@ class TrialModel:
                                                self.targets)
             return out
         elif self.problem.inner_boundary.condition.lumen:
-            if self._flow is None:
-                self._flow = _FlowTrials(self.problem, self.fields)
-            out[rows] = self._flow(x[rows], self.targets)
+            try:
+                if self._flow is None:
+                    self._flow = _FlowTrials(self.problem, self.fields)
+                out[rows] = self._flow(x[rows], self.targets)
+                return out
+            except (ValueError, ArithmeticError, np.linalg.LinAlgError):
+                pass  # the nominal case or the batch does not solve: trial by trial
+            for i in rows:
+                out[i] = _flow_one(with_values(self.problem, dict(zip(self.fields, x[i],
+                                                                       strict=True))),
+                                   self.targets)
             return out
         elif self.problem.regime.kind == "transient":
             out[rows] = transient_targets(self.problem, self.fields, x[rows], self.targets)
@@ -549,9 +558,6 @@ def _closed_form(problem: Problem, fields: Sequence[FieldRef], x: np.ndarray,
 
 # -- a lumen with flow, batched -------------------------------------------------------------
 
-#: Fields of a flow case that the lumen alone reads (the layers' wall law does not change).
-LUMEN_FIELDS = frozenset({("inner_boundary", "flow_rate"), ("inner_boundary", "inlet"),
-                          ("inner_boundary", "diffusivity"), ("problem", "length")})
 #: The lumen wall's value in the layers' problem (``lumen.run.layers_problem``).
 _WALL_VALUE = FieldRef("inner_boundary", "value")
 
@@ -703,21 +709,25 @@ class _FlowTrials:
             figures = {}
             for bucket in np.unique(buckets):
                 rows = np.flatnonzero(buckets == bucket)
-                table = self._shared_table(int(bucket))
-                walls = table.take(np.zeros(rows.size, dtype=np.intp))
+                shared_table = self._shared_table(int(bucket))
+                law = shared_table.take(np.zeros(rows.size, dtype=np.intp))
 
                 def solver(local: np.ndarray, c_wall: np.ndarray, rows=rows):
                     return layers(rows[local], c_wall)
-                found = flow_trial_figures(tube.take(rows), meshes[rows], solver, walls=walls)
+                found = flow_trial_figures(tube.take(rows), meshes[rows], solver, walls=law)
                 for name, values in found.items():
                     figures.setdefault(name, np.full(n, np.nan))[rows] = values
         else:
-            table = self.run.table
-            nodes = table.nodes / table.top
+            nominal = self.run.table
+            nodes = nominal.nodes / nominal.top
             lowest = float(np.min(self.run.fine.wall)) / self.inlet
             first = int(np.searchsorted(nodes, lowest, side="right")) - 1 - NODE_MARGIN
             figures = flow_trial_figures(tube, meshes, layers, nodes=nodes, first_node=first)
         out = np.full((n, len(targets)), np.nan)
         for j, target in enumerate(targets):
             out[:, j] = figures.get(target.quantity, np.nan)
+        # a trial the batch leaves unsolved (its wall iteration did not settle): alone
+        for i in np.flatnonzero(~np.isfinite(figures["outlet_concentration"])):
+            out[i] = _flow_one(with_values(self.problem, dict(zip(self.fields, x[i],
+                                                                   strict=True))), targets)
         return out

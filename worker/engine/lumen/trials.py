@@ -55,6 +55,8 @@ from worker.engine.lumen.run import (
 )
 
 __all__ = [
+    "LUMEN_FIELDS",
+    "NODE_MARGIN",
     "ConductanceWalls",
     "LayerSolver",
     "TableWalls",
@@ -64,6 +66,10 @@ __all__ = [
     "march_trials",
 ]
 
+#: Fields of a flow case (``(part, name)`` of ``design.paths.FieldRef``) that only the lumen
+#: reads: varying them leaves the layers' wall law as it is.
+LUMEN_FIELDS = frozenset({("inner_boundary", "flow_rate"), ("inner_boundary", "inlet"),
+                          ("inner_boundary", "diffusivity"), ("problem", "length")})
 #: Extra table nodes below the lowest one the nominal lumen reached, for the first march of
 #: trials with their own table (each trial whose lumen goes lower is marched again).
 NODE_MARGIN = 3
