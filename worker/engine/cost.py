@@ -323,13 +323,17 @@ FLOW_TRIAL_CELL_STEP_WORK = 0.15
 #: table that its lumen reaches and once more for its minimum: measured 15-19 solves a trial for
 #: the fibre above (vmax varied by 10 % to 30 %), charged ``FLOW_TRIAL_LAYER_SOLVES``. The
 #: batched one-grid finite volumes (Michaelis-Menten) cost about 0.5 work a cell each (measured
-#: 0.11 ms for the fibre's 221 cells, with 2.0 ms a trial in all); a closed form
-#: (linear kinetics) ``CLOSED_FORM_TRIAL_WORK`` (0.55 ms a trial in all for the first-order
-#: fibre); a zero-order or saturating body without a batched route is solved trial by trial
-#: (``wall_table.layer_answer``, measured 124 ms a trial for a zero-order fibre), charged as
-#: the full check charges each table solve.
+#: 0.11 ms for the fibre's 221 cells, 1.7-2.0 ms a trial in all), charged
+#: ``FLOW_BATCHED_SOLVE_CELL_WORK``; a closed form (linear kinetics) ``CLOSED_FORM_TRIAL_WORK``
+#: (0.55 ms a trial in all for the fibre with first-order cells). Nonlinear layers with a closed
+#: form but no batched route (zero order, a solubility) are solved one at a time
+#: (``wall_table.layer_answer``, measured about 1.5 ms each for the fibre with zero-order
+#: cells: 1.8 ms a trial with the flow rate varied), charged ``FLOW_LAYER_ANSWER_WORK`` each,
+#: and with their layers varied each trial solves about as many as the full check's table
+#: (measured 124 ms a trial), charged ``FLOW_TABLE_SOLVES`` of them.
 FLOW_TRIAL_LAYER_SOLVES = 30
 FLOW_BATCHED_SOLVE_CELL_WORK = 0.6
+FLOW_LAYER_ANSWER_WORK = 2000.0
 
 
 def _flow_cell_steps(problem: Problem) -> tuple[int, int]:
@@ -371,11 +375,10 @@ def flow_trial_work(problem: Problem, design: DesignRequest, wanted: list[int]) 
     cells = float(sum(min(n, 4000) for n in wanted))
     if problem.is_linear:
         return work + (3 * CLOSED_FORM_TRIAL_WORK if layers_vary else 0.0)
-    batched = any(ly.reaction.law.exact_coefficients(ly.reaction) is None
-                  for ly in problem.layers)
-    one_solve = (FLOW_BATCHED_SOLVE_CELL_WORK * cells if batched
-                 else _flow_one_solve(problem, wanted))
-    return work + one_solve * (FLOW_TRIAL_LAYER_SOLVES if layers_vary else 1)
+    if any(ly.reaction.law.exact_coefficients(ly.reaction) is None for ly in problem.layers):
+        solves = FLOW_TRIAL_LAYER_SOLVES if layers_vary else 1
+        return work + solves * FLOW_BATCHED_SOLVE_CELL_WORK * cells
+    return work + (FLOW_TABLE_SOLVES if layers_vary else 1) * FLOW_LAYER_ANSWER_WORK
 
 
 #: The finest mesh of a lumen's study has the coarse mesh's cells and steps times this.
