@@ -31,12 +31,18 @@ routes that check them. Methods, by case:
   ``steady_check.primary_figures``.
 * transient: ``transient_trials`` (the series of a unit body rescaled for all trials where
   that is exact, else the series or the full transient check trial by trial).
+* a lumen with flow: ``lumen.trials`` (every trial's finest march at once, on the mesh the full
+  check's studies end on, with the wall law shared by all trials where the varied fields are
+  the lumen's, else each trial's own: see ``_FlowTrials``); a trial the batch leaves unsolved,
+  or every trial where the nominal case does not solve, by ``lumen.run.flow_figures`` alone.
 
 Cost measured on the shared 2-core machine (``tests/benchmarks/test_bench_trials.py``,
 ``test_bench_design.py``): about 10-20 us per trial batched (closed form), 5 us per trial
 (scaled series), about 0.33 ms per trial for the two-layer Michaelis-Menten slab by the batched
 finite volumes (1 ms trial by trial), 0.67 ms for the islet capsule with a depleted core
-(5.4 ms trial by trial), about 0.15 s per trial for the full transient check.
+(5.4 ms trial by trial), about 0.15 s per trial for the full transient check; for the
+Michaelis-Menten hollow fibre of the flow tests 0.3-1 ms a trial with the flow rate varied and
+2-4 ms with the cells' vmax varied (0.2-0.6 s by ``flow_figures``; ``test_bench_flow_trials.py``).
 """
 
 from __future__ import annotations
@@ -553,7 +559,6 @@ def _closed_form(problem: Problem, fields: Sequence[FieldRef], x: np.ndarray,
     failed = ~np.all(np.isfinite(unknowns), axis=1)
     out[failed] = np.nan
     return out, depleted & ~failed
-
 
 
 # -- a lumen with flow, batched -------------------------------------------------------------
