@@ -42,7 +42,7 @@ Cost measured on the shared 2-core machine (``tests/benchmarks/test_bench_trials
 finite volumes (1 ms trial by trial), 0.67 ms for the islet capsule with a depleted core
 (5.4 ms trial by trial), about 0.15 s per trial for the full transient check; for the
 Michaelis-Menten hollow fibre of the flow tests 0.3-1 ms a trial with the flow rate varied and
-2-4 ms with the cells' vmax varied (0.2-0.6 s by ``flow_figures``; ``test_bench_flow_trials.py``).
+2-5 ms with the cells' vmax varied (0.2-0.6 s by ``flow_figures``; ``test_bench_flow_trials.py``).
 """
 
 from __future__ import annotations

@@ -39,6 +39,7 @@ FIRST = _fibre(Reaction("first_order", rate_constant=0.05))
 
 CASES = [
     (MM, ["inner_boundary.flow_rate"]),
+    (MM, ["inner_boundary.inlet"]),
     (MM, ["layers[1].reaction.vmax"]),
     (MM, ["inner_boundary.inlet", "layers[0].diffusivity"]),
     (FIRST, ["inner_boundary.flow_rate", "layers[1].reaction.rate_constant"]),
