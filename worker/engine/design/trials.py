@@ -621,14 +621,16 @@ class _FlowTrials:
                 varied = replaced(self.problem, {f: v[part] for f, v in columns.items()})
                 return replaced(layers_problem(varied), {_WALL_VALUE: values[part]})
 
-            everything = np.arange(values.size)
+            # a wall value the lumen could not give (NaN) is not solved: NaN stays
+            finite = np.flatnonzero(np.isfinite(values))
             try:
-                cells = cells_per_layer_trials(view(everything), values.size).sum(axis=1)
+                with np.errstate(all="ignore"):
+                    cells = cells_per_layer_trials(view(finite), finite.size).sum(axis=1)
             except (ValueError, ArithmeticError):
                 return flux.reshape(rows.size, q), low.reshape(rows.size, q)
             chunk = np.cumsum(cells) // FV_CHUNK_CELLS
             for label in np.unique(chunk):
-                part = np.flatnonzero(chunk == label)
+                part = finite[chunk == label]
                 try:
                     figures = solve_one_grid(view(part), part.size)
                 except (ValueError, ArithmeticError, np.linalg.LinAlgError):
@@ -714,7 +716,10 @@ class _FlowTrials:
             figures = {}
             for bucket in np.unique(buckets):
                 rows = np.flatnonzero(buckets == bucket)
-                shared_table = self._shared_table(int(bucket))
+                try:
+                    shared_table = self._shared_table(int(bucket))
+                except (ValueError, ArithmeticError, np.linalg.LinAlgError):
+                    continue  # those trials are solved alone below
                 law = shared_table.take(np.zeros(rows.size, dtype=np.intp))
 
                 def solver(local: np.ndarray, c_wall: np.ndarray, rows=rows):
@@ -731,8 +736,10 @@ class _FlowTrials:
         out = np.full((n, len(targets)), np.nan)
         for j, target in enumerate(targets):
             out[:, j] = figures.get(target.quantity, np.nan)
-        # a trial the batch leaves unsolved (its wall iteration did not settle): alone
-        for i in np.flatnonzero(~np.isfinite(figures["outlet_concentration"])):
+        # a trial the batch leaves unsolved (its wall iteration or its layers did not
+        # settle): alone
+        unsolved = figures.get("outlet_concentration", np.full(n, np.nan))
+        for i in np.flatnonzero(~np.isfinite(unsolved)):
             out[i] = _flow_one(with_values(self.problem, dict(zip(self.fields, x[i],
                                                                    strict=True))), targets)
         return out

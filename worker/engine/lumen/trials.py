@@ -162,7 +162,7 @@ class TableWalls:
     ``nodes`` (m,): s of the nodes, from 0 to 1; ``top`` (n,): each trial's inlet; ``flux``,
     ``minimum``: (m, n) per trial, or (m, 1) shared; ``start`` (n,): each trial's first node
     with values (the nodes below are not solved; the law is continued linearly below it as
-    below 0)."""
+    below 0). A trial with a value missing (NaN) from its start up gets NaN from its law."""
 
     def __init__(self, nodes: np.ndarray, top: np.ndarray, flux: np.ndarray,
                  minimum: np.ndarray, start: np.ndarray | None = None):
@@ -174,8 +174,16 @@ class TableWalls:
                       else np.asarray(start, dtype=np.intp))
         self._flux = np.full((4, self.nodes.size - 1, columns), np.nan)
         self._minimum = np.full_like(self._flux, np.nan)
+        # a trial whose layers did not solve at some node keeps NaN (its figures then NaN)
+        solved = np.ones(columns, dtype=bool)
         for first in np.unique(self.start):
             group = np.flatnonzero(self.start == first)
+            solved[group] = (np.all(np.isfinite(self.flux[first:, group]), axis=0)
+                             & np.all(np.isfinite(self.minimum[first:, group]), axis=0))
+        for first in np.unique(self.start):
+            group = np.flatnonzero((self.start == first) & solved)
+            if group.size == 0:
+                continue
             x = self.nodes[first:]
             self._flux[:, first:, group] = PchipInterpolator(x, self.flux[first:, group],
                                                              axis=0).c

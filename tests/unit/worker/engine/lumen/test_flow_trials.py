@@ -121,3 +121,48 @@ def test_the_batched_march_meets_the_graetz_series_of_a_robin_wall(biot):
     assert np.all(errors[1] < 1e-4), errors
     worst = int(np.argmax(errors[0]))
     assert 3.0 < errors[0][worst] / errors[1][worst] < 5.0, errors
+
+
+def test_a_trial_whose_layers_did_not_solve_gets_nan_and_the_others_their_law():
+    """A table column with a node missing (a layers' solve that failed) gives NaN for that
+    trial only (it is then solved alone); the others interpolate as ``WallTable`` does (pchip
+    reproduces a straight line: j = 2 c_w exactly)."""
+    from worker.engine.lumen.trials import TableWalls
+
+    nodes = np.linspace(0.0, 1.0, 5)
+    flux = np.column_stack([2.0 * nodes, 2.0 * nodes])
+    flux[2, 1] = np.nan
+    table = TableWalls(nodes, np.ones(2), flux, flux.copy())
+    j, slope = table.law(np.array([0.3, 0.3]), np.arange(2))
+    assert j[0] == pytest.approx(0.6, rel=1e-14) and slope[0] == pytest.approx(2.0, rel=1e-14)
+    assert np.isnan(j[1]) and np.isnan(slope[1])
+
+
+def test_a_trial_the_batch_leaves_unsolved_is_solved_alone(monkeypatch):
+    """One trial's layers fail at one node in the batched finite volumes: that trial alone is
+    solved by the full primary solve (``flow_figures``), the others stay batched."""
+    import dataclasses
+
+    from worker.engine.design import trials as design_trials
+
+    original_solve, original_one = design_trials.solve_one_grid, design_trials._flow_one
+    alone = []
+
+    def failing(view, n):
+        figures = original_solve(view, n)
+        flux = figures.flux_inner.copy()
+        if not alone:  # the first pair of the first call: trial 0 at its first node
+            flux[0] = np.nan
+        return dataclasses.replace(figures, flux_inner=flux)
+
+    def one(problem, targets):
+        alone.append(problem)
+        return original_one(problem, targets)
+
+    monkeypatch.setattr(design_trials, "solve_one_grid", failing)
+    monkeypatch.setattr(design_trials, "_flow_one", one)
+    model = _model(MM, ["layers[1].reaction.vmax"])
+    y = model(np.array([[1.8e-3], [2.2e-3]]))
+    assert len(alone) == 1 and alone[0].layers[1].reaction.vmax == 1.8e-3
+    full = flow.flow_figures(alone[0])
+    assert y[0, 0] == full["outlet_concentration"] and np.all(np.isfinite(y))
