@@ -58,7 +58,7 @@ from worker.engine.fv_mesh import (
     THIELE_CELL_LIMIT,
     boundary_concentration_scale,
 )
-from worker.engine.lumen.run import coarse_mesh
+from worker.engine.lumen.run import REFINEMENT, coarse_mesh
 from worker.engine.lumen.trials import LUMEN_FIELDS
 from worker.engine.model import Boundary, Problem
 from worker.engine.transient.method_of_lines import uses_implicit_steps
@@ -370,7 +370,8 @@ def flow_trial_work(problem: Problem, design: DesignRequest, wanted: list[int]) 
     the layers' solves per trial where a varied field changes the layers (their minimum once
     per trial in any nonlinear case)."""
     n_r, n_z = coarse_mesh(problem)
-    work = FLOW_TRIAL_CELL_STEP_WORK * (n_r * REFINEMENT_SQUARED) * (n_z * REFINEMENT_SQUARED)
+    # the finest mesh of the studies: the coarse mesh refined twice by REFINEMENT each way
+    work = FLOW_TRIAL_CELL_STEP_WORK * (n_r * REFINEMENT**2) * (n_z * REFINEMENT**2)
     layers_vary = any((f.part, f.name) not in LUMEN_FIELDS for f in _varied_fields(design))
     cells = float(sum(min(n, 4000) for n in wanted))
     if problem.is_linear:
@@ -379,10 +380,6 @@ def flow_trial_work(problem: Problem, design: DesignRequest, wanted: list[int]) 
         solves = FLOW_TRIAL_LAYER_SOLVES if layers_vary else 1
         return work + solves * FLOW_BATCHED_SOLVE_CELL_WORK * cells
     return work + (FLOW_TABLE_SOLVES if layers_vary else 1) * FLOW_LAYER_ANSWER_WORK
-
-
-#: The finest mesh of a lumen's study has the coarse mesh's cells and steps times this.
-REFINEMENT_SQUARED = 4
 
 
 def estimate_cost(problem: Problem, design: DesignRequest | None = None) -> CostEstimate:
