@@ -143,7 +143,7 @@ def input_estimate(spec: UncertainInput) -> InputEstimate:
 
 def full_check_at_every_point(problem: Problem, fields: Sequence[FieldRef]) -> bool:
     """True where the trial model solves the case trial by trial (a transient case without the
-    scaled series, a lumen with flow, a non-slab steady case whose inner radius varies): each
+    scaled series, a non-slab steady case whose inner radius varies): each
     point is then a full check, whose figures the propagation takes. Otherwise the batched or
     scaled trial model gives the figures and a few points are checked in full. The design
     runner and the cost estimate both follow this rule."""

@@ -55,7 +55,7 @@ from worker.engine.design.request import (
 from worker.engine.design.requirements import Requirement, design_block, read_figure
 from worker.engine.design.sampling import InputDistribution, UncertaintySpec
 from worker.engine.design.sensitivity import sensitivity
-from worker.engine.design.targets import Target, target_dimension
+from worker.engine.design.targets import FLOW, Target, target_dimension
 from worker.engine.design.trials import TrialModel
 from worker.engine.model import Problem
 from worker.engine.outcome import Outcome
@@ -88,8 +88,10 @@ SMALL_AGAINST_SPREAD = 0.1
 HISTOGRAM_BINS = 30
 #: Base points of the Sobol' indices (power of 2) by how the trial model solves: the batched
 #: closed form costs microseconds a trial, batched finite volumes about a third of a
-#: millisecond, a trial by trial solve milliseconds or more.
-SOBOL_POINTS = {"batched closed form": 1024, "batched finite volumes": 256}
+#: millisecond, the batched lumen march of a flow case 0.3-2 ms, a trial by trial solve
+#: milliseconds or more.
+SOBOL_POINTS = {"batched closed form": 1024, "batched finite volumes": 256,
+                "batched lumen march": 256}
 SOBOL_POINTS_ONE_BY_ONE = 64
 
 
@@ -129,12 +131,12 @@ def _target_of(requirement: Requirement) -> Target:
 
 def _default_targets(problem: Problem) -> list[Target]:
     """The headline figures a design run follows when no requirement names one."""
+    if problem.inner_boundary.kind == FLOW:
+        return [Target("concentration_min"), Target("outlet_concentration")]
     if problem.regime.kind == "transient":
         loaded = any(layer.initial > 0.0 for layer in problem.layers)
         return [Target("release_fraction_final")] if loaded else [
             Target("remaining", at=problem.regime.duration)]
-    if problem.inner_boundary.condition.lumen:  # a lumen with flow offers no face fluxes
-        return [Target("concentration_min"), Target("outlet_concentration")]
     return [Target("concentration_min"),
             Target("flux_outer" if problem.outer_boundary.kind != "symmetry" else "flux_inner")]
 
@@ -319,7 +321,7 @@ class DesignRunner:
         :mod:`~worker.engine.design.propagation_law`): the 2k + 1 points x, x ± u_i e_i.
 
         Where the trial model solves trial by trial (a transient case with a compartment or a
-        dispersed load, a layered transient, a lumen with flow), every point is a full check
+        dispersed load, a layered transient), every point is a full check
         and its figures are read from it; otherwise the trial model gives the figures at once
         and the centre and the ± u points of the input contributing most are checked in full,
         the trial model compared with them."""
