@@ -151,8 +151,8 @@ def time_error(problem: Problem, coarse: TransientFVSolution) -> float | None:
     itself and ``CROSS_CHECK_FLOOR`` of the largest face rate (at least the rate that moves
     the amount scale over the duration), over that face's ``cross_check.flux_*`` limit, as
     ``compare`` weighs the face rates. None where the solution was not integrated by implicit
-    steps or the replay did not converge. The replay is kept on the solution (``method_of_lines.time_refinement``): the
-    time check reads it again."""
+    steps or the replay did not converge. The replay is kept on the solution
+    (``method_of_lines.time_refinement``): the time check reads it again."""
     if coarse.history is None or not coarse.success:
         return None
     halved = method_of_lines.time_refinement(problem, coarse, 2)
