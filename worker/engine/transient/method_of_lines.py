@@ -1003,12 +1003,19 @@ def _reported(system: _Rhs, fine: np.ndarray, coarse: np.ndarray, ts: np.ndarray
     u_coarse, c_coarse = _cell_parts(system, coarse[:n])
     values = 2.0 * fine - coarse
     values[:n] = np.clip(2.0 * c_fine - c_coarse, 0.0, system.solubility[:, None])
-    for face in system.compartments:
-        # a fluid level, like a cell, is never negative on the half-step path (implicit Euler
-        # keeps the maximum principle); the combination may overshoot below zero where the
-        # level decays faster than a step resolves, as after the solute has run out
-        values[face.state] = np.maximum(values[face.state], 0.0)
+    _clip_levels(system, values)
     return StepHistory(ts, values, u_fine, n), 2.0 * u_fine - u_coarse
+
+
+def _clip_levels(system: _Rhs, values: np.ndarray) -> None:
+    """Each compartment level of the combined path ``values`` (rows: states) raised to zero
+    where it fell below: a fluid level, like a cell, is never negative on the half-step path
+    (implicit Euler keeps the maximum principle), but the combination 2 fine - coarse
+    overshoots below zero where the level decays faster than a step resolves, as after the
+    solute has run out (the face flux read from it then points the wrong way). The cumulative
+    amounts are states of their own and keep the combination."""
+    for face in system.compartments:
+        values[face.state] = np.maximum(values[face.state], 0.0)
 
 
 def _solve_implicit(problem, built, systems, stack, times, end, start, rtol, y0, atol, loads):
