@@ -136,7 +136,8 @@ def fv_on_meshes(problem: Problem, times: np.ndarray, end: float) -> list[Transi
         return fvs
     again[0].diagnostics["time_tightening"] = {
         "first_error": error, "target": TIME_TARGET, "rtol": rtol,
-        "implicit_rtol": method_of_lines.implicit_rtol(rtol)}
+        "implicit_rtol": method_of_lines.implicit_rtol(rtol),
+        "first_steps": fvs[0].diagnostics["steps"]}
     return again
 
 
