@@ -38,7 +38,7 @@ from schemas.text import hidden_character_errors
 from worker.engine import model
 from worker.engine.boundaries import BOUNDARIES
 from worker.engine.cost import DEFAULT_BUDGETS, Budgets, estimate_cost, over_budget
-from worker.engine.design.request import DesignRequest
+from worker.engine.design.request import LAW_OF_PROPAGATION, DesignRequest
 from worker.engine.model import Problem
 from worker.engine.reactions import REACTIONS
 from worker.engine.units import si_unit
@@ -415,8 +415,11 @@ def _normalise_design(data: Mapping, design: DesignRequest) -> dict:
                              for i, j, rho in design.uncertainty.correlations],
             "coverage": design.uncertainty.coverage,
             "significant_digits": design.uncertainty.significant_digits,
-            "max_trials": design.uncertainty.max_trials,
         }
+        if design.uncertainty.method == LAW_OF_PROPAGATION:
+            out["uncertainty"]["method"] = LAW_OF_PROPAGATION
+        else:
+            out["uncertainty"]["max_trials"] = design.uncertainty.max_trials
         if design.uncertainty.seed is not None:
             out["uncertainty"]["seed"] = design.uncertainty.seed
     if design.limit is not None:

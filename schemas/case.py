@@ -23,6 +23,7 @@ from typing import Any, cast
 from marshmallow import RAISE, Schema, ValidationError, fields, validate
 
 from worker.engine.boundaries import BOUNDARIES, SYMMETRY, BoundaryKind
+from worker.engine.design.request import MONTE_CARLO, PROPAGATION_METHODS
 from worker.engine.design.targets import COMPARTMENT, FLOW
 from worker.engine.parameters import Parameter
 from worker.engine.reactions import REACTIONS, ReactionKind
@@ -612,9 +613,17 @@ class CorrelationSchema(StrictSchema):
 
 
 class UncertaintySchema(StrictSchema):
-    """Input uncertainty propagated by Monte Carlo (JCGM 101:2008)."""
+    """Input uncertainty propagated by Monte Carlo (JCGM 101:2008, the default) or by the law of
+    propagation of uncertainty (JCGM 100:2008)."""
 
     noun = "an uncertainty block"
+    method = fields.String(
+        validate=validate.OneOf(PROPAGATION_METHODS, error="must be one of {choices}; got "
+                                                           "{input!r}"),
+        metadata=_about("monte_carlo: adaptive Monte Carlo (JCGM 101:2008); "
+                        "law_of_propagation: the GUM's first-order law (JCGM 100:2008), 2k + 1 "
+                        "evaluations for k inputs, the output taken as normal",
+                        default=MONTE_CARLO))
     inputs = fields.List(fields.Nested(UncertainInputSchema), required=True,
                          validate=validate.Length(min=1, max=MAX_UNCERTAIN_INPUTS,
                                                   error="1 to {max} inputs"))
@@ -625,9 +634,10 @@ class UncertaintySchema(StrictSchema):
     significant_digits = PlainInteger(validate=validate.Range(min=1, max=3), metadata=_about(
         "digits of the standard uncertainties the adaptive stopping aims at", default=2))
     seed = PlainInteger(validate=validate.Range(min=0, max=2**63 - 1),
-                        metadata=_about("absent: one is drawn and recorded"))
+                        metadata=_about("monte_carlo only; absent: one is drawn and recorded"))
     max_trials = PlainInteger(validate=validate.Range(min=100, max=MAX_TRIALS_LIMIT),
-                              metadata=_about("trials at most", default=1_000_000))
+                              metadata=_about("monte_carlo only: trials at most",
+                                              default=1_000_000))
 
 
 class DesignLimitSchema(StrictSchema):

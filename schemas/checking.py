@@ -14,6 +14,8 @@ from schemas.errors import CaseError
 from schemas.record import failed_record, succeeded_record
 from worker.engine.cost import DEFAULT_BUDGETS, Budgets
 from worker.engine.design.measured import (
+    MONTE_CARLO_SOURCE,
+    PROPAGATION_SOURCE,
     CalibrationRun,
     calibrate_case,
     calibration_propagation,
@@ -22,7 +24,7 @@ from worker.engine.design.measured import (
 )
 from worker.engine.design.monte_carlo import BlockResult
 from worker.engine.design.paths import with_values
-from worker.engine.design.request import DesignRequest
+from worker.engine.design.request import LAW_OF_PROPAGATION, DesignRequest
 from worker.engine.design.requirements import design_block
 from worker.engine.design.runner import (
     BlockScheduler,
@@ -125,6 +127,8 @@ def check_case(case: dict, *, on_progress: Callable[[int, int], None] | None = N
                               provenance_block(digest, started_at, utc_now()),
                               validated.normalised, design)
     record.update(extra)
+    record["warnings"].extend(f"uncertainty: {w}"
+                              for w in (record.get("uncertainty") or {}).get("warnings", []))
     if calibrated is not None:
         record["calibration"] = calibrated.block
         record["checks"].append(fit_check(calibrated, outcome, validated.design, duration))
@@ -159,7 +163,10 @@ def _validation(request: DesignRequest, outcome: Outcome, problem: Problem,
         if calibrated is not None:
             spread = calibration_propagation(calibrated, problem, targets)
             fit = {t.key: float(u) for t, u in zip(targets, spread, strict=True)}
-        return validation_block(request, outcome, duration, monte_carlo, fit)
+        source = (PROPAGATION_SOURCE if (uncertainty or {}).get("propagation")
+                  == LAW_OF_PROPAGATION else MONTE_CARLO_SOURCE)
+        return validation_block(request, outcome, duration, monte_carlo, fit,
+                                input_source=source)
     except (ValueError, ArithmeticError, np.linalg.LinAlgError) as exc:
         error = f"{type(exc).__name__}: {exc}"
         return {"error": error, "reason": f"not computed: {error}", "agrees": False}

@@ -256,12 +256,25 @@ def model_inputs(record: Mapping[str, Any]) -> Factor:
                   if isinstance(i, Mapping)]
         converged = uncertainty.get("converged")
         sensitivity = uncertainty.get("sensitivity")
-        parts.append(f"the uncertainty of {len(inputs)} input(s) ({', '.join(map(str, inputs))}) "
-                     f"propagated by Monte Carlo over {uncertainty.get('trials', '—')} trials"
-                     + ("" if converged else ", not converged")
-                     + (", with sensitivity indices" if sensitivity else ""))
-        if converged is False:
-            problems.append("the Monte Carlo run did not converge")
+        named = f"the uncertainty of {len(inputs)} input(s) ({', '.join(map(str, inputs))})"
+        if uncertainty.get("propagation") == "law_of_propagation":
+            warned = uncertainty.get("warnings") or []
+            parts.append(f"{named} propagated by the law of propagation (JCGM 100:2008, first "
+                         f"order, normal output assumed) over "
+                         f"{uncertainty.get('evaluations', '—')} evaluations, with sensitivity "
+                         "coefficients" + (f"; {len(warned)} warning(s)" if warned else ""))
+            curved = [str(name) for name, q in (uncertainty.get("quantities") or {}).items()
+                      if isinstance(q, Mapping) and q.get("curvature_significant")]
+            if curved:
+                problems.append("the second-order term is not negligible for "
+                                f"{', '.join(curved)}: the first-order result is in doubt")
+        else:
+            parts.append(f"{named} propagated by Monte Carlo over "
+                         f"{uncertainty.get('trials', '—')} trials"
+                         + ("" if converged else ", not converged")
+                         + (", with sensitivity indices" if sensitivity else ""))
+            if converged is False:
+                problems.append("the Monte Carlo run did not converge")
     if isinstance(calibration, Mapping):
         parts.append(_calibration_words(calibration))
         if calibration.get("converged") is False:

@@ -21,7 +21,10 @@ from worker.engine.design.paths import (
     resolve,
     value_of,
 )
+from worker.engine.design.propagation_law import input_estimate
 from worker.engine.design.request import (
+    LAW_OF_PROPAGATION,
+    MONTE_CARLO,
     CalibratedInput,
     CalibrationRequest,
     DesignRequest,
@@ -275,18 +278,32 @@ def _uncertainty(block: Mapping, problem: Problem, reader: _Reader) -> Uncertain
         pairs.add(frozenset(ends))
         correlations.append((ends[0], ends[1], float(item["coefficient"])))
     coverage = float(block.get("coverage", 0.95))
-    least = 2 * default_block_size(coverage)
-    if int(block.get("max_trials", 1_000_000)) < least:
-        reader.fail("uncertainty.max_trials",
-                    f"at least {least} trials: two blocks of {least // 2} (JCGM 101:2008 §7.9.4 "
-                    f"with coverage {coverage:g}), the fewest that adaptive stopping can judge")
+    method = block.get("method", MONTE_CARLO)
+    if method == LAW_OF_PROPAGATION:
+        for key in ("seed", "max_trials"):
+            if key in block:
+                reader.fail(f"uncertainty.{key}", "applies to method monte_carlo only; the law "
+                                                  "of propagation draws no trials: remove it")
+        for index, found in enumerate(inputs if len(inputs) == len(block["inputs"]) else []):
+            try:
+                input_estimate(found)
+            except ValueError as exc:
+                reader.fail(f"uncertainty.inputs[{index}]", str(exc))
+    else:
+        least = 2 * default_block_size(coverage)
+        if int(block.get("max_trials", 1_000_000)) < least:
+            reader.fail("uncertainty.max_trials",
+                        f"at least {least} trials: two blocks of {least // 2} (JCGM 101:2008 "
+                        f"§7.9.4 with coverage {coverage:g}), the fewest that adaptive stopping "
+                        "can judge")
     if len(inputs) != len(block["inputs"]):
         return None
     return UncertaintyRequest(
         inputs=tuple(inputs), correlations=tuple(correlations),
         coverage=float(block.get("coverage", 0.95)),
         significant_digits=int(block.get("significant_digits", 2)),
-        seed=block.get("seed"), max_trials=int(block.get("max_trials", 1_000_000)))
+        seed=block.get("seed"), max_trials=int(block.get("max_trials", 1_000_000)),
+        method=method)
 
 
 def _varied(problem: Problem, path: str, where: str, reader: _Reader

@@ -374,8 +374,19 @@ class SubsetVerificationSchema(OpenSchema):
 
 
 class UncertaintyResultSchema(OpenSchema):
-    """Input uncertainty propagated by Monte Carlo (JCGM 101:2008)."""
+    """Input uncertainty propagated by Monte Carlo (JCGM 101:2008) or, with ``propagation``
+    ``law_of_propagation``, by the law of propagation of uncertainty (JCGM 100:2008)."""
 
+    propagation = fields.String(metadata={
+        "description": "monte_carlo or law_of_propagation: the case's uncertainty.method"})
+    reference = fields.String(metadata={"description": "the standard and clauses applied"})
+    evaluations = PlainInteger(metadata={
+        "description": "law of propagation: model evaluations, 2k + 1 for k inputs"})
+    coverage_factor = PlainNumber(metadata={
+        "description": "law of propagation: k of U = k u_c, from the normal distribution"})
+    warnings = fields.List(fields.String(), metadata={
+        "description": "law of propagation: a curvature term that is not negligible, a figure "
+                       "not propagated, coefficients not resolved above the solver's error"})
     trials = PlainInteger()
     seed = PlainInteger()
     sampler = fields.String()

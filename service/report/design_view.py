@@ -286,6 +286,11 @@ class UncertaintyRow:
     readable_interval: str
     histogram: Mapping[str, Any] | None
     bounds: list[float] = field(default_factory=list)
+    #: Law of propagation only: U = k u_c, the second-order term's change of u_c, and whether
+    #: it is not negligible.
+    expanded_uncertainty: float | None = None
+    second_order_change: float | None = None
+    curvature_significant: bool = False
 
 
 @dataclass(frozen=True)
@@ -294,6 +299,40 @@ class ProbabilityRow:
     probability_met: float | None
     standard_error: float | None
     zero_event_bound: float | None
+    #: Law of propagation only: the margin of the estimate, U, and ``met`` / ``not_met`` /
+    #: ``within_expanded_uncertainty``.
+    margin: float | None = None
+    expanded_uncertainty: float | None = None
+    decided: str | None = None
+
+    @property
+    def decided_words(self) -> str:
+        return {"met": "met beyond U", "not_met": "NOT MET beyond U",
+                "within_expanded_uncertainty": "UNDECIDED: the margin lies within ± U"}.get(
+                    self.decided or "", "—")
+
+
+@dataclass(frozen=True)
+class CoefficientRow:
+    """Law of propagation: one input's sensitivity coefficient for one figure."""
+
+    quantity: str
+    field: str
+    coefficient: float | None
+    contribution: float | None
+    elasticity: float | None
+
+
+@dataclass(frozen=True)
+class InputRow:
+    """Law of propagation: one input's estimate and standard uncertainty (SI)."""
+
+    field: str
+    distribution: str
+    estimate: float | None
+    standard_uncertainty: float | None
+    unit: str
+    basis: str
 
 
 @dataclass(frozen=True)
@@ -312,6 +351,17 @@ class UncertaintyView:
     probabilities: list[ProbabilityRow]
     sensitivity: list[SensitivityRow]
     verification_line: str
+    #: ``monte_carlo`` or ``law_of_propagation``; the latter fills the fields below.
+    propagation: str = "monte_carlo"
+    inputs: list[InputRow] = field(default_factory=list)
+    coefficients: list[CoefficientRow] = field(default_factory=list)
+    #: The method's assumptions and the block's warnings, in the record's words.
+    assumptions: list[str] = field(default_factory=list)
+    warnings: list[str] = field(default_factory=list)
+
+    @property
+    def by_law_of_propagation(self) -> bool:
+        return self.propagation == "law_of_propagation"
 
 
 def bounds_of(entries: list[Mapping[str, Any]]) -> list[float]:
@@ -327,6 +377,14 @@ def bounds_of(entries: list[Mapping[str, Any]]) -> list[float]:
 
 
 def _run_line(block: Mapping[str, Any]) -> str:
+    if block.get("propagation") == "law_of_propagation":
+        factor = _number(block.get("coverage_factor"))
+        coverage = _number(block.get("coverage"))
+        return (f"{block.get('evaluations', '—')} evaluations (2k + 1 for k inputs); coverage "
+                f"factor k = {factor:.4g} for {100 * coverage:.4g} % from the normal distribution"
+                if factor is not None and coverage is not None
+                else f"{block.get('evaluations', '—')} evaluations") + \
+            "; first order, the output taken as normal"
     converged = block.get("converged")
     words = ("converged (adaptive stopping reached the stated digits)" if converged is True
              else "NOT converged: the figures have not reached the stated digits"
@@ -386,18 +444,40 @@ def uncertainty_view(record: Mapping[str, Any]) -> UncertaintyView | None:
             interval=[_number(v) for v in interval], coverage=_number(entry.get("coverage")),
             readable_mean=readable_text(mean, unit, name),
             readable_interval=readable_interval,
-            histogram=histogram if isinstance(histogram, Mapping) else None, bounds=bounds))
+            histogram=histogram if isinstance(histogram, Mapping) else None, bounds=bounds,
+            expanded_uncertainty=_number(entry.get("expanded_uncertainty")),
+            second_order_change=_number(entry.get("second_order_change")),
+            curvature_significant=entry.get("curvature_significant") is True))
     probabilities = [
         ProbabilityRow(str(rid), _number(entry.get("probability_met")),
                        _number(entry.get("standard_error")),
-                       _number(entry.get("zero_event_bound")))
+                       _number(entry.get("zero_event_bound")),
+                       margin=_number(entry.get("margin")),
+                       expanded_uncertainty=_number(entry.get("expanded_uncertainty")),
+                       decided=entry.get("decided") if isinstance(entry.get("decided"), str)
+                       else None)
         for rid, entry in (block.get("requirements") or {}).items() if isinstance(entry, Mapping)]
+    entries = [(str(quantity), str(name), entry)
+               for quantity, fields in (block.get("sensitivity") or {}).items()
+               if isinstance(fields, Mapping)
+               for name, entry in fields.items() if isinstance(entry, Mapping)]
+    propagation = str(block.get("propagation") or "monte_carlo")
+    if propagation == "law_of_propagation":
+        return UncertaintyView(
+            _run_line(block), rows, probabilities, [], _verification_line(block),
+            propagation=propagation,
+            inputs=[InputRow(str(i.get("field")), str(i.get("distribution")),
+                             _number(i.get("estimate")), _number(i.get("standard_uncertainty")),
+                             str(i.get("unit") or "1"), str(i.get("basis") or ""))
+                    for i in block.get("inputs") or [] if isinstance(i, Mapping)],
+            coefficients=[CoefficientRow(q, f, _number(e.get("coefficient")),
+                                         _number(e.get("contribution")),
+                                         _number(e.get("elasticity"))) for q, f, e in entries],
+            assumptions=[str(a) for a in block.get("assumptions") or []],
+            warnings=[str(w) for w in block.get("warnings") or []])
     sensitivity = [
-        SensitivityRow(str(quantity), str(name), _number(entry.get("elasticity")),
-                       _number(entry.get("first_index")), _number(entry.get("total_index")))
-        for quantity, fields in (block.get("sensitivity") or {}).items()
-        if isinstance(fields, Mapping)
-        for name, entry in fields.items() if isinstance(entry, Mapping)]
+        SensitivityRow(q, f, _number(e.get("elasticity")), _number(e.get("first_index")),
+                       _number(e.get("total_index"))) for q, f, e in entries]
     return UncertaintyView(_run_line(block), rows, probabilities, sensitivity,
                            _verification_line(block))
 

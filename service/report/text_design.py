@@ -14,6 +14,7 @@ from service.report.design_view import (
     NOT_MET,
     RequirementRow,
     Statement,
+    UncertaintyView,
     calculation_statement,
     design_statement,
     headline_requirements,
@@ -108,6 +109,8 @@ def uncertainty_lines(record: Mapping[str, Any]) -> list[str]:
     view = uncertainty_view(record)
     if view is None:
         return []
+    if view.by_law_of_propagation:
+        return _propagation_lines(view)
     lines = ["Input uncertainty (Monte Carlo, JCGM 101:2008)", f"  {view.run_line}"]
     if view.rows:
         header = f"  {'quantity':<30} {'mean':>11} {'std. unc.':>11}  coverage interval"
@@ -133,6 +136,45 @@ def uncertainty_lines(record: Mapping[str, Any]) -> list[str]:
         for s in view.sensitivity:
             lines.append(f"               {s.quantity:<24} {s.field:<28} {_g(s.elasticity, 3):>8} "
                          f"{_g(s.first_index, 3):>7} {_g(s.total_index, 3):>7}")
+    lines.append(f"  {view.verification_line}")
+    return lines
+
+
+def _propagation_lines(view: UncertaintyView) -> list[str]:
+    """The law of propagation's block: inputs, coefficients, u_c, U, the requirements judged on
+    the estimate and U, the assumptions and warnings, the points checked in full."""
+    lines = ["Input uncertainty (law of propagation of uncertainty, JCGM 100:2008)",
+             f"  {view.run_line}", "  Inputs: estimate (the distribution's expectation) and "
+             "standard uncertainty"]
+    for i in view.inputs:
+        lines.append(f"    {i.field:<30} {_g(i.estimate):>11} ± {_g(i.standard_uncertainty):<11}"
+                     f" {i.unit}  ({i.distribution}; {i.basis})")
+    if view.coefficients:
+        lines.append(f"  Sensitivity  {'quantity':<24} {'field':<28} {'c_i':>11} {'c_i u_i':>11} "
+                     f"{'elast.':>8}")
+        for c in view.coefficients:
+            lines.append(f"               {c.quantity:<24} {c.field:<28} {_g(c.coefficient):>11} "
+                         f"{_g(c.contribution):>11} {_g(c.elasticity, 3):>8}")
+    if view.rows:
+        header = (f"  {'quantity':<30} {'estimate':>11} {'u_c':>11} {'U':>11}  interval y ± U"
+                  "   2nd-order change of u_c")
+        lines += [header, "  " + "-" * (len(header) - 2)]
+        for row in view.rows:
+            low, high = (row.interval + [None, None])[:2]
+            flag = "  <<< not negligible" if row.curvature_significant else ""
+            lines.append(f"  {row.key:<30} {_g(row.mean):>11} {_g(row.standard_uncertainty):>11}"
+                         f" {_g(row.expanded_uncertainty):>11}  [{_g(low)}, {_g(high)}] "
+                         f"{row.unit}   {_g(row.second_order_change)}{flag}")
+            if row.readable_mean:
+                lines.append(f"  {'':<30} {row.readable_mean:>11}  [{row.readable_interval}]")
+    if view.probabilities:
+        lines.append("  Each requirement on the estimate and U (probability met: normal output "
+                     "assumed)")
+        for p in view.probabilities:
+            lines.append(f"    {p.id:<12} margin {_g(p.margin)}, U {_g(p.expanded_uncertainty)}: "
+                         f"{p.decided_words}; probability met {_g(p.probability_met)}")
+    lines += [f"  assumption: {a}" for a in view.assumptions]
+    lines += [f"  WARNING: {w}" for w in view.warnings]
     lines.append(f"  {view.verification_line}")
     return lines
 

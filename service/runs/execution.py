@@ -24,6 +24,7 @@ from service.store import Store, default_store
 from service.store.blocks import delete_blocks, fix_seed
 from service.store.models import RunStatus
 from worker.engine.cost import DEFAULT_BUDGETS
+from worker.engine.design.request import LAW_OF_PROPAGATION
 
 logger = logging.getLogger(__name__)
 
@@ -91,10 +92,11 @@ def execute_run(run_id: str, store: Store | None = None, *,
 def monte_carlo_options(store: Store, run_id: str, document: dict[str, Any],
                         sharing: BlockSharing) -> dict[str, Any]:
     """``check_case``'s Monte Carlo arguments for a run: its fixed seed (drawn and stored once
-    when the case states none) and the wave scheduler; none for a case without uncertainty."""
+    when the case states none) and the wave scheduler; none for a case without uncertainty or
+    whose uncertainty takes the law of propagation."""
     uncertainty = document.get("uncertainty")
-    if not isinstance(uncertainty, dict):
-        return {}
+    if not isinstance(uncertainty, dict) or uncertainty.get("method") == LAW_OF_PROPAGATION:
+        return {}  # no trials: neither a seed nor blocks
     seed = uncertainty.get("seed")
     if not isinstance(seed, int) or isinstance(seed, bool):
         seed = fix_seed(store, run_id, secrets.randbits(62))

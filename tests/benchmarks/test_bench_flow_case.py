@@ -3,7 +3,7 @@
 Printed: ``check_case`` of the invented hollow fibre of ``tests/unit/schemas/test_flow_case.py``
 (a 100 um lumen, a 50 um wall and 300 um of cells with Michaelis-Menten uptake; invented, not
 data), and the parts of its flow run: the wall table (nodes and seconds), the five marches of the
-studies in r and z, and the design trial (``flow_figures``). Medians of repeated
+studies in r and z, and one trial by the full primary solve (``flow_figures``). Medians of repeated
 ``time.perf_counter`` timings; nothing is asserted about time (shared, noisy machines).
 
 Run with ``make bench``.
@@ -40,7 +40,9 @@ def test_bench_michaelis_menten_flow_case():
           f"{median_seconds(lambda: tabulate(layers, 0.2, tolerance)):.3f} s")
     print(f"  solve_flow (table + 5 marches, finest {max(run.by_mesh)}): "
           f"{median_seconds(lambda: solve_flow(problem)):.3f} s")
-    print(f"  design trial (flow_figures): {median_seconds(lambda: flow_figures(problem)):.3f} s")
+    print("  one trial by the full primary solve (flow_figures; design trials now march in "
+          f"batches, test_bench_flow_trials.py): "
+          f"{median_seconds(lambda: flow_figures(problem)):.3f} s")
     record = check_case(copy.deepcopy(FIBRE))
     print(f"  check_case: {median_seconds(lambda: check_case(copy.deepcopy(FIBRE))):.3f} s, "
           f"verdict {record['verdict']}")

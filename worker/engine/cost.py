@@ -31,9 +31,12 @@ What is counted (all estimates, deliberately on the safe side):
   unknowns times steps), plus every sweep value (a full check each), the design limit's
   evaluations, the calibration's evaluations (:func:`calibration_evaluations`) and the
   Monte Carlo trials (``max_trials``) times the cost of one trial by the method the trial
-  model uses. A case with a dispersed load or a compartment has no batched or scaled trial
-  model (``Problem.is_linear`` is False for the first; the scaled series takes neither): each
-  trial is a full primary solve.
+  model uses; with ``uncertainty.method`` ``law_of_propagation`` (JCGM 100:2008) instead its
+  2k + 1 evaluations for k inputs (:func:`propagation_work`). A case with a dispersed load or
+  a compartment has no batched or scaled trial model (``Problem.is_linear`` is False for the
+  first; the scaled series takes neither): each trial is a full primary solve. A flow case's
+  trials are batched marches of the finest mesh (:func:`flow_trial_work`), with the layers
+  solved per trial where a varied field changes them.
 
 The budgets are documented defaults (:data:`DEFAULT_BUDGETS`); a service may scale them
 (``FLUXPROOF_COST_BUDGET_SCALE``), never past the worker's memory and time limits it also sets.
@@ -47,7 +50,8 @@ from dataclasses import dataclass, replace
 import numpy as np
 
 from worker.engine.bvp_steady import BVP_MAX_JACOBIAN_ENTRIES, BVP_MAX_NODES
-from worker.engine.design.request import DesignRequest
+from worker.engine.design.propagation_law import full_check_at_every_point
+from worker.engine.design.request import LAW_OF_PROPAGATION, DesignRequest
 from worker.engine.design.sampling import default_block_size
 from worker.engine.design.targets import COMPARTMENT, FLOW
 from worker.engine.fv_mesh import (
@@ -56,7 +60,8 @@ from worker.engine.fv_mesh import (
     THIELE_CELL_LIMIT,
     boundary_concentration_scale,
 )
-from worker.engine.lumen.run import coarse_mesh
+from worker.engine.lumen.run import REFINEMENT, coarse_mesh
+from worker.engine.lumen.trials import LUMEN_FIELDS
 from worker.engine.model import Boundary, Problem
 from worker.engine.transient.method_of_lines import uses_implicit_steps
 from worker.engine.transient.solve import STEADY_HORIZON
@@ -110,6 +115,14 @@ IMPLICIT_STEP_FACTOR = 2.5
 #: a finite medium), 10.7 and 11.4 (spheres of 0.5 and 0.3 mm at 8× solubility); 2.5 × 6 = 15
 #: covers them with a margin of about 30 %.
 FRONT_STEP_FACTOR = 6.0
+#: Further steps charged to a zero-order check with a compartment face (``solve.fv_on_meshes``
+#: integrates such a case again, at most ``MAX_TIGHTENING`` = 100 times tighter, where its time
+#: error is large; the steps of implicit Euler with step doubling grow about as the square root
+#: of the tightening). Measured 2026-12-05, both runs' steps over the first's, on a 0.5 mm
+#: zero-order slab with a compartment running out within 3 h: 11.7, 11.1 and 12.0 at the cap
+#: (D = 1e-9 m^2/s with 1 and 2 mol/m^3 loaded into 1 mL; D = 1e-10 m^2/s into 0.2 mL), 6.2
+#: below it (D = 1e-10 m^2/s, 1 mL); 14 covers them with a margin of about 15 %.
+TIGHTENED_STEP_FACTOR = 14.0
 
 
 @dataclass(frozen=True)
@@ -157,6 +170,13 @@ class CostEstimate:
     least_trials: int = 0
     #: The calibration's model evaluations times the trial work; 0 without a calibration.
     calibration_work: float = 0.0
+    #: The law of propagation's work (:func:`propagation_work`) when the case asks for it.
+    propagation_work: float = 0.0
+    #: Its 2k + 1 evaluations for k uncertain inputs (whichever method the case asks for).
+    propagation_evaluations: int = 0
+    #: What the law of propagation would cost this case (whichever method it asks for): the
+    #: alternative a Monte Carlo over budget is told of.
+    propagation_alternative: float = 0.0
 
     @property
     def monte_carlo_work(self) -> float:
@@ -165,7 +185,7 @@ class CostEstimate:
     @property
     def work(self) -> float:
         return self.check_work + self.sweep_work + self.limit_work + self.monte_carlo_work \
-            + self.calibration_work
+            + self.calibration_work + self.propagation_work
 
 
 @dataclass(frozen=True)
@@ -284,6 +304,8 @@ def _transient_steps(problem: Problem) -> int:
         steps *= IMPLICIT_STEP_FACTOR
     if has_dispersed_load(problem):
         steps *= FRONT_STEP_FACTOR
+    if uses_implicit_steps(problem) and compartment_faces(problem) and not problem.can_saturate:
+        steps *= TIGHTENED_STEP_FACTOR
     return math.ceil(steps)
 
 
@@ -303,12 +325,34 @@ def _transient_cells(problem: Problem, wanted: list[int]) -> int:
 #: A lumen with flow (``worker.engine.lumen.run``): steady solves of the layers charged to its
 #: wall table (measured: 35-60 for a Michaelis-Menten fibre, first pass and verification), and
 #: the marching's work per cell-step of its five meshes (three half and whole steps, a few
-#: Newton iterations on the table each). Its design trials are full primary solves. A mesh the
-#: study finds too coarse is doubled (up to twice per direction, ``lumen.run.MESH_ADAPTATIONS``:
-#: up to 16 times the marching work); charged here: twice the marching work, as drawn cases
-#: rarely adapt (a short tube's thin wall layer in r).
+#: Newton iterations on the table each). A mesh the study finds too coarse is doubled (up to
+#: twice per direction, ``lumen.run.MESH_ADAPTATIONS``: up to 16 times the marching work);
+#: charged here: twice the marching work, as drawn cases rarely adapt (a short tube's thin wall
+#: layer in r).
 FLOW_TABLE_SOLVES = 80
 FLOW_CELL_STEP_WORK = 24.0
+#: A flow case's design trial (``worker.engine.lumen.trials``): the finest march of every trial
+#: at once, charged per cell-step of the finest mesh. Measured 2026-12-05 on the shared 2-core
+#: machine (``tests/benchmarks/test_bench_flow_trials.py``, batches of 2000 trials, 40 x 80
+#: cell-steps): 0.29 ms a trial for the Michaelis-Menten fibre of
+#: ``tests/unit/schemas/test_flow_case.py`` with its flow rate varied (0.09 work a cell-step),
+#: 0.46 ms for the same fibre with first-order cells; charged 0.15.
+FLOW_TRIAL_CELL_STEP_WORK = 0.15
+#: Where a varied field changes the layers, each trial solves them at the nodes of its own wall
+#: table that its lumen reaches and once more for its minimum: measured 15-19 solves a trial for
+#: the fibre above (vmax varied by 10 % to 30 %), charged ``FLOW_TRIAL_LAYER_SOLVES``. The
+#: batched one-grid finite volumes (Michaelis-Menten) cost about 0.5 work a cell each (measured
+#: 0.11 ms for the fibre's 221 cells, 1.7-2.0 ms a trial in all), charged
+#: ``FLOW_BATCHED_SOLVE_CELL_WORK``; a closed form (linear kinetics) ``CLOSED_FORM_TRIAL_WORK``
+#: (0.55 ms a trial in all for the fibre with first-order cells). Nonlinear layers with a closed
+#: form but no batched route (zero order, a solubility) are solved one at a time
+#: (``wall_table.layer_answer``, measured about 1.5 ms each for the fibre with zero-order
+#: cells: 1.8 ms a trial with the flow rate varied), charged ``FLOW_LAYER_ANSWER_WORK`` each,
+#: and with their layers varied each trial solves about as many as the full check's table
+#: (measured 124 ms a trial), charged ``FLOW_TABLE_SOLVES`` of them.
+FLOW_TRIAL_LAYER_SOLVES = 30
+FLOW_BATCHED_SOLVE_CELL_WORK = 0.6
+FLOW_LAYER_ANSWER_WORK = 2000.0
 
 
 def _flow_cell_steps(problem: Problem) -> tuple[int, int]:
@@ -319,10 +363,63 @@ def _flow_cell_steps(problem: Problem) -> tuple[int, int]:
     return sum(a * b for a, b in meshes), (n_r * 4) * (n_z * 4 + 1)
 
 
-def _flow_check_work(problem: Problem, wanted: list[int]) -> float:
-    one_solve = float(sum(min(n, 4000) for n in wanted)) * (
+def _flow_one_solve(problem: Problem, wanted: list[int]) -> float:
+    """Work of one steady solve of the layers, as the full check charges it."""
+    return float(sum(min(n, 4000) for n in wanted)) * (
         1 if problem.is_linear else NONLINEAR_ITERATIONS)
-    return FLOW_TABLE_SOLVES * one_solve + FLOW_CELL_STEP_WORK * _flow_cell_steps(problem)[0]
+
+
+def _flow_check_work(problem: Problem, wanted: list[int]) -> float:
+    return (FLOW_TABLE_SOLVES * _flow_one_solve(problem, wanted)
+            + FLOW_CELL_STEP_WORK * _flow_cell_steps(problem)[0])
+
+
+def _varied_fields(design: DesignRequest) -> list:
+    """The fields the design runs' trial models vary (uncertainty, limit, calibration)."""
+    fields = [s.field for s in design.uncertainty.inputs] if design.uncertainty else []
+    if design.limit is not None:
+        fields.append(design.limit.field)
+    if design.calibration is not None:
+        fields.extend(c.field for c in design.calibration.parameters)
+    return fields
+
+
+def flow_trial_work(problem: Problem, design: DesignRequest, wanted: list[int]) -> float:
+    """Work of one design trial of a flow case (the constants above): the finest march, plus
+    the layers' solves per trial where a varied field changes the layers (their minimum once
+    per trial in any nonlinear case)."""
+    n_r, n_z = coarse_mesh(problem)
+    # the finest mesh of the studies: the coarse mesh refined twice by REFINEMENT each way
+    work = FLOW_TRIAL_CELL_STEP_WORK * (n_r * REFINEMENT**2) * (n_z * REFINEMENT**2)
+    layers_vary = any((f.part, f.name) not in LUMEN_FIELDS for f in _varied_fields(design))
+    cells = float(sum(min(n, 4000) for n in wanted))
+    if problem.is_linear:
+        return work + (3 * CLOSED_FORM_TRIAL_WORK if layers_vary else 0.0)
+    if any(ly.reaction.law.exact_coefficients(ly.reaction) is None for ly in problem.layers):
+        solves = FLOW_TRIAL_LAYER_SOLVES if layers_vary else 1
+        return work + solves * FLOW_BATCHED_SOLVE_CELL_WORK * cells
+    return work + (FLOW_TABLE_SOLVES if layers_vary else 1) * FLOW_LAYER_ANSWER_WORK
+
+
+#: Points the law of propagation checks in full when its figures come from a batched or scaled
+#: trial model: the centre and the ± u points of the input contributing most
+#: (``DesignRunner.law_of_propagation``).
+PROPAGATION_FULL_CHECKS = 3
+
+
+def propagation_work(problem: Problem, design: DesignRequest, check_work: float,
+                     trial_work: float) -> float:
+    """Work of the law of propagation (JCGM 100:2008) over the case's k uncertain inputs: 2k + 1
+    full checks where the runner checks every point in full
+    (:func:`~worker.engine.design.propagation_law.full_check_at_every_point`: a transient case
+    without the scaled series, a non-slab steady case whose inner radius varies), else 2k + 1
+    trials and ``PROPAGATION_FULL_CHECKS`` full checks."""
+    if design.uncertainty is None:
+        return 0.0
+    evaluations = design.uncertainty.evaluations
+    if full_check_at_every_point(problem, [s.field for s in design.uncertainty.inputs]):
+        return evaluations * check_work
+    return evaluations * trial_work + min(PROPAGATION_FULL_CHECKS, evaluations) * check_work
 
 
 def estimate_cost(problem: Problem, design: DesignRequest | None = None) -> CostEstimate:
@@ -352,7 +449,7 @@ def estimate_cost(problem: Problem, design: DesignRequest | None = None) -> Cost
     closed_form = problem.regime.kind == "steady" and all(
         ly.reaction.kind in ("none", "first_order", "zero_order") for ly in problem.layers)
     if flow:
-        trial = check_work
+        trial = flow_trial_work(problem, design, wanted)
     elif closed_form:
         trial = CLOSED_FORM_TRIAL_WORK
     elif problem.regime.kind == "steady":
@@ -364,8 +461,12 @@ def estimate_cost(problem: Problem, design: DesignRequest | None = None) -> Cost
         trial = check_work
     sweep = len(design.sweep.values) * check_work if design.sweep else 0.0
     limit = LIMIT_EVALUATIONS * trial if design.limit else 0.0
-    trials = design.uncertainty.max_trials if design.uncertainty else 0
-    least = 2 * default_block_size(design.uncertainty.coverage) if design.uncertainty else 0
+    propagation = (design.uncertainty is not None
+                   and design.uncertainty.method == LAW_OF_PROPAGATION)
+    alternative = propagation_work(problem, design, check_work, trial)
+    trials = design.uncertainty.max_trials if design.uncertainty and not propagation else 0
+    least = (2 * default_block_size(design.uncertainty.coverage)
+             if design.uncertainty and not propagation else 0)
     calibration = (calibration_evaluations(len(design.calibration.parameters)) * trial
                    if design.calibration else 0.0)
     return CostEstimate(solve_cells=cells, collocation_entries=collocation, time_steps=steps,
@@ -373,7 +474,11 @@ def estimate_cost(problem: Problem, design: DesignRequest | None = None) -> Cost
                         trial_work=trial, trials=trials, costliest_layer=costliest,
                         horizon_field=(_horizon_field(problem)
                                        if problem.regime.kind == "transient" else None),
-                        least_trials=least, calibration_work=calibration)
+                        least_trials=least, calibration_work=calibration,
+                        propagation_work=alternative if propagation else 0.0,
+                        propagation_evaluations=(design.uncertainty.evaluations
+                                                 if design.uncertainty else 0),
+                        propagation_alternative=alternative)
 
 
 def _times_over(value: float, budget: float) -> str:
@@ -430,15 +535,28 @@ def over_budget(estimate: CostEstimate, budgets: Budgets = DEFAULT_BUDGETS,
             "lighten the case")))
         return found
     remaining -= estimate.limit_work
+    if estimate.propagation_work > remaining:
+        found.append(Overrun("uncertainty.inputs", (
+            f"the law of propagation's {estimate.propagation_evaluations} evaluations would "
+            f"take about {_times_over(estimate.propagation_work, remaining)} "
+            "unknown-iterations: propagate fewer inputs or lighten the case")))
+        return found
     if estimate.monte_carlo_work > remaining:
         most = int(remaining // estimate.trial_work) if estimate.trial_work > 0 else 0
         if most >= estimate.least_trials:
             advice = f"ask for at most {most} trials"
         else:
             advice = (f"at most {most} fit, fewer than the {estimate.least_trials} the "
-                      "adaptive Monte Carlo needs (each trial of this case is a full check): "
+                      f"adaptive Monte Carlo needs (each trial of this case takes about "
+                      f"{estimate.trial_work:.3g} unknown-iterations): "
                       "drop the uncertainty block (a sweep or design_limit over the uncertain "
                       "input takes far fewer checks) or lighten the case")
+        if 0.0 < estimate.propagation_alternative <= remaining:
+            advice += (f"; or set uncertainty.method to \"{LAW_OF_PROPAGATION}\" (JCGM "
+                       f"100:2008, first order, the output taken as normal): its "
+                       f"{estimate.propagation_evaluations} evaluations take about "
+                       f"{estimate.propagation_alternative:.3g} unknown-iterations, within "
+                       "the budget")
         found.append(Overrun("uncertainty.max_trials", (
             f"{estimate.trials} trials would take about "
             f"{_times_over(estimate.monte_carlo_work, remaining)} unknown-iterations: "

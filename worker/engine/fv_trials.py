@@ -71,7 +71,8 @@ from worker.engine.fv_steady import (
 )
 from worker.engine.model import Problem
 
-__all__ = ["TRIAL_ITERATIONS", "TrialFigures", "cells_per_layer_trials", "solve_trials"]
+__all__ = ["TRIAL_ITERATIONS", "OneGridFigures", "TrialFigures", "cells_per_layer_trials",
+           "solve_one_grid", "solve_trials"]
 
 #: Newton steps allowed on one grid, every change of the active set included.
 TRIAL_ITERATIONS = 120
@@ -532,3 +533,39 @@ def solve_trials(view: Problem, n: int) -> TrialFigures:
         surface_outer=surface_outer + nan, layer_min=low + nan[:, None],
         layer_max=high + nan[:, None], depletion_front=_fronts(fine, c, active, achieved) + nan,
         solved=solved)
+
+
+@dataclass(frozen=True)
+class OneGridFigures:
+    """Figures of n trials each solved on its own default mesh alone (arrays over trials, SI):
+    outward flux densities at the faces, the r^n-weighted consumption, the lowest node of each
+    layer's piecewise-linear profile (n, layers); ``solved`` as in ``TrialFigures``."""
+
+    flux_inner: np.ndarray
+    flux_outer: np.ndarray
+    consumption: np.ndarray
+    layer_min: np.ndarray
+    solved: np.ndarray
+
+
+def solve_one_grid(view: Problem, n: int) -> OneGridFigures:
+    """n trials of a steady case, each on the one mesh ``fv_steady.solve_fv`` builds for it
+    by default (``fv_mesh.default_cells_per_layer``, no refinement study): the same discrete
+    problem as ``solve_fv`` without ``cells_per_layer``, solved to the same tests, so its
+    figures equal that solve's to its convergence tolerance. ``view`` as for
+    :func:`solve_trials`."""
+    trials = _Trials(view, n)
+    grid = _Grid(trials, _cells(trials))
+    c, active = grid.surrogate(), np.zeros(grid.d.size, dtype=bool)
+    with np.errstate(all="ignore"):
+        if grid.zero_index.size:
+            c, active = _smoothed_start(grid, c)
+        c, active, done = _newton_active_set(grid, c, active)
+    solved = done & np.isfinite(np.add.reduceat(c, grid.firsts))
+    figures = _grid_figures(grid, c, _achieved(grid, c, active))
+    low, _, _, _ = _layer_extremes(grid, c)
+    nan = np.where(solved, 0.0, np.nan)
+    return OneGridFigures(flux_inner=figures.flux_inner + nan,
+                          flux_outer=figures.flux_outer + nan,
+                          consumption=figures.consumption + nan,
+                          layer_min=low + nan[:, None], solved=solved)

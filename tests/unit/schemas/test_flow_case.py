@@ -161,16 +161,92 @@ def test_a_flow_case_offers_only_its_own_quantities():
     assert any("outlet_concentration" in m for m in errors.values()), errors
 
 
-def test_monte_carlo_on_a_flow_case_is_refused_by_its_cost():
-    """Each Monte Carlo trial of a flow case is a full primary solve of the lumen: the
-    adaptive run's fewest trials (two blocks, JCGM 101:2008 §7.9.4) exceed the work budget,
-    and the error names the field and suggests a sweep or a design limit instead."""
+def _uncertain(field: str, max_trials: int = 20000) -> dict:
     case = _doc()
-    case["requirements"] = [{"id": "OUT", "quantity": "outlet_concentration",
-                             "at_least": "0.1 mol/m^3"}]
-    case["uncertainty"] = {"inputs": [{"field": "layers[1].reaction.vmax",
-                                       "distribution": "normal", "relative_sd": 0.1}],
-                           "max_trials": 20000}
-    errors = _errors(case)
+    case["requirements"] = [
+        {"id": "OUT", "quantity": "outlet_concentration", "at_least": "0.1 mol/m^3"},
+        {"id": "MIN", "quantity": "concentration_min", "at_least": "1e-4 mol/m^3"}]
+    case["uncertainty"] = {"inputs": [{"field": field, "distribution": "normal",
+                                       "relative_sd": 0.1}],
+                           "seed": 20261205, "max_trials": max_trials}
+    return case
+
+
+@pytest.fixture
+def small_blocks(monkeypatch):
+    """Blocks of 250 trials, at most 1000 (the case's schema asks two blocks of 10^4 at
+    least, JCGM 101:2008 §7.9.4; the engine allows smaller blocks for tests)."""
+    import dataclasses
+
+    from worker.engine.design import runner as design_runner
+
+    original = design_runner.uncertainty_spec
+
+    def small(request, seed):
+        return dataclasses.replace(original(request, seed), block_size=250, max_trials=1000)
+
+    monkeypatch.setattr(design_runner, "uncertainty_spec", small)
+
+
+def _check_named(record: dict, name: str) -> dict:
+    return next(c for c in record["checks"] if c["name"] == name)
+
+
+@pytest.mark.parametrize("field", ["inner_boundary.flow_rate", "layers[1].reaction.vmax"])
+def test_monte_carlo_on_the_fibre_completes_and_its_trials_agree_with_full_checks(
+        small_blocks, field):
+    """An uncertain flow rate (the lumen alone) and an uncertain vmax of the cells (each
+    trial's own wall table): the trials run batched, every trial solves, and the full checks
+    of the verification subset agree with them (``uncertainty.trial_model``)."""
+    record = check_case(_uncertain(field))
+    validate_result(copy.deepcopy(record))
+    block = record["uncertainty"]
+    assert "batched lumen march" in block["method"]
+    assert block["trials"] >= 500 and block["failed_trials"] == 0
+    for name in ("uncertainty.subset", "uncertainty.trial_model"):
+        assert _check_named(record, name)["passed"], _check_named(record, name)
+    assert record["verdict"] == "pass"
+    outlet = block["quantities"]["outlet_concentration"]
+    nominal = record["quantities"]["outlet_concentration"]["value"]
+    assert outlet["interval"][0] < nominal < outlet["interval"][1]
+    assert outlet["standard_uncertainty"] > 0.0
+
+
+@pytest.mark.parametrize("factor", [1 + 1e-5, 1 - 1e-5])
+def test_an_error_in_the_flow_trials_fails_the_trial_model_check(monkeypatch, small_blocks,
+                                                                   factor):
+    """The outlet concentration of the batched trials off by 1e-5 (above or below; the
+    record's band is about 1.4e-6 of it) fails ``uncertainty.trial_model``; the clean run
+    passes it (the test above)."""
+    from worker.engine.lumen import trials as lumen_trials
+
+    original = lumen_trials._figures
+
+    def skewed(*args, **kwargs):
+        figures, lowest = original(*args, **kwargs)
+        figures["outlet_concentration"] = figures["outlet_concentration"] * factor
+        return figures, lowest
+
+    monkeypatch.setattr(lumen_trials, "_figures", skewed)
+    record = check_case(_uncertain("inner_boundary.flow_rate"))
+    assert not _check_named(record, "uncertainty.trial_model")["passed"]
+    assert record["verdict"] == "fail"
+
+
+def test_monte_carlo_on_a_flow_case_beyond_its_budget_is_refused_with_the_trials_that_fit():
+    """A million trials (the default) of the batched lumen march exceed the work budget: the
+    error names ``uncertainty.max_trials`` and how many trials fit."""
+    errors = _errors(_uncertain("layers[1].reaction.vmax", max_trials=1_000_000))
     assert "uncertainty.max_trials" in errors
-    assert "design_limit" in errors["uncertainty.max_trials"]
+    assert "ask for at most" in errors["uncertainty.max_trials"]
+
+
+def test_a_flow_monte_carlo_without_requirements_follows_the_flow_figures(small_blocks):
+    """With no requirement to name them, the run follows the body's minimum and the outlet
+    concentration (a flow case has no face flux to follow)."""
+    case = _uncertain("inner_boundary.flow_rate")
+    del case["requirements"]
+    record = check_case(case)
+    assert set(record["uncertainty"]["quantities"]) == {"concentration_min",
+                                                        "outlet_concentration"}
+    assert _check_named(record, "uncertainty.trial_model")["passed"]

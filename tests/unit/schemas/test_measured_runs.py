@@ -140,6 +140,19 @@ def test_the_uncertainty_block_gives_u_input_by_monte_carlo():
     assert "Monte Carlo" in record["validation"]["u_input_method"]
 
 
+def test_the_law_of_propagation_gives_u_input_and_says_so():
+    record = check_case(_case(
+        _set("CHK", CHECK_DAYS, "validation", seed=2), calibration=None,
+        uncertainty={"inputs": [{"field": "layers[0].thickness", "distribution": "normal",
+                                 "relative_sd": 0.05}], "method": "law_of_propagation"}))
+    quantities = record["uncertainty"]["quantities"]
+    for point in record["validation"]["sets"][0]["points"]:
+        key = f"release_fraction@{point['time']:.15g}s"
+        assert point["u_input"] == pytest.approx(quantities[key]["standard_uncertainty"])
+    assert "law of propagation (JCGM 100:2008" in record["validation"]["u_input_method"]
+    assert "Monte Carlo" not in record["validation"]["u_input_method"]
+
+
 @pytest.mark.parametrize("factor", [1.01, 0.99])
 def test_a_wrong_fast_solve_fails_the_fit_check(monkeypatch, factor):
     """``calibration.trial_model`` fails when the model the fit used is off by 1 %, high or

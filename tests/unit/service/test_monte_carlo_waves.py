@@ -245,6 +245,22 @@ def test_a_case_without_uncertainty_gets_no_scheduler_and_no_progress(store, sch
         assert (run.progress, run.monte_carlo_seed) == (None, None)
 
 
+def test_a_case_taking_the_law_of_propagation_gets_no_scheduler_nor_seed(store, schedulers):
+    """``uncertainty.method = "law_of_propagation"`` draws no trials: no scheduler, no seed
+    fixed for the run, no blocks; the record says which method ran."""
+    case = uncertain_case(seed=None)
+    case["uncertainty"].pop("max_trials")
+    case["uncertainty"]["method"] = "law_of_propagation"
+    run_id = create_run(store, actor="eng", document=case)["run_id"]
+    assert execute_run(run_id, store) == "succeeded"
+    assert schedulers == []
+    with store.transaction() as session:
+        run = session.get(Run, run_id)
+        assert (run.progress, run.monte_carlo_seed) == (None, None)
+    assert get_record(store, run_id)["uncertainty"]["propagation"] == \
+        "law_of_propagation"
+
+
 class _Producer:
     def __enter__(self):
         return self

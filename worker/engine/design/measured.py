@@ -227,15 +227,24 @@ def calibration_propagation(run: CalibrationRun, problem: Problem,
     return np.sqrt(np.clip(variance, 0.0, None))
 
 
+#: How the case's uncertainty block's standard uncertainties were propagated, by method.
+MONTE_CARLO_SOURCE = ("the Monte Carlo standard uncertainty of each figure from the case's "
+                      "uncertainty block (JCGM 101:2008)")
+PROPAGATION_SOURCE = ("the combined standard uncertainty of each figure from the case's "
+                      "uncertainty block by the law of propagation (JCGM 100:2008, first order)")
+
+
 def validation_block(request: DesignRequest, outcome: Outcome, duration: float | None,
                      monte_carlo: Mapping[str, float] | None,
-                     fit: Mapping[str, float] | None) -> dict:
+                     fit: Mapping[str, float] | None, *,
+                     input_source: str = MONTE_CARLO_SOURCE) -> dict:
     """The record's ``validation`` block (ASME V&V 20-2009) for the validation sets.
 
     ``monte_carlo``: the Monte Carlo standard uncertainty of each target by key (None: the case
     states no uncertainty block); ``fit``: the fit's contribution by key (None: nothing
-    calibrated). Each point's u_input combines the two in quadrature (the case's uncertain
-    inputs and the fitted ones are distinct fields, taken as independent)."""
+    calibrated); ``input_source`` says how ``monte_carlo`` was propagated (the law of
+    propagation gives it too). Each point's u_input combines the two in quadrature (the
+    case's uncertain inputs and the fitted ones are distinct fields, taken as independent)."""
     sets = []
     missing_num: list[str] = []
     for measurement in request.validation_sets:
@@ -262,8 +271,7 @@ def validation_block(request: DesignRequest, outcome: Outcome, duration: float |
                                   list(measurement.times)))
     u_input_parts = []
     if monte_carlo is not None:
-        u_input_parts.append("the Monte Carlo standard uncertainty of each figure from the "
-                             "case's uncertainty block (JCGM 101:2008)")
+        u_input_parts.append(input_source)
     if fit is not None:
         u_input_parts.append("the calibration's covariance carried to each point by the law "
                              "of propagation of uncertainty (JCGM 100:2008 §5.2)")

@@ -31,9 +31,19 @@ class UncertainInput:
     unit: str = "1"
 
 
+#: How a case's input uncertainty is propagated (``uncertainty.method``): the adaptive Monte
+#: Carlo of JCGM 101:2008 (the default) or the law of propagation of JCGM 100:2008, 2k + 1
+#: evaluations for k inputs (:mod:`~worker.engine.design.propagation_law`).
+MONTE_CARLO = "monte_carlo"
+LAW_OF_PROPAGATION = "law_of_propagation"
+PROPAGATION_METHODS = (MONTE_CARLO, LAW_OF_PROPAGATION)
+
+
 @dataclass(frozen=True)
 class UncertaintyRequest:
-    """The case's ``uncertainty`` block in SI; ``seed`` None: one is drawn and recorded."""
+    """The case's ``uncertainty`` block in SI; ``seed`` None: one is drawn and recorded;
+    ``method`` one of :data:`PROPAGATION_METHODS` (``seed`` and ``max_trials`` serve the Monte
+    Carlo only)."""
 
     inputs: tuple[UncertainInput, ...]
     correlations: tuple[tuple[int, int, float], ...] = ()
@@ -41,6 +51,12 @@ class UncertaintyRequest:
     significant_digits: int = 2
     seed: int | None = None
     max_trials: int = 1_000_000
+    method: str = MONTE_CARLO
+
+    @property
+    def evaluations(self) -> int:
+        """Model evaluations the law of propagation takes: 2k + 1 for k inputs."""
+        return 2 * len(self.inputs) + 1
 
 
 @dataclass(frozen=True)

@@ -35,11 +35,27 @@ from worker.engine.design.monte_carlo import (
     compute_block,
 )
 from worker.engine.design.paths import FieldRef, value_of, with_values
-from worker.engine.design.request import DesignRequest, UncertaintyRequest
+from worker.engine.design.propagation_law import (
+    design_points,
+    full_check_at_every_point,
+    input_estimate,
+    propagate,
+)
+from worker.engine.design.propagation_record import (
+    PointCheck,
+    propagation_block,
+    verification_block,
+)
+from worker.engine.design.request import (
+    LAW_OF_PROPAGATION,
+    MONTE_CARLO,
+    DesignRequest,
+    UncertaintyRequest,
+)
 from worker.engine.design.requirements import Requirement, design_block, read_figure
 from worker.engine.design.sampling import InputDistribution, UncertaintySpec
 from worker.engine.design.sensitivity import sensitivity
-from worker.engine.design.targets import Target, target_dimension
+from worker.engine.design.targets import FLOW, Target, target_dimension
 from worker.engine.design.trials import TrialModel
 from worker.engine.model import Problem
 from worker.engine.outcome import Outcome
@@ -72,8 +88,10 @@ SMALL_AGAINST_SPREAD = 0.1
 HISTOGRAM_BINS = 30
 #: Base points of the Sobol' indices (power of 2) by how the trial model solves: the batched
 #: closed form costs microseconds a trial, batched finite volumes about a third of a
-#: millisecond, a trial by trial solve milliseconds or more.
-SOBOL_POINTS = {"batched closed form": 1024, "batched finite volumes": 256}
+#: millisecond, the batched lumen march of a flow case 0.3-2 ms, a trial by trial solve
+#: milliseconds or more.
+SOBOL_POINTS = {"batched closed form": 1024, "batched finite volumes": 256,
+                "batched lumen march": 256}
 SOBOL_POINTS_ONE_BY_ONE = 64
 
 
@@ -113,6 +131,8 @@ def _target_of(requirement: Requirement) -> Target:
 
 def _default_targets(problem: Problem) -> list[Target]:
     """The headline figures a design run follows when no requirement names one."""
+    if problem.inner_boundary.kind == FLOW:
+        return [Target("concentration_min"), Target("outlet_concentration")]
     if problem.regime.kind == "transient":
         loaded = any(layer.initial > 0.0 for layer in problem.layers)
         return [Target("release_fraction_final")] if loaded else [
@@ -231,6 +251,8 @@ class DesignRunner:
         request = self.request.uncertainty
         if request is None:
             raise ValueError("the case states no uncertainty")
+        if request.method == LAW_OF_PROPAGATION:
+            return self.law_of_propagation()
         if request.seed is not None:
             seed = request.seed
         elif seed is None:
@@ -270,6 +292,7 @@ class DesignRunner:
                    "successful_trials": r.successful_trials}
             for r in result.requirements}
         return {
+            "propagation": MONTE_CARLO, "reference": "JCGM 101:2008 (GUM Supplement 1)",
             "trials": result.trials, "failed_trials": result.failed_trials, "seed": result.seed,
             "sampler": result.sampler, "converged": result.converged,
             "stop_reason": result.stop_reason, "blocks": result.blocks,
@@ -292,6 +315,61 @@ class DesignRunner:
                 "independent_inputs_assumed": indices.independent_inputs_assumed},
             "verification": verification,
         }
+
+    def law_of_propagation(self) -> dict:
+        """The record's ``uncertainty`` block by the law of propagation (JCGM 100:2008,
+        :mod:`~worker.engine.design.propagation_law`): the 2k + 1 points x, x ± u_i e_i.
+
+        Where the trial model solves trial by trial (a transient case with a compartment or a
+        dispersed load, a layered transient), every point is a full check
+        and its figures are read from it; otherwise the trial model gives the figures at once
+        and the centre and the ± u points of the input contributing most are checked in full,
+        the trial model compared with them."""
+        request = self.request.uncertainty
+        if request is None:
+            raise ValueError("the case states no uncertainty")
+        estimates = [input_estimate(spec) for spec in request.inputs]
+        fields = [spec.field for spec in request.inputs]
+        points = design_points(estimates)
+        k = len(fields)
+        labels = ["centre"] + [f"{f.path} + u" for f in fields] + [f"{f.path} − u"
+                                                                    for f in fields]
+        model = TrialModel(self.problem, fields, self.scheme.targets)
+        every_point = full_check_at_every_point(self.problem, fields)
+        fast = None if every_point else model(points)
+        checked: list[int] = list(range(len(points))) if every_point else [0]
+        if fast is not None:
+            first = propagate(estimates, fast, request.correlations, request.coverage,
+                              request.significant_digits)
+            scores = np.nan_to_num(np.abs(first.contributions), nan=0.0).max(axis=1)
+            dominant = int(np.argmax(scores))
+            checked += [1 + dominant, 1 + k + dominant]
+        rows: list[PointCheck] = []
+        values = np.full((len(points), len(self.scheme.targets)), np.nan) if fast is None \
+            else fast.copy()
+        for index in checked:
+            inputs = dict(zip(fields, (float(v) for v in points[index]), strict=True))
+            outcome = self._checked(inputs)
+            figures = [self._figure(outcome, target) for target in self.scheme.targets]
+            full = np.array([np.nan if v is None else v for v, _ in figures], dtype=float)
+            if fast is None:
+                values[index] = full
+            rows.append(PointCheck(
+                label=labels[index], inputs={f.path: v for f, v in inputs.items()},
+                verdict=self._verdict(outcome), full=tuple(v for v, _ in figures),
+                bands=tuple(b for _, b in figures),
+                fast=None if fast is None else tuple(float(v) for v in fast[index])))
+        result = propagate(estimates, values, request.correlations, request.coverage,
+                           request.significant_digits)
+        verification = verification_block(rows, self.scheme.names, result.combined,
+                                          compared=fast is not None)
+        units = {t.key: self._unit(t) for t in self.scheme.targets}
+        how = ("the full check at every point" if every_point
+               else f"the primary solve ({model.method}); the centre and the ± u points of "
+                    "the input contributing most checked in full")
+        return propagation_block(result, request, self.scheme.names, units,
+                                 self.scheme.requirements, _bounds(self.scheme), how,
+                                 verification)
 
     def _unit(self, target: Target) -> str:
         """The SI unit of a target's values (that of the case's basis)."""

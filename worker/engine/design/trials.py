@@ -31,12 +31,18 @@ routes that check them. Methods, by case:
   ``steady_check.primary_figures``.
 * transient: ``transient_trials`` (the series of a unit body rescaled for all trials where
   that is exact, else the series or the full transient check trial by trial).
+* a lumen with flow: ``lumen.trials`` (every trial's finest march at once, on the mesh the full
+  check's studies end on, with the wall law shared by all trials where the varied fields are
+  the lumen's, else each trial's own: see ``_FlowTrials``); a trial the batch leaves unsolved,
+  or every trial where the nominal case does not solve, by ``lumen.run.flow_figures`` alone.
 
 Cost measured on the shared 2-core machine (``tests/benchmarks/test_bench_trials.py``,
 ``test_bench_design.py``): about 10-20 us per trial batched (closed form), 5 us per trial
 (scaled series), about 0.33 ms per trial for the two-layer Michaelis-Menten slab by the batched
 finite volumes (1 ms trial by trial), 0.67 ms for the islet capsule with a depleted core
-(5.4 ms trial by trial), about 0.15 s per trial for the full transient check.
+(5.4 ms trial by trial), about 0.15 s per trial for the full transient check; for the
+Michaelis-Menten hollow fibre of the flow tests 0.3-1 ms a trial with the flow rate varied and
+2-5 ms with the cells' vmax varied (0.2-0.6 s by ``flow_figures``; ``test_bench_flow_trials.py``).
 """
 
 from __future__ import annotations
@@ -60,8 +66,33 @@ from worker.engine.design.paths import (
 from worker.engine.design.targets import Target, check_target
 from worker.engine.design.transient_trials import scaled_series_applies, transient_targets
 from worker.engine.exact_steady import EdgeForms, system_rows, unknown_columns
-from worker.engine.fv_trials import TrialFigures, cells_per_layer_trials, solve_trials
-from worker.engine.lumen.run import flow_figures
+from worker.engine.fv_trials import (
+    TrialFigures,
+    cells_per_layer_trials,
+    solve_one_grid,
+    solve_trials,
+)
+from worker.engine.limits import check_limit
+from worker.engine.lumen.layer_walls import linear_layer_wall
+from worker.engine.lumen.run import (
+    MAX_COARSE_CELLS,
+    MAX_COARSE_STEPS,
+    FlowRun,
+    coarse_mesh,
+    flow_figures,
+    layers_problem,
+    solve_flow,
+)
+from worker.engine.lumen.trials import (
+    LUMEN_FIELDS,
+    NODE_MARGIN,
+    ConductanceWalls,
+    TableWalls,
+    TubeTrials,
+    fine_meshes,
+    flow_trial_figures,
+)
+from worker.engine.lumen.wall_table import layer_answer, tabulate
 from worker.engine.model import Problem
 from worker.engine.steady_check import PROFILE_POINTS_PER_LAYER, primary_figures
 
@@ -96,6 +127,7 @@ class TrialModel:
         self._nominal_x = np.array([value_of(problem, f) for f in self.fields], dtype=float)
         self._batched = _closed_form_batch_applies(problem, self.fields)
         self._finite_volumes = _finite_volume_batch_applies(problem, self.fields)
+        self._flow: _FlowTrials | None = None
 
     @property
     def method(self) -> str:
@@ -105,6 +137,8 @@ class TrialModel:
             return "batched closed form"
         if self._finite_volumes:
             return "batched finite volumes"
+        if self.problem.inner_boundary.condition.lumen:
+            return "batched lumen march"
         if self.problem.regime.kind == "transient" and scaled_series_applies(self.problem,
                                                                              self.fields):
             return "scaled series"
@@ -146,6 +180,13 @@ class TrialModel:
                                                self.targets)
             return out
         elif self.problem.inner_boundary.condition.lumen:
+            try:
+                if self._flow is None:
+                    self._flow = _FlowTrials(self.problem, self.fields)
+                out[rows] = self._flow(x[rows], self.targets)
+                return out
+            except (ValueError, ArithmeticError, np.linalg.LinAlgError):
+                pass  # the nominal case or the batch does not solve: trial by trial
             for i in rows:
                 out[i] = _flow_one(with_values(self.problem, dict(zip(self.fields, x[i],
                                                                        strict=True))),
@@ -519,3 +560,186 @@ def _closed_form(problem: Problem, fields: Sequence[FieldRef], x: np.ndarray,
     out[failed] = np.nan
     return out, depleted & ~failed
 
+
+# -- a lumen with flow, batched -------------------------------------------------------------
+
+#: The lumen wall's value in the layers' problem (``lumen.run.layers_problem``).
+_WALL_VALUE = FieldRef("inner_boundary", "value")
+
+
+def _doublings(nominal: tuple[int, int], adapted: tuple[int, int]) -> tuple[int, int]:
+    """How often the study of the nominal case doubled its coarse mesh in r and in z."""
+    counts = []
+    for start, end, cap in zip(nominal, adapted, (MAX_COARSE_CELLS, MAX_COARSE_STEPS),
+                               strict=True):
+        count, value = 0, start
+        while value < end:
+            value, count = min(2 * value, cap), count + 1
+        counts.append(count)
+    return counts[0], counts[1]
+
+
+class _FlowTrials:
+    """The figures of a flow case's trials by ``lumen.trials`` (its docstring): the nominal
+    case solved once (``lumen.run.solve_flow``) for its mesh adaptation and wall table; the
+    wall law of the trials from the layers: one shared law where no varied field touches
+    them (the nominal table, or one tabulated as the full check tabulates over [0, a larger
+    inlet]; a linear body's exact conductance), else per trial (the conductances by the
+    batched closed form; tables at the nominal table's nodes by the batched finite volumes on
+    each solve's own default mesh, ``fv_trials.solve_one_grid``, the discrete problem
+    ``layer_walls.solve_layers_at`` solves; layers with a closed form but nonlinear kinetics,
+    zero order or a solubility, trial by trial through ``wall_table.layer_answer``)."""
+
+    def __init__(self, problem: Problem, fields: Sequence[FieldRef]):
+        self.problem, self.fields = problem, tuple(fields)
+        self.layer_columns = [j for j, f in enumerate(fields)
+                              if (f.part, f.name) not in LUMEN_FIELDS]
+        self.layers = layers_problem(problem)
+        self.linear = self.layers.is_linear
+        self.finite_volumes = any(ly.reaction.law.exact_coefficients(ly.reaction) is None
+                                  for ly in problem.layers)
+        self.run: FlowRun = solve_flow(problem)
+        self.doublings = _doublings(coarse_mesh(problem), self.run.coarse)
+        self.inlet = float(self.run.tube.inlet)
+        self._tables: dict[int, TableWalls] = {}
+
+    # -- the layers of the trials --------------------------------------------------------
+
+    def _solve_layers(self, x: np.ndarray):
+        """The :data:`lumen.trials.LayerSolver` of these trials."""
+        def solve(rows: np.ndarray, c_wall: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+            q = c_wall.shape[1]
+            if self.linear:
+                return self._closed_form_layers(x, rows, c_wall)
+            if not self.finite_volumes:
+                return self._layers_one_by_one(x, rows, c_wall)
+            flux, low = np.full(rows.size * q, np.nan), np.full(rows.size * q, np.nan)
+            columns = {self.fields[j]: np.repeat(x[rows, j], q) for j in self.layer_columns}
+            values = c_wall.ravel()
+
+            def view(part: np.ndarray) -> Problem:
+                varied = replaced(self.problem, {f: v[part] for f, v in columns.items()})
+                return replaced(layers_problem(varied), {_WALL_VALUE: values[part]})
+
+            # a wall value the lumen could not give (NaN) is not solved: NaN stays
+            finite = np.flatnonzero(np.isfinite(values))
+            try:
+                with np.errstate(all="ignore"):
+                    cells = cells_per_layer_trials(view(finite), finite.size).sum(axis=1)
+            except (ValueError, ArithmeticError):
+                return flux.reshape(rows.size, q), low.reshape(rows.size, q)
+            chunk = np.cumsum(cells) // FV_CHUNK_CELLS
+            for label in np.unique(chunk):
+                part = finite[chunk == label]
+                try:
+                    figures = solve_one_grid(view(part), part.size)
+                except (ValueError, ArithmeticError, np.linalg.LinAlgError):
+                    continue
+                flux[part] = figures.flux_inner
+                low[part] = figures.layer_min.min(axis=1)
+            return flux.reshape(rows.size, q), low.reshape(rows.size, q)
+        return solve
+
+    def _closed_form_layers(self, x: np.ndarray, rows: np.ndarray, c_wall: np.ndarray):
+        q = c_wall.shape[1]
+        layer_fields = [self.fields[j] for j in self.layer_columns] + [_WALL_VALUE]
+        columns = np.column_stack([np.repeat(x[rows, j], q) for j in self.layer_columns]
+                                  + [c_wall.ravel()])
+        values, _ = _steady_closed_form(
+            self.layers, layer_fields, columns,
+            [Target("flux_inner"), Target("concentration_min")])
+        return values[:, 0].reshape(rows.size, q), values[:, 1].reshape(rows.size, q)
+
+    def _layers_one_by_one(self, x: np.ndarray, rows: np.ndarray, c_wall: np.ndarray):
+        flux, low = np.full(c_wall.shape, np.nan), np.full(c_wall.shape, np.nan)
+        for i, row in enumerate(rows):
+            values = {self.fields[j]: float(x[row, j]) for j in self.layer_columns}
+            layers = layers_problem(with_values(self.problem, values))
+            for k, c in enumerate(c_wall[i]):
+                try:
+                    answer = layer_answer(layers, float(c))
+                except (ValueError, ArithmeticError, np.linalg.LinAlgError):
+                    continue
+                flux[i, k], low[i, k] = answer.wall_flux, answer.minimum
+        return flux, low
+
+    # -- the wall laws -------------------------------------------------------------------
+
+    def _shared_table(self, bucket: int) -> TableWalls:
+        """One table for every trial whose inlet is at most 2^bucket times the nominal one:
+        the nominal case's own (bucket 0), else the layers tabulated over [0, 2^bucket times
+        the inlet] as the full check tabulates them."""
+        if bucket not in self._tables:
+            table = self.run.table
+            if bucket > 0:
+                top = self.inlet * 2.0**bucket
+                table = tabulate(self.layers, top, 0.1 * min(
+                    check_limit(self.problem, "cross_check.wall_law"),
+                    check_limit(self.problem, "mass_balance")))
+            flux = np.array([[a.wall_flux] for a in table.answers])
+            minimum = np.array([[a.minimum] for a in table.answers])
+            self._tables[bucket] = TableWalls(table.nodes / table.top, np.array([table.top]),
+                                              flux, minimum)
+        return self._tables[bucket]
+
+    def __call__(self, x: np.ndarray, targets: Sequence[Target]) -> np.ndarray:
+        n = x.shape[0]
+        view = replaced(self.problem, _columns(self.fields, x))
+
+        def full(value: Any) -> np.ndarray:
+            return np.broadcast_to(np.asarray(value, dtype=float), (n,)).copy()
+
+        face = view.inner_boundary
+        tube = TubeTrials(full(view.inner), full(view.length), full(face.flow_rate),
+                          full(face.diffusivity), full(face.inlet))
+        with np.errstate(all="ignore"):
+            meshes = fine_meshes(tube, self.doublings)
+        layers = self._solve_layers(x)
+        shared = not self.layer_columns
+        figures: dict[str, np.ndarray] = {}
+        if self.linear:
+            if shared:
+                wall = linear_layer_wall(self.layers)
+                walls = ConductanceWalls(np.asarray(wall.conductance),
+                                         np.asarray(wall.outside))
+            else:
+                at = np.column_stack([np.zeros(n), np.ones(n)])
+                j, _ = layers(np.arange(n), at)
+                conductance = j[:, 1] - j[:, 0]
+                walls = ConductanceWalls(conductance, -j[:, 0] / conductance)
+            figures = flow_trial_figures(tube, meshes, layers, walls=walls)
+        elif shared:
+            with np.errstate(divide="ignore", invalid="ignore"):
+                ratio = np.log2(tube.inlet / self.inlet)
+            buckets = np.where(ratio > 1e-12, np.ceil(ratio - 1e-12), 0.0)
+            buckets = np.where(np.isfinite(buckets), buckets, 0.0).astype(int)
+            figures = {}
+            for bucket in np.unique(buckets):
+                rows = np.flatnonzero(buckets == bucket)
+                try:
+                    shared_table = self._shared_table(int(bucket))
+                except (ValueError, ArithmeticError, np.linalg.LinAlgError):
+                    continue  # those trials are solved alone below
+                law = shared_table.take(np.zeros(rows.size, dtype=np.intp))
+
+                def solver(local: np.ndarray, c_wall: np.ndarray, rows=rows):
+                    return layers(rows[local], c_wall)
+                found = flow_trial_figures(tube.take(rows), meshes[rows], solver, walls=law)
+                for name, values in found.items():
+                    figures.setdefault(name, np.full(n, np.nan))[rows] = values
+        else:
+            nominal = self.run.table
+            nodes = nominal.nodes / nominal.top
+            lowest = float(np.min(self.run.fine.wall)) / self.inlet
+            first = int(np.searchsorted(nodes, lowest, side="right")) - 1 - NODE_MARGIN
+            figures = flow_trial_figures(tube, meshes, layers, nodes=nodes, first_node=first)
+        out = np.full((n, len(targets)), np.nan)
+        for j, target in enumerate(targets):
+            out[:, j] = figures.get(target.quantity, np.nan)
+        # a trial the batch leaves unsolved (its wall iteration or its layers did not
+        # settle): alone
+        unsolved = figures.get("outlet_concentration", np.full(n, np.nan))
+        for i in np.flatnonzero(~np.isfinite(unsolved)):
+            out[i] = _flow_one(with_values(self.problem, dict(zip(self.fields, x[i],
+                                                                   strict=True))), targets)
+        return out

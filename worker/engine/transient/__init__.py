@@ -28,7 +28,9 @@ these checks, each aggregated over the requested times with the worst time named
 * ``convergence.time``: change of the amounts under a ``TIME_TIGHTENING`` times tighter
   integrator tolerance (on the coarse mesh), relative to the amount scale; for a kinked case
   (zero order, a reachable solubility: ``implicit_steps``) the change when every accepted step
-  is halved, with the observed order in time from the steps quartered;
+  is halved, with the observed order in time from the steps quartered (a zero-order case with a
+  compartment whose time error exceeds a quarter of what the record resolves is integrated
+  again with a tighter tolerance first: ``solve.fv_on_meshes``);
 * ``steady_limit``: the state integrated ``STEADY_HORIZON`` capacity-resistance times past
   the duration against the steady engine (``exact_steady.solve_exact``, else
   ``fv_steady.solve_fv``);

@@ -88,7 +88,13 @@ def space_check(outcome: Outcome, problem: Problem, fvs: list[TransientFVSolutio
     gcis = np.full(times.size, np.nan)
     studies = []
     for k in range(times.size):
-        study = convergence.grid_study([float(v) for v in released[:, k]], cells)
+        # differences below round-off of the amount scale (not of the value: after a
+        # zero-order depletion the amount through a compartment face is round-off itself)
+        values = [float(v) for v in released[:, k]]
+        magnitude = max(abs(v) for v in values)
+        roundoff = convergence.ROUNDOFF_RTOL * max(1.0, amount_scale / magnitude) \
+            if magnitude > 0.0 else convergence.ROUNDOFF_RTOL
+        study = convergence.grid_study(values, cells, roundoff_rtol=roundoff)
         studies.append(study)
         if study.convergence == "converged_to_roundoff":
             gcis[k] = 0.0
@@ -204,7 +210,12 @@ def implicit_time_check(outcome: Outcome, problem: Problem, coarse: TransientFVS
     order = math.log2(e1 / e2) if e1 > 0.0 and e2 > 0.0 else float("nan")
     outcome.diagnostics["time_study"] = {"changes_halved": float(value) if value else 0.0,
                                          "observed_order": order, "at": at_worst}
+    tightened = coarse.diagnostics.get("time_tightening")
+    again = "" if tightened is None else (
+        f"; integrated at the implicit tolerance {tightened['implicit_rtol']:.3g} after the "
+        f"default's time error of {tightened['first_error']:.3g} times what the record "
+        f"resolves")
     _add(outcome, "convergence.time", value, limit,
          f"largest change of the amounts when every implicit step is halved (coarse mesh), "
          f"relative to the amount scale; worst at t = {at_worst} s, observed order in time "
-         f"{order:.3g} (steps halved and quartered)")
+         f"{order:.3g} (steps halved and quartered){again}")

@@ -995,14 +995,27 @@ def _reported(system: _Rhs, fine: np.ndarray, coarse: np.ndarray, ts: np.ndarray
               ) -> tuple[StepHistory, np.ndarray]:
     """The reported path of one mesh: cells' dissolved concentrations and contents from the
     half-step path (it keeps the implicit Euler's maximum principle), the other states the
-    Richardson combination 2 fine - coarse; and the combined cell contents (for the amount
-    held, so the mass balance holds with the combined amounts)."""
+    Richardson combination 2 fine - coarse (the cells' and compartment levels' combination
+    clipped to their range: at least zero, at most the solubility); and the combined cell
+    contents (for the amount held, so the mass balance holds with the combined amounts)."""
     n = system.n
     u_fine, c_fine = _cell_parts(system, fine[:n])
     u_coarse, c_coarse = _cell_parts(system, coarse[:n])
     values = 2.0 * fine - coarse
     values[:n] = np.clip(2.0 * c_fine - c_coarse, 0.0, system.solubility[:, None])
+    _clip_levels(system, values)
     return StepHistory(ts, values, u_fine, n), 2.0 * u_fine - u_coarse
+
+
+def _clip_levels(system: _Rhs, values: np.ndarray) -> None:
+    """Each compartment level of the combined path ``values`` (rows: states) raised to zero
+    where it fell below: a fluid level, like a cell, is never negative on the half-step path
+    (implicit Euler keeps the maximum principle), but the combination 2 fine - coarse
+    overshoots below zero where the level decays faster than a step resolves, as after the
+    solute has run out (the face flux read from it then points the wrong way). The cumulative
+    amounts are states of their own and keep the combination."""
+    for face in system.compartments:
+        values[face.state] = np.maximum(values[face.state], 0.0)
 
 
 def _solve_implicit(problem, built, systems, stack, times, end, start, rtol, y0, atol, loads):
@@ -1049,9 +1062,10 @@ def _solve_implicit(problem, built, systems, stack, times, end, start, rtol, y0,
 
 def time_refinement(problem: Problem, solution: TransientFVSolution, parts: int
                     ) -> dict[str, np.ndarray] | None:
-    """The amounts of an implicit-step solution integrated again on its own accepted steps cut
-    into ``parts`` (same mesh, same Richardson combination), at its requested times; None when
-    the solution was not integrated by implicit steps or the replay failed."""
+    """The amounts and face flux densities of an implicit-step solution integrated again on its
+    own accepted steps cut into ``parts`` (same mesh, same Richardson combination), at its
+    requested times; None when the solution was not integrated by implicit steps or the replay
+    failed."""
     diagnostics = solution.diagnostics
     if solution.history is None or diagnostics.get("step_sequence") is None:
         return None
@@ -1066,11 +1080,16 @@ def time_refinement(problem: Problem, solution: TransientFVSolution, parts: int
                  ts.size - 1)
     n = solution.mesh.n_cells
     measure = problem.measure_factor
+    view = _ConcentrationView(system)
+    faces = np.array([face_flux_densities(solution.mesh, view.face_fluxes(history.values[:, k]))
+                      [[0, -1]] for k in at])
     return {
         "remaining": measure * (contents[:, at].T @ solution.mesh.volumes),
         "released_inner": measure * history.values[n, at],
         "released_outer": measure * history.values[n + 1, at],
         "consumed": measure * history.values[n + 2, at],
+        "flux_inner": faces[:, 0],
+        "flux_outer": faces[:, 1],
     }
 
 

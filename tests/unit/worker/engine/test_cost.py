@@ -91,3 +91,56 @@ def test_a_conductance_that_underflows_gives_cells_not_a_warning():
         warnings.simplefilter("error")
         cells = resolution_cells(problem)
     assert cells[0] == RESISTANCE_CELLS and cells[1] < RESISTANCE_CELLS
+
+
+def _flow_case(field: str, reaction: dict | None = None, max_trials: int = 20000) -> dict:
+    import copy
+
+    from tests.unit.schemas.test_flow_case import FIBRE
+
+    case = copy.deepcopy(FIBRE)
+    if reaction is not None:
+        case["layers"][1]["reaction"] = reaction
+    case["requirements"] = [{"id": "OUT", "quantity": "outlet_concentration",
+                             "at_least": "0.1 mol/m^3"}]
+    case["uncertainty"] = {"inputs": [{"field": field, "distribution": "normal",
+                                       "relative_sd": 0.1}], "max_trials": max_trials}
+    return case
+
+
+def test_a_flow_trial_is_charged_its_march_and_the_layers_it_solves():
+    """A flow case's trial is a batched march of the finest mesh (far below a full check);
+    varying a field of the layers adds their solves per trial; linear kinetics (closed form)
+    cost the least. The fibre's Monte Carlo of two blocks fits the budget either way."""
+    from worker.engine.cost import FLOW_TRIAL_CELL_STEP_WORK
+
+    lumen, regime = _estimate(_flow_case("inner_boundary.flow_rate"))
+    layers, _ = _estimate(_flow_case("layers[1].reaction.vmax"))
+    linear, _ = _estimate(_flow_case("layers[1].reaction.rate_constant",
+                                     {"kind": "first_order", "rate_constant": "0.05 1/s"}))
+    march = FLOW_TRIAL_CELL_STEP_WORK * 40 * 80  # the fibre's finest mesh: 40 cells, 80 steps
+    assert march < linear.trial_work < lumen.trial_work < layers.trial_work
+    assert layers.trial_work < 0.01 * layers.check_work
+    for estimate in (lumen, layers, linear):
+        assert over_budget(estimate, DEFAULT_BUDGETS, regime) == []
+
+
+def test_a_flow_monte_carlo_too_large_is_refused_with_the_trials_that_fit():
+    estimate, regime = _estimate(_flow_case("layers[1].reaction.vmax", max_trials=10**6))
+    overruns = over_budget(estimate, DEFAULT_BUDGETS, regime)
+    assert [o.path for o in overruns] == ["uncertainty.max_trials"]
+    assert "ask for at most" in overruns[0].message
+
+
+def test_a_zero_order_fibre_with_its_layer_varied_is_refused_with_its_advice():
+    """Zero-order layers have a closed form but no batched one: each trial tabulates them one
+    solve at a time (about 0.1 s a trial), so two blocks exceed the budget and the advice
+    points to a sweep or a design limit."""
+    estimate, regime = _estimate(_flow_case(
+        "layers[1].reaction.rate", {"kind": "zero_order", "rate": "1e-3 mol/m^3/s"}))
+    overruns = over_budget(estimate, DEFAULT_BUDGETS, regime)
+    assert [o.path for o in overruns] == ["uncertainty.max_trials"]
+    assert "design_limit" in overruns[0].message
+    shared, _ = _estimate(_flow_case(
+        "inner_boundary.flow_rate", {"kind": "zero_order", "rate": "1e-3 mol/m^3/s"}))
+    assert over_budget(shared, DEFAULT_BUDGETS, regime) == []

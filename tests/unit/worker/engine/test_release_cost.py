@@ -17,6 +17,7 @@ from __future__ import annotations
 import copy
 import dataclasses
 
+import numpy as np
 import pytest
 
 from schemas import CaseError, validate_case
@@ -181,3 +182,28 @@ def test_the_steps_charged_to_kinked_cases_cover_the_steps_taken():
     taken, charged = _steps_taken_and_charged(dispersed)
     assert taken <= charged
     assert taken > charged / (IMPLICIT_STEP_FACTOR * FRONT_STEP_FACTOR)
+
+
+def test_the_steps_charged_to_a_zero_order_compartment_case_cover_its_second_run():
+    """A zero-order slab running out into a 1 mL compartment within 3 h is integrated again
+    with a tighter tolerance (``solve.fv_on_meshes``): both runs' steps stay within the
+    estimate, which would fall short without ``TIGHTENED_STEP_FACTOR`` (both directions)."""
+    from worker.engine.cost import TIGHTENED_STEP_FACTOR
+    from worker.engine.cost import estimate_cost as estimate
+    from worker.engine.model import Boundary, Layer, Problem, Reaction, Regime
+    from worker.engine.transient import solve
+
+    hours = 3 * 3600.0
+    problem = Problem("slab", 0.0, (Layer("gel", 5e-4, 1e-10, 1.0, initial=1.0,
+                                          reaction=Reaction("zero_order", rate=2e-4)),),
+                      Boundary("symmetry"), Boundary("compartment", volume=1e-6),
+                      regime=Regime("transient", hours, tuple(hours * k / 10
+                                                              for k in range(1, 11))),
+                      area=1e-4)
+    times, duration = solve.requested_times(problem)
+    fvs = solve.fv_on_meshes(problem, np.union1d(times, [duration]), duration)
+    tightened = fvs[0].diagnostics["time_tightening"]
+    taken = tightened["first_steps"] + fvs[0].diagnostics["steps"]
+    charged = estimate(problem).time_steps
+    assert taken <= charged
+    assert taken > charged / TIGHTENED_STEP_FACTOR
