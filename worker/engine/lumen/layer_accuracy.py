@@ -36,7 +36,7 @@ solved once: their answer carries no mesh error and needs no study.
 
 :func:`accurate_answer` is the one route to an accurate answer: the full check's wall table and
 direct solves (``wall_table.layer_answer``) and a trial model must all go through it (or, for
-figures solved in batches on the same two meshes, through :func:`richardson`), so that every
+many trials at once, through :func:`accurate_batch`, the same rule batched), so that every
 route is equally accurate.
 """
 
@@ -53,6 +53,7 @@ import numpy as np
 from worker.engine.convergence import GridStudy, grid_study
 from worker.engine.fv_mesh import default_cells_per_layer
 from worker.engine.fv_steady import METHOD_NAME as FINITE_VOLUMES
+from worker.engine.fv_trials import cells_per_layer_trials, solve_one_grid
 from worker.engine.limits import check_limit
 from worker.engine.lumen.layer_walls import solve_layers_at
 from worker.engine.model import Problem, SteadySolution
@@ -64,6 +65,7 @@ __all__ = [
     "REFINEMENT",
     "LayerStudy",
     "accurate_answer",
+    "accurate_batch",
     "base_cells",
     "extrapolated",
     "flux_band_fraction",
@@ -183,6 +185,26 @@ def accurate_answer(problem: Problem, c_wall: float, sample: Sampler[A]) -> A:
     coarse = solve_layers_at(problem, c_wall, _refined(cells, 1))
     return extrapolated(_smoothed(problem, fine, _refined(cells, 2), sample),
                         _smoothed(problem, coarse, _refined(cells, 1), sample))
+
+
+def accurate_batch(view: Problem, n: int) -> tuple[np.ndarray, np.ndarray]:
+    """(wall flux density (mol/(m^2 s)), the layers' minimum (mol/m^3)) of n trials of layers
+    without a closed form, arrays (n,): :func:`accurate_answer`'s finite-volume route for every
+    trial at once (``fv_trials.solve_one_grid`` on the meshes of ``2 n0`` and ``4 n0`` cells
+    per layer, each trial's own ``n0``, then :func:`richardson`; the minimum by the rule of
+    :func:`smooth_minimum`; layers with zero-order uptake: the finer mesh alone). ``view``:
+    the layers (the wall a ``concentration`` face) with the varied fields, the wall value
+    among them, as arrays of length n (``fv_trials.solve_trials``). NaN marks a trial whose
+    solve failed."""
+    base = np.maximum(2, -(-cells_per_layer_trials(view, n) // REFINEMENT))
+    fine = solve_one_grid(view, n, base * REFINEMENT**2)
+    assert fine.smooth_min is not None
+    if not _extrapolates(view):
+        return fine.flux_inner, fine.layer_min.min(axis=1)
+    coarse = solve_one_grid(view, n, base * REFINEMENT)
+    assert coarse.smooth_min is not None
+    return (richardson(fine.flux_inner, coarse.flux_inner),
+            richardson(fine.smooth_min, coarse.smooth_min))
 
 
 @dataclass(frozen=True)

@@ -15,6 +15,7 @@ from __future__ import annotations
 
 import dataclasses
 
+import numpy as np
 import pytest
 
 from tests.benchmarks.test_bench_lumen_fipy import _layers_minimum
@@ -23,6 +24,7 @@ from worker.engine.lumen import run as flow
 from worker.engine.lumen.layer_accuracy import (
     FORMAL_ORDER,
     accurate_answer,
+    accurate_batch,
     layer_mesh_check,
     richardson,
     study_layer_mesh,
@@ -140,3 +142,19 @@ def test_a_closed_form_run_says_so_and_has_no_layer_study():
     assert wall_law is not None and "closed form" in wall_law.detail
     mm = run_problem(_case()).check("cross_check.wall_law")
     assert mm is not None and "closed form" not in mm.detail
+
+
+@pytest.mark.parametrize("outer", [Boundary("symmetry"), Boundary("concentration", value=0.02)])
+def test_the_batched_route_equals_the_direct_route(outer):
+    """``accurate_batch`` (every trial at once, as the flow trials solve their layers) gives
+    what ``layer_answer`` gives wall by wall, to 1e-9: the wall flux and the minimum, at a
+    sealed face and inside the cell layer (a concentration held outside)."""
+    layers = flow.layers_problem(dataclasses.replace(_case(), outer_boundary=outer))
+    walls = np.array([0.2, 0.17, 0.05, 2e-3])
+    view = dataclasses.replace(
+        layers, inner_boundary=dataclasses.replace(layers.inner_boundary, value=walls))
+    flux, low = accurate_batch(view, walls.size)
+    for k, c_wall in enumerate(walls):
+        direct = layer_answer(layers, float(c_wall))
+        assert flux[k] == pytest.approx(direct.wall_flux, rel=1e-9, abs=0.0)
+        assert low[k] == pytest.approx(direct.minimum, rel=1e-9, abs=0.0)
