@@ -1,0 +1,167 @@
+"""Layered bodies fed through a hollow cylinder's inner face whose zero-order uptake runs out
+beyond a front (``worker.engine.depletion_layers``), and the fluid level at which the depleted
+zone first appears (``depletion_onset``).
+
+Check values: A.V. Hill, "The diffusion of oxygen and lactic acid through tissues", Proc. R. Soc.
+B 104 (1928) 39 and J. Crank, *The Mathematics of Diffusion*, 2nd ed., 1975, ch. 14. With
+constant consumption Q in the live zone of a cylinder and a front s where C = dC/dr = 0, the
+outward flux is J(r) = Q (s^2 - r^2) / (2 r) (a balance on the shell from r to s), and with
+C/K continuous at the interfaces (partition K)
+
+    C(R)/K_1 = sum over the live layers of (Q / (D_i K_i)) [F(a_i; s) - F(b_i; s)],
+    F(r; s) = (s^2 / 2) ln(s / r) - (s^2 - r^2) / 4,
+
+each layer's part of the integral of J / (D K) from the face R to s (a_i, b_i its live
+edges). The front equation C(R) = K_1 c_w is solved here with mpmath.findroot at 30 digits;
+with s at the outer face it gives the onset. Layer values are invented (a fibre wall and a layer
+of cells).
+"""
+
+from __future__ import annotations
+
+import dataclasses
+
+import mpmath
+import numpy as np
+import pytest
+
+from tests.lumen_checks import assert_check_and_injection, within
+from worker.engine.depletion_layers import depletion_onset, solve_depleted_layers
+from worker.engine.exact_steady import solve_exact
+from worker.engine.fv_steady import solve_fv
+from worker.engine.model import Boundary, Layer, Problem, Reaction
+
+R, T1, T2 = 100e-6, 50e-6, 300e-6  # lumen radius, wall and cell-layer thicknesses (m)
+
+
+@pytest.fixture(autouse=True)
+def _mpmath_precision():
+    with mpmath.workdps(30):
+        yield
+
+
+def _body(q: float, c_wall: float, d1=1e-10, d2=1.5e-9, k1=1.0, k2=1.0,
+          first_reacts=True) -> Problem:
+    uptake = Reaction("zero_order", rate=q)
+    return Problem("cylinder", R,
+                   (Layer("wall", T1, d1, k1, uptake if first_reacts else Reaction()),
+                    Layer("cells", T2, d2, k2, uptake)),
+                   Boundary("concentration", value=c_wall), Boundary("symmetry"))
+
+
+def _f(r, s):
+    r, s = mpmath.mpf(r), mpmath.mpf(s)
+    return s**2 / 2 * mpmath.log(s / r) - (s**2 - r**2) / 4
+
+
+def _level(q, s, d1, d2, k1, k2, first_reacts=True):
+    """C(R)/K_1 for a front at s (Hill 1928; Crank 1975 ch. 14; module docstring), both layers
+    consuming Q where live (or only the second, ``first_reacts`` False: then J(r) in the wall
+    is Q (s^2 - r1^2) / (2 r), a constant r J)."""
+    q, r1 = mpmath.mpf(q), mpmath.mpf(R + T1)
+    s = mpmath.mpf(s)
+    if s <= r1:
+        return q / (d1 * k1) * _f(R, s)
+    cells = q / (d2 * k2) * _f(r1, s)
+    if first_reacts:
+        return q / (d1 * k1) * (_f(R, s) - _f(r1, s)) + cells
+    return q * (s**2 - r1**2) / (2 * d1 * k1) * mpmath.log(r1 / R) + cells
+
+
+def _hill_front(q, c_wall, d1=1e-10, d2=1.5e-9, k1=1.0, k2=1.0, first_reacts=True):
+    """(front s, outward flux at R, consumption per radian) from the front equation."""
+    low = mpmath.mpf(R) * (1 + mpmath.mpf(10) ** -12) if first_reacts else mpmath.mpf(R + T1)
+    s = mpmath.findroot(
+        lambda x: _level(q, x, d1, d2, k1, k2, first_reacts) - c_wall,
+        (low, mpmath.mpf(R + T1 + T2)), solver="anderson")
+    # the consumption from the front; the flux at R from r J = Q (s^2 - r^2)/2 (or less the
+    # wall's share when the wall does not consume)
+    q = mpmath.mpf(q)
+    consumed = q * (s**2 - (R**2 if first_reacts else (R + T1) ** 2)) / 2
+    return float(s), float(consumed / R), float(consumed)
+
+
+CASES = {
+    # front in the wall layer: the brief's high uptake (the cells beyond all depleted)
+    "front in the first layer": dict(q=3.0, c_wall=0.12),
+    # front in the cell layer, partition 2 in the cells
+    "front in the second layer, partition": dict(q=4e-4, c_wall=0.05, k2=2.0),
+    # a wall without uptake, the cells depleted beyond a front
+    "wall without uptake": dict(q=1e-3, c_wall=0.1, first_reacts=False),
+}
+
+
+@pytest.mark.parametrize("name", list(CASES))
+def test_front_flux_and_consumption_against_hill(name):
+    args = CASES[name]
+    s, flux, consumed = _hill_front(**args)
+    kwargs = {k: v for k, v in args.items() if k != "q" and k != "c_wall"}
+    problem = _body(args["q"], args["c_wall"], **kwargs)
+    assert solve_exact(problem) is None  # no closed form before this route
+    solution = solve_depleted_layers(problem)
+    assert solution is not None and solution.success
+    for value, reference, rtol in ((solution.depletion_front, s, 1e-12),
+                                   (solution.flux_inner, flux, 1e-11),
+                                   (solution.consumption, consumed, 1e-11)):
+        assert_check_and_injection(within(reference, rtol), value, 1e3 * rtol)
+    # the profile: zero at and beyond the front, nowhere negative, C = K c_w at the face
+    inside = np.linspace(R, R + T1 + T2, 2001)
+    profile = solution.concentration_at(inside)
+    assert float(np.min(profile)) >= 0.0
+    assert np.all(profile[inside > s * (1 + 1e-9)] == 0.0)
+    k1 = args.get("k1", 1.0)
+    assert float(solution.concentration_at(np.array([R]))[0]) == pytest.approx(
+        k1 * args["c_wall"], rel=1e-12)
+
+
+def test_finite_volumes_approach_the_front_solution():
+    """The engine's other route (finite volumes on the obstacle problem) converges on the same
+    flux: its error falls as the mesh is refined (the first-layer case, where its error at the
+    default mesh is about 1e-3: the live zone spans about ten cells)."""
+    problem = _body(3.0, 0.14)
+    exact = solve_depleted_layers(problem)
+    assert exact is not None
+    errors = [abs(solve_fv(problem, [n, 60]).flux_inner / exact.flux_inner - 1.0)
+              for n in (200, 800, 3200)]
+    assert errors[0] > errors[1] > errors[2]
+    assert errors[2] < 1e-4
+
+
+@pytest.mark.parametrize("name, kwargs", [
+    ("both layers consume", {}),
+    ("partition 2 in the cells", {"k2": 2.0}),
+    ("wall without uptake", {"first_reacts": False}),
+])
+def test_onset_against_hill_with_the_front_at_the_outer_face(name, kwargs):
+    q = 4e-4 if kwargs.get("first_reacts", True) else 2e-4
+    reference = float(_level(q, R + T1 + T2, 1e-10, 1.5e-9, 1.0, kwargs.get("k2", 1.0),
+                             kwargs.get("first_reacts", True)))
+    onset = depletion_onset(_body(q, 0.0, **kwargs), 1.0)
+    assert onset is not None
+    assert_check_and_injection(within(reference, 1e-10), onset, 1e-7)
+    # just above it the body is live to the outer face; just below, a front has entered
+    above = solve_exact(_body(q, onset * (1 + 1e-6), **kwargs))
+    assert above is not None and above.depletion_front is None
+    below = solve_depleted_layers(_body(q, onset * (1 - 1e-6), **kwargs))
+    assert below is not None and below.depletion_front < R + T1 + T2
+
+
+def test_no_onset_outside_the_range_and_without_zero_order():
+    assert depletion_onset(_body(4e-4, 0.0), 0.1) is None  # the onset is at 0.169
+    assert depletion_onset(_body(3.0, 0.0), 0.2) is None  # depleted at every level
+    first_order = dataclasses.replace(
+        _body(4e-4, 0.0), layers=tuple(dataclasses.replace(
+            ly, reaction=Reaction("first_order", rate_constant=1.0))
+            for ly in _body(4e-4, 0.0).layers))
+    assert depletion_onset(first_order, 1.0) is None
+
+
+def test_outside_its_configurations_it_returns_none():
+    fed_outside = dataclasses.replace(_body(3.0, 0.1),
+                                      outer_boundary=Boundary("concentration", value=0.1))
+    assert solve_depleted_layers(fed_outside) is None
+    mm = dataclasses.replace(_body(3.0, 0.1), layers=(
+        Layer("wall", T1, 1e-10), Layer("cells", T2, 1.5e-9, 1.0,
+                                        Reaction("michaelis_menten", vmax=1.0, km=0.01))))
+    assert solve_depleted_layers(mm) is None
+    assert solve_depleted_layers(_body(1e-6, 0.1)) is None  # not depleted: solve_exact's case
