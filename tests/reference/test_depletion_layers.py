@@ -12,7 +12,7 @@ C/K continuous at the interfaces (partition K)
     F(r; s) = (s^2 / 2) ln(s / r) - (s^2 - r^2) / 4,
 
 each layer's part of the integral of J / (D K) from the face R to s (a_i, b_i its live
-edges). The front equation C(R) = K_1 c_w is solved here with mpmath.findroot at 30 digits;
+edges). The front equation C(R) = K_1 c_w is solved with mpmath.findroot at 30 digits
 with s at the outer face it gives the onset. Layer values are invented (a fibre wall and a layer
 of cells).
 """
@@ -25,13 +25,11 @@ import mpmath
 import numpy as np
 import pytest
 
-from tests.lumen_checks import assert_check_and_injection, within
+from tests.lumen_checks import T1, T2, R, assert_check_and_injection, hill_front, hill_level, within
 from worker.engine.depletion_layers import depletion_onset, solve_depleted_layers
 from worker.engine.exact_steady import solve_exact
 from worker.engine.fv_steady import solve_fv
 from worker.engine.model import Boundary, Layer, Problem, Reaction
-
-R, T1, T2 = 100e-6, 50e-6, 300e-6  # lumen radius, wall and cell-layer thicknesses (m)
 
 
 @pytest.fixture(autouse=True)
@@ -49,38 +47,6 @@ def _body(q: float, c_wall: float, d1=1e-10, d2=1.5e-9, k1=1.0, k2=1.0,
                    Boundary("concentration", value=c_wall), Boundary("symmetry"))
 
 
-def _f(r, s):
-    r, s = mpmath.mpf(r), mpmath.mpf(s)
-    return s**2 / 2 * mpmath.log(s / r) - (s**2 - r**2) / 4
-
-
-def _level(q, s, d1, d2, k1, k2, first_reacts=True):
-    """C(R)/K_1 for a front at s (Hill 1928; Crank 1975 ch. 14; module docstring), both layers
-    consuming Q where live (or only the second, ``first_reacts`` False: then J(r) in the wall
-    is Q (s^2 - r1^2) / (2 r), a constant r J)."""
-    q, r1 = mpmath.mpf(q), mpmath.mpf(R + T1)
-    s = mpmath.mpf(s)
-    if s <= r1:
-        return q / (d1 * k1) * _f(R, s)
-    cells = q / (d2 * k2) * _f(r1, s)
-    if first_reacts:
-        return q / (d1 * k1) * (_f(R, s) - _f(r1, s)) + cells
-    return q * (s**2 - r1**2) / (2 * d1 * k1) * mpmath.log(r1 / R) + cells
-
-
-def _hill_front(q, c_wall, d1=1e-10, d2=1.5e-9, k1=1.0, k2=1.0, first_reacts=True):
-    """(front s, outward flux at R, consumption per radian) from the front equation."""
-    low = mpmath.mpf(R) * (1 + mpmath.mpf(10) ** -12) if first_reacts else mpmath.mpf(R + T1)
-    s = mpmath.findroot(
-        lambda x: _level(q, x, d1, d2, k1, k2, first_reacts) - c_wall,
-        (low, mpmath.mpf(R + T1 + T2)), solver="anderson")
-    # the consumption from the front; the flux at R from r J = Q (s^2 - r^2)/2 (or less the
-    # wall's share when the wall does not consume)
-    q = mpmath.mpf(q)
-    consumed = q * (s**2 - (R**2 if first_reacts else (R + T1) ** 2)) / 2
-    return float(s), float(consumed / R), float(consumed)
-
-
 CASES = {
     # front in the wall layer: the brief's high uptake (the cells beyond all depleted)
     "front in the first layer": dict(q=3.0, c_wall=0.12),
@@ -94,7 +60,7 @@ CASES = {
 @pytest.mark.parametrize("name", list(CASES))
 def test_front_flux_and_consumption_against_hill(name):
     args = CASES[name]
-    s, flux, consumed = _hill_front(**args)
+    s, flux, consumed = hill_front(**args)
     kwargs = {k: v for k, v in args.items() if k != "q" and k != "c_wall"}
     problem = _body(args["q"], args["c_wall"], **kwargs)
     assert solve_exact(problem) is None  # no closed form before this route
@@ -134,7 +100,7 @@ def test_finite_volumes_approach_the_front_solution():
 ])
 def test_onset_against_hill_with_the_front_at_the_outer_face(name, kwargs):
     q = 4e-4 if kwargs.get("first_reacts", True) else 2e-4
-    reference = float(_level(q, R + T1 + T2, 1e-10, 1.5e-9, 1.0, kwargs.get("k2", 1.0),
+    reference = float(hill_level(q, R + T1 + T2, 1e-10, 1.5e-9, 1.0, kwargs.get("k2", 1.0),
                              kwargs.get("first_reacts", True)))
     onset = depletion_onset(_body(q, 0.0, **kwargs), 1.0)
     assert onset is not None
