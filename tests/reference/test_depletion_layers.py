@@ -123,11 +123,56 @@ def test_no_onset_outside_the_range_and_without_zero_order():
 
 
 def test_outside_its_configurations_it_returns_none():
-    fed_outside = dataclasses.replace(_body(3.0, 0.1),
-                                      outer_boundary=Boundary("concentration", value=0.1))
-    assert solve_depleted_layers(fed_outside) is None
+    drawn_out = dataclasses.replace(_body(3.0, 0.1),
+                                    outer_boundary=Boundary("flux", value=1e-9))
+    assert solve_depleted_layers(drawn_out) is None
     mm = dataclasses.replace(_body(3.0, 0.1), layers=(
         Layer("wall", T1, 1e-10), Layer("cells", T2, 1.5e-9, 1.0,
                                         Reaction("michaelis_menten", vmax=1.0, km=0.01))))
     assert solve_depleted_layers(mm) is None
     assert solve_depleted_layers(_body(1e-6, 0.1)) is None  # not depleted: solve_exact's case
+
+
+def test_both_faces_fed_a_dead_zone_between_two_fronts():
+    """The cells fed from outside too (a concentration c_o at the outer face b): the outer live
+    zone ends at its own front s_2 with C(b) = (Q / D_2) F(b; s_2) and outward flux
+    -Q (b^2 - s_2^2) / (2 b) (Hill 1928; Crank 1975 ch. 14, the same F from the other side);
+    the inner front is the one fed alone."""
+    q, c_wall, c_out, d2 = 3.0, 0.12, 0.1, 1.5e-9
+    b = mpmath.mpf(R + T1 + T2)
+    problem = dataclasses.replace(_body(q, c_wall),
+                                  outer_boundary=Boundary("concentration", value=c_out))
+    solution = solve_depleted_layers(problem)
+    assert solution is not None
+    s1, flux_in, _ = hill_front(q, c_wall)
+    s2 = mpmath.findroot(lambda s: q / d2 * (s**2 / 2 * mpmath.log(s / b) - (s**2 - b**2) / 4)
+                         - c_out, (mpmath.mpf(R + T1), b * (1 - mpmath.mpf(10) ** -12)),
+                         solver="anderson")
+    flux_out = float(-q * (b**2 - s2**2) / (2 * b))
+    assert solution.diagnostics["depleted_zone"][0] == pytest.approx(s1, rel=1e-12)
+    assert_check_and_injection(within(float(s2), 1e-12),
+                               solution.diagnostics["depleted_zone"][1], 1e-9)
+    assert_check_and_injection(within(flux_in, 1e-11), solution.flux_inner, 1e-8)
+    assert_check_and_injection(within(flux_out, 1e-11), solution.flux_outer, 1e-8)
+    middle = np.linspace(s1 * (1 + 1e-9), float(s2) * (1 - 1e-9), 50)
+    assert np.all(solution.concentration_at(middle) == 0.0)
+    assert float(solution.concentration_at(np.array([float(b)]))[0]) == pytest.approx(
+        c_out, rel=1e-12)
+
+
+def test_a_solid_sphere_of_two_layers_fed_from_outside():
+    """Two layers of equal D and Q around a solid centre are one sphere: the front s from
+    (Q / (6 D)) (b - s)^2 (b + 2 s) / b = c_o (Hill 1928; Crank 1975 ch. 14)."""
+    q, d, c_out, b = 1.0, 1e-9, 0.05, mpmath.mpf(300e-6)
+    uptake = Reaction("zero_order", rate=q)
+    problem = Problem("sphere", 0.0, (Layer("core", 150e-6, d, 1.0, uptake),
+                                      Layer("shell", 150e-6, d, 1.0, uptake)),
+                      Boundary("symmetry"), Boundary("concentration", value=c_out))
+    solution = solve_depleted_layers(problem)
+    assert solution is not None
+    s = mpmath.findroot(lambda x: q / (6 * d) * (b - x) ** 2 * (b + 2 * x) / b - c_out,
+                        (mpmath.mpf(0), b * (1 - mpmath.mpf(10) ** -12)), solver="anderson")
+    assert_check_and_injection(within(float(s), 1e-12), solution.depletion_front, 1e-9)
+    flux = float(-q * (b**3 - s**3) / (3 * b**2))
+    assert_check_and_injection(within(flux, 1e-11), solution.flux_outer, 1e-8)
+    assert solution.flux_inner == 0.0

@@ -1,27 +1,29 @@
-"""Exact steady solution of a layered body fed through its inner face whose zero-order uptake
-runs the solute out beyond a front (a depleted zone reaching the sealed outer face).
+"""Exact steady solution of a layered body whose zero-order uptake runs the solute out in a
+depleted zone bounded by fronts, each fixed by the face that feeds its live zone.
 
-Where the solute runs out, the live zone ends at a front ``s`` with ``C = dC/dr = 0`` and the
+Where the solute runs out, a live zone ends at a front ``s`` with ``C = dC/dr = 0`` and the
 body beyond holds none (A.V. Hill, "The diffusion of oxygen and lactic acid through tissues",
 Proc. R. Soc. B 104 (1928) 39-96; J. Crank, *The Mathematics of Diffusion*, 2nd ed., Oxford,
-1975, ch. 14). The live zone is then an ordinary layered problem: the layers from the inner
-face to ``s`` (the front's layer cut at ``s``) with the fed inner face and a sealed face at
-``s``, which the engine solves in closed form taking zero order as never depleted
-(``exact_steady.solve_linear``). The front is where that solution reaches zero at the cut:
-``g(s) = C(s) = 0``. ``g`` does not increase with ``s`` (more of the body consumes what the
-same face supplies), so ``scipy.optimize.brentq`` finds it between the last layer edge where
-``g > 0`` and the first where ``g <= 0``. With the cut sealed the flux points outward
-everywhere in the live zone, so ``C/K`` falls towards the front and is nowhere negative.
+1975, ch. 14). A live zone is then an ordinary layered problem: the layers from its fed face to
+``s`` (the front's layer cut at ``s``) with a sealed face at ``s``, which the engine solves in
+closed form taking zero order as never depleted (``exact_steady.solve_linear``). The front is
+where that solution reaches zero at the cut: ``g(s) = C(s) = 0``. ``g`` does not rise as the
+zone grows (more of the body consumes what the same face supplies), so ``scipy.optimize.
+brentq`` finds it between the last layer edge where ``g > 0`` and the first where ``g <= 0``.
+With the cut sealed the flux points away from the fed face everywhere in the zone, so ``C/K``
+falls towards the front and is nowhere negative. With both faces fed the two zones are
+independent, and there is a dead zone only where the inner front lies inside the outer one.
 
 A front can only lie in a zero-order layer: in a layer without uptake, or with first-order
 uptake, ``C = dC/dr = 0`` at one point means ``C = 0`` throughout (uniqueness of the layer's
-linear equation), so there the front sits at the layer's inner edge.
+linear equation), so there the front sits at the layer's edge.
 
-Covered: slab, cylinder, sphere with a hollow inner face; any number of layers, each without
-reaction, first order or zero order (at least one zero order); partition jumps at interfaces;
-the inner face fed (``depletion_role`` ``fed``), the outer sealed (symmetry, zero flux, or a
-film of zero coefficient). Anything else returns None (the finite volumes cover it). A single
-layer is also covered by ``depletion_exact`` (Hill's closed form), which the tests compare.
+Covered: slab, cylinder, sphere (hollow, or solid fed from outside); any number of layers, each
+without reaction, first order or zero order (at least one zero order); partition jumps at
+interfaces; each face fed or sealed (``depletion_role``), at least one fed. Anything else
+returns None (the finite volumes cover it), and so does a body that does not run out
+(``solve_exact`` answers it). A single layer is also covered by ``depletion_exact`` (Hill's
+closed form).
 """
 
 from __future__ import annotations
@@ -47,88 +49,122 @@ _EPS = np.finfo(float).eps
 _FIRST_CUT = 1e-9
 
 
+def _role(problem: Problem, side: str) -> str:
+    if side == "inner" and problem.solid_centre:
+        return "sealed"
+    boundary = problem.inner_boundary if side == "inner" else problem.outer_boundary
+    return str(boundary.condition.depletion_role(boundary))
+
+
 def _covered(problem: Problem) -> bool:
     laws = [layer.reaction.law for layer in problem.layers]
-    return (not problem.solid_centre
-            and problem.inner_boundary.condition.depletion_role(problem.inner_boundary) == "fed"
-            and problem.outer_boundary.condition.depletion_role(problem.outer_boundary)
-            == "sealed"
+    roles = {_role(problem, "inner"), _role(problem, "outer")}
+    return (roles <= {"fed", "sealed"} and "fed" in roles
             and all(law.exact_coefficients(layer.reaction) is not None
                     for law, layer in zip(laws, problem.layers, strict=True))
             and any(law.depletes for law in laws))
 
 
-def _live_zone(problem: Problem, front: float) -> Problem:
-    """The layers from the inner face to ``front`` (m), the last cut there and sealed."""
+def _live_zone(problem: Problem, side: str, front: float) -> Problem:
+    """The layers between the ``side`` face and ``front`` (m), cut and sealed there."""
     edges = problem.edges
-    index = int(np.searchsorted(edges, front, side="left")) - 1
-    index = min(max(index, 0), len(problem.layers) - 1)
-    cut = dataclasses.replace(problem.layers[index], thickness=front - float(edges[index]))
-    return dataclasses.replace(problem, layers=(*problem.layers[:index], cut),
-                               outer_boundary=Boundary("symmetry"))
+    last = len(problem.layers) - 1
+    if side == "inner":
+        index = min(max(int(np.searchsorted(edges, front, side="left")) - 1, 0), last)
+        cut = dataclasses.replace(problem.layers[index], thickness=front - float(edges[index]))
+        return dataclasses.replace(problem, layers=(*problem.layers[:index], cut),
+                                   outer_boundary=Boundary("symmetry"))
+    index = min(max(int(np.searchsorted(edges, front, side="right")) - 1, 0), last)
+    cut = dataclasses.replace(problem.layers[index],
+                              thickness=float(edges[index + 1]) - front)
+    return dataclasses.replace(problem, inner=front, layers=(cut, *problem.layers[index + 1:]),
+                               inner_boundary=Boundary("symmetry"))
 
 
-def front_concentration(problem: Problem, front: float) -> float:
+def front_concentration(problem: Problem, front: float, side: str = "inner") -> float:
     """g(s): the concentration (material side, amount/m^3) at a sealed cut at ``front`` (m) of
-    the live zone taken as never depleted; zero at the true front (module docstring)."""
-    live = _live_zone(problem, front)
+    the live zone fed through the ``side`` face, taken as never depleted; zero at the true
+    front (module docstring)."""
+    live = _live_zone(problem, side, front)
     solution, _ = solve_linear(live, consumption=False)
     if not solution.success:
         return math.nan
-    return float(solution.concentration_at(np.array([front]),
-                                           layer=len(live.layers) - 1)[0])
+    layer = len(live.layers) - 1 if side == "inner" else 0
+    return float(solution.concentration_at(np.array([front]), layer=layer)[0])
+
+
+def _front(problem: Problem, side: str) -> float | None:
+    """The front of the live zone fed through ``side`` (m); None where that zone reaches the
+    far face, NaN where a solve fails or nothing is fed."""
+    edges = [float(e) for e in problem.edges]
+    if side == "inner":
+        cuts = [edges[0] + _FIRST_CUT * (edges[1] - edges[0]), *edges[1:]]
+    else:
+        cuts = [edges[-1] - _FIRST_CUT * (edges[-1] - edges[-2]), *edges[-2::-1]]
+    values = [front_concentration(problem, s, side) for s in cuts]
+    if not all(math.isfinite(v) for v in values) or values[0] <= 0.0:
+        return math.nan
+    if values[-1] > 0.0:
+        return None
+    k = next(i for i, v in enumerate(values) if v <= 0.0)
+    if values[k] == 0.0:
+        return cuts[k]
+    low, high = sorted((cuts[k - 1], cuts[k]))
+    return float(optimize.brentq(lambda s: front_concentration(problem, s, side), low, high,
+                                 xtol=4 * _EPS * edges[-1], rtol=4 * _EPS))
 
 
 def solve_depleted_layers(problem: Problem) -> SteadySolution | None:
-    """The exact solution of a layered body whose zero-order uptake runs out beyond a front
-    (module docstring), or None outside the configurations covered or where the body does not
-    run out (``g`` positive at the outer face: ``solve_exact`` answers those)."""
+    """The exact solution of a layered body whose zero-order uptake runs out in a dead zone
+    bounded by fronts (module docstring), or None outside the configurations covered or where
+    the body does not run out (``solve_exact`` answers those)."""
     if not _covered(problem):
         return None
     edges = [float(e) for e in problem.edges]
-    cuts = [edges[0] + _FIRST_CUT * (edges[1] - edges[0]), *edges[1:]]
-    values = [front_concentration(problem, s) for s in cuts]
-    if not all(math.isfinite(v) for v in values) or values[-1] > 0.0:
-        return None
-    if values[0] <= 0.0:
-        return None  # nothing fed: the finite volumes answer the trivial case
-    k = next(i for i, v in enumerate(values) if v <= 0.0)
-    if values[k] == 0.0:
-        front = cuts[k]
-    else:
-        front = float(optimize.brentq(lambda s: front_concentration(problem, s), cuts[k - 1],
-                                      cuts[k], xtol=4 * _EPS * edges[-1], rtol=4 * _EPS))
-    live = _live_zone(problem, front)
-    solution, _ = solve_linear(live)
-    if not solution.success:
-        return None
-    last = len(live.layers) - 1
+    fed = {side: _role(problem, side) == "fed" for side in ("inner", "outer")}
+    inner = _front(problem, "inner") if fed["inner"] else edges[0]
+    outer = _front(problem, "outer") if fed["outer"] else edges[-1]
+    if inner is None or outer is None or not inner <= outer:
+        return None  # no dead zone (or a NaN from a failed solve)
+    zones = {}
+    for side, front in (("inner", inner), ("outer", outer)):
+        if fed[side]:
+            live = _live_zone(problem, side, front)
+            solution, _ = solve_linear(live)
+            if not solution.success:
+                return None
+            first = 0 if side == "inner" else len(problem.layers) - len(live.layers)
+            zones[side] = (live, solution, first)
 
     def piece_of(index: int):
         def piece(r: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
             r = np.asarray(r, dtype=float)
             value, gradient = np.zeros_like(r), np.zeros_like(r)
-            if index <= last:
-                inside = r <= front if index == last else np.ones(r.shape, dtype=bool)
+            for side, (live, solution, first) in zones.items():
+                own = index - first
+                if not 0 <= own < len(live.layers):
+                    continue
+                inside = r <= inner if side == "inner" else r >= outer
                 if np.any(inside):
-                    at = np.minimum(r[inside], live.edges[index + 1])
-                    value[inside] = solution.concentration_at(at, layer=index)
-                    gradient[inside] = (-np.asarray(solution.flux_at(at, layer=index))
+                    at = np.clip(r[inside], live.edges[own], live.edges[own + 1])
+                    value[inside] = solution.concentration_at(at, layer=own)
+                    gradient[inside] = (-np.asarray(solution.flux_at(at, layer=own))
                                         / problem.layers[index].diffusivity)
             return value, gradient
         return piece
 
     profile = LayeredProfile(edges, [ly.diffusivity for ly in problem.layers],
                              [piece_of(i) for i in range(len(problem.layers))])
+    consumption = sum(float(solution.consumption) for _, solution, _ in zones.values())
     return SteadySolution(
         method=METHOD, reference=REFERENCE, success=True,
-        message="layered body with a depleted zone beyond a front fixed by the fed inner face",
+        message="layered body with a depleted zone between fronts fixed by the fed faces",
         concentration_at=profile.concentration_at, flux_at=profile.flux_at,
         profile_at=profile.profile_at,
-        flux_inner=float(solution.flux_inner), flux_outer=0.0,
-        consumption=float(solution.consumption), depletion_front=front,
-        diagnostics={"depleted_zone": (front, edges[-1]),
-                     **solution.diagnostics})
+        flux_inner=float(zones["inner"][1].flux_inner) if "inner" in zones else 0.0,
+        flux_outer=float(zones["outer"][1].flux_outer) if "outer" in zones else 0.0,
+        consumption=consumption, depletion_front=inner if fed["inner"] else outer,
+        diagnostics={"depleted_zone": (inner, outer)})
 
 
 def _lowest_undepleted(problem: Problem, c_face: float) -> float:
