@@ -122,13 +122,16 @@ def hill_level(q, s, d1, d2, k1, k2, first_reacts=True):
 
 
 def hill_front(q, c_wall, d1=1e-10, d2=1.5e-9, k1=1.0, k2=1.0, first_reacts=True):
-    """(front s, outward flux at R, consumption per radian) from the front equation."""
-    low = mpmath.mpf(R) * (1 + mpmath.mpf(10) ** -12) if first_reacts else mpmath.mpf(R + T1)
-    s = mpmath.findroot(
-        lambda x: hill_level(q, x, d1, d2, k1, k2, first_reacts) - c_wall,
-        (low, mpmath.mpf(R + T1 + T2)), solver="anderson")
-    # the consumption from the front; the flux at R from r J = Q (s^2 - r^2)/2 (or less the
-    # wall's share when the wall does not consume)
-    q = mpmath.mpf(q)
-    consumed = q * (s**2 - (R**2 if first_reacts else (R + T1) ** 2)) / 2
-    return float(s), float(consumed / R), float(consumed)
+    """(front s, outward flux at R, consumption per radian) from the front equation, solved at
+    60 digits whatever the caller's precision (F cancels to about 1e-16 of itself when the
+    front lies within 1e-11 m of the face)."""
+    with mpmath.workdps(60):
+        low = mpmath.mpf(R) * (1 + mpmath.mpf(10) ** -12) if first_reacts else mpmath.mpf(R + T1)
+        s = mpmath.findroot(
+            lambda x: hill_level(q, x, d1, d2, k1, k2, first_reacts) - c_wall,
+            (low, mpmath.mpf(R + T1 + T2)), solver="anderson", maxsteps=400)
+        # the consumption from the front; the flux at R from r J = Q (s^2 - r^2)/2 (or less
+        # the wall's share when the wall does not consume)
+        q = mpmath.mpf(q)
+        consumed = q * (s**2 - (R**2 if first_reacts else (R + T1) ** 2)) / 2
+        return float(s), float(consumed / R), float(consumed)
