@@ -109,7 +109,7 @@ SERIES_TOLERANCE = 1e-10
 #: lowest wall concentration the lumen reached on the previous table, and the lumen is marched
 #: again on the refined law.
 TABLE_PASSES = 3
-LOW_MARGIN = 0.8
+LOW_MARGIN = 0.98
 #: Verification points named in the wall-law check's detail.
 SHOWN_POINTS = 8
 #: Default limits of the lumen's own checks (relative), where the steady family's differs.
