@@ -44,8 +44,8 @@ METHOD = "exact-layered-zero-order-front"
 REFERENCE = ("A.V. Hill, Proc. R. Soc. B 104 (1928) 39; J. Crank, The Mathematics of Diffusion, "
              "2nd ed., Oxford, 1975, ch. 14; the live zone by basis superposition")
 _EPS = np.finfo(float).eps
-#: The first layer's cut nearest the inner face at which g is evaluated, as a fraction of that
-#: layer's thickness (g at the face itself is the fed face's own value).
+#: The cut nearest a fed face at which g is evaluated, as a fraction of the thickness of the
+#: layer at that face (g at the face itself is the fed face's own value).
 _FIRST_CUT = 1e-9
 
 
