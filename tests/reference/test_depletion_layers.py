@@ -1,6 +1,7 @@
-"""Layered bodies fed through a hollow cylinder's inner face whose zero-order uptake runs out
-beyond a front (``worker.engine.depletion_layers``), and the fluid level at which the depleted
-zone first appears (``depletion_onset``).
+"""Layered bodies whose zero-order uptake runs out beyond a front (``worker.engine.
+depletion_layers``): a hollow cylinder fed through its inner face (and also through its outer
+face), a solid sphere fed from outside, and the fluid level at which the depleted zone first
+appears (``depletion_onset``).
 
 Check values: A.V. Hill, "The diffusion of oxygen and lactic acid through tissues", Proc. R. Soc.
 B 104 (1928) 39 and J. Crank, *The Mathematics of Diffusion*, 2nd ed., 1975, ch. 14. With
@@ -12,9 +13,9 @@ C/K continuous at the interfaces (partition K)
     F(r; s) = (s^2 / 2) ln(s / r) - (s^2 - r^2) / 4,
 
 each layer's part of the integral of J / (D K) from the face R to s (a_i, b_i its live
-edges). The front equation C(R) = K_1 c_w is solved with mpmath.findroot at 30 digits
-with s at the outer face it gives the onset. Layer values are invented (a fibre wall and a layer
-of cells).
+edges). The front equation C(R) = K_1 c_w is solved with mpmath.findroot at 60 digits
+(``tests.lumen_checks.hill_front``); with s at the outer face it gives the onset. Layer
+values are invented (a fibre wall and a layer of cells).
 """
 
 from __future__ import annotations
