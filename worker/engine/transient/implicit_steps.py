@@ -229,6 +229,8 @@ class _ChainSolver(_StepSolver):
         self.tail_row = tail_place[rows[off_chain]]
         self.tail_col = place[cols[off_chain]]
         self.terms = getattr(system, "newton_terms", None)
+        # the Jacobian's values with a zero appended (the structurally zero entries' value)
+        self.padded = np.zeros(nnz + 1)
         self.pieces: Any = getattr(system, "pieces", None) \
             if getattr(system, "piecewise_linear", False) else None
 
@@ -254,7 +256,8 @@ class _ChainSolver(_StepSolver):
         self.counts["jacobian_evaluations"] += 1
         self.counts["lu_decompositions"] += 1
         chain, tail = self.chain, self.tail
-        padded = np.append(values, 0.0)
+        padded = self.padded
+        padded[:-1] = values
         h_tail: float | np.ndarray
         if isinstance(h, np.ndarray):
             h_chain, h_tail = h[chain], h[tail]
