@@ -587,7 +587,7 @@ class _System:
         a compartment's clearance; a compartment's inflow is minus what its fluid gained and
         what its clearance removed."""
         inflows: list[np.ndarray] = []
-        consumption = np.bincount(self.node_mesh, flow + rate, minlength=self.count).astype(float)
+        consumption: np.ndarray = np.bincount(self.node_mesh, flow + rate, minlength=self.count)
         for face, held in ((self.inner, self.inner_nodes), (self.outer, self.outer_nodes)):
             if face.kind == "dirichlet":
                 inflows.append(flow[held])
@@ -603,7 +603,9 @@ class _System:
             elif face.kind == "flux":
                 inflow = np.full(self.count, face.weight * face.value)
             else:
-                inflow = np.zeros(self.count)
+                # no inflow (adding zero would change nothing: a weighted bincount is never -0)
+                inflows.append(np.zeros(self.count))
+                continue
             inflows.append(np.asarray(inflow, dtype=float))
             consumption = consumption + inflow
         return inflows[0], inflows[1], consumption

@@ -138,7 +138,9 @@ def _solve_substep(system, u0: np.ndarray, s0: np.ndarray, tau: float | np.ndarr
         upper = np.where(fixed[:-1], 0.0, coupling)
         lower = np.where(fixed[1:], 0.0, coupling)
         rhs = np.where(fixed, target - u0, s0 - tau * (flow0 + rate))
-        _, _, _, change, info = dgtsv(lower, np.where(fixed, 1.0, main), upper, rhs)
+        # every operand is this sweep's own array: solved in place
+        _, _, _, change, info = dgtsv(lower, np.where(fixed, 1.0, main), upper, rhs, True,
+                                      True, True, True)
         tally.solves += 1
         if info != 0:
             raise SubstepFailure(f"singular substep matrix (LAPACK dgtsv info {info})")

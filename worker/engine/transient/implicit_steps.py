@@ -349,7 +349,8 @@ class _ChainSolver(_StepSolver):
             before = known if known is not None else self.pieces(y)
             y = y - correction
             known = self.pieces(y)
-            if np.array_equal(before, known) and math.isfinite(float(np.sum(correction))):
+            # (the pieces of one system have one shape: equal arrays are equal elements)
+            if bool((before == known).all()) and math.isfinite(float(correction.sum())):
                 # the system is affine between the two iterates: the new residual is zero
                 # to round-off, so y is the root
                 return y

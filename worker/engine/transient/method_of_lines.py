@@ -619,13 +619,21 @@ class _StackedTerms:
         self.consumes = self.smooth_reacts or self.any_switched
         self.scaled_base = self.base_data[self.scaled_at]
         size = int(offsets[-1])
+        # the diffusion bands as they multiply the cells (fixed views), the states the face
+        # rows and the consumption land in, and one system's cells as a slice of its state
+        self.ab_upper, self.ab_main, self.ab_lower = self.ab[0, 1:], self.ab[1], self.ab[2, :-1]
+        self.out_outer = self.out_inner + 1
+        self.out_consumed = self.out_inner + 2
+        self.cell_slice = slice(0, counts[0]) if len(systems) == 1 and offsets[0] == 0 \
+            else None
         # the content's slope where no content switches: one, read only (shared by calls)
         self.unit_slope = np.ones(size)
         self.unit_slope.flags.writeable = False
 
     def newton_terms(self, y: np.ndarray
                      ) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
-        cells = y[self.cells]
+        at = self.cells if self.cell_slice is None else self.cell_slice
+        cells = y[at]
         c, dc = _dissolved_cells(self, cells)
         if self.smooth_reacts:
             rate = self.first_order * c
@@ -642,26 +650,25 @@ class _StackedTerms:
             rate = rate + self.switched_rate + self.switched_kappa * np.minimum(cells, 0.0)
             slope = slope + self.switched_kappa * (cells <= 0.0)
         # the right-hand side (``_Rhs._rhs``)
-        ab = self.ab
-        applied = ab[1] * c
-        applied[:-1] += ab[0, 1:] * c[1:]
-        applied[1:] += ab[2, :-1] * c[:-1]
+        applied = self.ab_main * c
+        applied[:-1] += self.ab_upper * c[1:]
+        applied[1:] += self.ab_lower * c[:-1]
         out = np.empty_like(y)
         if self.consumes:
-            out[self.cells] = self.source - applied * self.inverse_volumes - rate
+            out[at] = self.source - applied * self.inverse_volumes - rate
         else:
-            out[self.cells] = self.source - applied * self.inverse_volumes
+            out[at] = self.source - applied * self.inverse_volumes
         q0 = self.q0_slope * c[self.first_cell] + self.q0_constant
         qn = self.qn_slope * c[self.last_cell] + self.qn_constant
         out[self.out_inner] = -q0
-        out[self.out_inner + 1] = qn
+        out[self.out_outer] = qn
         starts = self.cell_starts
         if self.consumes:
             for k in range(len(self.systems)):
                 out[self.out_inner[k] + 2] = float(np.dot(
                     self.volumes[starts[k]:starts[k + 1]], rate[starts[k]:starts[k + 1]]))
         else:
-            out[self.out_inner + 2] = 0.0
+            out[self.out_consumed] = 0.0
         for k, face in self.faces:
             low = int(self.offsets[k])
             level = y[low + face.state]
@@ -681,9 +688,9 @@ class _StackedTerms:
         # the content and its slope
         if self.any_switched:
             content = y.copy()
-            content[self.cells] = np.maximum(cells, self.floor)
+            content[at] = np.maximum(cells, self.floor)
             content_slope = np.ones_like(y)
-            content_slope[self.cells] = cells > self.floor
+            content_slope[at] = cells > self.floor
         else:
             content = y
             content_slope = self.unit_slope
