@@ -267,6 +267,18 @@ class _Rhs:
             return above
         return np.concatenate((above, np.maximum(cells, self.floor) < self.solubility))
 
+    def pieces_of_copies(self, states: np.ndarray) -> np.ndarray:
+        """:meth:`pieces` of each row of ``states`` (states of copies of this system), as
+        rows."""
+        cells = states[:, : self.n]
+        if not self.any_switched:
+            return cells < self.solubility if self.has_solubility else \
+                np.zeros((states.shape[0], 0), dtype=bool)
+        above = cells > self.floor
+        if not self.has_solubility:
+            return above
+        return np.concatenate((above, np.maximum(cells, self.floor) < self.solubility), axis=1)
+
     def content(self, y: np.ndarray) -> np.ndarray:
         """Conserved content of each state (cells: solute per volume; other states as they
         are)."""
