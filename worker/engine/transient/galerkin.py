@@ -422,6 +422,9 @@ class _System:
         self.last_elements = self.outer_nodes - 1 - np.arange(self.count)
         free = self.free
         self.inverse_mass = np.where(free, 1.0 / self.lumped, 0.0)
+        #: the value a fixed node is first set to: its held value, or its saturation potential
+        #: (read by a substep's first sweep)
+        self.fixed_target = np.where(free, self.saturation_potential, self.held_value)
 
     def replica(self, copies: int) -> _System:
         """The system of ``copies`` copies of these meshes one after the other (the substeps

@@ -122,18 +122,19 @@ def _solve_substep(system, u0: np.ndarray, s0: np.ndarray, tau: float | np.ndarr
     dead = zero_nodes & (u0 - tau * (flow0 + q) / m <= 0.0) & free if any_zero else nothing
     idle = nothing
     saturated = system.limited & (s0 - tau * flow0 > 0.0) if any_limited else nothing
-    target = np.where(free, u0, system.held_value)
+    target = np.where(free, u0, system.held_value) if any_zero else system.fixed_target
     needed = solid = None
-    for _sweep in range(MAX_SWEEPS):
+    for sweep in range(MAX_SWEEPS):
         if any_zero:
             fixed = held | dead | saturated
             target = np.where(dead, 0.0, np.where(saturated, limit, target))
             rate = np.where(dead | idle, 0.0, q)
         else:
             fixed = held | saturated
-            if any_limited:
-                target = np.where(saturated, limit, target)
             rate = q
+            if sweep > 0 and any_limited:
+                # (the first sweep's fixed nodes are held or saturated: ``fixed_target``)
+                target = np.where(saturated, limit, target)
         # unknown: the change u - u0; a fixed node's row is the identity
         upper = np.where(fixed[:-1], 0.0, coupling)
         lower = np.where(fixed[1:], 0.0, coupling)
@@ -159,7 +160,8 @@ def _solve_substep(system, u0: np.ndarray, s0: np.ndarray, tau: float | np.ndarr
             moved = bool(to_dead.any() or back.any() or to_idle.any() or idle_back.any())
         if any_limited:
             solid = s0 - m * change - tau * (flow + rate)
-            to_saturated = system.limited & ~fixed & (u > limit)
+            # (u above a finite limit: a limited node, never a held one, whose limit is inf)
+            to_saturated = (u > limit) & ~fixed
             dissolved = saturated & (solid < 0.0)
             moved = moved or bool(to_saturated.any() or dissolved.any())
         if not moved:

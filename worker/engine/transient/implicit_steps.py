@@ -376,6 +376,16 @@ def _quantised(h: float, unit: float) -> float:
     return unit * 2.0 ** np.floor(np.log2(h / unit) + 1e-9)
 
 
+def _rows(system: Any) -> Any:
+    """The pieces of copies of ``system`` from their states as rows (row b: block b's), or
+    None when the system has no pieces."""
+    rows = getattr(system, "pieces_of_copies", None)
+    if rows is None and getattr(system, "pieces", None) is not None:
+        def rows(states: np.ndarray) -> np.ndarray:
+            return np.array([system.pieces(state) for state in states])
+    return rows
+
+
 def integrate(system: Any, y0: np.ndarray, start: float, end: float, times: np.ndarray,
               atol: np.ndarray, rtol: float, first_step: float | None = None) -> ImplicitResult:
     """Error-controlled implicit Euler from ``start`` to ``end`` landing on ``times``, with
@@ -501,10 +511,7 @@ def paths(system: Any, copies: Any, y0: np.ndarray, ts: np.ndarray, parts: tuple
                for k in range(1, len(order) + 1)}
     if not all(isinstance(solver, _ChainSolver) for solver in solvers.values()):
         return {p: path(system, y0, ts, p, atol, rtol) for p in order}
-    pieces = getattr(system, "pieces_of_copies", None)
-    if pieces is None and getattr(system, "pieces", None) is not None:
-        def pieces(states: np.ndarray) -> np.ndarray:
-            return np.array([system.pieces(state) for state in states])
+    pieces = _rows(system)
     y = np.tile(y0, len(order))
     states = np.full((len(order), size, ts.size), np.nan)
     states[:, :, 0] = y0
