@@ -106,3 +106,12 @@ def test_rounds_reading_the_first_rounds_matrix_give_the_substeps_built_afresh(m
     assert sorted(shared) == sorted(afresh) == sorted(galerkin_steps.SEQUENCE)
     for n in shared:
         assert shared[n].tobytes() == afresh[n].tobytes()
+
+
+def test_the_stiffness_along_the_chain_of_nodes_sums_each_elements_flow_as_the_gather_does():
+    # A u of several meshes side by side, along the chain of nodes, equals the element flows
+    # gathered per node (-flow to the inner node, +flow to the outer one), to the last bit.
+    system = _system().replica(3)
+    u = np.random.default_rng(7).uniform(-1.0, 2.0, system.size)
+    flow = system.stiffness * (u[system.right] - u[system.left])
+    assert system.stiffness_apply(u).tobytes() == system._gather(-flow, flow).tobytes()
