@@ -10,9 +10,20 @@ evaluation is a finite-volume solve; tabulating them on ``[0, inlet]`` once and 
 with a monotone piecewise-cubic Hermite interpolant (F.N. Fritsch, R.E. Carlson, "Monotone
 piecewise cubic interpolation", SIAM J. Numer. Anal. 17 (1980) 238; ``scipy.interpolate.
 PchipInterpolator``) keeps a monotone law monotone, so the lumen's Newton iteration keeps one
-root. The table is verified against direct solves midway between nodes (``verify``); where it
-misses the tolerance the nodes are doubled. Pchip reproduces a straight line exactly, so for
-linear kinetics the table is the closed-form law.
+root. The table is verified against direct solves midway between nodes (``tabulate``); where
+it misses the tolerance the midpoints join the nodes, the worst first when the table has no
+room for all. Pchip reproduces a straight line exactly, so for linear kinetics the table is the
+closed-form law.
+
+Two features of zero-order layers are not smooth, and pchip alone converges slowly across them
+(it is second order in the node spacing only where the law is smooth):
+
+* where a depleted zone first appears (``depletion_layers.depletion_onset``) the slope of
+  j(c_w) jumps: a sealed body takes up the same amount at every level above it and less below
+  it. That level becomes a node, and each side has its own interpolants (``breaks``).
+* a zero-order layer at the wall, depleted beyond a front, takes up ``j ~ sqrt(2 D Q K c_w)``
+  near c_w = 0 (the live zone's depth grows as sqrt(c_w); Hill 1928, Crank 1975 ch. 14): the
+  table then interpolates over ``x = sqrt(c_w / top)``, in which that law is smooth (``root``).
 """
 
 from __future__ import annotations
@@ -23,6 +34,7 @@ from dataclasses import dataclass
 import numpy as np
 from scipy.interpolate import PchipInterpolator
 
+from worker.engine.depletion_layers import depletion_onset
 from worker.engine.extremes import layer_extremes, true_extreme
 from worker.engine.lumen.inputs import LumenInputError
 from worker.engine.lumen.layer_accuracy import accurate_answer
@@ -39,6 +51,9 @@ FIRST_PASS_NODES = 65
 #: Where the table starts, as a fraction of the inlet, when the layers cannot be solved with
 #: the wall at exactly zero.
 ZERO_NODE = 1e-9
+#: Nearest approach to c_w = 0, as a fraction of the top, of the slope of a table over
+#: sqrt(c_w) (``WallTable.flux``).
+SLOPE_FLOOR = 1e-12
 #: Samples per layer before the search for the layer minimum.
 SAMPLES_PER_LAYER = 81
 #: Radii per layer (both ends included, a subset of the samples) at which the table also keeps
@@ -94,10 +109,55 @@ def answer_of(problem: Problem, solution: SteadySolution) -> LayerAnswer:
     )
 
 
-def _nodes(top: float, count: int) -> np.ndarray:
-    """Chebyshev-Lobatto points on [0, top]: closer near both ends, where a saturating or
+def _nodes(low: float, high: float, count: int) -> np.ndarray:
+    """Chebyshev-Lobatto points on [low, high]: closer near both ends, where a saturating or
     depleting law bends most."""
-    return 0.5 * top * (1.0 - np.cos(np.pi * np.arange(count) / (count - 1)))
+    return low + 0.5 * (high - low) * (1.0 - np.cos(np.pi * np.arange(count) / (count - 1)))
+
+
+def _first_nodes(top: float, count: int, kink: float | None) -> list[float]:
+    """The first table's nodes on [0, top]; with a kink inside, each side gets its own
+    Chebyshev-Lobatto points, sharing the kink."""
+    if kink is None:
+        return [float(c) for c in _nodes(0.0, top, count)]
+    side = count // 2 + 1
+    return [float(c) for c in np.concatenate([_nodes(0.0, kink, side)[:-1],
+                                              _nodes(kink, top, side)])]
+
+
+class _Piecewise:
+    """One monotone cubic per piece of the axis between ``splits`` (each a node shared by the
+    pieces either side): a law with a kink there is interpolated on each side without rounding
+    the kink off. ``values`` may have trailing axes (interpolated along the first)."""
+
+    def __init__(self, splits: np.ndarray, parts: list) -> None:
+        self.splits = splits
+        self.parts = parts
+
+    @classmethod
+    def fit(cls, axis: np.ndarray, values, split_at: list[int]) -> _Piecewise:
+        values = np.asarray(values, dtype=float)
+        bounds = [0, *split_at, len(axis) - 1]
+        parts = [PchipInterpolator(axis[a:b + 1], values[a:b + 1], axis=0)
+                 for a, b in zip(bounds[:-1], bounds[1:], strict=True)]
+        return cls(np.asarray(axis[split_at], dtype=float), parts)
+
+    def derivative(self) -> _Piecewise:
+        return _Piecewise(self.splits, [part.derivative() for part in self.parts])
+
+    def __call__(self, x):
+        x = np.asarray(x, dtype=float)
+        if len(self.parts) == 1:
+            return self.parts[0](x)
+        which = np.searchsorted(self.splits, x, side="right")
+        if x.ndim == 0:
+            return self.parts[int(which)](x)
+        out = np.empty(x.shape + self.parts[0](x.flat[0]).shape)
+        for k, part in enumerate(self.parts):
+            mask = which == k
+            if np.any(mask):
+                out[mask] = part(x[mask])
+        return out
 
 
 @dataclass
@@ -105,7 +165,9 @@ class WallTable:
     """Pchip interpolants of :class:`LayerAnswer` over c_w in [0, ``top``] (mol/m^3).
 
     ``verified`` lists (c_w, relative error of j) at the points checked against direct solves;
-    ``worst_error`` is the largest, relative to the largest |j| of the table."""
+    ``worst_error`` is the largest, relative to the largest |j| of the table. With ``root`` the
+    interpolants run over ``x = sqrt(c_w / top)`` instead of c_w; ``breaks`` are nodes where
+    the law has a kink, and each side of one has its own interpolants (see :func:`tabulate`)."""
 
     nodes: np.ndarray
     answers: list[LayerAnswer]
@@ -113,18 +175,29 @@ class WallTable:
     worst_error: float
     #: The lowest wall concentration of the verified range (mol/m^3).
     low: float = 0.0
+    root: bool = False
+    breaks: tuple[float, ...] = ()
+
+    def _x(self, c_wall):
+        """The interpolants' abscissa of wall concentrations in [0, top]."""
+        return np.sqrt(c_wall / self.top) if self.root else c_wall
 
     def __post_init__(self) -> None:
+        axis = self._x(np.asarray(self.nodes, dtype=float))
+        split_at = sorted(int(np.searchsorted(self.nodes, c)) for c in self.breaks)
+        if any(not 0 < i < len(self.nodes) - 1 or self.nodes[i] != c
+               for i, c in zip(split_at, sorted(self.breaks), strict=True)):
+            raise ValueError(f"breaks: expected inner nodes of the table, got {self.breaks!r}")
+
         def fit(values):
-            return PchipInterpolator(self.nodes, np.asarray(values, dtype=float))
+            return _Piecewise.fit(axis, values, split_at)
         self._flux = fit([a.wall_flux for a in self.answers])
         self._slope = self._flux.derivative()
         self._consumption = fit([a.consumption_per_length for a in self.answers])
         self._outer = fit([a.outer_per_length for a in self.answers])
         self._minimum = fit([a.minimum for a in self.answers])
         self._radius = fit([a.minimum_radius for a in self.answers])
-        self._profile = PchipInterpolator(
-            self.nodes, np.array([a.profile for a in self.answers], dtype=float), axis=0)
+        self._profile = fit([a.profile for a in self.answers])
 
     @property
     def top(self) -> float:
@@ -133,20 +206,28 @@ class WallTable:
     def flux(self, c_wall: float) -> tuple[float, float]:
         """(j, dj/dc_w) at c_w; outside [0, top] continued linearly from the end."""
         at = min(max(c_wall, 0.0), self.top)
-        j, slope = float(self._flux(at)), float(self._slope(at))
+        if not self.root:
+            j, slope = float(self._flux(at)), float(self._slope(at))
+            return j + slope * (c_wall - at), slope
+        # dj/dc_w = (dj/dx) / (2 sqrt(c_w top)): unbounded at c_w = 0 for a law that grows as
+        # sqrt(c_w) there, so taken no nearer zero than ``SLOPE_FLOOR`` top
+        x = math.sqrt(at / self.top)
+        j = float(self._flux(x))
+        x_slope = max(x, math.sqrt(SLOPE_FLOOR))
+        slope = float(self._slope(x_slope)) / (2.0 * self.top * x_slope)
         return j + slope * (c_wall - at), slope
 
     def wall(self) -> FunctionWall:
         return FunctionWall(self.flux)
 
     def consumption_per_length(self, c_wall):
-        return self._consumption(np.clip(c_wall, 0.0, self.top))
+        return self._consumption(self._x(np.clip(c_wall, 0.0, self.top)))
 
     def outer_per_length(self, c_wall):
-        return self._outer(np.clip(c_wall, 0.0, self.top))
+        return self._outer(self._x(np.clip(c_wall, 0.0, self.top)))
 
     def minimum(self, c_wall):
-        return self._minimum(np.clip(c_wall, 0.0, self.top))
+        return self._minimum(self._x(np.clip(c_wall, 0.0, self.top)))
 
     @property
     def profile_radii(self) -> np.ndarray:
@@ -156,7 +237,8 @@ class WallTable:
     def profile(self, c_wall: float) -> np.ndarray:
         """The layers' concentration (material side) at :attr:`profile_radii` with the fluid at
         the wall at ``c_wall``, interpolated as the other figures are (pchip on the nodes)."""
-        return np.asarray(self._profile(min(max(c_wall, 0.0), self.top)), dtype=float)
+        return np.asarray(self._profile(self._x(min(max(c_wall, 0.0), self.top))),
+                          dtype=float)
 
 
 def _table_error(table: WallTable, direct: LayerAnswer, c: float, scale: float,
@@ -180,19 +262,22 @@ def tabulate(problem: Problem, top: float, tolerance: float, *, low: float = 0.0
     where j, the consumption or the outer-face rate misses ``tolerance`` (relative to the
     largest |j| or the largest rate through the wall) the midpoint joins the nodes
     and the intervals whose interpolant that changes (pchip slopes use the neighbours) are
-    checked again, until all pass or the table holds ``max_nodes``. A law with a kink (a
-    zero-order layer whose dry zone reaches a face) is so refined around the kink alone; one
-    steep at c_w = 0 (a zero-order layer's flux grows as the square root of c_w there) is
-    verified only down to the lowest wall concentration the lumen reaches (``low``).
-    ``start``: a table to refine further (its nodes and answers are kept)."""
+    checked again, until all pass or the table holds ``max_nodes`` (with more failing than it
+    has room for, the worst are refined). The level where a depleted zone first appears is a
+    node with separate interpolants either side, and with a zero-order layer at the wall the
+    table runs over sqrt(c_w) (module docstring). ``start``: a table to refine further (its
+    nodes, answers and breaks are kept)."""
     if not (math.isfinite(top) and top > 0.0):
         raise LumenInputError(f"inlet: expected a positive concentration to tabulate up to, "
                               f"got {top!r}")
     if start is not None:
         nodes = [float(c) for c in start.nodes]
         answers = dict(zip(nodes, start.answers, strict=True))
+        breaks = start.breaks
     else:
-        nodes = [float(c) for c in _nodes(top, 5 if problem.is_linear else FIRST_NODES)]
+        kink = depletion_onset(problem, top)
+        breaks = () if kink is None else (kink,)
+        nodes = _first_nodes(top, 5 if problem.is_linear else FIRST_NODES, kink)
         try:
             first = layer_answer(problem, 0.0)
         except LumenInputError:
@@ -202,10 +287,12 @@ def tabulate(problem: Problem, top: float, tolerance: float, *, low: float = 0.0
             first = layer_answer(problem, nodes[0])
         answers = {nodes[0]: first} | {c: layer_answer(problem, c) for c in nodes[1:]}
     scale = max(abs(a.wall_flux) for a in answers.values()) or 1.0
+    root = problem.layers[0].reaction.law.depletes
     errors: dict[float, tuple[float, float]] = {}  # left node -> (midpoint, error)
     pending = set(range(len(nodes) - 1))
     while True:
-        table = WallTable(np.array(nodes), [answers[c] for c in nodes], [], math.nan)
+        table = WallTable(np.array(nodes), [answers[c] for c in nodes], [], math.nan,
+                          root=root, breaks=breaks)
         failing = []
         for i in sorted(pending):
             if nodes[i + 1] < low:
@@ -216,8 +303,13 @@ def tabulate(problem: Problem, top: float, tolerance: float, *, low: float = 0.0
             errors[nodes[i]] = (c, error)
             if error > tolerance:
                 failing.append((i, c, direct))
-        if not failing or len(nodes) + len(failing) > max_nodes:
+        room = max_nodes - len(nodes)
+        if not failing or room <= 0:
             break
+        if len(failing) > room:
+            # more intervals miss than the table has room for: refine the worst ones
+            failing = sorted(sorted(failing, key=lambda f: -errors[nodes[f[0]]][1])[:room],
+                             key=lambda f: f[0])
         for i, c, direct in reversed(failing):
             answers[c] = direct
             nodes.insert(i + 1, c)

@@ -409,6 +409,9 @@ class _System:
         self._saturation(problem, index, element_mesh)
         self.u_scale = c_scale / float(np.min(self.partition))
         self.stiffness_diagonal = self._gather(self.stiffness, self.stiffness)
+        #: the stiffness of the element between node k and k + 1, zero between two meshes
+        self.chain_stiffness = np.zeros(max(size - 1, 0))
+        self.chain_stiffness[self.left] = self.stiffness
         #: undissolved scale of each node for the step tolerance (set by the driver)
         self.solid_scale = np.ones(size)
         self.zero_nodes = (self.nodal_zero > 0.0) & self.free
@@ -422,6 +425,9 @@ class _System:
         self.last_elements = self.outer_nodes - 1 - np.arange(self.count)
         free = self.free
         self.inverse_mass = np.where(free, 1.0 / self.lumped, 0.0)
+        #: the value a fixed node is first set to: its held value, or its saturation potential
+        #: (read by a substep's first sweep)
+        self.fixed_target = np.where(free, self.saturation_potential, self.held_value)
 
     def replica(self, copies: int) -> _System:
         """The system of ``copies`` copies of these meshes one after the other (the substeps
@@ -486,8 +492,15 @@ class _System:
 
     def stiffness_apply(self, u: np.ndarray) -> np.ndarray:
         """A u with A the r^n-weighted stiffness matrix int D K phi_i' phi_j' r^n."""
-        flow = self.stiffness * (u[self.right] - u[self.left])
-        return self._gather(-flow, flow)
+        # each element's flow taken from its inner node and given to its outer one: what
+        # ``_gather(-flow, flow)`` sums (each node gets 0 + its part, then the two parts are
+        # added), along the chain of nodes (zero flow between two meshes)
+        flow = self.chain_stiffness * (u[1:] - u[:-1])
+        out = np.empty(u.size)
+        out[:-1] = 0.0 - flow
+        out[-1] = 0.0
+        out[1:] += 0.0 + flow
+        return out
 
     def _saturation(self, problem: Problem, index: np.ndarray, element_mesh: np.ndarray) -> None:
         """Saturation potential U_i = S/K of each node (the smaller of its elements' layers;
@@ -547,8 +560,7 @@ class _System:
         coupling has size - 1 entries (zero between meshes). ``tau`` is unused (kept for the
         callers' symmetry)."""
         size = self.size
-        flow_e = self.stiffness * (u[self.right] - u[self.left])
-        flow = self._gather(-flow_e, flow_e)
+        flow = self.stiffness_apply(u)
         diag = self.stiffness_diagonal.copy() if slopes else np.zeros(0)
         off_e = -self.stiffness if slopes else np.zeros(0)
         if self.smooth.size:
@@ -587,7 +599,7 @@ class _System:
         a compartment's clearance; a compartment's inflow is minus what its fluid gained and
         what its clearance removed."""
         inflows: list[np.ndarray] = []
-        consumption = np.bincount(self.node_mesh, flow + rate, minlength=self.count).astype(float)
+        consumption: np.ndarray = np.bincount(self.node_mesh, flow + rate, minlength=self.count)
         for face, held in ((self.inner, self.inner_nodes), (self.outer, self.outer_nodes)):
             if face.kind == "dirichlet":
                 inflows.append(flow[held])
@@ -603,7 +615,9 @@ class _System:
             elif face.kind == "flux":
                 inflow = np.full(self.count, face.weight * face.value)
             else:
-                inflow = np.zeros(self.count)
+                # no inflow (adding zero would change nothing: a weighted bincount is never -0)
+                inflows.append(np.zeros(self.count))
+                continue
             inflows.append(np.asarray(inflow, dtype=float))
             consumption = consumption + inflow
         return inflows[0], inflows[1], consumption

@@ -96,13 +96,15 @@ class SubstepFailure(RuntimeError):
 
 def _solve_substep(system, u0: np.ndarray, s0: np.ndarray, tau: float | np.ndarray,
                    slopes: tuple[np.ndarray, np.ndarray], tally: StepHistory,
-                   flow0: np.ndarray | None = None):
+                   flow0: np.ndarray | None = None,
+                   bands: tuple[np.ndarray, np.ndarray] | None = None):
     """One linearly implicit Euler substep of size tau from (u0, s0): the smooth balance
     linearised about u0 with the step's Jacobian ``slopes`` (diagonal, coupling of node k with
     k + 1), the switching terms exact. Returns (u, s, inflow_inner, inflow_outer,
     consumption), the last three per mesh as rates (r^n-weighted). ``tau`` may be one size per
     node (meshes that are copies stepped with different sizes); ``flow0`` the balance at u0
-    where it is known."""
+    where it is known; ``bands`` the substep matrix's diagonal ``m + tau diag`` and coupling
+    ``tau off`` where they are known."""
     m = system.lumped
     q = system.nodal_zero
     limit = system.saturation_potential
@@ -114,31 +116,37 @@ def _solve_substep(system, u0: np.ndarray, s0: np.ndarray, tau: float | np.ndarr
     diag, off = slopes
     if flow0 is None:
         flow0, _, _ = system.balance(u0, tau, slopes=False)
-    main = m + tau * diag
-    coupling = (tau[:-1] if isinstance(tau, np.ndarray) else tau) * off
+    if bands is None:
+        main = m + tau * diag
+        coupling = (tau[:-1] if isinstance(tau, np.ndarray) else tau) * off
+    else:
+        main, coupling = bands
     nothing = system.nothing
     held = system.held
     # active sets guessed from an explicit predictor (the sweeps then correct the guess)
     dead = zero_nodes & (u0 - tau * (flow0 + q) / m <= 0.0) & free if any_zero else nothing
     idle = nothing
     saturated = system.limited & (s0 - tau * flow0 > 0.0) if any_limited else nothing
-    target = np.where(free, u0, system.held_value)
+    target = np.where(free, u0, system.held_value) if any_zero else system.fixed_target
     needed = solid = None
-    for _sweep in range(MAX_SWEEPS):
+    for sweep in range(MAX_SWEEPS):
         if any_zero:
             fixed = held | dead | saturated
             target = np.where(dead, 0.0, np.where(saturated, limit, target))
             rate = np.where(dead | idle, 0.0, q)
         else:
             fixed = held | saturated
-            if any_limited:
-                target = np.where(saturated, limit, target)
             rate = q
+            if sweep > 0 and any_limited:
+                # (the first sweep's fixed nodes are held or saturated: ``fixed_target``)
+                target = np.where(saturated, limit, target)
         # unknown: the change u - u0; a fixed node's row is the identity
         upper = np.where(fixed[:-1], 0.0, coupling)
         lower = np.where(fixed[1:], 0.0, coupling)
         rhs = np.where(fixed, target - u0, s0 - tau * (flow0 + rate))
-        _, _, _, change, info = dgtsv(lower, np.where(fixed, 1.0, main), upper, rhs)
+        # every operand is this sweep's own array: solved in place
+        _, _, _, change, info = dgtsv(lower, np.where(fixed, 1.0, main), upper, rhs, True,
+                                      True, True, True)
         tally.solves += 1
         if info != 0:
             raise SubstepFailure(f"singular substep matrix (LAPACK dgtsv info {info})")
@@ -157,7 +165,8 @@ def _solve_substep(system, u0: np.ndarray, s0: np.ndarray, tau: float | np.ndarr
             moved = bool(to_dead.any() or back.any() or to_idle.any() or idle_back.any())
         if any_limited:
             solid = s0 - m * change - tau * (flow + rate)
-            to_saturated = system.limited & ~fixed & (u > limit)
+            # (u above a finite limit: a limited node, never a held one, whose limit is inf)
+            to_saturated = (u > limit) & ~fixed
             dissolved = saturated & (solid < 0.0)
             moved = moved or bool(to_saturated.any() or dissolved.any())
         if not moved:
@@ -205,6 +214,19 @@ def _patterns(system, order: list[int]) -> dict[int, tuple[np.ndarray, np.ndarra
     return cached
 
 
+def _shared_mass(system, copies: int) -> bool:
+    """Whether the lumped mass of fewer copies of the meshes is the leading part of that of
+    ``copies`` copies, to the bit (then the substep matrices of every round are the leading
+    parts of the first round's; checked once per system)."""
+    cached = getattr(system, "_mass_shared", None)
+    if cached is None:
+        full = system.replica(copies).lumped
+        cached = all(np.array_equal(system.replica(k).lumped, full[:k * system.size])
+                     for k in range(1, copies))
+        system._mass_shared = cached
+    return cached
+
+
 def _euler_together(system, y0: np.ndarray, h: float, slopes, tally: StepHistory,
                     flow: np.ndarray | None = None) -> dict[int, np.ndarray]:
     """The end states of implicit Euler over h with each of ``SEQUENCE`` substeps, the
@@ -226,17 +248,27 @@ def _euler_together(system, y0: np.ndarray, h: float, slopes, tally: StepHistory
     off_all = np.concatenate([off, [0.0]] * copies)
     ends: dict[int, np.ndarray] = {}
     patterns = _patterns(system, order)
+    # each copy's substep size, the same in every round: the first round's arrays, of which
+    # a later round (fewer copies) takes the leading part
+    per_node_all, per_mesh_count_all = patterns[copies]
+    tau_all = h / per_node_all
+    per_mesh_all = h / per_mesh_count_all
+    shared = None
+    if _shared_mass(system, copies):
+        shared = (system.replica(copies).lumped + tau_all * diag_all,
+                  tau_all[:-1] * off_all[:-1])
     for r in range(1, order[0] + 1):
         copies = sum(1 for n in order if n >= r)
-        per_node, per_mesh_count = patterns[copies]
-        tau = h / per_node
+        tau = tau_all[:copies * size]
         tiled = (diag_all[:copies * size], off_all[:copies * size - 1])
+        bands = None if shared is None else (shared[0][:copies * size],
+                                             shared[1][:copies * size - 1])
         start = np.concatenate([flow] * copies) if r == 1 and flow is not None else None
         u, s, inner, outer, consumed = _solve_substep(
             system.replica(copies), u[:copies * size], s[:copies * size], tau, tiled, tally,
-            start)
+            start, bands)
         amounts = amounts[:copies * count]
-        per_mesh = h / per_mesh_count
+        per_mesh = per_mesh_all[:copies * count]
         amounts[:, 0] -= per_mesh * inner
         amounts[:, 1] -= per_mesh * outer
         amounts[:, 2] += per_mesh * consumed

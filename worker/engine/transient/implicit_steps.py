@@ -229,6 +229,8 @@ class _ChainSolver(_StepSolver):
         self.tail_row = tail_place[rows[off_chain]]
         self.tail_col = place[cols[off_chain]]
         self.terms = getattr(system, "newton_terms", None)
+        # the Jacobian's values with a zero appended (the structurally zero entries' value)
+        self.padded = np.zeros(nnz + 1)
         self.pieces: Any = getattr(system, "pieces", None) \
             if getattr(system, "piecewise_linear", False) else None
 
@@ -254,7 +256,8 @@ class _ChainSolver(_StepSolver):
         self.counts["jacobian_evaluations"] += 1
         self.counts["lu_decompositions"] += 1
         chain, tail = self.chain, self.tail
-        padded = np.append(values, 0.0)
+        padded = self.padded
+        padded[:-1] = values
         h_tail: float | np.ndarray
         if isinstance(h, np.ndarray):
             h_chain, h_tail = h[chain], h[tail]
@@ -277,46 +280,43 @@ class _ChainSolver(_StepSolver):
         correction[tail] = (residual[tail] + h_tail * coupled) / slope[tail]
         return correction
 
-    def step_blocks(self, y_old: np.ndarray, h: np.ndarray, starts: np.ndarray,
+    def step_blocks(self, y_old: np.ndarray, h: np.ndarray, copies: int,
                     pieces: Any) -> np.ndarray | None:
-        """Implicit Euler steps of independent blocks of states (copies of one system, block
-        b the states ``starts[b]:starts[b + 1]``) at once, ``h`` the step of each state's block:
-        each block is iterated as :meth:`step` iterates it alone (its own residual norm, its
-        own piece test with ``pieces`` of one block) and left as it is once it has converged.
-        None when any block fails."""
+        """Implicit Euler steps of ``copies`` independent blocks of states (copies of one
+        system of equal size, block b the states ``b * size:(b + 1) * size``) at once, ``h``
+        the step of each state's block: each block is iterated as :meth:`step` iterates it
+        alone (its own residual norm, its own piece test, ``pieces`` giving row b the pieces
+        of block b from the states as rows) and left as it is once it has converged. None
+        when any block fails."""
         m_old, y, weight = self._start(y_old)
-        blocks = [slice(int(starts[b]), int(starts[b + 1])) for b in range(len(starts) - 1)]
-        live = list(blocks)
+        size = y.size // copies
+        live = np.ones(copies, dtype=bool)
         for _ in range(MAX_NEWTON):
             content, f, values, slope = self._evaluate(0.0, y, False)
             residual = content - m_old - h * f
             self.counts["rhs_evaluations"] += 1
             scaled = residual / weight
-            running = []
-            for block in live:
-                part = scaled[block]
+            for b in np.flatnonzero(live):
+                part = scaled[b * size:(b + 1) * size]
                 norm = math.sqrt(float(np.dot(part, part)) / part.size)
                 if not math.isfinite(norm):
                     return None
-                if norm > NEWTON_TOLERANCE:
-                    running.append(block)
-            live = running
-            if not live:
+                if norm <= NEWTON_TOLERANCE:
+                    live[b] = False
+            if not live.any():
                 return y
             correction = self._correction(0.0, y, h, residual, values, slope)
             if correction is None:
                 return None
             self.counts["newton_iterations"] += 1
-            moving = np.zeros_like(correction)
-            for block in live:
-                moving[block] = correction[block]
-            before = [pieces(y[block]) for block in live] if self.pieces is not None else []
+            moving = np.where(np.repeat(live, size), correction, 0.0)
+            before = pieces(y.reshape(copies, size)) if self.pieces is not None else None
             y = y - moving
-            if self.pieces is not None:
-                live = [block for block, was in zip(live, before, strict=True)
-                        if not (np.array_equal(was, pieces(y[block]))
-                                and math.isfinite(float(np.sum(moving[block]))))]
-                if not live:
+            if before is not None:
+                settled = (before == pieces(y.reshape(copies, size))).all(axis=1) & \
+                    np.isfinite(moving.reshape(copies, size).sum(axis=1))
+                live &= ~settled
+                if not live.any():
                     return y
         return None
 
@@ -346,7 +346,8 @@ class _ChainSolver(_StepSolver):
             before = known if known is not None else self.pieces(y)
             y = y - correction
             known = self.pieces(y)
-            if np.array_equal(before, known) and math.isfinite(float(np.sum(correction))):
+            # (the pieces of one system have one shape: equal arrays are equal elements)
+            if bool((before == known).all()) and math.isfinite(float(correction.sum())):
                 # the system is affine between the two iterates: the new residual is zero
                 # to round-off, so y is the root
                 return y
@@ -373,6 +374,16 @@ def _quantised(h: float, unit: float) -> float:
     """h rounded down to ``unit`` times a power of two: step lengths repeat, and so do the
     factorisations of a linear system."""
     return unit * 2.0 ** np.floor(np.log2(h / unit) + 1e-9)
+
+
+def _rows(system: Any) -> Any:
+    """The pieces of copies of ``system`` from their states as rows (row b: block b's), or
+    None when the system has no pieces."""
+    rows = getattr(system, "pieces_of_copies", None)
+    if rows is None and getattr(system, "pieces", None) is not None:
+        def rows(states: np.ndarray) -> np.ndarray:
+            return np.array([system.pieces(state) for state in states])
+    return rows
 
 
 def integrate(system: Any, y0: np.ndarray, start: float, end: float, times: np.ndarray,
@@ -500,7 +511,7 @@ def paths(system: Any, copies: Any, y0: np.ndarray, ts: np.ndarray, parts: tuple
                for k in range(1, len(order) + 1)}
     if not all(isinstance(solver, _ChainSolver) for solver in solvers.values()):
         return {p: path(system, y0, ts, p, atol, rtol) for p in order}
-    pieces = getattr(system, "pieces", None)
+    pieces = _rows(system)
     y = np.tile(y0, len(order))
     states = np.full((len(order), size, ts.size), np.nan)
     states[:, :, 0] = y0
@@ -508,14 +519,13 @@ def paths(system: Any, copies: Any, y0: np.ndarray, ts: np.ndarray, parts: tuple
         lengths = [(ts[k] - ts[k - 1]) / p for p in order]
         for i in range(finest):
             count = sum(1 for p in order if i % (finest // p) == 0)
-            h = np.repeat(lengths[:count], size)
-            starts = np.arange(count + 1) * size
             solver = solvers[count]
             if count == 1:
                 found = solver.step(ts[k - 1] + i * lengths[0], y[:size], lengths[0])
             else:
                 assert isinstance(solver, _ChainSolver)
-                found = solver.step_blocks(y[:count * size], h, starts, pieces)
+                found = solver.step_blocks(y[:count * size], np.repeat(lengths[:count], size),
+                                           count, pieces)
             if found is None:
                 return {p: (states[j], False) for j, p in enumerate(order)}
             y[:count * size] = found

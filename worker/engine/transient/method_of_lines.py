@@ -267,6 +267,18 @@ class _Rhs:
             return above
         return np.concatenate((above, np.maximum(cells, self.floor) < self.solubility))
 
+    def pieces_of_copies(self, states: np.ndarray) -> np.ndarray:
+        """:meth:`pieces` of each row of ``states`` (states of copies of this system), as
+        rows."""
+        cells = states[:, : self.n]
+        if not self.any_switched:
+            return cells < self.solubility if self.has_solubility else \
+                np.zeros((states.shape[0], 0), dtype=bool)
+        above = cells > self.floor
+        if not self.has_solubility:
+            return above
+        return np.concatenate((above, np.maximum(cells, self.floor) < self.solubility), axis=1)
+
     def content(self, y: np.ndarray) -> np.ndarray:
         """Conserved content of each state (cells: solute per volume; other states as they
         are)."""
@@ -330,7 +342,14 @@ class _Rhs:
     def newton_terms(self, t: float, y: np.ndarray
                      ) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
         """``(content(y), f(t, y), jacobian_values(t, y), content_slope(y))`` from one
-        evaluation of the dissolved part and the consumption (what a Newton iteration needs)."""
+        evaluation of the dissolved part and the consumption (what a Newton iteration needs;
+        an exact system's through :class:`_StackedTerms` of itself alone, the same
+        arithmetic)."""
+        if self.exact:
+            alone = getattr(self, "_alone", None)
+            if alone is None:
+                alone = self._alone = _StackedTerms([self], np.array([0, self.size]))
+            return alone.newton_terms(y)
         c, dc = self.dissolved(y)
         rate, slope = self._rate(y, c, dc)
         return self.content(y), self._rhs(y, c, rate), self._values(c, dc, slope), \
@@ -607,10 +626,26 @@ class _StackedTerms:
         self.consumed_at = np.concatenate([data_starts[k] + s._consumed_at
                                            for k, s in enumerate(systems)])
         self.faces = [(k, face) for k, s in enumerate(systems) for face in s.compartments]
+        #: whether any cell consumes (else the rate and its slope are zero everywhere: the
+        #: terms they add are left out, the same numbers)
+        self.consumes = self.smooth_reacts or self.any_switched
+        self.scaled_base = self.base_data[self.scaled_at]
+        size = int(offsets[-1])
+        # the diffusion bands as they multiply the cells (fixed views), the states the face
+        # rows and the consumption land in, and one system's cells as a slice of its state
+        self.ab_upper, self.ab_main, self.ab_lower = self.ab[0, 1:], self.ab[1], self.ab[2, :-1]
+        self.out_outer = self.out_inner + 1
+        self.out_consumed = self.out_inner + 2
+        self.cell_slice = slice(0, counts[0]) if len(systems) == 1 and offsets[0] == 0 \
+            else None
+        # the content's slope where no content switches: one, read only (shared by calls)
+        self.unit_slope = np.ones(size)
+        self.unit_slope.flags.writeable = False
 
     def newton_terms(self, y: np.ndarray
                      ) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
-        cells = y[self.cells]
+        at = self.cells if self.cell_slice is None else self.cell_slice
+        cells = y[at]
         c, dc = _dissolved_cells(self, cells)
         if self.smooth_reacts:
             rate = self.first_order * c
@@ -627,20 +662,25 @@ class _StackedTerms:
             rate = rate + self.switched_rate + self.switched_kappa * np.minimum(cells, 0.0)
             slope = slope + self.switched_kappa * (cells <= 0.0)
         # the right-hand side (``_Rhs._rhs``)
-        ab = self.ab
-        applied = ab[1] * c
-        applied[:-1] += ab[0, 1:] * c[1:]
-        applied[1:] += ab[2, :-1] * c[:-1]
+        applied = self.ab_main * c
+        applied[:-1] += self.ab_upper * c[1:]
+        applied[1:] += self.ab_lower * c[:-1]
         out = np.empty_like(y)
-        out[self.cells] = self.source - applied * self.inverse_volumes - rate
+        if self.consumes:
+            out[at] = self.source - applied * self.inverse_volumes - rate
+        else:
+            out[at] = self.source - applied * self.inverse_volumes
         q0 = self.q0_slope * c[self.first_cell] + self.q0_constant
         qn = self.qn_slope * c[self.last_cell] + self.qn_constant
         out[self.out_inner] = -q0
-        out[self.out_inner + 1] = qn
+        out[self.out_outer] = qn
         starts = self.cell_starts
-        for k in range(len(self.systems)):
-            out[self.out_inner[k] + 2] = float(np.dot(self.volumes[starts[k]:starts[k + 1]],
-                                                      rate[starts[k]:starts[k + 1]]))
+        if self.consumes:
+            for k in range(len(self.systems)):
+                out[self.out_inner[k] + 2] = float(np.dot(
+                    self.volumes[starts[k]:starts[k + 1]], rate[starts[k]:starts[k + 1]]))
+        else:
+            out[self.out_consumed] = 0.0
         for k, face in self.faces:
             low = int(self.offsets[k])
             level = y[low + face.state]
@@ -653,18 +693,19 @@ class _StackedTerms:
         # the Jacobian's values (``_Rhs._values``)
         data = self.base_data.copy()
         if self.has_solubility or self.any_switched:
-            data[self.scaled_at] *= dc[self.scaled_cell]
-        data[self.diagonal_at] -= slope
-        data[self.consumed_at] = self.volumes * slope
+            data[self.scaled_at] = self.scaled_base * dc[self.scaled_cell]
+        if self.consumes:
+            data[self.diagonal_at] -= slope
+            data[self.consumed_at] = self.volumes * slope
         # the content and its slope
         if self.any_switched:
             content = y.copy()
-            content[self.cells] = np.maximum(cells, self.floor)
+            content[at] = np.maximum(cells, self.floor)
             content_slope = np.ones_like(y)
-            content_slope[self.cells] = cells > self.floor
+            content_slope[at] = cells > self.floor
         else:
             content = y
-            content_slope = np.ones_like(y)
+            content_slope = self.unit_slope
         return content, out, data, content_slope
 
     def pieces(self, y: np.ndarray) -> np.ndarray:
@@ -957,6 +998,8 @@ def _dissolved_cells(terms: _Rhs | _StackedTerms, cells: np.ndarray
         slope = (cells > terms.floor).astype(float)
     else:
         u = cells
+        if terms.has_solubility:  # the slope is one below the solubility, zero above
+            return np.minimum(u, terms.solubility), (u < terms.solubility).astype(float)
         slope = np.ones(cells.size)
     if not terms.has_solubility:
         return u, slope

@@ -18,6 +18,7 @@ import math
 import numpy as np
 import pytest
 
+from tests.lumen_checks import T1, T2, R, assert_check_and_injection, hill_front, hill_level, within
 from worker.engine.convergence import grid_study
 from worker.engine.lumen import run as flow
 from worker.engine.lumen.graetz import FULLY_DEVELOPED_SH_UNIFORM_FLUX, graetz_series
@@ -346,3 +347,101 @@ def test_a_mesh_the_study_finds_too_coarse_is_refined(monkeypatch):
     monkeypatch.setattr(flow, "MESH_ADAPTATIONS", 0)
     coarse = run_problem(problem)
     assert not coarse.check("convergence.space_r").passed
+
+
+# --- two zero-order layers: the depletion front and its onset ---------------------------------
+# Check values from Hill's front equation for the layered cylinder (A.V. Hill, Proc. R. Soc. B
+# 104 (1928) 39; J. Crank, The Mathematics of Diffusion, 2nd ed., 1975, ch. 14), solved with
+# mpmath in ``tests.lumen_checks.hill_front``; the layers are those of ``_case`` with the wall
+# consuming too (invented values).
+
+def _two_zero_layers(rate: float, flow_rate: float = 1.2e-9,
+                     outer: Boundary | None = None) -> Problem:
+    uptake = Reaction("zero_order", rate=rate)
+    return Problem("cylinder", R, (Layer("wall", T1, 1e-10, 1.0, uptake),
+                                   Layer("cells", T2, 1.5e-9, 1.0, uptake)),
+                   Boundary("flow", flow_rate=flow_rate, inlet=0.2, diffusivity=2e-9),
+                   outer or Boundary("symmetry"), length=0.1)
+
+
+@pytest.mark.parametrize("rate, flow_rate, outer", [
+    (3.0, 1.2e-9, None), (100.0, 1.2e-9, None), (10.0, 0.3e-9, None),
+    (3.0, 1.2e-9, Boundary("mass_transfer", coefficient=1e-6, bulk=0.01)),
+])
+def test_two_zero_order_layers_at_high_uptake_pass_the_wall_law_with_margin(rate, flow_rate,
+                                                                            outer):
+    """The sweep's failing cases (the wall law's table 1.3e-4 to 2.9e-3 from its direct solves
+    before; 2.0e-4 with the outer face fed by a film): every check passes, the table is ten
+    times inside the limit over every wall concentration the lumen reaches, and its flux there
+    is Hill's (the outer face's own front lies beyond a dead zone, so the inner one is that of
+    the inner face alone)."""
+    problem = _two_zero_layers(rate, flow_rate, outer)
+    outcome = run_problem(problem)
+    assert all(c.passed for c in outcome.checks), [c.as_dict() for c in outcome.checks
+                                                   if not c.passed]
+    run = flow.solve_flow(problem)
+    assert run.table.worst_error <= 1e-5
+    reached = [float(np.min(s.wall)) for s in run.by_mesh.values()]
+    assert run.table.low <= min(reached)
+    scale = max(abs(a.wall_flux) for a in run.table.answers)
+    for c in (min(reached), float(run.fine.wall[len(run.fine.wall) // 2]), 0.15):
+        _, flux, _ = hill_front(rate, c)
+        assert_check_and_injection(within(flux, 0.0, 1e-5 * scale), run.table.flux(c)[0],
+                                   0.5)
+
+
+ONSET_RATE = 4e-4
+
+
+ONSET_TOLERANCE = 1e-6
+
+
+@pytest.fixture(scope="module")
+def onset_table():
+    return tabulate(flow.layers_problem(_two_zero_layers(ONSET_RATE)), 0.2, ONSET_TOLERANCE)
+
+
+def test_the_onset_of_depletion_is_a_node_with_an_interpolant_either_side(onset_table):
+    """Where the body first runs dry (Hill's front equation with the front at the outer face)
+    the wall flux has a kink: above it the whole body consumes, Q ((R + T1 + T2)^2 - R^2) /
+    (2 R) at every level; below it the front enters. The table keeps it as a node and is
+    Hill's law on both sides of it."""
+    onset = float(hill_level(ONSET_RATE, R + T1 + T2, 1e-10, 1.5e-9, 1.0, 1.0))
+    table = onset_table
+    assert len(table.breaks) == 1
+    assert table.breaks[0] == pytest.approx(onset, rel=1e-10)
+    assert table.breaks[0] in table.nodes
+    whole = ONSET_RATE * ((R + T1 + T2) ** 2 - R**2) / (2 * R)
+    for c in (onset * (1 + 1e-3), 0.5 * (onset + 0.2)):
+        assert table.flux(c)[0] == pytest.approx(whole, rel=1e-9)
+    for c in (onset * (1 - 1e-3), onset * (1 - 1e-2), 0.5 * onset):
+        _, flux, _ = hill_front(ONSET_RATE, c)
+        assert_check_and_injection(within(flux, 1e-6), table.flux(c)[0], 1e-5)
+
+
+def test_one_interpolant_across_the_onset_shows_in_the_wall_law_check(onset_table):
+    """The same nodes with the break removed (one pchip across the kink, as before) miss the
+    direct solves next to it, and the check fails."""
+    table = onset_table
+    layers = flow.layers_problem(_two_zero_layers(ONSET_RATE))
+    rounded = tabulate(layers, 0.2, ONSET_TOLERANCE, start=dataclasses.replace(table, breaks=()),
+                       max_nodes=len(table.nodes))
+    outcome = Outcome()
+    flow.wall_law_check(outcome, _two_zero_layers(ONSET_RATE), table)
+    flow.wall_law_check(outcome, _two_zero_layers(ONSET_RATE), rounded)
+    assert [c.passed for c in outcome.checks] == [True, False]
+
+
+@pytest.mark.parametrize("sign", [1.0, -1.0])
+def test_a_wrong_node_at_the_onset_fails_the_wall_law_check(onset_table, sign):
+    table = onset_table
+    i = list(table.nodes).index(table.breaks[0])
+    answers = list(table.answers)
+    answers[i] = dataclasses.replace(answers[i],
+                                     wall_flux=answers[i].wall_flux * (1 + sign * 1e-3))
+    layers = flow.layers_problem(_two_zero_layers(ONSET_RATE))
+    spoiled = dataclasses.replace(table, answers=answers)
+    checked = tabulate(layers, 0.2, ONSET_TOLERANCE, start=spoiled, max_nodes=len(table.nodes))
+    outcome = Outcome()
+    flow.wall_law_check(outcome, _two_zero_layers(ONSET_RATE), checked)
+    assert not outcome.checks[-1].passed

@@ -391,6 +391,20 @@ def test_meshes_evaluated_at_once_match_each_alone(reaction):
              for k, s in enumerate(systems)]
     for got, parts in zip(together, zip(*alone, strict=True), strict=True):
         np.testing.assert_array_equal(got, np.concatenate(parts))
+    # and each mesh's terms are those its separate evaluations give (content, right-hand side,
+    # Jacobian values, content slope)
+    for k, s in enumerate(systems):
+        part = y[stack.offsets[k]: stack.offsets[k + 1]]
+        separate = (s.content(part), s(0.0, part), s.jacobian_values(0.0, part),
+                    s.content_slope(part))
+        for got, expected in zip(alone[k], separate, strict=True):
+            np.testing.assert_array_equal(got, expected)
+    # the pieces of copies of one system, as rows, are each copy's own
+    first = systems[0]
+    rows = np.array([np.concatenate((rng.uniform(-0.05, 4.0, first.n), rng.uniform(size=5)))
+                     for _ in range(3)])
+    np.testing.assert_array_equal(first.pieces_of_copies(rows),
+                                  np.array([first.pieces(row) for row in rows]))
     np.testing.assert_array_equal(
         np.sort(stack.stacked.pieces(y).astype(int)),
         np.sort(np.concatenate([s.pieces(y[stack.offsets[k]: stack.offsets[k + 1]])
