@@ -341,15 +341,21 @@ FLOW_TRIAL_CELL_STEP_WORK = 0.15
 #: Where a varied field changes the layers, each trial solves them at the nodes of its own wall
 #: table that its lumen reaches and once more for its minimum: measured 15-19 solves a trial for
 #: the fibre above (vmax varied by 10 % to 30 %), charged ``FLOW_TRIAL_LAYER_SOLVES``. The
-#: batched one-grid finite volumes (Michaelis-Menten) cost about 0.5 work a cell each (measured
-#: 0.11 ms for the fibre's 221 cells, 1.7-2.0 ms a trial in all), charged
-#: ``FLOW_BATCHED_SOLVE_CELL_WORK``; a closed form (linear kinetics) ``CLOSED_FORM_TRIAL_WORK``
-#: (0.55 ms a trial in all for the fibre with first-order cells). Nonlinear layers with a closed
-#: form but no batched route (zero order, a solubility) are solved one at a time
-#: (``wall_table.layer_answer``, measured about 1.5 ms each for the fibre with zero-order
-#: cells: 1.8 ms a trial with the flow rate varied), charged ``FLOW_LAYER_ANSWER_WORK`` each,
-#: and with their layers varied each trial solves about as many as the full check's table
-#: (measured 124 ms a trial), charged ``FLOW_TABLE_SOLVES`` of them.
+#: batched finite volumes (Michaelis-Menten) cost about 0.5 work a cell each on one mesh
+#: (measured 0.11 ms for the fibre's 221 cells, 1.7-2.0 ms a trial in all); they now run on
+#: two meshes, 2 n0 and 4 n0 cells per layer, Richardson-extrapolated
+#: (``lumen.layer_accuracy.accurate_batch``): 10.2 ms a trial in all against 4.3 ms on one
+#: mesh (2,000 trials, vmax varied, load average about 5). Still charged
+#: ``FLOW_BATCHED_SOLVE_CELL_WORK`` per cell of the default mesh as measured on one mesh: the
+#: charge now under-estimates such trials by about 2.4 times, and the full check's table
+#: (each answer two solves) by less; not yet recalibrated. A closed form (linear kinetics)
+#: ``CLOSED_FORM_TRIAL_WORK`` (0.55 ms a trial in all for the fibre with first-order cells).
+#: Nonlinear layers with a closed form but no batched route (zero order, a solubility) are
+#: solved one at a time (``wall_table.layer_answer``, measured about 1.5 ms each for the fibre
+#: with zero-order cells: 1.8 ms a trial with the flow rate varied), charged
+#: ``FLOW_LAYER_ANSWER_WORK`` each, and with their layers varied each trial solves about as
+#: many as the full check's table (measured 124 ms a trial), charged ``FLOW_TABLE_SOLVES`` of
+#: them.
 FLOW_TRIAL_LAYER_SOLVES = 30
 FLOW_BATCHED_SOLVE_CELL_WORK = 0.6
 FLOW_LAYER_ANSWER_WORK = 2000.0

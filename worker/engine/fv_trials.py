@@ -466,18 +466,25 @@ def _fronts(grid: _Grid, c: np.ndarray, active: np.ndarray, achieved: np.ndarray
     return front
 
 
-def _layer_extremes(grid: _Grid, c: np.ndarray) -> tuple[np.ndarray, np.ndarray,
-                                                            np.ndarray, np.ndarray]:
-    """Per trial and layer, the smallest and largest node of the piecewise-linear profile
-    (``fv_mesh.layer_profiles``); and the two face concentrations."""
+def _edge_values(grid: _Grid, c: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Per trial and layer (n, layers), the layer's inner and outer edge values
+    (``fv_mesh.layer_profiles``)."""
     layers = grid.layers
     starts = grid.seg_starts[:, :layers]
     ends = grid.seg_starts[:, 1:]  # one past each layer's last cell = its outer face
     inner_j = _face_flux_density(grid, c, starts.ravel()).reshape(starts.shape)
     outer_j = _face_flux_density(grid, c, ends.ravel()).reshape(ends.shape)
     first, last = starts, ends - 1
-    inner_edge = c[first] + inner_j * grid.west_gaps[first] / grid.d[first]
-    outer_edge = c[last] - outer_j * grid.east_gaps[last] / grid.d[last]
+    return (c[first] + inner_j * grid.west_gaps[first] / grid.d[first],
+            c[last] - outer_j * grid.east_gaps[last] / grid.d[last])
+
+
+def _layer_extremes(grid: _Grid, c: np.ndarray) -> tuple[np.ndarray, np.ndarray,
+                                                            np.ndarray, np.ndarray]:
+    """Per trial and layer, the smallest and largest node of the piecewise-linear profile
+    (``fv_mesh.layer_profiles``); and the two face concentrations."""
+    starts = grid.seg_starts[:, :grid.layers]
+    inner_edge, outer_edge = _edge_values(grid, c)
     values = np.where(grid.real, c, np.nan)
     flat = starts.ravel()
     low = np.fmin.reduceat(values, flat).reshape(starts.shape)
@@ -537,25 +544,59 @@ def solve_trials(view: Problem, n: int) -> TrialFigures:
 
 @dataclass(frozen=True)
 class OneGridFigures:
-    """Figures of n trials each solved on its own default mesh alone (arrays over trials, SI):
-    outward flux densities at the faces, the r^n-weighted consumption, the lowest node of each
-    layer's piecewise-linear profile (n, layers); ``solved`` as in ``TrialFigures``."""
+    """Figures of n trials each solved on one mesh alone (arrays over trials, SI): outward flux
+    densities at the faces, the r^n-weighted consumption, the lowest node of each layer's
+    piecewise-linear profile (n, layers), the lowest concentration of each trial by
+    :func:`_smooth_minimum` (n,); ``solved`` as in ``TrialFigures``."""
 
     flux_inner: np.ndarray
     flux_outer: np.ndarray
     consumption: np.ndarray
     layer_min: np.ndarray
     solved: np.ndarray
+    smooth_min: np.ndarray | None = None
 
 
-def solve_one_grid(view: Problem, n: int) -> OneGridFigures:
-    """n trials of a steady case, each on the one mesh ``fv_steady.solve_fv`` builds for it
-    by default (``fv_mesh.default_cells_per_layer``, no refinement study): the same discrete
-    problem as ``solve_fv`` without ``cells_per_layer``, solved to the same tests, so its
-    figures equal that solve's to its convergence tolerance. ``view`` as for
-    :func:`solve_trials`."""
+def _smooth_minimum(grid: _Grid, c: np.ndarray, inner_edge: np.ndarray,
+                    outer_edge: np.ndarray) -> np.ndarray:
+    """Per trial, the lowest concentration as ``lumen.layer_accuracy.smooth_minimum`` forms it
+    (the same rule, every trial at once): in each layer the lowest of its nodes (inner edge,
+    cell centres, outer edge; the first where several are equal), and where that is a cell
+    centre with cell centres either side, the vertex of the parabola through the three
+    (uniform cells: ``c_k - (c_k+1 - c_k-1)^2 / (8 (c_k+1 - 2 c_k + c_k-1))`` where the
+    curvature is positive); ``inner_edge``, ``outer_edge``: (n, layers), each layer's edge
+    values (:func:`_edge_values`)."""
+    starts = grid.seg_starts[:, :grid.layers].ravel()
+    counts = grid.counts.ravel()
+    cells = np.flatnonzero(grid.real)  # trial by trial, layer by layer, as the segments
+    owner = np.repeat(np.arange(starts.size), counts)
+    centre_min = np.minimum.reduceat(c[cells], np.cumsum(counts) - counts)
+    hits = np.flatnonzero(c[cells] == centre_min[owner])
+    found, first = np.unique(owner[hits], return_index=True)
+    lowest = np.full(starts.size, -1, dtype=np.intp)
+    lowest[found] = cells[hits[first]]
+    k = lowest - starts
+    inner, outer = inner_edge.ravel(), outer_edge.ravel()
+    value = np.minimum(np.minimum(inner, outer), centre_min)
+    rows = np.flatnonzero((lowest >= 0) & (inner > centre_min) & (centre_min <= outer)
+                          & (k >= 1) & (k <= counts - 2))
+    if rows.size:
+        i = lowest[rows]
+        left, middle, right = c[i - 1], c[i], c[i + 1]
+        second = right - 2.0 * middle + left
+        vertex = middle - (right - left) ** 2 / (8.0 * np.where(second > 0.0, second, 1.0))
+        value[rows] = np.where(second > 0.0, np.minimum(middle, vertex), middle)
+    return value.reshape(grid.n, grid.layers).min(axis=1)
+
+
+def solve_one_grid(view: Problem, n: int, cells: np.ndarray | None = None) -> OneGridFigures:
+    """n trials of a steady case, each on one mesh: by default the one ``fv_steady.solve_fv``
+    builds for it (``fv_mesh.default_cells_per_layer``, no refinement study), else ``cells``
+    (n, layers) cells per layer; the same discrete problem as ``solve_fv`` on that mesh,
+    solved to the same tests, so its figures equal that solve's to its convergence tolerance.
+    ``view`` as for :func:`solve_trials`."""
     trials = _Trials(view, n)
-    grid = _Grid(trials, _cells(trials))
+    grid = _Grid(trials, _cells(trials) if cells is None else np.asarray(cells, dtype=np.intp))
     c, active = grid.surrogate(), np.zeros(grid.d.size, dtype=bool)
     with np.errstate(all="ignore"):
         if grid.zero_index.size:
@@ -565,7 +606,9 @@ def solve_one_grid(view: Problem, n: int) -> OneGridFigures:
     figures = _grid_figures(grid, c, _achieved(grid, c, active))
     low, _, _, _ = _layer_extremes(grid, c)
     nan = np.where(solved, 0.0, np.nan)
+    with np.errstate(all="ignore"):
+        smooth = _smooth_minimum(grid, c, *_edge_values(grid, c))
     return OneGridFigures(flux_inner=figures.flux_inner + nan,
                           flux_outer=figures.flux_outer + nan,
                           consumption=figures.consumption + nan,
-                          layer_min=low + nan[:, None], solved=solved)
+                          layer_min=low + nan[:, None], solved=solved, smooth_min=smooth + nan)

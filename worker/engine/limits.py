@@ -71,7 +71,9 @@ TRANSIENT_LIMITS: Mapping[str, float] = {
 #: Check names whose family is not the part before their first dot.
 FAMILY: Mapping[str, str] = {"convergence.space": "gci", "convergence.time": "convergence",
                              # the lumen's studies refined in r and in z (worker.engine.lumen.run)
-                             "convergence.space_r": "gci", "convergence.space_z": "gci"}
+                             "convergence.space_r": "gci", "convergence.space_z": "gci",
+                             # the lumen's layers refined in r (worker.engine.lumen.layer_accuracy)
+                             "convergence.space_layers": "gci"}
 
 __all__ = ["FAMILY", "INPUT_LIMITS", "STEADY_LIMITS", "TRANSIENT_LIMITS", "check_limit", "family",
            "loosened_limits", "regime_defaults", "resolve_limit"]

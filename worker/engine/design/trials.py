@@ -69,10 +69,10 @@ from worker.engine.exact_steady import EdgeForms, system_rows, unknown_columns
 from worker.engine.fv_trials import (
     TrialFigures,
     cells_per_layer_trials,
-    solve_one_grid,
     solve_trials,
 )
 from worker.engine.limits import check_limit
+from worker.engine.lumen.layer_accuracy import accurate_batch
 from worker.engine.lumen.layer_walls import linear_layer_wall
 from worker.engine.lumen.run import (
     MAX_COARSE_CELLS,
@@ -586,9 +586,10 @@ class _FlowTrials:
     them (the nominal table, or one tabulated as the full check tabulates over [0, a larger
     inlet]; a linear body's exact conductance), else per trial (the conductances by the
     batched closed form; tables at the nominal table's nodes by the batched finite volumes on
-    each solve's own default mesh, ``fv_trials.solve_one_grid``, the discrete problem
-    ``layer_walls.solve_layers_at`` solves; layers with a closed form but nonlinear kinetics,
-    zero order or a solubility, trial by trial through ``wall_table.layer_answer``)."""
+    two meshes, Richardson-extrapolated, ``lumen.layer_accuracy.accurate_batch``, the route
+    of ``wall_table.layer_answer`` for every trial at once; layers with a closed form but
+    nonlinear kinetics, zero order or a solubility, trial by trial through
+    ``wall_table.layer_answer``)."""
 
     def __init__(self, problem: Problem, fields: Sequence[FieldRef]):
         self.problem, self.fields = problem, tuple(fields)
@@ -625,18 +626,17 @@ class _FlowTrials:
             finite = np.flatnonzero(np.isfinite(values))
             try:
                 with np.errstate(all="ignore"):
-                    cells = cells_per_layer_trials(view(finite), finite.size).sum(axis=1)
+                    # the finer of accurate_batch's meshes: about twice the default
+                    cells = 2 * cells_per_layer_trials(view(finite), finite.size).sum(axis=1)
             except (ValueError, ArithmeticError):
                 return flux.reshape(rows.size, q), low.reshape(rows.size, q)
             chunk = np.cumsum(cells) // FV_CHUNK_CELLS
             for label in np.unique(chunk):
                 part = finite[chunk == label]
                 try:
-                    figures = solve_one_grid(view(part), part.size)
+                    flux[part], low[part] = accurate_batch(view(part), part.size)
                 except (ValueError, ArithmeticError, np.linalg.LinAlgError):
                     continue
-                flux[part] = figures.flux_inner
-                low[part] = figures.layer_min.min(axis=1)
             return flux.reshape(rows.size, q), low.reshape(rows.size, q)
         return solve
 

@@ -54,7 +54,7 @@ def _check(problem: Problem) -> None:
 
 
 def solve_layers_at(problem: Problem, c_wall: float,
-                    cells_per_layer: int | None = None) -> SteadySolution:
+                    cells_per_layer: tuple[int, ...] | int | None = None) -> SteadySolution:
     """The layers' steady solution with the fluid at the wall at ``c_wall`` (closed form where
     the engine has one, the layered depletion front where zero-order uptake runs out beyond
     it, else finite volumes on ``cells_per_layer``)."""

@@ -9,12 +9,18 @@ node. The coarse mesh has more axial steps for a long tube (``coarse_mesh``), an
 whose study misses its limit has its coarse mesh doubled, at most ``MESH_ADAPTATIONS`` times.
 The wall law is exact for linear kinetics (``layer_walls.linear_layer_wall``) and otherwise the
 layers' steady solve tabulated once over ``[0, inlet]`` (``wall_table``), verified against
-direct solves.
+direct solves; each solve is a closed form or finite volumes on two meshes, Richardson-
+extrapolated (``layer_accuracy``).
 
 Checks (each a function below, so a test can feed it a wrong figure):
 
 * ``convergence.space_r``, ``convergence.space_z``: the grid bands of those quantities (the
   concentrations' over the inlet concentration), each direction refined alone.
+* ``convergence.space_layers`` (layers without a closed form): the layers' radial mesh refined
+  by 2 twice at the lowest wall concentration the lumen reaches (where the body's minimum is)
+  and the highest (``layer_accuracy.study_layer_mesh``); its bands join those of the outlet
+  mixing cup (the wall flux's relative band times the fall along the lumen) and of the body's
+  minimum (the minimum's own band, and the fall's band carried by dmin/dc_w).
 * ``mass_balance``: in - out at the ends = what crossed the wall (the scheme's own sum), and
   what crossed the wall = what the layers consumed + what left their outer face (the layers'
   balance along the lumen, one quadrature for both).
@@ -55,11 +61,18 @@ from worker.engine.lumen.graetz import (
     wall_biot_number,
 )
 from worker.engine.lumen.krogh import krogh_mixing_cup, krogh_tissue_minimum
+from worker.engine.lumen.layer_accuracy import (
+    LayerStudy,
+    flux_band_fraction,
+    layer_mesh_check,
+    study_layer_mesh,
+)
 from worker.engine.lumen.layer_walls import linear_layer_wall
 from worker.engine.lumen.marching import MarchSolution, Tube, march
 from worker.engine.lumen.wall_table import (
     FIRST_PASS_NODES,
     WallTable,
+    answer_of,
     layer_answer,
     tabulate,
 )
@@ -335,8 +348,10 @@ def mass_balance_check(outcome: Outcome, problem: Problem, *, inlet_rate: float,
         f"{outer:.9g} (relative {layers:.3g})")
 
 
-def wall_law_check(outcome: Outcome, problem: Problem, table: WallTable) -> None:
-    """``cross_check.wall_law``: the tabulated layers against direct solves between nodes."""
+def wall_law_check(outcome: Outcome, problem: Problem, table: WallTable, *,
+                   closed_form: bool = False) -> None:
+    """``cross_check.wall_law``: the tabulated layers against direct solves between nodes
+    (``closed_form``: the layers' solves are a closed form, said in the detail)."""
     shown = [f"{c:.4g}" for c, _ in table.verified[:SHOWN_POINTS]]
     more = len(table.verified) - len(shown)
     points = ", ".join(shown) + (f" and {more} more" if more > 0 else "")
@@ -347,7 +362,33 @@ def wall_law_check(outcome: Outcome, problem: Problem, table: WallTable) -> None
         f"[{table.low:.6g}, {table.top:.6g}] (the wall concentrations the lumen reaches) "
         f"against direct steady solves at {points}; largest difference of the wall flux, the "
         "consumption and the outer-face rate, relative to the largest flux (rate through the "
-        "wall)")
+        "wall)" + ("; the layers have a closed form at every wall concentration: their answer "
+                   "carries no mesh error and their radial mesh needs no study" if closed_form
+                   else ""))
+
+
+def layer_studies(run: FlowRun, layers: Problem) -> list[LayerStudy]:
+    """The studies of the layers' radial mesh (``convergence.space_layers``) at the wall
+    concentration of the body's minimum on the finest mesh (:func:`_minimum_of`'s) and at the
+    highest the lumen reaches; empty where the layers have a closed form."""
+    fine = run.fine
+    lowest = float(fine.wall[int(np.argmin(np.asarray(run.table.minimum(fine.wall))))])
+    studies = []
+    for c_wall in dict.fromkeys((lowest, float(np.max(fine.wall)))):
+        study = study_layer_mesh(layers, c_wall, answer_of)
+        if study is None:
+            return []
+        studies.append(study)
+    return studies
+
+
+def _minimum_slope(table: WallTable, c_wall: float) -> float:
+    """|d minimum / d c_w| of the table at ``c_wall`` (a central difference)."""
+    h = 1e-4 * max(table.top, 1e-300)
+    low, high = max(c_wall - h, 0.0), min(c_wall + h, table.top)
+    if high <= low:
+        return 0.0
+    return abs(float(table.minimum(high)) - float(table.minimum(low))) / (high - low)
 
 
 def _series_for(independent: Problem) -> tuple[GraetzSeries, float, float]:
@@ -525,12 +566,21 @@ def run_flow(problem: Problem, independent: Problem | None = None,
                        outlet_rate=fine.outlet_rate, through_scheme=float(fine.through_wall[-1]),
                        through_wall_law=_trapezoid(wall_rate, fine.position),
                        consumed=consumed, outer=outer)
-    wall_law_check(outcome, problem, run.table)
+    studied = layer_studies(run, layers)
+    wall_law_check(outcome, problem, run.table, closed_form=not studied)
 
     z_star = float(tube.z_star(tube.length))
     pe = peclet_number(tube.radius, tube.flow_rate, tube.diffusivity)
     outlet = float(fine.mixing_cup[-1])
-    fall_band = bands["outlet_mixing_cup"]
+    # the layers' mesh: a relative error of the wall flux shifts what crosses the wall, and so
+    # the fall along the lumen, by about as much (the wall concentration moves to oppose it)
+    layer_fall_band = 0.0
+    if studied:
+        layer_mesh_check(outcome, problem, studied,
+                         flux_scale=max(abs(a.wall_flux) for a in run.table.answers),
+                         radius=tube.radius, inlet=tube.inlet)
+        layer_fall_band = flux_band_fraction(studied) * abs(tube.inlet - float(fine.mixing_cup[-1]))
+    fall_band = bands["outlet_mixing_cup"] + layer_fall_band
     fall_relative = fall_band / max(abs(tube.inlet - outlet), 1e-300)
     driving, sherwood = _outlet_sherwood(run)
     methods = [{"role": "primary", "name": "lumen marching (finite volumes in r, extrapolated "
@@ -590,8 +640,13 @@ def run_flow(problem: Problem, independent: Problem | None = None,
 
     value, r_min, z_min, along = _body_minimum(run, layers)
     outcome.add_quantity("outlet_concentration", outlet, conc, uncertainty=fall_band)
-    outcome.add_quantity("concentration_min", value, conc,
-                         uncertainty=bands["concentration_min"])
+    minimum_band = bands["concentration_min"]
+    if studied:
+        low_study = studied[0]
+        in_layers = r_min >= tube.radius
+        minimum_band += (low_study.band("minimum") if in_layers else 0.0) + layer_fall_band * (
+            _minimum_slope(run.table, low_study.c_wall) if in_layers else 1.0)
+    outcome.add_quantity("concentration_min", value, conc, uncertainty=minimum_band)
     outcome.quantities["concentration_min_position"] = {"value": [r_min, z_min], "unit": "m",
                                                         "r": r_min, "z": z_min}
     outcome.add_quantity("peclet", pe, "1")

@@ -37,11 +37,11 @@ from scipy.interpolate import PchipInterpolator
 from worker.engine.depletion_layers import depletion_onset
 from worker.engine.extremes import layer_extremes, true_extreme
 from worker.engine.lumen.inputs import LumenInputError
-from worker.engine.lumen.layer_walls import solve_layers_at
+from worker.engine.lumen.layer_accuracy import accurate_answer
 from worker.engine.lumen.marching import FunctionWall
-from worker.engine.model import Problem
+from worker.engine.model import Problem, SteadySolution
 
-__all__ = ["LayerAnswer", "WallTable", "layer_answer", "tabulate"]
+__all__ = ["LayerAnswer", "WallTable", "answer_of", "layer_answer", "tabulate"]
 
 #: Nodes of the first table, and the most the table may grow to.
 FIRST_NODES = 17
@@ -79,8 +79,16 @@ class LayerAnswer:
 
 
 def layer_answer(problem: Problem, c_wall: float) -> LayerAnswer:
-    """One direct steady solve of the layers with the fluid at the wall at ``c_wall``."""
-    solution = solve_layers_at(problem, c_wall)
+    """The layers' steady answer with the fluid at the wall at ``c_wall``, as accurate as the
+    table must be: a closed form where the engine has one, else finite volumes on two meshes,
+    Richardson-extrapolated (``layer_accuracy.accurate_answer``). Every direct solve of the
+    lumen's layers (the table's nodes and its verification, the body's minimum, a trial
+    model's layers) goes through here."""
+    return accurate_answer(problem, c_wall, answer_of)
+
+
+def answer_of(problem: Problem, solution: SteadySolution) -> LayerAnswer:
+    """The figures of one steady solution of the layers (``problem``)."""
     edges = problem.edges
     positions, sampled = [], []
     for index in range(len(problem.layers)):

@@ -141,25 +141,23 @@ def test_a_trial_whose_layers_did_not_solve_gets_nan_and_the_others_their_law():
 def test_a_trial_the_batch_leaves_unsolved_is_solved_alone(monkeypatch):
     """One trial's layers fail at one node in the batched finite volumes: that trial alone is
     solved by the full primary solve (``flow_figures``), the others stay batched."""
-    import dataclasses
-
     from worker.engine.design import trials as design_trials
 
-    original_solve, original_one = design_trials.solve_one_grid, design_trials._flow_one
+    original_solve, original_one = design_trials.accurate_batch, design_trials._flow_one
     alone = []
 
     def failing(view, n):
-        figures = original_solve(view, n)
-        flux = figures.flux_inner.copy()
+        flux, low = original_solve(view, n)
+        flux = flux.copy()
         if not alone:  # the first pair of the first call: trial 0 at its first node
             flux[0] = np.nan
-        return dataclasses.replace(figures, flux_inner=flux)
+        return flux, low
 
     def one(problem, targets):
         alone.append(problem)
         return original_one(problem, targets)
 
-    monkeypatch.setattr(design_trials, "solve_one_grid", failing)
+    monkeypatch.setattr(design_trials, "accurate_batch", failing)
     monkeypatch.setattr(design_trials, "_flow_one", one)
     model = _model(MM, ["layers[1].reaction.vmax"])
     y = model(np.array([[1.8e-3], [2.2e-3]]))
