@@ -169,7 +169,11 @@ def _fipy(problem: Problem, lumen_cells: int, n_z: int) -> FipyRun:
         slope.setValue(vmax * km / (km + value) ** 2)
         rest.setValue(vmax * value / (km + value) - np.asarray(slope.value) * value)
         previous = np.array(c.value)
-        equation.solve(var=c, solver=solver)
+        # FiPy's upwind weights divide each face's convection by its diffusion: on the faces
+        # with neither (axial faces outside the lumen) that is 0/0, a NaN that only selects the
+        # weight of a zero velocity, so numpy's warning about it is silenced here alone.
+        with np.errstate(divide="ignore", invalid="ignore"):
+            equation.solve(var=c, solver=solver)
         if not vmax.any() or np.max(np.abs(c.value - previous)) <= NEWTON_TOLERANCE * face.inlet:
             break
     field = np.asarray(c.value).reshape(n_z, dx.size)
