@@ -16,6 +16,7 @@ import pytest
 from schemas import CaseError, validate_case
 from schemas.checking import check_case
 from schemas.result import validate_result
+from worker.engine.cost import DEFAULT_BUDGETS
 
 #: An invented hollow fibre: a 100 um lumen, a porous wall and a layer of cells with
 #: Michaelis-Menten uptake, perfused at 0.072 mL/min over 10 cm.
@@ -197,8 +198,11 @@ def test_monte_carlo_on_the_fibre_completes_and_its_trials_agree_with_full_check
         small_blocks, field):
     """An uncertain flow rate (the lumen alone) and an uncertain vmax of the cells (each
     trial's own wall table): the trials run batched, every trial solves, and the full checks
-    of the verification subset agree with them (``uncertainty.trial_model``)."""
-    record = check_case(_uncertain(field))
+    of the verification subset agree with them (``uncertainty.trial_model``). The vmax run's
+    two default blocks are charged over the default budget (``worker.engine.cost``,
+    ``FLOW_BATCHED_SOLVE_CELL_WORK``), so it runs as a service with its budgets doubled would."""
+    budgets = DEFAULT_BUDGETS.scaled(2.0) if "vmax" in field else DEFAULT_BUDGETS
+    record = check_case(_uncertain(field), budgets=budgets)
     validate_result(copy.deepcopy(record))
     block = record["uncertainty"]
     assert "batched lumen march" in block["method"]
@@ -235,10 +239,15 @@ def test_an_error_in_the_flow_trials_fails_the_trial_model_check(monkeypatch, sm
 
 def test_monte_carlo_on_a_flow_case_beyond_its_budget_is_refused_with_the_trials_that_fit():
     """A million trials (the default) of the batched lumen march exceed the work budget: the
-    error names ``uncertainty.max_trials`` and how many trials fit."""
-    errors = _errors(_uncertain("layers[1].reaction.vmax", max_trials=1_000_000))
+    error names ``uncertainty.max_trials`` and how many trials fit; with the cells' vmax
+    varied even the two blocks the adaptive run needs do not fit, and the advice names the law
+    of propagation."""
+    errors = _errors(_uncertain("inner_boundary.flow_rate", max_trials=1_000_000))
     assert "uncertainty.max_trials" in errors
     assert "ask for at most" in errors["uncertainty.max_trials"]
+    errors = _errors(_uncertain("layers[1].reaction.vmax", max_trials=1_000_000))
+    assert "fewer than the 20000" in errors["uncertainty.max_trials"]
+    assert "law_of_propagation" in errors["uncertainty.max_trials"]
 
 
 def test_a_flow_monte_carlo_without_requirements_follows_the_flow_figures(small_blocks):
