@@ -26,11 +26,11 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from worker.engine.design.agreement import model_disagreement
 from worker.engine.design.calibration import CalibrationResult, FitParameter, calibrate
 from worker.engine.design.paths import FieldRef, value_of
 from worker.engine.design.request import DesignRequest
 from worker.engine.design.requirements import read_figure
-from worker.engine.design.runner import model_disagreement
 from worker.engine.design.short_time import short_time_diffusivity
 from worker.engine.design.targets import Target
 from worker.engine.design.trials import TrialModel

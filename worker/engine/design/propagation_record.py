@@ -14,6 +14,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from worker.engine.design.agreement import AGREEMENT_FLOOR, model_disagreement
 from worker.engine.design.monte_carlo import Bound
 from worker.engine.design.propagation_law import REFERENCE, Propagation, requirement_summary
 from worker.engine.design.request import LAW_OF_PROPAGATION, UncertaintyRequest
@@ -24,8 +25,6 @@ __all__ = ["PointCheck", "propagation_block", "verification_block"]
 #: The numerical uncertainty of a figure counts as small against its combined standard
 #: uncertainty at this fraction or below (the Monte Carlo's rule, ``runner.SMALL_AGAINST_SPREAD``).
 SMALL_AGAINST_SPREAD = 0.1
-#: Agreement floor of the trial model with the full check (``runner.AGREEMENT_FLOOR``).
-AGREEMENT_FLOOR = 1e-9
 
 ASSUMPTIONS = (
     "first order: the figure is taken as linear in each input over x ± u (the second-order "
@@ -61,15 +60,6 @@ def _finite(value) -> float | None:
     return number if math.isfinite(number) else None
 
 
-def _disagreement(fast: float, value: float | None, band: float | None) -> float:
-    """|fast − full| over the full check's numerical uncertainty (at least
-    ``AGREEMENT_FLOOR`` of the value): ≤ 1 agrees; a figure one gives and not the other: ∞."""
-    if value is None or not math.isfinite(value):
-        return 0.0 if not math.isfinite(fast) else math.inf
-    if not math.isfinite(fast):
-        return math.inf
-    allowed = max(band or 0.0, AGREEMENT_FLOOR * abs(value), 1e-300)
-    return abs(fast - value) / allowed
 
 
 def verification_block(rows: Sequence[PointCheck], names: Sequence[str],
@@ -90,7 +80,7 @@ def verification_block(rows: Sequence[PointCheck], names: Sequence[str],
                 if spread > 0.0 and math.isfinite(spread):  # a figure the inputs do not move
                     worst_ratio = max(worst_ratio, band / spread)  # has nothing to resolve
             if row.fast is not None:
-                off = _disagreement(row.fast[j], row.full[j], band)
+                off = model_disagreement(row.fast[j], row.full[j], band)
                 if off > worst_model:
                     worst_model, worst_where = off, f"{name} at {row.label}"
     failed = [row.label for row in rows if row.verdict != "pass"]

@@ -26,6 +26,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from worker.engine.design.agreement import AGREEMENT_FLOOR, model_disagreement
 from worker.engine.design.limit_search import find_limit
 from worker.engine.design.monte_carlo import (
     BlockResult,
@@ -93,23 +94,6 @@ HISTOGRAM_BINS = 30
 SOBOL_POINTS = {"batched closed form": 1024, "batched finite volumes": 256,
                 "batched lumen march": 256}
 SOBOL_POINTS_ONE_BY_ONE = 64
-
-
-#: The fast solve agrees with the full check when within the figure's numerical uncertainty,
-#: or this fraction of the figure's size where the full check states none finer.
-AGREEMENT_FLOOR = 1e-9
-
-
-def model_disagreement(fast: float, value: float | None, band: float | None) -> float:
-    """|fast − value| over what agreement allows: the full check's numerical uncertainty of the
-    figure, at least ``AGREEMENT_FLOOR`` of its size (≤ 1: they agree). A figure one gives and
-    the other does not disagrees (infinity); neither giving it agrees (0)."""
-    if value is None or not math.isfinite(value):
-        return 0.0 if not math.isfinite(fast) else math.inf
-    if not math.isfinite(fast):
-        return math.inf
-    allowed = max(band or 0.0, AGREEMENT_FLOOR * abs(value), 1e-300)
-    return abs(fast - value) / allowed
 
 
 @dataclass(frozen=True)
