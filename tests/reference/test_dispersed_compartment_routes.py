@@ -120,8 +120,9 @@ def test_a_wrong_fluid_volume_in_either_route_fails_the_comparison(monkeypatch, 
 def test_right_after_the_front_leaves_the_face_the_face_rate_is_not_resolved():
     """Why the route is held back: a coating at 40 times its solubility and partition 10,
     first reported at 6 h, where the front has crossed a few cells: the two routes' face
-    rates part beyond their grid bands there (each route against its own mesh four times
-    finer was measured off by more than its band |fine - medium|)."""
+    rates part beyond their grid bands there (on the demo coating each route against its own
+    mesh four times finer was off by more than its band |fine - medium|: figures in
+    ``run.GALERKIN_BEHIND_SATURATING_COMPARTMENT``'s comment)."""
     times = tuple(DAY * t for t in (0.25, 1.0, 2.0, 5.0, 10.0, 20.0, 30.0))
     problem = Problem("slab", 0.0, (Layer("coating", 2e-5, 1.03 * 4e-15, 10.0, initial=160.0,
                                           solubility=4.0),),
