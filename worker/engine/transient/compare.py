@@ -11,7 +11,9 @@ independent routes and the usable times (the worst named in its detail):
   body): released / own load, or the released amounts against the amount scale;
 * ``cross_check.remaining``, ``cross_check.consumed``: the amounts held and consumed;
 * ``cross_check.flux_inner``/``flux_outer``: face rates against the largest face rate (at least
-  the rate that would move the amount scale over the duration);
+  the rate that would move the amount scale over the duration); where a dissolution front
+  moves, each numerical route's fine-mesh rate, the difference counted beyond both routes'
+  grid bands |fine - medium| (the band of the fine value, not of a Richardson value);
 * ``cross_check.profile``: the reported profile (final time), every point, against the
   concentration scale; ``cross_check.probes``: the probe rows at every requested time; for a
   numerical route the difference counts beyond its pointwise grid band (|fine - medium|, the
@@ -179,12 +181,20 @@ def _flux_offers(offer, problem: Problem, primary: Route, other: Route, internal
         b = weight * other.amounts[f"flux_{side}"]
         beyond = ""
         if problem.can_saturate:
-            # a dissolution front makes a face rate step each time it leaves a cell: the
-            # difference counts beyond both routes' grid bands, as for the profile
+            # a dissolution front makes a face rate step each time it leaves a cell, so the
+            # meshes are not in their asymptotic range and a Richardson value can lie farther
+            # from the truth than the fine mesh's: each numerical route's fine-mesh rate is
+            # compared, and the difference counts beyond both routes' grid bands, the bands of
+            # those fine values (Roache 1994), as for the profile
+            a = weight * primary.flux_fine.get(side, primary.amounts[f"flux_{side}"])
+            b = weight * other.flux_fine.get(side, other.amounts[f"flux_{side}"])
             bands = [weight * route.flux_band.get(side, np.zeros(internal.size))
                      for route in (primary, other)]
             b = b + np.clip(a - b, -(bands[0] + bands[1]), bands[0] + bands[1])
-            beyond = " beyond the routes' grid bands (a dissolution front crosses cells)"
+            terms = "; ".join(dict.fromkeys(route.flux_band_terms for route in (primary, other)
+                                            if route.flux_band))
+            beyond = (" (each numerical route's fine mesh) beyond the routes' bands ("
+                      f"{terms}; a dissolution front crosses cells)")
         errors = np.where(usable, relative_errors(a, b, scale), np.nan)
         value, at = worst(errors, internal)
         offer(f"cross_check.flux_{side}", value,

@@ -93,3 +93,8 @@ class Route:
     #: Per face (``"inner"``/``"outer"``), the grid band |fine - medium| of a numerical route's
     #: face flux density at the internal times (empty for an exact route).
     flux_band: dict[str, np.ndarray] = field(default_factory=dict)
+    #: Per face, the fine mesh's own face flux density at the internal times, the value that
+    #: ``flux_band`` bands (empty for an exact route, whose ``amounts`` carry its fluxes).
+    flux_fine: dict[str, np.ndarray] = field(default_factory=dict)
+    #: What ``flux_band`` holds, for the check's detail.
+    flux_band_terms: str = "grid band |fine - medium|"
