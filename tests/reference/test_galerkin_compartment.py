@@ -216,7 +216,10 @@ def test_loaded_coating_behind_a_compartment_agrees_with_the_method_of_lines():
     assert np.max(np.abs(found.compartments["outer"] - level)) < 2e-3 * np.max(level)
     outcome = run_transient(problem)
     assert any("not run for a layer that can saturate behind a compartment" in w
+               and "no cross_check.front_position or cross_check.time_depleted" in w
                for w in outcome.warnings)
+    assert outcome.check("cross_check.front_position") is None
+    assert outcome.check("cross_check.time_depleted") is None
 
 
 @pytest.mark.parametrize("factor", [1.01, 0.99])

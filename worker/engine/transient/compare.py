@@ -24,10 +24,11 @@ independent routes and the usable times (the worst named in its detail):
   concentration scale, beyond the grid bands at the two minima as for the profile;
 * ``cross_check.time_to_steady`` (:func:`compare_steady_times`): relative to the primary's.
 * ``cross_check.front_position`` (:func:`compare_fronts`): each loaded layer's undissolved
-  region, its outer and inner edge at every internal time where both routes still hold
-  undissolved solute there, the difference as a fraction of the layer's thickness;
-  ``cross_check.time_depleted``: when each layer's undissolved solute ran out, relative to the
-  primary's (ran out in one route only fails).
+  region, its outer and inner edge at every internal time where both routes give it, the
+  difference beyond both routes' grid bands as a fraction of the layer's thickness;
+  ``cross_check.time_depleted``: when each layer's undissolved solute ran out, beyond both
+  bands, relative to the primary's (ran out in one route only fails). Each band counts at most
+  half the check's limit, so together they never forgive more than the limit itself.
 
 Errors are ``|a - b| / max(|b|, CROSS_CHECK_FLOOR * scale)`` (:func:`scales.relative_errors`).
 """
@@ -360,10 +361,13 @@ def compare_fronts(outcome: Outcome, problem: Problem, primary: Route, others: l
                    internal: np.ndarray) -> None:
     """``cross_check.front_position`` and ``cross_check.time_depleted`` of every route that
     gives fronts (:class:`~worker.engine.transient.solution.FrontAccount`) against the
-    primary's; nothing where the primary or no other route gives them."""
+    primary's, each difference less both accounts' grid bands (each at most half the limit;
+    a NaN band counts as none); nothing where the primary or no other route gives them."""
     mine = primary.fronts
     if mine is None:
         return
+    front_cap = 0.5 * check_limit(problem, "cross_check.front_position")
+    time_cap = 0.5 * check_limit(problem, "cross_check.time_depleted")
     checks: dict[str, _Worst] = {}
 
     def offer(name: str, value: float, detail: str) -> None:
@@ -389,12 +393,17 @@ def compare_fronts(outcome: Outcome, problem: Problem, primary: Route, others: l
                 both = np.isfinite(a) & np.isfinite(b) & (internal > 0.0)
                 if not np.any(both):
                     continue
-                errors = np.where(both, np.abs(a - b) / thickness, np.nan)
+                band = (_front_band(getattr(mine, f"band_{side}"), column, a.size,
+                                    front_cap * thickness)
+                        + _front_band(getattr(theirs, f"band_{side}"), at, a.size,
+                                      front_cap * thickness))
+                gap = np.maximum(np.abs(a - b) - band, 0.0)
+                errors = np.where(both, gap / thickness, np.nan)
                 value, when = worst(errors, internal)
                 offer("cross_check.front_position", value,
                       f"{label}: {side} edge of the undissolved region of layer {name!r} at "
-                      f"{int(np.sum(both))} times, worst at t = {when} s, as a fraction of "
-                      f"its thickness {thickness:.6g} m")
+                      f"{int(np.sum(both))} times, beyond both routes' grid bands, worst at "
+                      f"t = {when} s, as a fraction of its thickness {thickness:.6g} m")
             t_a, t_b = mine.time_depleted[column], theirs.time_depleted[at]
             if t_a is None and t_b is None:
                 continue
@@ -403,8 +412,23 @@ def compare_fronts(outcome: Outcome, problem: Problem, primary: Route, others: l
                       f"{label}: the undissolved solute of layer {name!r} runs out within the "
                       f"duration in one route only ({t_a} s vs {t_b} s)")
                 continue
-            offer("cross_check.time_depleted", abs(t_a - t_b) / max(abs(t_a), 1e-300),
+            cap = time_cap * abs(t_a)
+            band = sum(min(found[i], cap) for found, i in ((mine.band_depleted, column),
+                                                          (theirs.band_depleted, at))
+                       if found is not None and math.isfinite(found[i]))
+            offer("cross_check.time_depleted",
+                  max(abs(t_a - t_b) - band, 0.0) / max(abs(t_a), 1e-300),
                   f"{label}: layer {name!r} runs out of undissolved solute at {t_a:.9g} s vs "
-                  f"{t_b:.9g} s, relative")
+                  f"{t_b:.9g} s (bands {band:.3g} s together), the difference beyond the "
+                  "bands relative to the first")
     for name, found in checks.items():
         found.report(outcome, problem, name)
+
+
+def _front_band(bands: np.ndarray | None, column: int, size: int, cap: float) -> np.ndarray:
+    """One account's band of one layer's edge at each internal time, at most ``cap`` (zero for
+    an exact account or where the band is not finite)."""
+    if bands is None:
+        return np.zeros(size)
+    found = np.asarray(bands[:, column], dtype=float)
+    return np.minimum(np.where(np.isfinite(found), found, 0.0), cap)

@@ -141,7 +141,11 @@ def add_dispersed(outcome: Outcome, problem: Problem, fvs: list, requested_index
     """``series.front_position`` (and ``front_position_inner`` where an inner edge moved),
     ``quantities.time_depleted`` and ``time_depleted_layers`` of a case loaded above
     solubility, from the three meshes (fine values, uncertainty |fine - medium|; observed
-    orders in the diagnostics)."""
+    orders in the diagnostics). The method of lines' front account compared with the Galerkin
+    route's (``routes.fv_fronts``: ``cross_check.front_position``, ``time_depleted``) reads
+    the same meshes the same way and holds their best estimate with the band |best - fine| +
+    |fine - medium|, so these fine values lie inside its band. The reported front is the
+    account's outer edge where it moved, else its inner one."""
     layers = loaded_layers(problem)
     if not layers or any(f.contents is None or f.history is None for f in fvs):
         return

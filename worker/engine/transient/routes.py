@@ -13,7 +13,9 @@ the internal times, its own initial load, its profile at any internal time and i
 
 Each numerical route also gives its fine mesh's face rates with their band |fine - medium|
 (compared where a dissolution front moves); behind a compartment the method of lines' band
-also holds its time error (:func:`add_flux_time_band`).
+also holds its time error (:func:`add_flux_time_band`). Where a layer is loaded above its
+solubility, each numerical route gives its front account from its own three meshes
+(:func:`galerkin_fronts`, :func:`fv_fronts`, both through :func:`front_account`).
 """
 
 from __future__ import annotations
@@ -25,7 +27,7 @@ import numpy as np
 from worker.engine import convergence
 from worker.engine.model import Problem
 from worker.engine.outcome import Outcome
-from worker.engine.transient import method_of_lines
+from worker.engine.transient import dispersed, method_of_lines
 from worker.engine.transient.exact_series import TransientSeriesSolution
 from worker.engine.transient.galerkin import GalerkinStudy, TransientGalerkinSolution
 from worker.engine.transient.laplace import TransientLaplaceSolution, solve_transient_laplace
@@ -38,8 +40,9 @@ LAPLACE_EVENT_SCAN_POINTS = 48
 #: Release levels of the events.
 EVENT_LEVELS = (("t50", 0.5), ("t90", 0.9))
 
-__all__ = ["EVENT_LEVELS", "add_flux_time_band", "fv_route", "galerkin_compartments",
-           "galerkin_fronts", "galerkin_route", "laplace_route", "series_route"]
+__all__ = ["EVENT_LEVELS", "add_flux_time_band", "front_account", "fv_fronts", "fv_route",
+           "galerkin_compartments", "galerkin_fronts", "galerkin_route", "laplace_route",
+           "series_route"]
 
 
 def _events(outcome: Outcome, key: str) -> dict[str, float | None]:
@@ -271,26 +274,68 @@ def _extrapolated(per_mesh: list[float | None], sizes: list[float]) -> float | N
 
 
 def galerkin_fronts(study: GalerkinStudy) -> FrontAccount | None:
-    """The Galerkin route's fronts and depletion times: per time and loaded layer, extrapolated
-    over the three meshes where they converge monotonically, else the fine mesh's (None where
-    no layer starts above its solubility)."""
+    """The Galerkin route's fronts and depletion times on its three meshes
+    (:func:`front_account`); None where no layer starts above its solubility."""
     fine = study.fine
     if not fine.loaded_layers or fine.front_outer is None or fine.front_inner is None:
         return None
     meshes = list(reversed(study.solutions))  # fine, medium, coarse
-    sizes = [float(sum(s.mesh.elements_per_layer)) for s in meshes]
-    shape = fine.front_outer.shape
-    edges: dict[str, np.ndarray] = {}
-    for side in ("front_outer", "front_inner"):
+    return front_account(list(fine.loaded_layers),
+                         [np.asarray(s.front_outer, dtype=float) for s in meshes],
+                         [np.asarray(s.front_inner, dtype=float) for s in meshes],
+                         [list(s.time_depleted_layers) for s in meshes],
+                         [float(sum(s.mesh.elements_per_layer)) for s in meshes])
+
+
+def fv_fronts(problem: Problem, fvs: list[TransientFVSolution]) -> FrontAccount | None:
+    """The method of lines' fronts and depletion times on its three meshes (``fvs``: coarse,
+    medium, fine), each mesh's read by ``dispersed.front_positions`` (at the internal times)
+    and ``dispersed.depletion_times`` (on its accepted steps), through :func:`front_account`;
+    None where no layer starts above its solubility or a mesh kept no contents. An edge that
+    has not moved is NaN here (the Galerkin account places it at the layer's edge): compared
+    only where both routes give it."""
+    layers = dispersed.loaded_layers(problem)
+    if not layers or any(f.contents is None or f.history is None for f in fvs):
+        return None
+    meshes = list(reversed(fvs))  # fine, medium, coarse
+    edges = [dispersed.front_positions(f.mesh, problem, np.asarray(f.contents))
+             for f in meshes]
+    depleted = [dispersed.depletion_times(f.mesh, problem, f.history.ts, f.history.contents)
+                for f in meshes]
+    return front_account(layers, [e[0] for e in edges], [e[1] for e in edges], depleted,
+                         [float(sum(f.diagnostics["cells_per_layer"])) for f in meshes])
+
+
+def front_account(layers: list[int], outer: list[np.ndarray], inner: list[np.ndarray],
+                  depleted: list[list[float | None]], sizes: list[float]) -> FrontAccount:
+    """A numerical route's :class:`FrontAccount` from its fine, medium and coarse mesh (in that
+    order; ``sizes`` their element or cell counts): per time and loaded layer each edge, and
+    per layer the depletion time, extrapolated where the three meshes converge monotonically,
+    else the fine mesh's (:func:`_extrapolated`; Celik et al., J. Fluids Eng. 130 (2008)
+    078001), with the band |best - fine| + |fine - medium| (the fine mesh's GCI at ratio 2 and
+    formal order 2 with Roache's safety factor 3, widened by the step to the best estimate)."""
+    edges: dict[str, tuple[np.ndarray, np.ndarray]] = {}
+    for side, per_mesh in (("outer", outer), ("inner", inner)):
+        shape = per_mesh[0].shape
         values = np.full(shape, np.nan)
+        bands = np.full(shape, np.nan)
         for k in range(shape[0]):
             for j in range(shape[1]):
-                per_mesh = [float(getattr(s, side)[k, j]) for s in meshes]
-                found = _extrapolated([v if math.isfinite(v) else None for v in per_mesh],
-                                      sizes)
-                values[k, j] = math.nan if found is None else found
-        edges[side] = values
-    depleted = [_extrapolated([s.time_depleted_layers[j] for s in meshes], sizes)
-                for j in range(len(fine.loaded_layers))]
-    return FrontAccount(list(fine.loaded_layers), edges["front_outer"], edges["front_inner"],
-                        depleted)
+                triple = [float(m[k, j]) for m in per_mesh]
+                found = _extrapolated([v if math.isfinite(v) else None for v in triple], sizes)
+                if found is None:
+                    continue
+                values[k, j] = found
+                bands[k, j] = abs(found - triple[0]) + abs(triple[0] - triple[1])
+        edges[side] = values, bands
+    times: list[float | None] = []
+    time_bands: list[float] = []
+    for j in range(len(layers)):
+        triple_t = [mesh[j] for mesh in depleted]
+        found = _extrapolated(triple_t, sizes)
+        times.append(found)
+        fine, medium = triple_t[0], triple_t[1]
+        time_bands.append(math.nan if found is None or fine is None or medium is None
+                          else abs(found - fine) + abs(fine - medium))
+    return FrontAccount(list(layers), edges["outer"][0], edges["inner"][0], times,
+                        edges["outer"][1], edges["inner"][1], time_bands)

@@ -43,6 +43,7 @@ from worker.engine.transient.record import (
 )
 from worker.engine.transient.routes import (
     add_flux_time_band,
+    fv_fronts,
     fv_route,
     galerkin_route,
     laplace_route,
@@ -132,7 +133,10 @@ def run_transient(problem: Problem, independent: Problem | None = None) -> Outco
         outcome.warnings.append(
             "the Galerkin second discretisation is not run for a layer that can saturate "
             "behind a compartment face: this case is checked by space and time refinement and "
-            "mass balance")
+            "mass balance"
+            + (" (no cross_check.front_position or cross_check.time_depleted: the fronts and "
+               "depletion times have no second route)"
+               if dispersed.loaded_layers(problem) else ""))
     elif not exact_primary:
         study = galerkin_study(independent, internal, end=duration)
     fine, coarse = fvs[2], fvs[0]
@@ -160,6 +164,7 @@ def run_transient(problem: Problem, independent: Problem | None = None) -> Outco
         add_events(outcome, lines_problem, series, scan, fvs, duration)
     routes = [fv_route(fv_name, fine, numerical, internal, outcome, medium=fvs[1])]
     routes[0].compartments = extrapolated_compartments(fvs, internal)
+    routes[0].fronts = fv_fronts(lines_problem, fvs)
     if study is not None and compartments and problem.can_saturate:
         # the face rate behind a compartment falls towards zero where the fluid nears its
         # equilibrium or the solubility: there the step error sets it (compare._flux_offers)
@@ -391,7 +396,9 @@ def _annotate(outcome: Outcome, routes: list[Route], last: int) -> None:
         "remaining": "cross_check.remaining", "consumed": "cross_check.consumed",
         "profile": "cross_check.profile", "probes": "cross_check.probes",
         "concentration_min": "cross_check.concentration_min",
-        "concentration_min_layers": "cross_check.concentration_min"})
+        "concentration_min_layers": "cross_check.concentration_min",
+        "front_position": "cross_check.front_position",
+        "front_position_inner": "cross_check.front_position"})
     lag = outcome.quantities.get("time_lag")
     found = outcome.diagnostics.get("time_lag", {})
     if lag is not None and found.get("series") is not None:

@@ -49,13 +49,20 @@ class FrontAccount:
     ``layers``: the indices of those layers; ``outer``/``inner``: per internal time and layer
     (columns as ``layers``) the outer and inner edge of the layer's undissolved region, m (NaN
     once its undissolved solute is gone); ``time_depleted``: per layer, when its undissolved
-    solute ran out, s (None: not within the duration).
+    solute ran out, s (None: not within the duration). A numerical route's values are its
+    three-mesh best estimates (Richardson where the meshes converge monotonically, else the fine
+    mesh's); ``band_outer``/``band_inner`` (m, shaped as ``outer``) and ``band_depleted`` (s, per
+    layer) their grid bands, |best - fine| + |fine - medium| (NaN where a mesh has no value);
+    None for an exact account.
     """
 
     layers: list[int]
     outer: np.ndarray
     inner: np.ndarray
     time_depleted: list[float | None]
+    band_outer: np.ndarray | None = None
+    band_inner: np.ndarray | None = None
+    band_depleted: list[float] | None = None
 
 
 @dataclass
