@@ -445,3 +445,19 @@ def test_a_wrong_node_at_the_onset_fails_the_wall_law_check(onset_table, sign):
     outcome = Outcome()
     flow.wall_law_check(outcome, _two_zero_layers(ONSET_RATE), checked)
     assert not outcome.checks[-1].passed
+
+
+def test_the_outlet_sherwood_number_carries_a_band_that_covers_the_graetz_series(outcomes):
+    """The record's local Sherwood number at the outlet has a numerical uncertainty (its grid
+    bands in r and z), and the exact value of the Robin-wall Graetz series (Graetz 1883; Shah &
+    London 1978, ch. 5, the local Sherwood number of the series) lies within it; a design run
+    judges its trial model against that band (``uncertainty.trial_model``)."""
+    problem = _case("first_order")
+    wall = flow.linear_layer_wall(flow.layers_problem(problem))
+    series = graetz_series(60, wall.conductance * 100e-6 / 2e-9)
+    z_star = math.pi * 2e-9 * 0.1 / (4 * 1.2e-9)
+    exact = float(series.local_sherwood(z_star)[0])
+    entry = outcomes["first_order"].quantities["sherwood_outlet"]
+    band = entry["uncertainty"]
+    assert 0.0 < band < 1e-2 * abs(entry["value"])
+    assert abs(entry["value"] - exact) <= band
