@@ -29,6 +29,7 @@ import numpy as np
 from worker.engine.design.agreement import model_disagreement
 from worker.engine.design.calibration import CalibrationResult, FitParameter, calibrate
 from worker.engine.design.paths import FieldRef, value_of
+from worker.engine.design.propagation_law import sensitivity_coefficients
 from worker.engine.design.request import DesignRequest
 from worker.engine.design.requirements import read_figure
 from worker.engine.design.short_time import FRACTION_LIMIT, short_time_diffusivity
@@ -209,14 +210,9 @@ def calibration_propagation(run: CalibrationRun, problem: Problem,
     propagation of uncertainty for correlated inputs)."""
     model = TrialModel(problem, list(run.model.fields), targets)
     theta = np.array([run.values[f] for f in run.model.fields], dtype=float)
-    jacobian = np.empty((len(targets), theta.size))
-    for j in range(theta.size):
-        step = PROPAGATION_STEP * abs(theta[j]) or PROPAGATION_STEP
-        up, down = theta.copy(), theta.copy()
-        up[j] += step
-        down[j] -= step
-        rows = model(np.vstack([up, down]))
-        jacobian[:, j] = (rows[0] - rows[1]) / (2.0 * step)
+    step = PROPAGATION_STEP * np.where(theta != 0.0, np.abs(theta), 1.0)
+    rows = model(np.vstack([theta + np.diag(step), theta - np.diag(step)]))
+    jacobian = sensitivity_coefficients(rows[:theta.size], rows[theta.size:], step).T
     covariance = np.asarray(run.result.covariance, dtype=float)
     variance = np.einsum("ij,jk,ik->i", jacobian, covariance, jacobian)
     return np.sqrt(np.clip(variance, 0.0, None))
