@@ -9,6 +9,7 @@ from collections.abc import Mapping
 from typing import Any
 
 from service.report.numbers import plain_number
+from service.report.text_design import table_head
 
 __all__ = ["axial_lines"]
 
@@ -27,8 +28,7 @@ def axial_lines(record: Mapping[str, Any]) -> list[str]:
     heads = [f"{title} [{units.get(key, '?')}]" for key, title in shown]
     width = max(14, *(len(h) for h in heads))
     lines = ["Along the lumen (inlet to outlet)",
-             "  " + " ".join(f"{h:>{width}}" for h in heads)]
-    lines.append("  " + "-" * (len(lines[-1]) - 2))
+             *table_head("  " + " ".join(f"{h:>{width}}" for h in heads))]
     for row in zip(*(axial[key] for key, _ in shown), strict=False):
         lines.append("  " + " ".join(f"{plain_number(v):>{width}}" for v in row))
     return lines

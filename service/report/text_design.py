@@ -35,6 +35,11 @@ def _g(value: Any, digits: int = 4) -> str:
     return str(value)
 
 
+def table_head(header: str, indent: int = 2) -> list[str]:
+    """``header`` and a rule of dashes under it from column ``indent`` to the header's end."""
+    return [header, " " * indent + "-" * (len(header) - indent)]
+
+
 def statement_line(statement: Statement) -> str:
     """``[✗] Design requirements met: NO — requirement not met (1 of 2 not met: DI-12)``."""
     return (f"[{statement.mark}] {statement.label}: {statement.answer}"
@@ -114,7 +119,7 @@ def uncertainty_lines(record: Mapping[str, Any]) -> list[str]:
     lines = ["Input uncertainty (Monte Carlo, JCGM 101:2008)", f"  {view.run_line}"]
     if view.rows:
         header = f"  {'quantity':<30} {'mean':>11} {'std. unc.':>11}  coverage interval"
-        lines += [header, "  " + "-" * (len(header) - 2)]
+        lines += table_head(header)
         for row in view.rows:
             low, high = (row.interval + [None, None])[:2]
             coverage = f"{100 * row.coverage:.4g} %" if row.coverage is not None else "—"
@@ -158,7 +163,7 @@ def _propagation_lines(view: UncertaintyView) -> list[str]:
     if view.rows:
         header = (f"  {'quantity':<30} {'estimate':>11} {'u_c':>11} {'U':>11}  interval y ± U"
                   "   2nd-order change of u_c")
-        lines += [header, "  " + "-" * (len(header) - 2)]
+        lines += table_head(header)
         for row in view.rows:
             low, high = (row.interval + [None, None])[:2]
             flag = "  <<< not negligible" if row.curvature_significant else ""
@@ -201,7 +206,7 @@ def sweep_lines(record: Mapping[str, Any]) -> list[str]:
     widths = {n: max(12, len(n)) for n in names + ids}
     header = (f"  {view.vary + ' [' + view.unit + ']':<26}"
               + "".join(f" {n:>{widths[n]}}" for n in names + ids) + "  verified")
-    lines = [f"Sweep of {view.vary}", header, "  " + "-" * (len(header) - 2)]
+    lines = [f"Sweep of {view.vary}", *table_head(header)]
     for k, value in enumerate(view.values):
         readable = f" ({view.readable_values[k]})" if view.readable_values[k] else ""
         cells = f"  {_g(value, 6) + readable:<26}"

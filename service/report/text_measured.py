@@ -13,7 +13,7 @@ from typing import Any
 
 from service.report.measured_view import calibration_view, credibility_view, validation_view
 from service.report.readable import readable_unit
-from service.report.text_design import _g
+from service.report.text_design import _g, table_head
 
 
 def calibration_lines(record: Mapping[str, Any]) -> list[str]:
@@ -24,7 +24,7 @@ def calibration_lines(record: Mapping[str, Any]) -> list[str]:
     lines = ["Calibration (weighted least squares on the measured data)", f"  {view.summary}"]
     header = (f"  {'parameter':<28} {'estimate':>11} {'std. error':>11}  interval "
               f"(method)   scale  bounds")
-    lines += [header, "  " + "-" * (len(header) - 2)]
+    lines += table_head(header)
     for p in view.parameters:
         mark = " *" if p.fitted_input else ""
         lines.append(f"  {p.field + mark:<28} {_g(p.estimate):>11} {_g(p.standard_error):>11}"
@@ -74,7 +74,7 @@ def validation_lines(record: Mapping[str, Any]) -> list[str]:
         lines.append(f"  Set {s.id}: {s.quantity} [{symbol}]{si_note}")
         header = (f"    {'time':>10} {'simulated':>11} {'measured':>11} {'E':>11} {'u_val':>10} "
                   f"  model-error interval E ± {k}·u_val")
-        lines += [header, "    " + "-" * (len(header) - 4)]
+        lines += table_head(header, indent=4)
         for p in s.points:
             flag = "   <<< beyond k·u_val" if p.flagged else ""
             lines.append(f"    {p.readable_time:>10} {shown(p.simulated):>11} "

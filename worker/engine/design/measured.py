@@ -29,9 +29,10 @@ import numpy as np
 from worker.engine.design.agreement import model_disagreement
 from worker.engine.design.calibration import CalibrationResult, FitParameter, calibrate
 from worker.engine.design.paths import FieldRef, value_of
+from worker.engine.design.propagation_law import sensitivity_coefficients
 from worker.engine.design.request import DesignRequest
 from worker.engine.design.requirements import read_figure
-from worker.engine.design.short_time import short_time_diffusivity
+from worker.engine.design.short_time import FRACTION_LIMIT, short_time_diffusivity
 from worker.engine.design.targets import Target
 from worker.engine.design.trials import TrialModel
 from worker.engine.design.validation import compare
@@ -106,16 +107,11 @@ def calibrate_case(problem: Problem, request: DesignRequest) -> CalibrationRun:
     return CalibrationRun(result=result, values=values, block=block, model=model)
 
 
-#: Release fraction up to which release from a plane sheet follows the short-time form
-#: Mt/M∞ = 2 (D t / (π l²))^½ to within 0.1 % (Crank 1975, §4.3; checked against the full
-#: series in the calibration tests): data below it alone cannot show the long-time behaviour.
-SHORT_TIME_FRACTION = 0.5
-
-
 def range_warnings(problem: Problem, request: DesignRequest) -> list[str]:
     """Where the calibration data do not cover what the record then reports: figures after the
     last calibration time are extrapolated; release fractions all in the short-time regime
-    (≤ ``SHORT_TIME_FRACTION``) fix only D t / l² as a square root, not the long-time release;
+    (≤ :data:`~worker.engine.design.short_time.FRACTION_LIMIT`, where release from a sheet
+    follows the short-time form) fix only D t / l² as a square root, not the long-time release;
     release fractions outside [0, 1] are beyond any model of release."""
     found: list[str] = []
     sets = request.calibration_sets
@@ -125,8 +121,8 @@ def range_warnings(problem: Problem, request: DesignRequest) -> list[str]:
         found.append(f"the calibration data end at {last:.6g} s; the record's figures after "
                      f"that, up to the duration {duration:.6g} s, are extrapolated beyond them")
     fractions = [v for m in sets if m.quantity == "release_fraction" for v in m.values]
-    if fractions and max(fractions) <= SHORT_TIME_FRACTION:
-        found.append(f"every calibrated release fraction is at most {SHORT_TIME_FRACTION:g}, "
+    if fractions and max(fractions) <= FRACTION_LIMIT:
+        found.append(f"every calibrated release fraction is at most {FRACTION_LIMIT:g}, "
                      "where release from a sheet follows the short-time form 2(Dt/πl²)^½ "
                      "(Crank 1975, §4.3): the data fix D/l² but do not test the long-time "
                      "release, which is extrapolated")
@@ -214,14 +210,9 @@ def calibration_propagation(run: CalibrationRun, problem: Problem,
     propagation of uncertainty for correlated inputs)."""
     model = TrialModel(problem, list(run.model.fields), targets)
     theta = np.array([run.values[f] for f in run.model.fields], dtype=float)
-    jacobian = np.empty((len(targets), theta.size))
-    for j in range(theta.size):
-        step = PROPAGATION_STEP * abs(theta[j]) or PROPAGATION_STEP
-        up, down = theta.copy(), theta.copy()
-        up[j] += step
-        down[j] -= step
-        rows = model(np.vstack([up, down]))
-        jacobian[:, j] = (rows[0] - rows[1]) / (2.0 * step)
+    step = PROPAGATION_STEP * np.where(theta != 0.0, np.abs(theta), 1.0)
+    rows = model(np.vstack([theta + np.diag(step), theta - np.diag(step)]))
+    jacobian = sensitivity_coefficients(rows[:theta.size], rows[theta.size:], step).T
     covariance = np.asarray(run.result.covariance, dtype=float)
     variance = np.einsum("ij,jk,ik->i", jacobian, covariance, jacobian)
     return np.sqrt(np.clip(variance, 0.0, None))
