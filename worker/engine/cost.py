@@ -92,12 +92,12 @@ CLOSED_FORM_TRIAL_WORK = 20.0
 #: A batched finite-volume trial costs this fraction of a lone check's work (measured 0.33 ms
 #: batched against about 30 ms for the whole primary solve of a two-layer Michaelis-Menten slab).
 BATCHED_TRIAL_FRACTION = 0.02
-#: Model evaluations charged to a calibration of k inputs: the least-squares fit (about 20
-#: Jacobian passes of k + 1 evaluations), each profile-likelihood end (about 20 evaluations of
-#: the profile, each a fit of the other k - 1 inputs of about 10 k evaluations), and the k + 1
-#: evaluations that carry the fit's covariance to the validation points. A generous count.
 def calibration_evaluations(k: int) -> int:
-    """Evaluations of the trial model charged to a calibration of ``k`` inputs."""
+    """Evaluations of the trial model charged to a calibration of ``k`` inputs: the
+    least-squares fit (about 20 Jacobian passes of k + 1 evaluations), each profile-likelihood
+    end (about 20 evaluations of the profile, each a fit of the other k - 1 inputs of about
+    10 k evaluations), and the k + 1 evaluations that carry the fit's covariance to the
+    validation points. A generous count."""
     if k <= 0:
         return 0
     inner = 1 if k == 1 else 10 * k

@@ -237,12 +237,18 @@ def test_progress_is_in_the_run_document_while_running(store, monkeypatch):
 def test_a_case_without_uncertainty_gets_no_scheduler_and_no_progress(store, schedulers):
     plain = uncertain_case()
     plain.pop("uncertainty")
-    run_id = create_run(store, actor="eng", document=plain)["run_id"]
+    _run_without_scheduler(store, schedulers, plain)
+
+
+def _run_without_scheduler(store, schedulers, case) -> str:
+    """Run ``case``: it succeeds with no scheduler started and no progress or seed kept."""
+    run_id = create_run(store, actor="eng", document=case)["run_id"]
     assert execute_run(run_id, store) == "succeeded"
     assert schedulers == []
     with store.transaction() as session:
         run = session.get(Run, run_id)
         assert (run.progress, run.monte_carlo_seed) == (None, None)
+    return run_id
 
 
 def test_a_case_taking_the_law_of_propagation_gets_no_scheduler_nor_seed(store, schedulers):
@@ -251,12 +257,7 @@ def test_a_case_taking_the_law_of_propagation_gets_no_scheduler_nor_seed(store, 
     case = uncertain_case(seed=None)
     case["uncertainty"].pop("max_trials")
     case["uncertainty"]["method"] = "law_of_propagation"
-    run_id = create_run(store, actor="eng", document=case)["run_id"]
-    assert execute_run(run_id, store) == "succeeded"
-    assert schedulers == []
-    with store.transaction() as session:
-        run = session.get(Run, run_id)
-        assert (run.progress, run.monte_carlo_seed) == (None, None)
+    run_id = _run_without_scheduler(store, schedulers, case)
     assert get_record(store, run_id)["uncertainty"]["propagation"] == \
         "law_of_propagation"
 

@@ -14,17 +14,18 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from worker.engine.design.agreement import AGREEMENT_FLOOR, model_disagreement
+from worker.engine.design.agreement import (
+    AGREEMENT_FLOOR,
+    SMALL_AGAINST_SPREAD,
+    model_disagreement,
+    subset_record,
+)
 from worker.engine.design.monte_carlo import Bound
 from worker.engine.design.propagation_law import REFERENCE, Propagation, requirement_summary
 from worker.engine.design.request import LAW_OF_PROPAGATION, UncertaintyRequest
 from worker.engine.design.requirements import Requirement
 
 __all__ = ["PointCheck", "propagation_block", "verification_block"]
-
-#: The numerical uncertainty of a figure counts as small against its combined standard
-#: uncertainty at this fraction or below (the Monte Carlo's rule, ``runner.SMALL_AGAINST_SPREAD``).
-SMALL_AGAINST_SPREAD = 0.1
 
 ASSUMPTIONS = (
     "first order: the figure is taken as linear in each input over x ± u (the second-order "
@@ -83,33 +84,17 @@ def verification_block(rows: Sequence[PointCheck], names: Sequence[str],
                 off = model_disagreement(row.fast[j], row.full[j], band)
                 if off > worst_model:
                     worst_model, worst_where = off, f"{name} at {row.label}"
-    failed = [row.label for row in rows if row.verdict != "pass"]
-    checks = [{"name": "uncertainty.subset", "value": float(len(failed)), "limit": 0.0,
-               "passed": bool(rows) and not failed,
-               "detail": f"{len(rows)} point(s) of the law of propagation checked in full"
-                         + (f"; failed: {', '.join(failed)}" if failed
-                            else "; every check passed")}]
-    if compared:
-        checks.append({
-            "name": "uncertainty.trial_model", "value": worst_model, "limit": 1.0,
-            "passed": worst_model <= 1.0,
-            "detail": "the primary solve that gave the propagated figures against the full "
-                      "check at the same inputs, relative to the figure's numerical uncertainty "
-                      f"(at least {AGREEMENT_FLOOR:g} of the value); worst "
-                      f"{worst_where or 'none'}"})
-    return {
-        "trials_checked": len(rows),
-        "all_passed": bool(rows) and not failed,
-        "largest_numerical_uncertainty": largest,
-        "largest_ratio_to_spread": worst_ratio,
-        "numerical_small_against_spread": worst_ratio <= SMALL_AGAINST_SPREAD,
-        "small_against_spread_rule": f"numerical uncertainty ≤ {SMALL_AGAINST_SPREAD:g} × the "
-                                     "combined standard uncertainty of the figure",
-        "trial_model_difference": worst_model if compared else None,
-        "trials": [{"trial": row.label, "inputs": dict(row.inputs), "verdict": row.verdict}
-                   for row in rows],
-        "checks": checks,
-    }
+    return subset_record(
+        failed=[row.label for row in rows if row.verdict != "pass"], checked=len(rows),
+        subset_detail=f"{len(rows)} point(s) of the law of propagation checked in full",
+        largest=largest, worst_ratio=worst_ratio, spread_name="combined standard uncertainty",
+        worst_model=worst_model if compared else None,
+        model_detail="the primary solve that gave the propagated figures against the full "
+                     "check at the same inputs, relative to the figure's numerical uncertainty "
+                     f"(at least {AGREEMENT_FLOOR:g} of the value); worst "
+                     f"{worst_where or 'none'}",
+        trials=[{"trial": row.label, "inputs": dict(row.inputs), "verdict": row.verdict}
+                for row in rows])
 
 
 def _warnings(result: Propagation, names: Sequence[str], verification: Mapping,

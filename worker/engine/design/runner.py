@@ -26,7 +26,11 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from worker.engine.design.agreement import AGREEMENT_FLOOR, model_disagreement
+from worker.engine.design.agreement import (
+    AGREEMENT_FLOOR,
+    model_disagreement,
+    subset_record,
+)
 from worker.engine.design.limit_search import find_limit
 from worker.engine.design.monte_carlo import (
     BlockResult,
@@ -81,10 +85,6 @@ def sequential_blocks(compute: Callable[[int], BlockResult],
 
 #: Random trials added to the verification subset (besides the worst and the median ones).
 RANDOM_CHECKS = 2
-#: The numerical uncertainty of a figure counts as small against the spread the inputs cause
-#: when it is at most this fraction of the figure's standard uncertainty (the project's rule:
-#: it then moves the standard uncertainty by under 0.5 %, below two significant digits).
-SMALL_AGAINST_SPREAD = 0.1
 #: Bins of the histogram a record keeps of each figure (from the bounded trial sample).
 HISTOGRAM_BINS = 30
 #: Base points of the Sobol' indices (power of 2) by how the trial model solves: the batched
@@ -401,32 +401,18 @@ class DesignRunner:
                 if ratio > worst_model:
                     worst_model, worst_where = ratio, f"{target.key} in the {label}"
             rows.append(row)
-        failed = [str(r["trial"]) for r in rows if r["verdict"] != "pass"]
-        checks = [
-            {"name": "uncertainty.subset", "value": float(len(failed)), "limit": 0.0,
-             "passed": bool(rows) and not failed,
-             "detail": f"{len(rows)} trials checked in full (worst for each requirement, "
-                       f"median, random)" + (f"; failed: {', '.join(failed)}" if failed
-                                              else "; every check passed")},
-            {"name": "uncertainty.trial_model", "value": worst_model, "limit": 1.0,
-             "passed": worst_model <= 1.0,
-             "detail": "the Monte Carlo trials' fast primary solve against the full check "
-                       "at the same inputs, relative to the figure's numerical uncertainty "
-                       f"(at least {AGREEMENT_FLOOR:g} of the value); worst "
-                       f"{worst_where or 'none'}"},
-        ]
-        return {
-            "trials_checked": len(rows),
-            "all_passed": bool(rows) and not failed,
-            "largest_numerical_uncertainty": largest,
-            "largest_ratio_to_spread": worst_ratio,
-            "numerical_small_against_spread": worst_ratio <= SMALL_AGAINST_SPREAD,
-            "small_against_spread_rule": f"numerical uncertainty ≤ {SMALL_AGAINST_SPREAD:g} × "
-                                         "the standard uncertainty of the figure",
-            "trial_model_difference": worst_model,
-            "trials": rows,
-            "checks": checks,
-        }
+        return subset_record(
+            failed=[str(r["trial"]) for r in rows if r["verdict"] != "pass"],
+            checked=len(rows),
+            subset_detail=f"{len(rows)} trials checked in full (worst for each requirement, "
+                          "median, random)",
+            largest=largest, worst_ratio=worst_ratio, spread_name="standard uncertainty",
+            worst_model=worst_model,
+            model_detail="the Monte Carlo trials' fast primary solve against the full check "
+                         "at the same inputs, relative to the figure's numerical uncertainty "
+                         f"(at least {AGREEMENT_FLOOR:g} of the value); worst "
+                         f"{worst_where or 'none'}",
+            trials=rows)
 
     # -- design limit --------------------------------------------------------------------
 

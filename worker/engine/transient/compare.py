@@ -44,7 +44,13 @@ from worker.engine.limits import check_limit
 from worker.engine.model import Problem
 from worker.engine.outcome import Check, Outcome
 from worker.engine.transient.record import probe_row
-from worker.engine.transient.scales import CROSS_CHECK_FLOOR, relative_errors, worst
+from worker.engine.transient.scales import (
+    CROSS_CHECK_FLOOR,
+    face_rate_scale,
+    face_weights,
+    relative_errors,
+    worst,
+)
 from worker.engine.transient.solution import Route
 
 __all__ = ["compare_fronts", "compare_minima", "compare_routes", "compare_steady_times",
@@ -161,21 +167,16 @@ def _released(route: Route) -> np.ndarray:
 def _flux_offers(offer, problem: Problem, primary: Route, other: Route, internal: np.ndarray,
                  label: str) -> None:
     usable = (internal > 0.0) & primary.flux_usable & other.flux_usable
-    weight_inner = 0.0 if problem.solid_centre else problem.inner ** problem.exponent
-    weight_outer = problem.outer ** problem.exponent
-    rates = [np.abs(w * primary.amounts[f"flux_{s}"][usable])
-             for s, w in (("inner", weight_inner), ("outer", weight_outer))]
-    # floor: the rate that, held over the whole duration, would move the amount scale (a face
-    # that passes nothing at every requested time, as after a zero-order depletion, is not
-    # judged by the relative size of two numbers that are both round-off)
+    weights = face_weights(problem)
     amounts = [np.abs(primary.amounts[name]) for name in
                ("released_inner", "released_outer", "consumed")]
     amount_scale = max([abs(primary.initial_load)] + [float(np.nanmax(a, initial=0.0))
                                                       for a in amounts])
     duration = float(internal[-1]) if internal.size and internal[-1] > 0.0 else 1.0
-    floor = amount_scale / (problem.measure_factor * duration)
-    scale = max([float(np.nanmax(r, initial=0.0)) for r in rates] + [floor]) or 1e-300
-    for side, weight in (("inner", weight_inner), ("outer", weight_outer)):
+    scale = face_rate_scale([w * primary.amounts[f"flux_{s}"][usable]
+                             for s, w in weights.items()], amount_scale, problem,
+                            duration) or 1e-300
+    for side, weight in weights.items():
         if weight == 0.0:
             continue
         a = weight * primary.amounts[f"flux_{side}"]

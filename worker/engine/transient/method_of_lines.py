@@ -988,22 +988,20 @@ def _compartment_face_fluxes(system: Any, c: np.ndarray, y: np.ndarray) -> np.nd
     return q
 
 
-
 def _dissolved_cells(terms: _Rhs | _StackedTerms, cells: np.ndarray
                      ) -> tuple[np.ndarray, np.ndarray]:
     """Dissolved concentration c = min(u, S) of cell states, u = max(y, floor) where the
     content switches off at zero, and dc/dy (generalised derivative at the kinks)."""
-    if terms.any_switched:
-        u = np.maximum(cells, terms.floor)
-        slope = (cells > terms.floor).astype(float)
-    else:
-        u = cells
-        if terms.has_solubility:  # the slope is one below the solubility, zero above
-            return np.minimum(u, terms.solubility), (u < terms.solubility).astype(float)
-        slope = np.ones(cells.size)
+    if not terms.any_switched:
+        if not terms.has_solubility:
+            return cells, np.ones(cells.size)
+        return np.minimum(cells, terms.solubility), (cells < terms.solubility).astype(float)
+    u = np.maximum(cells, terms.floor)
+    slope = (cells > terms.floor).astype(float)
     if not terms.has_solubility:
         return u, slope
     return np.minimum(u, terms.solubility), slope * (u < terms.solubility)
+
 
 class _ConcentrationView:
     """A system whose cell states are already the dissolved concentrations (for packaging the

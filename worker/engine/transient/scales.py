@@ -4,7 +4,7 @@ the relaxation time, and the error measures the checks share."""
 from __future__ import annotations
 
 import math
-from collections.abc import Callable
+from collections.abc import Callable, Iterable
 
 import numpy as np
 from scipy.optimize import brentq
@@ -17,6 +17,8 @@ CROSS_CHECK_FLOOR = 1e-2
 __all__ = [
     "CROSS_CHECK_FLOOR",
     "capacity_resistance_time",
+    "face_rate_scale",
+    "face_weights",
     "first_crossing",
     "is_membrane",
     "relative_errors",
@@ -63,6 +65,24 @@ def capacity_resistance_time(problem: Problem) -> float:
         if any(rates):
             return 1.0 / min(r for r in rates if r > 0)
     return capacity * resistance
+
+
+def face_weights(problem: Problem) -> dict[str, float]:
+    """Each face's weight r^n (``"inner"``, ``"outer"``; zero for a solid centre): a face's
+    flux density times it, times the measure factor, is the rate through the face."""
+    return {"inner": 0.0 if problem.solid_centre else problem.inner ** problem.exponent,
+            "outer": problem.outer ** problem.exponent}
+
+
+def face_rate_scale(rates: Iterable[np.ndarray], amount_scale: float, problem: Problem,
+                    duration: float) -> float:
+    """The scale the face rates are compared on: the largest |weighted rate| (``rates``:
+    flux densities times :func:`face_weights`), at least the rate that, held over the whole
+    ``duration`` (s), would move the amount scale (a face that passes nothing at every time,
+    as after a zero-order depletion, is not judged by the relative size of two numbers that
+    are both round-off)."""
+    floor = amount_scale / (problem.measure_factor * duration)
+    return max([float(np.nanmax(np.abs(r), initial=0.0)) for r in rates] + [floor])
 
 
 def relative_errors(values, reference, scale: float) -> np.ndarray:

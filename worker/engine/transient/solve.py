@@ -19,7 +19,12 @@ from worker.engine.model import Problem, Regime, SteadySolution
 from worker.engine.transient import exact_series, method_of_lines
 from worker.engine.transient.exact_series import TransientSeriesSolution
 from worker.engine.transient.method_of_lines import TransientFVSolution
-from worker.engine.transient.scales import CROSS_CHECK_FLOOR, capacity_resistance_time
+from worker.engine.transient.scales import (
+    CROSS_CHECK_FLOOR,
+    capacity_resistance_time,
+    face_rate_scale,
+    face_weights,
+)
 from worker.engine.transient.solution import AMOUNTS
 
 #: Cells per layer of the coarse mesh: the steady mesh rule divided by this (fine = steady mesh).
@@ -174,13 +179,11 @@ def time_error(problem: Problem, coarse: TransientFVSolution) -> float | None:
     # rate and the floor of the largest rate (at least the rate that moves the amount scale
     # over the duration)
     positive = np.asarray(coarse.times) > 0.0
-    weights = {"inner": 0.0 if problem.solid_centre else problem.inner ** problem.exponent,
-               "outer": problem.outer ** problem.exponent}
+    weights = face_weights(problem)
     rates = {side: weight * np.asarray(getattr(coarse, f"flux_{side}"))[positive]
              for side, weight in weights.items()}
     duration = float(coarse.end) if coarse.end > 0.0 else 1.0
-    rate_scale = max([float(np.max(np.abs(r), initial=0.0)) for r in rates.values()]
-                     + [scale / (problem.measure_factor * duration)])
+    rate_scale = face_rate_scale(rates.values(), scale, problem, duration)
     flux = 0.0
     for side, weight in weights.items():
         shifted = np.abs(rates[side] - weight * np.asarray(halved[f"flux_{side}"])[positive])
