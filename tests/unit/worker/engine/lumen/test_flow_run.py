@@ -173,6 +173,36 @@ def test_graetz_route_reads_the_flow_from_the_second_reading(field):
         assert not checks["cross_check.graetz"].passed, (field, sign)
 
 
+def _reaction_free_case() -> Problem:
+    """Two layers without reaction out to a held concentration (invented)."""
+    return Problem("cylinder", 100e-6, (Layer("wall", 50e-6, 1e-10, 1.0),
+                                        Layer("gel", 300e-6, 1.5e-9, 0.5)),
+                   Boundary("flow", flow_rate=1.2e-9, inlet=0.2, diffusivity=2e-9),
+                   Boundary("concentration", value=0.02), length=0.1)
+
+
+def test_graetz_route_of_reaction_free_layers_uses_its_own_wall(monkeypatch):
+    """Reaction-free layers out to a held concentration: the series' wall is the layers' series
+    resistance (Crank 1975, eq. 5.5; ``graetz.layered_wall_conductance``), code the march's
+    wall does not share. It agrees with the march; an error of 1 % either way in that code, or
+    in the second reading's layers, turns ``cross_check.graetz``."""
+    problem = _reaction_free_case()
+    checks = {c.name: c for c in flow.run_flow(problem).checks}
+    assert checks["cross_check.graetz"].passed
+    real = flow.layered_wall_conductance
+    for sign in (1.0, -1.0):
+        monkeypatch.setattr(flow, "layered_wall_conductance",
+                            lambda *a, s=sign: real(*a) * (1.0 + s * 0.01))
+        checks = {c.name: c for c in flow.run_flow(problem).checks}
+        assert not checks["cross_check.graetz"].passed, sign
+        monkeypatch.setattr(flow, "layered_wall_conductance", real)
+        first = problem.layers[0]
+        misread = dataclasses.replace(problem, layers=(dataclasses.replace(
+            first, diffusivity=first.diffusivity * (1.0 + sign * 0.01)),) + problem.layers[1:])
+        checks = {c.name: c for c in flow.run_flow(misread, problem).checks}
+        assert not checks["cross_check.graetz"].passed, sign
+
+
 @pytest.mark.parametrize("field", ["flow_rate", "inlet"])
 def test_krogh_route_reads_the_case_from_the_second_reading(field):
     """As for the Graetz route: a primary reading of the flow face off by 1 % either way turns
