@@ -161,7 +161,8 @@ def tube_of(problem: Problem) -> Tube:
 @dataclasses.dataclass
 class FlowRun:
     """The primary solution: the meshes' solutions (``by_mesh``: (n_r, n_z) -> solution), the
-    studies in r and z, the tabulated layers and, for linear kinetics, the exact wall."""
+    studies in r and z and the tabulated layers (for linear kinetics the marches used the exact
+    wall, ``linear_layer_wall``; the table still gives the layers' totals)."""
 
     problem: Problem
     tube: Tube
