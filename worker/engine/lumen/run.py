@@ -27,7 +27,9 @@ Checks (each a function below, so a test can feed it a wrong figure):
 * ``cross_check.wall_law``: the tabulated wall law against direct solves between its nodes.
 * ``cross_check.graetz`` (linear kinetics): the Graetz series with the layers as a Robin wall
   (Graetz 1883; Nusselt 1910; Shah & London 1978, ch. 5), read from the independent reading
-  of the case, against the marching outlet values, beyond both routes' bands.
+  of the case, against the marching outlet values, beyond both routes' bands. Reaction-free
+  layers out to a held concentration give the wall by series resistances
+  (``graetz.layered_wall_conductance``), code apart from the march's wall.
 * ``cross_check.sherwood`` (a long tube, z* >= ``LONG_TUBE_Z_STAR``): the local Sherwood
   number at the outlet against its fully developed value (the Robin series' first term for
   linear kinetics, 48/11 for a uniform wall flux; Shah & London 1978, ch. 5).
@@ -57,6 +59,7 @@ from worker.engine.lumen.graetz import (
     FULLY_DEVELOPED_SH_UNIFORM_FLUX,
     GraetzSeries,
     graetz_series,
+    layered_wall_conductance,
     peclet_number,
     wall_biot_number,
 )
@@ -158,7 +161,8 @@ def tube_of(problem: Problem) -> Tube:
 @dataclasses.dataclass
 class FlowRun:
     """The primary solution: the meshes' solutions (``by_mesh``: (n_r, n_z) -> solution), the
-    studies in r and z, the tabulated layers and, for linear kinetics, the exact wall."""
+    studies in r and z and the tabulated layers (for linear kinetics the marches used the exact
+    wall, ``linear_layer_wall``; the table still gives the layers' totals)."""
 
     problem: Problem
     tube: Tube
@@ -392,13 +396,32 @@ def _minimum_slope(table: WallTable, c_wall: float) -> float:
     return abs(float(table.minimum(high)) - float(table.minimum(low))) / (high - low)
 
 
+def _robin_wall(independent: Problem) -> tuple[float, float]:
+    """(k_w in m/s, c_out) of the layers seen from the lumen, from the independent reading.
+    Reaction-free layers out to a held concentration, both faces at their layers' partitions:
+    the series resistances of ``graetz.layered_wall_conductance`` (code the march's wall does
+    not use) and c_out the outer value. Otherwise ``linear_layer_wall``'s two closed-form
+    solves, which the march's wall shares."""
+    inner, outer = independent.inner_boundary, independent.outer_boundary
+    if (all(layer.reaction.kind == "none" for layer in independent.layers)
+            and outer.kind == "concentration"
+            and inner.partition is None and outer.partition is None):
+        conductance = layered_wall_conductance(
+            independent.inner,
+            [(layer.thickness, layer.diffusivity, layer.partition)
+             for layer in independent.layers])
+        return conductance, float(outer.value)
+    wall = linear_layer_wall(layers_problem(independent))
+    return wall.conductance, wall.outside
+
+
 def _series_for(independent: Problem) -> tuple[GraetzSeries, float, float]:
     """The Robin-wall series of the independent reading: (series, conductance, c_out)."""
-    wall = linear_layer_wall(layers_problem(independent))
+    conductance, outside = _robin_wall(independent)
     face = independent.inner_boundary
-    biot = wall_biot_number(wall.conductance, independent.inner, face.diffusivity)
+    biot = wall_biot_number(conductance, independent.inner, face.diffusivity)
     series = graetz_series(SERIES_TERMS, biot)
-    return series, wall.conductance, wall.outside
+    return series, conductance, outside
 
 
 def graetz_check(outcome: Outcome, problem: Problem, *, mixing_cup, outlet_wall: float,

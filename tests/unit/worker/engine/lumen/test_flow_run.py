@@ -5,7 +5,7 @@ Robin wall (L. Graetz 1883; Shah & London, *Laminar Flow Forced Convection in Du
 ch. 5), the fully developed Sherwood number 48/11 of a uniform wall flux (Shah & London 1978,
 ch. 5), the Krogh cylinder's linear fall of the mixing cup and the Krogh-Erlang profile (A.
 Krogh, J. Physiol. 52 (1919) 409), the global mass balance, and scipy's Bessel functions for a
-first-order layer's wall conductance (``test_layer_walls``). Every check of the run is shown to
+first-order layer's wall conductance (``_fibre_conductance``). Every check of the run is shown to
 fail when an error is put into the figure it judges, in both directions. Layer and flow values
 are invented for the tests (a fibre-like tube), not data.
 """
@@ -17,6 +17,7 @@ import math
 
 import numpy as np
 import pytest
+from scipy.special import iv, kv
 
 from tests.lumen_checks import T1, T2, R, assert_check_and_injection, hill_front, hill_level, within
 from worker.engine.convergence import grid_study
@@ -86,14 +87,26 @@ def test_record_parts(outcomes):
     assert q["graetz"]["value"] == pytest.approx(4 * 1.2e-9 / (math.pi * 2e-9 * 0.1))
 
 
+def _fibre_conductance() -> float:
+    """k_w (m/s) of ``_case("first_order")``'s layers, apart from the code under test: the
+    cells' annulus (a = 150 um to b = 450 um, sealed at b) takes up k2 c_a per unit area at a,
+    from the modified Bessel solution of c'' + c'/r = m^2 c, m^2 = k/D (M. Abramowitz, I.A.
+    Stegun, *Handbook of Mathematical Functions*, 1964, 9.6; worked out from memory), in
+    series with the wall layer's ln(a/R)/(2 pi D) (Crank 1975, eq. 5.5)."""
+    radius, a, b, d_wall, d_cells = 100e-6, 150e-6, 450e-6, 1e-10, 1.5e-9
+    m = math.sqrt(0.05 / d_cells)
+    k2 = d_cells * m * ((iv(1, m * b) * kv(1, m * a) - iv(1, m * a) * kv(1, m * b))
+                        / (iv(0, m * a) * kv(1, m * b) + iv(1, m * b) * kv(0, m * a)))
+    per_length = math.log(a / radius) / (2 * math.pi * d_wall) + 1 / (2 * math.pi * a * k2)
+    return 1.0 / (2 * math.pi * radius * per_length)
+
+
 def test_first_order_outlet_against_the_graetz_series(outcomes):
     """The layers as a Robin wall: k_w and c_out from the closed forms, the series from
     Graetz 1883 / Shah & London 1978 (T3 condition)."""
-    problem = _case("first_order")
-    wall = flow.linear_layer_wall(flow.layers_problem(problem))
-    series = graetz_series(60, wall.conductance * 100e-6 / 2e-9)
+    series = graetz_series(60, _fibre_conductance() * 100e-6 / 2e-9)
     z_star = math.pi * 2e-9 * 0.1 / (4 * 1.2e-9)
-    expected = wall.outside + (0.2 - wall.outside) * float(series.mixing_cup(z_star)[0])
+    expected = 0.2 * float(series.mixing_cup(z_star)[0])  # sealed outer face: c_out = 0
     got = outcomes["first_order"].quantities["outlet_concentration"]["value"]
     assert got == pytest.approx(expected, rel=1e-5)
 
@@ -158,33 +171,54 @@ def test_graetz_check_catches_an_error_in_either_route():
             assert not _passes(flow.graetz_check, **dict(good, mixing_cup=wrong))
 
 
-@pytest.mark.parametrize("field", ["flow_rate", "inlet", "diffusivity"])
-def test_graetz_route_reads_the_flow_from_the_second_reading(field):
+@pytest.mark.parametrize(("kind", "check", "field"), [
+    ("first_order", "cross_check.graetz", "flow_rate"),
+    ("first_order", "cross_check.graetz", "inlet"),
+    ("first_order", "cross_check.graetz", "diffusivity"),
+    ("zero_order", "cross_check.krogh", "flow_rate"),
+    ("zero_order", "cross_check.krogh", "inlet")])
+def test_independent_routes_read_the_flow_from_the_second_reading(kind, check, field):
     """A primary reading of the flow face off by 1 % either way (the second reading right)
-    turns ``cross_check.graetz``: the series takes the flow, the inlet and the fluid's
-    diffusivity from the second reading, not from the primary's."""
-    problem = _case("first_order")
+    turns the independent route's check: the Graetz series and the Krogh closed forms take
+    the flow, the inlet (and the fluid's diffusivity) from the second reading."""
+    problem = _case(kind)
     for sign in (1.0, -1.0):
         face = problem.inner_boundary
         misread = dataclasses.replace(
             problem, inner_boundary=dataclasses.replace(
                 face, **{field: getattr(face, field) * (1.0 + sign * 0.01)}))
         checks = {c.name: c for c in flow.run_flow(misread, problem).checks}
-        assert not checks["cross_check.graetz"].passed, (field, sign)
+        assert not checks[check].passed, (field, sign)
 
 
-@pytest.mark.parametrize("field", ["flow_rate", "inlet"])
-def test_krogh_route_reads_the_case_from_the_second_reading(field):
-    """As for the Graetz route: a primary reading of the flow face off by 1 % either way turns
-    ``cross_check.krogh``."""
-    problem = _case("zero_order")
+def _reaction_free_case() -> Problem:
+    """Two layers without reaction out to a held concentration (invented)."""
+    return Problem("cylinder", 100e-6, (Layer("wall", 50e-6, 1e-10, 1.0),
+                                        Layer("gel", 300e-6, 1.5e-9, 0.5)),
+                   Boundary("flow", flow_rate=1.2e-9, inlet=0.2, diffusivity=2e-9),
+                   Boundary("concentration", value=0.02), length=0.1)
+
+
+def test_graetz_route_of_reaction_free_layers_uses_its_own_wall(monkeypatch):
+    """Reaction-free layers out to a held concentration: the series' wall is the layers' series
+    resistance (Crank 1975, eq. 5.5; ``graetz.layered_wall_conductance``), code the march's
+    wall does not share. It agrees with the march; an error of 1 % either way in that code, or
+    in the second reading's layers, turns ``cross_check.graetz``."""
+    problem = _reaction_free_case()
+    checks = {c.name: c for c in flow.run_flow(problem).checks}
+    assert checks["cross_check.graetz"].passed
+    real = flow.layered_wall_conductance
     for sign in (1.0, -1.0):
-        face = problem.inner_boundary
-        misread = dataclasses.replace(
-            problem, inner_boundary=dataclasses.replace(
-                face, **{field: getattr(face, field) * (1.0 + sign * 0.01)}))
+        monkeypatch.setattr(flow, "layered_wall_conductance",
+                            lambda *a, s=sign: real(*a) * (1.0 + s * 0.01))
+        checks = {c.name: c for c in flow.run_flow(problem).checks}
+        assert not checks["cross_check.graetz"].passed, sign
+        monkeypatch.setattr(flow, "layered_wall_conductance", real)
+        first = problem.layers[0]
+        misread = dataclasses.replace(problem, layers=(dataclasses.replace(
+            first, diffusivity=first.diffusivity * (1.0 + sign * 0.01)),) + problem.layers[1:])
         checks = {c.name: c for c in flow.run_flow(misread, problem).checks}
-        assert not checks["cross_check.krogh"].passed, (field, sign)
+        assert not checks["cross_check.graetz"].passed, sign
 
 
 def test_sherwood_check_catches_an_error_either_way():
@@ -452,9 +486,7 @@ def test_the_outlet_sherwood_number_carries_a_band_that_covers_the_graetz_series
     bands in r and z), and the exact value of the Robin-wall Graetz series (Graetz 1883; Shah &
     London 1978, ch. 5, the local Sherwood number of the series) lies within it; a design run
     judges its trial model against that band (``uncertainty.trial_model``)."""
-    problem = _case("first_order")
-    wall = flow.linear_layer_wall(flow.layers_problem(problem))
-    series = graetz_series(60, wall.conductance * 100e-6 / 2e-9)
+    series = graetz_series(60, _fibre_conductance() * 100e-6 / 2e-9)
     z_star = math.pi * 2e-9 * 0.1 / (4 * 1.2e-9)
     exact = float(series.local_sherwood(z_star)[0])
     entry = outcomes["first_order"].quantities["sherwood_outlet"]
