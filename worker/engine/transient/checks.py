@@ -14,6 +14,7 @@ from worker.engine.model import Problem
 from worker.engine.outcome import Check, Outcome
 from worker.engine.transient import method_of_lines, solve
 from worker.engine.transient.method_of_lines import TransientFVSolution
+from worker.engine.transient.refinement import FALLBACK_FACTOR
 from worker.engine.transient.scales import (
     capacity_resistance_time,
     worst,
@@ -72,7 +73,14 @@ def mass_balance_check(outcome: Outcome, problem: Problem, fine: TransientFVSolu
 def space_check(outcome: Outcome, problem: Problem, fvs: list[TransientFVSolution],
                 times: np.ndarray, final_index: int, amount_scale: float) -> None:
     """GCI of the release at every requested time (the amount held, for a body whose faces pass
-    nothing), worst time reported; the final time's study goes to the diagnostics."""
+    nothing), worst time reported; the final time's study goes to the diagnostics.
+
+    A time whose three meshes show no order (Celik et al. 2008: oscillatory or divergent) gets
+    ``refinement.FALLBACK_FACTOR`` times its larger mesh difference as its band (Roache 1994),
+    as long as no more than half the requested times lack an order: where a moving front or two
+    error terms of opposite sign make the mesh differences change sign over time, the study of
+    the few times near the change cannot form an order though the meshes converge around them.
+    When most times lack an order the check fails with no value."""
     cells = [sum(f.diagnostics["cells_per_layer"]) for f in reversed(fvs)]
     released = np.array([f.released_inner + f.released_outer for f in reversed(fvs)])
     quantity = "release"
@@ -102,6 +110,14 @@ def space_check(outcome: Outcome, problem: Problem, fvs: list[TransientFVSolutio
             gcis[k] = study.gci_fine * abs(released[0, k]) / amount_scale
     outcome.diagnostics["grid_study_final"] = studies[final_index].as_dict()
     positive = times > 0.0
+    unbanded = positive & ~np.isfinite(gcis)
+    # Most requested times converge with an order of their own: the few that do not are where
+    # two error terms of opposite sign cancel (the mesh differences change sign over time),
+    # and get Roache's band without an observed order.
+    fallback = unbanded if np.count_nonzero(unbanded) <= np.count_nonzero(positive) // 2 \
+        else np.zeros_like(unbanded)
+    gcis[fallback] = FALLBACK_FACTOR * np.max(np.abs(np.diff(released[:, fallback], axis=0)),
+                                              axis=0) / amount_scale
     failed = positive & ~np.isfinite(gcis)
     value, at_worst = worst(np.where(positive, gcis, np.nan), times)
     if np.any(failed) or at_worst is None:
@@ -110,11 +126,21 @@ def space_check(outcome: Outcome, problem: Problem, fvs: list[TransientFVSolutio
             "convergence.space", None, limit, False,
             f"grid study gave no error band at t = {times[bad]:.6g} s: {studies[bad].message}"))
         return
-    study = studies[int(np.searchsorted(times, at_worst))]
+    worst_index = int(np.searchsorted(times, at_worst))
+    study = studies[worst_index]
+    if fallback[worst_index]:
+        how = (f"no observed order there ({study.convergence}): band {FALLBACK_FACTOR:g} times "
+               f"the larger mesh difference, Roache 1994")
+    else:
+        how = (f"{study.convergence}, observed order {study.apparent_order:.3g}, extrapolated "
+               f"{study.extrapolated:.9g}")
     _add(outcome, "convergence.space", value, limit,
          f"GCI_fine of the {quantity} on meshes of {cells} cells, worst at t = {at_worst:.6g} s "
-         f"({study.convergence}, observed order {study.apparent_order:.3g}, extrapolated "
-         f"{study.extrapolated:.9g}), relative to the amount scale (Celik et al. 2008)")
+         f"({how}), relative to the amount scale (Celik et al. 2008)"
+         + (f"; {int(np.count_nonzero(fallback))} of {int(np.count_nonzero(positive))} times "
+            f"without an observed order (the mesh differences change sign there or nearby) "
+            f"banded by {FALLBACK_FACTOR:g} times the larger mesh difference (Roache 1994)"
+            if np.any(fallback) else ""))
 
 
 def time_check(outcome: Outcome, problem: Problem, coarse: TransientFVSolution,

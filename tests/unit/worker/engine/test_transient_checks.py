@@ -381,12 +381,30 @@ def test_meshes_agreeing_to_round_off_have_no_discretisation_error():
     assert check.passed is True
 
 
-def test_a_time_without_an_error_band_fails_the_check_and_is_named():
-    # At t = 0.5 s the meshes oscillate without shrinking (eps32 = -eps21): no apparent order.
-    meshes = _meshes([0.0, 0.5, 1.0], [0.0, 0.0, 4e-5])
-    for mesh, wobble in zip(meshes, (1e-3, -1e-3, 1e-3), strict=True):
-        mesh.released_outer = mesh.released_outer + np.array([0.0, wobble, 0.0])
-    check = _space(meshes)[1]
+def _wobbled(wobble, at, c_final=4e-5):
+    # the meshes alternate by +-wobble at the times ``at``: eps32 = -eps21, no apparent order
+    meshes = _meshes([0.0, 0.5, 1.0], [0.0, 0.0, c_final])
+    for mesh, sign in zip(meshes, (1.0, -1.0, 1.0), strict=True):
+        shift = np.zeros(GCI_TIMES.size)
+        shift[list(at)] = sign * wobble
+        mesh.released_outer = mesh.released_outer + shift
+    return meshes
+
+
+@pytest.mark.parametrize("wobble, passed", [(1e-5, True), (1e-3, False)])
+def test_a_time_without_an_order_among_converging_times_gets_roaches_band(wobble, passed):
+    # At t = 0.5 s the meshes oscillate without shrinking; t = 1000 s converges at order 2.
+    # The band there is Roache's (J. Fluids Eng. 116 (1994) 405) safety factor 3 on the larger
+    # mesh difference (2 wobble), relative to the amount scale; limit 1e-3.
+    check = _space(_wobbled(wobble, [1]))[1]
+    assert check.value == pytest.approx(3.0 * 2.0 * wobble / AMOUNT_SCALE, rel=1e-6)
+    assert check.passed is passed
+    assert "1 of 2 times without an observed order" in check.detail
+
+
+def test_most_times_without_an_order_fail_the_check_and_are_named():
+    # Both requested times oscillate without shrinking: no band is formed.
+    check = _space(_wobbled(1e-6, [1, 2], c_final=0.0))[1]
     assert check.value is None
     assert check.passed is False
     assert check.limit == pytest.approx(1e-3)
