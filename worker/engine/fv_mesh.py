@@ -5,7 +5,8 @@ a transient solver share one mesh, one operator and one set of reaction terms.
 
 Discretised balance
 -------------------
-Cells are uniform within each layer and layer interfaces lie on faces. With the geometric
+Cells are uniform within each layer (or graded towards a layer's face, ``fv_grading``, where a
+``GradedCells`` asks for it) and layer interfaces lie on faces. With the geometric
 exponent ``n`` (0 slab, 1 cylinder, 2 sphere), the r^n-weighted balance of cell ``i`` between
 faces ``i`` (west, inner) and ``i+1`` (east, outer) is
 
@@ -63,6 +64,7 @@ import numpy as np
 from scipy.linalg import LinAlgError
 from scipy.linalg.lapack import dgtsv
 
+from worker.engine.fv_grading import GradedCells
 from worker.engine.model import Problem
 from worker.engine.reactions import ReactionKind
 
@@ -135,6 +137,8 @@ class Mesh:
         D (m^2/s) and K of each cell's layer.
     cells_per_layer : tuple of int
         Cells in each layer.
+    grading : GradedCells or None
+        The grading the mesh was built with, None for cells uniform in every layer.
     """
 
     exponent: int
@@ -150,10 +154,17 @@ class Mesh:
     diffusivity: np.ndarray
     partition: np.ndarray
     cells_per_layer: tuple[int, ...] = ()
+    grading: GradedCells | None = None
 
     @property
     def n_cells(self) -> int:
         return int(self.centres.size)
+
+    @property
+    def spec(self) -> tuple[int, ...] | GradedCells:
+        """What ``build_mesh`` takes to build this mesh again: the grading, or the cells per
+        layer where they are uniform."""
+        return self.grading if self.grading is not None else self.cells_per_layer
 
     @property
     def n_layers(self) -> int:
@@ -254,15 +265,17 @@ def _check_cells(cells_per_layer: Sequence[int] | int, n_layers: int) -> tuple[i
     return counts
 
 
-def build_mesh(problem: Problem, cells_per_layer: Sequence[int] | int | None = None) -> Mesh:
-    """Build the cell-centred mesh, uniform within each layer.
+def build_mesh(problem: Problem,
+               cells_per_layer: Sequence[int] | int | GradedCells | None = None) -> Mesh:
+    """Build the cell-centred mesh, uniform within each layer unless graded.
 
     Parameters
     ----------
     problem : Problem
         The normalised case (SI).
-    cells_per_layer : int or sequence of int, optional
-        Cells in each layer (one int for all layers); default ``default_cells_per_layer``.
+    cells_per_layer : int, sequence of int or GradedCells, optional
+        Cells in each layer (one int for all layers), or cells graded towards faces
+        (``fv_grading.GradedCells``); default ``default_cells_per_layer``.
 
     Returns
     -------
@@ -292,6 +305,8 @@ class MeshStack:
         Inner face, interfaces and outer face, m (shared by every mesh).
     counts : tuple of tuple of int
         Cells per layer of each mesh.
+    gradings : tuple of (GradedCells or None)
+        The grading of each mesh (None: uniform cells).
     offsets, spacers : tuple of int
     exponent : int
         Geometric exponent n of every mesh.
@@ -314,6 +329,7 @@ class MeshStack:
     east_gaps: np.ndarray
     diffusivity: np.ndarray
     partition: np.ndarray
+    gradings: tuple[GradedCells | None, ...] = ()
 
     @property
     def blocks(self) -> list[tuple[int, int]]:
@@ -341,6 +357,7 @@ class MeshStack:
             diffusivity=self.diffusivity[cells],
             partition=self.partition[cells],
             cells_per_layer=counts,
+            grading=self.gradings[g] if self.gradings else None,
         )
 
     @property
@@ -384,13 +401,17 @@ def cell_geometry(faces: np.ndarray, n: int):
     return centres, face_areas, volumes, centres - west_faces, east_faces - centres
 
 
-def build_mesh_stack(problem: Problem, cells: Sequence[Sequence[int] | int]) -> MeshStack:
-    """Build the meshes with the given cells per layer (one entry per mesh), stacked.
+def build_mesh_stack(problem: Problem,
+                     cells: Sequence[Sequence[int] | int | GradedCells]) -> MeshStack:
+    """Build the meshes with the given cells per layer (one entry per mesh; a
+    ``GradedCells`` entry grades them), stacked.
 
     Each mesh is exactly what ``build_mesh`` gives for its cells (see ``MeshStack``).
     """
     layers = problem.layers
-    counts_list = [_check_cells(c, len(layers)) for c in cells]
+    gradings = tuple(c if isinstance(c, GradedCells) and c.graded else None for c in cells)
+    counts_list = [_check_cells(c.cells if isinstance(c, GradedCells) else c, len(layers))
+                   for c in cells]
     edges = problem.edges
     bounds = edges.tolist()
     # West face of every cell: its layer's inner edge plus whole cell widths (the layer edges
@@ -399,11 +420,15 @@ def build_mesh_stack(problem: Problem, cells: Sequence[Sequence[int] | int]) -> 
     faces = np.empty(sum(sum(counts) + 1 for counts in counts_list))
     offsets: list[int] = []
     start = 0
-    for counts in counts_list:
+    for counts, grading in zip(counts_list, gradings, strict=True):
         offsets.append(start)
-        for layer, count, edge in zip(layers, counts, bounds[:-1], strict=True):
+        for j, (layer, count, edge) in enumerate(zip(layers, counts, bounds[:-1], strict=True)):
             segment = faces[start : start + count]
-            np.multiply(np.arange(count), layer.thickness / count, out=segment)
+            if grading is not None and grading.stretches[j]:
+                # the layer's map (``fv_grading``): its inner edge exact, as below
+                np.multiply(grading.layer_faces(j)[:-1], layer.thickness, out=segment)
+            else:
+                np.multiply(np.arange(count), layer.thickness / count, out=segment)
             segment += edge
             start += count
         faces[start] = bounds[-1]
@@ -417,6 +442,7 @@ def build_mesh_stack(problem: Problem, cells: Sequence[Sequence[int] | int]) -> 
         spacers=tuple(first - 1 for first in offsets[1:]), exponent=n, faces=faces,
         face_areas=face_areas, centres=centres, volumes=volumes, west_gaps=west_gaps,
         east_gaps=east_gaps, diffusivity=diffusivity, partition=partition,
+        gradings=gradings if any(g is not None for g in gradings) else (),
     )
 
 

@@ -153,7 +153,7 @@ def time_check(outcome: Outcome, problem: Problem, coarse: TransientFVSolution,
         implicit_time_check(outcome, problem, coarse, times, amount_scale)
         return
     tight = method_of_lines.solve_transient_fv(
-        problem, times, coarse.diagnostics["cells_per_layer"], end=duration,
+        problem, times, coarse.mesh.spec, end=duration,
         rtol=coarse.rtol / TIME_TIGHTENING)
     limit = check_limit(problem, "convergence.time")
     if not tight.success:

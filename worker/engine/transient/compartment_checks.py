@@ -144,7 +144,7 @@ def equilibrium_check(outcome: Outcome, problem: Problem, fine: TransientFVSolut
     end = duration + EQUILIBRIUM_HORIZON * exchange_time(problem) \
         + 2.0 * dissolution_time(problem)
     late = method_of_lines.solve_transient_fv(
-        problem, [end], fine.diagnostics["cells_per_layer"], end=end,
+        problem, [end], fine.mesh.spec, end=end,
         initial_state=fine.diagnostics["end_state"], start=duration, rtol=CONTINUATION_RTOL)
     if not late.success:
         outcome.checks.append(Check("compartment.equilibrium", None, limit, False,

@@ -10,7 +10,8 @@ Weak form
 ---------
 The unknown is the continuous potential ``u = C/K`` (K the layer's partition coefficient), so the
 equilibrium jump ``C_a/K_a = C_b/K_b`` at an interface is built into the trial space: ``u`` is
-continuous and piecewise linear (P1) on elements that are uniform within each layer, with a node
+continuous and piecewise linear (P1) on elements that are uniform within each layer (graded
+towards an exchanging face for a very early first time, ``galerkin_grading``), with a node
 at the inner face, at every interface and at the outer face. Multiplying
 ``K du/dt = (1/r^n) d/dr(r^n D K du/dr) - R(K u)`` by a test function ``v`` and ``r^n`` and
 integrating by parts over [a, b] gives
@@ -109,6 +110,7 @@ from numpy.typing import ArrayLike
 from scipy.interpolate import CubicSpline
 
 from worker.engine.model import Boundary, Problem
+from worker.engine.transient.galerkin_grading import GradedElements, graded_elements
 from worker.engine.transient.galerkin_steps import integrate
 from worker.engine.transient.method_of_lines import concentration_scale
 from worker.engine.transient.refinement import AmountStudy, amount_study
@@ -189,16 +191,19 @@ __all__ = [
 
 @dataclass(frozen=True)
 class GalerkinMesh:
-    """P1 elements of the layered body: uniform within each layer, a node on every edge.
+    """P1 elements of the layered body: uniform within each layer (or in geometric progression
+    from a face, ``galerkin_grading``), a node on every edge.
 
     ``nodes`` (m), ``element_layer`` (layer index of each element), ``node_layer`` (the layer of
-    each node; an interface node belongs to the inner layer), ``elements_per_layer``.
+    each node; an interface node belongs to the inner layer), ``elements_per_layer``,
+    ``grading`` (None for uniform elements in every layer).
     """
 
     nodes: np.ndarray
     element_layer: np.ndarray
     node_layer: np.ndarray
     elements_per_layer: tuple[int, ...]
+    grading: GradedElements | None = None
 
     @property
     def n_nodes(self) -> int:
@@ -210,8 +215,12 @@ class GalerkinMesh:
 
 
 def build_galerkin_mesh(problem: Problem, elements_per_layer) -> GalerkinMesh:
-    """The mesh with ``elements_per_layer`` (an int for every layer, or one per layer)."""
+    """The mesh with ``elements_per_layer`` (an int for every layer, one per layer, or a
+    ``galerkin_grading.GradedElements``)."""
     count = len(problem.layers)
+    grading = elements_per_layer if isinstance(elements_per_layer, GradedElements) else None
+    if grading is not None:
+        elements_per_layer = grading.elements
     if isinstance(elements_per_layer, int | np.integer):
         counts = (int(elements_per_layer),) * count
     else:
@@ -223,12 +232,16 @@ def build_galerkin_mesh(problem: Problem, elements_per_layer) -> GalerkinMesh:
     pieces = [np.array([edges[0]])]
     for j, n in enumerate(counts):
         inner, outer = float(edges[j]), float(edges[j + 1])
-        interior = inner + (outer - inner) * np.arange(1, n) / n
+        if grading is not None and grading.spreads[j]:
+            interior = inner + (outer - inner) * grading.layer_nodes(j)[1:-1]
+        else:
+            interior = inner + (outer - inner) * np.arange(1, n) / n
         pieces.append(np.concatenate((interior, [outer])))
     nodes = np.concatenate(pieces)
     element_layer = np.repeat(np.arange(count), counts)
     node_layer = np.concatenate(([0], element_layer))
-    return GalerkinMesh(nodes, element_layer, node_layer, counts)
+    return GalerkinMesh(nodes, element_layer, node_layer, counts,
+                        grading if grading is not None and any(grading.spreads) else None)
 
 
 @dataclass(frozen=True)
@@ -846,6 +859,15 @@ def coarse_elements(problem: Problem, first_time: float | None = None) -> tuple[
     return tuple(counts)
 
 
+def _coarse_mesh(problem: Problem, first_time: float | None
+                 ) -> tuple[int, ...] | GradedElements:
+    """The coarse mesh of ``galerkin_study``: ``coarse_elements``, graded towards the
+    exchanging face(s) where the first time needs it (``galerkin_grading``)."""
+    uniform = coarse_elements(problem, first_time)
+    graded = graded_elements(problem, first_time, uniform, EARLY_RESOLUTION)
+    return uniform if graded is None else graded
+
+
 def _check_case(problem: Problem) -> None:
     """ValueError naming the field of a layer or face that cannot be used."""
     for j, ly in enumerate(problem.layers):
@@ -907,8 +929,10 @@ def solve_transient_galerkin(
         times_array = np.asarray(problem.regime.times if times is None else times, dtype=float)
         positive = times_array[times_array > 0.0]
         first = float(positive.min()) if positive.size else None
-        elements_per_layer = tuple(REFINEMENT_RATIO**2 * n
-                                   for n in coarse_elements(problem, first))
+        elements_per_layer = _coarse_mesh(problem, first)
+        elements_per_layer = elements_per_layer.refined(REFINEMENT_RATIO**2) \
+            if isinstance(elements_per_layer, GradedElements) \
+            else tuple(REFINEMENT_RATIO**2 * n for n in elements_per_layer)
     return solve_transient_galerkin_meshes(problem, [elements_per_layer], times, rtol=rtol,
                                            end=end)[0]
 
@@ -1121,6 +1145,7 @@ def _package(problem: Problem, system: _System, g: int, times: np.ndarray, state
         diagnostics={
             "nodes": n,
             "elements_per_layer": list(mesh.elements_per_layer),
+            **({"grading": mesh.grading.describe()} if mesh.grading is not None else {}),
             "steps": int(ts.size - 1),
             "step_times": ts,
             "rejected_steps": history.rejected,
@@ -1169,11 +1194,13 @@ def galerkin_study(problem: Problem, times=None, coarse=None, *, rtol: float = R
     times_array, end = _times(problem, times, end, 0.0)
     if coarse is None:
         positive = times_array[times_array > 0.0]
-        coarse = coarse_elements(problem, float(positive.min()) if positive.size else None)
+        coarse = _coarse_mesh(problem, float(positive.min()) if positive.size else None)
     elif isinstance(coarse, int | np.integer):
         coarse = (int(coarse),) * len(problem.layers)
-    meshes = [tuple(REFINEMENT_RATIO**k * int(n) for n in coarse) for k in range(3)]
+    meshes: list = [coarse.refined(REFINEMENT_RATIO**k) for k in range(3)] \
+        if isinstance(coarse, GradedElements) \
+        else [tuple(REFINEMENT_RATIO**k * int(n) for n in coarse) for k in range(3)]
     solutions = solve_transient_galerkin_meshes(problem, meshes, times_array, rtol=rtol,
                                                 end=end)
-    sizes = [sum(mesh) for mesh in meshes]
+    sizes = [sum(s.mesh.elements_per_layer) for s in solutions]
     return GalerkinStudy(solutions, amount_study(solutions, sizes))

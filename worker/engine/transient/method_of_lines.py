@@ -1,6 +1,7 @@
 """Method of lines on the steady engine's finite-volume mesh: transient diffusion-reaction.
 
-Space is discretised exactly as in the steady solver (``fv_mesh``: uniform cells per layer,
+Space is discretised exactly as in the steady solver (``fv_mesh``: uniform cells per layer, or
+cells graded towards a face where a very early first time asks for it, ``transient.early_mesh``;
 series face conductances with the partition jump, half-cell boundary conductances). With the
 r^n-weighted cell volumes V_i and outward face fluxes Q_f (``fv_mesh.DiffusionOperator``), each
 cell obeys
@@ -765,8 +766,9 @@ def solve_transient_fv(
         Normalised case (SI), any number of layers and every boundary and reaction kind.
     times : array_like, optional
         Output times in s (default ``problem.regime.times``), increasing, within [start, end].
-    cells_per_layer : int or sequence of int, optional
-        Mesh (default ``fv_mesh.default_cells_per_layer``).
+    cells_per_layer : int, sequence of int or GradedCells, optional
+        Mesh (default ``fv_mesh.default_cells_per_layer``; a ``fv_grading.GradedCells``
+        grades the cells towards faces).
     rtol : float
         Relative tolerance of the integrator (absolute tolerances scale with it).
     end : float, optional
@@ -802,7 +804,8 @@ def solve_transient_fv_meshes(
     The meshes share the integrator's steps (one error-controlled BDF integration whose error
     norm covers every mesh), which costs far less than one integration per mesh; each mesh's
     discrete solution is otherwise independent of the others. Parameters as
-    ``solve_transient_fv``; ``meshes`` is a list of ``cells_per_layer`` specifications and
+    ``solve_transient_fv``; ``meshes`` is a list of ``cells_per_layer`` specifications (each
+    an int, one int per layer or a ``fv_grading.GradedCells``) and
     ``initial_states`` an optional list of state vectors, one per mesh.
     """
     times, end = _check_times(problem, times, end, start)
@@ -923,6 +926,7 @@ def _package(problem, mesh, system, times, states, success, result, dense, low, 
             "zero_order_smoothing": system.epsilon if system.terms.has_zero_order else None,
             "final_state": states[:, -1].copy() if success else None,
             "end_state": None if end_state is None else end_state[low:high].copy(),
+            **({"grading": mesh.grading.describe()} if mesh.grading is not None else {}),
         },
     )
 

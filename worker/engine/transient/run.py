@@ -141,6 +141,10 @@ def run_transient(problem: Problem, independent: Problem | None = None) -> Outco
         study = galerkin_study(independent, internal, end=duration)
     fine, coarse = fvs[2], fvs[0]
     outcome.diagnostics["meshes"] = [f.diagnostics["cells_per_layer"] for f in fvs]
+    if "grading" in fvs[0].diagnostics:  # only a very early first time grades (early_mesh)
+        outcome.diagnostics["mesh_grading"] = fvs[0].diagnostics["grading"]
+    if study is not None and "grading" in study.solutions[0].diagnostics:
+        outcome.diagnostics["galerkin_grading"] = study.solutions[0].diagnostics["grading"]
     outcome.diagnostics["fv_steps"] = [f.diagnostics["steps"] for f in fvs]
     if not all(f.success for f in fvs):
         failed = next(f for f in fvs if not f.success)

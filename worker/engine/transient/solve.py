@@ -12,11 +12,13 @@ import numpy as np
 from worker.engine import convergence
 from worker.engine.boundaries.compartment import compartment_sides
 from worker.engine.exact_steady import solve_exact
+from worker.engine.fv_grading import GradedCells
 from worker.engine.fv_mesh import default_cells_per_layer
 from worker.engine.fv_steady import solve_fv
 from worker.engine.limits import check_limit
 from worker.engine.model import Problem, Regime, SteadySolution
 from worker.engine.transient import exact_series, method_of_lines
+from worker.engine.transient.early_mesh import graded_coarse
 from worker.engine.transient.exact_series import TransientSeriesSolution
 from worker.engine.transient.method_of_lines import TransientFVSolution
 from worker.engine.transient.scales import (
@@ -86,10 +88,15 @@ def requested_times(problem: Problem) -> tuple[np.ndarray, float]:
     return np.unique(times), float(duration)
 
 
-def mesh_sequence(problem: Problem, first_time: float | None) -> list[tuple[int, ...]]:
+def mesh_sequence(problem: Problem, first_time: float | None
+                  ) -> list[tuple[int, ...]] | list[GradedCells]:
     """Coarse, medium and fine cells per layer (ratio 2). The coarse mesh is the steady mesh
     rule divided by ``COARSE_DIVISOR``, refined where needed so that the diffusion length at the
-    first requested time spans several coarse cells (``EARLY_RESOLUTION``)."""
+    first requested time spans several coarse cells (``EARLY_RESOLUTION``), up to
+    ``MAX_COARSE_CELLS``. Where that cap leaves a layer at an exchanging face too coarse for the
+    first time (``early_mesh``), the coarse mesh's cells there are graded towards the face
+    (``fv_grading.GradedCells``) and the medium and fine meshes cut each of its cells in two
+    and four along the same map; every other case gets its uniform meshes."""
     base = default_cells_per_layer(problem)
     cells_per_layer = []
     for n, layer in zip(base, problem.layers, strict=True):
@@ -100,6 +107,9 @@ def mesh_sequence(problem: Problem, first_time: float | None) -> list[tuple[int,
             cells = max(cells, min(early, MAX_COARSE_CELLS))
         cells_per_layer.append(cells)
     coarse = tuple(cells_per_layer)
+    graded = graded_coarse(problem, first_time, coarse, EARLY_RESOLUTION)
+    if graded is not None:
+        return [graded, graded.refined(2), graded.refined(4)]
     return [coarse, tuple(2 * n for n in coarse), tuple(4 * n for n in coarse)]
 
 
@@ -247,7 +257,7 @@ def late_state(problem: Problem, fine: TransientFVSolution,
     end = duration + horizon
     y_end = fine.diagnostics["end_state"]
     late = method_of_lines.solve_transient_fv(
-        problem, [duration + 0.5 * horizon, end], fine.diagnostics["cells_per_layer"], end=end,
+        problem, [duration + 0.5 * horizon, end], fine.mesh.spec, end=end,
         initial_state=y_end, start=duration, rtol=CONTINUATION_RTOL)
     setattr(fine, "_late", late)  # noqa: B010 - a cache the solution type does not declare
     return late

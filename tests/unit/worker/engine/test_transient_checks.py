@@ -418,7 +418,9 @@ def _coarse(**amounts):
     base = {"remaining": np.array([2.0, 1.5, 1.0]), "released_inner": np.zeros(3),
             "released_outer": np.array([0.0, 0.5, 1.0]), "consumed": np.zeros(3)}
     base.update(amounts)
-    return SimpleNamespace(rtol=1e-6, diagnostics={"cells_per_layer": [50]}, **base)
+    # the mesh as the re-solve builds it again (``Mesh.spec``: cells per layer, or a grading)
+    return SimpleNamespace(rtol=1e-6, diagnostics={"cells_per_layer": [50]},
+                           mesh=SimpleNamespace(spec=(50,)), **base)
 
 
 def _time_check(monkeypatch, tight):
@@ -443,7 +445,7 @@ def test_time_check_is_the_largest_change_under_a_tenfold_tighter_tolerance(monk
                             released_outer=coarse.released_outer + np.array([0, change, 0]),
                             consumed=coarse.consumed.copy())
     check, calls = _time_check(monkeypatch, tight)
-    assert calls == [{"cells": [50], "end": 1000.0, "rtol": pytest.approx(1e-7, rel=1e-12)}]
+    assert calls == [{"cells": (50,), "end": 1000.0, "rtol": pytest.approx(1e-7, rel=1e-12)}]
     assert check.value == pytest.approx(3e-5 / AMOUNT_SCALE, rel=1e-9)
     assert not check.passed  # limit 1e-5
     assert "worst at t = 0.5 s" in check.detail
