@@ -536,17 +536,22 @@ def paths(system: Any, copies: Any, y0: np.ndarray, ts: np.ndarray, parts: tuple
     y = np.tile(y0, len(order))
     states = np.full((len(order), size, ts.size), np.nan)
     states[:, :, 0] = y0
+    # the paths stepping in each of the finest path's steps, and each path's parts
+    counts = [sum(1 for p in order if i % (finest // p) == 0) for i in range(finest)]
+    per_state = np.repeat(np.array(order, dtype=float), size)
     for k in range(1, ts.size):
-        lengths = [(ts[k] - ts[k - 1]) / p for p in order]
+        span = ts[k] - ts[k - 1]
+        finest_length = span / finest
+        lengths = span / per_state  # each state's step in this step of ``ts``
         for i in range(finest):
-            count = sum(1 for p in order if i % (finest // p) == 0)
+            count = counts[i]
             solver = solvers[count]
             if count == 1:
-                found = solver.step(ts[k - 1] + i * lengths[0], y[:size], lengths[0])
+                found = solver.step(ts[k - 1] + i * finest_length, y[:size], finest_length)
             else:
                 assert isinstance(solver, _ChainSolver)
-                found = solver.step_blocks(y[:count * size], np.repeat(lengths[:count], size),
-                                           count, pieces)
+                found = solver.step_blocks(y[:count * size], lengths[:count * size], count,
+                                           pieces)
             if found is None:
                 return {p: (states[j], False) for j, p in enumerate(order)}
             y[:count * size] = found
