@@ -109,6 +109,7 @@ from numpy.typing import ArrayLike
 from scipy.interpolate import CubicSpline
 
 from worker.engine.model import Boundary, Problem
+from worker.engine.transient.front_staircase import staircase_inflow_band
 from worker.engine.transient.galerkin_steps import integrate
 from worker.engine.transient.method_of_lines import concentration_scale
 from worker.engine.transient.refinement import AmountStudy, amount_study
@@ -822,6 +823,11 @@ class TransientGalerkinSolution(TransientSolution):
     #: Fluid concentration of each compartment face (``"inner"``/``"outer"``) at the times,
     #: amount/m^3 (its starting level at t = 0; empty without compartments).
     compartments: dict[str, np.ndarray] = field(default_factory=dict)
+    #: Per face (``"inner"``/``"outer"``) that holds a value or a compartment, where a layer
+    #: is loaded above its solubility: the bound of the face flux density's error from the step
+    #: the dissolution front makes on this mesh (``front_staircase``), amount/(m^2 s), at the
+    #: times.
+    flux_front_band: dict[str, np.ndarray] = field(default_factory=dict)
 
 
 def coarse_elements(problem: Problem, first_time: float | None = None) -> tuple[int, ...]:
@@ -1088,12 +1094,14 @@ def _package(problem: Problem, system: _System, g: int, times: np.ndarray, state
     front_outer = np.full((times.size, len(loaded)), np.nan)
     front_inner = np.full((times.size, len(loaded)), np.nan)
     depleted: list[float | None] = [None] * len(loaded)
+    staircase: dict[str, np.ndarray] = {}
     if loaded and success:
         full = states[size:2 * size].T
         for k in range(times.size):
             front_outer[k], front_inner[k] = _fronts(system, g, full[k][low:high],
                                                      problem.exponent)
         depleted = _depletion_times(system, g, np.asarray(history.ts), stored)
+        staircase = _staircase_bands(system, g, nodal, full[:, low:high])
     ts = np.asarray(history.ts, dtype=float)
     compartments = {}
     for side, face, local in (("inner", system.inner, 0), ("outer", system.outer, n - 1)):
@@ -1136,7 +1144,28 @@ def _package(problem: Problem, system: _System, g: int, times: np.ndarray, state
         front_inner=front_inner,
         time_depleted_layers=depleted,
         compartments=compartments,
+        flux_front_band=staircase,
     )
+
+
+def _staircase_bands(system: _System, g: int, nodal: np.ndarray, solid: np.ndarray
+                     ) -> dict[str, np.ndarray]:
+    """Per face that holds a value or a compartment, the band of mesh g's face flux density at
+    each time from the step its dissolution front makes (``front_staircase``); ``nodal`` and
+    ``solid`` are the mesh's u and undissolved amounts, one row per time."""
+    low, high = int(system.node_offsets[g]), int(system.node_offsets[g + 1])
+    first = low - g  # the mesh's first element
+    stiffness = system.stiffness[first:first + high - low - 1]
+    present = DEPLETED * system.undissolved_capacity[low:high]
+    saturation = system.saturation_potential[low:high]
+    bands = {}
+    for side, face in (("inner", system.inner), ("outer", system.outer)):
+        if face.kind not in ("compartment", "dirichlet") or not face.weight > 0.0:
+            continue
+        bands[side] = np.array([staircase_inflow_band(stiffness, solid[k], present, nodal[k],
+                                                      saturation, side)
+                                for k in range(nodal.shape[0])]) / face.weight
+    return bands
 
 
 @dataclass
