@@ -45,7 +45,10 @@ content, as for the Stefan problem: C.M. Elliott, J.R. Ockendon, *Weak and Varia
 for Moving Boundary Problems*, Pitman, 1982, ch. 2). An interface node's undissolved solute
 belongs to the layer whose limit binds there. The edge of a layer's undissolved region is read
 from the partly dissolved node at each end of it: its fraction ``s_i / ((C0 - S) int phi_i
-r^n)`` of its dual cell (element midpoints), taken in the r^n measure.
+r^n)`` of its dual cell (element midpoints), taken in the r^n measure. That node holds S/K at
+its own position while the front lies anywhere in its cell, so a face rate steps each time
+the front leaves a node; ``flux_front_band`` of the solution bounds the step
+(``front_staircase``).
 
 Mass matrix: lumped (row sums of the consistent matrix, ``m_i = int K phi_i r^n``). Lumping keeps
 the P1 scheme second order in the L2 norm and in the amounts (Thomee 2006, ch. 15, Theorem
