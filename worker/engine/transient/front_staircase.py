@@ -30,7 +30,7 @@ the solubility into a perfect sink or a stirred medium, a bead whose medium satu
 releasing inward, a sphere and a cylinder): the error at most 0.32 of the grid band plus this
 band, where the grid band alone was exceeded up to 7e3-fold (40 times the solubility, 6 h).
 At 3 times the solubility the step is smoothed (error 2e-5 of the peak rate against a band of
-5e-3): the bound is loose there, never short.
+5e-3): the bound is loose there; on none of the nine was it short.
 """
 
 from __future__ import annotations
