@@ -46,7 +46,10 @@ content, as for the Stefan problem: C.M. Elliott, J.R. Ockendon, *Weak and Varia
 for Moving Boundary Problems*, Pitman, 1982, ch. 2). An interface node's undissolved solute
 belongs to the layer whose limit binds there. The edge of a layer's undissolved region is read
 from the partly dissolved node at each end of it: its fraction ``s_i / ((C0 - S) int phi_i
-r^n)`` of its dual cell (element midpoints), taken in the r^n measure.
+r^n)`` of its dual cell (element midpoints), taken in the r^n measure. That node holds S/K at
+its own position while the front lies anywhere in its cell, so a face rate steps each time
+the front leaves a node; ``flux_front_band`` of the solution bounds the step
+(``front_staircase``).
 
 Mass matrix: lumped (row sums of the consistent matrix, ``m_i = int K phi_i r^n``). Lumping keeps
 the P1 scheme second order in the L2 norm and in the amounts (Thomee 2006, ch. 15, Theorem
@@ -111,6 +114,7 @@ from scipy.interpolate import CubicSpline
 
 from worker.engine.limits import TRANSIENT_LIMITS, regime_defaults
 from worker.engine.model import Boundary, Problem
+from worker.engine.transient.front_staircase import staircase_inflow_band
 from worker.engine.transient.galerkin_grading import GradedElements, graded_elements
 from worker.engine.transient.galerkin_steps import integrate
 from worker.engine.transient.method_of_lines import concentration_scale
@@ -840,6 +844,11 @@ class TransientGalerkinSolution(TransientSolution):
     #: Fluid concentration of each compartment face (``"inner"``/``"outer"``) at the times,
     #: amount/m^3 (its starting level at t = 0; empty without compartments).
     compartments: dict[str, np.ndarray] = field(default_factory=dict)
+    #: Per face (``"inner"``/``"outer"``) that holds a value or a compartment, where a layer
+    #: is loaded above its solubility: the bound of the face flux density's error from the step
+    #: the dissolution front makes on this mesh (``front_staircase``), amount/(m^2 s), at the
+    #: times.
+    flux_front_band: dict[str, np.ndarray] = field(default_factory=dict)
 
 
 def coarse_elements(problem: Problem, first_time: float | None = None) -> tuple[int, ...]:
@@ -1117,12 +1126,14 @@ def _package(problem: Problem, system: _System, g: int, times: np.ndarray, state
     front_outer = np.full((times.size, len(loaded)), np.nan)
     front_inner = np.full((times.size, len(loaded)), np.nan)
     depleted: list[float | None] = [None] * len(loaded)
+    staircase: dict[str, np.ndarray] = {}
     if loaded and success:
         full = states[size:2 * size].T
         for k in range(times.size):
             front_outer[k], front_inner[k] = _fronts(system, g, full[k][low:high],
                                                      problem.exponent)
         depleted = _depletion_times(system, g, np.asarray(history.ts), stored)
+        staircase = _staircase_bands(system, g, nodal, full[:, low:high])
     ts = np.asarray(history.ts, dtype=float)
     compartments = {}
     for side, face, local in (("inner", system.inner, 0), ("outer", system.outer, n - 1)):
@@ -1166,7 +1177,28 @@ def _package(problem: Problem, system: _System, g: int, times: np.ndarray, state
         front_inner=front_inner,
         time_depleted_layers=depleted,
         compartments=compartments,
+        flux_front_band=staircase,
     )
+
+
+def _staircase_bands(system: _System, g: int, nodal: np.ndarray, solid: np.ndarray
+                     ) -> dict[str, np.ndarray]:
+    """Per face that holds a value or a compartment, the band of mesh g's face flux density at
+    each time from the step its dissolution front makes (``front_staircase``); ``nodal`` and
+    ``solid`` are the mesh's u and undissolved amounts, one row per time."""
+    low, high = int(system.node_offsets[g]), int(system.node_offsets[g + 1])
+    first = low - g  # the mesh's first element
+    stiffness = system.stiffness[first:first + high - low - 1]
+    present = DEPLETED * system.undissolved_capacity[low:high]
+    saturation = system.saturation_potential[low:high]
+    bands = {}
+    for side, face in (("inner", system.inner), ("outer", system.outer)):
+        if face.kind not in ("compartment", "dirichlet") or not face.weight > 0.0:
+            continue
+        bands[side] = np.array([staircase_inflow_band(stiffness, solid[k], present, nodal[k],
+                                                      saturation, side)
+                                for k in range(nodal.shape[0])]) / face.weight
+    return bands
 
 
 @dataclass

@@ -13,9 +13,11 @@ the internal times, its own initial load, its profile at any internal time and i
 
 Each numerical route also gives its fine mesh's face rates with their band |fine - medium|
 (compared where a dissolution front moves); behind a compartment the method of lines' band
-also holds its time error (:func:`add_flux_time_band`). Where a layer is loaded above its
-solubility, each numerical route gives its front account from its own three meshes
-(:func:`galerkin_fronts`, :func:`fv_fronts`, both through :func:`front_account`).
+also holds its time error (:func:`add_flux_time_band`), and where a front moves the Galerkin
+route's band holds the step the front makes on its fine mesh (:func:`add_front_flux_band`).
+Where a layer is loaded above its solubility, each numerical route gives its front account
+from its own three meshes (:func:`galerkin_fronts`, :func:`fv_fronts`, both through
+:func:`front_account`).
 """
 
 from __future__ import annotations
@@ -40,9 +42,9 @@ LAPLACE_EVENT_SCAN_POINTS = 48
 #: Release levels of the events.
 EVENT_LEVELS = (("t50", 0.5), ("t90", 0.9))
 
-__all__ = ["EVENT_LEVELS", "add_flux_time_band", "front_account", "fv_fronts", "fv_route",
-           "galerkin_compartments", "galerkin_fronts", "galerkin_route", "laplace_route",
-           "series_route"]
+__all__ = ["EVENT_LEVELS", "add_flux_time_band", "add_front_flux_band", "front_account",
+           "fv_fronts", "fv_route", "galerkin_compartments", "galerkin_fronts",
+           "galerkin_route", "laplace_route", "series_route"]
 
 
 def _events(outcome: Outcome, key: str) -> dict[str, float | None]:
@@ -108,6 +110,28 @@ def add_flux_time_band(route: Route, problem: Problem, fine: TransientFVSolution
             own - np.asarray(halved[f"flux_{side}"], dtype=float))
     route.flux_band_terms = ("grid band |fine - medium| plus the fine mesh's time band "
                              "|h - h/2|")
+    return True
+
+
+def add_front_flux_band(route: Route, study: GalerkinStudy) -> bool:
+    """Widen the Galerkin route's face-flux bands by its fine mesh's front step
+    (``TransientGalerkinSolution.flux_front_band``, ``front_staircase``): the dissolving node
+    holds the solubility at its own position, not at the front, and the nested meshes share
+    that node wherever it is a coarse node, so |fine - medium| can be round-off while the fine
+    rate is off by up to half a cell over the distance to the front (measured at 6 h on a
+    coating 40 times above its solubility behind a stirred medium: the three meshes within
+    7e-7 of the peak rate, the fine mesh 1.26e-2 from a mesh eight times finer, its front band
+    2.5e-2; the same coating into a perfect sink with D 3 % higher: |fine - medium| 0, the
+    fine mesh 1.7e-2 off, its front band 2.5e-2). False (bands unchanged) where the fine mesh
+    has no such band (no layer loaded above its solubility, or no face that holds a value or
+    a compartment)."""
+    own = study.fine.flux_front_band
+    if not own:
+        return False
+    for side, band in own.items():
+        route.flux_band[side] = route.flux_band.get(side, np.zeros(band.size)) + band
+    route.flux_band_terms = ("grid band |fine - medium| plus the fine mesh's front step "
+                             "(half a cell over the distance to the front)")
     return True
 
 

@@ -43,6 +43,7 @@ from worker.engine.transient.record import (
 )
 from worker.engine.transient.routes import (
     add_flux_time_band,
+    add_front_flux_band,
     fv_fronts,
     fv_route,
     galerkin_route,
@@ -60,18 +61,6 @@ from worker.engine.transient.solve import (
 )
 
 __all__ = ["run_transient"]
-
-#: Whether a layer that can saturate behind a compartment face gets the Galerkin route. Off:
-#: right after a dissolution front leaves the face neither route's grid band bounds its own
-#: face-rate error. Measured 2026-12-05, fine-mesh rates against each route's own mesh four
-#: times finer, as a fraction of the peak rate: the demo coating above solubility into a finite
-#: medium at 6 h, method of lines 1.5e-2 (its Richardson value 4.2e-2) with a band |fine -
-#: medium| of 2.3e-2; the same with D 3 % higher (the centre of its law of propagation), the
-#: Galerkin route 1.2e-2 at 6 h and 4.7e-3 at 1 d while its three meshes agree to five digits
-#: (band 7e-7): ``cross_check.flux_outer`` 8.2e-3 against 1e-3. On (tests only), the face rates
-#: are compared on the fine meshes and the method of lines' band holds its time error
-#: (``routes.add_flux_time_band``); cases past that first front pass there.
-GALERKIN_BEHIND_SATURATING_COMPARTMENT = False
 
 #: The method of lines, when the series is not used: the independent checks are its own.
 _REFINEMENT_METHOD = {
@@ -128,16 +117,7 @@ def run_transient(problem: Problem, independent: Problem | None = None) -> Outco
     # route, on the independent reading.
     compartments = compartment_sides(problem)
     study = None
-    if not exact_primary and compartments and problem.can_saturate \
-            and not GALERKIN_BEHIND_SATURATING_COMPARTMENT:
-        outcome.warnings.append(
-            "the Galerkin second discretisation is not run for a layer that can saturate "
-            "behind a compartment face: this case is checked by space and time refinement and "
-            "mass balance"
-            + (" (no cross_check.front_position or cross_check.time_depleted: the fronts and "
-               "depletion times have no second route)"
-               if dispersed.loaded_layers(problem) else ""))
-    elif not exact_primary:
+    if not exact_primary:
         study = galerkin_study(independent, internal, end=duration)
     fine, coarse = fvs[2], fvs[0]
     outcome.diagnostics["meshes"] = [f.diagnostics["cells_per_layer"] for f in fvs]
@@ -169,13 +149,17 @@ def run_transient(problem: Problem, independent: Problem | None = None) -> Outco
     routes = [fv_route(fv_name, fine, numerical, internal, outcome, medium=fvs[1])]
     routes[0].compartments = extrapolated_compartments(fvs, internal)
     routes[0].fronts = fv_fronts(lines_problem, fvs)
-    if study is not None and compartments and problem.can_saturate:
+    saturating_compartment = study is not None and bool(compartments) and problem.can_saturate
+    if saturating_compartment:
         # the face rate behind a compartment falls towards zero where the fluid nears its
         # equilibrium or the solubility: there the step error sets it (compare._flux_offers)
         add_flux_time_band(routes[0], lines_problem, fine)
     if study is not None:
         if study.success:
             routes.append(galerkin_route(independent, study, internal, duration))
+            # where a front moves: its nested meshes share the dissolving node, so their
+            # difference can miss the step the front makes in the face rate
+            add_front_flux_band(routes[-1], study)
         else:
             failed_mesh = next(s for s in study.solutions if not s.success)
             outcome.add_check("cross_check.independent", None, None, False,
