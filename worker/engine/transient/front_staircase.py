@@ -23,7 +23,11 @@ between the front and the face only smooths how a shift of the front reaches the
 response of the face rate to a step at the far end of a slab rises monotonically to its
 quasi-steady value, as the outflow of a membrane in the time-lag solution: J. Crank, *The
 Mathematics of Diffusion*, 2nd ed., 1975, ch. 4), so this quasi-steady figure bounds the
-step. Units: the r^n-weighted flux r^n J, amount m^(n-2)/s (divide by the face's r^n for a
+step. Behind a mass-transfer film of resistance rho_film (face node not held) the same shift
+changes the inflow q = (U_j - u_b) / (rho_j + rho_film) by q d_rho / (rho_j + rho_film), at
+most q d_rho / rho_j = (U_j - u_f) d_rho / rho_j^2 since u_f = u_b + q rho_film: the chain to
+the face node bounds that face too (resistances in series, common practice). Units: the
+r^n-weighted flux r^n J, amount m^(n-2)/s (divide by the face's r^n for a
 flux density, amount/(m^2 s)).
 
 Measured (fine mesh against a mesh eight times finer, nine cases: slabs at 3, 25 and 40 times
