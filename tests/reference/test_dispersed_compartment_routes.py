@@ -80,7 +80,6 @@ def test_dispersed_layer_behind_a_compartment_is_compared_by_two_routes(make, si
     outcome = run_transient(make())
     names = [m["name"] for m in outcome.methods]
     assert any(name.startswith("Galerkin") for name in names)
-    assert not any("Galerkin second discretisation is not run" in w for w in outcome.warnings)
     checks = _checks(outcome)
     for name in ("cross_check.release_fraction", "cross_check.remaining",
                  f"cross_check.flux_{side}", "cross_check.profile",
@@ -131,10 +130,13 @@ def _early_coating(diffusivity: float = 4e-15, days: float = 10.0,
                    face: str = "compartment") -> Problem:
     """A coating at 40 times its solubility and partition 10, first reported at 6 h, when the
     front has crossed a few cells: where the Galerkin route's three meshes share the
-    dissolving node. Over 30 d its undissolved drug runs out (near 24 d)."""
+    dissolving node. Over 30 d its undissolved drug runs out (near 24 d). ``face``: the
+    stirred medium, a perfect sink, or a sink behind a film of 1e-4 m/s (at 6 h its resistance
+    some 2e-4 of the 2 um dissolved layer's: nearly the sink, but the face node not held)."""
     times = tuple(DAY * t for t in (0.25, 1.0, 2.0, 5.0, 10.0, 20.0, 30.0) if t <= days)
-    outer = (Boundary("compartment", volume=3e-6) if face == "compartment"
-             else Boundary("concentration", 0.0))
+    outer = {"compartment": Boundary("compartment", volume=3e-6),
+             "sink": Boundary("concentration", 0.0),
+             "film": Boundary("mass_transfer", coefficient=1e-4, bulk=0.0)}[face]
     return Problem("slab", 0.0, (Layer("coating", 2e-5, diffusivity, 10.0, initial=160.0,
                                        solubility=4.0),),
                    Boundary("symmetry"), outer, Regime("transient", days * DAY, times),
@@ -152,7 +154,6 @@ def test_right_after_the_front_leaves_the_face_both_routes_pass(diffusivity):
     assert not failed
     assert "cross_check.front_position" in checks
     assert "front step" in checks["cross_check.flux_outer"].detail
-    assert not any("Galerkin second discretisation is not run" in w for w in outcome.warnings)
 
 
 def _paul_mcspadden_flux(diffusivity: float, loading: float, solubility: float,
@@ -213,7 +214,18 @@ def test_the_same_coating_into_a_perfect_sink_passes_the_face_rate_check():
     assert "front step" in check.detail
 
 
-@pytest.mark.parametrize("face", ["compartment", "sink"])
+def test_the_same_coating_behind_a_film_passes_the_face_rate_check():
+    """As into the perfect sink, through a mass-transfer film (the face node not held): the
+    front step bounds that face too (``front_staircase``: the chain to the face node bounds
+    the chain through the film). Before the film face had the band, 8.1e-3 against 1e-3 at
+    6 h, as the sink had."""
+    check = _checks(run_transient(_early_coating(1.03 * 4e-15, 30.0, "film")))[
+        "cross_check.flux_outer"]
+    assert check.passed, check.detail
+    assert "front step" in check.detail
+
+
+@pytest.mark.parametrize("face", ["compartment", "sink", "film"])
 @pytest.mark.parametrize("factor", [1.03, 0.97])
 def test_a_galerkin_face_rate_beyond_its_band_fails(factor, face):
     """The Galerkin route reading the coating's diffusivity 3 % off, either way: its face rate

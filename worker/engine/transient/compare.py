@@ -186,8 +186,10 @@ def _flux_offers(offer, problem: Problem, primary: Route, other: Route, internal
             # a dissolution front makes a face rate step each time it leaves a cell, so the
             # meshes are not in their asymptotic range and a Richardson value can lie farther
             # from the truth than the fine mesh's: each numerical route's fine-mesh rate is
-            # compared, and the difference counts beyond both routes' grid bands, the bands of
-            # those fine values (Roache 1994), as for the profile
+            # compared, and the difference counts beyond both routes' bands of those fine
+            # values: the grid band (Roache 1994), as for the profile, plus, where added, the
+            # Galerkin fine mesh's front step (``routes.add_front_flux_band``) and behind a
+            # compartment the method of lines' time band (``routes.add_flux_time_band``)
             a = weight * primary.flux_fine.get(side, primary.amounts[f"flux_{side}"])
             b = weight * other.flux_fine.get(side, other.amounts[f"flux_{side}"])
             bands = [weight * route.flux_band.get(side, np.zeros(internal.size))

@@ -32,8 +32,10 @@ from worker.engine.model import Problem
 #: make that layer's cells graded (between the 0.63 that still passes and the 0.73 that fails,
 #: module docstring).
 GRADING_TRIGGER = 0.65
-#: The steepest grading asked for: the face-cell slope of ``fv_grading.MAX_STRETCH`` (reached
-#: only for a first time some 1e-25 of the diffusion time across the layer).
+#: The steepest grading asked for: the face-cell slope of ``fv_grading.MAX_STRETCH``, 8.1e-13
+#: (reached only for a first time below some 1e-28 of the diffusion time L^2 / D across the
+#: layer: slope = N resolution sqrt(D t1) / L, with at least ``solve.MAX_COARSE_CELLS`` = 250
+#: cells at ``solve.EARLY_RESOLUTION`` = 0.35, gives D t1 / L^2 = 8.6e-29).
 SLOPE_FLOOR = MAX_STRETCH / math.sinh(MAX_STRETCH)
 
 __all__ = ["GRADING_TRIGGER", "exchanging_sides", "graded_coarse"]

@@ -23,7 +23,12 @@ between the front and the face only smooths how a shift of the front reaches the
 response of the face rate to a step at the far end of a slab rises monotonically to its
 quasi-steady value, as the outflow of a membrane in the time-lag solution: J. Crank, *The
 Mathematics of Diffusion*, 2nd ed., 1975, ch. 4), so this quasi-steady figure bounds the
-step. Units: r^n-weighted amount per second (divide by the face's r^n for a flux density).
+step. Behind a mass-transfer film of resistance rho_film (face node not held) the same shift
+changes the inflow q = (U_j - u_b) / (rho_j + rho_film) by q d_rho / (rho_j + rho_film), at
+most q d_rho / rho_j = (U_j - u_f) d_rho / rho_j^2 since u_f = u_b + q rho_film: the chain to
+the face node bounds that face too (resistances in series, common practice). Units: the
+r^n-weighted flux r^n J, amount m^(n-2)/s (divide by the face's r^n for a
+flux density, amount/(m^2 s)).
 
 Measured (fine mesh against a mesh eight times finer, nine cases: slabs at 3, 25 and 40 times
 the solubility into a perfect sink or a stirred medium, a bead whose medium saturates, a tube
@@ -47,8 +52,8 @@ def staircase_inflow_band(stiffness: np.ndarray, solid: np.ndarray, present: np.
     Parameters
     ----------
     stiffness : ndarray
-        Per element of the mesh (inner to outer), ``D K int r^n / h^2`` (r^n-weighted, m^(n-1)
-        per s times the layer's K).
+        Per element of the mesh (inner to outer), ``D K int r^n / h^2`` (r^n-weighted, m^(n+1)
+        per s: D in m^2/s, int r^n dr in m^(n+1), h in m; K dimensionless).
     solid : ndarray
         Undissolved amount per node (r^n-weighted).
     present : ndarray
@@ -63,7 +68,8 @@ def staircase_inflow_band(stiffness: np.ndarray, solid: np.ndarray, present: np.
     Returns
     -------
     float
-        The band of the r^n-weighted inflow through that face; 0 where no node holds
+        The band of the r^n-weighted inflow through that face (amount m^(n-2)/s, with ``u``
+        and ``saturation`` in amount/m^3); 0 where no node holds
         undissolved solute, where the face node itself does (no dissolved region to step) or
         where the dissolving node has no finite saturation potential.
     """

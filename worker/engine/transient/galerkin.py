@@ -844,8 +844,9 @@ class TransientGalerkinSolution(TransientSolution):
     #: Fluid concentration of each compartment face (``"inner"``/``"outer"``) at the times,
     #: amount/m^3 (its starting level at t = 0; empty without compartments).
     compartments: dict[str, np.ndarray] = field(default_factory=dict)
-    #: Per face (``"inner"``/``"outer"``) that holds a value or a compartment, where a layer
-    #: is loaded above its solubility: the bound of the face flux density's error from the step
+    #: Per face (``"inner"``/``"outer"``) that exchanges with a fluid (holds a value, a
+    #: compartment or a mass-transfer film), where a layer is loaded above its solubility: the
+    #: bound of the face flux density's error from the step
     #: the dissolution front makes on this mesh (``front_staircase``), amount/(m^2 s), at the
     #: times.
     flux_front_band: dict[str, np.ndarray] = field(default_factory=dict)
@@ -1183,9 +1184,10 @@ def _package(problem: Problem, system: _System, g: int, times: np.ndarray, state
 
 def _staircase_bands(system: _System, g: int, nodal: np.ndarray, solid: np.ndarray
                      ) -> dict[str, np.ndarray]:
-    """Per face that holds a value or a compartment, the band of mesh g's face flux density at
-    each time from the step its dissolution front makes (``front_staircase``); ``nodal`` and
-    ``solid`` are the mesh's u and undissolved amounts, one row per time."""
+    """Per face that exchanges with a fluid (a value, a compartment or a mass-transfer film),
+    the band of mesh g's face flux density at each time from the step its dissolution front
+    makes (``front_staircase``; behind a film the chain to the face node bounds it, see there);
+    ``nodal`` and ``solid`` are the mesh's u and undissolved amounts, one row per time."""
     low, high = int(system.node_offsets[g]), int(system.node_offsets[g + 1])
     first = low - g  # the mesh's first element
     stiffness = system.stiffness[first:first + high - low - 1]
@@ -1193,7 +1195,7 @@ def _staircase_bands(system: _System, g: int, nodal: np.ndarray, solid: np.ndarr
     saturation = system.saturation_potential[low:high]
     bands = {}
     for side, face in (("inner", system.inner), ("outer", system.outer)):
-        if face.kind not in ("compartment", "dirichlet") or not face.weight > 0.0:
+        if face.kind not in ("compartment", "dirichlet", "robin") or not face.weight > 0.0:
             continue
         bands[side] = np.array([staircase_inflow_band(stiffness, solid[k], present, nodal[k],
                                                       saturation, side)

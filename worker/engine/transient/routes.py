@@ -123,8 +123,8 @@ def add_front_flux_band(route: Route, study: GalerkinStudy) -> bool:
     7e-7 of the peak rate, the fine mesh 1.26e-2 from a mesh eight times finer, its front band
     2.5e-2; the same coating into a perfect sink with D 3 % higher: |fine - medium| 0, the
     fine mesh 1.7e-2 off, its front band 2.5e-2). False (bands unchanged) where the fine mesh
-    has no such band (no layer loaded above its solubility, or no face that holds a value or
-    a compartment)."""
+    has no such band (no layer loaded above its solubility, or no face that exchanges with a
+    fluid: a value, a compartment or a mass-transfer film)."""
     own = study.fine.flux_front_band
     if not own:
         return False

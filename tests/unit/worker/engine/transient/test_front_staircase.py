@@ -39,6 +39,26 @@ def test_the_band_is_the_half_cell_change_of_the_series_flow(side, holding, elem
     assert band == pytest.approx(drop * K_ELEMENT / (2 * elements**2), rel=1e-12)
 
 
+@pytest.mark.parametrize("film", [0.3 * K_ELEMENT, 3.0 * K_ELEMENT, 300.0 * K_ELEMENT])
+def test_behind_a_film_the_chain_to_the_face_node_bounds_the_step(film):
+    # m elements and a film of conductance ``film`` in series (common practice): the flow
+    # q = dU_b / (rho + rho_film), rho = m / k, the face node at u_b + q rho_film. Half an
+    # element's resistance d_rho = 1 / (2 k) changes q by q d_rho / (rho + rho_film) to first
+    # order; the band read from the chain to the face node is q d_rho / rho, no smaller, and
+    # it lies between the exact changes half a cell farther and nearer of a film-less chain
+    elements, u_bulk = 10, 0.0
+    stiffness, solid, present, u, saturation, _ = _chain(21, slice(0, 21 - elements))
+    rho, rho_film, d_rho = elements / K_ELEMENT, 1.0 / film, 0.5 / K_ELEMENT
+    flow = (U_SAT - u_bulk) / (rho + rho_film)
+    u[-1] = u_bulk + flow * rho_film
+    band = staircase_inflow_band(stiffness, solid, present, u, saturation, "outer")
+    first_order = flow * d_rho / (rho + rho_film)
+    assert first_order < band
+    assert band == pytest.approx(flow * d_rho / rho, rel=1e-12)
+    farther = flow - (U_SAT - u_bulk) / (rho + d_rho + rho_film)
+    assert farther < band
+
+
 def test_no_band_without_a_dissolving_node_away_from_the_face():
     stiffness, solid, present, u, saturation, face_u = _chain(9, slice(0, 0))
     assert staircase_inflow_band(stiffness, solid, present, u, saturation, "outer") == 0.0
