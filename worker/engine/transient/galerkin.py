@@ -112,7 +112,7 @@ import numpy as np
 from numpy.typing import ArrayLike
 from scipy.interpolate import CubicSpline
 
-from worker.engine.limits import TRANSIENT_LIMITS, regime_defaults
+from worker.engine.limits import TRANSIENT_LIMITS, check_limit, regime_defaults
 from worker.engine.model import Boundary, Problem
 from worker.engine.transient.front_staircase import staircase_inflow_band
 from worker.engine.transient.galerkin_grading import GradedElements, graded_elements
@@ -1225,15 +1225,17 @@ class GalerkinStudy:
 
 
 def route_rtol(problem: Problem) -> float:
-    """The time tolerance of the route for ``problem``: ``RTOL`` scaled by the default limit
-    of ``RTOL_LIMIT`` for the case's regime over its transient default, so that the time
-    error keeps the same share of the limits the route is compared against. Where a front
-    moves (``limits.FRONT_LIMITS``: 10 times the release-fraction limit) that is 1e-5: on the
-    dispersed-drug slab its change of the extrapolated amounts against 1e-7 stays below 2 %
-    of the route's own grid bands (tests/unit/worker/engine/transient/test_galerkin_time_error.py),
-    and the whole study takes about a third of the steps of 1e-6."""
+    """The time tolerance of the route for ``problem``: ``RTOL`` scaled by the case's limit
+    of ``RTOL_LIMIT`` (its own where the case tightens it, never above the default of its
+    regime) over the transient default, so that the time error keeps the same share of the
+    limits the route is compared against. Where a front moves (``limits.FRONT_LIMITS``: 10
+    times the release-fraction limit) that is 1e-5 by default: on the dispersed-drug slab its
+    change of the extrapolated amounts against 1e-7 stays below 2 % of the route's own grid
+    bands (tests/unit/worker/engine/transient/test_galerkin_time_error.py), and the whole
+    study takes about a third of the steps of 1e-6."""
     default = TRANSIENT_LIMITS[RTOL_LIMIT]
-    return RTOL * regime_defaults(problem).get(RTOL_LIMIT, default) / default
+    regime = regime_defaults(problem).get(RTOL_LIMIT, default)
+    return RTOL * min(check_limit(problem, RTOL_LIMIT), regime) / default
 
 
 def galerkin_study(problem: Problem, times=None, coarse=None, *, rtol: float | None = None,

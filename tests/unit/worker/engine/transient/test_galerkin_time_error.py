@@ -13,6 +13,7 @@ hundredfold (the integrator's error scales with its tolerance).
 
 from __future__ import annotations
 
+import dataclasses
 import math
 
 import mpmath
@@ -67,6 +68,16 @@ def test_the_front_tolerance_follows_the_front_limits():
     plain = Problem("slab", 0.0, (Layer("matrix", L, D, initial=A),), Boundary("symmetry"),
                     Boundary("concentration", 0.0), Regime("transient", TIMES[-1], TIMES))
     assert route_rtol(plain) == galerkin.RTOL
+
+
+@pytest.mark.parametrize("limit, expected", [
+    (1e-4, 1e-6),   # a case that tightens its release limit tenfold gets the tighter tolerance
+    (2e-4, 2e-6),
+    (1e-2, 1e-5),   # a loosened limit never loosens the route beyond its regime's default
+])
+def test_the_front_tolerance_follows_the_cases_own_limit(limit, expected):
+    problem = dataclasses.replace(_slab(), tolerances={galerkin.RTOL_LIMIT: limit})
+    assert route_rtol(problem) == pytest.approx(expected, rel=1e-12)
 
 
 def test_the_front_case_stays_before_the_sealed_face_is_reached():
