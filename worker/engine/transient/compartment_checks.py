@@ -165,3 +165,49 @@ def equilibrium_check(outcome: Outcome, problem: Problem, fine: TransientFVSolut
         f"against the exact equilibrium partition of the load (uniform C/K = {level:.9g}; "
         f"conservation of the load between body and compartments): cells relative to the "
         f"concentration scale, compartments relative to their equilibrium level"))
+
+
+def fed_zone_note(outcome: Outcome, problem: Problem, fine: TransientFVSolution,
+                  internal: np.ndarray, index: np.ndarray, amount_scale: float) -> None:
+    """Warn where a compartment feeds a zero-order layer through a zone thinner than the fine
+    mesh's face cell while the fluid still holds more than the release-fraction limit of the
+    amount scale (what an error of order one in its uptake could move), at the first requested
+    time it does.
+
+    Behind a face held at C_s = K C_fluid, zero-order uptake k (amount/(m^3 s)) in a layer
+    whose own solute has run out takes up what the fluid supplies within a depth
+    delta = sqrt(2 D C_s / k) (m): the steady balance D C'' = k with C = C_s at the face and
+    C = C' = 0 at delta (a depleting zero-order zone; A.V. Hill, Proc. R. Soc. Lond. B 104
+    (1928) 39, the oxygen debt of a consuming tissue). As the fluid is drained, delta shrinks
+    to nothing in finite time; once it is thinner than a cell neither route resolves it (the
+    face rate of a cell-wide zone is off by a factor of order delta / h either way), so the
+    release and face-rate checks at such times may fail. Read on the fine mesh (whose cells
+    are the ones that fall short; a Richardson value of the level can be negative there) at
+    the requested times where its face flux runs into the body (``flux_<side>`` < 0: the fluid
+    feeds it)."""
+    widths = np.diff(fine.mesh.faces)
+    for side in compartment_sides(problem):
+        layer = problem.layers[0 if side == "inner" else -1]
+        if layer.reaction.kind != "zero_order" or not layer.reaction.rate > 0.0:
+            continue
+        fluid = fine.compartments.get(side)
+        if fluid is None:
+            continue
+        level = np.maximum(np.asarray(fluid, dtype=float)[index], 0.0)
+        inward = np.asarray(getattr(fine, f"flux_{side}"), dtype=float)[index] < 0.0
+        depth = np.sqrt(2.0 * layer.diffusivity * problem.face_partition(side) * level
+                        / layer.reaction.rate)
+        cell = float(widths[0] if side == "inner" else widths[-1])
+        held = problem.measure_factor * capacity(problem, side) * level
+        at_stake = held > check_limit(problem, "cross_check.release_fraction") * amount_scale
+        thin = inward & at_stake & (depth < cell)
+        if not np.any(thin):
+            continue
+        k = int(np.flatnonzero(thin)[0])
+        outcome.warnings.append(
+            f"zero-order uptake fed from the {side} compartment: at t = "
+            f"{internal[index[k]]:.6g} s the zone the fluid feeds is about {depth[k]:.3g} m "
+            f"deep (sqrt(2 D K C / k)), thinner than the fine mesh's face cell ({cell:.3g} m); "
+            "no route resolves it there, so the release and face-rate checks at such times "
+            "may fail (a layer drained by its compartment after its own load has run out)")
+

@@ -211,6 +211,8 @@ def run_transient(problem: Problem, independent: Problem | None = None) -> Outco
     add_minimum_series(outcome, problem, minima[0], spread, c_unit)
     if compartments:
         compartment_checks.add_compartment_series(outcome, routes, requested_index, c_unit)
+        compartment_checks.fed_zone_note(outcome, lines_problem, fine, internal,
+                                         requested_index, amount_scale)
         compartment_checks.limited_volume_check(outcome, problem, routes, internal)
     else:  # a compartment's steady state is its equilibrium (checked below)
         _time_to_steady(outcome, problem, independent, routes, duration, c_scale)
