@@ -96,6 +96,7 @@ __all__ = [
     "sherwood_band",
     "sherwood_check",
     "solve_flow",
+    "table_tolerance",
     "tube_of",
     "wall_law_check",
 ]
@@ -225,6 +226,14 @@ def _profile_study(solutions: list[MarchSolution], coarse_steps: int) -> GridStu
     return worst
 
 
+def table_tolerance(problem: Problem) -> float:
+    """The wall table's tolerance (relative, as ``wall_table.tabulate`` takes it): a tenth of
+    the tighter of the limits its flux and totals enter, the wall law's and the layers' mass
+    balance's."""
+    return 0.1 * min(_limit(problem, "cross_check.wall_law"),
+                     check_limit(problem, "mass_balance"))
+
+
 def solve_flow(problem: Problem, coarse: tuple[int, int] | None = None) -> FlowRun:
     """Tabulate the layers, march the lumen on the five meshes of the two studies
     (``coarse``: the coarse mesh, by default :func:`coarse_mesh`)."""
@@ -233,9 +242,7 @@ def solve_flow(problem: Problem, coarse: tuple[int, int] | None = None) -> FlowR
     coarse = coarse or coarse_mesh(problem)
     layers = layers_problem(problem)
     top = max(tube.inlet, 1e-300)
-    # the table's flux and totals enter the wall law and the layers' mass balance
-    tolerance = 0.1 * min(_limit(problem, "cross_check.wall_law"),
-                          check_limit(problem, "mass_balance"))
+    tolerance = table_tolerance(problem)
     table = tabulate(layers, top, tolerance, max_nodes=FIRST_PASS_NODES)
     wall = linear_layer_wall(layers) if layers.is_linear else None
     by_mesh: dict = {}
