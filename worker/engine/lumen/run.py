@@ -58,6 +58,7 @@ from worker.engine.limits import check_limit
 from worker.engine.lumen.graetz import (
     FULLY_DEVELOPED_SH_UNIFORM_FLUX,
     GraetzSeries,
+    dimensionless_length,
     graetz_series,
     layered_wall_conductance,
     peclet_number,
@@ -640,11 +641,16 @@ def run_flow(problem: Problem, independent: Problem | None = None,
 
     if layers.is_linear:
         series, conductance, c_out = _series_for(independent)
-        # the series' positions, inlet and length from the second reading too
-        second = tube_of(independent)
+        # the series' positions, inlet and length from the second reading too, read here
+        # (not through ``tube_of``, the march's reading)
+        second = independent.inner_boundary
+        if independent.length is None:
+            raise ValueError("length: a flow case needs the length of the lumen")
+        second_length = float(independent.length)
         if z_star >= series.smallest_z_star(SERIES_TOLERANCE):
             scale = max(abs(second.inlet - c_out), 1e-300)
-            z_all = np.asarray(second.z_star(fine.position), dtype=float)
+            z_all = np.asarray(dimensionless_length(fine.position, second.flow_rate,
+                                                    second.diffusivity), dtype=float)
             trusted = z_all >= series.smallest_z_star(SERIES_TOLERANCE)
             graetz_check(
                 outcome, problem, mixing_cup=fine.mixing_cup[trusted],
@@ -653,7 +659,8 @@ def run_flow(problem: Problem, independent: Problem | None = None,
                 series_mixing_cup=c_out + (second.inlet - c_out) * series.mixing_cup(
                     z_all[trusted]),
                 series_wall=c_out + (second.inlet - c_out) * float(
-                    series.wall(float(second.z_star(second.length)))[0]),
+                    series.wall(float(dimensionless_length(
+                        second_length, second.flow_rate, second.diffusivity)))[0]),
                 series_band=SERIES_TOLERANCE, scale=scale)
             methods.append({"role": "independent", "name": "Graetz series, layers as a Robin "
                             "wall (second reading of the case)",
@@ -669,7 +676,7 @@ def run_flow(problem: Problem, independent: Problem | None = None,
                            source=f"Robin wall, Bi = {series.biot:.4g}, first Graetz term")
     elif _krogh_applies(problem):
         # the closed forms' inputs from the second reading
-        layer, second = independent.layers[0], tube_of(independent)
+        layer, second = independent.layers[0], independent.inner_boundary
         k_wall = independent.face_partition("inner")
         minimum = krogh_tissue_minimum(independent.inner, independent.outer, layer.diffusivity,
                                        layer.reaction.rate, k_wall * float(fine.wall[-1]))
