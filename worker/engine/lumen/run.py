@@ -87,6 +87,7 @@ __all__ = [
     "COARSE_MESH",
     "FlowRun",
     "coarse_mesh",
+    "coarse_steps",
     "convergence_checks",
     "flow_figures",
     "graetz_check",
@@ -201,9 +202,14 @@ def coarse_mesh(problem: Problem) -> tuple[int, int]:
     for a wall at one concentration: Shah & London 1978, ch. 5): with the nodes graded as
     (k/M)^1.5 that asks M >= ``AXIAL_PER_Z_STAR`` z*_L^(2/3), at most ``MAX_COARSE_STEPS``."""
     tube = tube_of(problem)
-    z_star = float(tube.z_star(tube.length))
-    steps = math.ceil(AXIAL_PER_Z_STAR * z_star ** (2.0 / 3.0))
-    return COARSE_MESH[0], int(min(max(COARSE_MESH[1], steps), MAX_COARSE_STEPS))
+    return COARSE_MESH[0], int(coarse_steps(float(tube.z_star(tube.length))))
+
+
+def coarse_steps(z_star_length):
+    """The coarse mesh's axial steps for a tube of dimensionless length ``z_star_length``
+    (a float or an array over trials): :func:`coarse_mesh`'s rule."""
+    steps = np.ceil(AXIAL_PER_Z_STAR * np.asarray(z_star_length, dtype=float) ** (2.0 / 3.0))
+    return np.minimum(np.maximum(COARSE_MESH[1], steps), MAX_COARSE_STEPS).astype(np.int64)
 
 
 def _profile_study(solutions: list[MarchSolution], coarse_steps: int) -> GridStudy:
