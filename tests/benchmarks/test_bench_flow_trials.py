@@ -23,7 +23,7 @@ import numpy as np
 from schemas import validate_case
 from schemas.checking import check_case
 from tests.benchmarks.timing import median_seconds
-from tests.unit.schemas.test_flow_case import FIBRE
+from tests.unit.schemas.test_flow_case import FIBRE, uncertain_fibre
 from worker.engine.design.targets import Target
 from worker.engine.design.trials import TrialModel
 from worker.engine.lumen.run import flow_figures
@@ -63,13 +63,7 @@ def test_bench_flow_monte_carlo():
     problem = validate_case(_fibre()).problem
     one = median_seconds(lambda: flow_figures(problem), repeats=3)
     for field in ("inner_boundary.flow_rate", "layers[1].reaction.vmax"):
-        case = _fibre()
-        case["requirements"] = [
-            {"id": "OUT", "quantity": "outlet_concentration", "at_least": "0.1 mol/m^3"},
-            {"id": "MIN", "quantity": "concentration_min", "at_least": "1e-4 mol/m^3"}]
-        case["uncertainty"] = {"inputs": [{"field": field, "distribution": "normal",
-                                           "relative_sd": 0.1}],
-                               "seed": 20261205, "max_trials": 20000}
+        case = uncertain_fibre(field)
         start = time.perf_counter()
         record = check_case(case)
         seconds = time.perf_counter() - start

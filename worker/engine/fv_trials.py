@@ -554,7 +554,7 @@ class OneGridFigures:
     consumption: np.ndarray
     layer_min: np.ndarray
     solved: np.ndarray
-    smooth_min: np.ndarray | None = None
+    smooth_min: np.ndarray
 
 
 def _smooth_minimum(grid: _Grid, c: np.ndarray, inner_edge: np.ndarray,

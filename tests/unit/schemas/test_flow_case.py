@@ -162,7 +162,9 @@ def test_a_flow_case_offers_only_its_own_quantities():
     assert any("outlet_concentration" in m for m in errors.values()), errors
 
 
-def _uncertain(field: str, max_trials: int = 20000) -> dict:
+def uncertain_fibre(field: str, max_trials: int = 20000) -> dict:
+    """The fibre with two requirements and ``field`` uncertain (normal, 10 % relative sd);
+    shared with the flow trials' benchmark."""
     case = _doc()
     case["requirements"] = [
         {"id": "OUT", "quantity": "outlet_concentration", "at_least": "0.1 mol/m^3"},
@@ -202,7 +204,7 @@ def test_monte_carlo_on_the_fibre_completes_and_its_trials_agree_with_full_check
     two default blocks are charged over the default budget (``worker.engine.cost``,
     ``FLOW_BATCHED_SOLVE_CELL_WORK``), so it runs as a service with its budgets doubled would."""
     budgets = DEFAULT_BUDGETS.scaled(2.0) if "vmax" in field else DEFAULT_BUDGETS
-    record = check_case(_uncertain(field), budgets=budgets)
+    record = check_case(uncertain_fibre(field), budgets=budgets)
     validate_result(copy.deepcopy(record))
     block = record["uncertainty"]
     assert "batched lumen march" in block["method"]
@@ -232,7 +234,7 @@ def test_an_error_in_the_flow_trials_fails_the_trial_model_check(monkeypatch, sm
         return figures, lowest
 
     monkeypatch.setattr(lumen_trials, "_figures", skewed)
-    record = check_case(_uncertain("inner_boundary.flow_rate"))
+    record = check_case(uncertain_fibre("inner_boundary.flow_rate"))
     assert not _check_named(record, "uncertainty.trial_model")["passed"]
     assert record["verdict"] == "fail"
 
@@ -242,10 +244,10 @@ def test_monte_carlo_on_a_flow_case_beyond_its_budget_is_refused_with_the_trials
     error names ``uncertainty.max_trials`` and how many trials fit; with the cells' vmax
     varied even the two blocks the adaptive run needs do not fit, and the advice names the law
     of propagation."""
-    errors = _errors(_uncertain("inner_boundary.flow_rate", max_trials=1_000_000))
+    errors = _errors(uncertain_fibre("inner_boundary.flow_rate", max_trials=1_000_000))
     assert "uncertainty.max_trials" in errors
     assert "ask for at most" in errors["uncertainty.max_trials"]
-    errors = _errors(_uncertain("layers[1].reaction.vmax", max_trials=1_000_000))
+    errors = _errors(uncertain_fibre("layers[1].reaction.vmax", max_trials=1_000_000))
     assert "fewer than the 20000" in errors["uncertainty.max_trials"]
     assert "law_of_propagation" in errors["uncertainty.max_trials"]
 
@@ -253,7 +255,7 @@ def test_monte_carlo_on_a_flow_case_beyond_its_budget_is_refused_with_the_trials
 def test_a_flow_monte_carlo_without_requirements_follows_the_flow_figures(small_blocks):
     """With no requirement to name them, the run follows the body's minimum and the outlet
     concentration (a flow case has no face flux to follow)."""
-    case = _uncertain("inner_boundary.flow_rate")
+    case = uncertain_fibre("inner_boundary.flow_rate")
     del case["requirements"]
     record = check_case(case)
     assert set(record["uncertainty"]["quantities"]) == {"concentration_min",

@@ -71,7 +71,6 @@ from worker.engine.fv_trials import (
     cells_per_layer_trials,
     solve_trials,
 )
-from worker.engine.limits import check_limit
 from worker.engine.lumen.layer_accuracy import accurate_batch
 from worker.engine.lumen.layer_walls import linear_layer_wall
 from worker.engine.lumen.run import (
@@ -82,6 +81,7 @@ from worker.engine.lumen.run import (
     flow_figures,
     layers_problem,
     solve_flow,
+    table_tolerance,
 )
 from worker.engine.lumen.trials import (
     LUMEN_FIELDS,
@@ -673,9 +673,7 @@ class _FlowTrials:
             table = self.run.table
             if bucket > 0:
                 top = self.inlet * 2.0**bucket
-                table = tabulate(self.layers, top, 0.1 * min(
-                    check_limit(self.problem, "cross_check.wall_law"),
-                    check_limit(self.problem, "mass_balance")))
+                table = tabulate(self.layers, top, table_tolerance(self.problem))
             flux = np.array([[a.wall_flux] for a in table.answers])
             minimum = np.array([[a.minimum] for a in table.answers])
             self._tables[bucket] = TableWalls(table.nodes / table.top, np.array([table.top]),

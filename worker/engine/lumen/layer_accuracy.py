@@ -58,6 +58,7 @@ from worker.engine.limits import check_limit
 from worker.engine.lumen.layer_walls import solve_layers_at
 from worker.engine.model import Problem, SteadySolution
 from worker.engine.outcome import Outcome
+from worker.engine.steady_check import FALLBACK_SAFETY_FACTOR, FORMAL_ORDER, ORDER_BAND
 
 __all__ = [
     "EXTRAPOLATED",
@@ -75,15 +76,13 @@ __all__ = [
     "study_layer_mesh",
 ]
 
-#: Refinement ratio between the meshes, and the scheme's formal order.
+#: Refinement ratio between the meshes. The scheme's formal order, the observed orders taken
+#: as the formal one and Roache's safety factor for a band formed from the formal order where
+#: no order can be observed are the steady family's (``steady_check``): the same finite
+#: volumes.
 REFINEMENT = 2
-FORMAL_ORDER = 2
 #: The fields of an answer that are Richardson-extrapolated (the rest are the finer mesh's).
 EXTRAPOLATED = ("wall_flux", "consumption_per_length", "outer_per_length", "minimum")
-#: Observed orders taken as the formal one (``steady_check.ORDER_BAND``), and Roache's safety
-#: factor for a band formed from the formal order where no order can be observed.
-ORDER_BAND = (1.5, 2.5)
-FALLBACK_SAFETY_FACTOR = 3.0
 
 
 class _Answer(Protocol):
@@ -198,11 +197,9 @@ def accurate_batch(view: Problem, n: int) -> tuple[np.ndarray, np.ndarray]:
     solve failed."""
     base = np.maximum(2, -(-cells_per_layer_trials(view, n) // REFINEMENT))
     fine = solve_one_grid(view, n, base * REFINEMENT**2)
-    assert fine.smooth_min is not None
     if not _extrapolates(view):
         return fine.flux_inner, fine.layer_min.min(axis=1)
     coarse = solve_one_grid(view, n, base * REFINEMENT)
-    assert coarse.smooth_min is not None
     return (richardson(fine.flux_inner, coarse.flux_inner),
             richardson(fine.smooth_min, coarse.smooth_min))
 

@@ -58,6 +58,7 @@ from worker.engine.limits import check_limit
 from worker.engine.lumen.graetz import (
     FULLY_DEVELOPED_SH_UNIFORM_FLUX,
     GraetzSeries,
+    dimensionless_length,
     graetz_series,
     layered_wall_conductance,
     peclet_number,
@@ -86,6 +87,7 @@ __all__ = [
     "COARSE_MESH",
     "FlowRun",
     "coarse_mesh",
+    "coarse_steps",
     "convergence_checks",
     "flow_figures",
     "graetz_check",
@@ -96,6 +98,7 @@ __all__ = [
     "sherwood_band",
     "sherwood_check",
     "solve_flow",
+    "table_tolerance",
     "tube_of",
     "wall_law_check",
 ]
@@ -199,9 +202,14 @@ def coarse_mesh(problem: Problem) -> tuple[int, int]:
     for a wall at one concentration: Shah & London 1978, ch. 5): with the nodes graded as
     (k/M)^1.5 that asks M >= ``AXIAL_PER_Z_STAR`` z*_L^(2/3), at most ``MAX_COARSE_STEPS``."""
     tube = tube_of(problem)
-    z_star = float(tube.z_star(tube.length))
-    steps = math.ceil(AXIAL_PER_Z_STAR * z_star ** (2.0 / 3.0))
-    return COARSE_MESH[0], int(min(max(COARSE_MESH[1], steps), MAX_COARSE_STEPS))
+    return COARSE_MESH[0], int(coarse_steps(float(tube.z_star(tube.length))))
+
+
+def coarse_steps(z_star_length):
+    """The coarse mesh's axial steps for a tube of dimensionless length ``z_star_length``
+    (a float or an array over trials): :func:`coarse_mesh`'s rule."""
+    steps = np.ceil(AXIAL_PER_Z_STAR * np.asarray(z_star_length, dtype=float) ** (2.0 / 3.0))
+    return np.minimum(np.maximum(COARSE_MESH[1], steps), MAX_COARSE_STEPS).astype(np.int64)
 
 
 def _profile_study(solutions: list[MarchSolution], coarse_steps: int) -> GridStudy:
@@ -225,6 +233,14 @@ def _profile_study(solutions: list[MarchSolution], coarse_steps: int) -> GridStu
     return worst
 
 
+def table_tolerance(problem: Problem) -> float:
+    """The wall table's tolerance (relative, as ``wall_table.tabulate`` takes it): a tenth of
+    the tighter of the limits its flux and totals enter, the wall law's and the layers' mass
+    balance's."""
+    return 0.1 * min(_limit(problem, "cross_check.wall_law"),
+                     check_limit(problem, "mass_balance"))
+
+
 def solve_flow(problem: Problem, coarse: tuple[int, int] | None = None) -> FlowRun:
     """Tabulate the layers, march the lumen on the five meshes of the two studies
     (``coarse``: the coarse mesh, by default :func:`coarse_mesh`)."""
@@ -233,9 +249,7 @@ def solve_flow(problem: Problem, coarse: tuple[int, int] | None = None) -> FlowR
     coarse = coarse or coarse_mesh(problem)
     layers = layers_problem(problem)
     top = max(tube.inlet, 1e-300)
-    # the table's flux and totals enter the wall law and the layers' mass balance
-    tolerance = 0.1 * min(_limit(problem, "cross_check.wall_law"),
-                          check_limit(problem, "mass_balance"))
+    tolerance = table_tolerance(problem)
     table = tabulate(layers, top, tolerance, max_nodes=FIRST_PASS_NODES)
     wall = linear_layer_wall(layers) if layers.is_linear else None
     by_mesh: dict = {}
@@ -633,11 +647,16 @@ def run_flow(problem: Problem, independent: Problem | None = None,
 
     if layers.is_linear:
         series, conductance, c_out = _series_for(independent)
-        # the series' positions, inlet and length from the second reading too
-        second = tube_of(independent)
+        # the series' positions, inlet and length from the second reading too, read here
+        # (not through ``tube_of``, the march's reading)
+        second = independent.inner_boundary
+        if independent.length is None:
+            raise ValueError("length: a flow case needs the length of the lumen")
+        second_length = float(independent.length)
         if z_star >= series.smallest_z_star(SERIES_TOLERANCE):
             scale = max(abs(second.inlet - c_out), 1e-300)
-            z_all = np.asarray(second.z_star(fine.position), dtype=float)
+            z_all = np.asarray(dimensionless_length(fine.position, second.flow_rate,
+                                                    second.diffusivity), dtype=float)
             trusted = z_all >= series.smallest_z_star(SERIES_TOLERANCE)
             graetz_check(
                 outcome, problem, mixing_cup=fine.mixing_cup[trusted],
@@ -646,7 +665,8 @@ def run_flow(problem: Problem, independent: Problem | None = None,
                 series_mixing_cup=c_out + (second.inlet - c_out) * series.mixing_cup(
                     z_all[trusted]),
                 series_wall=c_out + (second.inlet - c_out) * float(
-                    series.wall(float(second.z_star(second.length)))[0]),
+                    series.wall(float(dimensionless_length(
+                        second_length, second.flow_rate, second.diffusivity)))[0]),
                 series_band=SERIES_TOLERANCE, scale=scale)
             methods.append({"role": "independent", "name": "Graetz series, layers as a Robin "
                             "wall (second reading of the case)",
@@ -662,7 +682,7 @@ def run_flow(problem: Problem, independent: Problem | None = None,
                            source=f"Robin wall, Bi = {series.biot:.4g}, first Graetz term")
     elif _krogh_applies(problem):
         # the closed forms' inputs from the second reading
-        layer, second = independent.layers[0], tube_of(independent)
+        layer, second = independent.layers[0], independent.inner_boundary
         k_wall = independent.face_partition("inner")
         minimum = krogh_tissue_minimum(independent.inner, independent.outer, layer.diffusivity,
                                        layer.reaction.rate, k_wall * float(fine.wall[-1]))

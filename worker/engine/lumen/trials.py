@@ -47,11 +47,11 @@ from scipy.interpolate import PchipInterpolator
 
 from worker.engine.lumen.marching import AXIAL_GRADING, NEWTON_MAX_ITERATIONS, NEWTON_RTOL
 from worker.engine.lumen.run import (
-    AXIAL_PER_Z_STAR,
     COARSE_MESH,
     MAX_COARSE_CELLS,
     MAX_COARSE_STEPS,
     REFINEMENT,
+    coarse_steps,
 )
 
 __all__ = [
@@ -114,9 +114,7 @@ def fine_meshes(tube: TubeTrials, doublings: tuple[int, int] = (0, 0)) -> np.nda
     ``lumen.run.coarse_mesh`` with the coarse mesh doubled ``doublings`` times in r and in z
     (as the study of the nominal case doubled it, within the same caps), times
     ``REFINEMENT``^2 in both directions."""
-    z_star = tube.z_star(tube.length)
-    steps = np.ceil(AXIAL_PER_Z_STAR * z_star ** (2.0 / 3.0))
-    n_z = np.minimum(np.maximum(COARSE_MESH[1], steps), MAX_COARSE_STEPS).astype(np.int64)
+    n_z = coarse_steps(tube.z_star(tube.length))
     n_r = np.full(tube.n, COARSE_MESH[0], dtype=np.int64)
     for _ in range(doublings[0]):
         n_r = np.minimum(2 * n_r, MAX_COARSE_CELLS)
