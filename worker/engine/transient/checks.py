@@ -14,7 +14,7 @@ from worker.engine.model import Problem
 from worker.engine.outcome import Check, Outcome
 from worker.engine.transient import method_of_lines, solve
 from worker.engine.transient.method_of_lines import TransientFVSolution
-from worker.engine.transient.refinement import FALLBACK_FACTOR
+from worker.engine.transient.refinement import FALLBACK_FACTOR, fallback_band
 from worker.engine.transient.scales import (
     capacity_resistance_time,
     worst,
@@ -116,8 +116,7 @@ def space_check(outcome: Outcome, problem: Problem, fvs: list[TransientFVSolutio
     # and get Roache's band without an observed order.
     fallback = unbanded if np.count_nonzero(unbanded) <= np.count_nonzero(positive) // 2 \
         else np.zeros_like(unbanded)
-    gcis[fallback] = FALLBACK_FACTOR * np.max(np.abs(np.diff(released[:, fallback], axis=0)),
-                                              axis=0) / amount_scale
+    gcis[fallback] = fallback_band(released[:, fallback]) / amount_scale
     failed = positive & ~np.isfinite(gcis)
     value, at_worst = worst(np.where(positive, gcis, np.nan), times)
     if np.any(failed) or at_worst is None:

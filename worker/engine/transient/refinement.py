@@ -27,7 +27,15 @@ from worker.engine.transient.solution import AMOUNTS, TransientSolution
 #: Band factor on the larger mesh difference where no order is observed (Roache 1994).
 FALLBACK_FACTOR = 3.0
 
-__all__ = ["FALLBACK_FACTOR", "AmountStudy", "amount_study", "outside_bands"]
+__all__ = ["FALLBACK_FACTOR", "AmountStudy", "amount_study", "fallback_band", "outside_bands"]
+
+
+def fallback_band(values: np.ndarray) -> np.ndarray:
+    """The band of a study without an observed order: ``FALLBACK_FACTOR`` times the larger
+    difference between successive meshes (Roache 1994). ``values``: the meshes along the first
+    axis (any order of refinement), e.g. one per row and one column per requested time; the
+    result has the remaining shape, in the unit of the values."""
+    return FALLBACK_FACTOR * np.max(np.abs(np.diff(values, axis=0)), axis=0)
 
 
 @dataclass
@@ -82,8 +90,7 @@ def amount_study(solutions: Sequence[TransientSolution], sizes: Sequence[float]
                 band[k] = study.gci_fine * abs(fine)
                 gci[k] = study.gci_fine
             elif all(math.isfinite(v) for v in triple):
-                band[k] = FALLBACK_FACTOR * max(abs(triple[1] - triple[0]),
-                                                abs(triple[2] - triple[1]))
+                band[k] = float(fallback_band(np.asarray(triple)))
         for key, value in (("extrapolated", extrapolated), ("band", band), ("gci", gci),
                            ("order", order), ("convergence", kinds), ("studies", studies)):
             fields[key][name] = value

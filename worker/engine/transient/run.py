@@ -18,6 +18,7 @@ from worker.engine.transient import (
     dispersed_checks,
     exact_series,
     method_of_lines,
+    scales,
     solve,
     uptake,
 )
@@ -185,9 +186,8 @@ def run_transient(problem: Problem, independent: Problem | None = None) -> Outco
     final_index = int(np.searchsorted(internal, duration))
     amounts = primary.amounts
     initial_load = primary.initial_load
-    amount_scale = max(abs(initial_load), float(np.max(
-        np.abs(amounts["released_inner"]) + np.abs(amounts["released_outer"])
-        + np.abs(amounts["consumed"]))))
+    amount_scale = scales.amount_scale(initial_load, amounts["released_inner"],
+                                       amounts["released_outer"], amounts["consumed"])
     c_scale = method_of_lines.concentration_scale(problem)
 
     add_series(outcome, amounts, requested, requested_index, initial_load, factor, amount_unit,

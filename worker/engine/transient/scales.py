@@ -16,6 +16,7 @@ CROSS_CHECK_FLOOR = 1e-2
 
 __all__ = [
     "CROSS_CHECK_FLOOR",
+    "amount_scale",
     "capacity_resistance_time",
     "face_rate_scale",
     "face_weights",
@@ -65,6 +66,15 @@ def capacity_resistance_time(problem: Problem) -> float:
         if any(rates):
             return 1.0 / min(r for r in rates if r > 0)
     return capacity * resistance
+
+
+def amount_scale(initial_load: float, released_inner, released_outer, consumed) -> float:
+    """The scale the amounts are judged on (mol, or mol per unit measure): the larger of the
+    initial load and the largest throughput at any time, |released at either face| +
+    |consumed| (the arrays over the times)."""
+    return max(abs(initial_load), float(np.max(
+        np.abs(np.asarray(released_inner)) + np.abs(np.asarray(released_outer))
+        + np.abs(np.asarray(consumed)))))
 
 
 def face_weights(problem: Problem) -> dict[str, float]:

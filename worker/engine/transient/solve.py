@@ -23,6 +23,7 @@ from worker.engine.transient.exact_series import TransientSeriesSolution
 from worker.engine.transient.method_of_lines import TransientFVSolution
 from worker.engine.transient.scales import (
     CROSS_CHECK_FLOOR,
+    amount_scale,
     capacity_resistance_time,
     face_rate_scale,
     face_weights,
@@ -175,9 +176,8 @@ def time_error(problem: Problem, coarse: TransientFVSolution) -> float | None:
     if halved is None:
         return None
     names = ("remaining", "released_inner", "released_outer", "consumed")
-    scale = max(abs(coarse.initial_load), float(np.max(
-        np.abs(coarse.released_inner) + np.abs(coarse.released_outer)
-        + np.abs(coarse.consumed))))
+    scale = amount_scale(coarse.initial_load, coarse.released_inner, coarse.released_outer,
+                         coarse.consumed)
     if not scale > 0.0:
         return None
     change = max(float(np.max(np.abs(np.asarray(getattr(coarse, n)) - halved[n])))
