@@ -1031,10 +1031,6 @@ class StepHistory:
             out[self.cells:] = self._amounts(np.clip(t_array, self.ts[0], self.ts[-1]))
         return out
 
-    def contents_at(self, t: ArrayLike) -> np.ndarray:
-        """Cell contents per volume at t (columns for an array of times)."""
-        return self._interpolate(self.contents, t)
-
 
 def _compartment_face_fluxes(system: Any, c: np.ndarray, y: np.ndarray) -> np.ndarray:
     """r^n-weighted outward face fluxes Q of the dissolved concentrations ``c``, each
