@@ -14,8 +14,6 @@ from schemas.errors import CaseError
 from schemas.record import failed_record, succeeded_record
 from worker.engine.cost import DEFAULT_BUDGETS, Budgets
 from worker.engine.design.measured import (
-    MONTE_CARLO_SOURCE,
-    PROPAGATION_SOURCE,
     CalibrationRun,
     calibrate_case,
     calibration_propagation,
@@ -24,7 +22,7 @@ from worker.engine.design.measured import (
 )
 from worker.engine.design.monte_carlo import BlockResult
 from worker.engine.design.paths import with_values
-from worker.engine.design.request import LAW_OF_PROPAGATION, DesignRequest
+from worker.engine.design.request import MONTE_CARLO, DesignRequest
 from worker.engine.design.requirements import design_block
 from worker.engine.design.runner import (
     BlockScheduler,
@@ -153,20 +151,18 @@ def _validation(request: DesignRequest, outcome: Outcome, problem: Problem,
                 calibrated: CalibrationRun | None) -> dict:
     """The record's ``validation`` block; an error is recorded in the block, never dropped."""
     targets = list(request.validation_targets)
-    monte_carlo = None
+    propagated = None
     if uncertainty is not None and "quantities" in uncertainty:
         found = uncertainty["quantities"]
-        monte_carlo = {t.key: float(found[t.key]["standard_uncertainty"]) for t in targets
+        propagated = {t.key: float(found[t.key]["standard_uncertainty"]) for t in targets
                        if found.get(t.key, {}).get("standard_uncertainty") is not None}
     fit = None
     try:
         if calibrated is not None:
             spread = calibration_propagation(calibrated, problem, targets)
             fit = {t.key: float(u) for t, u in zip(targets, spread, strict=True)}
-        source = (PROPAGATION_SOURCE if (uncertainty or {}).get("propagation")
-                  == LAW_OF_PROPAGATION else MONTE_CARLO_SOURCE)
-        return validation_block(request, outcome, duration, monte_carlo, fit,
-                                input_source=source)
+        return validation_block(request, outcome, duration, propagated, fit,
+                                method=(uncertainty or {}).get("propagation", MONTE_CARLO))
     except (ValueError, ArithmeticError, np.linalg.LinAlgError) as exc:
         error = f"{type(exc).__name__}: {exc}"
         return {"error": error, "reason": f"not computed: {error}", "agrees": False}

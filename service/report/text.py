@@ -19,6 +19,7 @@ from service.report.text_design import (
     limit_lines,
     requirement_lines,
     sweep_lines,
+    table_head,
     uncertainty_lines,
     verdict_lines,
 )
@@ -220,7 +221,8 @@ def format_over_time_table(record: dict) -> str:
     compartments = any(c.kind == "compartment" for c in columns)
     title = " and ".join(t for t, on in (("Dissolution front", fronts),
                                          ("compartment concentrations", compartments)) if on)
-    lines = [title[0].upper() + title[1:] + " at the requested times", header, "-" * len(header)]
+    lines = [title[0].upper() + title[1:] + " at the requested times",
+             *table_head(header, indent=0)]
     for k, t in enumerate(times):
         cells = []
         for column in columns:
@@ -266,8 +268,8 @@ def format_release_table(outcome) -> str:
     header = (f"{'time [s]':>14} {'time':>12} {'out inner [' + unit + ']':>20} "
               f"{'out outer [' + unit + ']':>20} {fraction_key + ' [' + fraction_unit + ']':>22} "
               f"{'remaining [' + unit + ']':>20}")
-    lines = ["Release" if fraction_key == "release_fraction" else "Uptake", header,
-             "-" * len(header)]
+    lines = ["Release" if fraction_key == "release_fraction" else "Uptake",
+             *table_head(header, indent=0)]
     for k, t in enumerate(times):
         lines.append(
             f"{t:>14.6g} {_time_cell(t):>12} {series['released_inner']['values'][k]:>20.6g} "
@@ -302,7 +304,7 @@ def format_minimum_table(outcome) -> str:
     header = (f"{'time [s]':>14} {'time':>12} {'minimum [' + unit + ']':>22} {'±':>10}"
               + "".join(f" {name[:18]:>18}" for name in names))
     lines = ["Lowest concentration (true minimum over the body" +
-             (", and per layer" if names else "") + ")", header, "-" * len(header)]
+             (", and per layer" if names else "") + ")", *table_head(header, indent=0)]
     uncertainty = lowest.get("uncertainty") or [None] * len(lowest["values"])
     rows = layers.get("values") or [[] for _ in lowest["values"]]
     for t, value, u, row in zip(series["time"]["values"], lowest["values"], uncertainty, rows,

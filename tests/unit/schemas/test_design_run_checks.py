@@ -12,7 +12,8 @@ from schemas.build import validate_case
 from service.report.text import render_text
 from worker.engine import check_case
 from worker.engine.design import runner as design_runner
-from worker.engine.design.runner import DesignRunner, model_disagreement
+from worker.engine.design.agreement import model_disagreement
+from worker.engine.design.runner import DesignRunner
 from worker.engine.design.trials import TrialModel
 from worker.engine.run import run_problem
 
@@ -76,6 +77,7 @@ def test_a_subset_trial_that_fails_its_full_check_fails_the_verdict():
 @pytest.mark.parametrize(("fast", "value", "band", "expected"), [
     (1.0, 1.0, 0.0, 0.0),
     (1.0 + 2e-9, 1.0, 0.0, 2.0),        # beyond the floor of 1e-9 of the value
+    (1.0 - 2e-9, 1.0, 0.0, 2.0),        # as far below it
     (1.0 + 2e-9, 1.0, 4e-9, 0.5),       # inside the figure's numerical uncertainty
     (np.nan, None, None, 0.0),          # neither gives the figure
     (1.0, None, None, float("inf")),    # one route only

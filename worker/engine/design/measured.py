@@ -30,7 +30,7 @@ from worker.engine.design.agreement import model_disagreement
 from worker.engine.design.calibration import CalibrationResult, FitParameter, calibrate
 from worker.engine.design.paths import FieldRef, value_of
 from worker.engine.design.propagation_law import sensitivity_coefficients
-from worker.engine.design.request import DesignRequest
+from worker.engine.design.request import LAW_OF_PROPAGATION, MONTE_CARLO, DesignRequest
 from worker.engine.design.requirements import read_figure
 from worker.engine.design.short_time import FRACTION_LIMIT, short_time_diffusivity
 from worker.engine.design.targets import Target
@@ -218,24 +218,27 @@ def calibration_propagation(run: CalibrationRun, problem: Problem,
     return np.sqrt(np.clip(variance, 0.0, None))
 
 
-#: How the case's uncertainty block's standard uncertainties were propagated, by method.
-MONTE_CARLO_SOURCE = ("the Monte Carlo standard uncertainty of each figure from the case's "
-                      "uncertainty block (JCGM 101:2008)")
-PROPAGATION_SOURCE = ("the combined standard uncertainty of each figure from the case's "
-                      "uncertainty block by the law of propagation (JCGM 100:2008, first order)")
+#: How the case's uncertainty block's standard uncertainties were propagated, by its
+#: ``uncertainty.method`` (the record's ``uncertainty.propagation``).
+INPUT_SOURCES = {
+    MONTE_CARLO: "the Monte Carlo standard uncertainty of each figure from the case's "
+                 "uncertainty block (JCGM 101:2008)",
+    LAW_OF_PROPAGATION: "the combined standard uncertainty of each figure from the case's "
+                        "uncertainty block by the law of propagation (JCGM 100:2008, first "
+                        "order)",
+}
 
 
 def validation_block(request: DesignRequest, outcome: Outcome, duration: float | None,
-                     monte_carlo: Mapping[str, float] | None,
-                     fit: Mapping[str, float] | None, *,
-                     input_source: str = MONTE_CARLO_SOURCE) -> dict:
+                     propagated: Mapping[str, float] | None,
+                     fit: Mapping[str, float] | None, *, method: str = MONTE_CARLO) -> dict:
     """The record's ``validation`` block (ASME V&V 20-2009) for the validation sets.
 
-    ``monte_carlo``: the Monte Carlo standard uncertainty of each target by key (None: the case
-    states no uncertainty block); ``fit``: the fit's contribution by key (None: nothing
-    calibrated); ``input_source`` says how ``monte_carlo`` was propagated (the law of
-    propagation gives it too). Each point's u_input combines the two in quadrature (the
-    case's uncertain inputs and the fitted ones are distinct fields, taken as independent)."""
+    ``propagated``: the standard uncertainty of each target by key that the case's uncertainty
+    block gave by its ``method`` (a key of :data:`INPUT_SOURCES`; None: the case states no
+    uncertainty block); ``fit``: the fit's contribution by key (None: nothing calibrated).
+    Each point's u_input combines the two in quadrature (the case's uncertain inputs and the
+    fitted ones are distinct fields, taken as independent)."""
     sets = []
     missing_num: list[str] = []
     for measurement in request.validation_sets:
@@ -250,10 +253,10 @@ def validation_block(request: DesignRequest, outcome: Outcome, duration: float |
             if reading.uncertainty is None:
                 missing_num.append(f"{measurement.id}@{target.at:g}s")
             u_num.append(reading.uncertainty or 0.0)
-            parts = [source[target.key] for source in (monte_carlo, fit)
+            parts = [source[target.key] for source in (propagated, fit)
                      if source is not None and target.key in source]
             u_input.append(math.sqrt(sum(p * p for p in parts)) if parts else math.nan)
-        assessed = monte_carlo is not None or fit is not None
+        assessed = propagated is not None or fit is not None
         found = compare(np.array(simulated), np.array(measurement.values), np.array(u_num),
                         np.array(u_input) if assessed else None,
                         np.array(measurement.standard_uncertainty),
@@ -261,8 +264,8 @@ def validation_block(request: DesignRequest, outcome: Outcome, duration: float |
         sets.append(found.as_dict(measurement.id, measurement.quantity, measurement.unit,
                                   list(measurement.times)))
     u_input_parts = []
-    if monte_carlo is not None:
-        u_input_parts.append(input_source)
+    if propagated is not None:
+        u_input_parts.append(INPUT_SOURCES[method])
     if fit is not None:
         u_input_parts.append("the calibration's covariance carried to each point by the law "
                              "of propagation of uncertainty (JCGM 100:2008 §5.2)")

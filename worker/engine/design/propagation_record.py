@@ -61,8 +61,6 @@ def _finite(value) -> float | None:
     return number if math.isfinite(number) else None
 
 
-
-
 def verification_block(rows: Sequence[PointCheck], names: Sequence[str],
                        combined: np.ndarray, *, compared: bool) -> dict:
     """The points checked in full: their verdicts, the largest numerical uncertainty of each

@@ -1,6 +1,7 @@
 """The law of propagation of uncertainty (JCGM 100:2008) on models whose propagation is known
 by hand: each input's standard uncertainty against scipy's distributions, the coverage factor
 against the GUM's Table G.1, eq. 13 and the second-order term of eq. 10 on explicit functions,
+the GUM's worked example H.2 (correlated inputs, a nonlinear model),
 and the sensitivity step and the record's checks with their errors injected both ways."""
 
 from __future__ import annotations
@@ -116,6 +117,28 @@ def test_linear_model_combined_uncertainty_is_eq_10_and_eq_13_exactly():
     # a0 a1 < 0 here: a positive correlation lowers u_c, a negative one raises it
     assert correlated.combined[0] < plain.combined[0]
     assert propagate(estimates, values, [(0, 1, -r)]).combined[0] > plain.combined[0]
+
+
+def test_gum_worked_example_h2_correlated_resistance_reactance_impedance():
+    """JCGM 100:2008 (GUM) Annex H.2, simultaneous measurement of resistance and reactance:
+    R = V cos(φ)/I, X = V sin(φ)/I, Z = V/I from V = 4.9990 V, I = 19.6610 mA, φ = 1.04446 rad
+    with standard uncertainties 0.0032 V, 0.0095 mA, 0.00075 rad and correlations
+    r(V, I) = −0.36, r(V, φ) = 0.86, r(I, φ) = −0.65 (Table H.2). The GUM's results (Table
+    H.3, from memory): R = 127.732 Ω, u(R) = 0.071 Ω; X = 219.847 Ω, u(X) = 0.295 Ω;
+    Z = 254.260 Ω, u(Z) = 0.236 Ω. The correlations are published to two digits: moving each
+    by ±0.005 moves u(R) over 0.068-0.072 Ω (its three terms nearly cancel), u(X) and u(Z) by
+    under 0.001 Ω, which sets the tolerances. Without the correlations u(R) would be 0.19 Ω."""
+    estimates = _estimates([4.9990, 19.6610e-3, 1.04446], [0.0032, 0.0095e-3, 0.00075])
+    points = design_points(estimates)
+    volts, amps, phase = points[:, 0], points[:, 1], points[:, 2]
+    values = np.column_stack([volts / amps * np.cos(phase), volts / amps * np.sin(phase),
+                              volts / amps])
+    result = propagate(estimates, values, [(0, 1, -0.36), (0, 2, 0.86), (1, 2, -0.65)])
+    assert result.centre == pytest.approx([127.732, 219.847, 254.260], abs=6e-4)
+    assert result.combined[0] == pytest.approx(0.071, abs=0.0015)
+    assert result.combined[1:] == pytest.approx([0.295, 0.236], abs=0.0015)
+    uncorrelated = propagate(estimates, values).combined
+    assert uncorrelated[0] != pytest.approx(0.071, abs=0.0015)
 
 
 def test_second_order_term_of_a_product_and_a_square():
