@@ -67,6 +67,8 @@ __all__ = [
     "STUDIED_QUANTITIES",
     "GridStudy",
     "extrapolated_or_fine",
+    "fallback_gci",
+    "gci_or_fallback",
     "grid_study",
     "refined_solutions",
     "run_grid_study",
@@ -275,6 +277,23 @@ def grid_study(
         kind = "monotonic"
         message = f"monotonic convergence, apparent order {p:.3g}"
     return GridStudy(phi, r21, r32, p, extrapolated, e_a, e_ext, gci, kind, message, iterations)
+
+
+def fallback_gci(study: GridStudy, formal_order: float, safety: float) -> float:
+    """GCI of the fine grid from the formal order instead of an observed one: ``safety`` times
+    the approximate relative error over r21^p - 1 with p = ``formal_order`` (P.J. Roache,
+    J. Fluids Eng. 116 (1994) 405: safety factor 3 for a study without an observed order)."""
+    return safety * study.approximate_relative_error / (study.ratio_21**formal_order - 1.0)
+
+
+def gci_or_fallback(study: GridStudy, formal_order: float, safety: float) -> float:
+    """GCI_fine as a fraction of the fine value where the study formed one, else
+    :func:`fallback_gci`; 0 where the grids agree to round-off."""
+    if study.convergence == "converged_to_roundoff":
+        return 0.0
+    if math.isfinite(study.gci_fine):
+        return float(study.gci_fine)
+    return fallback_gci(study, formal_order, safety)
 
 
 def extrapolated_or_fine(values: np.ndarray, ratio: float,

@@ -495,8 +495,7 @@ def _gci_relative(result: convergence.GridStudy) -> tuple[float, str]:
     the formal order 2 with Roache's two-grid safety factor 3 (Roache 1994)."""
     if result.reliable or result.convergence == "oscillatory":
         return float(result.gci_fine), result.message
-    fallback = FALLBACK_SAFETY_FACTOR * result.approximate_relative_error / (
-        result.ratio_21**FORMAL_ORDER - 1.0)
+    fallback = convergence.fallback_gci(result, FORMAL_ORDER, FALLBACK_SAFETY_FACTOR)
     return float(fallback), (f"{result.message}; GCI from the formal order {FORMAL_ORDER} with "
                              f"safety factor {FALLBACK_SAFETY_FACTOR:g} (Roache 1994)")
 

@@ -50,7 +50,7 @@ from typing import Any, Protocol, TypeVar
 
 import numpy as np
 
-from worker.engine.convergence import GridStudy, grid_study
+from worker.engine.convergence import GridStudy, gci_or_fallback, grid_study
 from worker.engine.fv_mesh import default_cells_per_layer
 from worker.engine.fv_steady import METHOD_NAME as FINITE_VOLUMES
 from worker.engine.fv_trials import cells_per_layer_trials, solve_one_grid
@@ -221,13 +221,7 @@ class LayerStudy:
         order can be observed the formal order with safety factor 3 (Roache 1994); 0 where the
         meshes agree to round-off."""
         study = self.studies[name]
-        if study.convergence == "converged_to_roundoff":
-            return 0.0
-        if math.isfinite(study.gci_fine):
-            fraction = float(study.gci_fine)
-        else:
-            fraction = FALLBACK_SAFETY_FACTOR * study.approximate_relative_error / (
-                study.ratio_21**FORMAL_ORDER - 1.0)
+        fraction = gci_or_fallback(study, FORMAL_ORDER, FALLBACK_SAFETY_FACTOR)
         return fraction * abs(study.fine) if math.isfinite(fraction) else math.inf
 
 

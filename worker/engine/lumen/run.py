@@ -53,7 +53,7 @@ import time
 
 import numpy as np
 
-from worker.engine.convergence import GridStudy, grid_study
+from worker.engine.convergence import GridStudy, gci_or_fallback, grid_study
 from worker.engine.limits import check_limit
 from worker.engine.lumen.graetz import (
     FULLY_DEVELOPED_SH_UNIFORM_FLUX,
@@ -82,6 +82,7 @@ from worker.engine.lumen.wall_table import (
 )
 from worker.engine.model import Boundary, Problem
 from worker.engine.outcome import Outcome
+from worker.engine.steady_check import FALLBACK_SAFETY_FACTOR, FORMAL_ORDER
 
 __all__ = [
     "COARSE_MESH",
@@ -298,11 +299,7 @@ def solve_flow(problem: Problem, coarse: tuple[int, int] | None = None) -> FlowR
 def _gci(study: GridStudy) -> float:
     """GCI_fine as a fraction, or the formal-order two-grid fallback (Roache 1994: order 2,
     safety factor 3) where no order could be formed; 0 where the grids agree to round-off."""
-    if study.convergence == "converged_to_roundoff":
-        return 0.0
-    if math.isfinite(study.gci_fine):
-        return float(study.gci_fine)
-    return 3.0 * study.approximate_relative_error / (study.ratio_21**2 - 1.0)
+    return gci_or_fallback(study, FORMAL_ORDER, FALLBACK_SAFETY_FACTOR)
 
 
 def _relative_band(name: str, study: GridStudy, inlet: float) -> float:

@@ -12,7 +12,7 @@ import math
 
 import pytest
 
-from worker.engine.convergence import grid_study
+from worker.engine.convergence import fallback_gci, gci_or_fallback, grid_study
 
 # Celik et al. 2008, Table 1: N1, N2, N3 and phi1, phi2, phi3 (inputs)
 CELIK_CELLS = (18000, 8000, 4500)
@@ -104,3 +104,16 @@ def test_bad_input_names_the_argument(kwargs, fragment):
 def test_wrong_number_of_values():
     with pytest.raises(ValueError, match="three values"):
         grid_study((1.0, 1.1), (400, 200, 100))
+
+
+def test_gci_or_fallback_takes_the_gci_then_roaches_formal_order_then_zero_at_roundoff():
+    # Roache (J. Fluids Eng. 116 (1994) 405): without an observed order, GCI = 3 e_a / (r^p - 1)
+    # at the formal order p; e_a = |phi2 - phi1| / |phi1|.
+    monotonic = grid_study([1.0 + 1e-4, 1.0 + 4e-4, 1.0 + 1.6e-3], ratios=(2.0, 2.0))
+    assert gci_or_fallback(monotonic, 2, 3.0) == monotonic.gci_fine
+    wobbling = grid_study([1.0, 1.0 + 1e-3, 1.0], ratios=(2.0, 2.0))
+    assert not math.isfinite(wobbling.gci_fine)
+    assert gci_or_fallback(wobbling, 2, 3.0) == pytest.approx(3.0 * 1e-3 / 3.0, rel=1e-9)
+    assert fallback_gci(wobbling, 1, 3.0) == pytest.approx(3.0 * 1e-3 / 1.0, rel=1e-9)
+    flat = grid_study([1.0, 1.0 + 1e-15, 1.0], ratios=(2.0, 2.0))
+    assert gci_or_fallback(flat, 2, 3.0) == 0.0
