@@ -55,6 +55,7 @@ from worker.engine.design.request import LAW_OF_PROPAGATION, DesignRequest
 from worker.engine.design.sampling import default_block_size
 from worker.engine.design.targets import COMPARTMENT, FLOW
 from worker.engine.fv_mesh import (
+    MAX_CELLS_PER_LAYER,
     MIN_CELLS_PER_LAYER,
     RESISTANCE_CELLS,
     THIELE_CELL_LIMIT,
@@ -291,6 +292,11 @@ def _horizon_field(problem: Problem) -> str | None:
     return biggest[1] if biggest is not None and biggest[0] > plain else None
 
 
+def _capped_cells(wanted: list[int]) -> int:
+    """The cells of one mesh with each layer's count capped as ``fv_mesh`` caps it."""
+    return sum(min(n, MAX_CELLS_PER_LAYER) for n in wanted)
+
+
 def _transient_steps(problem: Problem) -> int:
     times = [t for t in problem.regime.times if t > 0.0]
     duration = problem.regime.duration or 0.0
@@ -314,7 +320,7 @@ def _transient_cells(problem: Problem, wanted: list[int]) -> int:
     first = min(times) if times else None
     coarse = 0
     for cells, layer in zip(wanted, problem.layers, strict=True):
-        n = max(10, math.ceil(min(cells, 4000) / 4))
+        n = max(10, math.ceil(min(cells, MAX_CELLS_PER_LAYER) / 4))
         if first is not None:
             early = math.ceil(layer.thickness / (0.35 * math.sqrt(layer.diffusivity * first)))
             n = max(n, min(early, 250))
@@ -373,7 +379,7 @@ def _flow_cell_steps(problem: Problem) -> tuple[int, int]:
 
 def _flow_one_solve(problem: Problem, wanted: list[int]) -> float:
     """Work of one steady solve of the layers, as the full check charges it."""
-    return float(sum(min(n, 4000) for n in wanted)) * (
+    return float(_capped_cells(wanted)) * (
         1 if problem.is_linear else NONLINEAR_ITERATIONS)
 
 
@@ -400,7 +406,7 @@ def flow_trial_work(problem: Problem, design: DesignRequest, wanted: list[int]) 
     # the finest mesh of the studies: the coarse mesh refined twice by REFINEMENT each way
     work = FLOW_TRIAL_CELL_STEP_WORK * (n_r * REFINEMENT**2) * (n_z * REFINEMENT**2)
     layers_vary = any((f.part, f.name) not in LUMEN_FIELDS for f in _varied_fields(design))
-    cells = float(sum(min(n, 4000) for n in wanted))
+    cells = float(_capped_cells(wanted))
     if problem.is_linear:
         return work + (3 * CLOSED_FORM_TRIAL_WORK if layers_vary else 0.0)
     if any(ly.reaction.law.exact_coefficients(ly.reaction) is None for ly in problem.layers):
@@ -440,7 +446,7 @@ def estimate_cost(problem: Problem, design: DesignRequest | None = None) -> Cost
     flow = problem.inner_boundary.kind == FLOW
     if flow:
         steps = 1
-        cells = sum(min(n, 4000) for n in wanted) + _flow_cell_steps(problem)[1]
+        cells = _capped_cells(wanted) + _flow_cell_steps(problem)[1]
         check_work = _flow_check_work(problem, wanted)
     elif problem.regime.kind == "transient":
         cells = _transient_cells(problem, wanted)
@@ -448,7 +454,7 @@ def estimate_cost(problem: Problem, design: DesignRequest | None = None) -> Cost
         check_work = float(cells) * steps * TRANSIENT_STEP_WORK
     else:
         steps = 1
-        cells = STEADY_MESH_FACTOR * sum(min(n, 4000) for n in wanted)
+        cells = STEADY_MESH_FACTOR * _capped_cells(wanted)
         check_work = float(cells) * (1 if linear else NONLINEAR_ITERATIONS)
         if not linear:
             unknowns = 2 * len(problem.layers)
