@@ -12,8 +12,8 @@ from __future__ import annotations
 import numpy as np
 import pytest
 
+from worker.engine.design.agreement import model_disagreement
 from worker.engine.design.paths import resolve, with_values
-from worker.engine.design.runner import model_disagreement
 from worker.engine.design.targets import Target
 from worker.engine.design.trials import TrialModel
 from worker.engine.lumen import run as flow
